@@ -1,0 +1,45 @@
+# balance-desk: two commands do all the set-up on a fresh machine.
+#   make run    install what is needed, start the dashboard on the sample cases
+#   make test   install what is needed, run every test
+# Both are idempotent: the second time they only check and go.
+
+PYTHON ?= python3
+VENV   := .venv
+BIN    := $(VENV)/bin
+STAMP  := $(VENV)/.installed
+EXTRAS := io,grib,app,distributed,test
+PORT   ?= 5006
+
+# nothing may reach for the network at run time
+export PROJ_NETWORK := OFF
+
+.PHONY: run test install system bench verify clean
+
+run: system install
+	$(BIN)/balance-desk scales
+
+test: system install
+	$(BIN)/python -m pytest $(PYTEST_ARGS)
+
+bench: install
+	$(BIN)/python bench/core.py
+
+verify: install
+	$(BIN)/balance-desk verify
+
+install: $(STAMP)
+
+$(BIN)/python:
+	$(PYTHON) -m venv $(VENV)
+
+$(STAMP): pyproject.toml .ci/constraints.txt | $(BIN)/python
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -c .ci/constraints.txt -e ".[$(EXTRAS)]"
+	touch $@
+
+# Debian packages: offline coastlines and the browser for the browser tests.
+system:
+	@sh .ci/system-packages
+
+clean:
+	rm -rf $(VENV) .pytest_cache .hypothesis build *.egg-info

@@ -1,0 +1,332 @@
+"""Which balance holds: imbalance ratios of the candidate balances, a class, one sentence.
+
+Ranking RMS magnitudes alone always puts the pressure gradient and Coriolis
+on top whether or not they cancel, so the data verdict is decided on vector
+sums. For a region, the imbalance ratio of a candidate balance is
+
+    RMS |sum of its terms| / RMS |pressure_gradient|
+
+area-weighted over the points where every term involved is finite:
+
+    geostrophic     pressure_gradient + coriolis
+    cyclostrophic   pressure_gradient + centripetal
+    gradient        pressure_gradient + coriolis + centripetal
+    frictional      pressure_gradient + coriolis + residual
+
+together with two shares, RMS|acceleration| / RMS|PGF| (is the flow speeding
+up, slowing or turning faster than a balance allows?) and RMS|residual| /
+RMS|PGF| (how much the unresolved force matters).
+
+The thresholds are the project's own choice, not a published standard:
+they are the fields of :class:`Thresholds`, documented in DEVELOPERS.md and
+configurable by every caller.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+
+from .region import Region, weighted_stats
+
+__all__ = ["Thresholds", "Verdict", "imbalance_ratios", "classify_budget", "classify_scales",
+           "budget_verdict", "residual_causes", "CANDIDATES", "CLASSES"]
+
+#: Candidate balances, simplest first, and the terms each adds up.
+CANDIDATES = {
+    "geostrophic": ("pressure_gradient", "coriolis"),
+    "cyclostrophic": ("pressure_gradient", "centripetal"),
+    "gradient": ("pressure_gradient", "coriolis", "centripetal"),
+    "frictional": ("pressure_gradient", "coriolis", "residual"),
+}
+#: Every class a verdict can take.
+CLASSES = ("geostrophic", "gradient", "cyclostrophic", "frictional", "unsteady", "unbalanced")
+
+_PRETTY = {
+    "tendency": "local tendency",
+    "horizontal_advection": "horizontal advection",
+    "vertical_advection": "vertical advection",
+    "metric_uv": "curvature-of-Earth term",
+    "metric_uw": "vertical curvature-of-Earth term",
+    "coriolis": "Coriolis",
+    "coriolis_w": "vertical Coriolis",
+    "pressure_gradient": "pressure-gradient force",
+    "residual": "residual (friction and unresolved)",
+    "acceleration": "total acceleration DV/Dt",
+    "along_stream": "along-stream acceleration",
+    "centripetal": "centripetal acceleration",
+    "viscous": "viscous force",
+}
+
+
+@dataclasses.dataclass(frozen=True)
+class Thresholds:
+    """The project's own thresholds for the verdict (not a published standard).
+
+    Attributes
+    ----------
+    balanced : float
+        A candidate balance holds when its imbalance ratio is at or below this.
+    improvement : float
+        A candidate with more terms replaces a simpler one that also holds only
+        if its ratio is at most ``improvement`` times the simpler one's.
+    friction_share : float
+        Frictional balance needs RMS|residual| / RMS|PGF| at or above this.
+    unsteady_share : float
+        With no balance holding, RMS|DV/Dt| / RMS|PGF| at or above this makes
+        the class "unsteady"; below it, "unbalanced".
+    comparable_factor : float
+        Scale verdict: a term within this factor of the pressure gradient
+        matters ("within a factor of a few").
+    rossby_small, rossby_large : float
+        Scale verdict: Ro below ``rossby_small`` allows geostrophy; Ro above
+        ``rossby_large`` leaves Coriolis out of a curved flow (cyclostrophic).
+    """
+
+    balanced: float = 0.3
+    improvement: float = 0.5
+    friction_share: float = 0.2
+    unsteady_share: float = 0.5
+    comparable_factor: float = 3.0
+    rossby_small: float = 0.3
+    rossby_large: float = 3.0
+
+
+@dataclasses.dataclass(frozen=True)
+class Verdict:
+    """A balance class with its plain-language sentence and the evidence."""
+
+    balance: str
+    text: str
+    ratios: dict = dataclasses.field(default_factory=dict)
+
+    def as_dict(self) -> dict:
+        return {"balance": self.balance, "text": self.text}
+
+
+def _rms(field, grid, inside):
+    s = weighted_stats(field, grid, inside, quantiles=False)
+    return s.rms
+
+
+def imbalance_ratios(budget, grid, inside) -> dict:
+    """Imbalance ratio of each candidate balance and the two shares over a region.
+
+    Parameters
+    ----------
+    budget : balance_core.budget.Budget
+    grid : Grid
+    inside : bool array, or a Region
+
+    Returns
+    -------
+    dict
+        ``geostrophic``, ``cyclostrophic``, ``gradient``, ``frictional``,
+        ``acceleration_share``, ``residual_share``, and the RMS magnitudes of
+        every term and view under ``"rms"``. A value is None where the region
+        has no valid points or the needed terms are unavailable.
+    """
+    if isinstance(inside, Region):
+        inside = inside.mask(grid)
+    names = list(budget.terms) + list(budget.derived)
+    # one common set of points: where every available term is finite
+    ok = inside.copy()
+    for n in names:
+        t = budget[n]
+        if t.available:
+            ok &= np.isfinite(t.x) & np.isfinite(t.y)
+    out = {"points": int(ok.sum()), "masked_points": int(inside.sum() - ok.sum())}
+    rms = {}
+    for n in names:
+        t = budget[n]
+        rms[n] = _rms(np.hypot(t.x, t.y), grid, ok) if t.available else None
+    out["rms"] = rms
+    p = rms["pressure_gradient"]
+    for cand, parts in CANDIDATES.items():
+        terms = [budget[n] for n in parts]
+        if not p or not all(t.available for t in terms):
+            out[cand] = None
+            continue
+        sx = sum(t.x for t in terms)
+        sy = sum(t.y for t in terms)
+        out[cand] = _rms(np.hypot(sx, sy), grid, ok) / p
+    acc, res = rms.get("acceleration"), rms.get("residual")
+    out["acceleration_share"] = acc / p if p and acc is not None else None
+    out["residual_share"] = res / p if p and res is not None else None
+    return out
+
+
+def classify_budget(ratios: dict, thresholds: Thresholds = Thresholds()) -> Verdict:
+    """Pick one class from the imbalance ratios of :func:`imbalance_ratios`.
+
+    Rule (the project's own): the candidate balances that hold (ratio at or
+    below ``balanced``; frictional also needs a residual share of at least
+    ``friction_share``) are taken simplest first (geostrophic and
+    cyclostrophic, then gradient, then frictional); a more complex one replaces
+    the current choice only if its ratio is at most ``improvement`` times the
+    current one. If none holds, the flow is "unsteady" when the acceleration
+    share reaches ``unsteady_share`` and "unbalanced" otherwise.
+    """
+    th = thresholds
+    rms = ratios.get("rms", {})
+    if not ratios.get("points") or not rms.get("pressure_gradient"):
+        return Verdict("unbalanced", "No valid points with a pressure-gradient force in the "
+                       "region, so no balance can be tested.", ratios)
+    holds = {}
+    for cand in CANDIDATES:
+        r = ratios.get(cand)
+        if r is None or r > th.balanced:
+            continue
+        if cand == "frictional" and (ratios.get("residual_share") or 0) < th.friction_share:
+            continue
+        holds[cand] = r
+    chosen = None
+    simple = [c for c in ("geostrophic", "cyclostrophic") if c in holds]
+    if simple:
+        chosen = min(simple, key=holds.get)
+    for cand in ("gradient", "frictional"):
+        if cand in holds and (chosen is None or holds[cand] <= th.improvement * holds[chosen]):
+            chosen = cand
+    if chosen is None:
+        acc = ratios.get("acceleration_share")
+        chosen = "unsteady" if acc is not None and acc >= th.unsteady_share else "unbalanced"
+    return Verdict(chosen, _sentence(chosen, ratios), ratios)
+
+
+def budget_verdict(budget, grid, inside, thresholds: Thresholds = Thresholds()) -> Verdict:
+    """:func:`imbalance_ratios` then :func:`classify_budget`."""
+    return classify_budget(imbalance_ratios(budget, grid, inside), thresholds)
+
+
+def _fmt(x):
+    return "n/a" if x is None else f"{x:.1e} m s-2"
+
+
+def _pct(x):
+    return f"{100 * x:.0f} %"
+
+
+def _sentence(cls, ratios) -> str:
+    rms = ratios["rms"]
+    p = rms["pressure_gradient"]
+    ranked = sorted(((v, k) for k, v in rms.items()
+                     if v is not None and k not in ("pressure_gradient", "residual", "acceleration",
+                                                    "along_stream", "centripetal", "tendency")),
+                    reverse=True)
+    cor = rms.get("coriolis")
+    cen = rms.get("centripetal")
+    acc = rms.get("acceleration")
+    res = rms.get("residual")
+    if cls == "geostrophic":
+        other = next((k for v, k in ranked if k != "coriolis"), None)
+        tail = f"; the largest other term is {_PRETTY[other]} ({_fmt(rms[other])})" if other else ""
+        return (f"Geostrophic: the pressure-gradient force ({_fmt(p)}) is balanced by Coriolis "
+                f"({_fmt(cor)}) to within {_pct(ratios['geostrophic'])}{tail}.")
+    if cls == "cyclostrophic":
+        return (f"Cyclostrophic: the pressure-gradient force ({_fmt(p)}) is balanced by the "
+                f"centripetal acceleration ({_fmt(cen)}) to within {_pct(ratios['cyclostrophic'])}; "
+                f"Coriolis ({_fmt(cor)}) is minor.")
+    if cls == "gradient":
+        return (f"Gradient: the pressure-gradient force ({_fmt(p)}) is balanced by Coriolis "
+                f"({_fmt(cor)}) and the centripetal acceleration ({_fmt(cen)}) together, to within "
+                f"{_pct(ratios['gradient'])} (geostrophy alone leaves {_pct(ratios['geostrophic'])}).")
+    if cls == "frictional":
+        return (f"Frictional: the pressure-gradient force ({_fmt(p)}), Coriolis ({_fmt(cor)}) and "
+                f"the residual friction ({_fmt(res)}) balance to within {_pct(ratios['frictional'])}; "
+                f"geostrophy alone leaves {_pct(ratios['geostrophic'])}.")
+    best = min(((ratios[c], c) for c in CANDIDATES if ratios.get(c) is not None), default=None)
+    best_txt = f"; the closest balance, {best[1]}, leaves {_pct(best[0])}" if best else ""
+    if cls == "unsteady":
+        return (f"Unsteady: the total acceleration DV/Dt ({_fmt(acc)}) is "
+                f"{_pct(ratios['acceleration_share'])} of the pressure-gradient force ({_fmt(p)}), "
+                f"so no balance holds{best_txt}.")
+    return (f"Unbalanced: no candidate balance holds for the pressure-gradient force ({_fmt(p)})"
+            f"{best_txt}; the residual is {_fmt(res)}.")
+
+
+def classify_scales(result, thresholds: Thresholds = Thresholds()) -> Verdict:
+    """Verdict of an a priori scale analysis (:func:`balance_core.scales.analyse_scales`).
+
+    Scales carry no signs, so this follows the magnitudes alone: the Rossby
+    number and which terms are within ``comparable_factor`` of the pressure
+    gradient. Rule (the project's own):
+
+    * the viscous term comparable: frictional;
+    * only Coriolis comparable and Ro < ``rossby_small``: geostrophic;
+    * Coriolis and acceleration comparable: gradient if the flow is curved,
+      else unsteady;
+    * acceleration comparable, Coriolis not (Ro > ``rossby_large`` or Coriolis
+      below the factor): cyclostrophic if curved, else unsteady;
+    * nothing comparable: unbalanced (the scales are not consistent).
+    """
+    th = thresholds
+    mags = dict(result.terms)
+    p = mags["pressure_gradient"]
+    ro = result.numbers.get("rossby")
+    if p <= 0:
+        return Verdict("unbalanced", "The pressure difference is zero, so no balance can be tested "
+                       "by scales.")
+    near = {k for k, v in mags.items() if k != "pressure_gradient" and v * th.comparable_factor >= p}
+    curved = result.scales.curved
+    ro_txt = "n/a" if ro is None else f"{ro:.2g}"
+    listing = ", ".join(f"{_PRETTY[k]} {mags[k]:.1e}" for k in sorted(near, key=lambda k: -mags[k]))
+    head = (f"By scales (magnitudes only, no signs): pressure gradient {p:.1e} m s-2, Rossby number "
+            f"{ro_txt}; within a factor {th.comparable_factor:g}: {listing or 'no other term'}.")
+    if "viscous" in near:
+        return Verdict("frictional", head + " Friction matters: frictional balance.")
+    if near == {"coriolis"} and ro is not None and ro < th.rossby_small:
+        return Verdict("geostrophic", head + " Coriolis alone balances it: geostrophic.")
+    if "acceleration" in near and "coriolis" in near and (ro is None or ro <= th.rossby_large):
+        if curved:
+            return Verdict("gradient", head + " Curved flow with Coriolis and centripetal terms "
+                           "both in play: gradient balance.")
+        return Verdict("unsteady", head + " Acceleration rivals Coriolis in a flow that is not "
+                       "curved: unsteady (scales cannot tell curvature from speeding up).")
+    if "acceleration" in near:
+        if curved:
+            return Verdict("cyclostrophic", head + " Curved flow with Coriolis minor: "
+                           "cyclostrophic balance.")
+        return Verdict("unsteady", head + " Acceleration dominates Coriolis: unsteady (scales "
+                       "cannot tell curvature from speeding up).")
+    if "coriolis" in near:
+        return Verdict("geostrophic", head + " Coriolis balances it (Rossby number not small, so "
+                       "take this with care): geostrophic.")
+    return Verdict("unbalanced", head + " No term at these scales opposes the pressure gradient: "
+                   "the scales are not consistent with each other.")
+
+
+def residual_causes(*, level_pa: float, budget=None, time_step_s: float | None = None,
+                    residual_share: float | None = None, below_ground: int = 0,
+                    steep_terrain: bool = False) -> list:
+    """Likely causes of a large residual, as short sentences (most likely first).
+
+    The residual is the tendency minus every resolved term; which of friction,
+    sub-grid processes or data and numerical error dominates depends on where
+    and how the data was taken. Rules (the project's own, common practice):
+    levels at or below 850 hPa are in or near the boundary layer; a time step
+    longer than 6 h under-resolves the tendency; one time means the tendency
+    is missing altogether; points below the ground or steep terrain point to
+    extrapolated or noisy pressure-level data.
+    """
+    causes = []
+    if level_pa >= 85000:
+        causes.append(f"{level_pa / 100:.0f} hPa is in or near the boundary layer, where friction "
+                      "is expected")
+    if budget is not None:
+        if "tendency" in budget.residual_includes:
+            causes.append("one time only: the residual holds the local tendency")
+        if "vertical_advection" in budget.residual_includes:
+            causes.append("no vertical advection: the residual holds it")
+    if time_step_s is not None and time_step_s > 6 * 3600:
+        causes.append(f"a time step of {time_step_s / 3600:.0f} h is too coarse to resolve the "
+                      "local tendency")
+    if below_ground:
+        causes.append(f"{below_ground} points lie below the ground (values extrapolated by the "
+                      "model's post-processing)")
+    if steep_terrain:
+        causes.append("steep terrain: pressure-level gradients are noisy there")
+    if not causes and residual_share is not None and residual_share >= 0.2:
+        causes.append("sub-grid processes (convection, gravity waves) or numerical error in the "
+                      "data")
+    return causes
