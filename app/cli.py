@@ -179,7 +179,7 @@ def format_scales_table(rep: dict) -> str:
     lines += ["", "  rank  term                 magnitude (m s-2)  power of ten  / pressure gradient"]
     for i, t in enumerate(rep["terms"], 1):
         m = t["magnitude"]
-        p10 = f"10^{math.floor(math.log10(m) + 0.5):d}" if m > 0 else "0"
+        p10 = f"10^{math.floor(math.log10(m) + 1e-9):d}" if m > 0 else "0"
         ratio = f"{m / pgf:.2g}" if pgf > 0 else "n/a"
         lines.append(f"  {i:>4}  {t['name']:<19}  {_sci(m):<17}  {p10:<12}  {ratio}")
     lines += ["", "  number              value"]

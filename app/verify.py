@@ -40,7 +40,7 @@ def check_synoptic_scales() -> CheckResult:
     r = analyse_scales(s)
     expected = {"acceleration": -4, "metric_uv": -5, "metric_uw": -8, "pressure_gradient": -3,
                 "coriolis": -3, "coriolis_w": -6, "viscous": -12}
-    got = {k: math.floor(math.log10(v) + 0.5) for k, v in r.terms}
+    got = {k: math.floor(math.log10(v) + 1e-9) for k, v in r.terms}
     bad = {k: got[k] for k, e in expected.items() if got[k] != e}
     verdict = classify_scales(r).balance
     ok = not bad and verdict == "geostrophic"

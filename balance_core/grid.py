@@ -452,7 +452,7 @@ class Grid:
     @classmethod
     def projected(cls, x, y, crs, *, radius: float = constants.EARTH_RADIUS,
                   omega: float = constants.OMEGA, min_lat: float = 10.0,
-                  coriolis=None) -> "Grid":
+                  pole_limit: float = 89.99, coriolis=None) -> "Grid":
         """A grid regular in the coordinates (x, y) of a map projection.
 
         The map factor and the meridian convergence come from pyproj
@@ -499,10 +499,12 @@ class Grid:
         dy = np.abs(np.gradient(y))[:, None]
         area = dx * dy / (np.asarray(fac.areal_scale, dtype=np.float64))
         g = np.deg2rad(gamma)
+        # at a pole east and north are undefined: no rotation, so no gradient
+        g[np.abs(lat2d) >= pole_limit] = np.nan
         grid = cls(kind="projected", lat2d=lat2d, lon2d=lon2d,
                    metrics=_Metrics(x, y, mx, my, False, np.cos(g), np.sin(g)), cell_area=area,
-                   radius=radius, omega=omega, min_lat=min_lat, periodic=False, x=x, y=y,
-                   crs=crs, map_factor=k, convergence=gamma)
+                   radius=radius, omega=omega, min_lat=min_lat, pole_limit=pole_limit,
+                   periodic=False, x=x, y=y, crs=crs, map_factor=k, convergence=gamma)
         if coriolis is not None:
             grid = grid.with_coriolis(coriolis)
         return grid

@@ -68,9 +68,12 @@ class Thresholds:
     ----------
     balanced : float
         A candidate balance holds when its imbalance ratio is at or below this.
+    good : float
+        A balance holding to within this is kept even when one with more terms
+        does better still.
     improvement : float
-        A candidate with more terms replaces a simpler one that also holds only
-        if its ratio is at most ``improvement`` times the simpler one's.
+        Otherwise a candidate with more terms replaces a simpler one that also
+        holds only if its ratio is at most ``improvement`` times the simpler one's.
     friction_share : float
         Frictional balance needs RMS|residual| / RMS|PGF| at or above this.
     unsteady_share : float
@@ -85,6 +88,7 @@ class Thresholds:
     """
 
     balanced: float = 0.3
+    good: float = 0.1
     improvement: float = 0.5
     friction_share: float = 0.2
     unsteady_share: float = 0.5
@@ -164,9 +168,10 @@ def classify_budget(ratios: dict, thresholds: Thresholds = Thresholds()) -> Verd
     below ``balanced``; frictional also needs a residual share of at least
     ``friction_share``) are taken simplest first (geostrophic and
     cyclostrophic, then gradient, then frictional); a more complex one replaces
-    the current choice only if its ratio is at most ``improvement`` times the
-    current one. If none holds, the flow is "unsteady" when the acceleration
-    share reaches ``unsteady_share`` and "unbalanced" otherwise.
+    the current choice only if the current one is not already within ``good``
+    and the new ratio is at most ``improvement`` times the current one. If none
+    holds, the flow is "unsteady" when the acceleration share reaches
+    ``unsteady_share`` and "unbalanced" otherwise.
     """
     th = thresholds
     rms = ratios.get("rms", {})
@@ -186,7 +191,8 @@ def classify_budget(ratios: dict, thresholds: Thresholds = Thresholds()) -> Verd
     if simple:
         chosen = min(simple, key=holds.get)
     for cand in ("gradient", "frictional"):
-        if cand in holds and (chosen is None or holds[cand] <= th.improvement * holds[chosen]):
+        if cand in holds and (chosen is None or (holds[chosen] > th.good and
+                                                 holds[cand] <= th.improvement * holds[chosen])):
             chosen = cand
     if chosen is None:
         acc = ratios.get("acceleration_share")

@@ -1,0 +1,20 @@
+"""Shared test set-up.
+
+The whole run blocks network sockets except loopback (pytest-socket, see
+pyproject.toml), so a hidden download (coastlines, projection grids, sample
+data) fails loudly instead of hanging; PROJ is told not to fetch grids.
+"""
+
+import os
+
+os.environ.setdefault("PROJ_NETWORK", "OFF")
+
+import pyproj  # noqa: E402,F401  - before anything that may load eccodes
+
+import numpy as np  # noqa: E402
+import pytest  # noqa: E402
+
+
+@pytest.fixture
+def rng():
+    return np.random.default_rng(20261201)
