@@ -41,6 +41,7 @@ from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 
+from . import _memory
 from . import constants as c
 from .grid import Grid, derivative_weights
 from .thermo import standard_atmosphere_density
@@ -166,7 +167,6 @@ class Budget:
     level_pa: float
     time_index: int
     level_index: int
-    w: np.ndarray | None = None
 
     def __getitem__(self, name) -> Term:
         if name in self.terms:
@@ -247,43 +247,61 @@ def momentum_budget(grid: Grid, fields: Fields, time_index: int = 0, level_index
     rows = max(3, BAND_POINTS // nx)
     if ny < 2 * rows:
         return _band_budget(grid, fields, it, ik, views)
-    starts = list(range(0, ny, rows))
-    if ny - starts[-1] < 3:  # fold a short last band into the one before
-        starts.pop()
-    bands = list(zip(starts, starts[1:] + [ny]))
+    nthreads = 1 if workers == 1 else _pool()._max_workers
+    nbands = -(-ny // rows)
+    nbands = -(-nbands // nthreads) * nthreads  # a whole number of bands per thread
+    edges = np.linspace(0, ny, nbands + 1).round().astype(int)
+    bands = [(int(a), int(b)) for a, b in zip(edges[:-1], edges[1:])]
 
     def band(j0, j1):
         h0, h1 = max(j0 - 1, 0), min(j1 + 1, ny)
         return _band_budget(grid.rows(h0, h1), fields.rows(h0, h1), it, ik, views), j0 - h0
 
-    first, off = band(*bands[0])
-    out = _empty_like_budget(first, grid.shape)
-    _copy_rows(first, out, bands[0], off)
+    # the layout of the output (which terms exist) from a three-row sample
+    layout = _band_budget(grid.rows(0, 3), fields.rows(0, 3), it, ik, views)
+    out = _empty_like_budget(layout, grid.shape)
 
     def run(b):
         sub, off = band(*b)
         _copy_rows(sub, out, b, off)
 
     if workers == 1:
-        for b in bands[1:]:
+        for b in bands:
             run(b)
     else:
-        for _ in _pool().map(run, bands[1:]):
+        for _ in _pool().map(run, bands):
             pass
     return out
 
 
-def _empty_like_budget(b: "Budget", shape) -> "Budget":
-    """A Budget shaped like band budget ``b`` on the full grid, arrays not yet filled."""
-    def empty(t):
-        if not t.available:
-            return Term(t.name, None, None, t.note)
-        return Term(t.name, np.empty(shape), np.empty(shape), t.note)
+def _zeros(shape):
+    """A read-only field of zeros that takes no memory (a term that is zero by definition)."""
+    return np.broadcast_to(np.float64(0.0), shape)
 
-    return dataclasses.replace(
-        b, terms={n: empty(t) for n, t in b.terms.items()},
-        derived={n: empty(t) for n, t in b.derived.items()},
-        w=None if b.w is None else np.empty(shape))
+
+def _is_zeros(a) -> bool:
+    return a is not None and a.ndim > 0 and all(st == 0 for st in a.strides)
+
+
+def _empty_like_budget(b: "Budget", shape) -> "Budget":
+    """A Budget shaped like band budget ``b`` on the full grid, arrays not yet filled.
+
+    All the output fields are views into one block of memory: one large
+    allocation is mapped with huge pages where the system allows and is
+    recycled by :mod:`balance_core._memory`, where dozens of separate arrays would each
+    pay for their own page faults.
+    """
+    fields = [(g, n, t) for g in ("terms", "derived") for n, t in getattr(b, g).items()]
+    n_arrays = sum(not _is_zeros(a) for _, _, t in fields if t.available for a in (t.x, t.y))
+    slots = iter(_memory.take((n_arrays,) + tuple(shape)))
+    out = {"terms": {}, "derived": {}}
+    for group, name, t in fields:
+        if t.available:
+            xy = [_zeros(shape) if _is_zeros(a) else next(slots) for a in (t.x, t.y)]
+            out[group][name] = Term(name, xy[0], xy[1], t.note)
+        else:
+            out[group][name] = Term(name, None, None, t.note)
+    return dataclasses.replace(b, terms=out["terms"], derived=out["derived"])
 
 
 def _copy_rows(src: "Budget", dst: "Budget", band, offset: int):
@@ -294,10 +312,9 @@ def _copy_rows(src: "Budget", dst: "Budget", band, offset: int):
         for name, t in getattr(src, group).items():
             if t.available:
                 d = getattr(dst, group)[name]
-                d.x[j0:j1] = t.x[a:b]
-                d.y[j0:j1] = t.y[a:b]
-    if src.w is not None:
-        dst.w[j0:j1] = src.w[a:b]
+                for sa, da in ((t.x, d.x), (t.y, d.y)):
+                    if not _is_zeros(da):
+                        da[j0:j1] = sa[a:b]
 
 
 def _band_budget(grid: Grid, fields: Fields, it: int, ik: int, views: bool = True) -> Budget:
@@ -348,9 +365,10 @@ class _Context:
                     f"w = -omega / (rho g), rho = {rho:.3f} kg m-3 from the standard atmosphere "
                     "(no temperature in the data)")
                 self.w = self.omega * (-1.0 / (c.G0 * rho))
-            self.w_over_a_neg = self.w * (-1.0 / grid.radius)
             if self.p_ids is None:
                 self.missing["vertical_advection"] = "one pressure level only, so no vertical derivative"
+        self.neg_u = np.negative(self.u)
+        self.w_over_a = None if self.w is None else self.w * (1.0 / grid.radius)
 
     def tendency(self, q, q0):
         """d q / dt at (it, ik) for q = fields.u or fields.v (q0 its float64 slice), or None."""
@@ -362,9 +380,9 @@ class _Context:
         """-omega d q / dp at (it, ik), or None."""
         if self.p_ids is None or self.omega is None:
             return None
-        out = _weighted_sum([q0 if k == self.ik else q[self.it, k] for k in self.p_ids], self.p_w)
+        out = _weighted_sum([q0 if k == self.ik else q[self.it, k] for k in self.p_ids],
+                            [-w for w in self.p_w])
         out *= self.omega
-        np.negative(out, out=out)
         return out
 
 
@@ -383,12 +401,11 @@ def _weighted_sum(arrays, weights):
     return out
 
 
-def _advection(u, v, dqdx, dqdy):
+def _advection(neg_u, v, dqdx, dqdy):
     """-(u dq/dx + v dq/dy), reusing the derivative arrays."""
-    dqdx *= u
+    dqdx *= neg_u
     dqdy *= v
-    dqdx += dqdy
-    np.negative(dqdx, out=dqdx)
+    dqdx -= dqdy
     return dqdx
 
 
@@ -396,19 +413,18 @@ def _x_terms(ctx: _Context) -> dict:
     """The x (eastward) momentum equation's terms."""
     g, u, v = ctx.grid, ctx.u, ctx.v
     dudx, dudy = g.grad(u)
-    pgf = g.ddx(ctx.fields.height[ctx.it, ctx.ik], factor=-c.G0)
     metric = np.multiply(u, v)
     metric *= g.tan_lat_over_a
     terms = {
         "tendency": ctx.tendency(ctx.fields.u, u),
-        "horizontal_advection": _advection(u, v, dudx, dudy),
+        "horizontal_advection": _advection(ctx.neg_u, v, dudx, dudy),
         "vertical_advection": ctx.vertical_advection(ctx.fields.u, u),
         "metric_uv": metric,
         "coriolis": np.multiply(g.f, v),
-        "pressure_gradient": pgf,
+        "pressure_gradient": g.ddx(ctx.fields.height[ctx.it, ctx.ik], factor=-c.G0),
     }
     if ctx.w is not None:
-        terms["metric_uw"] = np.multiply(u, ctx.w_over_a_neg)
+        terms["metric_uw"] = np.multiply(ctx.neg_u, ctx.w_over_a)
         terms["coriolis_w"] = np.multiply(ctx.w, -2.0 * g.omega * g.cos_lat)
     return terms
 
@@ -417,28 +433,26 @@ def _y_terms(ctx: _Context) -> dict:
     """The y (northward) momentum equation's terms."""
     g, u, v = ctx.grid, ctx.u, ctx.v
     dvdx, dvdy = g.grad(v)
-    pgf = g.ddy(ctx.fields.height[ctx.it, ctx.ik], factor=-c.G0)
-    metric = np.multiply(u, u)
+    metric = np.multiply(u, ctx.neg_u)
     metric *= g.tan_lat_over_a
-    np.negative(metric, out=metric)
-    cor = np.multiply(g.f, u)
-    np.negative(cor, out=cor)
     terms = {
         "tendency": ctx.tendency(ctx.fields.v, v),
-        "horizontal_advection": _advection(u, v, dvdx, dvdy),
+        "horizontal_advection": _advection(ctx.neg_u, v, dvdx, dvdy),
         "vertical_advection": ctx.vertical_advection(ctx.fields.v, v),
         "metric_uv": metric,
-        "coriolis": cor,
-        "pressure_gradient": pgf,
+        "coriolis": np.multiply(g.f, ctx.neg_u),
+        "pressure_gradient": g.ddy(ctx.fields.height[ctx.it, ctx.ik], factor=-c.G0),
     }
     if ctx.w is not None:
-        terms["metric_uw"] = np.multiply(v, ctx.w_over_a_neg)
-        terms["coriolis_w"] = np.zeros(g.shape)
+        metric_uw = np.multiply(v, ctx.w_over_a)
+        terms["metric_uw"] = np.negative(metric_uw, out=metric_uw)
+        terms["coriolis_w"] = _zeros(g.shape)  # the vertical Coriolis force has no y part
     return terms
 
 
 def _residual(tendency, forcing):
-    """tendency - sum(forcing), or -sum(forcing) without a tendency."""
+    """tendency - sum(forcing), or -sum(forcing) without a tendency; zero terms skipped."""
+    forcing = [f for f in forcing if not _is_zeros(f)]
     if tendency is None:
         res = np.add(forcing[0], forcing[1])
         for part in forcing[2:]:
@@ -466,7 +480,7 @@ def _assemble(ctx: _Context, xs: dict, ys: dict, views: bool = True) -> Budget:
                              _residual(terms["tendency"].y, fy), note)
     return Budget(terms=terms, derived=_derived(ctx, terms) if views else {},
                   residual_includes=includes,
-                  notes=ctx.notes, level_pa=ctx.p, time_index=ctx.it, level_index=ctx.ik, w=ctx.w)
+                  notes=ctx.notes, level_pa=ctx.p, time_index=ctx.it, level_index=ctx.ik)
 
 
 def _derived(ctx: _Context, terms: dict) -> dict:

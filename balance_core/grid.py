@@ -615,24 +615,27 @@ class Grid:
         }
 
     # -- derivatives --------------------------------------------------------------
-    def grad(self, field, factor=None):
+    def grad(self, field, factor=None, out=None):
         """(d/dx, d/dy) of a scalar field along east and north, per metre.
 
         Lat-lon: d/dx = 1/(a cos(phi)) d/dlambda, d/dy = 1/a d/dphi.
         Projected: the axis derivatives times the map factor, rotated by the
         meridian convergence (see :meth:`projected`). ``factor`` (a number)
-        multiplies both components without an extra pass.
+        multiplies both components without an extra pass; ``out`` is an
+        optional pair of float64 arrays to write into.
         """
         m = self._m
-        gx = m.ddx_axis(field, factor=factor)
-        gy = m.ddy_axis(field, factor=factor)
+        ox, oy = (None, None) if out is None else out
+        gx = m.ddx_axis(field, out=ox, factor=factor)
+        gy = m.ddy_axis(field, out=oy, factor=factor)
         if m.cos_g is None:
             return gx, gy
         east = gx * m.cos_g
         east += gy * m.sin_g
         gy *= m.cos_g
         gy -= gx * m.sin_g
-        return east, gy
+        gx[...] = east
+        return gx, gy
 
     def ddx(self, field, factor=None):
         """d/dx along east, per metre, times ``factor`` if given (see :meth:`grad`)."""

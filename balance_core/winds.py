@@ -14,6 +14,7 @@ from functools import cached_property
 
 import numpy as np
 
+from . import _memory
 from . import constants as c
 from .grid import Grid
 
@@ -51,12 +52,14 @@ def geostrophic_wind(grid: Grid, height):
     derivatives of the grid (spherical or map-factor scaled).
     """
     grid.check_field(height, "height")
-    dzdx, dzdy = grid.grad(height)
-    g_over_f = c.G0 * grid.inverse_f
-    dzdy *= g_over_f
-    np.negative(dzdy, out=dzdy)
-    dzdx *= g_over_f
-    return dzdy, dzdx
+    block = _memory.take((2,) + np.shape(height))
+    ug, vg = block[0], block[1]
+    grid.grad(height, out=(vg, ug))  # dZ/dx into vg, dZ/dy into ug
+    ug *= grid.inverse_f
+    ug *= -c.G0
+    vg *= grid.inverse_f
+    vg *= c.G0
+    return ug, vg
 
 
 def geostrophic_wind_from_pressure(grid: Grid, pressure, density):

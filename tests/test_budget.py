@@ -103,7 +103,10 @@ def test_standard_atmosphere_density_without_temperature(rng):
     # w = -omega / (rho g) with the 1976 density at 700 hPa
     from balance_core.thermo import standard_atmosphere_density
     rho = standard_atmosphere_density(70000.0)
-    np.testing.assert_allclose(b.w, -f.omega[1, 1] / (rho * C.G0))
+    w = -f.omega[1, 1] / (rho * C.G0)
+    np.testing.assert_allclose(b["coriolis_w"].x, -2 * C.OMEGA * np.cos(np.deg2rad(g.lat)) * w)
+    np.testing.assert_allclose(b["metric_uw"].x, -f.u[1, 1] * w / g.radius)
+    assert np.all(b["coriolis_w"].y == 0)
 
 
 def test_tendency_of_translating_field():

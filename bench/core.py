@@ -1,0 +1,146 @@
+"""Speed and memory of the core against MetPy, measured in the same run.
+
+A synthetic global 0.25-degree level (721 x 1440), three times and three
+pressure levels (the budget needs neighbours in both), in float64 and float32.
+Every timing is the median of several runs. The last lines are
+
+    ratio geostrophic_wind/metpy VALUE          goal <= 0.2
+    ratio full_budget/metpy_geostrophic_wind VALUE   goal <= 1.0
+    ratio peak_memory/input VALUE               goal <= 12
+
+(ours divided by the reference; lower is better).
+
+    python bench/core.py [--repeat N]
+"""
+
+from __future__ import annotations
+
+import argparse
+import gc
+import os
+import statistics
+import sys
+import time
+import tracemalloc
+import warnings
+
+os.environ.setdefault("PROJ_NETWORK", "OFF")
+import pyproj  # noqa: E402,F401  (before anything that may load eccodes)
+
+import numpy as np  # noqa: E402
+
+from balance_core import Fields, Grid, _memory, momentum_budget  # noqa: E402
+from balance_core.winds import geostrophic_wind  # noqa: E402
+
+
+def synthetic_level(dtype=np.float64, seed=1):
+    """u, v, Z, omega, T on a 0.25-degree global grid: (3 times, 3 levels, 721, 1440)."""
+    lat = np.linspace(90, -90, 721)
+    lon = np.arange(1440) * 0.25
+    lam, phi = np.meshgrid(np.deg2rad(lon), np.deg2rad(lat))
+    rng = np.random.default_rng(seed)
+    noise = lambda amp: amp * rng.standard_normal(lam.shape)  # noqa: E731
+    shape = (3, 3) + lam.shape
+    u, v, z, om, t = (np.empty(shape, dtype) for _ in range(5))
+    for i in range(3):
+        for k in range(3):
+            s = 1 + 0.01 * i + 0.1 * k
+            u[i, k] = s * (25 * np.cos(phi) ** 2 + 8 * np.sin(4 * lam - 0.1 * i) * np.cos(phi)) + noise(0.5)
+            v[i, k] = s * 6 * np.cos(3 * lam + 0.1 * i) * np.cos(phi) + noise(0.5)
+            z[i, k] = 5500 + 1500 * (1 - k) + 200 * np.cos(2 * phi) * s + noise(2)
+            om[i, k] = 0.2 * np.sin(5 * lam) * np.cos(phi) + noise(0.02)
+            t[i, k] = 250 + 30 * np.cos(phi) - 10 * k + noise(0.3)
+    return lat, lon, Fields(u, v, z, [70000.0, 50000.0, 30000.0], [0.0, 10800.0, 21600.0], om, t)
+
+
+def median_ms(fn, repeat):
+    fn()  # warm up (first-touch memory, caches)
+    times = []
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        out = fn()
+        times.append(time.perf_counter() - t0)
+        del out
+    return 1e3 * statistics.median(times)
+
+
+def peak_bytes(fn):
+    """Peak traced allocation while ``fn`` runs and its result is alive.
+
+    The core's pool of recycled output blocks is emptied first, so the peak
+    counts a freshly allocated block for every output field.
+    """
+    _memory.POOL.clear()
+    gc.collect()
+    tracemalloc.start()
+    tracemalloc.reset_peak()
+    out = fn()  # keep the outputs alive: the peak includes every output field
+    _, peak = tracemalloc.get_traced_memory()
+    tracemalloc.stop()
+    del out
+    return peak
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--repeat", type=int, default=7)
+    args = ap.parse_args(argv)
+
+    import metpy.calc as mpcalc
+    from metpy.units import units
+
+    lat, lon, f64 = synthetic_level(np.float64)
+    _, _, f32 = synthetic_level(np.float32)
+    grid = Grid.latlon(lat, lon)
+    z = f64.height[1, 1]
+    dx, dy = mpcalc.lat_lon_grid_deltas(lon, lat)
+    zq = z * units.m
+    latq = np.deg2rad(lat)[:, None] * units.radian
+
+    def metpy_geo():
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # division by f = 0 on the equator row
+            return mpcalc.geostrophic_wind(zq, dx=dx, dy=dy, latitude=latq)
+
+    rows = []
+    t_metpy = median_ms(metpy_geo, args.repeat)
+    rows.append(("metpy geostrophic_wind (plain arrays with units)", t_metpy))
+    t_geo = median_ms(lambda: geostrophic_wind(grid, z), args.repeat)
+    rows.append(("balance_core geostrophic_wind float64", t_geo))
+    t_geo32 = median_ms(lambda: geostrophic_wind(grid, f32.height[1, 1]), args.repeat)
+    rows.append(("balance_core geostrophic_wind float32 input", t_geo32))
+    t_bud = median_ms(lambda: momentum_budget(grid, f64, 1, 1, views=False), args.repeat)
+    rows.append(("full budget, every term of both equations, float64", t_bud))
+    t_bud32 = median_ms(lambda: momentum_budget(grid, f32, 1, 1, views=False), args.repeat)
+    rows.append(("full budget, float32 input", t_bud32))
+    t_views = median_ms(lambda: momentum_budget(grid, f64, 1, 1), args.repeat)
+    rows.append(("full budget plus derived views (DV/Dt, along-stream, centripetal)", t_views))
+    t_one = median_ms(lambda: momentum_budget(grid, f64, 1, 1, views=False, workers=1),
+                      args.repeat)
+    rows.append(("full budget in one thread", t_one))
+
+    # input: the slices the budget at (time 1, level 1) reads: u and v at five
+    # (time, level) pairs, Z, omega and T at one
+    slice_bytes = f64.u[0, 0].nbytes
+    input_bytes = (2 * 5 + 3) * slice_bytes
+    peak = peak_bytes(lambda: momentum_budget(grid, f64, 1, 1))
+    peak32 = peak_bytes(lambda: momentum_budget(grid, f32, 1, 1))
+    input32 = (2 * 5 + 3) * f32.u[0, 0].nbytes
+
+    print(f"grid 721 x 1440, 3 times x 3 levels, {os.cpu_count()} cores, median of {args.repeat}")
+    for name, ms in rows:
+        print(f"  {name:<70} {ms:8.1f} ms")
+    print(f"  peak traced memory of the budget with views, float64: {peak / 2**20:.0f} MiB "
+          f"for {input_bytes / 2**20:.0f} MiB of input slices")
+    print(f"  same with float32 input: {peak32 / 2**20:.0f} MiB for {input32 / 2**20:.0f} MiB")
+    print(f"ratio full_budget_with_views/metpy_geostrophic_wind {t_views / t_metpy:.3f}")
+    print(f"ratio full_budget_float32/metpy_geostrophic_wind {t_bud32 / t_metpy:.3f}")
+    print(f"ratio peak_memory_float32/input {peak32 / input32:.2f}")
+    print(f"ratio geostrophic_wind/metpy {t_geo / t_metpy:.3f}")
+    print(f"ratio full_budget/metpy_geostrophic_wind {t_bud / t_metpy:.3f}")
+    print(f"ratio peak_memory/input {peak / input_bytes:.2f}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
