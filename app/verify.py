@@ -168,8 +168,45 @@ def check_linear_exact() -> CheckResult:
                        {"error": float(err)})
 
 
+def check_metpy_geostrophic() -> CheckResult:
+    """Our geostrophic wind against MetPy's, when MetPy is installed."""
+    name = "geostrophic wind against a reference library"
+    source = "MetPy (metpy.calc.geostrophic_wind), on the same sphere"
+    try:
+        import warnings
+
+        import metpy.calc as mpcalc
+        import pyproj
+        from metpy.units import units
+    except ImportError:
+        return CheckResult(name, source, False, "MetPy is not installed (pip extra 'test')",
+                           skipped=True)
+    from balance_core import constants as C
+    from balance_core.winds import geostrophic_wind
+
+    lat = np.arange(-80, 80 + 1e-9, 1.0)
+    lon = np.arange(0, 360, 1.0)
+    g = Grid.latlon(lat, lon)
+    phi, lam = np.deg2rad(g.lat), np.deg2rad(g.lon)
+    z = 5500 + 150 * np.sin(phi) ** 2 * np.cos(3 * lam) + 40 * np.cos(2 * phi)
+    dx, dy = mpcalc.lat_lon_grid_deltas(lon, lat, geod=pyproj.Geod(a=C.EARTH_RADIUS,
+                                                                   b=C.EARTH_RADIUS))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        mu, mv = mpcalc.geostrophic_wind(z * units.m, dx=dx, dy=dy,
+                                         latitude=lat[:, None] * units.degree)
+    ug, vg = geostrophic_wind(g, z)
+    ok = ~g.tropics_mask
+    ok[:, [0, -1]] = False  # MetPy does not wrap around the globe
+    scale = np.nanmax(np.hypot(ug, vg))
+    err = max(np.abs(mu.m - ug)[ok].max(), np.abs(mv.m - vg)[ok].max()) / scale
+    return CheckResult(name, source, err < 2e-4,
+                       f"largest difference {err:.1e} of the top speed (limit 2e-4: geodesic "
+                       "versus along-parallel spacing)", {"error": float(err)})
+
+
 CHECKS = (check_synoptic_scales, check_standard_atmosphere, check_linear_exact, check_williamson,
-          check_holland)
+          check_holland, check_metpy_geostrophic)
 
 
 def run_all() -> list:
