@@ -209,7 +209,7 @@ PRESETS = {
 
 
 def estimate_scales(grid, inside, *, u, v, height, pressure, omega=None, temperature=None,
-                    shear2=None, nu: float = c.NU_AIR, n2=None) -> ScaleSet:
+                    shear2=None, nu: float = c.NU_AIR, n2=None, height_gradient=None) -> ScaleSet:
     """Scales of the flow inside a region, estimated from the data.
 
     Parameters
@@ -225,6 +225,8 @@ def estimate_scales(grid, inside, *, u, v, height, pressure, omega=None, tempera
         Viscosity for the viscous estimate (molecular by default).
     n2 : float, optional
         N^2 (s-2) in the region, passed on.
+    height_gradient : 2-D array, optional
+        |grad Z| (m m-1) if already known; else taken with ``grid.grad``.
 
     Notes
     -----
@@ -244,8 +246,10 @@ def estimate_scales(grid, inside, *, u, v, height, pressure, omega=None, tempera
         raise ValueError("no valid points in the region to estimate scales from")
     speed = np.hypot(u, v)
     U = weighted_stats(speed, grid, ok).rms
-    zx, zy = grid.grad(height)
-    gz = np.hypot(zx, zy)
+    if height_gradient is None:
+        zx, zy = grid.grad(height)
+        height_gradient = np.hypot(zx, zy)
+    gz = height_gradient
     zstat = weighted_stats(height, grid, ok)
     zdev = np.where(ok, height - zstat.mean, np.nan)
     zstd = weighted_stats(zdev, grid, ok).rms

@@ -1,0 +1,20 @@
+"""The xarray edge of the core: read model output, hand numpy arrays and a Grid to the core.
+
+``open_case`` reads NetCDF (netCDF4 or h5netcdf), GRIB1/GRIB2 (cfgrib with
+eccodes) and Zarr, one file or several (valid times concatenated), lazily with
+dask chunks. Variables are recognised by CF standard_name first, then by the
+common short and long names of the major centres' output; units go through
+pint. Projected grids get their map factors and meridian convergence from
+pyproj, and grid-relative winds are rotated to east and north.
+
+Import order matters with the current binary wheels: pyproj is imported here
+before anything can load eccodes (see DEVELOPERS.md).
+"""
+
+import pyproj  # noqa: F401  (before cfgrib/eccodes: the other order crashes at exit)
+
+from .analysis import analyse_case, diagnostics_for
+from .case import Case, iso, open_case
+from .errors import CaseError
+
+__all__ = ["Case", "CaseError", "open_case", "analyse_case", "diagnostics_for", "iso"]

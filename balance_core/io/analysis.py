@@ -1,0 +1,57 @@
+"""One box of one case at one level and time: the object ``balance-desk analyze`` prints."""
+
+from __future__ import annotations
+
+from ..region import Region
+from ..report import box_report, level_diagnostics
+from ..verdict import Thresholds
+from .case import Case, iso
+from .errors import CaseError
+
+__all__ = ["analyse_case", "diagnostics_for"]
+
+
+def diagnostics_for(case: Case, level_index: int, time_index: int, smooth_km=None):
+    """:func:`balance_core.report.level_diagnostics` for one level and time of a case."""
+    fields, it, ik = case.fields(time_index, level_index, smooth_km=smooth_km)
+    return level_diagnostics(case.grid, fields, it, ik)
+
+
+def analyse_case(case: Case, level_hpa: float, time=None, box=None, *, smooth_km=None,
+                 thresholds: Thresholds = Thresholds(), diagnostics=None) -> dict:
+    """The analysis of one box (west, east, south, north; None for the whole domain).
+
+    Returns the report of :func:`balance_core.report.box_report` with the case,
+    level, valid time, box, smoothing and the case's notes added.
+    """
+    k = case.level_index(level_hpa)
+    t = case.time_index(time)
+    if box is None:
+        region = Region.whole()
+        box_d = {"west": None, "east": None, "south": None, "north": None}
+    else:
+        try:
+            region = Region.box(*box)
+        except ValueError as exc:
+            raise CaseError(f"box {list(box)}: {exc}") from None
+        box_d = dict(zip(("west", "east", "south", "north"), map(float, box)))
+    inside = region.mask(case.grid)
+    if not inside.any():
+        raise CaseError(f"box {box_d['west']:g},{box_d['east']:g},{box_d['south']:g},"
+                        f"{box_d['north']:g} holds no grid points of {case.name} (its grid spans "
+                        f"lat {case.grid.lat.min():.1f} to {case.grid.lat.max():.1f}, lon "
+                        f"{case.grid.lon.min():.1f} to {case.grid.lon.max():.1f})")
+    diag = diagnostics or diagnostics_for(case, k, t, smooth_km)
+    below = int(case.below_ground.get(float(case.levels_pa[k] / 100), 0))
+    rep = box_report(diag, inside, thresholds=thresholds, below_ground=below)
+    out = {
+        "case": case.name,
+        "level_hpa": float(case.levels_pa[k] / 100),
+        "valid_time": iso(case.times[t]),
+        "box": box_d,
+        "smooth_km": smooth_km,
+        "min_lat": case.grid.min_lat,
+    }
+    out.update(rep)
+    out["notes"] = list(case.notes) + rep["notes"]
+    return out

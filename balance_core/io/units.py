@@ -1,0 +1,101 @@
+"""Unit conversion through pint with the cf_xarray (UDUNITS-style) registry.
+
+No hand-written conversion table: a unit string is parsed by the registry
+and converted to the SI unit the core wants. Two kinds of help are given
+before parsing, both spelling aliases rather than conversions: meteorological
+spellings the registry would misread (``mb`` is a millibar here, not a
+millibarn) or does not know (``gpm``, geopotential metres).
+"""
+
+from __future__ import annotations
+
+import functools
+
+import numpy as np
+
+from .errors import CaseError
+
+__all__ = ["registry", "linear_conversion", "convert", "parse"]
+
+#: Spellings the registry misreads or lacks, mapped to what they mean.
+ALIASES = {
+    "mb": "millibar",
+    "mbar": "millibar",
+    "gpm": "m",
+    "gp m": "m",
+    "m (gpm)": "m",
+    "deg c": "degC",
+    "c": "degC",
+    "celsius": "degC",
+    "kts": "knot",
+    "kt": "knot",
+    "pa/s": "Pa s-1",
+    "pascal/s": "Pa s-1",
+}
+
+
+@functools.lru_cache(maxsize=1)
+def registry():
+    """The cf_xarray pint registry (UDUNITS spellings such as ``m s-1``)."""
+    import cf_xarray.units  # noqa: F401 - defines the registry
+
+    return cf_xarray.units.units
+
+
+def parse(unit: str):
+    """A pint Unit for a unit string, after the spelling aliases."""
+    text = unit.strip()
+    text = ALIASES.get(text.lower(), text)
+    return registry().parse_units(text)
+
+
+@functools.lru_cache(maxsize=256)
+def linear_conversion(unit: str, target: str):
+    """(scale, offset) such that value_in_target = scale * value + offset.
+
+    Raises ValueError when the unit cannot be parsed or has the wrong
+    dimensionality.
+    """
+    ureg = registry()
+    src = parse(unit)
+    dst = ureg.parse_units(target)
+    zero = ureg.Quantity(0.0, src).to(dst).magnitude
+    one = ureg.Quantity(1.0, src).to(dst).magnitude
+    return float(one - zero), float(zero)
+
+
+def convert(values, unit, target: str, *, path=None, variable=None, accepted: str = ""):
+    """Convert ``values`` (numpy or dask array, or xarray) from ``unit`` to ``target``.
+
+    The conversion stays lazy for dask arrays (it is a scale and an offset).
+    Missing, unknown or mismatched units raise :class:`CaseError` naming the
+    variable and the accepted spellings.
+    """
+    hint = f" (accepted: {accepted})" if accepted else ""
+    if unit is None or str(unit).strip() == "":
+        raise CaseError(f"has no units attribute{hint}", path, variable)
+    try:
+        scale, offset = linear_conversion(str(unit), target)
+    except Exception:  # noqa: BLE001 - pint raises several kinds
+        raise CaseError(f"has units {unit!r}, which cannot be read as {target}{hint}", path,
+                        variable) from None
+    if scale == 1.0 and offset == 0.0:
+        return values
+    out = values * scale
+    if offset:
+        out = out + offset
+    return out
+
+
+def dimensionality_matches(unit, target: str) -> bool:
+    """True when ``unit`` converts to ``target`` (used to tell omega from w)."""
+    try:
+        linear_conversion(str(unit), target)
+        return True
+    except Exception:  # noqa: BLE001
+        return False
+
+
+def to_numpy(values):
+    """A plain float array from numpy, dask or xarray data."""
+    return np.asarray(getattr(values, "values", values))

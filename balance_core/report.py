@@ -1,0 +1,288 @@
+"""Everything a forecaster asks of one box at one level and time, as plain data.
+
+Two steps, so that a new box costs only statistics:
+
+* :func:`level_diagnostics` computes the fields once per (level, time): the
+  budget, geostrophic and gradient wind, vorticity, N^2 and shear;
+* :func:`box_report` reduces them over a region: the ranked terms beside the a
+  priori estimates from the box's own scales, the winds, the numbers, the
+  imbalance ratios and the verdict.
+
+The report is the object ``balance-desk analyze --format json`` prints (the
+io layer adds the case name, level and valid time).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+
+from . import constants as C
+from .budget import DERIVED, TERMS, Budget, Fields, momentum_budget
+from .grid import Grid
+from .numbers import (brunt_vaisala_squared, burger_number, deformation_radius, froude_number,
+                      richardson_number, rossby_number, vertical_shear_squared)
+from .region import Region, vector_stats, weighted_stats
+from .scales import estimate_for_term, estimate_scales
+from .verdict import Thresholds, classify_budget, imbalance_ratios, residual_causes
+from .winds import Flow, GradientWind, geostrophic_wind, gradient_wind
+
+__all__ = ["LevelDiagnostics", "level_diagnostics", "box_report", "window"]
+
+
+@dataclasses.dataclass
+class LevelDiagnostics:
+    """Fields of one level and time, computed once and reduced per box."""
+
+    grid: Grid
+    budget: Budget
+    pressure: float
+    u: np.ndarray
+    v: np.ndarray
+    height: np.ndarray
+    omega: np.ndarray | None
+    temperature: np.ndarray | None
+    ug: np.ndarray
+    vg: np.ndarray
+    gradient: GradientWind
+    vorticity: np.ndarray
+    n2: np.ndarray | None
+    shear2: np.ndarray | None
+    time_step_s: float | None
+
+    @property
+    def speed(self):
+        return np.hypot(self.u, self.v)
+
+    @property
+    def geostrophic_speed(self):
+        return np.hypot(self.ug, self.vg)
+
+    @property
+    def ageostrophic_fraction(self):
+        """|V - Vg| / |V| (NaN where calm or where Vg is masked)."""
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return np.hypot(self.u - self.ug, self.v - self.vg) / self.speed
+
+    @property
+    def rossby_local(self):
+        """|zeta / f| (NaN in the tropical mask)."""
+        return np.abs(self.vorticity * self.grid.inverse_f)
+
+
+def level_diagnostics(grid: Grid, fields: Fields, it: int, ik: int) -> LevelDiagnostics:
+    """Budget and wind diagnostics at time ``it`` and level ``ik`` of ``fields``."""
+    budget = momentum_budget(grid, fields, it, ik)
+    u = np.asarray(fields.u[it, ik], dtype=np.float64)
+    v = np.asarray(fields.v[it, ik], dtype=np.float64)
+    z = np.asarray(fields.height[it, ik], dtype=np.float64)
+    om = None if fields.omega is None else np.asarray(fields.omega[it, ik], dtype=np.float64)
+    t = None if fields.temperature is None else np.asarray(fields.temperature[it, ik], np.float64)
+    ug, vg = geostrophic_wind(grid, z)
+    n2 = shear2 = None
+    if fields.temperature is not None and fields.nlevel >= 2:
+        temp = np.asarray(fields.temperature[it], dtype=np.float64)
+        n2 = brunt_vaisala_squared(temp, fields.pressure, axis=0)[ik]
+        shear2 = vertical_shear_squared(np.asarray(fields.u[it], np.float64),
+                                        np.asarray(fields.v[it], np.float64), temp,
+                                        fields.pressure, axis=0)[ik]
+    dt = None
+    if fields.time is not None and fields.time.size > 1:
+        dt = float(np.max(np.diff(fields.time)))
+    return LevelDiagnostics(grid=grid, budget=budget, pressure=float(fields.pressure[ik]), u=u,
+                            v=v, height=z, omega=om, temperature=t, ug=ug, vg=vg,
+                            gradient=gradient_wind(grid, z), vorticity=Flow(grid, u, v).vorticity,
+                            n2=n2, shear2=shear2, time_step_s=dt)
+
+
+def window(inside: np.ndarray):
+    """Row and column slices bounding the True points of ``inside`` (None if none)."""
+    rows = np.nonzero(inside.any(axis=1))[0]
+    if rows.size == 0:
+        return None
+    cols = np.nonzero(inside.any(axis=0))[0]
+    return slice(rows[0], rows[-1] + 1), slice(cols[0], cols[-1] + 1)
+
+
+class _Cropped:
+    """A Grid-like view holding the cell areas of a window (enough for statistics)."""
+
+    def __init__(self, grid, sl):
+        self.cell_area = grid.cell_area[sl]
+
+
+def _num(x):
+    if x is None:
+        return None
+    x = float(x)
+    return x if np.isfinite(x) else None
+
+
+def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thresholds(),
+               nu: float = C.NU_AIR, below_ground: int = 0) -> dict:
+    """Reduce one level's diagnostics over a region.
+
+    Parameters
+    ----------
+    diag : LevelDiagnostics
+    inside : bool array (ny, nx) or Region
+    thresholds : Thresholds
+        The verdict's thresholds (the project's own choice).
+    nu : float
+        Viscosity of the a priori viscous estimate (molecular by default).
+
+    Returns
+    -------
+    dict
+        ``points``, ``masked_points``, ``terms`` (sorted by magnitude, unavailable
+        last), ``derived``, ``winds``, ``numbers``, ``scales``, ``balances``,
+        ``verdict``, ``notes``. Magnitudes are area-weighted RMS of the term's
+        horizontal vector, m s-2.
+    """
+    g = diag.grid
+    if isinstance(inside, Region):
+        inside = inside.mask(g)
+    win = window(inside)
+    if win is None:
+        return _empty_report(inside)
+    sub = _Cropped(g, win)
+    ins = inside[win]
+    b = diag.budget
+    # the budget restricted to the window (views, no copies)
+    cropped = _crop_budget(b, win)
+    ratios = imbalance_ratios(cropped, sub, ins)
+    verdict = classify_budget(ratios, thresholds)
+    ok = ins.copy()
+    for name in list(cropped.terms) + list(cropped.derived):
+        t = cropped[name]
+        if t.available:
+            ok &= np.isfinite(t.x) & np.isfinite(t.y)
+    if not ok.any():
+        return _empty_report(inside, masked=int(ins.sum()))
+    w = lambda a: None if a is None else a[win]  # noqa: E731
+    try:
+        pgf = cropped["pressure_gradient"]
+        scales = estimate_scales(_GridWindow(g, win), ok, u=w(diag.u), v=w(diag.v),
+                                 height=w(diag.height), pressure=diag.pressure, omega=w(diag.omega),
+                                 temperature=w(diag.temperature), shear2=w(diag.shear2), nu=nu,
+                                 n2=_median(w(diag.n2), sub, ok),
+                                 height_gradient=np.hypot(pgf.x, pgf.y) / C.G0)
+    except ValueError:
+        scales = None
+
+    def entry(name, t):
+        if not t.available:
+            return {"name": name, "magnitude": None, "x_rms": None, "y_rms": None,
+                    "estimate": _estimate(name, scales), "note": t.note}
+        s, xr, yr = vector_stats(t.x, t.y, sub, ok)
+        return {"name": name, "magnitude": s.rms, "x_rms": xr, "y_rms": yr,
+                "estimate": _estimate(name, scales), "note": t.note}
+
+    terms = [entry(n, cropped.terms[n]) for n in TERMS]
+    terms.sort(key=lambda e: (e["magnitude"] is None, -(e["magnitude"] or 0.0)))
+    derived = [entry(n, cropped.derived[n]) for n in DERIVED if n in cropped.derived]
+
+    speed = weighted_stats(np.hypot(diag.u, diag.v)[win], sub, ok, quantiles=False).rms
+    gstat = weighted_stats(np.hypot(diag.ug, diag.vg)[win], sub, ok, quantiles=False)
+    agf = weighted_stats(diag.ageostrophic_fraction[win], sub, ok)
+    grad = weighted_stats(np.abs(diag.gradient.speed)[win], sub, ok, quantiles=False)
+    no_root = int(np.count_nonzero(diag.gradient.no_root[win] & ok))
+    ro_local = weighted_stats(diag.rossby_local[win], sub, ok)
+    winds = {"speed_rms": speed, "geostrophic_speed_rms": gstat.rms,
+             "ageostrophic_fraction_median": agf.median, "gradient_speed_rms": grad.rms}
+
+    numbers = {"rossby": None, "rossby_local_median": ro_local.median, "ekman": None,
+               "froude": None, "burger": None, "richardson_median": None,
+               "deformation_radius_km": None}
+    if scales is not None:
+        numbers["rossby"] = _num(rossby_number(scales.U, scales.f0, scales.L))
+    rms = ratios["rms"]
+    if rms.get("residual") is not None and rms.get("coriolis"):
+        numbers["ekman"] = rms["residual"] / rms["coriolis"]
+    if diag.n2 is not None and scales is not None:
+        n2m = _median(diag.n2[win], sub, ok)
+        numbers["froude"] = _num(froude_number(scales.U, n2m, scales.H))
+        numbers["burger"] = _num(burger_number(n2m, scales.H, scales.f0, scales.L))
+        lr = _num(deformation_radius(n2m, scales.H, scales.f0))
+        numbers["deformation_radius_km"] = None if lr is None else lr / 1e3
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ri = richardson_number(diag.n2[win], diag.shear2[win])
+        numbers["richardson_median"] = _median(ri, sub, ok)
+
+    notes = list(b.notes)
+    tropics = int(np.count_nonzero(g.tropics_mask[win] & ins))
+    if tropics:
+        notes.append(f"{tropics} points within {g.min_lat:g} degrees of the equator: quantities "
+                     "divided by f (geostrophic wind, local Rossby number) are masked there")
+    if no_root:
+        notes.append(f"{no_root} points have no real gradient-wind root (anticyclonic curvature "
+                     "too strong for the pressure gradient); they are left out of the gradient "
+                     "speed")
+    if numbers["ekman"] is not None:
+        notes.append("ekman is effective: RMS residual / RMS Coriolis, the friction the residual "
+                     "implies if it is all friction")
+    causes = residual_causes(level_pa=diag.pressure, budget=b, time_step_s=diag.time_step_s,
+                             residual_share=ratios.get("residual_share"),
+                             below_ground=below_ground)
+    return {
+        "points": int(ok.sum()),
+        "masked_points": int(ins.sum() - ok.sum()),
+        "terms": terms,
+        "derived": derived,
+        "winds": winds,
+        "numbers": numbers,
+        "scales": None if scales is None else {k: getattr(scales, k) for k in
+                                                ("U", "W", "L", "H", "dP", "f0")},
+        "balances": {k: ratios.get(k) for k in ("geostrophic", "gradient", "cyclostrophic",
+                                                "frictional")},
+        "shares": {"acceleration": ratios.get("acceleration_share"),
+                   "residual": ratios.get("residual_share")},
+        "verdict": verdict.as_dict(),
+        "residual_causes": causes,
+        "notes": notes,
+    }
+
+
+def _estimate(name, scales):
+    if scales is None:
+        return None
+    return _num(estimate_for_term(name, scales))
+
+
+def _median(field, grid, ok):
+    if field is None:
+        return None
+    return weighted_stats(field, grid, ok & np.isfinite(field)).median
+
+
+def _crop_budget(b: Budget, win) -> Budget:
+    from .budget import Term
+
+    def crop(t):
+        if not t.available:
+            return t
+        return Term(t.name, t.x[win], t.y[win], t.note)
+
+    return dataclasses.replace(b, terms={n: crop(t) for n, t in b.terms.items()},
+                               derived={n: crop(t) for n, t in b.derived.items()})
+
+
+class _GridWindow:
+    """The parts of a Grid that :func:`estimate_scales` uses, cut to a window."""
+
+    def __init__(self, grid: Grid, win):
+        self.cell_area = grid.cell_area[win]
+        self.lat = grid.lat[win]
+        self.f = grid.f[win]
+        self.radius = grid.radius
+
+
+def _empty_report(inside, masked=None) -> dict:
+    n = int(np.count_nonzero(inside))
+    return {"points": 0, "masked_points": n if masked is None else masked, "terms": [],
+            "derived": [], "winds": {}, "numbers": {}, "scales": None, "balances": {},
+            "shares": {}, "verdict": {"balance": "unbalanced",
+                                      "text": "The box holds no valid points, so nothing can be "
+                                              "tested; draw a larger box or one inside the data."},
+            "residual_causes": [], "notes": []}
