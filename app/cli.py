@@ -1,7 +1,9 @@
 """The balance-desk command line.
 
-    balance-desk scales   a priori scale analysis (presets or your own scales)
-    balance-desk verify   the reference checks, run on this machine
+    balance-desk scales    a priori scale analysis (presets or your own scales)
+    balance-desk analyze   the momentum budget of a box of a model file
+    balance-desk cases     the bundled sample cases
+    balance-desk verify    the reference checks, run on this machine
 
 Every error is one sentence on stderr: exit status 2 for bad input, 1 for
 anything unexpected (a traceback only with --debug).
@@ -13,6 +15,8 @@ import argparse
 import json
 import math
 import sys
+
+import numpy as np
 
 # pyproj before anything that may load eccodes (cfgrib): the other order makes
 # the process crash at exit with the current binary wheels.
@@ -72,6 +76,23 @@ def _number(name):
     return conv
 
 
+def _box(text):
+    parts = [t for t in text.replace(" ", "").split(",") if t != ""]
+    if len(parts) != 4:
+        raise argparse.ArgumentTypeError(f"--box needs WEST,EAST,SOUTH,NORTH, got {text!r}")
+    try:
+        vals = [float(t) for t in parts]
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"--box needs four numbers, got {text!r}") from None
+    if not all(math.isfinite(v) for v in vals):
+        raise argparse.ArgumentTypeError(f"--box needs finite numbers, got {text!r}")
+    w, e, s, n = vals
+    if not -90 <= s < n <= 90:
+        raise argparse.ArgumentTypeError(
+            f"--box south {s:g} and north {n:g} must satisfy -90 <= south < north <= 90")
+    return vals
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="balance-desk",
                      description="Is the flow balanced? The momentum budget of gridded model "
@@ -104,6 +125,33 @@ def build_parser() -> argparse.ArgumentParser:
                    help="the flow follows curved paths (a vortex)")
     p.add_argument("--format", choices=("table", "json"), default="table")
     p.set_defaults(func=cmd_scales)
+
+    p = sub.add_parser("analyze", help="the momentum budget of a box at one level and time",
+                       description="Every term of the horizontal momentum equations in a box, "
+                                   "ranked, beside the a priori estimate from the box's own "
+                                   "scales, with the numbers and a balance verdict.")
+    p.add_argument("files", nargs="+", metavar="FILE",
+                   help="NetCDF, GRIB or Zarr; several files are joined along valid time")
+    p.add_argument("--level", required=True, type=_positive("--level"), metavar="HPA")
+    p.add_argument("--time", default=None, metavar="INDEX_OR_ISO",
+                   help="valid time: an index (0 is the first) or an ISO 8601 time")
+    p.add_argument("--box", default=None, type=_box, metavar="WEST,EAST,SOUTH,NORTH",
+                   help="degrees; west > east crosses the dateline (default: the whole domain)")
+    p.add_argument("--min-lat", type=_non_negative("--min-lat"), default=10.0, metavar="DEG",
+                   help="mask quantities divided by f this close to the equator (default 10)")
+    p.add_argument("--smooth", type=_non_negative("--smooth"), default=None, metavar="KM",
+                   help="Gaussian smoothing of the input fields (standard deviation, km)")
+    p.add_argument("--member", default="0", metavar="N|mean",
+                   help="ensemble member index, or 'mean' (default 0, the first)")
+    p.add_argument("--format", choices=("table", "json", "csv"), default="table")
+    p.set_defaults(func=cmd_analyze)
+
+    p = sub.add_parser("cases", help="list the bundled sample cases",
+                       description="The invented sample cases, with their levels, times and a "
+                                   "suggested box.")
+    p.add_argument("--dir", default=None, help="a directory of cases (default: sample_cases/)")
+    p.add_argument("--format", choices=("table", "json"), default="table")
+    p.set_defaults(func=cmd_cases)
 
     p = sub.add_parser("verify", help="run the reference checks on this machine",
                        description="Checks the numerics against published test cases and "
@@ -199,6 +247,163 @@ def cmd_scales(args) -> int:
     return 0
 
 
+# -- analyze -------------------------------------------------------------------------
+
+def _member(text):
+    if str(text).strip().lower() == "mean":
+        return "mean"
+    try:
+        return int(text)
+    except ValueError:
+        raise UsageError(f"balance-desk analyze: --member must be an index or 'mean', got {text!r}")
+
+
+def cmd_analyze(args) -> int:
+    from balance_core.io import CaseError, analyse_case, open_case
+
+    try:
+        case = open_case(args.files, member=_member(args.member), min_lat=args.min_lat)
+        rep = analyse_case(case, args.level, args.time, args.box, smooth_km=args.smooth or None)
+    except CaseError as exc:
+        raise UsageError(str(exc)) from None
+    if args.format == "json":
+        print(json.dumps(rep, indent=2, default=_json_default))
+    elif args.format == "csv":
+        print(format_analysis_csv(rep), end="")
+    else:
+        print(format_analysis_table(rep))
+    return 0
+
+
+def _json_default(o):
+    if hasattr(o, "item"):
+        return o.item()
+    raise TypeError(f"not JSON serialisable: {type(o).__name__}")
+
+
+def _fmt(x, spec=".2e"):
+    return "n/a" if x is None else format(x, spec)
+
+
+def format_analysis_table(rep: dict) -> str:
+    box = rep["box"]
+    where = ("whole domain" if box["west"] is None else
+             f"box {box['west']:g} to {box['east']:g} E, {box['south']:g} to {box['north']:g} N")
+    lines = [f"{rep['case']}  {rep['level_hpa']:g} hPa  {rep['valid_time']}  {where}",
+             f"{rep['points']} points used, {rep['masked_points']} masked", "",
+             f"verdict: {rep['verdict']['balance']}", f"  {rep['verdict']['text']}", ""]
+    pgf = next((t["magnitude"] for t in rep["terms"] if t["name"] == "pressure_gradient"), None)
+    lines.append("  term                  measured (m s-2)  a priori   / PGF   note")
+    for t in rep["terms"]:
+        ratio = _fmt(t["magnitude"] / pgf, ".2f") if t["magnitude"] is not None and pgf else "n/a"
+        note = t["note"] if t["magnitude"] is None or t["name"] == "residual" else ""
+        lines.append(f"  {t['name']:<20}  {_fmt(t['magnitude']):<16}  {_fmt(t['estimate']):<9}  "
+                     f"{ratio:<6}  {note or ''}".rstrip())
+    lines.append("  derived views (not part of the sum)")
+    for t in rep["derived"]:
+        lines.append(f"  {t['name']:<20}  {_fmt(t['magnitude']):<16}  {_fmt(t['estimate']):<9}")
+    lines += ["", "  balance         imbalance ratio (RMS of the sum / RMS of the PGF)"]
+    for k, v in rep["balances"].items():
+        mark = "  <- verdict" if k == rep["verdict"]["balance"] else ""
+        lines.append(f"  {k:<14}  {_fmt(v, '.3f')}{mark}")
+    lines += ["", "  winds"]
+    for k, v in rep["winds"].items():
+        lines.append(f"  {k:<30}  {_fmt(v, '.3g')}")
+    lines += ["", "  numbers"]
+    for k, v in rep["numbers"].items():
+        lines.append(f"  {k:<30}  {_fmt(v, '.3g')}")
+    if rep.get("scales"):
+        lines += ["", "  scales from the box: " + ", ".join(
+            f"{k} {_fmt(v, '.2e')}" for k, v in rep["scales"].items())]
+    for c in rep.get("residual_causes", []):
+        lines.append(f"  residual: {c}")
+    for n in rep.get("notes", []):
+        lines.append(f"  note: {n}")
+    return "\n".join(lines)
+
+
+def format_analysis_csv(rep: dict) -> str:
+    import csv
+    import io
+
+    buf = io.StringIO()
+    w = csv.writer(buf)
+    w.writerow(["case", "level_hpa", "valid_time", "kind", "name", "magnitude_m_s-2", "x_rms",
+                "y_rms", "estimate", "note"])
+    for kind in ("terms", "derived"):
+        for t in rep[kind]:
+            w.writerow([rep["case"], rep["level_hpa"], rep["valid_time"], kind[:-1] if kind ==
+                        "terms" else "derived", t["name"], t["magnitude"], t["x_rms"], t["y_rms"],
+                        t["estimate"], t["note"] or ""])
+    for k, v in rep["balances"].items():
+        w.writerow([rep["case"], rep["level_hpa"], rep["valid_time"], "balance", k, v, "", "",
+                    "", "chosen" if k == rep["verdict"]["balance"] else ""])
+    return buf.getvalue()
+
+
+# -- cases ---------------------------------------------------------------------------
+
+def sample_dir():
+    """The bundled sample cases (sample_cases/ next to the app package)."""
+    import os
+
+    return os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))),
+                        "sample_cases")
+
+
+def list_cases(directory=None) -> list:
+    import glob
+    import os
+
+    from balance_core.io import CaseError, iso, open_case
+
+    d = directory or sample_dir()
+    if not os.path.isdir(d):
+        raise UsageError(f"balance-desk cases: no directory {d}")
+    out = []
+    for path in sorted(glob.glob(os.path.join(d, "*.nc"))):
+        try:
+            c = open_case(path)
+        except CaseError as exc:
+            out.append({"file": os.path.basename(path), "error": str(exc)})
+            continue
+        box = c.attrs.get("suggested_box")
+        step = (c.times[1] - c.times[0]) / np.timedelta64(1, "h") if c.times.size > 1 else None
+        out.append({
+            "name": c.name, "file": os.path.basename(path), "title": c.title,
+            "levels_hpa": [float(p / 100) for p in c.levels_pa],
+            "valid_times": [iso(t) for t in c.times], "step_hours": step,
+            "suggested_box": json.loads(box) if box else None,
+            "expected": json.loads(c.attrs["expected_verdicts"]) if "expected_verdicts" in c.attrs
+            else [],
+        })
+    return out
+
+
+def cmd_cases(args) -> int:
+    cases = list_cases(args.dir)
+    if args.format == "json":
+        print(json.dumps(cases, indent=2))
+        return 0
+    for c in cases:
+        if "error" in c:
+            print(f"{c['file']}: {c['error']}")
+            continue
+        print(f"{c['name']}  ({c['file']})")
+        print(f"  {c['title']}")
+        print(f"  levels: {', '.join(f'{p:g}' for p in c['levels_hpa'])} hPa")
+        print(f"  valid times: {len(c['valid_times'])}, {c['valid_times'][0]} to "
+              f"{c['valid_times'][-1]} every {c['step_hours']:g} h")
+        if c["suggested_box"]:
+            b = c["suggested_box"]
+            print(f"  suggested box: --box {b[0]:g},{b[1]:g},{b[2]:g},{b[3]:g}")
+        for e in c["expected"]:
+            print(f"  expected at {e['level_hpa']} hPa, time {e['time_index']}, box "
+                  f"{','.join(f'{x:g}' for x in e['box'])}: {e['balance']}")
+        print()
+    return 0
+
+
 # -- verify --------------------------------------------------------------------------
 
 def cmd_verify(args) -> int:
@@ -220,9 +425,25 @@ def cmd_verify(args) -> int:
 
 # -- entry point ---------------------------------------------------------------------
 
+def _join_negative_values(argv):
+    """Let ``--box -52,-28,38,56`` work: argparse would read the value as an option."""
+    out, i = [], 0
+    while i < len(argv):
+        a = argv[i]
+        if a == "--box" and i + 1 < len(argv) and argv[i + 1].startswith("-") and \
+                "," in argv[i + 1]:
+            out.append(f"--box={argv[i + 1]}")
+            i += 2
+            continue
+        out.append(a)
+        i += 1
+    return out
+
+
 def main(argv=None) -> int:
     parser = build_parser()
-    debug = "--debug" in (sys.argv[1:] if argv is None else argv)
+    argv = _join_negative_values(list(sys.argv[1:] if argv is None else argv))
+    debug = "--debug" in argv
     try:
         args = parser.parse_args(argv)
         if not getattr(args, "func", None):

@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
-from ..region import Region
+import numpy as np
+
+from ..region import Region, weighted_stats
 from ..report import box_report, level_diagnostics
 from ..verdict import Thresholds
 from .case import Case, iso
@@ -54,4 +56,12 @@ def analyse_case(case: Case, level_hpa: float, time=None, box=None, *, smooth_km
     }
     out.update(rep)
     out["notes"] = list(case.notes) + rep["notes"]
+    sfc = case.surface_analysis(t)
+    if sfc is not None:
+        ok = inside & np.isfinite(sfc["cross_isobar_angle"]) & np.isfinite(sfc["speed_ratio"])
+        ang = weighted_stats(sfc["cross_isobar_angle"], case.grid, ok)
+        rat = weighted_stats(sfc["speed_ratio"], case.grid, ok)
+        out["surface"] = {"cross_isobar_angle_median_deg": ang.median,
+                          "speed_over_geostrophic_median": rat.median,
+                          "points": ang.count, "note": sfc["density_source"]}
     return out

@@ -20,8 +20,8 @@ from .errors import CaseError
 
 __all__ = ["Case", "open_case", "REQUIRED", "OPTIONAL"]
 
-REQUIRED = ("height", "u", "v")
-OPTIONAL = ("omega", "temperature")
+REQUIRED = ("height",)
+OPTIONAL = ("u", "v", "omega", "temperature")
 
 
 @dataclasses.dataclass
@@ -123,6 +123,10 @@ class Case:
         levels the tendency and vertical derivatives need, as float64 numpy
         arrays, and (it, ik) locate the requested time and level inside them.
         """
+        if "u" not in self.data or "v" not in self.data:
+            raise CaseError("has no eastward and northward wind on pressure levels, so the "
+                            "momentum budget cannot be computed (the height alone gives only the "
+                            "geostrophic wind)", self.paths[0] if self.paths else None)
         nt, nk = self.times.size, self.levels_pa.size
         t0, t1 = _window(time_index, nt)
         k0, k1 = _window(level_index, nk)
@@ -144,6 +148,39 @@ class Case:
                    secs.astype(np.float64) if t1 - t0 > 1 else None, arrays["omega"],
                    arrays["temperature"])
         return f, time_index - t0, level_index - k0
+
+    def surface_analysis(self, time_index: int):
+        """Surface geostrophic wind and the direct evidence of friction, or None.
+
+        From sea-level pressure and the 10 m wind: the geostrophic wind
+        ug = -(1/(rho f)) dp/dy, vg = (1/(rho f)) dp/dx with rho = p / (R_d T)
+        from the 2 m temperature (or the standard-atmosphere density at sea level
+        when there is none), the cross-isobar angle (degrees, positive when the
+        wind turns toward low pressure, in both hemispheres) and |V| / |Vg|.
+        """
+        if "msl" not in self.surface or "u10" not in self.surface or "v10" not in self.surface:
+            return None
+        from ..thermo import standard_atmosphere_density
+        from ..winds import geostrophic_wind_from_pressure
+
+        p = np.asarray(self.surface["msl"].isel(time=time_index).values, dtype=np.float64)
+        u = np.asarray(self.surface["u10"].isel(time=time_index).values, dtype=np.float64)
+        v = np.asarray(self.surface["v10"].isel(time=time_index).values, dtype=np.float64)
+        if "t2m" in self.surface:
+            rho = p / (C.R_DRY * np.asarray(self.surface["t2m"].isel(time=time_index).values))
+            source = "density from the 2 m temperature"
+        else:
+            rho = float(standard_atmosphere_density(C.STD_SEA_LEVEL_PRESSURE))
+            source = "standard-atmosphere density at sea level (no 2 m temperature)"
+        ug, vg = geostrophic_wind_from_pressure(self.grid, p, rho)
+        cross = ug * v - vg * u
+        dot = ug * u + vg * v
+        angle = np.sign(self.grid.f) * np.degrees(np.arctan2(cross, dot))
+        angle[~(np.hypot(ug, vg) > 1e-3) | ~(np.hypot(u, v) > 1e-3)] = np.nan  # no direction
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ratio = np.hypot(u, v) / np.hypot(ug, vg)
+        return {"u": u, "v": v, "ug": ug, "vg": vg, "cross_isobar_angle": angle,
+                "speed_ratio": ratio, "density_source": source}
 
     def column(self, role: str, time_index: int):
         """All levels of one variable at one time, float64 (level, y, x)."""

@@ -88,10 +88,13 @@ def _open_grib(path):
     except Exception:  # noqa: BLE001 - ImportError or a missing eccodes library
         raise CaseError("GRIB needs cfgrib and the eccodes library: install the 'grib' extra "
                         "(pip install 'balance-desk[grib]')", path) from None
+    import logging
+
     from .crs import GRIB_READ_KEYS
 
+    logging.getLogger("cfgrib").setLevel(logging.CRITICAL)  # errors come back as one sentence
     dss = cfgrib.open_datasets(str(path), backend_kwargs={"read_keys": GRIB_READ_KEYS,
-                                                          "indexpath": ""})
+                                                          "indexpath": "", "errors": "raise"})
     if not dss:
         raise CaseError("holds no GRIB messages that can be decoded", path)
     return dss

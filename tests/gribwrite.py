@@ -1,0 +1,82 @@
+"""Write small GRIB2 files with eccodes for the tests (Lambert conformal, polar
+stereographic and regular lat-lon grids on pressure levels).
+
+Key names and meanings follow the WMO GRIB2 templates as eccodes exposes them
+(WMO-No. 306, template 3.30 Lambert conformal, 3.20 polar stereographic).
+"""
+
+import numpy as np
+import pyproj  # noqa: F401  (before eccodes: the other order crashes at exit)
+
+import eccodes
+
+PARAMS = {  # shortName: (discipline, parameterCategory, parameterNumber)
+    "gh": (0, 3, 5),
+    "u": (0, 2, 2),
+    "v": (0, 2, 3),
+    "t": (0, 0, 0),
+    "w": (0, 2, 8),
+}
+
+
+def _message(grid, values, short, level_hpa, date, hour, uv_relative):
+    kind = grid["kind"]
+    if kind == "polar_stereographic":
+        h = eccodes.codes_grib_new_from_samples("polar_stereographic_pl_grib2")
+    else:
+        h = eccodes.codes_grib_new_from_samples("GRIB2")
+        if kind == "lambert":
+            eccodes.codes_set(h, "gridDefinitionTemplateNumber", 30)
+    ny, nx = values.shape
+    eccodes.codes_set(h, "shapeOfTheEarth", 6)  # sphere of radius 6371229 m
+    if kind == "regular_ll":
+        eccodes.codes_set(h, "Ni", nx)
+        eccodes.codes_set(h, "Nj", ny)
+        for k, v in (("latitudeOfFirstGridPointInDegrees", grid["lat0"]),
+                     ("longitudeOfFirstGridPointInDegrees", grid["lon0"]),
+                     ("latitudeOfLastGridPointInDegrees", grid["lat1"]),
+                     ("longitudeOfLastGridPointInDegrees", grid["lon1"]),
+                     ("iDirectionIncrementInDegrees", grid["dlon"]),
+                     ("jDirectionIncrementInDegrees", grid["dlat"])):
+            eccodes.codes_set(h, k, v)
+        eccodes.codes_set(h, "jScansPositively", 1 if grid["lat1"] > grid["lat0"] else 0)
+    else:
+        eccodes.codes_set(h, "Nx", nx)
+        eccodes.codes_set(h, "Ny", ny)
+        eccodes.codes_set(h, "latitudeOfFirstGridPointInDegrees", grid["lat_first"])
+        eccodes.codes_set(h, "longitudeOfFirstGridPointInDegrees", grid["lon_first"] % 360)
+        eccodes.codes_set(h, "DxInMetres", grid["dx"])
+        eccodes.codes_set(h, "DyInMetres", grid["dy"])
+        eccodes.codes_set(h, "LaDInDegrees", grid["lad"])
+        eccodes.codes_set(h, "iScansNegatively", 0)
+        eccodes.codes_set(h, "jScansPositively", 1)
+        if kind == "lambert":
+            eccodes.codes_set(h, "LoVInDegrees", grid["lov"] % 360)
+            eccodes.codes_set(h, "Latin1InDegrees", grid["latin1"])
+            eccodes.codes_set(h, "Latin2InDegrees", grid["latin2"])
+        else:
+            eccodes.codes_set(h, "orientationOfTheGridInDegrees", grid["lov"] % 360)
+    eccodes.codes_set(h, "resolutionAndComponentFlags", 8 if uv_relative else 0)
+    d, c, n = PARAMS[short]
+    eccodes.codes_set(h, "discipline", d)
+    eccodes.codes_set(h, "parameterCategory", c)
+    eccodes.codes_set(h, "parameterNumber", n)
+    eccodes.codes_set(h, "typeOfFirstFixedSurface", 100)
+    eccodes.codes_set(h, "scaleFactorOfFirstFixedSurface", 0)
+    eccodes.codes_set(h, "scaledValueOfFirstFixedSurface", int(level_hpa * 100))
+    eccodes.codes_set(h, "dataDate", date)
+    eccodes.codes_set(h, "dataTime", hour * 100)
+    eccodes.codes_set(h, "bitsPerValue", 24)
+    eccodes.codes_set_values(h, np.asarray(values, dtype=np.float64).ravel())
+    return h
+
+
+def write_grib2(path, grid, fields, levels_hpa, dates_hours, *, uv_relative):
+    """fields: {shortName: array (time, level, y, x)}; rows from south to north."""
+    with open(path, "wb") as fh:
+        for it, (date, hour) in enumerate(dates_hours):
+            for ik, lev in enumerate(levels_hpa):
+                for short, arr in fields.items():
+                    h = _message(grid, arr[it, ik], short, lev, date, hour, uv_relative)
+                    eccodes.codes_write(h, fh)
+                    eccodes.codes_release(h)
