@@ -13,12 +13,12 @@ PORT   ?= 5006
 # nothing may reach for the network at run time
 export PROJ_NETWORK := OFF
 
-.PHONY: run test install system bench verify clean
+.PHONY: run test install system samples bench verify clean
 
 run: system install
 	$(BIN)/balance-desk scales
 
-test: system install
+test: system install samples
 	$(BIN)/python -m pytest $(PYTEST_ARGS)
 
 bench: install
@@ -36,6 +36,10 @@ $(STAMP): pyproject.toml .ci/constraints.txt | $(BIN)/python
 	$(BIN)/python -m pip install --quiet --upgrade pip
 	$(BIN)/python -m pip install --quiet -c .ci/constraints.txt -e ".[$(EXTRAS)]"
 	touch $@
+
+# Published ERA5 sample GRIB files (from the cfgrib source distribution), for the tests.
+samples: install
+	@sh .ci/fetch-samples $(BIN)/python
 
 # Debian packages: offline coastlines and the browser for the browser tests.
 system:

@@ -225,10 +225,10 @@ def _is_time_like(d, ds):
     if d not in ds.coords:
         return d.lower() in TIME_NAMES
     c = ds[d]
-    if np.issubdtype(c.dtype, np.datetime64):
-        return True
-    return (c.attrs.get("standard_name", "").lower() == "time" or d.lower() in TIME_NAMES) and \
-        c.dtype.kind in "OM"
+    if np.issubdtype(c.dtype, np.datetime64) or np.issubdtype(c.dtype, np.timedelta64):
+        return np.issubdtype(c.dtype, np.datetime64)
+    # named or labelled as time: undecodable values then get their own message
+    return c.attrs.get("standard_name", "").lower() == "time" or d.lower() in TIME_NAMES
 
 
 def _is_step_like(d, ds):

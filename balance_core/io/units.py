@@ -36,9 +36,18 @@ ALIASES = {
 
 @functools.lru_cache(maxsize=1)
 def registry():
-    """The cf_xarray pint registry (UDUNITS spellings such as ``m s-1``)."""
+    """The cf_xarray pint registry (UDUNITS spellings such as ``m s-1``).
+
+    Importing cf_xarray.units makes its registry pint's application registry
+    for the whole process; that would change the units of any other library
+    using pint (MetPy among them), so the previous one is put back.
+    """
+    import pint
+
+    previous = pint.application_registry.get()
     import cf_xarray.units  # noqa: F401 - defines the registry
 
+    pint.application_registry.set(previous)
     return cf_xarray.units.units
 
 
