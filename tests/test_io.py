@@ -335,3 +335,67 @@ def test_real_command_exit_status_on_grib_and_netcdf(tmp_path):
                            timeout=300)
         assert r.returncode == 0, (path, r.returncode, r.stderr[-500:])
         assert '"verdict"' in r.stdout
+
+
+def test_grib2_polar_stereographic(tmp_path):
+    from gribwrite import write_grib2
+
+    crs = pyproj.CRS.from_proj4("+proj=stere +lat_0=90 +lat_ts=60 +lon_0=-35 +R=6371229 +units=m")
+    x, y = np.arange(-1.5e6, 1.5e6 + 1, 6e4) + 3e4, np.arange(-3.5e6, -1.0e6 + 1, 6e4)
+    X, Y = np.meshgrid(x, y)
+    lon, lat = pyproj.Transformer.from_crs(crs, crs.geodetic_crs, always_xy=True).transform(X, Y)
+    gam = np.deg2rad(lon + 35.0)  # north polar stereographic: lon - lon0 (Snyder 1987, ch. 21)
+    fields = {k: np.empty((1, 1) + X.shape) for k in ("gh", "u", "v")}
+    z, u, v, _, _ = truth(lat, lon, 500.0, 0.0)
+    fields["gh"][0, 0] = z
+    fields["u"][0, 0] = u * np.cos(gam) - v * np.sin(gam)
+    fields["v"][0, 0] = u * np.sin(gam) + v * np.cos(gam)
+    grid = dict(kind="polar_stereographic", lat_first=float(lat[0, 0]), lon_first=float(lon[0, 0]),
+                dx=6e4, dy=6e4, lad=60.0, lov=-35.0)
+    path = tmp_path / "ps.grib2"
+    write_grib2(path, grid, fields, [500.0], [(20400203, 0)], uv_relative=True)
+    c = open_case(str(path))
+    assert c.grid.kind == "projected"
+    np.testing.assert_allclose(c.grid.lat, lat, atol=1e-6)
+    np.testing.assert_allclose(c.data["u"].values[0, 0], u, atol=2e-3)
+    np.testing.assert_allclose(c.data["v"].values[0, 0], v, atol=2e-3)
+
+
+def test_cf_mercator_grid(tmp_path):
+    crs = pyproj.CRS.from_proj4("+proj=merc +lat_ts=20 +lon_0=0 +R=6371008.7714 +units=m")
+    x, y = np.arange(-1.0e6, 1.0e6 + 1, 5e4), np.arange(1.5e6, 3.5e6 + 1, 5e4)
+    ds, arr, lat, lon = projected_dataset(crs, x, y, angle=lambda la, lo: 0 * la)
+    c = open_case(_write(ds, tmp_path / "merc.nc"))
+    np.testing.assert_allclose(c.grid.convergence, 0, atol=1e-9)  # Mercator: north is up
+    # the map factor of Mercator is sec(lat) / sec(lat_ts) on the sphere (Snyder 1987, ch. 7)
+    np.testing.assert_allclose(c.grid.map_factor, np.cos(np.deg2rad(20)) / np.cos(np.deg2rad(lat)),
+                               rtol=1e-6)
+    np.testing.assert_allclose(c.data["u"].values, arr["u"], atol=1e-9)
+
+
+def test_rotated_pole_is_refused_clearly(tmp_path):
+    crs = pyproj.CRS.from_cf({"grid_mapping_name": "rotated_latitude_longitude",
+                              "grid_north_pole_latitude": 40.0, "grid_north_pole_longitude": -170.0})
+    ds, _ = latlon_dataset(LAT, LON)
+    ds = ds.rename({"latitude": "rlat", "longitude": "rlon"})
+    ds["rlat"].attrs = {"standard_name": "grid_latitude", "units": "degrees"}
+    ds["rlon"].attrs = {"standard_name": "grid_longitude", "units": "degrees"}
+    ds["rotated_pole"] = ((), 0, crs.to_cf())
+    for v in ("height", "ua", "va", "wap", "ta"):
+        ds[v].attrs["grid_mapping"] = "rotated_pole"
+    path = _write(ds, tmp_path / "rot.nc")
+    with pytest.raises(CaseError, match="rotated-pole"):
+        open_case(path)
+
+
+def test_orography_masks_levels_under_the_ground(tmp_path):
+    ds, arr = latlon_dataset(LAT, LON)
+    orog = np.zeros((LAT.size, LON.size))
+    orog[:, :5] = 2000.0  # a plateau in the west: 1000 and 850 hPa lie under it
+    ds["orog"] = (("latitude", "longitude"), orog, {"standard_name": "surface_altitude",
+                                                    "units": "m"})
+    ds["orog"] = ds["orog"].expand_dims(time=ds["time"])
+    c = open_case(_write(ds, tmp_path / "orog.nc"))
+    assert set(c.below_ground) == {1000.0, 850.0}
+    assert np.isnan(c.data["height"].values[:, :2, :, :5]).all()
+    assert np.isfinite(c.data["height"].values[:, 2:]).all()

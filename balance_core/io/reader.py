@@ -376,6 +376,7 @@ def _scalar_valid_time(da, ds, path, var):
 def normalise(path, datasets, *, member=0) -> Piece:
     """Find, convert and reorder the variables of one file (see module docstring)."""
     found = {}
+    datasets = [_promote_scalar_levels(ds) for ds in datasets]
     for ds in datasets:
         for name, da in ds.data_vars.items():
             role = classify(name, da, ds)
@@ -397,7 +398,7 @@ def normalise(path, datasets, *, member=0) -> Piece:
     grid_relative = False
     if kind == "projected":
         for role in ("u", "v"):
-            if role in found and str(found[role][1].attrs.get("GRIB_uvRelativeToGrid", "0")) == "1":
+            if role in found and _grib_grid_relative(found[role][1].attrs):
                 found["x_wind" if role == "u" else "y_wind"] = found.pop(role)
     for role, (vname, da, ds) in found.items():
         if role in ("x_wind", "y_wind"):
@@ -455,6 +456,28 @@ def normalise(path, datasets, *, member=0) -> Piece:
     return Piece(path=str(path), data=data, surface=surface, lat=lat, lon=lon, crs=crs, x=x, y=y,
                  levels_pa=levels, times=times, grid_relative=grid_relative, notes=notes,
                  attrs=dict(ref_ds.attrs))
+
+
+def _grib_grid_relative(attrs) -> bool:
+    """GRIB winds relative to the grid's x and y: the uvRelativeToGrid key, or bit 5 (value 8)
+    of the resolution-and-component flags (WMO-No. 306, GRIB2 flag table 3.3)."""
+    if str(attrs.get("GRIB_uvRelativeToGrid", "")) == "1":
+        return True
+    flags = attrs.get("GRIB_resolutionAndComponentFlags")
+    try:
+        return bool(int(flags) & 8)
+    except (TypeError, ValueError):
+        return False
+
+
+def _promote_scalar_levels(ds):
+    """A file with one pressure level often holds it as a scalar coordinate: make it a dimension."""
+    for c in list(ds.coords):
+        if ds[c].ndim == 0 and _is_pressure_coord(c, ds):
+            attrs = dict(ds[c].attrs)
+            ds = ds.expand_dims(c)
+            ds[c].attrs.update(attrs)
+    return ds
 
 
 def _check_units_deg(coord, expected, path):
