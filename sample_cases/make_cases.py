@@ -389,9 +389,9 @@ def make_tropical(cfg=TROPICAL):
 # -- case 3: sea breeze --------------------------------------------------------------
 
 SEA_BREEZE = dict(
-    lat=(24.0, 26.0), lon=(30.0, 33.0), step=0.03,
+    lat=(24.0, 26.0), lon=(-31.5, -28.5), step=0.03,
     start="2039-06-21T09:00", hours=3, ntimes=5,
-    coast_lon=31.5, width_km=20.0, peak_ms=8.0, onset_hours=3.0, period_hours=16.0,
+    coast_lon=-30.0, width_km=20.0, peak_ms=8.0, onset_hours=3.0, period_hours=16.0,
     depth_hpa=150.0,
     drag_per_s=1.0 / 3600.0, mixed_layer_top_hpa=780.0,
 )
@@ -528,12 +528,14 @@ def make_sea_breeze(cfg=SEA_BREEZE):
                     out.append(np.zeros((lat.size, out_lon.size)))
             keep[name].append(np.stack(out))
     data = {k: np.stack(v) for k, v in keep.items()}
+    data["land_mask"] = (np.broadcast_to(out_lon[None, :] > cfg["coast_lon"],
+                                         (out_lat.size, out_lon.size))).astype(np.float32)
     rate_out = mixed_layer_drag(BREEZE_LEVELS, cfg)
     box = [cfg["coast_lon"] - 0.4, cfg["coast_lon"] + 0.4, 24.5, 25.5]
     attrs = {
         "title": "Invented afternoon sea breeze on a straight coast (synthetic sample case)",
-        "how_made": ("onshore wind prescribed: 8 m/s peak, 20 km wide across a coast along "
-                     "31.5E, 150 hPa deep with a return flow near 850-750 hPa, rising and "
+        "how_made": ("onshore wind prescribed: 8 m/s peak, 20 km wide across an invented "
+                     "coast along 30W, 150 hPa deep with a return flow near 850-750 hPa, rising and "
                      "falling over a 16 h day; along-shore wind integrated in time from its own "
                      "momentum equation (Coriolis turning, advection, drag) from the onset 3 h "
                      "before the first time; omega from continuity; height integrated across the "
@@ -544,6 +546,8 @@ def make_sea_breeze(cfg=SEA_BREEZE):
                      "turbulent; above it only the weak top of the return flow is free of friction"),
         "friction_rate_per_level_s-1": json.dumps(dict(zip(map(str, BREEZE_LEVELS),
                                                            rate_out.tolist()))),
+        "geography": ("invented: the coast along 30W (land to the east) is drawn from the "
+                      "file's land mask; real coastlines do not apply"),
         "suggested_box": json.dumps(box),
         "expected_verdicts": json.dumps([
             {"level_hpa": 1000, "time_index": 2, "box": box, "balance": "unsteady"},
@@ -579,6 +583,10 @@ def to_dataset(name, lat, lon, times, data, attrs, levels=None):
     for key, (std, units, long) in meta.items():
         var[key] = (dims, data[key].astype(np.float32),
                     {"standard_name": std, "units": units, "long_name": long})
+    if "land_mask" in data:
+        var["land_mask"] = (("lat", "lon"), data["land_mask"],
+                            {"standard_name": "land_binary_mask", "units": "1",
+                             "long_name": "land (1) or sea (0), invented"})
     ds = xr.Dataset(
         var,
         coords={

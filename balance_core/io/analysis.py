@@ -21,14 +21,19 @@ def diagnostics_for(case: Case, level_index: int, time_index: int, smooth_km=Non
 
 def analyse_case(case: Case, level_hpa: float, time=None, box=None, *, smooth_km=None,
                  thresholds: Thresholds = Thresholds(), diagnostics=None) -> dict:
-    """The analysis of one box (west, east, south, north; None for the whole domain).
+    """The analysis of one box (west, east, south, north; a Region; None for the whole domain).
 
     Returns the report of :func:`balance_core.report.box_report` with the case,
     level, valid time, box, smoothing and the case's notes added.
     """
     k = case.level_index(level_hpa)
     t = case.time_index(time)
-    if box is None:
+    if isinstance(box, Region):
+        region = box
+        box_d = region.describe()
+        if region.kind == "polygon":
+            box_d = {**box_d, "polygon": {"lons": list(region.lons), "lats": list(region.lats)}}
+    elif box is None:
         region = Region.whole()
         box_d = {"west": None, "east": None, "south": None, "north": None}
     else:
@@ -38,7 +43,7 @@ def analyse_case(case: Case, level_hpa: float, time=None, box=None, *, smooth_km
             raise CaseError(f"box {list(box)}: {exc}") from None
         box_d = dict(zip(("west", "east", "south", "north"), map(float, box)))
     inside = region.mask(case.grid)
-    if not inside.any():
+    if not inside.any() and region.kind != "whole":
         raise CaseError(f"box {box_d['west']:g},{box_d['east']:g},{box_d['south']:g},"
                         f"{box_d['north']:g} holds no grid points of {case.name} (its grid spans "
                         f"lat {case.grid.lat.min():.1f} to {case.grid.lat.max():.1f}, lon "

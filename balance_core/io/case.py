@@ -42,7 +42,7 @@ class Case:
         (Pa s-1) and temperature (K).
     surface : dict of xarray.DataArray (time, y, x)
         Where present: msl, surface_pressure (Pa), surface_height (m), u10, v10
-        (m s-1), t2m (K).
+        (m s-1), t2m (K), land_mask (fraction of land, 0..1).
     notes : list of str
         What was done to the data (member chosen, winds rotated, levels masked).
     below_ground : dict

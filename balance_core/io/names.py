@@ -83,6 +83,10 @@ SURFACE_ROLES = (
                                                   "10 metre v-component of wind"],
        "m s-1", "m s-1, m/s, knot"),
     _r("t2m", [], ["t2m", "2t", "tas", "t2"], ["2 metre temperature"], "K", "K, degC"),
+    _r("land_mask", ["land_binary_mask", "land_area_fraction"],
+       ["lsm", "landmask", "land_mask", "lsmask", "slm", "sftlf", "land"],
+       ["land-sea mask", "land sea mask", "land binary mask", "land cover (1=land, 0=sea)"], "1",
+       "1 (a fraction of land) or %"),
 )
 
 ROLES = {r.name: r for r in LEVEL_ROLES + SURFACE_ROLES}

@@ -25,6 +25,9 @@ from .units import convert, dimensionality_matches
 
 __all__ = ["open_datasets", "normalise", "Piece", "sniff_format"]
 
+#: Surface fields that do not change with time (may come without a time coordinate).
+STATIC_ROLES = ("orography", "surface_height", "land_mask")
+
 
 def sniff_format(path) -> str:
     """'netcdf', 'grib' or 'zarr', from the file's first bytes (or a Zarr store's layout)."""
@@ -400,12 +403,21 @@ def normalise(path, datasets, *, member=0) -> Piece:
         for role in ("u", "v"):
             if role in found and _grib_grid_relative(found[role][1].attrs):
                 found["x_wind" if role == "u" else "y_wind"] = found.pop(role)
+    statics = []
     for role, (vname, da, ds) in found.items():
         if role in ("x_wind", "y_wind"):
             grid_relative = True
         da, mnote = _reduce_member(da, ds, member, path, vname)
         member_note = member_note or mnote
-        da, tnote = _valid_times(da, ds, path, vname)
+        if role in STATIC_ROLES and not any(_is_time_like(d, ds) or _is_step_like(d, ds)
+                                            for d in da.dims):
+            # orography and land masks need no time: repeated for every valid time below
+            da = da.drop_vars([c for c in ("time", "valid_time", "step") if c in da.coords],
+                              errors="ignore").expand_dims(time=[np.datetime64("NaT", "ns")])
+            statics.append(role)
+            tnote = None
+        else:
+            da, tnote = _valid_times(da, ds, path, vname)
         if tnote and tnote not in notes:
             notes.append(tnote)
         lev = _has_level_dim(da, ds)
@@ -430,6 +442,11 @@ def normalise(path, datasets, *, member=0) -> Piece:
             surface[role] = da.rename({y_dim: "y", x_dim: "x"})
     if member_note:
         notes.append(member_note)
+    if statics and data:
+        first = next(iter(data.values()))
+        for role in statics:
+            surface[role] = surface[role].isel(time=[0] * first.sizes["time"]).assign_coords(
+                time=first["time"].values)
     if "geopotential" in data and "height" not in data:
         from ..constants import G0
 

@@ -1,0 +1,127 @@
+"""What every browser session shares: the loaded cases and one cache of diagnostics.
+
+A case is opened once per server; the diagnostics of a (case, level, time,
+smoothing, tropical mask) are computed once behind a lock and handed to every
+session that asks, so a second session of the same case costs only its own
+view state. Heavy work runs in a small thread pool, off the server's event
+loop, so one user's level change does not stall another's page.
+"""
+
+from __future__ import annotations
+
+import collections
+import dataclasses
+import logging
+import os
+import threading
+from concurrent.futures import ThreadPoolExecutor
+
+import pyproj  # noqa: F401  (before anything that may load eccodes)
+
+from balance_core.io import CaseError, diagnostics_for, open_case
+
+__all__ = ["CaseLibrary", "LoadedCase", "POOL"]
+
+log = logging.getLogger("balance_desk")
+
+#: Threads for heavy work (budgets, statistics, rasters); sessions share them.
+POOL = ThreadPoolExecutor(max_workers=max(2, min(4, os.cpu_count() or 2)),
+                          thread_name_prefix="balance-desk")
+
+
+@dataclasses.dataclass
+class LoadedCase:
+    """A case, or the sentence saying why it could not be loaded."""
+
+    name: str
+    path: str
+    case: object | None
+    error: str | None = None
+
+
+class _LRU:
+    """A small thread-safe least-recently-used cache with one lock per key."""
+
+    def __init__(self, size: int):
+        self.size = size
+        self._data = collections.OrderedDict()
+        self._lock = threading.Lock()
+        self._key_locks: dict = {}
+
+    def get_or_make(self, key, make):
+        with self._lock:
+            if key in self._data:
+                self._data.move_to_end(key)
+                return self._data[key]
+            klock = self._key_locks.setdefault(key, threading.Lock())
+        with klock:  # one computation per key, however many sessions ask
+            with self._lock:
+                if key in self._data:
+                    return self._data[key]
+            value = make()
+            with self._lock:
+                self._data[key] = value
+                while len(self._data) > self.size:
+                    self._data.popitem(last=False)
+                self._key_locks.pop(key, None)
+            return value
+
+
+class CaseLibrary:
+    """The cases a server shows, loaded once, and their shared diagnostics cache."""
+
+    def __init__(self, paths, *, cache_size: int = 24):
+        self.cases: dict = {}
+        for p in paths:
+            name = os.path.splitext(os.path.basename(str(p).rstrip("/")))[0]
+            try:
+                case = open_case(p)
+                self.cases[case.name] = LoadedCase(case.name, str(p), case)
+            except CaseError as exc:
+                log.warning("could not load %s: %s", p, exc)
+                self.cases[name] = LoadedCase(name, str(p), None, str(exc))
+            except Exception as exc:  # noqa: BLE001 - the server never dies on a bad file
+                log.exception("could not load %s", p)
+                self.cases[name] = LoadedCase(name, str(p), None,
+                                              f"{os.path.basename(str(p))}: could not be read "
+                                              f"({type(exc).__name__})")
+        self._diag = _LRU(cache_size)
+        self._profiles = _LRU(cache_size * 4)
+
+    @classmethod
+    def from_cases(cls, cases, *, cache_size: int = 24) -> "CaseLibrary":
+        """A library of already opened cases (tests, benchmarks)."""
+        lib = cls([], cache_size=cache_size)
+        for c in cases:
+            lib.cases[c.name] = LoadedCase(c.name, c.paths[0] if c.paths else c.name, c)
+        return lib
+
+    @property
+    def names(self) -> list:
+        return list(self.cases)
+
+    def get(self, name: str):
+        """The Case of ``name``; raises CaseError with the load error if it failed."""
+        lc = self.cases.get(name)
+        if lc is None:
+            raise CaseError(f"no case called {name!r} on this server")
+        if lc.case is None:
+            raise CaseError(lc.error)
+        return lc.case
+
+    def diagnostics(self, name: str, level_index: int, time_index: int,
+                    smooth_km: float = 0.0, min_lat: float = 10.0):
+        """LevelDiagnostics, computed once per key for every session."""
+        key = (name, int(level_index), int(time_index), float(smooth_km or 0), float(min_lat))
+
+        def make():
+            case = self.get(name)
+            if case.grid.min_lat != min_lat:
+                case = dataclasses.replace(case, grid=case.grid.with_min_lat(min_lat))
+            return diagnostics_for(case, level_index, time_index, smooth_km or None)
+
+        return self._diag.get_or_make(key, make)
+
+    def profile(self, key, make):
+        """A shared cache for per-box summaries (through the levels, through the times)."""
+        return self._profiles.get_or_make(key, make)
