@@ -3,6 +3,7 @@
     balance-desk scales    a priori scale analysis (presets or your own scales)
     balance-desk analyze   the momentum budget of a box of a model file
     balance-desk cases     the bundled sample cases
+    balance-desk serve     the dashboard
     balance-desk verify    the reference checks, run on this machine
 
 Every error is one sentence on stderr: exit status 2 for bad input, 1 for
@@ -152,6 +153,16 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--dir", default=None, help="a directory of cases (default: sample_cases/)")
     p.add_argument("--format", choices=("table", "json"), default="table")
     p.set_defaults(func=cmd_cases)
+
+    p = sub.add_parser("serve", help="start the dashboard in the browser",
+                       description="Serve the dashboard on the given files, on every case in a "
+                                   "directory, or on the bundled sample cases.")
+    p.add_argument("files", nargs="*", metavar="FILE")
+    p.add_argument("--cases", default=None, metavar="DIR", help="serve every case in DIR")
+    p.add_argument("--host", default="127.0.0.1", help="address to bind (default 127.0.0.1)")
+    p.add_argument("--port", type=int, default=5006)
+    p.add_argument("--show", action="store_true", help="open a browser window")
+    p.set_defaults(func=cmd_serve)
 
     p = sub.add_parser("verify", help="run the reference checks on this machine",
                        description="Checks the numerics against published test cases and "
@@ -401,6 +412,21 @@ def cmd_cases(args) -> int:
             print(f"  expected at {e['level_hpa']} hPa, time {e['time_index']}, box "
                   f"{','.join(f'{x:g}' for x in e['box'])}: {e['balance']}")
         print()
+    return 0
+
+
+# -- serve ---------------------------------------------------------------------------
+
+def cmd_serve(args) -> int:
+    from .serve import case_paths, serve
+
+    if args.files and args.cases:
+        raise UsageError("balance-desk serve: give files or --cases DIR, not both")
+    if args.cases and not __import__("os").path.isdir(args.cases):
+        raise UsageError(f"balance-desk serve: no directory {args.cases}")
+    if not case_paths(args.files, args.cases):
+        raise UsageError("balance-desk serve: no case files found")
+    serve(args.files, args.cases, host=args.host, port=args.port, show=args.show)
     return 0
 
 

@@ -19,7 +19,7 @@ from balance_core.scales import PRESETS, SCALE_TERMS
 from balance_core.verdict import CANDIDATES, Thresholds
 
 from . import render
-from .state import FIELDS, ViewState, field_label
+from .state import FIELDS, VECTORS, ViewState, field_label
 
 __all__ = ["Selection", "resolve", "region_of", "ChartData", "chart_data", "box_data",
            "levels_data", "times_data", "scale_sheet", "UNITS", "to_display"]
@@ -179,8 +179,11 @@ def chart_data(library, state: ViewState) -> ChartData:
         vals, units, kind = _field_values(key, diag, state)
     raster = render.sample(geom, vals)
     # height contours at display resolution
-    zr, zunits = to_display("height", render.sample(geom, diag.height), state)
-    levels = render.nice_levels(np.nanmin(zr), np.nanmax(zr))
+    zm = render.sample(geom, diag.height)
+    zr, zunits = to_display("height", zm, state)
+    k = 0.1 if state.height_units == "dam" else 1.0
+    levels = render.nice_levels(np.nanmin(zm), np.nanmax(zm),
+                                steps=render.HEIGHT_INTERVALS) * k
     contours = render.contour_lines(geom.xs, geom.ys, zr, levels)
     # vectors
     vectors, vlabel = None, ""
@@ -189,9 +192,10 @@ def chart_data(library, state: ViewState) -> ChartData:
                   "ageostrophic": (diag.u - diag.ug, diag.v - diag.vg)}[state.vectors]
         ur = render.sample(geom, uu)
         vr = render.sample(geom, vv)
-        vectors = render.vector_lattice(geom, ur, vr)
+        vectors = render.vector_lattice(geom, ur, vr, n_across=18)
         ref, wunit = to_display("wind", vectors["ref_speed"], state)
-        vlabel = f"{state.vectors} wind, arrow of one grid cell = {float(ref):.0f} {wunit}"
+        vlabel = (f"Vectors: {VECTORS[state.vectors]}; an arrow one lattice cell long is "
+                  f"{float(ref):.0f} {wunit}")
         if state.vectors != "wind" and np.isnan(ur).mean() > 0.05:
             notes.append("geostrophic wind masked within "
                          f"{state.min_lat:g} degrees of the equator")

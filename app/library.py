@@ -106,7 +106,7 @@ class CaseLibrary:
         if lc is None:
             raise CaseError(f"no case called {name!r} on this server")
         if lc.case is None:
-            raise CaseError(lc.error)
+            raise CaseError(f"this case could not be loaded: {lc.error}")
         return lc.case
 
     def diagnostics(self, name: str, level_index: int, time_index: int,

@@ -15,6 +15,7 @@ from __future__ import annotations
 import dataclasses
 import functools
 import logging
+import math
 import os
 
 import numpy as np
@@ -257,26 +258,34 @@ def sample_points(geom: ViewGeometry, field, lon, lat):
     return sample(dataclasses.replace(geom, rows=rows, cols=cols), field)
 
 
-def nice_levels(zmin, zmax, target=(8, 16)):
-    """Round contour levels spanning [zmin, zmax] with between 8 and 16 lines where possible."""
+#: Contour intervals forecasters use for heights (m), smallest first (common practice).
+HEIGHT_INTERVALS = (10, 20, 30, 40, 60, 80, 120, 160, 240)
+
+
+def nice_levels(zmin, zmax, target=(5, 14), steps=None):
+    """Round contour levels spanning [zmin, zmax], at most ``target[1]`` lines.
+
+    ``steps`` lists the intervals allowed (smallest first), by default 1, 2, 2.5, 4, 5
+    times a power of ten; the smallest giving no more than target[1] lines wins.
+    """
     if not (np.isfinite(zmin) and np.isfinite(zmax)) or zmax <= zmin:
         return np.array([])
     span = zmax - zmin
-    for base in (1, 2, 2.5, 3, 4, 5, 6, 8):
-        for exp in range(-12, 8):
-            step = base * 10.0 ** exp
-            n = span / step
-            if target[0] <= n <= target[1]:
-                start = np.ceil(zmin / step) * step
-                return np.arange(start, zmax + step * 1e-9, step)
-    step = span / 10
-    return np.linspace(zmin + step / 2, zmax - step / 2, 10)
+    if steps is None:
+        steps = [b * 10.0 ** e for e in range(-12, 8) for b in (1, 2, 2.5, 4, 5)]
+    for step in steps:
+        if span / step <= target[1]:
+            start = np.ceil(zmin / step) * step
+            return np.arange(start, zmax + step * 1e-9, step)
+    step = steps[-1]
+    return np.arange(np.ceil(zmin / step) * step, zmax + step * 1e-9, step)
 
 
-def contour_lines(xs, ys, z, levels):
+def contour_lines(xs, ys, z, levels, min_gap=0.07):
     """Lines of ``z`` (on the raster) at ``levels``: (xs list, ys list, level list, labels).
 
-    Labels are placed at the middle of each level's longest line.
+    Each level's longest line gets a label, at a point along it that shifts
+    from level to level so that labels of neighbouring lines do not stack.
     """
     import contourpy
 
@@ -285,7 +294,8 @@ def contour_lines(xs, ys, z, levels):
         return [], [], [], []
     gen = contourpy.contour_generator(xs, ys, z, line_type="Separate")
     lx, ly, lv, labels = [], [], [], []
-    for level in levels:
+    fractions = (0.5, 0.3, 0.7, 0.4, 0.6)
+    for n, level in enumerate(levels):
         lines = gen.lines(float(level))
         best = None
         for seg in lines:
@@ -297,9 +307,15 @@ def contour_lines(xs, ys, z, levels):
             if best is None or len(seg) > len(best):
                 best = seg
         if best is not None and len(best) >= 6:
-            mid = best[len(best) // 2]
+            mid = best[int(len(best) * fractions[n % len(fractions)])]
             labels.append((float(mid[0]), float(mid[1]), float(level)))
-    return lx, ly, lv, labels
+    # thin the labels: none closer than min_gap of the view's width to one already kept
+    gap = min_gap * (xs[-1] - xs[0])
+    kept = []
+    for lab in labels:
+        if all(math.hypot(lab[0] - k[0], lab[1] - k[1]) > gap for k in kept):
+            kept.append(lab)
+    return lx, ly, lv, kept
 
 
 def vector_lattice(geom: ViewGeometry, u_raster, v_raster, n_across: int = 22):
@@ -359,12 +375,22 @@ def _coast_polygons():
     if path is None:
         return None
     try:
+        import warnings
+
         import cartopy
         import cartopy.feature as cfeature
 
         cartopy.config["pre_existing_data_dir"] = data_dir
         feature = cfeature.GSHHSFeature(scale="c", levels=[1])
-        return list(feature.geometries())
+        quiet = logging.getLogger("shapefile")
+        level = quiet.level
+        quiet.setLevel(logging.ERROR)  # pyshp notes rings it re-orders; harmless here
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                return list(feature.geometries())
+        finally:
+            quiet.setLevel(level)
     except Exception:  # noqa: BLE001 - coastlines are a nicety; say so and go on
         log.exception("could not read the offline coastlines")
         return None
@@ -378,7 +404,7 @@ def coastlines(geom: ViewGeometry):
 
     Projected once per view geometry and cached.
     """
-    key = (geom.kind, None if geom.crs is None else geom.crs.to_proj4(), tuple(np.round(geom.extent, 3)))
+    key = (geom.kind, None if geom.crs is None else geom.crs.to_wkt(), tuple(np.round(geom.extent, 3)))
     if key in _COAST_CACHE:
         return _COAST_CACHE[key]
     polys = _coast_polygons()

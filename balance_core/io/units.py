@@ -42,11 +42,18 @@ def registry():
     for the whole process; that would change the units of any other library
     using pint (MetPy among them), so the previous one is put back.
     """
+    import logging
+
     import pint
 
     previous = pint.application_registry.get()
-    import cf_xarray.units  # noqa: F401 - defines the registry
-
+    quiet = logging.getLogger("pint")
+    level = quiet.level
+    quiet.setLevel(logging.ERROR)  # cf_xarray redefines a few units on purpose
+    try:
+        import cf_xarray.units  # noqa: F401 - defines the registry
+    finally:
+        quiet.setLevel(level)
     pint.application_registry.set(previous)
     return cf_xarray.units.units
 
