@@ -16,13 +16,14 @@ export PROJ_NETWORK := OFF
 .PHONY: run test install system samples bench verify clean
 
 run: system install
-	$(BIN)/balance-desk scales
+	$(BIN)/balance-desk serve --port $(PORT)
 
 test: system install samples
 	$(BIN)/python -m pytest $(PYTEST_ARGS)
 
 bench: install
 	$(BIN)/python bench/core.py
+	$(BIN)/python bench/app.py
 
 verify: install
 	$(BIN)/balance-desk verify

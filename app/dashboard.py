@@ -116,8 +116,9 @@ class Dashboard(pn.viewable.Viewer):
         self._doc = None
         self._report = None
         self._chart = None
+        self._pending_profiles = False
         self._build()
-        self.state.param.watch(self._on_state, list(URL_PARAMS))
+        self._watcher = self.state.param.watch(self._on_state, list(URL_PARAMS))
         self._sync_case_options()
 
     # -- building the page ------------------------------------------------------------
@@ -228,7 +229,7 @@ class Dashboard(pn.viewable.Viewer):
                                                height=[], speed=[], direction=[]))
         self.mapper = LinearColorMapper(palette=_palette("sequential"), nan_color=(0, 0, 0, 0))
         fig = figure(width=860, height=620, tools="", toolbar_location="above",
-                     title="", output_backend="webgl", x_range=Range1d(0, 1), y_range=Range1d(0, 1))
+                     title="", output_backend="canvas", x_range=Range1d(0, 1), y_range=Range1d(0, 1))
         fig.image(image="image", x="x", y="y", dw="dw", dh="dh", source=self.img_src,
                   color_mapper=self.mapper)
         fig.multi_line("xs", "ys", source=self.grat_src, line_color="#777777", line_alpha=0.6,
@@ -275,6 +276,7 @@ class Dashboard(pn.viewable.Viewer):
         fig.add_layout(self.colorbar, "right")
         fig.add_layout(self.colorbar_log, "right")
         fig.on_event(events.SelectionGeometry, self._on_select)
+        fig.grid.visible = False
         _style_figure(fig)
         self.chart_fig = fig
         self.chart_pane = pn.pane.Bokeh(fig)
@@ -504,17 +506,42 @@ class Dashboard(pn.viewable.Viewer):
         """Recompute what the changed parameters affect."""
         names = set(names or URL_PARAMS)
         chart = {"case", "level", "time", "field", "vectors", "smooth_km", "min_lat",
-                 "projection", "height_units", "wind_units", "region"}
+                 "projection", "height_units", "wind_units"}
         box = {"case", "level", "time", "smooth_km", "min_lat", "region"}
-        if names & chart:
+        global_conformal = (self._chart is not None and self._chart.geom.kind == "conformal"
+                            and self._chart.geom.grid is not None
+                            and getattr(self._chart.geom.grid, "periodic", False))
+        if names & chart or ("region" in names and (self._chart is None or global_conformal)):
             self._submit("chart", compute.chart_data, self._apply_chart)
+        elif "region" in names:
+            # only the outline moves: no new raster, contours or vectors to send
+            self._submit("chart", self._outline, self._apply_outline)
         if names & box:
+            # the ranking first; the views through the levels and times follow it
             self._submit("box", compute.box_data, self._apply_box_report)
-            self._submit("levels", compute.levels_data, self._apply_levels)
-            self._submit("times", compute.times_data, self._apply_times)
+            self._pending_profiles = True
         if "preset" in names:
             self._refresh_sheet()
         self._update_header()
+
+    def _outline(self, library, snap):
+        geom = self._chart.geom
+        spec = snap.region_spec()
+        if spec is None:
+            return None
+        return compute._region_outline(geom, compute.region_of(snap))
+
+    def _apply_outline(self, xy, error):
+        if error or xy is None:
+            self.region_src.data = dict(x=[], y=[])
+        else:
+            self.region_src.data = dict(x=xy[0], y=xy[1])
+
+    def _submit_profiles(self):
+        if getattr(self, "_pending_profiles", False):
+            self._pending_profiles = False
+            self._submit("levels", compute.levels_data, self._apply_levels)
+            self._submit("times", compute.times_data, self._apply_times)
 
     def _snapshot(self):
         return ViewState(**{k: v for k, v in self.state.param.values().items() if k != "name"})
@@ -614,7 +641,7 @@ class Dashboard(pn.viewable.Viewer):
                                                  "height", "speed", "direction")}
         fu = f" {h['field_units']}" if h["field_units"] else ""
         self.hover.tooltips = [("lat, lon", "@lat{0.0}, @lon{0.0}"),
-                               (cd.field_label, "@field{0.000}" + fu),
+                               (cd.field_label, "@field{0,0.[000]}" + fu),
                                ("height", "@height{0} " + h["height_units"]),
                                ("wind", "@speed{0} " + h["wind_units"] + " from @direction{0} deg")]
         fig.x_range.start, fig.x_range.end = x0, x1
@@ -647,6 +674,12 @@ class Dashboard(pn.viewable.Viewer):
         self.chart_note.object = "  \n".join(notes)
 
     def _apply_box_report(self, rep, error):
+        try:
+            self._show_box_report(rep, error)
+        finally:
+            self._submit_profiles()
+
+    def _show_box_report(self, rep, error):
         self._report = rep
         if error:
             self._show(self.box_alert, error)
@@ -662,7 +695,8 @@ class Dashboard(pn.viewable.Viewer):
         self._show(self.box_alert, "")
         v = rep["verdict"]
         self.verdict.object = (
-            f"<div style='font-size:19px;line-height:1.35;border-left:6px solid {ORANGE};"
+            f"<div class='bd-verdict' style='font-size:19px;line-height:1.35;"
+            f"border-left:6px solid {ORANGE};"
             f"padding:6px 10px;background:#fafafa'><div style='font-size:24px;font-weight:700'>"
             f"{v['balance'].capitalize()}</div>{v['text']}<div style='font-size:15px;color:#444;"
             f"margin-top:4px'>{rep['region_text']}, {rep['points']} points"
@@ -913,12 +947,13 @@ def make_session(library: CaseLibrary):
     if GLOBAL_CSS not in pn.config.raw_css:
         pn.config.raw_css.append(GLOBAL_CSS)
     state = ViewState(case=library.names[0] if library.names else "")
-    loc = pn.state.location
-    if loc is not None:
-        state.update_from_query(dict(loc.query_params))
+    # the request's query (a copied link): values arrive as lists of bytes
+    query = {k: v for k, v in (pn.state.session_args or {}).items()}
+    state.update_from_query(query)
     dash = Dashboard(library, state)
     dash.bind_document(pn.state.curdoc)
-    if "region" not in (dict(loc.query_params) if loc is not None else {}):
+    loc = pn.state.location
+    if "region" not in query:
         dash.apply_suggested_region()
     if loc is not None:
         loc.sync(state, {p: p for p in URL_PARAMS})

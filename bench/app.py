@@ -1,0 +1,269 @@
+"""Dashboard speed: server-side work per change, and one figure from a real browser.
+
+Measured on the bundled sample cases and on a synthetic global 0.25-degree case
+(721 x 1440, 7 levels, 5 times). Server-side work is timed on the same
+objects the server uses (the dashboard of one session, driven through its
+view state) and includes the Bokeh serialisation of what changed, i.e. the
+data sent to the page:
+
+* box change: the region's statistics, ranking and verdict, and the outline;
+* level change: a new level's diagnostics (budget, winds, numbers), the chart
+  raster, contours, vectors, and the region's report.
+
+The browser figure is the time from the end of a mouse drag on the chart to
+the ranked view updated in the page (headless Chromium, Playwright).
+
+Prints medians, then last one line per figure: ``figure NAME MILLISECONDS``.
+
+    python bench/app.py [--repeat N] [--no-browser]
+"""
+
+from __future__ import annotations
+
+import argparse
+import gc
+import glob
+import os
+import shutil
+import socket
+import statistics
+import subprocess
+import sys
+import time
+import urllib.request
+
+os.environ.setdefault("PROJ_NETWORK", "OFF")
+import pyproj  # noqa: E402,F401
+
+import numpy as np  # noqa: E402
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+ROOT = os.path.join(HERE, "..")
+sys.path.insert(0, ROOT)
+
+
+def global_quarter_degree_case():
+    """A synthetic global 0.25-degree case held in memory (float32, ~0.7 GB)."""
+    import pandas as pd
+    import xarray as xr
+
+    from balance_core import Grid
+    from balance_core.io.case import Case
+    from balance_core.thermo import standard_atmosphere_height, standard_atmosphere_temperature
+
+    lat = np.linspace(90, -90, 721)
+    lon = np.arange(1440) * 0.25
+    levels = np.array([1000, 925, 850, 700, 500, 300, 250], float) * 100
+    times = pd.date_range("2040-03-01", periods=5, freq="6h").values
+    lam, phi = np.meshgrid(np.deg2rad(lon), np.deg2rad(lat))
+    cos, sin = np.cos(phi), np.sin(phi)
+    shape = (5, 7) + lam.shape
+    z, u, v, om, t = (np.empty(shape, np.float32) for _ in range(5))
+    for i in range(5):
+        ph = lam - 2e-6 * 6 * 3600 * i
+        for k, p in enumerate(levels):
+            s = np.log(1e5 / p) / np.log(4)
+            z[i, k] = standard_atmosphere_height(p) - 300 * s * sin ** 2 + \
+                80 * (1 + s) * np.cos(5 * ph) * (2 * sin * cos) ** 2
+            u[i, k] = (10 + 25 * s) * cos ** 2 * (2 * sin) ** 2 + 5 * np.sin(5 * ph) * cos
+            v[i, k] = 6 * (1 + s) * np.cos(5 * ph) * cos * sin
+            om[i, k] = 0.3 * np.sin(5 * ph) * cos * np.sin(np.pi * (p - 2.5e4) / 7.5e4)
+            t[i, k] = standard_atmosphere_temperature(p) + 25 * (cos ** 2 - 0.5) - 5 * s
+    dims = ("time", "level", "y", "x")
+    coords = {"time": times, "level": levels}
+    data = {name: xr.DataArray(arr, dims=dims, coords=coords)
+            for name, arr in (("height", z), ("u", u), ("v", v), ("omega", om),
+                              ("temperature", t))}
+    return Case(name="global_quarter_degree", title="synthetic global 0.25-degree case",
+                paths=[], grid=Grid.latlon(lat, lon), times=times.astype("datetime64[ns]"),
+                levels_pa=levels, data=data, surface={}, notes=[], below_ground={},
+                attrs={"suggested_box": "[-20, 20, 35, 60]"})
+
+
+def _serialise(models):
+    """Serialise the given Bokeh models as the server would send them."""
+    from bokeh.core.serialization import Serializer
+
+    ser = Serializer()
+    total = 0
+    for m in models:
+        rep = ser.encode(m.data if hasattr(m, "data") else m)
+        total += len(str(rep)) if rep is not None else 0
+    return total
+
+
+def _median_ms(samples):
+    return 1e3 * statistics.median(samples)
+
+
+def server_side(library, case_name, boxes, level_cycle, repeat):
+    """Median seconds of a box change and of a level change for one case."""
+    from app import compute
+    from app.dashboard import Dashboard
+    from app.state import ViewState
+
+    case = library.get(case_name)
+    st = ViewState(case=case_name, level=float(level_cycle[0]), time="")
+    dash = Dashboard(library, st)
+    dash.apply_suggested_region()
+    dash.refresh()
+    # time each path by itself: in the server the other views run in the pool meanwhile
+    st.param.unwatch(dash._watcher)
+    sources = [dash.rank_src, dash.der_src, dash.bal_src, dash.region_src]
+    box_times = []
+    for i in range(repeat):
+        b = boxes[i % len(boxes)]
+        t0 = time.perf_counter()
+        st.param.update(region=__import__("json").dumps({"kind": "box", "bounds": b}))
+        rep = compute.box_data(library, st)
+        dash._apply_box_report(rep, None)
+        outline = compute._region_outline(dash._chart.geom, compute.region_of(st))
+        dash.region_src.data = dict(x=outline[0], y=outline[1])
+        _serialise(sources)
+        box_times.append(time.perf_counter() - t0)
+    level_times = []
+    chart_sources = [dash.img_src, dash.cont_src, dash.clab_src, dash.vec_src, dash.hover_src,
+                     dash.rank_src, dash.der_src, dash.bal_src]
+    for i in range(repeat):
+        lev = float(level_cycle[(i + 1) % len(level_cycle)])
+        ti = i % case.times.size
+        library._diag._data.clear()  # a change to a level or time nobody has looked at yet
+        gc.collect()
+        t0 = time.perf_counter()
+        st.param.update(level=lev, time=str(np.datetime_as_string(case.times[ti], "s")) + "Z")
+        cd = compute.chart_data(library, st)
+        dash._apply_chart(cd, None)
+        rep = compute.box_data(library, st)
+        dash._apply_box_report(rep, None)
+        _serialise(chart_sources)
+        level_times.append(time.perf_counter() - t0)
+    return _median_ms(box_times), _median_ms(level_times)
+
+
+def _free_port():
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+def browser_figures(repeat):
+    """(median ms from drag end to ranking updated, second-session resident MB)."""
+    chromium = shutil.which("chromium")
+    if chromium is None:
+        return None, None, None
+    import psutil
+    from playwright.sync_api import sync_playwright
+
+    port = _free_port()
+    proc = subprocess.Popen([sys.executable, "-m", "app.cli", "serve", "--port", str(port)],
+                            cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    url = f"http://127.0.0.1:{port}/?case=ocean_cyclone&level=500&time=2041-01-19T12%3A00%3A00Z"
+    try:
+        for _ in range(120):
+            try:
+                urllib.request.urlopen(f"http://127.0.0.1:{port}/", timeout=2)
+                break
+            except Exception:  # noqa: BLE001
+                time.sleep(0.5)
+        with sync_playwright() as p:
+            b = p.chromium.launch(executable_path=chromium, args=[
+                "--no-sandbox", "--disable-gpu", "--disable-background-networking"])
+            page = b.new_page(viewport={"width": 1800, "height": 1200})
+            page.goto(url)
+            page.locator(".bd-chart-title").first.wait_for(timeout=60000)
+            page.wait_for_timeout(3000)
+            canv = max((c.bounding_box() for c in page.locator("canvas").all()
+                        if c.bounding_box()), key=lambda bb: bb["width"] * bb["height"])
+
+            probe = page.locator(".bd-verdict").first
+
+            def verdict():
+                return probe.inner_text(timeout=30000)
+
+            # the cost of one look at the page, so the figure is not the probe's own time
+            t0 = time.perf_counter()
+            for _ in range(10):
+                verdict()
+            probe_s = (time.perf_counter() - t0) / 10
+
+            times = []
+            for i in range(repeat):
+                before = verdict()
+                fx0 = 0.15 + 0.05 * (i % 6)
+                x0 = canv["x"] + canv["width"] * fx0
+                y0 = canv["y"] + canv["height"] * 0.25
+                x1 = canv["x"] + canv["width"] * (fx0 + 0.3)
+                y1 = canv["y"] + canv["height"] * (0.55 + 0.03 * (i % 4))
+                page.mouse.move(x0, y0)
+                page.mouse.down()
+                page.mouse.move(x1, y1, steps=8)
+                t0 = time.perf_counter()
+                page.mouse.up()
+                while verdict() == before and time.perf_counter() - t0 < 30:
+                    page.wait_for_timeout(5)
+                times.append(time.perf_counter() - t0 - probe_s / 2)
+                page.wait_for_timeout(300)
+            # memory of a second session of the same case
+            server = psutil.Process(proc.pid)
+            page.wait_for_timeout(1500)
+            rss1 = server.memory_info().rss
+            page2 = b.new_page(viewport={"width": 1800, "height": 1200})
+            page2.goto(url)
+            page2.locator(".bd-chart-title").first.wait_for(timeout=60000)
+            page2.wait_for_timeout(4000)
+            rss2 = server.memory_info().rss
+            b.close()
+        return _median_ms(times), (rss2 - rss1) / 2 ** 20, 1e3 * probe_s
+    finally:
+        proc.terminate()
+        proc.wait(timeout=30)
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--repeat", type=int, default=7)
+    ap.add_argument("--no-browser", action="store_true")
+    args = ap.parse_args(argv)
+
+    from app.library import CaseLibrary
+
+    samples = sorted(glob.glob(os.path.join(ROOT, "sample_cases", "*.nc")))
+    lib = CaseLibrary(samples)
+    cyclone_boxes = [[-52, -28, 38, 56], [-45, -20, 30, 50], [-60, -35, 45, 60],
+                     [-40, -10, 35, 55]]
+    box_s, lev_s = server_side(lib, "ocean_cyclone", cyclone_boxes,
+                               [500, 850, 250, 1000, 700, 300, 925], args.repeat)
+    t0 = time.perf_counter()
+    big = global_quarter_degree_case()
+    build_s = time.perf_counter() - t0
+    glib = CaseLibrary.from_cases([big])
+    global_boxes = [[-20, 20, 35, 60], [100, 160, 20, 50], [170, -150, 30, 70],
+                    [-80, -40, -50, -20]]
+    box_g, lev_g = server_side(glib, "global_quarter_degree", global_boxes,
+                               [500, 850, 250, 1000, 700, 300, 925], args.repeat)
+    browser_ms = mem_mb = probe_ms = None
+    if not args.no_browser:
+        browser_ms, mem_mb, probe_ms = browser_figures(args.repeat)
+    print(f"sample case: ocean_cyclone ({lib.get('ocean_cyclone').grid.shape}); synthetic "
+          f"global case {big.grid.shape} x 7 levels x 5 times built in {build_s:.1f} s; "
+          f"median of {args.repeat}")
+    print(f"  box change, sample:               {box_s:8.1f} ms   (goal < 50)")
+    print(f"  box change, global 0.25 deg:      {box_g:8.1f} ms   (goal < 300)")
+    print(f"  level change, sample:             {lev_s:8.1f} ms   (goal < 300)")
+    print(f"  level change, global 0.25 deg:    {lev_g:8.1f} ms   (goal < 1000)")
+    if browser_ms is not None:
+        print(f"  browser, drag end to ranking:     {browser_ms:8.1f} ms   (one look at the page "
+              f"takes {probe_ms:.0f} ms; half of it is taken off)")
+        print(f"  second browser session of the same case: {mem_mb:+.1f} MB resident "
+              "(goal < 20)")
+    print(f"figure box_change/sample {box_s:.1f}")
+    print(f"figure box_change/global_quarter_degree {box_g:.1f}")
+    print(f"figure level_change/sample {lev_s:.1f}")
+    print(f"figure level_change/global_quarter_degree {lev_g:.1f}")
+    if browser_ms is not None:
+        print(f"figure browser_box_to_ranking/sample {browser_ms:.1f}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
