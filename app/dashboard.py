@@ -457,6 +457,9 @@ class Dashboard(pn.viewable.Viewer):
             self.state.set_box(*b)
         else:
             self.state.clear_region()
+        preset = case.attrs.get("scale_preset")
+        if preset in PRESETS:
+            self.state.preset = preset
 
     def _sync_case_options(self):
         """Level and time choices of the current case; a case that failed says so."""
@@ -766,9 +769,11 @@ class Dashboard(pn.viewable.Viewer):
             extra = (f"<tr title='area-weighted RMS wind speed in the region'><td>wind speed</td>"
                      f"<td style='text-align:right'><b>{spd * k:.1f}</b> {u}</td></tr>")
         if gsp is not None:
+            warn = (" <span style='color:#a00'>(far above the wind: geostrophy fails here)"
+                    "</span>" if spd and gsp > 2 * spd else "")
             extra += (f"<tr title='geostrophic wind speed from the height gradient'><td>"
                       f"geostrophic speed</td><td style='text-align:right'><b>{gsp * k:.1f}</b> {u}"
-                      "</td></tr>")
+                      f"{warn}</td></tr>")
         return ("<div style='font-size:16px'><b>Numbers</b> (hover a row for its meaning)"
                 "<table style='font-size:16px'>" + "".join(rows) + extra + "</table></div>")
 

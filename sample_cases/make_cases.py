@@ -225,6 +225,7 @@ def make_cyclone(cfg=CYCLONE):
         ]),
         "free_atmosphere_levels_hpa": json.dumps([700, 500, 300, 250]),
         "friction_levels_hpa": json.dumps([1000]),
+        "scale_preset": "synoptic_cyclone",
     }
     return out_lat, out_lon, times, data, attrs
 
@@ -382,6 +383,7 @@ def make_tropical(cfg=TROPICAL):
         ]),
         "free_atmosphere_levels_hpa": json.dumps([850, 700, 500]),
         "friction_levels_hpa": json.dumps([]),
+        "scale_preset": "tropical_cyclone",
     }
     return out_lat, out_lon, times, data, attrs
 
@@ -555,6 +557,7 @@ def make_sea_breeze(cfg=SEA_BREEZE):
         ]),
         "free_atmosphere_levels_hpa": json.dumps([700, 650]),
         "friction_levels_hpa": json.dumps([1000, 950, 900, 850]),
+        "scale_preset": "sea_breeze",
     }
     return out_lat, out_lon, times, data, attrs
 
