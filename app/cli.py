@@ -41,31 +41,8 @@ class _Parser(argparse.ArgumentParser):
         raise UsageError(f"{self.prog}: {message}")
 
 
-def _positive(name):
-    def conv(text):
-        try:
-            val = float(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"{name} must be a number, got {text!r}") from None
-        if not math.isfinite(val) or val <= 0:
-            raise argparse.ArgumentTypeError(f"{name} must be a positive number, got {text}")
-        return val
-    return conv
-
-
-def _non_negative(name):
-    def conv(text):
-        try:
-            val = float(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"{name} must be a number, got {text!r}") from None
-        if not math.isfinite(val) or val < 0:
-            raise argparse.ArgumentTypeError(f"{name} must be zero or positive, got {text}")
-        return val
-    return conv
-
-
-def _number(name):
+def _number(name, lower=None, strict=False):
+    """An argparse type: a finite number, optionally at least (or above) ``lower``."""
     def conv(text):
         try:
             val = float(text)
@@ -73,8 +50,19 @@ def _number(name):
             raise argparse.ArgumentTypeError(f"{name} must be a number, got {text!r}") from None
         if not math.isfinite(val):
             raise argparse.ArgumentTypeError(f"{name} must be a finite number, got {text}")
+        if lower is not None and (val <= lower if strict else val < lower):
+            what = "a positive number" if strict else "zero or positive"
+            raise argparse.ArgumentTypeError(f"{name} must be {what}, got {text}")
         return val
     return conv
+
+
+def _positive(name):
+    return _number(name, 0.0, strict=True)
+
+
+def _non_negative(name):
+    return _number(name, 0.0)
 
 
 def _box(text):

@@ -242,30 +242,24 @@ def momentum_budget(grid: Grid, fields: Fields, time_index: int = 0, level_index
         raise IndexError(f"time index {time_index} outside the {nt} times")
     if not -nk <= level_index < nk:
         raise IndexError(f"level index {level_index} outside the {nk} levels")
-    it, ik = time_index % nt, level_index % nk
+    layout = _Layout(fields, time_index % nt, level_index % nk)
+    out = _allocate(layout, grid.shape, views)
     ny, nx = grid.shape
     rows = max(3, BAND_POINTS // nx)
     if ny < 2 * rows:
-        return _band_budget(grid, fields, it, ik, views)
-    nthreads = 1 if workers == 1 else _pool()._max_workers
-    nbands = -(-ny // rows)
-    nbands = -(-nbands // nthreads) * nthreads  # a whole number of bands per thread
-    edges = np.linspace(0, ny, nbands + 1).round().astype(int)
-    bands = [(int(a), int(b)) for a, b in zip(edges[:-1], edges[1:])]
+        bands = [(0, ny)]
+    else:
+        nthreads = 1 if workers == 1 else _pool()._max_workers
+        nbands = -(-ny // rows)
+        nbands = -(-nbands // nthreads) * nthreads  # a whole number of bands per thread
+        nbands = min(nbands, ny // 3)  # every band at least three rows
+        edges = np.linspace(0, ny, nbands + 1).round().astype(int)
+        bands = [(int(a), int(b)) for a, b in zip(edges[:-1], edges[1:])]
 
-    def band(j0, j1):
-        h0, h1 = max(j0 - 1, 0), min(j1 + 1, ny)
-        return _band_budget(grid.rows(h0, h1), fields.rows(h0, h1), it, ik, views), j0 - h0
+    def run(band):
+        _fill_band(grid, fields, layout, out, band[0], band[1], views)
 
-    # the layout of the output (which terms exist) from a three-row sample
-    layout = _band_budget(grid.rows(0, 3), fields.rows(0, 3), it, ik, views)
-    out = _empty_like_budget(layout, grid.shape)
-
-    def run(b):
-        sub, off = band(*b)
-        _copy_rows(sub, out, b, off)
-
-    if workers == 1:
+    if workers == 1 or len(bands) == 1:
         for b in bands:
             run(b)
     else:
@@ -283,227 +277,210 @@ def _is_zeros(a) -> bool:
     return a is not None and a.ndim > 0 and all(st == 0 for st in a.strides)
 
 
-def _empty_like_budget(b: "Budget", shape) -> "Budget":
-    """A Budget shaped like band budget ``b`` on the full grid, arrays not yet filled.
+class _Layout:
+    """What the data can give at one (time, level): weights, availability, notes. No arrays."""
 
-    All the output fields are views into one block of memory: one large
-    allocation is mapped with huge pages where the system allows and is
-    recycled by :mod:`balance_core._memory`, where dozens of separate arrays would each
-    pay for their own page faults.
-    """
-    fields = [(g, n, t) for g in ("terms", "derived") for n, t in getattr(b, g).items()]
-    n_arrays = sum(not _is_zeros(a) for _, _, t in fields if t.available for a in (t.x, t.y))
-    slots = iter(_memory.take((n_arrays,) + tuple(shape)))
-    out = {"terms": {}, "derived": {}}
-    for group, name, t in fields:
-        if t.available:
-            xy = [_zeros(shape) if _is_zeros(a) else next(slots) for a in (t.x, t.y)]
-            out[group][name] = Term(name, xy[0], xy[1], t.note)
-        else:
-            out[group][name] = Term(name, None, None, t.note)
-    return dataclasses.replace(b, terms=out["terms"], derived=out["derived"])
-
-
-def _copy_rows(src: "Budget", dst: "Budget", band, offset: int):
-    """Write the rows of band budget ``src`` into their place in ``dst``."""
-    j0, j1 = band
-    a, b = offset, offset + (j1 - j0)
-    for group in ("terms", "derived"):
-        for name, t in getattr(src, group).items():
-            if t.available:
-                d = getattr(dst, group)[name]
-                for sa, da in ((t.x, d.x), (t.y, d.y)):
-                    if not _is_zeros(da):
-                        da[j0:j1] = sa[a:b]
-
-
-def _band_budget(grid: Grid, fields: Fields, it: int, ik: int, views: bool = True) -> Budget:
-    ctx = _Context(grid, fields, it, ik)
-    return _assemble(ctx, _x_terms(ctx), _y_terms(ctx), views)
-
-
-class _Context:
-    """What both equations share at one (time, level): float64 slices, w, notes."""
-
-    def __init__(self, grid: Grid, fields: Fields, it: int, ik: int):
-        self.grid, self.fields, self.it, self.ik = grid, fields, it, ik
+    def __init__(self, fields: Fields, it: int, ik: int):
+        self.it, self.ik = it, ik
         self.p = float(fields.pressure[ik])
-        self.u = np.asarray(fields.u[it, ik], dtype=np.float64)
-        self.v = np.asarray(fields.v[it, ik], dtype=np.float64)
         self.notes: list[str] = []
         self.missing: dict[str, str] = {}
-        # touch the cached metrics here, before two threads share the grid
-        grid.tan_lat_over_a, grid.cos_lat
-        # time derivative weights
         if fields.ntime >= 2:
             self.t_ids, self.t_w = derivative_weights(fields.time, it)
             if fields.ntime == 2:
                 self.notes.append("tendency from two times: a first-order difference")
         else:
-            self.t_ids = None
+            self.t_ids = self.t_w = None
             self.missing["tendency"] = "one time only, so no local tendency"
-        # vertical derivative weights
         if fields.nlevel >= 2:
             self.p_ids, self.p_w = derivative_weights(fields.pressure, ik)
         else:
-            self.p_ids = None
-        if fields.omega is None:
+            self.p_ids = self.p_w = None
+        self.has_omega = fields.omega is not None
+        self.has_temperature = fields.temperature is not None
+        self.rho_std = None
+        if not self.has_omega:
             why = "no vertical motion (omega) in the data"
             for name in ("vertical_advection", "metric_uw", "coriolis_w"):
                 self.missing[name] = why
-            self.omega = self.w = None
         else:
-            self.omega = np.asarray(fields.omega[it, ik], dtype=np.float64)
-            if fields.temperature is not None:
-                # w = -omega / (rho g) with rho = p / (R_d T)
-                self.w = np.multiply(self.omega, fields.temperature[it, ik], dtype=np.float64)
-                self.w *= -c.R_DRY / (self.p * c.G0)
+            if self.has_temperature:
                 self.notes.append("w = -omega / (rho g), rho from the temperature")
             else:
-                rho = float(standard_atmosphere_density(self.p))
+                self.rho_std = float(standard_atmosphere_density(self.p))
                 self.notes.append(
-                    f"w = -omega / (rho g), rho = {rho:.3f} kg m-3 from the standard atmosphere "
-                    "(no temperature in the data)")
-                self.w = self.omega * (-1.0 / (c.G0 * rho))
+                    f"w = -omega / (rho g), rho = {self.rho_std:.3f} kg m-3 from the standard "
+                    "atmosphere (no temperature in the data)")
             if self.p_ids is None:
                 self.missing["vertical_advection"] = "one pressure level only, so no vertical derivative"
-        self.neg_u = np.negative(self.u)
-        self.w_over_a = None if self.w is None else self.w * (1.0 / grid.radius)
+        self.includes = [n for n in TERMS[:-1] if n in self.missing]
+        note = "friction, sub-grid processes and numerical or data error"
+        if self.includes:
+            note += "; also holds the unavailable " + ", ".join(self.includes)
+        self.residual_note = note
 
-    def tendency(self, q, q0):
-        """d q / dt at (it, ik) for q = fields.u or fields.v (q0 its float64 slice), or None."""
-        if self.t_ids is None:
-            return None
-        return _weighted_sum([q0 if i == self.it else q[i, self.ik] for i in self.t_ids], self.t_w)
-
-    def vertical_advection(self, q, q0):
-        """-omega d q / dp at (it, ik), or None."""
-        if self.p_ids is None or self.omega is None:
-            return None
-        out = _weighted_sum([q0 if k == self.ik else q[self.it, k] for k in self.p_ids],
-                            [-w for w in self.p_w])
-        out *= self.omega
-        return out
+    def available(self, name) -> bool:
+        return name not in self.missing
 
 
-def _weighted_sum(arrays, weights):
-    """sum(w * a) in float64 with one scratch buffer; zero weights are skipped."""
+def _allocate(L: _Layout, shape, views: bool) -> Budget:
+    """The output Budget: every field a view into one block (see :mod:`._memory`).
+
+    One large allocation is mapped with huge pages where the system allows and
+    is recycled once no budget refers to it, where dozens of separate arrays
+    would each pay for their own page faults.
+    """
+    names = [n for n in TERMS if L.available(n)]
+    derived = list(DERIVED) if views else []
+    n_arrays = 2 * (len(names) + len(derived)) - ("coriolis_w" in names)
+    slots = iter(_memory.take((n_arrays,) + tuple(shape)))
+    terms = {}
+    for n in TERMS:
+        if not L.available(n):
+            terms[n] = Term(n, None, None, L.missing[n])
+        elif n == "coriolis_w":
+            terms[n] = Term(n, next(slots), _zeros(shape))  # no y part, by definition
+        else:
+            terms[n] = Term(n, next(slots), next(slots), L.residual_note if n == "residual" else None)
+    notes = []
+    if not L.available("vertical_advection"):
+        notes.append("without vertical advection")
+    if not L.available("tendency"):
+        notes.append("without the local tendency (one time): the steady-state value")
+    der = {}
+    for n in derived:
+        der[n] = Term(n, next(slots), next(slots),
+                      ("; ".join(notes) or None) if n == "acceleration" else None)
+    return Budget(terms=terms, derived=der, residual_includes=L.includes, notes=list(L.notes),
+                  level_pa=L.p, time_index=L.it, level_index=L.ik)
+
+
+def _f64(a):
+    return np.asarray(a, dtype=np.float64)
+
+
+def _weighted_sum(arrays, weights, out):
+    """sum(w * a) into ``out`` (float64); zero weights are skipped."""
     pairs = [(a, w) for a, w in zip(arrays, weights) if w != 0.0]
     if len(pairs) == 2 and pairs[0][1] == -pairs[1][1]:  # centred, even spacing
-        out = np.subtract(pairs[1][0], pairs[0][0], dtype=np.float64)
+        np.subtract(pairs[1][0], pairs[0][0], out=out, dtype=np.float64)
         out *= pairs[1][1]
         return out
-    out = np.multiply(pairs[0][0], pairs[0][1], dtype=np.float64)
-    scratch = np.empty_like(out) if len(pairs) > 1 else None
-    for a, w in pairs[1:]:
-        np.multiply(a, w, out=scratch, dtype=np.float64)
-        out += scratch
+    np.multiply(pairs[0][0], pairs[0][1], out=out, dtype=np.float64)
+    if len(pairs) > 1:
+        scratch = np.empty_like(out)
+        for a, w in pairs[1:]:
+            np.multiply(a, w, out=scratch, dtype=np.float64)
+            out += scratch
     return out
 
 
-def _advection(neg_u, v, dqdx, dqdy):
-    """-(u dq/dx + v dq/dy), reusing the derivative arrays."""
-    dqdx *= neg_u
-    dqdy *= v
-    dqdx -= dqdy
-    return dqdx
+def _grad_rows(gb: Grid, gi: Grid, fh, a: int, b: int, factor=None):
+    """(d/dx, d/dy) of the interior rows a..b-1 of a band field ``fh`` that has halo rows."""
+    if gb.kind == "latlon":
+        dx = gi.ddx(fh[a:b], factor=factor)
+        dy = gb.ddy(fh, factor=factor)[a:b]
+        return dx, dy
+    gx, gy = gb.grad(fh, factor=factor)
+    return gx[a:b], gy[a:b]
 
 
-def _x_terms(ctx: _Context) -> dict:
-    """The x (eastward) momentum equation's terms."""
-    g, u, v = ctx.grid, ctx.u, ctx.v
-    dudx, dudy = g.grad(u)
-    metric = np.multiply(u, v)
-    metric *= g.tan_lat_over_a
-    terms = {
-        "tendency": ctx.tendency(ctx.fields.u, u),
-        "horizontal_advection": _advection(ctx.neg_u, v, dudx, dudy),
-        "vertical_advection": ctx.vertical_advection(ctx.fields.u, u),
-        "metric_uv": metric,
-        "coriolis": np.multiply(g.f, v),
-        "pressure_gradient": g.ddx(ctx.fields.height[ctx.it, ctx.ik], factor=-c.G0),
-    }
-    if ctx.w is not None:
-        terms["metric_uw"] = np.multiply(ctx.neg_u, ctx.w_over_a)
-        terms["coriolis_w"] = np.multiply(ctx.w, -2.0 * g.omega * g.cos_lat)
-    return terms
+def _fill_band(grid: Grid, fields: Fields, L: _Layout, out: Budget, j0: int, j1: int,
+               views: bool):
+    """Every term of rows j0..j1-1, written straight into ``out``.
+
+    Derivatives across rows use one halo row each side (from the whole field),
+    so they equal those of the whole grid; everything else is computed for the
+    band's own rows only.
+    """
+    ny = grid.shape[0]
+    h0, h1 = max(j0 - 1, 0), min(j1 + 1, ny)
+    gb = grid if (h0, h1) == (0, ny) else grid.rows(h0, h1)
+    gi = grid if (j0, j1) == (0, ny) else grid.rows(j0, j1)
+    a, b = j0 - h0, j1 - h0
+    it, ik, rows = L.it, L.ik, slice(j0, j1)
+    uh = _f64(fields.u[it, ik, h0:h1])
+    vh = _f64(fields.v[it, ik, h0:h1])
+    u, v = uh[a:b], vh[a:b]
+    neg_u = np.negative(u)
+    w = w_over_a = om = None
+    if L.has_omega:
+        om = _f64(fields.omega[it, ik, rows])
+        if L.has_temperature:  # w = -omega / (rho g), rho = p / (R_d T)
+            w = np.multiply(om, fields.temperature[it, ik, rows], dtype=np.float64)
+            w *= -c.R_DRY / (L.p * c.G0)
+        else:
+            w = om * (-1.0 / (c.G0 * L.rho_std))
+        w_over_a = w * (1.0 / grid.radius)
+
+    def o(name, comp):
+        return getattr(out.terms[name], comp)[rows]
+
+    zh = fields.height[it, ik, h0:h1]
+    pgf_x, pgf_y = _grad_rows(gb, gi, zh, a, b, factor=-c.G0)
+    o("pressure_gradient", "x")[...] = pgf_x
+    o("pressure_gradient", "y")[...] = pgf_y
+    for comp, q, qh in (("x", fields.u, uh), ("y", fields.v, vh)):
+        q0 = qh[a:b]
+        dqdx, dqdy = _grad_rows(gb, gi, qh, a, b)
+        adv = o("horizontal_advection", comp)
+        np.multiply(dqdx, neg_u, out=adv)  # -(u dq/dx + v dq/dy)
+        dqdy *= v
+        adv -= dqdy
+        if L.t_ids is not None:
+            _weighted_sum([q0 if i == it else q[i, ik, rows] for i in L.t_ids], L.t_w,
+                          o("tendency", comp))
+        if L.available("vertical_advection"):  # -omega dq/dp
+            va = _weighted_sum([q0 if k == ik else q[it, k, rows] for k in L.p_ids],
+                               [-x for x in L.p_w], o("vertical_advection", comp))
+            va *= om
+    mx, my = o("metric_uv", "x"), o("metric_uv", "y")
+    np.multiply(u, v, out=mx)          # + u v tan(phi) / a
+    mx *= gi.tan_lat_over_a
+    np.multiply(u, neg_u, out=my)      # - u^2 tan(phi) / a
+    my *= gi.tan_lat_over_a
+    np.multiply(gi.f, v, out=o("coriolis", "x"))       # + f v
+    np.multiply(gi.f, neg_u, out=o("coriolis", "y"))   # - f u
+    if w is not None:
+        np.multiply(neg_u, w_over_a, out=o("metric_uw", "x"))   # - u w / a
+        muy = o("metric_uw", "y")
+        np.multiply(v, w_over_a, out=muy)                       # - v w / a
+        np.negative(muy, out=muy)
+        np.multiply(w, -2.0 * grid.omega * gi.cos_lat, out=o("coriolis_w", "x"))
+    for comp in ("x", "y"):
+        _residual_into(L, out, rows, comp)
+    if views:
+        _derived_into(gi, L, out, rows, u, v)
 
 
-def _y_terms(ctx: _Context) -> dict:
-    """The y (northward) momentum equation's terms."""
-    g, u, v = ctx.grid, ctx.u, ctx.v
-    dvdx, dvdy = g.grad(v)
-    metric = np.multiply(u, ctx.neg_u)
-    metric *= g.tan_lat_over_a
-    terms = {
-        "tendency": ctx.tendency(ctx.fields.v, v),
-        "horizontal_advection": _advection(ctx.neg_u, v, dvdx, dvdy),
-        "vertical_advection": ctx.vertical_advection(ctx.fields.v, v),
-        "metric_uv": metric,
-        "coriolis": np.multiply(g.f, ctx.neg_u),
-        "pressure_gradient": g.ddy(ctx.fields.height[ctx.it, ctx.ik], factor=-c.G0),
-    }
-    if ctx.w is not None:
-        metric_uw = np.multiply(v, ctx.w_over_a)
-        terms["metric_uw"] = np.negative(metric_uw, out=metric_uw)
-        terms["coriolis_w"] = _zeros(g.shape)  # the vertical Coriolis force has no y part
-    return terms
-
-
-def _residual(tendency, forcing):
-    """tendency - sum(forcing), or -sum(forcing) without a tendency; zero terms skipped."""
-    forcing = [f for f in forcing if not _is_zeros(f)]
-    if tendency is None:
-        res = np.add(forcing[0], forcing[1])
-        for part in forcing[2:]:
-            res += part
+def _residual_into(L: _Layout, out: Budget, rows, comp):
+    """residual = tendency - sum of the forcing terms (or -sum without a tendency)."""
+    res = getattr(out.terms["residual"], comp)[rows]
+    parts = [getattr(out.terms[n], comp)[rows] for n in FORCING_TERMS
+             if L.available(n) and not (n == "coriolis_w" and comp == "y")]
+    if L.t_ids is None:
+        np.add(parts[0], parts[1], out=res)
+        for p in parts[2:]:
+            res += p
         np.negative(res, out=res)
-        return res
-    res = np.subtract(tendency, forcing[0])
-    for part in forcing[1:]:
-        res -= part
-    return res
+        return
+    np.subtract(getattr(out.terms["tendency"], comp)[rows], parts[0], out=res)
+    for p in parts[1:]:
+        res -= p
 
 
-def _assemble(ctx: _Context, xs: dict, ys: dict, views: bool = True) -> Budget:
-    terms = {}
-    for name in TERMS[:-1]:
-        x, y = xs.get(name), ys.get(name)
-        terms[name] = Term(name, x, y, None if x is not None else ctx.missing.get(name))
-    includes = [n for n in TERMS[:-1] if not terms[n].available]
-    fx = [terms[n].x for n in FORCING_TERMS if terms[n].available]
-    fy = [terms[n].y for n in FORCING_TERMS if terms[n].available]
-    note = "friction, sub-grid processes and numerical or data error"
-    if includes:
-        note += "; also holds the unavailable " + ", ".join(includes)
-    terms["residual"] = Term("residual", _residual(terms["tendency"].x, fx),
-                             _residual(terms["tendency"].y, fy), note)
-    return Budget(terms=terms, derived=_derived(ctx, terms) if views else {},
-                  residual_includes=includes,
-                  notes=ctx.notes, level_pa=ctx.p, time_index=ctx.it, level_index=ctx.ik)
-
-
-def _derived(ctx: _Context, terms: dict) -> dict:
+def _derived_into(gi: Grid, L: _Layout, out: Budget, rows, u, v):
     """DV/Dt and the natural-coordinate split of the horizontal advection."""
-    hadv, vadv, tend = terms["horizontal_advection"], terms["vertical_advection"], terms["tendency"]
-    notes = []
-    ax = np.negative(hadv.x)
-    ay = np.negative(hadv.y)
-    if vadv.available:
-        ax -= vadv.x
-        ay -= vadv.y
-    else:
-        notes.append("without vertical advection")
-    if tend.available:
-        ax += tend.x
-        ay += tend.y
-    else:
-        notes.append("without the local tendency (one time): the steady-state value")
-    acc = Term("acceleration", ax, ay, "; ".join(notes) or None)
-    flow = Flow(ctx.grid, ctx.u, ctx.v)
-    sx, sy, nx, ny = flow.natural_split(hadv.x, hadv.y)
-    return {
-        "acceleration": acc,
-        "along_stream": Term("along_stream", sx, sy, None),
-        "centripetal": Term("centripetal", nx, ny, None),
-    }
+    hadv = out.terms["horizontal_advection"]
+    for comp in ("x", "y"):
+        acc = getattr(out.derived["acceleration"], comp)[rows]
+        h = getattr(hadv, comp)[rows]
+        if L.t_ids is not None:
+            np.subtract(getattr(out.terms["tendency"], comp)[rows], h, out=acc)
+        else:
+            np.negative(h, out=acc)
+        if L.available("vertical_advection"):
+            acc -= getattr(out.terms["vertical_advection"], comp)[rows]
+    s, n = out.derived["along_stream"], out.derived["centripetal"]
+    Flow(gi, u, v).natural_split(hadv.x[rows], hadv.y[rows],
+                                 out=(s.x[rows], s.y[rows], n.x[rows], n.y[rows]))

@@ -281,7 +281,7 @@ class Flow:
         ay += self.v * dvdy
         return ax, ay
 
-    def natural_split(self, ax=None, ay=None):
+    def natural_split(self, ax=None, ay=None, out=None):
         """Split an acceleration into along-stream and centripetal parts.
 
         With t = V / |V| and n = k x t (to the left of the flow), the advective
@@ -293,6 +293,9 @@ class Flow:
         ----------
         ax, ay : arrays, optional
             The acceleration to split; by default :attr:`advection`.
+
+        out : tuple of four arrays, optional
+            Where to write along_x, along_y, centripetal_x, centripetal_y.
 
         Returns
         -------
@@ -313,9 +316,16 @@ class Flow:
             k /= s2
         if calm.any():
             k[calm] = np.nan
-        along_x = np.multiply(k, u)
-        along_y = np.multiply(k, v, out=k)
-        return along_x, along_y, np.subtract(ax, along_x), np.subtract(ay, along_y)
+        if out is None:
+            along_x = np.multiply(k, u)
+            along_y = np.multiply(k, v, out=k)
+            return along_x, along_y, np.subtract(ax, along_x), np.subtract(ay, along_y)
+        sx, sy, nx_, ny_ = out
+        np.multiply(k, u, out=sx)
+        np.multiply(k, v, out=sy)
+        np.subtract(ax, sx, out=nx_)
+        np.subtract(ay, sy, out=ny_)
+        return out
 
     def streamline_radius(self):
         """Signed radius of curvature of the streamlines R_s = V^3 / (V x A) . k, m."""
