@@ -12,14 +12,14 @@ import math
 
 import numpy as np
 
-from balance_core import Region, TERMS, analyse_scales, classify_scales
+from balance_core import Region, analyse_scales, classify_scales
 from balance_core.io import CaseError, iso
 from balance_core.io.analysis import analyse_case
-from balance_core.scales import PRESETS, SCALE_TERMS
-from balance_core.verdict import CANDIDATES, Thresholds
+from balance_core.scales import PRESETS
+from balance_core.verdict import Thresholds
 
 from . import render
-from .state import FIELDS, VECTORS, ViewState, field_label
+from .state import VECTORS, ViewState, field_label
 
 __all__ = ["Selection", "resolve", "region_of", "ChartData", "chart_data", "box_data",
            "levels_data", "times_data", "scale_sheet", "UNITS", "to_display"]
@@ -369,19 +369,3 @@ def scale_sheet(state: ViewState, overrides: dict | None, box_report: dict | Non
     return {"preset": s.name, "source": s.source, "scales": scale_rows, "terms": term_rows,
             "numbers": res.numbers, "verdict": verdict.as_dict(), "error": error,
             "box_verdict": (box_report or {}).get("verdict")}
-
-
-def candidates() -> list:
-    return list(CANDIDATES)
-
-
-def term_names() -> list:
-    return list(TERMS)
-
-
-def sheet_terms() -> list:
-    return list(SCALE_TERMS)
-
-
-def all_fields() -> list:
-    return list(FIELDS)

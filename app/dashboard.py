@@ -22,7 +22,7 @@ from functools import partial
 
 import numpy as np
 import panel as pn
-import param
+
 from bokeh import events
 from bokeh.models import (BoxSelectTool, ColorBar, ColumnDataSource, CustomJSTickFormatter,
                           FactorRange, HoverTool, LabelSet, LinearColorMapper, LogTicker,
@@ -36,7 +36,7 @@ from balance_core.verdict import Thresholds
 
 from . import compute
 from .library import POOL, CaseLibrary
-from .state import FIELDS, PROJECTIONS, URL_PARAMS, VECTORS, ViewState, field_label
+from .state import FIELDS, PROJECTIONS, URL_PARAMS, VECTORS, ViewState
 
 log = logging.getLogger("balance_desk")
 

@@ -24,9 +24,9 @@ def briefing_png(chart, report, state, caution: str) -> bytes:
 
     fig = plt.figure(figsize=(16, 9), dpi=110)
     fig.patch.set_facecolor("white")
-    ax = fig.add_axes([0.04, 0.12, 0.55, 0.74])
-    axr = fig.add_axes([0.72, 0.40, 0.26, 0.46])
-    axb = fig.add_axes([0.72, 0.12, 0.26, 0.18])
+    ax = fig.add_axes([0.04, 0.10, 0.55, 0.76])
+    axr = fig.add_axes([0.765, 0.36, 0.215, 0.36])
+    axb = fig.add_axes([0.765, 0.10, 0.215, 0.16])
     title = "balance-desk"
     if chart is not None:
         g = chart.geom
@@ -101,8 +101,9 @@ def briefing_png(chart, report, state, caution: str) -> bytes:
         axb.set_title("Imbalance ratios (orange: the verdict)", fontsize=13)
         import textwrap
 
-        fig.text(0.72, 0.93, textwrap.fill(report["verdict"]["text"], 60), fontsize=12,
-                 va="top")
+        fig.text(0.655, 0.90, textwrap.fill(report["verdict"]["text"], 62), fontsize=12.5,
+                 va="top", ha="left", bbox=dict(facecolor="#fafafa", edgecolor="#E69F00", lw=2,
+                                                pad=6))
     fig.text(0.04, 0.03, "Caution: " + caution, fontsize=11, color="#5a4500")
     buf = io.BytesIO()
     fig.savefig(buf, format="png")

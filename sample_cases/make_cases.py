@@ -432,7 +432,6 @@ def make_sea_breeze(cfg=SEA_BREEZE):
     p_pa = p_fine * 100.0
     times = _times(cfg)
     phi0 = np.deg2rad(0.5 * sum(cfg["lat"]))
-    f0 = 2 * OMEGA * np.sin(phi0)
     x = A * np.cos(phi0) * np.deg2rad(lon - cfg["coast_lon"])  # distance from the coast (m)
     X = np.exp(-(x / (cfg["width_km"] * 1e3)) ** 2)
     dXdx = -2 * x / (cfg["width_km"] * 1e3) ** 2 * X

@@ -1,7 +1,6 @@
 """The dashboard driven through its view state, without a browser."""
 
 import glob
-import io
 import json
 import os
 import urllib.parse

@@ -4,13 +4,12 @@ import subprocess
 import sys
 
 import numpy as np
-import pandas as pd
 import pyproj
 import pytest
 import xarray as xr
 
-from balance_core import Region, weighted_stats
-from balance_core.io import CaseError, analyse_case, diagnostics_for, open_case
+
+from balance_core.io import CaseError, analyse_case, open_case
 from balance_core.winds import geostrophic_wind
 
 from makedata import LEVELS, TIMES, latlon_dataset, projected_dataset, truth

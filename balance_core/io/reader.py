@@ -276,8 +276,6 @@ def _find_latlon_2d(da, ds):
 
 def _valid_times(da, ds, path, var):
     """(DataArray with one 'time' dim of valid times, note) from time / step / valid_time."""
-    import xarray as xr
-
     time_dims = [d for d in da.dims if _is_time_like(d, ds)]
     step_dims = [d for d in da.dims if _is_step_like(d, ds)]
     note = None
