@@ -80,6 +80,8 @@ class Fields:
     time: np.ndarray | None = None
     omega: np.ndarray | None = None
     temperature: np.ndarray | None = None
+    #: why an optional field is None, if the reason is more than "not in the data"
+    reasons: dict = dataclasses.field(default_factory=dict)
 
     def __post_init__(self):
         self.pressure = np.atleast_1d(np.asarray(self.pressure, dtype=np.float64))
@@ -107,7 +109,7 @@ class Fields:
         """The same fields restricted to rows j0..j1-1 (views, no copies)."""
         cut = lambda a: None if a is None else a[..., j0:j1, :]  # noqa: E731
         return Fields(cut(self.u), cut(self.v), cut(self.height), self.pressure, self.time,
-                      cut(self.omega), cut(self.temperature))
+                      cut(self.omega), cut(self.temperature), dict(self.reasons))
 
     @property
     def ntime(self) -> int:
@@ -300,7 +302,7 @@ class _Layout:
         self.has_temperature = fields.temperature is not None
         self.rho_std = None
         if not self.has_omega:
-            why = "no vertical motion (omega) in the data"
+            why = fields.reasons.get("omega", "no vertical motion (omega) in the data")
             for name in ("vertical_advection", "metric_uw", "coriolis_w"):
                 self.missing[name] = why
         else:
@@ -308,9 +310,10 @@ class _Layout:
                 self.notes.append("w = -omega / (rho g), rho from the temperature")
             else:
                 self.rho_std = float(standard_atmosphere_density(self.p))
+                why_t = fields.reasons.get("temperature", "no temperature in the data")
                 self.notes.append(
                     f"w = -omega / (rho g), rho = {self.rho_std:.3f} kg m-3 from the standard "
-                    "atmosphere (no temperature in the data)")
+                    f"atmosphere ({why_t})")
             if self.p_ids is None:
                 self.missing["vertical_advection"] = "one pressure level only, so no vertical derivative"
         self.includes = [n for n in TERMS[:-1] if n in self.missing]

@@ -215,6 +215,10 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
     if tropics:
         notes.append(f"{tropics} points within {g.min_lat:g} degrees of the equator: quantities "
                      "divided by f (geostrophic wind, local Rossby number) are masked there")
+    poles = int(np.count_nonzero(g.pole_mask[win] & ins))
+    if poles:
+        notes.append(f"{poles} points lie on a pole row (|lat| >= {g.pole_limit:g}), where east "
+                     "and north have no meaning: masked")
     if no_root:
         notes.append(f"{no_root} points have no real gradient-wind root (anticyclonic curvature "
                      "too strong for the pressure gradient); they are left out of the gradient "

@@ -398,3 +398,22 @@ def test_orography_masks_levels_under_the_ground(tmp_path):
     assert set(c.below_ground) == {1000.0, 850.0}
     assert np.isnan(c.data["height"].values[:, :2, :, :5]).all()
     assert np.isfinite(c.data["height"].values[:, 2:]).all()
+
+
+def test_a_variable_missing_at_some_levels(tmp_path):
+    # omega given only from 1000 to 500 hPa: the case opens, says so, and the budget at
+    # 300 hPa lists the vertical terms as unavailable for that reason
+    ds, _ = latlon_dataset(LAT, LON)
+    om = ds["wap"].isel(level=slice(0, 4))
+    ds = ds.drop_vars("wap")
+    ds["omega"] = om.rename({"level": "plev"}).assign_coords(plev=("plev", om["level"].values,
+                                                                   {"units": "hPa"}))
+    ds["omega"].attrs = {"standard_name": "lagrangian_tendency_of_air_pressure", "units": "Pa s-1"}
+    c = open_case(_write(ds, tmp_path / "partial.nc"))
+    assert any("omega is not given at 300 hPa" in n for n in c.notes)
+    rep = analyse_case(c, 300, 1, (-20, 20, 40, 60))
+    by = {t["name"]: t for t in rep["terms"]}
+    assert by["vertical_advection"]["magnitude"] is None
+    assert "not given at 300 hPa" in by["vertical_advection"]["note"]
+    ok = analyse_case(c, 700, 1, (-20, 20, 40, 60))
+    assert {t["name"]: t for t in ok["terms"]}["vertical_advection"]["magnitude"] is not None

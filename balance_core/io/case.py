@@ -138,6 +138,13 @@ class Case:
             return np.asarray(self.data[role].isel(sel).values, dtype=np.float64)
 
         arrays = {r: load(r) for r in ("u", "v", "height", "omega", "temperature")}
+        reasons = {}
+        for r in ("omega", "temperature"):
+            a = arrays[r]
+            if a is not None and not np.isfinite(a[time_index - t0, level_index - k0]).any():
+                arrays[r] = None  # a variable the file does not give at this level or time
+                reasons[r] = (f"{r} is not given at {self.levels_pa[level_index] / 100:g} hPa, "
+                              f"{iso(self.times[time_index])}")
         if smooth_km:
             from ..smoothing import smooth
 
@@ -146,7 +153,7 @@ class Case:
         secs = (self.times[t0:t1] - self.times[0]) / np.timedelta64(1, "s")
         f = Fields(arrays["u"], arrays["v"], arrays["height"], self.levels_pa[k0:k1],
                    secs.astype(np.float64) if t1 - t0 > 1 else None, arrays["omega"],
-                   arrays["temperature"])
+                   arrays["temperature"], reasons=reasons)
         return f, time_index - t0, level_index - k0
 
     def surface_analysis(self, time_index: int):
@@ -273,13 +280,21 @@ def _assemble(pieces, *, min_lat, name) -> Case:
         if role not in data:
             label = {"u": "eastward wind (u)", "v": "northward wind (v)"}.get(role, role)
             raise CaseError(f"has no {label} on pressure levels", first.path)
-    # every pressure-level variable must have the same levels
-    for role, da in data.items():
+    # every pressure-level variable on the height's levels; one that lacks some is missing there
+    level_notes = []
+    for role, da in list(data.items()):
         lv = np.asarray(da["level"].values)
-        if lv.shape != first.levels_pa.shape or not np.allclose(lv, first.levels_pa):
-            raise CaseError(f"{role} is on other pressure levels than the height", first.path, role)
+        if lv.shape == first.levels_pa.shape and np.allclose(lv, first.levels_pa):
+            continue
+        absent = [p for p in first.levels_pa if not np.any(np.isclose(lv, p, atol=1.0))]
+        if len(absent) == first.levels_pa.size:
+            raise CaseError(f"{role} shares no pressure level with the height", first.path, role)
+        data[role] = da.reindex(level=first.levels_pa, method="nearest", tolerance=1.0)
+        if absent:
+            level_notes.append(f"{role} is not given at " + ", ".join(f"{p / 100:g}" for p in absent)
+                               + " hPa")
     grid = _build_grid(first, min_lat)
-    notes = list(dict.fromkeys(n for pc in pieces for n in pc.notes))
+    notes = list(dict.fromkeys(n for pc in pieces for n in pc.notes)) + level_notes
     data, extra = _drop_cyclic_column(first, data, surface)
     if extra:
         grid = _build_grid(extra, min_lat)
