@@ -269,9 +269,7 @@ def box_data(library, state: ViewState, thresholds: Thresholds = Thresholds()) -
     """The analysis of the state's region: the same object as ``balance-desk analyze``."""
     sel = resolve(library, state)
     diag = _diag(library, state, sel)
-    case = sel.case
-    if case.grid.min_lat != state.min_lat:
-        case = dataclasses.replace(case, grid=case.grid.with_min_lat(state.min_lat))
+    case = library.case_for(state.case, state.min_lat)
     rep = analyse_case(case, sel.level_hpa, sel.time_index, region_of(state),
                        smooth_km=state.smooth_km or None, thresholds=thresholds,
                        diagnostics=diag)

@@ -94,6 +94,26 @@ def _style_figure(fig, title_size=FONT["title"]):
     return fig
 
 
+def _log_bars(source, title, height, *, fill, ink):
+    """Horizontal bars of magnitudes on a log axis, a priori diamonds, value labels.
+
+    ``fill`` and ``ink`` are colours or column names of ``source`` (name, left, value,
+    estimate, label).
+    """
+    f = figure(width=560, height=height, y_range=FactorRange(factors=[]), x_axis_type="log",
+               x_range=Range1d(1e-8, 1e-2), title=title, tools="", toolbar_location=None)
+    bars = f.hbar(y="name", left="left", right="value", height=0.62, source=source,
+                  fill_color=fill, line_color=None)
+    f.scatter("estimate", "name", source=source, marker="diamond", size=15, fill_color="white",
+              line_color="black", line_width=2)
+    f.add_layout(LabelSet(x="left", y="name", text="label", source=source, text_font_size="14px",
+                          text_color=ink, x_offset=4, text_baseline="middle",
+                          text_font_style="bold"))
+    f.xaxis.formatter = CustomJSTickFormatter(code="return '1e' + Math.round(Math.log10(tick));")
+    f.xaxis.ticker = LogTicker(desired_num_ticks=6)
+    return f, bars
+
+
 def _palette(kind):
     import colorcet as cc
 
@@ -284,38 +304,17 @@ class Dashboard(pn.viewable.Viewer):
     def _build_ranking(self):
         self.rank_src = ColumnDataSource(dict(name=[], left=[], value=[], estimate=[],
                                               color=[], label=[], ink=[]))
-        f = figure(width=560, height=420, y_range=FactorRange(factors=[]), x_axis_type="log",
-                   x_range=Range1d(1e-8, 1e-2), title="Terms, largest first", tools="",
-                   toolbar_location=None)
-        bars = f.hbar(y="name", left="left", right="value", height=0.62, source=self.rank_src,
-                      fill_color="color", line_color=None)
-        f.scatter("estimate", "name", source=self.rank_src, marker="diamond", size=15,
-                  fill_color="white", line_color="black", line_width=2)
-        f.add_layout(LabelSet(x="left", y="name", text="label", source=self.rank_src,
-                              text_font_size="14px", text_color="ink", x_offset=4,
-                              text_baseline="middle", text_font_style="bold"))
+        f, bars = _log_bars(self.rank_src, "Terms, largest first", 420, fill="color", ink="ink")
         f.add_tools(HoverTool(renderers=[bars], tooltips=[("term", "@name"),
                                                           ("measured", "@label m s-2"),
                                                           ("a priori", "@estimate{0.0e} m s-2")]))
         f.xaxis.axis_label = "m s-2   (bars: measured; diamonds: a priori)"
-        f.xaxis.formatter = CustomJSTickFormatter(code="return '1e' + Math.round(Math.log10(tick));")
-        f.xaxis.ticker = LogTicker(desired_num_ticks=6)
         _style_figure(f)
         self.rank_fig = f
         self.rank_fig_pane = pn.pane.Bokeh(f)
         self.der_src = ColumnDataSource(dict(name=[], left=[], value=[], estimate=[], label=[]))
-        d = figure(width=560, height=200, y_range=FactorRange(factors=[]), x_axis_type="log",
-                   x_range=Range1d(1e-8, 1e-2), title="Derived views, not part of the sum",
-                   tools="", toolbar_location=None)
-        d.hbar(y="name", left="left", right="value", height=0.6, source=self.der_src,
-               fill_color=SKY, line_color=None)
-        d.scatter("estimate", "name", source=self.der_src, marker="diamond", size=14,
-                  fill_color="white", line_color="black", line_width=2)
-        d.add_layout(LabelSet(x="left", y="name", text="label", source=self.der_src,
-                              text_font_size="14px", text_color="black", x_offset=4,
-                              text_baseline="middle", text_font_style="bold"))
-        d.xaxis.formatter = CustomJSTickFormatter(code="return '1e' + Math.round(Math.log10(tick));")
-        d.xaxis.ticker = LogTicker(desired_num_ticks=6)
+        d, _ = _log_bars(self.der_src, "Derived views, not part of the sum", 200, fill=SKY,
+                         ink="black")
         _style_figure(d)
         self.der_fig = d
         self.derived_fig_pane = pn.pane.Bokeh(d)

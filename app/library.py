@@ -87,6 +87,7 @@ class CaseLibrary:
                                               f"({type(exc).__name__})")
         self._diag = _LRU(cache_size)
         self._profiles = _LRU(cache_size * 4)
+        self._masked = _LRU(8)
 
     @classmethod
     def from_cases(cls, cases, *, cache_size: int = 24) -> "CaseLibrary":
@@ -115,12 +116,18 @@ class CaseLibrary:
         key = (name, int(level_index), int(time_index), float(smooth_km or 0), float(min_lat))
 
         def make():
-            case = self.get(name)
-            if case.grid.min_lat != min_lat:
-                case = dataclasses.replace(case, grid=case.grid.with_min_lat(min_lat))
-            return diagnostics_for(case, level_index, time_index, smooth_km or None)
+            return diagnostics_for(self.case_for(name, min_lat), level_index, time_index,
+                                   smooth_km or None)
 
         return self._diag.get_or_make(key, make)
+
+    def case_for(self, name: str, min_lat: float = 10.0):
+        """The case with its grid's tropical mask at ``min_lat`` (made once per value)."""
+        case = self.get(name)
+        if case.grid.min_lat == min_lat:
+            return case
+        return self._masked.get_or_make((name, float(min_lat)), lambda: dataclasses.replace(
+            case, grid=case.grid.with_min_lat(min_lat)))
 
     def profile(self, key, make):
         """A shared cache for per-box summaries (through the levels, through the times)."""

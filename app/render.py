@@ -61,15 +61,21 @@ class ViewGeometry:
         if self.crs is None:
             x0 = self.xs[0]
             return x0 + (lon - x0) % 360.0, lat
-        fwd = pyproj.Transformer.from_crs(self.crs.geodetic_crs, self.crs, always_xy=True)
-        return fwd.transform(lon, lat)
+        return self._forward.transform(lon, lat)
+
+    @functools.cached_property
+    def _forward(self):
+        return pyproj.Transformer.from_crs(self.crs.geodetic_crs, self.crs, always_xy=True)
+
+    @functools.cached_property
+    def _inverse(self):
+        return pyproj.Transformer.from_crs(self.crs, self.crs.geodetic_crs, always_xy=True)
 
     def to_lonlat(self, x, y):
         """lon/lat of view coordinates."""
         if self.crs is None:
             return np.asarray(x, np.float64), np.asarray(y, np.float64)
-        inv = pyproj.Transformer.from_crs(self.crs, self.crs.geodetic_crs, always_xy=True)
-        return inv.transform(np.asarray(x, np.float64), np.asarray(y, np.float64))
+        return self._inverse.transform(np.asarray(x, np.float64), np.asarray(y, np.float64))
 
     def outline(self, x0, y0, x1, y1, n=40):
         """The lon/lat polygon of a rectangle drawn in view coordinates."""

@@ -187,10 +187,8 @@ class Stencil:
 
     def _build(self, c, hh):
         n = self.n
-        if self.periodic:
-            h1, h2 = hh[:-1], hh[1:]  # spacings before and after each point
-        else:
-            h1, h2 = hh[:-1], hh[1:]  # interior points 1..n-2
+        # spacings before and after each point (each interior point when not periodic)
+        h1, h2 = hh[:-1], hh[1:]
         if self.uniform:
             h = hh[0]
             self.c_int = self._scale_at(slice(1, n - 1)) / (2 * h)
@@ -484,7 +482,7 @@ class Grid:
         fac = pyproj.Proj(crs).get_factors(lon2d, lat2d)
         h = np.asarray(fac.meridional_scale, dtype=np.float64)
         k = np.asarray(fac.parallel_scale, dtype=np.float64)
-        gamma = _convergence(crs, lon2d, lat2d, fac)
+        gamma = _convergence(fac)
         conformal = np.nanmax(np.abs(np.asarray(fac.angular_distortion))) < 1e-3
         aligned = np.nanmax(np.abs(gamma)) < 1e-9
         if not (conformal or aligned):
@@ -665,7 +663,7 @@ class Grid:
 _CACHED = ("tan_lat_over_a", "cos_lat", "pole_mask", "tropics_mask", "inverse_f", "_bands")
 
 
-def _convergence(crs, lon, lat, factors):
+def _convergence(factors):
     """Angle of true north counter-clockwise from grid north, degrees.
 
     This is the sense of pyproj's ``meridian_convergence`` (positive east of

@@ -105,13 +105,6 @@ def window(inside: np.ndarray):
     return slice(rows[0], rows[-1] + 1), slice(cols[0], cols[-1] + 1)
 
 
-class _Cropped:
-    """A Grid-like view holding the cell areas of a window (enough for statistics)."""
-
-    def __init__(self, grid, sl):
-        self.cell_area = grid.cell_area[sl]
-
-
 def _num(x):
     if x is None:
         return None
@@ -146,7 +139,7 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
     win = window(inside)
     if win is None:
         return _empty_report(inside)
-    sub = _Cropped(g, win)
+    sub = _GridWindow(g, win)
     ins = inside[win]
     b = diag.budget
     # the budget restricted to the window (views, no copies)
@@ -163,7 +156,7 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
     w = lambda a: None if a is None else a[win]  # noqa: E731
     try:
         pgf = cropped["pressure_gradient"]
-        scales = estimate_scales(_GridWindow(g, win), ok, u=w(diag.u), v=w(diag.v),
+        scales = estimate_scales(sub, ok, u=w(diag.u), v=w(diag.v),
                                  height=w(diag.height), pressure=diag.pressure, omega=w(diag.omega),
                                  temperature=w(diag.temperature), shear2=w(diag.shear2), nu=nu,
                                  n2=_median(w(diag.n2), sub, ok),
@@ -273,7 +266,7 @@ def _crop_budget(b: Budget, win) -> Budget:
 
 
 class _GridWindow:
-    """The parts of a Grid that :func:`estimate_scales` uses, cut to a window."""
+    """The parts of a Grid that the statistics and :func:`estimate_scales` use, cut to a window."""
 
     def __init__(self, grid: Grid, win):
         self.cell_area = grid.cell_area[win]
