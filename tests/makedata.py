@@ -18,15 +18,25 @@ TIMES = pd.date_range("2040-02-03T00:00", periods=3, freq="6h")
 
 
 def truth(lat, lon, p_hpa, t_hours=0.0):
-    """(Z gpm, u, v m s-1, omega Pa s-1, T K) at the given points (broadcast)."""
+    """(Z gpm, u, v m s-1, omega Pa s-1, T K) at the given points (broadcast).
+
+    The wind is the geostrophic wind of the height field, in closed form, plus a
+    small ageostrophic part, so it is as near balance as real mid-latitude flow
+    (the reader checks wind speeds against the geostrophic wind).
+    """
     lat, lon = np.deg2rad(lat), np.deg2rad(lon)
     p = np.asarray(p_hpa, float)
     s = np.log(1000.0 / p) / np.log(10 / 3)
     phase = lon - 2e-6 * t_hours * 3600
-    z = (standard_atmosphere_height(p * 100) + (60 + 80 * s) * np.sin(2 * lat) ** 2
-         * np.cos(3 * phase) - 150 * s * np.sin(lat) ** 2)
-    u = 10 + 15 * s * np.cos(lat) ** 2 + 3 * np.sin(2 * phase) * np.cos(lat)
-    v = 4 * np.cos(3 * phase) * np.cos(lat) * (1 + 0.5 * s)
+    amp, slope = 60 + 80 * s, 300 + 900 * s
+    z = (standard_atmosphere_height(p * 100) + amp * np.sin(2 * lat) ** 2 * np.cos(3 * phase)
+         - slope * np.sin(lat) ** 2)
+    dz_dlat = amp * np.cos(3 * phase) * 2 * np.sin(4 * lat) - slope * np.sin(2 * lat)
+    dz_dlon = -3 * amp * np.sin(2 * lat) ** 2 * np.sin(3 * phase)
+    f = 2 * C.OMEGA * np.sin(lat)
+    k = C.G0 / (f * C.EARTH_RADIUS)
+    u = -k * dz_dlat + 2 * np.sin(2 * phase) * np.cos(lat)
+    v = k * dz_dlon / np.cos(lat) + np.cos(3 * phase) * np.cos(lat)
     om = 0.2 * np.sin(2 * phase) * np.cos(lat) * np.sin(np.pi * (p - 250) / 750)
     t = standard_atmosphere_temperature(p * 100) - 12 * s * np.sin(lat) ** 2 + 0 * lon
     return z, u, v, om, t

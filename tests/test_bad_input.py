@@ -173,9 +173,10 @@ CORPUS = {
     "height_all_missing": (lambda t: nc(t, "nan.nc", with_var(good(), "height",
                                                               values=lambda a: a * np.nan)), [],
                            "no valid values"),
+    # an undeclared fill value that is not one of the usual ones, in a field the budget needs
     "undeclared_fill_value": (lambda t: nc(t, "fill.nc", with_var(
-        good(), "ta", values=lambda a: np.where(np.arange(a.size).reshape(a.shape) % 7 == 0,
-                                                9.999e20, a))), [], "undeclared fill value"),
+        good(), "height", values=lambda a: np.where(np.arange(a.size).reshape(a.shape) % 7 == 0,
+                                                    7.7e25, a))), [], "undeclared fill value"),
     "single_grid_point": (lambda t: nc(t, "one.nc", good().isel(latitude=[3], longitude=[4])),
                           [], "at least 3 x 3"),
     "two_by_two_grid": (lambda t: nc(t, "two.nc", good().isel(latitude=[1, 2],

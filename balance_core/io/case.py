@@ -17,6 +17,8 @@ from .. import constants as C
 from ..budget import Fields
 from ..grid import Grid
 from .errors import CaseError
+from .names import REQUIRED_ROLES, ROLES
+from .units import to_numpy
 
 __all__ = ["Case", "open_case", "REQUIRED", "OPTIONAL"]
 
@@ -63,6 +65,12 @@ class Case:
     notes: list
     below_ground: dict
     attrs: dict
+    #: role -> where the field came from (variable, level type, GRIB keys, units)
+    sources: dict = dataclasses.field(default_factory=dict)
+    #: reference (run) time of each valid time, datetime64[ns], NaT where unknown
+    reference_times: np.ndarray | None = None
+    #: optional fields found but left out, role -> the sentence saying why
+    dropped: dict = dataclasses.field(default_factory=dict)
 
     # -- what the data can give ----------------------------------------------------
     @property
@@ -135,7 +143,7 @@ class Case:
         def load(role):
             if role not in self.data:
                 return None
-            return np.asarray(self.data[role].isel(sel).values, dtype=np.float64)
+            return np.asarray(to_numpy(self.data[role].isel(sel)), dtype=np.float64)
 
         arrays = {r: load(r) for r in ("u", "v", "height", "omega", "temperature")}
         reasons = {}
@@ -170,11 +178,11 @@ class Case:
         from ..thermo import standard_atmosphere_density
         from ..winds import geostrophic_wind_from_pressure
 
-        p = np.asarray(self.surface["msl"].isel(time=time_index).values, dtype=np.float64)
-        u = np.asarray(self.surface["u10"].isel(time=time_index).values, dtype=np.float64)
-        v = np.asarray(self.surface["v10"].isel(time=time_index).values, dtype=np.float64)
+        p = np.asarray(to_numpy(self.surface["msl"].isel(time=time_index)), dtype=np.float64)
+        u = np.asarray(to_numpy(self.surface["u10"].isel(time=time_index)), dtype=np.float64)
+        v = np.asarray(to_numpy(self.surface["v10"].isel(time=time_index)), dtype=np.float64)
         if "t2m" in self.surface:
-            rho = p / (C.R_DRY * np.asarray(self.surface["t2m"].isel(time=time_index).values))
+            rho = p / (C.R_DRY * np.asarray(to_numpy(self.surface["t2m"].isel(time=time_index))))
             source = "density from the 2 m temperature"
         else:
             rho = float(standard_atmosphere_density(C.STD_SEA_LEVEL_PRESSURE))
@@ -191,7 +199,7 @@ class Case:
 
     def column(self, role: str, time_index: int):
         """All levels of one variable at one time, float64 (level, y, x)."""
-        return np.asarray(self.data[role].isel(time=time_index).values, dtype=np.float64)
+        return np.asarray(to_numpy(self.data[role].isel(time=time_index)), dtype=np.float64)
 
     def describe(self) -> dict:
         return {
@@ -244,8 +252,13 @@ def open_case(paths, *, member=0, min_lat: float = 10.0, name: str | None = None
     paths = [str(p) for p in paths]
     if not paths:
         raise CaseError("no files given")
-    pieces = [normalise(p, open_datasets(p), member=member) for p in paths]
-    return _assemble(pieces, min_lat=min_lat, name=name)
+    import dask
+    import dask.local
+
+    # build the lazy graph without dask reaching for distributed (rechunk method, scheduler)
+    with dask.config.set({"array.rechunk.method": "tasks", "scheduler": dask.local.get_sync}):
+        pieces = [normalise(p, open_datasets(p), member=member) for p in paths]
+        return _assemble(pieces, min_lat=min_lat, name=name)
 
 
 def _assemble(pieces, *, min_lat, name) -> Case:
@@ -254,21 +267,35 @@ def _assemble(pieces, *, min_lat, name) -> Case:
     first = pieces[0]
     for pc in pieces[1:]:
         _same_grid(first, pc)
+    notes = []
+    for pc in pieces:
+        notes.extend(_check_times(pc))
+        notes.extend(_check_holes(pc))
     data = {}
     for role in first.data:
         parts = [pc.data.get(role) for pc in pieces]
         if any(p is None for p in parts):
             missing = pieces[[p is None for p in parts].index(True)].path
-            raise CaseError(f"lacks {role}, which the first file has", missing)
+            if role in REQUIRED_ROLES:
+                raise CaseError(f"lacks {ROLES[role].words}, which the first file has", missing)
+            notes.append(f"{ROLES[role].words} left out: {os.path.basename(missing)} lacks it")
+            continue
         data[role] = xr.concat(parts, dim="time") if len(parts) > 1 else parts[0]
-    surface = {}
+    surface, fills = {}, {}
     for role in first.surface:
         parts = [pc.surface.get(role) for pc in pieces]
         if all(p is not None for p in parts):
             surface[role] = xr.concat(parts, dim="time") if len(parts) > 1 else parts[0]
+    for role in list(data) + list(surface):
+        parts = [pc.fills.get(role) for pc in pieces]
+        if all(p is not None for p in parts):
+            fills[role] = parts[0].map(lambda _: xr.concat([p.data for p in parts], dim="time")) \
+                if len(parts) > 1 else parts[0]
     times = np.concatenate([pc.times for pc in pieces])
+    refs = np.concatenate([pc.reference_times if pc.reference_times is not None else
+                           np.full(pc.times.size, np.datetime64("NaT", "ns")) for pc in pieces])
     order = np.argsort(times, kind="stable")
-    times = times[order]
+    times, refs = times[order], refs[order]
     if np.unique(times).size != times.size:
         dup = times[np.nonzero(np.diff(times) == np.timedelta64(0))[0][0]]
         raise CaseError(f"valid time {iso(dup)} appears more than once across the files",
@@ -276,6 +303,7 @@ def _assemble(pieces, *, min_lat, name) -> Case:
     if not np.all(order == np.arange(order.size)):
         data = {r: d.isel(time=order) for r, d in data.items()}
         surface = {r: d.isel(time=order) for r, d in surface.items()}
+        fills = {r: f.map(lambda d: d.isel(time=order)) for r, f in fills.items()}
     for role in REQUIRED:
         if role not in data:
             label = {"u": "eastward wind (u)", "v": "northward wind (v)"}.get(role, role)
@@ -290,38 +318,211 @@ def _assemble(pieces, *, min_lat, name) -> Case:
         if len(absent) == first.levels_pa.size:
             raise CaseError(f"{role} shares no pressure level with the height", first.path, role)
         data[role] = da.reindex(level=first.levels_pa, method="nearest", tolerance=1.0)
+        fills[role] = fills[role].map(lambda d: d.reindex(level=first.levels_pa,
+                                                          method="nearest", tolerance=1.0))
         if absent:
             level_notes.append(f"{role} is not given at " + ", ".join(f"{p / 100:g}" for p in absent)
                                + " hPa")
     grid = _build_grid(first, min_lat)
-    notes = list(dict.fromkeys(n for pc in pieces for n in pc.notes)) + level_notes
+    notes = list(dict.fromkeys(n for pc in pieces for n in pc.notes)) + notes + level_notes
+    dropped = {}
+    for pc in pieces:
+        dropped.update(pc.dropped)
     data, extra = _drop_cyclic_column(first, data, surface)
     if extra:
         grid = _build_grid(extra, min_lat)
         surface = {r: d.isel(x=slice(0, -1)) for r, d in surface.items()}
+        fills = {r: f.map(lambda d: d.isel(x=slice(0, -1))) for r, f in fills.items()}
         notes.append("dropped the repeated (cyclic) last longitude column")
+    sources = dict(first.sources)
+    fill_notes, checked = _check_fields(fills, first.path, sources, first.levels_pa)
+    notes.extend(fill_notes)
+    for role, sentence in checked.items():
+        dropped[role] = sentence
+        data.pop(role, None)
+        surface.pop(role, None)
     if first.grid_relative:
-        data = _rotate_winds(grid, data)
+        data = _rotate_winds(grid, data, "x_wind", "y_wind", "u", "v")
         notes.append("grid-relative winds rotated to east and north with the meridian "
-                      "convergence")
+                     "convergence")
     elif first.crs is not None:
         notes.append("winds taken as earth-relative (eastward/northward) on the projected grid")
+    if "x_wind10" in surface and "y_wind10" in surface:
+        surface = _rotate_winds(grid, surface, "x_wind10", "y_wind10", "u10", "v10")
+        notes.append("grid-relative 10 m winds rotated to east and north with the meridian "
+                     "convergence")
+    for a, b in (("x_wind", "u"), ("y_wind", "v"), ("x_wind10", "u10"), ("y_wind10", "v10")):
+        if a in sources:
+            sources[b] = sources.pop(a)
+            sources[b]["rotated"] = "grid-relative, rotated to east and north"
+    surface.pop("x_wind10", None)
+    surface.pop("y_wind10", None)
     if "omega" not in data and "w" in data:
         data["omega"] = _omega_from_w(data, first.levels_pa)
         notes.append("omega = -rho g w from the vertical velocity w")
+        sources["omega"] = {**sources.pop("w"), "note": "omega = -rho g w"}
     data.pop("w", None)
+    sources.pop("w", None)
     for r in ("x_wind", "y_wind"):
         data.pop(r, None)
-    _check_values(data, surface, first.path)
-    data, below = _mask_below_ground(data, surface)
-    if below:
-        total = sum(below.values())
-        notes.append(f"{total} points below the ground masked (surface pressure or orography)")
+    _check_winds(grid, data, first.path, sources, first.levels_pa)
+    data, below, mask_notes, mask_dropped = _mask_below_ground(data, surface, first.levels_pa)
+    notes.extend(mask_notes)
+    for role in mask_dropped:
+        dropped[role] = mask_dropped[role]
+        surface.pop(role, None)
+    for role, sentence in dropped.items():
+        sources.pop(role, None)
+        notes.append(sentence)
     title = str(first.attrs.get("title") or os.path.basename(first.path))
     nm = name or os.path.splitext(os.path.basename(first.path.rstrip("/")))[0]
     return Case(name=nm, title=title, paths=[pc.path for pc in pieces], grid=grid,
                 times=times, levels_pa=first.levels_pa, data=data, surface=surface, notes=notes,
-                below_ground=below, attrs=first.attrs)
+                below_ground=below, attrs=first.attrs, sources=sources, reference_times=refs,
+                dropped=dropped)
+
+
+def _check_times(pc) -> list:
+    """Every field of a file must have the height's valid times (a cut file is reported)."""
+    notes = []
+    for store in (pc.data, pc.surface):
+        for role, da in list(store.items()):
+            t = np.asarray(da["time"].values).astype("datetime64[ns]")
+            if t.shape == pc.times.shape and np.all(t == pc.times):
+                continue
+            if role in ("orography", "surface_height", "land_mask") and np.all(np.isnat(t)):
+                continue
+            lack = [iso(x) for x in pc.times if x not in set(t)]
+            extra = [iso(x) for x in t if x not in set(pc.times)]
+            what = (f"lacks the valid time{'s' if len(lack) > 1 else ''} {', '.join(lack[:3])}"
+                    if lack else f"has valid times the height lacks ({', '.join(extra[:3])})")
+            msg = (f"{ROLES[role].words} {what} that the height has ({t.size} against "
+                   f"{pc.times.size}); the file may be cut at a message boundary")
+            if role in REQUIRED_ROLES:
+                raise CaseError(msg, pc.path, pc.sources.get(role, {}).get("variable", role))
+            store.pop(role)
+            pc.fills.pop(role, None)
+            pc.dropped[role] = f"{ROLES[role].words} left out: {msg}"
+    return notes
+
+
+def _check_holes(pc) -> list:
+    """GRIB fields missing inside a variable's (time, level) hypercube: a cut or partial file."""
+    notes = []
+    for role, n in pc.holes.items():
+        var = pc.sources.get(role, {}).get("variable", role)
+        msg = (f"{n} of its GRIB fields are missing (some valid times lack some levels); the "
+               "file may be cut at a message boundary")
+        if role in REQUIRED_ROLES:
+            raise CaseError(msg, pc.path, var)
+        notes.append(f"{ROLES[role].words}: {msg}; those fields are treated as missing")
+    return notes
+
+
+def _check_fields(fills, path, sources, levels) -> tuple:
+    """Fill values and physical ranges at the first valid time (see :mod:`.checks`).
+
+    Reads each field's raw values once, counts the producer fill values taken as
+    missing, and checks the rest against the role's range (and heights against
+    the standard atmosphere). A required field (height, winds) that fails is bad
+    input (CaseError); an optional one is returned in ``dropped`` with its sentence.
+    Returns (notes, dropped).
+    """
+    from .checks import fill_mask, height_problem, range_problem, to_si
+
+    notes, dropped = [], {}
+    for role, f in fills.items():
+        raw, scale, offset, kind = f.data, f.scale, f.offset, f.role
+        var = sources.get(role, {}).get("variable", role)
+        first = raw.isel(time=0)
+        if role in REQUIRED_ROLES and not _any_valid(raw):
+            raise CaseError("holds no valid values at any time (all missing)", path, var)
+        nfill, which, problem = 0, set(), None
+        if "level" in first.dims:
+            slab = to_numpy(first) if first.size <= 2e7 else None  # one read if small
+            for k in range(first.sizes["level"]):
+                vals = np.asarray(slab[k] if slab is not None else to_numpy(first.isel(level=k)),
+                                  np.float64)
+                hit = fill_mask(vals, kind, scale, offset)
+                nfill += int(np.count_nonzero(hit))
+                which.update(np.unique(vals[hit]).tolist())
+                si = to_si(vals, kind, scale, offset)
+                problem = range_problem(kind, si, ROLES[kind].target_units)
+                if problem is None and kind in ("height", "geopotential"):
+                    z = si / C.G0 if kind == "geopotential" else si
+                    problem = height_problem(z[None], levels[k:k + 1])
+                elif problem is not None:
+                    problem = f"at {levels[k] / 100:g} hPa, {problem}"
+                if problem:
+                    break
+        else:
+            vals = np.asarray(to_numpy(first), np.float64)
+            hit = fill_mask(vals, kind, scale, offset)
+            nfill, which = int(np.count_nonzero(hit)), set(np.unique(vals[hit]).tolist())
+            problem = range_problem(kind, to_si(vals, kind, scale, offset),
+                                    ROLES[kind].target_units)
+        if nfill:
+            w = sorted(which)
+            notes.append(f"{var!r}: {nfill} values at the first valid time equal the producer "
+                         f"fill value{'s' if len(w) > 1 else ''} "
+                         f"{', '.join(f'{x:g}' for x in w[:4])} and are treated as missing")
+        if problem is None:
+            continue
+        if role in REQUIRED_ROLES:
+            raise CaseError(problem, path, var)
+        dropped[role] = f"{ROLES[role].words} ({var!r}) left out: {problem}"
+    return notes, dropped
+
+
+def _any_valid(da) -> bool:
+    """True if the field has a finite value at some time (looks at times one by one)."""
+    for t in range(da.sizes["time"]):
+        if bool(np.isfinite(np.asarray(to_numpy(da.isel(time=t)))).any()):
+            return True
+    return False
+
+
+def _check_winds(grid, data, path, sources, levels):
+    """The wind must be about as fast as the geostrophic wind (catches knots read as m s-1)."""
+    from .checks import wind_speed_problem
+
+    ratio = _free_atmosphere_speed_ratio(grid, data, levels)
+    problem = wind_speed_problem(ratio)
+    if problem:
+        raise CaseError(problem, path, sources.get("u", {}).get("variable", "u"))
+
+
+def _free_atmosphere_speed_ratio(grid, data, levels):
+    """Median |V| / |Vg| at the first time on up to three levels between 700 and 200 hPa.
+
+    Only points at least 20 degrees from the equator, off the pole rows, with a
+    geostrophic wind of at least 5 m s-1; None when fewer than 50 such points, or
+    the domain is under 1000 km across (too small for the geostrophic wind to say
+    anything about units).
+    """
+    from ..winds import geostrophic_wind
+
+    if "u" not in data or "v" not in data:
+        return None
+    span = float(np.sqrt(np.nansum(grid.cell_area)))
+    if span < 1.0e6:
+        return None
+    free = [k for k, p in enumerate(levels) if 20000.0 <= p <= 70000.0]
+    free = sorted(free, key=lambda k: abs(levels[k] - 50000.0))[:3]
+    ok_lat = (np.abs(grid.lat) >= 20.0) & ~grid.pole_mask
+    ratios = []
+    for k in free:
+        z = np.asarray(to_numpy(data["height"].isel(time=0, level=k)), np.float64)
+        u = np.asarray(to_numpy(data["u"].isel(time=0, level=k)), np.float64)
+        v = np.asarray(to_numpy(data["v"].isel(time=0, level=k)), np.float64)
+        ug, vg = geostrophic_wind(grid, z)
+        vg_speed = np.hypot(ug, vg)
+        ok = ok_lat & np.isfinite(vg_speed) & np.isfinite(u) & np.isfinite(v) & (vg_speed >= 5.0)
+        if np.count_nonzero(ok) >= 50:
+            ratios.append(np.hypot(u, v)[ok] / vg_speed[ok])
+    if not ratios:
+        return None
+    return float(np.median(np.concatenate(ratios)))
 
 
 def _same_grid(a, b):
@@ -359,19 +560,19 @@ def _drop_cyclic_column(pc, data, surface):
     return {r: d.isel(x=slice(0, -1)) for r, d in data.items()}, trimmed
 
 
-def _rotate_winds(grid: Grid, data):
-    """Earth-relative (u, v) from grid-relative (x_wind, y_wind).
+def _rotate_winds(grid: Grid, store, xname, yname, uname, vname):
+    """Earth-relative (u, v) from grid-relative (x, y) components.
 
     u_e = u_g cos(g) + v_g sin(g), v_n = -u_g sin(g) + v_g cos(g), g the angle of
     true north counter-clockwise from grid north (pyproj's meridian convergence).
     """
     g = np.deg2rad(grid.convergence)
     cg, sg = np.cos(g), np.sin(g)
-    ux = data.pop("x_wind", data.get("u"))
-    vy = data.pop("y_wind", data.get("v"))
-    data["u"] = ux * cg + vy * sg
-    data["v"] = -ux * sg + vy * cg
-    return data
+    ux = store.pop(xname, store.get(uname))
+    vy = store.pop(yname, store.get(vname))
+    store[uname] = ux * cg + vy * sg
+    store[vname] = -ux * sg + vy * cg
+    return store
 
 
 def _omega_from_w(data, levels):
@@ -386,33 +587,51 @@ def _omega_from_w(data, levels):
     return -(rho * C.G0) * w
 
 
-def _check_values(data, surface, path):
-    """All-missing fields and undeclared fill values, judged on the first valid time
-    (reading one time keeps a large archive from being read whole)."""
-    for role, da in list(data.items()) + list(surface.items()):
-        vals = np.asarray(da.isel(time=0).values)
-        finite = np.isfinite(vals)
-        if not finite.any():
-            raise CaseError("holds no valid values at the first time (all missing)", path, role)
-        big = float(np.abs(vals[finite]).max())
-        if big > 1e15:
-            raise CaseError(f"holds values up to {big:.3g}: an undeclared fill value? (set "
-                            "_FillValue or missing_value)", path, role)
+#: A masking field that puts more than this share of a level at or above 400 hPa below the
+#: ground is not a surface field (no ground on Earth is that high over a model grid box;
+#: common practice, no source).
+IMPLAUSIBLE_MASK_SHARE = 0.005
 
 
-def _mask_below_ground(data, surface):
-    """NaN where a pressure level lies below the ground; counts per level (hPa)."""
-    below = None
-    if "surface_pressure" in surface:
-        below = data["height"]["level"] > surface["surface_pressure"] + 1.0
-    elif "surface_height" in surface:
-        below = data["height"] < surface["surface_height"]
-    if below is None:
-        return data, {}
+def _mask_below_ground(data, surface, levels):
+    """NaN where a pressure level lies below the ground.
+
+    Returns (data, counts per level in hPa summed over times, notes, dropped):
+    a masking field that would put high levels underground is dropped instead
+    of used, and the share masked at each level is said in the notes.
+    """
+    dropped = {}
+    for role in ("surface_pressure", "surface_height"):
+        if role not in surface:
+            continue
+        below = _below(data, surface, role)
+        first = below.isel(time=0)
+        high = [k for k, p in enumerate(levels) if p <= 40000.0]
+        if high:
+            share = float(to_numpy(first.isel(level=high).mean()))
+            if share > IMPLAUSIBLE_MASK_SHARE:
+                dropped[role] = (f"{'surface pressure' if role == 'surface_pressure' else 'orography'}"
+                                 f" left out: it would put {100 * share:.0f} % of the levels at "
+                                 "or above 400 hPa below the ground, which no real surface does")
+                continue
+        break
+    else:
+        return data, {}, [], dropped
     below = below.transpose("time", "level", "y", "x")
-    counts = below.sum(("time", "y", "x")).values
+    counts = to_numpy(below.sum(("time", "y", "x")))
     if not counts.any():
-        return data, {}
-    levels = data["height"]["level"].values
+        return data, {}, [], dropped
+    levels_hpa = data["height"]["level"].values
     data = {r: d.where(~below) for r, d in data.items()}
-    return data, {float(p / 100): int(n) for p, n in zip(levels, counts) if n}
+    per_level = to_numpy(below.mean(("time", "y", "x")))
+    parts = [f"{p / 100:g} hPa {100 * s:.0f} %" if s >= 0.005 else f"{p / 100:g} hPa <1 %"
+             for p, s in zip(levels_hpa, per_level) if s > 0]
+    src = "surface pressure" if role == "surface_pressure" else "orography"
+    notes = [f"points below the ground ({src}) are masked: " + ", ".join(parts)]
+    return data, {float(p / 100): int(n) for p, n in zip(levels_hpa, counts) if n}, notes, dropped
+
+
+def _below(data, surface, role):
+    if role == "surface_pressure":
+        return data["height"]["level"] > surface["surface_pressure"] + 1.0
+    return data["height"] < surface["surface_height"]

@@ -1,13 +1,14 @@
 """Open model output and normalise it: the xarray edge of the core.
 
-``open_datasets`` opens one path (NetCDF through netCDF4, GRIB through cfgrib,
-a Zarr store) lazily with dask chunks; ``normalise`` finds the variables by
-their CF standard names and the common short and long names, converts units,
-reduces an ensemble dimension, turns reference time plus step into valid
-time, orders pressure levels, and returns arrays with dims
-(time, level, y, x) or (time, y, x) plus what is needed to build the Grid.
-Every problem becomes one :class:`CaseError` sentence naming the file and the
-variable.
+``open_datasets`` opens one path (NetCDF through netCDF4, GRIB through eccodes
+in :mod:`.grib`, a Zarr store) lazily; ``normalise`` finds the variables by
+their kind of level and their names (see :mod:`balance_core.io.names`), keeps
+the ones that share the height's grid, converts units, treats producer fill
+values as missing, reduces an ensemble dimension, turns reference time plus
+step into valid time, orders pressure levels, and returns arrays with dims
+(time, level, y, x) or (time, y, x) plus what is needed to build the Grid and
+where every field came from. Every problem becomes one :class:`CaseError`
+sentence naming the file and the variable.
 """
 
 from __future__ import annotations
@@ -18,15 +19,21 @@ import warnings
 
 import numpy as np
 
+from .checks import to_si
 from .errors import CaseError
-from .names import (LAT_NAMES, LEVEL_ROLES, LON_NAMES, MEMBER_DIM_NAMES, PRESSURE_COORD_NAMES,
-                    ROLES, SURFACE_ROLES, TIME_NAMES)
-from .units import convert, dimensionality_matches
+from .names import (ABOVE_GROUND, GRIB_LEVEL_KINDS, HEIGHT_COORD_NAMES, LAT_NAMES, LON_NAMES,
+                    MEMBER_DIM_NAMES, OTHER, PRESSURE, PRESSURE_COORD_NAMES, REQUIRED_ROLES,
+                    ROLES, SINGLE, STANDARD_NAME_LEVELS, SURFACE_ROLES, TIME_NAMES, LEVEL_ROLES,
+                    LevelKind, name_level_hint, preference, ruled_out)
+from .units import _canonical, convert, dimensionality_matches, linear_conversion
 
-__all__ = ["open_datasets", "normalise", "Piece", "sniff_format"]
+__all__ = ["open_datasets", "normalise", "Piece", "sniff_format", "level_kind", "Candidate",
+           "find_candidates"]
 
 #: Surface fields that do not change with time (may come without a time coordinate).
 STATIC_ROLES = ("orography", "surface_height", "land_mask")
+#: Roles whose short names are shared and decided by the units (w: omega or w; z: m or m2 s-2).
+_UNIT_DECIDED = ("omega", "w", "height", "geopotential")
 
 
 def sniff_format(path) -> str:
@@ -51,11 +58,15 @@ def sniff_format(path) -> str:
 
 
 def open_datasets(path, chunks=None):
-    """Open ``path`` lazily; a list of xarray Datasets (GRIB may give several)."""
+    """Open ``path`` lazily; a list of xarray Datasets (GRIB gives one per kind of level)."""
     import xarray as xr
 
     kind = sniff_format(path)
     chunks = {} if chunks is None else chunks
+    if kind == "grib":
+        from .grib import open_grib
+
+        return open_grib(path)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -66,9 +77,7 @@ def open_datasets(path, chunks=None):
                         engine = _hdf_engine()
                 return [xr.open_dataset(path, engine=engine, chunks=chunks,
                                         decode_timedelta=True)]
-            if kind == "zarr":
-                return [xr.open_zarr(path, decode_timedelta=True)]
-            return _open_grib(path)
+            return [xr.open_zarr(path, decode_timedelta=True)]
     except CaseError:
         raise
     except Exception as exc:  # noqa: BLE001 - every library error becomes one sentence
@@ -85,25 +94,7 @@ def _hdf_engine():
         return "h5netcdf"
 
 
-def _open_grib(path):
-    try:
-        import cfgrib
-    except Exception:  # noqa: BLE001 - ImportError or a missing eccodes library
-        raise CaseError("GRIB needs cfgrib and the eccodes library: install the 'grib' extra "
-                        "(pip install 'balance-desk[grib]')", path) from None
-    import logging
-
-    from .crs import GRIB_READ_KEYS
-
-    logging.getLogger("cfgrib").setLevel(logging.CRITICAL)  # errors come back as one sentence
-    dss = cfgrib.open_datasets(str(path), backend_kwargs={"read_keys": GRIB_READ_KEYS,
-                                                          "indexpath": "", "errors": "raise"})
-    if not dss:
-        raise CaseError("holds no GRIB messages that can be decoded", path)
-    return dss
-
-
-# -- recognising variables ----------------------------------------------------------
+# -- the kind of level --------------------------------------------------------------
 
 def _attr(da, key):
     v = da.attrs.get(key)
@@ -133,69 +124,202 @@ def _is_pressure_coord(name, ds) -> bool:
     return False
 
 
-def classify(name, da, ds) -> str | None:
-    """The role of data variable ``name`` (see :mod:`balance_core.io.names`), or None."""
-    std = (_attr(da, "standard_name") or "").lower()
-    short = name.lower()
-    grib_short = (_attr(da, "GRIB_shortName") or "").lower()
-    long = (_attr(da, "long_name") or "").lower()
-    units = _attr(da, "units")
-    on_levels = _has_level_dim(da, ds) is not None
-    roles = LEVEL_ROLES if on_levels else SURFACE_ROLES
-    # 1. CF standard name
-    for r in roles:
-        if std and std in r.standard_names:
-            if std in ("eastward_wind", "northward_wind") and not on_levels:
-                continue
-            return r.name
-    if not on_levels and std in ("eastward_wind", "northward_wind", "air_temperature"):
-        height = _height_above_ground(da, ds)
-        if height is not None and abs(height - (2.0 if std == "air_temperature" else 10.0)) < 0.5:
-            return {"eastward_wind": "u10", "northward_wind": "v10", "air_temperature": "t2m"}[std]
-    # 2. short names (the variable's own and GRIB's), 3. long names; units decide ambiguity
-    for key, field in ((short, "short_names"), (grib_short, "short_names"), (long, "long_names")):
-        if not key:
+def _vertical_coords(da, ds):
+    """Names of the non-pressure vertical coordinates of a variable (dims and scalars)."""
+    out = []
+    for c in list(dict.fromkeys(list(da.dims) + list(da.coords))):
+        if c not in ds.variables and c not in da.coords:
             continue
-        hits = [r for r in roles if key in getattr(r, field)]
-        if not hits:
-            continue
-        if len(hits) > 1 or hits[0].name in ("omega", "w", "height", "geopotential"):
-            picked = _by_units(hits, units)
-            if picked:
-                return picked
-            if len(hits) == 1 and units is None:
-                return hits[0].name
-            continue
-        return hits[0].name
-    return None
+        var = da.coords[c] if c in da.coords else ds[c]
+        std = str(var.attrs.get("standard_name") or "").lower()
+        axis = str(var.attrs.get("axis") or "").upper()
+        positive = str(var.attrs.get("positive") or "").lower()
+        if c.lower() in HEIGHT_COORD_NAMES or std in ("height", "altitude", "depth",
+                                                       "model_level_number") or \
+                std.startswith(("atmosphere_", "ocean_")) or axis == "Z" or \
+                positive in ("up", "down"):
+            out.append(c)
+    return out
 
 
-def _by_units(candidates, units):
-    if units is None:
-        return None
-    for r in candidates:
-        if dimensionality_matches(units, r.target_units):
-            return r.name
-    # "z" named variables in metres are geopotential height, in m2 s-2 geopotential
-    if dimensionality_matches(units, "m"):
-        return "height"
-    if dimensionality_matches(units, "m**2 s**-2"):
-        return "geopotential"
-    return None
-
-
-def _height_above_ground(da, ds):
-    for c in list(da.coords) + [d for d in da.dims]:
-        if c in ("heightAboveGround", "height", "height_above_ground"):
+def level_kind(name, da, ds) -> LevelKind:
+    """The kind of level variable ``name`` lies on (see :mod:`balance_core.io.names`)."""
+    tl = da.attrs.get("GRIB_typeOfLevel")
+    if tl:
+        kind = GRIB_LEVEL_KINDS.get(str(tl), OTHER)
+        val = da.attrs.get("GRIB_level")
+        return LevelKind(kind, None if kind == PRESSURE or val is None else float(val), str(tl))
+    lev = _has_level_dim(da, ds)
+    if lev is not None:
+        return LevelKind(PRESSURE, None, lev)
+    _, hint = name_level_hint(name)
+    if hint is not None:
+        return hint
+    for c in _vertical_coords(da, ds):
+        var = da.coords[c] if c in da.coords else ds[c]
+        std = str(var.attrs.get("standard_name") or "").lower()
+        if (c.lower() in HEIGHT_COORD_NAMES or std == "height") and var.size == 1:
+            units = var.attrs.get("units", "m")
             try:
-                v = np.asarray(ds[c].values if c in ds else da[c].values).ravel()
-                return float(v[0])
-            except Exception:  # noqa: BLE001
-                return None
+                value = float(convert(np.asarray(var.values, np.float64).ravel()[0], units, "m"))
+            except (CaseError, TypeError, ValueError):
+                value = None
+            return LevelKind(ABOVE_GROUND, value, c)
+        return LevelKind(OTHER, None, c)
+    std = str(da.attrs.get("standard_name") or "").lower()
+    if std in STANDARD_NAME_LEVELS:
+        return LevelKind(STANDARD_NAME_LEVELS[std], None, "standard name")
+    return LevelKind(SINGLE, None, "")
+
+
+# -- recognising variables ----------------------------------------------------------
+
+@dataclasses.dataclass
+class Candidate:
+    """A variable that could fill a role, with why and how well."""
+
+    role: str
+    name: str
+    da: object
+    ds: object
+    level: LevelKind
+    rank: tuple
+    how: str            # "standard name", "short name" or "long name"
+
+    def describe(self) -> str:
+        grib = self.da.attrs.get("GRIB_shortName")
+        extra = f", GRIB {grib}" if grib and grib != self.name else ""
+        return f"{self.name!r} ({self.level.describe()}{extra})"
+
+
+def _matches(name, da, ds, level):
+    """(role, match rank, key, how) for every role the variable's names fit on its level."""
+    std = (_attr(da, "standard_name") or "").lower()
+    base, _ = name_level_hint(name)
+    keys = [("short name", base.lower()), ("short name", (_attr(da, "GRIB_shortName") or "").lower()),
+            ("long name", (_attr(da, "long_name") or "").lower())]
+    hits = []
+    for role in LEVEL_ROLES + SURFACE_ROLES:
+        if level.kind not in role.levels:
+            continue
+        if level.kind == ABOVE_GROUND and role.above_ground is not None and (
+                level.value is None or abs(level.value - role.above_ground) > 0.5):
+            continue
+        if std and std in role.standard_names:
+            hits.append((role, 0, std, "standard name"))
+            continue
+        for rank, (how, key) in enumerate(keys, start=1):
+            field = role.short_names if how == "short name" else role.long_names
+            if key and key in field:
+                if key in role.ambiguous and level.kind != role.levels[0]:
+                    break
+                hits.append((role, 1 if how == "short name" else 2, key, how))
+                break
+    return hits
+
+
+def _by_units(hits, units):
+    """Keep the roles whose units fit; 'z' in metres is height, in m2 s-2 geopotential."""
+    if len(hits) == 1 and hits[0][0].name not in _UNIT_DECIDED:
+        return hits
+    if units is None:
+        return hits if len(hits) == 1 else []
+    same = [h for h in hits if _canonical(units) == _canonical(h[0].target_units)]
+    if same:
+        return same  # the unit is already the role's: no registry needed
+    kept = [h for h in hits if dimensionality_matches(units, h[0].target_units)]
+    if not kept and any(h[0].name == "geopotential" for h in hits) and \
+            dimensionality_matches(units, "m"):
+        g = next(h for h in hits if h[0].name == "geopotential")
+        kept = [(ROLES["height"], g[1], g[2], g[3])]
+    return kept
+
+
+def find_candidates(datasets):
+    """Every (role, variable) pair that fits, and sentences on the variables ruled out.
+
+    Returns ``(candidates, ruled)``: candidates as a list of :class:`Candidate`
+    in discovery order, ``ruled`` as {role: [sentence, ...]}.
+    """
+    cands, ruled = [], {}
+    order = 0
+    for ds in datasets:
+        for name, da in ds.data_vars.items():
+            level = level_kind(name, da, ds)
+            hits = _matches(name, da, ds, level)
+            if not hits:
+                continue
+            std_hits = [h for h in hits if h[1] == 0]
+            hits = std_hits or _by_units(hits, _attr(da, "units"))
+            for role, match, key, how in hits:
+                why = ruled_out(role, da.attrs)
+                if why:
+                    ruled.setdefault(role.name, []).append(f"{name!r} was not taken as "
+                                                           f"{role.words}: {why}")
+                    continue
+                cands.append(Candidate(role.name, name, da, ds, level,
+                                       preference(match, role, key, level) + (order,), how))
+                order += 1
+    return cands, ruled
+
+
+# -- one horizontal grid -----------------------------------------------------------
+
+def _horizontal(c: Candidate, path):
+    """(sizes, [(what, values)]) of a candidate's horizontal grid, for comparison."""
+    y_dim, x_dim, kind = _spatial_dims(c.da, c.ds, path, c.name)
+    sizes = (c.da.sizes[y_dim], c.da.sizes[x_dim])
+    coords = []
+    if kind == "latlon":
+        coords = [("latitudes", np.asarray(c.ds[y_dim].values, np.float64)),
+                  ("longitudes", np.asarray(c.ds[x_dim].values, np.float64) % 360.0)]
+    else:
+        lat, lon = _find_latlon_2d(c.da, c.ds)
+        if lat is None and "latitude" in c.da.coords and c.da["latitude"].ndim == 2:
+            lat, lon = c.da["latitude"], c.da["longitude"]
+        if lat is not None and lon is not None:
+            coords = [("latitudes", np.asarray(lat.values, np.float64)),
+                      ("longitudes", np.asarray(lon.values, np.float64) % 360.0)]
+        for d in (y_dim, x_dim):
+            if d in c.ds.coords and c.ds[d].ndim == 1 and np.issubdtype(c.ds[d].dtype, np.number):
+                coords.append((f"{d} coordinates", np.asarray(c.ds[d].values, np.float64)))
+    return sizes, coords
+
+
+def _grid_difference(ref, other) -> str | None:
+    """None when two horizontal grids are the same, else what differs (one phrase)."""
+    (rs, rc), (os_, oc) = ref, other
+    if rs != os_:
+        return f"its grid is {os_[0]} x {os_[1]} points, the height's {rs[0]} x {rs[1]}"
+    theirs = dict(oc)
+    for what, vals in rc:
+        if what not in theirs:
+            continue
+        o = theirs[what]
+        if o.shape != vals.shape:
+            return f"its {what} have another shape"
+        diff = np.abs(o - vals)
+        if what == "longitudes":
+            diff = np.minimum(diff, 360.0 - diff)
+        if np.nanmax(diff, initial=0.0) > 1e-4 * (1.0 if "itudes" in what else 1e3):
+            i = np.unravel_index(int(np.nanargmax(diff)), diff.shape)
+            return (f"its {what} differ from the height's by up to {np.nanmax(diff):.4g} "
+                    f"({o[i]:.6g} against {vals[i]:.6g})")
     return None
 
 
-# -- normalising one variable -------------------------------------------------------
+@dataclasses.dataclass(frozen=True)
+class Raw:
+    """A field as the file holds it, with the linear conversion to its role's SI unit."""
+
+    data: object        # xarray.DataArray, raw values
+    scale: float
+    offset: float
+    role: str           # the role whose checks apply (geopotential, not height)
+
+    def map(self, fn) -> "Raw":
+        return dataclasses.replace(self, data=fn(self.data))
+
 
 @dataclasses.dataclass
 class Piece:
@@ -214,7 +338,19 @@ class Piece:
     grid_relative: bool
     notes: list
     attrs: dict
+    #: role -> where it came from (variable, level type, GRIB keys, units converted from)
+    sources: dict = dataclasses.field(default_factory=dict)
+    #: optional roles left out, with the sentence saying why
+    dropped: dict = dataclasses.field(default_factory=dict)
+    #: datetime64[ns] reference (run) time of each valid time, NaT where unknown
+    reference_times: np.ndarray | None = None
+    #: role -> Raw: the file's values, for the checks and the count of fill values
+    fills: dict = dataclasses.field(default_factory=dict)
+    #: role -> GRIB fields missing from its (member, time, level) hypercube
+    holes: dict = dataclasses.field(default_factory=dict)
 
+
+# -- normalising one variable -------------------------------------------------------
 
 def _member_dim(da, ds):
     for d in da.dims:
@@ -291,7 +427,8 @@ def _valid_times(da, ds, path, var):
             step = da[sd].values
             valid = ref + step
             da = da.drop_vars(["_vt", time_dims[0], sd], errors="ignore")
-            da = da.assign_coords(_vt=("_vt", valid)).rename({"_vt": "time"})
+            da = da.assign_coords(_vt=("_vt", valid), reference_time=("_vt", ref)).rename(
+                {"_vt": "time"})
             note = "valid time = reference time + step, over several forecasts"
         else:
             if time_dims:
@@ -301,7 +438,8 @@ def _valid_times(da, ds, path, var):
                 raise CaseError(f"has forecast steps ({sd}) but no reference time", path, var)
             valid = ref + da[sd].values
             da = da.drop_vars([c for c in da.coords if c in ("time", "valid_time")], errors="ignore")
-            da = da.rename({sd: "time"}).assign_coords(time=("time", valid))
+            da = da.rename({sd: "time"}).assign_coords(
+                time=("time", valid), reference_time=("time", np.repeat(ref, valid.size)))
             note = "valid time = reference time + step"
     elif time_dims:
         td = time_dims[0]
@@ -311,7 +449,8 @@ def _valid_times(da, ds, path, var):
         da = da.drop_vars([td], errors="ignore").rename({td: "time"}).assign_coords(time=("time", vals))
         step = _scalar_step(da)
         if step is not None:
-            da = da.assign_coords(time=("time", da["time"].values + step))
+            da = da.assign_coords(time=("time", da["time"].values + step),
+                                  reference_time=("time", da["time"].values))
             note = "valid time = reference time + step"
     else:
         t = _scalar_valid_time(da, ds, path, var)
@@ -374,35 +513,77 @@ def _scalar_valid_time(da, ds, path, var):
     return ref + step if step is not None else ref
 
 
-def normalise(path, datasets, *, member=0) -> Piece:
-    """Find, convert and reorder the variables of one file (see module docstring)."""
-    found = {}
-    datasets = [_promote_scalar_levels(ds) for ds in datasets]
-    for ds in datasets:
-        for name, da in ds.data_vars.items():
-            role = classify(name, da, ds)
-            if role and role not in found:
-                found[role] = (name, da, ds)
-    if not ({"height", "geopotential"} & set(found)):
+def _choose(path, cands, ruled):
+    """The candidate taken for each role, and notes on the choices (see names.preference)."""
+    by_role = {}
+    for c in cands:
+        by_role.setdefault(c.role, []).append(c)
+    for cs in by_role.values():
+        cs.sort(key=lambda c: c.rank)
+    ref_role = "height" if "height" in by_role else "geopotential" if "geopotential" in by_role \
+        else None
+    if ref_role is None:
+        why = "; ".join(ruled.get("height", []) + ruled.get("geopotential", []))
         raise CaseError("has no geopotential or geopotential height on pressure levels "
                         "(looked for CF standard names geopotential_height / geopotential and "
-                        "short names gh, hgt, zg, z)", path)
-    key = "height" if "height" in found else "geopotential"
-    name, ref_da, ref_ds = found[key]
+                        "short names gh, hgt, zg, z)" + (f"; {why}" if why else ""), path)
+    ref = by_role[ref_role][0]
+    ref_grid = _horizontal(ref, path)
+    chosen, notes, dropped = {ref_role: ref}, [], {}
+    for role, cs in by_role.items():
+        if role in ("height", "geopotential") and role != ref_role:
+            continue
+        if role == ref_role:
+            same = cs
+        else:
+            diffs = [(c, _grid_difference(ref_grid, _horizontal(c, path))) for c in cs]
+            same = [c for c, d in diffs if d is None]
+            if not same:
+                c, d = diffs[0]
+                msg = f"{c.describe()} is not on the height's grid: {d}"
+                if role in REQUIRED_ROLES:
+                    raise CaseError(msg, path, c.name)
+                dropped[role] = f"{ROLES[role].words} left out: {msg}"
+                continue
+            for c, d in diffs:
+                if d is not None and c is cs[0]:
+                    notes.append(f"{ROLES[role].words}: {c.describe()} is on another grid ({d})")
+        pick = same[0]
+        chosen[role] = pick
+        others = [c for c in cs if c is not pick]
+        if others:
+            notes.append(f"{ROLES[role].words}: took {pick.describe()}, the first by the "
+                         "stated preference; also found " +
+                         ", ".join(c.describe() for c in others))
+    for role, sentences in ruled.items():
+        if role not in chosen:
+            notes.extend(sentences)
+    return chosen, ref_role, notes, dropped
+
+
+def normalise(path, datasets, *, member=0) -> Piece:
+    """Find, convert and reorder the variables of one file (see module docstring)."""
+    datasets = [_promote_scalar_levels(ds) for ds in datasets]
+    cands, ruled = find_candidates(datasets)
+    chosen, key, notes, dropped = _choose(path, cands, ruled)
+    ref = chosen[key]
+    name, ref_da, ref_ds = ref.name, ref.da, ref.ds
     level_dim = _has_level_dim(ref_da, ref_ds)
     if level_dim is None:
         raise CaseError("is not on pressure levels (no pressure coordinate found)", path, name)
     y_dim, x_dim, kind = _spatial_dims(ref_da, ref_ds, path, name)
-    notes = []
-    data, surface = {}, {}
+    data, surface, sources, fills, holes = {}, {}, {}, {}, {}
     member_note = None
     grid_relative = False
     if kind == "projected":
-        for role in ("u", "v"):
-            if role in found and _grib_grid_relative(found[role][1].attrs):
-                found["x_wind" if role == "u" else "y_wind"] = found.pop(role)
+        for role, target in (("u", "x_wind"), ("v", "y_wind"), ("u10", "x_wind10"),
+                             ("v10", "y_wind10")):
+            if role in chosen and _grib_grid_relative(chosen[role].da.attrs):
+                chosen[target] = dataclasses.replace(chosen.pop(role), role=target)
     statics = []
-    for role, (vname, da, ds) in found.items():
+    ref_times = None
+    for role, c in chosen.items():
+        vname, da, ds = c.name, c.da, c.ds
         if role in ("x_wind", "y_wind"):
             grid_relative = True
         da, mnote = _reduce_member(da, ds, member, path, vname)
@@ -410,19 +591,20 @@ def normalise(path, datasets, *, member=0) -> Piece:
         if role in STATIC_ROLES and not any(_is_time_like(d, ds) or _is_step_like(d, ds)
                                             for d in da.dims):
             # orography and land masks need no time: repeated for every valid time below
-            da = da.drop_vars([c for c in ("time", "valid_time", "step") if c in da.coords],
-                              errors="ignore").expand_dims(time=[np.datetime64("NaT", "ns")])
+            da = da.drop_vars([c_ for c_ in ("time", "valid_time", "step", "reference_time")
+                               if c_ in da.coords], errors="ignore").expand_dims(
+                time=[np.datetime64("NaT", "ns")])
             statics.append(role)
             tnote = None
         else:
             da, tnote = _valid_times(da, ds, path, vname)
+        if role == key:
+            ref_times = _reference_times(da, ds)
         if tnote and tnote not in notes:
             notes.append(tnote)
         lev = _has_level_dim(da, ds)
-        keep = ["time"] + ([lev] if lev else []) + [y_dim, x_dim]
-        missing = [d for d in (y_dim, x_dim) if d not in da.dims]
-        if missing:
-            raise CaseError(f"does not share the horizontal grid ({missing} missing)", path, vname)
+        c_y, c_x, _ = _spatial_dims(da, ds, path, vname)
+        keep = ["time"] + ([lev] if lev else []) + [c_y, c_x]
         extra = [d for d in da.dims if d not in keep]
         for d in extra:
             if da.sizes[d] != 1:
@@ -431,13 +613,27 @@ def normalise(path, datasets, *, member=0) -> Piece:
             da = da.isel({d: 0})
         da = da.transpose(*keep)
         spec = ROLES[role]
-        da = da.copy(data=convert(da.data, da.attrs.get("units"), spec.target_units, path=path,
-                                  variable=vname, accepted=spec.accepted))
+        units = da.attrs.get("units")
+        if not _is_dask(da):
+            da = da.load()  # decode once (small GRIB files are read without dask)
+        raw = da
+        da = _si(da, role, units, path, vname)
+        scale, offset = linear_conversion(str(units), spec.target_units)
+        da = da.drop_vars([c_ for c_ in da.coords if c_ not in da.dims and c_ != "time"],
+                          errors="ignore")
+        da.attrs = {"units": spec.target_units}
+        missing = int(c.da.attrs.get("GRIB_missing_fields") or 0)
+        if missing:
+            holes[role] = missing
+        sources[role] = _source(c, path, units, spec.target_units)
         if lev:
             da = _pressure_levels(da, ds, lev, path, vname)
-            data[role] = da.rename({y_dim: "y", x_dim: "x"})
+            data[role] = da.rename({c_y: "y", c_x: "x"})
+            fills[role] = Raw(_pressure_levels(raw, ds, lev, path, vname).rename(
+                {c_y: "y", c_x: "x"}), scale, offset, role)
         else:
-            surface[role] = da.rename({y_dim: "y", x_dim: "x"})
+            surface[role] = da.rename({c_y: "y", c_x: "x"})
+            fills[role] = Raw(raw.rename({c_y: "y", c_x: "x"}), scale, offset, role)
     if member_note:
         notes.append(member_note)
     if statics and data:
@@ -445,10 +641,15 @@ def normalise(path, datasets, *, member=0) -> Piece:
         for role in statics:
             surface[role] = surface[role].isel(time=[0] * first.sizes["time"]).assign_coords(
                 time=first["time"].values)
+            fills[role] = fills[role].map(lambda r: r.isel(time=[0] * first.sizes["time"])
+                                          .assign_coords(time=first["time"].values))
     if "geopotential" in data and "height" not in data:
         from ..constants import G0
 
         data["height"] = data.pop("geopotential") / G0
+        fills["height"] = fills.pop("geopotential")
+        sources["height"] = sources.pop("geopotential")
+        sources["height"]["note"] = "geopotential divided by standard gravity 9.80665 m s-2"
         notes.append("geopotential divided by standard gravity 9.80665 m s-2 to give "
                      "geopotential height")
     else:
@@ -457,6 +658,9 @@ def normalise(path, datasets, *, member=0) -> Piece:
         from ..constants import G0
 
         surface["surface_height"] = surface.pop("orography") / G0
+        fills["surface_height"] = fills.pop("orography")
+        sources["surface_height"] = sources.pop("orography")
+        sources["surface_height"]["note"] = "surface geopotential divided by 9.80665 m s-2"
     # grid
     lat = lon = x = y = crs = None
     if kind == "latlon":
@@ -470,7 +674,56 @@ def normalise(path, datasets, *, member=0) -> Piece:
     times = np.asarray(data["height"]["time"].values).astype("datetime64[ns]")
     return Piece(path=str(path), data=data, surface=surface, lat=lat, lon=lon, crs=crs, x=x, y=y,
                  levels_pa=levels, times=times, grid_relative=grid_relative, notes=notes,
-                 attrs=dict(ref_ds.attrs))
+                 attrs=dict(ref_ds.attrs), sources=sources, dropped=dropped,
+                 reference_times=ref_times, fills=fills, holes=holes)
+
+
+def _is_dask(da) -> bool:
+    return type(da.data).__module__.startswith("dask")
+
+
+def _si(da, role, units, path, vname):
+    """The variable in its role's SI unit, usual fill values as NaN: one task per chunk."""
+    import xarray as xr
+
+    spec = ROLES[role]
+    convert(0.0, units, spec.target_units, path=path, variable=vname, accepted=spec.accepted)
+    scale, offset = linear_conversion(str(units), spec.target_units)
+    return xr.apply_ufunc(to_si, da, kwargs={"role": role, "scale": scale, "offset": offset},
+                          dask="parallelized", output_dtypes=[np.float64], keep_attrs=True)
+
+
+def _source(c: Candidate, path, units, target) -> dict:
+    out = {"file": os.path.basename(str(path).rstrip("/")), "variable": c.name,
+           "level_type": c.level.describe(), "recognised_by": c.how,
+           "units_from": None if units is None else str(units), "units_to": target}
+    if c.level.label:
+        out["level_label"] = c.level.label
+    if "GRIB_shortName" in c.da.attrs:
+        out["grib_short_name"] = c.da.attrs.get("GRIB_shortName")
+        out["grib_param_id"] = c.da.attrs.get("GRIB_paramId")
+        out["grib_type_of_level"] = c.da.attrs.get("GRIB_typeOfLevel")
+    return out
+
+
+def _reference_times(da, ds):
+    """The reference (run) time of each valid time, or None where the file does not say."""
+    n = da.sizes["time"]
+    for name in ("reference_time", "forecast_reference_time"):
+        src = da.coords.get(name)
+        if src is None and name in ds.variables:
+            src = ds[name]
+        if src is None:
+            continue
+        vals = np.asarray(src.values).ravel()
+        if not np.issubdtype(vals.dtype, np.datetime64):
+            continue
+        vals = vals.astype("datetime64[ns]")
+        if vals.size == 1:
+            return np.repeat(vals, n)
+        if vals.size == n:
+            return vals
+    return None
 
 
 def _grib_grid_relative(attrs) -> bool:

@@ -65,6 +65,23 @@ def parse(unit: str):
     return registry().parse_units(text)
 
 
+def _canonical(unit: str) -> str:
+    """A spelling of a unit with the exponent and division marks made uniform.
+
+    Only spelling: ``m s**-1``, ``m s^-1``, ``m/s`` and ``m s-1`` are one text, so a
+    unit already in the target's spelling needs no registry (loading pint and
+    cf_xarray costs about 0.3 s, more than decoding a small GRIB file).
+    """
+    text = ALIASES.get(unit.strip().lower(), unit.strip())
+    text = text.replace("**", "").replace("^", "").replace("·", " ").replace(".", " ")
+    if text.count("/") == 1:
+        num, den = text.split("/")
+        den_parts = den.split()
+        if len(den_parts) == 1 and den_parts[0].isalpha():
+            text = f"{num.strip()} {den_parts[0]}-1"
+    return " ".join(text.split())
+
+
 @functools.lru_cache(maxsize=256)
 def linear_conversion(unit: str, target: str):
     """(scale, offset) such that value_in_target = scale * value + offset.
@@ -72,6 +89,8 @@ def linear_conversion(unit: str, target: str):
     Raises ValueError when the unit cannot be parsed or has the wrong
     dimensionality.
     """
+    if _canonical(unit) == _canonical(target):
+        return 1.0, 0.0
     ureg = registry()
     src = parse(unit)
     dst = ureg.parse_units(target)
@@ -113,5 +132,15 @@ def dimensionality_matches(unit, target: str) -> bool:
 
 
 def to_numpy(values):
-    """A plain float array from numpy, dask or xarray data."""
-    return np.asarray(getattr(values, "values", values))
+    """A plain array from numpy, dask or xarray data, computed in the calling thread.
+
+    Dask's default scheduler would start a thread pool (and look for a
+    distributed client) for every small slice; the io layer reads one field at
+    a time, and the core parallelises its own work.
+    """
+    import dask
+    import dask.local
+
+    # a callable, not the name "synchronous": naming it makes dask import distributed
+    with dask.config.set(scheduler=dask.local.get_sync):
+        return np.asarray(getattr(values, "values", values))
