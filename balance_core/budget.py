@@ -24,10 +24,17 @@ Derived views of the same fields, never part of the sum:
 
 * acceleration = DV/Dt = tendency - horizontal_advection - vertical_advection
   (the Lagrangian acceleration that scale analysis estimates as U^2 / L);
-* along_stream and centripetal: the horizontal_advection split into the parts
-  along and normal to the wind, -(V dV/ds) t and -(V^2 / R_s) n (same sign
-  convention as the term they split, so along_stream + centripetal equals
-  horizontal_advection at every point).
+* along_stream and centripetal: the acceleration of the flow along the
+  Earth's surface split into the parts along and normal to the wind,
+  -(V dV/ds) t and -(V^2 / R) n, R the radius of curvature of the trajectory
+  on the sphere. The along-stream part is that of horizontal_advection; the
+  centripetal part is the normal part of horizontal_advection plus metric_uv
+  (which is normal to the wind by construction: (u tan(phi) / a)(v, -u)), so
+  that a flow along a latitude circle, whose trajectory curves on the sphere,
+  has the centripetal acceleration the gradient wind of its height contours
+  implies (:func:`balance_core.winds.gradient_wind` uses the same spherical
+  curvature). Same sign convention as the terms: along_stream + centripetal =
+  horizontal_advection + metric_uv at every point.
 
 w = -omega / (rho g0), rho = p / (R_d T) or, without temperature, the
 U.S. Standard Atmosphere (1976) density at the level.
@@ -487,3 +494,6 @@ def _derived_into(gi: Grid, L: _Layout, out: Budget, rows, u, v):
     s, n = out.derived["along_stream"], out.derived["centripetal"]
     Flow(gi, u, v).natural_split(hadv.x[rows], hadv.y[rows],
                                  out=(s.x[rows], s.y[rows], n.x[rows], n.y[rows]))
+    # the Earth's curvature of the trajectory: metric_uv is normal to the wind
+    n.x[rows] += out.terms["metric_uv"].x[rows]
+    n.y[rows] += out.terms["metric_uv"].y[rows]

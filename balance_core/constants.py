@@ -43,9 +43,14 @@ EPSILON = MOLAR_MASS_WATER / MOLAR_MASS_DRY_AIR
 P0 = 100000.0
 
 #: Kinematic viscosity of air near the ground, m2 s-1 (about 1.5e-5 at 15 C;
-#: from memory). Used only as the default molecular viscosity of the scale
-#: analysis.
+#: from memory). The molecular viscosity: far too small for the friction of
+#: atmospheric flows (it gives a viscous term near 1e-11 m s-2).
 NU_AIR = 1.5e-5
+
+#: Eddy viscosity of a typical boundary layer, m2 s-1 (common practice, no source:
+#: values of 1 to 100 m2 s-1 are usual, 10 a middle one). The friction estimate of
+#: the scale analysis from data uses it.
+EDDY_VISCOSITY = 10.0
 
 # U.S. Standard Atmosphere, 1976 (NOAA/NASA/USAF, Washington DC), which uses
 # its own gas constant and molar mass: keep them apart from the values above so

@@ -71,24 +71,27 @@ def ekman_number(viscosity, f0, depth):
 def brunt_vaisala_squared(temperature, pressure, axis: int = 0):
     """Brunt-Vaisala frequency squared on pressure levels, s-2.
 
-    N^2 = (g / theta) dtheta/dz with dz = -dp / (rho g) (hydrostatic) and
-    rho = p / (R_d T):
+    N^2 = (g / theta) dtheta/dz = g dln(theta)/dz, and with the hydrostatic
+    relation dz = -(R_d T / g) dln(p):
 
-        N^2 = -(g^2 p / (R_d T theta)) dtheta/dp
+        N^2 = -(g^2 / (R_d T)) dln(theta)/dln(p)
 
-    theta = T (p0 / p)^(R_d / c_p). ``pressure`` is 1-D (Pa) along ``axis`` of
+    theta = T (p0 / p)^(R_d / c_p). Differentiating ln(theta) against ln(p) is
+    exact for a constant lapse rate, where both are linear in ln(p) (a dtheta/dp
+    difference is not). ``pressure`` is 1-D (Pa) along ``axis`` of
     ``temperature`` (K); any order and spacing (second-order differences).
     (American Meteorological Society, Glossary of Meteorology,
-    "Brunt-Vaisala frequency".)
+    "Brunt-Vaisala frequency"; Holton and Hakim 2013, An Introduction to Dynamic
+    Meteorology, 5th ed., ch. 2, static stability.)
     """
     t = _f64(temperature)
     p = _f64(pressure)
     shape = [1] * t.ndim
     shape[axis] = p.size
     pp = p.reshape(shape)
-    theta = potential_temperature(t, pp)
-    dtheta_dp = derivative_along(theta, p, axis)
-    return -(c.G0 ** 2) * pp / (c.R_DRY * t * theta) * dtheta_dp
+    ln_theta = np.log(potential_temperature(t, pp))
+    dlntheta_dlnp = derivative_along(ln_theta, np.log(p), axis)
+    return -(c.G0 ** 2) / (c.R_DRY * t) * dlntheta_dlnp
 
 
 def brunt_vaisala_squared_height(theta, height, axis: int = 0):
@@ -98,15 +101,13 @@ def brunt_vaisala_squared_height(theta, height, axis: int = 0):
 
 
 def vertical_shear_squared(u, v, temperature, pressure, axis: int = 0):
-    """|dV/dz|^2 on pressure levels, s-2, with dz = -dp / (rho g) and rho = p / (R_d T)."""
+    """|dV/dz|^2 on pressure levels, s-2, with d/dz = -(g / (R_d T)) d/dln(p) (hydrostatic)."""
     p = _f64(pressure)
     t = _f64(temperature)
-    shape = [1] * t.ndim
-    shape[axis] = p.size
-    pp = p.reshape(shape)
-    dzdp = -(c.R_DRY * t) / (pp * c.G0)  # dz/dp = -1 / (rho g)
-    dudz = derivative_along(u, p, axis) / dzdp
-    dvdz = derivative_along(v, p, axis) / dzdp
+    k = -c.G0 / (c.R_DRY * t)  # dln(p)/dz
+    lnp = np.log(p)
+    dudz = derivative_along(u, lnp, axis) * k
+    dvdz = derivative_along(v, lnp, axis) * k
     return dudz * dudz + dvdz * dvdz
 
 

@@ -24,8 +24,9 @@ from .grid import Grid
 from .numbers import (brunt_vaisala_squared, burger_number, deformation_radius, froude_number,
                       richardson_number, rossby_number, vertical_shear_squared)
 from .region import Region, vector_stats, weighted_stats
-from .scales import estimate_for_term, estimate_scales
-from .verdict import Thresholds, classify_budget, imbalance_ratios, residual_causes
+from .scales import RECIPE, estimate_for_term, estimate_scales
+from .verdict import (Thresholds, Verdict, classify_budget, imbalance_ratios, near_ground,
+                      residual_causes)
 from .winds import Flow, GradientWind, geostrophic_wind, gradient_wind
 
 __all__ = ["LevelDiagnostics", "level_diagnostics", "box_report", "window"]
@@ -50,6 +51,12 @@ class LevelDiagnostics:
     n2: np.ndarray | None
     shear2: np.ndarray | None
     time_step_s: float | None
+    #: height of the level above the ground, m (None where neither orography nor surface
+    #: pressure is known); and how it was found
+    height_above_ground: np.ndarray | None = None
+    height_above_ground_source: str = ""
+    #: points where the level lies below the ground (masked in the data), or None
+    below_ground: np.ndarray | None = None
 
     @property
     def speed(self):
@@ -71,8 +78,15 @@ class LevelDiagnostics:
         return np.abs(self.vorticity * self.grid.inverse_f)
 
 
-def level_diagnostics(grid: Grid, fields: Fields, it: int, ik: int) -> LevelDiagnostics:
-    """Budget and wind diagnostics at time ``it`` and level ``ik`` of ``fields``."""
+def level_diagnostics(grid: Grid, fields: Fields, it: int, ik: int, *,
+                      height_above_ground=None, height_above_ground_source: str = "",
+                      below_ground=None) -> LevelDiagnostics:
+    """Budget and wind diagnostics at time ``it`` and level ``ik`` of ``fields``.
+
+    ``height_above_ground`` (m, 2-D) lets the verdict tell levels near the ground
+    from levels aloft; ``below_ground`` (bool, 2-D) says which missing points are
+    under the ground rather than missing data.
+    """
     budget = momentum_budget(grid, fields, it, ik)
     u = np.asarray(fields.u[it, ik], dtype=np.float64)
     v = np.asarray(fields.v[it, ik], dtype=np.float64)
@@ -93,7 +107,10 @@ def level_diagnostics(grid: Grid, fields: Fields, it: int, ik: int) -> LevelDiag
     return LevelDiagnostics(grid=grid, budget=budget, pressure=float(fields.pressure[ik]), u=u,
                             v=v, height=z, omega=om, temperature=t, ug=ug, vg=vg,
                             gradient=gradient_wind(grid, z), vorticity=Flow(grid, u, v).vorticity,
-                            n2=n2, shear2=shear2, time_step_s=dt)
+                            n2=n2, shear2=shear2, time_step_s=dt,
+                            height_above_ground=height_above_ground,
+                            height_above_ground_source=height_above_ground_source,
+                            below_ground=below_ground)
 
 
 def window(inside: np.ndarray):
@@ -112,8 +129,20 @@ def _num(x):
     return x if np.isfinite(x) else None
 
 
+#: What the two Rossby numbers of the report mean, said beside them on every screen.
+EXPLAIN = {
+    "rossby": ("box Rossby number U / (f0 L), from the region's own scales: how large the "
+               "acceleration of the flow is against Coriolis for the region as a whole (small: "
+               "geostrophy can hold)"),
+    "rossby_local_median": ("local Rossby number |zeta / f|, the median over the region's "
+                            "points: how strongly the flow spins against the planet's rotation "
+                            "at a typical point (large in tight vortices even when the box "
+                            "number is small)"),
+}
+
+
 def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thresholds(),
-               nu: float = C.NU_AIR, below_ground: int = 0) -> dict:
+               nu: float = C.EDDY_VISCOSITY, below_ground: int = 0) -> dict:
     """Reduce one level's diagnostics over a region.
 
     Parameters
@@ -123,37 +152,47 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
     thresholds : Thresholds
         The verdict's thresholds (the project's own choice).
     nu : float
-        Viscosity of the a priori viscous estimate (molecular by default).
+        Viscosity of the a priori viscous (friction) estimate: by default an eddy
+        viscosity typical of the boundary layer, 10 m2 s-1 (common practice).
+    below_ground : int
+        Points of the level below the ground in the whole case (for the notes).
 
     Returns
     -------
     dict
-        ``points``, ``masked_points``, ``terms`` (sorted by magnitude, unavailable
-        last), ``derived``, ``winds``, ``numbers``, ``scales``, ``balances``,
-        ``verdict``, ``notes``. Magnitudes are area-weighted RMS of the term's
-        horizontal vector, m s-2.
+        ``points`` (valid), ``region_points``, ``valid_share``, ``masked_points``,
+        ``invalid`` (why points are not valid), ``terms`` (sorted by magnitude,
+        unavailable last), ``derived``, ``winds``, ``numbers``, ``scales``,
+        ``scales_recipe``, ``resolution``, ``ground``, ``balances``, ``shares``,
+        ``verdict`` (balance, text, why), ``explain``, ``residual_causes``,
+        ``notes``. Magnitudes are area-weighted RMS of the term's horizontal
+        vector, m s-2.
     """
     g = diag.grid
+    th = thresholds
     if isinstance(inside, Region):
         inside = inside.mask(g)
     win = window(inside)
     if win is None:
-        return _empty_report(inside)
+        return _empty_report(inside, th)
     sub = _GridWindow(g, win)
     ins = inside[win]
     b = diag.budget
     # the budget restricted to the window (views, no copies)
     cropped = _crop_budget(b, win)
-    ratios = imbalance_ratios(cropped, sub, ins)
-    verdict = classify_budget(ratios, thresholds)
+    w = lambda a: None if a is None else a[win]  # noqa: E731
+    ratios = imbalance_ratios(cropped, sub, ins, u=w(diag.u), v=w(diag.v))
     ok = ins.copy()
     for name in list(cropped.terms) + list(cropped.derived):
         t = cropped[name]
         if t.available:
             ok &= np.isfinite(t.x) & np.isfinite(t.y)
+    invalid = _invalid_points(diag, win, ins, ok)
+    hag = _median(w(diag.height_above_ground), sub, ok)
+    ground = near_ground(diag.pressure, hag, th)
+    verdict = classify_budget(ratios, th, ground=ground)
     if not ok.any():
-        return _empty_report(inside, masked=int(ins.sum()))
-    w = lambda a: None if a is None else a[win]  # noqa: E731
+        return _empty_report(inside, th, invalid=invalid, verdict=verdict)
     try:
         pgf = cropped["pressure_gradient"]
         scales = estimate_scales(sub, ok, u=w(diag.u), v=w(diag.v),
@@ -163,6 +202,17 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
                                  height_gradient=np.hypot(pgf.x, pgf.y) / C.G0)
     except ValueError:
         scales = None
+    resolution = _resolution(sub, ok, scales, th)
+    if verdict.balance == "none":
+        verdict = Verdict("none", verdict.text + _invalid_text(invalid), verdict.ratios,
+                          verdict.why)
+    elif resolution is not None and not resolution["resolved"]:
+        caution = (f" Caution: the flow is under-resolved (length scale "
+                   f"{resolution['flow_length_km']:.0f} km, {resolution['points_per_length']:.1f} "
+                   f"grid spacings of {resolution['grid_spacing_km']:.0f} km; at least "
+                   f"{th.resolved_ratio:g} are needed), so truncation error is part of the "
+                   "residual and the ratios; take this verdict as a rough guide only.")
+        verdict = Verdict(verdict.balance, verdict.text + caution, verdict.ratios, verdict.why)
 
     def entry(name, t):
         if not t.available:
@@ -208,10 +258,12 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
     if tropics:
         notes.append(f"{tropics} points within {g.min_lat:g} degrees of the equator: quantities "
                      "divided by f (geostrophic wind, local Rossby number) are masked there")
-    poles = int(np.count_nonzero(g.pole_mask[win] & ins))
-    if poles:
-        notes.append(f"{poles} points lie on a pole row (|lat| >= {g.pole_limit:g}), where east "
-                     "and north have no meaning: masked")
+    if invalid["pole_row"]:
+        notes.append(f"{invalid['pole_row']} points lie on a pole row (|lat| >= "
+                     f"{g.pole_limit:g}), where east and north have no meaning: masked")
+    if invalid["below_ground"]:
+        notes.append(f"{invalid['below_ground']} points of the region lie below the ground at "
+                     f"{diag.pressure / 100:g} hPa: masked")
     if no_root:
         notes.append(f"{no_root} points have no real gradient-wind root (anticyclonic curvature "
                      "too strong for the pressure gradient); they are left out of the gradient "
@@ -219,26 +271,71 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
     if numbers["ekman"] is not None:
         notes.append("ekman is effective: RMS residual / RMS Coriolis, the friction the residual "
                      "implies if it is all friction")
+    if resolution is not None:
+        notes.append(f"grid spacing {resolution['grid_spacing_km']:.0f} km against a flow length "
+                     f"scale of {resolution['flow_length_km']:.0f} km "
+                     f"({resolution['points_per_length']:.1f} spacings; "
+                     f"{'resolved' if resolution['resolved'] else 'under-resolved'}, the line "
+                     f"is {th.resolved_ratio:g})")
+    notes.append(ground[1] + (f" ({diag.height_above_ground_source})"
+                              if diag.height_above_ground_source and hag is not None else ""))
     causes = residual_causes(level_pa=diag.pressure, budget=b, time_step_s=diag.time_step_s,
                              residual_share=ratios.get("residual_share"),
-                             below_ground=below_ground)
+                             below_ground=below_ground, ground=ground, resolution=resolution,
+                             friction_alignment=ratios.get("friction_alignment"), thresholds=th)
+    npts = int(ok.sum())
     return {
-        "points": int(ok.sum()),
+        "points": npts,
+        "region_points": int(ins.sum()),
+        "valid_share": npts / max(int(ins.sum()), 1),
         "masked_points": int(ins.sum() - ok.sum()),
+        "invalid": invalid,
         "terms": terms,
         "derived": derived,
         "winds": winds,
         "numbers": numbers,
         "scales": None if scales is None else {k: getattr(scales, k) for k in
-                                                ("U", "W", "L", "H", "dP", "f0")},
+                                                ("U", "W", "L", "H", "dP", "f0", "nu")},
+        "scales_recipe": dict(RECIPE),
+        "resolution": resolution,
+        "ground": {"near": bool(ground[0]), "height_above_ground_m": hag, "why": ground[1]},
         "balances": {k: ratios.get(k) for k in ("geostrophic", "gradient", "cyclostrophic",
                                                 "frictional")},
         "shares": {"acceleration": ratios.get("acceleration_share"),
-                   "residual": ratios.get("residual_share")},
+                   "residual": ratios.get("residual_share"),
+                   "friction_alignment": ratios.get("friction_alignment")},
         "verdict": verdict.as_dict(),
+        "explain": dict(EXPLAIN),
         "residual_causes": causes,
         "notes": notes,
     }
+
+
+def _invalid_points(diag, win, ins, ok) -> dict:
+    """Why the region's points that are not valid are not: below the ground, pole row, missing."""
+    bad = ins & ~ok
+    below = np.zeros_like(bad) if diag.below_ground is None else diag.below_ground[win] & bad
+    pole = diag.grid.pole_mask[win] & bad & ~below
+    missing = bad & ~below & ~pole
+    return {"below_ground": int(below.sum()), "pole_row": int(pole.sum()),
+            "missing_data": int(missing.sum())}
+
+
+def _invalid_text(invalid) -> str:
+    parts = [f"{n} {what}" for what, n in (("below the ground", invalid["below_ground"]),
+                                          ("with missing data", invalid["missing_data"]),
+                                          ("on a pole row", invalid["pole_row"])) if n]
+    return (" Of the points left out, " + ", ".join(parts) + ".") if parts else ""
+
+
+def _resolution(sub, ok, scales, th) -> dict | None:
+    """Grid spacing (the square root of the mean cell area) against the flow's length scale L."""
+    if scales is None:
+        return None
+    spacing = float(np.sqrt(np.sum(sub.cell_area[ok]) / max(int(ok.sum()), 1)))
+    ratio = scales.L / spacing
+    return {"grid_spacing_km": spacing / 1e3, "flow_length_km": scales.L / 1e3,
+            "points_per_length": ratio, "resolved": bool(ratio >= th.resolved_ratio)}
 
 
 def _estimate(name, scales):
@@ -275,11 +372,16 @@ class _GridWindow:
         self.radius = grid.radius
 
 
-def _empty_report(inside, masked=None) -> dict:
+def _empty_report(inside, th: Thresholds = Thresholds(), invalid=None, verdict=None) -> dict:
     n = int(np.count_nonzero(inside))
-    return {"points": 0, "masked_points": n if masked is None else masked, "terms": [],
-            "derived": [], "winds": {}, "numbers": {}, "scales": None, "balances": {},
-            "shares": {}, "verdict": {"balance": "unbalanced",
-                                      "text": "The box holds no valid points, so nothing can be "
-                                              "tested; draw a larger box or one inside the data."},
-            "residual_causes": [], "notes": []}
+    invalid = invalid or {"below_ground": 0, "pole_row": 0, "missing_data": n}
+    text = (f"No verdict: none of the {n} points of the region has every term of the budget, "
+            "so no balance can be tested." + _invalid_text(invalid)) if n else (
+        "No verdict: the region holds no grid points; draw a larger box or one inside the data.")
+    return {"points": 0, "region_points": n, "valid_share": 0.0, "masked_points": n,
+            "invalid": invalid, "terms": [], "derived": [], "winds": {}, "numbers": {},
+            "scales": None, "scales_recipe": dict(RECIPE), "resolution": None, "ground": None,
+            "balances": {}, "shares": {},
+            "verdict": {"balance": "none", "text": text,
+                        "why": "A verdict needs valid points." if verdict is None else verdict.why},
+            "explain": dict(EXPLAIN), "residual_causes": [], "notes": []}

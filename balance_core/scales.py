@@ -30,7 +30,7 @@ from . import constants as c
 from .numbers import burger_number, deformation_radius, ekman_number, froude_number, rossby_number
 
 __all__ = ["ScaleSet", "ScaleResult", "PRESETS", "analyse_scales", "estimate_scales",
-           "SCALE_TERMS", "estimate_for_term"]
+           "SCALE_TERMS", "estimate_for_term", "RECIPE"]
 
 #: Names of the scale-analysis terms, as used in the JSON output.
 SCALE_TERMS = ("acceleration", "vertical_advection", "metric_uv", "metric_uw",
@@ -208,6 +208,18 @@ PRESETS = {
 }
 
 
+#: The recipe of :func:`estimate_scales`, one line a scale, for the notes beside its numbers.
+RECIPE = {
+    "U": "the area-weighted RMS wind speed in the region",
+    "L": "std(Z) / RMS|grad Z|: the distance over which the height changes by its spread",
+    "dP": "rho g std(Z): the pressure difference over that same distance L",
+    "W": "RMS(omega) / (rho g)",
+    "H": "U / RMS|dV/dz| where the shear is known, else the density scale height R_d T / g",
+    "f0": "the area-weighted mean |f| of the region",
+    "nu": "an eddy viscosity typical of the boundary layer, 10 m2 s-1 (common practice)",
+}
+
+
 def estimate_scales(grid, inside, *, u, v, height, pressure, omega=None, temperature=None,
                     shear2=None, nu: float = c.NU_AIR, n2=None, height_gradient=None) -> ScaleSet:
     """Scales of the flow inside a region, estimated from the data.
@@ -231,11 +243,16 @@ def estimate_scales(grid, inside, *, u, v, height, pressure, omega=None, tempera
     Notes
     -----
     U is the area-weighted RMS speed; L the height field's own gradient length
-    std(Z) / RMS|grad Z|; rho = p / (R_d T) (or the standard atmosphere);
-    dP = rho g0 (max Z - min Z); W = RMS(omega) / (rho g0); H = U / RMS|dV/dz|
-    where the shear is known, else the density scale height R_d T / g0; f0 the
-    area-weighted mean |f| and lat0 the mean latitude. This is the project's
-    own recipe (documented in DEVELOPERS.md).
+    std(Z) / RMS|grad Z|, and dP = rho g0 std(Z) the pressure difference over
+    that same distance, so that dP / (rho L) = g0 RMS|grad Z| is the measured
+    pressure-gradient force (a dP from the range of Z over an L from the
+    standard deviation would overstate it by range / std, 3 to 4 times);
+    rho = p / (R_d T) (or the standard atmosphere); W = RMS(omega) / (rho g0);
+    H = U / RMS|dV/dz| where the shear is known, else the density scale height
+    R_d T / g0; f0 the area-weighted mean |f| and lat0 the mean latitude; nu as
+    given (the box report passes the eddy viscosity
+    :data:`balance_core.constants.EDDY_VISCOSITY`). This is the project's own
+    recipe (documented in DEVELOPERS.md); :data:`RECIPE` says it in words.
     """
     from .region import weighted_stats
     from .thermo import standard_atmosphere_temperature
@@ -260,7 +277,7 @@ def estimate_scales(grid, inside, *, u, v, height, pressure, omega=None, tempera
     else:
         T = float(standard_atmosphere_temperature(pressure))
     rho = pressure / (c.R_DRY * T)
-    dP = rho * c.G0 * float(np.nanmax(height[ok]) - np.nanmin(height[ok]))
+    dP = rho * c.G0 * zstd
     W = 0.0
     if omega is not None:
         om = weighted_stats(omega, grid, ok & np.isfinite(omega)).rms

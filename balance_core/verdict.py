@@ -17,6 +17,19 @@ together with two shares, RMS|acceleration| / RMS|PGF| (is the flow speeding
 up, slowing or turning faster than a balance allows?) and RMS|residual| /
 RMS|PGF| (how much the unresolved force matters).
 
+The frictional ratio alone can never say no: PGF + Coriolis + residual is the
+acceleration (less the small terms) by construction, whatever the data. So
+frictional balance is a candidate only where friction can act -- in or near
+the boundary layer -- and only where the residual behaves like friction: it
+opposes the wind over the box (the area-weighted mean cosine of the angle
+between residual and wind is at most ``-friction_alignment``). Elsewhere a large
+residual is unexplained imbalance (truncation on a coarse grid, a missing
+tendency, sub-grid processes), and the verdict names the best physical
+balance, or none.
+
+With too few valid points the verdict is "none": no balance is named from data
+that cannot support one.
+
 The thresholds are the project's own choice, not a published standard:
 they are the fields of :class:`Thresholds`, documented in DEVELOPERS.md and
 configurable by every caller.
@@ -31,7 +44,7 @@ import numpy as np
 from .region import Region, weighted_stats
 
 __all__ = ["Thresholds", "Verdict", "imbalance_ratios", "classify_budget", "classify_scales",
-           "budget_verdict", "residual_causes", "CANDIDATES", "CLASSES"]
+           "budget_verdict", "residual_causes", "near_ground", "CANDIDATES", "CLASSES"]
 
 #: Candidate balances, simplest first, and the terms each adds up.
 CANDIDATES = {
@@ -40,8 +53,9 @@ CANDIDATES = {
     "gradient": ("pressure_gradient", "coriolis", "centripetal"),
     "frictional": ("pressure_gradient", "coriolis", "residual"),
 }
-#: Every class a verdict can take.
-CLASSES = ("geostrophic", "gradient", "cyclostrophic", "frictional", "unsteady", "unbalanced")
+#: Every class a verdict can take ("none": the data cannot support a verdict).
+CLASSES = ("geostrophic", "gradient", "cyclostrophic", "frictional", "unsteady", "unbalanced",
+           "none")
 
 _PRETTY = {
     "tendency": "local tendency",
@@ -85,6 +99,22 @@ class Thresholds:
     rossby_small, rossby_large : float
         Scale verdict: Ro below ``rossby_small`` allows geostrophy; Ro above
         ``rossby_large`` leaves Coriolis out of a curved flow (cyclostrophic).
+    min_points, min_valid_share : int, float
+        No verdict ("none") unless at least ``min_points`` points, and at least
+        ``min_valid_share`` of the region's points, have every term.
+    friction_alignment : float
+        Frictional balance needs the residual to oppose the wind: the
+        area-weighted mean of -cos(angle between residual and wind) at least this.
+    boundary_layer_m : float
+        Frictional balance needs the level within this height above the ground
+        (median over the region), m.
+    boundary_layer_pa : float
+        Where the height above the ground is unknown: levels at or below (at
+        pressures of at least) this count as near the ground, Pa.
+    resolved_ratio : float
+        The flow is under-resolved where its length scale L (see
+        :func:`balance_core.scales.estimate_scales`) is less than this many grid
+        spacings; the verdict then says so and names truncation error.
     """
 
     balanced: float = 0.3
@@ -95,18 +125,25 @@ class Thresholds:
     comparable_factor: float = 3.0
     rossby_small: float = 0.3
     rossby_large: float = 3.0
+    min_points: int = 25
+    min_valid_share: float = 0.5
+    friction_alignment: float = 0.5
+    boundary_layer_m: float = 2000.0
+    boundary_layer_pa: float = 85000.0
+    resolved_ratio: float = 3.0
 
 
 @dataclasses.dataclass(frozen=True)
 class Verdict:
-    """A balance class with its plain-language sentence and the evidence."""
+    """A balance class with its plain-language sentence, why it was chosen, and the evidence."""
 
     balance: str
     text: str
     ratios: dict = dataclasses.field(default_factory=dict)
+    why: str = ""
 
     def as_dict(self) -> dict:
-        return {"balance": self.balance, "text": self.text}
+        return {"balance": self.balance, "text": self.text, "why": self.why}
 
 
 def _rms(field, grid, inside):
@@ -114,7 +151,7 @@ def _rms(field, grid, inside):
     return s.rms
 
 
-def imbalance_ratios(budget, grid, inside) -> dict:
+def imbalance_ratios(budget, grid, inside, *, u=None, v=None) -> dict:
     """Imbalance ratio of each candidate balance and the two shares over a region.
 
     Parameters
@@ -122,14 +159,19 @@ def imbalance_ratios(budget, grid, inside) -> dict:
     budget : balance_core.budget.Budget
     grid : Grid
     inside : bool array, or a Region
+    u, v : arrays, optional
+        The wind (m s-1); gives ``friction_alignment``.
 
     Returns
     -------
     dict
         ``geostrophic``, ``cyclostrophic``, ``gradient``, ``frictional``,
-        ``acceleration_share``, ``residual_share``, and the RMS magnitudes of
-        every term and view under ``"rms"``. A value is None where the region
-        has no valid points or the needed terms are unavailable.
+        ``acceleration_share``, ``residual_share``, ``friction_alignment`` (the
+        area-weighted mean of -cos(residual, wind): 1 when the residual opposes
+        the wind everywhere, 0 when it is unrelated), ``points`` (valid),
+        ``region_points``, and the RMS magnitudes of every term and view under
+        ``"rms"``. A value is None where the region has no valid points or the
+        needed terms are unavailable.
     """
     if isinstance(inside, Region):
         inside = inside.mask(grid)
@@ -140,7 +182,8 @@ def imbalance_ratios(budget, grid, inside) -> dict:
         t = budget[n]
         if t.available:
             ok &= np.isfinite(t.x) & np.isfinite(t.y)
-    out = {"points": int(ok.sum()), "masked_points": int(inside.sum() - ok.sum())}
+    out = {"points": int(ok.sum()), "region_points": int(inside.sum()),
+           "masked_points": int(inside.sum() - ok.sum())}
     rms = {}
     for n in names:
         t = budget[n]
@@ -158,51 +201,145 @@ def imbalance_ratios(budget, grid, inside) -> dict:
     acc, res = rms.get("acceleration"), rms.get("residual")
     out["acceleration_share"] = acc / p if p and acc is not None else None
     out["residual_share"] = res / p if p and res is not None else None
+    out["friction_alignment"] = None
+    if u is not None and v is not None and ok.any():
+        r = budget["residual"]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            cos = (r.x * u + r.y * v) / (np.hypot(r.x, r.y) * np.hypot(u, v))
+        good = ok & np.isfinite(cos)
+        if good.any():
+            out["friction_alignment"] = -weighted_stats(cos, grid, good, quantiles=False).mean
     return out
 
 
-def classify_budget(ratios: dict, thresholds: Thresholds = Thresholds()) -> Verdict:
+def near_ground(level_pa: float, height_above_ground_m: float | None,
+                thresholds: "Thresholds" = None) -> tuple:
+    """(near, sentence): is the level in or near the boundary layer, and how that was judged.
+
+    With the height above the ground known (median over the region), near means
+    at most ``boundary_layer_m``; otherwise (no orography or surface pressure)
+    levels at pressures of at least ``boundary_layer_pa`` count as near
+    (the project's own fallback, common practice).
+    """
+    th = thresholds or Thresholds()
+    if height_above_ground_m is not None and np.isfinite(height_above_ground_m):
+        near = height_above_ground_m <= th.boundary_layer_m
+        return near, (f"{level_pa / 100:g} hPa lies about {height_above_ground_m:.0f} m above "
+                      f"the ground ({'within' if near else 'above'} the "
+                      f"{th.boundary_layer_m:.0f} m taken as the boundary layer)")
+    near = level_pa >= th.boundary_layer_pa
+    return near, (f"{level_pa / 100:g} hPa, with no orography or surface pressure to give its "
+                  f"height above the ground, counts as {'near' if near else 'far from'} the "
+                  f"ground (levels at or below {th.boundary_layer_pa / 100:g} hPa are near)")
+
+
+def classify_budget(ratios: dict, thresholds: Thresholds = Thresholds(), *,
+                    ground: tuple | None = None) -> Verdict:
     """Pick one class from the imbalance ratios of :func:`imbalance_ratios`.
 
-    Rule (the project's own): the candidate balances that hold (ratio at or
-    below ``balanced``; frictional also needs a residual share of at least
-    ``friction_share``) are taken simplest first (geostrophic and
-    cyclostrophic, then gradient, then frictional); a more complex one replaces
-    the current choice only if the current one is not already within ``good``
-    and the new ratio is at most ``improvement`` times the current one. If none
-    holds, the flow is "unsteady" when the acceleration share reaches
-    ``unsteady_share`` and "unbalanced" otherwise.
+    Rule (the project's own):
+
+    * fewer than ``min_points`` valid points, or less than ``min_valid_share`` of
+      the region valid: "none";
+    * the candidate balances that hold (ratio at or below ``balanced``) are taken
+      simplest first (geostrophic and cyclostrophic, then gradient, then
+      frictional); a more complex one replaces the current choice only if the
+      current one is not already within ``good`` and the new ratio is at most
+      ``improvement`` times the current one;
+    * frictional is a candidate only near the ground (``ground``, from
+      :func:`near_ground`; without it, by the level's pressure) and where the
+      residual opposes the wind (``friction_alignment``) and matters
+      (``friction_share``);
+    * if none holds, "unsteady" when the acceleration share reaches
+      ``unsteady_share`` and "unbalanced" otherwise.
     """
     th = thresholds
     rms = ratios.get("rms", {})
-    if not ratios.get("points") or not rms.get("pressure_gradient"):
-        return Verdict("unbalanced", "No valid points with a pressure-gradient force in the "
-                       "region, so no balance can be tested.", ratios)
-    holds = {}
+    n, total = ratios.get("points") or 0, ratios.get("region_points")
+    total = n if total is None else total
+    if not n or not rms.get("pressure_gradient"):
+        return Verdict("none", f"No verdict: none of the {total} points of the region has "
+                       "every term of the budget (missing data, below the ground or outside "
+                       "the grid), so no balance can be tested.", ratios,
+                       "A verdict needs valid points.")
+    if n < th.min_points or (total and n / total < th.min_valid_share):
+        return Verdict("none", f"No verdict: only {n} of the {total} points of the region "
+                       f"({100 * n / max(total, 1):.0f} %) have every term of the budget; at "
+                       f"least {th.min_points} points and {100 * th.min_valid_share:.0f} % of "
+                       "the region are needed before a balance is named.", ratios,
+                       "Too few valid points to name a balance.")
+    holds, skipped = {}, []
     for cand in CANDIDATES:
         r = ratios.get(cand)
         if r is None or r > th.balanced:
             continue
-        if cand == "frictional" and (ratios.get("residual_share") or 0) < th.friction_share:
-            continue
+        if cand == "frictional":
+            why_not = _friction_barrier(ratios, th, ground)
+            if why_not:
+                skipped.append(why_not)
+                continue
         holds[cand] = r
     chosen = None
     simple = [c for c in ("geostrophic", "cyclostrophic") if c in holds]
     if simple:
         chosen = min(simple, key=holds.get)
+    why = []
+    if chosen:
+        why.append(f"{chosen.capitalize()} is the simplest balance that holds: it leaves "
+                   f"{_pct(holds[chosen])} of the pressure-gradient force unbalanced (a balance "
+                   f"holds at {_pct(th.balanced)} or less).")
     for cand in ("gradient", "frictional"):
-        if cand in holds and (chosen is None or (holds[chosen] > th.good and
-                                                 holds[cand] <= th.improvement * holds[chosen])):
+        if cand not in holds:
+            continue
+        if chosen is None:
             chosen = cand
+            why.append(f"{cand.capitalize()} is the simplest balance that holds: it leaves "
+                       f"{_pct(holds[cand])} (a balance holds at {_pct(th.balanced)} or less).")
+        elif holds[chosen] > th.good and holds[cand] <= th.improvement * holds[chosen]:
+            why.append(f"{cand.capitalize()} replaces {chosen}: it leaves {_pct(holds[cand])} "
+                       f"against {_pct(holds[chosen])}, at most {th.improvement:g} times as much, "
+                       "so its extra term earns its place.")
+            chosen = cand
+        else:
+            why.append(f"{cand.capitalize()} also holds ({_pct(holds[cand])}) but does not do "
+                       f"enough better than {chosen} ({_pct(holds[chosen])}) to prefer the "
+                       "balance with more terms.")
+    why.extend(skipped)
     if chosen is None:
         acc = ratios.get("acceleration_share")
         chosen = "unsteady" if acc is not None and acc >= th.unsteady_share else "unbalanced"
-    return Verdict(chosen, _sentence(chosen, ratios), ratios)
+        why.insert(0, f"No candidate balance leaves {_pct(th.balanced)} or less; the total "
+                      "acceleration is " + ("" if chosen == "unsteady" else "not ") +
+                   f"at least {_pct(th.unsteady_share)} of the pressure-gradient force.")
+    return Verdict(chosen, _sentence(chosen, ratios), ratios, " ".join(why))
 
 
-def budget_verdict(budget, grid, inside, thresholds: Thresholds = Thresholds()) -> Verdict:
-    """:func:`imbalance_ratios` then :func:`classify_budget`."""
-    return classify_budget(imbalance_ratios(budget, grid, inside), thresholds)
+def _friction_barrier(ratios, th, ground) -> str | None:
+    """Why frictional balance is not a candidate here (None if it is)."""
+    if ground is None:
+        return ("Frictional balance was not tested: the level's height above the ground is "
+                "not known.")
+    near, where = ground
+    if not near:
+        return f"Frictional balance was not tested: {where}."
+    if (ratios.get("residual_share") or 0) < th.friction_share:
+        return (f"Frictional balance was not tested: the residual is only "
+                f"{_pct(ratios.get('residual_share') or 0)} of the pressure-gradient force.")
+    align = ratios.get("friction_alignment")
+    if align is None or align < th.friction_alignment:
+        shown = "unknown" if align is None else f"{align:.2f}"
+        return (f"Frictional balance was not tested: the residual does not oppose the wind "
+                f"(alignment {shown}, at least {th.friction_alignment:g} is needed), so it does "
+                "not act as friction.")
+    return None
+
+
+def budget_verdict(budget, grid, inside, thresholds: Thresholds = Thresholds(), *, u=None,
+                   v=None, height_above_ground_m: float | None = None) -> Verdict:
+    """:func:`imbalance_ratios` then :func:`classify_budget` (ground from :func:`near_ground`)."""
+    ground = near_ground(budget.level_pa, height_above_ground_m, thresholds)
+    return classify_budget(imbalance_ratios(budget, grid, inside, u=u, v=v), thresholds,
+                           ground=ground)
 
 
 def _fmt(x):
@@ -241,7 +378,8 @@ def _sentence(cls, ratios) -> str:
         return (f"Frictional: the pressure-gradient force ({_fmt(p)}), Coriolis ({_fmt(cor)}) and "
                 f"the residual friction ({_fmt(res)}) balance to within {_pct(ratios['frictional'])}; "
                 f"geostrophy alone leaves {_pct(ratios['geostrophic'])}.")
-    best = min(((ratios[c], c) for c in CANDIDATES if ratios.get(c) is not None), default=None)
+    best = min(((ratios[c], c) for c in ("geostrophic", "cyclostrophic", "gradient")
+                if ratios.get(c) is not None), default=None)
     best_txt = f"; the closest balance, {best[1]}, leaves {_pct(best[0])}" if best else ""
     if cls == "unsteady":
         return (f"Unsteady: the total acceleration DV/Dt ({_fmt(acc)}) is "
@@ -304,21 +442,38 @@ def classify_scales(result, thresholds: Thresholds = Thresholds()) -> Verdict:
 
 def residual_causes(*, level_pa: float, budget=None, time_step_s: float | None = None,
                     residual_share: float | None = None, below_ground: int = 0,
-                    steep_terrain: bool = False) -> list:
+                    steep_terrain: bool = False, ground: tuple | None = None,
+                    resolution: dict | None = None, friction_alignment: float | None = None,
+                    thresholds: Thresholds = Thresholds()) -> list:
     """Likely causes of a large residual, as short sentences (most likely first).
 
     The residual is the tendency minus every resolved term; which of friction,
     sub-grid processes or data and numerical error dominates depends on where
     and how the data was taken. Rules (the project's own, common practice):
-    levels at or below 850 hPa are in or near the boundary layer; a time step
-    longer than 6 h under-resolves the tendency; one time means the tendency
-    is missing altogether; points below the ground or steep terrain point to
-    extrapolated or noisy pressure-level data.
+    a level near the ground (``ground`` from :func:`near_ground`; without it,
+    at or below 850 hPa) holds friction, if the residual opposes the wind; an
+    under-resolved flow (``resolution["resolved"]`` false) holds truncation
+    error; a time step longer than 6 h under-resolves the tendency; one time
+    means the tendency is missing altogether; points below the ground or steep
+    terrain point to extrapolated or noisy pressure-level data. Away from the
+    ground a large residual is unexplained imbalance, never friction.
     """
+    th = thresholds
     causes = []
-    if level_pa >= 85000:
-        causes.append(f"{level_pa / 100:.0f} hPa is in or near the boundary layer, where friction "
-                      "is expected")
+    near = ground[0] if ground is not None else level_pa >= th.boundary_layer_pa
+    large = residual_share is not None and residual_share >= th.friction_share
+    if near:
+        where = ground[1] if ground is not None else (f"{level_pa / 100:.0f} hPa is in or near "
+                                                      "the boundary layer")
+        if friction_alignment is not None and friction_alignment < th.friction_alignment:
+            causes.append(f"{where}, where friction is expected, but the residual does not "
+                          "oppose the wind, so it is not mainly friction")
+        else:
+            causes.append(f"{where}, where friction is expected")
+    if resolution is not None and resolution.get("resolved") is False:
+        causes.append(f"truncation error: the grid spacing ({resolution['grid_spacing_km']:.0f} "
+                      f"km) is coarse for the flow's length scale "
+                      f"({resolution['flow_length_km']:.0f} km)")
     if budget is not None:
         if "tendency" in budget.residual_includes:
             causes.append("one time only: the residual holds the local tendency")
@@ -332,7 +487,11 @@ def residual_causes(*, level_pa: float, budget=None, time_step_s: float | None =
                       "model's post-processing)")
     if steep_terrain:
         causes.append("steep terrain: pressure-level gradients are noisy there")
-    if not causes and residual_share is not None and residual_share >= 0.2:
+    if large and not near:
+        causes.append("away from the ground the residual is unexplained imbalance, not friction: "
+                      "sub-grid processes (convection, gravity waves) or numerical error in the "
+                      "data")
+    elif not causes and large:
         causes.append("sub-grid processes (convection, gravity waves) or numerical error in the "
                       "data")
     return causes

@@ -50,9 +50,22 @@ def test_json_object_has_every_field(capsys):
                                  "ageostrophic_fraction_median", "gradient_speed_rms"}
     assert set(rep["numbers"]) == {"rossby", "rossby_local_median", "ekman", "froude", "burger",
                                    "richardson_median", "deformation_radius_km"}
-    assert set(rep["scales"]) == {"U", "W", "L", "H", "dP", "f0"}
+    assert set(rep["scales"]) == {"U", "W", "L", "H", "dP", "f0", "nu"}
+    assert set(rep["scales_recipe"]) >= {"U", "L", "dP", "nu"}
     assert set(rep["balances"]) == {"geostrophic", "gradient", "cyclostrophic", "frictional"}
     assert rep["verdict"]["balance"] == "geostrophic" and rep["verdict"]["text"]
+    assert "simplest balance that holds" in rep["verdict"]["why"]
+    assert rep["region_points"] == rep["points"] and rep["valid_share"] == 1.0
+    assert set(rep["invalid"]) == {"below_ground", "pole_row", "missing_data"}
+    res = rep["resolution"]
+    assert res["resolved"] and res["grid_spacing_km"] > 0 and res["flow_length_km"] > 0
+    assert rep["ground"]["near"] is False
+    assert set(rep["explain"]) == {"rossby", "rossby_local_median"}
+    # where every field came from
+    assert rep["sources"]["height"]["variable"] and rep["sources"]["height"]["level_type"] == \
+        "pressure"
+    assert {"u", "v", "height"} <= set(rep["sources"])
+    assert rep["reference_time"] is None or rep["lead_time_h"] is not None
 
 
 def test_whole_domain_without_box(capsys):

@@ -61,10 +61,11 @@ def test_derived_views_add_up(rng):
     g = Grid.latlon(np.linspace(20, 60, 20), np.linspace(-40, 20, 30))
     f = _random_fields(rng)
     b = momentum_budget(g, f, 1, 1)
+    # the split covers the horizontal advection and the Earth's curvature of the path
     hx = b["along_stream"].x + b["centripetal"].x
     hy = b["along_stream"].y + b["centripetal"].y
-    np.testing.assert_allclose(hx, b["horizontal_advection"].x, atol=1e-15)
-    np.testing.assert_allclose(hy, b["horizontal_advection"].y, atol=1e-15)
+    np.testing.assert_allclose(hx, b["horizontal_advection"].x + b["metric_uv"].x, atol=1e-15)
+    np.testing.assert_allclose(hy, b["horizontal_advection"].y + b["metric_uv"].y, atol=1e-15)
     # along_stream is parallel to the wind, centripetal normal to it
     u, v = f.u[1, 1], f.v[1, 1]
     np.testing.assert_allclose(b["centripetal"].x * u + b["centripetal"].y * v, 0, atol=1e-12)

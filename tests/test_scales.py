@@ -75,8 +75,26 @@ def test_scales_estimated_from_data():
     assert s.L == pytest.approx(1 / k, rel=0.02)
     rho = 50000.0 / (C.R_DRY * 251.916)  # standard-atmosphere temperature at 500 hPa
     assert s.rho == pytest.approx(rho, rel=1e-3)
-    assert s.dP == pytest.approx(rho * C.G0 * 100, rel=1e-3)
+    # dP over the same distance L: rho g std(Z), std of a sine of amplitude 50 m = 50 / sqrt(2)
+    assert s.dP == pytest.approx(rho * C.G0 * 50 / np.sqrt(2), rel=5e-3)  # sampled sine
     assert s.W == pytest.approx(0.1 / (rho * C.G0), rel=1e-6)
+    # so the a priori pressure gradient dP / (rho L) is the measured RMS g |grad Z| = g 50 k / sqrt(2)
+    assert s.dP / (s.rho * s.L) == pytest.approx(C.G0 * 50 * k / np.sqrt(2), rel=0.02)
+
+
+def test_a_priori_pressure_gradient_and_coriolis_agree_on_geostrophic_flow():
+    # Geostrophic flow (u = -(g/f) dZ/dy) of a height wave: the a priori estimates
+    # dP / (rho L) and f0 U from the same data must agree within a factor of 2
+    # (with dP from the range of Z they differed by range / std, about 3 here).
+    g = Grid.latlon(np.linspace(40, 50, 41), np.linspace(0, 20, 81)).f_plane(45.0)
+    f0 = g.f[0, 0]
+    y = np.deg2rad(g.lat - 45.0) * g.radius
+    ky = 2 * np.pi / 2.0e6
+    z = 5500 + 80 * np.sin(ky * y)
+    u = -(C.G0 / f0) * 80 * ky * np.cos(ky * y)
+    s = estimate_scales(g, Region.whole().mask(g), u=u, v=0 * u, height=z, pressure=50000.0)
+    pgf, cor = s.dP / (s.rho * s.L), abs(s.f0) * s.U
+    assert 0.5 < pgf / cor < 2.0, (pgf, cor)
 
 
 def _run(capsys, *args):

@@ -73,20 +73,94 @@ def _uniform(grid, u, v, pgf_x, pgf_y):
     return np.full(grid.shape, u), np.full(grid.shape, v), 1000 - (pgf_x * x + pgf_y * y) / C.G0
 
 
-def test_frictional_balance():
-    # Steady uniform flow with Rayleigh drag F = -V / tau: PGF + Cor + F = 0, so
-    # the residual is the drag and the flow crosses the isobars toward low
-    # pressure (common practice, no source).
+def _drag_flow(level_pa, drag=True, residual_across=False):
+    """Steady uniform flow (8, 3) m s-1 on an f-plane whose PGF and Coriolis leave a remainder.
+
+    With ``drag`` the remainder is Rayleigh drag F = -V / tau, so PGF + Cor + F = 0 and
+    the flow crosses the isobars toward low pressure (common practice, no source).
+    With ``residual_across`` the remainder is as large but at right angles to the wind.
+    """
     g = Grid.latlon(np.linspace(44.5, 45.5, 11), np.linspace(0, 1.5, 11))
     f0, tau = g.f[5, 5], 2e4
     u, v = 8.0, 3.0
-    pgf_x = f0 * v * -1 + u / tau   # -(Cor_x) - F_x
-    pgf_y = f0 * u + v / tau
+    fx, fy = (-u / tau, -v / tau) if not residual_across else (v / tau, -u / tau)
+    pgf_x = f0 * v * -1 - fx   # PGF = -(Cor) - F
+    pgf_y = f0 * u - fy
     uu, vv, z = _uniform(g, u, v, pgf_x, pgf_y)
-    b = momentum_budget(g.f_plane(45.0), _steady(uu, vv, z, 100000.0))
-    verdict = budget_verdict(b, g, Region.box(0.3, 1.2, 44.7, 45.3))
+    gp = g.f_plane(45.0)
+    b = momentum_budget(gp, _steady(uu, vv, z, level_pa))
+    return gp, b, uu, vv
+
+
+def test_frictional_balance_near_the_ground():
+    # A boundary-layer flow with linear drag is frictional: the residual is the drag
+    # and opposes the wind (alignment 1).
+    g, b, u, v = _drag_flow(100000.0)
+    verdict = budget_verdict(b, g, Region.box(0.3, 1.2, 44.7, 45.3), u=u, v=v,
+                             height_above_ground_m=100.0)
     assert verdict.balance == "frictional", verdict.ratios
     assert verdict.ratios["residual_share"] > 0.4
+    # the box's curvature of the Earth adds a little to the residual: alignment 0.9996
+    assert verdict.ratios["friction_alignment"] == pytest.approx(1.0, abs=1e-3)
+
+
+def test_the_same_drag_aloft_is_not_frictional():
+    # The frictional candidate PGF + Cor + residual is the acceleration by
+    # construction, so it cannot say no by itself: the same flow at 500 hPa, 5.5 km
+    # above the ground, must not come out frictional.
+    g, b, u, v = _drag_flow(50000.0)
+    verdict = budget_verdict(b, g, Region.box(0.3, 1.2, 44.7, 45.3), u=u, v=v,
+                             height_above_ground_m=5500.0)
+    assert verdict.balance != "frictional", verdict.ratios
+    assert verdict.ratios["frictional"] < 0.02  # the identity would have said yes
+    assert "not tested" in verdict.why and "above the ground" in verdict.why
+
+
+def test_a_residual_across_the_wind_is_not_friction():
+    # Near the ground, but the residual acts at right angles to the wind: not friction.
+    g, b, u, v = _drag_flow(100000.0, residual_across=True)
+    verdict = budget_verdict(b, g, Region.box(0.3, 1.2, 44.7, 45.3), u=u, v=v,
+                             height_above_ground_m=100.0)
+    assert verdict.balance != "frictional", verdict.ratios
+    assert abs(verdict.ratios["friction_alignment"]) < 0.01
+    assert "does not oppose the wind" in verdict.why
+
+
+def test_truncation_error_aloft_is_not_frictional():
+    # Williamson et al. (1992) case 2, a steady flow, on a 10-degree grid: the residual
+    # is pure truncation error (no friction in the flow). At 500 hPa it must not come
+    # out frictional, and the residual is called unexplained, not friction.
+    case = analytic.williamson_case2(18)
+    b = momentum_budget(case.grid, _steady(case.u, case.v, case.geopotential / C.G0))
+    inside = Region.box(0, 360, 20, 70).mask(case.grid)
+    r = imbalance_ratios(b, case.grid, inside, u=case.u, v=case.v)
+    assert r["residual_share"] > 0.01  # truncation error is there
+    verdict = budget_verdict(b, case.grid, inside, u=case.u, v=case.v,
+                             height_above_ground_m=5500.0)
+    assert verdict.balance != "frictional"
+    causes = residual_causes(level_pa=50000.0, residual_share=0.3,
+                             ground=(False, "500 hPa lies about 5500 m above the ground"))
+    assert any("unexplained imbalance, not friction" in c for c in causes)
+
+
+def test_too_few_valid_points_give_no_verdict():
+    # The project's rule: at least 25 valid points and half of the region.
+    case = analytic.williamson_case2(90)
+    z = case.geopotential / C.G0
+    b = momentum_budget(case.grid, _steady(case.u, case.v, z))
+    small = Region.box(10, 18, 40, 48).mask(case.grid)  # 5 x 4 points, all valid
+    v = budget_verdict(b, case.grid, small)
+    assert int(small.sum()) == 20
+    assert v.balance == "none" and "only 20 of the 20 points" in v.text
+    # a large region with most heights missing: enough points, too small a share
+    inside = Region.box(0, 60, 30, 60).mask(case.grid)
+    zz = np.where(case.grid.lon < 42.0, np.nan, z)
+    b2 = momentum_budget(case.grid, _steady(case.u, case.v, zz))
+    r = imbalance_ratios(b2, case.grid, inside)
+    assert r["points"] >= 25 and r["points"] / r["region_points"] < 0.5
+    assert budget_verdict(b2, case.grid, inside).balance == "none"
+    # and the same region with all its points has a verdict
+    assert budget_verdict(b, case.grid, inside).balance == "geostrophic"
 
 
 def _accelerating(a_frac):
@@ -132,7 +206,7 @@ def test_empty_region():
     case = analytic.williamson_case2(24)
     b = momentum_budget(case.grid, _steady(case.u, case.v, case.geopotential / C.G0))
     v = budget_verdict(b, case.grid, np.zeros(case.grid.shape, bool))
-    assert v.balance == "unbalanced" and "No valid points" in v.text
+    assert v.balance == "none" and "No verdict" in v.text
 
 
 def test_residual_causes():
@@ -140,3 +214,27 @@ def test_residual_causes():
     assert any("boundary layer" in c for c in causes)
     assert any("too coarse" in c for c in causes)
     assert residual_causes(level_pa=50000.0) == []
+
+
+def test_one_curvature_for_the_gradient_candidate_and_the_gradient_wind():
+    # Solid-body rotation on the sphere: Williamson et al. (1992) case 2 with alpha = 0,
+    # u = u0 cos(phi), steady. The flow follows latitude circles, whose curvature on the
+    # sphere is tan(phi) / a; the gradient wind of the height contours and the gradient
+    # candidate of the budget must both see it. Geostrophy leaves k / (1 + k), k =
+    # u0 / (2 Omega a), about 4 %, by construction (the metric term, against PGF =
+    # f u + u^2 tan(phi) / a), and gradient balance must close it.
+    case = analytic.williamson_case2(90, alpha=0.0)
+    z = case.geopotential / C.G0
+    b = momentum_budget(case.grid, _steady(case.u, case.v, z))
+    inside = Region.box(0, 360, 20, 70).mask(case.grid)
+    r = imbalance_ratios(b, case.grid, inside, u=case.u, v=case.v)
+    u0 = 2 * np.pi * case.grid.radius / (12 * 86400.0)
+    k = u0 / (2 * case.grid.omega * case.grid.radius)
+    assert r["geostrophic"] == pytest.approx(k / (1 + k), rel=0.03)  # 2-degree truncation
+    assert r["gradient"] < 0.1 * r["geostrophic"], r
+    # the gradient wind of the height field is the wind itself, to truncation
+    from balance_core.winds import gradient_wind
+
+    gw = gradient_wind(case.grid, z)
+    rel = np.abs(gw.speed - case.u)[inside] / case.u[inside]
+    assert np.nanmax(rel) < 2e-3

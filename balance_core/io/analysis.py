@@ -16,7 +16,10 @@ __all__ = ["analyse_case", "diagnostics_for"]
 def diagnostics_for(case: Case, level_index: int, time_index: int, smooth_km=None):
     """:func:`balance_core.report.level_diagnostics` for one level and time of a case."""
     fields, it, ik = case.fields(time_index, level_index, smooth_km=smooth_km)
-    return level_diagnostics(case.grid, fields, it, ik)
+    hag, how = case.height_above_ground(time_index, level_index)
+    return level_diagnostics(case.grid, fields, it, ik, height_above_ground=hag,
+                             height_above_ground_source=how,
+                             below_ground=case.below_ground_mask(time_index, level_index))
 
 
 def analyse_case(case: Case, level_hpa: float, time=None, box=None, *, smooth_km=None,
@@ -51,15 +54,23 @@ def analyse_case(case: Case, level_hpa: float, time=None, box=None, *, smooth_km
     diag = diagnostics or diagnostics_for(case, k, t, smooth_km)
     below = int(case.below_ground.get(float(case.levels_pa[k] / 100), 0))
     rep = box_report(diag, inside, thresholds=thresholds, below_ground=below)
+    ref = None
+    if case.reference_times is not None and not np.isnat(case.reference_times[t]):
+        ref = case.reference_times[t]
     out = {
         "case": case.name,
         "level_hpa": float(case.levels_pa[k] / 100),
         "valid_time": iso(case.times[t]),
+        "reference_time": None if ref is None else iso(ref),
+        "lead_time_h": None if ref is None else float((case.times[t] - ref) /
+                                                     np.timedelta64(1, "h")),
         "box": box_d,
         "smooth_km": smooth_km,
         "min_lat": case.grid.min_lat,
     }
     out.update(rep)
+    out["sources"] = {role: dict(src) for role, src in case.sources.items()}
+    out["left_out"] = dict(case.dropped)
     out["notes"] = list(case.notes) + rep["notes"]
     sfc = case.surface_analysis(t)
     if sfc is not None:

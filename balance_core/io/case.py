@@ -71,6 +71,11 @@ class Case:
     reference_times: np.ndarray | None = None
     #: optional fields found but left out, role -> the sentence saying why
     dropped: dict = dataclasses.field(default_factory=dict)
+    #: the surface field that masks levels below the ground ("surface_pressure",
+    #: "surface_height") or None
+    ground_field: str | None = None
+    #: lazy bool DataArray (time, level, y, x): True below the ground, or None
+    below: object = None
 
     # -- what the data can give ----------------------------------------------------
     @property
@@ -196,6 +201,42 @@ class Case:
             ratio = np.hypot(u, v) / np.hypot(ug, vg)
         return {"u": u, "v": v, "ug": ug, "vg": vg, "cross_isobar_angle": angle,
                 "speed_ratio": ratio, "density_source": source}
+
+    def height_above_ground(self, time_index: int, level_index: int):
+        """(height of the level above the ground in m, or None; how it was found).
+
+        From the orography, Z - z_s; else from the surface pressure through the
+        hypsometric relation (R_d T / g0) ln(p_s / p), T the level's temperature
+        (or the standard atmosphere's); negative below the ground.
+        """
+        p = float(self.levels_pa[level_index])
+        if "surface_height" in self.surface:
+            z = to_numpy(self.data["height"].isel(time=time_index, level=level_index))
+            zs = to_numpy(self.surface["surface_height"].isel(time=time_index))
+            return np.asarray(z, np.float64) - zs, "height minus orography"
+        if "surface_pressure" in self.surface:
+            from ..thermo import standard_atmosphere_temperature
+
+            ps = np.asarray(to_numpy(self.surface["surface_pressure"].isel(time=time_index)),
+                            np.float64)
+            if "temperature" in self.data:
+                t = np.asarray(to_numpy(self.data["temperature"].isel(time=time_index,
+                                                                       level=level_index)),
+                               np.float64)
+                how = "hypsometric, from the surface pressure and the level's temperature"
+            else:
+                t = float(standard_atmosphere_temperature(p))
+                how = "hypsometric, from the surface pressure and the standard atmosphere"
+            with np.errstate(invalid="ignore", divide="ignore"):
+                return C.R_DRY * t / C.G0 * np.log(ps / p), how
+        return None, ""
+
+    def below_ground_mask(self, time_index: int, level_index: int):
+        """Points where the level lies below the ground (bool), or None without a surface field."""
+        if self.below is None:
+            return None
+        return np.asarray(to_numpy(self.below.isel(time=time_index, level=level_index)),
+                          dtype=bool)
 
     def column(self, role: str, time_index: int):
         """All levels of one variable at one time, float64 (level, y, x)."""
@@ -366,7 +407,8 @@ def _assemble(pieces, *, min_lat, name) -> Case:
     for r in ("x_wind", "y_wind"):
         data.pop(r, None)
     _check_winds(grid, data, first.path, sources, first.levels_pa)
-    data, below, mask_notes, mask_dropped = _mask_below_ground(data, surface, first.levels_pa)
+    data, below, mask_notes, mask_dropped, ground_field, below_da = _mask_below_ground(
+        data, surface, first.levels_pa)
     notes.extend(mask_notes)
     for role in mask_dropped:
         dropped[role] = mask_dropped[role]
@@ -379,7 +421,7 @@ def _assemble(pieces, *, min_lat, name) -> Case:
     return Case(name=nm, title=title, paths=[pc.path for pc in pieces], grid=grid,
                 times=times, levels_pa=first.levels_pa, data=data, surface=surface, notes=notes,
                 below_ground=below, attrs=first.attrs, sources=sources, reference_times=refs,
-                dropped=dropped)
+                dropped=dropped, ground_field=ground_field, below=below_da)
 
 
 def _check_times(pc) -> list:
@@ -596,9 +638,10 @@ IMPLAUSIBLE_MASK_SHARE = 0.005
 def _mask_below_ground(data, surface, levels):
     """NaN where a pressure level lies below the ground.
 
-    Returns (data, counts per level in hPa summed over times, notes, dropped):
-    a masking field that would put high levels underground is dropped instead
-    of used, and the share masked at each level is said in the notes.
+    Returns (data, counts per level in hPa summed over times, notes, dropped, the
+    role of the masking field or None, the lazy mask): a masking field that would put high
+    levels underground is dropped instead of used, and the share masked at each
+    level is said in the notes.
     """
     dropped = {}
     for role in ("surface_pressure", "surface_height"):
@@ -616,11 +659,11 @@ def _mask_below_ground(data, surface, levels):
                 continue
         break
     else:
-        return data, {}, [], dropped
+        return data, {}, [], dropped, None, None
     below = below.transpose("time", "level", "y", "x")
     counts = to_numpy(below.sum(("time", "y", "x")))
     if not counts.any():
-        return data, {}, [], dropped
+        return data, {}, [], dropped, role, below
     levels_hpa = data["height"]["level"].values
     data = {r: d.where(~below) for r, d in data.items()}
     per_level = to_numpy(below.mean(("time", "y", "x")))
@@ -628,7 +671,8 @@ def _mask_below_ground(data, surface, levels):
              for p, s in zip(levels_hpa, per_level) if s > 0]
     src = "surface pressure" if role == "surface_pressure" else "orography"
     notes = [f"points below the ground ({src}) are masked: " + ", ".join(parts)]
-    return data, {float(p / 100): int(n) for p, n in zip(levels_hpa, counts) if n}, notes, dropped
+    return (data, {float(p / 100): int(n) for p, n in zip(levels_hpa, counts) if n}, notes,
+            dropped, role, below)
 
 
 def _below(data, surface, role):
