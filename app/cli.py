@@ -288,9 +288,15 @@ def format_analysis_table(rep: dict) -> str:
     box = rep["box"]
     where = ("whole domain" if box["west"] is None else
              f"box {box['west']:g} to {box['east']:g} E, {box['south']:g} to {box['north']:g} N")
+    share = rep.get("valid_share")
     lines = [f"{rep['case']}  {rep['level_hpa']:g} hPa  {rep['valid_time']}  {where}",
-             f"{rep['points']} points used, {rep['masked_points']} masked", "",
-             f"verdict: {rep['verdict']['balance']}", f"  {rep['verdict']['text']}", ""]
+             f"{rep['points']} of {rep.get('region_points', rep['points'])} points valid"
+             + (f" ({100 * share:.0f} %)" if share is not None else "")
+             + f", {rep['masked_points']} masked", "",
+             f"verdict: {rep['verdict']['balance']}", f"  {rep['verdict']['text']}"]
+    if rep["verdict"].get("why"):
+        lines.append(f"  why: {rep['verdict']['why']}")
+    lines.append("")
     pgf = next((t["magnitude"] for t in rep["terms"] if t["name"] == "pressure_gradient"), None)
     lines.append("  term                  measured (m s-2)  a priori   / PGF   note")
     for t in rep["terms"]:
@@ -311,11 +317,30 @@ def format_analysis_table(rep: dict) -> str:
     lines += ["", "  numbers"]
     for k, v in rep["numbers"].items():
         lines.append(f"  {k:<30}  {_fmt(v, '.3g')}")
+    for k, text in rep.get("explain", {}).items():
+        lines.append(f"    {k}: {text}")
     if rep.get("scales"):
         lines += ["", "  scales from the box: " + ", ".join(
             f"{k} {_fmt(v, '.2e')}" for k, v in rep["scales"].items())]
+        for k, text in rep.get("scales_recipe", {}).items():
+            lines.append(f"    {k}: {text}")
+    res = rep.get("resolution")
+    if res:
+        lines.append(f"  resolution: grid spacing {res['grid_spacing_km']:.0f} km, flow length "
+                     f"scale {res['flow_length_km']:.0f} km ({res['points_per_length']:.1f} "
+                     f"spacings): {'resolved' if res['resolved'] else 'UNDER-RESOLVED'}")
     for c in rep.get("residual_causes", []):
         lines.append(f"  residual: {c}")
+    if rep.get("sources"):
+        lines += ["", "  sources"]
+        for role, src in rep["sources"].items():
+            grib = (f", GRIB {src['grib_short_name']} (paramId {src['grib_param_id']}, "
+                    f"{src['grib_type_of_level']})") if src.get("grib_short_name") else ""
+            conv = (f", {src['units_from']} -> {src['units_to']}"
+                    if src.get("units_from") and src["units_from"] != src["units_to"] else "")
+            lines.append(f"  {role:<17} {src['variable']!r} ({src['level_type']}{grib}{conv})")
+    for role, why in rep.get("left_out", {}).items():
+        lines.append(f"  left out: {why}")
     for n in rep.get("notes", []):
         lines.append(f"  note: {n}")
     return "\n".join(lines)

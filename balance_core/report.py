@@ -155,7 +155,8 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
         Viscosity of the a priori viscous (friction) estimate: by default an eddy
         viscosity typical of the boundary layer, 10 m2 s-1 (common practice).
     below_ground : int
-        Points of the level below the ground in the whole case (for the notes).
+        Points of the level below the ground in the whole case (kept for callers;
+        the report counts the region's own from ``diag.below_ground``).
 
     Returns
     -------
@@ -281,7 +282,8 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
                               if diag.height_above_ground_source and hag is not None else ""))
     causes = residual_causes(level_pa=diag.pressure, budget=b, time_step_s=diag.time_step_s,
                              residual_share=ratios.get("residual_share"),
-                             below_ground=below_ground, ground=ground, resolution=resolution,
+                             below_ground=invalid["below_ground"], ground=ground,
+                             resolution=resolution,
                              friction_alignment=ratios.get("friction_alignment"), thresholds=th)
     npts = int(ok.sum())
     return {

@@ -151,10 +151,11 @@ class Case:
             return np.asarray(to_numpy(self.data[role].isel(sel)), dtype=np.float64)
 
         arrays = {r: load(r) for r in ("u", "v", "height", "omega", "temperature")}
-        reasons = {}
+        reasons = self._check_window(arrays, self.levels_pa[k0:k1])
         for r in ("omega", "temperature"):
             a = arrays[r]
-            if a is not None and not np.isfinite(a[time_index - t0, level_index - k0]).any():
+            if r not in reasons and a is not None and \
+                    not np.isfinite(a[time_index - t0, level_index - k0]).any():
                 arrays[r] = None  # a variable the file does not give at this level or time
                 reasons[r] = (f"{r} is not given at {self.levels_pa[level_index] / 100:g} hPa, "
                               f"{iso(self.times[time_index])}")
@@ -168,6 +169,36 @@ class Case:
                    secs.astype(np.float64) if t1 - t0 > 1 else None, arrays["omega"],
                    arrays["temperature"], reasons=reasons)
         return f, time_index - t0, level_index - k0
+
+    def _check_window(self, arrays, levels) -> dict:
+        """The physical checks of :mod:`.checks` on the slab the core is about to use.
+
+        The case was checked at its first time when it was opened; a later time
+        or level can still be bad (a missing Zarr chunk filled with zeros, a
+        corrupted field). A required field that fails is bad input (CaseError);
+        an optional one is left out of this budget, and the reason returned.
+        """
+        from .checks import height_problem, range_problem
+
+        reasons = {}
+        path = self.paths[0] if self.paths else None
+        for role, a in list(arrays.items()):
+            if a is None:
+                continue
+            problem = range_problem(role, a, ROLES[role].target_units)
+            if problem is None and role == "height":
+                for t in range(a.shape[0]):
+                    problem = height_problem(a[t], levels)
+                    if problem:
+                        break
+            if problem is None:
+                continue
+            var = self.sources.get(role, {}).get("variable", role)
+            if role in REQUIRED_ROLES:
+                raise CaseError(problem, path, var)
+            arrays[role] = None
+            reasons[role] = f"{ROLES[role].words} left out here: {problem}"
+        return reasons
 
     def surface_analysis(self, time_index: int):
         """Surface geostrophic wind and the direct evidence of friction, or None.

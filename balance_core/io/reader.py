@@ -583,57 +583,68 @@ def normalise(path, datasets, *, member=0) -> Piece:
     statics = []
     ref_times = None
     for role, c in chosen.items():
-        vname, da, ds = c.name, c.da, c.ds
-        if role in ("x_wind", "y_wind"):
-            grid_relative = True
-        da, mnote = _reduce_member(da, ds, member, path, vname)
-        member_note = member_note or mnote
-        if role in STATIC_ROLES and not any(_is_time_like(d, ds) or _is_step_like(d, ds)
-                                            for d in da.dims):
-            # orography and land masks need no time: repeated for every valid time below
-            da = da.drop_vars([c_ for c_ in ("time", "valid_time", "step", "reference_time")
-                               if c_ in da.coords], errors="ignore").expand_dims(
-                time=[np.datetime64("NaT", "ns")])
-            statics.append(role)
-            tnote = None
-        else:
-            da, tnote = _valid_times(da, ds, path, vname)
-        if role == key:
-            ref_times = _reference_times(da, ds)
-        if tnote and tnote not in notes:
-            notes.append(tnote)
-        lev = _has_level_dim(da, ds)
-        c_y, c_x, _ = _spatial_dims(da, ds, path, vname)
-        keep = ["time"] + ([lev] if lev else []) + [c_y, c_x]
-        extra = [d for d in da.dims if d not in keep]
-        for d in extra:
-            if da.sizes[d] != 1:
-                raise CaseError(f"has an extra dimension {d!r} of size {da.sizes[d]} that "
-                                "balance-desk does not know how to reduce", path, vname)
-            da = da.isel({d: 0})
-        da = da.transpose(*keep)
-        spec = ROLES[role]
-        units = da.attrs.get("units")
-        if not _is_dask(da):
-            da = da.load()  # decode once (small GRIB files are read without dask)
-        raw = da
-        da = _si(da, role, units, path, vname)
-        scale, offset = linear_conversion(str(units), spec.target_units)
-        da = da.drop_vars([c_ for c_ in da.coords if c_ not in da.dims and c_ != "time"],
-                          errors="ignore")
-        da.attrs = {"units": spec.target_units}
-        missing = int(c.da.attrs.get("GRIB_missing_fields") or 0)
-        if missing:
-            holes[role] = missing
-        sources[role] = _source(c, path, units, spec.target_units)
-        if lev:
-            da = _pressure_levels(da, ds, lev, path, vname)
-            data[role] = da.rename({c_y: "y", c_x: "x"})
-            fills[role] = Raw(_pressure_levels(raw, ds, lev, path, vname).rename(
-                {c_y: "y", c_x: "x"}), scale, offset, role)
-        else:
-            surface[role] = da.rename({c_y: "y", c_x: "x"})
-            fills[role] = Raw(raw.rename({c_y: "y", c_x: "x"}), scale, offset, role)
+        try:
+            vname, da, ds = c.name, c.da, c.ds
+            if role in ("x_wind", "y_wind"):
+                grid_relative = True
+            da, mnote = _reduce_member(da, ds, member, path, vname)
+            member_note = member_note or mnote
+            if role in STATIC_ROLES and not any(_is_time_like(d, ds) or _is_step_like(d, ds)
+                                                for d in da.dims):
+                # orography and land masks need no time: repeated for every valid time below
+                da = da.drop_vars([c_ for c_ in ("time", "valid_time", "step", "reference_time")
+                                   if c_ in da.coords], errors="ignore").expand_dims(
+                    time=[np.datetime64("NaT", "ns")])
+                statics.append(role)
+                tnote = None
+            else:
+                da, tnote = _valid_times(da, ds, path, vname)
+            if role == key:
+                ref_times = _reference_times(da, ds)
+            if tnote and tnote not in notes:
+                notes.append(tnote)
+            lev = _has_level_dim(da, ds)
+            c_y, c_x, _ = _spatial_dims(da, ds, path, vname)
+            keep = ["time"] + ([lev] if lev else []) + [c_y, c_x]
+            extra = [d for d in da.dims if d not in keep]
+            for d in extra:
+                if da.sizes[d] != 1:
+                    raise CaseError(f"has an extra dimension {d!r} of size {da.sizes[d]} that "
+                                    "balance-desk does not know how to reduce", path, vname)
+                da = da.isel({d: 0})
+            da = da.transpose(*keep)
+            spec = ROLES[role]
+            units = da.attrs.get("units")
+            if not _is_dask(da):
+                da = da.load()  # decode once (small GRIB files are read without dask)
+            raw = da
+            da = _si(da, role, units, path, vname)
+            scale, offset = linear_conversion(str(units), spec.target_units)
+            da = da.drop_vars([c_ for c_ in da.coords if c_ not in da.dims and c_ != "time"],
+                              errors="ignore")
+            da.attrs = {"units": spec.target_units}
+            missing = int(c.da.attrs.get("GRIB_missing_fields") or 0)
+            if missing:
+                holes[role] = missing
+            sources[role] = _source(c, path, units, spec.target_units)
+            if lev:
+                da = _pressure_levels(da, ds, lev, path, vname)
+                data[role] = da.rename({c_y: "y", c_x: "x"})
+                fills[role] = Raw(_pressure_levels(raw, ds, lev, path, vname).rename(
+                    {c_y: "y", c_x: "x"}), scale, offset, role)
+            else:
+                surface[role] = da.rename({c_y: "y", c_x: "x"})
+                fills[role] = Raw(raw.rename({c_y: "y", c_x: "x"}), scale, offset, role)
+        except CaseError as exc:
+            if role in REQUIRED_ROLES:
+                raise
+            # an optional field that cannot be used is left out, and the case goes on
+            for store in (data, surface, sources, fills, holes):
+                store.pop(role, None)
+            if role in statics:
+                statics.remove(role)
+            dropped[role] = f"{ROLES[role].words} left out: {exc}"
+
     if member_note:
         notes.append(member_note)
     if statics and data:

@@ -31,6 +31,10 @@ ALIASES = {
     "kt": "knot",
     "pa/s": "Pa s-1",
     "pascal/s": "Pa s-1",
+    "(0 - 1)": "1",        # eccodes' spelling of a fraction
+    "0-1": "1",
+    "fraction": "1",
+    "proportion": "1",
 }
 
 
