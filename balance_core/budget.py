@@ -300,7 +300,8 @@ class _Layout:
                 self.notes.append("tendency from two times: a first-order difference")
         else:
             self.t_ids = self.t_w = None
-            self.missing["tendency"] = "one time only, so no local tendency"
+            self.missing["tendency"] = fields.reasons.get("tendency",
+                                                          "one time only, so no local tendency")
         if fields.nlevel >= 2:
             self.p_ids, self.p_w = derivative_weights(fields.pressure, ik)
         else:

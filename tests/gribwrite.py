@@ -10,16 +10,22 @@ import pyproj  # noqa: F401  (before eccodes: the other order crashes at exit)
 
 import eccodes
 
-PARAMS = {  # shortName: (discipline, parameterCategory, parameterNumber)
+PARAMS = {  # name: (discipline, parameterCategory, parameterNumber), WMO GRIB2 table 4.2
     "gh": (0, 3, 5),
     "u": (0, 2, 2),
     "v": (0, 2, 3),
     "t": (0, 0, 0),
     "w": (0, 2, 8),
+    "pres": (0, 3, 0),    # eccodes calls it sp at the surface, pres elsewhere
+    "prmsl": (0, 3, 1),
 }
+#: kinds of level: (typeOfFirstFixedSurface, scaled value), WMO GRIB2 code table 4.5;
+#: "isobaric" takes the level in hPa instead.
+LEVELS = {"surface": (1, 0), "cloudTop": (3, 0), "tropopause": (7, 0), "meanSea": (101, 0),
+          "10m": (103, 10), "2m": (103, 2)}
 
 
-def _message(grid, values, short, level_hpa, date, hour, uv_relative):
+def _message(grid, values, short, level_hpa, date, hour, uv_relative, level_type="isobaric"):
     kind = grid["kind"]
     if kind == "polar_stereographic":
         h = eccodes.codes_grib_new_from_samples("polar_stereographic_pl_grib2")
@@ -61,9 +67,10 @@ def _message(grid, values, short, level_hpa, date, hour, uv_relative):
     eccodes.codes_set(h, "discipline", d)
     eccodes.codes_set(h, "parameterCategory", c)
     eccodes.codes_set(h, "parameterNumber", n)
-    eccodes.codes_set(h, "typeOfFirstFixedSurface", 100)
+    kind, value = (100, int(level_hpa * 100)) if level_type == "isobaric" else LEVELS[level_type]
+    eccodes.codes_set(h, "typeOfFirstFixedSurface", kind)
     eccodes.codes_set(h, "scaleFactorOfFirstFixedSurface", 0)
-    eccodes.codes_set(h, "scaledValueOfFirstFixedSurface", int(level_hpa * 100))
+    eccodes.codes_set(h, "scaledValueOfFirstFixedSurface", value)
     eccodes.codes_set(h, "dataDate", date)
     eccodes.codes_set(h, "dataTime", hour * 100)
     eccodes.codes_set(h, "bitsPerValue", 24)
@@ -71,12 +78,21 @@ def _message(grid, values, short, level_hpa, date, hour, uv_relative):
     return h
 
 
-def write_grib2(path, grid, fields, levels_hpa, dates_hours, *, uv_relative):
-    """fields: {shortName: array (time, level, y, x)}; rows from south to north."""
-    with open(path, "wb") as fh:
+def write_grib2(path, grid, fields, levels_hpa, dates_hours, *, uv_relative, single=None,
+                mode="wb"):
+    """fields: {shortName: array (time, level, y, x)}; rows from south to north.
+
+    single: {(name, level_type): array (time, y, x)} for fields on other kinds of level
+    (see LEVELS), written after the isobaric ones of each time.
+    """
+    with open(path, mode) as fh:
         for it, (date, hour) in enumerate(dates_hours):
             for ik, lev in enumerate(levels_hpa):
                 for short, arr in fields.items():
                     h = _message(grid, arr[it, ik], short, lev, date, hour, uv_relative)
                     eccodes.codes_write(h, fh)
                     eccodes.codes_release(h)
+            for (short, level_type), arr in (single or {}).items():
+                h = _message(grid, arr[it], short, 0.0, date, hour, uv_relative, level_type)
+                eccodes.codes_write(h, fh)
+                eccodes.codes_release(h)

@@ -191,12 +191,24 @@ def test_projected_grid_relative_winds_come_back_earth_relative(tmp_path, kind):
     # the winds are written grid-relative with the closed-form angle, not pyproj's:
     # a sign error shared by writer and reader cannot pass
     ds, arr, lat, lon = projected_dataset(crs, x, y, angle=_closed_form_angle(kind))
+    # 10 m winds, grid-relative too (CF x_wind / y_wind with a height coordinate of 10 m)
+    g = np.deg2rad(_closed_form_angle(kind)(lat, lon))
+    u10, v10 = 0.7 * arr["u"][:, 0], 0.7 * arr["v"][:, 0]
+    common = {"grid_mapping": "crs", "coordinates": "lat lon"}
+    ds["uas"] = (("time", "y", "x"), u10 * np.cos(g) - v10 * np.sin(g),
+                 {"standard_name": "x_wind", "units": "m s-1", **common})
+    ds["vas"] = (("time", "y", "x"), u10 * np.sin(g) + v10 * np.cos(g),
+                 {"standard_name": "y_wind", "units": "m s-1", **common})
+    ds = ds.assign_coords(height=((), 10.0, {"standard_name": "height", "units": "m"}))
     c = open_case(_write(ds, tmp_path / f"{kind}.nc"))
     assert c.grid.kind == "projected"
     np.testing.assert_allclose(c.grid.lat, lat, atol=1e-9)
     np.testing.assert_allclose(c.data["u"].values, arr["u"], atol=1e-6)
     np.testing.assert_allclose(c.data["v"].values, arr["v"], atol=1e-6)
     assert any("rotated to east and north" in n for n in c.notes)
+    np.testing.assert_allclose(c.surface["u10"].values, u10, atol=1e-6)
+    np.testing.assert_allclose(c.surface["v10"].values, v10, atol=1e-6)
+    assert c.sources["u10"]["rotated"] and c.sources["u10"]["level_type"] == "10 m above ground"
 
 
 def _latlon_twin(tmp_path, box):
@@ -270,14 +282,21 @@ def test_grib2_lambert_grid_relative_winds(tmp_path):
             truth_uv[:, it, ik] = u, v
     grid = dict(kind="lambert", lat_first=float(lat[0, 0]), lon_first=float(lon[0, 0]), dx=5e4,
                 dy=5e4, lad=45.0, lov=10.0, latin1=45.0, latin2=45.0)
+    u10, v10 = 0.6 * truth_uv[0, :, 0] + 1.0, 0.6 * truth_uv[1, :, 0] - 1.5  # (time, y, x)
+    single = {("u", "10m"): u10 * np.cos(gam) - v10 * np.sin(gam),
+              ("v", "10m"): u10 * np.sin(gam) + v10 * np.cos(gam)}
     path = tmp_path / "lcc.grib2"
-    write_grib2(path, grid, fields, levels, [(20400203, 0), (20400203, 6)], uv_relative=True)
+    write_grib2(path, grid, fields, levels, [(20400203, 0), (20400203, 6)], uv_relative=True,
+                single=single)
     c = open_case(str(path))
     assert c.grid.kind == "projected"
     # 24-bit packing: agreement to the packing precision
     np.testing.assert_allclose(c.data["u"].values, truth_uv[0], atol=2e-3)
     np.testing.assert_allclose(c.data["v"].values, truth_uv[1], atol=2e-3)
     np.testing.assert_allclose(c.grid.convergence, np.rad2deg(gam), atol=1e-6)
+    # the 10 m winds too (they were once left grid-relative)
+    np.testing.assert_allclose(c.surface["u10"].values, u10, atol=2e-3)
+    np.testing.assert_allclose(c.surface["v10"].values, v10, atol=2e-3)
 
 
 def test_grib2_regular_latlon(tmp_path):
@@ -351,13 +370,19 @@ def test_grib2_polar_stereographic(tmp_path):
     fields["v"][0, 0] = u * np.sin(gam) + v * np.cos(gam)
     grid = dict(kind="polar_stereographic", lat_first=float(lat[0, 0]), lon_first=float(lon[0, 0]),
                 dx=6e4, dy=6e4, lad=60.0, lov=-35.0)
+    u10, v10 = 0.6 * u - 1.0, 0.6 * v + 2.0  # 10 m winds, flagged grid-relative too
+    single = {("u", "10m"): (u10 * np.cos(gam) - v10 * np.sin(gam))[None],
+              ("v", "10m"): (u10 * np.sin(gam) + v10 * np.cos(gam))[None]}
     path = tmp_path / "ps.grib2"
-    write_grib2(path, grid, fields, [500.0], [(20400203, 0)], uv_relative=True)
+    write_grib2(path, grid, fields, [500.0], [(20400203, 0)], uv_relative=True, single=single)
     c = open_case(str(path))
     assert c.grid.kind == "projected"
     np.testing.assert_allclose(c.grid.lat, lat, atol=1e-6)
     np.testing.assert_allclose(c.data["u"].values[0, 0], u, atol=2e-3)
     np.testing.assert_allclose(c.data["v"].values[0, 0], v, atol=2e-3)
+    np.testing.assert_allclose(c.surface["u10"].values[0], u10, atol=2e-3)
+    np.testing.assert_allclose(c.surface["v10"].values[0], v10, atol=2e-3)
+    assert c.sources["u10"]["grib_short_name"] == "10u"
 
 
 def test_cf_mercator_grid(tmp_path):

@@ -152,10 +152,28 @@ class Case:
 
         arrays = {r: load(r) for r in ("u", "v", "height", "omega", "temperature")}
         reasons = self._check_window(arrays, self.levels_pa[k0:k1])
+        # a neighbouring time with no data at this level would spoil the tendency of every
+        # point: leave it out of the window (and with it, perhaps, the tendency)
+        ik_w = level_index - k0
+        empty = [i for i in range(t1 - t0) if i != time_index - t0 and not any(
+            np.isfinite(arrays[r][i, ik_w]).any() for r in ("u", "v", "height"))]
+        if empty:
+            keep = [i for i in range(t1 - t0) if i not in empty]
+            gone = ", ".join(iso(self.times[t0 + i]) for i in empty)
+            arrays = {r: None if a is None else a[keep] for r, a in arrays.items()}
+            times_kept = self.times[t0:t1][keep]
+            it_new = keep.index(time_index - t0)
+            if len(keep) == 1:
+                reasons["tendency"] = (f"the neighbouring valid time {gone} holds no data at "
+                                       f"{self.levels_pa[level_index] / 100:g} hPa, so no "
+                                       "local tendency")
+        else:
+            times_kept = self.times[t0:t1]
+            it_new = time_index - t0
         for r in ("omega", "temperature"):
             a = arrays[r]
             if r not in reasons and a is not None and \
-                    not np.isfinite(a[time_index - t0, level_index - k0]).any():
+                    not np.isfinite(a[it_new, level_index - k0]).any():
                 arrays[r] = None  # a variable the file does not give at this level or time
                 reasons[r] = (f"{r} is not given at {self.levels_pa[level_index] / 100:g} hPa, "
                               f"{iso(self.times[time_index])}")
@@ -164,11 +182,11 @@ class Case:
 
             arrays = {r: None if a is None else smooth(self.grid, a, smooth_km)
                       for r, a in arrays.items()}
-        secs = (self.times[t0:t1] - self.times[0]) / np.timedelta64(1, "s")
+        secs = (times_kept - self.times[0]) / np.timedelta64(1, "s")
         f = Fields(arrays["u"], arrays["v"], arrays["height"], self.levels_pa[k0:k1],
-                   secs.astype(np.float64) if t1 - t0 > 1 else None, arrays["omega"],
+                   secs.astype(np.float64) if times_kept.size > 1 else None, arrays["omega"],
                    arrays["temperature"], reasons=reasons)
-        return f, time_index - t0, level_index - k0
+        return f, it_new, level_index - k0
 
     def _check_window(self, arrays, levels) -> dict:
         """The physical checks of :mod:`.checks` on the slab the core is about to use.

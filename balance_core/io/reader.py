@@ -555,9 +555,8 @@ def _choose(path, cands, ruled):
             notes.append(f"{ROLES[role].words}: took {pick.describe()}, the first by the "
                          "stated preference; also found " +
                          ", ".join(c.describe() for c in others))
-    for role, sentences in ruled.items():
-        if role not in chosen:
-            notes.extend(sentences)
+    for sentences in ruled.values():  # said whether or not another variable took the role
+        notes.extend(sentences)
     return chosen, ref_role, notes, dropped
 
 
