@@ -18,6 +18,10 @@ PARAMS = {  # name: (discipline, parameterCategory, parameterNumber), WMO GRIB2 
     "w": (0, 2, 8),
     "pres": (0, 3, 0),    # eccodes calls it sp at the surface, pres elsewhere
     "prmsl": (0, 3, 1),
+    "r": (0, 1, 1),
+    "absv": (0, 2, 10),
+    "clwmr": (0, 1, 22),
+    "tke": (0, 19, 11),
 }
 #: kinds of level: (typeOfFirstFixedSurface, scaled value), WMO GRIB2 code table 4.5;
 #: "isobaric" takes the level in hPa instead.
@@ -25,7 +29,8 @@ LEVELS = {"surface": (1, 0), "cloudTop": (3, 0), "tropopause": (7, 0), "meanSea"
           "10m": (103, 10), "2m": (103, 2)}
 
 
-def _message(grid, values, short, level_hpa, date, hour, uv_relative, level_type="isobaric"):
+def _message(grid, values, short, level_hpa, date, hour, uv_relative, level_type="isobaric",
+             packing=None, bits=24):
     kind = grid["kind"]
     if kind == "polar_stereographic":
         h = eccodes.codes_grib_new_from_samples("polar_stereographic_pl_grib2")
@@ -73,26 +78,31 @@ def _message(grid, values, short, level_hpa, date, hour, uv_relative, level_type
     eccodes.codes_set(h, "scaledValueOfFirstFixedSurface", value)
     eccodes.codes_set(h, "dataDate", date)
     eccodes.codes_set(h, "dataTime", hour * 100)
-    eccodes.codes_set(h, "bitsPerValue", 24)
+    eccodes.codes_set(h, "bitsPerValue", bits)
     eccodes.codes_set_values(h, np.asarray(values, dtype=np.float64).ravel())
+    if packing:
+        eccodes.codes_set(h, "packingType", packing)
     return h
 
 
 def write_grib2(path, grid, fields, levels_hpa, dates_hours, *, uv_relative, single=None,
-                mode="wb"):
+                mode="wb", packing=None, bits=24):
     """fields: {shortName: array (time, level, y, x)}; rows from south to north.
 
     single: {(name, level_type): array (time, y, x)} for fields on other kinds of level
-    (see LEVELS), written after the isobaric ones of each time.
+    (see LEVELS), written after the isobaric ones of each time. ``packing`` is an
+    eccodes packingType (default simple packing), ``bits`` the bits per value.
     """
     with open(path, mode) as fh:
         for it, (date, hour) in enumerate(dates_hours):
             for ik, lev in enumerate(levels_hpa):
                 for short, arr in fields.items():
-                    h = _message(grid, arr[it, ik], short, lev, date, hour, uv_relative)
+                    h = _message(grid, arr[it, ik], short, lev, date, hour, uv_relative,
+                                 packing=packing, bits=bits)
                     eccodes.codes_write(h, fh)
                     eccodes.codes_release(h)
             for (short, level_type), arr in (single or {}).items():
-                h = _message(grid, arr[it], short, 0.0, date, hour, uv_relative, level_type)
+                h = _message(grid, arr[it], short, 0.0, date, hour, uv_relative, level_type,
+                             packing=packing, bits=bits)
                 eccodes.codes_write(h, fh)
                 eccodes.codes_release(h)

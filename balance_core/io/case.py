@@ -342,13 +342,26 @@ def open_case(paths, *, member=0, min_lat: float = 10.0, name: str | None = None
     paths = [str(p) for p in paths]
     if not paths:
         raise CaseError("no files given")
+    opened = [(p, open_datasets(p)) for p in paths]
+    with _quiet_dask():
+        pieces = [normalise(p, dss, member=member) for p, dss in opened]
+        return _assemble(pieces, min_lat=min_lat, name=name)
+
+
+def _quiet_dask():
+    """Build lazy graphs without dask reaching for distributed (rechunk method, scheduler).
+
+    Nothing to do when dask was never imported (small GRIB files are read without it).
+    """
+    import contextlib
+    import sys
+
+    if "dask" not in sys.modules:
+        return contextlib.nullcontext()
     import dask
     import dask.local
 
-    # build the lazy graph without dask reaching for distributed (rechunk method, scheduler)
-    with dask.config.set({"array.rechunk.method": "tasks", "scheduler": dask.local.get_sync}):
-        pieces = [normalise(p, open_datasets(p), member=member) for p in paths]
-        return _assemble(pieces, min_lat=min_lat, name=name)
+    return dask.config.set({"array.rechunk.method": "tasks", "scheduler": dask.local.get_sync})
 
 
 def _assemble(pieces, *, min_lat, name) -> Case:
@@ -513,7 +526,8 @@ def _check_holes(pc) -> list:
 def _check_fields(fills, path, sources, levels) -> tuple:
     """Fill values and physical ranges at the first valid time (see :mod:`.checks`).
 
-    Reads each field's raw values once, counts the producer fill values taken as
+    Reads each field's raw values once (on up to six levels spread over the
+    column, :func:`_sample_levels`), counts the producer fill values taken as
     missing, and checks the rest against the role's range (and heights against
     the standard atmosphere). A required field (height, winds) that fails is bad
     input (CaseError); an optional one is returned in ``dropped`` with its sentence.
@@ -526,14 +540,15 @@ def _check_fields(fills, path, sources, levels) -> tuple:
         raw, scale, offset, kind = f.data, f.scale, f.offset, f.role
         var = sources.get(role, {}).get("variable", role)
         first = raw.isel(time=0)
-        if role in REQUIRED_ROLES and not _any_valid(raw):
-            raise CaseError("holds no valid values at any time (all missing)", path, var)
-        nfill, which, problem = 0, set(), None
+        nfill, which, problem, seen = 0, set(), None, False
         if "level" in first.dims:
+            ks = _sample_levels(first.sizes["level"])
+            first = first.isel(level=ks)
             slab = to_numpy(first) if first.size <= 2e7 else None  # one read if small
-            for k in range(first.sizes["level"]):
-                vals = np.asarray(slab[k] if slab is not None else to_numpy(first.isel(level=k)),
+            for j, k in enumerate(ks):
+                vals = np.asarray(slab[j] if slab is not None else to_numpy(first.isel(level=j)),
                                   np.float64)
+                seen = seen or bool(np.isfinite(vals).any())
                 hit = fill_mask(vals, kind, scale, offset)
                 nfill += int(np.count_nonzero(hit))
                 which.update(np.unique(vals[hit]).tolist())
@@ -548,10 +563,13 @@ def _check_fields(fills, path, sources, levels) -> tuple:
                     break
         else:
             vals = np.asarray(to_numpy(first), np.float64)
+            seen = bool(np.isfinite(vals).any())
             hit = fill_mask(vals, kind, scale, offset)
             nfill, which = int(np.count_nonzero(hit)), set(np.unique(vals[hit]).tolist())
             problem = range_problem(kind, to_si(vals, kind, scale, offset),
                                     ROLES[kind].target_units)
+        if role in REQUIRED_ROLES and not seen and not _any_valid(raw):
+            raise CaseError("holds no valid values at any time (all missing)", path, var)
         if nfill:
             w = sorted(which)
             notes.append(f"{var!r}: {nfill} values at the first valid time equal the producer "
@@ -563,6 +581,17 @@ def _check_fields(fills, path, sources, levels) -> tuple:
             raise CaseError(problem, path, var)
         dropped[role] = f"{ROLES[role].words} ({var!r}) left out: {problem}"
     return notes, dropped
+
+
+def _sample_levels(n: int, most: int = 6) -> list:
+    """Up to ``most`` level indices spread over a column, the bottom and the top included.
+
+    The opening check looks at these; every slab the core reads later is checked
+    in full (:meth:`Case._check_window`), so a bad level is still caught.
+    """
+    if n <= most:
+        return list(range(n))
+    return sorted({int(round(x)) for x in np.linspace(0, n - 1, most)})
 
 
 def _any_valid(da) -> bool:

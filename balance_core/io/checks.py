@@ -66,18 +66,30 @@ HEIGHT_TOLERANCE = {"point": (1500.0, 0.15), "median": (500.0, 0.08)}
 def fill_mask(values, role: str, scale: float, offset: float):
     """Where raw ``values`` hold a usual fill value outside the role's range (numpy).
 
-    ``scale`` and ``offset`` convert raw values to the role's SI unit.
+    ``scale`` and ``offset`` convert raw values to the role's SI unit. Only the
+    values outside the range are compared with the fill values (few, or none).
     """
     lo, hi = BOUNDS[role]
-    si = values * scale + offset
-    return np.isin(values, FILL_VALUES) & ((si < lo) | (si > hi))
+    raw = np.asarray(values)
+    si = raw * scale + offset if (scale != 1.0 or offset != 0.0) else raw
+    out = (si < lo) | (si > hi)
+    if out.any():
+        out[out] = np.isin(raw[out], FILL_VALUES)
+    return out
 
 
 def to_si(values, role: str, scale: float, offset: float):
-    """Raw values in the role's SI unit (float64), usual fill values set to NaN (numpy block)."""
-    raw = np.asarray(values, dtype=np.float64)
-    out = raw * scale + offset if (scale != 1.0 or offset != 0.0) else raw.copy()
-    out[fill_mask(raw, role, scale, offset)] = np.nan
+    """Raw values in the role's SI unit (a new float64 array), usual fill values set to NaN."""
+    lo, hi = BOUNDS[role]
+    raw = np.asarray(values)
+    out = np.array(raw, dtype=np.float64, copy=True)
+    if scale != 1.0 or offset != 0.0:
+        out *= scale
+        out += offset
+    outside = (out < lo) | (out > hi)
+    if outside.any():
+        outside[outside] = np.isin(raw[outside], FILL_VALUES)
+        out[outside] = np.nan
     return out
 
 

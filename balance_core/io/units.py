@@ -142,6 +142,10 @@ def to_numpy(values):
     distributed client) for every small slice; the io layer reads one field at
     a time, and the core parallelises its own work.
     """
+    import sys
+
+    if "dask" not in sys.modules:  # nothing lazy can be dask-backed
+        return np.asarray(getattr(values, "values", values))
     import dask
     import dask.local
 
