@@ -21,8 +21,9 @@ run: system install
 test: system install samples
 	$(BIN)/python -m pytest $(PYTEST_ARGS)
 
-bench: install
+bench: install samples
 	$(BIN)/python bench/core.py
+	$(BIN)/python bench/io.py
 	$(BIN)/python bench/app.py
 
 verify: install

@@ -100,6 +100,9 @@ class ChartData:
     graticule: tuple
     region_xy: tuple | None
     notes: list
+    #: 1 where the level has no data (below the ground or missing), NaN elsewhere
+    masked: np.ndarray | None = None
+    masked_share: float = 0.0
 
 
 def _field_values(key, diag, state):
@@ -217,13 +220,25 @@ def chart_data(library, state: ViewState) -> ChartData:
     region_xy = None
     if spec is not None:
         region_xy = _region_outline(geom, region)
+    # points without data at this level: below the ground or missing, shown, never hidden
+    valid = np.isfinite(diag.height) & np.isfinite(diag.u) & np.isfinite(diag.v)
+    masked = None
+    share = float(1.0 - valid.mean())
+    if share > 0:
+        frac = render.sample(geom, np.where(valid, 0.0, 1.0))
+        masked = np.where(frac > 0.5, 1.0, np.nan).astype(np.float32)
+        below = case.below_ground_mask(sel.time_index, sel.level_index)
+        nb = 0 if below is None else int(np.count_nonzero(below))
+        notes.append(f"Grey: {100 * share:.0f} % of the level has no data"
+                     + (f" ({nb} points below the ground)" if nb else "")
+                     + "; those points are left out of every number")
     title = f"{case.name}  {sel.level_hpa:g} hPa  {sel.valid_time}"
     return ChartData(geom=geom, title=title, field_key=key, field_label=field_label(key),
                      units=units, raster=raster, color_range=_color_range(raster, kind),
                      color_kind=kind, contours=contours, contour_units=zunits, vectors=vectors,
                      vector_label=vlabel, hover=hover, coast=coast, coast_note=coast_note,
                      land=land, graticule=render.graticule(geom), region_xy=region_xy,
-                     notes=notes)
+                     notes=notes, masked=masked, masked_share=share)
 
 
 def _hover(geom, diag, vals, state, units, n_across=48):

@@ -14,6 +14,7 @@ session's own event loop, newest request wins.
 
 from __future__ import annotations
 
+import html
 import io
 import json
 import logging
@@ -252,6 +253,12 @@ class Dashboard(pn.viewable.Viewer):
                      title="", output_backend="canvas", x_range=Range1d(0, 1), y_range=Range1d(0, 1))
         fig.image(image="image", x="x", y="y", dw="dw", dh="dh", source=self.img_src,
                   color_mapper=self.mapper)
+        # points with no data at the level (below the ground or missing): grey, drawn
+        self.mask_src = ColumnDataSource(dict(image=[np.full((2, 2), np.nan, np.float32)],
+                                              x=[0], y=[0], dw=[1], dh=[1]))
+        fig.image(image="image", x="x", y="y", dw="dw", dh="dh", source=self.mask_src,
+                  color_mapper=LinearColorMapper(palette=["#6f6f6f"], low=0, high=1,
+                                                 nan_color=(0, 0, 0, 0)), global_alpha=0.6)
         fig.multi_line("xs", "ys", source=self.grat_src, line_color="#777777", line_alpha=0.6,
                        line_dash="dotted", line_width=1)
         fig.multi_line("xs", "ys", source=self.coast_src, line_color="#222222", line_width=1.6)
@@ -614,6 +621,9 @@ class Dashboard(pn.viewable.Viewer):
         self.mapper.palette = _palette("diverging" if cd.color_kind == "diverging" else "seq")
         self.mapper.low, self.mapper.high = float(lo), float(hi)
         self.img_src.data = dict(image=[data], x=[x0], y=[y0], dw=[x1 - x0], dh=[y1 - y0])
+        blank = np.full((2, 2), np.nan, np.float32)
+        self.mask_src.data = dict(image=[cd.masked if cd.masked is not None else blank],
+                                  x=[x0], y=[y0], dw=[x1 - x0], dh=[y1 - y0])
         self.colorbar.title = self.colorbar_log.title = (
             f"{cd.field_label}" + (f" ({cd.units})" if cd.units else ""))
         lx, ly, lv, labels = cd.contours
@@ -696,14 +706,19 @@ class Dashboard(pn.viewable.Viewer):
             return
         self._show(self.box_alert, "")
         v = rep["verdict"]
+        esc = html.escape
+        title = "No verdict" if v["balance"] == "none" else v["balance"].capitalize()
+        share = rep.get("valid_share")
+        valid = (f"{rep['points']} of {rep.get('region_points', rep['points'])} points valid"
+                 + (f" ({100 * share:.0f} %)" if share is not None else ""))
+        why = (f"<div style='font-size:16px;margin-top:6px'><b>Why:</b> {esc(v['why'])}</div>"
+               if v.get("why") else "")
         self.verdict.object = (
             f"<div class='bd-verdict' style='font-size:19px;line-height:1.35;"
-            f"border-left:6px solid {ORANGE};"
+            f"border-left:6px solid {ORANGE if v['balance'] != 'none' else '#6f6f6f'};"
             f"padding:6px 10px;background:#fafafa'><div style='font-size:24px;font-weight:700'>"
-            f"{v['balance'].capitalize()}</div>{v['text']}<div style='font-size:15px;color:#444;"
-            f"margin-top:4px'>{rep['region_text']}, {rep['points']} points"
-            f"{', ' + str(rep['masked_points']) + ' masked' if rep['masked_points'] else ''}"
-            "</div></div>")
+            f"{esc(title)}</div>{esc(v['text'])}{why}<div style='font-size:15px;color:#444;"
+            f"margin-top:4px'>{esc(rep['region_text'])}, {valid}</div></div>")
         avail = [t for t in rep["terms"] if t["magnitude"] is not None]
         mags = [t["magnitude"] for t in avail] + [t["estimate"] for t in avail if t["estimate"]]
         mags = [m for m in mags if m and m > 0]
@@ -752,12 +767,15 @@ class Dashboard(pn.viewable.Viewer):
 
     def _numbers_html(self, rep):
         rows = []
+        explain = rep.get("explain", {})
         for k, (label, unit, meaning) in NUMBER_HELP.items():
             val = rep["numbers"].get(k)
             txt = "n/a" if val is None else (f"{val:.3g}")
-            rows.append(f"<tr title='{meaning}' style='cursor:help'><td style='padding:2px 12px "
+            said = (f"<tr><td colspan='2' style='font-size:14px;color:#333;padding:0 0 6px 8px'>"
+                    f"{html.escape(explain[k])}</td></tr>" if k in explain else "")
+            rows.append(f"<tr title='{html.escape(meaning)}'><td style='padding:2px 12px "
                         f"2px 0;border-bottom:1px dotted #999'>{label}</td><td "
-                        f"style='text-align:right'><b>{txt}</b> {unit}</td></tr>")
+                        f"style='text-align:right'><b>{txt}</b> {unit}</td></tr>{said}")
         w = rep.get("winds", {})
         spd = w.get("speed_rms")
         gsp = w.get("geostrophic_speed_rms")
@@ -773,19 +791,39 @@ class Dashboard(pn.viewable.Viewer):
             extra += (f"<tr title='geostrophic wind speed from the height gradient'><td>"
                       f"geostrophic speed</td><td style='text-align:right'><b>{gsp * k:.1f}</b> {u}"
                       f"{warn}</td></tr>")
-        return ("<div style='font-size:16px'><b>Numbers</b> (hover a row for its meaning)"
-                "<table style='font-size:16px'>" + "".join(rows) + extra + "</table></div>")
+        more = "".join(f"<li><b>{label}</b>: {html.escape(meaning)}</li>"
+                       for k, (label, _, meaning) in NUMBER_HELP.items() if k not in explain)
+        return ("<div style='font-size:16px'><b>Numbers</b>"
+                "<table style='font-size:16px'>" + "".join(rows) + extra + "</table>"
+                "<details style='font-size:15px'><summary>What the other numbers mean</summary>"
+                f"<ul>{more}</ul></details></div>")
 
     def _notes_md(self, rep):
         lines = ["#### How this region was computed"]
-        lines += [f"- {n}" for n in rep.get("notes", [])]
+        lines += [f"- {_md_text(n)}" for n in rep.get("notes", [])]
+        src = rep.get("sources") or {}
+        if src:
+            lines.append("#### Where each field came from")
+            for role, d in src.items():
+                grib = (f", GRIB {d['grib_short_name']} (paramId {d['grib_param_id']}, "
+                        f"{d['grib_type_of_level']})" if d.get("grib_short_name") else "")
+                conv = (f", converted from {d['units_from']}" if d.get("units_from") and
+                        d["units_from"] != d.get("units_to") else "")
+                rot = f", {d['rotated']}" if d.get("rotated") else ""
+                lines.append(f"- {_md_text(role)}: {_md_text(repr(d['variable']))} of "
+                             f"{_md_text(d['file'])}, {_md_text(d['level_type'])}"
+                             f"{_md_text(grib + conv + rot)}")
+        if rep.get("left_out"):
+            lines.append("#### Found but left out")
+            lines += [f"- {_md_text(t)}" for t in rep["left_out"].values()]
         if rep.get("residual_causes"):
             lines.append("#### What the residual may hold")
-            lines += [f"- {c}" for c in rep["residual_causes"]]
+            lines += [f"- {_md_text(c)}" for c in rep["residual_causes"]]
         s = rep.get("scales") or {}
         if s:
             lines.append("#### Scales estimated from the region")
             lines.append(", ".join(f"{k} = {v:.3g}" for k, v in s.items()))
+            lines += [f"- {k}: {_md_text(t)}" for k, t in (rep.get("scales_recipe") or {}).items()]
         lines.append(f"\nVerdict thresholds are the project's own choice (balanced at or below "
                      f"{self.thresholds.balanced:g}); see DEVELOPERS.md.")
         return "\n".join(lines)
@@ -874,12 +912,16 @@ class Dashboard(pn.viewable.Viewer):
 
     def _update_header(self):
         s = self.state
+        rep = self._report or {}
+        share = rep.get("valid_share")
+        valid = (f" &middot; {100 * share:.0f} % of the region valid" if share is not None
+                 else "")
         self.header.object = (
             f"<div style='display:flex;justify-content:space-between;align-items:baseline'>"
             f"<span style='font-size:26px;font-weight:700'>balance-desk</span>"
-            f"<span style='font-size:19px'>{s.case} &middot; {s.level:g} hPa &middot; "
-            f"{(s.time or '').replace('T', ' ').replace(':00Z', ' UTC')} &middot; "
-            f"{s.region_text()}</span></div>")
+            f"<span style='font-size:19px'>{html.escape(s.case)} &middot; {s.level:g} hPa "
+            f"&middot; {html.escape((s.time or '').replace('T', ' ').replace(':00Z', ' UTC'))} "
+            f"&middot; {html.escape(s.region_text())}{valid}</span></div>")
 
     # -- drawing a box on the chart ------------------------------------------------------------
     def _on_select(self, event):
@@ -932,6 +974,14 @@ class _Done:
 
     def result(self):
         return self._v
+
+
+def _md_text(text) -> str:
+    """Text for a Markdown pane, shown as text: HTML escaped and Markdown marks made literal."""
+    out = html.escape(str(text))
+    for ch in "\\`*_{}[]()#+-!|>~":
+        out = out.replace(ch, "\\" + ch)
+    return out
 
 
 def _clean(obj):
