@@ -17,8 +17,6 @@ import json
 import math
 import sys
 
-import numpy as np
-
 # pyproj before anything that may load eccodes (cfgrib): the other order makes
 # the process crash at exit with the current binary wheels.
 import pyproj  # noqa: F401
@@ -57,8 +55,42 @@ def _number(name, lower=None, strict=False):
     return conv
 
 
+def _bounded(name, lo, hi):
+    """An argparse type: a number from ``lo`` to ``hi``."""
+    base = _number(name)
+
+    def conv(text):
+        val = base(text)
+        if not lo <= val <= hi:
+            raise argparse.ArgumentTypeError(f"{name} must lie from {lo:g} to {hi:g}, got {text}")
+        return val
+    return conv
+
+
 def _positive(name):
     return _number(name, 0.0, strict=True)
+
+
+def _port(text):
+    try:
+        val = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"--port must be a whole number, got {text!r}") from None
+    if not 1 <= val <= 65535:
+        raise argparse.ArgumentTypeError(f"--port must lie from 1 to 65535, got {text}")
+    return val
+
+
+def _size(name):
+    def conv(text):
+        from balance_core.io.limits import parse_size
+
+        try:
+            return parse_size(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{name} must be a size such as 512M or 4G, got "
+                                             f"{text!r}") from None
+    return conv
 
 
 def _non_negative(name):
@@ -76,6 +108,9 @@ def _box(text):
     if not all(math.isfinite(v) for v in vals):
         raise argparse.ArgumentTypeError(f"--box needs finite numbers, got {text!r}")
     w, e, s, n = vals
+    if not (-360 <= w <= 360 and -360 <= e <= 360):
+        raise argparse.ArgumentTypeError(
+            f"--box west {w:g} and east {e:g} must lie within -360 to 360 degrees")
     if not -90 <= s < n <= 90:
         raise argparse.ArgumentTypeError(
             f"--box south {s:g} and north {n:g} must satisfy -90 <= south < north <= 90")
@@ -126,12 +161,16 @@ def build_parser() -> argparse.ArgumentParser:
                    help="valid time: an index (0 is the first) or an ISO 8601 time")
     p.add_argument("--box", default=None, type=_box, metavar="WEST,EAST,SOUTH,NORTH",
                    help="degrees; west > east crosses the dateline (default: the whole domain)")
-    p.add_argument("--min-lat", type=_non_negative("--min-lat"), default=10.0, metavar="DEG",
-                   help="mask quantities divided by f this close to the equator (default 10)")
+    p.add_argument("--min-lat", type=_bounded("--min-lat", 0.0, 60.0), default=10.0,
+                   metavar="DEG", help="mask quantities divided by f this close to the equator "
+                                       "(0 to 60, default 10)")
     p.add_argument("--smooth", type=_non_negative("--smooth"), default=None, metavar="KM",
                    help="Gaussian smoothing of the input fields (standard deviation, km)")
     p.add_argument("--member", default="0", metavar="N|mean",
                    help="ensemble member index, or 'mean' (default 0, the first)")
+    p.add_argument("--memory-budget", type=_size("--memory-budget"), default=None,
+                   metavar="SIZE", help="memory one level may use, e.g. 4G (default: a quarter "
+                                        "of the machine's memory, or BALANCE_DESK_MEMORY_BUDGET)")
     p.add_argument("--format", choices=("table", "json", "csv"), default="table")
     p.set_defaults(func=cmd_analyze)
 
@@ -148,8 +187,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("files", nargs="*", metavar="FILE")
     p.add_argument("--cases", default=None, metavar="DIR", help="serve every case in DIR")
     p.add_argument("--host", default="127.0.0.1", help="address to bind (default 127.0.0.1)")
-    p.add_argument("--port", type=int, default=5006)
+    p.add_argument("--port", type=_port, default=5006, help="1 to 65535 (default 5006)")
     p.add_argument("--show", action="store_true", help="open a browser window")
+    p.add_argument("--memory-budget", type=_size("--memory-budget"), default=None,
+                   metavar="SIZE", help="memory one level may use, e.g. 4G")
     p.set_defaults(func=cmd_serve)
 
     p = sub.add_parser("verify", help="run the reference checks on this machine",
@@ -260,170 +301,57 @@ def _member(text):
 def cmd_analyze(args) -> int:
     from balance_core.io import CaseError, analyse_case, open_case
 
+    from . import formats
+
     try:
-        case = open_case(args.files, member=_member(args.member), min_lat=args.min_lat)
+        case = open_case(args.files, member=_member(args.member), min_lat=args.min_lat,
+                         memory_budget=args.memory_budget)
         rep = analyse_case(case, args.level, args.time, args.box, smooth_km=args.smooth or None)
     except CaseError as exc:
         raise UsageError(str(exc)) from None
     if args.format == "json":
-        print(json.dumps(rep, indent=2, default=_json_default))
+        print(json.dumps(formats.clean(rep), indent=2))
     elif args.format == "csv":
-        print(format_analysis_csv(rep), end="")
+        print(formats.export_csv(rep, formats.context_of(rep)), end="")
     else:
-        print(format_analysis_table(rep))
+        print(formats.table(rep))
     return 0
-
-
-def _json_default(o):
-    if hasattr(o, "item"):
-        return o.item()
-    raise TypeError(f"not JSON serialisable: {type(o).__name__}")
-
-
-def _fmt(x, spec=".2e"):
-    return "n/a" if x is None else format(x, spec)
-
-
-def format_analysis_table(rep: dict) -> str:
-    box = rep["box"]
-    where = ("whole domain" if box["west"] is None else
-             f"box {box['west']:g} to {box['east']:g} E, {box['south']:g} to {box['north']:g} N")
-    share = rep.get("valid_share")
-    lines = [f"{rep['case']}  {rep['level_hpa']:g} hPa  {rep['valid_time']}  {where}",
-             f"{rep['points']} of {rep.get('region_points', rep['points'])} points valid"
-             + (f" ({100 * share:.0f} %)" if share is not None else "")
-             + f", {rep['masked_points']} masked", "",
-             f"verdict: {rep['verdict']['balance']}", f"  {rep['verdict']['text']}"]
-    if rep["verdict"].get("why"):
-        lines.append(f"  why: {rep['verdict']['why']}")
-    lines.append("")
-    pgf = next((t["magnitude"] for t in rep["terms"] if t["name"] == "pressure_gradient"), None)
-    lines.append("  term                  measured (m s-2)  a priori   / PGF   note")
-    for t in rep["terms"]:
-        ratio = _fmt(t["magnitude"] / pgf, ".2f") if t["magnitude"] is not None and pgf else "n/a"
-        note = t["note"] if t["magnitude"] is None or t["name"] == "residual" else ""
-        lines.append(f"  {t['name']:<20}  {_fmt(t['magnitude']):<16}  {_fmt(t['estimate']):<9}  "
-                     f"{ratio:<6}  {note or ''}".rstrip())
-    lines.append("  derived views (not part of the sum)")
-    for t in rep["derived"]:
-        lines.append(f"  {t['name']:<20}  {_fmt(t['magnitude']):<16}  {_fmt(t['estimate']):<9}")
-    lines += ["", "  balance         imbalance ratio (RMS of the sum / RMS of the PGF)"]
-    for k, v in rep["balances"].items():
-        mark = "  <- verdict" if k == rep["verdict"]["balance"] else ""
-        lines.append(f"  {k:<14}  {_fmt(v, '.3f')}{mark}")
-    lines += ["", "  winds"]
-    for k, v in rep["winds"].items():
-        lines.append(f"  {k:<30}  {_fmt(v, '.3g')}")
-    lines += ["", "  numbers"]
-    for k, v in rep["numbers"].items():
-        lines.append(f"  {k:<30}  {_fmt(v, '.3g')}")
-    for k, text in rep.get("explain", {}).items():
-        lines.append(f"    {k}: {text}")
-    if rep.get("scales"):
-        lines += ["", "  scales from the box: " + ", ".join(
-            f"{k} {_fmt(v, '.2e')}" for k, v in rep["scales"].items())]
-        for k, text in rep.get("scales_recipe", {}).items():
-            lines.append(f"    {k}: {text}")
-    res = rep.get("resolution")
-    if res:
-        lines.append(f"  resolution: grid spacing {res['grid_spacing_km']:.0f} km, flow length "
-                     f"scale {res['flow_length_km']:.0f} km ({res['points_per_length']:.1f} "
-                     f"spacings): {'resolved' if res['resolved'] else 'UNDER-RESOLVED'}")
-    for c in rep.get("residual_causes", []):
-        lines.append(f"  residual: {c}")
-    if rep.get("sources"):
-        lines += ["", "  sources"]
-        for role, src in rep["sources"].items():
-            grib = (f", GRIB {src['grib_short_name']} (paramId {src['grib_param_id']}, "
-                    f"{src['grib_type_of_level']})") if src.get("grib_short_name") else ""
-            conv = (f", {src['units_from']} -> {src['units_to']}"
-                    if src.get("units_from") and src["units_from"] != src["units_to"] else "")
-            lines.append(f"  {role:<17} {src['variable']!r} ({src['level_type']}{grib}{conv})")
-    for role, why in rep.get("left_out", {}).items():
-        lines.append(f"  left out: {why}")
-    for n in rep.get("notes", []):
-        lines.append(f"  note: {n}")
-    return "\n".join(lines)
-
-
-def format_analysis_csv(rep: dict) -> str:
-    import csv
-    import io
-
-    buf = io.StringIO()
-    w = csv.writer(buf)
-    w.writerow(["case", "level_hpa", "valid_time", "kind", "name", "magnitude_m_s-2", "x_rms",
-                "y_rms", "estimate", "note"])
-    for kind in ("terms", "derived"):
-        for t in rep[kind]:
-            w.writerow([rep["case"], rep["level_hpa"], rep["valid_time"], kind[:-1] if kind ==
-                        "terms" else "derived", t["name"], t["magnitude"], t["x_rms"], t["y_rms"],
-                        t["estimate"], t["note"] or ""])
-    for k, v in rep["balances"].items():
-        w.writerow([rep["case"], rep["level_hpa"], rep["valid_time"], "balance", k, v, "", "",
-                    "", "chosen" if k == rep["verdict"]["balance"] else ""])
-    return buf.getvalue()
 
 
 # -- cases ---------------------------------------------------------------------------
 
-def sample_dir():
-    """The bundled sample cases (sample_cases/ next to the app package)."""
-    import os
-
-    return os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))),
-                        "sample_cases")
-
-
-def list_cases(directory=None) -> list:
-    import glob
-    import os
-
-    from balance_core.io import CaseError, iso, open_case
-
-    d = directory or sample_dir()
-    if not os.path.isdir(d):
-        raise UsageError(f"balance-desk cases: no directory {d}")
-    out = []
-    for path in sorted(glob.glob(os.path.join(d, "*.nc"))):
-        try:
-            c = open_case(path)
-        except CaseError as exc:
-            out.append({"file": os.path.basename(path), "error": str(exc)})
-            continue
-        box = c.attrs.get("suggested_box")
-        step = (c.times[1] - c.times[0]) / np.timedelta64(1, "h") if c.times.size > 1 else None
-        out.append({
-            "name": c.name, "file": os.path.basename(path), "title": c.title,
-            "levels_hpa": [float(p / 100) for p in c.levels_pa],
-            "valid_times": [iso(t) for t in c.times], "step_hours": step,
-            "suggested_box": json.loads(box) if box else None,
-            "expected": json.loads(c.attrs["expected_verdicts"]) if "expected_verdicts" in c.attrs
-            else [],
-        })
-    return out
-
-
 def cmd_cases(args) -> int:
+    import os
+
+    from .cases import list_cases
+
+    if args.dir is not None and not os.path.isdir(args.dir):
+        raise UsageError(f"balance-desk cases: no directory {args.dir}")
     cases = list_cases(args.dir)
     if args.format == "json":
         print(json.dumps(cases, indent=2))
         return 0
     for c in cases:
         if "error" in c:
-            print(f"{c['file']}: {c['error']}")
+            print(f"{c['file']}: could not be read: {c['error']}")
+            print()
             continue
-        print(f"{c['name']}  ({c['file']})")
+        print(f"{c['name']}  ({c['file']})" + ("  [invented demo data]" if c.get("invented")
+                                                else ""))
         print(f"  {c['title']}")
         print(f"  levels: {', '.join(f'{p:g}' for p in c['levels_hpa'])} hPa")
+        step = f" every {c['step_hours']:g} h" if c["step_hours"] else ""
         print(f"  valid times: {len(c['valid_times'])}, {c['valid_times'][0]} to "
-              f"{c['valid_times'][-1]} every {c['step_hours']:g} h")
+              f"{c['valid_times'][-1]}{step}")
         if c["suggested_box"]:
             b = c["suggested_box"]
             print(f"  suggested box: --box {b[0]:g},{b[1]:g},{b[2]:g},{b[3]:g}")
         for e in c["expected"]:
-            print(f"  expected at {e['level_hpa']} hPa, time {e['time_index']}, box "
-                  f"{','.join(f'{x:g}' for x in e['box'])}: {e['balance']}")
+            try:
+                print(f"  expected at {e['level_hpa']} hPa, time {e['time_index']}, box "
+                      f"{','.join(f'{x:g}' for x in e['box'])}: {e['balance']}")
+            except (KeyError, TypeError, ValueError):
+                continue
         print()
     return 0
 
@@ -431,15 +359,19 @@ def cmd_cases(args) -> int:
 # -- serve ---------------------------------------------------------------------------
 
 def cmd_serve(args) -> int:
-    from .serve import case_paths, serve
+    import os
+
+    from .serve import ServeError, serve
 
     if args.files and args.cases:
         raise UsageError("balance-desk serve: give files or --cases DIR, not both")
-    if args.cases and not __import__("os").path.isdir(args.cases):
+    if args.cases and not os.path.isdir(args.cases):
         raise UsageError(f"balance-desk serve: no directory {args.cases}")
-    if not case_paths(args.files, args.cases):
-        raise UsageError("balance-desk serve: no case files found")
-    serve(args.files, args.cases, host=args.host, port=args.port, show=args.show)
+    try:
+        serve(args.files, args.cases, host=args.host, port=args.port, show=args.show,
+              memory_budget=args.memory_budget, out=lambda text: print(text, flush=True))
+    except ServeError as exc:
+        raise UsageError(str(exc)) from None
     return 0
 
 

@@ -1,8 +1,9 @@
 """What each view shows, computed from the view state without any browser.
 
-Pure functions of (library, state) returning plain data; the dashboard only
-draws what they return, and the tests drive them directly. All physics comes
-from balance_core (the budget, the winds, the statistics, the verdict).
+Pure functions of (library, state) returning plain data; the page only draws
+what they return, and the tests drive them directly. All physics comes from
+balance_core (the budget, the winds, the statistics, the verdict); the words and
+formats from :mod:`app.vocab`.
 """
 
 from __future__ import annotations
@@ -15,33 +16,15 @@ import numpy as np
 from balance_core import Region, analyse_scales, classify_scales
 from balance_core.io import CaseError, iso
 from balance_core.io.analysis import analyse_case
-from balance_core.scales import PRESETS
+from balance_core.scales import PRESETS, SCALE_TERMS
 from balance_core.verdict import Thresholds
 
-from . import render
-from .state import VECTORS, ViewState, field_label
+from . import render, vocab
+from .state import SHEET_SCALES, VECTORS, ViewState, field_label
 
 __all__ = ["Selection", "resolve", "region_of", "ChartData", "chart_data", "box_data",
-           "levels_data", "times_data", "scale_sheet", "UNITS", "to_display"]
-
-KT = 0.514444  # m s-1 per knot (1852 m per hour)
-
-#: Display units of the desk for each kind of quantity.
-UNITS = {
-    "height": {"m": ("m", 1.0), "dam": ("dam", 0.1)},
-    "wind": {"m/s": ("m/s", 1.0), "kt": ("kt", 1 / KT)},
-}
-
-
-def to_display(kind, values, state: ViewState):
-    """Values in the desk's chosen units, and the unit label."""
-    if kind == "height":
-        label, k = UNITS["height"][state.height_units]
-        return np.asarray(values) * k, label
-    if kind == "wind":
-        label, k = UNITS["wind"][state.wind_units]
-        return np.asarray(values) * k, label
-    return values, ""
+           "levels_data", "times_data", "scale_sheet", "region_outline", "nearest_level",
+           "case_facts"]
 
 
 @dataclasses.dataclass
@@ -53,6 +36,11 @@ class Selection:
     time_index: int
     level_hpa: float
     valid_time: str
+    reference_time: str | None
+
+    @property
+    def when(self) -> str:
+        return vocab.when(self.valid_time, self.reference_time)
 
 
 def resolve(library, state: ViewState) -> Selection:
@@ -60,16 +48,29 @@ def resolve(library, state: ViewState) -> Selection:
     case = library.get(state.case)
     k = case.level_index(state.level)
     t = case.time_index(state.time or None)
-    return Selection(case, k, t, float(case.levels_pa[k] / 100), iso(case.times[t]))
+    ref = None
+    if case.reference_times is not None and not np.isnat(case.reference_times[t]):
+        ref = iso(case.reference_times[t])
+    return Selection(case, k, t, float(case.levels_pa[k] / 100), iso(case.times[t]), ref)
+
+
+def nearest_level(case, hpa: float) -> float:
+    """The case's pressure level nearest to ``hpa`` (in log pressure), hPa."""
+    levels = np.asarray(case.levels_pa, dtype=np.float64) / 100
+    return float(levels[np.argmin(np.abs(np.log(levels / max(float(hpa), 1e-3))))])
+
+
+def case_facts(case) -> dict:
+    """What the page says about a case beside its name: invented or not, its title."""
+    geo = str(case.attrs.get("geography", "")).lower()
+    src = str(case.attrs.get("source", "")).lower()
+    return {"invented": "invented" in geo or "synthetic" in src or "invented" in src,
+            "title": str(case.title)}
 
 
 def region_of(state: ViewState) -> Region:
     spec = state.region_spec()
-    if spec is None:
-        return Region.whole()
-    if spec["kind"] == "box":
-        return Region.box(*spec["bounds"])
-    return Region.polygon(spec["lons"], spec["lats"])
+    return Region.whole() if spec is None else spec.region()
 
 
 def _diag(library, state, sel):
@@ -83,6 +84,9 @@ def _diag(library, state, sel):
 class ChartData:
     geom: render.ViewGeometry
     title: str
+    level_hpa: float
+    valid_time: str
+    when: str
     field_key: str
     field_label: str
     units: str
@@ -91,8 +95,10 @@ class ChartData:
     color_kind: str          # "sequential", "diverging" or "log"
     contours: tuple          # (xs, ys, levels, labels) of height
     contour_units: str
+    contour_interval: float
     vectors: dict | None
     vector_label: str
+    reference_arrow: dict | None
     hover: dict
     coast: tuple | None
     coast_note: str
@@ -100,6 +106,7 @@ class ChartData:
     graticule: tuple
     region_xy: tuple | None
     notes: list
+    invented: bool = False
     #: 1 where the level has no data (below the ground or missing), NaN elsewhere
     masked: np.ndarray | None = None
     masked_share: float = 0.0
@@ -108,12 +115,12 @@ class ChartData:
 def _field_values(key, diag, state):
     """(values on the case grid, units, kind of colour scale)."""
     if key == "height":
-        v, u = to_display("height", diag.height, state)
+        v, u = vocab.height(diag.height, state.height_units)
         return v, u, "sequential"
     if key in ("speed", "geostrophic_speed", "ageostrophic_speed"):
         raw = {"speed": diag.speed, "geostrophic_speed": diag.geostrophic_speed,
                "ageostrophic_speed": np.hypot(diag.u - diag.ug, diag.v - diag.vg)}[key]
-        v, u = to_display("wind", raw, state)
+        v, u = vocab.wind(raw, state.wind_units)
         return v, u, "sequential"
     if key == "ageostrophic_fraction":
         return np.clip(diag.ageostrophic_fraction, 0, 2), "", "sequential"
@@ -133,9 +140,9 @@ def _field_values(key, diag, state):
         name = key[5:]
         t = diag.budget[name]
         if not t.available:
-            raise CaseError(f"the {name.replace('_', ' ')} term is unavailable: {t.note}")
+            raise CaseError(f"the {vocab.term_name(name)} term is unavailable: {t.note}")
         return t.magnitude(), "m s-2", "log"
-    raise CaseError(f"unknown field {key!r}")
+    raise CaseError(f"unknown field {vocab.quote(key)}")
 
 
 def _color_range(vals, kind):
@@ -164,9 +171,9 @@ def chart_data(library, state: ViewState) -> ChartData:
     sel = resolve(library, state)
     diag = _diag(library, state, sel)
     case = sel.case
+    spec = state.region_spec()
     region = region_of(state)
     centre = None
-    spec = state.region_spec()
     if spec is not None:
         centre = (0.5 * (region.west + region.east if region.east >= region.west
                          else region.west + region.east + 360), 0.5 * (region.south + region.north))
@@ -183,32 +190,38 @@ def chart_data(library, state: ViewState) -> ChartData:
     raster = render.sample(geom, vals)
     # height contours at display resolution
     zm = render.sample(geom, diag.height)
-    zr, zunits = to_display("height", zm, state)
-    k = 0.1 if state.height_units == "dam" else 1.0
+    zr, zunits = vocab.height(zm, state.height_units)
+    k = vocab.HEIGHT_UNITS[state.height_units][1]
     levels = render.nice_levels(np.nanmin(zm), np.nanmax(zm),
                                 steps=render.HEIGHT_INTERVALS) * k
+    interval = float(levels[1] - levels[0]) if len(levels) > 1 else float("nan")
     contours = render.contour_lines(geom.xs, geom.ys, zr, levels)
-    # vectors
-    vectors, vlabel = None, ""
+    # vectors, and a reference arrow of one lattice cell
+    vectors, vlabel, arrow = None, "", None
     if state.vectors != "none":
         uu, vv = {"wind": (diag.u, diag.v), "geostrophic": (diag.ug, diag.vg),
                   "ageostrophic": (diag.u - diag.ug, diag.v - diag.vg)}[state.vectors]
         ur = render.sample(geom, uu)
         vr = render.sample(geom, vv)
         vectors = render.vector_lattice(geom, ur, vr, n_across=18)
-        ref, wunit = to_display("wind", vectors["ref_speed"], state)
-        vlabel = (f"Vectors: {VECTORS[state.vectors]}; an arrow one lattice cell long is "
-                  f"{float(ref):.0f} {wunit}")
+        ref, wunit = vocab.wind(vectors["ref_speed"], state.wind_units)
+        speed = _round_speed(float(ref))
+        vlabel = f"Vectors: {VECTORS[state.vectors]}"
+        x0, x1, y0, y1 = geom.extent
+        cell = vectors["cell"] * speed / float(ref) if float(ref) > 0 else vectors["cell"]
+        arrow = {"x0": x0 + 0.04 * (x1 - x0), "y0": y0 + 0.05 * (y1 - y0),
+                 "x1": x0 + 0.04 * (x1 - x0) + 0.95 * cell, "y1": y0 + 0.05 * (y1 - y0),
+                 "text": f"{speed:g} {wunit}"}
         if state.vectors != "wind" and np.isnan(ur).mean() > 0.05:
             notes.append("geostrophic wind masked within "
                          f"{state.min_lat:g} degrees of the equator")
-    # hover readouts on a coarse lattice (field, height, wind, direction)
     hover = _hover(geom, diag, vals, state, units)
     coast = render.coastlines(geom)
     coast_note = ""
     if coast is None:
         coast_note = ("Coastlines unavailable: install the Debian package python-cartopy-data "
                       "(offline GSHHS shorelines)")
+    facts = case_facts(case)
     if "invented" in str(case.attrs.get("geography", "")):
         coast, coast_note = None, "Invented geography: real coastlines are not drawn"
     land = None
@@ -217,9 +230,7 @@ def chart_data(library, state: ViewState) -> ChartData:
         lr = render.sample(geom, lm)
         lx, ly, _, _ = render.contour_lines(geom.xs, geom.ys, lr, [0.5])
         land = (lx, ly)
-    region_xy = None
-    if spec is not None:
-        region_xy = _region_outline(geom, region)
+    region_xy = None if spec is None else region_outline(geom, spec)
     # points without data at this level: below the ground or missing, shown, never hidden
     valid = np.isfinite(diag.height) & np.isfinite(diag.u) & np.isfinite(diag.v)
     masked = None
@@ -232,48 +243,69 @@ def chart_data(library, state: ViewState) -> ChartData:
         notes.append(f"Grey: {100 * share:.0f} % of the level has no data"
                      + (f" ({nb} points below the ground)" if nb else "")
                      + "; those points are left out of every number")
-    title = f"{case.name}  {sel.level_hpa:g} hPa  {sel.valid_time}"
-    return ChartData(geom=geom, title=title, field_key=key, field_label=field_label(key),
-                     units=units, raster=raster, color_range=_color_range(raster, kind),
-                     color_kind=kind, contours=contours, contour_units=zunits, vectors=vectors,
-                     vector_label=vlabel, hover=hover, coast=coast, coast_note=coast_note,
-                     land=land, graticule=render.graticule(geom), region_xy=region_xy,
-                     notes=notes, masked=masked, masked_share=share)
+    title = f"{case.name} \u00b7 {sel.level_hpa:g} hPa \u00b7 {sel.when}"
+    return ChartData(geom=geom, title=title, level_hpa=sel.level_hpa, valid_time=sel.valid_time,
+                     when=sel.when, field_key=key, field_label=field_label(key), units=units,
+                     raster=raster, color_range=_color_range(raster, kind), color_kind=kind,
+                     contours=contours, contour_units=zunits, contour_interval=interval,
+                     vectors=vectors, vector_label=vlabel, reference_arrow=arrow, hover=hover,
+                     coast=coast, coast_note=coast_note, land=land,
+                     graticule=render.graticule(geom), region_xy=region_xy, notes=notes,
+                     invented=facts["invented"], masked=masked, masked_share=share)
+
+
+def _round_speed(x: float) -> float:
+    """A round reference speed near ``x`` (1, 2, 5 times a power of ten, or 10, 20, 25...)."""
+    if not x > 0:
+        return 10.0
+    e = 10.0 ** math.floor(math.log10(x))
+    return min((b * e for b in (1, 2, 2.5, 5, 10)), key=lambda v: abs(math.log(v / x)))
 
 
 def _hover(geom, diag, vals, state, units, n_across=48):
+    """A coarse lattice of readouts, each value already written as the page shows it."""
     ny, nx = geom.lon.shape
     step = max(1, nx // n_across)
     jj, ii = np.mgrid[step // 2:ny:step, step // 2:nx:step]
     lon, lat = geom.lon[jj, ii], geom.lat[jj, ii]
     sub = dataclasses.replace(geom, rows=geom.rows[jj, ii], cols=geom.cols[jj, ii])
     f = render.sample(sub, vals)
-    z, zu = to_display("height", render.sample(sub, diag.height), state)
+    z, zu = vocab.height(render.sample(sub, diag.height), state.height_units)
     u = render.sample(sub, diag.u)
     v = render.sample(sub, diag.v)
-    spd, wu = to_display("wind", np.hypot(u, v), state)
+    spd, wu = vocab.wind(np.hypot(u, v), state.wind_units)
     direction = (np.degrees(np.arctan2(-u, -v)) + 360) % 360  # where the wind comes from
     ok = np.isfinite(f) | np.isfinite(z)
     dx = (geom.xs[-1] - geom.xs[0]) / max(nx - 1, 1) * step
     dy = (geom.ys[-1] - geom.ys[0]) / max(ny - 1, 1) * step
+    zfmt = "{:.1f}" if zu == "dam" else "{:.0f}"
+    fu = f" {units}" if units else ""
     return {"x": geom.xs[ii][ok], "y": geom.ys[jj][ok], "w": np.full(ok.sum(), dx),
-            "h": np.full(ok.sum(), dy), "lon": ((lon[ok] + 180) % 360) - 180, "lat": lat[ok],
-            "field": f[ok], "height": z[ok], "speed": spd[ok], "direction": direction[ok],
+            "h": np.full(ok.sum(), dy),
+            "where": [f"{vocab.lat(a)}, {vocab.lon(b)}" for a, b in zip(lat[ok], lon[ok])],
+            "field": [_value_text(x) + fu if np.isfinite(x) else "no data" for x in f[ok]],
+            "height": [zfmt.format(x) + f" {zu}" if np.isfinite(x) else "no data" for x in z[ok]],
+            "wind": [f"{s:.0f} {wu} from {d:03.0f} deg" if np.isfinite(s) else "no data"
+                     for s, d in zip(spd[ok], direction[ok])],
             "field_units": units, "height_units": zu, "wind_units": wu}
 
 
-def _region_outline(geom, region: Region):
-    if region.kind == "box":
-        w, e, s, n = region.west, region.east, region.south, region.north
-        if e < w:
-            e += 360
-        t = np.linspace(0, 1, 40)
-        lons = np.concatenate([w + (e - w) * t, np.full(40, e), e + (w - e) * t, np.full(40, w)])
-        lats = np.concatenate([np.full(40, s), s + (n - s) * t, np.full(40, n), n + (s - n) * t])
-    else:
-        lons, lats = np.asarray(region.lons), np.asarray(region.lats)
-        lons = np.append(lons, lons[0])
-        lats = np.append(lats, lats[0])
+def _value_text(x) -> str:
+    ax = abs(float(x))
+    if ax == 0:
+        return "0"
+    if ax >= 1000:
+        return f"{x:.0f}"
+    if ax >= 1e-2:
+        return f"{x:.3g}"
+    return f"{x:.2e}"
+
+
+def region_outline(geom, spec):
+    """The region's edges in view coordinates."""
+    lons, lats = spec.outline()
+    lons = np.append(lons, lons[0])
+    lats = np.append(lats, lats[0])
     x, y = geom.to_view(lons, lats)
     return np.asarray(x), np.asarray(y)
 
@@ -289,72 +321,87 @@ def box_data(library, state: ViewState, thresholds: Thresholds = Thresholds()) -
                        smooth_km=state.smooth_km or None, thresholds=thresholds,
                        diagnostics=diag)
     rep["region_text"] = state.region_text()
+    rep["when"] = sel.when
+    rep["invented"] = case_facts(case)["invented"]
     rep["unavailable"] = [t for t in rep["terms"] if t["magnitude"] is None]
     return rep
 
 
-def levels_data(library, state: ViewState) -> dict:
-    """Term magnitudes and the verdict at every level, for the state's region and time."""
+def levels_data(library, state: ViewState, progress=None) -> dict:
+    """Term magnitudes and the verdict at every level, for the state's region and time.
+
+    ``progress(done, total)`` is called after each level.
+    """
     sel = resolve(library, state)
     region = region_of(state)
     key = ("levels", state.case, sel.time_index, state.smooth_km, state.min_lat, state.region)
 
     def make():
         rows = []
+        n = sel.case.levels_pa.size
         for k, p in enumerate(sel.case.levels_pa):
-            s2 = ViewState(**{**state.param.values(), "name": "tmp", "level": float(p / 100)})
+            s2 = state.copy()
+            s2.level = float(p / 100)
             try:
                 rep = box_data(library, s2)
             except CaseError as exc:
                 rows.append({"level_hpa": float(p / 100), "error": str(exc)})
-                continue
-            mags = {t["name"]: t["magnitude"] for t in rep["terms"] + rep["derived"]}
-            rows.append({"level_hpa": float(p / 100), "magnitudes": mags,
-                         "balance": rep["verdict"]["balance"], "ratios": rep["balances"]})
+            else:
+                mags = {t["name"]: t["magnitude"] for t in rep["terms"] + rep["derived"]}
+                rows.append({"level_hpa": float(p / 100), "magnitudes": mags,
+                             "balance": rep["verdict"]["balance"], "ratios": rep["balances"],
+                             "valid_share": rep.get("valid_share")})
+            if progress is not None:
+                progress(k + 1, n)
         return {"rows": rows, "region": state.region_text(), "time": sel.valid_time,
-                "region_kind": region.kind}
+                "when": sel.when, "region_kind": region.kind}
 
     return library.profile(key, make)
 
 
-def times_data(library, state: ViewState) -> dict:
+def times_data(library, state: ViewState, progress=None) -> dict:
     """Local Rossby number and ageostrophic fraction over the valid times, for the region."""
     sel = resolve(library, state)
     key = ("times", state.case, sel.level_index, state.smooth_km, state.min_lat, state.region)
 
     def make():
         out = []
+        n = sel.case.times.size
         for t, when in enumerate(sel.case.times):
-            s2 = ViewState(**{**state.param.values(), "name": "tmp", "time": iso(when)})
+            s2 = state.copy()
+            s2.time = iso(when)
             try:
                 rep = box_data(library, s2)
             except CaseError:
                 out.append({"time": iso(when), "rossby_local": None, "ageostrophic_fraction": None,
                             "balance": None})
-                continue
-            out.append({"time": iso(when),
-                        "rossby_local": rep["numbers"].get("rossby_local_median"),
-                        "ageostrophic_fraction": rep["winds"].get("ageostrophic_fraction_median"),
-                        "balance": rep["verdict"]["balance"]})
-        return {"series": out, "current": sel.valid_time}
+            else:
+                out.append({"time": iso(when),
+                            "rossby_local": rep["numbers"].get("rossby_local_median"),
+                            "ageostrophic_fraction":
+                                rep["winds"].get("ageostrophic_fraction_median"),
+                            "balance": rep["verdict"]["balance"]})
+            if progress is not None:
+                progress(t + 1, n)
+        return {"series": out, "current": sel.valid_time, "level_hpa": sel.level_hpa}
 
     return library.profile(key, make)
 
 
 # -- the a priori scale sheet ------------------------------------------------------------
 
-SHEET_SCALES = ("U", "W", "L", "H", "dP", "rho", "lat0", "nu")
-
-
-def scale_sheet(state: ViewState, overrides: dict | None, box_report: dict | None) -> dict:
-    """The preset (with any edits), its ranked magnitudes, numbers and verdict, beside the box.
+def scale_sheet(state: ViewState, box_report: dict | None) -> dict:
+    """The preset (with the state's edits), its ranked magnitudes, numbers and verdict, beside
+    the box.
 
     Returns rows of scales (sheet value, value estimated from the box), rows of
     terms (magnitude from the sheet, from the box's scales, measured in the box)
     and the two verdicts.
     """
     base = PRESETS[state.preset]
-    changes = {k: v for k, v in (overrides or {}).items() if v is not None}
+    changes = {k: v for k, v in (state.sheet or {}).items() if k in SHEET_SCALES and v is not None}
+    if "lat0" in changes:
+        changes["f0"] = None
     try:
         s = base.replace(**changes) if changes else base
         error = None
@@ -363,22 +410,29 @@ def scale_sheet(state: ViewState, overrides: dict | None, box_report: dict | Non
     res = analyse_scales(s)
     verdict = classify_scales(res)
     box_scales = (box_report or {}).get("scales") or {}
-    measured = {t["name"]: t["magnitude"] for t in (box_report or {}).get("terms", []) +
-                (box_report or {}).get("derived", [])}
-    estimated = {t["name"]: t["estimate"] for t in (box_report or {}).get("terms", []) +
-                 (box_report or {}).get("derived", [])}
+    rows = (box_report or {}).get("terms", []) + (box_report or {}).get("derived", [])
+    measured = {t["name"]: t["magnitude"] for t in rows}
+    estimated = {t["name"]: t["estimate"] for t in rows}
+    # the data's counterpart of each scale term: the friction estimate has none of its own,
+    # the residual (which holds friction and everything unresolved) stands beside it
     alias = {"acceleration": "acceleration", "viscous": "residual"}
     term_rows = []
     for name, mag in res.terms:
         data_name = alias.get(name, name)
-        term_rows.append({"name": name, "sheet": mag,
-                          "from_box_scales": estimated.get(data_name),
+        term_rows.append({"name": name, "label": vocab.term_name(name),
+                          "data_label": vocab.term_name(data_name) +
+                          (" (all that is unresolved)" if name == "viscous" else ""),
+                          "sheet": mag, "from_box_scales": estimated.get(data_name),
                           "measured": measured.get(data_name)})
     scale_rows = []
     for k in SHEET_SCALES:
-        box_k = {"lat0": None, "rho": None, "nu": None}.get(k, box_scales.get(k))
-        scale_rows.append({"name": k, "sheet": getattr(s, k), "from_box": box_k})
-    scale_rows.append({"name": "f0", "sheet": s.f0, "from_box": box_scales.get("f0")})
-    return {"preset": s.name, "source": s.source, "scales": scale_rows, "terms": term_rows,
+        box_k = {"lat0": None, "rho": None}.get(k, box_scales.get(k))
+        scale_rows.append({"name": k, "label": vocab.SCALE_NAMES.get(k, k),
+                           "sheet": getattr(s, k), "from_box": box_k,
+                           "edited": k in changes})
+    scale_rows.append({"name": "f0", "label": vocab.SCALE_NAMES["f0"], "sheet": s.f0,
+                       "from_box": box_scales.get("f0"), "edited": False})
+    return {"preset": state.preset, "preset_label": vocab.preset_name(state.preset),
+            "source": s.source, "scales": scale_rows, "terms": term_rows,
             "numbers": res.numbers, "verdict": verdict.as_dict(), "error": error,
-            "box_verdict": (box_report or {}).get("verdict")}
+            "box_verdict": (box_report or {}).get("verdict"), "order": list(SCALE_TERMS)}

@@ -3,8 +3,8 @@
 A case is opened once per server; the diagnostics of a (case, level, time,
 smoothing, tropical mask) are computed once behind a lock and handed to every
 session that asks, so a second session of the same case costs only its own
-view state. Heavy work runs in a small thread pool, off the server's event
-loop, so one user's level change does not stall another's page.
+view state. Heavy work runs in the fair pool of :mod:`app.work`, off the
+server's event loop, so one user's level change does not stall another's page.
 """
 
 from __future__ import annotations
@@ -14,19 +14,15 @@ import dataclasses
 import logging
 import os
 import threading
-from concurrent.futures import ThreadPoolExecutor
 
 import pyproj  # noqa: F401  (before anything that may load eccodes)
 
 from balance_core.io import CaseError, diagnostics_for, open_case
+from balance_core.io.errors import printable
 
-__all__ = ["CaseLibrary", "LoadedCase", "POOL"]
+__all__ = ["CaseLibrary", "LoadedCase"]
 
 log = logging.getLogger("balance_desk")
-
-#: Threads for heavy work (budgets, statistics, rasters); sessions share them.
-POOL = ThreadPoolExecutor(max_workers=max(2, min(4, os.cpu_count() or 2)),
-                          thread_name_prefix="balance-desk")
 
 
 @dataclasses.dataclass
@@ -70,24 +66,35 @@ class _LRU:
 class CaseLibrary:
     """The cases a server shows, loaded once, and their shared diagnostics cache."""
 
-    def __init__(self, paths, *, cache_size: int = 24):
+    def __init__(self, paths, *, cache_size: int = 24, memory_budget=None):
+        from .cases import case_names
+
         self.cases: dict = {}
-        for p in paths:
-            name = os.path.splitext(os.path.basename(str(p).rstrip("/")))[0]
+        for p, name in zip(paths, case_names(paths)):
             try:
-                case = open_case(p)
-                self.cases[case.name] = LoadedCase(case.name, str(p), case)
+                case = open_case(p, name=name, memory_budget=memory_budget)
+                self.cases[name] = LoadedCase(name, str(p), case)
             except CaseError as exc:
-                log.warning("could not load %s: %s", p, exc)
+                log.warning("could not load %s: %s", printable(str(p)), exc)
                 self.cases[name] = LoadedCase(name, str(p), None, str(exc))
             except Exception as exc:  # noqa: BLE001 - the server never dies on a bad file
-                log.exception("could not load %s", p)
+                log.exception("could not load %s", printable(str(p)))
                 self.cases[name] = LoadedCase(name, str(p), None,
-                                              f"{os.path.basename(str(p))}: could not be read "
-                                              f"({type(exc).__name__})")
+                                              f"{printable(os.path.basename(str(p)))}: could not "
+                                              f"be read ({type(exc).__name__})")
         self._diag = _LRU(cache_size)
         self._profiles = _LRU(cache_size * 4)
         self._masked = _LRU(8)
+
+    @property
+    def good(self) -> list:
+        """Names of the cases that loaded."""
+        return [n for n, lc in self.cases.items() if lc.case is not None]
+
+    @property
+    def failed(self) -> dict:
+        """Name -> sentence of the cases that did not load."""
+        return {n: lc.error for n, lc in self.cases.items() if lc.case is None}
 
     @classmethod
     def from_cases(cls, cases, *, cache_size: int = 24) -> "CaseLibrary":

@@ -480,4 +480,28 @@ def graticule(geom: ViewGeometry, step: float | None = None):
         if inside.any():
             k = np.nonzero(inside)[0][0]
             labels.append((float(x0), float(y[k]), _deg(lat, "N", "S"), "lat"))
-    return xs, ys, labels
+    return xs, ys, _thin_labels(labels, geom.extent)
+
+
+def _thin_labels(labels, extent, chars_across=70.0, rows_up=32.0):
+    """Drop graticule labels that would overlap one already kept (corners included).
+
+    A label's box is estimated from its length: the view is about ``chars_across``
+    characters wide and ``rows_up`` lines high at the chart's size.
+    """
+    x0, x1, y0, y1 = extent
+    cw, ch = (x1 - x0) / chars_across, (y1 - y0) / rows_up
+    kept, boxes = [], []
+    for x, y, text, kind in labels:
+        w = (len(text) + 1) * cw
+        # lon labels sit on the bottom edge, centred; lat labels on the left edge, upward
+        box = (x - w / 2, y, x + w / 2, y + 1.4 * ch) if kind == "lon" else \
+              (x, y - 0.7 * ch, x + w, y + 0.7 * ch)
+        if box[0] < x0 - cw or box[2] > x1 + cw or box[3] > y1 + ch:
+            continue
+        if any(not (box[2] < b[0] or box[0] > b[2] or box[3] < b[1] or box[1] > b[3])
+               for b in boxes):
+            continue
+        kept.append((x, y, text, kind))
+        boxes.append(box)
+    return kept

@@ -1,48 +1,121 @@
-"""Start the balance-desk server (Panel on Tornado) on files or a directory of cases."""
+"""Start the balance-desk server (Panel on Tornado) on files or a directory of cases.
+
+Every HTTP response carries headers that forbid framing by other origins and
+content-type sniffing, and a content security policy as strict as Bokeh and
+Panel allow (see DEVELOPERS.md, "The server's headers"): scripts and styles only
+from the server itself, with the two allowances the libraries need -- inline
+scripts (Bokeh embeds each document's JSON and its start-up call in the page)
+and ``eval`` (Bokeh compiles CustomJS callbacks and tick formatters with
+``new Function``) -- websockets only back to the server, no plugins, no
+framing by another origin.
+"""
 
 from __future__ import annotations
 
-import glob
 import logging
-import os
+import socket
 
 import pyproj  # noqa: F401  (before anything that may load eccodes)
 
-__all__ = ["serve", "case_paths"]
+from .cases import case_paths
+
+__all__ = ["serve", "case_paths", "security_headers", "ServeError", "check_address"]
 
 log = logging.getLogger("balance_desk")
 
 
-def case_paths(files=None, cases_dir=None):
-    """The files to load: the given ones, every case in a directory, or the sample cases."""
-    if files:
-        return list(files)
-    from .cli import sample_dir
-
-    d = cases_dir or sample_dir()
-    paths = sorted(p for p in glob.glob(os.path.join(d, "*"))
-                   if p.endswith((".nc", ".nc4", ".grib", ".grib2", ".grb", ".grb2", ".zarr")))
-    return paths
+class ServeError(Exception):
+    """The server cannot start: one sentence, exit status 2."""
 
 
-def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, threaded=False):
-    """Load the cases once and serve the dashboard; returns the server (blocks unless threaded)."""
+def security_headers(host: str, port: int) -> dict:
+    """The headers every response carries (see the module docstring)."""
+    csp = "; ".join([
+        "default-src 'self'",
+        "script-src 'self' 'unsafe-inline' 'unsafe-eval' blob:",
+        "worker-src 'self' blob:",
+        "style-src 'self' 'unsafe-inline'",
+        "img-src 'self' data: blob:",
+        "font-src 'self' data:",
+        f"connect-src 'self' ws://{host}:{port} wss://{host}:{port}",
+        "object-src 'none'",
+        "base-uri 'self'",
+        "form-action 'self'",
+        "frame-ancestors 'self'",
+    ])
+    return {"Content-Security-Policy": csp, "X-Frame-Options": "SAMEORIGIN",
+            "X-Content-Type-Options": "nosniff", "Referrer-Policy": "no-referrer",
+            "Cross-Origin-Opener-Policy": "same-origin"}
+
+
+def _transform(headers):
+    from tornado.web import OutputTransform
+
+    class SecurityHeaders(OutputTransform):
+        def transform_first_chunk(self, status_code, h, chunk, finishing):
+            for k, v in headers.items():
+                h[k] = v
+            return status_code, h, chunk
+
+    return SecurityHeaders
+
+
+def check_address(host: str, port: int):
+    """One sentence (ServeError) if the port is out of range or the host cannot be resolved."""
+    if not isinstance(port, int) or not 1 <= port <= 65535:
+        raise ServeError(f"balance-desk serve: port {port} is not a port (1 to 65535)")
+    try:
+        socket.getaddrinfo(host, port, type=socket.SOCK_STREAM)
+    except (socket.gaierror, UnicodeError, OSError) as exc:
+        raise ServeError(f"balance-desk serve: the host {host!r} cannot be used "
+                         f"({getattr(exc, 'strerror', None) or exc})") from None
+
+
+def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *,
+          memory_budget=None, start=True, out=print):
+    """Load the cases once and serve the desk page.
+
+    Says which cases failed and why, refuses to start (ServeError) when none loads
+    or the address cannot be used, and prints "serving" only once it listens.
+    Returns the server (after it stops when ``start``).
+    """
     import panel as pn
 
-    from .dashboard import make_session
+    from .desk import make_session
+    from .desk.look import GLOBAL_CSS
     from .library import CaseLibrary
 
+    check_address(host, port)
     logging.basicConfig(level=logging.INFO, format="%(asctime)s %(levelname)s %(message)s")
     paths = case_paths(files, cases_dir)
-    library = CaseLibrary(paths)
-    for lc in library.cases.values():
-        if lc.error:
-            log.warning("case %s not available: %s", lc.name, lc.error)
-    pn.extension(notifications=False)
-    address = f"http://{host}:{port}/"
-    print(f"balance-desk: serving {len(library.cases)} case(s) at {address}", flush=True)
-    server = pn.serve(lambda: make_session(library), address=host, port=port,
-                      show=show, title="balance-desk", threaded=threaded,
-                      websocket_origin=[f"{host}:{port}", f"localhost:{port}", f"127.0.0.1:{port}"],
-                      start=True, print=False)
+    if not paths:
+        raise ServeError("balance-desk serve: no case files found")
+    library = CaseLibrary(paths, memory_budget=memory_budget)
+    for name, why in library.failed.items():
+        out(f"balance-desk: not serving {name}: {why}")
+    if not library.good:
+        raise ServeError("balance-desk serve: none of the cases could be loaded (see above)")
+    pn.extension(notifications=True)
+    pn.config.disconnect_notification = ("The connection to the server is lost: what the page "
+                                         "shows is no longer current.")
+    if GLOBAL_CSS not in pn.config.raw_css:
+        pn.config.raw_css.append(GLOBAL_CSS)
+    origins = [f"{host}:{port}"] + ([f"localhost:{port}", f"127.0.0.1:{port}"]
+                                    if host in ("127.0.0.1", "localhost") else [])
+    try:
+        server = pn.serve(lambda: make_session(library), address=host, port=port, show=show,
+                          title="balance-desk", websocket_origin=origins, start=False,
+                          print=False, transforms=[_transform(security_headers(host, port))],
+                          check_unused_sessions=5000, unused_session_lifetime=60000)
+    except OSError as exc:
+        raise ServeError(f"balance-desk serve: cannot listen on {host}:{port} "
+                         f"({exc.strerror or exc})") from None
+    out(f"balance-desk: serving {len(library.good)} case(s) at http://{host}:{port}/ "
+        f"({', '.join(library.good)})")
+    if start:
+        server.start()
+        try:
+            server.io_loop.start()
+        except KeyboardInterrupt:
+            pass
     return server

@@ -1,54 +1,260 @@
-"""The view state: everything that says what one person is looking at.
+"""The view state: everything that says what one person (or one review room) is looking at.
 
-One ``param.Parameterized`` object, so the controls, the views, the page URL
-and (later) a shared team session can all hang off the same thing. It holds
-no data: the data lives in the shared :class:`app.library.CaseLibrary`.
+One ``param.Parameterized`` object that the page's parts read and write, that a
+copied link carries, and that a shared review can hand to several sessions. It
+holds no data: the data lives in the shared :class:`app.library.CaseLibrary`.
+
+**The link.** Every parameter travels in the page's query string in one compact
+form of our own, written by :func:`encode_query` and read back through one
+validating parser, :func:`parse_query`. A value that does not parse, or is out
+of range, is not taken: the default stays and a one-line message says so. The
+region is ``box:W,E,S,N`` or, for an area drawn on a conformal chart,
+``area:PROJ;lon,lat;lon,lat;lon,lat;lon,lat`` -- the four corners of the drawn
+rectangle and the projection it was drawn in (its sides are straight there), so
+that a drawn area makes a link of about a hundred characters.
 """
 
 from __future__ import annotations
 
-import json
+import dataclasses
 import math
+import re
 
+import numpy as np
 import param
 
-from balance_core import TERMS
+from balance_core import TERMS, Region
 from balance_core.scales import PRESETS
 
-__all__ = ["ViewState", "FIELDS", "VECTORS", "PROJECTIONS", "URL_PARAMS", "field_label"]
+from . import vocab
+
+__all__ = ["ViewState", "FIELDS", "VECTORS", "PROJECTIONS", "URL_PARAMS", "field_label",
+           "RegionSpec", "parse_region", "parse_box", "parse_query", "encode_query",
+           "SHEET_SCALES", "MAX_QUERY_VALUE"]
 
 #: Fields that can fill the chart: key -> label (units are added by the view).
 FIELDS = {
-    "height": "Geopotential height",
-    "speed": "Wind speed",
-    "geostrophic_speed": "Geostrophic wind speed",
-    "ageostrophic_speed": "Ageostrophic wind speed",
-    "ageostrophic_fraction": "Ageostrophic fraction |V - Vg| / |V|",
-    "rossby_local": "Local Rossby number |zeta / f|",
-    "vorticity": "Relative vorticity",
-    "omega": "Vertical motion (omega)",
-    "temperature": "Temperature",
-    **{f"term:{t}": f"|{t.replace('_', ' ')}|" for t in TERMS},
-    "term:acceleration": "|total acceleration DV/Dt|",
-    "term:centripetal": "|centripetal acceleration|",
+    "height": vocab.FIELD_NAMES["height"],
+    "speed": vocab.FIELD_NAMES["speed"],
+    "geostrophic_speed": vocab.FIELD_NAMES["geostrophic_speed"],
+    "ageostrophic_speed": vocab.FIELD_NAMES["ageostrophic_speed"],
+    "ageostrophic_fraction": vocab.FIELD_NAMES["ageostrophic_fraction"],
+    "rossby_local": vocab.FIELD_NAMES["rossby_local"],
+    "vorticity": vocab.FIELD_NAMES["vorticity"],
+    "omega": vocab.FIELD_NAMES["omega"],
+    "temperature": vocab.FIELD_NAMES["temperature"],
+    **{f"term:{t}": f"|{vocab.term_name(t)}|" for t in TERMS},
+    "term:acceleration": f"|{vocab.term_name('acceleration')}|",
+    "term:centripetal": f"|{vocab.term_name('centripetal')}|",
 }
 
 VECTORS = {"wind": "actual wind", "geostrophic": "geostrophic wind",
            "ageostrophic": "ageostrophic wind", "none": "no vectors"}
 PROJECTIONS = {"plate_carree": "plate carree (lon/lat)", "conformal": "conformal (Lambert or "
                "polar stereographic)"}
+#: The a priori scales the sheet lets you edit (the rest come from the preset).
+SHEET_SCALES = ("U", "W", "L", "H", "dP", "rho", "lat0", "nu")
 
-#: The parameters a page URL carries (name in the URL = parameter name).
+#: The parameters a page link carries (name in the link = parameter name).
 URL_PARAMS = ("case", "level", "time", "field", "vectors", "smooth_km", "min_lat", "region",
-              "projection", "height_units", "wind_units", "preset")
+              "projection", "height_units", "wind_units", "preset", "sheet")
+#: Longest value taken from a link (a drawn area is about 110 characters).
+MAX_QUERY_VALUE = 400
 
 
 def field_label(key: str) -> str:
     return FIELDS.get(key, key)
 
 
+# -- the region -----------------------------------------------------------------------------
+
+#: Projections a drawn area may name, and the parameters each takes (proj4 names).
+_AREA_PROJ = {"lcc": ("lat_1", "lat_2", "lat_0", "lon_0", "R"),
+              "stere": ("lat_0", "lat_ts", "lon_0", "R"),
+              "merc": ("lat_ts", "lon_0", "R")}
+_NUM = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
+
+
+def _finite(x) -> bool:
+    return isinstance(x, (int, float, np.floating, np.integer)) and not isinstance(x, bool) \
+        and math.isfinite(float(x))
+
+
+def parse_box(vals):
+    """[W, E, S, N] as floats if they make a box (finite, |lon| <= 360, -90 <= S < N <= 90)."""
+    try:
+        vals = [float(v) for v in vals]
+    except (TypeError, ValueError):
+        return None
+    if len(vals) != 4 or not all(math.isfinite(v) for v in vals):
+        return None
+    w, e, s, n = vals
+    if not (-360 <= w <= 360 and -360 <= e <= 360 and -90 <= s < n <= 90) or w == e:
+        return None
+    return [w, e, s, n]
+
+
+@dataclasses.dataclass(frozen=True)
+class RegionSpec:
+    """A region of the view: a lon/lat box, or an area drawn on a conformal chart."""
+
+    kind: str                       # "box" or "area"
+    bounds: tuple = ()              # box: (W, E, S, N)
+    corners: tuple = ()             # area: four (lon, lat) corners of the drawn rectangle
+    proj: tuple = ()                # area: ("lcc", (("lat_1", 38.0), ...)) the chart's projection
+
+    def to_text(self) -> str:
+        """The compact form carried by a link (see the module docstring)."""
+        if self.kind == "box":
+            return "box:" + ",".join(_short(v) for v in self.bounds)
+        name, params = self.proj
+        p = name + "".join(f",{k}={_short(v, 6)}" for k, v in params)
+        return "area:" + ";".join([p] + [f"{_short(lo)},{_short(la)}" for lo, la in self.corners])
+
+    def crs(self):
+        import pyproj
+
+        name, params = self.proj
+        text = f"+proj={name} " + " ".join(f"+{k}={v!r}" for k, v in params) + " +units=m +no_defs"
+        return pyproj.CRS.from_proj4(text)
+
+    def outline(self, n: int = 40):
+        """Lon/lat points along the region's edges (an area's sides are straight in its
+        projection)."""
+        if self.kind == "box":
+            w, e, s, n_ = self.bounds
+            if e < w:
+                e += 360
+            t = np.linspace(0, 1, n)
+            lons = np.concatenate([w + (e - w) * t, np.full(n, e), e + (w - e) * t, np.full(n, w)])
+            lats = np.concatenate([np.full(n, s), s + (n_ - s) * t, np.full(n, n_),
+                                   n_ + (s - n_) * t])
+            return lons, lats
+        import pyproj
+
+        crs = self.crs()
+        fwd = pyproj.Transformer.from_crs(crs.geodetic_crs, crs, always_xy=True)
+        inv = pyproj.Transformer.from_crs(crs, crs.geodetic_crs, always_xy=True)
+        lo, la = np.array(self.corners).T
+        x, y = fwd.transform(lo, la)
+        t = np.linspace(0, 1, n, endpoint=False)
+        xs = np.concatenate([x[i] + (x[(i + 1) % 4] - x[i]) * t for i in range(4)])
+        ys = np.concatenate([y[i] + (y[(i + 1) % 4] - y[i]) * t for i in range(4)])
+        lons, lats = inv.transform(xs, ys)
+        return np.asarray(lons), np.asarray(lats)
+
+    def region(self) -> Region:
+        if self.kind == "box":
+            return Region.box(*self.bounds)
+        lons, lats = self.outline()
+        ok = np.isfinite(lons) & np.isfinite(lats)
+        return Region.polygon(lons[ok], lats[ok])
+
+    def describe(self) -> str:
+        if self.kind == "box":
+            w, e, s, n = self.bounds
+            return f"box {vocab.lon(w)} to {vocab.lon(e)}, {vocab.lat(s)} to {vocab.lat(n)}"
+        lons, lats = self.outline(8)
+        return (f"drawn area {vocab.lon(float(np.nanmin(lons)))} to "
+                f"{vocab.lon(float(np.nanmax(lons)))}, {vocab.lat(float(np.nanmin(lats)))} to "
+                f"{vocab.lat(float(np.nanmax(lats)))}")
+
+    @property
+    def bounds_box(self):
+        """West, east, south, north of the region (an area's extent), for the typed fields."""
+        if self.kind == "box":
+            return tuple(self.bounds)
+        lons, lats = self.outline(8)
+        return (float(np.nanmin(lons)), float(np.nanmax(lons)), float(np.nanmin(lats)),
+                float(np.nanmax(lats)))
+
+
+def _short(v, digits=4) -> str:
+    """A number in few characters: at most ``digits`` decimals, no trailing zeros."""
+    text = f"{float(v):.{digits}f}".rstrip("0").rstrip(".")
+    return "0" if text in ("-0", "") else text
+
+
+def area_from_crs(crs, corners) -> RegionSpec | None:
+    """The area of a rectangle drawn in ``crs`` (a pyproj CRS) with these lon/lat corners."""
+    import warnings
+
+    with warnings.catch_warnings():  # the parameters asked for survive the proj4 form
+        warnings.simplefilter("ignore", UserWarning)
+        d = crs.to_dict()
+    name = d.get("proj")
+    if name not in _AREA_PROJ:
+        return None
+    params = []
+    for k in _AREA_PROJ[name]:
+        if k == "R":
+            params.append(("R", float(d.get("R", d.get("a", 6371008.7714)))))
+        elif k in d:
+            params.append((k, float(d[k])))
+    spec = RegionSpec("area", corners=tuple((float(a), float(b)) for a, b in corners),
+                      proj=(name, tuple(params)))
+    return parse_region(spec.to_text())[0]
+
+
+def parse_region(text):
+    """(RegionSpec or None, problem or None) from the compact text; '' is the whole case."""
+    t = str(text or "").strip()
+    if not t:
+        return None, None
+    if len(t) > MAX_QUERY_VALUE:
+        return None, "the region in the link is too long"
+    if t.startswith("box:"):
+        parts = t[4:].split(",")
+        if len(parts) == 4 and all(re.fullmatch(_NUM, p.strip()) for p in parts):
+            b = parse_box(parts)
+            if b is not None:
+                return RegionSpec("box", bounds=tuple(b)), None
+        return None, "the box in the link is not four numbers west, east, south, north"
+    if t.startswith("area:"):
+        pieces = t[5:].split(";")
+        if len(pieces) == 5:
+            head = pieces[0].split(",")
+            name = head[0]
+            allowed = _AREA_PROJ.get(name)
+            params, ok = [], allowed is not None
+            for kv in head[1:]:
+                k, _, v = kv.partition("=")
+                if not ok or k not in allowed or not re.fullmatch(_NUM, v):
+                    ok = False
+                    break
+                params.append((k, float(v)))
+            corners = []
+            for c in pieces[1:]:
+                xy = c.split(",")
+                if len(xy) != 2 or not all(re.fullmatch(_NUM, q) for q in xy):
+                    ok = False
+                    break
+                lo, la = float(xy[0]), float(xy[1])
+                if not (-540 <= lo <= 540 and -90 <= la <= 90):
+                    ok = False
+                    break
+                corners.append((lo, la))
+            if ok and _proj_ok(name, dict(params)):
+                return RegionSpec("area", corners=tuple(corners), proj=(name, tuple(params))), None
+        return None, "the drawn area in the link cannot be read"
+    return None, "the region in the link is neither a box nor a drawn area"
+
+
+def _proj_ok(name, p) -> bool:
+    lats = [p[k] for k in ("lat_0", "lat_1", "lat_2", "lat_ts") if k in p]
+    if not all(-90 <= v <= 90 for v in lats) or not -540 <= p.get("lon_0", 0.0) <= 540:
+        return False
+    if not 6.0e6 <= p.get("R", 6371008.7714) <= 6.5e6:
+        return False
+    if name == "lcc" and not ("lat_1" in p and abs(p["lat_1"]) < 89.9):
+        return False
+    return True
+
+
+# -- the state ----------------------------------------------------------------------------
+
 class ViewState(param.Parameterized):
-    """What one person is looking at. Round-trips through the page URL."""
+    """What one person is looking at. Round-trips through the page link."""
 
     case = param.String(default="", doc="name of the case shown")
     level = param.Number(default=500.0, bounds=(1.0, 1100.0), doc="pressure level, hPa")
@@ -59,96 +265,147 @@ class ViewState(param.Parameterized):
                              doc="Gaussian smoothing of the inputs, km (0 = none)")
     min_lat = param.Number(default=10.0, bounds=(0.0, 45.0),
                            doc="quantities divided by f are masked this close to the equator")
-    region = param.String(default="", doc="the region as JSON: "
-                          '{"kind": "box", "bounds": [W, E, S, N]} or '
-                          '{"kind": "polygon", "lons": [...], "lats": [...]}; empty = whole case')
+    region = param.String(default="", doc="the region in its compact form (box:W,E,S,N or "
+                                          "area:...); empty = the whole case")
     projection = param.Selector(default="plate_carree", objects=list(PROJECTIONS))
     height_units = param.Selector(default="m", objects=["m", "dam"])
     wind_units = param.Selector(default="m/s", objects=["m/s", "kt"])
     preset = param.Selector(default="synoptic_cyclone", objects=list(PRESETS),
                             doc="the a priori scale sheet's preset")
+    sheet = param.Dict(default={}, doc="the scale sheet's edits: scale name -> value")
 
     # -- the region ----------------------------------------------------------------
     def set_box(self, west, east, south, north):
         """A lon/lat box (degrees); west > east crosses the dateline."""
-        vals = [round(float(v), 4) for v in (west, east, south, north)]
-        self.region = json.dumps({"kind": "box", "bounds": vals})
+        b = parse_box([round(float(v), 4) for v in (west, east, south, north)])
+        if b is None:
+            raise ValueError("a box needs finite west, east, south, north with south < north")
+        self.region = RegionSpec("box", bounds=tuple(b)).to_text()
 
-    def set_polygon(self, lons, lats):
-        """A lon/lat polygon (the outline of a box drawn on a conformal map)."""
-        self.region = json.dumps({"kind": "polygon",
-                                  "lons": [round(float(x), 4) for x in lons],
-                                  "lats": [round(float(y), 4) for y in lats]})
+    def set_area(self, spec: RegionSpec):
+        """An area drawn on a conformal chart (see :func:`area_from_crs`)."""
+        self.region = spec.to_text()
 
     def clear_region(self):
         self.region = ""
 
-    def region_spec(self) -> dict | None:
-        """The parsed region, or None for the whole case (bad JSON counts as none)."""
-        if not self.region:
-            return None
-        try:
-            spec = json.loads(self.region)
-        except ValueError:
-            return None
-        if spec.get("kind") == "box" and len(spec.get("bounds", [])) == 4 and \
-                all(isinstance(v, (int, float)) and math.isfinite(v) for v in spec["bounds"]):
-            return spec
-        if spec.get("kind") == "polygon" and len(spec.get("lons", [])) >= 3 and \
-                len(spec.get("lons", [])) == len(spec.get("lats", [])):
-            return spec
-        return None
+    def region_spec(self) -> RegionSpec | None:
+        """The parsed region, or None for the whole case."""
+        return parse_region(self.region)[0]
 
     def region_text(self) -> str:
         spec = self.region_spec()
-        if spec is None:
-            return "whole case"
-        if spec["kind"] == "box":
-            w, e, s, n = spec["bounds"]
-            return f"box {_lon(w)} to {_lon(e)}, {_lat(s)} to {_lat(n)}"
-        return (f"drawn area {_lon(min(spec['lons']))} to {_lon(max(spec['lons']))}, "
-                f"{_lat(min(spec['lats']))} to {_lat(max(spec['lats']))}")
+        return "whole case" if spec is None else spec.describe()
 
-    # -- the URL ----------------------------------------------------------------------
-    def to_query(self) -> dict:
+    # -- the link -------------------------------------------------------------------
+    def values(self) -> dict:
         return {k: getattr(self, k) for k in URL_PARAMS}
 
-    def update_from_query(self, query: dict):
-        """Set parameters from URL query values (strings), ignoring ones that do not fit."""
-        changes = {}
-        for k in URL_PARAMS:
-            if k not in query:
-                continue
-            raw = query[k]
-            if isinstance(raw, (list, tuple)):
-                raw = raw[0] if raw else ""
-            if isinstance(raw, bytes):
-                raw = raw.decode()
-            p = self.param[k]
-            try:
-                if isinstance(p, param.Number):
-                    val = float(raw)
-                    lo, hi = p.bounds or (None, None)
-                    if (lo is not None and val < lo) or (hi is not None and val > hi):
-                        continue
-                elif isinstance(p, param.Selector):
-                    if raw not in p.objects:
-                        continue
-                    val = raw
-                else:
-                    val = str(raw)
-            except (TypeError, ValueError):
-                continue
-            changes[k] = val
-        if changes:
-            self.param.update(**changes)
-        return changes
+    def to_query(self) -> dict:
+        return encode_query(self.values())
+
+    def update_from_query(self, query: dict, *, cases=None) -> list:
+        """Take the valid values of a link; returns the one-line problems of the others."""
+        values, problems = parse_query(query, cases=cases)
+        if values:
+            self.param.update(**values)
+        return problems
+
+    def copy(self) -> "ViewState":
+        return ViewState(**{k: (dict(v) if isinstance(v, dict) else v)
+                            for k, v in self.values().items()})
 
 
-def _lon(x):
-    x = (float(x) + 180) % 360 - 180
-    return f"{abs(x):.1f}{'E' if x >= 0 else 'W'}"
+def encode_query(values: dict) -> dict:
+    """The link's query parameters (all text) of a state's values."""
+    out = {}
+    for k in URL_PARAMS:
+        v = values.get(k)
+        if k == "sheet":
+            out[k] = ",".join(f"{n}={_short(x, 6)}" for n, x in sorted((v or {}).items()))
+        elif isinstance(v, float):
+            out[k] = _short(v, 4)
+        else:
+            out[k] = "" if v is None else str(v)
+    return out
 
 
-def _lat(y):
-    return f"{abs(float(y)):.1f}{'N' if y >= 0 else 'S'}"
+def _first(raw):
+    if isinstance(raw, (list, tuple)):
+        raw = raw[0] if raw else ""
+    if isinstance(raw, bytes):
+        raw = raw.decode("utf-8", "replace")
+    return str(raw)
+
+
+def parse_query(query: dict, *, cases=None):
+    """(values, problems): the valid parameters of a link, and a sentence per invalid one.
+
+    ``cases`` (the names the server has) limits ``case``; every other parameter is
+    checked against its own type, range and choices. Nothing raises.
+    """
+    values, problems = {}, []
+    defaults = ViewState.param
+    for k in URL_PARAMS:
+        if k not in query:
+            continue
+        raw = _first(query[k])
+        if len(raw) > MAX_QUERY_VALUE:
+            problems.append(f"the link's {k} is too long; the default is shown")
+            continue
+        try:
+            values[k] = _parse_one(k, raw, cases, defaults)
+        except ValueError as exc:
+            problems.append(f"the link's {k} {exc}; the default is shown")
+    return values, problems
+
+
+def _parse_one(k, raw, cases, defaults):
+    p = defaults[k]
+    shown = vocab.quote(raw)
+    if k == "case":
+        if cases is not None and raw not in cases:
+            raise ValueError(f"{shown} is not a case on this server")
+        return raw
+    if k == "time":
+        from balance_core.io.case import iso, parse_time
+
+        if raw == "":
+            return ""
+        t = parse_time(raw)
+        if t is None:
+            raise ValueError(f"{shown} is not an ISO 8601 time")
+        return iso(t)
+    if k == "region":
+        spec, problem = parse_region(raw)
+        if problem:
+            raise ValueError(f"cannot be read ({problem})")
+        return "" if spec is None else spec.to_text()
+    if k == "sheet":
+        return _parse_sheet(raw)
+    if isinstance(p, param.Number):
+        if not re.fullmatch(_NUM, raw.strip()):
+            raise ValueError(f"{shown} is not a number")
+        val = float(raw)
+        lo, hi = p.bounds
+        if not (math.isfinite(val) and lo <= val <= hi):
+            raise ValueError(f"{shown} is outside {lo:g} to {hi:g}")
+        return val
+    if isinstance(p, param.Selector):
+        if raw not in p.objects:
+            raise ValueError(f"{shown} is not one of the choices")
+        return raw
+    raise ValueError("is not understood")
+
+
+def _parse_sheet(raw) -> dict:
+    out = {}
+    if not raw.strip():
+        return out
+    for kv in raw.split(","):
+        k, _, v = kv.partition("=")
+        if k not in SHEET_SCALES or not re.fullmatch(_NUM, v.strip()) or \
+                not math.isfinite(float(v)):
+            raise ValueError(f"{vocab.quote(kv)} is not a scale and a number")
+        out[k] = float(v)
+    return out

@@ -49,11 +49,12 @@ def _sigmas(grid: Grid, length_m: float):
     if grid.kind == "latlon":
         dphi = np.abs(np.gradient(np.deg2rad(grid.lat1d))).mean()
         dlam = np.abs(np.gradient(np.deg2rad(np.unwrap(grid.lon1d, period=360)))).mean()
-        sig_y = length_m / (grid.radius * dphi)
+        sig_y = min(length_m / (grid.radius * dphi), grid.shape[0])  # wider is the mean
         cosl = np.maximum(np.cos(np.deg2rad(grid.lat1d)), 1e-6)
         sig_x = np.minimum(length_m / (grid.radius * cosl * dlam), nx / 2)
         return sig_y, sig_x
     dx = np.abs(np.diff(grid.x)).mean()
     dy = np.abs(np.diff(grid.y)).mean()
     m = float(np.nanmean(grid.map_factor))
-    return length_m * m / dy, length_m * m / dx
+    ny = grid.shape[0]
+    return min(length_m * m / dy, ny), min(length_m * m / dx, nx)

@@ -42,6 +42,7 @@ import dataclasses
 import numpy as np
 
 from .region import Region, weighted_stats
+from .vocabulary import TERM_NAMES
 
 __all__ = ["Thresholds", "Verdict", "imbalance_ratios", "classify_budget", "classify_scales",
            "budget_verdict", "residual_causes", "near_ground", "CANDIDATES", "CLASSES"]
@@ -57,21 +58,7 @@ CANDIDATES = {
 CLASSES = ("geostrophic", "gradient", "cyclostrophic", "frictional", "unsteady", "unbalanced",
            "none")
 
-_PRETTY = {
-    "tendency": "local tendency",
-    "horizontal_advection": "horizontal advection",
-    "vertical_advection": "vertical advection",
-    "metric_uv": "curvature-of-Earth term",
-    "metric_uw": "vertical curvature-of-Earth term",
-    "coriolis": "Coriolis",
-    "coriolis_w": "vertical Coriolis",
-    "pressure_gradient": "pressure-gradient force",
-    "residual": "residual (friction and unresolved)",
-    "acceleration": "total acceleration DV/Dt",
-    "along_stream": "along-stream acceleration",
-    "centripetal": "centripetal acceleration",
-    "viscous": "viscous force",
-}
+_PRETTY = TERM_NAMES
 
 
 @dataclasses.dataclass(frozen=True)

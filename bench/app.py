@@ -99,31 +99,31 @@ def _median_ms(samples):
 def server_side(library, case_name, boxes, level_cycle, repeat):
     """Median seconds of a box change and of a level change for one case."""
     from app import compute
-    from app.dashboard import Dashboard
+    from app.desk import Page
     from app.state import ViewState
 
     case = library.get(case_name)
     st = ViewState(case=case_name, level=float(level_cycle[0]), time="")
-    dash = Dashboard(library, st)
-    dash.apply_suggested_region()
-    dash.refresh()
+    st.param.update(**Page.suggested(case))
+    page = Page(library, st)
+    page.start()
     # time each path by itself: in the server the other views run in the pool meanwhile
-    st.param.unwatch(dash._watcher)
-    sources = [dash.rank_src, dash.der_src, dash.bal_src, dash.region_src]
+    page.detach()
+    ev, ch = page.evidence, page.chart
+    sources = [ev.rank_src, ev.der_src, ev.bal_src, ch.region_src]
     box_times = []
     for i in range(repeat):
         b = boxes[i % len(boxes)]
         t0 = time.perf_counter()
-        st.param.update(region=__import__("json").dumps({"kind": "box", "bounds": b}))
+        st.set_box(*b)
         rep = compute.box_data(library, st)
-        dash._apply_box_report(rep, None)
-        outline = compute._region_outline(dash._chart.geom, compute.region_of(st))
-        dash.region_src.data = dict(x=outline[0], y=outline[1])
+        ev.show(rep)
+        ch.show_outline(compute.region_outline(ch.data.geom, st.region_spec()))
         _serialise(sources)
         box_times.append(time.perf_counter() - t0)
     level_times = []
-    chart_sources = [dash.img_src, dash.cont_src, dash.clab_src, dash.vec_src, dash.hover_src,
-                     dash.rank_src, dash.der_src, dash.bal_src]
+    chart_sources = [ch.img_src, ch.cont_src, ch.clab_src, ch.vec_src, ch.hover_src,
+                     ev.rank_src, ev.der_src, ev.bal_src]
     for i in range(repeat):
         lev = float(level_cycle[(i + 1) % len(level_cycle)])
         ti = i % case.times.size
@@ -131,10 +131,8 @@ def server_side(library, case_name, boxes, level_cycle, repeat):
         gc.collect()
         t0 = time.perf_counter()
         st.param.update(level=lev, time=str(np.datetime_as_string(case.times[ti], "s")) + "Z")
-        cd = compute.chart_data(library, st)
-        dash._apply_chart(cd, None)
-        rep = compute.box_data(library, st)
-        dash._apply_box_report(rep, None)
+        ch.show(compute.chart_data(library, st))
+        ev.show(compute.box_data(library, st))
         _serialise(chart_sources)
         level_times.append(time.perf_counter() - t0)
     return _median_ms(box_times), _median_ms(level_times)

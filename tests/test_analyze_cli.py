@@ -111,18 +111,28 @@ def test_min_lat_and_smoothing_change_the_answer(capsys):
 
 
 def test_csv_and_table(capsys):
+    from balance_core.vocabulary import TERM_NAMES as WORDS
+
     code, out, _ = _run(capsys, "analyze", CYCLONE, "--level", "1000", "--time", "2", "--box",
                         BOX, "--format", "csv")
     assert code == 0
     rows = list(csv.DictReader(io.StringIO(out)))
     kinds = {r["kind"] for r in rows}
-    assert kinds == {"term", "derived", "balance"}
-    assert {r["name"] for r in rows if r["kind"] == "term"} == TERM_NAMES
-    chosen = [r["name"] for r in rows if r["kind"] == "balance" and r["note"] == "chosen"]
-    assert chosen == ["frictional"]
+    assert kinds == {"term", "derived view", "balance (imbalance ratio)", "number", "wind",
+                     "verdict"}
+    # plain words, never code names; every row carries the context
+    assert {r["name"] for r in rows if r["kind"] == "term"} == {WORDS[t] for t in TERM_NAMES}
+    assert all(r["case"] == "ocean_cyclone" and r["level (hPa)"] == "1000" for r in rows)
+    assert all(r["region"] == "box 52.0W to 28.0W, 38.0N to 56.0N" for r in rows)
+    chosen = [r["name"] for r in rows if r["kind"].startswith("balance") and
+              r["note"] == "the verdict"]
+    assert chosen == ["Frictional"]
+    vals = [r["value"] for r in rows if r["kind"] == "term" and r["value"]]
+    assert all(len(v.split("e")[0].replace(".", "").replace("-", "").lstrip("0")) <= 4
+               for v in vals)  # four significant digits
     code, out, _ = _run(capsys, "analyze", CYCLONE, "--level", "1000", "--time", "2", "--box",
                         BOX)
-    assert "verdict: frictional" in out and "residual" in out and "a priori" in out
+    assert "verdict: Frictional" in out and "residual" in out and "a priori" in out
 
 
 def test_cases_command(capsys):

@@ -51,7 +51,7 @@ def _chart_signature(cd):
     ("projection", "conformal"),
     ("height_units", "dam"),
     ("wind_units", "kt"),
-    ("region", json.dumps({"kind": "box", "bounds": [-40, -10, 30, 45]})),
+    ("region", "box:-40,-10,30,45"),
 ])
 def test_every_chart_control_changes_the_chart(library, param, value):
     before = compute.chart_data(library, _state(level=850.0 if param == "case" else 500.0))
@@ -70,7 +70,7 @@ def test_every_chart_control_changes_the_chart(library, param, value):
     ("time", "2041-01-19T00:00:00Z"),
     ("smooth_km", 300.0),
     ("min_lat", 45.0),
-    ("region", json.dumps({"kind": "box", "bounds": [-40, -10, 30, 45]})),
+    ("region", "box:-40,-10,30,45"),
 ])
 def test_every_box_control_changes_the_analysis(library, param, value):
     a = compute.box_data(library, _state())
@@ -96,41 +96,54 @@ def test_levels_and_times_views(library):
 def test_scale_sheet_presets_and_edits(library):
     st = _state()
     rep = compute.box_data(library, st)
-    sheet = compute.scale_sheet(st, {}, rep)
+    sheet = compute.scale_sheet(st, rep)
     assert sheet["verdict"]["balance"] == "geostrophic"
+    assert sheet["preset_label"] == "Synoptic cyclone"
     st.preset = "tornado"
-    sheet2 = compute.scale_sheet(st, {}, rep)
-    assert sheet2["verdict"]["balance"] == "cyclostrophic"
-    edited = compute.scale_sheet(st, {"L": 5e5, "U": 10.0, "dP": 1000.0, "lat0": 45.0}, rep)
+    assert compute.scale_sheet(st, rep)["verdict"]["balance"] == "cyclostrophic"
+    st.sheet = {"L": 5e5, "U": 10.0, "dP": 1000.0, "lat0": 45.0}
+    edited = compute.scale_sheet(st, rep)
     assert edited["verdict"]["balance"] != "cyclostrophic"
-    bad = compute.scale_sheet(st, {"L": -1.0}, rep)
+    assert [r["name"] for r in edited["scales"] if r["edited"]] == ["U", "L", "dP", "lat0"]
+    st.sheet = {"L": -1.0}
+    bad = compute.scale_sheet(st, rep)
     assert bad["error"] and "positive" in bad["error"]
-    # side by side with the region
+    # side by side with the region; the friction estimate stands beside the residual, so named
     rows = {r["name"]: r for r in sheet["terms"]}
     assert rows["coriolis"]["measured"] == pytest.approx(
         next(t["magnitude"] for t in rep["terms"] if t["name"] == "coriolis"))
+    assert rows["viscous"]["data_label"].startswith("residual")
 
 
 def test_url_round_trip_restores_a_view():
+    from app.state import RegionSpec
+
     st = ViewState(case="tropical_cyclone", level=850.0, time="2038-09-04T06:00:00Z",
                    field="rossby_local", vectors="ageostrophic", smooth_km=50.0, min_lat=12.0,
                    projection="conformal", height_units="dam", wind_units="kt",
-                   preset="tropical_cyclone")
-    st.set_polygon([145.0, 147.0, 147.0, 145.0], [17.0, 17.0, 19.0, 19.0])
-    url = "?" + urllib.parse.urlencode({k: str(v) for k, v in st.to_query().items()})
-    query = urllib.parse.parse_qs(url[1:])
+                   preset="tropical_cyclone", sheet={"U": 30.0, "L": 4e4})
+    st.set_area(RegionSpec("area", corners=((145.0, 17.0), (147.0, 17.0), (147.0, 19.0),
+                                            (145.0, 19.0)),
+                           proj=("lcc", (("lat_1", 15.0), ("lat_2", 21.0), ("lat_0", 18.0),
+                                         ("lon_0", 146.0), ("R", 6371008.7714)))))
+    url = "?" + urllib.parse.urlencode(st.to_query())
+    assert len(url) < 400  # a drawn area stays short
+    query = urllib.parse.parse_qs(url[1:], keep_blank_values=True)
     back = ViewState()
-    back.update_from_query(query)
+    assert back.update_from_query(query) == []
     assert back.to_query() == st.to_query()
     assert set(st.to_query()) == set(URL_PARAMS)
+    assert back.region_spec().kind == "area"
 
 
-def test_bad_url_values_are_ignored():
+def test_bad_url_values_fall_back_with_a_message():
     st = ViewState()
-    changed = st.update_from_query({"level": ["not a number"], "field": ["nonsense"],
-                                    "min_lat": ["1000"], "case": ["sea_breeze"]})
-    assert changed == {"case": "sea_breeze"}
-    assert st.field == "height" and st.min_lat == 10.0
+    problems = st.update_from_query({"level": ["not a number"], "field": ["nonsense"],
+                                     "min_lat": ["1000"], "case": ["sea_breeze"],
+                                     "region": ["{'kind': 'box'}"]})
+    assert st.case == "sea_breeze"
+    assert st.field == "height" and st.min_lat == 10.0 and st.level == 500.0 and st.region == ""
+    assert len(problems) == 4 and all("default is shown" in p for p in problems)
 
 
 def test_errors_are_readable(library):
@@ -138,7 +151,7 @@ def test_errors_are_readable(library):
 
     with pytest.raises(CaseError, match="no 600 hPa level"):
         compute.chart_data(library, _state(level=600.0))
-    st = _state(region=json.dumps({"kind": "box", "bounds": [100, 110, -10, 0]}))
+    st = _state(region="box:100,110,-10,0")
     with pytest.raises(CaseError, match="holds no grid points"):
         compute.box_data(library, st)
     # a field the case lacks falls back to the height, with a note
@@ -149,77 +162,79 @@ def test_errors_are_readable(library):
     assert compute.chart_data(library, st3).field_key == "term:tendency"
 
 
-def test_dashboard_without_a_server(library, tmp_path):
-    from app.dashboard import Dashboard
+def _page(library, state):
+    from app.desk import Page
 
-    dash = Dashboard(library, _state())
-    dash.refresh()
-    assert dash.rank_src.data["name"][0] in ("pressure gradient", "Coriolis")
-    assert "Geostrophic" in dash.verdict.object
-    assert len(dash.hover_src.data["x"]) > 100
-    assert dash.chart_caption.object.count("500 hPa") == 1
+    page = Page(library, state)
+    page.start()
+    return page
+
+
+def test_page_without_a_server(library):
+    page = _page(library, _state())
+    assert page.evidence.rank_src.data["name"][0] in ("pressure gradient", "Coriolis")
+    assert "Geostrophic" in page.evidence.verdict.object
+    assert len(page.chart.hover_src.data["x"]) > 100
+    assert page.chart.caption.object.count("500 hPa") == 1
     # the page keeps working after an error, and says what happened
-    dash.state.level = 600.0
-    assert dash.chart_alert.visible and "no 600 hPa level" in dash.chart_alert.object
-    dash.state.level = 850.0
-    assert not dash.chart_alert.visible
-    dash.state.set_box(100, 110, -10, 0)
-    assert dash.box_alert.visible and "holds no grid points" in dash.box_alert.object
-    dash.state.clear_region()
-    assert not dash.box_alert.visible
-    # drawing a box on a plate carree chart sets a lon/lat box
-    from types import SimpleNamespace
-
-    dash._on_select(SimpleNamespace(geometry={"type": "rect", "x0": -45, "x1": -30, "y0": 40,
-                                              "y1": 50}, final=True))
-    assert json.loads(dash.state.region)["bounds"] == [-45, -30, 40, 50]
-    # on a conformal chart the drawn rectangle becomes a lon/lat polygon
-    dash.state.projection = "conformal"
-    g = dash._chart.geom
+    page.state.level = 600.0
+    assert "no 600 hPa level" in page.chart.alert.object
+    page.state.level = 850.0
+    assert page.chart.alert.object == ""
+    page.state.set_box(100, 110, -10, 0)
+    assert "holds no grid points" in page.evidence.alert.object
+    page.state.clear_region()
+    assert page.evidence.alert.object == ""
+    # drawing a box on a plate carree chart sets a lon/lat box, and the typed fields follow
+    page.chart.select_rect(-45, -30, 40, 50)
+    assert page.state.region == "box:-45,-30,40,50"
+    assert [w.value for w in page.controls.w_box] == [-45, -30, 40, 50]
+    # on a conformal chart the drawn rectangle becomes an area: its corners and projection
+    page.state.projection = "conformal"
+    g = page.chart.data.geom
     cx, cy = g.to_view(-40.0, 47.0)
-    dash._on_select(SimpleNamespace(geometry={"type": "rect", "x0": cx - 3e5, "x1": cx + 3e5,
-                                              "y0": cy - 2e5, "y1": cy + 2e5}, final=True))
-    spec = json.loads(dash.state.region)
-    assert spec["kind"] == "polygon" and len(spec["lons"]) > 4
-    assert min(spec["lons"]) < -40 < max(spec["lons"])
-    assert "drawn area" in dash.state.region_text()
+    page.chart.select_rect(cx - 3e5, cx + 3e5, cy - 2e5, cy + 2e5)
+    spec = page.state.region_spec()
+    assert spec.kind == "area" and len(spec.corners) == 4
+    assert page.state.region.startswith("area:") and len(page.state.region) < 200
+    lo, hi = spec.bounds_box[0], spec.bounds_box[1]
+    assert lo < -40 < hi
+    assert "drawn area" in page.state.region_text()
+    assert page.controls.w_box[0].value == pytest.approx(lo, abs=0.01)
 
 
-def test_exports(library):
-    from app.dashboard import Dashboard
-
-    dash = Dashboard(library, _state())
-    dash.refresh()
-    png = dash._export_png().getvalue()
+def test_exports_carry_the_view(library):
+    page = _page(library, _state())
+    png = page.exports.png_bytes().getvalue()
     assert png[:8] == b"\x89PNG\r\n\x1a\n" and len(png) > 50_000
-    csv_text = dash._export_csv().getvalue()
-    assert csv_text.splitlines()[0].startswith("case,level_hpa,valid_time,kind,name")
-    rep = json.loads(dash._export_json().getvalue())
-    assert rep["case"] == "ocean_cyclone" and rep["verdict"]["balance"] == "geostrophic"
+    csv_text = page.exports.csv_text().getvalue()
+    head, first = csv_text.splitlines()[:2]
+    assert head.startswith("case,level (hPa),valid time,reference time,lead time (h),region")
+    assert first.startswith("ocean_cyclone,500")
+    assert "box 52.0W to 28.0W, 38.0N to 56.0N" in first
+    rep = json.loads(page.exports.json_text().getvalue())
+    assert rep["context"]["case"] == "ocean_cyclone" and rep["verdict"]["balance"] == "geostrophic"
+    assert rep["context"]["units"] == {"terms": "m s-2", "wind": "m/s", "height": "m"}
     assert {t["name"] for t in rep["terms"]} >= {"pressure_gradient", "coriolis", "residual"}
+    for t in rep["terms"]:  # four significant digits
+        if t["magnitude"]:
+            assert len(f"{t['magnitude']:e}".split("e")[0].rstrip("0").replace(".", "")) <= 4
 
 
 def test_a_case_that_fails_to_load_says_so(tmp_path):
     bad = tmp_path / "broken.nc"
     bad.write_bytes(b"not a file at all")
     lib = CaseLibrary([str(bad)] + SAMPLES[:1])
-    from app.dashboard import Dashboard
-
-    dash = Dashboard(lib, ViewState(case="broken"))
-    dash.refresh()
-    assert dash.chart_alert.visible and "could not be loaded" in dash.chart_alert.object
-    dash.state.case = lib.names[1]
-    dash.refresh()
-    assert not dash.chart_alert.visible
+    page = _page(lib, ViewState(case="broken"))
+    assert "could not be loaded" in page.chart.alert.object
+    page.state.case = lib.good[0]
+    assert page.chart.alert.object == ""
 
 
 def test_cases_are_shared_between_sessions(library):
-    from app.dashboard import Dashboard
-
-    a = Dashboard(library, _state())
-    b = Dashboard(library, _state())
-    a.refresh()
-    b.refresh()
+    a = _page(library, _state())
+    b = _page(library, _state())
+    assert a.report["points"] == b.report["points"]
     d1 = library.diagnostics("ocean_cyclone", 4, 2)
     d2 = library.diagnostics("ocean_cyclone", 4, 2)
     assert d1 is d2  # computed once, shared

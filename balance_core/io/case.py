@@ -110,17 +110,17 @@ class Case:
         if spec is None:
             return 0
         text = str(spec).strip()
-        if text.lstrip("-").isdigit():
+        digits = text[1:] if text[:1] in "+-" else text
+        if digits.isascii() and digits.isdigit():
             i = int(text)
             if not -n <= i < n:
                 raise CaseError(f"time index {i} is outside the {n} valid times (0..{n - 1})",
                                 self.paths[0] if self.paths else None)
             return i % n
-        try:
-            t = np.datetime64(text.replace("Z", ""), "ns")
-        except ValueError:
+        t = parse_time(text)
+        if t is None:
             raise CaseError(f"time {text!r} is neither an index nor an ISO 8601 time",
-                            self.paths[0] if self.paths else None) from None
+                            self.paths[0] if self.paths else None)
         hits = np.nonzero(self.times == t)[0]
         if hits.size == 0:
             first, last = iso(self.times[0]), iso(self.times[-1])
@@ -140,6 +140,12 @@ class Case:
             raise CaseError("has no eastward and northward wind on pressure levels, so the "
                             "momentum budget cannot be computed (the height alone gives only the "
                             "geostrophic wind)", self.paths[0] if self.paths else None)
+        if smooth_km:
+            extent = self.extent_km()
+            if not smooth_km <= extent:
+                raise CaseError(f"a smoothing length of {smooth_km:g} km exceeds the size of the "
+                                f"domain (about {extent:.0f} km); give at most that",
+                                self.paths[0] if self.paths else None)
         nt, nk = self.times.size, self.levels_pa.size
         t0, t1 = _window(time_index, nt)
         k0, k1 = _window(level_index, nk)
@@ -187,6 +193,10 @@ class Case:
                    secs.astype(np.float64) if times_kept.size > 1 else None, arrays["omega"],
                    arrays["temperature"], reasons=reasons)
         return f, it_new, level_index - k0
+
+    def extent_km(self) -> float:
+        """The size of the domain: the square root of its area, km."""
+        return float(np.sqrt(np.nansum(self.grid.cell_area))) / 1e3
 
     def _check_window(self, arrays, levels) -> dict:
         """The physical checks of :mod:`.checks` on the slab the core is about to use.
@@ -311,6 +321,22 @@ def _window(i, n):
     return a, a + 3
 
 
+def parse_time(text: str):
+    """datetime64[ns] (UTC) of an ISO 8601 time, with or without a zone offset; None if not one."""
+    import datetime as dt
+
+    t = str(text).strip()
+    if not t or not t.isascii() or len(t) > 40:
+        return None
+    try:
+        when = dt.datetime.fromisoformat(t[:-1] + "+00:00" if t.endswith(("Z", "z")) else t)
+    except ValueError:
+        return None
+    if when.tzinfo is not None:
+        when = when.astimezone(dt.timezone.utc).replace(tzinfo=None)
+    return np.datetime64(when, "ns")
+
+
 def iso(t) -> str:
     """ISO 8601 text of a datetime64 (UTC, seconds)."""
     return np.datetime_as_string(np.datetime64(t, "s"), unit="s") + "Z"
@@ -319,7 +345,7 @@ def iso(t) -> str:
 # -- opening ------------------------------------------------------------------------
 
 def open_case(paths, *, member=0, min_lat: float = 10.0, name: str | None = None,
-              chunks=None) -> Case:
+              chunks=None, memory_budget=None) -> Case:
     """Open one file, several files (valid times concatenated) or a Zarr store.
 
     Parameters
@@ -329,6 +355,9 @@ def open_case(paths, *, member=0, min_lat: float = 10.0, name: str | None = None
         Ensemble member to use where the file has a member dimension.
     min_lat : float
         Tropical mask of the Grid for quantities divided by f (degrees).
+    memory_budget : int or str, optional
+        Bytes one level may use (see :mod:`balance_core.io.limits`); a file
+        whose level slice would need more is refused before it is read.
 
     Raises
     ------
@@ -342,7 +371,17 @@ def open_case(paths, *, member=0, min_lat: float = 10.0, name: str | None = None
     paths = [str(p) for p in paths]
     if not paths:
         raise CaseError("no files given")
-    opened = [(p, open_datasets(p)) for p in paths]
+    try:
+        min_lat = float(min_lat)
+    except (TypeError, ValueError):
+        raise CaseError(f"the tropical mask latitude {min_lat!r} is not a number") from None
+    if not 0.0 <= min_lat < 90.0:
+        raise CaseError(f"the tropical mask latitude must lie from 0 to under 90 degrees, got "
+                        f"{min_lat:g}")
+    from .limits import memory_budget as _budget
+
+    budget = _budget(memory_budget)
+    opened = [(p, open_datasets(p, budget=budget)) for p in paths]
     with _quiet_dask():
         pieces = [normalise(p, dss, member=member) for p, dss in opened]
         return _assemble(pieces, min_lat=min_lat, name=name)
@@ -426,17 +465,18 @@ def _assemble(pieces, *, min_lat, name) -> Case:
         if absent:
             level_notes.append(f"{role} is not given at " + ", ".join(f"{p / 100:g}" for p in absent)
                                + " hPa")
-    grid = _build_grid(first, min_lat)
     notes = list(dict.fromkeys(n for pc in pieces for n in pc.notes)) + notes + level_notes
     dropped = {}
     for pc in pieces:
         dropped.update(pc.dropped)
     data, extra = _drop_cyclic_column(first, data, surface)
+    grid_piece = first
     if extra:
-        grid = _build_grid(extra, min_lat)
+        grid_piece = extra
         surface = {r: d.isel(x=slice(0, -1)) for r, d in surface.items()}
         fills = {r: f.map(lambda d: d.isel(x=slice(0, -1))) for r, f in fills.items()}
         notes.append("dropped the repeated (cyclic) last longitude column")
+    grid = _build_grid(grid_piece, min_lat)
     sources = dict(first.sources)
     fill_notes, checked = _check_fields(fills, first.path, sources, first.levels_pa)
     notes.extend(fill_notes)
@@ -663,8 +703,6 @@ def _build_grid(pc, min_lat) -> Grid:
             return Grid.latlon(pc.lat, pc.lon, min_lat=min_lat)
         return Grid.projected(pc.x, pc.y, pc.crs, min_lat=min_lat)
     except ValueError as exc:
-        if "cyclic point" in str(exc):
-            raise
         var = "latitude/longitude" if pc.crs is None else "x/y"
         raise CaseError(str(exc), pc.path, var) from None
 

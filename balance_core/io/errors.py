@@ -4,7 +4,20 @@ from __future__ import annotations
 
 import os
 
-__all__ = ["CaseError"]
+__all__ = ["CaseError", "printable"]
+
+
+def printable(text: str) -> str:
+    """Text on one line: control characters (newlines too) and undecodable bytes escaped."""
+    out = []
+    for ch in str(text):
+        if ch.isprintable():
+            out.append(ch)
+        elif 0xDC80 <= ord(ch) <= 0xDCFF:  # a byte that was not UTF-8 (surrogate escape)
+            out.append(f"\\x{ord(ch) - 0xDC00:02x}")
+        else:
+            out.append(ch.encode("unicode_escape").decode("ascii"))
+    return "".join(out)
 
 
 class CaseError(ValueError):
@@ -26,10 +39,11 @@ class CaseError(ValueError):
         self.reason = message
         where = []
         if self.path:
-            where.append(os.path.basename(self.path))
+            where.append(printable(os.path.basename(self.path.rstrip("/")) or self.path))
         if variable:
-            where.append(f"variable {variable!r}")
+            where.append(f"variable {printable(repr(str(variable)))}")
         prefix = ", ".join(where)
+        message = printable(message)
         text = f"{prefix}: {message}" if prefix else message
         if not text.endswith("."):
             text += "."

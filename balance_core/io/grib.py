@@ -341,7 +341,7 @@ def _coordinates(path, msg: Message, shape, transposed):
     return lat.reshape(shape), lon.reshape(shape)
 
 
-def open_grib(path) -> list:
+def open_grib(path, *, budget=None) -> list:
     """xarray Datasets of a GRIB file, one per (level kind, grid), lazily decoded.
 
     Each data variable carries cfgrib-style attributes (``GRIB_shortName``,
@@ -364,6 +364,14 @@ def open_grib(path) -> list:
         raise CaseError(f"holds only GRIB grids of type {kinds}, which balance-desk cannot use "
                         "(regular lat-lon, Gaussian, Lambert conformal, polar stereographic and "
                         "Mercator are supported; regrid first)", path)
+    if budget is not None:
+        from .limits import check_level_slice
+
+        for gk in {m.keys.get("md5GridSection") for m in usable}:
+            k = next(m.keys for m in usable if m.keys.get("md5GridSection") == gk)
+            (ny, nx), _ = _shape(k)
+            if ny and nx:
+                check_level_slice(path, ny, nx, budget, k.get("shortName"))
     bad_scan = [m for m in usable if m.keys.get("alternativeRowScanning")]
     if bad_scan:
         raise CaseError("uses alternative row scanning (boustrophedon order), which "

@@ -39,15 +39,25 @@ _UNIT_DECIDED = ("omega", "w", "height", "geopotential")
 def sniff_format(path) -> str:
     """'netcdf', 'grib' or 'zarr', from the file's first bytes (or a Zarr store's layout)."""
     p = str(path)
+    try:
+        p.encode("utf-8")
+    except UnicodeEncodeError:
+        raise CaseError("has a name that is not valid UTF-8, which the NetCDF and GRIB "
+                        "libraries cannot open; rename the file", p) from None
     if not os.path.exists(p):
         raise CaseError("no such file or directory", p)
-    if os.path.isdir(p):
-        names = set(os.listdir(p))
-        if names & {".zgroup", ".zmetadata", "zarr.json", ".zattrs"}:
-            return "zarr"
-        raise CaseError("is a directory but not a Zarr store", p)
-    with open(p, "rb") as fh:
-        head = fh.read(16)
+    try:
+        if os.path.isdir(p):
+            names = set(os.listdir(p))
+            if names & {".zgroup", ".zmetadata", "zarr.json", ".zattrs"}:
+                return "zarr"
+            raise CaseError("is a directory but not a Zarr store", p)
+        with open(p, "rb") as fh:
+            head = fh.read(16)
+    except PermissionError:
+        raise CaseError("cannot be read: permission denied", p) from None
+    except OSError as exc:
+        raise CaseError(f"cannot be read ({exc.strerror or type(exc).__name__})", p) from None
     if not head:
         raise CaseError("is empty", p)
     if head[:3] == b"CDF" or head[:4] == b"\x89HDF":
@@ -57,16 +67,24 @@ def sniff_format(path) -> str:
     raise CaseError("is not a NetCDF, GRIB or Zarr file (unknown first bytes)", p)
 
 
-def open_datasets(path, chunks=None):
-    """Open ``path`` lazily; a list of xarray Datasets (GRIB gives one per kind of level)."""
+def open_datasets(path, chunks=None, *, budget=None):
+    """Open ``path`` lazily; a list of xarray Datasets (GRIB gives one per kind of level).
+
+    The declared sizes are checked against the memory ``budget`` (bytes, see
+    :mod:`.limits`) from the file's metadata before any data is read.
+    """
     import xarray as xr
 
+    from .limits import check_declared, memory_budget
+
     kind = sniff_format(path)
+    budget = memory_budget() if budget is None else budget
     chunks = {} if chunks is None else chunks
     if kind == "grib":
         from .grib import open_grib
 
-        return open_grib(path)
+        return open_grib(path, budget=budget)
+    check_declared(path, kind, budget)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -646,6 +664,10 @@ def normalise(path, datasets, *, member=0) -> Piece:
 
     if member_note:
         notes.append(member_note)
+    elif str(member) not in ("0", "None"):
+        what = "averaged" if member == "mean" else f"chosen (member {member})"
+        raise CaseError(f"has no ensemble member dimension, so no member can be {what}; leave "
+                        "--member out", path)
     if statics and data:
         first = next(iter(data.values()))
         for role in statics:

@@ -1,0 +1,264 @@
+"""The chart: the filled field, height contours, vectors with a reference arrow, coastlines,
+the points without data, the region, and a box drawn with the mouse.
+
+It draws what :func:`app.compute.chart_data` returns and writes a drawn box to the
+view state (a lon/lat box on a plate carree chart, the drawn area on a conformal
+one). It computes nothing itself.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import panel as pn
+import param
+
+from bokeh import events
+from bokeh.models import (Arrow, BoxSelectTool, ColorBar, ColumnDataSource,
+                          CustomJSTickFormatter, HoverTool, Label, LabelSet, LinearColorMapper,
+                          NormalHead, PanTool, Range1d, ResetTool, SingleIntervalTicker,
+                          WheelZoomTool)
+from bokeh.plotting import figure
+
+from ..state import ViewState, area_from_crs
+from .look import GREY, INK, ORANGE, alert, esc, palette, style_figure
+
+__all__ = ["Chart"]
+
+#: the chart's drawing size at its widest; narrower screens scale it down
+WIDTH, MIN_WIDTH = 860, 520
+
+
+class Chart(pn.viewable.Viewer):
+    """The middle of the page."""
+
+    state = param.ClassSelector(class_=ViewState)
+
+    def __init__(self, state, **params):
+        super().__init__(state=state, **params)
+        self.data = None
+        self._build()
+
+    def _build(self):
+        e = np.full((2, 2), np.nan, np.float32)
+        self.img_src = ColumnDataSource(dict(image=[e], x=[0], y=[0], dw=[1], dh=[1]))
+        self.mask_src = ColumnDataSource(dict(image=[e], x=[0], y=[0], dw=[1], dh=[1]))
+        self.cont_src = ColumnDataSource(dict(xs=[], ys=[]))
+        self.clab_src = ColumnDataSource(dict(x=[], y=[], text=[]))
+        self.vec_src = ColumnDataSource(dict(x0=[], y0=[], x1=[], y1=[], angle=[]))
+        self.coast_src = ColumnDataSource(dict(xs=[], ys=[]))
+        self.land_src = ColumnDataSource(dict(xs=[], ys=[]))
+        self.grat_src = ColumnDataSource(dict(xs=[], ys=[]))
+        self.glab_src = ColumnDataSource(dict(x=[], y=[], text=[]))
+        self.region_src = ColumnDataSource(dict(x=[], y=[]))
+        self.hover_src = ColumnDataSource(dict(x=[], y=[], w=[], h=[], where=[], field=[],
+                                               height=[], wind=[]))
+        self.mapper = LinearColorMapper(palette=palette("sequential"), nan_color=(0, 0, 0, 0))
+        fig = figure(width=WIDTH, height=620, tools="", toolbar_location="above", title="",
+                     output_backend="canvas", x_range=Range1d(0, 1), y_range=Range1d(0, 1),
+                     sizing_mode="scale_width", min_width=MIN_WIDTH, max_width=WIDTH + 120)
+        fig.image(image="image", x="x", y="y", dw="dw", dh="dh", source=self.img_src,
+                  color_mapper=self.mapper)
+        fig.image(image="image", x="x", y="y", dw="dw", dh="dh", source=self.mask_src,
+                  color_mapper=LinearColorMapper(palette=[GREY], low=0, high=1,
+                                                 nan_color=(0, 0, 0, 0)), global_alpha=0.6)
+        fig.multi_line("xs", "ys", source=self.grat_src, line_color="#555555", line_alpha=0.7,
+                       line_dash="dotted", line_width=1)
+        fig.multi_line("xs", "ys", source=self.coast_src, line_color="#222222", line_width=1.6)
+        fig.multi_line("xs", "ys", source=self.land_src, line_color="#5b3a1a", line_width=2.5,
+                       line_dash="dashed")
+        fig.multi_line("xs", "ys", source=self.cont_src, line_color="black", line_width=1.3)
+        fig.segment("x0", "y0", "x1", "y1", source=self.vec_src, line_color="white",
+                    line_width=3.5, line_alpha=0.8)
+        fig.segment("x0", "y0", "x1", "y1", source=self.vec_src, line_color="black",
+                    line_width=1.6)
+        fig.scatter("x1", "y1", source=self.vec_src, marker="triangle", angle="angle", size=8,
+                    fill_color="black", line_color="white", line_width=0.5)
+        fig.line("x", "y", source=self.region_src, line_color="white", line_width=6)
+        fig.line("x", "y", source=self.region_src, line_color=ORANGE, line_width=3.5)
+        fig.add_layout(LabelSet(x="x", y="y", text="text", source=self.clab_src,
+                                text_font_size="14px", text_align="center", text_color=INK,
+                                text_baseline="middle", background_fill_color="white",
+                                background_fill_alpha=0.85))
+        fig.add_layout(LabelSet(x="x", y="y", text="text", source=self.glab_src,
+                                text_font_size="14px", text_color=INK,
+                                background_fill_color="white", background_fill_alpha=0.85))
+        # the reference arrow, in a white box at the lower left
+        self.ref_arrow = Arrow(end=NormalHead(size=10, fill_color="black"), x_start=0, y_start=0,
+                               x_end=0, y_end=0, line_width=2.5, visible=False)
+        self.ref_label = Label(x=0, y=0, text="", text_font_size="15px", text_color=INK,
+                               background_fill_color="white", background_fill_alpha=0.9,
+                               x_offset=6, y_offset=6, visible=False)
+        fig.add_layout(self.ref_arrow)
+        fig.add_layout(self.ref_label)
+        hover_r = fig.rect("x", "y", "w", "h", source=self.hover_src, fill_alpha=0.0,
+                           line_alpha=0.0, hover_fill_alpha=0.08, hover_fill_color="white",
+                           hover_line_alpha=0.0)
+        self.hover = HoverTool(renderers=[hover_r], tooltips=[
+            ("where", "@where"), ("field", "@field"), ("height", "@height"), ("wind", "@wind")])
+        self.box_tool = BoxSelectTool(renderers=[hover_r], description="Draw a region")
+        fig.add_tools(self.box_tool, PanTool(), WheelZoomTool(), ResetTool(), self.hover)
+        fig.toolbar.active_drag = self.box_tool
+        fig.toolbar.active_scroll = None
+        fmt = CustomJSTickFormatter(code="return Math.abs(tick) >= 1000 ? tick.toFixed(0) : "
+                                         "+tick.toPrecision(3);")
+        self.colorbar = ColorBar(color_mapper=self.mapper, width=18, title="",
+                                 title_text_font_size="16px", title_text_color=INK,
+                                 major_label_text_font_size="15px", location=(0, 0),
+                                 major_label_text_color=INK, formatter=fmt)
+        self.colorbar_log = ColorBar(color_mapper=self.mapper, width=18, title="",
+                                     title_text_font_size="16px", visible=False,
+                                     title_text_color=INK, major_label_text_color=INK,
+                                     major_label_text_font_size="15px", location=(0, 0),
+                                     ticker=SingleIntervalTicker(interval=1),
+                                     formatter=CustomJSTickFormatter(
+                                         code="return '1e' + Math.round(tick);"))
+        fig.add_layout(self.colorbar, "right")
+        fig.add_layout(self.colorbar_log, "right")
+        fig.on_event(events.SelectionGeometry, self._on_select)
+        fig.grid.grid_line_color = "#555555"
+        fig.grid.grid_line_alpha = 0.45
+        fig.grid.grid_line_dash = "dotted"
+        style_figure(fig)
+        self.fig = fig
+        self.pane = pn.pane.Bokeh(fig, sizing_mode="stretch_width", min_width=MIN_WIDTH,
+                                  max_width=WIDTH + 120, loading=True)
+        self.caption = pn.pane.HTML("", sizing_mode="stretch_width",
+                                    styles={"font-size": "18px", "font-weight": "600"})
+        self.alert = pn.pane.HTML("", sizing_mode="stretch_width")
+        self.note = pn.pane.HTML("", sizing_mode="stretch_width")
+        self.layout = pn.Column(self.caption, self.alert, self.pane, self.note,
+                                sizing_mode="stretch_width", min_width=MIN_WIDTH,
+                                max_width=WIDTH + 140, css_classes=["bd-live"])
+
+    # -- showing ----------------------------------------------------------------------------
+    def busy(self, on: bool = True):
+        self.pane.loading = on
+
+    def show_error(self, text):
+        self.alert.object = alert(text, "error")
+        self.pane.loading = False
+
+    def show(self, cd):
+        """Draw a :class:`app.compute.ChartData`."""
+        self.alert.object = ""
+        self.data = cd
+        g = cd.geom
+        x0, x1, y0, y1 = g.extent
+        fig = self.fig
+        data = cd.raster
+        if cd.color_kind == "log":
+            with np.errstate(invalid="ignore", divide="ignore"):
+                data = np.where(data > 0, np.log10(data), np.nan).astype(np.float32)
+            lo, hi = math.log10(cd.color_range[0]), math.log10(cd.color_range[1])
+        else:
+            lo, hi = cd.color_range
+        self.colorbar.visible = cd.color_kind != "log"
+        self.colorbar_log.visible = cd.color_kind == "log"
+        self.mapper.palette = palette("diverging" if cd.color_kind == "diverging" else "seq")
+        self.mapper.low, self.mapper.high = float(lo), float(hi)
+        self.img_src.data = dict(image=[data], x=[x0], y=[y0], dw=[x1 - x0], dh=[y1 - y0])
+        blank = np.full((2, 2), np.nan, np.float32)
+        self.mask_src.data = dict(image=[cd.masked if cd.masked is not None else blank],
+                                  x=[x0], y=[y0], dw=[x1 - x0], dh=[y1 - y0])
+        self.colorbar.title = self.colorbar_log.title = (
+            f"{cd.field_label}" + (f" ({cd.units})" if cd.units else ""))
+        lx, ly, lv, labels = cd.contours
+        self.cont_src.data = dict(xs=lx, ys=ly)
+        digits = 1 if cd.contour_units == "dam" and cd.contour_interval < 1.5 else 0
+        self.clab_src.data = dict(x=[a for a, _, _ in labels], y=[b for _, b, _ in labels],
+                                  text=[f"{c:.{digits}f}" for _, _, c in labels])
+        if cd.vectors is not None:
+            v = cd.vectors
+            self.vec_src.data = dict(x0=v["x0"], y0=v["y0"], x1=v["x1"], y1=v["y1"],
+                                     angle=v["angle"] - np.pi / 2)
+        else:
+            self.vec_src.data = dict(x0=[], y0=[], x1=[], y1=[], angle=[])
+        a = cd.reference_arrow
+        self.ref_arrow.visible = self.ref_label.visible = a is not None
+        if a is not None:
+            self.ref_arrow.update(x_start=a["x0"], y_start=a["y0"], x_end=a["x1"], y_end=a["y1"])
+            self.ref_label.update(x=a["x0"], y=a["y0"], text=f"arrow: {a['text']}")
+        cx, cy = cd.coast if cd.coast is not None else ([], [])
+        self.coast_src.data = dict(xs=cx, ys=cy)
+        lx2, ly2 = cd.land if cd.land is not None else ([], [])
+        self.land_src.data = dict(xs=lx2, ys=ly2)
+        gx, gy, glab = cd.graticule
+        self.grat_src.data = dict(xs=gx, ys=gy)
+        self.glab_src.data = dict(x=[p[0] for p in glab], y=[p[1] for p in glab],
+                                  text=[p[2] for p in glab])
+        self.show_outline(cd.region_xy)
+        h = cd.hover
+        self.hover_src.data = {k: h[k] for k in ("x", "y", "w", "h", "where", "field", "height",
+                                                 "wind")}
+        self.hover.tooltips = [("where", "@where"), (cd.field_label, "@field"),
+                               ("height", "@height"), ("wind", "@wind")]
+        fig.x_range.update(start=x0, end=x1, reset_start=x0, reset_end=x1)
+        fig.y_range.update(start=y0, end=y1, reset_start=y0, reset_end=y1)
+        if g.kind == "plate_carree":
+            aspect = (y1 - y0) / ((x1 - x0) * math.cos(math.radians(0.5 * (y0 + y1))))
+            fig.xaxis.axis_label, fig.yaxis.axis_label = "longitude", "latitude"
+            digits_js = ("var d = (ticks.length > 1 && Math.abs(ticks[1] - ticks[0]) < 1) ? "
+                         "(Math.abs(ticks[1] - ticks[0]) < 0.1 ? 2 : 1) : 0; ")
+            fig.xaxis.formatter = CustomJSTickFormatter(
+                code=digits_js + "var x = ((tick + 180) % 360 + 360) % 360 - 180; "
+                     "return Math.abs(x).toFixed(d) + (x < 0 ? 'W' : (x > 0 ? 'E' : ''));")
+            fig.yaxis.formatter = CustomJSTickFormatter(
+                code=digits_js + "return Math.abs(tick).toFixed(d) + "
+                                 "(tick < 0 ? 'S' : (tick > 0 ? 'N' : ''));")
+            fig.axis.visible = True
+            fig.grid.visible = True  # lat-lon gridlines at the tick marks
+        else:
+            aspect = (y1 - y0) / (x1 - x0)
+            fig.axis.visible = False
+            fig.grid.visible = False  # the graticule draws the meridians and parallels
+        fig.width = WIDTH
+        fig.height = int(min(max(WIDTH * aspect, 320), 720)) + 60
+        interval = "" if not math.isfinite(cd.contour_interval) else \
+            f" every {cd.contour_interval:g} {cd.contour_units}"
+        mark = (" <span style='background:#5c0a5c;color:#fff;padding:2px 8px;border-radius:4px;"
+                "font-size:15px'>invented demo data</span>") if cd.invented else ""
+        self.caption.object = (f"<div><span class='bd-chart-title'>{esc(cd.title)}</span>{mark}"
+                               f"</div><div style='font-size:16px;font-weight:400'>"
+                               f"{esc(cd.field_label)}" + (f" ({esc(cd.units)})" if cd.units
+                                                           else "") +
+                               f"; height contours{esc(interval)}</div>")
+        notes = [n for n in (cd.coast_note, cd.vector_label, f"Projection: {g.label}") if n]
+        notes += cd.notes
+        self.note.object = "<div style='font-size:15px'>" + "<br>".join(esc(n) for n in notes) + \
+            "</div>"
+        self.pane.loading = False
+
+    def show_outline(self, xy):
+        if xy is None:
+            self.region_src.data = dict(x=[], y=[])
+        else:
+            self.region_src.data = dict(x=xy[0], y=xy[1])
+
+    # -- drawing a region --------------------------------------------------------------------
+    def _on_select(self, event):
+        geo = event.geometry
+        if not getattr(event, "final", True) or geo.get("type") != "rect":
+            return
+        self.select_rect(geo["x0"], geo["x1"], geo["y0"], geo["y1"])
+
+    def select_rect(self, xa, xb, ya, yb):
+        """A rectangle drawn in view coordinates becomes the state's region."""
+        x0, x1 = sorted((xa, xb))
+        y0, y1 = sorted((ya, yb))
+        if self.data is None or x1 - x0 <= 0 or y1 - y0 <= 0:
+            return
+        g = self.data.geom
+        if g.kind == "plate_carree":
+            self.state.set_box(x0, x1, max(y0, -90), min(y1, 90))
+            return
+        lons, lats = g.to_lonlat(np.array([x0, x1, x1, x0]), np.array([y0, y0, y1, y1]))
+        if not (np.isfinite(lons).all() and np.isfinite(lats).all()):
+            return
+        spec = area_from_crs(g.crs, list(zip(np.asarray(lons), np.asarray(lats))))
+        if spec is not None:
+            self.state.set_area(spec)
+
+    def __panel__(self):
+        return self.layout

@@ -1,0 +1,175 @@
+"""The controls: case, level, time, field, vectors, projection, units, smoothing, the region.
+
+Each widget writes one parameter of the shared view state and follows it back,
+so a change made elsewhere (a link, a drawn box, another participant) shows here.
+"""
+
+from __future__ import annotations
+
+from functools import partial
+
+import numpy as np
+import panel as pn
+import param
+
+from balance_core.io import CaseError, iso
+
+from .. import vocab
+from ..state import FIELDS, PROJECTIONS, VECTORS, ViewState
+from .look import WIDGET_CSS, alert
+
+__all__ = ["Controls"]
+
+W = 250  # the column's width at every screen size
+
+
+class Controls(pn.viewable.Viewer):
+    """The left column of the page."""
+
+    state = param.ClassSelector(class_=ViewState)
+
+    def __init__(self, library, state, **params):
+        super().__init__(state=state, **params)
+        self.library = library
+        css = [WIDGET_CSS]
+        self.w_case = pn.widgets.Select(label="Case", options=library.names, value=state.case,
+                                        width=W, stylesheets=css)
+        self.w_level = pn.widgets.Select(label="Pressure level", width=W, stylesheets=css)
+        self.w_time = pn.widgets.Select(label="Valid time", width=W, stylesheets=css)
+        self.w_prev = pn.widgets.Button(label="< earlier", width=W // 2 - 5, stylesheets=css)
+        self.w_next = pn.widgets.Button(label="later >", width=W // 2 - 5, stylesheets=css)
+        self.w_field = pn.widgets.Select(label="Filled field", width=W, stylesheets=css,
+                                         options={v: k for k, v in FIELDS.items()},
+                                         value=state.field)
+        self.w_vectors = pn.widgets.Select(label="Vectors", width=W, stylesheets=css,
+                                           options={v: k for k, v in VECTORS.items()},
+                                           value=state.vectors)
+        self.w_proj = pn.widgets.Select(label="Projection", width=W, stylesheets=css,
+                                        options={v: k for k, v in PROJECTIONS.items()},
+                                        value=state.projection)
+        self.w_hunits = pn.widgets.RadioButtonGroup(label="Heights", options=["m", "dam"],
+                                                    value=state.height_units, width=W // 2 - 5,
+                                                    stylesheets=css)
+        self.w_wunits = pn.widgets.RadioButtonGroup(label="Winds", options=["m/s", "kt"],
+                                                    value=state.wind_units, width=W // 2 - 5,
+                                                    stylesheets=css)
+        self.w_smooth = pn.widgets.FloatInput(label="Smoothing (km, 0 = none)",
+                                              value=state.smooth_km, start=0, end=2000, step=25,
+                                              width=W, stylesheets=css)
+        self.w_minlat = pn.widgets.FloatInput(label="Tropical mask (degrees)", value=state.min_lat,
+                                              start=0, end=45, step=1, width=W, stylesheets=css)
+        self.w_box = [pn.widgets.FloatInput(label=n, width=W // 2 - 5, value=None, stylesheets=css)
+                      for n in ("West", "East", "South", "North")]
+        self.w_apply = pn.widgets.Button(label="Use this box", color="primary",
+                                         width=W // 2 - 5, stylesheets=css)
+        self.w_whole = pn.widgets.Button(label="Whole case", width=W // 2 - 5, stylesheets=css)
+        self.box_alert = pn.pane.HTML("", width=W)
+        for w, p in ((self.w_case, "case"), (self.w_field, "field"), (self.w_vectors, "vectors"),
+                     (self.w_proj, "projection"), (self.w_hunits, "height_units"),
+                     (self.w_wunits, "wind_units"), (self.w_smooth, "smooth_km"),
+                     (self.w_minlat, "min_lat")):
+            w.param.watch(partial(self._to_state, p), "value")
+        self.w_level.param.watch(self._level_widget, "value")
+        self.w_time.param.watch(self._time_widget, "value")
+        self.w_prev.on_click(lambda e: self.step_time(-1))
+        self.w_next.on_click(lambda e: self.step_time(+1))
+        self.w_apply.on_click(self.apply_box)
+        self.w_whole.on_click(lambda e: self.state.clear_region())
+        self.exports_slot = pn.Column(width=W, margin=0)
+        self.layout = pn.Column(
+            self.w_case, self.w_level, self.w_time, pn.Row(self.w_prev, self.w_next),
+            self.w_field, self.w_vectors, self.w_proj,
+            pn.pane.HTML("<b>Heights and winds in</b>", margin=(8, 5, 0, 5)),
+            pn.Row(self.w_hunits, self.w_wunits), self.w_smooth, self.w_minlat,
+            pn.pane.HTML("<h3 style='margin:10px 0 0 0'>Region</h3><div style='font-size:15px'>"
+                         "Drag on the chart to draw a region, or type one (degrees; west &gt; "
+                         "east crosses the date line).</div>", width=W, margin=(5, 5, 0, 5)),
+            pn.Row(self.w_box[0], self.w_box[1]), pn.Row(self.w_box[2], self.w_box[3]),
+            pn.Row(self.w_apply, self.w_whole), self.box_alert,
+            pn.pane.HTML("<h3 style='margin:10px 0 0 0'>For the briefing</h3>", width=W,
+                         margin=(5, 5, 0, 5)),
+            self.exports_slot, width=W + 15, margin=(0, 5))
+        self.sync_case()
+        self.follow(set(ViewState.param) - {"name"})
+
+    # -- widgets to the state ---------------------------------------------------------------
+    def _to_state(self, name, event):
+        if event.new is not None and getattr(self.state, name) != event.new:
+            setattr(self.state, name, event.new)
+
+    def _level_widget(self, event):
+        if event.new is not None and self.state.level != event.new:
+            self.state.level = float(event.new)
+
+    def _time_widget(self, event):
+        if event.new is not None and self.state.time != event.new:
+            self.state.time = event.new
+
+    def step_time(self, d):
+        opts = list(self.w_time.options.values()) if isinstance(self.w_time.options, dict) \
+            else list(self.w_time.options)
+        if not opts:
+            return
+        cur = self.state.time if self.state.time in opts else opts[0]
+        i = min(max(opts.index(cur) + d, 0), len(opts) - 1)
+        self.state.time = opts[i]
+
+    def apply_box(self, event=None):
+        vals = [w.value for w in self.w_box]
+        if any(v is None for v in vals):
+            self.box_alert.object = alert("Type all four edges of the box (degrees).")
+            return
+        w, e, s, n = vals
+        try:
+            self.state.set_box(w, e, s, n)
+        except ValueError:
+            self.box_alert.object = alert("A box needs the south edge below the north edge, "
+                                          "within -90 to 90 degrees, and longitudes within "
+                                          "-360 to 360.")
+            return
+        self.box_alert.object = ""
+
+    # -- the state to the widgets --------------------------------------------------------------
+    def sync_case(self):
+        """Level and time choices of the current case (empty for a case that failed)."""
+        try:
+            case = self.library.get(self.state.case)
+        except CaseError:
+            self.w_level.options, self.w_time.options = {}, {}
+            return
+        self.w_level.options = {f"{p / 100:g} hPa": float(p / 100) for p in case.levels_pa}
+        refs = case.reference_times
+        self.w_time.options = {
+            vocab.when(t, None if refs is None or np.isnat(refs[i]) else refs[i]): iso(t)
+            for i, t in enumerate(case.times)}
+
+    def follow(self, names):
+        """Show the state's values (after a change made anywhere)."""
+        s = self.state
+        for w, p in ((self.w_case, "case"), (self.w_field, "field"), (self.w_vectors, "vectors"),
+                     (self.w_proj, "projection"), (self.w_hunits, "height_units"),
+                     (self.w_wunits, "wind_units"), (self.w_smooth, "smooth_km"),
+                     (self.w_minlat, "min_lat")):
+            if p in names and w.value != getattr(s, p):
+                w.value = getattr(s, p)
+        if "case" in names:
+            self.sync_case()
+        levels = self.w_level.options.values() if isinstance(self.w_level.options, dict) else []
+        if ("level" in names or "case" in names) and float(s.level) in levels:
+            self.w_level.value = float(s.level)
+        times = self.w_time.options.values() if isinstance(self.w_time.options, dict) else []
+        if ("time" in names or "case" in names) and s.time in times:
+            self.w_time.value = s.time
+        if "region" in names:
+            spec = s.region_spec()
+            vals = [None] * 4 if spec is None else [round(v, 2) for v in spec.bounds_box]
+            for w, v in zip(self.w_box, vals):
+                w.value = v
+            self.box_alert.object = ""
+        n = len(times)
+        i = list(times).index(s.time) if s.time in times else 0
+        self.w_prev.disabled = n <= 1 or i == 0
+        self.w_next.disabled = n <= 1 or i == n - 1
+
+    def __panel__(self):
+        return self.layout

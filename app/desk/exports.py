@@ -1,0 +1,78 @@
+"""For the briefing: the chart as a PNG, the region's report as CSV and JSON.
+
+Every export is made from what the page shows at the moment it is asked for --
+the chart and report on screen, the region's outline as it is now -- stamped
+with the view's context (case, level, times, region, units).
+"""
+
+from __future__ import annotations
+
+import io
+
+import panel as pn
+
+from .. import compute, formats, vocab
+from ..export import briefing_png
+from .look import CAUTION, INVENTED, WIDGET_CSS
+
+__all__ = ["Exports"]
+
+
+class Exports(pn.viewable.Viewer):
+    """The download buttons; ``page`` gives the chart, the report and the state."""
+
+    def __init__(self, page, width=250, **params):
+        super().__init__(**params)
+        self.page = page
+        css = [WIDGET_CSS]
+        self.png = pn.widgets.FileDownload(callback=self.png_bytes, filename="briefing.png",
+                                           label="Briefing image (PNG)", width=width,
+                                           color="success", stylesheets=css)
+        self.csv = pn.widgets.FileDownload(callback=self.csv_text, filename="terms.csv",
+                                           label="Term table (CSV)", width=width, stylesheets=css)
+        self.json = pn.widgets.FileDownload(callback=self.json_text, filename="terms.json",
+                                            label="Term table (JSON)", width=width,
+                                            stylesheets=css)
+        self.layout = pn.Column(self.png, self.csv, self.json, margin=0)
+
+    def _context(self):
+        st = self.page.state
+        rep = self.page.report or {}
+        case_title = None
+        try:
+            case_title = self.page.library.get(st.case).title
+        except Exception:  # noqa: BLE001 - a case that failed has no title
+            pass
+        return formats.context_of(rep, region_text=st.region_text(), wind_units=st.wind_units,
+                                  height_units=st.height_units, case_title=case_title,
+                                  invented=bool(rep.get("invented")))
+
+    def _outline(self):
+        chart = self.page.chart.data
+        spec = self.page.state.region_spec()
+        if chart is None or spec is None:
+            return None
+        return compute.region_outline(chart.geom, spec)
+
+    def png_bytes(self):
+        chart = self.page.chart.data
+        rep = self.page.report
+        notes = []
+        if rep and rep.get("reference_time"):
+            notes.append(f"Valid {vocab.when(rep['valid_time'], rep['reference_time'])}")
+        return io.BytesIO(briefing_png(chart, rep, self._outline(),
+                                       region_text=self.page.state.region_text(),
+                                       caution=CAUTION, invented_text=INVENTED, notes=notes))
+
+    def csv_text(self):
+        rep = self.page.report
+        if not rep:
+            return io.StringIO("no region report yet\n")
+        return io.StringIO(formats.export_csv(rep, self._context()))
+
+    def json_text(self):
+        rep = self.page.report or {}
+        return io.StringIO(formats.export_json(rep, self._context()))
+
+    def __panel__(self):
+        return self.layout

@@ -1,0 +1,96 @@
+"""How the desk page looks: colours, type sizes, the caution, and text made safe for HTML.
+
+Colours: Okabe-Ito for lines and marks (safe for colour-blind readers), cividis
+and a perceptually uniform diverging map for fields. Text is at least 14 px and
+every colour pair meets a contrast of 4.5:1 (WCAG 2.1, success criterion 1.4.3);
+keyboard focus shows a 3 px ring.
+
+Whatever the page shows that came from outside -- a file name, a file's
+attributes, a link's values, an error message -- goes through :func:`esc` (HTML)
+before it reaches an HTML pane; no Markdown pane shows outside text.
+"""
+
+from __future__ import annotations
+
+import html
+
+__all__ = ["CAUTION", "ORANGE", "SKY", "GREEN", "BLUE", "VERMILION", "PURPLE", "GREY",
+           "INK", "MUTED", "esc", "GLOBAL_CSS", "style_figure", "palette", "alert",
+           "INVENTED", "FONT"]
+
+CAUTION = ("balance-desk is a diagnostic aid. Official forecasts and warnings come from the "
+           "responsible meteorological service; local rules and licensed practice come first.")
+INVENTED = ("Invented demo data: a synthetic case made for trying the tool, not weather that "
+            "happened.")
+
+# Okabe-Ito colours
+ORANGE, SKY, GREEN, BLUE, VERMILION, PURPLE = ("#E69F00", "#56B4E9", "#009E73", "#0072B2",
+                                               "#D55E00", "#CC79A7")
+GREY = "#6f6f6f"      # no data; 5.1:1 on white
+INK = "#1a1a1a"
+MUTED = "#4a4a4a"     # secondary text; 8.9:1 on white
+
+FONT = {"axis": "16px", "tick": "15px", "title": "18px", "label": "15px"}
+
+#: Document-wide CSS. Panel and Bokeh size their text from --bokeh-font-size, which
+#: crosses into their shadow roots; the focus ring and the busy state are ours.
+GLOBAL_CSS = """
+:root { --bokeh-font-size: 16px; --design-primary-color: #0b5cad; }
+html, body { font-size: 16px; color: #1a1a1a; }
+*:focus-visible { outline: 3px solid #0b5cad !important; outline-offset: 2px !important; }
+body.bd-disconnected .bd-live { filter: grayscale(1); opacity: 0.35; }
+#bd-lost { display: none; }
+body.bd-disconnected #bd-lost { display: block; position: fixed; top: 0; left: 0; right: 0;
+  z-index: 10000; background: #7a0000; color: #ffffff; font-size: 20px; font-weight: 700;
+  padding: 12px 18px; }
+"""
+
+#: CSS given to widgets' shadow roots: a selected toggle is unmistakable, text dark enough.
+WIDGET_CSS = """
+:host { --surface-text-color: #1a1a1a; }
+.bk-btn-group .bk-btn.bk-active, .bk-btn.bk-active { background: #0b5cad !important;
+  color: #ffffff !important; font-weight: 700; border-color: #0b5cad !important; }
+.bk-btn:focus-visible, select:focus-visible, input:focus-visible {
+  outline: 3px solid #0b5cad !important; outline-offset: 2px; }
+label, .bk-input-group label { color: #1a1a1a; }
+"""
+
+
+def esc(text) -> str:
+    """Outside text as HTML text: never markup."""
+    return html.escape("" if text is None else str(text), quote=True)
+
+
+def alert(text: str, kind: str = "warning") -> str:
+    """An alert box (HTML) with escaped text; '' when there is nothing to say."""
+    if not text:
+        return ""
+    colours = {"warning": ("#fff3cd", "#5c4400", "#856404"),
+               "error": ("#fde2e1", "#5c0000", "#a30000"),
+               "info": ("#e6f0fa", "#0a2f55", "#0b5cad")}
+    bg, fg, edge = colours.get(kind, colours["warning"])
+    return (f"<div role='status' style='background:{bg};color:{fg};border-left:6px solid {edge};"
+            f"padding:8px 12px;font-size:16px'>{esc(text)}</div>")
+
+
+def style_figure(fig, title_size=FONT["title"]):
+    fig.title.text_font_size = title_size
+    fig.title.text_color = INK
+    for ax in fig.axis:
+        ax.axis_label_text_font_size = FONT["axis"]
+        ax.major_label_text_font_size = FONT["tick"]
+        ax.axis_label_text_font_style = "normal"
+        ax.axis_label_text_color = INK
+        ax.major_label_text_color = INK
+    fig.toolbar.logo = None
+    return fig
+
+
+def palette(kind):
+    import colorcet as cc
+
+    if kind == "diverging":
+        return cc.CET_D1A if hasattr(cc, "CET_D1A") else cc.coolwarm  # blue-white-red, uniform
+    from bokeh.palettes import Cividis256
+
+    return Cividis256

@@ -1,0 +1,375 @@
+"""The desk page: its parts, one shared view state, and the work that keeps them current.
+
+The parts (:mod:`.controls`, :mod:`.chart`, :mod:`.evidence`, :mod:`.below`,
+:mod:`.exports`) each own one part of the page and read or write one
+:class:`~app.state.ViewState`. This module builds the page from them, turns a
+change of the state into work -- submitted to the session's lane of the fair
+pool (:mod:`app.work`), newest request first, the region's ranking before the
+chart -- and applies each result on the session's own event loop, marking a
+part busy from the moment its content is out of date until it is replaced.
+
+A session costs no computation until its page asks for it: the first work is
+started when the browser connects (``pn.state.onload``), so a plain GET of the
+page builds the frame and nothing else.
+"""
+
+from __future__ import annotations
+
+import logging
+import threading
+import uuid
+from functools import partial
+
+import panel as pn
+
+from bokeh.models import CustomJS
+
+from balance_core.io import CaseError, iso
+from balance_core.scales import PRESETS
+from balance_core.verdict import Thresholds
+
+from .. import compute
+from ..state import URL_PARAMS, ViewState, encode_query
+from ..work import POOL
+from .below import Below
+from .chart import Chart
+from .controls import Controls
+from .evidence import Evidence
+from .exports import Exports
+from .look import CAUTION, GLOBAL_CSS, INK, alert, esc
+
+__all__ = ["Page", "make_session", "error_page"]
+
+log = logging.getLogger("balance_desk")
+
+CHART = {"case", "level", "time", "field", "vectors", "smooth_km", "min_lat", "projection",
+         "height_units", "wind_units"}
+BOX = {"case", "level", "time", "smooth_km", "min_lat", "region"}
+
+#: run in the browser when the connection to the server is lost: say so, grey the figures
+LOST_JS = """
+document.body.classList.add('bd-disconnected');
+var el = document.getElementById('bd-lost');
+if (!el) {
+  el = document.createElement('div');
+  el.id = 'bd-lost';
+  el.setAttribute('role', 'alert');
+  el.textContent = 'The connection to the balance-desk server is lost: what is shown below is '
+    + 'no longer current. Reload the page when the server is back.';
+  document.body.appendChild(el);
+}
+"""
+
+
+def _error_id() -> str:
+    return uuid.uuid4().hex[:8]
+
+
+class Page(pn.viewable.Viewer):
+    """One browser session's page."""
+
+    def __init__(self, library, state: ViewState | None = None, *, pool=POOL,
+                 thresholds: Thresholds = Thresholds(), problems=(), **params):
+        super().__init__(**params)
+        self.library = library
+        self.state = state or ViewState(case=library.good[0] if library.good else "")
+        self.thresholds = thresholds
+        self.report = None
+        self.doc = None
+        self.live = False
+        self._lane = pool.lane()
+        self._gens = {}
+        self._lock = threading.Lock()
+        self.controls = Controls(library, self.state)
+        self.chart = Chart(self.state)
+        self.evidence = Evidence(self.state, thresholds)
+        self.below = Below(self.state)
+        self.exports = Exports(self)
+        self.controls.exports_slot.objects = [self.exports]
+        self.header = pn.pane.HTML("", sizing_mode="stretch_width")
+        self.problems = pn.pane.HTML(alert("; ".join(problems)) if problems else "",
+                                     sizing_mode="stretch_width")
+        footer = pn.pane.HTML(f"<div style='font-size:16px;color:{INK}'><b>Caution.</b> "
+                              f"{esc(CAUTION)}</div>", sizing_mode="stretch_width",
+                              styles={"background": "#fff3cd", "padding": "8px",
+                                      "border-top": "2px solid #856404"})
+        main = pn.FlexBox(self.controls, self.chart, self.evidence, flex_wrap="wrap",
+                          align_items="flex-start", sizing_mode="stretch_width",
+                          styles={"gap": "8px"})
+        self.chart.layout.styles = {"flex": "1 1 560px"}
+        self.layout = pn.Column(self.header, self.problems, main, self.below.tabs, footer,
+                                sizing_mode="stretch_width")
+        self._update_header()
+        self._watcher = self.state.param.watch(self._on_state, list(URL_PARAMS))
+
+    def detach(self):
+        """Stop following the state (a closed session, or a benchmark timing one path)."""
+        self.state.param.unwatch(self._watcher)
+        self._lane.close()
+
+    # -- the session ---------------------------------------------------------------------------
+    def attach(self, doc):
+        """Tie the page to its browser session (the server calls this)."""
+        self.doc = doc
+        doc.js_on_event("connection_lost", CustomJS(code=LOST_JS))
+        doc.on_session_destroyed(lambda ctx: self._lane.close())
+
+    def start(self):
+        """The page is in the browser: compute everything it shows."""
+        self.live = True
+        self.refresh(set(URL_PARAMS))
+
+    # -- the state changed -----------------------------------------------------------------------
+    def _on_state(self, *events):
+        names = {e.name for e in events}
+        if self.doc is not None and self.doc.session_context is not None and \
+                threading.current_thread() is not self._loop_thread():
+            self.doc.add_next_tick_callback(partial(self._changed, names))
+        else:
+            self._changed(names)
+
+    def _loop_thread(self):
+        return getattr(self, "_thread", threading.current_thread())
+
+    def _changed(self, names):
+        if "case" in names:
+            self._case_changed(names)
+        self.controls.follow(names)
+        self.below.follow(names)
+        self._sync_url()
+        if self.live:
+            self.refresh(names)
+        self._update_header()
+
+    def _case_changed(self, names):
+        """A new case: the level it has nearest the one shown, its first time, its region."""
+        try:
+            case = self.library.get(self.state.case)
+        except CaseError:
+            return
+        updates = {}
+        near = compute.nearest_level(case, self.state.level)
+        if near != self.state.level:
+            updates["level"] = near
+        times = [iso(t) for t in case.times]
+        if self.state.time not in times:
+            updates["time"] = times[0]
+        if "region" not in names:
+            updates.update(self.suggested(case))
+        if updates:
+            self.state.param.update(**updates)
+
+    @staticmethod
+    def suggested(case) -> dict:
+        """The case's suggested box and preset, where its file gives valid ones."""
+        from ..cases import _suggested_box
+
+        out = {"region": ""}
+        b = _suggested_box(case.attrs)
+        if b is not None:
+            out["region"] = f"box:{','.join(f'{v:g}' for v in b)}"
+        preset = case.attrs.get("scale_preset")
+        if isinstance(preset, str) and preset in PRESETS:
+            out["preset"] = preset
+        return out
+
+    def _sync_url(self):
+        loc = pn.state.location if self.doc is not None else None
+        if loc is None or not self.live:
+            return
+        try:
+            import urllib.parse
+
+            q = {k: v for k, v in encode_query(self.state.values()).items() if v != ""}
+            search = "?" + urllib.parse.urlencode(q)
+            if loc.search != search:
+                loc.search = search
+        except Exception:  # noqa: BLE001 - the link is a convenience; the page goes on
+            log.exception("could not update the page's link")
+
+    # -- work -------------------------------------------------------------------------------------
+    def refresh(self, names=None):
+        """Recompute what the changed parameters affect."""
+        names = set(names or URL_PARAMS)
+        snap = self.state.copy()
+        if names & BOX:
+            self.evidence.busy(True)
+            self._submit("box", lambda: compute.box_data(self.library, snap, self.thresholds),
+                         self._show_box)
+        geom = self.chart.data.geom if self.chart.data is not None else None
+        global_conformal = geom is not None and geom.kind == "conformal" and \
+            getattr(geom.grid, "periodic", False)
+        if names & CHART or ("region" in names and (geom is None or global_conformal)):
+            self.chart.busy(True)
+            self._submit("chart", lambda: compute.chart_data(self.library, snap), self._show_chart)
+        elif "region" in names:
+            # only the outline moves: no new raster, contours or vectors to send
+            spec = snap.region_spec()
+            self.chart.show_outline(None if spec is None else compute.region_outline(geom, spec))
+        if names & BOX:
+            self.below.levels_progress(0, 1)
+            self.below.times_progress(0, 1)
+            self._submit("levels", lambda: compute.levels_data(
+                self.library, snap, progress=self._progress(self.below.levels_progress)),
+                self.below.show_levels)
+            self._submit("times", lambda: compute.times_data(
+                self.library, snap, progress=self._progress(self.below.times_progress)),
+                self.below.show_times)
+        if names & {"preset", "sheet"} and not names & BOX:
+            self.below.show_sheet(compute.scale_sheet(self.state, self.report))
+
+    def _progress(self, show):
+        def report(done, total):
+            self._later(partial(show, done, total))
+        return report
+
+    def _later(self, fn):
+        if self.doc is not None and self.doc.session_context is not None:
+            self.doc.add_next_tick_callback(fn)
+        else:
+            fn()
+
+    def _submit(self, kind, fn, show):
+        inline = self.doc is None or self.doc.session_context is None
+        if inline:  # no server (tests, exports): compute here
+            try:
+                self._apply(kind, None, show, "ok", fn())
+            except Exception as exc:  # noqa: BLE001
+                self._apply(kind, None, show, "error", exc)
+            return
+
+        def done(status, value, gen):
+            if status != "stale":
+                self._later(partial(self._apply, kind, gen, show, status, value))
+
+        self._gens[kind] = self._lane.submit(kind, fn, done)
+
+    def _apply(self, kind, gen, show, status, value):
+        if gen is not None and self._gens.get(kind) != gen:
+            return  # a newer request of this view was made
+        try:
+            if status == "ok":
+                show(value)
+            else:
+                show(None, self._sentence(kind, value)) if kind in ("levels", "times") else \
+                    self._show_error(kind, self._sentence(kind, value))
+        except Exception:  # noqa: BLE001 - a view that cannot be drawn says so, the page lives
+            eid = _error_id()
+            log.exception("drawing the %s view failed (error id %s)", kind, eid)
+            self._show_error(kind, f"This view could not be drawn (error id {eid}; the server "
+                                   "log has the details).")
+
+    def _sentence(self, kind, exc) -> str:
+        if isinstance(exc, CaseError):
+            return str(exc)
+        eid = _error_id()
+        log.error("%s view failed for %s (error id %s)", kind, encode_query(self.state.values()),
+                  eid, exc_info=exc)
+        return (f"Something went wrong computing this view (error id {eid}); the server log has "
+                "the details.")
+
+    def _show_error(self, kind, text):
+        if kind == "chart":
+            self.chart.show_error(text)
+        elif kind == "box":
+            self.report = None
+            self.evidence.show_error(text)
+            self.below.show_notes(None, self.thresholds)
+            self.below.show_sheet(compute.scale_sheet(self.state, None))
+            self._update_header()
+
+    def _show_chart(self, cd):
+        self.chart.show(cd)
+
+    def _show_box(self, rep):
+        self.report = rep
+        self.evidence.show(rep)
+        self.below.show_notes(rep, self.thresholds)
+        self.below.show_sheet(compute.scale_sheet(self.state, rep))
+        self._update_header()
+
+    # -- the header ---------------------------------------------------------------------------------
+    def _update_header(self):
+        s = self.state
+        rep = self.report or {}
+        when = ""
+        try:
+            sel = compute.resolve(self.library, s)
+            when, level = sel.when, sel.level_hpa
+        except CaseError:
+            level = s.level
+        share = rep.get("valid_share")
+        current = rep and rep.get("level_hpa") == level and rep.get("region_text") == \
+            s.region_text()
+        valid = (f" &middot; {100 * share:.0f} % of the region valid" if current and
+                 share is not None else "")
+        invented = ""
+        try:
+            if compute.case_facts(self.library.get(s.case))["invented"]:
+                invented = (" <span style='background:#5c0a5c;color:#fff;padding:2px 8px;"
+                            "border-radius:4px;font-size:16px'>invented demo data</span>")
+        except CaseError:
+            pass
+        self.header.object = (
+            "<div style='display:flex;justify-content:space-between;align-items:baseline;"
+            f"flex-wrap:wrap;gap:12px;color:{INK}'>"
+            "<span style='font-size:26px;font-weight:700'>balance-desk</span>"
+            f"<span style='font-size:19px'>{esc(s.case)}{invented} &middot; {level:g} hPa "
+            f"&middot; {esc(when)} &middot; {esc(s.region_text())}{valid}</span></div>")
+
+    def __panel__(self):
+        return self.layout
+
+
+def error_page(text: str):
+    """A plain page with one sentence (a session that could not be built)."""
+    return pn.Column(pn.pane.HTML(f"<h1>balance-desk</h1>{alert(text, 'error')}"
+                                  f"<p>{esc(CAUTION)}</p>"), sizing_mode="stretch_width")
+
+
+def make_session(library, thresholds: Thresholds = Thresholds()):
+    """The page of one new browser session (the function the server calls per request).
+
+    Builds the frame only; the work starts when the browser connects. Never raises:
+    a failure shows one sentence with an error id, the server log the details.
+    """
+    try:
+        if GLOBAL_CSS not in pn.config.raw_css:
+            pn.config.raw_css.append(GLOBAL_CSS)
+        query = dict(pn.state.session_args or {})
+        state = ViewState(case=library.good[0] if library.good else
+                          (library.names[0] if library.names else ""))
+        problems = state.update_from_query(query, cases=library.names)
+        page = Page(library, state, thresholds=thresholds, problems=problems)
+        page._thread = threading.current_thread()
+        doc = pn.state.curdoc
+        if doc is not None:
+            page.attach(doc)
+        if "region" not in query:  # a link without a region: the case's suggested one
+            try:
+                extra = Page.suggested(library.get(state.case))
+                if "preset" in query:
+                    extra.pop("preset", None)
+                state.param.update(**extra)
+            except CaseError:
+                pass
+        try:  # the first valid time when the link gives none (or one the case lacks)
+            case = library.get(state.case)
+            times = [iso(t) for t in case.times]
+            if state.time not in times:
+                state.time = times[0]
+            state.level = compute.nearest_level(case, state.level)  # a level the case has
+        except CaseError:
+            pass
+        page.controls.follow(set(URL_PARAMS))
+        page.below.follow(set(URL_PARAMS))
+        if doc is not None and doc.session_context is not None:
+            pn.state.onload(page.start)
+        else:
+            page.start()
+        return page.layout
+    except Exception:  # noqa: BLE001 - the page says one sentence, the log the rest
+        eid = _error_id()
+        log.exception("could not build a page (error id %s)", eid)
+        return error_page(f"The page could not be built (error id {eid}); the server log has "
+                          "the details.")

@@ -1,0 +1,142 @@
+"""Heavy work off the server's event loop: a small pool of threads, fair across sessions.
+
+Every browser session has a :class:`Lane`. A lane holds at most one waiting job
+per kind of view (the chart, the region's ranking, the views through the levels
+and the times): a newer request for the same view replaces the waiting one, so
+only the latest request of a view is ever computed. The pool's threads take
+lanes in turn (round robin), one job at a time, so one busy session cannot
+starve another, and the number of waiting jobs is bounded by sessions x kinds.
+
+A job's result goes to its ``done`` callback, which the page turns into an
+update on its own document's event loop; a job whose result is no longer
+wanted (its lane was closed, or a newer one of its kind was submitted) is
+reported as ``stale`` and dropped there.
+"""
+
+from __future__ import annotations
+
+import collections
+import logging
+import os
+import threading
+import uuid
+
+__all__ = ["FairPool", "Lane", "POOL"]
+
+log = logging.getLogger("balance_desk")
+
+#: the order a lane's waiting jobs are taken in: the ranking before the chart, the views
+#: through the levels and the times last
+KIND_ORDER = ("box", "chart", "outline", "levels", "times")
+
+
+class Lane:
+    """One session's queue: the newest waiting job of each kind."""
+
+    def __init__(self, pool: "FairPool", name: str = ""):
+        self.pool = pool
+        self.name = name or uuid.uuid4().hex[:8]
+        self.waiting: dict = {}
+        self.generation: collections.Counter = collections.Counter()
+        self.closed = False
+
+    def submit(self, kind: str, fn, done) -> int:
+        """Queue ``fn()`` as the newest job of ``kind``; ``done(status, value, gen)`` gets the
+        result ("ok", "error" or "stale"). Returns the job's generation."""
+        with self.pool._lock:
+            self.generation[kind] += 1
+            gen = self.generation[kind]
+            replaced = self.waiting.pop(kind, None)
+            self.waiting[kind] = (gen, fn, done)
+            self.pool._ready(self)
+        if replaced is not None:
+            _safe(replaced[2], "stale", None, replaced[0])
+        return gen
+
+    def current(self, kind: str, gen: int) -> bool:
+        return not self.closed and self.generation[kind] == gen
+
+    def close(self):
+        """The session is gone: drop its waiting jobs."""
+        with self.pool._lock:
+            self.closed = True
+            self.waiting.clear()
+
+    def _take(self):
+        for kind in sorted(self.waiting, key=lambda k: KIND_ORDER.index(k)
+                           if k in KIND_ORDER else len(KIND_ORDER)):
+            gen, fn, done = self.waiting.pop(kind)
+            return kind, gen, fn, done
+        return None
+
+
+class FairPool:
+    """A fixed number of worker threads taking sessions' lanes in turn."""
+
+    def __init__(self, threads: int | None = None):
+        self.threads = threads or max(2, min(4, os.cpu_count() or 2))
+        self._lock = threading.Lock()
+        self._wake = threading.Condition(self._lock)
+        self._ring: collections.deque = collections.deque()
+        self._workers: list = []
+        self.running = 0
+
+    def lane(self, name: str = "") -> Lane:
+        self._start()
+        return Lane(self, name)
+
+    def _ready(self, lane):
+        if lane not in self._ring:
+            self._ring.append(lane)
+        self._wake.notify()
+
+    def _start(self):
+        with self._lock:
+            if self._workers:
+                return
+            for i in range(self.threads):
+                t = threading.Thread(target=self._run, name=f"balance-desk-{i}", daemon=True)
+                t.start()
+                self._workers.append(t)
+
+    def _run(self):
+        while True:
+            with self._lock:
+                job = None
+                while job is None:
+                    while not self._ring:
+                        self._wake.wait()
+                    lane = self._ring.popleft()
+                    job = None if lane.closed else lane._take()
+                    if job is not None and lane.waiting:
+                        self._ring.append(lane)  # its other views wait their turn
+                self.running += 1
+            kind, gen, fn, done = job
+            try:
+                if not lane.current(kind, gen):
+                    _safe(done, "stale", None, gen)
+                    continue
+                try:
+                    value = fn()
+                    status = "ok"
+                except Exception as exc:  # noqa: BLE001 - the page says it in one sentence
+                    status, value = "error", exc
+                _safe(done, status if lane.current(kind, gen) else "stale", value, gen)
+            finally:
+                with self._lock:
+                    self.running -= 1
+
+    def waiting(self) -> int:
+        with self._lock:
+            return sum(len(lane.waiting) for lane in self._ring)
+
+
+def _safe(done, status, value, gen):
+    try:
+        done(status, value, gen)
+    except Exception:  # noqa: BLE001 - a callback must not kill a worker
+        log.exception("a view's callback failed")
+
+
+#: The pool every session of a server shares.
+POOL = FairPool()

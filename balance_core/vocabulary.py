@@ -1,0 +1,54 @@
+"""The plain words of the trade for every term, balance and scale: one table, used everywhere.
+
+The code names (``metric_uv``, ``pressure_gradient``) are the keys of the JSON
+object and nothing else; the verdict's sentences, the command line's tables, the
+page's ranking, field menu, chart titles and exports all say these words.
+"""
+
+from __future__ import annotations
+
+__all__ = ["TERM_NAMES", "BALANCE_NAMES", "SCALE_NAMES", "PRESET_NAMES", "term_name"]
+
+#: Terms of the momentum equations and their derived views.
+TERM_NAMES = {
+    "tendency": "local tendency",
+    "horizontal_advection": "horizontal advection",
+    "vertical_advection": "vertical advection",
+    "metric_uv": "Earth curvature (uv)",
+    "metric_uw": "Earth curvature (uw)",
+    "coriolis": "Coriolis",
+    "coriolis_w": "vertical Coriolis",
+    "pressure_gradient": "pressure gradient",
+    "residual": "residual",
+    "acceleration": "total acceleration DV/Dt",
+    "along_stream": "along-stream acceleration",
+    "centripetal": "centripetal acceleration",
+    "viscous": "friction (eddy viscosity)",
+}
+
+#: Balance classes of a verdict.
+BALANCE_NAMES = {
+    "geostrophic": "Geostrophic", "gradient": "Gradient", "cyclostrophic": "Cyclostrophic",
+    "frictional": "Frictional", "unsteady": "Unsteady", "unbalanced": "Unbalanced",
+    "none": "No verdict",
+}
+
+#: Scales of the a priori analysis.
+SCALE_NAMES = {
+    "U": "velocity U", "W": "vertical velocity W", "L": "length L", "H": "depth H",
+    "dP": "pressure difference dP", "rho": "density rho", "lat0": "latitude",
+    "f0": "Coriolis parameter f0", "nu": "viscosity nu", "a": "Earth radius a", "n2": "N^2",
+}
+
+#: Scale presets, by their key in balance_core.scales.PRESETS.
+PRESET_NAMES = {
+    "planetary_wave": "Planetary wave", "synoptic_cyclone": "Synoptic cyclone",
+    "front": "Front", "mesoscale_convective_system": "Mesoscale convective system",
+    "tropical_cyclone": "Tropical cyclone", "sea_breeze": "Sea breeze", "tornado": "Tornado",
+    "boundary_layer": "Boundary layer",
+}
+
+
+def term_name(code: str) -> str:
+    """The display name of a term or view (the code name itself if it has none)."""
+    return TERM_NAMES.get(code, code.replace("_", " "))
