@@ -83,7 +83,8 @@ def export_csv(rep: dict, context: dict) -> str:
     """One row per term, view, balance, number and wind, each with the full context."""
     buf = io.StringIO()
     w = csv.writer(buf)
-    ctx = [context["case"], context["level_hpa"], context["valid_time"],
+    level = context["level_hpa"]
+    ctx = [context["case"], "" if level is None else f"{level:g}", context["valid_time"],
            context["reference_time"] or "", _num(context["lead_time_h"]), context["region"]]
     w.writerow(["case", "level (hPa)", "valid time", "reference time", "lead time (h)", "region",
                 "kind", "name", "value", "unit", "x part", "y part", "a priori estimate", "note"])
