@@ -86,7 +86,6 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
     from .library import CaseLibrary
 
     check_address(host, port)
-    logging.basicConfig(level=logging.INFO, format="%(asctime)s %(levelname)s %(message)s")
     paths = case_paths(files, cases_dir)
     if not paths:
         raise ServeError("balance-desk serve: no case files found")
@@ -102,6 +101,9 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
         pn.config.raw_css.append(GLOBAL_CSS)
     origins = [f"{host}:{port}"] + ([f"localhost:{port}", f"127.0.0.1:{port}"]
                                     if host in ("127.0.0.1", "localhost") else [])
+    quiet = logging.getLogger("bokeh")
+    level = quiet.level
+    quiet.setLevel(logging.WARNING)  # a refusal to start is one sentence, nothing else
     try:
         server = pn.serve(lambda: make_session(library), address=host, port=port, show=show,
                           title="balance-desk", websocket_origin=origins, start=False,
@@ -110,6 +112,9 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
     except OSError as exc:
         raise ServeError(f"balance-desk serve: cannot listen on {host}:{port} "
                          f"({exc.strerror or exc})") from None
+    finally:
+        quiet.setLevel(level)
+    logging.basicConfig(level=logging.INFO, format="%(asctime)s %(levelname)s %(message)s")
     out(f"balance-desk: serving {len(library.good)} case(s) at http://{host}:{port}/ "
         f"({', '.join(library.good)})")
     if start:

@@ -408,9 +408,18 @@ def _spatial_dims(da, ds, path, var):
             lon_dim = d
     if lat_dim and lon_dim:
         return lat_dim, lon_dim, "latlon"
-    if len(dims) < 2:
-        raise CaseError("has fewer than two horizontal dimensions", path, var)
-    return dims[-2], dims[-1], "projected"
+    flat = [d for d in dims if not (_is_time_like(d, ds) or _is_step_like(d, ds) or
+                                    _is_pressure_coord(d, ds) or _member_dim_name(d, ds))]
+    if len(flat) < 2:
+        raise CaseError("has no horizontal grid (it needs latitude and longitude, or x and y, "
+                        f"dimensions; its dimensions are {', '.join(map(str, dims)) or 'none'})",
+                        path, var)
+    return flat[-2], flat[-1], "projected"
+
+
+def _member_dim_name(d, ds) -> bool:
+    std = (ds[d].attrs.get("standard_name", "") if d in ds.coords else "").lower()
+    return d.lower() in MEMBER_DIM_NAMES or std == "realization"
 
 
 def _find_latlon_2d(da, ds):
