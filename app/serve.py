@@ -115,6 +115,14 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
     finally:
         quiet.setLevel(level)
     logging.basicConfig(level=logging.INFO, format="%(asctime)s %(levelname)s %(message)s")
+    logging.getLogger("panel.util").setLevel(logging.ERROR)  # it warns of every odd link value
+    try:  # kill -USR1 prints every thread's stack to stderr (a stuck server shows where)
+        import faulthandler
+        import signal
+
+        faulthandler.register(signal.SIGUSR1, all_threads=True)
+    except (AttributeError, ValueError, OSError):
+        pass
     out(f"balance-desk: serving {len(library.good)} case(s) at http://{host}:{port}/ "
         f"({', '.join(library.good)})")
     if start:

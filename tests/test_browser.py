@@ -41,11 +41,14 @@ def _free_port():
 
 
 @pytest.fixture(scope="module")
-def server():
+def server(tmp_path_factory):
     port = _free_port()
     env = dict(os.environ, PYTHONUNBUFFERED="1")
+    # the log goes to a file: a pipe nobody reads fills up and stops the server
+    log_path = tmp_path_factory.mktemp("server") / "server.log"
+    log = open(log_path, "w")
     proc = subprocess.Popen([sys.executable, "-m", "app.cli", "serve", "--port", str(port)],
-                            stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True, env=env,
+                            stdout=log, stderr=subprocess.STDOUT, text=True, env=env,
                             cwd=os.path.join(HERE, ".."))
     url = f"http://127.0.0.1:{port}/"
     for _ in range(120):
@@ -54,7 +57,7 @@ def server():
             break
         except Exception:  # noqa: BLE001
             if proc.poll() is not None:
-                raise RuntimeError(proc.stdout.read())
+                raise RuntimeError(log_path.read_text())
             time.sleep(0.5)
     else:
         proc.kill()
@@ -62,10 +65,12 @@ def server():
     yield url
     proc.terminate()
     try:
-        out, _ = proc.communicate(timeout=20)
+        proc.wait(timeout=20)
     except subprocess.TimeoutExpired:
         proc.kill()
-        out, _ = proc.communicate()
+        proc.wait()
+    log.close()
+    out = log_path.read_text()
     assert "Traceback" not in out, out[-3000:]
 
 

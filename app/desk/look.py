@@ -38,11 +38,6 @@ GLOBAL_CSS = """
 :root { --bokeh-font-size: 16px; --design-primary-color: #0b5cad; }
 html, body { font-size: 16px; color: #1a1a1a; }
 *:focus-visible { outline: 3px solid #0b5cad !important; outline-offset: 2px !important; }
-body.bd-disconnected .bd-live { filter: grayscale(1); opacity: 0.35; }
-#bd-lost { display: none; }
-body.bd-disconnected #bd-lost { display: block; position: fixed; top: 0; left: 0; right: 0;
-  z-index: 10000; background: #7a0000; color: #ffffff; font-size: 20px; font-weight: 700;
-  padding: 12px 18px; }
 """
 
 #: CSS given to widgets' shadow roots: a selected toggle is unmistakable, text dark enough.

@@ -48,12 +48,16 @@ BOX = {"case", "level", "time", "smooth_km", "min_lat", "region"}
 
 #: run in the browser when the connection to the server is lost: say so, grey the figures
 LOST_JS = """
-document.body.classList.add('bd-disconnected');
-var el = document.getElementById('bd-lost');
-if (!el) {
-  el = document.createElement('div');
+if (!document.getElementById('bd-lost')) {
+  const veil = document.createElement('div');  // greys what is no longer current
+  veil.id = 'bd-lost-veil';
+  veil.style.cssText = 'position:fixed;inset:0;z-index:9999;background:rgba(90,90,90,0.6);';
+  document.body.appendChild(veil);
+  const el = document.createElement('div');
   el.id = 'bd-lost';
   el.setAttribute('role', 'alert');
+  el.style.cssText = 'position:fixed;top:0;left:0;right:0;z-index:10000;background:#7a0000;'
+    + 'color:#ffffff;font-size:20px;font-weight:700;padding:12px 18px;';
   el.textContent = 'The connection to the balance-desk server is lost: what is shown below is '
     + 'no longer current. Reload the page when the server is back.';
   document.body.appendChild(el);

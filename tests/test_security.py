@@ -1,0 +1,315 @@
+"""The page under attack, in a real headless Chromium: no injected markup ever runs.
+
+A corpus of payloads goes into every link parameter, into file names, file attributes,
+variable names and the text of error messages. For each page: no dialog opens, no
+console error, the page still shows a verdict, and the payload shows as text where the
+page repeats it. The server's headers forbid framing by other origins and sniffing;
+a page on a second local origin that frames the desk gets nothing.
+"""
+
+import os
+import shutil
+import signal
+import socket
+import subprocess
+import sys
+import threading
+import time
+import urllib.parse
+import urllib.request
+from http.server import BaseHTTPRequestHandler, HTTPServer
+
+import numpy as np
+import pytest
+
+pytestmark = pytest.mark.browser
+
+CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
+HERE = os.path.dirname(os.path.abspath(__file__))
+ROOT = os.path.join(HERE, "..")
+SHOTS = os.path.join(ROOT, "artifacts", "screenshots")
+
+if CHROMIUM is None:
+    if os.environ.get("CI"):
+        pytest.fail("chromium is not installed: make test installs it", pytrace=False)
+    pytest.skip("chromium is not installed", allow_module_level=True)
+sync_api = pytest.importorskip("playwright.sync_api")
+
+ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networking",
+        "--disable-component-update", "--no-first-run", "--disable-sync"]
+
+#: Payloads: tags, event attributes, javascript: and data: URLs, SVG and MathML, Markdown
+#: links and images, template syntax, comment and CDATA breakers, Unicode tricks, long text.
+PAYLOADS = [
+    "<script>alert(1)</script>",
+    "<img src=x onerror=alert(1)>",
+    "\"><img src=x onerror=alert(2)>",
+    "'><svg onload=alert(3)>",
+    "<svg><script>alert(4)</script></svg>",
+    "<iframe srcdoc='<script>alert(5)</script>'></iframe>",
+    "<a href=\"javascript:alert(6)\">click</a>",
+    "javascript:alert(7)",
+    "data:text/html,<script>alert(8)</script>",
+    "[link](javascript:alert(9))",
+    "![img](x onerror=alert(10))",
+    "<math><mtext><script>alert(11)</script></mtext></math>",
+    "<body onload=alert(12)>",
+    "<details open ontoggle=alert(13)>x</details>",
+    "<input autofocus onfocus=alert(14)>",
+    "<marquee onstart=alert(15)>x</marquee>",
+    "<video><source onerror=alert(16)></video>",
+    "<object data=javascript:alert(17)></object>",
+    "<base href=//evil.invalid/>",
+    "<meta http-equiv=refresh content=0;url=//evil.invalid>",
+    "<style>*{display:none}</style>",
+    "</script><script>alert(18)</script>",
+    "<scr<script>ipt>alert(19)</script>",
+    "{{7*7}}${alert(20)}",
+    "<!--<img src=x onerror=alert(21)>-->",
+    "]]><script>alert(22)</script>",
+    "\u202e<img src=x onerror=alert(23)>",
+    "\u200b<svg/onload=alert(24)>\u200b",
+    "\uff1cscript\uff1ealert(25)\uff1c/script\uff1e",
+    "%3Cscript%3Ealert(26)%3C%2Fscript%3E",
+    "&lt;img src=x onerror=alert(27)&gt;",
+    "<img src=x onerror=alert(28)>" + "A" * 3000,
+    "<div style=\"position:fixed;inset:0;background:red\">covered</div>",
+    "<form action=//evil.invalid><input name=q></form>",
+]
+
+PARAMS = ["case", "level", "time", "field", "vectors", "smooth_km", "min_lat", "region",
+          "projection", "height_units", "wind_units", "preset", "sheet"]
+
+
+def test_the_corpus_is_large_enough():
+    assert len(PAYLOADS) >= 30
+
+
+def _free_port():
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+def _start(args, cwd=ROOT):
+    """A server in a subprocess; its log goes to a file (a pipe nobody reads would fill up
+    and stop it)."""
+    import tempfile
+
+    port = _free_port()
+    log = tempfile.NamedTemporaryFile("w+", suffix=".log", delete=False)
+    proc = subprocess.Popen([sys.executable, "-m", "app.cli", "serve", *args, "--port",
+                             str(port)], stdout=log, stderr=subprocess.STDOUT, text=True,
+                            cwd=cwd)
+    proc.log_path = log.name
+    url = f"http://127.0.0.1:{port}/"
+    for _ in range(240):
+        try:
+            urllib.request.urlopen(url, timeout=2)
+            return proc, url, port
+        except Exception:  # noqa: BLE001
+            if proc.poll() is not None:
+                raise RuntimeError(open(log.name).read())
+            time.sleep(0.5)
+    proc.kill()
+    raise RuntimeError("the server did not start")
+
+
+def _stop(proc):
+    proc.terminate()
+    try:
+        proc.wait(timeout=20)
+    except subprocess.TimeoutExpired:
+        proc.kill()
+        proc.wait()
+    with open(proc.log_path) as fh:
+        out = fh.read()
+    os.unlink(proc.log_path)
+    return out
+
+
+def _hostile_cases(tmp):
+    """Case files whose names, attributes and variable names carry payloads."""
+    sys.path.insert(0, HERE)
+    from makedata import latlon_dataset
+
+    lat = np.arange(60.0, 39.9, -2.0)
+    lon = np.arange(-20.0, 20.1, 2.0)
+    ds, _ = latlon_dataset(lat, lon)
+    # a file name with markup (no slash: file names cannot hold one)
+    name = "<img src=x onerror=alert(101)>"
+    ds.to_netcdf(os.path.join(tmp, name + ".nc"))
+    # attributes and variable names with markup
+    ds2 = ds.rename({"height": "z<svg onload=alert(102)>"})  # a name must start with a letter
+    ds2.attrs.update(title="<script>alert(103)</script>", suggested_box="<b>not a box</b>",
+                     scale_preset="<img src=x onerror=alert(104)>",
+                     geography="<script>alert(105)</script>")
+    ds2["ta"].attrs["long_name"] = "<img src=x onerror=alert(106)> potential temperature"
+    ds2.to_netcdf(os.path.join(tmp, "attrs.nc"))
+    # a broken file whose error message repeats markup from its attributes
+    ds3 = ds.copy()
+    ds3["height"].attrs["units"] = "<script>alert(107)</script>"
+    ds3.to_netcdf(os.path.join(tmp, "badunits.nc"))
+    return tmp
+
+
+@pytest.fixture(scope="module")
+def hostile_server(tmp_path_factory):
+    d = _hostile_cases(str(tmp_path_factory.mktemp("hostile")))
+    proc, url, port = _start(["--cases", d])
+    yield url
+    out = _stop(proc)
+    assert "Traceback" not in out or "error id" in out
+
+
+@pytest.fixture(scope="module")
+def browser():
+    with sync_api.sync_playwright() as p:
+        b = p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
+        yield b
+        b.close()
+
+
+def _open(browser, url, wait_verdict=True):
+    page = browser.new_page(viewport={"width": 1500, "height": 1000})
+    dialogs, errors = [], []
+    page.on("dialog", lambda d: (dialogs.append(d.message), d.dismiss()))
+    page.on("pageerror", lambda e: errors.append(str(e)))
+    page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
+    page.goto(url)
+    page.locator(".bd-chart-title").or_(page.get_by_text("could not be loaded")).first.wait_for(
+        timeout=60_000)
+    if wait_verdict:
+        page.locator(".bd-verdict").first.wait_for(timeout=60_000)
+    return page, dialogs, errors
+
+
+def _body_text(page):
+    """All text of the page, shadow roots included (Playwright's locators pierce them)."""
+    return "\n".join(page.locator("div").all_inner_texts()[:1]) + page.evaluate(
+        "() => { const out = []; const walk = n => { if (n.shadowRoot) walk(n.shadowRoot); "
+        "for (const c of n.children || []) walk(c); if (n.nodeType === 1 && !n.children.length)"
+        " out.push(n.textContent); }; walk(document.body); return out.join('\\n'); }")
+
+
+@pytest.mark.parametrize("i", range(len(PAYLOADS)))
+def test_payloads_in_every_link_parameter_stay_text(hostile_server, browser, i):
+    payload = PAYLOADS[i]
+    query = urllib.parse.urlencode({p: payload for p in PARAMS})
+    page, dialogs, errors = _open(browser, hostile_server + "?" + query)
+    page.wait_for_timeout(600)
+    assert dialogs == [], dialogs
+    assert errors == [], errors
+    text = _body_text(page)
+    # the page says, as text, that the link's values were not taken
+    assert "the link's case" in text and "default is shown" in text
+    # as the page writes outside text: control and format characters (a right-to-left
+    # override, a zero-width space) spelled out as escapes, so they cannot reorder the text
+    from balance_core.io.errors import printable
+
+    shown = printable(payload)[:10]
+    assert any(shown in line for line in text.splitlines()), shown
+    # no element from the payload made it into the page's markup
+    for sel in ("iframe", "marquee", "object", "video", "form", "math", "[onerror]",
+                "[onload]", "[ontoggle]", "[onfocus]", "[onstart]", "a[href^=javascript]"):
+        assert page.locator(sel).count() == 0, sel
+    if i in (0, 1, len(PAYLOADS) - 1):
+        os.makedirs(SHOTS, exist_ok=True)
+        page.screenshot(path=os.path.join(SHOTS, f"security_link_{i:02d}.png"), full_page=False)
+    page.close()
+
+
+def test_file_names_attributes_and_variable_names_stay_text(hostile_server, browser):
+    for case in ("<img src=x onerror=alert(101)>", "attrs"):
+        page, dialogs, errors = _open(browser, hostile_server + "?" + urllib.parse.urlencode(
+            {"case": case}))
+        page.locator("text=Notes on the data").first.click()
+        page.wait_for_timeout(800)
+        assert dialogs == [], (case, dialogs)
+        assert errors == [], (case, errors)
+        text = _body_text(page)
+        if case == "attrs":
+            assert "<svg onload=alert(102)>" in text  # the height's variable name, as text
+            assert "alert(106)" in text  # a ruled-out variable's long name, as text
+        else:
+            assert "<img src=x onerror=alert(101)>" in text
+        assert page.locator("img[src=x]").count() == 0
+        page.close()
+
+
+def test_an_error_message_with_markup_stays_text(hostile_server, browser):
+    page, dialogs, errors = _open(browser, hostile_server + "?case=badunits", wait_verdict=False)
+    page.locator("text=could not be loaded").first.wait_for(timeout=60_000)
+    assert dialogs == [] and errors == [], (dialogs, errors)
+    assert "<script>alert(107)</script>" in _body_text(page)
+    page.close()
+
+
+def test_headers_forbid_framing_and_sniffing(hostile_server):
+    for path in ("", "static/js/bokeh.min.js", "no-such-page"):
+        try:
+            r = urllib.request.urlopen(hostile_server + path, timeout=10)
+            headers = r.headers
+        except urllib.error.HTTPError as exc:
+            headers = exc.headers
+        csp = headers.get("Content-Security-Policy", "")
+        assert "frame-ancestors 'self'" in csp and "object-src 'none'" in csp, path
+        assert "default-src 'self'" in csp and "base-uri 'self'" in csp
+        assert headers.get("X-Frame-Options") == "SAMEORIGIN"
+        assert headers.get("X-Content-Type-Options") == "nosniff"
+
+
+class _Framer(BaseHTTPRequestHandler):
+    target = ""
+
+    def do_GET(self):  # noqa: N802 - the name http.server wants
+        body = (f"<html><body><h1>another origin</h1><iframe id='f' src='{self.target}' "
+                "width=800 height=600></iframe></body></html>").encode()
+        self.send_response(200)
+        self.send_header("Content-Type", "text/html")
+        self.end_headers()
+        self.wfile.write(body)
+
+    def log_message(self, *a):
+        pass
+
+
+def test_another_origin_cannot_frame_the_desk(hostile_server, browser):
+    port = _free_port()
+    _Framer.target = hostile_server
+    httpd = HTTPServer(("127.0.0.1", port), _Framer)
+    t = threading.Thread(target=httpd.serve_forever, daemon=True)
+    t.start()
+    try:
+        page = browser.new_page()
+        page.goto(f"http://localhost:{port}/")  # another origin: another host and port
+        page.wait_for_timeout(3000)
+        child = [f for f in page.frames if f != page.main_frame]
+        assert child, "no frame"
+        # the browser refuses to show the desk inside another origin's page
+        content = child[0].evaluate("() => document.body ? document.body.innerText : ''") \
+            if not child[0].url.startswith("chrome-error") else ""
+        assert "balance-desk" not in content
+        assert child[0].url.startswith("chrome-error") or content == ""
+        page.close()
+    finally:
+        httpd.shutdown()
+
+
+def test_the_page_says_when_the_server_is_gone(browser):
+    proc, url, port = _start([])
+    try:
+        page, dialogs, errors = _open(browser, url)
+        banner = page.locator("#bd-lost")
+        assert not banner.is_visible()
+        os.kill(proc.pid, signal.SIGKILL)
+        t0 = time.time()
+        banner.wait_for(state="visible", timeout=5000)
+        assert time.time() - t0 < 5.0
+        assert "no longer current" in banner.inner_text()
+        os.makedirs(SHOTS, exist_ok=True)
+        page.screenshot(path=os.path.join(SHOTS, "server_gone.png"))
+        page.close()
+    finally:
+        proc.kill()
+        proc.wait(timeout=10)
