@@ -19,7 +19,8 @@ import pyproj  # noqa: F401  (before anything that may load eccodes)
 
 from .cases import case_paths
 
-__all__ = ["serve", "case_paths", "security_headers", "ServeError", "check_address"]
+__all__ = ["serve", "case_paths", "security_headers", "ServeError", "check_address",
+           "PageLimit", "LIMIT"]
 
 log = logging.getLogger("balance_desk")
 
@@ -60,6 +61,65 @@ def _transform(headers):
     return SecurityHeaders
 
 
+class PageLimit:
+    """A token bucket per client for the page's own requests (each builds a session).
+
+    A client is its address and its browser's User-Agent: a script or monitor
+    fetching the page in a loop drains its own bucket and gets "429 Too Many
+    Requests" (about a millisecond of work) instead of a session each time, while
+    people's browsers keep theirs. ``burst`` pages at once, then one every
+    ``1 / per_second`` seconds. A nicety against runaway loops, not an
+    authentication: a determined client can vary its User-Agent.
+    """
+
+    def __init__(self, burst: int = 10, per_second: float = 0.5, clients: int = 10_000):
+        import collections
+        import threading
+
+        self.burst, self.rate, self.clients = burst, per_second, clients
+        self._buckets = collections.OrderedDict()
+        self._lock = threading.Lock()
+
+    def allow(self, key, now=None) -> bool:
+        import time
+
+        now = time.monotonic() if now is None else now
+        with self._lock:
+            tokens, last = self._buckets.pop(key, (float(self.burst), now))
+            tokens = min(self.burst, tokens + (now - last) * self.rate)
+            ok = tokens >= 1.0
+            self._buckets[key] = (tokens - 1.0 if ok else tokens, now)
+            while len(self._buckets) > self.clients:
+                self._buckets.popitem(last=False)
+            return ok
+
+
+LIMIT = PageLimit()
+
+
+def _limit_page_requests():
+    """Put :data:`LIMIT` in front of Panel's page handler (once per process)."""
+    from panel.io.server import DocHandler
+
+    if getattr(DocHandler, "_balance_desk_limited", False):
+        return
+    original = DocHandler.prepare
+
+    async def prepare(self):
+        if self.request.method == "GET":
+            key = (self.request.remote_ip, self.request.headers.get("User-Agent", ""))
+            if not LIMIT.allow(key):
+                self.set_status(429)
+                self.set_header("Retry-After", "2")
+                self.set_header("Content-Type", "text/plain; charset=utf-8")
+                self.finish("Too many page requests from this client; try again in a moment.\n")
+                return
+        await original(self)
+
+    DocHandler.prepare = prepare
+    DocHandler._balance_desk_limited = True
+
+
 def check_address(host: str, port: int):
     """One sentence (ServeError) if the port is out of range or the host cannot be resolved."""
     if not isinstance(port, int) or not 1 <= port <= 65535:
@@ -94,9 +154,8 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
         out(f"balance-desk: not serving {name}: {why}")
     if not library.good:
         raise ServeError("balance-desk serve: none of the cases could be loaded (see above)")
-    pn.extension(notifications=True)
-    pn.config.disconnect_notification = ("The connection to the server is lost: what the page "
-                                         "shows is no longer current.")
+    pn.extension(notifications=False)  # the page has its own notice of a lost connection
+    _limit_page_requests()
     if GLOBAL_CSS not in pn.config.raw_css:
         pn.config.raw_css.append(GLOBAL_CSS)
     origins = [f"{host}:{port}"] + ([f"localhost:{port}", f"127.0.0.1:{port}"]
@@ -115,6 +174,9 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
     finally:
         quiet.setLevel(level)
     logging.basicConfig(level=logging.INFO, format="%(asctime)s %(levelname)s %(message)s")
+    import os
+
+    log.setLevel(os.environ.get("BALANCE_DESK_LOG", "INFO").upper())  # DEBUG: page timings
     logging.getLogger("panel.util").setLevel(logging.ERROR)  # it warns of every odd link value
     try:  # kill -USR1 prints every thread's stack to stderr (a stuck server shows where)
         import faulthandler

@@ -16,7 +16,6 @@ page builds the frame and nothing else.
 from __future__ import annotations
 
 import logging
-import threading
 import uuid
 from functools import partial
 
@@ -83,7 +82,6 @@ class Page(pn.viewable.Viewer):
         self.live = False
         self._lane = pool.lane()
         self._gens = {}
-        self._lock = threading.Lock()
         self.controls = Controls(library, self.state)
         self.chart = Chart(self.state)
         self.evidence = Evidence(self.state, thresholds)
@@ -125,15 +123,10 @@ class Page(pn.viewable.Viewer):
 
     # -- the state changed -----------------------------------------------------------------------
     def _on_state(self, *events):
-        names = {e.name for e in events}
-        if self.doc is not None and self.doc.session_context is not None and \
-                threading.current_thread() is not self._loop_thread():
-            self.doc.add_next_tick_callback(partial(self._changed, names))
-        else:
-            self._changed(names)
-
-    def _loop_thread(self):
-        return getattr(self, "_thread", threading.current_thread())
+        # Bokeh models may change only under the document's lock, which a callback of the
+        # document's own next tick holds (a widget's event or another session's change may
+        # arrive without it): the page follows the state there.
+        self._later(partial(self._changed, {e.name for e in events}))
 
     def _changed(self, names):
         if "case" in names:
@@ -283,9 +276,11 @@ class Page(pn.viewable.Viewer):
             self._update_header()
 
     def _show_chart(self, cd):
+        log.debug("page %s: chart shown", id(self))
         self.chart.show(cd)
 
     def _show_box(self, rep):
+        log.debug("page %s: ranking shown", id(self))
         self.report = rep
         self.evidence.show(rep)
         self.below.show_notes(rep, self.thresholds)
@@ -331,49 +326,70 @@ def error_page(text: str):
                                   f"<p>{esc(CAUTION)}</p>"), sizing_mode="stretch_width")
 
 
+def _frame(text: str):
+    """The page's frame before its parts arrive: the name, a loading line, the caution."""
+    return pn.pane.HTML(
+        f"<div style='color:{INK}'><div style='font-size:26px;font-weight:700'>balance-desk</div>"
+        f"<div style='font-size:19px;margin:24px 0'>{esc(text)}</div>"
+        f"<div style='background:#fff3cd;padding:8px;border-top:2px solid #856404;"
+        f"font-size:16px'><b>Caution.</b> {esc(CAUTION)}</div></div>",
+        sizing_mode="stretch_width")
+
+
+def build_page(library, query: dict, thresholds: Thresholds = Thresholds(), doc=None) -> Page:
+    """The page of a link's query: state parsed and validated, the case's defaults filled in."""
+    state = ViewState(case=library.good[0] if library.good else
+                      (library.names[0] if library.names else ""))
+    problems = state.update_from_query(query, cases=library.names)
+    page = Page(library, state, thresholds=thresholds, problems=problems)
+    if doc is not None:
+        page.attach(doc)
+    if "region" not in query:  # a link without a region: the case's suggested one
+        try:
+            extra = Page.suggested(library.get(state.case))
+            if "preset" in query:
+                extra.pop("preset", None)
+            state.param.update(**extra)
+        except CaseError:
+            pass
+    try:  # the first valid time when the link gives none (or one the case lacks)
+        case = library.get(state.case)
+        times = [iso(t) for t in case.times]
+        if state.time not in times:
+            state.time = times[0]
+        state.level = compute.nearest_level(case, state.level)  # a level the case has
+    except CaseError:
+        pass
+    page.controls.follow(set(URL_PARAMS))
+    page.below.follow(set(URL_PARAMS))
+    return page
+
+
 def make_session(library, thresholds: Thresholds = Thresholds()):
     """The page of one new browser session (the function the server calls per request).
 
-    Builds the frame only; the work starts when the browser connects. Never raises:
-    a failure shows one sentence with an error id, the server log the details.
+    A plain GET gets the page's parts, empty and marked as loading, and nothing is
+    computed: the work starts when the browser connects (``pn.state.onload``).
+    Never raises: a failure shows one sentence with an error id, the server log the
+    details.
     """
-    try:
-        if GLOBAL_CSS not in pn.config.raw_css:
-            pn.config.raw_css.append(GLOBAL_CSS)
-        query = dict(pn.state.session_args or {})
-        state = ViewState(case=library.good[0] if library.good else
-                          (library.names[0] if library.names else ""))
-        problems = state.update_from_query(query, cases=library.names)
-        page = Page(library, state, thresholds=thresholds, problems=problems)
-        page._thread = threading.current_thread()
-        doc = pn.state.curdoc
-        if doc is not None:
-            page.attach(doc)
-        if "region" not in query:  # a link without a region: the case's suggested one
-            try:
-                extra = Page.suggested(library.get(state.case))
-                if "preset" in query:
-                    extra.pop("preset", None)
-                state.param.update(**extra)
-            except CaseError:
-                pass
-        try:  # the first valid time when the link gives none (or one the case lacks)
-            case = library.get(state.case)
-            times = [iso(t) for t in case.times]
-            if state.time not in times:
-                state.time = times[0]
-            state.level = compute.nearest_level(case, state.level)  # a level the case has
-        except CaseError:
-            pass
-        page.controls.follow(set(URL_PARAMS))
-        page.below.follow(set(URL_PARAMS))
-        if doc is not None and doc.session_context is not None:
-            pn.state.onload(page.start)
-        else:
-            page.start()
-        return page.layout
-    except Exception:  # noqa: BLE001 - the page says one sentence, the log the rest
+    def failed():
         eid = _error_id()
         log.exception("could not build a page (error id %s)", eid)
         return error_page(f"The page could not be built (error id {eid}); the server log has "
                           "the details.")
+
+    try:
+        if GLOBAL_CSS not in pn.config.raw_css:
+            pn.config.raw_css.append(GLOBAL_CSS)
+        query = dict(pn.state.session_args or {})
+        doc = pn.state.curdoc
+        if doc is None or doc.session_context is None:  # no browser: build and compute now
+            page = build_page(library, query, thresholds)
+            page.start()
+            return page.layout
+        page = build_page(library, query, thresholds, doc)
+        pn.state.onload(page.start)  # the work starts when the browser is there to see it
+        return page.layout
+    except Exception:  # noqa: BLE001 - the page says one sentence, the log the rest
+        return failed()
