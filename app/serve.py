@@ -140,10 +140,15 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
     Returns the server (after it stops when ``start``).
     """
     import panel as pn
+    from bokeh.settings import settings as bokeh_settings
 
     from .desk import make_session
     from .desk.look import GLOBAL_CSS
     from .library import CaseLibrary
+
+    # every script and stylesheet from this server, also for parts drawn after the page
+    # loaded (a tab opened later): the page works offline, and the CSP allows nothing else
+    bokeh_settings.resources.set_value("server")
 
     check_address(host, port)
     paths = case_paths(files, cases_dir)

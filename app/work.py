@@ -19,6 +19,7 @@ import collections
 import logging
 import os
 import threading
+import time
 import uuid
 
 __all__ = ["FairPool", "Lane", "POOL"]
@@ -117,8 +118,11 @@ class FairPool:
                     _safe(done, "stale", None, gen)
                     continue
                 try:
+                    t0 = time.perf_counter()
                     value = fn()
                     status = "ok"
+                    log.debug("lane %s: %s computed in %.0f ms", lane.name, kind,
+                              1e3 * (time.perf_counter() - t0))
                 except Exception as exc:  # noqa: BLE001 - the page says it in one sentence
                     status, value = "error", exc
                 _safe(done, status if lane.current(kind, gen) else "stale", value, gen)

@@ -22,11 +22,8 @@ import argparse
 import os
 import random
 import shutil
-import socket
 import statistics
-import subprocess
 import sys
-import tempfile
 import threading
 import time
 import urllib.request
@@ -37,51 +34,11 @@ import pyproj  # noqa: E402,F401
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(HERE)
 sys.path.insert(0, ROOT)
+sys.path.append(HERE)  # after the project: bench/app.py must not hide the app package
 
-ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networking",
-        "--disable-component-update", "--no-first-run", "--disable-sync"]
-LINK = "?case=ocean_cyclone&level=500&time=2041-01-19T12%3A00%3A00Z"
+from browser import ARGS, LINK, page_ready, set_box, start_server  # noqa: E402
 BOXES = [(-52, -28, 38, 56), (-45, -20, 30, 50), (-60, -35, 45, 60), (-40, -10, 35, 55),
          (-30, -5, 40, 52), (-55, -45, 30, 40), (-20, 0, 45, 60), (-65, -40, 28, 42)]
-
-
-def _free_port():
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
-def start_server():
-    port = _free_port()
-    log = tempfile.NamedTemporaryFile("w", suffix=".log", delete=False)
-    proc = subprocess.Popen([sys.executable, "-m", "app.cli", "serve", "--port", str(port)],
-                            cwd=ROOT, stdout=log, stderr=subprocess.STDOUT)
-    url = f"http://127.0.0.1:{port}/"
-    for _ in range(240):
-        try:
-            urllib.request.urlopen(url, timeout=2)
-            return proc, url, log.name
-        except Exception:  # noqa: BLE001
-            time.sleep(0.5)
-    proc.kill()
-    raise SystemExit("the server did not start")
-
-
-def page_ready(browser, url) -> float:
-    """Seconds from navigation to the verdict shown, in a fresh page."""
-    page = browser.new_page(viewport={"width": 1500, "height": 1000})
-    t0 = time.perf_counter()
-    page.goto(url + LINK)
-    page.locator(".bd-verdict").first.wait_for(timeout=120_000)
-    dt = time.perf_counter() - t0
-    page.close()
-    return dt
-
-
-def set_box(page, box):
-    for label, v in zip(("West", "East", "South", "North"), box):
-        page.get_by_label(label, exact=True).fill(str(v))
-    page.get_by_role("button", name="Use this box").click()
 
 
 def hammer(url, seconds, n_sessions, result, ready):

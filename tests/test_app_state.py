@@ -172,8 +172,8 @@ def _page(library, state):
 
 def test_page_without_a_server(library):
     page = _page(library, _state())
-    assert page.evidence.rank_src.data["name"][0] in ("pressure gradient", "Coriolis")
-    assert "Geostrophic" in page.evidence.verdict.object
+    assert page.evidence.ranking[0].name in ("pressure gradient", "Coriolis")
+    assert "Geostrophic" in page.evidence.body.object
     assert len(page.chart.hover_src.data["x"]) > 100
     assert page.chart.caption.object.count("500 hPa") == 1
     # the page keeps working after an error, and says what happened

@@ -31,6 +31,59 @@ UNITS = {"U": "m s-1", "W": "m s-1", "L": "m", "H": "m", "dP": "Pa", "rho": "kg 
          "lat0": "degrees", "nu": "m2 s-1"}
 
 
+def _ink_on(hex_colour: str) -> str:
+    """Black or white text, whichever contrasts more with the cell (WCAG relative luminance)."""
+    rgb = [int(hex_colour[i:i + 2], 16) / 255 for i in (1, 3, 5)]
+    lum = sum(w * (c / 12.92 if c <= 0.03928 else ((c + 0.055) / 1.055) ** 2.4)
+              for w, c in zip((0.2126, 0.7152, 0.0722), rgb))
+    return "#000000" if (lum + 0.05) / 0.05 >= 1.05 / (lum + 0.05) else "#ffffff"
+
+
+def levels_table(data) -> str:
+    """The region through the levels as an HTML table: a cell per term and level, coloured
+    by log10 of its magnitude (cividis), its value written in it; the balance last."""
+    pal = palette("sequential")
+    mags = [m for r in data["rows"] for t, m in (r.get("magnitudes") or {}).items()
+            if m and t in LEVEL_TERMS]
+    lo = math.floor(math.log10(min(mags))) if mags else -8
+    hi = math.ceil(math.log10(max(mags))) if mags else -2
+    hi = max(hi, lo + 1)
+    lo = max(lo, hi - 6)  # six decades: smaller values take the darkest colour
+
+    def cell(m):
+        if not m:
+            return ("<td style='background:#e3e3e3;color:#1a1a1a;text-align:center;"
+                    "padding:4px 6px'>n/a</td>")
+        x = (math.log10(m) - lo) / (hi - lo)
+        bg = pal[min(max(int(x * (len(pal) - 1)), 0), len(pal) - 1)]
+        return (f"<td title='{m:.3g} m s-2' style='background:{bg};color:{_ink_on(bg)};"
+                f"text-align:center;padding:4px 6px;font-variant-numeric:tabular-nums'>"
+                f"{m:.0e}</td>")
+
+    head = "".join(f"<th scope='col' style='padding:4px 6px;font-weight:600;vertical-align:bottom'"
+                   f">{esc(vocab.term_name(t))}</th>" for t in LEVEL_TERMS)
+    rows = []
+    for r in sorted(data["rows"], key=lambda r: r["level_hpa"]):
+        bal = vocab.balance_name(r["balance"]) if r.get("balance") else "error"
+        rows.append(f"<tr><th scope='row' style='text-align:right;padding:4px 8px;"
+                    f"white-space:nowrap'>{r['level_hpa']:g} hPa</th>" +
+                    "".join(cell((r.get("magnitudes") or {}).get(t)) for t in LEVEL_TERMS) +
+                    f"<td style='padding:4px 8px;font-weight:700'>{esc(bal)}</td></tr>")
+    steps = 8
+    scale = "".join(
+        f"<span style='display:inline-block;width:34px;height:14px;background:"
+        f"{pal[int(k / (steps - 1) * (len(pal) - 1))]}'></span>" for k in range(steps))
+    return (f"<div style='color:{INK}'><div style='font-size:17px;font-weight:700;margin:4px 0'>"
+            f"Term magnitudes through the levels (m s-2) &middot; {esc(data['region'])}, "
+            f"{esc(data['when'])}</div><div style='overflow-x:auto'>"
+            "<table class='bd-levels' style='border-collapse:separate;border-spacing:2px;"
+            "font-size:15px'>"
+            f"<thead><tr><th></th>{head}<th scope='col' style='padding:4px 6px'>balance</th>"
+            f"</tr></thead><tbody>{''.join(rows)}</tbody></table></div>"
+            f"<div style='font-size:14px;margin-top:4px'>colour: 1e{lo} {scale} 1e{hi} m s-2 "
+            "(log scale)</div></div>")
+
+
 class Below(pn.viewable.Viewer):
     """The tabs under the chart."""
 
@@ -42,80 +95,61 @@ class Below(pn.viewable.Viewer):
         self._build_times()
         self._build_sheet()
         self.notes = pn.pane.HTML("", sizing_mode="stretch_width")
+        # only the open tab is in the page (the browser lays out less); what a closed tab
+        # is given waits until it is opened (see _put)
         self.tabs = pn.Tabs(("Through the levels", self.levels_pane),
                             ("Through the times", self.times_pane),
                             ("A priori scale sheet", self.sheet),
-                            ("Notes on the data", self.notes), dynamic=False,
+                            ("Notes on the data", self.notes), dynamic=True,
                             sizing_mode="stretch_width", css_classes=["bd-live"])
+        self._tab_of = {id(p): 0 for p in (self.levels_status, self.levels_table)}
+        self._tab_of.update({id(self.times_status): 1, id(self.sheet_out): 2,
+                             id(self.notes): 3})
+        self._pending: dict = {}
+        self.tabs.param.watch(self._opened, "active")
+
+    def _put(self, pane, text):
+        """Give an HTML pane its text now if its tab is open, else when the tab is opened.
+
+        Panel draws a closed tab's parts afresh when it is opened; a text given to a part
+        that is not in the page would take Panel's stylesheets from its CDN, which the
+        page may not load.
+        """
+        if self._tab_of.get(id(pane), self.tabs.active) == self.tabs.active:
+            self._pending.pop(id(pane), None)
+            pane.object = text
+        else:
+            self._pending[id(pane)] = (pane, text)
+
+    def _opened(self, event):
+        for key, (pane, text) in list(self._pending.items()):
+            if self._tab_of[key] == event.new:
+                del self._pending[key]
+                pane.object = text
 
     # -- through the levels ----------------------------------------------------------------
     def _build_levels(self):
-        self.lev_src = ColumnDataSource(dict(term=[], level=[], value=[], text=[], ink=[]))
-        self.lev_cls_src = ColumnDataSource(dict(term=[], level=[], text=[]))
-        self.lev_mapper = LinearColorMapper(palette=palette("sequential"), low=-8, high=-2,
-                                            nan_color="#e3e3e3")
-        xs = [vocab.term_name(t) for t in LEVEL_TERMS] + ["balance"]
-        f = figure(height=420, x_range=FactorRange(factors=xs),
-                   y_range=FactorRange(factors=[]), tools="hover", toolbar_location=None,
-                   sizing_mode="stretch_width", min_width=700,
-                   title="Term magnitudes through the levels (log10 m s-2)",
-                   tooltips=[("level", "@level"), ("term", "@term"), ("magnitude", "@text")])
-        f.rect("term", "level", 0.96, 0.92, source=self.lev_src,
-               fill_color={"field": "value", "transform": self.lev_mapper}, line_color=None)
-        f.text("term", "level", text="text", source=self.lev_src, text_align="center",
-               text_baseline="middle", text_font_size="14px", text_color="ink")
-        f.text("term", "level", text="text", source=self.lev_cls_src, text_align="center",
-               text_baseline="middle", text_font_size="15px", text_color=INK,
-               text_font_style="bold")
-        f.add_layout(ColorBar(color_mapper=self.lev_mapper, width=16,
-                              major_label_text_font_size="14px",
-                              major_label_text_color=INK), "right")
-        f.xaxis.major_label_orientation = 0.45
-        f.min_border_bottom = 110
-        style_figure(f, "17px")
-        self.levels_fig = f
         self.levels_status = pn.pane.HTML("", sizing_mode="stretch_width")
-        self.levels_pane = pn.Column(self.levels_status, pn.pane.Bokeh(f), pn.pane.HTML(
+        self.levels_table = pn.pane.HTML(
+            f"<div style='font-size:16px;color:{MUTED}'>Computing the levels...</div>",
+            sizing_mode="stretch_width")
+        self.levels_pane = pn.Column(self.levels_status, self.levels_table, pn.pane.HTML(
             "<div style='font-size:15px'>Each row is one pressure level of the region at this "
-            "valid time; the last column is the balance found there (no verdict where too few "
-            "points are valid).</div>"), sizing_mode="stretch_width")
+            "valid time: the colour and the number are the term's magnitude in m s-2 "
+            "(log scale; grey: not available); the last column is the balance found there (no "
+            "verdict where too few points are valid).</div>"), sizing_mode="stretch_width")
 
     def levels_progress(self, done, total):
-        self.levels_status.object = alert(f"Computing the levels: {done} of {total} done...",
-                                          "info") if done < total else ""
+        of = "" if total is None else f": {done} of {total} done"
+        self._put(self.levels_status, alert(f"Computing the levels{of}...", "info")
+                  if total is None or done < total else "")
 
     def show_levels(self, data, error=None):
         if error or not data:
-            self.levels_status.object = alert(f"Through the levels: {error}", "error")
+            self._put(self.levels_status, alert(f"Through the levels: {error}", "error"))
             return
-        self.levels_status.object = ""
-        levels = [f"{r['level_hpa']:g} hPa" for r in data["rows"]][::-1]
-        src = dict(term=[], level=[], value=[], text=[], ink=[])
-        cls = dict(term=[], level=[], text=[])
-        for r in data["rows"]:
-            lv = f"{r['level_hpa']:g} hPa"
-            for t in LEVEL_TERMS:
-                m = (r.get("magnitudes") or {}).get(t)
-                src["term"].append(vocab.term_name(t))
-                src["level"].append(lv)
-                src["value"].append(math.log10(m) if m else np.nan)
-                src["text"].append(f"{m:.0e}" if m else "n/a")
-            cls["term"].append("balance")
-            cls["level"].append(lv)
-            cls["text"].append(vocab.balance_name(r["balance"]) if r.get("balance") else "error")
-        self.levels_fig.y_range.factors = levels
-        vals = [v for v in src["value"] if np.isfinite(v)]
-        if vals:
-            self.lev_mapper.low, self.lev_mapper.high = math.floor(min(vals)), math.ceil(max(vals))
-        lo, hi = self.lev_mapper.low, self.lev_mapper.high
-        # dark text on light cells (n/a cells are light grey), white on dark ones
-        src["ink"] = [INK if not np.isfinite(v) or (v - lo) / max(hi - lo, 1e-9) > 0.55
-                      else "white" for v in src["value"]]
-        self.lev_src.data = src
-        self.lev_cls_src.data = cls
-        self.levels_fig.height = 170 + 30 * len(levels)
-        self.levels_fig.title.text = (f"Term magnitudes through the levels (log10 m s-2) - "
-                                      f"{data['region']}, {data['when']}")
+        self._put(self.levels_status, "")
+        self._put(self.levels_table, levels_table(data))
 
     # -- through the times ---------------------------------------------------------------
     def _build_times(self):
@@ -149,26 +183,27 @@ class Below(pn.viewable.Viewer):
             "chart.</div>"), sizing_mode="stretch_width")
 
     def times_progress(self, done, total):
-        self.times_status.object = alert(f"Computing the valid times: {done} of {total} "
-                                         "done...", "info") if done < total else ""
+        of = "" if total is None else f": {done} of {total} done"
+        self._put(self.times_status, alert(f"Computing the valid times{of}...", "info")
+                  if total is None or done < total else "")
 
     def show_times(self, data, error=None):
         if error or not data:
-            self.times_status.object = alert(f"Through the times: {error}", "error")
+            self._put(self.times_status, alert(f"Through the times: {error}", "error"))
             return
         ser = data["series"]
         if len(ser) < 2:
             s = ser[0] if ser else {}
-            self.times_status.object = alert(
+            self._put(self.times_status, alert(
                 "This case has one valid time only, so there is nothing to follow through the "
                 "times" + (f" (local Rossby number {s['rossby_local']:.3g}, ageostrophic "
                            f"fraction {s['ageostrophic_fraction']:.3g})"
                            if s.get("rossby_local") is not None and
-                           s.get("ageostrophic_fraction") is not None else "") + ".", "info")
+                           s.get("ageostrophic_fraction") is not None else "") + ".", "info"))
             self.times_plot.visible = False
             return
         self.times_plot.visible = True
-        self.times_status.object = ""
+        self._put(self.times_status, "")
         t = [np.datetime64(s["time"].replace("Z", "")).astype("datetime64[ms]").astype(float)
              for s in ser]
         self.times_src.data = dict(t=t, ro=[np.nan if s["rossby_local"] is None else
@@ -240,7 +275,7 @@ class Below(pn.viewable.Viewer):
                          for k, v in sh["numbers"].items())
         err = alert(sh["error"], "error") if sh["error"] else ""
         bv = sh.get("box_verdict") or {}
-        self.sheet_out.object = (
+        self._put(self.sheet_out, (
             f"<div style='font-size:16px;color:{INK}'>"
             f"<p><b>Preset:</b> {esc(sh['preset_label'])} &mdash; <i>{esc(sh['source'])}</i></p>"
             f"{err}<div style='display:flex;gap:28px;flex-wrap:wrap'>"
@@ -250,12 +285,12 @@ class Below(pn.viewable.Viewer):
             f"<th>measured</th><th>measured as</th></tr>{trows}</table></div>"
             f"<p><b>Numbers from the sheet:</b> {nums}</p>"
             f"<p><b>The sheet says:</b> {esc(sh['verdict']['text'])}</p>"
-            f"<p><b>The data in the region say:</b> {esc(bv.get('text', 'n/a'))}</p></div>")
+            f"<p><b>The data in the region say:</b> {esc(bv.get('text', 'n/a'))}</p></div>"))
 
     # -- notes --------------------------------------------------------------------------------
     def show_notes(self, rep, thresholds):
         if not rep:
-            self.notes.object = ""
+            self._put(self.notes, "")
             return
         parts = ["<h4>How this region was computed</h4><ul>"]
         parts += [f"<li>{esc(n)}</li>" for n in rep.get("notes", [])]
@@ -291,8 +326,8 @@ class Below(pn.viewable.Viewer):
                      f"{thresholds.balanced:g} or less; at least {thresholds.min_points} valid "
                      f"points and {100 * thresholds.min_valid_share:.0f} % of the region for a "
                      "verdict); see DEVELOPERS.md.</p>")
-        self.notes.object = f"<div style='font-size:16px;color:{INK}'>" + "".join(parts) + \
-            "</div>"
+        self._put(self.notes, f"<div style='font-size:16px;color:{INK}'>" + "".join(parts) +
+                  "</div>")
 
     def __panel__(self):
         return self.tabs

@@ -22,7 +22,7 @@ from bokeh.models import (Arrow, BoxSelectTool, ColorBar, ColumnDataSource,
 from bokeh.plotting import figure
 
 from ..state import ViewState, area_from_crs
-from .look import GREY, INK, ORANGE, alert, esc, palette, style_figure
+from .look import BUSY, GREY, INK, ORANGE, alert, esc, mark_busy, palette, style_figure
 
 __all__ = ["Chart"]
 
@@ -123,7 +123,7 @@ class Chart(pn.viewable.Viewer):
         style_figure(fig)
         self.fig = fig
         self.pane = pn.pane.Bokeh(fig, sizing_mode="stretch_width", min_width=MIN_WIDTH,
-                                  max_width=WIDTH + 120, loading=True)
+                                  max_width=WIDTH + 120, styles=dict(BUSY))
         self.caption = pn.pane.HTML("", sizing_mode="stretch_width",
                                     styles={"font-size": "18px", "font-weight": "600"})
         self.alert = pn.pane.HTML("", sizing_mode="stretch_width")
@@ -134,11 +134,11 @@ class Chart(pn.viewable.Viewer):
 
     # -- showing ----------------------------------------------------------------------------
     def busy(self, on: bool = True):
-        self.pane.loading = on
+        mark_busy(self.pane, on)
 
     def show_error(self, text):
         self.alert.object = alert(text, "error")
-        self.pane.loading = False
+        mark_busy(self.pane, False)
 
     def show(self, cd):
         """Draw a :class:`app.compute.ChartData`."""
@@ -228,7 +228,7 @@ class Chart(pn.viewable.Viewer):
         notes += cd.notes
         self.note.object = "<div style='font-size:15px'>" + "<br>".join(esc(n) for n in notes) + \
             "</div>"
-        self.pane.loading = False
+        mark_busy(self.pane, False)
 
     def show_outline(self, xy):
         if xy is None:

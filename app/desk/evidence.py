@@ -7,52 +7,29 @@ It draws the report of :func:`app.compute.box_data` (the same object as
 
 from __future__ import annotations
 
-import math
-
-import numpy as np
 import panel as pn
 import param
-
-from bokeh.models import (ColumnDataSource, CustomJSTickFormatter, FactorRange, HoverTool,
-                          LabelSet, LogTicker, Range1d, Span)
-from bokeh.plotting import figure
 
 from balance_core.verdict import Thresholds
 
 from .. import vocab
 from ..state import ViewState
-from .look import (BLUE, GREEN, GREY, INK, MUTED, ORANGE, SKY, VERMILION, alert, esc,
-                   style_figure)
+from .bars import Bar, linear_bars, log_bars, log_range
+from .look import (BLUE, BUSY, GREEN, GREY, INK, MUTED, ORANGE, SKY, VERMILION, alert, esc,
+                   mark_busy)
 
 __all__ = ["Evidence"]
 
 WIDTH = 470
 
 
-def _log_bars(source, title, height, *, fill, ink):
-    """Horizontal bars of magnitudes on a log axis, a priori diamonds, value labels."""
-    f = figure(width=WIDTH, height=height, y_range=FactorRange(factors=[]), x_axis_type="log",
-               x_range=Range1d(1e-8, 1e-2), title=title, tools="", toolbar_location=None)
-    bars = f.hbar(y="name", left="left", right="value", height=0.62, source=source,
-                  fill_color=fill, line_color=None)
-    f.scatter("estimate", "name", source=source, marker="diamond", size=15, fill_color="white",
-              line_color="black", line_width=2)
-    f.add_layout(LabelSet(x="left", y="name", text="label", source=source, text_font_size="14px",
-                          text_color=ink, x_offset=4, text_baseline="middle",
-                          text_font_style="bold"))
-    f.xaxis.formatter = CustomJSTickFormatter(code="return '1e' + Math.round(Math.log10(tick));")
-    f.xaxis.ticker = LogTicker(desired_num_ticks=6)
-    return f, bars
-
-
 def _heading(title, sub):
-    return pn.pane.HTML(f"<div style='font-size:18px;font-weight:700;color:{INK}'>{esc(title)}"
-                        f"</div><div style='font-size:15px;color:{MUTED}'>{esc(sub)}</div>",
-                        width=WIDTH, margin=(10, 5, 0, 5))
+    return (f"<div style='font-size:18px;font-weight:700;color:{INK};margin-top:12px'>"
+            f"{esc(title)}</div><div style='font-size:15px;color:{MUTED}'>{esc(sub)}</div>")
 
 
 class Evidence(pn.viewable.Viewer):
-    """The right column of the page."""
+    """The right column of the page: one HTML pane, replaced whole for each report."""
 
     state = param.ClassSelector(class_=ViewState)
 
@@ -60,71 +37,32 @@ class Evidence(pn.viewable.Viewer):
         super().__init__(state=state, **params)
         self.thresholds = thresholds
         self.report = None
-        self.verdict = pn.pane.HTML("", width=WIDTH + 10, loading=True)
+        self.ranking: list[Bar] = []
         self.alert = pn.pane.HTML("", width=WIDTH + 10)
-        self.unavailable = pn.pane.HTML("", width=WIDTH + 10)
-        self.numbers = pn.pane.HTML("", width=WIDTH + 10)
-        self._build_bars()
-        self.layout = pn.Column(self.verdict, self.alert, self.rank_pane, self.unavailable,
-                                self.derived_pane, self.bal_pane, self.numbers,
-                                width=WIDTH + 20, css_classes=["bd-live"])
-
-    def _build_bars(self):
-        self.rank_src = ColumnDataSource(dict(name=[], left=[], value=[], estimate=[],
-                                              color=[], label=[], ink=[], shown=[]))
-        f, bars = _log_bars(self.rank_src, "", 400, fill="color", ink="ink")
-        f.add_tools(HoverTool(renderers=[bars], tooltips=[("term", "@name"),
-                                                          ("measured", "@shown"),
-                                                          ("a priori", "@estimate{0.0e} m s-2")]))
-        f.xaxis.axis_label = "m s-2"
-        style_figure(f)
-        self.rank_fig = f
-        self.rank_pane = pn.Column(_heading("Terms, largest first",
-                                            "bars: measured in the region; diamonds: a priori, "
-                                            "from the region's own scales"),
-                                   pn.pane.Bokeh(f), loading=True, margin=0)
-        self.der_src = ColumnDataSource(dict(name=[], left=[], value=[], estimate=[], label=[]))
-        d, _ = _log_bars(self.der_src, "", 190, fill=SKY, ink="black")
-        style_figure(d)
-        self.der_fig = d
-        self.derived_pane = pn.Column(_heading("Derived views", "not part of the sum"),
-                                      pn.pane.Bokeh(d), loading=True, margin=0)
-        self.bal_src = ColumnDataSource(dict(name=[], value=[], color=[], label=[], x=[]))
-        b = figure(width=WIDTH, height=210, y_range=FactorRange(factors=[]), x_range=(0, 1.9),
-                   tools="", toolbar_location=None)
-        b.hbar(y="name", left=0, right="value", height=0.6, source=self.bal_src,
-               fill_color="color", line_color=None)
-        b.add_layout(LabelSet(x="x", y="name", text="label", source=self.bal_src,
-                              text_font_size="15px", text_baseline="middle", x_offset=8,
-                              text_color=INK))
-        b.add_layout(Span(location=self.thresholds.balanced, dimension="height",
-                          line_color="black", line_dash="dashed", line_width=2))
-        b.xaxis.axis_label = f"smaller holds better (dashed: {self.thresholds.balanced:g})"
-        style_figure(b, "16px")
-        self.bal_fig = b
-        self.bal_pane = pn.Column(_heading("Candidate balances",
-                                           "|sum of their terms| / |pressure gradient|"),
-                                  pn.pane.Bokeh(b), loading=True, margin=0)
+        self.body = pn.pane.HTML(f"<div style='font-size:18px;color:{MUTED};padding:12px'>"
+                                 "Computing the region's terms...</div>", width=WIDTH + 10,
+                                 styles=dict(BUSY))
+        self.layout = pn.Column(self.alert, self.body, width=WIDTH + 20, css_classes=["bd-live"])
 
     # -- showing --------------------------------------------------------------------------------
     def busy(self, on: bool = True):
-        for p in (self.verdict, self.rank_pane, self.derived_pane, self.bal_pane):
-            p.loading = on
+        mark_busy(self.body, on)
 
     def show_error(self, text):
         self.report = None
+        self.ranking = []
         self.alert.object = alert(text, "error")
-        self.verdict.object = ""
-        self.rank_src.data = {k: [] for k in self.rank_src.data}
-        self.der_src.data = {k: [] for k in self.der_src.data}
-        self.bal_src.data = {k: [] for k in self.bal_src.data}
-        self.numbers.object = ""
-        self.unavailable.object = ""
+        self.body.object = ""
         self.busy(False)
 
     def show(self, rep):
         self.report = rep
         self.alert.object = ""
+        self.body.object = (self._verdict_html(rep) + self._terms_html(rep) +
+                            self._balances_html(rep) + self._numbers_html(rep))
+        self.busy(False)
+
+    def _verdict_html(self, rep):
         v = rep["verdict"]
         share = rep.get("valid_share")
         valid = (f"{rep['points']} of {rep.get('region_points', rep['points'])} points valid"
@@ -134,65 +72,59 @@ class Evidence(pn.viewable.Viewer):
         mark = ("<div style='margin-top:6px;font-size:15px;color:#5c0a5c;font-weight:700'>"
                 "Invented demo data</div>") if rep.get("invented") else ""
         edge = ORANGE if v["balance"] != "none" else GREY
-        self.verdict.object = (
+        return (
             f"<div class='bd-verdict' style='font-size:19px;line-height:1.35;color:{INK};"
             f"border-left:6px solid {edge};padding:6px 10px;background:#fafafa'>"
             f"<div style='font-size:24px;font-weight:700'>{esc(vocab.balance_name(v['balance']))}"
             f"</div>{esc(v['text'])}{why}<div style='font-size:15px;color:{MUTED};margin-top:4px'>"
             f"{rep['level_hpa']:g} hPa &middot; {esc(rep.get('when', rep['valid_time']))} "
             f"&middot; {esc(rep.get('region_text', ''))} &middot; {esc(valid)}</div>{mark}</div>")
-        avail = [t for t in rep["terms"] if t["magnitude"] is not None]
-        mags = [t["magnitude"] for t in avail] + [t["estimate"] for t in avail if t["estimate"]]
-        mags = [m for m in mags if m and m > 0]
-        hi = 10.0 ** math.ceil(math.log10(max(mags))) if mags else 1e-2
-        # six decades below the largest: smaller terms sit at the left edge (their values are
-        # in the exports and on hover)
-        lo = max(10.0 ** math.floor(math.log10(min(mags))) / 10 if mags else 1e-12, hi * 1e-6)
-        pairs = {"pressure_gradient", "coriolis"}
-        self.rank_fig.y_range.factors = [vocab.term_name(t["name"]) for t in avail][::-1]
-        self.rank_src.data = dict(
-            name=[vocab.term_name(t["name"]) for t in avail],
-            left=[lo] * len(avail),
-            value=[max(t["magnitude"], lo) for t in avail],
-            estimate=[max(t["estimate"], lo) if t["estimate"] and t["estimate"] > 0 else np.nan
-                      for t in avail],
-            color=[BLUE if t["name"] in pairs else (VERMILION if t["name"] == "residual" else GREEN)
-                   for t in avail],
-            label=[(f"{t['magnitude']:.1e}" if t["magnitude"] > 0 else "0 (none in the data)")
-                   if t["magnitude"] >= lo * 30 or t["magnitude"] == 0 else "" for t in avail],
-            ink=["white" if t["magnitude"] >= lo * 30 else "black" for t in avail],
-            shown=[f"{t['magnitude']:.2e} m s-2" for t in avail])
-        self.rank_fig.x_range.start, self.rank_fig.x_range.end = lo, hi * 3
-        self.rank_fig.height = 110 + 36 * max(len(avail), 1)
-        self.unavailable.object = ("<div style='font-size:15px'><b>Unavailable:</b> " + "; ".join(
-            f"{esc(vocab.term_name(t['name']))} ({esc(t['note'])})" for t in rep["unavailable"])
-            + "</div>") if rep.get("unavailable") else ""
-        der = [t for t in rep["derived"] if t["magnitude"] is not None]
-        self.der_fig.y_range.factors = [vocab.term_name(t["name"]) for t in der][::-1]
-        self.der_src.data = dict(name=[vocab.term_name(t["name"]) for t in der],
-                                 left=[lo] * len(der),
-                                 value=[max(t["magnitude"], lo) for t in der],
-                                 estimate=[max(t["estimate"], lo) if t["estimate"] else np.nan
-                                           for t in der],
-                                 label=[f"{t['magnitude']:.1e}" for t in der])
-        self.der_fig.x_range.start, self.der_fig.x_range.end = lo, hi * 3
-        self._show_balances(rep)
-        self.numbers.object = self._numbers_html(rep)
-        self.busy(False)
 
-    def _show_balances(self, rep):
+    def _terms_html(self, rep):
+        avail = [t for t in rep["terms"] if t["magnitude"] is not None]
+        der = [t for t in rep["derived"] if t["magnitude"] is not None]
+        lo, hi = log_range([t["magnitude"] for t in avail + der] +
+                           [t["estimate"] for t in avail + der if t["estimate"]])
+        pairs = {"pressure_gradient", "coriolis"}
+
+        def bar(t, colour):
+            m, e = t["magnitude"], t["estimate"]
+            name = vocab.term_name(t["name"])
+            tip = f"{name}: measured {m:.3g} m s-2" + (f", a priori {e:.1g} m s-2" if e else "")
+            return Bar(name=name, value=m, label=f"{m:.2g}" if m > 0 else "0 (none)",
+                       colour=colour, estimate=e if e and e > 0 else None, tip=tip)
+
+        self.ranking = [bar(t, BLUE if t["name"] in pairs else
+                            (VERMILION if t["name"] == "residual" else GREEN)) for t in avail]
+        out = _heading("Terms, largest first", "bars: measured in the region (m s-2); "
+                       "diamonds: a priori, from the region's own scales")
+        out += log_bars(self.ranking, lo, hi, "magnitude, m s-2 (log scale)")
+        if rep.get("unavailable"):
+            out += ("<div style='font-size:15px;color:" + INK + "'><b>Unavailable:</b> " +
+                    "; ".join(f"{esc(vocab.term_name(t['name']))} ({esc(t['note'])})"
+                              for t in rep["unavailable"]) + "</div>")
+        if der:
+            out += _heading("Derived views", "not part of the sum")
+            out += log_bars([bar(t, SKY) for t in der], lo, hi, "magnitude, m s-2 (log scale)")
+        return out
+
+    def _balances_html(self, rep):
         bal = [(k, r) for k, r in rep["balances"].items() if r is not None]
+        if not bal:
+            return ""
         chosen = rep["verdict"]["balance"]
         th = self.thresholds.balanced
-        names = [vocab.balance_name(k) for k, _ in bal]
-        self.bal_fig.y_range.factors = names[::-1]
-        # the label sits past both the bar and the dashed line, so it never crosses it
-        self.bal_src.data = dict(
-            name=names, value=[min(r, 1.5) for _, r in bal],
-            color=[ORANGE if k == chosen else "#8a8a8a" for k, _ in bal],
-            label=[f"{100 * r:.0f} %" + ("  (the verdict)" if k == chosen else "")
-                   for k, r in bal],
-            x=[max(min(r, 1.5), th) + 0.02 for _, r in bal])
+        bars = [Bar(name=vocab.balance_name(k), value=min(r, 1.5),
+                    label=f"{100 * r:.0f} %" + (" (verdict)" if k == chosen else ""),
+                    colour=ORANGE if k == chosen else "#8a8a8a", strong=k == chosen,
+                    tip=f"{vocab.balance_name(k)}: what its terms leave over is "
+                        f"{100 * r:.0f} % of the pressure gradient")
+                for k, r in bal]
+        return (_heading("Candidate balances", "|sum of their terms| / |pressure gradient|; "
+                         "smaller holds better") +
+                linear_bars(bars, 0.0, 1.5, [(0, "0"), (0.5, "50 %"), (1.0, "100 %"),
+                                             (1.5, "150 %")],
+                            f"dashed: the limit for a balance, {100 * th:.0f} %", dashed_at=th))
 
     def _numbers_html(self, rep):
         rows = []

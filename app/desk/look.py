@@ -16,7 +16,7 @@ import html
 
 __all__ = ["CAUTION", "ORANGE", "SKY", "GREEN", "BLUE", "VERMILION", "PURPLE", "GREY",
            "INK", "MUTED", "esc", "GLOBAL_CSS", "style_figure", "palette", "alert",
-           "INVENTED", "FONT"]
+           "INVENTED", "FONT", "BUSY", "mark_busy"]
 
 CAUTION = ("balance-desk is a diagnostic aid. Official forecasts and warnings come from the "
            "responsible meteorological service; local rules and licensed practice come first.")
@@ -49,6 +49,22 @@ WIDGET_CSS = """
   outline: 3px solid #0b5cad !important; outline-offset: 2px; }
 label, .bk-input-group label { color: #1a1a1a; }
 """
+
+
+#: How a part whose content is out of date looks until it is replaced: faded and grey.
+#: Inline styles, not CSS classes or Panel's ``loading``: a change of classes makes the
+#: browser lay the whole page out again (about 140 ms for this page), a style does not.
+BUSY = {"opacity": "0.3", "filter": "grayscale(100%)"}
+#: ... and current (set, not removed: the browser keeps an inline style that is dropped)
+CURRENT = {"opacity": "1", "filter": "none"}
+
+
+def mark_busy(part, on: bool = True):
+    """Mark a Panel object as updating (``on``) or current."""
+    styles = dict(part.styles or {})
+    styles.update(BUSY if on else CURRENT)
+    if styles != (part.styles or {}):
+        part.styles = styles
 
 
 def esc(text) -> str:

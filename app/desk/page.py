@@ -16,6 +16,7 @@ page builds the frame and nothing else.
 from __future__ import annotations
 
 import logging
+import time
 import uuid
 from functools import partial
 
@@ -95,9 +96,10 @@ class Page(pn.viewable.Viewer):
                               f"{esc(CAUTION)}</div>", sizing_mode="stretch_width",
                               styles={"background": "#fff3cd", "padding": "8px",
                                       "border-top": "2px solid #856404"})
-        main = pn.FlexBox(self.controls, self.chart, self.evidence, flex_wrap="wrap",
-                          align_items="flex-start", sizing_mode="stretch_width",
-                          styles={"gap": "8px"})
+        # a row that wraps: the evidence goes below the chart on a narrow screen (a plain
+        # Row with CSS, not a FlexBox: that one is a template the browser lays out slowly)
+        main = pn.Row(self.controls, self.chart, self.evidence, sizing_mode="stretch_width",
+                      styles={"flex-wrap": "wrap", "gap": "8px", "align-items": "flex-start"})
         self.chart.layout.styles = {"flex": "1 1 560px"}
         self.layout = pn.Column(self.header, self.problems, main, self.below.tabs, footer,
                                 sizing_mode="stretch_width")
@@ -116,10 +118,22 @@ class Page(pn.viewable.Viewer):
         doc.js_on_event("connection_lost", CustomJS(code=LOST_JS))
         doc.on_session_destroyed(lambda ctx: self._lane.close())
 
+    def prime(self):
+        """Start the first screen's two views (the region's ranking, the chart) while the
+        browser loads the page: results that arrive before it asks for the document are part
+        of the document, so its first paint has them."""
+        self._primed = True
+        self.refresh(set(URL_PARAMS), views=("box", "chart"))
+
     def start(self):
-        """The page is in the browser: compute everything it shows."""
+        """The page is in the browser: compute everything it shows (what :meth:`prime`
+        started is not asked for again)."""
         self.live = True
-        self.refresh(set(URL_PARAMS))
+        views = ("levels", "times") if getattr(self, "_primed", False) else None
+        if self.doc is not None and self.doc.session_context is not None:
+            self._held(partial(self.refresh, set(URL_PARAMS), views))
+        else:
+            self.refresh(set(URL_PARAMS), views)
 
     # -- the state changed -----------------------------------------------------------------------
     def _on_state(self, *events):
@@ -185,27 +199,30 @@ class Page(pn.viewable.Viewer):
             log.exception("could not update the page's link")
 
     # -- work -------------------------------------------------------------------------------------
-    def refresh(self, names=None):
-        """Recompute what the changed parameters affect."""
+    def refresh(self, names=None, views=None):
+        """Recompute what the changed parameters affect (of ``views``: all by default)."""
         names = set(names or URL_PARAMS)
+        views = set(views or ("box", "chart", "levels", "times"))
         snap = self.state.copy()
-        if names & BOX:
+        if names & BOX and "box" in views:
             self.evidence.busy(True)
             self._submit("box", lambda: compute.box_data(self.library, snap, self.thresholds),
                          self._show_box)
         geom = self.chart.data.geom if self.chart.data is not None else None
         global_conformal = geom is not None and geom.kind == "conformal" and \
             getattr(geom.grid, "periodic", False)
-        if names & CHART or ("region" in names and (geom is None or global_conformal)):
+        if "chart" not in views:
+            pass
+        elif names & CHART or ("region" in names and (geom is None or global_conformal)):
             self.chart.busy(True)
             self._submit("chart", lambda: compute.chart_data(self.library, snap), self._show_chart)
         elif "region" in names:
             # only the outline moves: no new raster, contours or vectors to send
             spec = snap.region_spec()
             self.chart.show_outline(None if spec is None else compute.region_outline(geom, spec))
-        if names & BOX:
-            self.below.levels_progress(0, 1)
-            self.below.times_progress(0, 1)
+        if names & BOX and "levels" in views:
+            self.below.levels_progress(0, None)
+            self.below.times_progress(0, None)
             self._submit("levels", lambda: compute.levels_data(
                 self.library, snap, progress=self._progress(self.below.levels_progress)),
                 self.below.show_levels)
@@ -215,15 +232,30 @@ class Page(pn.viewable.Viewer):
         if names & {"preset", "sheet"} and not names & BOX:
             self.below.show_sheet(compute.scale_sheet(self.state, self.report))
 
+    #: seconds between two progress reports of one view (each one costs the browser a layout)
+    PROGRESS_EVERY = 0.5
+
     def _progress(self, show):
+        last = [time.monotonic()]
+
         def report(done, total):
+            now = time.monotonic()
+            if done <= 0 or done >= total or now - last[0] < self.PROGRESS_EVERY:
+                return  # the start is already shown, and the end replaces the line
+            last[0] = now
             self._later(partial(show, done, total))
         return report
 
     def _later(self, fn):
+        """Run ``fn`` on the document's next tick, its changes sent as one message."""
         if self.doc is not None and self.doc.session_context is not None:
-            self.doc.add_next_tick_callback(fn)
+            self.doc.add_next_tick_callback(partial(self._held, fn))
         else:
+            fn()
+
+    def _held(self, fn):
+        # the browser lays the page out once per message: one message per step, not per property
+        with pn.io.hold(self.doc):
             fn()
 
     def _submit(self, kind, fn, show):
@@ -368,8 +400,9 @@ def build_page(library, query: dict, thresholds: Thresholds = Thresholds(), doc=
 def make_session(library, thresholds: Thresholds = Thresholds()):
     """The page of one new browser session (the function the server calls per request).
 
-    A plain GET gets the page's parts, empty and marked as loading, and nothing is
-    computed: the work starts when the browser connects (``pn.state.onload``).
+    A GET gets the page's parts, marked as updating, and starts the two views of the
+    first screen (:meth:`Page.prime`) in the session's lane; the views through the
+    levels and the times start when the browser has drawn the page (``pn.state.onload``).
     Never raises: a failure shows one sentence with an error id, the server log the
     details.
     """
@@ -388,8 +421,14 @@ def make_session(library, thresholds: Thresholds = Thresholds()):
             page = build_page(library, query, thresholds)
             page.start()
             return page.layout
+        # parts drawn later (a tab opened) take Panel's stylesheets from this server too,
+        # not from Panel's CDN (which the CSP blocks and an offline desk cannot reach)
+        from panel.io.resources import get_dist_path
+
+        doc._template_variables.setdefault("dist_url", get_dist_path(cdn=False))
         page = build_page(library, query, thresholds, doc)
-        pn.state.onload(page.start)  # the work starts when the browser is there to see it
+        page.prime()
+        pn.state.onload(page.start)  # the rest starts when the browser is there to see it
         return page.layout
     except Exception:  # noqa: BLE001 - the page says one sentence, the log the rest
         return failed()
