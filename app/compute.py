@@ -262,8 +262,9 @@ def _round_speed(x: float) -> float:
     return min((b * e for b in (1, 2, 2.5, 5, 10)), key=lambda v: abs(math.log(v / x)))
 
 
-def _hover(geom, diag, vals, state, units, n_across=48):
-    """A coarse lattice of readouts, each value already written as the page shows it."""
+def _hover(geom, diag, vals, state, units, n_across=40):
+    """A coarse lattice of readouts in the page's units, as numbers (float32): the page
+    writes them (N/S/E/W, the units, "no data") when the mouse is over one."""
     ny, nx = geom.lon.shape
     step = max(1, nx // n_across)
     jj, ii = np.mgrid[step // 2:ny:step, step // 2:nx:step]
@@ -278,27 +279,13 @@ def _hover(geom, diag, vals, state, units, n_across=48):
     ok = np.isfinite(f) | np.isfinite(z)
     dx = (geom.xs[-1] - geom.xs[0]) / max(nx - 1, 1) * step
     dy = (geom.ys[-1] - geom.ys[0]) / max(ny - 1, 1) * step
-    zfmt = "{:.1f}" if zu == "dam" else "{:.0f}"
-    fu = f" {units}" if units else ""
-    return {"x": geom.xs[ii][ok], "y": geom.ys[jj][ok], "w": np.full(ok.sum(), dx),
-            "h": np.full(ok.sum(), dy),
-            "where": [f"{vocab.lat(a)}, {vocab.lon(b)}" for a, b in zip(lat[ok], lon[ok])],
-            "field": [_value_text(x) + fu if np.isfinite(x) else "no data" for x in f[ok]],
-            "height": [zfmt.format(x) + f" {zu}" if np.isfinite(x) else "no data" for x in z[ok]],
-            "wind": [f"{s:.0f} {wu} from {d:03.0f} deg" if np.isfinite(s) else "no data"
-                     for s, d in zip(spd[ok], direction[ok])],
+    f32 = np.float32
+    return {"x": geom.xs[ii][ok].astype(f32), "y": geom.ys[jj][ok].astype(f32),
+            "w": float(abs(dx)),
+            "h": float(abs(dy)), "lat": lat[ok].astype(f32), "lon": lon[ok].astype(f32),
+            "field": np.asarray(f[ok], f32), "height": np.asarray(z[ok], f32),
+            "speed": np.asarray(spd[ok], f32), "dir": np.asarray(direction[ok], f32),
             "field_units": units, "height_units": zu, "wind_units": wu}
-
-
-def _value_text(x) -> str:
-    ax = abs(float(x))
-    if ax == 0:
-        return "0"
-    if ax >= 1000:
-        return f"{x:.0f}"
-    if ax >= 1e-2:
-        return f"{x:.3g}"
-    return f"{x:.2e}"
 
 
 def region_outline(geom, spec):

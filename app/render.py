@@ -449,10 +449,22 @@ def coastlines(geom: ViewGeometry):
     return xs, ys
 
 
+_GRATICULE_CACHE: dict = {}
+
+
 def graticule(geom: ViewGeometry, step: float | None = None):
-    """Meridians and parallels for a conformal view, with labels along the edges."""
+    """Meridians and parallels for a conformal view, with labels along the edges (cached
+    per view geometry, like the coastlines: the page sends them again only when new)."""
     if geom.kind != "conformal":
         return [], [], []
+    key = (None if geom.crs is None else geom.crs.to_wkt(), tuple(np.round(geom.extent, 3)),
+           step)
+    if key not in _GRATICULE_CACHE:
+        _GRATICULE_CACHE[key] = _graticule(geom, step)
+    return _GRATICULE_CACHE[key]
+
+
+def _graticule(geom: ViewGeometry, step: float | None):
     lonw = np.rad2deg(np.unwrap(np.deg2rad(geom.lon), axis=1))
     lon_lo, lon_hi = np.nanmin(lonw), np.nanmax(lonw)
     lat_lo, lat_hi = np.nanmin(geom.lat), np.nanmax(geom.lat)

@@ -29,6 +29,9 @@ log = logging.getLogger("balance_desk")
 #: the order a lane's waiting jobs are taken in: the ranking before the chart, the views
 #: through the levels and the times last
 KIND_ORDER = ("box", "chart", "outline", "levels", "times")
+#: a lane's views through the levels and the times wait while its first screen (the ranking,
+#: the chart) is computed, so they do not slow it down (both hold the interpreter in turn)
+FIRST = ("box", "chart", "outline")
 
 
 class Lane:
@@ -39,6 +42,7 @@ class Lane:
         self.name = name or uuid.uuid4().hex[:8]
         self.waiting: dict = {}
         self.generation: collections.Counter = collections.Counter()
+        self.running: collections.Counter = collections.Counter()
         self.closed = False
 
     def submit(self, kind: str, fn, done) -> int:
@@ -64,9 +68,13 @@ class Lane:
             self.waiting.clear()
 
     def _take(self):
+        first_busy = any(self.running[k] for k in FIRST)
         for kind in sorted(self.waiting, key=lambda k: KIND_ORDER.index(k)
                            if k in KIND_ORDER else len(KIND_ORDER)):
+            if first_busy and kind not in FIRST:
+                return None  # taken up again when the first screen's job ends
             gen, fn, done = self.waiting.pop(kind)
+            self.running[kind] += 1
             return kind, gen, fn, done
         return None
 
@@ -129,6 +137,9 @@ class FairPool:
             finally:
                 with self._lock:
                     self.running -= 1
+                    lane.running[kind] -= 1
+                    if lane.waiting and not lane.closed:
+                        self._ready(lane)
 
     def waiting(self) -> int:
         with self._lock:

@@ -195,7 +195,7 @@ def browser_figures(repeat):
             for i in range(repeat):
                 lev = cycle[i % len(cycle)]
                 page.evaluate(f"bdWatch('chart', '.bd-chart-title', {lev!r}); "
-                              f"bdWatch('rank', '.bd-verdict', {lev!r})")
+                              f"bdWatch('rank', '.bd-verdict-where', {lev!r})")
                 t0 = bb.mark(page)
                 select.select_option(label=lev)
                 level_ms.append(max(bb.seen(page, "chart"), bb.seen(page, "rank")) - t0)

@@ -108,6 +108,11 @@ class Below(pn.viewable.Viewer):
         self._pending: dict = {}
         self.tabs.param.watch(self._opened, "active")
 
+    TAB = {"levels": 0, "times": 1, "sheet": 2, "notes": 3}
+
+    def is_open(self, view: str) -> bool:
+        return self.tabs.active == self.TAB[view]
+
     def _put(self, pane, text):
         """Give an HTML pane its text now if its tab is open, else when the tab is opened.
 

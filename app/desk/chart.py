@@ -15,7 +15,7 @@ import panel as pn
 import param
 
 from bokeh import events
-from bokeh.models import (Arrow, BoxSelectTool, ColorBar, ColumnDataSource,
+from bokeh.models import (Arrow, BoxSelectTool, ColorBar, ColumnDataSource, CustomJSHover,
                           CustomJSTickFormatter, HoverTool, Label, LabelSet, LinearColorMapper,
                           NormalHead, PanTool, Range1d, ResetTool, SingleIntervalTicker,
                           WheelZoomTool)
@@ -28,6 +28,50 @@ __all__ = ["Chart"]
 
 #: the chart's drawing size at its widest; narrower screens scale it down
 WIDTH, MIN_WIDTH = 860, 520
+
+
+def HOVER_TIPS(field_label):  # noqa: N802 - a table of the readout's lines
+    return [("where", "@lat{lat}, @lon{lon}"), (field_label, "@field{value}"),
+            ("height", "@height{height}"), ("wind", "@speed{wind}")]
+
+
+#: the readout written in the page from the numbers: N/S/E/W, the units, "no data"
+_HOVER_JS = {
+    "@lat": "if (!isFinite(value)) return ''; "
+            "return Math.abs(value).toFixed(1) + (value > 0 ? 'N' : (value < 0 ? 'S' : ''));",
+    "@lon": "if (!isFinite(value)) return ''; let x = ((value + 180) % 360 + 360) % 360 - 180; "
+            "if (Math.abs(Math.abs(x) - 180) < 1e-9) return '180.0'; "
+            "return Math.abs(x).toFixed(1) + (x > 0 ? 'E' : (x < 0 ? 'W' : ''));",
+    "@field": "if (!isFinite(value)) return 'no data'; const a = Math.abs(value); "
+              "const t = a === 0 ? '0' : (a >= 1000 ? value.toFixed(0) : (a >= 1e-2 ? "
+              "String(Number(value.toPrecision(3))) : value.toExponential(2))); "
+              "return unit ? t + ' ' + unit : t;",
+    "@height": "if (!isFinite(value)) return 'no data'; "
+               "return value.toFixed(unit === 'dam' ? 1 : 0) + ' ' + unit;",
+    "@speed": "if (!isFinite(value)) return 'no data'; "
+              "const d = src.data.dir[special_vars.index]; "
+              "return value.toFixed(0) + ' ' + unit + ' from ' + "
+              "String(Math.round(d) % 360).padStart(3, '0') + ' deg';",
+}
+
+
+def _hover_formatters(src, units):
+    unit_of = {"@field": units["field"], "@height": units["height"], "@speed": units["wind"]}
+    return {k: CustomJSHover(code=code, args={"src": src, "unit": unit_of.get(k, "")})
+            for k, code in _HOVER_JS.items()}
+
+
+def _update_source(src, data: dict, geometry=()):
+    """Replace a source's columns; when the ``geometry`` columns are unchanged (a new level
+    or time on the same grid), send only the others."""
+    old = src.data
+    same = geometry and all(k in old and len(old[k]) == len(data[k]) and
+                            np.array_equal(np.asarray(old[k]), data[k], equal_nan=True)
+                            for k in geometry)
+    if same:
+        src.data.update({k: v for k, v in data.items() if k not in geometry})
+    else:
+        src.data = data
 
 
 class Chart(pn.viewable.Viewer):
@@ -52,8 +96,8 @@ class Chart(pn.viewable.Viewer):
         self.grat_src = ColumnDataSource(dict(xs=[], ys=[]))
         self.glab_src = ColumnDataSource(dict(x=[], y=[], text=[]))
         self.region_src = ColumnDataSource(dict(x=[], y=[]))
-        self.hover_src = ColumnDataSource(dict(x=[], y=[], w=[], h=[], where=[], field=[],
-                                               height=[], wind=[]))
+        self.hover_src = ColumnDataSource(dict(x=[], y=[], lat=[], lon=[], field=[], height=[],
+                                               speed=[], dir=[]))
         self.mapper = LinearColorMapper(palette=palette("sequential"), nan_color=(0, 0, 0, 0))
         fig = figure(width=WIDTH, height=620, tools="", toolbar_location="above", title="",
                      output_backend="canvas", x_range=Range1d(0, 1), y_range=Range1d(0, 1),
@@ -92,11 +136,13 @@ class Chart(pn.viewable.Viewer):
                                x_offset=6, y_offset=6, visible=False)
         fig.add_layout(self.ref_arrow)
         fig.add_layout(self.ref_label)
-        hover_r = fig.rect("x", "y", "w", "h", source=self.hover_src, fill_alpha=0.0,
-                           line_alpha=0.0, hover_fill_alpha=0.08, hover_fill_color="white",
-                           hover_line_alpha=0.0)
-        self.hover = HoverTool(renderers=[hover_r], tooltips=[
-            ("where", "@where"), ("field", "@field"), ("height", "@height"), ("wind", "@wind")])
+        self.hover_rect = fig.rect("x", "y", 1.0, 1.0, source=self.hover_src, fill_alpha=0.0,
+                                   line_alpha=0.0, hover_fill_alpha=0.08,
+                                   hover_fill_color="white", hover_line_alpha=0.0)
+        hover_r = self.hover_rect
+        self.hover_units = {"field": "", "height": "m", "wind": "m/s"}
+        self.hover = HoverTool(renderers=[hover_r], tooltips=HOVER_TIPS("field"),
+                               formatters=_hover_formatters(self.hover_src, self.hover_units))
         self.box_tool = BoxSelectTool(renderers=[hover_r], description="Draw a region")
         fig.add_tools(self.box_tool, PanTool(), WheelZoomTool(), ResetTool(), self.hover)
         fig.toolbar.active_drag = self.box_tool
@@ -180,20 +226,33 @@ class Chart(pn.viewable.Viewer):
         if a is not None:
             self.ref_arrow.update(x_start=a["x0"], y_start=a["y0"], x_end=a["x1"], y_end=a["y1"])
             self.ref_label.update(x=a["x0"], y=a["y0"], text=f"arrow: {a['text']}")
-        cx, cy = cd.coast if cd.coast is not None else ([], [])
-        self.coast_src.data = dict(xs=cx, ys=cy)
-        lx2, ly2 = cd.land if cd.land is not None else ([], [])
-        self.land_src.data = dict(xs=lx2, ys=ly2)
-        gx, gy, glab = cd.graticule
-        self.grat_src.data = dict(xs=gx, ys=gy)
-        self.glab_src.data = dict(x=[p[0] for p in glab], y=[p[1] for p in glab],
-                                  text=[p[2] for p in glab])
+        # the map's furniture is sent only when it changed (a new case or projection)
+        furniture = (cd.coast, cd.land, cd.graticule)
+        kept = getattr(self, "_furniture", None)
+        if kept is None or any(a is not b for a, b in zip(furniture, kept)):
+            self._furniture = furniture
+            cx, cy = cd.coast if cd.coast is not None else ([], [])
+            self.coast_src.data = dict(xs=cx, ys=cy)
+            lx2, ly2 = cd.land if cd.land is not None else ([], [])
+            self.land_src.data = dict(xs=lx2, ys=ly2)
+            gx, gy, glab = cd.graticule
+            self.grat_src.data = dict(xs=gx, ys=gy)
+            self.glab_src.data = dict(x=[p[0] for p in glab], y=[p[1] for p in glab],
+                                      text=[p[2] for p in glab])
         self.show_outline(cd.region_xy)
         h = cd.hover
-        self.hover_src.data = {k: h[k] for k in ("x", "y", "w", "h", "where", "field", "height",
-                                                 "wind")}
-        self.hover.tooltips = [("where", "@where"), (cd.field_label, "@field"),
-                               ("height", "@height"), ("wind", "@wind")]
+        _update_source(self.hover_src, {k: h[k] for k in ("x", "y", "lat", "lon", "field",
+                                                         "height", "speed", "dir")},
+                       geometry=("x", "y", "lat", "lon"))
+        self.hover_rect.glyph.update(width=h["w"], height=h["h"])
+        units = {"field": h["field_units"] or "", "height": h["height_units"],
+                 "wind": h["wind_units"]}
+        if units != self.hover_units:
+            self.hover_units = units
+            self.hover.formatters = _hover_formatters(self.hover_src, units)
+        tips = HOVER_TIPS(cd.field_label)
+        if tips != self.hover.tooltips:
+            self.hover.tooltips = tips
         fig.x_range.update(start=x0, end=x1, reset_start=x0, reset_end=x1)
         fig.y_range.update(start=y0, end=y1, reset_start=y0, reset_end=y1)
         if g.kind == "plate_carree":

@@ -76,7 +76,8 @@ class Evidence(pn.viewable.Viewer):
             f"<div class='bd-verdict' style='font-size:19px;line-height:1.35;color:{INK};"
             f"border-left:6px solid {edge};padding:6px 10px;background:#fafafa'>"
             f"<div style='font-size:24px;font-weight:700'>{esc(vocab.balance_name(v['balance']))}"
-            f"</div>{esc(v['text'])}{why}<div style='font-size:15px;color:{MUTED};margin-top:4px'>"
+            f"</div>{esc(v['text'])}{why}<div class='bd-verdict-where' style='font-size:15px;"
+            f"color:{MUTED};margin-top:4px'>"
             f"{rep['level_hpa']:g} hPa &middot; {esc(rep.get('when', rep['valid_time']))} "
             f"&middot; {esc(rep.get('region_text', ''))} &middot; {esc(valid)}</div>{mark}</div>")
 

@@ -83,6 +83,7 @@ class Page(pn.viewable.Viewer):
         self.live = False
         self._lane = pool.lane()
         self._gens = {}
+        self._stale: set = set()  # views of closed tabs that are out of date
         self.controls = Controls(library, self.state)
         self.chart = Chart(self.state)
         self.evidence = Evidence(self.state, thresholds)
@@ -105,6 +106,7 @@ class Page(pn.viewable.Viewer):
                                 sizing_mode="stretch_width")
         self._update_header()
         self._watcher = self.state.param.watch(self._on_state, list(URL_PARAMS))
+        self.below.tabs.param.watch(self._tab_opened, "active")
 
     def detach(self):
         """Stop following the state (a closed session, or a benchmark timing one path)."""
@@ -123,6 +125,7 @@ class Page(pn.viewable.Viewer):
         browser loads the page: results that arrive before it asks for the document are part
         of the document, so its first paint has them."""
         self._primed = True
+        self.live = True  # a change made in the page from now on is computed at once
         self.refresh(set(URL_PARAMS), views=("box", "chart"))
 
     def start(self):
@@ -143,6 +146,7 @@ class Page(pn.viewable.Viewer):
         self._later(partial(self._changed, {e.name for e in events}))
 
     def _changed(self, names):
+        log.debug("page %s: %s changed", id(self), ",".join(sorted(names)))
         if "case" in names:
             self._case_changed(names)
         self.controls.follow(names)
@@ -220,17 +224,37 @@ class Page(pn.viewable.Viewer):
             # only the outline moves: no new raster, contours or vectors to send
             spec = snap.region_spec()
             self.chart.show_outline(None if spec is None else compute.region_outline(geom, spec))
-        if names & BOX and "levels" in views:
+        if names & BOX:
+            # the views through the levels and the times are computed for an open tab only;
+            # a closed one is brought up to date when it is opened
+            for kind in ("levels", "times"):
+                if kind not in views:
+                    continue
+                if self.below.is_open(kind):
+                    self._submit_below(kind, snap)
+                else:
+                    self._stale.add(kind)
+        if names & {"preset", "sheet"} and not names & BOX:
+            self.below.show_sheet(compute.scale_sheet(self.state, self.report))
+
+    def _submit_below(self, kind, snap=None):
+        snap = snap or self.state.copy()
+        self._stale.discard(kind)
+        if kind == "levels":
             self.below.levels_progress(0, None)
-            self.below.times_progress(0, None)
             self._submit("levels", lambda: compute.levels_data(
                 self.library, snap, progress=self._progress(self.below.levels_progress)),
                 self.below.show_levels)
+        else:
+            self.below.times_progress(0, None)
             self._submit("times", lambda: compute.times_data(
                 self.library, snap, progress=self._progress(self.below.times_progress)),
                 self.below.show_times)
-        if names & {"preset", "sheet"} and not names & BOX:
-            self.below.show_sheet(compute.scale_sheet(self.state, self.report))
+
+    def _tab_opened(self, event):
+        for kind in list(self._stale):
+            if self.below.is_open(kind) and self.live:
+                self._submit_below(kind)
 
     #: seconds between two progress reports of one view (each one costs the browser a layout)
     PROGRESS_EVERY = 0.5
