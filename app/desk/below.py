@@ -158,6 +158,18 @@ class Below(pn.viewable.Viewer):
 
     # -- through the times ---------------------------------------------------------------
     def _build_times(self):
+        # the figure is made when it is first needed (the tab is opened): most pages never
+        # open it, and a figure is the costliest part to build
+        self.times_fig = None
+        self.times_status = pn.pane.HTML("", sizing_mode="stretch_width")
+        self.times_plot = pn.Column(sizing_mode="stretch_width")
+        self.times_pane = pn.Column(self.times_status, self.times_plot, pn.pane.HTML(
+            "<div style='font-size:15px'>The orange line marks the valid time shown on the "
+            "chart.</div>"), sizing_mode="stretch_width")
+
+    def _times_figure(self):
+        if self.times_fig is not None:
+            return self.times_fig
         self.times_src = ColumnDataSource(dict(t=[], ro=[], agf=[], label=[]))
         f = figure(height=360, x_axis_type="datetime", tools="hover", toolbar_location=None,
                    sizing_mode="stretch_width", min_width=700,
@@ -181,11 +193,8 @@ class Below(pn.viewable.Viewer):
         f.yaxis.axis_label = "dimensionless"
         style_figure(f)
         self.times_fig = f
-        self.times_status = pn.pane.HTML("", sizing_mode="stretch_width")
-        self.times_plot = pn.pane.Bokeh(f)
-        self.times_pane = pn.Column(self.times_status, self.times_plot, pn.pane.HTML(
-            "<div style='font-size:15px'>The orange line marks the valid time shown on the "
-            "chart.</div>"), sizing_mode="stretch_width")
+        self.times_plot.objects = [pn.pane.Bokeh(f, sizing_mode="stretch_width")]
+        return f
 
     def times_progress(self, done, total):
         of = "" if total is None else f": {done} of {total} done"
@@ -207,6 +216,7 @@ class Below(pn.viewable.Viewer):
                            s.get("ageostrophic_fraction") is not None else "") + ".", "info"))
             self.times_plot.visible = False
             return
+        self._times_figure()
         self.times_plot.visible = True
         self._put(self.times_status, "")
         t = [np.datetime64(s["time"].replace("Z", "")).astype("datetime64[ms]").astype(float)
