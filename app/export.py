@@ -18,10 +18,13 @@ import numpy as np
 
 from . import vocab
 
-__all__ = ["briefing_png", "OUTLINE_RGB"]
+__all__ = ["briefing_png", "OUTLINE_RGB", "INVENTED_RGB"]
 
 #: the region's outline colour (Okabe-Ito orange), which tests look for in the image
 OUTLINE_RGB = (0xE6, 0x9F, 0x00)
+#: the invented-data mark's background, which tests look for too
+INVENTED_RGB = (0x5C, 0x0A, 0x5C)
+INVENTED_RGB_HEX = "#%02X%02X%02X" % INVENTED_RGB
 
 
 def briefing_png(chart, report, outline, *, region_text: str, caution: str,
@@ -49,9 +52,10 @@ def briefing_png(chart, report, outline, *, region_text: str, caution: str,
     fig.text(0.04, 0.905, f"Region: {region_text}", fontsize=13)
     if invented_text and (chart is not None and chart.invented or
                           (report or {}).get("invented")):
-        fig.text(0.985, 0.975, invented_text, fontsize=13, fontweight="bold", color="white",
-                 ha="right", va="top", wrap=True,
-                 bbox=dict(facecolor="#5c0a5c", edgecolor="none", pad=6))
+        # on the region's line, right-aligned: clear of the title however long it is
+        fig.text(0.985, 0.915, invented_text, fontsize=13, fontweight="bold", color="white",
+                 ha="right", va="center", bbox=dict(facecolor=INVENTED_RGB_HEX, edgecolor="none",
+                                                    pad=6))
     if report and report.get("terms"):
         _draw_ranking(fig, axr, axb, report)
     else:
@@ -158,6 +162,8 @@ def _draw_ranking(fig, axr, axb, report):
     axb.tick_params(labelsize=12)
     axb.set_title("Imbalance ratios (orange: the verdict)", fontsize=13)
     v = report["verdict"]
-    text = f"{vocab.balance_name(v['balance'])}. {v['text']}"
+    name = vocab.balance_name(v["balance"])
+    # the verdict's sentence names its balance first ("Geostrophic: ..."); it is not repeated
+    text = v["text"] if v["text"].lower().startswith(name.lower()) else f"{name}. {v['text']}"
     fig.text(0.655, 0.85, textwrap.fill(text, 62), fontsize=12, va="top", ha="left",
              bbox=dict(facecolor="#fafafa", edgecolor="#E69F00", lw=2, pad=6))

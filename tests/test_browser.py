@@ -14,6 +14,7 @@ import sys
 import time
 import urllib.request
 
+import numpy as np
 import pytest
 
 pytestmark = pytest.mark.browser
@@ -206,5 +207,264 @@ def test_sea_breeze_and_scale_sheet(server, browser):
     page.locator("text=Through the times").first.click()
     page.wait_for_timeout(800)
     _shot(page, "07_sea_breeze_times")
+    assert errors == [], errors
+    page.close()
+
+
+# -- the checks of the desk page (what the briefing shows, fit, units, busy state, times) ----
+
+#: every text node and title attribute of the page, through the shadow roots Panel draws into
+ALL_TEXT_JS = """() => {
+  const out = [];
+  const walk = (root) => {
+    const tw = document.createTreeWalker(root, NodeFilter.SHOW_ELEMENT | NodeFilter.SHOW_TEXT);
+    for (let n = tw.currentNode; n; n = tw.nextNode()) {
+      if (n.nodeType === Node.TEXT_NODE) {
+        const p = n.parentElement;
+        if (p && !['STYLE', 'SCRIPT'].includes(p.tagName)) out.push(n.textContent);
+      } else {
+        if (n.title) out.push(n.title);
+        if (n.shadowRoot) walk(n.shadowRoot);
+      }
+    }
+  };
+  walk(document);
+  return out.join('\\n');
+}"""
+
+#: in one task of the page (so nothing changes between the readings): the header's level and
+#: each panel's level with its effective opacity (the product over its ancestors)
+LEVELS_NOW_JS = """() => {
+  const find = (root, sel) => {
+    const hit = root.querySelector(sel);
+    if (hit) return hit;
+    for (const el of root.querySelectorAll('*')) {
+      if (el.shadowRoot) { const h = find(el.shadowRoot, sel); if (h) return h; }
+    }
+    return null;
+  };
+  const opacity = (el) => {
+    let o = 1;
+    while (el) {
+      if (el.nodeType === 1) o *= parseFloat(getComputedStyle(el).opacity);
+      el = el.parentElement || (el.getRootNode().host || null);
+    }
+    return o;
+  };
+  const level = (el) => { const m = el && el.textContent.match(/(\\d+) hPa/); return m ? m[1] : null; };
+  const out = {header: level(find(document, '.bd-header'))};
+  for (const [name, sel] of [['chart', '.bd-chart-title'], ['verdict', '.bd-verdict-where']]) {
+    const el = find(document, sel);
+    out[name] = el ? [level(el), opacity(el)] : null;
+  }
+  return out;
+}"""
+
+OCEAN = "?case=ocean_cyclone&level=500&time=2041-01-19T12%3A00%3A00Z"
+
+
+def _all_text(page):
+    return page.evaluate(ALL_TEXT_JS)
+
+
+def _set_box(page, box):
+    for label, v in zip(("West", "East", "South", "North"), box):
+        page.get_by_label(label, exact=True).fill(str(v))
+    page.get_by_role("button", name="Use this box").click()
+
+
+def _download(page, label):
+    with page.expect_download(timeout=60_000) as dl:
+        page.get_by_role("button", name=label).click()
+    return dl.value.path()
+
+
+def _rgb(path):
+    from PIL import Image
+
+    return np.asarray(Image.open(path).convert("RGB")).astype(int)
+
+
+def _edges(mask, axis):
+    """Centres of the outline's two straight edges along ``axis`` (0: the vertical edges'
+    columns, 1: the horizontal edges' rows): where the outline's pixels pile up."""
+    counts = mask.sum(axis=axis)
+    hot = np.nonzero(counts > 0.6 * counts.max())[0]
+    groups = np.split(hot, np.nonzero(np.diff(hot) > 3)[0] + 1)
+    assert len(groups) == 2, [(g[0], g[-1]) for g in groups]
+    return [float(g.mean()) for g in groups]
+
+
+def _outline_edges(path):
+    """(left, right, top, bottom) pixel centres of the region's outline in the chart's part
+    of a briefing PNG (the left 62 %: the verdict's panel uses the same orange)."""
+    from app.export import OUTLINE_RGB
+
+    im = _rgb(path)
+    im = im[:, : int(0.62 * im.shape[1])]
+    mask = np.abs(im - np.array(OUTLINE_RGB)).max(axis=-1) <= 8
+    assert mask.sum() > 200, "no outline in the image"
+    left, right = _edges(mask, 0)
+    top, bottom = _edges(mask, 1)
+    return left, right, top, bottom
+
+
+def test_the_briefing_outline_lies_where_the_typed_box_is(server, browser):
+    # Three typed boxes fix the chart's lon/lat -> pixel map from the images themselves
+    # (plate carree: linear in each); the outline of a fourth, typed after them, must then
+    # lie where that map puts its edges. A stale outline (the case's starting box, or the
+    # previous box) misses by tens of pixels.
+    page, errors = _page(browser, server + OCEAN)
+    _wait_for(page, lambda: _verdict_text(page))
+    edges = {}
+    boxes = {"a": (-60, -45, 35, 45), "b": (-40, -25, 35, 45), "c": (-60, -45, 50, 60),
+             "d": (-35, -15, 45, 58)}
+    for key, box in boxes.items():
+        _set_box(page, box)
+        # the verdict's footer names the box once its report is computed
+        _wait_for(page, lambda: f"{abs(box[0]):.1f}W to {abs(box[1]):.1f}W" in
+                  _verdict_text(page))
+        edges[key] = _outline_edges(_download(page, "Briefing image (PNG)"))
+    (la, ra, ta, ba), (lb, rb, _, _), (_, _, tc, bc) = edges["a"], edges["b"], edges["c"]
+    kx = (lb - la) / (boxes["b"][0] - boxes["a"][0])           # px per degree east
+    ky = (tc - ta) / (boxes["c"][3] - boxes["a"][3])           # px per degree north (< 0)
+    assert kx > 0 and ky < 0
+    x = lambda lon: la + kx * (lon - boxes["a"][0])  # noqa: E731
+    y = lambda lat: ta + ky * (lat - boxes["a"][3])  # noqa: E731
+    w, e, s, n = boxes["d"]
+    got = edges["d"]
+    want = (x(w), x(e), y(n), y(s))
+    assert np.allclose(got, want, atol=2.5), (got, want)
+    # and the fitted map is the image's own: box a's east edge and south edge agree with it
+    assert abs(ra - x(boxes["a"][1])) < 2.5 and abs(ba - y(boxes["a"][2])) < 2.5
+    assert errors == [], errors
+    page.close()
+
+
+def test_at_a_laptop_size_the_verdict_and_ranking_are_in_view(server, browser):
+    page = browser.new_page(viewport={"width": 1366, "height": 768})
+    page.goto(server + OCEAN)
+    page.locator(".bd-verdict").first.wait_for(timeout=60_000)
+    page.wait_for_timeout(1000)
+    vb = page.locator(".bd-verdict").first.bounding_box()
+    assert vb["x"] >= 0 and vb["x"] + vb["width"] <= 1366, vb
+    assert vb["y"] >= 0 and vb["y"] + 40 <= 768, vb  # at least its heading line shows
+    # the ranking's first bar beside it, and no scrolling sideways
+    first = page.locator(".bd-bar-name").first.bounding_box()
+    assert first["x"] + first["width"] <= 1366, first
+    width = page.evaluate("document.documentElement.scrollWidth")
+    assert width <= 1366, width
+    os.makedirs(SHOTS, exist_ok=True)
+    page.screenshot(path=os.path.join(SHOTS, "08_laptop_1366x768.png"))
+    page.close()
+
+
+@pytest.mark.parametrize("size, zoom, name", [((1920, 1080), 1, "09_desk_1920x1080"),
+                                              ((960, 540), 2, "10_zoom_200_percent")])
+def test_screens_at_desk_size_and_at_double_zoom(server, browser, size, zoom, name):
+    # 200 % browser zoom is a CSS viewport of half the screen at two device pixels each
+    page = browser.new_page(viewport={"width": size[0], "height": size[1]},
+                            device_scale_factor=zoom)
+    page.goto(server + OCEAN)
+    page.locator(".bd-verdict").first.wait_for(timeout=60_000)
+    page.wait_for_timeout(1200)
+    os.makedirs(SHOTS, exist_ok=True)
+    page.screenshot(path=os.path.join(SHOTS, f"{name}.png"))
+    page.screenshot(path=os.path.join(SHOTS, f"{name}_full.png"), full_page=True)
+    width = page.evaluate("document.documentElement.scrollWidth")
+    assert width <= size[0], width
+    page.close()
+
+
+WIND_IN_MS = re.compile(r"\d\s*(m/s|m s-1|m s\^-1)")
+
+
+def test_after_knots_no_number_in_the_page_is_in_metres_per_second(server, browser):
+    page, errors = _page(browser, server + OCEAN + "&field=speed")
+    _wait_for(page, lambda: _verdict_text(page))
+    assert WIND_IN_MS.search(_all_text(page))  # the check can fail: m/s before the switch
+    page.get_by_role("button", name="kt", exact=True).click()
+    _wait_for(page, lambda: "wind_units=kt" in page.url and
+              re.search(r"\d\s*kt", _all_text(page)))
+    page.wait_for_timeout(1500)  # let every part that follows the unit be redrawn
+    for tab in ("Through the levels", "Through the times", "A priori scale sheet",
+                "Notes on the data"):
+        page.locator(f"text={tab}").first.click()
+        page.wait_for_timeout(1500)
+        text = _all_text(page)
+        hits = [text[max(0, m.start() - 40): m.end()] for m in WIND_IN_MS.finditer(text)]
+        assert not hits, (tab, hits)
+    assert errors == [], errors
+    page.close()
+
+
+def test_an_invented_case_says_so_in_the_page_and_in_the_briefing(server, browser):
+    from app.export import INVENTED_RGB
+
+    page, errors = _page(browser, server + OCEAN)
+    _wait_for(page, lambda: _verdict_text(page))
+    assert "invented demo data" in _all_text(page).lower()
+    im = _rgb(_download(page, "Briefing image (PNG)"))
+    mark = np.abs(im - np.array(INVENTED_RGB)).max(axis=-1) <= 6
+    rows, cols = np.nonzero(mark)
+    # a solid band across the top right of the image
+    assert mark.sum() > 5000 and rows.max() < 0.15 * im.shape[0] and \
+        cols.min() > 0.3 * im.shape[1], (mark.sum(), rows.max(), cols.min())
+    assert errors == [], errors
+    page.close()
+
+
+def test_a_burst_of_level_changes_never_shows_a_level_the_header_does_not(server, browser):
+    # Each reading is taken in one task of the page: a panel either names the header's level
+    # or is faded as updating (opacity well below 1) until it is replaced.
+    page, errors = _page(browser, server + OCEAN)
+    _wait_for(page, lambda: _verdict_text(page))
+    select = page.get_by_label("Pressure level", exact=True)
+    readings = []
+    for label in ("850 hPa", "700 hPa", "300 hPa", "1000 hPa", "250 hPa", "500 hPa",
+                  "925 hPa", "700 hPa"):
+        select.select_option(label=label)
+        for _ in range(3):
+            readings.append(page.evaluate(LEVELS_NOW_JS))
+            page.wait_for_timeout(40)
+    t0 = time.time()
+    while time.time() - t0 < 30:
+        r = page.evaluate(LEVELS_NOW_JS)
+        readings.append(r)
+        if r["header"] == "700" and all(r[k] and r[k][0] == "700" and r[k][1] > 0.99
+                                        for k in ("chart", "verdict")):
+            break
+        page.wait_for_timeout(50)
+    else:
+        raise AssertionError(f"the page did not settle on 700 hPa: {readings[-1]}")
+    wrong = [r for r in readings for k in ("chart", "verdict")
+             if r[k] and r[k][0] != r["header"] and r[k][1] > 0.5]
+    assert not wrong, wrong
+    # the readings saw the panels faded at least once (the check can see a busy state)
+    assert any(r[k] and r[k][1] < 0.5 for r in readings for k in ("chart", "verdict"))
+    assert errors == [], errors
+    page.close()
+
+
+#: the one way the page writes a time: "Tue 19 Jan 2041 12 UTC", with an optional run and
+#: lead "(run 19 Jan 00 UTC, +12 h)"; short forms on axes "19 Jan 12 UTC"
+LONG_TIME = re.compile(r"\b(Mon|Tue|Wed|Thu|Fri|Sat|Sun) \d\d (Jan|Feb|Mar|Apr|May|Jun|Jul|Aug"
+                       r"|Sep|Oct|Nov|Dec) \d{4} \d\d(:\d\d)? UTC\b")
+OTHER_TIME = re.compile(r"\d{4}-\d\d-\d\d[T ]\d\d:\d\d|\d\d:\d\d(:\d\d)?Z|\d\d:\d\d UTC")
+
+
+def test_one_time_format_throughout(server, browser):
+    page, errors = _page(browser, server + OCEAN)
+    _wait_for(page, lambda: _verdict_text(page))
+    seen = []
+    for tab in ("Through the levels", "Through the times", "A priori scale sheet",
+                "Notes on the data"):
+        page.locator(f"text={tab}").first.click()
+        page.wait_for_timeout(1500)
+        text = _all_text(page)
+        seen += LONG_TIME.findall(text)
+        others = [text[max(0, m.start() - 30): m.end() + 10] for m in OTHER_TIME.finditer(text)]
+        assert not others, (tab, others)
+    assert seen  # the check reads times: the header, the chart title, the time menu
     assert errors == [], errors
     page.close()

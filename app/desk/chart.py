@@ -22,7 +22,7 @@ from bokeh.models import (Arrow, BoxSelectTool, ColorBar, ColumnDataSource, Cust
 from bokeh.plotting import figure
 
 from ..state import ViewState, area_from_crs
-from .look import BUSY, GREY, INK, ORANGE, alert, esc, mark_busy, palette, style_figure
+from .look import BUSY, GREY, INK, INVENTED_BG, ORANGE, alert, esc, mark_busy, palette, style_figure
 
 __all__ = ["Chart"]
 
@@ -90,7 +90,7 @@ class Chart(pn.viewable.Viewer):
         self.mask_src = ColumnDataSource(dict(image=[e], x=[0], y=[0], dw=[1], dh=[1]))
         self.cont_src = ColumnDataSource(dict(xs=[], ys=[]))
         self.clab_src = ColumnDataSource(dict(x=[], y=[], text=[]))
-        self.vec_src = ColumnDataSource(dict(x0=[], y0=[], x1=[], y1=[], angle=[]))
+        self.vec_src = ColumnDataSource(dict(x0=[], y0=[], x1=[], y1=[], angle=[], head=[]))
         self.coast_src = ColumnDataSource(dict(xs=[], ys=[]))
         self.land_src = ColumnDataSource(dict(xs=[], ys=[]))
         self.grat_src = ColumnDataSource(dict(xs=[], ys=[]))
@@ -117,7 +117,8 @@ class Chart(pn.viewable.Viewer):
                     line_width=3.5, line_alpha=0.8)
         fig.segment("x0", "y0", "x1", "y1", source=self.vec_src, line_color="black",
                     line_width=1.6)
-        fig.scatter("x1", "y1", source=self.vec_src, marker="triangle", angle="angle", size=8,
+        fig.scatter("x1", "y1", source=self.vec_src, marker="triangle", angle="angle",
+                    size="head",
                     fill_color="black", line_color="white", line_width=0.5)
         fig.line("x", "y", source=self.region_src, line_color="white", line_width=6)
         fig.line("x", "y", source=self.region_src, line_color=ORANGE, line_width=3.5)
@@ -168,10 +169,13 @@ class Chart(pn.viewable.Viewer):
         fig.grid.grid_line_dash = "dotted"
         style_figure(fig)
         self.fig = fig
-        self.pane = pn.pane.Bokeh(fig, sizing_mode="stretch_width", min_width=MIN_WIDTH,
+        # scale_width: the chart keeps its shape (a map stretched sideways misleads) and
+        # takes the column's width
+        self.pane = pn.pane.Bokeh(fig, sizing_mode="scale_width", min_width=MIN_WIDTH,
                                   max_width=WIDTH + 120, styles=dict(BUSY))
+        # the caption names the level and time: it fades with the chart while they change
         self.caption = pn.pane.HTML("", sizing_mode="stretch_width",
-                                    styles={"font-size": "18px", "font-weight": "600"})
+                                    styles={"font-size": "18px", "font-weight": "600", **BUSY})
         self.alert = pn.pane.HTML("", sizing_mode="stretch_width")
         self.note = pn.pane.HTML("", sizing_mode="stretch_width")
         self.layout = pn.Column(self.caption, self.alert, self.pane, self.note,
@@ -181,10 +185,11 @@ class Chart(pn.viewable.Viewer):
     # -- showing ----------------------------------------------------------------------------
     def busy(self, on: bool = True):
         mark_busy(self.pane, on)
+        mark_busy(self.caption, on)
 
     def show_error(self, text):
         self.alert.object = alert(text, "error")
-        mark_busy(self.pane, False)
+        self.busy(False)
 
     def show(self, cd):
         """Draw a :class:`app.compute.ChartData`."""
@@ -218,9 +223,10 @@ class Chart(pn.viewable.Viewer):
         if cd.vectors is not None:
             v = cd.vectors
             self.vec_src.data = dict(x0=v["x0"], y0=v["y0"], x1=v["x1"], y1=v["y1"],
-                                     angle=v["angle"] - np.pi / 2)
+                                     angle=v["angle"] - np.pi / 2,
+                                     head=head_sizes(v, cd.reference_arrow))
         else:
-            self.vec_src.data = dict(x0=[], y0=[], x1=[], y1=[], angle=[])
+            self.vec_src.data = dict(x0=[], y0=[], x1=[], y1=[], angle=[], head=[])
         a = cd.reference_arrow
         self.ref_arrow.visible = self.ref_label.visible = a is not None
         if a is not None:
@@ -276,8 +282,8 @@ class Chart(pn.viewable.Viewer):
         fig.height = int(min(max(WIDTH * aspect, 320), 720)) + 60
         interval = "" if not math.isfinite(cd.contour_interval) else \
             f" every {cd.contour_interval:g} {cd.contour_units}"
-        mark = (" <span style='background:#5c0a5c;color:#fff;padding:2px 8px;border-radius:4px;"
-                "font-size:15px'>invented demo data</span>") if cd.invented else ""
+        mark = (f" <span style='background:{INVENTED_BG};color:#fff;padding:2px 8px;"
+                "border-radius:4px;font-size:15px;white-space:nowrap'>invented demo data</span>") if cd.invented else ""
         self.caption.object = (f"<div><span class='bd-chart-title'>{esc(cd.title)}</span>{mark}"
                                f"</div><div style='font-size:16px;font-weight:400'>"
                                f"{esc(cd.field_label)}" + (f" ({esc(cd.units)})" if cd.units
@@ -287,7 +293,7 @@ class Chart(pn.viewable.Viewer):
         notes += cd.notes
         self.note.object = "<div style='font-size:15px'>" + "<br>".join(esc(n) for n in notes) + \
             "</div>"
-        mark_busy(self.pane, False)
+        self.busy(False)
 
     def show_outline(self, xy):
         if xy is None:
@@ -321,3 +327,19 @@ class Chart(pn.viewable.Viewer):
 
     def __panel__(self):
         return self.layout
+
+
+def head_sizes(v, ref, full=8.0):
+    """Arrow-head sizes (screen pixels): ``full`` from 40 % of the reference arrow's length
+    up, smaller in proportion below, so that a near-calm point shows a small mark instead
+    of a full head on no shaft."""
+    n = len(v["x0"])
+    if ref is None or n == 0:
+        return np.full(n, full)
+    ref_len = math.hypot(ref["x1"] - ref["x0"], ref["y1"] - ref["y0"])
+    if not ref_len > 0:
+        return np.full(n, full)
+    length = np.hypot(np.asarray(v["x1"]) - np.asarray(v["x0"]),
+                      np.asarray(v["y1"]) - np.asarray(v["y0"]))
+    return full * np.clip(length / (0.4 * ref_len), 0.25, 1.0)
+

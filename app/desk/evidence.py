@@ -15,8 +15,8 @@ from balance_core.verdict import Thresholds
 from .. import vocab
 from ..state import ViewState
 from .bars import Bar, linear_bars, log_bars, log_range
-from .look import (BLUE, BUSY, GREEN, GREY, INK, MUTED, ORANGE, SKY, VERMILION, alert, esc,
-                   mark_busy)
+from .look import (BLUE, BUSY, GREEN, GREY, INK, INVENTED_BG, MUTED, ORANGE, SKY, VERMILION,
+                   alert, esc, mark_busy)
 
 __all__ = ["Evidence"]
 
@@ -69,7 +69,7 @@ class Evidence(pn.viewable.Viewer):
                  + (f" ({100 * share:.0f} %)" if share is not None else ""))
         why = (f"<div style='font-size:16px;margin-top:6px'><b>Why:</b> {esc(v['why'])}</div>"
                if v.get("why") else "")
-        mark = ("<div style='margin-top:6px;font-size:15px;color:#5c0a5c;font-weight:700'>"
+        mark = (f"<div style='margin-top:6px;font-size:15px;color:{INVENTED_BG};font-weight:700'>"
                 "Invented demo data</div>") if rep.get("invented") else ""
         edge = ORANGE if v["balance"] != "none" else GREY
         return (

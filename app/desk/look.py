@@ -16,7 +16,7 @@ import html
 
 __all__ = ["CAUTION", "ORANGE", "SKY", "GREEN", "BLUE", "VERMILION", "PURPLE", "GREY",
            "INK", "MUTED", "esc", "GLOBAL_CSS", "style_figure", "palette", "alert",
-           "INVENTED", "FONT", "BUSY", "mark_busy"]
+           "INVENTED", "INVENTED_BG", "FONT", "BUSY", "mark_busy"]
 
 CAUTION = ("balance-desk is a diagnostic aid. Official forecasts and warnings come from the "
            "responsible meteorological service; local rules and licensed practice come first.")
@@ -29,6 +29,7 @@ ORANGE, SKY, GREEN, BLUE, VERMILION, PURPLE = ("#E69F00", "#56B4E9", "#009E73", 
 GREY = "#6f6f6f"      # no data; 5.1:1 on white
 INK = "#1a1a1a"
 MUTED = "#4a4a4a"     # secondary text; 8.9:1 on white
+INVENTED_BG = "#5c0a5c"  # behind the invented-data mark (white on it: 13:1); the PNG's too
 
 FONT = {"axis": "16px", "tick": "15px", "title": "18px", "label": "15px"}
 

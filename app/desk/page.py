@@ -36,7 +36,7 @@ from .chart import Chart
 from .controls import Controls
 from .evidence import Evidence
 from .exports import Exports
-from .look import CAUTION, GLOBAL_CSS, INK, alert, esc
+from .look import CAUTION, GLOBAL_CSS, INK, INVENTED_BG, alert, esc
 
 __all__ = ["Page", "make_session", "error_page"]
 
@@ -45,6 +45,8 @@ log = logging.getLogger("balance_desk")
 CHART = {"case", "level", "time", "field", "vectors", "smooth_km", "min_lat", "projection",
          "height_units", "wind_units"}
 BOX = {"case", "level", "time", "smooth_km", "min_lat", "region"}
+#: the report is the same in other units: its numbers are only written again
+UNITS = {"height_units", "wind_units"}
 
 #: run in the browser when the connection to the server is lost: say so, grey the figures
 LOST_JS = """
@@ -99,11 +101,17 @@ class Page(pn.viewable.Viewer):
                                       "border-top": "2px solid #856404"})
         # a row that wraps: the evidence goes below the chart on a narrow screen (a plain
         # Row with CSS, not a FlexBox: that one is a template the browser lays out slowly)
+        # Panel gives a stretching row the sum of its parts' minimum widths, as if it could
+        # not wrap (and the page the row's): the two say their own minimum (the chart's) in an
+        # inline style, which wins, so that at a narrow window or a high zoom the parts go
+        # below one another instead of off to the side
+        narrowest = {"min-width": "540px"}
         main = pn.Row(self.controls, self.chart, self.evidence, sizing_mode="stretch_width",
-                      styles={"flex-wrap": "wrap", "gap": "8px", "align-items": "flex-start"})
+                      styles={"flex-wrap": "wrap", "gap": "8px", "align-items": "flex-start",
+                              **narrowest})
         self.chart.layout.styles = {"flex": "1 1 560px"}
         self.layout = pn.Column(self.header, self.problems, main, self.below.tabs, footer,
-                                sizing_mode="stretch_width")
+                                sizing_mode="stretch_width", styles=narrowest)
         self._update_header()
         self._watcher = self.state.param.watch(self._on_state, list(URL_PARAMS))
         self.below.tabs.param.watch(self._tab_opened, "active")
@@ -234,6 +242,8 @@ class Page(pn.viewable.Viewer):
                     self._submit_below(kind, snap)
                 else:
                     self._stale.add(kind)
+        if names & UNITS and not (names & BOX and "box" in views) and self.report:
+            self.evidence.show(self.report)
         if names & {"preset", "sheet"} and not names & BOX:
             self.below.show_sheet(compute.scale_sheet(self.state, self.report))
 
@@ -361,15 +371,16 @@ class Page(pn.viewable.Viewer):
         invented = ""
         try:
             if compute.case_facts(self.library.get(s.case))["invented"]:
-                invented = (" <span style='background:#5c0a5c;color:#fff;padding:2px 8px;"
-                            "border-radius:4px;font-size:16px'>invented demo data</span>")
+                invented = (f" <span style='background:{INVENTED_BG};color:#fff;padding:2px 8px;"
+                            "border-radius:4px;font-size:16px;white-space:nowrap'>invented demo data</span>")
         except CaseError:
             pass
         self.header.object = (
             "<div style='display:flex;justify-content:space-between;align-items:baseline;"
             f"flex-wrap:wrap;gap:12px;color:{INK}'>"
             "<span style='font-size:26px;font-weight:700'>balance-desk</span>"
-            f"<span style='font-size:19px'>{esc(s.case)}{invented} &middot; {level:g} hPa "
+            f"<span class='bd-header' style='font-size:19px'>{esc(s.case)}{invented} &middot; "
+            f"{level:g} hPa "
             f"&middot; {esc(when)} &middot; {esc(s.region_text())}{valid}</span></div>")
 
     def __panel__(self):
