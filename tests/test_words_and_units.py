@@ -1,0 +1,170 @@
+"""One table of display names, and the unit choice, through every part of the page and every
+export (driven through the view state, without a browser).
+
+The knot is 1852 m per hour (the international nautical mile of 1852 m, adopted 1929; a
+standard value, from memory), so 1 m/s = 3600 / 1852 kt; a decametre is 10 m. The expected
+values below come from those definitions, not from the code under test.
+"""
+
+import csv
+import glob
+import io
+import json
+import os
+import re
+
+import numpy as np
+import pytest
+
+from app import vocab
+from app.library import CaseLibrary
+from app.state import FIELDS, ViewState
+from balance_core.vocabulary import BALANCE_NAMES, PRESET_NAMES, TERM_NAMES
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+SAMPLES = sorted(glob.glob(os.path.join(HERE, "..", "sample_cases", "*.nc")))
+KT_PER_MS = 3600.0 / 1852.0
+CODE = re.compile(r"\b[a-z]+_[a-z_]+\b")  # a code name: lower case words joined by "_"
+
+
+@pytest.fixture(scope="module")
+def library():
+    return CaseLibrary(SAMPLES)
+
+
+def _page(library, **kw):
+    from app.desk import Page
+
+    base = dict(case="ocean_cyclone", level=500.0, time="2041-01-19T12:00:00Z")
+    base.update(kw)
+    st = ViewState(**base)
+    st.set_box(-52, -28, 38, 56)
+    page = Page(library, st)
+    page.start()
+    return page
+
+
+def _png_texts(page, monkeypatch):
+    """Every text the briefing PNG draws, taken from its figure as it is saved."""
+    import matplotlib.figure
+    import matplotlib.text
+
+    seen = []
+    save = matplotlib.figure.Figure.savefig
+
+    def spy(fig, *a, **k):
+        fig.canvas.draw()  # tick labels get their text when drawn
+        seen.extend(t.get_text() for t in fig.findobj(matplotlib.text.Text) if t.get_text())
+        return save(fig, *a, **k)
+
+    monkeypatch.setattr(matplotlib.figure.Figure, "savefig", spy)
+    png = page.exports.png_bytes().getvalue()
+    assert png[:4] == b"\x89PNG"
+    return seen
+
+
+def _csv_rows(page):
+    return list(csv.DictReader(io.StringIO(page.exports.csv_text().getvalue())))
+
+
+def test_one_table_of_names_in_the_ranking_menu_chart_png_csv_and_json(library, monkeypatch):
+    page = _page(library)
+    shown = set(TERM_NAMES.values())
+    # the ranking
+    names = [b.name for b in page.evidence.ranking]
+    assert names and set(names) <= shown, names
+    # the field menu: every term field is its display name between bars, no code name
+    labels = list(page.controls.w_field.options)
+    assert f"|{TERM_NAMES['metric_uv']}|" in labels
+    assert not [x for x in labels if CODE.search(x)], labels
+    # the chart's caption and colour bar use the menu's words
+    page.state.field = "term:metric_uv"
+    assert page.chart.data.field_label == FIELDS["term:metric_uv"]
+    assert FIELDS["term:metric_uv"] in page.chart.caption.object
+    assert page.chart.colorbar.title.startswith(FIELDS["term:metric_uv"])
+    # the PNG: its ranking names, balances and title
+    texts = _png_texts(page, monkeypatch)
+    for name in names:
+        assert name in texts, (name, texts)
+    assert TERM_NAMES["metric_uv"] in " ".join(texts)
+    assert not [t for t in texts if CODE.search(t) and "ocean_cyclone" not in t], texts
+    # the CSV: display names in the name column
+    rows = _csv_rows(page)
+    terms = [r["name"] for r in rows if r["kind"] in ("term", "derived view")]
+    assert terms and set(terms) <= shown, terms
+    bal = [r["name"] for r in rows if r["kind"].startswith("balance")]
+    assert bal and set(bal) <= set(BALANCE_NAMES.values()), bal
+    nums = [r["name"] for r in rows if r["kind"] == "number"]
+    assert nums and set(nums) <= {v[0] for v in vocab.NUMBERS.values()}, nums
+    # the JSON keeps the code names, as keys for programs
+    rep = json.loads(page.exports.json_text().getvalue())
+    assert {t["name"] for t in rep["terms"]} <= set(TERM_NAMES)
+    assert set(rep["balances"]) <= set(BALANCE_NAMES)
+
+
+def test_presets_are_shown_by_name_and_the_sheet_calls_the_residual_so(library):
+    page = _page(library)
+    assert set(page.below.w_preset.options) == set(PRESET_NAMES.values())
+    from app import compute
+
+    sheet = compute.scale_sheet(page.state, page.report)
+    viscous = [r for r in sheet["terms"] if r["name"] == "viscous"]
+    label = viscous[0]["data_label"] if viscous else ""
+    assert label.startswith(TERM_NAMES["residual"]) and "unresolved" in label, label
+
+
+def test_the_names_check_can_fail():
+    # a code name is caught, a display name is not
+    assert CODE.search("metric_uv") and CODE.search("pressure_gradient 1e-3")
+    assert not CODE.search("Earth curvature (uv)") and not CODE.search("pressure gradient")
+
+
+def test_the_unit_choice_reaches_every_number_hover_colour_bar_and_export(library, monkeypatch):
+    si = _page(library, field="speed")
+    kt = _page(library, field="speed", wind_units="kt", height_units="dam")
+    a, b = si.chart.data, kt.chart.data
+    # the filled field and its colour bar
+    assert (a.units, b.units) == ("m/s", "kt")
+    assert np.nanmean(b.raster) == pytest.approx(np.nanmean(a.raster) * KT_PER_MS, rel=1e-5)
+    assert kt.chart.colorbar.title.endswith("(kt)")
+    # the contours in decametres: the same lines, labelled in tens of metres
+    assert b.contour_units == "dam"
+    assert b.contour_interval == pytest.approx(a.contour_interval / 10)
+    # the hover's numbers and their units
+    ha, hb = si.chart.hover_src.data, kt.chart.hover_src.data
+    assert np.allclose(np.asarray(hb["speed"]), np.asarray(ha["speed"]) * KT_PER_MS, rtol=1e-4,
+                       equal_nan=True)
+    assert np.allclose(np.asarray(hb["height"]), np.asarray(ha["height"]) / 10, rtol=1e-5,
+                       equal_nan=True)
+    assert kt.chart.hover_units == {"field": "kt", "height": "dam", "wind": "kt"}
+    # the reference arrow says its speed in knots
+    assert b.reference_arrow["text"].endswith(" kt")
+    # the numbers beside the verdict
+    body = kt.evidence.body.object
+    assert re.search(r"\d</b> kt", body) and not re.search(r"\d</b> m/s", body)
+    # the CSV and JSON
+    wa = {r["name"]: r for r in _csv_rows(si) if r["kind"] == "wind"}
+    wb = {r["name"]: r for r in _csv_rows(kt) if r["kind"] == "wind"}
+    speed = [k for k in wa if wa[k]["unit"]]
+    assert speed
+    for k in speed:
+        assert (wa[k]["unit"], wb[k]["unit"]) == ("m/s", "kt")
+        assert float(wb[k]["value"]) == pytest.approx(float(wa[k]["value"]) * KT_PER_MS,
+                                                      rel=2e-3)  # both to 4 digits
+    ja, jb = (json.loads(p.exports.json_text().getvalue()) for p in (si, kt))
+    assert jb["context"]["units"] == {"terms": "m s-2", "wind": "kt", "height": "dam"}
+    assert jb["winds"]["speed_rms"] == pytest.approx(ja["winds"]["speed_rms"] * KT_PER_MS,
+                                                     rel=2e-3)
+    # the PNG: colour bar label and reference arrow
+    texts = " | ".join(_png_texts(kt, monkeypatch))
+    assert "(kt)" in texts and re.search(r"arrow: [\d.]+ kt", texts), texts
+    assert "m/s" not in texts, texts
+
+
+def test_switching_units_on_an_open_page_rewrites_its_numbers(library):
+    page = _page(library, field="speed")
+    assert re.search(r"\d</b> m/s", page.evidence.body.object)
+    page.state.wind_units = "kt"
+    body = page.evidence.body.object
+    assert re.search(r"\d</b> kt", body) and not re.search(r"\d</b> m/s", body)
+    assert page.chart.data.units == "kt"
