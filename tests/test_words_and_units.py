@@ -168,3 +168,77 @@ def test_switching_units_on_an_open_page_rewrites_its_numbers(library):
     body = page.evidence.body.object
     assert re.search(r"\d</b> kt", body) and not re.search(r"\d</b> m/s", body)
     assert page.chart.data.units == "kt"
+
+
+# -- the briefing's outline is the screen's ------------------------------------------------
+
+ETA = os.path.join(HERE, "..", ".cache", "pygrib-samples", "eta.grb")
+
+
+def _png_outline_vs_screen(page, monkeypatch):
+    """The outline's pixels in the briefing PNG, and where the chart's on-screen outline (its
+    view coordinates, as sent to the browser) falls in that PNG through the main axes' own
+    transform: (pixel mask, predicted pixel points)."""
+    import matplotlib.figure
+    from PIL import Image
+
+    from app.export import OUTLINE_RGB
+
+    seen = {}
+    save = matplotlib.figure.Figure.savefig
+
+    def spy(fig, *a, **k):
+        fig.canvas.draw()
+        seen["ax"] = fig.axes[0]
+        seen["height"] = fig.canvas.get_width_height()[1]
+        return save(fig, *a, **k)
+
+    monkeypatch.setattr(matplotlib.figure.Figure, "savefig", spy)
+    png = page.exports.png_bytes().getvalue()
+    im = np.asarray(Image.open(io.BytesIO(png)).convert("RGB")).astype(int)
+    mask = np.abs(im - np.array(OUTLINE_RGB)).max(axis=-1) <= 8
+    mask[:, int(0.62 * im.shape[1]):] = False  # the verdict's panel uses the same orange
+    xs, ys = (np.asarray(v, float) for v in (page.chart.region_src.data["x"],
+                                             page.chart.region_src.data["y"]))
+    ok = np.isfinite(xs) & np.isfinite(ys)
+    pts = seen["ax"].transData.transform(np.column_stack([xs[ok], ys[ok]]))
+    pts[:, 1] = seen["height"] - pts[:, 1]  # matplotlib counts rows from the bottom
+    return mask, pts
+
+
+def _assert_outline_matches(mask, pts):
+    assert mask.sum() > 200, "no outline in the briefing"
+    rows, cols = np.nonzero(mask)
+    # the image's outline spans what the screen's does, to within the line's width
+    assert abs(cols.min() - pts[:, 0].min()) < 4 and abs(cols.max() - pts[:, 0].max()) < 4
+    assert abs(rows.min() - pts[:, 1].min()) < 4 and abs(rows.max() - pts[:, 1].max()) < 4
+
+
+def test_a_drawn_area_on_the_conformal_chart_is_the_briefings_outline(library, monkeypatch):
+    page = _page(library)
+    page.state.projection = "conformal"
+    g = page.chart.data.geom
+    cx, cy = g.to_view(-40.0, 47.0)
+    page.chart.select_rect(cx - 4e5, cx + 6e5, cy - 3e5, cy + 2e5)
+    assert page.state.region.startswith("area:")
+    mask, pts = _png_outline_vs_screen(page, monkeypatch)
+    _assert_outline_matches(mask, pts)
+    # and the check can fail: the case's starting box is elsewhere in the image
+    page.state.set_box(-52, -28, 38, 56)
+    mask2, _ = _png_outline_vs_screen(page, monkeypatch)
+    with pytest.raises(AssertionError):
+        _assert_outline_matches(mask2, pts)
+
+
+@pytest.mark.skipif(not os.path.exists(ETA), reason="real GRIB samples not fetched yet")
+def test_the_real_grib_case_has_its_outline_in_the_briefing(monkeypatch):
+    from app.desk import Page
+
+    lib = CaseLibrary([ETA])
+    st = ViewState(case=lib.good[0], level=500.0)
+    st.set_box(-115, -100, 35, 45)
+    page = Page(lib, st)
+    page.start()
+    assert page.report and page.report["points"] > 50
+    mask, pts = _png_outline_vs_screen(page, monkeypatch)
+    _assert_outline_matches(mask, pts)
