@@ -19,7 +19,10 @@ with the wall clock, median of several runs:
   of every message;
 * ours: ``balance-desk analyze FILE --level 500 --format json``.
 
-The last line is ``ratio analyze_grib/eccodes_decode VALUE`` (goal <= 3). When the
+The last lines are ``ratio analyze_grib/eccodes_decode VALUE`` (goal <= 3) and ``ratio
+refuse_huge_file/analyze_small_sample VALUE``: the refusal of a small file that declares a
+100000 x 100000 grid (goal under 2 s, about one interpreter start) against analysing the
+smallest sample case. When the
 real Eta sample from pygrib's source distribution is in .cache/pygrib-samples (``make
 test`` fetches it) the same pair is also timed on it and printed as
 ``ratio analyze_grib_eta_sample/eccodes_decode VALUE``: a 93 x 65 grid, where the
@@ -112,13 +115,13 @@ def make_file(path):
     return len(levels) * len(f) + len(single)
 
 
-def wall(cmd, repeat):
+def wall(cmd, repeat, expect=0):
     times = []
     for _ in range(repeat):
         t0 = time.perf_counter()
         r = subprocess.run(cmd, capture_output=True, text=True)
         times.append(time.perf_counter() - t0)
-        if r.returncode != 0:
+        if r.returncode != expect:
             raise SystemExit(f"{' '.join(cmd)} failed ({r.returncode}): {r.stderr[-400:]}")
     return statistics.median(times)
 
@@ -137,6 +140,38 @@ def pair(path, repeat):
     return ref, ours
 
 
+def make_huge(path):
+    """A few hundred kilobytes of NetCDF4 declaring a 100000 x 100000 grid never written."""
+    import netCDF4
+
+    with netCDF4.Dataset(path, "w") as ds:
+        for name, n in (("time", 1), ("level", 1), ("lat", 100_000), ("lon", 100_000)):
+            ds.createDimension(name, n)
+        t = ds.createVariable("time", "f8", ("time",))
+        t.units = "hours since 2000-01-01"
+        t[:] = [0]
+        lev = ds.createVariable("level", "f8", ("level",))
+        lev.units, lev.standard_name = "hPa", "air_pressure"
+        lev[:] = [500]
+        for name, sn, u in (("z", "geopotential_height", "m"), ("ua", "eastward_wind", "m s-1"),
+                            ("va", "northward_wind", "m s-1")):
+            v = ds.createVariable(name, "f4", ("time", "level", "lat", "lon"),
+                                  chunksizes=(1, 1, 1000, 1000))
+            v.standard_name, v.units = sn, u
+
+
+def huge_refusal(tmp, repeat):
+    """The refusal of a file declaring a huge grid, against analysing the smallest sample
+    case (the same interpreter start and imports): seconds, seconds."""
+    huge = os.path.join(tmp, "huge.nc")
+    make_huge(huge)
+    small = os.path.join(ROOT, "sample_cases", "sea_breeze.nc")
+    exe = [sys.executable, "-m", "app.cli", "analyze"]
+    refused = wall(exe + [huge, "--level", "500"], repeat, expect=2)
+    ref = wall(exe + [small, "--level", "1000"], repeat)
+    return refused, ref
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeat", type=int, default=5)
@@ -153,6 +188,12 @@ def main(argv=None) -> int:
         print(f"  eccodes: open and decode every message   {1000 * ref:8.0f} ms")
         print(f"  balance-desk analyze --level 500         {1000 * ours:8.0f} ms")
         lines.append(f"ratio analyze_grib/eccodes_decode {ours / ref:.2f}")
+        refused, small = huge_refusal(tmp, args.repeat)
+        print("a 300 kB NetCDF4 file declaring a 100000 x 100000 grid, refused from its metadata")
+        print(f"  balance-desk analyze (exit 2)            {1000 * refused:8.0f} ms"
+              "   (goal < 2000)")
+        print(f"  balance-desk analyze, smallest sample    {1000 * small:8.0f} ms")
+        lines.append(f"ratio refuse_huge_file/analyze_small_sample {refused / small:.2f}")
     eta = os.path.join(ROOT, ".cache", "pygrib-samples", "eta.grb")
     if os.path.exists(eta):
         ref, ours = pair(eta, args.repeat)
