@@ -141,6 +141,11 @@ class FairPool:
                     if lane.waiting and not lane.closed:
                         self._ready(lane)
 
+    def busy(self) -> bool:
+        """Every thread at work, or work waiting: a new job would queue."""
+        with self._lock:
+            return self.running >= self.threads or any(lane.waiting for lane in self._ring)
+
     def waiting(self) -> int:
         with self._lock:
             return sum(len(lane.waiting) for lane in self._ring)

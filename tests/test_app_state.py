@@ -239,3 +239,30 @@ def test_cases_are_shared_between_sessions(library):
     d2 = library.diagnostics("ocean_cyclone", 4, 2)
     assert d1 is d2  # computed once, shared
     assert a.library.get("ocean_cyclone") is b.library.get("ocean_cyclone")
+
+
+def test_a_page_fetched_while_the_pool_is_busy_starts_its_work_on_connecting(library):
+    # a plain fetch under load must not add work nobody may see; the page computes its
+    # views once the browser connects (start)
+    import threading
+
+    from app.desk import Page
+    from app.work import FairPool
+
+    pool = FairPool(threads=1)
+    gate, started = threading.Event(), threading.Event()
+    pool.lane("other").submit("box", lambda: (started.set(), gate.wait(30)),
+                              lambda *a: None)
+    assert started.wait(30) and pool.busy()
+    page = Page(library, _state(), pool=pool)
+    page.prime()
+    assert pool.waiting() == 0  # nothing queued for it
+    gate.set()
+    page.start()
+    import time
+
+    for _ in range(3000):
+        if page.report is not None:
+            break
+        time.sleep(0.01)
+    assert page.report is not None and page.report["points"] > 0

@@ -145,3 +145,19 @@ def test_every_submitted_view_gets_one_answer(threads):
     for i in range(6):
         for kind in ("box", "chart", "levels"):
             assert log.done[f"s{i}.{kind}.4"] == ("ok", f"s{i}.{kind}.4")
+
+
+def test_the_pool_says_when_it_is_busy():
+    pool, log = FairPool(threads=1), Log()
+    assert not pool.busy()
+    gate = _hold(pool, log)
+    assert pool.busy()  # its only thread is at work
+    gate.set()
+    log.wait_for("hold")
+    import time
+
+    for _ in range(3000):  # the worker counts itself free just after the callback
+        if not pool.busy():
+            break
+        time.sleep(0.01)
+    assert not pool.busy()

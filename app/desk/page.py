@@ -132,6 +132,10 @@ class Page(pn.viewable.Viewer):
         """Start the first screen's two views (the region's ranking, the chart) while the
         browser loads the page: results that arrive before it asks for the document are part
         of the document, so its first paint has them."""
+        if self._lane.pool.busy():
+            # under load, work for a page nobody may ever open would delay everyone's: the
+            # page starts its work when the browser connects (a plain fetch never does)
+            return
         self._primed = True
         self.live = True  # a change made in the page from now on is computed at once
         self.refresh(set(URL_PARAMS), views=("box", "chart"))
