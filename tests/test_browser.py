@@ -251,7 +251,10 @@ LEVELS_NOW_JS = """() => {
     }
     return o;
   };
-  const level = (el) => { const m = el && el.textContent.match(/(\\d+) hPa/); return m ? m[1] : null; };
+  const level = (el) => {
+    const m = el && el.textContent.match(/(\\d+) hPa/);
+    return m ? m[1] : null;
+  };
   const out = {header: level(find(document, '.bd-header'))};
   for (const [name, sel] of [['chart', '.bd-chart-title'], ['verdict', '.bd-verdict-where']]) {
     const el = find(document, sel);

@@ -22,7 +22,8 @@ from bokeh.models import (Arrow, BoxSelectTool, ColorBar, ColumnDataSource, Cust
 from bokeh.plotting import figure
 
 from ..state import ViewState, area_from_crs
-from .look import BUSY, GREY, INK, INVENTED_BG, ORANGE, alert, esc, mark_busy, palette, style_figure
+from .look import (BUSY, GREY, INK, INVENTED_BG, ORANGE, alert, esc, mark_busy, palette,
+                   style_figure)
 
 __all__ = ["Chart"]
 
@@ -118,8 +119,7 @@ class Chart(pn.viewable.Viewer):
         fig.segment("x0", "y0", "x1", "y1", source=self.vec_src, line_color="black",
                     line_width=1.6)
         fig.scatter("x1", "y1", source=self.vec_src, marker="triangle", angle="angle",
-                    size="head",
-                    fill_color="black", line_color="white", line_width=0.5)
+                    size="head", fill_color="black", line_color="white", line_width=0.5)
         fig.line("x", "y", source=self.region_src, line_color="white", line_width=6)
         fig.line("x", "y", source=self.region_src, line_color=ORANGE, line_width=3.5)
         fig.add_layout(LabelSet(x="x", y="y", text="text", source=self.clab_src,
@@ -283,7 +283,8 @@ class Chart(pn.viewable.Viewer):
         interval = "" if not math.isfinite(cd.contour_interval) else \
             f" every {cd.contour_interval:g} {cd.contour_units}"
         mark = (f" <span style='background:{INVENTED_BG};color:#fff;padding:2px 8px;"
-                "border-radius:4px;font-size:15px;white-space:nowrap'>invented demo data</span>") if cd.invented else ""
+                "border-radius:4px;font-size:15px;white-space:nowrap'>invented demo data"
+                "</span>") if cd.invented else ""
         self.caption.object = (f"<div><span class='bd-chart-title'>{esc(cd.title)}</span>{mark}"
                                f"</div><div style='font-size:16px;font-weight:400'>"
                                f"{esc(cd.field_label)}" + (f" ({esc(cd.units)})" if cd.units
@@ -342,4 +343,3 @@ def head_sizes(v, ref, full=8.0):
     length = np.hypot(np.asarray(v["x1"]) - np.asarray(v["x0"]),
                       np.asarray(v["y1"]) - np.asarray(v["y0"]))
     return full * np.clip(length / (0.4 * ref_len), 0.25, 1.0)
-

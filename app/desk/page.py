@@ -100,7 +100,7 @@ class Page(pn.viewable.Viewer):
                               styles={"background": "#fff3cd", "padding": "8px",
                                       "border-top": "2px solid #856404"})
         # a row that wraps: the evidence goes below the chart on a narrow screen (a plain
-        # Row with CSS, not a FlexBox: that one is a template the browser lays out slowly)
+        # Row with CSS, not a FlexBox: that one is a template the browser lays out slowly).
         # Panel gives a stretching row the sum of its parts' minimum widths, as if it could
         # not wrap (and the page the row's): the two say their own minimum (the chart's) in an
         # inline style, which wins, so that at a narrow window or a high zoom the parts go
@@ -376,7 +376,8 @@ class Page(pn.viewable.Viewer):
         try:
             if compute.case_facts(self.library.get(s.case))["invented"]:
                 invented = (f" <span style='background:{INVENTED_BG};color:#fff;padding:2px 8px;"
-                            "border-radius:4px;font-size:16px;white-space:nowrap'>invented demo data</span>")
+                            "border-radius:4px;font-size:16px;white-space:nowrap'>invented demo "
+                            "data</span>")
         except CaseError:
             pass
         self.header.object = (
