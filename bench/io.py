@@ -140,31 +140,13 @@ def pair(path, repeat):
     return ref, ours
 
 
-def make_huge(path):
-    """A few hundred kilobytes of NetCDF4 declaring a 100000 x 100000 grid never written."""
-    import netCDF4
-
-    with netCDF4.Dataset(path, "w") as ds:
-        for name, n in (("time", 1), ("level", 1), ("lat", 100_000), ("lon", 100_000)):
-            ds.createDimension(name, n)
-        t = ds.createVariable("time", "f8", ("time",))
-        t.units = "hours since 2000-01-01"
-        t[:] = [0]
-        lev = ds.createVariable("level", "f8", ("level",))
-        lev.units, lev.standard_name = "hPa", "air_pressure"
-        lev[:] = [500]
-        for name, sn, u in (("z", "geopotential_height", "m"), ("ua", "eastward_wind", "m s-1"),
-                            ("va", "northward_wind", "m s-1")):
-            v = ds.createVariable(name, "f4", ("time", "level", "lat", "lon"),
-                                  chunksizes=(1, 1, 1000, 1000))
-            v.standard_name, v.units = sn, u
-
-
 def huge_refusal(tmp, repeat):
     """The refusal of a file declaring a huge grid, against analysing the smallest sample
     case (the same interpreter start and imports): seconds, seconds."""
+    from makedata import huge_declaring_netcdf
+
     huge = os.path.join(tmp, "huge.nc")
-    make_huge(huge)
+    huge_declaring_netcdf(huge)
     small = os.path.join(ROOT, "sample_cases", "sea_breeze.nc")
     exe = [sys.executable, "-m", "app.cli", "analyze"]
     refused = wall(exe + [huge, "--level", "500"], repeat, expect=2)

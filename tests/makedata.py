@@ -144,3 +144,24 @@ def projected_dataset(crs, x, y, *, angle=None, levels=LEVELS, times=TIMES):
         attrs={"title": "analytic test fields on a projected grid"},
     )
     return ds, arr, lat, lon
+
+
+def huge_declaring_netcdf(path):
+    """A few hundred kilobytes of NetCDF4 declaring a 100000 x 100000 grid whose chunks were
+    never written (a reader that trusts the metadata would ask for 40 GB per field)."""
+    import netCDF4
+
+    with netCDF4.Dataset(path, "w") as ds:
+        for name, n in (("time", 1), ("level", 1), ("lat", 100_000), ("lon", 100_000)):
+            ds.createDimension(name, n)
+        t = ds.createVariable("time", "f8", ("time",))
+        t.units = "hours since 2000-01-01"
+        t[:] = [0]
+        lev = ds.createVariable("level", "f8", ("level",))
+        lev.units, lev.standard_name = "hPa", "air_pressure"
+        lev[:] = [500]
+        for name, sn, u in (("z", "geopotential_height", "m"), ("ua", "eastward_wind", "m s-1"),
+                            ("va", "northward_wind", "m s-1")):
+            v = ds.createVariable(name, "f4", ("time", "level", "lat", "lon"),
+                                  chunksizes=(1, 1, 1000, 1000))
+            v.standard_name, v.units = sn, u

@@ -152,23 +152,10 @@ def test_a_time_with_a_zone_offset_gives_no_warning(tmp_path):
 def test_a_file_declaring_huge_dimensions_is_refused_from_its_metadata(tmp_path):
     # A few hundred kilobytes declaring a 100000 x 100000 grid whose chunks were never
     # written: refused from its metadata, without reading it.
-    import netCDF4
+    from makedata import huge_declaring_netcdf
 
     path = str(tmp_path / "huge.nc")
-    with netCDF4.Dataset(path, "w") as ds:
-        for name, n in (("time", 1), ("level", 1), ("lat", 100_000), ("lon", 100_000)):
-            ds.createDimension(name, n)
-        t = ds.createVariable("time", "f8", ("time",))
-        t.units = "hours since 2000-01-01"
-        t[:] = [0]
-        lev = ds.createVariable("level", "f8", ("level",))
-        lev.units, lev.standard_name = "hPa", "air_pressure"
-        lev[:] = [500]
-        for name, sn, u in (("z", "geopotential_height", "m"), ("ua", "eastward_wind", "m s-1"),
-                            ("va", "northward_wind", "m s-1")):
-            v = ds.createVariable(name, "f4", ("time", "level", "lat", "lon"),
-                                  chunksizes=(1, 1, 1000, 1000))
-            v.standard_name, v.units = sn, u
+    huge_declaring_netcdf(path)
     assert os.path.getsize(path) < 1_000_000
     # A fresh parent runs the command and reports its only child's peak resident memory
     # (Linux reports kB); RUSAGE_CHILDREN of this test process would include every child
