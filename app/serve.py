@@ -68,9 +68,14 @@ class PageLimit:
     fetching the page in a loop drains its own bucket and gets "429 Too Many
     Requests" (about a millisecond of work) instead of a session each time, while
     people's browsers keep theirs. ``burst`` pages at once, then one every
-    ``1 / per_second`` seconds. A nicety against runaway loops, not an
+    ``1 / per_second`` seconds. A refused request is answered only after
+    ``hold_s`` seconds (the Retry-After it is told): a loop that retries at once
+    makes one request per ``hold_s`` instead of hundreds a second, and a waiting
+    answer costs the server nothing. A nicety against runaway loops, not an
     authentication: a determined client can vary its User-Agent.
     """
+
+    hold_s = 2.0
 
     def __init__(self, burst: int = 10, per_second: float = 0.5, clients: int = 10_000):
         import collections
@@ -109,8 +114,11 @@ def _limit_page_requests():
         if self.request.method == "GET":
             key = (self.request.remote_ip, self.request.headers.get("User-Agent", ""))
             if not LIMIT.allow(key):
+                import asyncio
+
+                await asyncio.sleep(LIMIT.hold_s)
                 self.set_status(429)
-                self.set_header("Retry-After", "2")
+                self.set_header("Retry-After", f"{LIMIT.hold_s:.0f}")
                 self.set_header("Content-Type", "text/plain; charset=utf-8")
                 self.finish("Too many page requests from this client; try again in a moment.\n")
                 return

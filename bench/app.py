@@ -242,7 +242,14 @@ def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeat", type=int, default=7)
     ap.add_argument("--no-browser", action="store_true")
+    ap.add_argument("--browser-only", action="store_true",
+                    help="only the figures from the browser")
     args = ap.parse_args(argv)
+    if args.browser_only:
+        br = browser_figures(args.repeat)
+        for k, v in br.items():
+            print(f"figure {k} {v:.1f}")
+        return 0
 
     from app.library import CaseLibrary
 

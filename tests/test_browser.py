@@ -8,14 +8,12 @@ installed (``make test`` installs it as root), failed under CI=true.
 import os
 import re
 import shutil
-import socket
-import subprocess
-import sys
 import time
-import urllib.request
 
 import numpy as np
 import pytest
+
+from serving import start_server, stop_server
 
 pytestmark = pytest.mark.browser
 
@@ -35,43 +33,11 @@ BROWSER_ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networkin
                 "--disable-component-update", "--no-first-run", "--disable-sync"]
 
 
-def _free_port():
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
 @pytest.fixture(scope="module")
-def server(tmp_path_factory):
-    port = _free_port()
-    env = dict(os.environ, PYTHONUNBUFFERED="1")
-    # the log goes to a file: a pipe nobody reads fills up and stops the server
-    log_path = tmp_path_factory.mktemp("server") / "server.log"
-    log = open(log_path, "w")
-    proc = subprocess.Popen([sys.executable, "-m", "app.cli", "serve", "--port", str(port)],
-                            stdout=log, stderr=subprocess.STDOUT, text=True, env=env,
-                            cwd=os.path.join(HERE, ".."))
-    url = f"http://127.0.0.1:{port}/"
-    for _ in range(120):
-        try:
-            urllib.request.urlopen(url, timeout=2)
-            break
-        except Exception:  # noqa: BLE001
-            if proc.poll() is not None:
-                raise RuntimeError(log_path.read_text())
-            time.sleep(0.5)
-    else:
-        proc.kill()
-        raise RuntimeError("the server did not start")
+def server():
+    proc, url, _ = start_server()
     yield url
-    proc.terminate()
-    try:
-        proc.wait(timeout=20)
-    except subprocess.TimeoutExpired:
-        proc.kill()
-        proc.wait()
-    log.close()
-    out = log_path.read_text()
+    out = stop_server(proc)
     assert "Traceback" not in out, out[-3000:]
 
 
@@ -328,7 +294,7 @@ def test_the_briefing_outline_lies_where_the_typed_box_is(server, browser):
         _wait_for(page, lambda: f"{abs(box[0]):.1f}W to {abs(box[1]):.1f}W" in
                   _verdict_text(page))
         edges[key] = _outline_edges(_download(page, "Briefing image (PNG)"))
-    (la, ra, ta, ba), (lb, rb, _, _), (_, _, tc, bc) = edges["a"], edges["b"], edges["c"]
+    (la, ra, ta, ba), (lb, _, _, _), (_, _, tc, _) = edges["a"], edges["b"], edges["c"]
     kx = (lb - la) / (boxes["b"][0] - boxes["a"][0])           # px per degree east
     ky = (tc - ta) / (boxes["c"][3] - boxes["a"][3])           # px per degree north (< 0)
     assert kx > 0 and ky < 0

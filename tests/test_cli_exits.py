@@ -7,7 +7,6 @@ be simulated (a permission error, as root).
 """
 
 import os
-import resource
 import socket
 import subprocess
 import sys

@@ -78,7 +78,6 @@ def test_the_collision_check_can_fail(library, monkeypatch):
 
     monkeypatch.setattr(render, "_thin_labels", lambda labels, extent: labels)
     monkeypatch.setattr(render, "_GRATICULE_CACHE", {})
-    case = library.get("ocean_cyclone")
     st = ViewState(case="ocean_cyclone", level=500.0, projection="conformal")
     assert _collisions(_label_boxes(compute.chart_data(library, st), 660))
 

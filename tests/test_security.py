@@ -10,8 +10,6 @@ a page on a second local origin that frames the desk gets nothing.
 import os
 import shutil
 import signal
-import socket
-import subprocess
 import sys
 import threading
 import time
@@ -21,6 +19,8 @@ from http.server import BaseHTTPRequestHandler, HTTPServer
 
 import numpy as np
 import pytest
+
+from serving import free_port, start_server, stop_server
 
 pytestmark = pytest.mark.browser
 
@@ -85,47 +85,12 @@ def test_the_corpus_is_large_enough():
     assert len(PAYLOADS) >= 30
 
 
-def _free_port():
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
 def _start(args, cwd=ROOT):
-    """A server in a subprocess; its log goes to a file (a pipe nobody reads would fill up
-    and stop it)."""
-    import tempfile
-
-    port = _free_port()
-    log = tempfile.NamedTemporaryFile("w+", suffix=".log", delete=False)
-    proc = subprocess.Popen([sys.executable, "-m", "app.cli", "serve", *args, "--port",
-                             str(port)], stdout=log, stderr=subprocess.STDOUT, text=True,
-                            cwd=cwd)
-    proc.log_path = log.name
-    url = f"http://127.0.0.1:{port}/"
-    for _ in range(240):
-        try:
-            urllib.request.urlopen(url, timeout=2)
-            return proc, url, port
-        except Exception:  # noqa: BLE001
-            if proc.poll() is not None:
-                raise RuntimeError(open(log.name).read())
-            time.sleep(0.5)
-    proc.kill()
-    raise RuntimeError("the server did not start")
+    return start_server(args, cwd=cwd)
 
 
 def _stop(proc):
-    proc.terminate()
-    try:
-        proc.wait(timeout=20)
-    except subprocess.TimeoutExpired:
-        proc.kill()
-        proc.wait()
-    with open(proc.log_path) as fh:
-        out = fh.read()
-    os.unlink(proc.log_path)
-    return out
+    return stop_server(proc)
 
 
 def _hostile_cases(tmp):
@@ -275,7 +240,7 @@ class _Framer(BaseHTTPRequestHandler):
 
 
 def test_another_origin_cannot_frame_the_desk(hostile_server, browser):
-    port = _free_port()
+    port = free_port()
     _Framer.target = hostile_server
     httpd = HTTPServer(("127.0.0.1", port), _Framer)
     t = threading.Thread(target=httpd.serve_forever, daemon=True)

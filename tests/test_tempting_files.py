@@ -11,7 +11,6 @@ import os
 
 import numpy as np
 import pytest
-import xarray as xr
 
 from app.cli import main
 from balance_core.io import CaseError, analyse_case, open_case

@@ -13,8 +13,8 @@ import numpy as np
 import panel as pn
 import param
 
-from bokeh.models import (ColorBar, ColumnDataSource, FactorRange, Legend, LegendItem,
-                          LinearColorMapper, Span)
+from bokeh.models import (ColumnDataSource, Legend, LegendItem,
+                          Span)
 from bokeh.plotting import figure
 
 from balance_core.scales import PRESETS

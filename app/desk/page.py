@@ -38,7 +38,7 @@ from .evidence import Evidence
 from .exports import Exports
 from .look import CAUTION, GLOBAL_CSS, INK, INVENTED_BG, alert, esc
 
-__all__ = ["Page", "make_session", "error_page"]
+__all__ = ["Page", "make_session", "error_page", "EarlyBuilds"]
 
 log = logging.getLogger("balance_desk")
 
@@ -437,14 +437,66 @@ def build_page(library, query: dict, thresholds: Thresholds = Thresholds(), doc=
     return page
 
 
-def make_session(library, thresholds: Thresholds = Thresholds()):
+class EarlyBuilds:
+    """Whether a fetched page may be built before its browser connects.
+
+    Building a page while the browser loads its scripts (about half a second) makes the
+    first screen come sooner, but a page fetched by a script or monitor never connects,
+    and building it is wasted work. So a client (its address and User-Agent, as for the
+    page limit in :mod:`app.serve`) gets a page built early only while fewer than
+    ``per_client`` of its early-built pages of the last ``window`` seconds still wait for
+    their browser, and the whole server while fewer than ``limit`` do. A client that
+    fetches pages in a loop gets them built when a browser connects -- never, for a
+    script -- and a plain fetch costs a small frame; other people's pages come as fast
+    as on an idle server.
+    """
+
+    def __init__(self, per_client: int = 2, limit: int = 8, window: float = 20.0):
+        import threading
+
+        self.per_client, self.limit, self.window = per_client, limit, window
+        self._waiting: dict = {}  # page key -> (client, time)
+        self._lock = threading.Lock()
+
+    def take(self, client, key, now=None) -> bool:
+        now = time.monotonic() if now is None else now
+        with self._lock:
+            for k, (_, t) in list(self._waiting.items()):
+                if now - t > self.window:
+                    del self._waiting[k]
+            mine = sum(1 for c, _ in self._waiting.values() if c == client)
+            if mine >= self.per_client or len(self._waiting) >= self.limit:
+                return False
+            self._waiting[key] = (client, now)
+            return True
+
+    def connected(self, key):
+        with self._lock:
+            self._waiting.pop(key, None)
+
+
+EARLY = EarlyBuilds()
+
+
+def _client(doc):
+    """The client that fetched a page: its address and its browser's User-Agent."""
+    try:
+        req = doc.session_context.request
+        return (getattr(req, "remote_ip", ""), (req.headers or {}).get("User-Agent", ""))
+    except Exception:  # noqa: BLE001 - unknown: all such pages share one allowance
+        return ("", "")
+
+
+def make_session(library, thresholds: Thresholds = Thresholds(), early: EarlyBuilds = EARLY):
     """The page of one new browser session (the function the server calls per request).
 
-    A GET gets the page's parts, marked as updating, and starts the two views of the
-    first screen (:meth:`Page.prime`) in the session's lane; the views through the
-    levels and the times start when the browser has drawn the page (``pn.state.onload``).
-    Never raises: a failure shows one sentence with an error id, the server log the
-    details.
+    A GET gets the page's frame (its name, a loading line, the caution). The page's
+    parts are built, and its first screen's views started, right after the GET's
+    answer while the browser loads its scripts -- unless many fetched pages were
+    never opened by a browser (:class:`EarlyBuilds`), in which case they are built
+    when the browser connects (``pn.state.onload``). Either way the views through
+    the levels and the times start when the browser is there. Never raises: a
+    failure shows one sentence with an error id, the server log the details.
     """
     def failed():
         eid = _error_id()
@@ -461,14 +513,39 @@ def make_session(library, thresholds: Thresholds = Thresholds()):
             page = build_page(library, query, thresholds)
             page.start()
             return page.layout
-        # parts drawn later (a tab opened) take Panel's stylesheets from this server too,
-        # not from Panel's CDN (which the CSP blocks and an offline desk cannot reach)
+        # parts drawn later take Panel's stylesheets from this server too, not from
+        # Panel's CDN (which the CSP blocks and an offline desk cannot reach)
         from panel.io.resources import get_dist_path
 
         doc._template_variables.setdefault("dist_url", get_dist_path(cdn=False))
-        page = build_page(library, query, thresholds, doc)
-        page.prime()
-        pn.state.onload(page.start)  # the rest starts when the browser is there to see it
-        return page.layout
+        # the page's own minimum width, inline (see Page: Panel would sum its parts')
+        holder = pn.Column(_frame("Loading the case..."), sizing_mode="stretch_width",
+                           styles={"min-width": "540px"})
+        built = []
+
+        def build():
+            if built:
+                return built[0]
+            try:
+                page = build_page(library, query, thresholds, doc)
+                page.prime()
+                with pn.io.hold(doc):
+                    holder.objects = [page.layout]
+            except Exception:  # noqa: BLE001
+                page = None
+                holder.objects = [failed()]
+            built.append(page)
+            return page
+
+        def connected():
+            early.connected(id(doc))
+            page = build()
+            if page is not None:
+                page.start()
+
+        if early.take(_client(doc), id(doc)):
+            doc.add_next_tick_callback(build)
+        pn.state.onload(connected)
+        return holder
     except Exception:  # noqa: BLE001 - the page says one sentence, the log the rest
         return failed()

@@ -1,0 +1,81 @@
+"""A page fetched and never opened costs the server little, and a fetch loop is slowed down.
+
+* a client gets pages built before its browser connects only while few of its
+  early-built pages still wait for a browser (:class:`app.desk.page.EarlyBuilds`);
+* a script fetching the page in a loop gets no pages built past that allowance, and,
+  past the page limit, a "429 Too Many Requests" held for the time it is told to wait.
+
+Each rule is shown saying no. No speed is asserted here: bench/serve.py measures the
+new user's page under load.
+"""
+
+import os
+import time
+import urllib.error
+import urllib.request
+
+import pytest
+
+from app.desk.page import EarlyBuilds
+from app.serve import PageLimit
+from serving import start_server, stop_server
+
+
+def test_early_builds_are_counted_per_client_and_for_the_server():
+    early = EarlyBuilds(per_client=2, limit=3, window=20.0)
+    a, b, c = ("127.0.0.1", "script"), ("127.0.0.1", "browser"), ("10.0.0.2", "browser")
+    assert early.take(a, 1, now=0.0) and early.take(a, 2, now=0.1)
+    assert not early.take(a, 3, now=0.2)           # the script's own allowance is used up
+    assert early.take(b, 4, now=0.3)               # someone else's page is still built early
+    assert not early.take(c, 5, now=0.4)           # the server's allowance is used up
+    early.connected(4)                             # that browser came
+    assert early.take(c, 6, now=0.5)
+    assert not early.take(a, 7, now=19.0)
+    assert early.take(a, 8, now=20.5)              # the script's first pages have aged out
+
+
+def test_the_page_limit_refuses_a_loop_and_refills():
+    limit = PageLimit(burst=3, per_second=0.5)
+    key = ("127.0.0.1", "script")
+    assert all(limit.allow(key, now=0.0) for _ in range(3))
+    assert not limit.allow(key, now=0.1)
+    assert limit.allow(("127.0.0.1", "browser"), now=0.1)  # another client's bucket
+    assert limit.allow(key, now=2.2)  # one page every 2 s
+
+
+@pytest.fixture(scope="module")
+def debug_server():
+    proc, url, _ = start_server(env=dict(os.environ, BALANCE_DESK_LOG="DEBUG"))
+    yield proc, url
+    stop_server(proc)
+
+
+def _fetch(url):
+    t0 = time.monotonic()
+    try:
+        with urllib.request.urlopen(url, timeout=30) as r:
+            return r.status, dict(r.headers), time.monotonic() - t0
+    except urllib.error.HTTPError as exc:
+        return exc.code, dict(exc.headers), time.monotonic() - t0
+
+
+def test_a_fetch_loop_builds_no_pages_and_is_held_back(debug_server):
+    proc, url = debug_server
+    link = url + "?case=ocean_cyclone&level=500"
+    answers = [_fetch(link) for _ in range(14)]
+    codes = [a[0] for a in answers]
+    assert codes[:8] == [200] * 8, codes           # the first pages come at once
+    refused = [a for a in answers if a[0] == 429]
+    assert refused, codes                          # the loop is refused past the burst
+    status, headers, seconds = refused[0]
+    assert headers.get("Retry-After") == "2"
+    # the refusal is held for the time it names, so a loop that retries at once is slowed
+    # (a lower bound set by the server's own wait, not a speed goal)
+    assert seconds >= 1.9
+    time.sleep(1.0)  # the pool's log lines
+    with open(proc.log_path) as fh:
+        log = fh.read()
+    built = log.count(": box computed")
+    # the start-up check and these fetches come from one client (Python's User-Agent): at
+    # most its allowance of early-built pages, never one per fetch
+    assert built <= EarlyBuilds().per_client, built
