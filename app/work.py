@@ -6,6 +6,9 @@ and the times): a newer request for the same view replaces the waiting one, so
 only the latest request of a view is ever computed. The pool's threads take
 lanes in turn (round robin), one job at a time, so one busy session cannot
 starve another, and the number of waiting jobs is bounded by sessions x kinds.
+A lane whose first screen (its first two jobs: the ranking and the chart) is not
+done yet goes ahead of the others, in the order such lanes came: a person who
+just opened the page waits for one job, not for a turn of every busy session.
 
 A job's result goes to its ``done`` callback, which the page turns into an
 update on its own document's event loop; a job whose result is no longer
@@ -44,6 +47,15 @@ class Lane:
         self.generation: collections.Counter = collections.Counter()
         self.running: collections.Counter = collections.Counter()
         self.closed = False
+        self.served = 0  # jobs finished
+
+    #: jobs a lane finishes before it no longer goes ahead (the ranking and the chart)
+    FIRST_SCREEN_JOBS = 2
+
+    @property
+    def new(self) -> bool:
+        """Its first screen is not done yet: it goes ahead of the others."""
+        return self.served < self.FIRST_SCREEN_JOBS
 
     def submit(self, kind: str, fn, done) -> int:
         """Queue ``fn()`` as the newest job of ``kind``; ``done(status, value, gen)`` gets the
@@ -96,7 +108,13 @@ class FairPool:
 
     def _ready(self, lane):
         if lane not in self._ring:
-            self._ring.append(lane)
+            if lane.new:  # behind the other new lanes, ahead of the rest
+                ahead = 0
+                while ahead < len(self._ring) and self._ring[ahead].new:
+                    ahead += 1
+                self._ring.insert(ahead, lane)
+            else:
+                self._ring.append(lane)
         self._wake.notify()
 
     def _start(self):
@@ -118,15 +136,17 @@ class FairPool:
                     lane = self._ring.popleft()
                     job = None if lane.closed else lane._take()
                     if job is not None and lane.waiting:
-                        self._ring.append(lane)  # its other views wait their turn
+                        self._ready(lane)  # its other views wait their turn
                 self.running += 1
             kind, gen, fn, done = job
+            computed = False
             try:
                 if not lane.current(kind, gen):
                     _safe(done, "stale", None, gen)
                     continue
                 try:
                     t0 = time.perf_counter()
+                    computed = True
                     value = fn()
                     status = "ok"
                     log.debug("lane %s: %s computed in %.0f ms", lane.name, kind,
@@ -138,6 +158,7 @@ class FairPool:
                 with self._lock:
                     self.running -= 1
                     lane.running[kind] -= 1
+                    lane.served += computed
                     if lane.waiting and not lane.closed:
                         self._ready(lane)
 

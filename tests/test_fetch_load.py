@@ -79,3 +79,30 @@ def test_a_fetch_loop_builds_no_pages_and_is_held_back(debug_server):
     # the start-up check and these fetches come from one client (Python's User-Agent): at
     # most its allowance of early-built pages, never one per fetch
     assert built <= EarlyBuilds().per_client, built
+
+
+def test_an_opened_page_computes_its_first_screen_once(debug_server):
+    # a link without a region gets the case's suggested box, its first valid time and a
+    # level the case has: filled in before the page starts its work, not after (which
+    # would compute the ranking and the chart twice for every new page)
+    import shutil
+
+    if shutil.which("chromium") is None:
+        pytest.skip("chromium is not installed")
+    sync_api = pytest.importorskip("playwright.sync_api")
+    proc, url = debug_server
+    with open(proc.log_path) as fh:
+        before = len(fh.read())
+    with sync_api.sync_playwright() as p:
+        b = p.chromium.launch(executable_path=shutil.which("chromium"),
+                              args=["--no-sandbox", "--disable-gpu",
+                                    "--disable-background-networking"])
+        page = b.new_page()
+        page.goto(url + "?case=ocean_cyclone&level=520")
+        page.locator(".bd-verdict").first.wait_for(timeout=60_000)
+        page.wait_for_timeout(1500)
+        b.close()
+    with open(proc.log_path) as fh:
+        log = fh.read()[before:]
+    assert log.count(": box computed") == 1, log
+    assert log.count(": chart computed") == 1, log

@@ -161,3 +161,21 @@ def test_the_pool_says_when_it_is_busy():
             break
         time.sleep(0.01)
     assert not pool.busy()
+
+
+def test_a_new_session_goes_ahead_of_busy_ones():
+    # a session that has had its first screen waits its turn; one that just opened the page
+    # (its first two jobs not done) goes ahead of it, and new ones keep their order
+    pool, log = FairPool(threads=1), Log()
+    old = pool.lane("old")
+    for kind in ("box", "chart"):
+        old.submit(kind, log.job(f"old.{kind}0"), log.callback(f"old.{kind}0"))
+    log.wait_for("old.box0", "old.chart0")
+    gate = _hold(pool, log)
+    old.submit("box", log.job("old.box1"), log.callback("old.box1"))
+    first, second = pool.lane("first"), pool.lane("second")
+    first.submit("box", log.job("first.box"), log.callback("first.box"))
+    second.submit("box", log.job("second.box"), log.callback("second.box"))
+    gate.set()
+    log.wait_for("old.box1", "first.box", "second.box")
+    assert log.order()[-3:] == ["first.box", "second.box", "old.box1"], log.order()

@@ -90,6 +90,7 @@ class Page(pn.viewable.Viewer):
         self.chart = Chart(self.state)
         self.evidence = Evidence(self.state, thresholds)
         self.below = Below(self.state)
+        self.below.follow(set(URL_PARAMS))  # the sheet's preset and edits of a link
         self.exports = Exports(self)
         self.controls.exports_slot.objects = [self.exports]
         self.header = pn.pane.HTML("", sizing_mode="stretch_width")
@@ -409,31 +410,31 @@ def _frame(text: str):
 
 
 def build_page(library, query: dict, thresholds: Thresholds = Thresholds(), doc=None) -> Page:
-    """The page of a link's query: state parsed and validated, the case's defaults filled in."""
+    """The page of a link's query: state parsed and validated, the case's defaults filled in.
+
+    The state is complete before the page is made, so the page's first work is for the
+    view it will show (a default filled in afterwards would start every view again).
+    """
     state = ViewState(case=library.good[0] if library.good else
                       (library.names[0] if library.names else ""))
     problems = state.update_from_query(query, cases=library.names)
-    page = Page(library, state, thresholds=thresholds, problems=problems)
-    if doc is not None:
-        page.attach(doc)
-    if "region" not in query:  # a link without a region: the case's suggested one
-        try:
-            extra = Page.suggested(library.get(state.case))
+    try:
+        case = library.get(state.case)
+    except CaseError:
+        case = None
+    if case is not None:
+        if "region" not in query:  # a link without a region: the case's suggested one
+            extra = Page.suggested(case)
             if "preset" in query:
                 extra.pop("preset", None)
             state.param.update(**extra)
-        except CaseError:
-            pass
-    try:  # the first valid time when the link gives none (or one the case lacks)
-        case = library.get(state.case)
         times = [iso(t) for t in case.times]
-        if state.time not in times:
+        if state.time not in times:  # the first valid time when the link gives none
             state.time = times[0]
         state.level = compute.nearest_level(case, state.level)  # a level the case has
-    except CaseError:
-        pass
-    page.controls.follow(set(URL_PARAMS))
-    page.below.follow(set(URL_PARAMS))
+    page = Page(library, state, thresholds=thresholds, problems=problems)
+    if doc is not None:
+        page.attach(doc)
     return page
 
 
