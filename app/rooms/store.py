@@ -1,0 +1,311 @@
+"""Where review rooms live: their titles, their last view and every version of every note.
+
+One small interface, :class:`RoomStore`, and its SQLite implementation,
+:class:`SQLiteStore` (one file, WAL journal, every write one transaction that is
+synced to disk before it is acknowledged). Another database could serve later by
+implementing the same methods.
+
+Nothing is ever deleted or overwritten in place: editing or withdrawing a note
+adds a version (``version`` counts up per note), so every text a person wrote
+can be read back. A note carries an idempotency key (``request``) chosen by the
+writer: a write repeated with the same key (a retry after a lost answer)
+returns the note already stored instead of adding a copy.
+
+The store path is ``--store PATH``, else the environment variable
+``BALANCE_DESK_STORE``, else ``rooms.sqlite`` in the user's data folder
+(:func:`default_store_path`).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import os
+import secrets
+import sqlite3
+import threading
+import time
+
+__all__ = ["Room", "Note", "RoomStore", "SQLiteStore", "StoreError", "default_store_path",
+           "open_store", "new_token", "TOKEN_BYTES", "MAX_TITLE", "MAX_NOTE", "MAX_NAME"]
+
+#: a room's token: 24 random bytes from :mod:`secrets` (192 bits), URL-safe text
+TOKEN_BYTES = 24
+MAX_TITLE = 120
+MAX_NOTE = 2000
+MAX_NAME = 40
+
+
+class StoreError(Exception):
+    """The store cannot be used, or a request to it is not valid: one sentence."""
+
+
+def new_token() -> str:
+    return secrets.token_urlsafe(TOKEN_BYTES)
+
+
+def default_store_path() -> str:
+    """``BALANCE_DESK_STORE``, else rooms.sqlite in the user's data folder."""
+    env = os.environ.get("BALANCE_DESK_STORE")
+    if env:
+        return env
+    import platformdirs
+
+    return os.path.join(platformdirs.user_data_dir("balance-desk"), "rooms.sqlite")
+
+
+@dataclasses.dataclass(frozen=True)
+class Room:
+    token: str
+    title: str
+    case: str
+    created: float
+    view: dict          # the room's last view (the link's parameters, see app.state)
+    view_version: int   # counts every change of the view
+    expires: float = float("inf")  # after this (seconds since the epoch) its link is refused
+
+    @property
+    def expired(self) -> bool:
+        return time.time() > self.expires
+
+
+@dataclasses.dataclass(frozen=True)
+class Note:
+    note_id: str        # the same for every version of one note
+    version: int        # 1 for the first text, then one more per edit or withdrawal
+    room: str
+    author: str         # who wrote this version
+    created: float      # when this version was written (seconds since the epoch, UTC)
+    text: str
+    view: dict          # the view it was written on
+    point: tuple | None  # (lon, lat) on the chart, or None
+    withdrawn: bool
+    first_author: str = ""
+    first_created: float = 0.0
+
+    def as_dict(self) -> dict:
+        d = dataclasses.asdict(self)
+        d["point"] = list(self.point) if self.point is not None else None
+        return d
+
+
+class RoomStore:
+    """What the rooms need from a store (see :class:`SQLiteStore`)."""
+
+    def create_room(self, title: str, case: str, view: dict | None = None,
+                    days: float = 30.0) -> Room: ...
+    def room(self, token: str) -> Room | None: ...
+    def rooms(self) -> list: ...
+    def save_view(self, token: str, view: dict) -> int: ...
+    def add_note(self, token: str, author: str, text: str, view: dict, point=None,
+                 request: str | None = None) -> Note: ...
+    def edit_note(self, token: str, note_id: str, author: str, text: str) -> Note: ...
+    def withdraw_note(self, token: str, note_id: str, author: str) -> Note: ...
+    def notes(self, token: str) -> list: ...
+    def history(self, token: str, note_id: str) -> list: ...
+    def close(self) -> None: ...
+
+
+_SCHEMA = """
+CREATE TABLE IF NOT EXISTS rooms (
+    token TEXT PRIMARY KEY,
+    title TEXT NOT NULL,
+    case_name TEXT NOT NULL,
+    created REAL NOT NULL,
+    view TEXT NOT NULL,
+    view_version INTEGER NOT NULL DEFAULT 0,
+    expires REAL NOT NULL
+);
+CREATE TABLE IF NOT EXISTS notes (
+    seq INTEGER PRIMARY KEY AUTOINCREMENT,
+    room TEXT NOT NULL REFERENCES rooms(token),
+    note_id TEXT NOT NULL,
+    version INTEGER NOT NULL,
+    author TEXT NOT NULL,
+    created REAL NOT NULL,
+    text TEXT NOT NULL,
+    view TEXT NOT NULL,
+    lon REAL,
+    lat REAL,
+    withdrawn INTEGER NOT NULL DEFAULT 0,
+    request TEXT UNIQUE,
+    UNIQUE (note_id, version)
+);
+CREATE INDEX IF NOT EXISTS notes_room ON notes (room, note_id, version);
+"""
+
+
+def _clean(text, limit, what) -> str:
+    text = str(text or "").replace("\x00", "").strip()
+    if not text:
+        raise StoreError(f"the {what} is empty")
+    if len(text) > limit:
+        raise StoreError(f"the {what} is longer than {limit} characters")
+    return text
+
+
+class SQLiteStore(RoomStore):
+    """Rooms and notes in one SQLite file (WAL journal, synchronous=FULL).
+
+    One connection, used under a lock by whichever thread calls; each method is one
+    transaction. ``synchronous=FULL`` syncs the journal before a commit returns, so an
+    acknowledged note survives a crash of the process (and of the machine).
+    """
+
+    def __init__(self, path: str):
+        self.path = path
+        folder = os.path.dirname(os.path.abspath(path))
+        try:
+            os.makedirs(folder, exist_ok=True)
+            self._db = sqlite3.connect(path, check_same_thread=False, isolation_level=None,
+                                       timeout=30)
+            self._db.execute("PRAGMA journal_mode=WAL")
+            self._db.execute("PRAGMA synchronous=FULL")
+            self._db.execute("PRAGMA foreign_keys=ON")
+            self._db.executescript(_SCHEMA)
+        except (sqlite3.Error, OSError) as exc:
+            raise StoreError(f"the room store {path} cannot be used ({exc})") from None
+        self._lock = threading.Lock()
+
+    # -- rooms ----------------------------------------------------------------------
+    def create_room(self, title, case, view=None, days=30.0) -> Room:
+        """A new room; its link works for ``days`` days (its notes are kept after that)."""
+        title = _clean(title, MAX_TITLE, "room's title")
+        if not (isinstance(days, (int, float)) and 0 < days <= 3650):
+            raise StoreError("a room's life must be more than 0 and at most 3650 days")
+        token, now = new_token(), time.time()
+        view = dict(view or {})
+        expires = now + 86400.0 * days
+        with self._lock, self._db:
+            self._db.execute("INSERT INTO rooms (token, title, case_name, created, view, expires) "
+                             "VALUES (?, ?, ?, ?, ?, ?)",
+                             (token, title, str(case), now, json.dumps(view), expires))
+        return Room(token, title, str(case), now, view, 0, expires)
+
+    def room(self, token) -> Room | None:
+        if not isinstance(token, str) or not token or len(token) > 100:
+            return None
+        with self._lock:
+            row = self._db.execute("SELECT token, title, case_name, created, view, view_version, "
+                                   "expires FROM rooms WHERE token = ?", (token,)).fetchone()
+        return None if row is None else Room(row[0], row[1], row[2], row[3],
+                                             json.loads(row[4]), row[5], row[6])
+
+    def rooms(self) -> list:
+        with self._lock:
+            rows = self._db.execute(
+                "SELECT token, title, case_name, created, view, view_version, expires "
+                "FROM rooms ORDER BY created").fetchall()
+        return [Room(r[0], r[1], r[2], r[3], json.loads(r[4]), r[5], r[6]) for r in rows]
+
+    def save_view(self, token, view) -> int:
+        with self._lock, self._db:
+            cur = self._db.execute("UPDATE rooms SET view = ?, view_version = view_version + 1 "
+                                   "WHERE token = ?", (json.dumps(dict(view)), token))
+            if cur.rowcount == 0:
+                raise StoreError("no such room")
+            return self._db.execute("SELECT view_version FROM rooms WHERE token = ?",
+                                    (token,)).fetchone()[0]
+
+    # -- notes ----------------------------------------------------------------------
+    def add_note(self, token, author, text, view, point=None, request=None) -> Note:
+        author = _clean(author, MAX_NAME, "name")
+        text = _clean(text, MAX_NOTE, "note")
+        lon, lat = _point(point)
+        with self._lock, self._db:
+            if request is not None:
+                row = self._db.execute("SELECT note_id, version FROM notes WHERE request = ?",
+                                       (str(request),)).fetchone()
+                if row is not None:  # the same write again: the note already stored
+                    return self._version(row[0], row[1])
+            if self._db.execute("SELECT 1 FROM rooms WHERE token = ?", (token,)).fetchone() \
+                    is None:
+                raise StoreError("no such room")
+            note_id = secrets.token_hex(8)
+            self._db.execute(
+                "INSERT INTO notes (room, note_id, version, author, created, text, view, lon, "
+                "lat, withdrawn, request) VALUES (?, ?, 1, ?, ?, ?, ?, ?, ?, 0, ?)",
+                (token, note_id, author, time.time(), text, json.dumps(dict(view)), lon, lat,
+                 None if request is None else str(request)))
+            return self._version(note_id, 1)
+
+    def edit_note(self, token, note_id, author, text) -> Note:
+        return self._next_version(token, note_id, author, _clean(text, MAX_NOTE, "note"),
+                                  withdrawn=False)
+
+    def withdraw_note(self, token, note_id, author) -> Note:
+        return self._next_version(token, note_id, author, None, withdrawn=True)
+
+    def _next_version(self, token, note_id, author, text, withdrawn) -> Note:
+        author = _clean(author, MAX_NAME, "name")
+        with self._lock, self._db:
+            last = self._db.execute(
+                "SELECT version, text, view, lon, lat FROM notes WHERE room = ? AND note_id = ? "
+                "ORDER BY version DESC LIMIT 1", (token, note_id)).fetchone()
+            if last is None:
+                raise StoreError("no such note in this room")
+            version = last[0] + 1
+            self._db.execute(
+                "INSERT INTO notes (room, note_id, version, author, created, text, view, lon, "
+                "lat, withdrawn) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                (token, note_id, version, author, time.time(),
+                 last[1] if text is None else text, last[2], last[3], last[4],
+                 int(withdrawn)))
+            return self._version(note_id, version)
+
+    def notes(self, token) -> list:
+        """The latest version of every note of the room, oldest note first (withdrawn ones
+        included, marked)."""
+        with self._lock:
+            rows = self._db.execute(
+                "SELECT n.note_id, n.version FROM notes n JOIN (SELECT note_id, MAX(version) v, "
+                "MIN(seq) first FROM notes WHERE room = ? GROUP BY note_id) m "
+                "ON n.note_id = m.note_id AND n.version = m.v ORDER BY m.first",
+                (token,)).fetchall()
+            return [self._version(r[0], r[1]) for r in rows]
+
+    def history(self, token, note_id) -> list:
+        """Every version of one note, first to last."""
+        with self._lock:
+            rows = self._db.execute("SELECT version FROM notes WHERE room = ? AND note_id = ? "
+                                    "ORDER BY version", (token, note_id)).fetchall()
+            return [self._version(note_id, r[0]) for r in rows]
+
+    def _version(self, note_id, version) -> Note:
+        row = self._db.execute(
+            "SELECT note_id, version, room, author, created, text, view, lon, lat, withdrawn "
+            "FROM notes WHERE note_id = ? AND version = ?", (note_id, version)).fetchone()
+        first = self._db.execute("SELECT author, created FROM notes WHERE note_id = ? AND "
+                                 "version = 1", (note_id,)).fetchone()
+        point = None if row[7] is None else (row[7], row[8])
+        return Note(row[0], row[1], row[2], row[3], row[4], row[5], json.loads(row[6]), point,
+                    bool(row[9]), first[0], first[1])
+
+    def integrity(self) -> str:
+        """SQLite's own integrity check: "ok" when the file is sound."""
+        with self._lock:
+            return self._db.execute("PRAGMA integrity_check").fetchone()[0]
+
+    def close(self):
+        with self._lock:
+            self._db.close()
+
+
+def _point(point):
+    if point is None:
+        return None, None
+    try:
+        lon, lat = (float(v) for v in point)
+    except (TypeError, ValueError):
+        raise StoreError("a note's point is not a longitude and a latitude") from None
+    import math
+
+    if not (math.isfinite(lon) and math.isfinite(lat) and -540 <= lon <= 540 and
+            -90 <= lat <= 90):
+        raise StoreError("a note's point is not on the Earth")
+    return lon, lat
+
+
+def open_store(path: str | None = None) -> SQLiteStore:
+    """The store at ``path`` (or the default path)."""
+    return SQLiteStore(path or default_store_path())
