@@ -4,6 +4,7 @@
     balance-desk analyze   the momentum budget of a box of a model file
     balance-desk cases     the bundled sample cases
     balance-desk serve     the dashboard
+    balance-desk rooms     review rooms: create, list, export their notes
     balance-desk verify    the reference checks, run on this machine
 
 Every error is one sentence on stderr: exit status 2 for bad input, 1 for
@@ -33,7 +34,12 @@ class UsageError(Exception):
 
 
 class _Parser(argparse.ArgumentParser):
-    """argparse with one-sentence errors and exit status 2."""
+    """argparse with one-sentence errors and exit status 2, and no abbreviated options
+    (``--passphrase`` must not be read as ``--passphrase-file``)."""
+
+    def __init__(self, *args, **kwargs):
+        kwargs.setdefault("allow_abbrev", False)
+        super().__init__(*args, **kwargs)
 
     def error(self, message):
         raise UsageError(f"{self.prog}: {message}")
@@ -191,7 +197,41 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--show", action="store_true", help="open a browser window")
     p.add_argument("--memory-budget", type=_size("--memory-budget"), default=None,
                    metavar="SIZE", help="memory one level may use, e.g. 4G")
+    p.add_argument("--store", default=None, metavar="PATH",
+                   help="the review rooms' SQLite file (default: BALANCE_DESK_STORE, else "
+                        "rooms.sqlite in your data folder)")
+    p.add_argument("--passphrase-file", default=None, metavar="FILE",
+                   help="the access passphrase (first line), needed on any address other "
+                        "than this machine's own; or set BALANCE_DESK_PASSPHRASE")
+    p.add_argument("--open-without-passphrase", action="store_true",
+                   help="serve another address without a passphrase (warns at every start)")
+    p.add_argument("--origin", action="append", default=[], metavar="HOST[:PORT]",
+                   help="another address people type to reach the server (for websockets)")
     p.set_defaults(func=cmd_serve)
+
+    p = sub.add_parser("rooms", help="review rooms: create one, list them, export notes",
+                       description="Review rooms live in the store that `serve` uses "
+                                   "(--store PATH, or BALANCE_DESK_STORE).")
+    rsub = p.add_subparsers(dest="rooms_command", parser_class=_Parser, metavar="ACTION")
+    r = rsub.add_parser("create", help="open a room and print its link")
+    r.add_argument("title")
+    r.add_argument("--case", default=None, help="the case under review (default: the first "
+                                                 "case the server has)")
+    r.add_argument("--days", type=_bounded("--days", 0.01, 3650), default=30.0,
+                   help="how long its link works (default 30 days; notes are kept after)")
+    r.add_argument("--base-url", default="http://127.0.0.1:5006",
+                   help="the server's address, for the printed link")
+    r.add_argument("--store", default=None, metavar="PATH")
+    r.set_defaults(func=cmd_rooms_create)
+    r = rsub.add_parser("list", help="the rooms, with their links")
+    r.add_argument("--base-url", default="http://127.0.0.1:5006")
+    r.add_argument("--store", default=None, metavar="PATH")
+    r.set_defaults(func=cmd_rooms_list)
+    r = rsub.add_parser("export", help="a room's notes with their views")
+    r.add_argument("room", help="the room's link or its key")
+    r.add_argument("--format", choices=("md", "json"), default="md")
+    r.add_argument("--store", default=None, metavar="PATH")
+    r.set_defaults(func=cmd_rooms_export)
 
     p = sub.add_parser("verify", help="run the reference checks on this machine",
                        description="Checks the numerics against published test cases and "
@@ -369,9 +409,83 @@ def cmd_serve(args) -> int:
         raise UsageError(f"balance-desk serve: no directory {args.cases}")
     try:
         serve(args.files, args.cases, host=args.host, port=args.port, show=args.show,
-              memory_budget=args.memory_budget, out=lambda text: print(text, flush=True))
+              memory_budget=args.memory_budget, out=lambda text: print(text, flush=True),
+              store=args.store, passphrase_file=args.passphrase_file,
+              open_without_passphrase=args.open_without_passphrase, origins=args.origin)
     except ServeError as exc:
         raise UsageError(str(exc)) from None
+    return 0
+
+
+# -- rooms ---------------------------------------------------------------------------
+
+def _store(args):
+    from .rooms import StoreError, open_store
+    from .rooms.store import default_store_path
+
+    path = args.store or default_store_path()
+    try:
+        return open_store(path), path
+    except StoreError as exc:
+        raise UsageError(f"balance-desk rooms: {exc}") from None
+
+
+def _token_of(text: str) -> str:
+    import urllib.parse
+
+    text = text.strip()
+    if "room=" in text:
+        q = urllib.parse.urlparse(text).query
+        return (urllib.parse.parse_qs(q).get("room") or [""])[0]
+    return text
+
+
+def cmd_rooms_create(args) -> int:
+    from .cases import case_names, case_paths
+    from .desk.room import room_link
+    from .rooms import StoreError
+
+    store, path = _store(args)
+    case = args.case
+    if case is None:
+        names = case_names(case_paths(None, None))
+        case = names[0] if names else ""
+    try:
+        room = store.create_room(args.title, case, {"case": case} if case else {},
+                                 days=args.days)
+    except StoreError as exc:
+        raise UsageError(f"balance-desk rooms create: {exc}") from None
+    print(room_link(args.base_url, room.token))
+    print(f"(room {room.title!r} on case {room.case}, kept in {path}; the link is the room's "
+          f"key: give it only to the team)", file=sys.stderr)
+    return 0
+
+
+def cmd_rooms_list(args) -> int:
+    from .desk.room import room_link
+    from .rooms.export import stamp
+
+    store, path = _store(args)
+    rooms = store.rooms()
+    if not rooms:
+        print(f"no review rooms in {path}")
+        return 0
+    for r in rooms:
+        n = len(store.notes(r.token))
+        state = "link expired" if r.expired else f"until {stamp(r.expires)}"
+        print(f"{r.title}  |  case {r.case}  |  opened {stamp(r.created)}  |  {n} notes  |  "
+              f"{state}\n    {room_link(args.base_url, r.token)}")
+    return 0
+
+
+def cmd_rooms_export(args) -> int:
+    from .rooms.export import notes_json, notes_markdown
+
+    store, _ = _store(args)
+    room = store.room(_token_of(args.room))
+    if room is None:
+        raise UsageError("balance-desk rooms export: no such room in this store")
+    print(notes_markdown(room, store) if args.format == "md" else notes_json(room, store))
     return 0
 
 

@@ -28,11 +28,12 @@ INVENTED_RGB_HEX = "#%02X%02X%02X" % INVENTED_RGB
 
 
 def briefing_png(chart, report, outline, *, region_text: str, caution: str,
-                 invented_text: str, notes=()) -> bytes:
+                 invented_text: str, notes=(), room_notes=()) -> bytes:
     """A PNG of the chart beside the ranked term magnitudes (see the module docstring).
 
     ``outline`` is the region's (x, y) in the chart's view coordinates, or None
-    for the whole case.
+    for the whole case. ``room_notes`` are a review room's notes, (label, (x, y) or
+    None, text): marked on the chart where they have a point, and listed.
     """
     import matplotlib
 
@@ -63,11 +64,34 @@ def briefing_png(chart, report, outline, *, region_text: str, caution: str,
         axb.set_axis_off()
     for i, n in enumerate(notes[:2]):
         fig.text(0.04, 0.065 - 0.022 * i, n, fontsize=10.5, color="#333333")
+    if room_notes:
+        _draw_room_notes(fig, ax if chart is not None else None, room_notes)
     fig.text(0.04, 0.018, "Caution: " + caution, fontsize=11, color="#5a4500")
     buf = io.BytesIO()
     fig.savefig(buf, format="png")
     plt.close(fig)
     return buf.getvalue()
+
+
+def _draw_room_notes(fig, ax, room_notes, shown=4):
+    """Notes of a review room: numbered marks on the chart, their texts at the lower right."""
+    import textwrap
+
+    for label, xy, _text in room_notes:
+        if ax is not None and xy is not None:
+            ax.plot(*xy, marker="s", ms=9, color="#1a1a1a", mec="white", mew=1.5)
+            ax.annotate(label, xy, xytext=(7, 3), textcoords="offset points", fontsize=11,
+                        color="white", fontweight="bold",
+                        bbox=dict(facecolor="#1a1a1a", lw=0, pad=1.5))
+    lines = []
+    for label, _xy, text in room_notes[:shown]:
+        short = textwrap.shorten(text, width=70, placeholder="\u2026")
+        lines.append(f"{label} {short}")
+    if len(room_notes) > shown:
+        lines.append(f"... and {len(room_notes) - shown} more (see the notes export)")
+    fig.text(0.62, 0.105, "Room notes", fontsize=11.5, fontweight="bold", color="#1a1a1a")
+    for i, line in enumerate(lines):
+        fig.text(0.62, 0.085 - 0.0165 * i, line, fontsize=9.5, color="#1a1a1a")
 
 
 def _draw_chart(fig, ax, chart, outline):

@@ -20,7 +20,10 @@ import pyproj  # noqa: F401  (before anything that may load eccodes)
 from .cases import case_paths
 
 __all__ = ["serve", "case_paths", "security_headers", "ServeError", "check_address",
-           "PageLimit", "LIMIT"]
+           "PageLimit", "LIMIT", "is_loopback", "read_passphrase", "MAX_URI"]
+
+#: the longest request line taken (a link carries the view in a few hundred characters)
+MAX_URI = 2048
 
 log = logging.getLogger("balance_desk")
 
@@ -111,6 +114,11 @@ def _limit_page_requests():
     original = DocHandler.prepare
 
     async def prepare(self):
+        if len(self.request.uri or "") > MAX_URI:
+            self.set_status(414)
+            self.set_header("Content-Type", "text/plain; charset=utf-8")
+            self.finish("The link is too long.\n")
+            return
         if self.request.method == "GET":
             key = (self.request.remote_ip, self.request.headers.get("User-Agent", ""))
             if not LIMIT.allow(key):
@@ -128,6 +136,18 @@ def _limit_page_requests():
     DocHandler._balance_desk_limited = True
 
 
+class HideRoomKeys(logging.Filter):
+    """Room links are keys: the logs show ``room=...`` instead of the token."""
+
+    def filter(self, record):
+        import re
+
+        msg = record.getMessage()
+        if "room=" in msg:
+            record.msg, record.args = re.sub(r"(room=)[^&\s]+", r"\1...", msg), ()
+        return True
+
+
 def check_address(host: str, port: int):
     """One sentence (ServeError) if the port is out of range or the host cannot be resolved."""
     if not isinstance(port, int) or not 1 <= port <= 65535:
@@ -139,26 +159,96 @@ def check_address(host: str, port: int):
                          f"({getattr(exc, 'strerror', None) or exc})") from None
 
 
+def is_loopback(host: str) -> bool:
+    """Is ``host`` this machine only (127.0.0.0/8, ::1, localhost)?"""
+    import ipaddress
+
+    if host == "localhost":
+        return True
+    try:
+        return ipaddress.ip_address(host).is_loopback
+    except ValueError:
+        return False
+
+
+def read_passphrase(path: str | None, env=None) -> str | None:
+    """The access passphrase: from the file ``path`` (its first line), else the
+    environment variable BALANCE_DESK_PASSPHRASE; None when neither gives one. Never
+    from the command line, where other users of the machine could read it."""
+    import os
+
+    env = os.environ if env is None else env
+    if path:
+        try:
+            with open(path, encoding="utf-8") as fh:
+                text = fh.readline().strip()
+        except (OSError, UnicodeError) as exc:
+            raise ServeError(f"balance-desk serve: the passphrase file cannot be read "
+                             f"({getattr(exc, 'strerror', None) or exc})") from None
+    else:
+        text = (env.get("BALANCE_DESK_PASSPHRASE") or "").strip()
+    if not text:
+        return None
+    if len(text) < 12:
+        raise ServeError("balance-desk serve: the passphrase needs at least 12 characters")
+    return text
+
+
+def _origins(host, port, extra=()):
+    """The websocket origins allowed: the served address (and its loopback names)."""
+    import socket as _socket
+
+    if host in ("0.0.0.0", "::", ""):
+        names = {_socket.gethostname(), _socket.getfqdn()}
+    else:
+        names = {host}
+    if is_loopback(host):
+        names |= {"localhost", "127.0.0.1"}
+    out = [f"{n}:{port}" for n in sorted(names) if n]
+    out += [o if ":" in o else f"{o}:{port}" for o in extra]
+    return out
+
+
 def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *,
-          memory_budget=None, start=True, out=print):
-    """Load the cases once and serve the desk page.
+          memory_budget=None, start=True, out=print, store=None, passphrase_file=None,
+          open_without_passphrase=False, origins=(), env=None):
+    """Load the cases once and serve the desk page and the review rooms.
 
     Says which cases failed and why, refuses to start (ServeError) when none loads
     or the address cannot be used, and prints "serving" only once it listens.
-    Returns the server (after it stops when ``start``).
+    On an address other than this machine's own it needs an access passphrase
+    (:func:`read_passphrase`), checked by Panel's own login page; without one it
+    refuses to start, unless ``open_without_passphrase``, which warns on every
+    start. Returns the server (after it stops when ``start``).
     """
     import panel as pn
     from bokeh.settings import settings as bokeh_settings
 
-    from .desk import make_session
+    from .desk import make_room_session, make_session
     from .desk.look import GLOBAL_CSS
     from .library import CaseLibrary
+    from .rooms import Hub, StoreError, open_store
+    from .rooms.store import default_store_path
 
     # every script and stylesheet from this server, also for parts drawn after the page
     # loaded (a tab opened later): the page works offline, and the CSP allows nothing else
     bokeh_settings.resources.set_value("server")
 
     check_address(host, port)
+    passphrase = read_passphrase(passphrase_file, env)
+    if not is_loopback(host) and passphrase is None:
+        if not open_without_passphrase:
+            raise ServeError(f"balance-desk serve: {host} can be reached from other machines, "
+                             "so an access passphrase is needed (--passphrase-file FILE or the "
+                             "environment variable BALANCE_DESK_PASSPHRASE)")
+        out(f"WARNING: balance-desk is served on {host} WITHOUT a passphrase: anyone who can "
+            "reach this address can see the cases, join every room whose link they have, and "
+            "write notes.")
+    store_path = store or default_store_path()
+    try:
+        hub = Hub(open_store(store_path))
+    except StoreError as exc:
+        raise ServeError(f"balance-desk serve: {exc}") from None
     paths = case_paths(files, cases_dir)
     if not paths:
         raise ServeError("balance-desk serve: no case files found")
@@ -171,22 +261,33 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
     _limit_page_requests()
     if GLOBAL_CSS not in pn.config.raw_css:
         pn.config.raw_css.append(GLOBAL_CSS)
-    origins = [f"{host}:{port}"] + ([f"localhost:{port}", f"127.0.0.1:{port}"]
-                                    if host in ("127.0.0.1", "localhost") else [])
+    origins = _origins(host, port, origins)
+    auth = {}
+    if passphrase is not None:
+        import secrets
+
+        # Panel's own login page and cookie; the cookie's key is new at every start
+        auth = {"basic_auth": passphrase, "cookie_secret": secrets.token_hex(32)}
     quiet = logging.getLogger("bokeh")
     level = quiet.level
     quiet.setLevel(logging.WARNING)  # a refusal to start is one sentence, nothing else
     try:
-        server = pn.serve(lambda: make_session(library), address=host, port=port, show=show,
+        server = pn.serve({"/": lambda: make_session(library, hub=hub),
+                           "/room": lambda: make_room_session(library, hub)},
+                          address=host, port=port, show=show,
                           title="balance-desk", websocket_origin=origins, start=False,
                           print=False, transforms=[_transform(security_headers(host, port))],
-                          check_unused_sessions=5000, unused_session_lifetime=60000)
+                          check_unused_sessions=5000, unused_session_lifetime=60000, **auth)
     except OSError as exc:
         raise ServeError(f"balance-desk serve: cannot listen on {host}:{port} "
                          f"({exc.strerror or exc})") from None
     finally:
         quiet.setLevel(level)
     logging.basicConfig(level=logging.INFO, format="%(asctime)s %(levelname)s %(message)s")
+    for name in ("tornado.access", "bokeh.server.views.ws", "bokeh", "tornado", "panel"):
+        logging.getLogger(name).addFilter(HideRoomKeys())
+    for handler in logging.getLogger().handlers:
+        handler.addFilter(HideRoomKeys())
     import os
 
     log.setLevel(os.environ.get("BALANCE_DESK_LOG", "INFO").upper())  # DEBUG: page timings
@@ -198,6 +299,7 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
         faulthandler.register(signal.SIGUSR1, all_threads=True)
     except (AttributeError, ValueError, OSError):
         pass
+    out(f"balance-desk: review rooms are kept in {store_path}")
     out(f"balance-desk: serving {len(library.good)} case(s) at http://{host}:{port}/ "
         f"({', '.join(library.good)})")
     if start:

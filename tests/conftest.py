@@ -8,6 +8,12 @@ data) fails loudly instead of hanging; PROJ is told not to fetch grids.
 import os
 
 os.environ.setdefault("PROJ_NETWORK", "OFF")
+# servers the tests start keep their review rooms in a folder of this run, not the user's
+if "BALANCE_DESK_STORE" not in os.environ:
+    import tempfile
+
+    os.environ["BALANCE_DESK_STORE"] = os.path.join(tempfile.mkdtemp(prefix="bd-store-"),
+                                                    "rooms.sqlite")
 
 import pyproj  # noqa: E402,F401  - before anything that may load eccodes
 

@@ -242,3 +242,28 @@ def test_the_real_grib_case_has_its_outline_in_the_briefing(monkeypatch):
     assert page.report and page.report["points"] > 50
     mask, pts = _png_outline_vs_screen(page, monkeypatch)
     _assert_outline_matches(mask, pts)
+
+
+def test_the_briefing_image_marks_and_lists_room_notes():
+    # a review room's notes: a numbered mark where a note has a point, its text listed
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from app.export import _draw_room_notes
+
+    fig = plt.figure()
+    ax = fig.add_axes([0.1, 0.2, 0.5, 0.7])
+    notes = [("#1", (-40.0, 52.0), "Ana: the low is in gradient balance"),
+             ("#2", None, "Ben: jet exit " + "x" * 200)] + [
+        (f"#{i}", None, f"note {i}") for i in range(3, 7)]
+    _draw_room_notes(fig, ax, notes)
+    texts = [t.get_text() for t in fig.texts]
+    assert "#1 Ana: the low is in gradient balance" in texts
+    assert any(t.startswith("#2 Ben: jet exit") and len(t) <= 75 for t in texts)
+    assert "... and 2 more (see the notes export)" in texts
+    marks = [tuple(line.get_xydata()[0]) for line in ax.lines]
+    assert marks == [(-40.0, 52.0)]  # only the note with a point is marked
+    assert [a.get_text() for a in ax.texts] == ["#1"]
+    plt.close(fig)

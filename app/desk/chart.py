@@ -97,6 +97,9 @@ class Chart(pn.viewable.Viewer):
         self.grat_src = ColumnDataSource(dict(xs=[], ys=[]))
         self.glab_src = ColumnDataSource(dict(x=[], y=[], text=[]))
         self.region_src = ColumnDataSource(dict(x=[], y=[]))
+        self.note_src = ColumnDataSource(dict(x=[], y=[], label=[]))
+        #: called with (lon, lat) when the chart is clicked, while someone wants a point
+        self.tap_listener = None
         self.hover_src = ColumnDataSource(dict(x=[], y=[], lat=[], lon=[], field=[], height=[],
                                                speed=[], dir=[]))
         self.mapper = LinearColorMapper(palette=palette("sequential"), nan_color=(0, 0, 0, 0))
@@ -122,6 +125,13 @@ class Chart(pn.viewable.Viewer):
                     size="head", fill_color="black", line_color="white", line_width=0.5)
         fig.line("x", "y", source=self.region_src, line_color="white", line_width=6)
         fig.line("x", "y", source=self.region_src, line_color=ORANGE, line_width=3.5)
+        # review notes pinned to a point: a dark square with a white number beside it
+        fig.scatter("x", "y", source=self.note_src, marker="square_pin", size=16,
+                    fill_color=INK, line_color="white", line_width=2)
+        fig.add_layout(LabelSet(x="x", y="y", text="label", source=self.note_src,
+                                text_font_size="14px", text_color="#ffffff",
+                                text_font_style="bold", x_offset=9, y_offset=2,
+                                background_fill_color=INK, background_fill_alpha=0.9))
         fig.add_layout(LabelSet(x="x", y="y", text="text", source=self.clab_src,
                                 text_font_size="14px", text_align="center", text_color=INK,
                                 text_baseline="middle", background_fill_color="white",
@@ -164,6 +174,7 @@ class Chart(pn.viewable.Viewer):
         fig.add_layout(self.colorbar, "right")
         fig.add_layout(self.colorbar_log, "right")
         fig.on_event(events.SelectionGeometry, self._on_select)
+        fig.on_event(events.Tap, self._on_tap)
         fig.grid.grid_line_color = "#555555"
         fig.grid.grid_line_alpha = 0.45
         fig.grid.grid_line_dash = "dotted"
@@ -301,6 +312,34 @@ class Chart(pn.viewable.Viewer):
             self.region_src.data = dict(x=[], y=[])
         else:
             self.region_src.data = dict(x=xy[0], y=xy[1])
+
+    def show_notes(self, points):
+        """Mark notes on the chart: ``points`` is a list of (lon, lat, label)."""
+        if self.data is None or not points:
+            self.note_src.data = dict(x=[], y=[], label=[])
+            return
+        lon = np.array([p[0] for p in points], float)
+        lat = np.array([p[1] for p in points], float)
+        x, y = self.data.geom.to_view(lon, lat)
+        x, y = np.asarray(x, float), np.asarray(y, float)
+        ok = np.isfinite(x) & np.isfinite(y)
+        self.note_src.data = dict(x=x[ok], y=y[ok],
+                                  label=[p[2] for p, k in zip(points, ok) if k])
+
+    def _on_tap(self, event):
+        if self.tap_listener is None or self.data is None:
+            return
+        x, y = event.x, event.y
+        if x is None or y is None:
+            return
+        g = self.data.geom
+        if g.kind == "plate_carree":
+            lon, lat = float(x), float(y)
+        else:
+            lo, la = g.to_lonlat(np.array([x]), np.array([y]))
+            lon, lat = float(np.asarray(lo)[0]), float(np.asarray(la)[0])
+        if np.isfinite(lon) and np.isfinite(lat) and -90 <= lat <= 90:
+            self.tap_listener(lon, lat)
 
     # -- drawing a region --------------------------------------------------------------------
     def _on_select(self, event):

@@ -62,7 +62,19 @@ class Exports(pn.viewable.Viewer):
             notes.append(f"Valid {vocab.when(rep['valid_time'], rep['reference_time'])}")
         return io.BytesIO(briefing_png(chart, rep, self._outline(),
                                        region_text=self.page.state.region_text(),
-                                       caution=CAUTION, invented_text=INVENTED, notes=notes))
+                                       caution=CAUTION, invented_text=INVENTED, notes=notes,
+                                       room_notes=self._room_notes(chart)))
+
+    def _room_notes(self, chart):
+        """A review room's notes for the image: (label, (x, y) on the chart or None, text)."""
+        out = []
+        for label, point, text in self.page.briefing_notes:
+            xy = None
+            if point is not None and chart is not None:
+                x, y = chart.geom.to_view([point[0]], [point[1]])
+                xy = (float(x[0]), float(y[0]))
+            out.append((label, xy, text))
+        return out
 
     def csv_text(self):
         rep = self.page.report

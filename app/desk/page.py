@@ -38,7 +38,7 @@ from .evidence import Evidence
 from .exports import Exports
 from .look import CAUTION, GLOBAL_CSS, INK, INVENTED_BG, alert, esc
 
-__all__ = ["Page", "make_session", "error_page", "EarlyBuilds"]
+__all__ = ["Page", "make_session", "make_room_session", "error_page", "EarlyBuilds"]
 
 log = logging.getLogger("balance_desk")
 
@@ -77,6 +77,15 @@ class Page(pn.viewable.Viewer):
     def __init__(self, library, state: ViewState | None = None, *, pool=POOL,
                  thresholds: Thresholds = Thresholds(), problems=(), **params):
         super().__init__(**params)
+        #: the page writes its view to its link (not in a review room: its link is the room's)
+        self.sync_link = True
+        #: True while the page corrects its own state (a level the new case has, ...): such
+        #: a change follows a person's change and is not one (see app.desk.room)
+        self.correcting = False
+        #: notes the briefing image carries (a review room's), see Exports
+        self.briefing_notes = []
+        #: called after a new chart is drawn (a review room marks its notes on it)
+        self.after_chart = []
         self.library = library
         self.state = state or ViewState(case=library.good[0] if library.good else "")
         self.thresholds = thresholds
@@ -111,8 +120,14 @@ class Page(pn.viewable.Viewer):
                       styles={"flex-wrap": "wrap", "gap": "8px", "align-items": "flex-start",
                               **narrowest})
         self.chart.layout.styles = {"flex": "1 1 560px"}
-        self.layout = pn.Column(self.header, self.problems, main, self.below.tabs, footer,
-                                sizing_mode="stretch_width", styles=narrowest)
+        #: where a review room puts its bar (above the parts) and its notes (under the chart,
+        #: in its column)
+        self.top = pn.Column(sizing_mode="stretch_width", margin=0)
+        self.middle = pn.Column(sizing_mode="stretch_width", margin=0)
+        self.chart.layout.append(self.middle)
+        self.layout = pn.Column(self.header, self.problems, self.top, main,
+                                self.below.tabs, footer, sizing_mode="stretch_width",
+                                styles=narrowest)
         self._update_header()
         self._watcher = self.state.param.watch(self._on_state, list(URL_PARAMS))
         self.below.tabs.param.watch(self._tab_opened, "active")
@@ -185,7 +200,11 @@ class Page(pn.viewable.Viewer):
         if "region" not in names:
             updates.update(self.suggested(case))
         if updates:
-            self.state.param.update(**updates)
+            self.correcting = True
+            try:
+                self.state.param.update(**updates)
+            finally:
+                self.correcting = False
 
     @staticmethod
     def suggested(case) -> dict:
@@ -203,7 +222,7 @@ class Page(pn.viewable.Viewer):
 
     def _sync_url(self):
         loc = pn.state.location if self.doc is not None else None
-        if loc is None or not self.live:
+        if loc is None or not self.live or not self.sync_link:
             return
         try:
             import urllib.parse
@@ -349,6 +368,8 @@ class Page(pn.viewable.Viewer):
     def _show_chart(self, cd):
         log.debug("page %s: chart shown", id(self))
         self.chart.show(cd)
+        for fn in self.after_chart:
+            fn()
 
     def _show_box(self, rep):
         log.debug("page %s: ranking shown", id(self))
@@ -488,7 +509,8 @@ def _client(doc):
         return ("", "")
 
 
-def make_session(library, thresholds: Thresholds = Thresholds(), early: EarlyBuilds = EARLY):
+def make_session(library, thresholds: Thresholds = Thresholds(), early: EarlyBuilds = EARLY,
+                 hub=None):
     """The page of one new browser session (the function the server calls per request).
 
     A GET gets the page's frame (its name, a loading line, the caution). The page's
@@ -496,9 +518,55 @@ def make_session(library, thresholds: Thresholds = Thresholds(), early: EarlyBui
     answer while the browser loads its scripts -- unless many fetched pages were
     never opened by a browser (:class:`EarlyBuilds`), in which case they are built
     when the browser connects (``pn.state.onload``). Either way the views through
-    the levels and the times start when the browser is there. Never raises: a
-    failure shows one sentence with an error id, the server log the details.
+    the levels and the times start when the browser is there. With a ``hub`` the
+    page can open a review room on its view. Never raises: a failure shows one
+    sentence with an error id, the server log the details.
     """
+    def extend(page, doc):
+        if hub is not None:
+            from .room import RoomOpener
+
+            page.controls.exports_slot.objects = [page.exports, RoomOpener(hub, page)]
+        return None
+
+    return _session(library, dict(pn.state.session_args or {}), thresholds, early, extend)
+
+
+def make_room_session(library, hub, thresholds: Thresholds = Thresholds(),
+                      early: EarlyBuilds = EARLY):
+    """The page of a review room (``/room?room=TOKEN``): the desk page on the room's view,
+    with the room's bar and notes; a person joins the room when their browser connects.
+    A wrong or expired token gets a plain "no such room" page and nothing else."""
+    from .room import NAME_COOKIE, RoomSession, no_such_room
+
+    try:
+        args = pn.state.session_args or {}
+        raw = args.get("room", [b""])
+        token = (raw[0] if isinstance(raw, (list, tuple)) and raw else raw) or b""
+        token = token.decode("utf-8", "replace") if isinstance(token, bytes) else str(token)
+        room = hub.room(token) if 0 < len(token) <= 100 else None
+    except Exception:  # noqa: BLE001
+        room = None
+    if room is None:
+        return no_such_room()
+    query = dict(room.view) if room.view else {"case": room.case}
+    try:
+        import urllib.parse
+
+        name = urllib.parse.unquote((pn.state.cookies or {}).get(NAME_COOKIE, ""))
+    except Exception:  # noqa: BLE001 - no name: a guest
+        name = ""
+
+    def extend(page, doc):
+        session = RoomSession(hub, room.token, page, name)
+        if doc is not None:
+            doc.on_session_destroyed(lambda ctx: session.leave())
+        return session.join
+
+    return _session(library, query, thresholds, early, extend)
+
+
+def _session(library, query, thresholds, early, extend):
     def failed():
         eid = _error_id()
         log.exception("could not build a page (error id %s)", eid)
@@ -508,11 +576,13 @@ def make_session(library, thresholds: Thresholds = Thresholds(), early: EarlyBui
     try:
         if GLOBAL_CSS not in pn.config.raw_css:
             pn.config.raw_css.append(GLOBAL_CSS)
-        query = dict(pn.state.session_args or {})
         doc = pn.state.curdoc
         if doc is None or doc.session_context is None:  # no browser: build and compute now
             page = build_page(library, query, thresholds)
+            on_connect = extend(page, None)
             page.start()
+            if on_connect is not None:
+                on_connect()
             return page.layout
         # parts drawn later take Panel's stylesheets from this server too, not from
         # Panel's CDN (which the CSP blocks and an offline desk cannot reach)
@@ -529,20 +599,29 @@ def make_session(library, thresholds: Thresholds = Thresholds(), early: EarlyBui
                 return built[0]
             try:
                 page = build_page(library, query, thresholds, doc)
+                on_connect = extend(page, doc)
                 page.prime()
                 with pn.io.hold(doc):
                     holder.objects = [page.layout]
             except Exception:  # noqa: BLE001
-                page = None
+                page, on_connect = None, None
                 holder.objects = [failed()]
-            built.append(page)
-            return page
+            built.append((page, on_connect))
+            return built[0]
 
         def connected():
             early.connected(id(doc))
-            page = build()
+            page, on_connect = build()
             if page is not None:
                 page.start()
+                if on_connect is not None:
+                    try:
+                        on_connect()
+                    except Exception:  # noqa: BLE001 - the page lives without the room
+                        eid = _error_id()
+                        log.exception("could not join the room (error id %s)", eid)
+                        page.problems.object = alert(
+                            f"Could not join the room (error id {eid}).", "error")
 
         if early.take(_client(doc), id(doc)):
             doc.add_next_tick_callback(build)

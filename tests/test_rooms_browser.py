@@ -1,0 +1,310 @@
+"""Review rooms in real Chromium: two or more browser contexts (two people) on one room.
+
+* a box drawn by the person steering reaches a follower, with the same verdict;
+* taking over the steering, stepping out and back in;
+* a note written by one shows at the other, with its point on the chart, survives a
+  restart of the server (with the room's last view), and restores its view for the room;
+* a wrong or expired link gets the plain "no such room" page;
+* markup and script in notes, names and titles stay text: no dialog, no console error;
+* with a passphrase, a wrong one is refused and the right one lets you in.
+
+How fast a change reaches every follower is measured in bench/rooms.py, not here.
+"""
+
+import os
+import shutil
+import urllib.parse
+
+import pytest
+
+from app.rooms import SQLiteStore
+from serving import start_server, stop_server
+from test_security import PAYLOADS
+
+pytestmark = pytest.mark.browser
+
+CHROMIUM = shutil.which("chromium")
+if CHROMIUM is None:
+    if os.environ.get("CI"):
+        pytest.fail("chromium is not installed: make test installs it", pytrace=False)
+    pytest.skip("chromium is not installed", allow_module_level=True)
+sync_api = pytest.importorskip("playwright.sync_api")
+
+ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networking",
+        "--disable-component-update", "--no-first-run", "--disable-sync"]
+SHOTS = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "artifacts",
+                     "screenshots")
+WAIT = 30_000  # ms before a wait gives up (a hang, not a speed check)
+
+
+@pytest.fixture(scope="module")
+def store_path(tmp_path_factory):
+    return str(tmp_path_factory.mktemp("rooms") / "rooms.sqlite")
+
+
+@pytest.fixture(scope="module")
+def server(store_path):
+    proc, url, port = start_server(["--store", store_path])
+    yield {"proc": proc, "url": url, "port": port}
+    out = stop_server(proc)
+    assert "Traceback" not in out, out[-3000:]
+
+
+@pytest.fixture(scope="module")
+def browser():
+    with sync_api.sync_playwright() as p:
+        b = p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
+        yield b
+        b.close()
+
+
+def _room(store_path, title="Briefing 12 UTC", case="ocean_cyclone", view=None):
+    s = SQLiteStore(store_path)
+    room = s.create_room(title, case, view if view is not None else {
+        "case": case, "level": "500", "region": "box:-52,-28,38,56"})
+    s.close()
+    return room
+
+
+def _person(browser, url, name=None):
+    """A browser context of its own (its own cookies: its own person) on ``url``."""
+    ctx = browser.new_context(viewport={"width": 1500, "height": 1100})
+    if name is not None:
+        host = urllib.parse.urlparse(url).hostname
+        ctx.add_cookies([{"name": "bd_name", "value": urllib.parse.quote(name), "domain": host,
+                          "path": "/"}])
+    page = ctx.new_page()
+    page.dialogs, page.errors = [], []
+    page.on("dialog", lambda d: (page.dialogs.append(d.message), d.dismiss()))
+    page.on("pageerror", lambda e: page.errors.append(str(e)))
+    page.on("console", lambda m: page.errors.append(m.text) if m.type == "error" else None)
+    page.goto(url)
+    page.locator(".bd-verdict").first.wait_for(timeout=60_000)
+    page.locator(".bd-room-status").first.wait_for(timeout=WAIT)
+    return page
+
+
+def _link(server, room):
+    return f"{server['url']}room?room={room.token}"
+
+
+def _status(page):
+    return page.locator(".bd-room-status").first.inner_text()
+
+
+def _verdict(page):
+    return page.locator(".bd-verdict").first.inner_text()
+
+
+def _wait_status(page, text):
+    page.locator(".bd-room-status", has_text=text).first.wait_for(timeout=WAIT)
+
+
+def _canvas(page):
+    """The chart's canvas, scrolled into view: its box on the screen."""
+    big = max(page.locator("canvas").all(),
+              key=lambda c: (c.bounding_box() or {"width": 0})["width"])
+    big.scroll_into_view_if_needed()
+    return big.bounding_box()
+
+
+def _drag(page, fx0, fy0, fx1, fy1):
+    canv = _canvas(page)
+    x0, y0 = canv["x"] + canv["width"] * fx0, canv["y"] + canv["height"] * fy0
+    x1, y1 = canv["x"] + canv["width"] * fx1, canv["y"] + canv["height"] * fy1
+    page.mouse.move(x0, y0)
+    page.mouse.down()
+    page.mouse.move(x1, y1, steps=8)
+    page.mouse.up()
+
+
+def test_a_box_drawn_by_the_one_steering_reaches_a_follower(server, store_path, browser):
+    room = _room(store_path)
+    a = _person(browser, _link(server, room), "Ana")
+    _wait_status(a, "You steer")
+    b = _person(browser, _link(server, room), "Ben")
+    _wait_status(b, "You follow Ana")
+    before = b.locator(".bd-verdict-where").first.inner_text()
+    _drag(a, 0.2, 0.3, 0.55, 0.7)
+    a.locator(".bd-verdict-where").filter(has_not_text=before.split(" · ")[2]).first.wait_for(
+        timeout=WAIT)
+    where_a = a.locator(".bd-verdict-where").first.inner_text()
+    # the follower shows the same region and, from it, the same verdict
+    b.locator(".bd-verdict-where", has_text=where_a.split(" · ")[2]).first.wait_for(
+        timeout=WAIT)
+    b.wait_for_timeout(300)
+    assert _verdict(b) == _verdict(a)
+    assert "Ana" in b.locator(".bd-room-people").first.inner_text()
+    for p in (a, b):
+        assert p.dialogs == [] and p.errors == [], (p.dialogs, p.errors)
+    os.makedirs(SHOTS, exist_ok=True)
+    b.screenshot(path=os.path.join(SHOTS, "room_01_follower.png"))
+    a.context.close()
+    b.context.close()
+
+
+def test_taking_over_stepping_out_and_back_in(server, store_path, browser):
+    room = _room(store_path, "Steering")
+    a = _person(browser, _link(server, room), "Ana")
+    _wait_status(a, "You steer")
+    b = _person(browser, _link(server, room), "Ben")
+    _wait_status(b, "You follow Ana")
+    b.get_by_role("button", name="Steer the room").click()
+    _wait_status(b, "You steer")
+    _wait_status(a, "You follow Ben")
+    b.get_by_label("Pressure level").select_option(label="850 hPa")
+    a.locator(".bd-verdict-where", has_text="850 hPa").first.wait_for(timeout=WAIT)
+    # Ana looks on her own: Ben's changes no longer reach her, and hers stay hers
+    a.get_by_role("button", name="Look on my own").click()
+    _wait_status(a, "on your own")
+    a.get_by_label("Pressure level").select_option(label="250 hPa")
+    a.locator(".bd-verdict-where", has_text="250 hPa").first.wait_for(timeout=WAIT)
+    b.get_by_label("Pressure level").select_option(label="700 hPa")
+    b.locator(".bd-verdict-where", has_text="700 hPa").first.wait_for(timeout=WAIT)
+    a.wait_for_timeout(1000)
+    assert "250 hPa" in a.locator(".bd-verdict-where").first.inner_text()
+    assert "850 hPa" in b.locator(".bd-verdict-where").first.inner_text() or \
+        "700 hPa" in b.locator(".bd-verdict-where").first.inner_text()
+    # ... and back: she gets the room's view
+    a.get_by_role("button", name="Back to the room's view").click()
+    a.locator(".bd-verdict-where", has_text="700 hPa").first.wait_for(timeout=WAIT)
+    _wait_status(a, "You follow Ben")
+    # a follower who changes something looks on their own from then on
+    a.get_by_label("Pressure level").select_option(label="925 hPa")
+    _wait_status(a, "on your own")
+    b.wait_for_timeout(800)
+    assert "700 hPa" in b.locator(".bd-verdict-where").first.inner_text()
+    a.context.close()
+    b.context.close()
+
+
+def test_a_note_reaches_the_other_and_survives_a_restart(store_path, browser, tmp_path):
+    # a server of its own, restarted in the middle
+    proc, url, port = start_server(["--store", store_path])
+    room = _room(store_path, "Notes")
+    link = f"{url}room?room={room.token}"
+    try:
+        a = _person(browser, link, "Ana")
+        b = _person(browser, link, "Ben")
+        a.get_by_label("Pressure level").select_option(label="850 hPa")
+        b.locator(".bd-verdict-where", has_text="850 hPa").first.wait_for(timeout=WAIT)
+        a.get_by_text("Pin it to a point: click the chart").click()
+        canv = _canvas(a)
+        a.mouse.click(canv["x"] + canv["width"] * 0.4, canv["y"] + canv["height"] * 0.4)
+        a.get_by_text("The note will be pinned at").first.wait_for(timeout=WAIT)
+        a.get_by_label("New note").fill("Low centre: gradient wind, not geostrophic")
+        a.get_by_role("button", name="Add the note").click()
+        # Ben sees it in the list at once, chooses it and reads it
+        b.get_by_role("option", name="#1 Ana").first.wait_for(state="attached", timeout=WAIT)
+        b.get_by_label("Notes (choose one to read it)").select_option(index=0)
+        b.locator(".bd-note-text", has_text="gradient wind").first.wait_for(timeout=WAIT)
+        assert "850 hPa" in b.locator(".bd-note").first.inner_text()
+        assert "point" in b.locator(".bd-note").first.inner_text()
+        # the page exports the notes with their views, as the command line does
+        with b.expect_download(timeout=60_000) as dl:
+            b.get_by_role("button", name="Notes (Markdown)").click()
+        md = open(dl.value.path(), encoding="utf-8").read()
+        assert "# Review room: Notes" in md and "gradient wind, not geostrophic" in md
+        assert "850 hPa" in md and room.token not in md
+        # and the briefing image carries them: the PNG differs from one without notes
+        with b.expect_download(timeout=60_000) as dl:
+            b.get_by_role("button", name="Briefing image (PNG)").click()
+        with_notes = open(dl.value.path(), "rb").read()
+        box = b.locator("input[type=checkbox]").first  # the only one: notes in the image
+        assert box.is_checked()
+        box.uncheck()
+        b.wait_for_timeout(500)
+        with b.expect_download(timeout=60_000) as dl:
+            b.get_by_role("button", name="Briefing image (PNG)").click()
+        assert open(dl.value.path(), "rb").read() != with_notes
+        # the view moves on; the note brings its view back for the whole room
+        a.get_by_label("Pressure level").select_option(label="300 hPa")
+        b.locator(".bd-verdict-where", has_text="300 hPa").first.wait_for(timeout=WAIT)
+        b.get_by_role("button", name="Show it to the room").click()
+        a.locator(".bd-verdict-where", has_text="850 hPa").first.wait_for(timeout=WAIT)
+        _wait_status(b, "You steer")
+        for p in (a, b):
+            assert p.dialogs == [] and p.errors == [], (p.dialogs, p.errors)
+        a.context.close()
+        b.context.close()
+    finally:
+        stop_server(proc)
+    proc, url, port = start_server(["--store", store_path], port=port)
+    try:
+        c = _person(browser, link, "Chi")
+        # the room's last view and its note are there after the restart
+        assert "850 hPa" in c.locator(".bd-verdict-where").first.inner_text()
+        c.get_by_role("option", name="#1 Ana").first.wait_for(state="attached", timeout=WAIT)
+        c.context.close()
+    finally:
+        stop_server(proc)
+
+
+def test_a_wrong_link_gets_the_plain_page(server, store_path, browser):
+    s = SQLiteStore(store_path)
+    old = s.create_room("old room", "ocean_cyclone")
+    s._db.execute("UPDATE rooms SET expires = 0 WHERE token = ?", (old.token,))
+    s.close()
+    for token in ("wrong-token-" + "x" * 20, old.token, "", "<script>alert(1)</script>"):
+        page = browser.new_page()
+        dialogs = []
+        page.on("dialog", lambda d: (dialogs.append(d.message), d.dismiss()))
+        page.goto(f"{server['url']}room?" + urllib.parse.urlencode({"room": token}))
+        page.get_by_text("No such room").first.wait_for(timeout=WAIT)
+        text = page.locator("body").inner_text() + page.evaluate(
+            "() => [...document.querySelectorAll('*')].map(e => e.shadowRoot ? "
+            "e.shadowRoot.textContent : '').join(' ')")
+        assert "ocean_cyclone" not in text and "old room" not in text and dialogs == []
+        page.close()
+
+
+def test_markup_in_notes_names_and_titles_stays_text(server, store_path, browser):
+    payloads = PAYLOADS[:12] + [PAYLOADS[-3], PAYLOADS[-1]]
+    room = _room(store_path, title=PAYLOADS[1][:100])
+    a = _person(browser, _link(server, room), name=PAYLOADS[3][:40])
+    b = _person(browser, _link(server, room), name=PAYLOADS[0][:40])
+    people = a.locator(".bd-room-people").first.inner_text()
+    assert PAYLOADS[0][:40] in people and PAYLOADS[3][:40] in people
+    assert PAYLOADS[1][:100] in a.locator(".bd-room-title").first.inner_text()
+    for i, text in enumerate(payloads):
+        a.get_by_label("New note").fill(text[:2000])
+        a.get_by_role("button", name="Add the note").click()
+        b.get_by_role("option", name=f"#{i + 1} ").first.wait_for(state="attached",
+                                                                 timeout=WAIT)
+    for i, text in enumerate(payloads[:6]):
+        b.get_by_label("Notes (choose one to read it)").select_option(index=i)
+        shown = b.locator(".bd-note-text").first
+        shown.wait_for(timeout=WAIT)
+        b.wait_for_function("([t]) => true", arg=[text])
+        b.locator(".bd-note").filter(has_text=f"#{i + 1} by").first.wait_for(timeout=WAIT)
+        assert b.locator(".bd-note-text").first.inner_text().strip() == text.strip()
+    for p in (a, b):
+        for sel in ("iframe", "marquee", "object", "video", "form", "math", "[onerror]",
+                    "[onload]", "[ontoggle]", "[onfocus]", "a[href^=javascript]"):
+            assert p.locator(sel).count() == 0, sel
+        assert p.dialogs == [] and p.errors == [], (p.dialogs, p.errors)
+    a.screenshot(path=os.path.join(SHOTS, "room_02_payloads.png"), full_page=True)
+    a.context.close()
+    b.context.close()
+
+
+def test_a_wrong_passphrase_is_refused(store_path, browser):
+    env = dict(os.environ, BALANCE_DESK_PASSPHRASE="a long enough passphrase")
+    proc, url, port = start_server(["--store", store_path], env=env)
+    try:
+        page = browser.new_page()
+        page.goto(url)
+        page.locator("input[type=password]").first.wait_for(timeout=WAIT)
+        page.locator("input[name=username]").fill("ana")
+        page.locator("input[type=password]").fill("not the passphrase")
+        page.locator("input[type=password]").press("Enter")
+        page.wait_for_timeout(1000)
+        assert page.locator(".bd-verdict").count() == 0
+        assert page.locator("input[type=password]").count() == 1  # still at the door
+        page.locator("input[name=username]").fill("ana")
+        page.locator("input[type=password]").fill("a long enough passphrase")
+        page.locator("input[type=password]").press("Enter")
+        page.locator(".bd-verdict").first.wait_for(timeout=60_000)
+        page.close()
+    finally:
+        stop_server(proc)
