@@ -23,6 +23,7 @@ from . import render, vocab
 from .state import SHEET_SCALES, VECTORS, ViewState, field_label
 
 __all__ = ["Selection", "resolve", "region_of", "ChartData", "chart_data", "box_data",
+           "shared_chart_data", "shared_box_data",
            "levels_data", "times_data", "scale_sheet", "region_outline", "nearest_level",
            "case_facts"]
 
@@ -312,6 +313,52 @@ def box_data(library, state: ViewState, thresholds: Thresholds = Thresholds()) -
     rep["invented"] = case_facts(case)["invented"]
     rep["unavailable"] = [t for t in rep["terms"] if t["magnitude"] is None]
     return rep
+
+
+#: what a chart and a region's report depend on (the rest of the state does not change them)
+CHART_KEYS = ("case", "level", "time", "field", "vectors", "smooth_km", "min_lat", "region",
+              "projection", "height_units", "wind_units")
+BOX_KEYS = ("case", "level", "time", "smooth_km", "min_lat", "region")
+
+
+def _key(kind, state, names, *extra):
+    from .state import encode_query
+
+    q = encode_query(state.values())
+    return (kind,) + tuple(q[k] for k in names) + extra
+
+
+def _read_only(obj):
+    """Make every array of a shared result read-only: a session that tried to change one
+    would change every session's view, so it fails loudly instead."""
+    if isinstance(obj, np.ndarray):
+        obj.setflags(write=False)
+    elif isinstance(obj, dict):
+        for v in obj.values():
+            _read_only(v)
+    elif isinstance(obj, (list, tuple)):
+        for v in obj:
+            _read_only(v)
+    elif dataclasses.is_dataclass(obj):
+        for f in dataclasses.fields(obj):
+            _read_only(getattr(obj, f.name))
+    return obj
+
+
+def shared_chart_data(library, state: ViewState) -> ChartData:
+    """:func:`chart_data`, computed once per view for every session that shows it (a review
+    room's followers). The result is shared: its arrays are read-only."""
+    return library.view(_key("chart", state, CHART_KEYS),
+                        lambda: _read_only(chart_data(library, state)))
+
+
+def shared_box_data(library, state: ViewState, thresholds: Thresholds = Thresholds()) -> dict:
+    """:func:`box_data`, computed once per view for every session; each gets its own copy."""
+    import copy
+
+    rep = library.view(_key("box", state, BOX_KEYS, thresholds),
+                       lambda: box_data(library, state, thresholds))
+    return copy.deepcopy(rep)
 
 
 def levels_data(library, state: ViewState, progress=None) -> dict:

@@ -84,6 +84,7 @@ class CaseLibrary:
                                               f"be read ({type(exc).__name__})")
         self._diag = _LRU(cache_size)
         self._profiles = _LRU(cache_size * 4)
+        self._views = _LRU(cache_size * 4)
         self._masked = _LRU(8)
 
     @property
@@ -139,3 +140,8 @@ class CaseLibrary:
     def profile(self, key, make):
         """A shared cache for per-box summaries (through the levels, through the times)."""
         return self._profiles.get_or_make(key, make)
+
+    def view(self, key, make):
+        """A shared cache of what a view shows (a chart, a region's report), so that every
+        session showing the same view -- a review room's followers -- gets it computed once."""
+        return self._views.get_or_make(key, make)

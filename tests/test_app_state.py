@@ -266,3 +266,37 @@ def test_a_page_fetched_while_the_pool_is_busy_starts_its_work_on_connecting(lib
             break
         time.sleep(0.01)
     assert page.report is not None and page.report["points"] > 0
+
+
+def test_sessions_showing_one_view_share_its_chart_and_report():
+    # a review room's followers show one view: it is computed once, and nobody can change
+    # what the others see (the chart's arrays are read-only; each gets its own report)
+    import numpy as np
+
+    from app import compute
+
+    library = CaseLibrary(SAMPLES)  # a cache of its own
+    calls = []
+    real = compute.chart_data
+
+    def counted(lib, st):
+        calls.append(1)
+        return real(lib, st)
+
+    a, b = _state(), _state()
+    compute_chart = compute.chart_data
+    try:
+        compute.chart_data = counted
+        ca = compute.shared_chart_data(library, a)
+        cb = compute.shared_chart_data(library, b)
+    finally:
+        compute.chart_data = compute_chart
+    assert ca is cb and len(calls) == 1
+    with pytest.raises(ValueError):
+        ca.raster[0, 0] = np.float32(1.0)
+    ra, rb = compute.shared_box_data(library, a), compute.shared_box_data(library, b)
+    assert ra == rb and ra is not rb
+    ra["verdict"]["balance"] = "changed"
+    assert compute.shared_box_data(library, a)["verdict"]["balance"] != "changed"
+    b.level = 850.0  # another view is another computation
+    assert compute.shared_chart_data(library, b) is not ca

@@ -242,7 +242,8 @@ class Page(pn.viewable.Viewer):
         snap = self.state.copy()
         if names & BOX and "box" in views:
             self.evidence.busy(True)
-            self._submit("box", lambda: compute.box_data(self.library, snap, self.thresholds),
+            self._submit("box", lambda: compute.shared_box_data(self.library, snap,
+                                                                 self.thresholds),
                          self._show_box)
         geom = self.chart.data.geom if self.chart.data is not None else None
         global_conformal = geom is not None and geom.kind == "conformal" and \
@@ -251,7 +252,8 @@ class Page(pn.viewable.Viewer):
             pass
         elif names & CHART or ("region" in names and (geom is None or global_conformal)):
             self.chart.busy(True)
-            self._submit("chart", lambda: compute.chart_data(self.library, snap), self._show_chart)
+            self._submit("chart", lambda: compute.shared_chart_data(self.library, snap),
+                         self._show_chart)
         elif "region" in names:
             # only the outline moves: no new raster, contours or vectors to send
             spec = snap.region_spec()
