@@ -227,7 +227,7 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
     from .desk import make_room_session, make_session
     from .desk.look import GLOBAL_CSS
     from .library import CaseLibrary
-    from .rooms import Hub, StoreError, open_store
+    from .rooms import Hub, RoomLimits, StoreError, open_store
     from .rooms.store import default_store_path
 
     # every script and stylesheet from this server, also for parts drawn after the page
@@ -245,8 +245,17 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
             "reach this address can see the cases, join every room whose link they have, and "
             "write notes.")
     store_path = store or default_store_path()
+    import os
+
     try:
-        hub = Hub(open_store(store_path))
+        per_minute = int((env or os.environ).get("BALANCE_DESK_NOTES_PER_MINUTE", "20"))
+        if per_minute < 1:
+            raise ValueError
+    except ValueError:
+        raise ServeError("balance-desk serve: BALANCE_DESK_NOTES_PER_MINUTE must be a whole "
+                         "number of 1 or more") from None
+    try:
+        hub = Hub(open_store(store_path), RoomLimits(notes_per_minute=per_minute))
     except StoreError as exc:
         raise ServeError(f"balance-desk serve: {exc}") from None
     paths = case_paths(files, cases_dir)

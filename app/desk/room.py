@@ -301,7 +301,27 @@ class RoomSession:
         elif kind == "notes":
             note = payload["note"]
             self._notes[note.note_id] = note
+            self._redraw_soon()
+
+    #: seconds a page waits before it redraws its notes, so that a burst of notes (a busy
+    #: room) is one redraw per page, not one per note
+    REDRAW_AFTER = 0.3
+
+    def _redraw_soon(self):
+        doc = self.page.doc
+        if doc is None or doc.session_context is None:
             self._redraw_notes()
+            return
+        if getattr(self, "_redraw_pending", False):
+            return
+        self._redraw_pending = True
+
+        def now():
+            self._redraw_pending = False
+            with pn.io.hold(doc):
+                self._redraw_notes()
+
+        doc.add_timeout_callback(now, int(self.REDRAW_AFTER * 1000))
 
     def _people(self, snap):
         self.snap = snap
