@@ -23,7 +23,7 @@ from . import render, vocab
 from .state import SHEET_SCALES, VECTORS, ViewState, field_label
 
 __all__ = ["Selection", "resolve", "region_of", "ChartData", "chart_data", "box_data",
-           "shared_chart_data", "shared_box_data",
+           "shared_chart_data", "shared_box_data", "ready_chart_data", "ready_box_data",
            "levels_data", "times_data", "scale_sheet", "region_outline", "nearest_level",
            "case_facts"]
 
@@ -350,6 +350,19 @@ def shared_chart_data(library, state: ViewState) -> ChartData:
     room's followers). The result is shared: its arrays are read-only."""
     return library.view(_key("chart", state, CHART_KEYS),
                         lambda: _read_only(chart_data(library, state)))
+
+
+def ready_chart_data(library, state: ViewState):
+    """The shared chart of this view if some session computed it already, else None."""
+    return library.view_ready(_key("chart", state, CHART_KEYS))
+
+
+def ready_box_data(library, state: ViewState, thresholds: Thresholds = Thresholds()):
+    """A copy of the shared report of this view if it was computed already, else None."""
+    import copy
+
+    rep = library.view_ready(_key("box", state, BOX_KEYS, thresholds))
+    return None if rep is None else copy.deepcopy(rep)
 
 
 def shared_box_data(library, state: ViewState, thresholds: Thresholds = Thresholds()) -> dict:

@@ -38,6 +38,16 @@ class LoadedCase:
 class _LRU:
     """A small thread-safe least-recently-used cache with one lock per key."""
 
+    _MISSING = object()
+
+    def peek(self, key, default=None):
+        """The value of ``key`` if it is there (made), else ``default``; never makes it."""
+        with self._lock:
+            if key in self._data:
+                self._data.move_to_end(key)
+                return self._data[key]
+            return default
+
     def __init__(self, size: int):
         self.size = size
         self._data = collections.OrderedDict()
@@ -140,6 +150,10 @@ class CaseLibrary:
     def profile(self, key, make):
         """A shared cache for per-box summaries (through the levels, through the times)."""
         return self._profiles.get_or_make(key, make)
+
+    def view_ready(self, key):
+        """The shared view of ``key`` if it was computed already, else None."""
+        return self._views.peek(key)
 
     def view(self, key, make):
         """A shared cache of what a view shows (a chart, a region's report), so that every

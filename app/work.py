@@ -70,6 +70,17 @@ class Lane:
             _safe(replaced[2], "stale", None, replaced[0])
         return gen
 
+    def supersede(self, kind: str) -> int:
+        """The view of ``kind`` was given another way: a waiting or running job of it is no
+        longer wanted (its result is reported stale). Returns the new generation."""
+        with self.pool._lock:
+            self.generation[kind] += 1
+            gen = self.generation[kind]
+            replaced = self.waiting.pop(kind, None)
+        if replaced is not None:
+            _safe(replaced[2], "stale", None, replaced[0])
+        return gen
+
     def current(self, kind: str, gen: int) -> bool:
         return not self.closed and self.generation[kind] == gen
 

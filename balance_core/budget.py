@@ -54,7 +54,8 @@ from .grid import Grid, derivative_weights
 from .thermo import standard_atmosphere_density
 from .winds import Flow
 
-__all__ = ["Fields", "Term", "Budget", "momentum_budget", "TERMS", "FORCING_TERMS", "DERIVED"]
+__all__ = ["Fields", "Term", "Budget", "momentum_budget", "TERMS", "FORCING_TERMS", "DERIVED",
+           "ageostrophic_parts", "AGEOSTROPHIC_PARTS"]
 
 #: The terms of the budget, in the order of the equations; the residual last.
 TERMS = ("tendency", "horizontal_advection", "vertical_advection", "metric_uv", "metric_uw",
@@ -498,3 +499,68 @@ def _derived_into(gi: Grid, L: _Layout, out: Budget, rows, u, v):
     # the Earth's curvature of the trajectory: metric_uv is normal to the wind
     n.x[rows] += out.terms["metric_uv"].x[rows]
     n.y[rows] += out.terms["metric_uv"].y[rows]
+
+
+#: The parts of the ageostrophic wind, by the terms that make them (see ageostrophic_parts).
+AGEOSTROPHIC_PARTS = ("tendency", "inertial_advective", "vertical_advection", "remainder")
+
+
+def ageostrophic_parts(budget: Budget, inverse_f) -> dict:
+    """The ageostrophic wind split by the terms that cause it, m s-1.
+
+    ``inverse_f`` is 1/f on the budget's grid (``Grid.inverse_f``: NaN in the tropical
+    mask).
+
+    Notes
+    -----
+    With the budget's terms, Coriolis plus the pressure-gradient force is
+    f k x (V - Vg) turned by a right angle: (f v_ag, -f u_ag). So
+
+        V_ag = (1/f) k x (tendency - horizontal_advection - vertical_advection
+                          - metric_uv - metric_uw - coriolis_w - residual)
+
+    (e.g. Holton and Hakim 2013, An Introduction to Dynamic Meteorology, 5th ed.,
+    section 6.1: V_ag = (1/f) k x DV/Dt without friction; Bluestein 1992,
+    Synoptic-Dynamic Meteorology in Midlatitudes, vol. I, section 4.4), with
+    k x (a, b) = (-b, a). The parts, which add up to V - Vg at every point:
+
+    * ``tendency``: (1/f) k x dV/dt, the isallobaric part where the tendency is
+      from the data (unavailable with a single time: the remainder then holds it);
+    * ``inertial_advective``: (1/f) k x (V . grad) V;
+    * ``vertical_advection``: (1/f) k x omega dV/dp;
+    * ``remainder``: what the metric terms, the vertical Coriolis term and the
+      residual (friction, unresolved processes, error) make.
+
+    Where |f| is within the grid's tropical mask every part is NaN (1/f is).
+    Returns {name: Term} with an unavailable Term (and its reason) where the data
+    cannot give the part.
+    """
+    inv_f = np.asarray(inverse_f, dtype=np.float64)
+    t = budget.terms
+
+    def turned(ax, ay, sign=1.0):
+        # (1/f) k x (sign * a) = (1/f) (-sign a_y, sign a_x)
+        return -sign * ay * inv_f, sign * ax * inv_f
+
+    out = {}
+    ten = t["tendency"]
+    out["tendency"] = Term("tendency", *turned(ten.x, ten.y)) if ten.available else \
+        Term("tendency", None, None, f"no tendency ({ten.note}); the remainder holds its part")
+    adv = t["horizontal_advection"]
+    out["inertial_advective"] = Term("inertial_advective", *turned(adv.x, adv.y, -1.0))
+    vad = t["vertical_advection"]
+    out["vertical_advection"] = (
+        Term("vertical_advection", *turned(vad.x, vad.y, -1.0)) if vad.available else
+        Term("vertical_advection", None, None,
+             f"no vertical advection ({vad.note}); the remainder holds its part"))
+    rx = np.zeros_like(t["residual"].x)
+    ry = np.zeros_like(t["residual"].y)
+    for name in ("metric_uv", "metric_uw", "coriolis_w", "residual"):
+        term = t[name]
+        if term.available:
+            rx = rx + term.x
+            ry = ry + term.y
+    out["remainder"] = Term("remainder", *turned(rx, ry, -1.0),
+                            "metric terms, vertical Coriolis and the residual (friction, "
+                            "unresolved processes, error)")
+    return out

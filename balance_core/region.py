@@ -1,8 +1,9 @@
 """Regions of a chart and area-weighted statistics over them.
 
 A region is a lon/lat box (west, east, south, north; it may cross the
-dateline) or a lon/lat polygon (a box drawn on a conformal map is not a lon/lat
-box, so the app hands the core the drawn outline as a polygon). Statistics
+dateline), a lon/lat polygon (a box drawn on a conformal map is not a lon/lat
+box, so the app hands the core the drawn outline as a polygon), or a circle on
+the sphere (the region of a weather system, see :mod:`balance_core.systems`). Statistics
 weight each point by its cell area (proportional to cos(phi) on a regular
 lat-lon grid; the projected cell area on a projected grid).
 """
@@ -13,9 +14,20 @@ import dataclasses
 
 import numpy as np
 
+from . import constants as C
 from .grid import Grid
 
-__all__ = ["Region", "Stats", "weighted_stats", "vector_stats", "weighted_quantile"]
+__all__ = ["Region", "Stats", "weighted_stats", "vector_stats", "weighted_quantile",
+           "great_circle_km"]
+
+
+def great_circle_km(lon0, lat0, lon, lat):
+    """Great-circle distance (km) on a sphere of the mean Earth radius: the haversine
+    formula (Sinnott 1984, "Virtues of the haversine", Sky and Telescope 68, 159)."""
+    p0, p1 = np.deg2rad(lat0), np.deg2rad(np.asarray(lat, dtype=np.float64))
+    dl = np.deg2rad(np.asarray(lon, dtype=np.float64) - lon0)
+    h = np.sin(0.5 * (p1 - p0)) ** 2 + np.cos(p0) * np.cos(p1) * np.sin(0.5 * dl) ** 2
+    return 2e-3 * C.EARTH_RADIUS * np.arcsin(np.sqrt(np.clip(h, 0.0, 1.0)))
 
 
 def _wrap180(lon):
@@ -36,6 +48,7 @@ class Region:
     north: float | None = None
     lons: tuple | None = None
     lats: tuple | None = None
+    radius_km: float | None = None
 
     @classmethod
     def box(cls, west: float, east: float, south: float, north: float) -> "Region":
@@ -72,6 +85,21 @@ class Region:
                    south=float(lats.min()), north=float(lats.max()))
 
     @classmethod
+    def circle(cls, lon: float, lat: float, radius_km: float) -> "Region":
+        """The points within ``radius_km`` (great-circle distance on a sphere of the mean
+        Earth radius) of (lon, lat), degrees."""
+        vals = [lon, lat, radius_km]
+        if not all(np.isfinite(vals)) or not -90 <= lat <= 90 or not 0 < radius_km <= 20000:
+            raise ValueError("a circle needs a finite centre on the Earth and a radius of more "
+                             "than 0 and at most 20000 km")
+        dlat = np.rad2deg(radius_km * 1e3 / C.EARTH_RADIUS)
+        coslat = max(np.cos(np.deg2rad(lat)), 1e-6)
+        dlon = min(180.0, dlat / coslat)
+        return cls("circle", float(lon) - dlon, float(lon) + dlon, max(-90.0, lat - dlat),
+                   min(90.0, lat + dlat), lons=(float(lon),), lats=(float(lat),),
+                   radius_km=float(radius_km))
+
+    @classmethod
     def whole(cls) -> "Region":
         """Every point of the grid."""
         return cls("whole")
@@ -88,6 +116,8 @@ class Region:
                 return inside_lat
             offset = (lon - self.west) % 360.0
             return inside_lat & (offset <= width + 1e-9)
+        if self.kind == "circle":
+            return great_circle_km(self.lons[0], self.lats[0], lon, lat) <= self.radius_km
         from shapely import Polygon, contains_xy  # vectorised point-in-polygon
 
         poly = Polygon(zip(self.lons, self.lats))

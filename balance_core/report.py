@@ -19,7 +19,8 @@ import dataclasses
 import numpy as np
 
 from . import constants as C
-from .budget import DERIVED, TERMS, Budget, Fields, momentum_budget
+from .budget import (AGEOSTROPHIC_PARTS, DERIVED, TERMS, Budget, Fields, ageostrophic_parts,
+                     momentum_budget)
 from .grid import Grid
 from .numbers import (brunt_vaisala_squared, burger_number, deformation_radius, froude_number,
                       richardson_number, rossby_number, vertical_shear_squared)
@@ -227,7 +228,8 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
     terms.sort(key=lambda e: (e["magnitude"] is None, -(e["magnitude"] or 0.0)))
     derived = [entry(n, cropped.derived[n]) for n in DERIVED if n in cropped.derived]
 
-    speed = weighted_stats(np.hypot(diag.u, diag.v)[win], sub, ok, quantiles=False).rms
+    speed = weighted_stats(np.hypot(diag.u[win], diag.v[win]), sub, ok, quantiles=False).rms
+    parts = _ageostrophic_parts(diag, cropped, win, sub, ok)
     gstat = weighted_stats(np.hypot(diag.ug, diag.vg)[win], sub, ok, quantiles=False)
     agf = weighted_stats(diag.ageostrophic_fraction[win], sub, ok)
     grad = weighted_stats(np.abs(diag.gradient.speed)[win], sub, ok, quantiles=False)
@@ -308,9 +310,33 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
                    "friction_alignment": ratios.get("friction_alignment")},
         "verdict": verdict.as_dict(),
         "explain": dict(EXPLAIN),
+        "ageostrophic_parts": parts,
         "residual_causes": causes,
         "notes": notes,
     }
+
+
+def _ageostrophic_parts(diag, cropped, win, sub, ok) -> dict:
+    """RMS speed of each part of the ageostrophic wind over the region (see
+    :func:`balance_core.budget.ageostrophic_parts`), and of the measured V - Vg; the parts
+    are counted only where f is outside the tropical mask."""
+    inv_f = diag.grid.inverse_f[win]
+    have_f = ok & np.isfinite(inv_f)
+    out = {"measured_rms": None, "points": int(have_f.sum()), "parts": {}}
+    if not have_f.any():
+        out["note"] = "every point of the region is within the tropical mask, where 1/f is not used"
+        for name in AGEOSTROPHIC_PARTS:
+            out["parts"][name] = {"speed_rms": None, "note": "within the tropical mask"}
+        return out
+    ua, va = diag.u[win] - diag.ug[win], diag.v[win] - diag.vg[win]
+    out["measured_rms"] = weighted_stats(np.hypot(ua, va), sub, have_f, quantiles=False).rms
+    for name, part in ageostrophic_parts(cropped, inv_f).items():
+        if not part.available:
+            out["parts"][name] = {"speed_rms": None, "note": part.note}
+            continue
+        s = weighted_stats(np.hypot(part.x, part.y), sub, have_f, quantiles=False).rms
+        out["parts"][name] = {"speed_rms": _num(s), "note": part.note}
+    return out
 
 
 def _invalid_points(diag, win, ins, ok) -> dict:
@@ -386,4 +412,5 @@ def _empty_report(inside, th: Thresholds = Thresholds(), invalid=None, verdict=N
             "balances": {}, "shares": {},
             "verdict": {"balance": "none", "text": text,
                         "why": "A verdict needs valid points." if verdict is None else verdict.why},
-            "explain": dict(EXPLAIN), "residual_causes": [], "notes": []}
+            "explain": dict(EXPLAIN), "residual_causes": [], "notes": [],
+            "ageostrophic_parts": {"measured_rms": None, "points": 0, "parts": {}}}

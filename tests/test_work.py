@@ -179,3 +179,19 @@ def test_a_new_session_goes_ahead_of_busy_ones():
     gate.set()
     log.wait_for("old.box1", "first.box", "second.box")
     assert log.order()[-3:] == ["first.box", "second.box", "old.box1"], log.order()
+
+
+def test_a_view_given_another_way_supersedes_its_waiting_and_running_jobs():
+    pool, log = FairPool(threads=1), Log()
+    lane = pool.lane("a")
+    gate, started = threading.Event(), threading.Event()
+    lane.submit("chart", log.job("running", gate, started), log.callback("running"))
+    assert started.wait(WAIT)
+    lane.submit("box", log.job("waiting"), log.callback("waiting"))
+    lane.supersede("chart")
+    lane.supersede("box")
+    gate.set()
+    log.wait_for("running", "waiting")
+    assert log.done["waiting"] == ("stale", None)  # dropped without running
+    assert log.done["running"][0] == "stale"       # its result is no longer wanted
+    assert "waiting" not in log.order()

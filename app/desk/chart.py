@@ -173,6 +173,14 @@ class Chart(pn.viewable.Viewer):
                                          code="return '1e' + Math.round(tick);"))
         fig.add_layout(self.colorbar, "right")
         fig.add_layout(self.colorbar_log, "right")
+        digits_js = ("var d = (ticks.length > 1 && Math.abs(ticks[1] - ticks[0]) < 1) ? "
+                     "(Math.abs(ticks[1] - ticks[0]) < 0.1 ? 2 : 1) : 0; ")
+        self._lon_fmt = CustomJSTickFormatter(
+            code=digits_js + "var x = ((tick + 180) % 360 + 360) % 360 - 180; "
+                 "return Math.abs(x).toFixed(d) + (x < 0 ? 'W' : (x > 0 ? 'E' : ''));")
+        self._lat_fmt = CustomJSTickFormatter(
+            code=digits_js + "return Math.abs(tick).toFixed(d) + "
+                             "(tick < 0 ? 'S' : (tick > 0 ? 'N' : ''));")
         fig.on_event(events.SelectionGeometry, self._on_select)
         fig.on_event(events.Tap, self._on_tap)
         fig.grid.grid_line_color = "#555555"
@@ -270,27 +278,23 @@ class Chart(pn.viewable.Viewer):
         tips = HOVER_TIPS(cd.field_label)
         if tips != self.hover.tooltips:
             self.hover.tooltips = tips
-        fig.x_range.update(start=x0, end=x1, reset_start=x0, reset_end=x1)
-        fig.y_range.update(start=y0, end=y1, reset_start=y0, reset_end=y1)
+        _set(fig.x_range, start=x0, end=x1, reset_start=x0, reset_end=x1)
+        _set(fig.y_range, start=y0, end=y1, reset_start=y0, reset_end=y1)
         if g.kind == "plate_carree":
             aspect = (y1 - y0) / ((x1 - x0) * math.cos(math.radians(0.5 * (y0 + y1))))
-            fig.xaxis.axis_label, fig.yaxis.axis_label = "longitude", "latitude"
-            digits_js = ("var d = (ticks.length > 1 && Math.abs(ticks[1] - ticks[0]) < 1) ? "
-                         "(Math.abs(ticks[1] - ticks[0]) < 0.1 ? 2 : 1) : 0; ")
-            fig.xaxis.formatter = CustomJSTickFormatter(
-                code=digits_js + "var x = ((tick + 180) % 360 + 360) % 360 - 180; "
-                     "return Math.abs(x).toFixed(d) + (x < 0 ? 'W' : (x > 0 ? 'E' : ''));")
-            fig.yaxis.formatter = CustomJSTickFormatter(
-                code=digits_js + "return Math.abs(tick).toFixed(d) + "
-                                 "(tick < 0 ? 'S' : (tick > 0 ? 'N' : ''));")
-            fig.axis.visible = True
-            fig.grid.visible = True  # lat-lon gridlines at the tick marks
         else:
             aspect = (y1 - y0) / (x1 - x0)
-            fig.axis.visible = False
-            fig.grid.visible = False  # the graticule draws the meridians and parallels
-        fig.width = WIDTH
-        fig.height = int(min(max(WIDTH * aspect, 320), 720)) + 60
+        if getattr(self, "_axes_kind", None) != g.kind:
+            # the axes' look changes with the kind of chart only: set it then, never again
+            # (every property set on the figure makes Bokeh walk the whole document)
+            self._axes_kind = g.kind
+            lonlat = g.kind == "plate_carree"
+            if lonlat:
+                fig.xaxis.axis_label, fig.yaxis.axis_label = "longitude", "latitude"
+                fig.xaxis.formatter, fig.yaxis.formatter = self._lon_fmt, self._lat_fmt
+            fig.axis.visible = lonlat
+            fig.grid.visible = lonlat  # on conformal charts the graticule draws them
+        _set(fig, width=WIDTH, height=int(min(max(WIDTH * aspect, 320), 720)) + 60)
         interval = "" if not math.isfinite(cd.contour_interval) else \
             f" every {cd.contour_interval:g} {cd.contour_units}"
         mark = (f" <span style='background:{INVENTED_BG};color:#fff;padding:2px 8px;"
@@ -367,6 +371,14 @@ class Chart(pn.viewable.Viewer):
 
     def __panel__(self):
         return self.layout
+
+
+def _set(model, **props):
+    """Set only the properties that change: a set that changes nothing still costs Bokeh a
+    walk of the document and the page a message."""
+    changed = {k: v for k, v in props.items() if getattr(model, k) != v}
+    if changed:
+        model.update(**changed)
 
 
 def head_sizes(v, ref, full=8.0):

@@ -240,20 +240,33 @@ class Page(pn.viewable.Viewer):
         names = set(names or URL_PARAMS)
         views = set(views or ("box", "chart", "levels", "times"))
         snap = self.state.copy()
+        # a view another session computed already (a review room's followers) is shown at
+        # once: no busy mark, no trip through the pool
+        ready = self.live and self.doc is not None
         if names & BOX and "box" in views:
-            self.evidence.busy(True)
-            self._submit("box", lambda: compute.shared_box_data(self.library, snap,
-                                                                 self.thresholds),
-                         self._show_box)
+            rep = compute.ready_box_data(self.library, snap, self.thresholds) if ready else None
+            if rep is not None:
+                self._cancel("box")
+                self._apply("box", None, self._show_box, "ok", rep)
+            else:
+                self.evidence.busy(True)
+                self._submit("box", lambda: compute.shared_box_data(self.library, snap,
+                                                                     self.thresholds),
+                             self._show_box)
         geom = self.chart.data.geom if self.chart.data is not None else None
         global_conformal = geom is not None and geom.kind == "conformal" and \
             getattr(geom.grid, "periodic", False)
         if "chart" not in views:
             pass
         elif names & CHART or ("region" in names and (geom is None or global_conformal)):
-            self.chart.busy(True)
-            self._submit("chart", lambda: compute.shared_chart_data(self.library, snap),
-                         self._show_chart)
+            cd = compute.ready_chart_data(self.library, snap) if ready else None
+            if cd is not None:
+                self._cancel("chart")
+                self._apply("chart", None, self._show_chart, "ok", cd)
+            else:
+                self.chart.busy(True)
+                self._submit("chart", lambda: compute.shared_chart_data(self.library, snap),
+                             self._show_chart)
         elif "region" in names:
             # only the outline moves: no new raster, contours or vectors to send
             spec = snap.region_spec()
@@ -332,6 +345,10 @@ class Page(pn.viewable.Viewer):
                 self._later(partial(self._apply, kind, gen, show, status, value))
 
         self._gens[kind] = self._lane.submit(kind, fn, done)
+
+    def _cancel(self, kind):
+        """A view shown now: a result still on its way for an older request is dropped."""
+        self._gens[kind] = self._lane.supersede(kind)
 
     def _apply(self, kind, gen, show, status, value):
         if gen is not None and self._gens.get(kind) != gen:
