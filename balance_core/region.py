@@ -106,9 +106,14 @@ class Region:
 
     def mask(self, grid: Grid) -> np.ndarray:
         """Boolean (ny, nx): True for the grid points inside the region."""
-        lat, lon = grid.lat, grid.lon
+        return self.contains(grid.lon, grid.lat)
+
+    def contains(self, lon, lat) -> np.ndarray:
+        """Boolean, the shape of ``lon`` and ``lat`` (degrees): True for points inside."""
+        lon = np.asarray(lon, dtype=np.float64)
+        lat = np.asarray(lat, dtype=np.float64)
         if self.kind == "whole":
-            return np.ones(grid.shape, dtype=bool)
+            return np.ones(lat.shape, dtype=bool)
         if self.kind == "box":
             inside_lat = (lat >= self.south) & (lat <= self.north)
             width = (self.east - self.west) % 360.0
@@ -128,6 +133,10 @@ class Region:
         for shift in (-360.0, 360.0):  # polygons wider than half the globe
             inside |= contains_xy(poly, plon + shift, lat)
         return inside
+
+    def mask_point(self, lon: float, lat: float) -> bool:
+        """Is the point (degrees) inside the region?"""
+        return bool(self.contains(np.array([float(lon)]), np.array([float(lat)]))[0])
 
     def describe(self) -> dict:
         """West, east, south, north of the region's bounding box, degrees."""

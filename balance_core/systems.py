@@ -4,7 +4,8 @@
 height enclosed by at least one closed contour: a contour at a multiple of the chart's
 interval (:func:`contour_interval`) around it that neither reaches the edge of the
 data (the domain's edge, a pole row, points without data) nor encloses a deeper
-minimum. Going up from the minimum one interval at a time, the last such contour is
+minimum, nor goes all the way round a global grid (a band between two latitude
+circles). Going up from the minimum one interval at a time, the last such contour is
 its *outermost closed contour*; the low's depth is that contour's height minus the
 central height, and a low shallower than ``min_depth`` (half an interval unless told
 otherwise) is dropped. Highs are the same for the height turned upside down. The
@@ -15,7 +16,8 @@ about half a degree, the centre then refined on the full grid.
 **Jet streaks** (of wind speed). A local maximum of the speed above a threshold that
 depends on the level (:func:`jet_threshold`); its core is the connected region where
 the speed is at least ``core_fraction`` (0.8) of the peak; two peaks in one core are one
-streak (the higher).
+streak (the higher). A maximum whose core's box holds the centre of a closed low or high
+is that vortex's ring of strongest wind, not a jet streak, and is left out.
 
 **Regions.** So that a system's region can be carried in a link and drawn on any
 chart, a low's or high's region is the circle around its centre with the area of its
@@ -143,7 +145,8 @@ def _label(mask, periodic):
 
 def _edge(shape, periodic, invalid):
     """Points whose region cannot be closed: the domain's edges (the first and last rows;
-    the first and last columns unless periodic), and the neighbours of points without data."""
+    the first and last columns unless periodic), and the eight neighbours of every point
+    without data."""
     from scipy import ndimage
 
     edge = np.zeros(shape, dtype=bool)
@@ -151,8 +154,9 @@ def _edge(shape, periodic, invalid):
     if not periodic:
         edge[:, 0] = edge[:, -1] = True
     if invalid.any():
-        edge |= ndimage.binary_dilation(invalid, mode="nearest") if not periodic else \
-            ndimage.binary_dilation(invalid)
+        # every point that shares a grid cell with a point without data (the eight around
+        # it): no contour can be drawn through such a cell
+        edge |= ndimage.binary_dilation(invalid, structure=np.ones((3, 3), dtype=bool))
     return edge
 
 
@@ -202,6 +206,12 @@ def find_closed_extrema(grid: Grid, height, pressure_pa: float, kind: str = "low
         lab = labels[cand[:, 0], cand[:, 1]]
         touching = np.zeros(labels.max() + 1, dtype=bool)
         touching[np.unique(labels[edge])] = True
+        if periodic:
+            # a region that goes all the way round (a band of latitude) is not enclosed by
+            # a contour around a point: its edges are two latitude circles
+            for lb in np.unique(lab[lab > 0]):
+                if (labels == lb).any(axis=0).all():
+                    touching[lb] = True
         # the deepest candidate of each region owns it; the others are merged into it
         first = {}
         for i, lb in enumerate(lab):
@@ -319,6 +329,10 @@ def find_systems(grid: Grid, height, u, v, pressure_pa: float, *, interval=None,
                                 min_depth=min_depth)
     jets = find_jet_streaks(grid, u, v, pressure_pa, threshold=jet,
                             core_fraction=core_fraction)
+    # a wind maximum whose core surrounds a closed low's or high's centre is that vortex's
+    # ring of strongest wind (a tropical cyclone's eyewall), not a jet streak
+    jets = [j for j in jets if not any(j.region.mask_point(e.lon, e.lat)
+                                       for e in lows + highs)]
     out = []
     queues = [list(lows), list(highs), list(jets)]
     while len(out) < limit and any(queues):
