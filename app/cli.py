@@ -5,6 +5,7 @@
     balance-desk cases     the bundled sample cases
     balance-desk serve     the dashboard
     balance-desk rooms     review rooms: create, list, export their notes
+    balance-desk systems   the weather systems of a level, each with its balance
     balance-desk verify    the reference checks, run on this machine
 
 Every error is one sentence on stderr: exit status 2 for bad input, 1 for
@@ -179,6 +180,28 @@ def build_parser() -> argparse.ArgumentParser:
                                         "of the machine's memory, or BALANCE_DESK_MEMORY_BUDGET)")
     p.add_argument("--format", choices=("table", "json", "csv"), default="table")
     p.set_defaults(func=cmd_analyze)
+
+    p = sub.add_parser("systems", help="the lows, highs and jet streaks of a level, each with "
+                                       "its balance",
+                       description="Finds closed lows and highs of the height and jet streaks "
+                                   "of the wind on one level, and gives each the report of its "
+                                   "region: ranked terms, balances, numbers, verdict, and the "
+                                   "parts of its ageostrophic wind.")
+    p.add_argument("files", nargs="+", metavar="FILE")
+    p.add_argument("--level", type=_positive("--level"), default=500.0, metavar="HPA",
+                   help="pressure level (default 500)")
+    p.add_argument("--time", default=None, metavar="INDEX_OR_ISO")
+    p.add_argument("--track", action="store_true",
+                   help="every valid time, the systems matched into tracks")
+    p.add_argument("--limit", type=_bounded("--limit", 1, 200), default=30,
+                   help="at most this many systems (default 30)")
+    p.add_argument("--min-lat", type=_bounded("--min-lat", 0.0, 60.0), default=10.0,
+                   metavar="DEG")
+    p.add_argument("--member", default="0", metavar="N|mean")
+    p.add_argument("--memory-budget", type=_size("--memory-budget"), default=None,
+                   metavar="SIZE")
+    p.add_argument("--format", choices=("table", "json", "csv"), default="table")
+    p.set_defaults(func=cmd_systems)
 
     p = sub.add_parser("cases", help="list the bundled sample cases",
                        description="The invented sample cases, with their levels, times and a "
@@ -355,6 +378,31 @@ def cmd_analyze(args) -> int:
         print(formats.export_csv(rep, formats.context_of(rep)), end="")
     else:
         print(formats.table(rep))
+    return 0
+
+
+# -- systems -------------------------------------------------------------------------
+
+def cmd_systems(args) -> int:
+    from balance_core.io import CaseError, analyse_systems, open_case, track_systems
+
+    from . import formats
+
+    try:
+        case = open_case(args.files, member=_member(args.member), min_lat=args.min_lat,
+                         memory_budget=args.memory_budget)
+        if args.track:
+            out = track_systems(case, args.level, limit=int(args.limit))
+        else:
+            out = analyse_systems(case, args.level, args.time, limit=int(args.limit))
+    except CaseError as exc:
+        raise UsageError(str(exc)) from None
+    if args.format == "json":
+        print(json.dumps(formats.clean(out), indent=2))
+    elif args.format == "csv":
+        print(formats.systems_csv(out), end="")
+    else:
+        print(formats.systems_table(out))
     return 0
 
 

@@ -16,7 +16,8 @@ import math
 
 from . import vocab
 
-__all__ = ["table", "export_json", "export_csv", "context_of", "clean"]
+__all__ = ["table", "export_json", "export_csv", "context_of", "clean", "systems_table",
+           "systems_csv", "system_region_text", "intensity_text"]
 
 
 def clean(obj):
@@ -192,3 +193,107 @@ def _differ(a, b) -> bool:
     from balance_core.io.units import _canonical
 
     return _canonical(str(a)) != _canonical(str(b))
+
+
+# -- systems ------------------------------------------------------------------------------
+
+def system_region_text(region: dict) -> str:
+    if region["kind"] == "circle":
+        return (f"within {region['radius_km']:.0f} km of {vocab.lat(region['lat'])} "
+                f"{vocab.lon(region['lon'])}")
+    return (f"box {vocab.lon(region['west'])} to {vocab.lon(region['east'])}, "
+            f"{vocab.lat(region['south'])} to {vocab.lat(region['north'])}")
+
+
+def intensity_text(s: dict, wind_units: str = "m/s") -> str:
+    if s["kind"] == "jet_streak":
+        v, u = vocab.wind(s["value"], wind_units)
+        return f"peak {float(v):.0f} {u}"
+    side = "below" if s["kind"] == "low" else "above"
+    return (f"centre {s['value']:.0f} m, {s['depth']:.0f} m {side} its outermost closed "
+            f"contour ({s['outer_level']:.0f} m)")
+
+
+def systems_table(out: dict) -> str:
+    """The text ``balance-desk systems`` prints: one block per system (or per track)."""
+    if "tracks" in out:
+        lines = [f"Tracks of {out['case']} at {out['level_hpa']:g} hPa (matched within "
+                 f"{out['match']['speed_kmh']:g} km/h x the time step, at least "
+                 f"{out['match']['min_km']:g} km)", ""]
+        for i, tr in enumerate(out["tracks"], 1):
+            lines.append(f"{i}. {vocab.system_name(tr['kind'])}, {len(tr['life'])} times")
+            for p in tr["life"]:
+                ro = p["rossby_local_median"]
+                lines.append(f"   {vocab.when_short(p['valid_time'])}  {vocab.lat(p['lat'])} "
+                             f"{vocab.lon(p['lon'])}  intensity {p['intensity']:.1f}  local Ro "
+                             f"{'n/a' if ro is None else f'{ro:.2g}'}  "
+                             f"{vocab.balance_name(p['verdict'])}")
+        return "\n".join(lines)
+    r = out["rules"]
+    lines = [f"Systems of {out['case']} at {out['level_hpa']:g} hPa, "
+             f"{vocab.when(out['valid_time'], out.get('reference_time'))}",
+             f"  rules: closed contours every {r['contour_interval_m']:g} m, at least "
+             f"{r['min_depth_m']:g} m deep; jet streaks above {r['jet_threshold_ms']:g} m/s, core "
+             f"above {100 * r['core_fraction']:.0f} % of the peak", ""]
+    if not out["systems"]:
+        lines.append("  no closed low, closed high or jet streak on this level")
+    for i, s in enumerate(out["systems"], 1):
+        rep = s["report"]
+        v = rep["verdict"]
+        lines.append(f"{i}. {vocab.system_name(s['kind'])} at {vocab.lat(s['lat'])} "
+                     f"{vocab.lon(s['lon'])}: {intensity_text(s)}")
+        lines.append(f"   region: {system_region_text(s['region'])}, {rep.get('points', 0)} "
+                     "valid points")
+        lines.append(f"   verdict: {vocab.balance_name(v['balance'])}. {v['text']}")
+        top = [t for t in rep.get("terms", []) if t["magnitude"] is not None][:3]
+        if top:
+            lines.append("   largest terms: " + ", ".join(
+                f"{vocab.term_name(t['name'])} {t['magnitude']:.1e}" for t in top) + " m s-2")
+        parts = rep.get("ageostrophic_parts") or {}
+        if parts.get("measured_rms") is not None:
+            bits = [f"{vocab.part_name(k)} {p['speed_rms']:.1f}" if p["speed_rms"] is not None
+                    else f"{vocab.part_name(k)} n/a" for k, p in parts["parts"].items()]
+            lines.append(f"   ageostrophic wind {parts['measured_rms']:.1f} m/s (RMS): "
+                         + "; ".join(bits))
+            if parts.get("note"):
+                lines.append(f"   caution: {parts['note']}")
+        lines.append("")
+    return "\n".join(lines).rstrip()
+
+
+def systems_csv(out: dict) -> str:
+    """One row per system (or per system and time with tracks), values to 4 digits."""
+    buf = io.StringIO()
+    w = csv.writer(buf)
+    parts = ("tendency", "inertial_advective", "vertical_advection", "remainder")
+    if "tracks" in out:
+        w.writerow(["case", "level_hpa", "track", "kind", "valid_time", "lat", "lon",
+                    "intensity", "rossby_local_median", "verdict"])
+        for i, tr in enumerate(out["tracks"], 1):
+            for p in tr["life"]:
+                w.writerow([out["case"], out["level_hpa"], i, vocab.system_name(tr["kind"]),
+                            p["valid_time"], vocab.sig(p["lat"]), vocab.sig(p["lon"]),
+                            vocab.sig(p["intensity"]), vocab.sig(p["rossby_local_median"]),
+                            vocab.balance_name(p["verdict"])])
+        return buf.getvalue()
+    w.writerow(["case", "level_hpa", "valid_time", "kind", "lat", "lon", "intensity",
+                "depth_m", "outer_contour_m", "region", "points", "verdict",
+                "geostrophic_ratio", "gradient_ratio", "cyclostrophic_ratio",
+                "rossby_local_median", "ageostrophic_rms_ms"]
+               + [f"ageostrophic_{p}_rms_ms" for p in parts])
+    for s in out["systems"]:
+        rep = s["report"]
+        b = rep.get("balances") or {}
+        ap = rep.get("ageostrophic_parts") or {}
+        w.writerow([out["case"], out["level_hpa"], out["valid_time"],
+                    vocab.system_name(s["kind"]), vocab.sig(s["lat"]), vocab.sig(s["lon"]),
+                    vocab.sig(s["intensity"]), vocab.sig(s["depth"]),
+                    vocab.sig(s["outer_level"]), system_region_text(s["region"]),
+                    rep.get("points"), vocab.balance_name(rep["verdict"]["balance"]),
+                    vocab.sig(b.get("geostrophic")), vocab.sig(b.get("gradient")),
+                    vocab.sig(b.get("cyclostrophic")),
+                    vocab.sig((rep.get("numbers") or {}).get("rossby_local_median")),
+                    vocab.sig(ap.get("measured_rms"))]
+                   + [vocab.sig(((ap.get("parts") or {}).get(p) or {}).get("speed_rms"))
+                      for p in parts])
+    return buf.getvalue()

@@ -13,9 +13,10 @@ import math
 
 import numpy as np
 
-from balance_core.vocabulary import BALANCE_NAMES, PRESET_NAMES, SCALE_NAMES, TERM_NAMES, term_name
+from balance_core.vocabulary import (BALANCE_NAMES, PART_NAMES, PRESET_NAMES, SCALE_NAMES,
+                                     SYSTEM_NAMES, TERM_NAMES, term_name)
 
-__all__ = ["TERM_NAMES", "BALANCE_NAMES", "SCALE_NAMES", "PRESET_NAMES", "FIELD_NAMES",
+__all__ = ["system_name", "part_name", "TERM_NAMES", "BALANCE_NAMES", "SCALE_NAMES", "PRESET_NAMES", "FIELD_NAMES",
            "NUMBERS", "term_name", "balance_name", "preset_name", "when", "when_short", "lat",
            "lon", "sig", "quote", "KT", "wind", "height", "WIND_UNITS", "HEIGHT_UNITS"]
 
@@ -56,6 +57,14 @@ NUMBERS = {
                               "N H / f0: the length at which rotation and stratification "
                               "matter equally"),
 }
+
+
+def system_name(code: str) -> str:
+    return SYSTEM_NAMES.get(code, str(code).replace("_", " "))
+
+
+def part_name(code: str) -> str:
+    return PART_NAMES.get(code, str(code).replace("_", " "))
 
 
 def balance_name(code: str) -> str:

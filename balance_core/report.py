@@ -330,6 +330,12 @@ def _ageostrophic_parts(diag, cropped, win, sub, ok) -> dict:
         return out
     ua, va = diag.u[win] - diag.ug[win], diag.v[win] - diag.vg[win]
     out["measured_rms"] = weighted_stats(np.hypot(ua, va), sub, have_f, quantiles=False).rms
+    speed = weighted_stats(np.hypot(diag.u[win], diag.v[win]), sub, have_f,
+                           quantiles=False).rms
+    if out["measured_rms"] is not None and speed and out["measured_rms"] > 2.0 * speed:
+        out["note"] = ("V - Vg is more than twice the wind itself: the geostrophic wind "
+                       "overstates the flow here (tight curvature, small f), so the parts "
+                       "describe how far the flow is from geostrophy, not a real cross-flow")
     for name, part in ageostrophic_parts(cropped, inv_f).items():
         if not part.available:
             out["parts"][name] = {"speed_rms": None, "note": part.note}

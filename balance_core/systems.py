@@ -302,8 +302,8 @@ def find_jet_streaks(grid: Grid, u, v, pressure_pa: float, *, threshold: float |
         # half a working cell around the core's centres
         half_lat = 0.5 * float(np.nanmax(np.abs(np.diff(lat_c, axis=0)))) if lat_c.shape[0] > 1 \
             else 0.5
-        half_lon = 0.5 * float(np.nanmax(np.abs(np.diff(lon_c, axis=1)) % 360.0)) \
-            if lon_c.shape[1] > 1 else 0.5
+        dlon = (np.diff(lon_c, axis=1) + 180.0) % 360.0 - 180.0  # across the dateline too
+        half_lon = 0.5 * float(np.nanmax(np.abs(dlon))) if lon_c.shape[1] > 1 else 0.5
         west, east = float(lons.min()) - half_lon, float(lons.max()) + half_lon
         south = max(-90.0, float(lats.min()) - half_lat)
         north = min(90.0, float(lats.max()) + half_lat)

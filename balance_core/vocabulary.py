@@ -7,7 +7,8 @@ page's ranking, field menu, chart titles and exports all say these words.
 
 from __future__ import annotations
 
-__all__ = ["TERM_NAMES", "BALANCE_NAMES", "SCALE_NAMES", "PRESET_NAMES", "term_name"]
+__all__ = ["TERM_NAMES", "BALANCE_NAMES", "SCALE_NAMES", "PRESET_NAMES", "SYSTEM_NAMES",
+           "PART_NAMES", "term_name"]
 
 #: Terms of the momentum equations and their derived views.
 TERM_NAMES = {
@@ -46,6 +47,17 @@ PRESET_NAMES = {
     "front": "Front", "mesoscale_convective_system": "Mesoscale convective system",
     "tropical_cyclone": "Tropical cyclone", "sea_breeze": "Sea breeze", "tornado": "Tornado",
     "boundary_layer": "Boundary layer",
+}
+
+
+#: Kinds of weather system (balance_core.systems).
+SYSTEM_NAMES = {"low": "closed low", "high": "closed high", "jet_streak": "jet streak"}
+
+#: Parts of the ageostrophic wind (balance_core.budget.ageostrophic_parts).
+PART_NAMES = {
+    "tendency": "tendency (isallobaric)", "inertial_advective": "inertial-advective",
+    "vertical_advection": "vertical advection",
+    "remainder": "remainder (curvature, friction, unresolved)",
 }
 
 

@@ -10,7 +10,7 @@ from ..verdict import Thresholds
 from .case import Case, iso
 from .errors import CaseError
 
-__all__ = ["analyse_case", "diagnostics_for"]
+__all__ = ["analyse_case", "diagnostics_for", "analyse_systems", "track_systems"]
 
 
 def diagnostics_for(case: Case, level_index: int, time_index: int, smooth_km=None):
@@ -36,6 +36,9 @@ def analyse_case(case: Case, level_hpa: float, time=None, box=None, *, smooth_km
         box_d = region.describe()
         if region.kind == "polygon":
             box_d = {**box_d, "polygon": {"lons": list(region.lons), "lats": list(region.lats)}}
+        if region.kind == "circle":
+            box_d = {**box_d, "circle": {"lon": region.lons[0], "lat": region.lats[0],
+                                         "radius_km": region.radius_km}}
     elif box is None:
         region = Region.whole()
         box_d = {"west": None, "east": None, "south": None, "north": None}
@@ -81,3 +84,77 @@ def analyse_case(case: Case, level_hpa: float, time=None, box=None, *, smooth_km
                           "speed_over_geostrophic_median": rat.median,
                           "points": ang.count, "note": sfc["density_source"]}
     return out
+
+
+def analyse_systems(case: Case, level_hpa: float, time=None, *, smooth_km=None,
+                    thresholds: Thresholds = Thresholds(), diagnostics=None, limit: int = 30,
+                    interval=None, min_depth=None, jet=None) -> dict:
+    """The weather systems of one level and time (:func:`balance_core.systems.find_systems`)
+    and, for each, the report of its region (:func:`analyse_case`).
+
+    Returns ``case``, ``level_hpa``, ``valid_time``, ``reference_time``, ``lead_time_h``,
+    ``rules`` (the contour interval, least depth and jet threshold used) and ``systems``:
+    each system's kind, centre, intensity and region, with ``report``.
+    """
+    from ..systems import contour_interval, find_systems, jet_threshold
+
+    k = case.level_index(level_hpa)
+    t = case.time_index(time)
+    diag = diagnostics or diagnostics_for(case, k, t, smooth_km)
+    p = float(case.levels_pa[k])
+    found = find_systems(case.grid, diag.height, diag.u, diag.v, p, interval=interval,
+                         min_depth=min_depth, jet=jet, limit=limit)
+    ci = float(interval or contour_interval(p))
+    systems = []
+    for s in found:
+        rep = analyse_case(case, p / 100, t, s.region, smooth_km=smooth_km,
+                           thresholds=thresholds, diagnostics=diag)
+        systems.append({**s.as_dict(), "report": rep})
+    ref = None
+    if case.reference_times is not None and not np.isnat(case.reference_times[t]):
+        ref = case.reference_times[t]
+    return {
+        "case": case.name, "level_hpa": p / 100, "valid_time": iso(case.times[t]),
+        "reference_time": None if ref is None else iso(ref),
+        "lead_time_h": None if ref is None else float((case.times[t] - ref) /
+                                                     np.timedelta64(1, "h")),
+        "rules": {"contour_interval_m": ci,
+                  "min_depth_m": 0.5 * ci if min_depth is None else float(min_depth),
+                  "jet_threshold_ms": float(jet or jet_threshold(p)),
+                  "core_fraction": 0.8, "limit": limit},
+        "systems": systems,
+    }
+
+
+def track_systems(case: Case, level_hpa: float, *, smooth_km=None,
+                  thresholds: Thresholds = Thresholds(), limit: int = 30, progress=None) -> dict:
+    """The systems of every valid time, matched into tracks
+    (:func:`balance_core.systems.match_tracks`): each track's kind and, at each of its
+    times, the centre, intensity, local Rossby number and verdict of its region."""
+    from ..systems import MIN_TRACK_KM, TRACK_SPEED_KMH, System, match_tracks
+
+    per_time, objects = [], []
+    for t in range(case.times.size):
+        out = analyse_systems(case, level_hpa, t, smooth_km=smooth_km, thresholds=thresholds,
+                              limit=limit)
+        per_time.append(out)
+        objects.append([System(s["kind"], s["lon"], s["lat"], s["value"], s["depth"],
+                               s["outer_level"], s["area_km2"], Region.whole(), (0, 0))
+                        for s in out["systems"]])
+        if progress is not None:
+            progress(t + 1, case.times.size)
+    hours = (case.times - case.times[0]) / np.timedelta64(1, "h")
+    tracks = []
+    for track in match_tracks(objects, [float(h) for h in hours]):
+        life = []
+        for t, i in track:
+            s = per_time[t]["systems"][i]
+            life.append({"valid_time": per_time[t]["valid_time"], "lon": s["lon"],
+                         "lat": s["lat"], "intensity": s["intensity"],
+                         "rossby_local_median": s["report"]["numbers"].get("rossby_local_median"),
+                         "verdict": s["report"]["verdict"]["balance"]})
+        tracks.append({"kind": per_time[track[0][0]]["systems"][track[0][1]]["kind"],
+                       "life": life})
+    return {"case": case.name, "level_hpa": per_time[0]["level_hpa"] if per_time else None,
+            "match": {"speed_kmh": TRACK_SPEED_KMH, "min_km": MIN_TRACK_KM},
+            "tracks": tracks, "times": per_time}
