@@ -92,9 +92,14 @@ class Region:
         if not all(np.isfinite(vals)) or not -90 <= lat <= 90 or not 0 < radius_km <= 20000:
             raise ValueError("a circle needs a finite centre on the Earth and a radius of more "
                              "than 0 and at most 20000 km")
-        dlat = np.rad2deg(radius_km * 1e3 / C.EARTH_RADIUS)
-        coslat = max(np.cos(np.deg2rad(lat)), 1e-6)
-        dlon = min(180.0, dlat / coslat)
+        delta = radius_km * 1e3 / C.EARTH_RADIUS  # the radius as an angle, radians
+        dlat = np.rad2deg(delta)
+        if abs(lat) + dlat >= 90.0:
+            dlon = 180.0  # the cap holds a pole: every longitude
+        else:
+            # the half-width in longitude of a spherical cap: sin(dlon) = sin(delta) / cos(lat)
+            dlon = float(np.rad2deg(np.arcsin(min(1.0, np.sin(delta) /
+                                                  np.cos(np.deg2rad(lat))))))
         return cls("circle", float(lon) - dlon, float(lon) + dlon, max(-90.0, lat - dlat),
                    min(90.0, lat + dlat), lons=(float(lon),), lats=(float(lat),),
                    radius_km=float(radius_km))
@@ -122,7 +127,14 @@ class Region:
             offset = (lon - self.west) % 360.0
             return inside_lat & (offset <= width + 1e-9)
         if self.kind == "circle":
-            return great_circle_km(self.lons[0], self.lats[0], lon, lat) <= self.radius_km
+            # the distance only for points in the circle's lon/lat box
+            near = (lat >= self.south) & (lat <= self.north)
+            if self.east - self.west < 360.0:
+                near &= (lon - self.west) % 360.0 <= (self.east - self.west)
+            out = np.zeros(np.broadcast(lon, lat).shape, dtype=bool)
+            out[near] = great_circle_km(self.lons[0], self.lats[0], lon[near],
+                                        lat[near]) <= self.radius_km
+            return out
         from shapely import Polygon, contains_xy  # vectorised point-in-polygon
 
         poly = Polygon(zip(self.lons, self.lats))

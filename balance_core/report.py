@@ -230,11 +230,16 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
 
     speed = weighted_stats(np.hypot(diag.u[win], diag.v[win]), sub, ok, quantiles=False).rms
     parts = _ageostrophic_parts(diag, cropped, win, sub, ok)
-    gstat = weighted_stats(np.hypot(diag.ug, diag.vg)[win], sub, ok, quantiles=False)
-    agf = weighted_stats(diag.ageostrophic_fraction[win], sub, ok)
-    grad = weighted_stats(np.abs(diag.gradient.speed)[win], sub, ok, quantiles=False)
+    # every field cut to the region's window first: a small region of a large grid costs
+    # what its window holds
+    u_w, v_w, ug_w, vg_w = diag.u[win], diag.v[win], diag.ug[win], diag.vg[win]
+    gstat = weighted_stats(np.hypot(ug_w, vg_w), sub, ok, quantiles=False)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        agf_w = np.hypot(u_w - ug_w, v_w - vg_w) / np.hypot(u_w, v_w)
+    agf = weighted_stats(agf_w, sub, ok)
+    grad = weighted_stats(np.abs(diag.gradient.speed[win]), sub, ok, quantiles=False)
     no_root = int(np.count_nonzero(diag.gradient.no_root[win] & ok))
-    ro_local = weighted_stats(diag.rossby_local[win], sub, ok)
+    ro_local = weighted_stats(np.abs(diag.vorticity[win] * g.inverse_f[win]), sub, ok)
     winds = {"speed_rms": speed, "geostrophic_speed_rms": gstat.rms,
              "ageostrophic_fraction_median": agf.median, "gradient_speed_rms": grad.rms}
 

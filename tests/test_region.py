@@ -77,3 +77,16 @@ def test_vector_stats():
     inside = Region.whole().mask(g)
     s, xr, yr = vector_stats(np.full(g.shape, 3.0), np.full(g.shape, 4.0), g, inside)
     assert s.rms == pytest.approx(5.0) and xr == pytest.approx(3.0) and yr == pytest.approx(4.0)
+
+
+@pytest.mark.parametrize("lon, lat, radius", [(179.5, 40.0, 800.0), (-179.0, -20.0, 1500.0),
+                                              (10.0, 86.0, 900.0), (0.0, 0.0, 3000.0)])
+def test_a_circle_holds_the_points_within_its_great_circle_radius(lon, lat, radius):
+    # the circle's points are those whose haversine distance (Sinnott 1984) is within the
+    # radius: the fast mask (a lon/lat box first) against every point by brute force
+    from balance_core.region import great_circle_km
+
+    g = Grid.latlon(np.linspace(90, -90, 181), np.arange(360) * 1.0)
+    fast = Region.circle(lon, lat, radius).mask(g)
+    slow = great_circle_km(lon, lat, g.lon, g.lat) <= radius
+    assert fast.sum() > 0 and np.array_equal(fast, slow)
