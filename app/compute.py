@@ -483,3 +483,89 @@ def scale_sheet(state: ViewState, box_report: dict | None) -> dict:
             "source": s.source, "scales": scale_rows, "terms": term_rows,
             "numbers": res.numbers, "verdict": verdict.as_dict(), "error": error,
             "box_verdict": (box_report or {}).get("verdict"), "order": list(SCALE_TERMS)}
+
+
+# -- systems --------------------------------------------------------------------------
+
+SYSTEM_KEYS = ("case", "level", "time", "smooth_km", "min_lat")
+
+
+def systems_data(library, state: ViewState, thresholds: Thresholds = Thresholds()) -> dict:
+    """The weather systems of the state's level and time, each with its region's report
+    (:func:`balance_core.io.analyse_systems`), shared by every session that shows them.
+
+    Returns ``systems`` (lows and highs by depth, then jet streaks by peak speed; each
+    with ``label``, ``region_text``, ``region`` for the view state, ``verdict``), ``rules``
+    and ``when``.
+    """
+    from balance_core.io import analyse_systems
+
+    from . import formats
+
+    def make():
+        sel = resolve(library, state)
+        case = library.case_for(state.case, state.min_lat)
+        out = analyse_systems(case, sel.level_hpa, sel.time_index,
+                              smooth_km=state.smooth_km or None, thresholds=thresholds,
+                              diagnostics=_diag(library, state, sel))
+        order = {"low": 0, "high": 1, "jet_streak": 2}
+        systems = sorted(out["systems"], key=lambda s: (order[s["kind"]], -s["intensity"]))
+        count = {}
+        rows = []
+        for s in systems:
+            letter = {"low": "L", "high": "H", "jet_streak": "J"}[s["kind"]]
+            count[letter] = count.get(letter, 0) + 1
+            r = s["region"]
+            from .state import parse_region
+
+            text = (f"circle:{r['lon']:.4f},{r['lat']:.4f},{r['radius_km']:.1f}"
+                    if r["kind"] == "circle" else
+                    f"box:{r['west']:.4f},{r['east']:.4f},{r['south']:.4f},{r['north']:.4f}")
+            spec = parse_region(text)[0]  # the link's own compact form
+            region = spec.to_text() if spec is not None else ""
+            rep = s["report"]
+            rows.append({"label": f"{letter}{count[letter]}", "kind": s["kind"],
+                         "lon": s["lon"], "lat": s["lat"], "intensity": s["intensity"],
+                         "value": s["value"], "depth": s["depth"],
+                         "outer_level": s["outer_level"],
+                         "intensity_text": formats.intensity_text(s),
+                         "region": region, "region_text": formats.system_region_text(r),
+                         "verdict": rep["verdict"]["balance"],
+                         "verdict_text": rep["verdict"]["text"],
+                         "points": rep.get("points", 0),
+                         "rossby_local": (rep.get("numbers") or {}).get("rossby_local_median"),
+                         "ageostrophic_parts": rep.get("ageostrophic_parts")})
+        return {"systems": rows, "rules": out["rules"], "when": sel.when,
+                "level_hpa": sel.level_hpa}
+
+    return library.view(_key("systems", state, SYSTEM_KEYS, thresholds), make)
+
+
+def system_life(library, state: ViewState, label: str,
+                thresholds: Thresholds = Thresholds()) -> dict | None:
+    """The track through the valid times of the system ``label`` of the state's time:
+    its centre, intensity, local Rossby number and verdict at each time (None if it is
+    not found)."""
+    from balance_core.io import track_systems
+
+    sel = resolve(library, state)
+    now = systems_data(library, state, thresholds)
+    me = next((s for s in now["systems"] if s["label"] == label), None)
+    if me is None:
+        return None
+    key = ("tracks", state.case, sel.level_index, state.smooth_km, state.min_lat, thresholds)
+
+    def make():
+        case = library.case_for(state.case, state.min_lat)
+        return track_systems(case, sel.level_hpa, smooth_km=state.smooth_km or None,
+                             thresholds=thresholds)
+
+    tracks = library.view(key, make)
+    when = sel.valid_time
+    for tr in tracks["tracks"]:
+        for p in tr["life"]:
+            if p["valid_time"] == when and tr["kind"] == me["kind"] and \
+                    abs(p["lon"] - me["lon"]) < 1e-6 and abs(p["lat"] - me["lat"]) < 1e-6:
+                return {"label": label, "kind": tr["kind"], "life": tr["life"],
+                        "match": tracks["match"]}
+    return None

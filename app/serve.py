@@ -22,8 +22,10 @@ from .cases import case_paths
 __all__ = ["serve", "case_paths", "security_headers", "ServeError", "check_address",
            "PageLimit", "LIMIT", "is_loopback", "read_passphrase", "MAX_URI"]
 
-#: the longest request line taken (a link carries the view in a few hundred characters)
-MAX_URI = 2048
+#: the longest request line taken, with a readable "414" beyond it (Tornado's own limit
+#: on a request's head is 64 KiB); within it every value of a link is still refused on
+#: its own past 400 characters (app.state.MAX_QUERY_VALUE), so the page works and says so
+MAX_URI = 60000
 
 log = logging.getLogger("balance_desk")
 

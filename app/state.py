@@ -8,10 +8,11 @@ holds no data: the data lives in the shared :class:`app.library.CaseLibrary`.
 form of our own, written by :func:`encode_query` and read back through one
 validating parser, :func:`parse_query`. A value that does not parse, or is out
 of range, is not taken: the default stays and a one-line message says so. The
-region is ``box:W,E,S,N`` or, for an area drawn on a conformal chart,
+region is ``box:W,E,S,N``; for an area drawn on a conformal chart,
 ``area:PROJ;lon,lat;lon,lat;lon,lat;lon,lat`` -- the four corners of the drawn
 rectangle and the projection it was drawn in (its sides are straight there), so
-that a drawn area makes a link of about a hundred characters.
+that a drawn area makes a link of about a hundred characters; or, for a weather
+system's region, ``circle:LON,LAT,RADIUS_KM``.
 """
 
 from __future__ import annotations
@@ -98,15 +99,19 @@ def parse_box(vals):
 class RegionSpec:
     """A region of the view: a lon/lat box, or an area drawn on a conformal chart."""
 
-    kind: str                       # "box" or "area"
+    kind: str                       # "box", "area" or "circle"
     bounds: tuple = ()              # box: (W, E, S, N)
-    corners: tuple = ()             # area: four (lon, lat) corners of the drawn rectangle
+    corners: tuple = ()             # area: four (lon, lat) corners; circle: its centre
     proj: tuple = ()                # area: ("lcc", (("lat_1", 38.0), ...)) the chart's projection
+    radius_km: float = 0.0          # circle: its radius
 
     def to_text(self) -> str:
         """The compact form carried by a link (see the module docstring)."""
         if self.kind == "box":
             return "box:" + ",".join(_short(v) for v in self.bounds)
+        if self.kind == "circle":
+            (lon, lat), = self.corners
+            return f"circle:{_short(lon)},{_short(lat)},{_short(self.radius_km, 1)}"
         name, params = self.proj
         p = name + "".join(f",{k}={_short(v, 6)}" for k, v in params)
         return "area:" + ";".join([p] + [f"{_short(lo)},{_short(la)}" for lo, la in self.corners])
@@ -130,6 +135,8 @@ class RegionSpec:
             lats = np.concatenate([np.full(n, s), s + (n_ - s) * t, np.full(n, n_),
                                    n_ + (s - n_) * t])
             return lons, lats
+        if self.kind == "circle":
+            return _circle_outline(self.corners[0], self.radius_km, 4 * n)
         import pyproj
 
         crs = self.crs()
@@ -146,6 +153,9 @@ class RegionSpec:
     def region(self) -> Region:
         if self.kind == "box":
             return Region.box(*self.bounds)
+        if self.kind == "circle":
+            (lon, lat), = self.corners
+            return Region.circle(lon, lat, self.radius_km)
         lons, lats = self.outline()
         ok = np.isfinite(lons) & np.isfinite(lats)
         return Region.polygon(lons[ok], lats[ok])
@@ -154,6 +164,9 @@ class RegionSpec:
         if self.kind == "box":
             w, e, s, n = self.bounds
             return f"box {vocab.lon(w)} to {vocab.lon(e)}, {vocab.lat(s)} to {vocab.lat(n)}"
+        if self.kind == "circle":
+            (lon, lat), = self.corners
+            return f"within {self.radius_km:.0f} km of {vocab.lat(lat)} {vocab.lon(lon)}"
         lons, lats = self.outline(8)
         return (f"drawn area {vocab.lon(float(np.nanmin(lons)))} to "
                 f"{vocab.lon(float(np.nanmax(lons)))}, {vocab.lat(float(np.nanmin(lats)))} to "
@@ -164,9 +177,28 @@ class RegionSpec:
         """West, east, south, north of the region (an area's extent), for the typed fields."""
         if self.kind == "box":
             return tuple(self.bounds)
+        if self.kind == "circle":
+            r = self.region()
+            return (r.west, r.east, r.south, r.north)
         lons, lats = self.outline(8)
         return (float(np.nanmin(lons)), float(np.nanmax(lons)), float(np.nanmin(lats)),
                 float(np.nanmax(lats)))
+
+
+def _circle_outline(centre, radius_km, n):
+    """Lon/lat points on a circle of the sphere (the destination-point formula on a
+    sphere of the mean Earth radius, common practice)."""
+    from balance_core.constants import EARTH_RADIUS
+
+    lon0, lat0 = np.deg2rad(centre[0]), np.deg2rad(centre[1])
+    d = radius_km * 1e3 / EARTH_RADIUS
+    b = np.linspace(0, 2 * np.pi, n + 1)
+    lat = np.arcsin(np.sin(lat0) * np.cos(d) + np.cos(lat0) * np.sin(d) * np.cos(b))
+    lon = lon0 + np.arctan2(np.sin(b) * np.sin(d) * np.cos(lat0),
+                            np.cos(d) - np.sin(lat0) * np.sin(lat))
+    lon = np.rad2deg(lon)
+    lon = np.rad2deg(np.unwrap(np.deg2rad(lon)))
+    return lon, np.rad2deg(lat)
 
 
 def _short(v, digits=4) -> str:
@@ -210,6 +242,13 @@ def parse_region(text):
             if b is not None:
                 return RegionSpec("box", bounds=tuple(b)), None
         return None, "the box in the link is not four numbers west, east, south, north"
+    if t.startswith("circle:"):
+        parts = t[7:].split(",")
+        if len(parts) == 3 and all(re.fullmatch(_NUM, p.strip()) for p in parts):
+            lon, lat, r = (float(p) for p in parts)
+            if -540 <= lon <= 540 and -90 <= lat <= 90 and 1.0 <= r <= 20000.0:
+                return RegionSpec("circle", corners=((lon, lat),), radius_km=r), None
+        return None, "the circle in the link is not a longitude, a latitude and a radius in km"
     if t.startswith("area:"):
         pieces = t[5:].split(";")
         if len(pieces) == 5:
@@ -237,7 +276,7 @@ def parse_region(text):
             if ok and _proj_ok(name, dict(params)):
                 return RegionSpec("area", corners=tuple(corners), proj=(name, tuple(params))), None
         return None, "the drawn area in the link cannot be read"
-    return None, "the region in the link is neither a box nor a drawn area"
+    return None, "the region in the link is neither a box, a drawn area nor a circle"
 
 
 def _proj_ok(name, p) -> bool:
@@ -281,6 +320,14 @@ class ViewState(param.Parameterized):
         if b is None:
             raise ValueError("a box needs finite west, east, south, north with south < north")
         self.region = RegionSpec("box", bounds=tuple(b)).to_text()
+
+    def set_circle(self, lon, lat, radius_km):
+        """A weather system's region: within ``radius_km`` of (lon, lat)."""
+        spec, problem = parse_region(f"circle:{_short(lon)},{_short(lat)},"
+                                     f"{_short(radius_km, 1)}")
+        if spec is None:
+            raise ValueError(problem)
+        self.region = spec.to_text()
 
     def set_area(self, spec: RegionSpec):
         """An area drawn on a conformal chart (see :func:`area_from_crs`)."""

@@ -300,3 +300,49 @@ def test_sessions_showing_one_view_share_its_chart_and_report():
     assert compute.shared_box_data(library, a)["verdict"]["balance"] != "changed"
     b.level = 850.0  # another view is another computation
     assert compute.shared_chart_data(library, b) is not ca
+
+
+def test_the_systems_of_the_level_are_listed_marked_and_chosen(library):
+    # the tropical cyclone at 850 hPa: one closed low; choosing it makes its circle the
+    # view's region (the ranking follows), a click near its mark does the same, the marks
+    # can be hidden, its life is followed through the times, and winds follow the unit
+    from app.desk.page import build_page
+
+    page = build_page(library, {"case": ["tropical_cyclone"], "level": ["850"],
+                                "region": [""]})
+    page.start()
+    data = page.systems.data
+    assert [s["label"] for s in data["systems"]] == ["L1"]
+    assert list(page.chart.sys_src.data["label"]) == ["L1"]
+    assert list(page.chart.sys_src.data["marker"]) == ["circle"]
+    assert page.state.region == "" and page.report["region_points"] > 5000
+    page.systems.w_list.value = "L1"
+    assert page.state.region.startswith("circle:146,18,")
+    assert page.report["verdict"]["balance"] == "cyclostrophic"
+    assert "within 239 km of 18.0N 146.0E" in page.header.object
+    assert "L1 through the valid times" in page.systems.life.object
+    assert page.systems.life.object.count("Cyclostrophic") == 5
+    page.systems.w_list.value = ""
+    page.state.clear_region()
+    page._system_tapped(146.3, 18.2)  # a click on the chart near its mark
+    assert page.state.region.startswith("circle:146,18,")
+    page.state.clear_region()
+    page._system_tapped(141.0, 22.0)  # far from it: nothing chosen
+    assert page.state.region == ""
+    page.systems.w_marks.value = False
+    assert len(page.chart.sys_src.data["x"]) == 0
+    page.systems.w_marks.value = True
+    assert len(page.chart.sys_src.data["x"]) == 1
+    page.state.wind_units = "kt"
+    text = page.systems.status.object + page.systems.detail.object
+    assert "kt" in text and "m/s" not in text
+
+
+def test_a_level_with_no_system_says_so(library):
+    from app.desk.page import build_page
+
+    page = build_page(library, {"case": ["sea_breeze"], "level": ["850"]})
+    page.start()
+    assert page.systems.data["systems"] == []
+    assert "0 found" in page.systems.status.object
+    assert len(page.chart.sys_src.data["x"]) == 0

@@ -210,7 +210,7 @@ def test_a_note_reaches_the_other_and_survives_a_restart(store_path, browser, tm
         with b.expect_download(timeout=60_000) as dl:
             b.get_by_role("button", name="Briefing image (PNG)").click()
         with_notes = open(dl.value.path(), "rb").read()
-        box = b.locator("input[type=checkbox]").first  # the only one: notes in the image
+        box = b.locator("input[type=checkbox]").last  # the room notes come after the systems
         assert box.is_checked()
         box.uncheck()
         b.wait_for_timeout(500)

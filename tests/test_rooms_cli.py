@@ -128,7 +128,7 @@ def test_a_websocket_from_another_origin_is_refused_and_long_links_are_too():
             lambda: connect("http://evil.invalid"))
         assert code == 403
         with pytest.raises(urllib.error.HTTPError) as info:
-            urllib.request.urlopen(url + "?case=" + "x" * 3000, timeout=30)
+            urllib.request.urlopen(url + "?case=" + "x" * 61000, timeout=30)
         assert info.value.code == 414
     finally:
         stop_server(proc)

@@ -49,6 +49,13 @@ def areas(draw):
     return ("area", (proj, p, corners))
 
 
+@st.composite
+def circles(draw):
+    """A weather system's region: a centre and a radius."""
+    return ("circle", (round(draw(st.floats(-180, 180)), 4), round(draw(st.floats(-89, 89)), 4),
+                       round(draw(st.floats(1, 5000)), 1)))
+
+
 changes = st.one_of(
     st.tuples(st.just("case"), st.sampled_from(CASES)),
     st.tuples(st.just("level"), st.sampled_from([1000.0, 925.0, 850.0, 700.0, 500.0, 250.0])),
@@ -66,7 +73,8 @@ changes = st.one_of(
     st.tuples(st.just("sheet"), st.dictionaries(st.sampled_from(SHEET_SCALES),
                                                 st.floats(1e-6, 1e7).map(lambda v: float(f"{v:.6g}")),
                                                 max_size=4)),
-    st.tuples(st.just("region"), st.one_of(st.just(("whole", None)), boxes(), areas())),
+    st.tuples(st.just("region"), st.one_of(st.just(("whole", None)), boxes(), areas(),
+                                           circles())),
 )
 
 
@@ -80,6 +88,8 @@ def apply(state, change):
         state.clear_region()
     elif kind == "box":
         state.set_box(*v)
+    elif kind == "circle":
+        state.set_circle(*v)
     else:
         proj, params, corners = v
         state.set_area(RegionSpec("area", corners=corners, proj=(proj, params)))

@@ -98,8 +98,11 @@ class Chart(pn.viewable.Viewer):
         self.glab_src = ColumnDataSource(dict(x=[], y=[], text=[]))
         self.region_src = ColumnDataSource(dict(x=[], y=[]))
         self.note_src = ColumnDataSource(dict(x=[], y=[], label=[]))
+        self.sys_src = ColumnDataSource(dict(x=[], y=[], label=[], marker=[], colour=[]))
         #: called with (lon, lat) when the chart is clicked, while someone wants a point
         self.tap_listener = None
+        #: called with (lon, lat) for any other click (the systems' marks take it)
+        self.tap_default = None
         self.hover_src = ColumnDataSource(dict(x=[], y=[], lat=[], lon=[], field=[], height=[],
                                                speed=[], dir=[]))
         self.mapper = LinearColorMapper(palette=palette("sequential"), nan_color=(0, 0, 0, 0))
@@ -125,6 +128,13 @@ class Chart(pn.viewable.Viewer):
                     size="head", fill_color="black", line_color="white", line_width=0.5)
         fig.line("x", "y", source=self.region_src, line_color="white", line_width=6)
         fig.line("x", "y", source=self.region_src, line_color=ORANGE, line_width=3.5)
+        # weather systems: shape by kind, fill by verdict, a white rim, the label in a box
+        fig.scatter("x", "y", source=self.sys_src, marker="marker", size=20,
+                    fill_color="colour", line_color="white", line_width=2.5)
+        fig.add_layout(LabelSet(x="x", y="y", text="label", source=self.sys_src,
+                                text_font_size="14px", text_color=INK, text_font_style="bold",
+                                x_offset=12, y_offset=-8, background_fill_color="white",
+                                background_fill_alpha=0.9))
         # review notes pinned to a point: a dark square with a white number beside it
         fig.scatter("x", "y", source=self.note_src, marker="square_pin", size=16,
                     fill_color=INK, line_color="white", line_width=2)
@@ -330,8 +340,23 @@ class Chart(pn.viewable.Viewer):
         self.note_src.data = dict(x=x[ok], y=y[ok],
                                   label=[p[2] for p, k in zip(points, ok) if k])
 
+    def show_systems(self, marks):
+        """Mark weather systems: ``marks`` is a list of (lon, lat, label, marker, colour)."""
+        if self.data is None or not marks:
+            self.sys_src.data = dict(x=[], y=[], label=[], marker=[], colour=[])
+            return
+        x, y = self.data.geom.to_view(np.array([m[0] for m in marks], float),
+                                      np.array([m[1] for m in marks], float))
+        x, y = np.asarray(x, float), np.asarray(y, float)
+        ok = np.isfinite(x) & np.isfinite(y)
+        self.sys_src.data = dict(x=x[ok], y=y[ok],
+                                 label=[m[2] for m, k in zip(marks, ok) if k],
+                                 marker=[m[3] for m, k in zip(marks, ok) if k],
+                                 colour=[m[4] for m, k in zip(marks, ok) if k])
+
     def _on_tap(self, event):
-        if self.tap_listener is None or self.data is None:
+        listener = self.tap_listener or self.tap_default
+        if listener is None or self.data is None:
             return
         x, y = event.x, event.y
         if x is None or y is None:
@@ -343,7 +368,7 @@ class Chart(pn.viewable.Viewer):
             lo, la = g.to_lonlat(np.array([x]), np.array([y]))
             lon, lat = float(np.asarray(lo)[0]), float(np.asarray(la)[0])
         if np.isfinite(lon) and np.isfinite(lat) and -90 <= lat <= 90:
-            self.tap_listener(lon, lat)
+            listener(lon, lat)
 
     # -- drawing a region --------------------------------------------------------------------
     def _on_select(self, event):

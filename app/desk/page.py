@@ -36,6 +36,7 @@ from .chart import Chart
 from .controls import Controls
 from .evidence import Evidence
 from .exports import Exports
+from .systems import SystemsPanel
 from .look import CAUTION, GLOBAL_CSS, INK, INVENTED_BG, alert, esc
 
 __all__ = ["Page", "make_session", "make_room_session", "error_page", "EarlyBuilds"]
@@ -45,6 +46,7 @@ log = logging.getLogger("balance_desk")
 CHART = {"case", "level", "time", "field", "vectors", "smooth_km", "min_lat", "projection",
          "height_units", "wind_units"}
 BOX = {"case", "level", "time", "smooth_km", "min_lat", "region"}
+SYSTEMS = {"case", "level", "time", "smooth_km", "min_lat"}
 #: the report is the same in other units: its numbers are only written again
 UNITS = {"height_units", "wind_units"}
 
@@ -124,6 +126,11 @@ class Page(pn.viewable.Viewer):
         #: in its column)
         self.top = pn.Column(sizing_mode="stretch_width", margin=0)
         self.middle = pn.Column(sizing_mode="stretch_width", margin=0)
+        self.systems = SystemsPanel(self.state)
+        self.systems.on_choose = self._system_chosen
+        self.systems.w_marks.param.watch(lambda e: self._mark_systems(), "value")
+        self.chart.tap_default = self._system_tapped
+        self.chart.layout.append(self.systems)
         self.chart.layout.append(self.middle)
         self.layout = pn.Column(self.header, self.problems, self.top, main,
                                 self.below.tabs, footer, sizing_mode="stretch_width",
@@ -271,6 +278,11 @@ class Page(pn.viewable.Viewer):
             # only the outline moves: no new raster, contours or vectors to send
             spec = snap.region_spec()
             self.chart.show_outline(None if spec is None else compute.region_outline(geom, spec))
+        if names & SYSTEMS and "chart" in views:
+            self.systems.busy()
+            self._submit("systems", lambda: compute.systems_data(self.library, snap,
+                                                                  self.thresholds),
+                         self._show_systems)
         if names & BOX:
             # the views through the levels and the times are computed for an open tab only;
             # a closed one is brought up to date when it is opened
@@ -283,6 +295,8 @@ class Page(pn.viewable.Viewer):
                     self._stale.add(kind)
         if names & UNITS and not (names & BOX and "box" in views) and self.report:
             self.evidence.show(self.report)
+        if names & UNITS and not names & SYSTEMS and self.systems.data is not None:
+            self.systems.show(self.systems.data)
         if names & {"preset", "sheet"} and not names & BOX:
             self.below.show_sheet(compute.scale_sheet(self.state, self.report))
 
@@ -357,7 +371,8 @@ class Page(pn.viewable.Viewer):
             if status == "ok":
                 show(value)
             else:
-                show(None, self._sentence(kind, value)) if kind in ("levels", "times") else \
+                show(None, self._sentence(kind, value)) if kind in ("levels", "times",
+                                                                    "systems", "life") else \
                     self._show_error(kind, self._sentence(kind, value))
         except Exception:  # noqa: BLE001 - a view that cannot be drawn says so, the page lives
             eid = _error_id()
@@ -387,8 +402,52 @@ class Page(pn.viewable.Viewer):
     def _show_chart(self, cd):
         log.debug("page %s: chart shown", id(self))
         self.chart.show(cd)
+        self._mark_systems()
         for fn in self.after_chart:
             fn()
+
+    # -- the systems of the level ----------------------------------------------------------------
+    def _show_systems(self, data, error=None):
+        if data is None:
+            self.systems.show_error(error or "The systems could not be found.")
+            self.chart.show_systems([])
+            return
+        self.systems.show(data)
+        self._mark_systems()
+        self._life()
+
+    def _mark_systems(self):
+        self.chart.show_systems(self.systems.marks())
+
+    def _system_chosen(self, s):
+        """A system chosen in the list or on the chart: its region becomes the view's."""
+        if s["region"] != self.state.region:
+            self.state.region = s["region"]
+        self._life()
+
+    def _system_tapped(self, lon, lat):
+        label = self.systems.pick_near(lon, lat)
+        if label is not None:
+            self.systems.w_list.value = label  # the list's watcher does the rest
+
+    def _life(self):
+        s = self.systems.chosen()
+        if s is None:
+            self.systems.show_life(None)
+            return
+        snap = self.state.copy()
+        self.systems.show_life(None, "Following it through the valid times...")
+        self._submit("life", lambda: compute.system_life(self.library, snap, s["label"],
+                                                         self.thresholds),
+                     self._show_life)
+
+    def _show_life(self, life, error=None):
+        if error:
+            self.systems.show_life(None, error)
+        elif life is None:
+            self.systems.show_life(None, "It could not be followed through the valid times.")
+        else:
+            self.systems.show_life(life)
 
     def _show_box(self, rep):
         log.debug("page %s: ranking shown", id(self))

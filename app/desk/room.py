@@ -73,7 +73,7 @@ class RoomBar(pn.viewable.Viewer):
         self.w_alone = pn.widgets.Button(label="Look on my own", width=170, stylesheets=css)
         self.w_back = pn.widgets.Button(label="Back to the room's view", width=200,
                                         stylesheets=css, visible=False)
-        self.w_name = pn.widgets.TextInput(name="Your name, as the room sees it",
+        self.w_name = pn.widgets.TextInput(label="Your name, as the room sees it",
                                            value=name if named else "", max_length=MAX_NAME,
                                            placeholder="type your name", width=230,
                                            stylesheets=css)
@@ -135,7 +135,7 @@ class RoomNotes(pn.viewable.Viewer):
     def __init__(self, **params):
         super().__init__(**params)
         css = [WIDGET_CSS]
-        self.w_list = pn.widgets.Select(name="Notes (choose one to read it)", options={},
+        self.w_list = pn.widgets.Select(label="Notes (choose one to read it)", options={},
                                         size=7, width=360, stylesheets=css)
         self.detail = pn.pane.HTML("", sizing_mode="stretch_width")
         self.w_show = pn.widgets.Button(label="Show it to the room", width=170,
@@ -143,18 +143,18 @@ class RoomNotes(pn.viewable.Viewer):
         self.w_edit = pn.widgets.Button(label="Edit", width=90, stylesheets=css, disabled=True)
         self.w_withdraw = pn.widgets.Button(label="Withdraw", width=110, stylesheets=css,
                                             disabled=True)
-        self.w_text = pn.widgets.TextAreaInput(name="New note", max_length=MAX_NOTE,
+        self.w_text = pn.widgets.TextAreaInput(label="New note", max_length=MAX_NOTE,
                                                placeholder="What do you see here? (the level, "
                                                "time and region go with it)", height=90,
                                                sizing_mode="stretch_width", stylesheets=css)
-        self.w_pin = pn.widgets.Toggle(name="Pin it to a point: click the chart", width=280,
+        self.w_pin = pn.widgets.Toggle(label="Pin it to a point: click the chart", width=280,
                                        stylesheets=css)
         self.pin_text = pn.pane.HTML("", sizing_mode="stretch_width")
         self.w_add = pn.widgets.Button(label="Add the note", button_type="primary", width=160,
                                        stylesheets=css)
         self.w_cancel = pn.widgets.Button(label="Cancel the edit", width=150, stylesheets=css,
                                           visible=False)
-        self.w_briefing = pn.widgets.Checkbox(name="Room notes in the briefing image",
+        self.w_briefing = pn.widgets.Checkbox(label="Room notes in the briefing image",
                                               value=True, stylesheets=css)
         self.w_md = pn.widgets.FileDownload(label="Notes (Markdown)", filename="room-notes.md",
                                             callback=None, width=180, stylesheets=css)
@@ -412,13 +412,13 @@ class RoomSession:
             return
         self._editing = note.note_id
         self.notes.w_text.value = note.text
-        self.notes.w_text.name = f"Edit note #{self._number(note.note_id)}"
+        self.notes.w_text.label = f"Edit note #{self._number(note.note_id)}"
         self.notes.w_add.label = "Save the edit"
         self.notes.w_cancel.visible = True
 
     def _stop_edit(self):
         self._editing = None
-        self.notes.w_text.name = "New note"
+        self.notes.w_text.label = "New note"
         self.notes.w_add.label = "Add the note"
         self.notes.w_cancel.visible = False
         self.notes.w_text.value = ""
@@ -486,7 +486,7 @@ class RoomOpener(pn.viewable.Viewer):
         super().__init__(**params)
         css = [WIDGET_CSS]
         self.hub, self.page = hub, page
-        self.w_title = pn.widgets.TextInput(name="Review with others: a title",
+        self.w_title = pn.widgets.TextInput(label="Review with others: a title",
                                             max_length=MAX_TITLE, width=width,
                                             placeholder="e.g. Tuesday 12 UTC briefing",
                                             stylesheets=css)
