@@ -19,7 +19,6 @@ Each rule is shown saying no where it can (a vortex too shallow, a jet too weak,
 that reaches the edge).
 """
 
-import glob
 import math
 import os
 
