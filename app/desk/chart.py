@@ -164,7 +164,10 @@ class Chart(pn.viewable.Viewer):
         self.hover_units = {"field": "", "height": "m", "wind": "m/s"}
         self.hover = HoverTool(renderers=[hover_r], tooltips=HOVER_TIPS("field"),
                                formatters=_hover_formatters(self.hover_src, self.hover_units))
-        self.box_tool = BoxSelectTool(renderers=[hover_r], description="Draw a region")
+        # the tool selects from an empty renderer: only the drawn geometry is wanted, not
+        # the indices of the hover grid's cells under it (hundreds sent at every drag)
+        nothing = fig.scatter(x=[], y=[], size=0, alpha=0)
+        self.box_tool = BoxSelectTool(renderers=[nothing], description="Draw a region")
         fig.add_tools(self.box_tool, PanTool(), WheelZoomTool(), ResetTool(), self.hover)
         fig.toolbar.active_drag = self.box_tool
         fig.toolbar.active_scroll = None

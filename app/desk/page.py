@@ -167,7 +167,7 @@ class Page(pn.viewable.Viewer):
         """The page is in the browser: compute everything it shows (what :meth:`prime`
         started is not asked for again)."""
         self.live = True
-        views = ("levels", "times") if getattr(self, "_primed", False) else None
+        views = ("systems", "levels", "times") if getattr(self, "_primed", False) else None
         if self.doc is not None and self.doc.session_context is not None:
             self._held(partial(self.refresh, set(URL_PARAMS), views))
         else:
@@ -245,7 +245,7 @@ class Page(pn.viewable.Viewer):
     def refresh(self, names=None, views=None):
         """Recompute what the changed parameters affect (of ``views``: all by default)."""
         names = set(names or URL_PARAMS)
-        views = set(views or ("box", "chart", "levels", "times"))
+        views = set(views or ("box", "chart", "systems", "levels", "times"))
         snap = self.state.copy()
         # a view another session computed already (a review room's followers) is shown at
         # once: no busy mark, no trip through the pool
@@ -278,7 +278,7 @@ class Page(pn.viewable.Viewer):
             # only the outline moves: no new raster, contours or vectors to send
             spec = snap.region_spec()
             self.chart.show_outline(None if spec is None else compute.region_outline(geom, spec))
-        if names & SYSTEMS and "chart" in views:
+        if names & SYSTEMS and "systems" in views:
             self.systems.busy()
             self._submit("systems", lambda: compute.systems_data(self.library, snap,
                                                                   self.thresholds),
