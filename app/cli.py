@@ -6,6 +6,7 @@
     balance-desk serve     the dashboard
     balance-desk rooms     review rooms: create, list, export their notes
     balance-desk systems   the weather systems of a level, each with its balance
+    balance-desk batch     the same over whole archives, on dask.distributed
     balance-desk verify    the reference checks, run on this machine
 
 Every error is one sentence on stderr: exit status 2 for bad input, 1 for
@@ -98,6 +99,20 @@ def _size(name):
             raise argparse.ArgumentTypeError(f"{name} must be a size such as 512M or 4G, got "
                                              f"{text!r}") from None
     return conv
+
+
+def _levels(text):
+    out = []
+    for part in str(text).split(","):
+        try:
+            v = float(part)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"--levels must be pressure levels in hPa such as "
+                                             f"850,500,250, got {text!r}") from None
+        if not (math.isfinite(v) and 1 <= v <= 1100):
+            raise argparse.ArgumentTypeError(f"--levels must lie from 1 to 1100 hPa, got {part}")
+        out.append(v)
+    return out
 
 
 def _non_negative(name):
@@ -202,6 +217,32 @@ def build_parser() -> argparse.ArgumentParser:
                    metavar="SIZE")
     p.add_argument("--format", choices=("table", "json", "csv"), default="table")
     p.set_defaults(func=cmd_systems)
+
+    p = sub.add_parser("batch", help="the report of boxes or systems over whole archives, on "
+                                     "dask.distributed",
+                       description="One row per (file, member, valid time, level, region), "
+                                   "with everything analyze reports; on a local cluster sized "
+                                   "to this machine, or on an existing one (--scheduler).")
+    p.add_argument("files", nargs="+", metavar="FILE_OR_GLOB")
+    p.add_argument("--levels", required=True, type=_levels, metavar="HPA,HPA,...")
+    regions = p.add_mutually_exclusive_group(required=True)
+    regions.add_argument("--box", action="append", type=_box, metavar="W,E,S,N",
+                         help="a box (may be given several times)")
+    regions.add_argument("--boxes", metavar="FILE.yaml",
+                         help="named boxes: 'name: [west, east, south, north]' per line")
+    regions.add_argument("--systems", action="store_true",
+                         help="the systems found in each field, each with its region")
+    p.add_argument("--out", required=True, metavar="RESULT.parquet|RESULT.csv")
+    p.add_argument("--workers", type=_bounded("--workers", 1, 512), default=None,
+                   help="workers of the local cluster (default: one per core)")
+    p.add_argument("--scheduler", default=None, metavar="tcp://HOST:PORT",
+                   help="an existing dask scheduler instead of a local cluster")
+    p.add_argument("--memory-limit", default=None, metavar="SIZE",
+                   help="memory per worker of the local cluster, e.g. 2GB")
+    p.add_argument("--member", default="0", metavar="all|N|mean")
+    p.add_argument("--min-lat", type=_bounded("--min-lat", 0.0, 60.0), default=10.0,
+                   metavar="DEG")
+    p.set_defaults(func=cmd_batch)
 
     p = sub.add_parser("cases", help="list the bundled sample cases",
                        description="The invented sample cases, with their levels, times and a "
@@ -403,6 +444,37 @@ def cmd_systems(args) -> int:
         print(formats.systems_csv(out), end="")
     else:
         print(formats.systems_table(out))
+    return 0
+
+
+# -- batch ---------------------------------------------------------------------------
+
+def cmd_batch(args) -> int:
+    import logging
+
+    from .batch import BatchError, read_boxes, run_batch
+
+    member = str(args.member).strip().lower()
+    if member not in ("all", "mean"):
+        member = str(_member(member))
+    try:
+        if args.boxes:
+            boxes = read_boxes(args.boxes)
+        elif args.box:
+            boxes = [(f"box {','.join(f'{v:g}' for v in b)}", tuple(b)) for b in args.box]
+        else:
+            boxes = []
+        for name in ("distributed", "distributed.worker", "distributed.scheduler",
+                     "distributed.nanny", "distributed.core", "distributed.http.proxy"):
+            logging.getLogger(name).setLevel(logging.ERROR)
+        run_batch(args.files, args.levels, args.out, boxes=boxes, systems=args.systems,
+                  workers=None if args.workers is None else int(args.workers),
+                  scheduler=args.scheduler, memory_limit=args.memory_limit, member=member,
+                  min_lat=args.min_lat, say=lambda text: print(text, flush=True))
+    except BatchError as exc:
+        raise UsageError(str(exc)) from None
+    except KeyboardInterrupt:
+        return 130
     return 0
 
 

@@ -76,6 +76,8 @@ class Case:
     ground_field: str | None = None
     #: lazy bool DataArray (time, level, y, x): True below the ground, or None
     below: object = None
+    #: how many ensemble members the files hold (1 without a member dimension)
+    member_count: int = 1
 
     # -- what the data can give ----------------------------------------------------
     @property
@@ -523,7 +525,8 @@ def _assemble(pieces, *, min_lat, name) -> Case:
     return Case(name=nm, title=title, paths=[pc.path for pc in pieces], grid=grid,
                 times=times, levels_pa=first.levels_pa, data=data, surface=surface, notes=notes,
                 below_ground=below, attrs=first.attrs, sources=sources, reference_times=refs,
-                dropped=dropped, ground_field=ground_field, below=below_da)
+                dropped=dropped, ground_field=ground_field, below=below_da,
+                member_count=max(pc.member_count for pc in pieces))
 
 
 def _check_times(pc) -> list:

@@ -362,6 +362,8 @@ class Piece:
     dropped: dict = dataclasses.field(default_factory=dict)
     #: datetime64[ns] reference (run) time of each valid time, NaT where unknown
     reference_times: np.ndarray | None = None
+    #: how many ensemble members the file holds (1 without a member dimension)
+    member_count: int = 1
     #: role -> Raw: the file's values, for the checks and the count of fill values
     fills: dict = dataclasses.field(default_factory=dict)
     #: role -> GRIB fields missing from its (member, time, level) hypercube
@@ -600,6 +602,7 @@ def normalise(path, datasets, *, member=0) -> Piece:
     y_dim, x_dim, kind = _spatial_dims(ref_da, ref_ds, path, name)
     data, surface, sources, fills, holes = {}, {}, {}, {}, {}
     member_note = None
+    member_count = 1
     grid_relative = False
     if kind == "projected":
         for role, target in (("u", "x_wind"), ("v", "y_wind"), ("u10", "x_wind10"),
@@ -613,6 +616,9 @@ def normalise(path, datasets, *, member=0) -> Piece:
             vname, da, ds = c.name, c.da, c.ds
             if role in ("x_wind", "y_wind"):
                 grid_relative = True
+            mdim = _member_dim(da, ds)
+            if mdim is not None:
+                member_count = max(member_count, int(da.sizes[mdim]))
             da, mnote = _reduce_member(da, ds, member, path, vname)
             member_note = member_note or mnote
             if role in STATIC_ROLES and not any(_is_time_like(d, ds) or _is_step_like(d, ds)
@@ -716,7 +722,8 @@ def normalise(path, datasets, *, member=0) -> Piece:
     return Piece(path=str(path), data=data, surface=surface, lat=lat, lon=lon, crs=crs, x=x, y=y,
                  levels_pa=levels, times=times, grid_relative=grid_relative, notes=notes,
                  attrs=dict(ref_ds.attrs), sources=sources, dropped=dropped,
-                 reference_times=ref_times, fills=fills, holes=holes)
+                 reference_times=ref_times, fills=fills, holes=holes,
+                 member_count=member_count)
 
 
 def _is_dask(da) -> bool:

@@ -1,0 +1,180 @@
+"""``balance-desk batch`` on dask.distributed, on loopback.
+
+* a real scheduler and two workers started with dask's own command-line tools
+  (``dask scheduler``, ``dask worker``): every row of ``batch --scheduler`` equals, to the
+  last bit, the report ``analyze`` makes in this process for the same slice and box;
+* a run killed partway (SIGKILL of the whole process group) and started again: no row
+  missing, none twice, and the same rows as a run that was never stopped;
+* a bad file among good ones: one row in the errors table, results for all the others.
+"""
+
+import os
+import signal
+import socket
+import subprocess
+import sys
+import time
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from makedata import latlon_dataset
+
+pytestmark = pytest.mark.slow
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+BIN = os.path.dirname(sys.executable)
+BOXES = [(-40.0, -10.0, 35.0, 55.0), (-20.0, 10.0, 40.0, 60.0)]
+
+
+@pytest.fixture(scope="module")
+def archive(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("archive")
+    for i in range(3):
+        ds, _ = latlon_dataset(np.linspace(20, 70, 26), np.linspace(-60, 20, 41))
+        ds.attrs["title"] = f"synthetic archive file {i}"
+        ds.to_netcdf(folder / f"run{i}.nc")
+    return folder
+
+
+def _batch(args, cwd, env=None, **kw):
+    cmd = [sys.executable, "-m", "app.cli", "batch", *args]
+    return subprocess.run(cmd, capture_output=True, text=True, cwd=cwd, timeout=600,
+                          env=env, **kw)
+
+
+def _box_args():
+    return [f"--box={','.join(f'{v:g}' for v in b)}" for b in BOXES]
+
+
+def _free_port():
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+def test_rows_from_a_real_cluster_equal_analyze(archive, tmp_path):
+    from app.batch import Task, flatten
+    from balance_core.io import analyse_case, open_case
+
+    port = _free_port()
+    sched = subprocess.Popen([os.path.join(BIN, "dask"), "scheduler", "--host", "127.0.0.1",
+                              "--port", str(port), "--dashboard-address", ":0"],
+                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+                             start_new_session=True)
+    worker = subprocess.Popen([os.path.join(BIN, "dask"), "worker", f"tcp://127.0.0.1:{port}",
+                               "--nworkers", "2", "--nthreads", "1", "--dashboard-address",
+                               ":0"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+                              cwd=ROOT, start_new_session=True)
+    try:
+        from distributed import Client
+
+        for _ in range(120):
+            try:
+                with Client(f"tcp://127.0.0.1:{port}", timeout="2s") as c:
+                    if len(c.scheduler_info()["workers"]) == 2:
+                        break
+            except OSError:
+                pass
+            time.sleep(0.5)
+        out = tmp_path / "rows.parquet"
+        p = _batch([str(archive / "run*.nc"), "--levels", "850,500", *_box_args(), "--out",
+                    str(out), "--scheduler", f"tcp://127.0.0.1:{port}"], cwd=ROOT)
+        assert p.returncode == 0, p.stderr + p.stdout
+        assert "verdicts by level and region" in p.stdout
+        rows = pd.read_parquet(out)
+    finally:
+        for proc in (worker, sched):
+            os.killpg(proc.pid, signal.SIGTERM)
+            proc.wait(timeout=30)
+    # 3 files x 3 valid times x 2 levels x 2 boxes
+    assert len(rows) == 36
+    assert rows["file_sha256"].str.len().eq(64).all()
+    compared = 0
+    for path in sorted(archive.glob("run*.nc")):
+        case = open_case(str(path))
+        for t in range(case.times.size):
+            for lev in (850.0, 500.0):
+                for b in BOXES:
+                    name = f"box {','.join(f'{v:g}' for v in b)}"
+                    want = flatten(analyse_case(case, lev, t, b),
+                                   Task(str(path), None, t, lev, ()), name)
+                    got = rows[(rows.file == path.name) & (rows.valid_time == want["valid_time"])
+                               & (rows.level_hpa == lev) & (rows.region == name)]
+                    assert len(got) == 1
+                    got = got.iloc[0]
+                    for k, v in want.items():
+                        if isinstance(v, float):
+                            assert got[k] == v, (k, got[k], v)  # to the last bit
+                        elif k not in ("path",):
+                            assert (got[k] if not pd.isna(got[k]) else None) == v, (k, got[k], v)
+                    compared += 1
+    assert compared == 36
+
+
+def test_a_run_killed_partway_goes_on_without_gaps_or_repeats(archive, tmp_path):
+    many = tmp_path / "many"
+    many.mkdir()
+    for i in range(4):
+        ds, _ = latlon_dataset(np.linspace(20, 70, 26), np.linspace(-60, 20, 41),
+                               levels=np.array([1000, 925, 850, 700, 500, 300, 250.0]))
+        ds.to_netcdf(many / f"f{i}.nc")
+    args = [str(many / "f*.nc"), "--levels", "850,700,500,300", *_box_args(), "--workers", "2"]
+    out = tmp_path / "rows.csv"
+    proc = subprocess.Popen([sys.executable, "-m", "app.cli", "batch", *args, "--out",
+                             str(out)], cwd=ROOT, stdout=subprocess.DEVNULL,
+                            stderr=subprocess.DEVNULL, start_new_session=True)
+    parts = tmp_path / "rows.csv.parts"
+    deadline = time.time() + 300
+    while time.time() < deadline:
+        done = list(parts.glob("*.json")) if parts.exists() else []
+        if len(done) >= 5:
+            break
+        time.sleep(0.1)
+    os.killpg(proc.pid, signal.SIGKILL)  # the client and its local cluster, at once
+    proc.wait(timeout=60)
+    assert 5 <= len(list(parts.glob("*.json"))) < 48  # of 4 files x 3 times x 4 levels
+    p = _batch([*args, "--out", str(out)], cwd=ROOT)
+    assert p.returncode == 0, p.stderr + p.stdout
+    assert "already done" in p.stdout
+    rows = pd.read_csv(out)
+    keys = rows[["file", "valid_time", "level_hpa", "region"]].apply(tuple, axis=1)
+    assert len(rows) == 4 * 3 * 4 * 2 and keys.is_unique
+    fresh = tmp_path / "fresh.csv"
+    p = _batch([*args, "--out", str(fresh)], cwd=ROOT)
+    assert p.returncode == 0
+    pd.testing.assert_frame_equal(rows, pd.read_csv(fresh))
+
+
+def test_a_bad_file_is_one_error_and_the_others_are_analysed(archive, tmp_path):
+    folder = tmp_path / "mixed"
+    folder.mkdir()
+    for f in sorted(archive.glob("run*.nc"))[:2]:
+        (folder / f.name).write_bytes(f.read_bytes())
+    (folder / "broken.nc").write_bytes(b"this is not a NetCDF file")
+    out = tmp_path / "rows.csv"
+    p = _batch([str(folder / "*.nc"), "--levels", "500", *_box_args(), "--out", str(out),
+                "--workers", "1"], cwd=ROOT)
+    assert p.returncode == 0, p.stderr + p.stdout
+    rows = pd.read_csv(out)
+    errors = pd.read_csv(tmp_path / "rows.errors.csv")
+    assert sorted(set(rows.file)) == ["run0.nc", "run1.nc"] and len(rows) == 2 * 3 * 2
+    assert len(errors) == 1 and errors.file.iloc[0].endswith("broken.nc")
+    assert "broken.nc" in errors.error.iloc[0]
+
+
+def test_bad_arguments_are_one_sentence(tmp_path):
+    for args, words in (
+            (["nothing*.nc", "--levels", "500", "--systems", "--out", str(tmp_path / "a.csv")],
+             "no file matches"),
+            ([str(tmp_path / "x.nc"), "--levels", "500", "--systems", "--out",
+              str(tmp_path / "a.txt")], "must end in .parquet or .csv"),
+            ([str(tmp_path / "x.nc"), "--levels", "5000", "--systems", "--out",
+              str(tmp_path / "a.csv")], "--levels must lie"),
+            ([str(tmp_path / "x.nc"), "--levels", "500", "--out", str(tmp_path / "a.csv")],
+             "one of the arguments")):
+        (tmp_path / "x.nc").write_bytes(b"")
+        p = _batch(args, cwd=ROOT)
+        assert p.returncode == 2 and words in p.stderr, (args, p.stderr)
+        assert len(p.stderr.strip().splitlines()) == 1
