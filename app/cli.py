@@ -271,6 +271,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="serve another address without a passphrase (warns at every start)")
     p.add_argument("--origin", action="append", default=[], metavar="HOST[:PORT]",
                    help="another address people type to reach the server (for websockets)")
+    p.add_argument("--archive", action="append", default=[], metavar="RESULT.parquet",
+                   help="a result of balance-desk batch, shown through the archive at /archive")
     p.set_defaults(func=cmd_serve)
 
     p = sub.add_parser("rooms", help="review rooms: create one, list them, export notes",
@@ -531,7 +533,8 @@ def cmd_serve(args) -> int:
         serve(args.files, args.cases, host=args.host, port=args.port, show=args.show,
               memory_budget=args.memory_budget, out=lambda text: print(text, flush=True),
               store=args.store, passphrase_file=args.passphrase_file,
-              open_without_passphrase=args.open_without_passphrase, origins=args.origin)
+              open_without_passphrase=args.open_without_passphrase, origins=args.origin,
+              archives=args.archive)
     except ServeError as exc:
         raise UsageError(str(exc)) from None
     return 0

@@ -213,7 +213,7 @@ def _origins(host, port, extra=()):
 
 def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *,
           memory_budget=None, start=True, out=print, store=None, passphrase_file=None,
-          open_without_passphrase=False, origins=(), env=None):
+          open_without_passphrase=False, origins=(), env=None, archives=()):
     """Load the cases once and serve the desk page and the review rooms.
 
     Says which cases failed and why, refuses to start (ServeError) when none loads
@@ -260,6 +260,16 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
         hub = Hub(open_store(store_path), RoomLimits(notes_per_minute=per_minute))
     except StoreError as exc:
         raise ServeError(f"balance-desk serve: {exc}") from None
+    results, archive_problems = {}, []
+    if archives:
+        from .desk.archive import load_result
+
+        for a in archives:
+            try:
+                results[os.path.basename(a)] = load_result(a)
+            except ValueError as exc:
+                archive_problems.append(str(exc))
+                out(f"balance-desk: not serving {a}: {exc}")
     paths = case_paths(files, cases_dir)
     if not paths:
         raise ServeError("balance-desk serve: no case files found")
@@ -283,8 +293,12 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
     level = quiet.level
     quiet.setLevel(logging.WARNING)  # a refusal to start is one sentence, nothing else
     try:
+        from .desk.archive import make_archive_session
+
         server = pn.serve({"/": lambda: make_session(library, hub=hub),
-                           "/room": lambda: make_room_session(library, hub)},
+                           "/room": lambda: make_room_session(library, hub),
+                           "/archive": lambda: make_archive_session(results,
+                                                                     archive_problems)},
                           address=host, port=port, show=show,
                           title="balance-desk", websocket_origin=origins, start=False,
                           print=False, transforms=[_transform(security_headers(host, port))],
@@ -311,6 +325,9 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
     except (AttributeError, ValueError, OSError):
         pass
     out(f"balance-desk: review rooms are kept in {store_path}")
+    if results:
+        out(f"balance-desk: batch results through the archive at http://{host}:{port}/archive "
+            f"({', '.join(results)})")
     out(f"balance-desk: serving {len(library.good)} case(s) at http://{host}:{port}/ "
         f"({', '.join(library.good)})")
     if start:

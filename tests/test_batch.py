@@ -178,3 +178,35 @@ def test_bad_arguments_are_one_sentence(tmp_path):
         p = _batch(args, cwd=ROOT)
         assert p.returncode == 2 and words in p.stderr, (args, p.stderr)
         assert len(p.stderr.strip().splitlines()) == 1
+
+
+def test_a_result_opens_through_the_archive(tmp_path):
+    # the rows analyze makes for a box through the valid times of a sample case, as a batch
+    # writes them: the archive page shows their ratios and verdicts for a region and level
+    from app.batch import Task, _write_table, flatten
+    from app.desk.archive import ArchivePage, load_result
+    from balance_core.io import analyse_case, open_case
+
+    path = os.path.join(ROOT, "sample_cases", "ocean_cyclone.nc")
+    case = open_case(path)
+    rows = []
+    for t in range(case.times.size):
+        for lev in (500.0, 1000.0):
+            rep = analyse_case(case, lev, t, (-52.0, -28.0, 38.0, 56.0))
+            rows.append(flatten(rep, Task(path, None, t, lev, ()), "cyclone box"))
+    out = str(tmp_path / "r.parquet")
+    _write_table(out, rows)
+    page = ArchivePage({"r.parquet": load_result(out)})
+    assert page.w_region.value == "cyclone box"
+    page.w_level.value = 500.0
+    data = page.src.data
+    assert len(data["t"]) == case.times.size
+    assert set(data["verdict"]) == {"Geostrophic"}  # the sample's own verdict at 500 hPa
+    assert np.all(data["ratio_geostrophic"] < 0.3)
+    assert "5 valid times" in page.counts.object and "Geostrophic: 5 of 5" in page.counts.object
+    page.w_level.value = 1000.0
+    assert "Frictional" in page.counts.object
+    with pytest.raises(ValueError):
+        bad = tmp_path / "bad.csv"
+        bad.write_text("a,b\n1,2\n")
+        load_result(str(bad))

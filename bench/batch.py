@@ -1,0 +1,176 @@
+"""``balance-desk batch`` on a synthetic archive the bench makes itself.
+
+The archive: 0.25-degree global levels (721 x 1440) at 850, 500 and 250 hPa, ``--times``
+valid times (default 40), one NetCDF file per time (float32, as archives are stored).
+Two boxes per level. Measured in the same run:
+
+* the core called directly, in this process, on every piece (``run_task`` one after
+  another): the reference;
+* the batch on a local cluster of 1 worker, then of 2 workers (one thread each);
+* the batch with 2 workers whose memory limit is a quarter of the archive's size:
+  it must complete with no task lost to memory and no worker restarted; the peak
+  memory of the workers is sampled with dask's own ``MemorySampler``.
+
+Prints ``ratio workers2/workers1`` (throughput; goal >= 1.7), ``ratio
+batch_task/direct_call`` (time per piece on 1 worker over the direct call; goal
+< 1.2) and ``figure peak_worker_memory_mb``, ``figure archive_mb``.
+
+    python bench/batch.py [--times 40] [--keep DIR]
+"""
+
+from __future__ import annotations
+
+import argparse
+import glob
+import os
+import shutil
+import sys
+import tempfile
+import time
+
+os.environ.setdefault("PROJ_NETWORK", "OFF")
+import pyproj  # noqa: E402,F401
+
+import numpy as np  # noqa: E402
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+ROOT = os.path.dirname(HERE)
+sys.path.insert(0, ROOT)
+
+BOXES = [("north atlantic", (-60.0, -10.0, 35.0, 65.0)), ("north pacific", (150.0, -140.0, 30.0, 60.0))]
+LEVELS = [850.0, 500.0, 250.0]
+
+
+def make_archive(folder, n_times):
+    import pandas as pd
+    import xarray as xr
+
+    from balance_core import Grid
+    from balance_core.thermo import standard_atmosphere_height, standard_atmosphere_temperature
+    from balance_core.winds import geostrophic_wind
+
+    lat = np.linspace(90, -90, 721)
+    lon = np.arange(1440) * 0.25
+    lam, phi = np.meshgrid(np.deg2rad(lon), np.deg2rad(lat))
+    cos, sin = np.cos(phi), np.sin(phi)
+    levels = np.array(LEVELS)
+    grid = Grid.latlon(lat, lon)
+    t0 = pd.Timestamp("2039-01-01T00")
+    for i in range(n_times):
+        ph = lam - 2e-6 * 6 * 3600 * i
+        shape = (1, 3) + lam.shape
+        z, u, v, om, t = (np.empty(shape, np.float32) for _ in range(5))
+        for k, p in enumerate(levels):
+            s = np.log(1e3 / p) / np.log(4)
+            z[0, k] = standard_atmosphere_height(p * 100) - 300 * s * sin ** 2 + \
+                80 * (1 + s) * np.cos(5 * ph) * (2 * sin * cos) ** 2
+            # the wind of the heights (geostrophic; calm within the tropical mask), with a
+            # ten per cent ageostrophic part
+            ug, vg = geostrophic_wind(grid, z[0, k].astype(np.float64))
+            ug, vg = np.nan_to_num(ug), np.nan_to_num(vg)
+            u[0, k] = 0.92 * ug - 0.1 * vg
+            v[0, k] = 0.92 * vg + 0.1 * ug
+            om[0, k] = 0.3 * np.sin(5 * ph) * cos
+            t[0, k] = standard_atmosphere_temperature(p * 100) + 25 * (cos ** 2 - 0.5) - 5 * s
+        coords = {"time": [t0 + pd.Timedelta(hours=6 * i)], "level": ("level", levels,
+                                                                      {"units": "hPa"}),
+                  "lat": ("lat", lat, {"units": "degrees_north", "standard_name": "latitude"}),
+                  "lon": ("lon", lon, {"units": "degrees_east", "standard_name": "longitude"})}
+        dims = ("time", "level", "lat", "lon")
+        ds = xr.Dataset({
+            "z": (dims, z, {"standard_name": "geopotential_height", "units": "m"}),
+            "u": (dims, u, {"standard_name": "eastward_wind", "units": "m s-1"}),
+            "v": (dims, v, {"standard_name": "northward_wind", "units": "m s-1"}),
+            "w": (dims, om, {"standard_name": "lagrangian_tendency_of_air_pressure",
+                             "units": "Pa s-1"}),
+            "t": (dims, t, {"standard_name": "air_temperature", "units": "K"})},
+            coords=coords, attrs={"title": "synthetic archive for bench/batch.py",
+                                  "source": "synthetic"})
+        ds.to_netcdf(os.path.join(folder, f"an_{i:03d}.nc"))
+
+
+def run(files, out, workers, memory_limit=None, sample=False):
+    """Seconds of a batch run in this process (a local cluster), and the sampler."""
+    from distributed import Client, LocalCluster
+    from distributed.diagnostics import MemorySampler
+
+    from app.batch import run_batch
+
+    for p in glob.glob(out + "*"):
+        shutil.rmtree(p) if os.path.isdir(p) else os.unlink(p)
+    ms = MemorySampler()
+    t0 = time.perf_counter()
+    if sample:
+        # the same run on a cluster made here, so that its memory can be sampled; a worker
+        # that was restarted would come back under another address
+        lc = LocalCluster(n_workers=workers, threads_per_worker=1, memory_limit=memory_limit,
+                          dashboard_address=":0")
+        client = Client(lc)
+        try:
+            before = set(client.scheduler_info()["workers"])
+            with ms.sample("workers", client=client, measure="process", interval=0.25):
+                run_batch(files, LEVELS, out, boxes=BOXES, scheduler=lc.scheduler_address,
+                          say=lambda *a: None, err=lambda *a: None)
+            after = set(client.scheduler_info()["workers"])
+        finally:
+            client.close()
+            lc.close()
+        return time.perf_counter() - t0, ms, sorted(after - before)
+    run_batch(files, LEVELS, out, boxes=BOXES, workers=workers, memory_limit=memory_limit,
+              say=lambda *a: None, err=lambda *a: None)
+    return time.perf_counter() - t0, None, []
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--times", type=int, default=40)
+    ap.add_argument("--keep", default=None, help="keep the archive in this folder")
+    args = ap.parse_args(argv)
+    folder = args.keep or tempfile.mkdtemp(prefix="bd-archive-")
+    os.makedirs(folder, exist_ok=True)
+    files = sorted(glob.glob(os.path.join(folder, "an_*.nc")))
+    if len(files) != args.times:
+        t0 = time.perf_counter()
+        make_archive(folder, args.times)
+        files = sorted(glob.glob(os.path.join(folder, "an_*.nc")))
+        print(f"archive made in {time.perf_counter() - t0:.0f} s", file=sys.stderr)
+    size_mb = sum(os.path.getsize(f) for f in files) / 2 ** 20
+    pieces = len(files) * len(LEVELS)
+
+    from app.batch import plan_tasks, run_task
+
+    tasks = plan_tasks(files, LEVELS, boxes=BOXES)
+    t0 = time.perf_counter()
+    for task in tasks:
+        r = run_task(task)
+        assert r["error"] is None, r["error"]
+    direct = time.perf_counter() - t0
+    out = os.path.join(folder, "result.parquet")
+    one, _, _ = run(files, out, 1)
+    two, _, _ = run(files, out, 2)
+    limit = int(size_mb / 4 * 2 ** 20)
+    limited, sampler, restarts = run(files, out, 2, memory_limit=limit, sample=True)
+    import pandas as pd
+
+    rows = pd.read_parquet(out)
+    errors = pd.read_csv(os.path.splitext(out)[0] + ".errors.csv")
+    peak = sampler.to_pandas().max().max() / 2 ** 20
+    print(f"archive: {len(files)} files, {pieces} pieces (3 levels x {len(files)} times, "
+          f"0.25-degree global), {size_mb:.0f} MB; {os.cpu_count()} cores")
+    print(f"  direct calls, in one process:   {direct:7.1f} s ({direct / pieces:.2f} s a piece)")
+    print(f"  batch, 1 worker:                {one:7.1f} s ({one / pieces:.2f} s a piece)")
+    print(f"  batch, 2 workers:               {two:7.1f} s")
+    print(f"  batch, 2 workers limited to {limit / 2 ** 20:.0f} MB each: {limited:7.1f} s, "
+          f"{len(rows)} rows, {len(errors)} errors, worker restarts seen: {len(restarts)}; "
+          f"peak worker memory {peak:.0f} MB")
+    print(f"figure archive_mb {size_mb:.0f}")
+    print(f"figure peak_worker_memory_mb {peak:.0f}")
+    print(f"ratio workers2/workers1 {one / two:.2f}")
+    print(f"ratio batch_task/direct_call {one / direct:.2f}")
+    if not args.keep:
+        shutil.rmtree(folder, ignore_errors=True)
+    return 0 if len(errors) == 0 and len(rows) == pieces * len(BOXES) else 1
+
+
+if __name__ == "__main__":
+    sys.exit(main())
