@@ -343,6 +343,7 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
         client = Client(cluster)
     say(f"balance-desk batch: dask dashboard at {client.dashboard_link}")
     done = failed = 0
+    lost = []
     t0 = time.monotonic()
     futures = []
     try:
@@ -350,12 +351,26 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
         sums = client.map(file_checksum, paths, key=[f"checksum-{i}" for i in
                                                      range(len(paths))], pure=False)
         futures = client.map(run_task, todo, key=[f"balance-{t.key}" for t in todo])
+        by_key = {f"balance-{t.key}": t for t in todo}
         last = 0.0
-        for fut, result in as_completed(futures, with_results=True):
-            task = todo[futures.index(fut)] if len(todo) < 5000 else _task_of(todo, fut)
-            _write_part(folder, task, result)
-            done += 1
-            failed += bool(result["error"])
+        for fut in as_completed(futures):
+            task = by_key[str(fut.key)]
+            try:
+                result = fut.result()
+            except Exception as exc:  # noqa: BLE001 - the worker died (memory), or was lost
+                # no part file: a run started again tries this piece again
+                lost.append({"file": os.path.basename(task.path), "member": str(task.member),
+                             "time_index": task.time_index, "level_hpa": task.level_hpa,
+                             "error": f"not analysed: the workers running it died "
+                                      f"({type(exc).__name__}; a worker over its memory limit "
+                                      "is restarted by dask); run again to try it again"})
+                done += 1
+                failed += 1
+            else:
+                _write_part(folder, task, result)
+                done += 1
+                failed += bool(result["error"])
+                fut.release()
             now = time.monotonic()
             if now - last > 1.0 or done == len(todo):
                 last = now
@@ -363,7 +378,10 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
                 left = (len(todo) - done) / rate if rate > 0 else float("inf")
                 err(f"  [{_bar(done, len(todo))}] {done}/{len(todo)} pieces, {failed} failed, "
                     f"{_clock(now - t0)} elapsed, about {_clock(left)} left")
-        checksums = dict(zip(paths, client.gather(sums)))
+        try:
+            checksums = dict(zip(paths, client.gather(sums)))
+        except Exception:  # noqa: BLE001 - provenance left empty rather than the run lost
+            checksums = {}
     except KeyboardInterrupt:
         for f in futures:
             f.cancel()
@@ -375,7 +393,7 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
         if cluster is not None:
             cluster.close()
     rows, task_errors = combine(out, tasks, checksums)
-    errors += task_errors
+    errors += task_errors + lost
     _write_table(out, rows)
     err_path = os.path.splitext(out)[0] + ".errors.csv"
     import pandas as pd
@@ -385,12 +403,7 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
     say(summary(rows))
     say(f"balance-desk batch: {len(rows)} rows in {out}; {len(errors)} errors in {err_path}")
     return {"rows": len(rows), "errors": len(errors), "out": out, "errors_path": err_path,
-            "tasks": len(tasks)}
-
-
-def _task_of(todo, fut):
-    key = str(fut.key)
-    return next(t for t in todo if f"balance-{t.key}" == key)
+            "tasks": len(tasks), "lost": len(lost)}
 
 
 def _bar(done, total, width=24):
