@@ -29,6 +29,9 @@ import time
 __all__ = ["Task", "plan_tasks", "run_task", "flatten", "run_batch", "read_boxes",
            "BatchError", "file_checksum", "combine"]
 
+#: seconds a run waits with no worker left before it stops (the pieces done are kept)
+NO_WORKER_S = 120.0
+
 #: columns that say where a row comes from, first in every result
 KEY_COLUMNS = ("file", "member", "valid_time", "level_hpa", "region")
 
@@ -319,7 +322,7 @@ def summary(rows) -> str:
 def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, scheduler=None,
               memory_limit=None, member="0", min_lat=10.0, say=print, err=None) -> dict:
     """Run a batch (see the module docstring); returns counts and the output paths."""
-    from distributed import Client, LocalCluster, as_completed
+    from distributed import Client, LocalCluster, wait
 
     err = err or (lambda text: print(text, file=sys.stderr, flush=True))
     if not (out.endswith(".parquet") or out.endswith(".csv")):
@@ -353,32 +356,53 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
         futures = client.map(run_task, todo, key=[f"balance-{t.key}" for t in todo])
         by_key = {f"balance-{t.key}": t for t in todo}
         last = 0.0
-        for fut in as_completed(futures):
-            task = by_key[str(fut.key)]
-            try:
-                result = fut.result()
-            except Exception as exc:  # noqa: BLE001 - the worker died (memory), or was lost
-                # no part file: a run started again tries this piece again
-                lost.append({"file": os.path.basename(task.path), "member": str(task.member),
-                             "time_index": task.time_index, "level_hpa": task.level_hpa,
-                             "error": f"not analysed: the workers running it died "
-                                      f"({type(exc).__name__}; a worker over its memory limit "
-                                      "is restarted by dask); run again to try it again"})
-                done += 1
-                failed += 1
-            else:
-                _write_part(folder, task, result)
-                done += 1
-                failed += bool(result["error"])
-                fut.release()
+        pending = set(futures)
+        alone_since = None
+        while pending:
+            ready = wait(pending, timeout=10, return_when="FIRST_COMPLETED").done
+            if not ready:
+                # nothing finished: are there workers at all? (when every worker has died,
+                # dask neither runs nor fails the pieces: the run would wait for ever)
+                if client.scheduler_info().get("workers"):
+                    alone_since = None
+                elif alone_since is None:
+                    alone_since = time.monotonic()
+                elif time.monotonic() - alone_since > NO_WORKER_S:
+                    raise BatchError(
+                        f"balance-desk batch: no worker has been left for {NO_WORKER_S:.0f} s "
+                        f"(each piece may need more memory than --memory-limit gives); the "
+                        f"{done} pieces done are kept in {folder}: run again to go on")
+                continue
+            for fut in ready:
+                pending.discard(fut)
+                task = by_key[str(fut.key)]
+                try:
+                    result = fut.result()
+                except Exception as exc:  # noqa: BLE001 - the worker died (memory), or was lost
+                    # no part file: a run started again tries this piece again
+                    lost.append({"file": os.path.basename(task.path),
+                                 "member": str(task.member), "time_index": task.time_index,
+                                 "level_hpa": task.level_hpa,
+                                 "error": f"not analysed: the workers running it died "
+                                          f"({type(exc).__name__}; a worker over its memory "
+                                          "limit is restarted by dask); run again to try it "
+                                          "again"})
+                    done += 1
+                    failed += 1
+                else:
+                    _write_part(folder, task, result)
+                    done += 1
+                    failed += bool(result["error"])
+                    fut.release()
             now = time.monotonic()
-            if now - last > 1.0 or done == len(todo):
+            if now - last > 1.0 or not pending:
                 last = now
                 rate = done / max(now - t0, 1e-9)
                 left = (len(todo) - done) / rate if rate > 0 else float("inf")
                 err(f"  [{_bar(done, len(todo))}] {done}/{len(todo)} pieces, {failed} failed, "
                     f"{_clock(now - t0)} elapsed, about {_clock(left)} left")
         try:
+            wait(sums, timeout=NO_WORKER_S)
             checksums = dict(zip(paths, client.gather(sums)))
         except Exception:  # noqa: BLE001 - provenance left empty rather than the run lost
             checksums = {}
