@@ -30,7 +30,7 @@ __all__ = ["Task", "plan_tasks", "run_task", "flatten", "run_batch", "read_boxes
            "BatchError", "file_checksum", "combine"]
 
 #: seconds a run waits with no worker left before it stops (the pieces done are kept)
-NO_WORKER_S = 120.0
+NO_WORKER_S = float(os.environ.get("BALANCE_DESK_BATCH_NO_WORKER_S", "120"))
 
 #: columns that say where a row comes from, first in every result
 KEY_COLUMNS = ("file", "member", "valid_time", "level_hpa", "region")

@@ -210,3 +210,21 @@ def test_a_result_opens_through_the_archive(tmp_path):
         bad = tmp_path / "bad.csv"
         bad.write_text("a,b\n1,2\n")
         load_result(str(bad))
+
+
+def test_workers_too_small_for_a_piece_end_the_run_with_a_sentence(archive, tmp_path):
+    # 120 MB per worker is less than a worker needs to start: dask restarts them until it
+    # gives up; the run must end (never wait for ever) with one sentence, or report the
+    # pieces as not analysed -- and leave nothing half-written
+    env = dict(os.environ, BALANCE_DESK_BATCH_NO_WORKER_S="20")
+    out = tmp_path / "rows.csv"
+    p = _batch([str(archive / "run0.nc"), "--levels", "500", *_box_args(), "--out", str(out),
+                "--workers", "1", "--memory-limit", "120MB"], cwd=ROOT, env=env)
+    if p.returncode == 2:
+        last = p.stderr.strip().splitlines()[-1]
+        assert "no worker has been left" in last and "run again to go on" in last
+    else:
+        assert p.returncode == 0, p.stderr
+        errors = pd.read_csv(tmp_path / "rows.errors.csv")
+        assert (errors.error.str.startswith("not analysed")).all() and len(errors) > 0
+    assert not list((tmp_path / "rows.csv.parts").glob(".*.tmp"))
