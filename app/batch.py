@@ -2,8 +2,10 @@
 
 The work is split into tasks of one (file, member, valid time, level). A task runs on a
 worker: it opens its file lazily (the opened case is kept per worker process, so the
-tasks of one file share it), computes the level's diagnostics once and the report of
-every region (the boxes given, or the systems found in that field), and returns a small
+tasks of one file share it), computes the level's diagnostics once -- for boxes, on the
+band of rows they cover and a halo (:func:`_band`), which gives the same numbers as the
+whole grid for a fraction of its memory -- and the report of every region (the boxes
+given, or the systems found in that field, on the whole grid), and returns a small
 table: one flat row per region (:func:`flatten`). The client writes each task's rows to a
 part file as it completes (``RESULT.parts/``); a run started again with the same
 arguments skips the pieces already there, so an interrupted run goes on where it
@@ -26,8 +28,8 @@ import os
 import sys
 import time
 
-__all__ = ["Task", "plan_tasks", "run_task", "flatten", "run_batch", "read_boxes",
-           "BatchError", "file_checksum", "combine"]
+__all__ = ["Task", "plan_file", "plan_tasks", "run_task", "flatten", "run_batch",
+           "read_boxes", "BatchError", "file_checksum", "combine", "local_cluster"]
 
 #: seconds a run waits with no worker left before it stops (the pieces done are kept)
 NO_WORKER_S = float(os.environ.get("BALANCE_DESK_BATCH_NO_WORKER_S", "120"))
@@ -103,61 +105,111 @@ def read_boxes(path) -> list:
     return boxes
 
 
+#: cases a worker keeps open: the tasks of a file run one after another on the worker that
+#: planned it, so one is enough; each costs its grid's metrics and the reader's buffers
+#: (about 180 MB at 0.25 degree, global)
+CASES_KEPT = 1
+
+
 def _open(path, member, min_lat):
-    """The case of a file, opened once per worker process."""
+    """The case of a file, opened once per worker process (the last CASES_KEPT kept)."""
     from balance_core.io import open_case
 
     key = (os.path.abspath(path), str(member), float(min_lat))
     cache = _open.__dict__.setdefault("cache", {})
     if key not in cache:
-        if len(cache) > 8:
+        while len(cache) >= CASES_KEPT:
             cache.pop(next(iter(cache)))
         cache[key] = open_case(path, member=member, min_lat=min_lat)
     return cache[key]
 
 
-def plan_tasks(files, levels, *, boxes=(), systems=False, member="0", min_lat=10.0,
-               errors=None) -> list:
-    """The tasks of a run: every (file, member, valid time, level). A file that cannot be
-    opened goes to ``errors`` (a list of (file, sentence)) and the others are planned."""
+def plan_file(path, levels, *, boxes=(), systems=False, member="0", min_lat=10.0) -> dict:
+    """One file's part of a run: {"tasks": [...], "errors": [...], "checksum": str or None}.
+
+    The file is opened through the worker's case cache with the member its first task
+    asks for, so that task finds it open when it runs on the same worker. A file that
+    cannot be opened gives one error (file, sentence) and no task.
+    """
     import pyproj  # noqa: F401
 
     from balance_core.io import CaseError, open_case
 
+    def failed(sentence):
+        return {"tasks": [], "checksum": None,
+                "errors": [{"file": path, "member": None, "valid_time": None,
+                            "level_hpa": None, "error": sentence}]}
+
+    try:
+        if member in ("all", "mean"):
+            case = open_case(path, min_lat=min_lat)
+        else:
+            case = None
+        if member == "all":
+            members = list(range(case.member_count))
+        elif member == "mean":
+            members = ["mean"]
+        else:
+            members = [int(member)]
+            case = _open(path, members[0], min_lat)
+            if case.member_count == 1 and members == [0]:
+                members = [None]  # a file without members: no member to choose
+        have = [float(p) / 100 for p in case.levels_pa]
+        for lev in levels:
+            if not any(abs(h - lev) < 1e-6 for h in have):
+                raise CaseError(f"has no {lev:g} hPa level (it has "
+                                f"{', '.join(f'{h:g}' for h in have)})", path)
+        tasks = [Task(path, m, t, float(lev), tuple(boxes), systems, min_lat)
+                 for m in members for t in range(case.times.size) for lev in levels]
+    except CaseError as exc:
+        return failed(str(exc))
+    except Exception as exc:  # noqa: BLE001 - a file that breaks the reader
+        return failed(f"{os.path.basename(path)}: could not be read ({type(exc).__name__})")
+    return {"tasks": tasks, "errors": [], "checksum": file_checksum(path)}
+
+
+def plan_tasks(files, levels, *, boxes=(), systems=False, member="0", min_lat=10.0,
+               errors=None) -> list:
+    """The tasks of a run, in this process: every (file, member, valid time, level). A file
+    that cannot be opened goes to ``errors`` (a list of dicts with its sentence) and the
+    others are planned; without ``errors`` it raises BatchError."""
     tasks = []
     for path in files:
-        try:
-            case = open_case(path, min_lat=min_lat)
-            if member == "all":
-                members = list(range(case.member_count))
-            elif member == "mean":
-                members = ["mean"]
-            else:
-                members = [int(member)]
-                if case.member_count == 1 and members == [0]:
-                    members = [None]  # a file without members: no member to choose
-            have = [float(p) / 100 for p in case.levels_pa]
-            for lev in levels:
-                if not any(abs(h - lev) < 1e-6 for h in have):
-                    raise CaseError(f"has no {lev:g} hPa level (it has "
-                                    f"{', '.join(f'{h:g}' for h in have)})", path)
-            for m in members:
-                for t in range(case.times.size):
-                    for lev in levels:
-                        tasks.append(Task(path, m, t, float(lev), tuple(boxes), systems,
-                                          min_lat))
-        except CaseError as exc:
-            if errors is None:
-                raise BatchError(str(exc)) from None
-            errors.append({"file": path, "member": None, "valid_time": None, "level_hpa": None,
-                           "error": str(exc)})
-        except Exception as exc:  # noqa: BLE001 - a file that breaks the reader
-            if errors is None:
-                raise
-            errors.append({"file": path, "member": None, "valid_time": None, "level_hpa": None,
-                           "error": f"{os.path.basename(path)}: could not be read "
-                                    f"({type(exc).__name__})"})
+        plan = plan_file(path, levels, boxes=boxes, systems=systems, member=member,
+                         min_lat=min_lat)
+        if plan["errors"] and errors is None:
+            raise BatchError(plan["errors"][0]["error"])
+        tasks += plan["tasks"]
+        if errors is not None:
+            errors += plan["errors"]
     return tasks
+
+
+#: rows kept beyond a task's regions when it computes on a band of the grid; the deepest
+#: chain of differences in the core (the gradient wind's curvature, the derivatives of
+#: the geostrophic wind) reaches two rows, so eight leave room
+HALO_ROWS = 8
+
+
+def _band(case, regions):
+    """(j0, j1): the rows of the case the regions cover, with HALO_ROWS beyond; None to
+    compute the whole grid (the band would be most of it, or a box is not valid)."""
+    import numpy as np
+
+    from balance_core.region import Region
+
+    ny = case.grid.shape[0]
+    rows = np.zeros(ny, dtype=bool)
+    try:
+        for _, box in regions:
+            rows |= Region.box(*box).mask(case.grid).any(axis=1)
+    except ValueError:
+        return None  # analyse_case says what is wrong with the box
+    hit = np.nonzero(rows)[0]
+    if hit.size == 0:
+        return None
+    j0, j1 = max(0, int(hit[0]) - HALO_ROWS), min(ny, int(hit[-1]) + 1 + HALO_ROWS)
+    return None if j1 - j0 > 0.75 * ny else (j0, j1)
 
 
 def run_task(task: Task) -> dict:
@@ -167,8 +219,12 @@ def run_task(task: Task) -> dict:
     from balance_core.io import CaseError, analyse_case, analyse_systems, diagnostics_for
 
     try:
-        case = _open(task.path, task.member, task.min_lat)
+        # (None, a file without members, opens as its only member: the case the plan opened)
+        case = _open(task.path, 0 if task.member is None else task.member, task.min_lat)
         k = case.level_index(task.level_hpa)
+        band = None if task.systems else _band(case, task.regions)
+        if band is not None:
+            case = case.rows(*band)
         diag = diagnostics_for(case, k, task.time_index)
         rows = []
         if task.systems:
@@ -319,47 +375,84 @@ def summary(rows) -> str:
 
 # -- the run ---------------------------------------------------------------------------------
 
+def local_cluster(n_workers, memory_limit=None):
+    """A LocalCluster of ``n_workers`` processes of one thread each.
+
+    dask sets MALLOC_TRIM_THRESHOLD_ in its workers (so that freed memory goes back to the
+    system); glibc then stops raising its mmap threshold, and every array above 128 kB --
+    a 0.25-degree global field is 8 MB -- is mapped afresh and faulted in page by page:
+    measured here, a piece took 2.0 s against 0.6 s. Fixing the mmap threshold at 64 MB
+    keeps such arrays on the heap, which is trimmed as dask wants (same peak memory).
+    """
+    import dask
+    from distributed import LocalCluster
+
+    with dask.config.set({"distributed.nanny.pre-spawn-environ.MALLOC_MMAP_THRESHOLD_":
+                          MMAP_THRESHOLD}):
+        return LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True,
+                            memory_limit="auto" if memory_limit is None else memory_limit,
+                            dashboard_address=":0")
+
+
+#: glibc's mmap threshold in the workers of a local cluster (see :func:`local_cluster`)
+MMAP_THRESHOLD = 64 * 2 ** 20
+
+
+def _not_analysed(path, task, exc, what="the workers running it died"):
+    return {"file": os.path.basename(path),
+            "member": None if task is None else str(task.member),
+            "time_index": None if task is None else task.time_index,
+            "level_hpa": None if task is None else task.level_hpa,
+            "error": f"not analysed: {what} ({type(exc).__name__}; a worker over its memory "
+                     "limit is restarted by dask); run again to try it again"}
+
+
 def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, scheduler=None,
               memory_limit=None, member="0", min_lat=10.0, say=print, err=None) -> dict:
-    """Run a batch (see the module docstring); returns counts and the output paths."""
-    from distributed import Client, LocalCluster, wait
+    """Run a batch (see the module docstring); returns counts and the output paths.
+
+    The files are planned on the workers (:func:`plan_file`, which opens each once and
+    takes its checksum); the pieces of a file are then sent to the worker that opened it,
+    before the next file is planned, so that they find it open.
+    """
+    from distributed import Client, wait
 
     err = err or (lambda text: print(text, file=sys.stderr, flush=True))
     if not (out.endswith(".parquet") or out.endswith(".csv")):
         raise BatchError("balance-desk batch: --out must end in .parquet or .csv")
     files = expand(files)
-    errors = []
-    tasks = plan_tasks(files, levels, boxes=boxes, systems=systems, member=member,
-                       min_lat=min_lat, errors=errors)
     folder = _parts_dir(out)
     os.makedirs(folder, exist_ok=True)
-    todo = [t for t in tasks if not os.path.exists(os.path.join(folder, f"{t.key}.json"))]
-    say(f"balance-desk batch: {len(tasks)} pieces ({len(files)} files), {len(tasks) - len(todo)} "
-        f"already done in {folder}")
     cluster = None
     if scheduler:
         client = Client(scheduler, timeout="30s")
     else:
-        n = workers or max(1, os.cpu_count() or 1)
-        cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
-                               memory_limit=memory_limit or "auto", dashboard_address=":0")
+        cluster = local_cluster(workers or max(1, os.cpu_count() or 1), memory_limit)
         client = Client(cluster)
     say(f"balance-desk batch: dask dashboard at {client.dashboard_link}")
-    done = failed = 0
-    lost = []
+    errors, lost, tasks, checksums = [], [], [], {}
+    done = failed = skipped = planned = 0
     t0 = time.monotonic()
     futures = []
     try:
-        paths = sorted({os.path.abspath(t.path) for t in tasks})
-        sums = client.map(file_checksum, paths, key=[f"checksum-{i}" for i in
-                                                     range(len(paths))], pure=False)
-        futures = client.map(run_task, todo, key=[f"balance-{t.key}" for t in todo])
-        by_key = {f"balance-{t.key}": t for t in todo}
+        opts = dict(levels=list(levels), boxes=tuple(boxes), systems=systems, member=member,
+                    min_lat=min_lat)
+        plan_of, run_of = {}, {}
+        for i, path in enumerate(files):
+            key = "plan-" + hashlib.sha1(json.dumps([os.path.abspath(path), i, str(opts)])
+                                         .encode()).hexdigest()[:20]
+            # earlier files first; a file's pieces (priority one higher) before the next plan
+            fut = client.submit(plan_file, path, key=key, priority=-2 * i, pure=False, **opts)
+            plan_of[fut.key] = (i, path)
+            futures.append(fut)
         last = 0.0
         pending = set(futures)
         alone_since = None
         while pending:
-            ready = wait(pending, timeout=10, return_when="FIRST_COMPLETED").done
+            try:
+                ready = wait(pending, timeout=10, return_when="FIRST_COMPLETED").done
+            except TimeoutError:  # (dask's wait raises when nothing finished in time)
+                ready = set()
             if not ready:
                 # nothing finished: are there workers at all? (when every worker has died,
                 # dask neither runs nor fails the pieces: the run would wait for ever)
@@ -375,18 +468,38 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
                 continue
             for fut in ready:
                 pending.discard(fut)
-                task = by_key[str(fut.key)]
+                if fut.key in plan_of:
+                    i, path = plan_of[fut.key]
+                    planned += 1
+                    try:
+                        plan = fut.result()
+                    except Exception as exc:  # noqa: BLE001 - the worker died, or was lost
+                        lost.append(_not_analysed(path, None, exc,
+                                                  "the workers opening the file died"))
+                        continue
+                    errors += plan["errors"]
+                    checksums[os.path.abspath(path)] = plan["checksum"]
+                    tasks += plan["tasks"]
+                    todo = [t for t in plan["tasks"]
+                            if not os.path.exists(os.path.join(folder, f"{t.key}.json"))]
+                    skipped += len(plan["tasks"]) - len(todo)
+                    if todo:
+                        where = list(client.who_has([fut]).get(fut.key, ()))
+                        new = client.map(run_task, todo, key=[f"balance-{t.key}" for t in todo],
+                                         priority=-2 * i + 1, workers=where or None,
+                                         allow_other_workers=True)
+                        for t, f in zip(todo, new):
+                            run_of[f.key] = t
+                        futures += new
+                        pending.update(new)
+                    fut.release()
+                    continue
+                task = run_of[fut.key]
                 try:
                     result = fut.result()
                 except Exception as exc:  # noqa: BLE001 - the worker died (memory), or was lost
                     # no part file: a run started again tries this piece again
-                    lost.append({"file": os.path.basename(task.path),
-                                 "member": str(task.member), "time_index": task.time_index,
-                                 "level_hpa": task.level_hpa,
-                                 "error": f"not analysed: the workers running it died "
-                                          f"({type(exc).__name__}; a worker over its memory "
-                                          "limit is restarted by dask); run again to try it "
-                                          "again"})
+                    lost.append(_not_analysed(task.path, task, exc))
                     done += 1
                     failed += 1
                 else:
@@ -397,15 +510,16 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
             now = time.monotonic()
             if now - last > 1.0 or not pending:
                 last = now
+                total = len(tasks) - skipped
                 rate = done / max(now - t0, 1e-9)
-                left = (len(todo) - done) / rate if rate > 0 else float("inf")
-                err(f"  [{_bar(done, len(todo))}] {done}/{len(todo)} pieces, {failed} failed, "
-                    f"{_clock(now - t0)} elapsed, about {_clock(left)} left")
-        try:
-            wait(sums, timeout=NO_WORKER_S)
-            checksums = dict(zip(paths, client.gather(sums)))
-        except Exception:  # noqa: BLE001 - provenance left empty rather than the run lost
-            checksums = {}
+                # the files not planned yet are guessed to hold as many pieces as the others
+                guess = total * len(files) / max(planned, 1)
+                left = (guess - done) / rate if rate > 0 else float("inf")
+                err(f"  [{_bar(done, guess)}] {done}/{total} pieces, {failed} failed, "
+                    f"{planned}/{len(files)} files opened, {_clock(now - t0)} elapsed, about "
+                    f"{_clock(left)} left")
+        say(f"balance-desk batch: {len(tasks)} pieces ({len(files)} files), {skipped} "
+            f"already done in {folder}")
     except KeyboardInterrupt:
         for f in futures:
             f.cancel()

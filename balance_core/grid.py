@@ -146,7 +146,7 @@ class Stencil:
     """
 
     def __init__(self, coord, axis: int, *, periodic: bool = False, period: float | None = None,
-                 scale=1.0):
+                 scale=1.0, like: "Stencil | None" = None):
         c = np.asarray(coord, dtype=np.float64)
         if c.ndim != 1 or c.size < 3:
             raise ValueError("a second-order derivative needs at least 3 points along the axis")
@@ -161,7 +161,14 @@ class Stencil:
             hh = np.concatenate([[wrap], h, [wrap]])
         else:
             hh = h
-        self.uniform = bool(np.allclose(hh, hh[0], rtol=1e-9, atol=0.0))
+        # ``like``: the operator of a whole axis this one is a stretch of (Grid.rows); its
+        # choice of formula and its uniform spacing are kept, so that the stretch's inner
+        # derivatives are the whole axis's to the last bit (a stretch's own first spacing
+        # can differ from the whole axis's by a rounding)
+        self.uniform = like.uniform if like is not None else \
+            bool(np.allclose(hh, hh[0], rtol=1e-9, atol=0.0))
+        if like is not None and like.uniform:
+            hh = np.full_like(hh, like._h[0])
         self._h = hh
         self._scale = scale
         self._build(c, hh)
@@ -303,19 +310,22 @@ class _Metrics:
     to east and north.
     """
 
-    def __init__(self, x_coord, y_coord, x_scale, y_scale, periodic, cos_g=None, sin_g=None):
+    def __init__(self, x_coord, y_coord, x_scale, y_scale, periodic, cos_g=None, sin_g=None,
+                 like: "_Metrics | None" = None):
         self.x_coord, self.y_coord = x_coord, y_coord
         self.x_scale, self.y_scale = x_scale, y_scale
         self.periodic = periodic
         self.cos_g, self.sin_g = cos_g, sin_g
-        self.ddx_axis = Stencil(x_coord, -1, periodic=periodic, period=2 * np.pi, scale=x_scale)
-        self.ddy_axis = Stencil(y_coord, -2, scale=y_scale)
+        self.ddx_axis = Stencil(x_coord, -1, periodic=periodic, period=2 * np.pi, scale=x_scale,
+                                like=None if like is None else like.ddx_axis)
+        self.ddy_axis = Stencil(y_coord, -2, scale=y_scale,
+                                like=None if like is None else like.ddy_axis)
 
     def rows(self, j0: int, j1: int) -> "_Metrics":
         """The metrics of rows j0..j1-1 (a latitude band or a strip of y)."""
         cut = lambda a: a if a is None or np.ndim(a) == 0 else a[j0:j1]  # noqa: E731
         return _Metrics(self.x_coord, self.y_coord[j0:j1], cut(self.x_scale), cut(self.y_scale),
-                        self.periodic, cut(self.cos_g), cut(self.sin_g))
+                        self.periodic, cut(self.cos_g), cut(self.sin_g), like=self)
 
 
 class Grid:

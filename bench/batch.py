@@ -4,8 +4,9 @@ The archive: 0.25-degree global levels (721 x 1440) at 850, 500 and 250 hPa, ``-
 valid times (default 40), one NetCDF file per time (float32, as archives are stored).
 Two boxes per level. Measured in the same run:
 
-* the core called directly, in this process, on every piece (``run_task`` one after
-  another): the reference;
+* the core called directly, in this process, file after file (``plan_file``, which
+  opens it and takes its checksum, then ``run_task`` on each of its pieces): the
+  reference;
 * the batch on a local cluster of 1 worker, then of 2 workers (one thread each);
 * the batch with 2 workers whose memory limit is a quarter of the archive's size:
   it must complete with no task lost to memory and no worker restarted; the peak
@@ -91,10 +92,10 @@ def make_archive(folder, n_times):
 
 def run(files, out, workers, memory_limit=None, sample=False):
     """Seconds of a batch run in this process (a local cluster), and the sampler."""
-    from distributed import Client, LocalCluster
+    from distributed import Client
     from distributed.diagnostics import MemorySampler
 
-    from app.batch import run_batch
+    from app.batch import local_cluster, run_batch
 
     for p in glob.glob(out + "*"):
         shutil.rmtree(p) if os.path.isdir(p) else os.unlink(p)
@@ -103,8 +104,7 @@ def run(files, out, workers, memory_limit=None, sample=False):
     if sample:
         # the same run on a cluster made here, so that its memory can be sampled; a worker
         # that was restarted would come back under another address
-        lc = LocalCluster(n_workers=workers, threads_per_worker=1, memory_limit=memory_limit,
-                          dashboard_address=":0")
+        lc = local_cluster(workers, memory_limit)
         client = Client(lc)
         try:
             before = set(client.scheduler_info()["workers"])
@@ -137,13 +137,16 @@ def main(argv=None):
     size_mb = sum(os.path.getsize(f) for f in files) / 2 ** 20
     pieces = len(files) * len(LEVELS)
 
-    from app.batch import plan_tasks, run_task
+    from app.batch import plan_file, run_task
 
-    tasks = plan_tasks(files, LEVELS, boxes=BOXES)
+    # the reference: the same work in one process, a file at a time -- opened (and its
+    # checksum taken) once, then every piece of it
     t0 = time.perf_counter()
-    for task in tasks:
-        r = run_task(task)
-        assert r["error"] is None, r["error"]
+    for path in files:
+        plan = plan_file(path, LEVELS, boxes=BOXES)
+        for task in plan["tasks"]:
+            r = run_task(task)
+            assert r["error"] is None, r["error"]
     direct = time.perf_counter() - t0
     print(f"archive: {len(files)} files, {pieces} pieces (3 levels x {len(files)} times, "
           f"0.25-degree global), {size_mb:.0f} MB; {os.cpu_count()} cores", flush=True)

@@ -32,7 +32,9 @@ BOXES = [(-40.0, -10.0, 35.0, 55.0), (-20.0, 10.0, 40.0, 60.0)]
 def archive(tmp_path_factory):
     folder = tmp_path_factory.mktemp("archive")
     for i in range(3):
-        ds, _ = latlon_dataset(np.linspace(20, 70, 26), np.linspace(-60, 20, 41))
+        # from 0 to 80 N: the boxes (35 to 60 N) take a band of its rows, so the rows
+        # compared with analyze below come from the band (app.batch._band)
+        ds, _ = latlon_dataset(np.linspace(0, 80, 41), np.linspace(-60, 20, 41))
         ds.attrs["title"] = f"synthetic archive file {i}"
         ds.to_netcdf(folder / f"run{i}.nc")
     return folder
@@ -90,6 +92,9 @@ def test_rows_from_a_real_cluster_equal_analyze(archive, tmp_path):
             proc.wait(timeout=30)
     # 3 files x 3 valid times x 2 levels x 2 boxes
     assert len(rows) == 36
+    from app.batch import _band
+
+    assert _band(open_case(str(archive / "run0.nc")), [("b", b) for b in BOXES]) is not None
     assert rows["file_sha256"].str.len().eq(64).all()
     compared = 0
     for path in sorted(archive.glob("run*.nc")):

@@ -303,6 +303,23 @@ class Case:
         """All levels of one variable at one time, float64 (level, y, x)."""
         return np.asarray(to_numpy(self.data[role].isel(time=time_index)), dtype=np.float64)
 
+    def rows(self, j0: int, j1: int) -> "Case":
+        """The case on rows j0..j1-1 of its grid (a band of latitude, or a strip of y).
+
+        Every field is sliced lazily, so only the band is read, and the grid is
+        :meth:`Grid.rows`: the derivatives of the band's inner rows are those of the
+        whole case, bit for bit, and its first and last rows are one-sided, so the
+        caller keeps a halo of rows beyond what it reduces. The checks of
+        :meth:`fields` then look at the band alone. What was counted when the case was
+        opened (the points below the ground, the notes) stays the whole case's.
+        """
+        sl = {"y": slice(int(j0), int(j1))}
+        return dataclasses.replace(
+            self, grid=self.grid.rows(int(j0), int(j1)),
+            data={r: d.isel(sl) for r, d in self.data.items()},
+            surface={r: d.isel(sl) for r, d in self.surface.items()},
+            below=None if self.below is None else self.below.isel(sl))
+
     def describe(self) -> dict:
         return {
             "name": self.name,

@@ -1,0 +1,72 @@
+"""A batch piece computes on a band of rows; its rows must be the whole grid's, bit for bit.
+
+``run_task`` cuts the case to the rows its boxes cover and a halo (app.batch._band) to
+spare memory. The truth here is ``analyse_case`` on the whole case -- the path the
+``analyze`` command takes, with no band -- on real files from registry packages (GFS
+2.5-degree global with orography and surface fields, an Eta Lambert conformal grid) and
+an invented sample with several times (the tendency's neighbours).
+"""
+
+import math
+import os
+
+import pytest
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+GFS = os.path.join(ROOT, ".cache", "pygrib-samples", "gfs.t12z.pgrbf120.2p5deg.grib2")
+ETA = os.path.join(ROOT, ".cache", "pygrib-samples", "eta.grb")
+SAMPLE = os.path.join(ROOT, "sample_cases", "ocean_cyclone.nc")
+
+PIECES = [
+    # path, member, time index, level, boxes
+    (GFS, None, 0, 850.0, [("rockies", (-115.0, -95.0, 35.0, 50.0))]),    # part below ground
+    (GFS, None, 0, 500.0, [("atlantic", (-60.0, -10.0, 35.0, 65.0)),
+                           ("pacific", (150.0, -140.0, 30.0, 60.0))]),    # across 180
+    (GFS, None, 0, 850.0, [("south", (-70.0, 20.0, -60.0, -30.0))]),
+    (ETA, None, 0, 500.0, [("plains", (-105.0, -90.0, 32.0, 42.0))]),
+    (SAMPLE, None, 1, 850.0, [("core", (-45.0, -25.0, 38.0, 50.0))]),
+]
+
+
+def _same(a, b):
+    if isinstance(a, float) and isinstance(b, float) and math.isnan(a) and math.isnan(b):
+        return True
+    return a == b
+
+
+@pytest.mark.parametrize("path, member, t, level, boxes", PIECES,
+                         ids=[f"{os.path.basename(p[0])}-{int(p[3])}-{p[4][0][0]}"
+                              for p in PIECES])
+def test_a_piece_on_a_band_of_rows_equals_analyze_on_the_whole_grid(path, member, t, level,
+                                                                    boxes):
+    if not os.path.exists(path):
+        if os.environ.get("CI"):
+            pytest.fail(f"{path} is missing: make test fetches it", pytrace=False)
+        pytest.skip(f"{path} is missing (make test fetches it)")
+    from app.batch import Task, _band, flatten, run_task
+    from balance_core.io import analyse_case, open_case
+
+    case = open_case(path, member=0 if member is None else member)
+    band = _band(case, boxes)
+    # the band is what is tested: it must leave rows out
+    assert band is not None and band[1] - band[0] < case.grid.shape[0]
+    task = Task(path, member, t, level, tuple(boxes))
+    result = run_task(task)
+    assert result["error"] is None, result["error"]
+    assert len(result["rows"]) == len(boxes)
+    for (name, box), got in zip(boxes, result["rows"]):
+        want = flatten(analyse_case(case, level, t, box), task, name)
+        assert got.keys() == want.keys()
+        differ = [k for k in want if not _same(got[k], want[k])]
+        assert not differ, {k: (got[k], want[k]) for k in differ}
+        assert want["points"] and want["points"] > 0
+
+
+def test_a_box_over_most_of_the_grid_is_computed_on_the_whole_grid():
+    from app.batch import _band
+    from balance_core.io import open_case
+
+    case = open_case(SAMPLE)
+    assert _band(case, [("all", (-70.0, 0.0, 26.0, 64.0))]) is None
+    assert _band(case, [("none", (100.0, 120.0, 26.0, 64.0))]) is None  # no point: analyze says
+    assert _band(case, [("bad", (-70.0, 0.0, 64.0, 26.0))]) is None    # south > north: likewise
