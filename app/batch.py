@@ -383,12 +383,14 @@ def local_cluster(n_workers, memory_limit=None):
     a 0.25-degree global field is 8 MB -- is mapped afresh and faulted in page by page:
     measured here, a piece took 2.0 s against 0.6 s. Fixing the mmap threshold at 64 MB
     keeps such arrays on the heap, which is trimmed as dask wants (same peak memory).
+    dask's statistical profiler, which samples each worker thread every 10 ms for the
+    dashboard's profile page, is turned off: it cost about 8 % of a piece here.
     """
     import dask
     from distributed import LocalCluster
 
     with dask.config.set({"distributed.nanny.pre-spawn-environ.MALLOC_MMAP_THRESHOLD_":
-                          MMAP_THRESHOLD}):
+                          MMAP_THRESHOLD, "distributed.worker.profile.enabled": False}):
         return LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True,
                             memory_limit="auto" if memory_limit is None else memory_limit,
                             dashboard_address=":0")
@@ -438,15 +440,30 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
         opts = dict(levels=list(levels), boxes=tuple(boxes), systems=systems, member=member,
                     min_lat=min_lat)
         plan_of, run_of = {}, {}
-        for i, path in enumerate(files):
+        queue = list(enumerate(files))
+
+        def plan_next(where=None):
+            # a file is planned on a worker, which keeps it open; its pieces are then sent
+            # there, and the next file's plan after them (a lower priority). So that a
+            # worker never starts another file before its pieces have arrived (and opens
+            # the file again), no more files are being planned than there are workers, and
+            # the plan that follows a file goes to the worker that planned it.
+            if not queue:
+                return
+            i, path = queue.pop(0)
             key = "plan-" + hashlib.sha1(json.dumps([os.path.abspath(path), i, str(opts)])
                                          .encode()).hexdigest()[:20]
-            # earlier files first; a file's pieces (priority one higher) before the next plan
-            fut = client.submit(plan_file, path, key=key, priority=-2 * i, pure=False, **opts)
+            near = dict(workers=where, allow_other_workers=True) if where else {}
+            fut = client.submit(plan_file, path, key=key, priority=-2 * i, pure=False,
+                                **near, **opts)
             plan_of[fut.key] = (i, path)
             futures.append(fut)
+            pending.add(fut)
+
+        pending = set()
+        for _ in range(max(1, len(client.scheduler_info().get("workers", {})))):
+            plan_next()
         last = 0.0
-        pending = set(futures)
         alone_since = None
         while pending:
             try:
@@ -476,6 +493,7 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
                     except Exception as exc:  # noqa: BLE001 - the worker died, or was lost
                         lost.append(_not_analysed(path, None, exc,
                                                   "the workers opening the file died"))
+                        plan_next()
                         continue
                     errors += plan["errors"]
                     checksums[os.path.abspath(path)] = plan["checksum"]
@@ -483,16 +501,17 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
                     todo = [t for t in plan["tasks"]
                             if not os.path.exists(os.path.join(folder, f"{t.key}.json"))]
                     skipped += len(plan["tasks"]) - len(todo)
+                    where = list(client.who_has([fut]).get(fut.key, ()))
                     if todo:
-                        where = list(client.who_has([fut]).get(fut.key, ()))
+                        near = dict(workers=where, allow_other_workers=True) if where else {}
                         new = client.map(run_task, todo, key=[f"balance-{t.key}" for t in todo],
-                                         priority=-2 * i + 1, workers=where or None,
-                                         allow_other_workers=True)
+                                         priority=-2 * i + 1, **near)
                         for t, f in zip(todo, new):
                             run_of[f.key] = t
                         futures += new
                         pending.update(new)
                     fut.release()
+                    plan_next(where)
                     continue
                 task = run_of[fut.key]
                 try:

@@ -32,9 +32,9 @@ BOXES = [(-40.0, -10.0, 35.0, 55.0), (-20.0, 10.0, 40.0, 60.0)]
 def archive(tmp_path_factory):
     folder = tmp_path_factory.mktemp("archive")
     for i in range(3):
-        # from 0 to 80 N: the boxes (35 to 60 N) take a band of its rows, so the rows
+        # from 2 to 82 N: the boxes (35 to 60 N) take a band of its rows, so the rows
         # compared with analyze below come from the band (app.batch._band)
-        ds, _ = latlon_dataset(np.linspace(0, 80, 41), np.linspace(-60, 20, 41))
+        ds, _ = latlon_dataset(np.linspace(2, 82, 41), np.linspace(-60, 20, 41))
         ds.attrs["title"] = f"synthetic archive file {i}"
         ds.to_netcdf(folder / f"run{i}.nc")
     return folder
