@@ -161,6 +161,23 @@ def test_rows_band_matches_whole_grid():
         np.testing.assert_allclose(a[6:19], b[1:-1], rtol=1e-12)
 
 
+@pytest.mark.parametrize("lat", [np.linspace(90, -90, 721),               # 0.25 degree
+                                 np.degrees(np.arcsin(np.polynomial.legendre.leggauss(96)[0]))],
+                         ids=["quarter-degree", "gaussian-n48"])
+def test_a_band_s_inner_derivatives_are_the_whole_grid_s_to_the_last_bit(lat):
+    # a band's own spacings differ from the whole axis's by a rounding; with them the
+    # band's derivatives differed in the 16th digit
+    g = Grid.latlon(lat, np.arange(0, 360, 2.5))
+    z = np.cos(np.deg2rad(g.lat)) ** 2 * np.sin(np.deg2rad(3 * g.lon)) * 1e4
+    # (2, 40): a band whose first spacing differs from the axis's first by a rounding;
+    # (40, 56): near the equator, where Gaussian latitudes are all but evenly spaced
+    for j0, j1 in [(2, 40), (40, 56)]:
+        full = g.grad(z)
+        band = g.rows(j0, j1).grad(z[j0:j1])
+        for a, b in zip(full, band):
+            assert np.array_equal(a[j0 + 1:j1 - 1], b[1:-1], equal_nan=True)
+
+
 def test_cell_areas_sum_to_sphere():
     # 4 pi a^2 (exact for cells bounded by midpoints and the poles).
     g = Grid.latlon(np.linspace(-90, 90, 73), np.arange(0, 360, 2.5))
