@@ -139,6 +139,23 @@ def _box(text):
     return vals
 
 
+def _reading_options(p, members="N|mean", budget=True):
+    """The options of every command that reads cases: the tropical mask, the member and
+    (but for batch, whose workers have --memory-limit) the memory budget of a level."""
+    p.add_argument("--min-lat", type=_bounded("--min-lat", 0.0, 60.0), default=10.0,
+                   metavar="DEG", help="mask quantities divided by f this close to the equator "
+                                       "(0 to 60, default 10)")
+    p.add_argument("--member", default="0", metavar=members,
+                   help="ensemble member index, or 'mean'" +
+                        (", or 'all' (one row each)" if "all" in members else "") +
+                        " (default 0, the first)")
+    if budget:
+        p.add_argument("--memory-budget", type=_size("--memory-budget"), default=None,
+                       metavar="SIZE", help="memory one level may use, e.g. 4G (default: a "
+                                            "quarter of the machine's memory, or "
+                                            "BALANCE_DESK_MEMORY_BUDGET)")
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="balance-desk",
                      description="Is the flow balanced? The momentum budget of gridded model "
@@ -183,16 +200,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="valid time: an index (0 is the first) or an ISO 8601 time")
     p.add_argument("--box", default=None, type=_box, metavar="WEST,EAST,SOUTH,NORTH",
                    help="degrees; west > east crosses the dateline (default: the whole domain)")
-    p.add_argument("--min-lat", type=_bounded("--min-lat", 0.0, 60.0), default=10.0,
-                   metavar="DEG", help="mask quantities divided by f this close to the equator "
-                                       "(0 to 60, default 10)")
     p.add_argument("--smooth", type=_non_negative("--smooth"), default=None, metavar="KM",
                    help="Gaussian smoothing of the input fields (standard deviation, km)")
-    p.add_argument("--member", default="0", metavar="N|mean",
-                   help="ensemble member index, or 'mean' (default 0, the first)")
-    p.add_argument("--memory-budget", type=_size("--memory-budget"), default=None,
-                   metavar="SIZE", help="memory one level may use, e.g. 4G (default: a quarter "
-                                        "of the machine's memory, or BALANCE_DESK_MEMORY_BUDGET)")
+    _reading_options(p)
     p.add_argument("--format", choices=("table", "json", "csv"), default="table")
     p.set_defaults(func=cmd_analyze)
 
@@ -210,11 +220,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="every valid time, the systems matched into tracks")
     p.add_argument("--limit", type=_bounded("--limit", 1, 200), default=30,
                    help="at most this many systems (default 30)")
-    p.add_argument("--min-lat", type=_bounded("--min-lat", 0.0, 60.0), default=10.0,
-                   metavar="DEG")
-    p.add_argument("--member", default="0", metavar="N|mean")
-    p.add_argument("--memory-budget", type=_size("--memory-budget"), default=None,
-                   metavar="SIZE")
+    _reading_options(p)
     p.add_argument("--format", choices=("table", "json", "csv"), default="table")
     p.set_defaults(func=cmd_systems)
 
@@ -239,9 +245,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="an existing dask scheduler instead of a local cluster")
     p.add_argument("--memory-limit", default=None, metavar="SIZE",
                    help="memory per worker of the local cluster, e.g. 2GB")
-    p.add_argument("--member", default="0", metavar="all|N|mean")
-    p.add_argument("--min-lat", type=_bounded("--min-lat", 0.0, 60.0), default=10.0,
-                   metavar="DEG")
+    _reading_options(p, members="all|N|mean", budget=False)
     p.set_defaults(func=cmd_batch)
 
     p = sub.add_parser("cases", help="list the bundled sample cases",

@@ -7,30 +7,20 @@ installed (``make test`` installs it as root), failed under CI=true.
 
 import os
 import re
-import shutil
 import time
 
 import numpy as np
 import pytest
 
+from chromium import launched, require
 from serving import start_server, stop_server
 
 pytestmark = pytest.mark.browser
 
-CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 HERE = os.path.dirname(os.path.abspath(__file__))
 SHOTS = os.path.join(HERE, "..", "artifacts", "screenshots")
 
-if CHROMIUM is None:
-    if os.environ.get("CI"):
-        pytest.fail("chromium is not installed: make test installs it (Debian package chromium)",
-                    pytrace=False)
-    pytest.skip("chromium is not installed", allow_module_level=True)
-
-sync_api = pytest.importorskip("playwright.sync_api")
-
-BROWSER_ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networking",
-                "--disable-component-update", "--no-first-run", "--disable-sync"]
+require()
 
 
 @pytest.fixture(scope="module")
@@ -43,10 +33,8 @@ def server():
 
 @pytest.fixture(scope="module")
 def browser():
-    with sync_api.sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, args=BROWSER_ARGS)
+    with launched() as b:
         yield b
-        b.close()
 
 
 def _page(browser, url):

@@ -85,24 +85,17 @@ def test_an_opened_page_computes_its_first_screen_once(debug_server):
     # a link without a region gets the case's suggested box and a level the case has:
     # filled in before the page starts its work, not after (which would compute the
     # ranking and the chart twice for every new page)
-    import shutil
+    from chromium import launched
 
-    if shutil.which("chromium") is None:
-        pytest.skip("chromium is not installed")
-    sync_api = pytest.importorskip("playwright.sync_api")
     proc, url = debug_server
     with open(proc.log_path) as fh:
         before = len(fh.read())
-    with sync_api.sync_playwright() as p:
-        b = p.chromium.launch(executable_path=shutil.which("chromium"),
-                              args=["--no-sandbox", "--disable-gpu",
-                                    "--disable-background-networking"])
+    with launched() as b:
         page = b.new_page()
         # a view nobody on this server has computed (views are shared between sessions)
         page.goto(url + "?case=ocean_cyclone&level=260&time=2041-01-19T18:00:00Z")
         page.locator(".bd-verdict").first.wait_for(timeout=60_000)
         page.wait_for_timeout(1500)
-        b.close()
     with open(proc.log_path) as fh:
         log = fh.read()[before:]
     assert log.count(": box computed") == 1, log

@@ -12,26 +12,18 @@ How fast a change reaches every follower is measured in bench/rooms.py, not here
 """
 
 import os
-import shutil
 import urllib.parse
 
 import pytest
 
 from app.rooms import SQLiteStore
+from chromium import launched, require
 from serving import start_server, stop_server
 from test_security import PAYLOADS
 
 pytestmark = pytest.mark.browser
 
-CHROMIUM = shutil.which("chromium")
-if CHROMIUM is None:
-    if os.environ.get("CI"):
-        pytest.fail("chromium is not installed: make test installs it", pytrace=False)
-    pytest.skip("chromium is not installed", allow_module_level=True)
-sync_api = pytest.importorskip("playwright.sync_api")
-
-ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networking",
-        "--disable-component-update", "--no-first-run", "--disable-sync"]
+require()
 SHOTS = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "artifacts",
                      "screenshots")
 WAIT = 30_000  # ms before a wait gives up (a hang, not a speed check)
@@ -52,10 +44,8 @@ def server(store_path):
 
 @pytest.fixture(scope="module")
 def browser():
-    with sync_api.sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
+    with launched() as b:
         yield b
-        b.close()
 
 
 def _room(store_path, title="Briefing 12 UTC", case="ocean_cyclone", view=None):

@@ -8,7 +8,6 @@ a page on a second local origin that frames the desk gets nothing.
 """
 
 import os
-import shutil
 import signal
 import sys
 import threading
@@ -20,23 +19,16 @@ from http.server import BaseHTTPRequestHandler, HTTPServer
 import numpy as np
 import pytest
 
+from chromium import launched, require
 from serving import free_port, start_server, stop_server
 
 pytestmark = pytest.mark.browser
 
-CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.join(HERE, "..")
 SHOTS = os.path.join(ROOT, "artifacts", "screenshots")
 
-if CHROMIUM is None:
-    if os.environ.get("CI"):
-        pytest.fail("chromium is not installed: make test installs it", pytrace=False)
-    pytest.skip("chromium is not installed", allow_module_level=True)
-sync_api = pytest.importorskip("playwright.sync_api")
-
-ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networking",
-        "--disable-component-update", "--no-first-run", "--disable-sync"]
+require()
 
 #: Payloads: tags, event attributes, javascript: and data: URLs, SVG and MathML, Markdown
 #: links and images, template syntax, comment and CDATA breakers, Unicode tricks, long text.
@@ -129,10 +121,8 @@ def hostile_server(tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def browser():
-    with sync_api.sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
+    with launched() as b:
         yield b
-        b.close()
 
 
 def _open(browser, url, wait_verdict=True):
