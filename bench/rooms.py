@@ -1,13 +1,19 @@
 """Review rooms under load, on loopback: following, many notes at once, and a crash.
 
-1. **Following.** One server, one room, 20 people in it (20 browser contexts of one
-   headless Chromium, driven concurrently). The person steering changes the level or the
-   box every few seconds for two minutes. Each follower's page notes (its own clock,
-   ``Date.now()``, which all pages on this machine share) when its verdict line first
-   shows the new view; the delay of a change is measured from the moment the leader's
-   page was told to change. Printed: the 95th percentile over all (change, follower)
-   pairs, and over changes of the delay until *every* follower had it (goal: < 1 s);
-   and the server's resident memory per extra follower (goal: < 20 MB).
+1. **Following.** One server, one room, 20 people in it: the person steering and two
+   followers are pages of one headless Chromium; the other 17 followers are sessions
+   driven over the websocket protocol (``tests/wire_page.py``: the server builds, computes and
+   sends them everything it sends a browser; only the drawing is left out). 20 Chromium
+   renderers on a 2-core machine would measure how fast the machine draws 20 pages one
+   after another, not how fast the room reaches its people, who each draw on their own
+   machine; ``--browsers 19`` runs that too. The person steering changes the level or the
+   box every few seconds for two minutes. Each follower notes (its own clock:
+   ``Date.now()`` in a page, ``time.time()`` on the wire, the one clock of this machine)
+   when its verdict line first shows the new view; the delay of a change is measured from
+   the moment the leader's page was told to change. Printed: the 95th percentile over
+   all (change, follower) pairs, and over changes of the delay until *every* follower had
+   it (goal: < 1 s), for the browsers and the wire sessions apart too; and the server's
+   resident memory per extra follower (goal: < 20 MB).
 2. **Notes at once.** 10 people write 100 notes each through their pages, all at the
    same time; the store must then hold 1000 notes, none lost and none twice.
 3. **A crash.** 4 people write notes continuously; the server is killed (-9) in the
@@ -16,7 +22,7 @@
 
 The last lines are ``figure NAME VALUE``.
 
-    python bench/rooms.py [--seconds 120] [--people 20] [--skip-follow]
+    python bench/rooms.py [--seconds 120] [--people 20] [--browsers 2] [--skip-follow]
 """
 
 from __future__ import annotations
@@ -43,6 +49,7 @@ sys.path.insert(0, os.path.join(ROOT, "tests"))
 from serving import start_server, stop_server  # noqa: E402
 
 from app.rooms import SQLiteStore  # noqa: E402
+from wire_page import WirePage  # noqa: E402
 
 ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networking",
         "--disable-component-update", "--no-first-run", "--disable-sync"]
@@ -93,7 +100,7 @@ async def _person(browser, link, name, watch=False):
     return page
 
 
-async def follow(url, store_path, seconds, people, pid):
+async def follow(url, store_path, seconds, people, browsers, pid):
     from playwright.async_api import async_playwright
 
     s = SQLiteStore(store_path)
@@ -101,17 +108,25 @@ async def follow(url, store_path, seconds, people, pid):
                                                    "region": "box:-52,-28,38,56"})
     s.close()
     link = f"{url}room?room={room.token}"
+    browsers = max(0, min(browsers, people - 1))
     async with async_playwright() as p:
         b = await p.chromium.launch(executable_path=shutil.which("chromium"), args=ARGS)
         leader = await _person(b, link, "leader")
         await leader.wait_for_timeout(3000)
         rss1 = _rss_mb(pid)
-        followers = []
+        pages, wires, reading = [], [], []
         for i in range(people - 1):  # one after another: a room fills up over minutes
-            followers.append(await _person(b, link, f"follower {i + 1}", watch=True))
+            name = f"follower {i + 1}"
+            if i < browsers:
+                pages.append(await _person(b, link, name, watch=True))
+            else:
+                w = await WirePage(link, {"bd_name": name}, f"wire follower {i + 1}").open()
+                wires.append(w)
+                reading.append(asyncio.ensure_future(w.run()))
+                await leader.wait_for_timeout(300)  # as a page takes its time to load
         await leader.wait_for_timeout(5000)
         rss_n = _rss_mb(pid)
-        pairs, every, missed = [], [], 0
+        pairs, every, missed = {"browser": [], "wire": []}, [], 0
         t_end = time.monotonic() + seconds
         i = 0
         while time.monotonic() < t_end:
@@ -132,22 +147,27 @@ async def follow(url, store_path, seconds, people, pid):
                     break
                 await asyncio.sleep(0.02)
             await asyncio.sleep(2.5)  # "every few seconds"
-            want = await leader.locator(".bd-verdict-where").first.inner_text()
+            want = " ".join((await leader.locator(".bd-verdict-where").first.inner_text())
+                            .split())
+            logs = [("browser", await f.evaluate("window.bdLog")) for f in pages]
+            logs += [("wire", [(1e3 * t, text) for t, text in w.log]) for w in wires]
             delays = []
-            for f in followers:
-                log = await f.evaluate("window.bdLog")
-                seen = [t for t, text in log if t >= t0 and text.strip() == want.strip()]
+            for kind, log in logs:
+                seen = [t for t, text in log if t >= t0 and " ".join(text.split()) == want]
                 if seen:
                     delays.append((seen[0] - t0) / 1e3)
+                    pairs[kind].append(delays[-1])
                 else:
                     missed += 1
-            pairs += delays
-            if len(delays) == len(followers):
+            if len(delays) == len(logs):
                 every.append(max(delays))
             i += 1
+        for w in wires:
+            w.close()
+        await asyncio.gather(*reading, return_exceptions=True)
         await b.close()
     return {"changes": i, "pairs": pairs, "every": every, "missed": missed,
-            "rss1": rss1, "rss_n": rss_n, "people": people}
+            "rss1": rss1, "rss_n": rss_n, "people": people, "browsers": browsers}
 
 
 async def _write_notes(page, prefix, n, acked):
@@ -234,7 +254,11 @@ def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--seconds", type=float, default=120.0)
     ap.add_argument("--people", type=int, default=20)
+    ap.add_argument("--browsers", type=int, default=2,
+                    help="followers that are Chromium pages (the rest are wire sessions)")
     ap.add_argument("--skip-follow", action="store_true")
+    ap.add_argument("--only-follow", action="store_true",
+                    help="the following part alone (no notes at once, no crash)")
     args = ap.parse_args(argv)
     tmp = tempfile.mkdtemp(prefix="bd-rooms-bench-")
     store_path = os.path.join(tmp, "rooms.sqlite")
@@ -242,33 +266,45 @@ def main(argv=None):
     proc, url, _ = start_server(["--store", store_path], env=env)
     try:
         fol = None if args.skip_follow else asyncio.run(
-            follow(url, store_path, args.seconds, args.people, proc.pid))
-        notes = asyncio.run(notes_at_once(url, store_path))
+            follow(url, store_path, args.seconds, args.people, args.browsers, proc.pid))
+        notes = None if args.only_follow else asyncio.run(notes_at_once(url, store_path))
     finally:
         log = stop_server(proc)
     if "Traceback" in log:
         print(log[-3000:], file=sys.stderr)
-    cr = asyncio.run(crash(os.path.join(tmp, "crash.sqlite")))
+    cr = None if args.only_follow else asyncio.run(crash(os.path.join(tmp, "crash.sqlite")))
     print(f"{os.cpu_count()} cores, one headless Chromium for every person, sample case "
           "ocean_cyclone")
     figures = {}
     if fol is not None:
-        pairs, every = fol["pairs"], fol["every"]
+        pairs, every = fol["pairs"]["browser"] + fol["pairs"]["wire"], fol["every"]
         per = (fol["rss_n"] - fol["rss1"]) / max(fol["people"] - 1, 1)
-        print(f"1. following: {fol['people']} people, {fol['changes']} changes in "
-              f"{args.seconds:.0f} s; {len(pairs)} follower updates seen, {fol['missed']} "
-              "not seen within the 2.5 s between changes")
-        print(f"   delay per follower: median {1e3 * statistics.median(pairs):.0f} ms, "
-              f"95th percentile {1e3 * _p95(pairs):.0f} ms")
+        n_wire = fol["people"] - 1 - fol["browsers"]
+        print(f"1. following: {fol['people']} people (the leader and {fol['browsers']} "
+              f"followers in Chromium, {n_wire} followers on the wire), {fol['changes']} "
+              f"changes in {args.seconds:.0f} s; {len(pairs)} follower updates seen, "
+              f"{fol['missed']} not seen within the 2.5 s between changes")
+        for kind, xs in (("all", pairs), ("browser", fol["pairs"]["browser"]),
+                         ("wire", fol["pairs"]["wire"])):
+            if xs:
+                print(f"   delay per follower ({kind}): median "
+                      f"{1e3 * statistics.median(xs):.0f} ms, 95th percentile "
+                      f"{1e3 * _p95(xs):.0f} ms")
         print(f"   delay until every follower had it: median "
               f"{1e3 * statistics.median(every) if every else float('nan'):.0f} ms, "
               f"95th percentile {1e3 * _p95(every):.0f} ms (goal < 1000)")
         print(f"   server memory: {fol['rss1']:.0f} MB with the leader, {fol['rss_n']:.0f} MB "
               f"with {fol['people']} people: {per:.1f} MB per extra follower (goal < 20)")
+        figures.update({"room_follow_browsers": fol["browsers"],
+                        "room_follow_browser_p95_ms": 1e3 * _p95(fol["pairs"]["browser"])})
         figures.update({"room_follow_every_p95_ms": 1e3 * _p95(every),
                         "room_follow_pair_p95_ms": 1e3 * _p95(pairs),
                         "room_follow_missed": fol["missed"],
                         "room_rss_per_follower_mb": per})
+    if notes is None:
+        for k, v in figures.items():
+            print(f"figure {k} {v:.1f}" if isinstance(v, float) else f"figure {k} {v}")
+        return 0
     print(f"2. notes at once: 10 people x 100 notes in {notes['seconds']:.1f} s; stored "
           f"{notes['stored']}, lost {notes['lost']}, twice {notes['duplicated']}")
     print(f"3. crash: {cr['acked']} notes acknowledged before kill -9, {cr['stored']} in the "

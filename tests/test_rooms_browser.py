@@ -6,7 +6,9 @@
   restart of the server (with the room's last view), and restores its view for the room;
 * a wrong or expired link gets the plain "no such room" page;
 * markup and script in notes, names and titles stay text: no dialog, no console error;
-* with a passphrase, a wrong one is refused and the right one lets you in.
+* with a passphrase, a wrong one is refused and the right one lets you in;
+* a change reaches a follower as a few messages, one per step of its page, not one per
+  property.
 
 How fast a change reaches every follower is measured in bench/rooms.py, not here.
 """
@@ -16,10 +18,15 @@ import urllib.parse
 
 import pytest
 
+import asyncio
+import threading
+import time
+
 from app.rooms import SQLiteStore
 from chromium import launched, require
 from serving import start_server, stop_server
 from test_security import PAYLOADS
+from wire_page import WirePage
 
 pytestmark = pytest.mark.browser
 
@@ -298,3 +305,48 @@ def test_a_wrong_passphrase_is_refused(store_path, browser):
         page.close()
     finally:
         stop_server(proc)
+
+
+def test_a_change_reaches_a_follower_in_a_few_messages(server, store_path, browser):
+    """The follower (a session on the wire, tests/wire_page.py) gets a level change as one
+    message per step of its page (the view taken, the region's report, the chart, the
+    systems...), not one per property. Its page's work runs in callbacks the room's hub
+    schedules from the leader's session; in that session's context Panel took the
+    leader's document for the current one and sent each of the follower's changes as a
+    message of its own: 11 messages for a level change, where 3 to 5 go now (measured
+    before and after the fix, app/desk/page.py ``Page._held``)."""
+    room = _room(store_path)
+    a = _person(browser, _link(server, room), "Ana")
+    _wait_status(a, "You steer")
+    loop = asyncio.new_event_loop()
+    w = WirePage(_link(server, room), {"bd_name": "Wren"}, "wire follower")
+    threading.Thread(target=loop.run_forever, daemon=True).start()
+    asyncio.run_coroutine_threadsafe(w.open(), loop).result(timeout=60)
+    reading = asyncio.run_coroutine_threadsafe(w.run(), loop)
+    try:
+        a.locator(".bd-room-people", has_text="Wren").first.wait_for(timeout=WAIT)
+        deadline = time.time() + 30
+        while not w.log and time.time() < deadline:
+            time.sleep(0.1)
+        assert w.log, "the follower never showed a verdict"
+        time.sleep(2.0)  # the first view's work all done
+        t0 = time.time()
+        a.get_by_label("Pressure level").select_option(label="850 hPa")
+        while not (w.log and w.log[-1][0] > t0 and w.log[-1][1].startswith("850 hPa")):
+            assert time.time() < t0 + 30, w.log
+            time.sleep(0.1)
+        time.sleep(2.0)  # what comes after the verdict (systems, the notes' marks)
+        got = [n for t, n in w.received if t > t0]
+        events = sum(got)
+        assert events >= 20, got  # the change did reach it: the chart's and the report's
+        assert len(got) <= 6, got
+        # the follower shows what the one steering shows
+        where_a = " ".join(a.locator(".bd-verdict-where").first.inner_text().split())
+        assert w.log[-1][1] == where_a
+    finally:
+        loop.call_soon_threadsafe(w.close)  # on its own loop: tornado is not thread-safe
+        try:
+            reading.result(timeout=10)
+        finally:
+            loop.call_soon_threadsafe(loop.stop)
+        a.context.close()

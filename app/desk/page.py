@@ -23,6 +23,7 @@ from functools import partial
 import panel as pn
 
 from bokeh.models import CustomJS
+from panel.io.state import set_curdoc
 
 from balance_core.io import CaseError, iso
 from balance_core.scales import PRESETS
@@ -341,8 +342,12 @@ class Page(pn.viewable.Viewer):
             fn()
 
     def _held(self, fn):
-        # the browser lays the page out once per message: one message per step, not per property
-        with pn.io.hold(self.doc):
+        # the browser lays the page out once per message: one message per step, not per
+        # property. A callback another session scheduled (a review room's hub) runs in that
+        # session's context, where Panel would take the other document for the current one,
+        # hold the wrong one and send each of this page's changes as a message of its own:
+        # this page's document is made the current one first.
+        with set_curdoc(self.doc), pn.io.hold(self.doc):
             fn()
 
     def _submit(self, kind, fn, show):

@@ -1,0 +1,151 @@
+"""A page without a browser: one server session, driven over Bokeh's websocket protocol.
+
+It does what a browser's page does on the wire and nothing more: it fetches the page
+(with the browser's cookie), takes the session token from it, opens the websocket
+with that token, asks for the document, says the document is ready (Panel's
+``onload`` starts the session's work on that event, as it does for a browser) and then
+reads every message the server sends. So the server builds, computes, serializes and
+sends exactly what it would for a person's browser; only the drawing is left out.
+
+The load benchmark (bench/rooms.py) uses it for the many sessions it needs, beside a few
+real browser pages that measure the drawing (20 real Chromium renderers on a 2-core
+machine measure the machine, not the server); a test counts the messages a change
+takes to reach a follower with it.
+
+Protocol: header, metadata and content are three text frames; a message with buffers
+follows them with a text frame and a binary frame per buffer (bokeh/protocol/message.py,
+``Message.send``, Bokeh 3).
+"""
+
+from __future__ import annotations
+
+import html
+import json
+import re
+import time
+import urllib.parse
+
+from tornado.httpclient import AsyncHTTPClient, HTTPRequest
+from tornado.websocket import websocket_connect
+
+__all__ = ["WirePage", "verdict_where"]
+
+TOKEN = re.compile(r'"token":"([^"]+)"')
+WHERE = re.compile(r"class='bd-verdict-where'[^>]*>(.*?)</div>", re.S)
+TAG = re.compile(r"<[^>]+>")
+
+
+def _plain(fragment: str) -> str:
+    return " ".join(html.unescape(TAG.sub("", fragment)).split())
+
+
+def verdict_where(text: str) -> str | None:
+    """The verdict's "where" line in an HTML pane's text, as the page shows it; None if the
+    text has none. (Panel sends an HTML pane's text escaped once: it is unescaped first.)"""
+    raw = html.unescape(text) if "&lt;" in text else text
+    m = WHERE.search(raw)
+    return _plain(m.group(1)) if m else None
+
+
+def _message(msgid: str, msgtype: str, content: dict) -> list[str]:
+    return [json.dumps({"msgid": msgid, "msgtype": msgtype}), "{}", json.dumps(content)]
+
+
+READY = {"events": [{"kind": "MessageSent", "msg_type": "bokeh_event",
+                     "msg_data": {"type": "event", "name": "document_ready",
+                                  "values": {"type": "map"}}}]}
+
+
+class WirePage:
+    """One session of ``link`` on the server, kept open; ``log`` holds (time.time(), where)
+    each time the verdict's "where" line changes, and ``bytes`` what the server sent."""
+
+    def __init__(self, link: str, cookies: dict | None = None, agent: str = "wire page"):
+        self.link = link
+        self.cookies = cookies or {}
+        self.agent = agent
+        self.log: list[tuple[float, str]] = []
+        self.bytes = 0
+        self.messages = 0
+        #: (time.time(), number of events) of every message read
+        self.received: list[tuple[float, int]] = []
+        self._ws = None
+        self._last = None
+        self._n = 0
+
+    async def open(self):
+        cookie = "; ".join(f"{k}={urllib.parse.quote(v)}" for k, v in self.cookies.items())
+        resp = await AsyncHTTPClient().fetch(HTTPRequest(
+            self.link, headers={"Cookie": cookie, "User-Agent": self.agent},
+            request_timeout=180))
+        token = TOKEN.search(resp.body.decode("utf-8")).group(1)
+        parts = urllib.parse.urlsplit(self.link)
+        ws = urllib.parse.urlunsplit(("ws", parts.netloc, parts.path.rstrip("/") + "/ws", "",
+                                      ""))
+        self._ws = await websocket_connect(HTTPRequest(ws, headers={"User-Agent": self.agent}),
+                                           subprotocols=["bokeh", token],
+                                           max_message_size=1 << 30)
+        await self._read()  # ACK
+        await self._send("PULL-DOC-REQ", {})
+        reply = await self._read()
+        self._look(reply)
+        await self._send("PATCH-DOC", READY)
+        return self
+
+    async def _send(self, msgtype, content):
+        self._n += 1
+        for frame in _message(f"w{self._n}", msgtype, content):
+            await self._ws.write_message(frame)
+
+    async def _read(self):
+        """One whole message: its content, parsed (its buffers are read and counted)."""
+        frames = []
+        for _ in range(3):
+            f = await self._ws.read_message()
+            if f is None:
+                raise ConnectionError("the server closed the session")
+            frames.append(f)
+            self.bytes += len(f)
+        header = json.loads(frames[0])
+        for _ in range(2 * int(header.get("num_buffers", 0) or 0)):
+            f = await self._ws.read_message()
+            if f is None:
+                raise ConnectionError("the server closed the session")
+            self.bytes += len(f)
+        self.messages += 1
+        content = json.loads(frames[2])
+        self.received.append((time.time(), len(content.get("events", []) or [])))
+        return content
+
+    def _look(self, content):
+        """Note the verdict's line wherever a text in the message carries it."""
+        for text in _texts(content):
+            where = verdict_where(text)
+            if where is not None and where != self._last:
+                self._last = where
+                self.log.append((time.time(), where))
+
+    async def run(self):
+        """Read until the server closes the session or :meth:`close` is called."""
+        try:
+            while True:
+                self._look(await self._read())
+        except (ConnectionError, Exception):  # noqa: BLE001 - closed: the reading ends
+            return
+
+    def close(self):
+        if self._ws is not None:
+            self._ws.close()
+
+
+def _texts(obj):
+    """Every string in a decoded message that may hold a pane's HTML."""
+    if isinstance(obj, str):
+        if "bd-verdict-where" in obj:
+            yield obj
+    elif isinstance(obj, dict):
+        for v in obj.values():
+            yield from _texts(v)
+    elif isinstance(obj, list):
+        for v in obj:
+            yield from _texts(v)
