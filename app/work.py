@@ -29,9 +29,10 @@ __all__ = ["FairPool", "Lane", "POOL"]
 
 log = logging.getLogger("balance_desk")
 
-#: the order a lane's waiting jobs are taken in: the ranking before the chart, then the
-#: systems of the level, the views through the levels and the times last
-KIND_ORDER = ("box", "chart", "outline", "systems", "life", "levels", "times")
+#: the order a lane's waiting jobs are taken in: the ranking before the chart, then a review
+#: room's view (given to the room once the first two are computed), the systems of the
+#: level, the views through the levels and the times last
+KIND_ORDER = ("box", "chart", "outline", "room", "systems", "life", "levels", "times")
 #: a lane's views through the levels and the times wait while its first screen (the ranking,
 #: the chart) is computed, so they do not slow it down (both hold the interpreter in turn)
 FIRST = ("box", "chart", "outline")

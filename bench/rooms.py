@@ -136,7 +136,7 @@ async def follow(url, store_path, seconds, people, browsers, pid):
                 await leader.get_by_label("Pressure level").select_option(
                     label=LEVELS[(i // 2) % len(LEVELS)])
             else:
-                box = BOXES[(i // 2) % len(BOXES)]
+                box = BOXES[(i // 2 + 1) % len(BOXES)]  # not the room's first box
                 for lab, v in zip(("West", "East", "South", "North"), box):
                     await leader.get_by_label(lab, exact=True).fill(str(v))
                 await leader.get_by_role("button", name="Use this box").click()
@@ -151,6 +151,10 @@ async def follow(url, store_path, seconds, people, browsers, pid):
                             .split())
             logs = [("browser", await f.evaluate("window.bdLog")) for f in pages]
             logs += [("wire", [(1e3 * t, text) for t, text in w.log]) for w in wires]
+            if want == " ".join(before.split()):
+                print(f"change {i}: the leader's view did not change", file=sys.stderr)
+                i += 1
+                continue
             delays = []
             for kind, log in logs:
                 seen = [t for t, text in log if t >= t0 and " ".join(text.split()) == want]
@@ -161,6 +165,9 @@ async def follow(url, store_path, seconds, people, browsers, pid):
                     missed += 1
             if len(delays) == len(logs):
                 every.append(max(delays))
+            else:
+                print(f"change {i}: {len(logs) - len(delays)} followers did not show {want!r}",
+                      file=sys.stderr)
             i += 1
         for w in wires:
             w.close()

@@ -352,9 +352,42 @@ class RoomSession:
         if me is None:
             return
         if me["steering"]:
-            self.hub.change_view(self.token, self.key, self._view())
+            self._send_view_when_ready()
         elif me["following"] and not self.page.correcting:
             self.hub.step_out(self.token, self.key)
+
+    def _send_view_when_ready(self):
+        """Give the room this page's view once its region's report and its chart are
+        computed (they are shared: every follower then shows them at once, in one message,
+        with no work of its own; given at once, 19 followers each queued the view's work,
+        marked their parts busy and took it in turn). The job waits in this page's lane
+        behind the page's own two views; a newer view replaces it, so the room gets only
+        the latest. Without a server (tests, exports) the view is given at once."""
+        view = self._view()
+        page = self.page
+        if page.doc is None or page.doc.session_context is None:
+            self.hub.change_view(self.token, self.key, view)
+            return
+        snap = page.state.copy()
+
+        def compute_views():
+            from .. import compute
+
+            for make in (lambda: compute.shared_box_data(page.library, snap, page.thresholds),
+                         lambda: compute.shared_chart_data(page.library, snap)):
+                try:
+                    make()
+                except Exception:  # noqa: BLE001 - each follower's page says it itself
+                    pass
+
+        def done(status, value, gen):
+            if status != "stale" and self.joined:
+                try:
+                    self.hub.change_view(self.token, self.key, view)
+                except RoomError:  # no longer steering: the room has another's view
+                    pass
+
+        page._lane.submit("room", compute_views, done)
 
     def _guard(self, fn, *args):
         self.bar.alert.object = ""
