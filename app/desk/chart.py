@@ -62,6 +62,22 @@ def _hover_formatters(src, units):
             for k, code in _HOVER_JS.items()}
 
 
+def one_line(lines) -> list:
+    """Many lines as one, a NaN between each two (Bokeh draws a NaN as a gap): a column of
+    one array. Bokeh sends every array of a column as a buffer of its own, and each costs
+    the server and the browser a step; a chart's contours are 50 to 150 lines, and a review
+    room sends them to every follower."""
+    parts = []
+    for seg in lines:
+        seg = np.asarray(seg, dtype=np.float64)
+        if seg.size == 0:
+            continue
+        if parts:
+            parts.append(np.array([np.nan]))
+        parts.append(seg)
+    return [np.concatenate(parts)] if parts else []
+
+
 def _update_source(src, data: dict, geometry=()):
     """Replace a source's columns; when the ``geometry`` columns are unchanged (a new level
     or time on the same grid), send only the others."""
@@ -248,7 +264,7 @@ class Chart(pn.viewable.Viewer):
         self.colorbar.title = self.colorbar_log.title = (
             f"{cd.field_label}" + (f" ({cd.units})" if cd.units else ""))
         lx, ly, lv, labels = cd.contours
-        self.cont_src.data = dict(xs=lx, ys=ly)
+        self.cont_src.data = dict(xs=one_line(lx), ys=one_line(ly))
         digits = 1 if cd.contour_units == "dam" and cd.contour_interval < 1.5 else 0
         self.clab_src.data = dict(x=[a for a, _, _ in labels], y=[b for _, b, _ in labels],
                                   text=[f"{c:.{digits}f}" for _, _, c in labels])
@@ -270,11 +286,11 @@ class Chart(pn.viewable.Viewer):
         if kept is None or any(a is not b for a, b in zip(furniture, kept)):
             self._furniture = furniture
             cx, cy = cd.coast if cd.coast is not None else ([], [])
-            self.coast_src.data = dict(xs=cx, ys=cy)
+            self.coast_src.data = dict(xs=one_line(cx), ys=one_line(cy))
             lx2, ly2 = cd.land if cd.land is not None else ([], [])
-            self.land_src.data = dict(xs=lx2, ys=ly2)
+            self.land_src.data = dict(xs=one_line(lx2), ys=one_line(ly2))
             gx, gy, glab = cd.graticule
-            self.grat_src.data = dict(xs=gx, ys=gy)
+            self.grat_src.data = dict(xs=one_line(gx), ys=one_line(gy))
             self.glab_src.data = dict(x=[p[0] for p in glab], y=[p[1] for p in glab],
                                       text=[p[2] for p in glab])
         self.show_outline(cd.region_xy)
