@@ -142,8 +142,12 @@ class Chart(pn.viewable.Viewer):
                     line_width=1.6)
         fig.scatter("x1", "y1", source=self.vec_src, marker="triangle", angle="angle",
                     size="head", fill_color="black", line_color="white", line_width=0.5)
-        fig.line("x", "y", source=self.region_src, line_color="white", line_width=6)
-        fig.line("x", "y", source=self.region_src, line_color=ORANGE, line_width=3.5)
+        # the region's outline on the overlay layer: moving it repaints that layer alone, not
+        # the raster, contours and arrows below (Bokeh paints the two canvases apart)
+        fig.line("x", "y", source=self.region_src, line_color="white", line_width=6,
+                 level="overlay")
+        fig.line("x", "y", source=self.region_src, line_color=ORANGE, line_width=3.5,
+                 level="overlay")
         # weather systems: shape by kind, fill by verdict, a white rim, the label in a box
         fig.scatter("x", "y", source=self.sys_src, marker="marker", size=20,
                     fill_color="colour", line_color="white", line_width=2.5)
