@@ -402,6 +402,18 @@ def local_cluster(n_workers, memory_limit=None):
 MMAP_THRESHOLD = 64 * 2 ** 20
 
 
+def worker_environment() -> dict:
+    """The environment variables a local cluster's worker starts with: dask's own
+    (``distributed.nanny.pre-spawn-environ``: one thread for OpenMP and BLAS, the trim
+    threshold) and the mmap threshold of :func:`local_cluster`; as strings."""
+    import dask
+    import distributed  # noqa: F401 - its settings join dask's config on import
+
+    env = dict(dask.config.get("distributed.nanny.pre-spawn-environ", {}) or {})
+    env["MALLOC_MMAP_THRESHOLD_"] = MMAP_THRESHOLD
+    return {str(k): str(v) for k, v in env.items()}
+
+
 def _not_analysed(path, task, exc, what="the workers running it died"):
     return {"file": os.path.basename(path),
             "member": None if task is None else str(task.member),

@@ -7,13 +7,17 @@ Two boxes per level. Measured in the same run:
 * the core called directly, in this process, file after file (``plan_file``, which
   opens it and takes its checksum, then ``run_task`` on each of its pieces): the
   reference;
+* the same direct calls in 2 plain processes, each on half the files: what this machine
+  gives a second process on this work without dask (two processes share the memory
+  bandwidth and the caches; the ceiling of the next ratio);
 * the batch on a local cluster of 1 worker, then of 2 workers (one thread each);
 * the batch with 2 workers whose memory limit is a quarter of the archive's size:
   it must complete with no task lost to memory and no worker restarted; each worker's
   resident memory is sampled every 0.1 s (psutil) and the largest is printed.
 
 Prints ``ratio workers2/workers1`` (throughput, pieces a second from the first piece
-written to the last, so without the cluster's start; goal >= 1.7), ``ratio
+written to the last, so without the cluster's start; goal >= 1.7) beside ``ratio
+direct_2procs/direct_1proc`` (the machine's own), ``ratio
 workers2/workers1_whole_run`` (the whole runs' times, start included), ``ratio
 batch_task/direct_call`` (time per piece on 1 worker over the direct call; goal
 < 1.2) and ``figure peak_worker_memory_mb``, ``figure archive_mb``.
@@ -152,6 +156,39 @@ def steady_rate(out):
     return (len(times) - 1) / (times[-1] - times[0])
 
 
+def _direct(files):
+    """The core called directly on ``files``, one after another: seconds."""
+    from app.batch import plan_file, run_task
+
+    t0 = time.perf_counter()
+    for path in files:
+        plan = plan_file(path, LEVELS, boxes=BOXES)
+        for task in plan["tasks"]:
+            r = run_task(task)
+            assert r["error"] is None, r["error"]
+    return time.perf_counter() - t0
+
+
+def _direct_in_processes(files, n=2):
+    """The direct calls in ``n`` fresh processes, each on every n-th file: wall seconds."""
+    import multiprocessing as mp
+
+    from app.batch import worker_environment
+
+    ctx = mp.get_context("spawn")  # fresh interpreters, as dask's workers are
+    saved = dict(os.environ)
+    os.environ.update(worker_environment())  # what the batch's workers get, before numpy
+    try:
+        with ctx.Pool(n) as pool:
+            pool.map(_direct, [files[:1]] * n)  # imports and first-call costs, not timed
+            t0 = time.perf_counter()
+            pool.map(_direct, [files[i::n] for i in range(n)])
+            return time.perf_counter() - t0
+    finally:
+        os.environ.clear()
+        os.environ.update(saved)
+
+
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--times", type=int, default=40)
@@ -168,21 +205,15 @@ def main(argv=None):
     size_mb = sum(os.path.getsize(f) for f in files) / 2 ** 20
     pieces = len(files) * len(LEVELS)
 
-    from app.batch import plan_file, run_task
-
     # the reference: the same work in one process, a file at a time -- opened (and its
     # checksum taken) once, then every piece of it
-    t0 = time.perf_counter()
-    for path in files:
-        plan = plan_file(path, LEVELS, boxes=BOXES)
-        for task in plan["tasks"]:
-            r = run_task(task)
-            assert r["error"] is None, r["error"]
-    direct = time.perf_counter() - t0
+    direct = _direct(files)
     print(f"archive: {len(files)} files, {pieces} pieces (3 levels x {len(files)} times, "
           f"0.25-degree global), {size_mb:.0f} MB; {os.cpu_count()} cores", flush=True)
     print(f"  direct calls, in one process:   {direct:7.1f} s ({direct / pieces:.2f} s a piece)",
           flush=True)
+    direct2 = _direct_in_processes(files, 2)
+    print(f"  direct calls, 2 processes:      {direct2:7.1f} s", flush=True)
     out = os.path.join(folder, "result.parquet")
     one, _, _ = run(files, out, 1)
     rate1 = steady_rate(out)
@@ -210,6 +241,7 @@ def main(argv=None):
     # start, a few seconds whatever the archive, left out); and the whole runs' times
     print(f"ratio workers2/workers1 {rate2 / rate1:.2f}")
     print(f"ratio workers2/workers1_whole_run {one / two:.2f}")
+    print(f"ratio direct_2procs/direct_1proc {direct / direct2:.2f}")
     print(f"ratio batch_task/direct_call {one / direct:.2f}")
     if not args.keep:
         shutil.rmtree(folder, ignore_errors=True)
