@@ -380,11 +380,11 @@ class RoomSession:
                 except Exception:  # noqa: BLE001 - each follower's page says it itself
                     pass
 
-        def done(status, value, gen):
+        def done(status, value, gen):  # on a thread of the pool: the hub and store lock
             if status != "stale" and self.joined:
-                try:
+                try:  # (a page that no longer steers changes nothing: the hub says False)
                     self.hub.change_view(self.token, self.key, view)
-                except RoomError:  # no longer steering: the room has another's view
+                except RoomError:  # the room is gone
                     pass
 
         page._lane.submit("room", compute_views, done)
