@@ -148,24 +148,28 @@ class Chart(pn.viewable.Viewer):
                  level="overlay")
         fig.line("x", "y", source=self.region_src, line_color=ORANGE, line_width=3.5,
                  level="overlay")
-        # weather systems: shape by kind, fill by verdict, a white rim, the label in a box
+        # weather systems: shape by kind, fill by verdict, a white rim, the label in a box;
+        # on the overlay layer too (they come after the chart, and a room's notes at any time:
+        # each would repaint the raster, contours and arrows)
         fig.scatter("x", "y", source=self.sys_src, marker="marker", size=20,
-                    fill_color="colour", line_color="white", line_width=2.5)
+                    fill_color="colour", line_color="white", line_width=2.5, level="overlay")
         fig.add_layout(LabelSet(x="x", y="y", text="label", source=self.sys_src,
                                 text_font_size="14px", text_color=INK, text_font_style="bold",
                                 x_offset=12, y_offset=-8, background_fill_color="white",
-                                background_fill_alpha=0.9))
+                                background_fill_alpha=0.9, level="overlay"))
         # review notes pinned to a point: a dark square with a white number beside it
         fig.scatter("x", "y", source=self.note_src, marker="square_pin", size=16,
-                    fill_color=INK, line_color="white", line_width=2)
+                    fill_color=INK, line_color="white", line_width=2, level="overlay")
         fig.add_layout(LabelSet(x="x", y="y", text="label", source=self.note_src,
                                 text_font_size="14px", text_color="#ffffff",
                                 text_font_style="bold", x_offset=9, y_offset=2,
-                                background_fill_color=INK, background_fill_alpha=0.9))
+                                background_fill_color=INK, background_fill_alpha=0.9,
+                                level="overlay"))
+        # the contours' labels stay above the region's outline: on its layer, after it
         fig.add_layout(LabelSet(x="x", y="y", text="text", source=self.clab_src,
                                 text_font_size="14px", text_align="center", text_color=INK,
                                 text_baseline="middle", background_fill_color="white",
-                                background_fill_alpha=0.85))
+                                background_fill_alpha=0.85, level="overlay"))
         fig.add_layout(LabelSet(x="x", y="y", text="text", source=self.glab_src,
                                 text_font_size="14px", text_color=INK,
                                 background_fill_color="white", background_fill_alpha=0.85))
@@ -224,19 +228,23 @@ class Chart(pn.viewable.Viewer):
         # scale_width: the chart keeps its shape (a map stretched sideways misleads) and
         # takes the column's width
         self.pane = pn.pane.Bokeh(fig, sizing_mode="scale_width", min_width=MIN_WIDTH,
-                                  max_width=WIDTH + 120, styles=dict(BUSY))
+                                  max_width=WIDTH + 120)
+        # the chart fades while it changes through a box of its own: a style set on the
+        # figure itself makes Bokeh repaint the whole map (raster, contours, arrows) once more
+        self.figure_box = pn.Column(self.pane, sizing_mode="stretch_width", margin=0,
+                                    styles=dict(BUSY))
         # the caption names the level and time: it fades with the chart while they change
         self.caption = pn.pane.HTML("", sizing_mode="stretch_width",
                                     styles={"font-size": "18px", "font-weight": "600", **BUSY})
         self.alert = pn.pane.HTML("", sizing_mode="stretch_width")
         self.note = pn.pane.HTML("", sizing_mode="stretch_width")
-        self.layout = pn.Column(self.caption, self.alert, self.pane, self.note,
+        self.layout = pn.Column(self.caption, self.alert, self.figure_box, self.note,
                                 sizing_mode="stretch_width", min_width=MIN_WIDTH,
                                 max_width=WIDTH + 140, css_classes=["bd-live"])
 
     # -- showing ----------------------------------------------------------------------------
     def busy(self, on: bool = True):
-        mark_busy(self.pane, on)
+        mark_busy(self.figure_box, on)
         mark_busy(self.caption, on)
 
     def show_error(self, text):
