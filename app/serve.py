@@ -138,6 +138,20 @@ def _limit_page_requests():
     DocHandler._balance_desk_limited = True
 
 
+def quiet_closed_sockets(loop, context):
+    """The event loop's handler of errors nobody collected. A page closed while the server
+    was still writing to it leaves writes that fail with "closed" and that nobody awaits
+    (Panel schedules them for a next tick that a destroyed session never has): that is a
+    person leaving, said in one line. Every other error goes to asyncio's own handler."""
+    from tornado.iostream import StreamClosedError
+    from tornado.websocket import WebSocketClosedError
+
+    if isinstance(context.get("exception"), (WebSocketClosedError, StreamClosedError)):
+        log.info("a page closed before the server's last message to it was written")
+        return
+    loop.default_exception_handler(context)
+
+
 class HideRoomKeys(logging.Filter):
     """Room links are keys: the logs show ``room=...`` instead of the token."""
 
@@ -339,6 +353,7 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
         gc.collect()
         gc.freeze()
         server.start()
+        server.io_loop.asyncio_loop.set_exception_handler(quiet_closed_sockets)
         try:
             server.io_loop.start()
         except KeyboardInterrupt:

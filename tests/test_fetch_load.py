@@ -17,7 +17,7 @@ import urllib.request
 import pytest
 
 from app.desk.page import EarlyBuilds
-from app.serve import PageLimit
+from app.serve import PageLimit, quiet_closed_sockets
 from serving import start_server, stop_server
 
 
@@ -32,6 +32,32 @@ def test_early_builds_are_counted_per_client_and_for_the_server():
     assert early.take(c, 6, now=0.5)
     assert not early.take(a, 7, now=19.0)
     assert early.take(a, 8, now=20.5)              # the script's first pages have aged out
+
+
+def test_a_write_to_a_closed_page_is_one_line_other_errors_go_on():
+    """A page closed mid-write leaves a failed write nobody awaits: one log line, no
+    traceback (the browser tests' servers must log none); any other error still reaches
+    asyncio's own handler."""
+    from tornado.iostream import StreamClosedError
+    from tornado.websocket import WebSocketClosedError
+
+    class Loop:
+        def __init__(self):
+            self.passed = []
+
+        def default_exception_handler(self, context):
+            self.passed.append(context)
+
+    loop = Loop()
+    quiet_closed_sockets(loop, {"message": "Task exception was never retrieved",
+                                "exception": WebSocketClosedError()})
+    quiet_closed_sockets(loop, {"message": "Task exception was never retrieved",
+                                "exception": StreamClosedError()})
+    assert loop.passed == []
+    other = {"message": "Task exception was never retrieved", "exception": ValueError("x")}
+    quiet_closed_sockets(loop, other)
+    quiet_closed_sockets(loop, {"message": "no exception at all"})
+    assert loop.passed == [other, {"message": "no exception at all"}]
 
 
 def test_the_page_limit_refuses_a_loop_and_refills():
