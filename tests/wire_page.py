@@ -130,7 +130,7 @@ class WirePage:
         try:
             while True:
                 self._look(await self._read())
-        except (ConnectionError, Exception):  # noqa: BLE001 - closed: the reading ends
+        except Exception:  # noqa: BLE001 - the session closed (or was closed): reading ends
             return
 
     def close(self):
