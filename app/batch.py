@@ -375,6 +375,10 @@ def summary(rows) -> str:
 
 # -- the run ---------------------------------------------------------------------------------
 
+#: glibc's mmap threshold in the workers of a local cluster (see :func:`local_cluster`)
+MMAP_THRESHOLD = 64 * 2 ** 20
+
+
 def local_cluster(n_workers, memory_limit=None):
     """A LocalCluster of ``n_workers`` processes of one thread each.
 
@@ -396,10 +400,6 @@ def local_cluster(n_workers, memory_limit=None):
         return LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True,
                             memory_limit="auto" if memory_limit is None else memory_limit,
                             dashboard_address=":0")
-
-
-#: glibc's mmap threshold in the workers of a local cluster (see :func:`local_cluster`)
-MMAP_THRESHOLD = 64 * 2 ** 20
 
 
 def worker_environment() -> dict:

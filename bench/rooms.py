@@ -30,7 +30,6 @@ from __future__ import annotations
 import argparse
 import asyncio
 import os
-import shutil
 import signal
 import statistics
 import sys
@@ -46,13 +45,12 @@ ROOT = os.path.dirname(HERE)
 sys.path.insert(0, ROOT)
 sys.path.insert(0, os.path.join(ROOT, "tests"))
 
+from chromium import ARGS, CHROMIUM  # noqa: E402
 from serving import start_server, stop_server  # noqa: E402
 
 from app.rooms import SQLiteStore  # noqa: E402
 from wire_page import WirePage  # noqa: E402
 
-ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networking",
-        "--disable-component-update", "--no-first-run", "--disable-sync"]
 
 #: in every follower: a log of (Date.now(), text) each time the verdict line changes
 WATCH_JS = """
@@ -110,7 +108,7 @@ async def follow(url, store_path, seconds, people, browsers, pid):
     link = f"{url}room?room={room.token}"
     browsers = max(0, min(browsers, people - 1))
     async with async_playwright() as p:
-        b = await p.chromium.launch(executable_path=shutil.which("chromium"), args=ARGS)
+        b = await p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
         leader = await _person(b, link, "leader")
         await leader.wait_for_timeout(3000)
         rss1 = _rss_mb(pid)
@@ -200,7 +198,7 @@ async def notes_at_once(url, store_path, sessions=10, per_session=100):
     link = f"{url}room?room={room.token}"
     acked = []
     async with async_playwright() as p:
-        b = await p.chromium.launch(executable_path=shutil.which("chromium"), args=ARGS)
+        b = await p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
         pages = [await _person(b, link, f"writer {i}") for i in range(sessions)]
         t0 = time.monotonic()
         await asyncio.gather(*(_write_notes(pg, f"w{i}", per_session, acked)
@@ -227,7 +225,7 @@ async def crash(store_path, writers=4, seconds=8.0):
     link = f"{url}room?room={room.token}"
     acked = []
     async with async_playwright() as p:
-        b = await p.chromium.launch(executable_path=shutil.which("chromium"), args=ARGS)
+        b = await p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
         pages = [await _person(b, link, f"writer {i}") for i in range(writers)]
         tasks = [asyncio.ensure_future(_write_notes(pg, f"c{i}", 10_000, acked))
                  for i, pg in enumerate(pages)]

@@ -22,6 +22,7 @@ from functools import partial
 
 import panel as pn
 
+from .. import compute
 from ..rooms import RoomError
 from ..rooms.export import describe_view, notes_json, notes_markdown, stamp
 from ..rooms.hub import clean_name
@@ -360,34 +361,30 @@ class RoomSession:
         """Give the room this page's view once its region's report and its chart are
         computed (they are shared: every follower then shows them at once, in one message,
         with no work of its own; given at once, 19 followers each queued the view's work,
-        marked their parts busy and took it in turn). The job waits in this page's lane
-        behind the page's own two views; a newer view replaces it, so the room gets only
-        the latest. Without a server (tests, exports) the view is given at once."""
-        view = self._view()
-        page = self.page
-        if page.doc is None or page.doc.session_context is None:
-            self.hub.change_view(self.token, self.key, view)
-            return
+        marked their parts busy and took it in turn). It is a job of the page's own kind
+        "room" (Page._submit): it waits in the page's lane behind the page's two views, a
+        newer view replaces it, so the room gets only the latest, and the view is given on
+        the page's own document (without a server, at once)."""
+        view, page = self._view(), self.page
         snap = page.state.copy()
 
         def compute_views():
-            from .. import compute
-
             for make in (lambda: compute.shared_box_data(page.library, snap, page.thresholds),
                          lambda: compute.shared_chart_data(page.library, snap)):
                 try:
                     make()
                 except Exception:  # noqa: BLE001 - each follower's page says it itself
                     pass
+            return view
 
-        def done(status, value, gen):  # on a thread of the pool: the hub and store lock
-            if status != "stale" and self.joined:
-                try:  # (a page that no longer steers changes nothing: the hub says False)
-                    self.hub.change_view(self.token, self.key, view)
-                except RoomError:  # the room is gone
-                    pass
+        page._submit("room", compute_views, self._give_view)
 
-        page._lane.submit("room", compute_views, done)
+    def _give_view(self, view):
+        if self.joined:
+            try:  # (a page that no longer steers changes nothing: the hub says False)
+                self.hub.change_view(self.token, self.key, view)
+            except RoomError:  # the room is gone
+                pass
 
     def _guard(self, fn, *args):
         self.bar.alert.object = ""
