@@ -126,3 +126,58 @@ def test_an_opened_page_computes_its_first_screen_once(debug_server):
         log = fh.read()[before:]
     assert log.count(": box computed") == 1, log
     assert log.count(": chart computed") == 1, log
+
+
+def test_boxes_typed_on_the_wire_end_on_the_last_ones_view(debug_server):
+    """The session driven over the websocket (tests/wire_page.py, bench/serve.py's hammer):
+    six boxes typed one after another without waiting end on the view of the last, with
+    the verdict the core gives for it (app.compute, called here), and the views queued
+    behind newer ones are dropped, not computed."""
+    import asyncio
+    import glob
+
+    from app import compute, vocab
+    from app.library import CaseLibrary
+    from app.state import ViewState
+    from wire_page import WirePage
+
+    proc, url = debug_server
+    # boxes no other test uses (views are shared between sessions, and kept)
+    boxes = [(-51.5, -27.5, 37.5 + i, 55.5) for i in range(6)]
+    st = ViewState(case="ocean_cyclone", level=500.0, time="2041-01-19T12:00:00Z")
+    st.set_box(*boxes[-1])
+    lib = CaseLibrary(sorted(glob.glob(os.path.join(os.path.dirname(os.path.dirname(
+        os.path.abspath(__file__))), "sample_cases", "*.nc"))))
+    region = st.region_text()
+    name = vocab.balance_name(compute.box_data(lib, st)["verdict"]["balance"])
+
+    async def run():
+        w = await WirePage(url + "?case=ocean_cyclone&level=500&time=2041-01-19T12%3A00%3A00Z",
+                           agent="wire test").open()
+        reading = asyncio.ensure_future(w.run())
+        try:
+            for _ in range(600):
+                if w.log:
+                    break
+                await asyncio.sleep(0.05)
+            with open(proc.log_path) as fh:
+                before = len(fh.read())
+            for box in boxes:
+                await w.set_box(box)
+            for _ in range(600):
+                if w.pane and region in w.pane:
+                    break
+                await asyncio.sleep(0.05)
+            await asyncio.sleep(1.0)  # anything still on its way would come now
+            return w.pane, w.log, before
+        finally:
+            w.close()
+            await reading
+
+    pane, log, before = asyncio.run(run())
+    assert pane is not None and region in pane, log
+    assert pane.startswith(name), pane[:200]
+    assert region in log[-1][1], log
+    with open(proc.log_path) as fh:
+        computed = fh.read()[before:].count(": box computed")
+    assert 1 <= computed < len(boxes), computed

@@ -7,9 +7,13 @@ with that token, asks for the document, says the document is ready (Panel's
 reads every message the server sends. So the server builds, computes, serializes and
 sends exactly what it would for a person's browser; only the drawing is left out.
 
-The load benchmark (bench/rooms.py) uses it for the many sessions it needs, beside a few
-real browser pages that measure the drawing (20 real Chromium renderers on a 2-core
-machine measure the machine, not the server); a test counts the messages a change
+It can also act as a person would: change a widget's value (a ``ModelChanged`` patch, as
+BokehJS sends when an input is edited) and click a button (a ``button_click`` event). The
+widgets are found in the pulled document by their title or label.
+
+The load benchmarks (bench/rooms.py, bench/serve.py) use it for the many sessions they
+need, beside real browser pages that measure the drawing (20 real Chromium renderers on a
+2-core machine measure the machine, not the server); a test counts the messages a change
 takes to reach a follower with it.
 
 Protocol: header, metadata and content are three text frames; a message with buffers
@@ -56,9 +60,17 @@ READY = {"events": [{"kind": "MessageSent", "msg_type": "bokeh_event",
                                   "values": {"type": "map"}}}]}
 
 
+def _click(model_id: str) -> dict:
+    return {"events": [{"kind": "MessageSent", "msg_type": "bokeh_event",
+                        "msg_data": {"type": "event", "name": "button_click",
+                                     "values": {"type": "map",
+                                                "entries": [["model", {"id": model_id}]]}}}]}
+
+
 class WirePage:
     """One session of ``link`` on the server, kept open; ``log`` holds (time.time(), where)
-    each time the verdict's "where" line changes, and ``bytes`` what the server sent."""
+    each time the verdict's "where" line changes, ``pane`` the verdict pane's latest text
+    (plain), and ``bytes`` what the server sent."""
 
     def __init__(self, link: str, cookies: dict | None = None, agent: str = "wire page"):
         self.link = link
@@ -69,6 +81,9 @@ class WirePage:
         self.messages = 0
         #: (time.time(), number of events) of every message read
         self.received: list[tuple[float, int]] = []
+        self.pane: str | None = None
+        #: the page's widgets, {title or label: model id}, from the pulled document
+        self.widgets: dict[str, str] = {}
         self._ws = None
         self._last = None
         self._n = 0
@@ -88,9 +103,25 @@ class WirePage:
         await self._read()  # ACK
         await self._send("PULL-DOC-REQ", {})
         reply = await self._read()
+        self.widgets = dict(_widgets(reply))
         self._look(reply)
         await self._send("PATCH-DOC", READY)
         return self
+
+    async def change(self, widget: str, attr: str, new):
+        """Set ``attr`` of the widget titled or labelled ``widget``, as its input would."""
+        await self._send("PATCH-DOC", {"events": [
+            {"kind": "ModelChanged", "model": {"id": self.widgets[widget]}, "attr": attr,
+             "new": new}]})
+
+    async def click(self, widget: str):
+        await self._send("PATCH-DOC", _click(self.widgets[widget]))
+
+    async def set_box(self, box):
+        """Type a box (west, east, south, north) and press "Use this box"."""
+        for title, value in zip(("West", "East", "South", "North"), box):
+            await self.change(title, "value", float(value))
+        await self.click("Use this box")
 
     async def _send(self, msgtype, content):
         self._n += 1
@@ -121,6 +152,8 @@ class WirePage:
         """Note the verdict's line wherever a text in the message carries it."""
         for text in _texts(content):
             where = verdict_where(text)
+            if where is not None:
+                self.pane = _plain(html.unescape(text) if "&lt;" in text else text)
             if where is not None and where != self._last:
                 self._last = where
                 self.log.append((time.time(), where))
@@ -136,6 +169,21 @@ class WirePage:
     def close(self):
         if self._ws is not None:
             self._ws.close()
+
+
+def _widgets(obj):
+    """(title or label, id) of every model in a pulled document that has one."""
+    if isinstance(obj, dict):
+        if obj.get("type") == "object" and "id" in obj:
+            attrs = obj.get("attributes") or {}
+            for name in ("title", "label"):
+                if isinstance(attrs.get(name), str) and attrs[name]:
+                    yield attrs[name], obj["id"]
+        for v in obj.values():
+            yield from _widgets(v)
+    elif isinstance(obj, list):
+        for v in obj:
+            yield from _widgets(v)
 
 
 def _texts(obj):
