@@ -44,6 +44,7 @@ from __future__ import annotations
 
 import dataclasses
 import os
+import threading
 from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
@@ -197,19 +198,40 @@ class Budget:
         return -total[0], -total[1]
 
 
-_POOL: ThreadPoolExecutor | None = None
+_POOLS: dict[int, ThreadPoolExecutor] = {}
+_POOLS_LOCK = threading.Lock()
 
 #: Points per band of rows: small enough that a band's intermediate arrays
 #: stay in a core's cache, large enough that Python overhead stays small.
 BAND_POINTS = 80_000
 
 
-def _pool() -> ThreadPoolExecutor:
-    global _POOL
-    if _POOL is None:
-        _POOL = ThreadPoolExecutor(max_workers=min(os.cpu_count() or 1, 8),
-                                   thread_name_prefix="budget")
-    return _POOL
+def band_threads() -> int:
+    """Threads for the bands of a large grid: the CPUs this process may run on (its
+    affinity mask, which a container or ``taskset`` narrows, not the machine's count), at
+    most 8, and no more than ``OMP_NUM_THREADS`` when that is set.
+
+    dask's workers are started with OMP_NUM_THREADS=1 (``distributed.nanny.pre-spawn-
+    environ``), as are numpy's BLAS and OpenMP threads: one thread per worker and one
+    worker per core is how dask uses a machine, and a pool of our own in each worker
+    would put two threads on every core (measured in bench/batch.py).
+    """
+    try:
+        n = len(os.sched_getaffinity(0))
+    except AttributeError:  # (not on Linux)
+        n = os.cpu_count() or 1
+    omp = os.environ.get("OMP_NUM_THREADS", "").strip()
+    if omp.isdigit() and int(omp) >= 1:
+        n = min(n, int(omp))
+    return max(1, min(n, 8))
+
+
+def _pool(n: int) -> ThreadPoolExecutor:
+    """A pool of ``n`` threads, made once."""
+    with _POOLS_LOCK:
+        if n not in _POOLS:
+            _POOLS[n] = ThreadPoolExecutor(max_workers=n, thread_name_prefix=f"budget{n}")
+        return _POOLS[n]
 
 
 def momentum_budget(grid: Grid, fields: Fields, time_index: int = 0, level_index: int = 0,
@@ -228,7 +250,8 @@ def momentum_budget(grid: Grid, fields: Fields, time_index: int = 0, level_index
         Also compute the derived views (acceleration, along_stream,
         centripetal); False leaves ``Budget.derived`` empty.
     workers : int, optional
-        Threads to use; 1 computes in the calling thread. Large grids are cut
+        Threads to use; 1 computes in the calling thread; by default
+        :func:`band_threads`. Large grids are cut
         into bands of rows (with one halo row each side, so every derivative
         is exactly that of the whole grid) that are computed side by side and
         written straight into the full output arrays; numpy releases the GIL
@@ -256,10 +279,10 @@ def momentum_budget(grid: Grid, fields: Fields, time_index: int = 0, level_index
     out = _allocate(layout, grid.shape, views)
     ny, nx = grid.shape
     rows = max(3, BAND_POINTS // nx)
+    nthreads = band_threads() if workers is None else max(1, int(workers))
     if ny < 2 * rows:
         bands = [(0, ny)]
     else:
-        nthreads = 1 if workers == 1 else _pool()._max_workers
         nbands = -(-ny // rows)
         nbands = -(-nbands // nthreads) * nthreads  # a whole number of bands per thread
         nbands = min(nbands, ny // 3)  # every band at least three rows
@@ -269,11 +292,11 @@ def momentum_budget(grid: Grid, fields: Fields, time_index: int = 0, level_index
     def run(band):
         _fill_band(grid, fields, layout, out, band[0], band[1], views)
 
-    if workers == 1 or len(bands) == 1:
+    if nthreads == 1 or len(bands) == 1:
         for b in bands:
             run(b)
     else:
-        for _ in _pool().map(run, bands):
+        for _ in _pool(nthreads).map(run, bands):
             pass
     return out
 

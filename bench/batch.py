@@ -4,12 +4,15 @@ The archive: 0.25-degree global levels (721 x 1440) at 850, 500 and 250 hPa, ``-
 valid times (default 40), one NetCDF file per time (float32, as archives are stored).
 Two boxes per level. Measured in the same run:
 
-* the core called directly, in this process, file after file (``plan_file``, which
-  opens it and takes its checksum, then ``run_task`` on each of its pieces): the
-  reference;
-* the same direct calls in 2 plain processes, each on half the files: what this machine
+* the core called directly, file after file (``plan_file``, which opens it and takes its
+  checksum, then ``run_task`` on each of its pieces), in a plain process started with the
+  environment of the batch's workers (one thread: OMP_NUM_THREADS=1, which the core's
+  band pool follows too): the reference;
+* the same direct calls in 2 such processes, each on half the files: what this machine
   gives a second process on this work without dask (two processes share the memory
   bandwidth and the caches; the ceiling of the next ratio);
+* for comparison, the direct calls in this process, whose band pool computes each
+  level on every core (``balance_core.budget.band_threads``), as the dashboard does;
 * the batch on a local cluster of 1 worker, then of 2 workers (one thread each);
 * the batch with 2 workers whose memory limit is a quarter of the archive's size:
   it must complete with no task lost to memory and no worker restarted; each worker's
@@ -44,6 +47,8 @@ import numpy as np  # noqa: E402
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(HERE)
 sys.path.insert(0, ROOT)
+
+from balance_core.budget import band_threads  # noqa: E402
 
 BOXES = [("north atlantic", (-60.0, -10.0, 35.0, 65.0)), ("north pacific", (150.0, -140.0, 30.0, 60.0))]
 LEVELS = [850.0, 500.0, 250.0]
@@ -205,15 +210,19 @@ def main(argv=None):
     size_mb = sum(os.path.getsize(f) for f in files) / 2 ** 20
     pieces = len(files) * len(LEVELS)
 
-    # the reference: the same work in one process, a file at a time -- opened (and its
-    # checksum taken) once, then every piece of it
-    direct = _direct(files)
+    # the reference: the same work in one process with a worker's environment, a file at
+    # a time -- opened (and its checksum taken) once, then every piece of it
     print(f"archive: {len(files)} files, {pieces} pieces (3 levels x {len(files)} times, "
           f"0.25-degree global), {size_mb:.0f} MB; {os.cpu_count()} cores", flush=True)
-    print(f"  direct calls, in one process:   {direct:7.1f} s ({direct / pieces:.2f} s a piece)",
+    direct = _direct_in_processes(files, 1)
+    print(f"  direct calls, 1 process:        {direct:7.1f} s ({direct / pieces:.2f} s a piece)",
           flush=True)
     direct2 = _direct_in_processes(files, 2)
     print(f"  direct calls, 2 processes:      {direct2:7.1f} s", flush=True)
+    _direct(files[:1])  # imports and first-call costs, not timed
+    here = _direct(files)
+    print(f"  direct calls, this process, {band_threads()} band threads: {here:7.1f} s",
+          flush=True)
     out = os.path.join(folder, "result.parquet")
     one, _, _ = run(files, out, 1)
     rate1 = steady_rate(out)
@@ -243,6 +252,7 @@ def main(argv=None):
     print(f"ratio workers2/workers1_whole_run {one / two:.2f}")
     print(f"ratio direct_2procs/direct_1proc {direct / direct2:.2f}")
     print(f"ratio batch_task/direct_call {one / direct:.2f}")
+    print(f"ratio workers2/direct_this_process {here / two:.2f}")
     if not args.keep:
         shutil.rmtree(folder, ignore_errors=True)
     print(f"figure limited_run_pieces_lost {len(errors)}")

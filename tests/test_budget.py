@@ -172,6 +172,40 @@ def test_bands_match_one_piece(rng, monkeypatch, projected):
             np.testing.assert_allclose(banded[n].y, whole[n].y, rtol=1e-12, atol=1e-16)
 
 
+def test_band_threads_follow_the_cpus_given_and_omp_num_threads(monkeypatch):
+    """A dask worker gets OMP_NUM_THREADS=1 (distributed's pre-spawn environment); its
+    bands are then computed in the calling thread, not in a pool of their own."""
+    monkeypatch.setattr(budget_mod.os, "sched_getaffinity", lambda pid: {0, 1, 2, 3},
+                        raising=False)
+    monkeypatch.delenv("OMP_NUM_THREADS", raising=False)
+    assert budget_mod.band_threads() == 4
+    monkeypatch.setenv("OMP_NUM_THREADS", "not a number")
+    assert budget_mod.band_threads() == 4
+    monkeypatch.setenv("OMP_NUM_THREADS", "2")
+    assert budget_mod.band_threads() == 2
+    monkeypatch.setenv("OMP_NUM_THREADS", "1")
+    assert budget_mod.band_threads() == 1
+    monkeypatch.setattr(budget_mod.os, "sched_getaffinity", lambda pid: set(range(64)))
+    monkeypatch.delenv("OMP_NUM_THREADS")
+    assert budget_mod.band_threads() == 8
+
+
+def test_one_thread_computes_the_bands_in_the_calling_thread(rng, monkeypatch):
+    g = Grid.latlon(np.linspace(-85, 85, 41), np.arange(0, 360, 9.0))
+    f = _random_fields(rng, shape=g.shape)
+    monkeypatch.setattr(budget_mod, "BAND_POINTS", 3 * g.shape[1])
+    used = []
+    real_pool = budget_mod._pool
+    monkeypatch.setattr(budget_mod, "_pool", lambda n: used.append(n) or real_pool(n))
+    monkeypatch.setenv("OMP_NUM_THREADS", "1")
+    momentum_budget(g, f, 1, 1)
+    assert used == []
+    monkeypatch.setenv("OMP_NUM_THREADS", "2")
+    monkeypatch.setattr(budget_mod.os, "sched_getaffinity", lambda pid: {0, 1}, raising=False)
+    momentum_budget(g, f, 1, 1)
+    assert used == [2]
+
+
 def test_float32_input_computed_in_float64(rng):
     g = Grid.latlon(np.linspace(20, 60, 20), np.linspace(-40, 20, 30))
     f64 = _random_fields(rng)
