@@ -440,6 +440,10 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
     folder = _parts_dir(out)
     os.makedirs(folder, exist_ok=True)
     cluster = None
+    # a LocalCluster's nanny sets its workers' variables (OMP_NUM_THREADS=1 ...) in this
+    # process before it starts each worker, and leaves them (PYTHONHASHSEED too): put them
+    # back at the end
+    environ = {k: os.environ.get(k) for k in [*worker_environment(), "PYTHONHASHSEED"]}
     if scheduler:
         client = Client(scheduler, timeout="30s")
     else:
@@ -563,6 +567,11 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
         client.close()
         if cluster is not None:
             cluster.close()
+        for k, v in environ.items():
+            if v is None:
+                os.environ.pop(k, None)
+            else:
+                os.environ[k] = v
     rows, task_errors = combine(out, tasks, checksums)
     errors += task_errors + lost
     _write_table(out, rows)
@@ -577,6 +586,11 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
             "tasks": len(tasks), "lost": len(lost)}
 
 
+# The bar is the run's own. distributed.diagnostics' TextProgressBar follows a fixed set of
+# keys on the scheduler (its Progress plugin waits until every key exists there, and stops
+# at the first task that fails), while a run's pieces become known only as each file is
+# opened on a worker, and a piece whose worker died is a row of the errors table, not the
+# end of the run; it shows no time left either.
 def _bar(done, total, width=24):
     n = int(width * done / max(total, 1))
     return "#" * n + "." * (width - n)

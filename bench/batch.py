@@ -11,12 +11,18 @@ Two boxes per level. Measured in the same run:
 * the same direct calls in 2 such processes, each on half the files: what this machine
   gives a second process on this work without dask (two processes share the memory
   bandwidth and the caches; the ceiling of the next ratio);
-* for comparison, the direct calls in this process, whose band pool computes each
-  level on every core (``balance_core.budget.band_threads``), as the dashboard does;
+* for comparison, the direct calls in 1 process without the workers' environment, whose
+  band pool computes each level on every core (``balance_core.budget.band_threads``), as
+  the dashboard does;
 * the batch on a local cluster of 1 worker, then of 2 workers (one thread each);
 * the batch with 2 workers whose memory limit is a quarter of the archive's size:
   it must complete with no task lost to memory and no worker restarted; each worker's
   resident memory is sampled every 0.1 s (psutil) and the largest is printed.
+
+The 1-worker and 2-worker runs alternate, ``--rounds`` pairs of them (default 3): a
+shared virtual machine's speed drifts by tens of per cent within minutes, and a pair run
+back to back sees the same machine. Each pair's ratio is printed; the figure is their
+median.
 
 Prints ``ratio workers2/workers1`` (throughput, pieces a second from the first piece
 written to the last, so without the cluster's start; goal >= 1.7) beside ``ratio
@@ -25,7 +31,7 @@ workers2/workers1_whole_run`` (the whole runs' times, start included), ``ratio
 batch_task/direct_call`` (time per piece on 1 worker over the direct call; goal
 < 1.2) and ``figure peak_worker_memory_mb``, ``figure archive_mb``.
 
-    python bench/batch.py [--times 40] [--keep DIR]
+    python bench/batch.py [--times 40] [--rounds 3] [--keep DIR]
 """
 
 from __future__ import annotations
@@ -47,8 +53,6 @@ import numpy as np  # noqa: E402
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(HERE)
 sys.path.insert(0, ROOT)
-
-from balance_core.budget import band_threads  # noqa: E402
 
 BOXES = [("north atlantic", (-60.0, -10.0, 35.0, 65.0)), ("north pacific", (150.0, -140.0, 30.0, 60.0))]
 LEVELS = [850.0, 500.0, 250.0]
@@ -174,15 +178,22 @@ def _direct(files):
     return time.perf_counter() - t0
 
 
-def _direct_in_processes(files, n=2):
-    """The direct calls in ``n`` fresh processes, each on every n-th file: wall seconds."""
+def _direct_in_processes(files, n=2, worker_env=True):
+    """The direct calls in ``n`` fresh processes, each on every n-th file: wall seconds.
+    They start with the environment of the batch's workers, or with ``worker_env`` False
+    without it (as the dashboard's server runs: the band pool on every core)."""
     import multiprocessing as mp
 
     from app.batch import worker_environment
 
     ctx = mp.get_context("spawn")  # fresh interpreters, as dask's workers are
     saved = dict(os.environ)
-    os.environ.update(worker_environment())  # what the batch's workers get, before numpy
+    if worker_env:
+        os.environ.update(worker_environment())  # what the batch's workers get, before numpy
+    else:
+        # (a LocalCluster's nanny sets them in the process that started it, for good)
+        for k in worker_environment():
+            os.environ.pop(k, None)
     try:
         with ctx.Pool(n) as pool:
             pool.map(_direct, [files[:1]] * n)  # imports and first-call costs, not timed
@@ -197,6 +208,8 @@ def _direct_in_processes(files, n=2):
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--times", type=int, default=40)
+    ap.add_argument("--rounds", type=int, default=3,
+                    help="pairs of 1-worker and 2-worker runs, one after the other")
     ap.add_argument("--keep", default=None, help="keep the archive in this folder")
     args = ap.parse_args(argv)
     folder = args.keep or tempfile.mkdtemp(prefix="bd-archive-")
@@ -219,18 +232,23 @@ def main(argv=None):
           flush=True)
     direct2 = _direct_in_processes(files, 2)
     print(f"  direct calls, 2 processes:      {direct2:7.1f} s", flush=True)
-    _direct(files[:1])  # imports and first-call costs, not timed
-    here = _direct(files)
-    print(f"  direct calls, this process, {band_threads()} band threads: {here:7.1f} s",
-          flush=True)
     out = os.path.join(folder, "result.parquet")
-    one, _, _ = run(files, out, 1)
-    rate1 = steady_rate(out)
-    print(f"  batch, 1 worker:                {one:7.1f} s ({one / pieces:.2f} s a piece); "
-          f"{rate1:.2f} pieces/s once running", flush=True)
-    two, _, _ = run(files, out, 2)
-    rate2 = steady_rate(out)
-    print(f"  batch, 2 workers:               {two:7.1f} s; {rate2:.2f} pieces/s once running",
+    pairs = []
+    for r in range(args.rounds):
+        one, _, _ = run(files, out, 1)
+        rate1 = steady_rate(out)
+        print(f"  batch, 1 worker:                {one:7.1f} s ({one / pieces:.2f} s a piece); "
+              f"{rate1:.2f} pieces/s once running", flush=True)
+        two, _, _ = run(files, out, 2)
+        rate2 = steady_rate(out)
+        print(f"  batch, 2 workers:               {two:7.1f} s; {rate2:.2f} pieces/s once "
+              f"running; this pair: {rate2 / rate1:.2f}", flush=True)
+        pairs.append((one, rate1, two, rate2))
+    # the median pair (by its throughput ratio) gives every figure below
+    one, rate1, two, rate2 = sorted(pairs, key=lambda p: p[3] / p[1])[len(pairs) // 2]
+    first_one = pairs[0][0]
+    here = _direct_in_processes(files, 1, worker_env=False)
+    print(f"  direct calls, 1 process with the band pool on every core: {here:7.1f} s",
           flush=True)
     # unlimited, sampled: what one worker needs
     free, peak_free, _ = run(files, out, 2, memory_limit=0, sample=True)
@@ -248,11 +266,13 @@ def main(argv=None):
     print(f"figure peak_worker_memory_mb {peak_free:.0f}")
     # throughput: pieces a second from the first piece written to the last (the cluster's
     # start, a few seconds whatever the archive, left out); and the whole runs' times
+    print(f"  pairs' ratios: {', '.join(f'{p[3] / p[1]:.2f}' for p in pairs)}")
     print(f"ratio workers2/workers1 {rate2 / rate1:.2f}")
     print(f"ratio workers2/workers1_whole_run {one / two:.2f}")
     print(f"ratio direct_2procs/direct_1proc {direct / direct2:.2f}")
-    print(f"ratio batch_task/direct_call {one / direct:.2f}")
-    print(f"ratio workers2/direct_this_process {here / two:.2f}")
+    # the first 1-worker run comes right after the direct reference (the machine drifts)
+    print(f"ratio batch_task/direct_call {first_one / direct:.2f}")
+    print(f"ratio workers2/direct_every_core {here / two:.2f}")
     if not args.keep:
         shutil.rmtree(folder, ignore_errors=True)
     print(f"figure limited_run_pieces_lost {len(errors)}")

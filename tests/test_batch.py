@@ -233,3 +233,24 @@ def test_workers_too_small_for_a_piece_end_the_run_with_a_sentence(archive, tmp_
         errors = pd.read_csv(tmp_path / "rows.errors.csv")
         assert (errors.error.str.startswith("not analysed")).all() and len(errors) > 0
     assert not list((tmp_path / "rows.csv.parts").glob(".*.tmp"))
+
+
+def test_a_run_in_this_process_leaves_its_environment_as_it_was(archive, tmp_path,
+                                                               monkeypatch):
+    """A LocalCluster's nanny sets its workers' OMP_NUM_THREADS=1 (and more) in the process
+    that starts them, for good; run_batch puts them back, so that a program calling it
+    keeps its band pool on every core afterwards (balance_core.budget.band_threads)."""
+    from app.batch import run_batch, worker_environment
+
+    monkeypatch.delenv("OMP_NUM_THREADS", raising=False)
+    monkeypatch.setenv("MALLOC_TRIM_THRESHOLD_", "12345")
+    before_seed = os.environ.get("PYTHONHASHSEED")
+    assert worker_environment()["OMP_NUM_THREADS"] == "1"
+    out = str(tmp_path / "rows.csv")
+    counts = run_batch([str(archive / "run0.nc")], [500.0], out,
+                       boxes=[("a", BOXES[0])], workers=1, say=lambda *a: None,
+                       err=lambda *a: None)
+    assert counts["rows"] == 3 and counts["errors"] == 0, counts  # its 3 valid times
+    assert "OMP_NUM_THREADS" not in os.environ
+    assert os.environ["MALLOC_TRIM_THRESHOLD_"] == "12345"
+    assert os.environ.get("PYTHONHASHSEED") == before_seed
