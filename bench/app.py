@@ -26,7 +26,6 @@ import argparse
 import gc
 import glob
 import os
-import shutil
 import statistics
 import sys
 import time
@@ -153,7 +152,7 @@ def browser_figures(repeat):
     Also the resident memory a second session of the same case adds to the server.
     Returns a dict of medians (ms, MB), or None without Chromium.
     """
-    chromium = shutil.which("chromium")
+    chromium = bb.CHROMIUM
     if chromium is None:
         return None
     import psutil

@@ -10,18 +10,17 @@ round trips to the figure.
 from __future__ import annotations
 
 import os
-import socket
-import subprocess
 import sys
-import tempfile
 import time
-import urllib.request
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(HERE)
+if os.path.join(ROOT, "tests") not in sys.path:
+    sys.path.append(os.path.join(ROOT, "tests"))
 
-ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networking",
-        "--disable-component-update", "--no-first-run", "--disable-sync"]
+from chromium import ARGS, CHROMIUM  # noqa: E402,F401 - Chromium's path and flags, as the tests
+import serving  # noqa: E402
+
 LINK = "?case=ocean_cyclone&level=500&time=2041-01-19T12%3A00%3A00Z"
 
 #: installed in every page before it loads: window.bdFind(selector, text) and the clocks
@@ -65,28 +64,11 @@ CLOCKS = """
 """
 
 
-def _free_port():
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
 def start_server(*files, env=None):
-    """A ``balance-desk serve`` of its own on a free port: (process, url, log path)."""
-    port = _free_port()
-    log = tempfile.NamedTemporaryFile("w", suffix=".log", delete=False)
-    proc = subprocess.Popen([sys.executable, "-m", "app.cli", "serve", *files, "--port",
-                             str(port)], cwd=ROOT, stdout=log, stderr=subprocess.STDOUT,
-                            env=env)
-    url = f"http://127.0.0.1:{port}/"
-    for _ in range(240):
-        try:
-            urllib.request.urlopen(url, timeout=2)
-            return proc, url, log.name
-        except Exception:  # noqa: BLE001
-            time.sleep(0.5)
-    proc.kill()
-    raise SystemExit("the server did not start")
+    """A ``balance-desk serve`` of its own on a free port (tests/serving.py): (process, url,
+    log path)."""
+    proc, url, _ = serving.start_server(files, env=env)
+    return proc, url, proc.log_path
 
 
 def new_page(browser, width=1500, height=1000):

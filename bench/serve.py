@@ -30,7 +30,6 @@ import argparse
 import asyncio
 import os
 import random
-import shutil
 import statistics
 import sys
 import threading
@@ -46,11 +45,20 @@ sys.path.insert(0, ROOT)
 sys.path.append(HERE)  # after the project: bench/app.py must not hide the app package
 sys.path.append(os.path.join(ROOT, "tests"))
 
-from browser import ARGS, LINK, page_ready, set_box, start_server  # noqa: E402
+from browser import ARGS, CHROMIUM, LINK, page_ready, set_box, start_server  # noqa: E402
 from wire_page import WirePage  # noqa: E402
 
 BOXES = [(-52, -28, 38, 56), (-45, -20, 30, 50), (-60, -35, 45, 60), (-40, -10, 35, 55),
          (-30, -5, 40, 52), (-55, -45, 30, 40), (-20, 0, 45, 60), (-65, -40, 28, 42)]
+
+
+def _state(box):
+    """The view of LINK with ``box`` set."""
+    from app.state import ViewState
+
+    st = ViewState(case="ocean_cyclone", level=500.0, time="2041-01-19T12:00:00Z")
+    st.set_box(*box)
+    return st
 
 
 def expected(box):
@@ -59,12 +67,10 @@ def expected(box):
 
     from app import compute, vocab
     from app.library import CaseLibrary
-    from app.state import ViewState
 
     lib = expected.__dict__.setdefault("lib", CaseLibrary(
         sorted(glob.glob(os.path.join(ROOT, "sample_cases", "*.nc")))))
-    st = ViewState(case="ocean_cyclone", level=500.0, time="2041-01-19T12:00:00Z")
-    st.set_box(*box)
+    st = _state(box)
     want = compute.box_data(lib, st)
     return st.region_text(), vocab.balance_name(want["verdict"]["balance"])
 
@@ -113,7 +119,7 @@ def hammer_wire(url, seconds, n_sessions, result, ready):
             w.close()
         await asyncio.gather(*readers)
 
-    expected_region = {box: expected(box)[0] for box in BOXES}
+    expected_region = {box: _state(box).region_text() for box in BOXES}
     asyncio.run(main())
 
 
@@ -121,7 +127,7 @@ def hammer(url, seconds, n_sessions, result, ready):
     from playwright.sync_api import sync_playwright
 
     with sync_playwright() as p:
-        b = p.chromium.launch(executable_path=shutil.which("chromium"), args=ARGS)
+        b = p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
         pages = []
         for _ in range(n_sessions):
             pg = b.new_page(viewport={"width": 1300, "height": 900})
@@ -178,7 +184,7 @@ def main(argv=None):
     proc, url, log = start_server()
     try:
         with sync_playwright() as p:
-            b = p.chromium.launch(executable_path=shutil.which("chromium"), args=ARGS)
+            b = p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
             page_ready(b, url)  # warm the caches of the case
             idle = statistics.median(page_ready(b, url) for _ in range(args.repeat))
             print(f"idle: {idle:.2f} s", file=sys.stderr, flush=True)

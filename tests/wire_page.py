@@ -43,11 +43,15 @@ def _plain(fragment: str) -> str:
     return " ".join(html.unescape(TAG.sub("", fragment)).split())
 
 
+def _markup(text: str) -> str:
+    """An HTML pane's markup from its text in a message (Panel sends it escaped once)."""
+    return html.unescape(text) if "&lt;" in text else text
+
+
 def verdict_where(text: str) -> str | None:
     """The verdict's "where" line in an HTML pane's text, as the page shows it; None if the
-    text has none. (Panel sends an HTML pane's text escaped once: it is unescaped first.)"""
-    raw = html.unescape(text) if "&lt;" in text else text
-    m = WHERE.search(raw)
+    text has none."""
+    m = WHERE.search(_markup(text))
     return _plain(m.group(1)) if m else None
 
 
@@ -153,7 +157,7 @@ class WirePage:
         for text in _texts(content):
             where = verdict_where(text)
             if where is not None:
-                self.pane = _plain(html.unescape(text) if "&lt;" in text else text)
+                self.pane = _plain(_markup(text))
             if where is not None and where != self._last:
                 self._last = where
                 self.log.append((time.time(), where))
