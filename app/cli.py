@@ -115,6 +115,23 @@ def _levels(text):
     return out
 
 
+def _level(text):
+    """A pressure level in hPa, or sea level ("msl")."""
+    from balance_core.io.analysis import SEA_LEVEL, is_sea_level
+
+    if is_sea_level(text):
+        return SEA_LEVEL
+    try:
+        v = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"--level must be a pressure level in hPa or msl "
+                                         f"(sea level), got {text!r}") from None
+    if not (math.isfinite(v) and 1 <= v <= 1100):
+        raise argparse.ArgumentTypeError(f"--level must lie from 1 to 1100 hPa, or be msl "
+                                         f"(sea level), got {text!r}")
+    return v
+
+
 def _non_negative(name):
     return _number(name, 0.0)
 
@@ -195,7 +212,9 @@ def build_parser() -> argparse.ArgumentParser:
                                    "scales, with the numbers and a balance verdict.")
     p.add_argument("files", nargs="+", metavar="FILE",
                    help="NetCDF, GRIB or Zarr; several files are joined along valid time")
-    p.add_argument("--level", required=True, type=_positive("--level"), metavar="HPA")
+    p.add_argument("--level", required=True, type=_level, metavar="HPA",
+                   help="pressure level in hPa, or msl: the sea-level pressure with the 10 m "
+                        "wind")
     p.add_argument("--time", default=None, metavar="INDEX_OR_ISO",
                    help="valid time: an index (0 is the first) or an ISO 8601 time")
     p.add_argument("--box", default=None, type=_box, metavar="WEST,EAST,SOUTH,NORTH",
@@ -213,8 +232,9 @@ def build_parser() -> argparse.ArgumentParser:
                                    "region: ranked terms, balances, numbers, verdict, and the "
                                    "parts of its ageostrophic wind.")
     p.add_argument("files", nargs="+", metavar="FILE")
-    p.add_argument("--level", type=_positive("--level"), default=500.0, metavar="HPA",
-                   help="pressure level (default 500)")
+    p.add_argument("--level", type=_level, default=500.0, metavar="HPA",
+                   help="pressure level in hPa (default 500), or msl: the lows and highs of "
+                        "the sea-level pressure")
     p.add_argument("--time", default=None, metavar="INDEX_OR_ISO")
     p.add_argument("--track", action="store_true",
                    help="every valid time, the systems matched into tracks")

@@ -490,6 +490,25 @@ def scale_sheet(state: ViewState, box_report: dict | None) -> dict:
 SYSTEM_KEYS = ("case", "level", "time", "smooth_km", "min_lat")
 
 
+def system_region_spec(r: dict, radius_m: float | None = None):
+    """The link's region (a :class:`app.state.RegionSpec`) of a system's region: a circle, a
+    box, or for a jet streak the area along the flow (its corners in the azimuthal
+    equidistant projection centred on its peak)."""
+    from balance_core.constants import EARTH_RADIUS
+
+    from .state import parse_region
+
+    if r["kind"] == "circle":
+        text = f"circle:{r['lon']:.4f},{r['lat']:.4f},{r['radius_km']:.1f}"
+    elif r["kind"] == "flow_box":
+        corners = ";".join(f"{lo:.4f},{la:.4f}" for lo, la in r["corners"])
+        text = (f"area:aeqd,lat_0={r['lat_0']:.6f},lon_0={r['lon_0']:.6f},"
+                f"R={radius_m or EARTH_RADIUS:.4f};{corners}")
+    else:
+        text = f"box:{r['west']:.4f},{r['east']:.4f},{r['south']:.4f},{r['north']:.4f}"
+    return parse_region(text)[0]  # the link's own compact form
+
+
 def systems_data(library, state: ViewState, thresholds: Thresholds = Thresholds()) -> dict:
     """The weather systems of the state's level and time, each with its region's report
     (:func:`balance_core.io.analyse_systems`), shared by every session that shows them.
@@ -515,28 +534,24 @@ def systems_data(library, state: ViewState, thresholds: Thresholds = Thresholds(
         for s in systems:
             letter = {"low": "L", "high": "H", "jet_streak": "J"}[s["kind"]]
             count[letter] = count.get(letter, 0) + 1
-            r = s["region"]
-            from .state import parse_region
-
-            text = (f"circle:{r['lon']:.4f},{r['lat']:.4f},{r['radius_km']:.1f}"
-                    if r["kind"] == "circle" else
-                    f"box:{r['west']:.4f},{r['east']:.4f},{r['south']:.4f},{r['north']:.4f}")
-            spec = parse_region(text)[0]  # the link's own compact form
+            spec = system_region_spec(s["region"])
             region = spec.to_text() if spec is not None else ""
             rep = s["report"]
             rows.append({"label": f"{letter}{count[letter]}", "kind": s["kind"],
                          "lon": s["lon"], "lat": s["lat"], "intensity": s["intensity"],
                          "value": s["value"], "depth": s["depth"],
                          "outer_level": s["outer_level"],
+                         "units": s.get("units", "m"), "note": s.get("note", ""),
                          "intensity_text": formats.intensity_text(s),
-                         "region": region, "region_text": formats.system_region_text(r),
+                         "region": region, "region_text": formats.system_region_text(s["region"]),
                          "verdict": rep["verdict"]["balance"],
                          "verdict_text": rep["verdict"]["text"],
                          "points": rep.get("points", 0),
                          "rossby_local": (rep.get("numbers") or {}).get("rossby_local_median"),
                          "ageostrophic_parts": rep.get("ageostrophic_parts")})
         return {"systems": rows, "rules": out["rules"], "when": sel.when,
-                "level_hpa": sel.level_hpa}
+                "level_hpa": sel.level_hpa, "level": out.get("level"),
+                "notes": out.get("notes", [])}
 
     return library.view(_key("systems", state, SYSTEM_KEYS, thresholds), make)
 
@@ -566,6 +581,7 @@ def system_life(library, state: ViewState, label: str,
         for p in tr["life"]:
             if p["valid_time"] == when and tr["kind"] == me["kind"] and \
                     abs(p["lon"] - me["lon"]) < 1e-6 and abs(p["lat"] - me["lat"]) < 1e-6:
-                return {"label": label, "kind": tr["kind"], "life": tr["life"],
-                        "match": tracks["match"]}
+                return {"label": label, "kind": tr["kind"], "units": me.get("units", "m"),
+                        "life": tr["life"], "match": tracks["match"],
+                        "notes": tracks.get("notes", [])}
     return None

@@ -17,7 +17,8 @@ import math
 from . import vocab
 
 __all__ = ["table", "export_json", "export_csv", "context_of", "clean", "systems_table",
-           "systems_csv", "system_region_text", "intensity_text"]
+           "systems_csv", "system_region_text", "intensity_text", "quantity", "rules_text",
+           "level_text"]
 
 
 def clean(obj):
@@ -49,12 +50,20 @@ def context_of(rep: dict, *, region_text: str | None = None, wind_units: str = "
     """What view a report belongs to, for the exports (and their headings)."""
     return {
         "case": rep.get("case"), "case_title": case_title, "invented_demo_data": bool(invented),
-        "level_hpa": rep.get("level_hpa"), "valid_time": rep.get("valid_time"),
+        "level_hpa": rep.get("level_hpa"), "level": level_text(rep),
+        "valid_time": rep.get("valid_time"),
         "reference_time": rep.get("reference_time"), "lead_time_h": rep.get("lead_time_h"),
         "valid_time_text": vocab.when(rep.get("valid_time"), rep.get("reference_time")),
         "region": region_text or _box_text(rep.get("box")),
         "units": {"terms": "m s-2", "wind": wind_units, "height": height_units},
     }
+
+
+def level_text(rep: dict) -> str:
+    """ "500 hPa", or "sea level" for the surface budget and the sea-level systems."""
+    if rep.get("level_hpa") is None:
+        return "sea level" if rep.get("level") == "msl" else ""
+    return f"{rep['level_hpa']:g} hPa"
 
 
 def _box_text(box):
@@ -85,7 +94,8 @@ def export_csv(rep: dict, context: dict) -> str:
     buf = io.StringIO()
     w = csv.writer(buf)
     level = context["level_hpa"]
-    ctx = [context["case"], "" if level is None else f"{level:g}", context["valid_time"],
+    ctx = [context["case"], context.get("level") if level is None else f"{level:g}",
+           context["valid_time"],
            context["reference_time"] or "", _num(context["lead_time_h"]), context["region"]]
     w.writerow(["case", "level (hPa)", "valid time", "reference time", "lead time (h)", "region",
                 "kind", "name", "value", "unit", "x part", "y part", "a priori estimate", "note"])
@@ -127,7 +137,7 @@ def table(rep: dict) -> str:
     """The text of ``balance-desk analyze`` (format table)."""
     where = _box_text(rep["box"])
     share = rep.get("valid_share")
-    lines = [f"{rep['case']}  {rep['level_hpa']:g} hPa  "
+    lines = [f"{rep['case']}  {level_text(rep)}  "
              f"{vocab.when(rep['valid_time'], rep.get('reference_time'))}  {where}",
              f"{rep['points']} of {rep.get('region_points', rep['points'])} points valid"
              + (f" ({100 * share:.0f} %)" if share is not None else "")
@@ -201,25 +211,57 @@ def system_region_text(region: dict) -> str:
     if region["kind"] == "circle":
         return (f"within {region['radius_km']:.0f} km of {vocab.lat(region['lat'])} "
                 f"{vocab.lon(region['lon'])}")
+    if region["kind"] == "flow_box":
+        return (f"{region['length_km']:.0f} km along the flow by {region['width_km']:.0f} km "
+                f"across, centred on {vocab.lat(region['lat_0'])} {vocab.lon(region['lon_0'])}")
     return (f"box {vocab.lon(region['west'])} to {vocab.lon(region['east'])}, "
             f"{vocab.lat(region['south'])} to {vocab.lat(region['north'])}")
 
 
-def intensity_text(s: dict, wind_units: str = "m/s") -> str:
+def quantity(value, units: str, height_units: str = "m", digits: int = 0) -> str:
+    """A system's value in words and the view's unit: heights in m or dam, sea-level
+    pressure in hPa, speeds in the wind unit."""
+    if value is None:
+        return "n/a"
+    if units == "Pa":
+        return f"{value / 100:.{max(digits, 1) if abs(value) < 1000 else digits}f} hPa"
+    v, u = vocab.height(value, height_units)
+    d = digits + (1 if height_units == "dam" else 0)
+    return f"{float(v):.{d}f} {u}"
+
+
+def intensity_text(s: dict, wind_units: str = "m/s", height_units: str = "m") -> str:
     if s["kind"] == "jet_streak":
         v, u = vocab.wind(s["value"], wind_units)
         return f"peak {float(v):.0f} {u}"
     side = "below" if s["kind"] == "low" else "above"
-    return (f"centre {s['value']:.0f} m, {s['depth']:.0f} m {side} its outermost closed "
-            f"contour ({s['outer_level']:.0f} m)")
+    units = s.get("units", "m")
+    return (f"centre {quantity(s['value'], units, height_units)}, "
+            f"{quantity(s['depth'], units, height_units)} {side} its outermost closed contour "
+            f"({quantity(s['outer_level'], units, height_units)})")
+
+
+def rules_text(out: dict, wind_units: str = "m/s", height_units: str = "m") -> str:
+    """The rules a systems listing used, in the view's units."""
+    r = out["rules"]
+    text = (f"closed contours every {quantity(r['contour_interval'], r['units'], height_units)}"
+            f", at least {quantity(r['min_depth'], r['units'], height_units)} deep, within one "
+            f"hemisphere and {100 * r['max_share']:.0f} % of the globe")
+    if r.get("jet_threshold_ms") is not None:
+        v, u = vocab.wind(r["jet_threshold_ms"], wind_units)
+        text += (f"; jet streaks above {float(v):.0f} {u}, core above "
+                 f"{100 * r['core_fraction']:.0f} % of the peak")
+    return text
 
 
 def systems_table(out: dict) -> str:
     """The text ``balance-desk systems`` prints: one block per system (or per track)."""
     if "tracks" in out:
-        lines = [f"Tracks of {out['case']} at {out['level_hpa']:g} hPa (matched within "
-                 f"{out['match']['speed_kmh']:g} km/h x the time step, at least "
-                 f"{out['match']['min_km']:g} km)", ""]
+        m = out["match"]
+        lines = [f"Tracks of {out['case']} at {level_text(out)} (matched within "
+                 f"{m['speed_kmh']:g} km/h x the time step, at least {m['min_km']:g} km and "
+                 f"{m['spacings']:g} grid spacings of {m['grid_spacing_km']:.0f} km)", ""]
+        lines += [f"  note: {n}" for n in out.get("notes", [])]
         for i, tr in enumerate(out["tracks"], 1):
             lines.append(f"{i}. {vocab.system_name(tr['kind'])}, {len(tr['life'])} times")
             for p in tr["life"]:
@@ -229,12 +271,11 @@ def systems_table(out: dict) -> str:
                              f"{'n/a' if ro is None else f'{ro:.2g}'}  "
                              f"{vocab.balance_name(p['verdict'])}")
         return "\n".join(lines)
-    r = out["rules"]
-    lines = [f"Systems of {out['case']} at {out['level_hpa']:g} hPa, "
+    lines = [f"Systems of {out['case']} at {level_text(out)}, "
              f"{vocab.when(out['valid_time'], out.get('reference_time'))}",
-             f"  rules: closed contours every {r['contour_interval_m']:g} m, at least "
-             f"{r['min_depth_m']:g} m deep; jet streaks above {r['jet_threshold_ms']:g} m/s, core "
-             f"above {100 * r['core_fraction']:.0f} % of the peak", ""]
+             f"  rules: {rules_text(out)}"]
+    lines += [f"  note: {n}" for n in out.get("notes", [])]
+    lines.append("")
     if not out["systems"]:
         lines.append("  no closed low, closed high or jet streak on this level")
     for i, s in enumerate(out["systems"], 1):
@@ -243,12 +284,20 @@ def systems_table(out: dict) -> str:
         lines.append(f"{i}. {vocab.system_name(s['kind'])} at {vocab.lat(s['lat'])} "
                      f"{vocab.lon(s['lon'])}: {intensity_text(s)}")
         lines.append(f"   region: {system_region_text(s['region'])}, {rep.get('points', 0)} "
-                     "valid points")
+                     "valid points" + (f" ({s['note']})" if s.get("note") else ""))
         lines.append(f"   verdict: {vocab.balance_name(v['balance'])}. {v['text']}")
         top = [t for t in rep.get("terms", []) if t["magnitude"] is not None][:3]
         if top:
             lines.append("   largest terms: " + ", ".join(
                 f"{vocab.term_name(t['name'])} {t['magnitude']:.1e}" for t in top) + " m s-2")
+        if rep.get("surface"):
+            sf = rep["surface"]
+            ang, rat = sf.get("cross_isobar_angle_median_deg"), \
+                sf.get("speed_over_geostrophic_median")
+            if ang is not None:
+                lines.append(f"   10 m wind: crosses the isobars toward low pressure by "
+                             f"{ang:.0f} degrees (median), at {rat:.2f} of the geostrophic "
+                             "speed")
         parts = rep.get("ageostrophic_parts") or {}
         if parts.get("measured_rms") is not None:
             bits = [f"{vocab.part_name(k)} {p['speed_rms']:.1f}" if p["speed_rms"] is not None
@@ -267,17 +316,17 @@ def systems_csv(out: dict) -> str:
     w = csv.writer(buf)
     parts = ("tendency", "inertial_advective", "vertical_advection", "remainder")
     if "tracks" in out:
-        w.writerow(["case", "level_hpa", "track", "kind", "valid_time", "lat", "lon",
+        w.writerow(["case", "level", "track", "kind", "valid_time", "lat", "lon",
                     "intensity", "rossby_local_median", "verdict"])
         for i, tr in enumerate(out["tracks"], 1):
             for p in tr["life"]:
-                w.writerow([out["case"], out["level_hpa"], i, vocab.system_name(tr["kind"]),
+                w.writerow([out["case"], level_text(out), i, vocab.system_name(tr["kind"]),
                             p["valid_time"], vocab.sig(p["lat"]), vocab.sig(p["lon"]),
                             vocab.sig(p["intensity"]), vocab.sig(p["rossby_local_median"]),
                             vocab.balance_name(p["verdict"])])
         return buf.getvalue()
-    w.writerow(["case", "level_hpa", "valid_time", "kind", "lat", "lon", "intensity",
-                "depth_m", "outer_contour_m", "region", "points", "verdict",
+    w.writerow(["case", "level", "valid_time", "kind", "lat", "lon", "intensity", "units",
+                "depth", "outer_contour", "region", "points", "verdict",
                 "geostrophic_ratio", "gradient_ratio", "cyclostrophic_ratio",
                 "rossby_local_median", "ageostrophic_rms_ms"]
                + [f"ageostrophic_{p}_rms_ms" for p in parts])
@@ -285,9 +334,9 @@ def systems_csv(out: dict) -> str:
         rep = s["report"]
         b = rep.get("balances") or {}
         ap = rep.get("ageostrophic_parts") or {}
-        w.writerow([out["case"], out["level_hpa"], out["valid_time"],
+        w.writerow([out["case"], level_text(out), out["valid_time"],
                     vocab.system_name(s["kind"]), vocab.sig(s["lat"]), vocab.sig(s["lon"]),
-                    vocab.sig(s["intensity"]), vocab.sig(s["depth"]),
+                    vocab.sig(s["intensity"]), s.get("units", "m"), vocab.sig(s["depth"]),
                     vocab.sig(s["outer_level"]), system_region_text(s["region"]),
                     rep.get("points"), vocab.balance_name(rep["verdict"]["balance"]),
                     vocab.sig(b.get("geostrophic")), vocab.sig(b.get("gradient")),

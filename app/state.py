@@ -72,7 +72,10 @@ def field_label(key: str) -> str:
 #: Projections a drawn area may name, and the parameters each takes (proj4 names).
 _AREA_PROJ = {"lcc": ("lat_1", "lat_2", "lat_0", "lon_0", "R"),
               "stere": ("lat_0", "lat_ts", "lon_0", "R"),
-              "merc": ("lat_ts", "lon_0", "R")}
+              "merc": ("lat_ts", "lon_0", "R"),
+              # a jet streak's region: a rectangle along the flow, straight in the azimuthal
+              # equidistant projection centred on the streak's peak
+              "aeqd": ("lat_0", "lon_0", "R")}
 _NUM = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
 
 
@@ -167,6 +170,10 @@ class RegionSpec:
         if self.kind == "circle":
             (lon, lat), = self.corners
             return f"within {self.radius_km:.0f} km of {vocab.lat(lat)} {vocab.lon(lon)}"
+        if self.proj[0] == "aeqd":
+            params = dict(self.proj[1])
+            return (f"area along the flow around {vocab.lat(params['lat_0'])} "
+                    f"{vocab.lon(params['lon_0'])}")
         lons, lats = self.outline(8)
         return (f"drawn area {vocab.lon(float(np.nanmin(lons)))} to "
                 f"{vocab.lon(float(np.nanmax(lons)))}, {vocab.lat(float(np.nanmin(lats)))} to "

@@ -670,7 +670,8 @@ class Grid:
                 f"{np.nanmax(self.lat):.2f}>")
 
 
-_CACHED = ("tan_lat_over_a", "cos_lat", "pole_mask", "tropics_mask", "inverse_f", "_bands")
+_CACHED = ("tan_lat_over_a", "cos_lat", "pole_mask", "tropics_mask", "inverse_f", "_bands",
+           "_systems_work")
 
 
 def _convergence(factors):

@@ -137,14 +137,22 @@ class Region:
             return out
         from shapely import Polygon, contains_xy  # vectorised point-in-polygon
 
+        lon, lat = np.broadcast_arrays(lon, lat)
+        out = np.zeros(lat.shape, dtype=bool)
+        # only the points in the polygon's lon/lat box are tested
+        near = (lat >= self.south) & (lat <= self.north)
+        if self.east - self.west < 360.0:
+            near &= (lon - self.west) % 360.0 <= (self.east - self.west)
         poly = Polygon(zip(self.lons, self.lats))
         # put each point's longitude in the polygon's unwrapped range
         ref = self.lons[0]
-        plon = ref + _wrap180(lon - ref)
-        inside = contains_xy(poly, plon, lat)
+        plon = ref + _wrap180(lon[near] - ref)
+        plat = lat[near]
+        inside = contains_xy(poly, plon, plat)
         for shift in (-360.0, 360.0):  # polygons wider than half the globe
-            inside |= contains_xy(poly, plon + shift, lat)
-        return inside
+            inside |= contains_xy(poly, plon + shift, plat)
+        out[near] = inside
+        return out
 
     def mask_point(self, lon: float, lat: float) -> bool:
         """Is the point (degrees) inside the region?"""

@@ -30,7 +30,8 @@ from .verdict import (Thresholds, Verdict, classify_budget, imbalance_ratios, ne
                       residual_causes)
 from .winds import Flow, GradientWind, geostrophic_wind, gradient_wind
 
-__all__ = ["LevelDiagnostics", "level_diagnostics", "box_report", "window"]
+__all__ = ["LevelDiagnostics", "level_diagnostics", "surface_diagnostics", "box_report",
+           "geostrophic_only_report", "window"]
 
 
 @dataclasses.dataclass
@@ -58,6 +59,14 @@ class LevelDiagnostics:
     height_above_ground_source: str = ""
     #: points where the level lies below the ground (masked in the data), or None
     below_ground: np.ndarray | None = None
+    #: the surface budget (sea-level pressure and the 10 m wind) rather than a pressure
+    #: level: ``height`` is then the sea-level pressure's equivalent height p / (rho g0),
+    #: ``sea_level_pressure`` the pressure itself (Pa), and ``high_ground`` the points
+    #: left out because the ground there is too high for the sea-level pressure
+    surface: bool = False
+    sea_level_pressure: np.ndarray | None = None
+    high_ground: np.ndarray | None = None
+    density_source: str = ""
 
     @property
     def speed(self):
@@ -112,6 +121,53 @@ def level_diagnostics(grid: Grid, fields: Fields, it: int, ik: int, *,
                             height_above_ground=height_above_ground,
                             height_above_ground_source=height_above_ground_source,
                             below_ground=below_ground)
+
+
+def surface_diagnostics(grid: Grid, pressure, u, v, *, t2m=None, time=None, it: int = 0,
+                        elevation=None) -> LevelDiagnostics:
+    """Budget and wind diagnostics of the 10 m wind over the sea-level pressure at time
+    ``it`` (:func:`balance_core.surface.surface_budget`).
+
+    ``pressure``, ``u``, ``v`` are (nt, ny, nx) or (ny, nx) (Pa, m s-1); ``t2m`` the 2 m
+    temperature at time ``it`` (K) for the density; ``elevation`` the height of the ground
+    (m): ground higher than :data:`balance_core.surface.MAX_ELEVATION_M` is left out.
+    The geostrophic and gradient winds are those of the pressure with the local density
+    (:func:`balance_core.winds.geostrophic_wind_from_pressure`,
+    :func:`balance_core.winds.gradient_wind_from_pressure`).
+    """
+    from .surface import MAX_ELEVATION_M, density_from, surface_budget
+    from .winds import geostrophic_wind_from_pressure, gradient_wind_from_pressure
+
+    p = np.asarray(pressure, dtype=np.float64)
+    uu = np.asarray(u, dtype=np.float64)
+    vv = np.asarray(v, dtype=np.float64)
+    if p.ndim == 2:
+        p, uu, vv = p[None], uu[None], vv[None]
+    high = None
+    if elevation is not None:
+        high = np.asarray(elevation, dtype=np.float64) > MAX_ELEVATION_M
+    keep = None if high is None else ~high
+    p0 = p[it] if keep is None else np.where(keep, p[it], np.nan)
+    u0 = uu[it] if keep is None else np.where(keep, uu[it], np.nan)
+    v0 = vv[it] if keep is None else np.where(keep, vv[it], np.nan)
+    rho, how = density_from(p0, t2m)
+    budget = surface_budget(grid, p, uu, vv, rho, time=time, it=it, keep=keep)
+    budget.notes.append(how)
+    ug, vg = geostrophic_wind_from_pressure(grid, p0, rho)
+    with np.errstate(invalid="ignore"):
+        rho_mean = float(np.nanmean(rho)) if np.ndim(rho) else float(rho)
+    dt = None
+    if time is not None and np.size(time) > 1:
+        dt = float(np.max(np.diff(np.asarray(time, dtype=np.float64))))
+    return LevelDiagnostics(
+        grid=grid, budget=budget, pressure=C.STD_SEA_LEVEL_PRESSURE, u=u0, v=v0,
+        height=p0 / (rho_mean * C.G0), omega=None,
+        temperature=None if t2m is None else np.asarray(t2m, dtype=np.float64), ug=ug, vg=vg,
+        gradient=gradient_wind_from_pressure(grid, p0, rho),
+        vorticity=Flow(grid, u0, v0).vorticity, n2=None, shear2=None, time_step_s=dt,
+        height_above_ground=np.full(grid.shape, 10.0),
+        height_above_ground_source="the 10 m wind", surface=True, sea_level_pressure=p0,
+        high_ground=high, density_source=how)
 
 
 def window(inside: np.ndarray):
@@ -191,7 +247,8 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
             ok &= np.isfinite(t.x) & np.isfinite(t.y)
     invalid = _invalid_points(diag, win, ins, ok)
     hag = _median(w(diag.height_above_ground), sub, ok)
-    ground = near_ground(diag.pressure, hag, th)
+    ground = (True, "the 10 m wind blows in the boundary layer, where friction acts") \
+        if diag.surface else near_ground(diag.pressure, hag, th)
     verdict = classify_budget(ratios, th, ground=ground)
     if not ok.any():
         return _empty_report(inside, th, invalid=invalid, verdict=verdict)
@@ -272,6 +329,12 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
     if invalid["below_ground"]:
         notes.append(f"{invalid['below_ground']} points of the region lie below the ground at "
                      f"{diag.pressure / 100:g} hPa: masked")
+    if invalid.get("high_ground"):
+        from .surface import MAX_ELEVATION_M
+
+        notes.append(f"{invalid['high_ground']} points of the region lie on ground higher "
+                     f"than {MAX_ELEVATION_M:g} m, where the sea-level pressure is a reduction "
+                     "through the mountain: left out")
     if no_root:
         notes.append(f"{no_root} points have no real gradient-wind root (anticyclonic curvature "
                      "too strong for the pressure gradient); they are left out of the gradient "
@@ -354,14 +417,20 @@ def _invalid_points(diag, win, ins, ok) -> dict:
     """Why the region's points that are not valid are not: below the ground, pole row, missing."""
     bad = ins & ~ok
     below = np.zeros_like(bad) if diag.below_ground is None else diag.below_ground[win] & bad
-    pole = diag.grid.pole_mask[win] & bad & ~below
-    missing = bad & ~below & ~pole
-    return {"below_ground": int(below.sum()), "pole_row": int(pole.sum()),
-            "missing_data": int(missing.sum())}
+    high = np.zeros_like(bad) if diag.high_ground is None else diag.high_ground[win] & bad
+    pole = diag.grid.pole_mask[win] & bad & ~below & ~high
+    missing = bad & ~below & ~pole & ~high
+    out = {"below_ground": int(below.sum()), "pole_row": int(pole.sum()),
+           "missing_data": int(missing.sum())}
+    if diag.surface:
+        out["high_ground"] = int(high.sum())
+    return out
 
 
 def _invalid_text(invalid) -> str:
     parts = [f"{n} {what}" for what, n in (("below the ground", invalid["below_ground"]),
+                                          ("on ground higher than the sea-level pressure "
+                                           "allows", invalid.get("high_ground", 0)),
                                           ("with missing data", invalid["missing_data"]),
                                           ("on a pole row", invalid["pole_row"])) if n]
     return (" Of the points left out, " + ", ".join(parts) + ".") if parts else ""
@@ -409,6 +478,29 @@ class _GridWindow:
         self.lat = grid.lat[win]
         self.f = grid.f[win]
         self.radius = grid.radius
+
+
+def geostrophic_only_report(grid: Grid, ug, vg, inside, why: str) -> dict:
+    """The report of a region where no budget can be made (no wind in the data): the
+    geostrophic wind's RMS speed over the region, and a verdict of "none" saying ``why``.
+
+    Same keys as :func:`box_report`; the budget's parts are empty.
+    """
+    if isinstance(inside, Region):
+        inside = inside.mask(grid)
+    ok = inside & np.isfinite(ug) & np.isfinite(vg)
+    rep = _empty_report(inside)
+    gstat = weighted_stats(np.hypot(ug, vg), grid, ok, quantiles=False)
+    n, total = int(ok.sum()), int(inside.sum())
+    rep.update(points=n, valid_share=n / max(total, 1), masked_points=total - n,
+               invalid={"below_ground": 0, "pole_row": 0, "missing_data": total - n},
+               winds={"speed_rms": None, "geostrophic_speed_rms": gstat.rms,
+                      "ageostrophic_fraction_median": None, "gradient_speed_rms": None})
+    rep["verdict"] = {"balance": "none", "text": f"No verdict: {why}, so no momentum budget "
+                      "can be made; the geostrophic wind of the region is given instead.",
+                      "why": "A verdict needs the wind."}
+    rep["notes"] = [f"{why}: the geostrophic wind only"]
+    return rep
 
 
 def _empty_report(inside, th: Thresholds = Thresholds(), invalid=None, verdict=None) -> dict:

@@ -15,7 +15,7 @@ from __future__ import annotations
 import panel as pn
 import param
 
-from .. import vocab
+from .. import formats, vocab
 from ..state import ViewState
 from .look import BLUE, GREEN, INK, MUTED, ORANGE, PURPLE, VERMILION, WIDGET_CSS, alert, esc
 
@@ -85,12 +85,13 @@ class SystemsPanel(pn.viewable.Viewer):
     def show(self, data):
         self.data = data
         rows = data["systems"]
-        r = data["rules"]
+        where = "sea level" if data.get("level_hpa") is None else f"{data['level_hpa']:g} hPa"
+        rules = formats.rules_text(data, self.state.wind_units, self.state.height_units)
+        notes = "".join(f"<div style='color:{MUTED}'>{esc(n)}</div>"
+                        for n in data.get("notes", []))
         self.status.object = (
-            f"<div style='font-size:15px;color:{INK}'>{len(rows)} found at "
-            f"{data['level_hpa']:g} hPa, {esc(data['when'])}: closed contours every "
-            f"{r['contour_interval_m']:g} m and at least {r['min_depth_m']:g} m deep; jet "
-            f"streaks above {self._w(r['jet_threshold_ms'])}.</div>")
+            f"<div style='font-size:15px;color:{INK}'>{len(rows)} found at {esc(where)}, "
+            f"{esc(data['when'])}: {esc(rules)}.{notes}</div>")
         # a first entry meaning "none chosen": a list box takes its first entry when nothing
         # else fits, and choosing a system must be a change
         options = {"(none chosen)": ""}
@@ -127,9 +128,7 @@ class SystemsPanel(pn.viewable.Viewer):
         rows = "".join(
             f"<tr>{td}{esc(vocab.when_short(p['valid_time']))}</td>"
             f"{td}{esc(vocab.lat(p['lat']))} {esc(vocab.lon(p['lon']))}</td>"
-            f"{td}"
-            f"{self._w(p['intensity']) if life['kind'] == 'jet_streak' else format(p['intensity'], '.0f') + ' m'}"
-            "</td>"
+            f"{td}{esc(self._amount(p['intensity'], life))}</td>"
             f"{td}"
             f"{'n/a' if p['rossby_local_median'] is None else format(p['rossby_local_median'], '.2g')}"
             f"</td>{td}{esc(vocab.balance_name(p['verdict']))}</td></tr>" for p in life["life"])
@@ -137,21 +136,28 @@ class SystemsPanel(pn.viewable.Viewer):
         self.life.object = (
             f"<div style='font-size:15px;color:{INK}'><b>{esc(life['label'])} through the "
             f"valid times</b> (matched to the nearest system of its kind within "
-            f"{life['match']['speed_kmh']:g} km/h of travel)<table class='bd-life' "
+            f"{life['match']['speed_kmh']:g} km/h of travel, and at least "
+            f"{life['match'].get('spacings', 1.5):g} grid spacings)<table class='bd-life' "
             "style='border-collapse:collapse;margin-top:4px'><tr>"
             + "".join(f"<th style='text-align:left;padding:2px 10px 2px 0'>{h}</th>"
                       for h in ("time", "centre", what, "local Rossby", "verdict")) + "</tr>"
-            f"{rows}</table></div>")
+            f"{rows}</table>"
+            + "".join(f"<div style='color:{MUTED}'>{esc(n)}</div>"
+                      for n in life.get("notes", [])) + "</div>")
+
+    def _amount(self, value, s):
+        """A system's intensity (a depth, or a streak's peak) in the view's units."""
+        if s["kind"] == "jet_streak":
+            return self._w(value)
+        return formats.quantity(value, s.get("units", "m"), self.state.height_units)
 
     def _short_intensity(self, s):
         if s["kind"] == "jet_streak":
             return self._w(s["value"])
-        return f"{s['depth']:.0f} m deep"
+        return f"{self._amount(s['depth'], s)} deep"
 
     def _intensity(self, s):
-        if s["kind"] == "jet_streak":
-            return f"peak {self._w(s['value'])}"
-        return s["intensity_text"]
+        return formats.intensity_text(s, self.state.wind_units, self.state.height_units)
 
     def chosen(self):
         if self.data is None:

@@ -1,16 +1,41 @@
-"""One box of one case at one level and time: the object ``balance-desk analyze`` prints."""
+"""One box of one case at one level and time: the object ``balance-desk analyze`` prints;
+and the weather systems of a level, each with the report of its region.
+
+A level is a pressure level in hPa, or sea level (:data:`SEA_LEVEL`, "msl"): the mean sea
+level pressure with the 10 m wind (:func:`balance_core.report.surface_diagnostics`).
+"""
 
 from __future__ import annotations
+
+import math
 
 import numpy as np
 
 from ..region import Region, weighted_stats
-from ..report import box_report, level_diagnostics
+from ..report import box_report, geostrophic_only_report, level_diagnostics, surface_diagnostics
 from ..verdict import Thresholds
 from .case import Case, iso
 from .errors import CaseError
 
-__all__ = ["analyse_case", "diagnostics_for", "analyse_systems", "track_systems"]
+__all__ = ["analyse_case", "diagnostics_for", "sea_level_diagnostics_for", "analyse_systems",
+           "track_systems", "SEA_LEVEL", "is_sea_level", "level_words"]
+
+#: The name of sea level where a level is asked for (the command line's ``--level msl``).
+SEA_LEVEL = "msl"
+_SEA_LEVEL_WORDS = {"msl", "sea level", "sea_level", "sealevel", "mean sea level"}
+#: A pressure level with more than this share of its points below the ground says so, and
+#: points to sea level for the systems near the ground (the project's own choice).
+BELOW_GROUND_SHARE = 0.1
+
+
+def is_sea_level(level) -> bool:
+    """Is this level sea level ("msl", "sea level"; any case)?"""
+    return isinstance(level, str) and level.strip().lower() in _SEA_LEVEL_WORDS
+
+
+def level_words(level) -> str:
+    """The level in words: "sea level" or "500 hPa"."""
+    return "sea level" if is_sea_level(level) else f"{float(level):g} hPa"
 
 
 def diagnostics_for(case: Case, level_index: int, time_index: int, smooth_km=None):
@@ -22,15 +47,19 @@ def diagnostics_for(case: Case, level_index: int, time_index: int, smooth_km=Non
                              below_ground=case.below_ground_mask(time_index, level_index))
 
 
-def analyse_case(case: Case, level_hpa: float, time=None, box=None, *, smooth_km=None,
-                 thresholds: Thresholds = Thresholds(), diagnostics=None) -> dict:
-    """The analysis of one box (west, east, south, north; a Region; None for the whole domain).
+def sea_level_diagnostics_for(case: Case, time_index: int, smooth_km=None):
+    """:func:`balance_core.report.surface_diagnostics` for one valid time of a case."""
+    f = case.surface_fields(time_index)
+    p, u, v = f["pressure"], f["u"], f["v"]
+    if smooth_km:
+        from ..smoothing import smooth
 
-    Returns the report of :func:`balance_core.report.box_report` with the case,
-    level, valid time, box, smoothing and the case's notes added.
-    """
-    k = case.level_index(level_hpa)
-    t = case.time_index(time)
+        p, u, v = (smooth(case.grid, a, smooth_km) for a in (p, u, v))
+    return surface_diagnostics(case.grid, p, u, v, t2m=f["t2m"], time=f["time"], it=f["it"],
+                               elevation=f["elevation"])
+
+
+def _region_and_box(case: Case, box):
     if isinstance(box, Region):
         region = box
         box_d = region.describe()
@@ -54,19 +83,48 @@ def analyse_case(case: Case, level_hpa: float, time=None, box=None, *, smooth_km
                         f"{box_d['north']:g} holds no grid points of {case.name} (its grid spans "
                         f"lat {case.grid.lat.min():.1f} to {case.grid.lat.max():.1f}, lon "
                         f"{case.grid.lon.min():.1f} to {case.grid.lon.max():.1f})")
-    diag = diagnostics or diagnostics_for(case, k, t, smooth_km)
-    below = int(case.below_ground.get(float(case.levels_pa[k] / 100), 0))
-    rep = box_report(diag, inside, thresholds=thresholds, below_ground=below)
+    return region, box_d, inside
+
+
+def _times(case: Case, t: int) -> dict:
     ref = None
     if case.reference_times is not None and not np.isnat(case.reference_times[t]):
         ref = case.reference_times[t]
+    return {"valid_time": iso(case.times[t]),
+            "reference_time": None if ref is None else iso(ref),
+            "lead_time_h": None if ref is None else float((case.times[t] - ref) /
+                                                         np.timedelta64(1, "h"))}
+
+
+def analyse_case(case: Case, level_hpa, time=None, box=None, *, smooth_km=None,
+                 thresholds: Thresholds = Thresholds(), diagnostics=None) -> dict:
+    """The analysis of one box (west, east, south, north; a Region; None for the whole domain)
+    at a pressure level (hPa) or at sea level (:data:`SEA_LEVEL`).
+
+    Returns the report of :func:`balance_core.report.box_report` with the case,
+    level, valid time, box, smoothing and the case's notes added.
+    """
+    t = case.time_index(time)
+    sea = is_sea_level(level_hpa)
+    if sea:
+        level_value, below = None, 0
+    else:
+        k = case.level_index(level_hpa)
+        level_value = float(case.levels_pa[k] / 100)
+        below = int(case.below_ground.get(level_value, 0))
+    region, box_d, inside = _region_and_box(case, box)
+    if diagnostics is not None:
+        diag = diagnostics
+    elif sea:
+        diag = sea_level_diagnostics_for(case, t, smooth_km)
+    else:
+        diag = diagnostics_for(case, k, t, smooth_km)
+    rep = box_report(diag, inside, thresholds=thresholds, below_ground=below)
     out = {
         "case": case.name,
-        "level_hpa": float(case.levels_pa[k] / 100),
-        "valid_time": iso(case.times[t]),
-        "reference_time": None if ref is None else iso(ref),
-        "lead_time_h": None if ref is None else float((case.times[t] - ref) /
-                                                     np.timedelta64(1, "h")),
+        "level_hpa": level_value,
+        "level": SEA_LEVEL if sea else level_value,
+        **_times(case, t),
         "box": box_d,
         "smooth_km": smooth_km,
         "min_lat": case.grid.min_lat,
@@ -75,6 +133,10 @@ def analyse_case(case: Case, level_hpa: float, time=None, box=None, *, smooth_km
     out["sources"] = {role: dict(src) for role, src in case.sources.items()}
     out["left_out"] = dict(case.dropped)
     out["notes"] = list(case.notes) + rep["notes"]
+    runs = case.runs_note(case.time_window(t)) if "tendency" not in \
+        diag.budget.residual_includes else None
+    if runs:
+        out["notes"].append(f"the local tendency: {runs}")
     sfc = case.surface_analysis(t)
     if sfc is not None:
         ok = inside & np.isfinite(sfc["cross_isobar_angle"]) & np.isfinite(sfc["speed_ratio"])
@@ -86,52 +148,136 @@ def analyse_case(case: Case, level_hpa: float, time=None, box=None, *, smooth_km
     return out
 
 
-def analyse_systems(case: Case, level_hpa: float, time=None, *, smooth_km=None,
+def _crosses_equator(region: Region) -> bool:
+    if region.kind == "circle":
+        return region.south < 0.0 < region.north
+    if region.kind == "polygon":
+        return min(region.lats) < 0.0 < max(region.lats)
+    return region.kind == "box" and region.south < 0.0 < region.north
+
+
+def _no_verdict(rep: dict, sentence: str) -> dict:
+    rep = dict(rep)
+    rep["verdict"] = {"balance": "none", "text": f"No verdict: {sentence}.",
+                      "why": sentence[0].upper() + sentence[1:] + "."}
+    return rep
+
+
+def _slab(case: Case, role: str, t: int, k: int, smooth_km):
+    a = np.asarray(case.data[role].isel(time=t, level=k).values, dtype=np.float64)
+    if smooth_km:
+        from ..smoothing import smooth
+
+        a = smooth(case.grid, a, smooth_km)
+    return a
+
+
+def analyse_systems(case: Case, level_hpa, time=None, *, smooth_km=None,
                     thresholds: Thresholds = Thresholds(), diagnostics=None, limit: int = 30,
                     interval=None, min_depth=None, jet=None) -> dict:
     """The weather systems of one level and time (:func:`balance_core.systems.find_systems`)
     and, for each, the report of its region (:func:`analyse_case`).
 
-    Returns ``case``, ``level_hpa``, ``valid_time``, ``reference_time``, ``lead_time_h``,
-    ``rules`` (the contour interval, least depth and jet threshold used) and ``systems``:
-    each system's kind, centre, intensity and region, with ``report``.
-    """
-    from ..systems import contour_interval, find_systems, jet_threshold
+    ``level_hpa`` is a pressure level or sea level (:data:`SEA_LEVEL`): there the lows and
+    highs of the mean sea level pressure, every 4 hPa, each with the surface budget of
+    its region where the file has the 10 m wind. A file with heights and no wind gets
+    its lows and highs with the geostrophic wind of each region and a verdict of "none".
 
-    k = case.level_index(level_hpa)
+    Returns ``case``, ``level_hpa`` (None at sea level), ``level``, ``valid_time``,
+    ``reference_time``, ``lead_time_h``, ``rules`` (the field, its units, the contour
+    interval, least depth, jet threshold and the other limits used), ``notes`` and
+    ``systems``: each system's kind, centre, intensity, units and region (a streak's
+    quadrants too), with ``report``.
+    """
+    from .. import systems as S
+    from ..winds import geostrophic_wind, geostrophic_wind_from_pressure
+
     t = case.time_index(time)
-    diag = diagnostics or diagnostics_for(case, k, t, smooth_km)
-    p = float(case.levels_pa[k])
-    found = find_systems(case.grid, diag.height, diag.u, diag.v, p, interval=interval,
-                         min_depth=min_depth, jet=jet, limit=limit)
-    ci = float(interval or contour_interval(p))
+    notes, budget, why_not = [], True, ""
+    sea = is_sea_level(level_hpa)
+    if sea:
+        p = None
+        field = case.sea_level_pressure(t)
+        if smooth_km:
+            from ..smoothing import smooth
+
+            field = smooth(case.grid, field, smooth_km)
+        u = v = None
+        budget = case.has_surface_wind
+        if budget:
+            diag = diagnostics or sea_level_diagnostics_for(case, t, smooth_km)
+        else:
+            why_not = "the file has no 10 m wind"
+            from ..surface import density_from
+
+            rho, _ = density_from(field, None)
+            ug, vg = geostrophic_wind_from_pressure(case.grid, field, rho)
+        vortices = ()
+        level_out = SEA_LEVEL
+    else:
+        k = case.level_index(level_hpa)
+        p = float(case.levels_pa[k])
+        budget = "u" in case.data and "v" in case.data
+        if budget:
+            diag = diagnostics or diagnostics_for(case, k, t, smooth_km)
+            field, u, v = diag.height, diag.u, diag.v
+        else:
+            why_not = "the file has no wind on this level"
+            field, u, v = _slab(case, "height", t, k, smooth_km), None, None
+            ug, vg = geostrophic_wind(case.grid, field)
+            notes.append("the file has no wind: closed lows and highs only (no jet streaks), "
+                         "each with the geostrophic wind of its region")
+        vortices = ()
+        if p >= 85000.0 and case.has_sea_level and u is not None:
+            # the sea-level lows and highs under a low level: their rings are not jet streaks
+            msl = case.sea_level_pressure(t)
+            vortices = tuple(S.find_closed_extrema(case.grid, msl, None, "low") +
+                             S.find_closed_extrema(case.grid, msl, None, "high"))
+        below = case.below_ground_mask(t, k)
+        if below is not None and below.mean() > BELOW_GROUND_SHARE:
+            notes.append(f"{100 * below.mean():.0f} % of the {p / 100:g} hPa level lies below the "
+                         "ground, where no contour can be traced: lows and highs near the "
+                         "ground are found in the sea-level pressure (--level msl, or \"sea "
+                         "level\" on the page)")
+        level_out = p / 100
+    found = S.find_systems(case.grid, field, u, v, p, interval=interval, min_depth=min_depth,
+                           jet=jet, limit=limit, vortices=vortices)
+    ci = float(interval or S.contour_interval(p))
     systems = []
     for s in found:
-        rep = analyse_case(case, p / 100, t, s.region, smooth_km=smooth_km,
-                           thresholds=thresholds, diagnostics=diag)
-        systems.append({**s.as_dict(), "report": rep})
-    ref = None
-    if case.reference_times is not None and not np.isnat(case.reference_times[t]):
-        ref = case.reference_times[t]
+        if budget:
+            rep = analyse_case(case, level_out, t, s.region, smooth_km=smooth_km,
+                               thresholds=thresholds, diagnostics=diag)
+        else:
+            rep = geostrophic_only_report(case.grid, ug, vg, s.region, why_not)
+        if _crosses_equator(s.region):
+            rep = _no_verdict(rep, "the region crosses the equator, where the Coriolis "
+                                   "parameter changes sign and no balance that needs it holds")
+        d = s.as_dict()
+        d["report"] = rep
+        systems.append(d)
     return {
-        "case": case.name, "level_hpa": p / 100, "valid_time": iso(case.times[t]),
-        "reference_time": None if ref is None else iso(ref),
-        "lead_time_h": None if ref is None else float((case.times[t] - ref) /
-                                                     np.timedelta64(1, "h")),
-        "rules": {"contour_interval_m": ci,
-                  "min_depth_m": 0.5 * ci if min_depth is None else float(min_depth),
-                  "jet_threshold_ms": float(jet or jet_threshold(p)),
-                  "core_fraction": 0.8, "limit": limit},
+        "case": case.name, "level_hpa": None if sea else p / 100, "level": level_out,
+        **_times(case, t),
+        "rules": {"field": "sea_level_pressure" if sea else "height",
+                  "units": "Pa" if sea else "m",
+                  "contour_interval": ci,
+                  "min_depth": 0.5 * ci if min_depth is None else float(min_depth),
+                  "jet_threshold_ms": None if u is None else float(jet or S.jet_threshold(p)),
+                  "core_fraction": 0.8, "limit": limit, "max_share": S.MAX_SHARE,
+                  "ring_km": S.RING_KM, "ring_tangential": S.RING_TANGENTIAL},
+        "notes": notes,
         "systems": systems,
     }
 
 
-def track_systems(case: Case, level_hpa: float, *, smooth_km=None,
+def track_systems(case: Case, level_hpa, *, smooth_km=None,
                   thresholds: Thresholds = Thresholds(), limit: int = 30, progress=None) -> dict:
     """The systems of every valid time, matched into tracks
     (:func:`balance_core.systems.match_tracks`): each track's kind and, at each of its
     times, the centre, intensity, local Rossby number and verdict of its region."""
-    from ..systems import MIN_TRACK_KM, TRACK_SPEED_KMH, System, match_tracks
+    from ..systems import TRACK_SPACINGS, TRACK_SPEED_KMH, System, match_tracks, \
+        track_limit_km
 
     per_time, objects = [], []
     for t in range(case.times.size):
@@ -143,18 +289,28 @@ def track_systems(case: Case, level_hpa: float, *, smooth_km=None,
                         for s in out["systems"]])
         if progress is not None:
             progress(t + 1, case.times.size)
-    hours = (case.times - case.times[0]) / np.timedelta64(1, "h")
+    hours = [float(h) for h in (case.times - case.times[0]) / np.timedelta64(1, "h")]
+    spacing = math.sqrt(float(np.nanmedian(case.grid.cell_area))) / 1e3
     tracks = []
-    for track in match_tracks(objects, [float(h) for h in hours]):
+    for track in match_tracks(objects, hours, spacing):
         life = []
         for t, i in track:
             s = per_time[t]["systems"][i]
             life.append({"valid_time": per_time[t]["valid_time"], "lon": s["lon"],
                          "lat": s["lat"], "intensity": s["intensity"],
-                         "rossby_local_median": s["report"]["numbers"].get("rossby_local_median"),
+                         "rossby_local_median": (s["report"].get("numbers") or {}).get(
+                             "rossby_local_median"),
                          "verdict": s["report"]["verdict"]["balance"]})
         tracks.append({"kind": per_time[track[0][0]]["systems"][track[0][1]]["kind"],
                        "life": life})
+    notes = []
+    runs = case.runs_note(range(case.times.size))
+    if runs:
+        notes.append(f"tracks: {runs}")
+    step = min((b - a for a, b in zip(hours, hours[1:])), default=0.0)
     return {"case": case.name, "level_hpa": per_time[0]["level_hpa"] if per_time else None,
-            "match": {"speed_kmh": TRACK_SPEED_KMH, "min_km": MIN_TRACK_KM},
-            "tracks": tracks, "times": per_time}
+            "level": per_time[0]["level"] if per_time else None,
+            "match": {"speed_kmh": TRACK_SPEED_KMH, "min_km": track_limit_km(0.0),
+                      "grid_spacing_km": spacing, "spacings": TRACK_SPACINGS,
+                      "limit_km": track_limit_km(step, spacing)},
+            "notes": notes, "tracks": tracks, "times": per_time}

@@ -263,6 +263,71 @@ class Case:
         return {"u": u, "v": v, "ug": ug, "vg": vg, "cross_isobar_angle": angle,
                 "speed_ratio": ratio, "density_source": source}
 
+    # -- the surface ---------------------------------------------------------------------
+    @property
+    def has_sea_level(self) -> bool:
+        """Does the case carry mean sea level pressure (surface systems)?"""
+        return "msl" in self.surface
+
+    @property
+    def has_surface_wind(self) -> bool:
+        """Does the case carry the 10 m wind (the surface budget)?"""
+        return "u10" in self.surface and "v10" in self.surface
+
+    def sea_level_pressure(self, time_index: int):
+        """Mean sea level pressure at one time, Pa, float64 (ny, nx)."""
+        if not self.has_sea_level:
+            raise CaseError("has no mean sea level pressure, so nothing can be said at sea "
+                            "level", self.paths[0] if self.paths else None)
+        return np.asarray(to_numpy(self.surface["msl"].isel(time=time_index)), np.float64)
+
+    def surface_fields(self, time_index: int) -> dict:
+        """What the surface budget needs around one valid time.
+
+        Returns ``pressure``, ``u``, ``v`` (the time and its neighbours, (nt, ny, nx), Pa
+        and m s-1), ``it`` (the time within them), ``time`` (seconds, or None with one
+        time), ``t2m`` (K, or None) and ``elevation`` (the ground's height, m, or None) at
+        the time.
+        """
+        if not (self.has_sea_level and self.has_surface_wind):
+            lacks = [w for w, ok in (("mean sea level pressure", self.has_sea_level),
+                                     ("the 10 m wind", self.has_surface_wind)) if not ok]
+            raise CaseError(f"has no {' and no '.join(lacks)}, so there is no surface budget "
+                            "at sea level", self.paths[0] if self.paths else None)
+        t0, t1 = _window(time_index, self.times.size)
+
+        def load(role, sl):
+            return np.asarray(to_numpy(self.surface[role].isel(time=sl)), np.float64)
+
+        sl = slice(t0, t1)
+        out = {"pressure": load("msl", sl), "u": load("u10", sl), "v": load("v10", sl),
+               "it": time_index - t0, "time": None, "t2m": None, "elevation": None}
+        if t1 - t0 > 1:
+            out["time"] = ((self.times[t0:t1] - self.times[0]) /
+                           np.timedelta64(1, "s")).astype(np.float64)
+        if "t2m" in self.surface:
+            out["t2m"] = load("t2m", time_index)
+        if "surface_height" in self.surface:
+            out["elevation"] = load("surface_height", time_index)
+        return out
+
+    def runs_note(self, time_indices) -> str | None:
+        """A sentence when these valid times come from more than one model run, else None:
+        a tendency or a track across them mixes runs, not one model's evolution."""
+        if self.reference_times is None:
+            return None
+        refs = {iso(r) for r in np.asarray(self.reference_times)[list(time_indices)]
+                if not np.isnat(r)}
+        if len(refs) < 2:
+            return None
+        listed = ", ".join(sorted(refs)[:4]) + (" and others" if len(refs) > 4 else "")
+        return (f"these valid times come from {len(refs)} model runs ({listed}): differences "
+                "and tracks across them join different runs, not one model's evolution")
+
+    def time_window(self, time_index: int) -> range:
+        """The valid times a budget at this time reads (the time and its neighbours)."""
+        return range(*_window(time_index, self.times.size))
+
     def height_above_ground(self, time_index: int, level_index: int):
         """(height of the level above the ground in m, or None; how it was found).
 
