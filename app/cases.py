@@ -84,6 +84,7 @@ def describe_case(path, name=None) -> dict:
     return {
         "name": c.name, "file": base, "title": printable(c.title),
         "levels_hpa": [float(p / 100) for p in c.levels_pa],
+        "sea_level": bool(c.has_sea_level),
         "valid_times": [iso(t) for t in c.times], "step_hours": step,
         "suggested_box": _suggested_box(c.attrs), "expected": expected,
         "invented": "invented" in str(c.attrs.get("geography", "")).lower() or

@@ -525,7 +525,8 @@ def cmd_cases(args) -> int:
         print(f"{c['name']}  ({c['file']})" + ("  [invented demo data]" if c.get("invented")
                                                 else ""))
         print(f"  {c['title']}")
-        print(f"  levels: {', '.join(f'{p:g}' for p in c['levels_hpa'])} hPa")
+        print(f"  levels: {', '.join(f'{p:g}' for p in c['levels_hpa'])} hPa"
+              + (", and sea level" if c.get("sea_level") else ""))
         step = f" every {c['step_hours']:g} h" if c["step_hours"] else ""
         print(f"  valid times: {len(c['valid_times'])}, {c['valid_times'][0]} to "
               f"{c['valid_times'][-1]}{step}")
@@ -534,7 +535,8 @@ def cmd_cases(args) -> int:
             print(f"  suggested box: --box {b[0]:g},{b[1]:g},{b[2]:g},{b[3]:g}")
         for e in c["expected"]:
             try:
-                print(f"  expected at {e['level_hpa']} hPa, time {e['time_index']}, box "
+                where = "sea level" if e["level_hpa"] == "msl" else f"{e['level_hpa']} hPa"
+                print(f"  expected at {where}, time {e['time_index']}, box "
                       f"{','.join(f'{x:g}' for x in e['box'])}: {e['balance']}")
             except (KeyError, TypeError, ValueError):
                 continue

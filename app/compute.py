@@ -15,12 +15,15 @@ import numpy as np
 
 from balance_core import Region, analyse_scales, classify_scales
 from balance_core.io import CaseError, iso
+from balance_core.io.analysis import SEA_LEVEL as SEA_LEVEL_NAME
 from balance_core.io.analysis import analyse_case
 from balance_core.scales import PRESETS, SCALE_TERMS
 from balance_core.verdict import Thresholds
 
 from . import render, vocab
-from .state import SHEET_SCALES, VECTORS, ViewState, field_label
+from .library import SEA_LEVEL_INDEX
+from .state import (SEA_LEVEL, SHEET_SCALES, VECTORS, ViewState, field_label, is_sea_level,
+                    level_text)
 
 __all__ = ["Selection", "resolve", "region_of", "ChartData", "chart_data", "box_data",
            "shared_chart_data", "shared_box_data", "ready_chart_data", "ready_box_data",
@@ -47,16 +50,38 @@ class Selection:
 def resolve(library, state: ViewState) -> Selection:
     """The case, level and time of a state; CaseError with a readable sentence if absent."""
     case = library.get(state.case)
-    k = case.level_index(state.level)
+    if is_sea_level(state.level):
+        if not has_sea_level(case):
+            raise CaseError("this case has no sea-level pressure with the 10 m wind, so "
+                            "there is no sea-level chart; choose a pressure level")
+        k, hpa = SEA_LEVEL_INDEX, SEA_LEVEL
+    else:
+        k = case.level_index(state.level)
+        hpa = float(case.levels_pa[k] / 100)
     t = case.time_index(state.time or None)
     ref = None
     if case.reference_times is not None and not np.isnat(case.reference_times[t]):
         ref = iso(case.reference_times[t])
-    return Selection(case, k, t, float(case.levels_pa[k] / 100), iso(case.times[t]), ref)
+    return Selection(case, k, t, hpa, iso(case.times[t]), ref)
+
+
+def has_sea_level(case) -> bool:
+    """Does the page offer sea level for this case (sea-level pressure and the 10 m wind)?"""
+    return bool(case.has_sea_level and case.has_surface_wind)
+
+
+def core_level(level):
+    """The level as the core names it: hPa, or "msl" for sea level."""
+    return SEA_LEVEL_NAME if is_sea_level(level) else float(level)
 
 
 def nearest_level(case, hpa: float) -> float:
-    """The case's pressure level nearest to ``hpa`` (in log pressure), hPa."""
+    """The case's pressure level nearest to ``hpa`` (in log pressure), hPa; sea level stays
+    sea level where the case has it."""
+    if is_sea_level(hpa) and has_sea_level(case):
+        return SEA_LEVEL
+    if is_sea_level(hpa):
+        hpa = 1000.0
     levels = np.asarray(case.levels_pa, dtype=np.float64) / 100
     return float(levels[np.argmin(np.abs(np.log(levels / max(float(hpa), 1e-3))))])
 
@@ -111,10 +136,14 @@ class ChartData:
     #: 1 where the level has no data (below the ground or missing), NaN elsewhere
     masked: np.ndarray | None = None
     masked_share: float = 0.0
+    #: what the contours are: "height contours" or "isobars" (sea-level pressure)
+    contour_label: str = "height contours"
 
 
 def _field_values(key, diag, state):
     """(values on the case grid, units, kind of colour scale)."""
+    if key == "height" and diag.surface:
+        return diag.sea_level_pressure / 100.0, "hPa", "sequential"
     if key == "height":
         v, u = vocab.height(diag.height, state.height_units)
         return v, u, "sequential"
@@ -135,7 +164,8 @@ def _field_values(key, diag, state):
         return diag.omega, "Pa s-1", "diverging"
     if key == "temperature":
         if diag.temperature is None:
-            raise CaseError("this case has no temperature")
+            raise CaseError("this case has no temperature" +
+                            (" at 2 m" if diag.surface else ""))
         return diag.temperature - 273.15, "degC", "sequential"
     if key.startswith("term:"):
         name = key[5:]
@@ -189,13 +219,9 @@ def chart_data(library, state: ViewState) -> ChartData:
         key = "height"
         vals, units, kind = _field_values(key, diag, state)
     raster = render.sample(geom, vals)
-    # height contours at display resolution
-    zm = render.sample(geom, diag.height)
-    zr, zunits = vocab.height(zm, state.height_units)
-    k = vocab.HEIGHT_UNITS[state.height_units][1]
-    levels = render.nice_levels(np.nanmin(zm), np.nanmax(zm),
-                                steps=render.HEIGHT_INTERVALS) * k
-    interval = float(levels[1] - levels[0]) if len(levels) > 1 else float("nan")
+    # contours at display resolution, at the interval the systems are found with
+    zr, zunits, interval, contour_label = _contour_field(geom, diag, sel, state)
+    levels = render.interval_levels(np.nanmin(zr), np.nanmax(zr), interval)
     contours = render.contour_lines(geom.xs, geom.ys, zr, levels)
     # vectors, and a reference arrow of one lattice cell
     vectors, vlabel, arrow = None, "", None
@@ -207,7 +233,7 @@ def chart_data(library, state: ViewState) -> ChartData:
         vectors = render.vector_lattice(geom, ur, vr, n_across=18)
         ref, wunit = vocab.wind(vectors["ref_speed"], state.wind_units)
         speed = _round_speed(float(ref))
-        vlabel = f"Vectors: {VECTORS[state.vectors]}"
+        vlabel = f"Vectors: {VECTORS[state.vectors]}" + (" at 10 m" if diag.surface else "")
         x0, x1, y0, y1 = geom.extent
         cell = vectors["cell"] * speed / float(ref) if float(ref) > 0 else vectors["cell"]
         arrow = {"x0": x0 + 0.04 * (x1 - x0), "y0": y0 + 0.05 * (y1 - y0),
@@ -244,15 +270,33 @@ def chart_data(library, state: ViewState) -> ChartData:
         notes.append(f"Grey: {100 * share:.0f} % of the level has no data"
                      + (f" ({nb} points below the ground)" if nb else "")
                      + "; those points are left out of every number")
-    title = f"{case.name} \u00b7 {sel.level_hpa:g} hPa \u00b7 {sel.when}"
+    title = f"{case.name} \u00b7 {level_text(sel.level_hpa)} \u00b7 {sel.when}"
     return ChartData(geom=geom, title=title, level_hpa=sel.level_hpa, valid_time=sel.valid_time,
-                     when=sel.when, field_key=key, field_label=field_label(key), units=units,
+                     when=sel.when, field_key=key,
+                     field_label="sea-level pressure" if key == "height" and diag.surface
+                     else field_label(key), units=units,
                      raster=raster, color_range=_color_range(raster, kind), color_kind=kind,
                      contours=contours, contour_units=zunits, contour_interval=interval,
+                     contour_label=contour_label,
                      vectors=vectors, vector_label=vlabel, reference_arrow=arrow, hover=hover,
                      coast=coast, coast_note=coast_note, land=land,
                      graticule=render.graticule(geom), region_xy=region_xy, notes=notes,
                      invented=facts["invented"], masked=masked, masked_share=share)
+
+
+def _contour_field(geom, diag, sel, state):
+    """(the contoured field on the display raster, its units, the interval, its name): the
+    height in the view's unit at the interval :func:`balance_core.systems.contour_interval`
+    gives the level (the one the systems are found with), or at sea level the sea-level
+    pressure in hPa every 4 hPa."""
+    from balance_core.systems import contour_interval
+
+    if diag.surface:
+        return (render.sample(geom, diag.sea_level_pressure) / 100.0, "hPa",
+                contour_interval(None) / 100.0, "isobars")
+    zr, zunits = vocab.height(render.sample(geom, diag.height), state.height_units)
+    k = vocab.HEIGHT_UNITS[state.height_units][1]
+    return zr, zunits, contour_interval(sel.level_hpa * 100.0) * k, "height contours"
 
 
 def _round_speed(x: float) -> float:
@@ -272,7 +316,10 @@ def _hover(geom, diag, vals, state, units, n_across=40):
     lon, lat = geom.lon[jj, ii], geom.lat[jj, ii]
     sub = dataclasses.replace(geom, rows=geom.rows[jj, ii], cols=geom.cols[jj, ii])
     f = render.sample(sub, vals)
-    z, zu = vocab.height(render.sample(sub, diag.height), state.height_units)
+    if diag.surface:
+        z, zu = render.sample(sub, diag.sea_level_pressure) / 100.0, "hPa"
+    else:
+        z, zu = vocab.height(render.sample(sub, diag.height), state.height_units)
     u = render.sample(sub, diag.u)
     v = render.sample(sub, diag.v)
     spd, wu = vocab.wind(np.hypot(u, v), state.wind_units)
@@ -305,7 +352,7 @@ def box_data(library, state: ViewState, thresholds: Thresholds = Thresholds()) -
     sel = resolve(library, state)
     diag = _diag(library, state, sel)
     case = library.case_for(state.case, state.min_lat)
-    rep = analyse_case(case, sel.level_hpa, sel.time_index, region_of(state),
+    rep = analyse_case(case, core_level(sel.level_hpa), sel.time_index, region_of(state),
                        smooth_km=state.smooth_km or None, thresholds=thresholds,
                        diagnostics=diag)
     rep["region_text"] = state.region_text()
@@ -524,7 +571,7 @@ def systems_data(library, state: ViewState, thresholds: Thresholds = Thresholds(
     def make():
         sel = resolve(library, state)
         case = library.case_for(state.case, state.min_lat)
-        out = analyse_systems(case, sel.level_hpa, sel.time_index,
+        out = analyse_systems(case, core_level(sel.level_hpa), sel.time_index,
                               smooth_km=state.smooth_km or None, thresholds=thresholds,
                               diagnostics=_diag(library, state, sel))
         order = {"low": 0, "high": 1, "jet_streak": 2}
@@ -572,7 +619,8 @@ def system_life(library, state: ViewState, label: str,
 
     def make():
         case = library.case_for(state.case, state.min_lat)
-        return track_systems(case, sel.level_hpa, smooth_km=state.smooth_km or None,
+        return track_systems(case, core_level(sel.level_hpa),
+                             smooth_km=state.smooth_km or None,
                              thresholds=thresholds)
 
     tracks = library.view(key, make)

@@ -159,7 +159,8 @@ def _draw_chart(fig, ax, chart, outline):
     ax.tick_params(labelsize=12)
     interval = "" if not math.isfinite(chart.contour_interval) else \
         f" every {chart.contour_interval:g} {chart.contour_units}"
-    ax.set_title(f"{chart.field_label}; height contours{interval}; {g.label}", fontsize=13)
+    ax.set_title(f"{chart.field_label}; {chart.contour_label}{interval}; {g.label}",
+                 fontsize=13)
 
 
 def _draw_ranking(fig, axr, axb, report):

@@ -17,10 +17,13 @@ import threading
 
 import pyproj  # noqa: F401  (before anything that may load eccodes)
 
-from balance_core.io import CaseError, diagnostics_for, open_case
+from balance_core.io import CaseError, diagnostics_for, open_case, sea_level_diagnostics_for
 from balance_core.io.errors import printable
 
-__all__ = ["CaseLibrary", "LoadedCase"]
+__all__ = ["CaseLibrary", "LoadedCase", "SEA_LEVEL_INDEX"]
+
+#: The level index that stands for sea level (the surface budget) in the shared caches.
+SEA_LEVEL_INDEX = -1
 
 log = logging.getLogger("balance_desk")
 
@@ -130,12 +133,15 @@ class CaseLibrary:
 
     def diagnostics(self, name: str, level_index: int, time_index: int,
                     smooth_km: float = 0.0, min_lat: float = 10.0):
-        """LevelDiagnostics, computed once per key for every session."""
+        """LevelDiagnostics, computed once per key for every session (``level_index``
+        :data:`SEA_LEVEL_INDEX`: the surface budget at sea level)."""
         key = (name, int(level_index), int(time_index), float(smooth_km or 0), float(min_lat))
 
         def make():
-            return diagnostics_for(self.case_for(name, min_lat), level_index, time_index,
-                                   smooth_km or None)
+            case = self.case_for(name, min_lat)
+            if level_index == SEA_LEVEL_INDEX:
+                return sea_level_diagnostics_for(case, time_index, smooth_km or None)
+            return diagnostics_for(case, level_index, time_index, smooth_km or None)
 
         return self._diag.get_or_make(key, make)
 

@@ -22,7 +22,7 @@ import numpy as np
 import pyproj
 from scipy import ndimage
 
-__all__ = ["ViewGeometry", "geometry_for", "sample", "contour_lines", "nice_levels",
+__all__ = ["ViewGeometry", "geometry_for", "sample", "contour_lines", "interval_levels",
            "vector_lattice", "coastlines", "graticule", "COAST_DIRS"]
 
 log = logging.getLogger("balance_desk")
@@ -264,27 +264,12 @@ def sample_points(geom: ViewGeometry, field, lon, lat):
     return sample(dataclasses.replace(geom, rows=rows, cols=cols), field)
 
 
-#: Contour intervals forecasters use for heights (m), smallest first (common practice).
-HEIGHT_INTERVALS = (10, 20, 30, 40, 60, 80, 120, 160, 240)
-
-
-def nice_levels(zmin, zmax, target=(5, 14), steps=None):
-    """Round contour levels spanning [zmin, zmax], at most ``target[1]`` lines.
-
-    ``steps`` lists the intervals allowed (smallest first), by default 1, 2, 2.5, 4, 5
-    times a power of ten; the smallest giving no more than target[1] lines wins.
-    """
-    if not (np.isfinite(zmin) and np.isfinite(zmax)) or zmax <= zmin:
+def interval_levels(zmin, zmax, interval):
+    """Contour levels at every multiple of ``interval`` within [zmin, zmax]."""
+    if not (np.isfinite(zmin) and np.isfinite(zmax) and interval > 0) or zmax < zmin:
         return np.array([])
-    span = zmax - zmin
-    if steps is None:
-        steps = [b * 10.0 ** e for e in range(-12, 8) for b in (1, 2, 2.5, 4, 5)]
-    for step in steps:
-        if span / step <= target[1]:
-            start = np.ceil(zmin / step) * step
-            return np.arange(start, zmax + step * 1e-9, step)
-    step = steps[-1]
-    return np.arange(np.ceil(zmin / step) * step, zmax + step * 1e-9, step)
+    start = np.ceil(zmin / interval) * interval
+    return np.arange(start, zmax + interval * 1e-9, interval)
 
 
 def contour_lines(xs, ys, z, levels, min_gap=0.07):

@@ -30,6 +30,7 @@ from balance_core.scales import PRESETS
 from . import vocab
 
 __all__ = ["ViewState", "FIELDS", "VECTORS", "PROJECTIONS", "URL_PARAMS", "field_label",
+           "SEA_LEVEL", "is_sea_level", "level_text",
            "RegionSpec", "parse_region", "parse_box", "parse_query", "encode_query",
            "SHEET_SCALES", "MAX_QUERY_VALUE"]
 
@@ -61,6 +62,21 @@ URL_PARAMS = ("case", "level", "time", "field", "vectors", "smooth_km", "min_lat
               "projection", "height_units", "wind_units", "preset", "sheet")
 #: Longest value taken from a link (a drawn area is about 110 characters).
 MAX_QUERY_VALUE = 400
+
+
+#: The view state's level for sea level (the sea-level pressure and the 10 m wind): no
+#: pressure level is 0 hPa; a link writes it "msl".
+SEA_LEVEL = 0.0
+
+
+def is_sea_level(level) -> bool:
+    """Is this view-state level sea level?"""
+    return level is not None and float(level) == SEA_LEVEL
+
+
+def level_text(level) -> str:
+    """ "sea level" or "500 hPa"."""
+    return "sea level" if is_sea_level(level) else f"{float(level):g} hPa"
 
 
 def field_label(key: str) -> str:
@@ -303,7 +319,8 @@ class ViewState(param.Parameterized):
     """What one person is looking at. Round-trips through the page link."""
 
     case = param.String(default="", doc="name of the case shown")
-    level = param.Number(default=500.0, bounds=(1.0, 1100.0), doc="pressure level, hPa")
+    level = param.Number(default=500.0, bounds=(0.0, 1100.0),
+                         doc="pressure level, hPa; 0 (SEA_LEVEL) for sea level")
     time = param.String(default="", doc="valid time, ISO 8601 (empty: the first)")
     field = param.Selector(default="height", objects=list(FIELDS), doc="the filled field")
     vectors = param.Selector(default="wind", objects=list(VECTORS), doc="the vectors drawn")
@@ -377,6 +394,8 @@ def encode_query(values: dict) -> dict:
         v = values.get(k)
         if k == "sheet":
             out[k] = ",".join(f"{n}={_short(x, 6)}" for n, x in sorted((v or {}).items()))
+        elif k == "level" and v is not None and is_sea_level(v):
+            out[k] = "msl"
         elif isinstance(v, float):
             out[k] = _short(v, 4)
         else:
@@ -437,6 +456,11 @@ def _parse_one(k, raw, cases, defaults):
         return "" if spec is None else spec.to_text()
     if k == "sheet":
         return _parse_sheet(raw)
+    if k == "level":
+        if raw.strip().lower() in ("msl", "sea level", "sea_level"):
+            return SEA_LEVEL
+        if re.fullmatch(_NUM, raw.strip()) and not 1.0 <= float(raw) <= 1100.0:
+            raise ValueError(f"{shown} is outside 1 to 1100 hPa (or msl, sea level)")
     if isinstance(p, param.Number):
         if not re.fullmatch(_NUM, raw.strip()):
             raise ValueError(f"{shown} is not a number")

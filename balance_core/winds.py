@@ -179,16 +179,23 @@ def gradient_wind(grid: Grid, height) -> GradientWind:
 def gradient_wind_from_pressure(grid: Grid, pressure, density) -> GradientWind:
     """Gradient wind from pressure (Pa) on a height surface, density kg m-3.
 
-    The same as :func:`gradient_wind` with the potential Phi = p / rho, so that
-    -dPhi/dn = -(1 / rho) dp/dn (density taken constant across the grid point).
+    The same as :func:`gradient_wind` with the pressure-gradient force (1 / rho) grad p in
+    place of grad Phi: -dPhi/dn = -(1 / rho) dp/dn, with the local density (a field or a
+    number), so that a varying density does not add a gradient of its own.
     """
     grid.check_field(pressure, "pressure")
-    phi = np.asarray(pressure, dtype=np.float64) / np.asarray(density, dtype=np.float64)
-    return _gradient_wind(grid, phi)
+    gx, gy = grid.grad(np.asarray(pressure, dtype=np.float64))
+    rho = np.asarray(density, dtype=np.float64)
+    return _gradient_wind_of(grid, gx / rho, gy / rho)
 
 
 def _gradient_wind(grid: Grid, phi) -> GradientWind:
     gx, gy = grid.grad(phi)
+    return _gradient_wind_of(grid, gx, gy)
+
+
+def _gradient_wind_of(grid: Grid, gx, gy) -> GradientWind:
+    """The gradient wind of the pressure-gradient potential's gradient (gx, gy), m s-2."""
     mag = np.hypot(gx, gy)
     flat = mag <= 1e-12 * np.nanmax(mag, initial=0.0)
     with np.errstate(invalid="ignore", divide="ignore"):

@@ -205,6 +205,8 @@ def make_cyclone(cfg=CYCLONE):
         for name, arr in zip(fields, (z, u, v, om, temp, tu, tv)):
             fields[name].append(arr[kk][:, ::2, ::2])
     data = {k: np.stack(v) for k, v in fields.items()}
+    data.update(sea_level_fields(data["height"][:, 0], data["temperature"][:, 0],
+                                 data["u"][:, 0], data["v"][:, 0]))
     rate = drag_rate(OUT_LEVELS, cfg)
     box = [-52.0, -28.0, 38.0, 56.0]
     attrs = {
@@ -222,12 +224,25 @@ def make_cyclone(cfg=CYCLONE):
         "expected_verdicts": json.dumps([
             {"level_hpa": 500, "time_index": 2, "box": box, "balance": "geostrophic"},
             {"level_hpa": 1000, "time_index": 2, "box": box, "balance": "frictional"},
+            {"level_hpa": "msl", "time_index": 2, "box": box, "balance": "frictional"},
         ]),
         "free_atmosphere_levels_hpa": json.dumps([700, 500, 300, 250]),
         "friction_levels_hpa": json.dumps([1000]),
+        "sea_level": ("sea-level pressure from the 1000 hPa height and temperature through the "
+                      "hypsometric relation; the 10 m wind is the 1000 hPa wind (the ocean "
+                      "lies about 100 m below that level); 2 m temperature from the 1000 hPa "
+                      "temperature with a 6.5 K/km lapse rate"),
         "scale_preset": "synoptic_cyclone",
     }
     return out_lat, out_lon, times, data, attrs
+
+
+def sea_level_fields(z1000, t1000, u1000, v1000):
+    """Sea-level pressure (Pa), 10 m wind and 2 m temperature of the invented ocean case:
+    p = 1000 hPa exp(g Z / (R_d T)) at the 1000 hPa height Z, the 1000 hPa wind as the 10 m
+    wind, and T + 6.5 K/km Z as the 2 m temperature."""
+    return {"msl": 1.0e5 * np.exp(G * z1000 / (RD * t1000)), "u10": u1000, "v10": v1000,
+            "t2m": t1000 + 0.0065 * z1000}
 
 
 # -- case 2: tropical cyclone ---------------------------------------------------------
@@ -585,6 +600,14 @@ def to_dataset(name, lat, lon, times, data, attrs, levels=None):
     for key, (std, units, long) in meta.items():
         var[key] = (dims, data[key].astype(np.float32),
                     {"standard_name": std, "units": units, "long_name": long})
+    for key, std, units, long in (
+            ("msl", "air_pressure_at_mean_sea_level", "Pa", "mean sea level pressure"),
+            ("u10", "eastward_wind", "m s-1", "10 m eastward wind"),
+            ("v10", "northward_wind", "m s-1", "10 m northward wind"),
+            ("t2m", "air_temperature", "K", "2 m air temperature")):
+        if key in data:
+            var[key] = (("time", "lat", "lon"), data[key].astype(np.float32),
+                        {"standard_name": std, "units": units, "long_name": long})
     if "land_mask" in data:
         var["land_mask"] = (("lat", "lon"), data["land_mask"],
                             {"standard_name": "land_binary_mask", "units": "1",
@@ -639,8 +662,28 @@ def write(outdir):
         enc = {v: {"zlib": True, "complevel": 5, "dtype": "float32"} for v in ds.data_vars}
         path = os.path.join(outdir, f"{name}.nc")
         ds.to_netcdf(path, engine="netcdf4", encoding=enc)
+        _height_coordinates(path)
         paths.append(path)
     return paths
+
+
+def _height_coordinates(path):
+    """The CF scalar coordinates that put the 10 m wind at 10 m and the 2 m temperature at 2 m
+    above the ground (each on its own variables only: xarray would give a scalar coordinate
+    to every variable)."""
+    import netCDF4
+
+    with netCDF4.Dataset(path, "a") as nc:
+        for var, height, name in (("u10", 10.0, "height10m"), ("v10", 10.0, "height10m"),
+                                  ("t2m", 2.0, "height2m")):
+            if var not in nc.variables:
+                continue
+            if name not in nc.variables:
+                h = nc.createVariable(name, "f8", ())
+                h.standard_name, h.units, h.positive = "height", "m", "up"
+                h.long_name = "height above the ground"
+                h[...] = height
+            nc.variables[var].coordinates = name
 
 
 if __name__ == "__main__":

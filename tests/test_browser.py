@@ -376,7 +376,7 @@ def test_a_burst_of_level_changes_never_shows_a_level_the_header_does_not(server
     # or is faded as updating (opacity well below 1) until it is replaced.
     page, errors = _page(browser, server + OCEAN)
     _wait_for(page, lambda: _verdict_text(page))
-    select = page.get_by_label("Pressure level", exact=True)
+    select = page.get_by_label("Level", exact=True)
     readings = []
     for label in ("850 hPa", "700 hPa", "300 hPa", "1000 hPa", "250 hPa", "500 hPa",
                   "925 hPa", "700 hPa"):

@@ -529,3 +529,19 @@ def test_a_region_that_would_cross_the_equator_is_cut_back_to_it():
     assert "cut back to the equator" in high.note
     assert high.region.radius_km == pytest.approx(8.0 * math.pi / 180 * g.radius / 1e3, rel=1e-3)
     assert high.region.south >= -1e-9
+
+
+def test_two_runs_at_the_same_valid_time_are_refused_with_a_sentence(tmp_path):
+    from balance_core.io import CaseError, open_case
+
+    import makedata
+
+    lat = np.arange(20.0, 70.01, 2.0)
+    lon = np.arange(-60.0, 20.01, 2.0)
+    ds, _ = makedata.latlon_dataset(lat, lon)
+    a = ds.isel(time=[1]).assign(forecast_reference_time=np.datetime64("2040-02-02T18:00"))
+    b = ds.isel(time=[1]).assign(forecast_reference_time=np.datetime64("2040-02-03T00:00"))
+    a.to_netcdf(tmp_path / "a.nc")
+    b.to_netcdf(tmp_path / "b.nc")
+    with pytest.raises(CaseError, match="two model runs"):
+        open_case([str(tmp_path / "a.nc"), str(tmp_path / "b.nc")])

@@ -343,3 +343,35 @@ def test_no_field_is_ever_masked_silently(tmp_path):
     assert rep["invalid"]["below_ground"] > 0
     with pytest.raises(CaseError):
         analyse_case(c, 600, 0, None)  # no such level: said, not guessed
+
+
+def test_scalar_height_coordinates_belong_to_the_variables_that_list_them(tmp_path):
+    # CF scalar coordinates height10m (10 m wind) and height2m (2 m temperature), each
+    # listed by its own variables only; xarray hands both to every variable, so a reader
+    # that takes whatever coordinates it is given puts the sea-level pressure at 10 m
+    import netCDF4
+
+    ds = good()
+    la, lo = np.meshgrid(LAT, LON, indexing="ij")
+    shape = (ds.sizes["time"],) + la.shape
+    ds["psl"] = (("time", "latitude", "longitude"), np.full(shape, 101000.0),
+                 {"standard_name": "air_pressure_at_mean_sea_level", "units": "Pa"})
+    ds["uas"] = (("time", "latitude", "longitude"), np.full(shape, 5.0),
+                 {"standard_name": "eastward_wind", "units": "m s-1"})
+    ds["vas"] = (("time", "latitude", "longitude"), np.full(shape, -3.0),
+                 {"standard_name": "northward_wind", "units": "m s-1"})
+    ds["tas"] = (("time", "latitude", "longitude"), np.full(shape, 285.0),
+                 {"standard_name": "air_temperature", "units": "K"})
+    path = nc(str(tmp_path), "two_heights.nc", ds)
+    with netCDF4.Dataset(path, "a") as f:
+        for name, h in (("height10m", 10.0), ("height2m", 2.0)):
+            v = f.createVariable(name, "f8", ())
+            v.standard_name, v.units = "height", "m"
+            v[...] = h
+        f["uas"].coordinates = f["vas"].coordinates = "height10m"
+        f["tas"].coordinates = "height2m"
+    c = open_case(path)
+    assert {"msl", "u10", "v10", "t2m"} <= set(c.surface)
+    assert c.sources["msl"]["variable"] == "psl"
+    assert c.sources["t2m"]["variable"] == "tas" and c.sources["u10"]["variable"] == "uas"
+    np.testing.assert_allclose(c.surface["t2m"].values, 285.0)

@@ -31,9 +31,13 @@ __all__ = ["Chart"]
 WIDTH, MIN_WIDTH = 860, 520
 
 
-def HOVER_TIPS(field_label):  # noqa: N802 - a table of the readout's lines
-    return [("where", "@lat{lat}, @lon{lon}"), (field_label, "@field{value}"),
-            ("height", "@height{height}"), ("wind", "@speed{wind}")]
+def HOVER_TIPS(field_label, contoured="height", same=False):  # noqa: N802 - the readout
+    """The readout's lines: where, the field, the contoured quantity (unless it is the
+    field), the wind."""
+    tips = [("where", "@lat{lat}, @lon{lon}"), (field_label, "@field{value}")]
+    if not same:
+        tips.append((contoured, "@height{height}"))
+    return tips + [("wind", "@speed{wind}")]
 
 
 #: the readout written in the page from the numbers: N/S/E/W, the units, "no data"
@@ -48,7 +52,7 @@ _HOVER_JS = {
               "String(Number(value.toPrecision(3))) : value.toExponential(2))); "
               "return unit ? t + ' ' + unit : t;",
     "@height": "if (!isFinite(value)) return 'no data'; "
-               "return value.toFixed(unit === 'dam' ? 1 : 0) + ' ' + unit;",
+               "return value.toFixed(unit === 'm' ? 0 : 1) + ' ' + unit;",
     "@speed": "if (!isFinite(value)) return 'no data'; "
               "const d = src.data.dir[special_vars.index]; "
               "return value.toFixed(0) + ' ' + unit + ' from ' + "
@@ -316,7 +320,8 @@ class Chart(pn.viewable.Viewer):
         if units != self.hover_units:
             self.hover_units = units
             self.hover.formatters = _hover_formatters(self.hover_src, units)
-        tips = HOVER_TIPS(cd.field_label)
+        tips = HOVER_TIPS(cd.field_label, "sea-level pressure" if cd.contour_units == "hPa"
+                          else "height", cd.field_key == "height")
         if tips != self.hover.tooltips:
             self.hover.tooltips = tips
         _set(fig.x_range, start=x0, end=x1, reset_start=x0, reset_end=x1)
@@ -345,7 +350,7 @@ class Chart(pn.viewable.Viewer):
                                f"</div><div style='font-size:16px;font-weight:400'>"
                                f"{esc(cd.field_label)}" + (f" ({esc(cd.units)})" if cd.units
                                                            else "") +
-                               f"; height contours{esc(interval)}</div>")
+                               f"; {esc(cd.contour_label)}{esc(interval)}</div>")
         notes = [n for n in (cd.coast_note, cd.vector_label, f"Projection: {g.label}") if n]
         notes += cd.notes
         self.note.object = "<div style='font-size:15px'>" + "<br>".join(esc(n) for n in notes) + \

@@ -15,7 +15,8 @@ import param
 from balance_core.io import CaseError, iso
 
 from .. import vocab
-from ..state import FIELDS, PROJECTIONS, VECTORS, ViewState
+from ..compute import has_sea_level as compute_has_sea_level
+from ..state import FIELDS, PROJECTIONS, SEA_LEVEL, VECTORS, ViewState
 from .look import WIDGET_CSS, alert
 
 __all__ = ["Controls"]
@@ -34,7 +35,7 @@ class Controls(pn.viewable.Viewer):
         css = [WIDGET_CSS]
         self.w_case = pn.widgets.Select(label="Case", options=library.names, value=state.case,
                                         width=W, stylesheets=css)
-        self.w_level = pn.widgets.Select(label="Pressure level", width=W, stylesheets=css)
+        self.w_level = pn.widgets.Select(label="Level", width=W, stylesheets=css)
         self.w_time = pn.widgets.Select(label="Valid time", width=W, stylesheets=css)
         self.w_prev = pn.widgets.Button(label="< earlier", width=W // 2 - 5, stylesheets=css)
         self.w_next = pn.widgets.Button(label="later >", width=W // 2 - 5, stylesheets=css)
@@ -137,7 +138,10 @@ class Controls(pn.viewable.Viewer):
         except CaseError:
             self.w_level.options, self.w_time.options = {}, {}
             return
-        self.w_level.options = {f"{p / 100:g} hPa": float(p / 100) for p in case.levels_pa}
+        levels = {f"{p / 100:g} hPa": float(p / 100) for p in case.levels_pa}
+        if compute_has_sea_level(case):
+            levels["sea level"] = SEA_LEVEL
+        self.w_level.options = levels
         refs = case.reference_times
         self.w_time.options = {
             vocab.when(t, None if refs is None or np.isnat(refs[i]) else refs[i]): iso(t)

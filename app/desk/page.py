@@ -30,7 +30,7 @@ from balance_core.scales import PRESETS
 from balance_core.verdict import Thresholds
 
 from .. import compute
-from ..state import URL_PARAMS, ViewState, encode_query
+from ..state import URL_PARAMS, ViewState, encode_query, level_text
 from ..work import POOL
 from .below import Below
 from .chart import Chart
@@ -473,8 +473,8 @@ class Page(pn.viewable.Viewer):
         except CaseError:
             level = s.level
         share = rep.get("valid_share")
-        current = rep and rep.get("level_hpa") == level and rep.get("region_text") == \
-            s.region_text()
+        rep_level = 0.0 if rep.get("level") == "msl" else rep.get("level_hpa")
+        current = rep and rep_level == level and rep.get("region_text") == s.region_text()
         valid = (f" &middot; {100 * share:.0f} % of the region valid" if current and
                  share is not None else "")
         invented = ""
@@ -490,7 +490,7 @@ class Page(pn.viewable.Viewer):
             f"flex-wrap:wrap;gap:12px;color:{INK}'>"
             "<span style='font-size:26px;font-weight:700'>balance-desk</span>"
             f"<span class='bd-header' style='font-size:19px'>{esc(s.case)}{invented} &middot; "
-            f"{level:g} hPa "
+            f"{esc(level_text(level))} "
             f"&middot; {esc(when)} &middot; {esc(s.region_text())}{valid}</span></div>")
 
     def __panel__(self):

@@ -523,7 +523,14 @@ def _assemble(pieces, *, min_lat, name) -> Case:
     order = np.argsort(times, kind="stable")
     times, refs = times[order], refs[order]
     if np.unique(times).size != times.size:
-        dup = times[np.nonzero(np.diff(times) == np.timedelta64(0))[0][0]]
+        i = np.nonzero(np.diff(times) == np.timedelta64(0))[0][0]
+        dup = times[i]
+        runs = {iso(r) for r in refs[i:i + 2] if not np.isnat(r)}
+        if len(runs) == 2:
+            raise CaseError(f"valid time {iso(dup)} comes from two model runs "
+                            f"({', '.join(sorted(runs))}) across the files: runs are not "
+                            "differenced or tracked one into the other; open one run at a "
+                            "time", first.path)
         raise CaseError(f"valid time {iso(dup)} appears more than once across the files",
                         first.path)
     if not np.all(order == np.arange(order.size)):

@@ -142,22 +142,42 @@ def _is_pressure_coord(name, ds) -> bool:
     return False
 
 
+def _is_vertical(name, var) -> bool:
+    std = str(var.attrs.get("standard_name") or "").lower()
+    axis = str(var.attrs.get("axis") or "").upper()
+    positive = str(var.attrs.get("positive") or "").lower()
+    return (name.lower() in HEIGHT_COORD_NAMES or std in ("height", "altitude", "depth",
+                                                           "model_level_number") or
+            std.startswith(("atmosphere_", "ocean_")) or axis == "Z" or
+            positive in ("up", "down"))
+
+
 def _vertical_coords(da, ds):
-    """Names of the non-pressure vertical coordinates of a variable (dims and scalars)."""
-    out = []
-    for c in list(dict.fromkeys(list(da.dims) + list(da.coords))):
-        if c not in ds.variables and c not in da.coords:
-            continue
-        var = da.coords[c] if c in da.coords else ds[c]
-        std = str(var.attrs.get("standard_name") or "").lower()
-        axis = str(var.attrs.get("axis") or "").upper()
-        positive = str(var.attrs.get("positive") or "").lower()
-        if c.lower() in HEIGHT_COORD_NAMES or std in ("height", "altitude", "depth",
-                                                       "model_level_number") or \
-                std.startswith(("atmosphere_", "ocean_")) or axis == "Z" or \
-                positive in ("up", "down"):
-            out.append(c)
-    return out
+    """Names of the non-pressure vertical coordinates of a variable (dims and scalars).
+
+    xarray hands every scalar coordinate of a file to every variable, so a coordinate that
+    is not one of the variable's dimensions counts where the variable's own CF
+    ``coordinates`` attribute lists it (CF 1.11, section 5). Where that attribute lists
+    no vertical coordinate, an inherited one counts only when it is the file's only one
+    and the variable's standard name implies no level of its own: a file with 10 m winds
+    and a 2 m temperature must not put its sea-level pressure at 10 m above the ground,
+    and a file whose writer listed its one height coordinate elsewhere still has its
+    10 m wind.
+    """
+    def var_of(c):
+        return da.coords[c] if c in da.coords else ds[c]
+
+    names = [c for c in dict.fromkeys(list(da.dims) + list(da.coords))
+             if (c in ds.variables or c in da.coords) and _is_vertical(c, var_of(c))]
+    own = set(str(da.encoding.get("coordinates") or "").split())
+    scalars = [c for c in names if c not in da.dims]
+    listed = [c for c in scalars if c in own]
+    if listed:
+        keep = set(listed)
+    else:
+        std = str(da.attrs.get("standard_name") or "").lower()
+        keep = set(scalars) if len(scalars) == 1 and std not in STANDARD_NAME_LEVELS else set()
+    return [c for c in names if c in da.dims or c in keep]
 
 
 def level_kind(name, da, ds) -> LevelKind:
