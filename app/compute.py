@@ -597,7 +597,7 @@ def systems_data(library, state: ViewState, thresholds: Thresholds = Thresholds(
                          "rossby_local": (rep.get("numbers") or {}).get("rossby_local_median"),
                          "ageostrophic_parts": rep.get("ageostrophic_parts")})
         return {"systems": rows, "rules": out["rules"], "when": sel.when,
-                "level_hpa": sel.level_hpa, "level": out.get("level"),
+                "level_hpa": out.get("level_hpa"), "level": out.get("level"),
                 "notes": out.get("notes", [])}
 
     return library.view(_key("systems", state, SYSTEM_KEYS, thresholds), make)

@@ -224,7 +224,8 @@ def quantity(value, units: str, height_units: str = "m", digits: int = 0) -> str
     if value is None:
         return "n/a"
     if units == "Pa":
-        return f"{value / 100:.{max(digits, 1) if abs(value) < 1000 else digits}f} hPa"
+        hpa = value / 100
+        return f"{hpa:g} hPa" if float(hpa).is_integer() else f"{hpa:.1f} hPa"
     v, u = vocab.height(value, height_units)
     d = digits + (1 if height_units == "dam" else 0)
     return f"{float(v):.{d}f} {u}"

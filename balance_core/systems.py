@@ -698,18 +698,26 @@ def is_ring(streak: System, vortex: System, u, v) -> bool:
 
 def find_systems(grid: Grid, height, u, v, pressure_pa: float, *, interval=None,
                  min_depth=None, jet=None, core_fraction: float = 0.8,
-                 limit: int = 30, vortices=()) -> list:
+                 limit: int = 30, vortices=(), shallow: list | None = None) -> list:
     """Closed lows and highs and jet streaks of one level, at most ``limit`` of them:
     the most intense of each kind first, kinds taken in turn.
 
     Without wind (``u`` or ``v`` None) there are no jet streaks. ``vortices``: closed
     systems found elsewhere (the sea-level lows and highs under a low level) whose rings
-    are not jet streaks either.
+    are not jet streaks either. ``shallow``, a list, receives the lows and highs with a
+    closed contour that are less than the least depth deep (left out of the result, but
+    visible on a chart at the same interval).
     """
+    ci = float(interval or contour_interval(pressure_pa))
+    depth_min = 0.5 * ci if min_depth is None else float(min_depth)
     lows = find_closed_extrema(grid, height, pressure_pa, "low", interval=interval,
-                               min_depth=min_depth)
+                               min_depth=0.0)
     highs = find_closed_extrema(grid, height, pressure_pa, "high", interval=interval,
-                                min_depth=min_depth)
+                                min_depth=0.0)
+    if shallow is not None:
+        shallow.extend(s for s in lows + highs if s.depth < depth_min)
+    lows = [s for s in lows if s.depth >= depth_min]
+    highs = [s for s in highs if s.depth >= depth_min]
     jets = []
     if u is not None and v is not None:
         jets = find_jet_streaks(grid, u, v, pressure_pa, threshold=jet,

@@ -346,3 +346,73 @@ def test_a_level_with_no_system_says_so(library):
     assert page.systems.data["systems"] == []
     assert "0 found" in page.systems.status.object
     assert len(page.chart.sys_src.data["x"]) == 0
+
+
+def test_sea_level_is_a_level_of_the_page_with_isobars_and_the_surface_budget(library):
+    # the invented ocean cyclone carries sea-level pressure and the 10 m wind: "sea level"
+    # is in the level menu, the chart draws isobars every 4 hPa (common practice), the
+    # region's verdict is the surface budget's, and the link says level=msl
+    from app.desk.page import build_page
+    from app.state import SEA_LEVEL, encode_query
+
+    page = build_page(library, {"case": ["ocean_cyclone"], "level": ["msl"],
+                                "time": ["2041-01-19T12:00:00Z"],
+                                "region": ["box:-52,-28,38,56"]})
+    page.start()
+    assert page.state.level == SEA_LEVEL
+    assert page.controls.w_level.options["sea level"] == SEA_LEVEL
+    assert page.controls.w_level.value == SEA_LEVEL
+    cd = compute.chart_data(library, page.state)
+    assert cd.contour_units == "hPa" and cd.contour_interval == 4.0
+    assert cd.contour_label == "isobars" and cd.field_label == "sea-level pressure"
+    assert all(abs(v / 4.0 - round(v / 4.0)) < 1e-9 for v in cd.contours[2])
+    assert "sea level" in cd.title and "at 10 m" in cd.vector_label
+    rep = page.report
+    assert rep["level"] == "msl" and rep["level_hpa"] is None
+    assert rep["verdict"]["balance"] == "frictional"
+    assert "sea level" in page.header.object
+    status = page.systems.status.object
+    assert "found at sea level" in status and "every 4 hPa" in status
+    assert "shallow low or high is left out" in status  # the closed 1004 hPa isobar is shallow
+    assert encode_query(page.state.values())["level"] == "msl"
+    # a case without sea-level pressure does not offer it, and a link asking for it gets a
+    # pressure level
+    other = build_page(library, {"case": ["tropical_cyclone"], "level": ["msl"]})
+    assert "sea level" not in other.controls.w_level.options
+    assert other.state.level == 1000.0
+
+
+def test_the_chart_contours_at_the_interval_the_systems_are_found_with(library):
+    from balance_core.systems import contour_interval
+
+    for level, units in ((500.0, "m"), (850.0, "dam"), (250.0, "m")):
+        st = _state(level=level, height_units=units)
+        cd = compute.chart_data(library, st)
+        k = 0.1 if units == "dam" else 1.0
+        assert cd.contour_interval == pytest.approx(contour_interval(level * 100) * k)
+        assert all(abs(v / cd.contour_interval - round(v / cd.contour_interval)) < 1e-6
+                   for v in cd.contours[2])
+        data = compute.systems_data(library, st)
+        assert data["rules"]["contour_interval"] == contour_interval(level * 100)
+
+
+def test_a_jet_streak_chosen_on_real_output_gives_its_flow_aligned_region():
+    path = os.path.join(HERE, "..", ".cache", "pygrib-samples", "gfs.t12z.pgrbf120.2p5deg.grib2")
+    if not os.path.exists(path):
+        if os.environ.get("CI"):
+            pytest.fail(f"{path} is missing: make test fetches it", pytrace=False)
+        pytest.skip("the GFS sample is missing")
+    from app.desk.page import build_page
+
+    lib = CaseLibrary([path])
+    page = build_page(lib, {"level": ["250"], "region": [""]})
+    page.start()
+    jets = [s for s in page.systems.data["systems"] if s["kind"] == "jet_streak"]
+    assert jets
+    page.systems.w_list.value = jets[0]["label"]
+    assert page.state.region.startswith("area:aeqd,")
+    assert "area along the flow" in page.state.region_text()
+    assert page.report["points"] >= 25 and page.report["verdict"]["balance"] != "none"
+    assert "kt" not in page.systems.detail.object
+    page.state.wind_units = "kt"
+    assert "kt" in page.systems.detail.object

@@ -58,7 +58,8 @@ def circles(draw):
 
 changes = st.one_of(
     st.tuples(st.just("case"), st.sampled_from(CASES)),
-    st.tuples(st.just("level"), st.sampled_from([1000.0, 925.0, 850.0, 700.0, 500.0, 250.0])),
+    st.tuples(st.just("level"), st.sampled_from([1000.0, 925.0, 850.0, 700.0, 500.0, 250.0,
+                                                 0.0])),  # 0: sea level, "msl" in a link
     st.tuples(st.just("level"), st.floats(1, 1100, allow_nan=False).map(lambda v: round(v, 4))),
     st.tuples(st.just("time"), st.sampled_from(["", "2041-01-19T12:00:00Z",
                                                 "2038-09-04T06:00:00Z"])),

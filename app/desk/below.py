@@ -20,7 +20,7 @@ from bokeh.plotting import figure
 from balance_core.scales import PRESETS
 
 from .. import vocab
-from ..state import SHEET_SCALES, ViewState
+from ..state import SHEET_SCALES, ViewState, level_text
 from .look import BLUE, INK, MUTED, ORANGE, VERMILION, WIDGET_CSS, alert, esc, palette, style_figure
 
 __all__ = ["Below"]
@@ -231,7 +231,7 @@ class Below(pn.viewable.Viewer):
         pad = 0.04 * (t[-1] - t[0])
         self.times_fig.x_range.update(start=t[0] - pad, end=t[-1] + pad)
         self.times_fig.title.text = (f"Through the valid times, for the region at "
-                                     f"{data['level_hpa']:g} hPa")
+                                     f"{level_text(data['level_hpa'])}")
 
     # -- the a priori scale sheet ------------------------------------------------------------
     def _build_sheet(self):

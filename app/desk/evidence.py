@@ -12,7 +12,7 @@ import param
 
 from balance_core.verdict import Thresholds
 
-from .. import vocab
+from .. import formats, vocab
 from ..state import ViewState
 from .bars import Bar, linear_bars, log_bars, log_range
 from .look import (BLUE, BUSY, GREEN, GREY, INK, INVENTED_BG, MUTED, ORANGE, SKY, VERMILION,
@@ -78,7 +78,7 @@ class Evidence(pn.viewable.Viewer):
             f"<div style='font-size:24px;font-weight:700'>{esc(vocab.balance_name(v['balance']))}"
             f"</div>{esc(v['text'])}{why}<div class='bd-verdict-where' style='font-size:15px;"
             f"color:{MUTED};margin-top:4px'>"
-            f"{rep['level_hpa']:g} hPa &middot; {esc(rep.get('when', rep['valid_time']))} "
+            f"{esc(formats.level_text(rep))} &middot; {esc(rep.get('when', rep['valid_time']))} "
             f"&middot; {esc(rep.get('region_text', ''))} &middot; {esc(valid)}</div>{mark}</div>")
 
     def _terms_html(self, rep):

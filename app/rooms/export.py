@@ -25,11 +25,20 @@ def stamp(t: float) -> str:
     return d.strftime("%a %d %b %Y %H:%M UTC")
 
 
+def _is_zero(level) -> bool:
+    try:
+        return float(level) == 0.0  # the view state's sea level
+    except (TypeError, ValueError):
+        return False
+
+
 def describe_view(view: dict, point=None) -> str:
     """One line: case, level, valid time, region (and the point)."""
     parts = [str(view.get("case") or "?")]
-    if view.get("level"):
-        parts.append(f"{view['level']} hPa")
+    if view.get("level") is not None and view.get("level") != "":
+        level = view["level"]
+        parts.append("sea level" if str(level).strip().lower() == "msl" or
+                     _is_zero(level) else f"{level} hPa")
     if view.get("time"):
         parts.append(vocab.when(view["time"], None))
     spec, _ = parse_region(view.get("region", ""))

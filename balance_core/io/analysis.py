@@ -240,9 +240,22 @@ def analyse_systems(case: Case, level_hpa, time=None, *, smooth_km=None,
                          "ground are found in the sea-level pressure (--level msl, or \"sea "
                          "level\" on the page)")
         level_out = p / 100
+    shallow = []
     found = S.find_systems(case.grid, field, u, v, p, interval=interval, min_depth=min_depth,
-                           jet=jet, limit=limit, vortices=vortices)
+                           jet=jet, limit=limit, vortices=vortices, shallow=shallow)
     ci = float(interval or S.contour_interval(p))
+    depth_min = 0.5 * ci if min_depth is None else float(min_depth)
+    if shallow:
+        unit, k = ("hPa", 0.01) if sea else ("m", 1.0)
+        listed = "; ".join(f"a {s.kind} of {s.value * k:.{1 if sea else 0}f} {unit} at "
+                           f"{abs(s.lat):.1f}{'N' if s.lat >= 0 else 'S'} "
+                           f"{abs(s.lon):.1f}{'E' if s.lon >= 0 else 'W'}, "
+                           f"{s.depth * k:.{1 if sea else 0}f} {unit} inside its "
+                           f"{s.outer_level * k:g} {unit} contour" for s in shallow[:3])
+        n = len(shallow)
+        notes.append(f"{n} shallow {'low or high is' if n == 1 else 'lows and highs are'} left "
+                     f"out: closed by a contour, but less than {depth_min * k:g} {unit} (half an "
+                     f"interval) inside it: {listed}" + ("; and others" if n > 3 else ""))
     systems = []
     for s in found:
         if budget:
@@ -262,7 +275,7 @@ def analyse_systems(case: Case, level_hpa, time=None, *, smooth_km=None,
         "rules": {"field": "sea_level_pressure" if sea else "height",
                   "units": "Pa" if sea else "m",
                   "contour_interval": ci,
-                  "min_depth": 0.5 * ci if min_depth is None else float(min_depth),
+                  "min_depth": depth_min, "shallow_left_out": len(shallow),
                   "jet_threshold_ms": None if u is None else float(jet or S.jet_threshold(p)),
                   "core_fraction": 0.8, "limit": limit, "max_share": S.MAX_SHARE,
                   "ring_km": S.RING_KM, "ring_tangential": S.RING_TANGENTIAL},
