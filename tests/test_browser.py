@@ -126,6 +126,21 @@ def test_changing_the_level_updates_the_chart(server, browser):
     page.close()
 
 
+def test_sea_level_in_the_level_menu_draws_isobars_and_the_surface_verdict(server, browser):
+    page, errors = _page(browser, server + "?case=ocean_cyclone&level=500"
+                         "&time=2041-01-19T12%3A00%3A00Z&region=box%3A-52%2C-28%2C38%2C56")
+    _wait_for(page, lambda: "500 hPa" in _chart_title(page))
+    page.locator("select").nth(1).select_option(label="sea level")
+    _wait_for(page, lambda: "sea level" in _chart_title(page))
+    _wait_for(page, lambda: page.locator("text=isobars every 4 hPa").count() > 0)
+    _wait_for(page, lambda: "Frictional" in _verdict_text(page))
+    _wait_for(page, lambda: page.locator("text=found at sea level").count() > 0)
+    assert "level=msl" in page.url
+    _shot(page, "03b_sea_level")
+    assert errors == [], errors
+    page.close()
+
+
 def test_a_link_reopens_the_view(server, browser):
     link = (server + "?case=tropical_cyclone&level=850&time=2038-09-04T06%3A00%3A00Z"
             "&field=rossby_local&projection=conformal&wind_units=kt")
