@@ -192,17 +192,24 @@ HALO_ROWS = 8
 
 
 def _band(case, regions):
-    """(j0, j1): the rows of the case the regions cover, with HALO_ROWS beyond; None to
-    compute the whole grid (the band would be most of it, or a box is not valid)."""
+    """(j0, j1): the rows of the case the regions cover, and those the flow's length scale
+    reads (:func:`balance_core.scales.flow_rows`), with HALO_ROWS beyond; None to compute
+    the whole grid (the band would be most of it, or a box is not valid)."""
     import numpy as np
 
     from balance_core.region import Region
+
+    from balance_core.scales import flow_rows
 
     ny = case.grid.shape[0]
     rows = np.zeros(ny, dtype=bool)
     try:
         for _, box in regions:
-            rows |= Region.box(*box).mask(case.grid).any(axis=1)
+            inside = Region.box(*box).mask(case.grid)
+            rows |= inside.any(axis=1)
+            span = flow_rows(case.grid, inside)  # the rows the flow's length scale reads
+            if span is not None:
+                rows[span[0]:span[1]] = True
     except ValueError:
         return None  # analyse_case says what is wrong with the box
     hit = np.nonzero(rows)[0]

@@ -152,16 +152,28 @@ def table(rep: dict) -> str:
     for t in rep["terms"]:
         ratio = _fmt(t["magnitude"] / pgf, ".2f") if t["magnitude"] is not None and pgf else "n/a"
         note = t["note"] if t["magnitude"] is None or t["name"] == "residual" else ""
+        est = _fmt(t["estimate"]) + ("*" if t.get("estimate_by_construction") else "")
         lines.append(f"  {vocab.term_name(t['name']):<25}  {_fmt(t['magnitude']):<16}  "
-                     f"{_fmt(t['estimate']):<9}  {ratio:<6}  {note or ''}".rstrip())
+                     f"{est:<9}  {ratio:<6}  {note or ''}".rstrip())
+    if any(t.get("estimate_by_construction") for t in rep["terms"]):
+        lines.append("  * a priori estimate made of the same fields as the term: it agrees by "
+                     "construction")
     lines.append("  derived views (not part of the sum)")
     for t in rep["derived"]:
         lines.append(f"  {vocab.term_name(t['name']):<25}  {_fmt(t['magnitude']):<16}  "
                      f"{_fmt(t['estimate']):<9}")
     lines += ["", "  balance         imbalance ratio (RMS of the sum / RMS of the PGF)"]
+    not_tested = rep["verdict"].get("not_tested", {})
     for k, v in rep["balances"].items():
         mark = "  <- verdict" if k == rep["verdict"]["balance"] else ""
-        lines.append(f"  {vocab.balance_name(k):<14}  {_fmt(v, '.3f')}{mark}")
+        if k in not_tested:
+            lines.append(f"  {vocab.balance_name(k):<14}  not tested")
+        else:
+            lines.append(f"  {vocab.balance_name(k):<14}  {_fmt(v, '.3f')}{mark}")
+    if rep.get("curvature"):
+        lines.append(f"  (the centripetal term takes the {rep['curvature']} curvature)")
+    for c in rep["verdict"].get("cautions", []):
+        lines.append(f"  caution: {c}")
     lines += ["", "  winds (m/s)"]
     for k, v in rep["winds"].items():
         lines.append(f"  {k.replace('_', ' '):<30}  {_fmt(v, '.3g')}")

@@ -40,22 +40,31 @@ FIELD_NAMES = {
 #: Numbers of the report: key -> (display name, unit, what it means).
 NUMBERS = {
     "rossby": ("box Rossby number", "",
-               "U / (f0 L) from the region's own scales: how large the acceleration of the flow "
-               "is against Coriolis for the region as a whole (small: geostrophy can hold)"),
+               "U / (f0 L), U the region's RMS wind, L the flow's length scale: how large the "
+               "acceleration of the flow is against Coriolis for the region as a whole (small: "
+               "geostrophy can hold)"),
     "rossby_local_median": ("local Rossby number", "",
                             "median |zeta / f| over the region's points: how strongly the flow "
                             "spins against the planet's rotation at a typical point (large in "
                             "tight vortices even when the box number is small)"),
-    "ekman": ("Ekman number (effective)", "",
-              "RMS residual / RMS Coriolis: friction over Coriolis if the residual is all "
-              "friction"),
-    "froude": ("Froude number", "", "U / (N H): flow speed over the speed of gravity waves"),
+    "ekman": ("Ekman number", "",
+              "nu / (f0 H^2), nu an eddy viscosity of 10 m2/s and H the depth of the "
+              "troposphere (10 km): friction against Coriolis over the depth of the flow"),
+    "froude": ("Froude number", "",
+               "U / (N H), H the depth of the troposphere: flow speed over the speed of "
+               "gravity waves"),
     "burger": ("Burger number", "", "(N H / (f0 L))^2: stratification against rotation"),
-    "richardson_median": ("Richardson number", "",
-                          "median N^2 / |dV/dz|^2: below 1/4 the shear can overturn the layer"),
     "deformation_radius_km": ("deformation radius", "km",
                               "N H / f0: the length at which rotation and stratification "
                               "matter equally"),
+    "richardson_median": ("Richardson number", "",
+                          "median N^2 / |dV/dz|^2: below 1/4 the shear can overturn the layer"),
+    "residual_to_coriolis": ("residual over Coriolis", "",
+                             "RMS residual / RMS Coriolis (from the data): what the residual "
+                             "would be against the Coriolis force if it were all friction"),
+    "shear_depth_km": ("shear depth", "km",
+                       "U / RMS|dV/dz| (from the data): the depth over which the wind changes "
+                       "by its own speed"),
 }
 
 

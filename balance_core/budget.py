@@ -56,7 +56,8 @@ from .thermo import standard_atmosphere_density
 from .winds import Flow
 
 __all__ = ["Fields", "Term", "Budget", "momentum_budget", "TERMS", "FORCING_TERMS", "DERIVED",
-           "ageostrophic_parts", "AGEOSTROPHIC_PARTS"]
+           "ageostrophic_parts", "AGEOSTROPHIC_PARTS", "trajectory_centripetal",
+           "isallobaric_wind"]
 
 #: The terms of the budget, in the order of the equations; the residual last.
 TERMS = ("tendency", "horizontal_advection", "vertical_advection", "metric_uv", "metric_uw",
@@ -524,6 +525,49 @@ def _derived_into(gi: Grid, L: _Layout, out: Budget, rows, u, v):
     n.y[rows] += out.terms["metric_uv"].y[rows]
 
 
+def isallobaric_wind(grid: Grid, height_tendency):
+    """The isallobaric wind -(g0 / f^2) grad(dZ/dt), m s-1.
+
+    The ageostrophic wind that the local change of the geostrophic wind makes,
+    (1/f) k x dVg/dt with Vg = (g0/f) k x grad Z on an f-plane (Holton and Hakim 2013,
+    An Introduction to Dynamic Meteorology, 5th ed., ch. 6, the ageostrophic wind;
+    Bluestein 1992, Synoptic-Dynamic Meteorology in Midlatitudes, vol. I, ch. 4),
+    ``height_tendency`` dZ/dt in m s-1. f is taken at each point (the variation of f
+    across the grid is left out, as in the textbook form); NaN in the tropical mask.
+    """
+    gx, gy = grid.grad(np.asarray(height_tendency, dtype=np.float64))
+    k = -c.G0 * grid.inverse_f ** 2
+    return gx * k, gy * k
+
+
+def trajectory_centripetal(budget: Budget, u, v) -> Term:
+    """The centripetal term along the trajectories, m s-2 (same sign convention as the
+    budget's terms).
+
+    The acceleration normal to the wind along a trajectory is the streamlines' one plus
+    the cross-stream part of the local tendency: with n = k x V / |V| (to the left of the
+    flow), V^2 K_traj = V^2 K_stream + n . dV/dt (Holton and Hakim 2013, ch. 3, trajectories
+    and streamlines in natural coordinates), so
+
+        centripetal_trajectory = centripetal - (n . tendency) n.
+
+    Unavailable (with the reason) where the data give no local tendency.
+    """
+    ten = budget.terms["tendency"]
+    cen = budget.derived.get("centripetal")
+    if not ten.available or cen is None or not cen.available:
+        return Term("centripetal_trajectory", None, None,
+                    "no local tendency (one valid time): only the streamlines' curvature")
+    u = np.asarray(u, dtype=np.float64)
+    v = np.asarray(v, dtype=np.float64)
+    speed = np.hypot(u, v)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        nx, ny = -v / speed, u / speed
+    along_n = ten.x * nx + ten.y * ny
+    return Term("centripetal_trajectory", cen.x - along_n * nx, cen.y - along_n * ny,
+                "the streamlines' curvature plus the cross-stream tendency over V^2")
+
+
 #: The parts of the ageostrophic wind, by the terms that make them (see ageostrophic_parts).
 AGEOSTROPHIC_PARTS = ("tendency", "inertial_advective", "vertical_advection", "remainder")
 
@@ -547,8 +591,10 @@ def ageostrophic_parts(budget: Budget, inverse_f) -> dict:
     Synoptic-Dynamic Meteorology in Midlatitudes, vol. I, section 4.4), with
     k x (a, b) = (-b, a). The parts, which add up to V - Vg at every point:
 
-    * ``tendency``: (1/f) k x dV/dt, the isallobaric part where the tendency is
-      from the data (unavailable with a single time: the remainder then holds it);
+    * ``tendency``: (1/f) k x dV/dt, the part of the local change of the wind, where the
+      tendency is from the data (unavailable with a single time: the remainder then
+      holds it). It is not the isallobaric wind -(g/f^2) grad(dZ/dt) of the height
+      tendency (:func:`isallobaric_wind`), which changes the geostrophic wind only;
     * ``inertial_advective``: (1/f) k x (V . grad) V;
     * ``vertical_advection``: (1/f) k x omega dV/dp;
     * ``remainder``: what the metric terms, the vertical Coriolis term and the

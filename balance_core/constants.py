@@ -52,6 +52,11 @@ NU_AIR = 1.5e-5
 #: the scale analysis from data uses it.
 EDDY_VISCOSITY = 10.0
 
+#: Depth scale H of the textbook scale analysis: the depth of the troposphere, m
+#: (Holton and Hakim 2013, An Introduction to Dynamic Meteorology, 5th ed., ch. 2,
+#: H ~ 10 km).
+TROPOSPHERE_DEPTH = 1.0e4
+
 # U.S. Standard Atmosphere, 1976 (NOAA/NASA/USAF, Washington DC), which uses
 # its own gas constant and molar mass: keep them apart from the values above so
 # that the standard heights come out as tabulated.

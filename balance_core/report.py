@@ -20,14 +20,14 @@ import numpy as np
 
 from . import constants as C
 from .budget import (AGEOSTROPHIC_PARTS, DERIVED, TERMS, Budget, Fields, ageostrophic_parts,
-                     momentum_budget)
-from .grid import Grid
-from .numbers import (brunt_vaisala_squared, burger_number, deformation_radius, froude_number,
-                      richardson_number, rossby_number, vertical_shear_squared)
+                     momentum_budget, trajectory_centripetal)
+from .grid import Grid, derivative_weights
+from .numbers import (brunt_vaisala_squared, burger_number, deformation_radius, ekman_number,
+                      froude_number, richardson_number, rossby_number, vertical_shear_squared)
 from .region import Region, vector_stats, weighted_stats
-from .scales import RECIPE, estimate_for_term, estimate_scales
-from .verdict import (Thresholds, Verdict, classify_budget, imbalance_ratios, near_ground,
-                      residual_causes)
+from .scales import BY_CONSTRUCTION, RECIPE, estimate_for_term, estimate_scales
+from .verdict import (CANDIDATES, Thresholds, Verdict, classify_budget, imbalance_ratios,
+                      near_ground, residual_causes)
 from .winds import Flow, GradientWind, geostrophic_wind, gradient_wind
 
 __all__ = ["LevelDiagnostics", "level_diagnostics", "surface_diagnostics", "box_report",
@@ -59,6 +59,8 @@ class LevelDiagnostics:
     height_above_ground_source: str = ""
     #: points where the level lies below the ground (masked in the data), or None
     below_ground: np.ndarray | None = None
+    #: dZ/dt at the level, m s-1 (None with one valid time)
+    height_tendency: np.ndarray | None = None
     #: the surface budget (sea-level pressure and the 10 m wind) rather than a pressure
     #: level: ``height`` is then the sea-level pressure's equivalent height p / (rho g0),
     #: ``sea_level_pressure`` the pressure itself (Pa), and ``high_ground`` the points
@@ -111,16 +113,20 @@ def level_diagnostics(grid: Grid, fields: Fields, it: int, ik: int, *,
         shear2 = vertical_shear_squared(np.asarray(fields.u[it], np.float64),
                                         np.asarray(fields.v[it], np.float64), temp,
                                         fields.pressure, axis=0)[ik]
-    dt = None
+    dt = zt = None
     if fields.time is not None and fields.time.size > 1:
         dt = float(np.max(np.diff(fields.time)))
+        ids, wts = derivative_weights(fields.time, it)
+        zt = sum(wt * np.asarray(fields.height[i, ik], dtype=np.float64)
+                 for i, wt in zip(ids, wts))
+        budget.derived["centripetal_trajectory"] = trajectory_centripetal(budget, u, v)
     return LevelDiagnostics(grid=grid, budget=budget, pressure=float(fields.pressure[ik]), u=u,
                             v=v, height=z, omega=om, temperature=t, ug=ug, vg=vg,
                             gradient=gradient_wind(grid, z), vorticity=Flow(grid, u, v).vorticity,
                             n2=n2, shear2=shear2, time_step_s=dt,
                             height_above_ground=height_above_ground,
                             height_above_ground_source=height_above_ground_source,
-                            below_ground=below_ground)
+                            below_ground=below_ground, height_tendency=zt)
 
 
 def surface_diagnostics(grid: Grid, pressure, u, v, *, t2m=None, time=None, it: int = 0,
@@ -153,6 +159,8 @@ def surface_diagnostics(grid: Grid, pressure, u, v, *, t2m=None, time=None, it: 
     rho, how = density_from(p0, t2m)
     budget = surface_budget(grid, p, uu, vv, rho, time=time, it=it, keep=keep)
     budget.notes.append(how)
+    if budget.terms["tendency"].available:
+        budget.derived["centripetal_trajectory"] = trajectory_centripetal(budget, u0, v0)
     ug, vg = geostrophic_wind_from_pressure(grid, p0, rho)
     with np.errstate(invalid="ignore"):
         rho_mean = float(np.nanmean(rho)) if np.ndim(rho) else float(rho)
@@ -188,18 +196,25 @@ def _num(x):
 
 #: What the two Rossby numbers of the report mean, said beside them on every screen.
 EXPLAIN = {
-    "rossby": ("box Rossby number U / (f0 L), from the region's own scales: how large the "
-               "acceleration of the flow is against Coriolis for the region as a whole (small: "
-               "geostrophy can hold)"),
+    "rossby": ("box Rossby number U / (f0 L), U the region's RMS wind and L the flow's length "
+               "scale: how large the acceleration of the flow is against Coriolis for the "
+               "region as a whole (small: geostrophy can hold)"),
     "rossby_local_median": ("local Rossby number |zeta / f|, the median over the region's "
                             "points: how strongly the flow spins against the planet's rotation "
                             "at a typical point (large in tight vortices even when the box "
                             "number is small)"),
 }
 
+#: The numbers of the report: the textbook's (with H the depth of the troposphere) and the
+#: data's own, under names of their own.
+NUMBER_KEYS = ("rossby", "rossby_local_median", "ekman", "froude", "burger",
+               "deformation_radius_km", "richardson_median", "residual_to_coriolis",
+               "shear_depth_km")
+
 
 def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thresholds(),
-               nu: float = C.EDDY_VISCOSITY, below_ground: int = 0) -> dict:
+               nu: float = C.EDDY_VISCOSITY, below_ground: int = 0,
+               flow_length=None) -> dict:
     """Reduce one level's diagnostics over a region.
 
     Parameters
@@ -212,19 +227,23 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
         Viscosity of the a priori viscous (friction) estimate: by default an eddy
         viscosity typical of the boundary layer, 10 m2 s-1 (common practice).
     below_ground : int
-        Points of the level below the ground in the whole case (kept for callers;
-        the report counts the region's own from ``diag.below_ground``).
+        Unused (the report counts the region's own from ``diag.below_ground``).
+    flow_length : balance_core.scales.FlowLength, optional
+        The flow's length scale where the caller knows it (a closed system's radius);
+        else :func:`balance_core.scales.flow_length_scale` over the whole grid.
 
     Returns
     -------
     dict
         ``points`` (valid), ``region_points``, ``valid_share``, ``masked_points``,
         ``invalid`` (why points are not valid), ``terms`` (sorted by magnitude,
-        unavailable last), ``derived``, ``winds``, ``numbers``, ``scales``,
-        ``scales_recipe``, ``resolution``, ``ground``, ``balances``, ``shares``,
-        ``verdict`` (balance, text, why), ``explain``, ``residual_causes``,
-        ``notes``. Magnitudes are area-weighted RMS of the term's horizontal
-        vector, m s-2.
+        unavailable last; each with its a priori ``estimate`` and
+        ``estimate_by_construction``), ``derived``, ``winds``, ``numbers``, ``scales``,
+        ``scales_recipe``, ``resolution``, ``ground``, ``balances`` (the ratios),
+        ``balances_tested``, ``curvature``, ``shares``, ``verdict`` (balance, text, why,
+        tested, not_tested, cautions), ``explain``, ``residual_causes``,
+        ``ageostrophic_parts``, ``notes``. Magnitudes are area-weighted RMS of the
+        term's horizontal vector, m s-2.
     """
     g = diag.grid
     th = thresholds
@@ -235,127 +254,41 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
         return _empty_report(inside, th)
     sub = _GridWindow(g, win)
     ins = inside[win]
-    b = diag.budget
-    # the budget restricted to the window (views, no copies)
-    cropped = _crop_budget(b, win)
+    cropped = _crop_budget(diag.budget, win)
     w = lambda a: None if a is None else a[win]  # noqa: E731
-    ratios = imbalance_ratios(cropped, sub, ins, u=w(diag.u), v=w(diag.v))
-    ok = ins.copy()
-    for name in list(cropped.terms) + list(cropped.derived):
-        t = cropped[name]
-        if t.available:
-            ok &= np.isfinite(t.x) & np.isfinite(t.y)
+    ok = _valid(cropped, ins)
     invalid = _invalid_points(diag, win, ins, ok)
+    ratios = imbalance_ratios(cropped, sub, ins, u=w(diag.u), v=w(diag.v),
+                              vorticity=w(diag.vorticity))
     hag = _median(w(diag.height_above_ground), sub, ok)
     ground = (True, "the 10 m wind blows in the boundary layer, where friction acts") \
         if diag.surface else near_ground(diag.pressure, hag, th)
     verdict = classify_budget(ratios, th, ground=ground)
     if not ok.any():
         return _empty_report(inside, th, invalid=invalid, verdict=verdict)
-    try:
-        pgf = cropped["pressure_gradient"]
-        scales = estimate_scales(sub, ok, u=w(diag.u), v=w(diag.v),
-                                 height=w(diag.height), pressure=diag.pressure, omega=w(diag.omega),
-                                 temperature=w(diag.temperature), shear2=w(diag.shear2), nu=nu,
-                                 n2=_median(w(diag.n2), sub, ok),
-                                 height_gradient=np.hypot(pgf.x, pgf.y) / C.G0)
-    except ValueError:
-        scales = None
+    scales, flow = _scales(diag, inside, win, sub, ok, nu, flow_length)
     resolution = _resolution(sub, ok, scales, th)
-    if verdict.balance == "none":
-        verdict = Verdict("none", verdict.text + _invalid_text(invalid), verdict.ratios,
-                          verdict.why)
-    elif resolution is not None and not resolution["resolved"]:
-        caution = (f" Caution: the flow is under-resolved (length scale "
-                   f"{resolution['flow_length_km']:.0f} km, {resolution['points_per_length']:.1f} "
-                   f"grid spacings of {resolution['grid_spacing_km']:.0f} km; at least "
-                   f"{th.resolved_ratio:g} are needed), so truncation error is part of the "
-                   "residual and the ratios; take this verdict as a rough guide only.")
-        verdict = Verdict(verdict.balance, verdict.text + caution, verdict.ratios, verdict.why)
-
-    def entry(name, t):
-        if not t.available:
-            return {"name": name, "magnitude": None, "x_rms": None, "y_rms": None,
-                    "estimate": _estimate(name, scales), "note": t.note}
-        s, xr, yr = vector_stats(t.x, t.y, sub, ok)
-        return {"name": name, "magnitude": s.rms, "x_rms": xr, "y_rms": yr,
-                "estimate": _estimate(name, scales), "note": t.note}
-
-    terms = [entry(n, cropped.terms[n]) for n in TERMS]
+    verdict = _with_resolution(verdict, resolution, invalid, th)
+    enough = _enough_points(ratios, th)
+    f_ok = enough and not _mostly_tropical(ratios, th)
+    terms = [_entry(n, cropped.terms[n], sub, ok, scales) for n in TERMS]
     terms.sort(key=lambda e: (e["magnitude"] is None, -(e["magnitude"] or 0.0)))
-    derived = [entry(n, cropped.derived[n]) for n in DERIVED if n in cropped.derived]
-
-    speed = weighted_stats(np.hypot(diag.u[win], diag.v[win]), sub, ok, quantiles=False).rms
-    parts = _ageostrophic_parts(diag, cropped, win, sub, ok)
-    # every field cut to the region's window first: a small region of a large grid costs
-    # what its window holds
-    u_w, v_w, ug_w, vg_w = diag.u[win], diag.v[win], diag.ug[win], diag.vg[win]
-    gstat = weighted_stats(np.hypot(ug_w, vg_w), sub, ok, quantiles=False)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        agf_w = np.hypot(u_w - ug_w, v_w - vg_w) / np.hypot(u_w, v_w)
-    agf = weighted_stats(agf_w, sub, ok)
-    grad = weighted_stats(np.abs(diag.gradient.speed[win]), sub, ok, quantiles=False)
-    no_root = int(np.count_nonzero(diag.gradient.no_root[win] & ok))
-    ro_local = weighted_stats(np.abs(diag.vorticity[win] * g.inverse_f[win]), sub, ok)
-    winds = {"speed_rms": speed, "geostrophic_speed_rms": gstat.rms,
-             "ageostrophic_fraction_median": agf.median, "gradient_speed_rms": grad.rms}
-
-    numbers = {"rossby": None, "rossby_local_median": ro_local.median, "ekman": None,
-               "froude": None, "burger": None, "richardson_median": None,
-               "deformation_radius_km": None}
-    if scales is not None:
-        numbers["rossby"] = _num(rossby_number(scales.U, scales.f0, scales.L))
-    rms = ratios["rms"]
-    if rms.get("residual") is not None and rms.get("coriolis"):
-        numbers["ekman"] = rms["residual"] / rms["coriolis"]
-    if diag.n2 is not None and scales is not None:
-        n2m = _median(diag.n2[win], sub, ok)
-        numbers["froude"] = _num(froude_number(scales.U, n2m, scales.H))
-        numbers["burger"] = _num(burger_number(n2m, scales.H, scales.f0, scales.L))
-        lr = _num(deformation_radius(n2m, scales.H, scales.f0))
-        numbers["deformation_radius_km"] = None if lr is None else lr / 1e3
-        with np.errstate(invalid="ignore", divide="ignore"):
-            ri = richardson_number(diag.n2[win], diag.shear2[win])
-        numbers["richardson_median"] = _median(ri, sub, ok)
-
-    notes = list(b.notes)
-    tropics = int(np.count_nonzero(g.tropics_mask[win] & ins))
-    if tropics:
-        notes.append(f"{tropics} points within {g.min_lat:g} degrees of the equator: quantities "
-                     "divided by f (geostrophic wind, local Rossby number) are masked there")
-    if invalid["pole_row"]:
-        notes.append(f"{invalid['pole_row']} points lie on a pole row (|lat| >= "
-                     f"{g.pole_limit:g}), where east and north have no meaning: masked")
-    if invalid["below_ground"]:
-        notes.append(f"{invalid['below_ground']} points of the region lie below the ground at "
-                     f"{diag.pressure / 100:g} hPa: masked")
-    if invalid.get("high_ground"):
-        from .surface import MAX_ELEVATION_M
-
-        notes.append(f"{invalid['high_ground']} points of the region lie on ground higher "
-                     f"than {MAX_ELEVATION_M:g} m, where the sea-level pressure is a reduction "
-                     "through the mountain: left out")
-    if no_root:
-        notes.append(f"{no_root} points have no real gradient-wind root (anticyclonic curvature "
-                     "too strong for the pressure gradient); they are left out of the gradient "
-                     "speed")
-    if numbers["ekman"] is not None:
-        notes.append("ekman is effective: RMS residual / RMS Coriolis, the friction the residual "
-                     "implies if it is all friction")
-    if resolution is not None:
-        notes.append(f"grid spacing {resolution['grid_spacing_km']:.0f} km against a flow length "
-                     f"scale of {resolution['flow_length_km']:.0f} km "
-                     f"({resolution['points_per_length']:.1f} spacings; "
-                     f"{'resolved' if resolution['resolved'] else 'under-resolved'}, the line "
-                     f"is {th.resolved_ratio:g})")
-    notes.append(ground[1] + (f" ({diag.height_above_ground_source})"
-                              if diag.height_above_ground_source and hag is not None else ""))
-    causes = residual_causes(level_pa=diag.pressure, budget=b, time_step_s=diag.time_step_s,
+    derived = [_entry(n, cropped.derived[n], sub, ok, scales) for n in
+               list(DERIVED) + ["centripetal_trajectory"] if n in cropped.derived]
+    winds = _winds(diag, win, sub, ok, f_ok)
+    numbers = _numbers(diag, win, sub, ok, scales, ratios, enough, f_ok)
+    parts = _ageostrophic_parts(diag, cropped, win, sub, ok) if f_ok else \
+        _parts_not_given(diag, "the region lies mostly within the tropical mask"
+                         if enough else "too few valid points")
+    notes = _notes(diag, win, ins, invalid, numbers, resolution, ground, hag, ratios, flow, th)
+    causes = residual_causes(level_pa=diag.pressure, budget=diag.budget,
+                             time_step_s=diag.time_step_s,
                              residual_share=ratios.get("residual_share"),
                              below_ground=invalid["below_ground"], ground=ground,
                              resolution=resolution,
                              friction_alignment=ratios.get("friction_alignment"), thresholds=th)
     npts = int(ok.sum())
+    vd = verdict.as_dict()
     return {
         "points": npts,
         "region_points": int(ins.sum()),
@@ -368,15 +301,18 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
         "numbers": numbers,
         "scales": None if scales is None else {k: getattr(scales, k) for k in
                                                 ("U", "W", "L", "H", "dP", "f0", "nu")},
-        "scales_recipe": dict(RECIPE),
+        "scales_recipe": dict(RECIPE, **({"L": flow.recipe} if flow is not None else {})),
         "resolution": resolution,
         "ground": {"near": bool(ground[0]), "height_above_ground_m": hag, "why": ground[1]},
-        "balances": {k: ratios.get(k) for k in ("geostrophic", "gradient", "cyclostrophic",
-                                                "frictional")},
+        "balances": {k: ratios.get(k) for k in CANDIDATES},
+        "balances_tested": {k: vd["tested"].get(k, True) for k in CANDIDATES},
+        "curvature": ratios.get("curvature"),
         "shares": {"acceleration": ratios.get("acceleration_share"),
                    "residual": ratios.get("residual_share"),
-                   "friction_alignment": ratios.get("friction_alignment")},
-        "verdict": verdict.as_dict(),
+                   "friction_alignment": ratios.get("friction_alignment"),
+                   "tropics": ratios.get("tropics_share"),
+                   "rossby_local_above_1": ratios.get("rossby_local_share")},
+        "verdict": vd,
         "explain": dict(EXPLAIN),
         "ageostrophic_parts": parts,
         "residual_causes": causes,
@@ -384,32 +320,217 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
     }
 
 
+def _valid(cropped: Budget, ins) -> np.ndarray:
+    """The region's points where every available term and view is finite."""
+    ok = ins.copy()
+    for name in list(cropped.terms) + list(cropped.derived):
+        t = cropped[name]
+        if t.available:
+            ok &= np.isfinite(t.x) & np.isfinite(t.y)
+    return ok
+
+
+def _enough_points(ratios, th) -> bool:
+    n, total = ratios.get("points") or 0, ratios.get("region_points") or 0
+    return n >= th.min_points and (not total or n / total >= th.min_valid_share)
+
+
+def _mostly_tropical(ratios, th) -> bool:
+    share = ratios.get("tropics_share")
+    return share is not None and share > th.tropics_share
+
+
+def _scales(diag, inside, win, sub, ok, nu, flow_length):
+    """The region's scales (:func:`estimate_scales`) and the flow's length scale, taken over
+    the whole grid's rows and columns through the region (or the caller's)."""
+    from .scales import flow_length_scale
+
+    w = lambda a: None if a is None else a[win]  # noqa: E731
+    flow = flow_length
+    if flow is None:
+        full = np.zeros(inside.shape, dtype=bool)
+        full[win] = ok
+        flow = flow_length_scale(diag.grid, diag.height, full)
+    try:
+        scales = estimate_scales(sub, ok, u=w(diag.u), v=w(diag.v), height=w(diag.height),
+                                 pressure=diag.pressure, omega=w(diag.omega),
+                                 temperature=w(diag.temperature), nu=nu,
+                                 n2=_median(w(diag.n2), sub, ok), flow_length=flow)
+    except ValueError:
+        scales = None
+    return scales, flow
+
+
+def _with_resolution(verdict: Verdict, resolution, invalid, th) -> Verdict:
+    """The verdict with the points left out said ("none"), or the under-resolved caution."""
+    if verdict.balance == "none":
+        return dataclasses.replace(verdict, text=verdict.text + _invalid_text(invalid))
+    if resolution is not None and not resolution["resolved"]:
+        caution = (f"the flow is under-resolved (length scale "
+                   f"{resolution['flow_length_km']:.0f} km, {resolution['points_per_length']:.1f} "
+                   f"grid spacings of {resolution['grid_spacing_km']:.0f} km; at least "
+                   f"{th.resolved_ratio:g} are needed), so truncation error is part of the "
+                   "residual and the ratios; take this verdict as a rough guide only.")
+        return dataclasses.replace(verdict, text=verdict.text + " Caution: " + caution,
+                                   cautions=verdict.cautions + (caution[0].upper() + caution[1:],))
+    return verdict
+
+
+def _entry(name, t, sub, ok, scales) -> dict:
+    """One term's RMS magnitude and components, its a priori estimate and whether that
+    estimate agrees by construction."""
+    est = _estimate(name, scales)
+    by_construction = name in BY_CONSTRUCTION
+    if not t.available:
+        return {"name": name, "magnitude": None, "x_rms": None, "y_rms": None,
+                "estimate": est, "estimate_by_construction": by_construction, "note": t.note}
+    st, xr, yr = vector_stats(t.x, t.y, sub, ok)
+    return {"name": name, "magnitude": st.rms, "x_rms": xr, "y_rms": yr, "estimate": est,
+            "estimate_by_construction": by_construction, "note": t.note}
+
+
+def _winds(diag, win, sub, ok, f_ok) -> dict:
+    """RMS speeds of the wind, the geostrophic and the gradient wind, and the median
+    ageostrophic fraction (those that divide by f only outside the tropics)."""
+    u_w, v_w, ug_w, vg_w = diag.u[win], diag.v[win], diag.ug[win], diag.vg[win]
+    speed = weighted_stats(np.hypot(u_w, v_w), sub, ok, quantiles=False).rms
+    out = {"speed_rms": speed, "geostrophic_speed_rms": None,
+           "ageostrophic_fraction_median": None,
+           "gradient_speed_rms": weighted_stats(np.abs(diag.gradient.speed[win]), sub, ok,
+                                                quantiles=False).rms}
+    if f_ok:
+        out["geostrophic_speed_rms"] = weighted_stats(np.hypot(ug_w, vg_w), sub, ok,
+                                                      quantiles=False).rms
+        with np.errstate(invalid="ignore", divide="ignore"):
+            agf = np.hypot(u_w - ug_w, v_w - vg_w) / np.hypot(u_w, v_w)
+        out["ageostrophic_fraction_median"] = weighted_stats(agf, sub, ok).median
+    return out
+
+
+def _numbers(diag, win, sub, ok, scales, ratios, enough, f_ok) -> dict:
+    """The textbook numbers from the region's scales (H the depth of the troposphere, N
+    from the region's temperature), and the data's own beside them."""
+    numbers = {k: None for k in NUMBER_KEYS}
+    if not enough:
+        return numbers
+    rms = ratios["rms"]
+    n2m = _median(None if diag.n2 is None else diag.n2[win], sub, ok)
+    if diag.n2 is not None and diag.shear2 is not None:
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ri = richardson_number(diag.n2[win], diag.shear2[win])
+        numbers["richardson_median"] = _median(ri, sub, ok)
+    if diag.shear2 is not None and scales is not None:
+        sh = weighted_stats(np.sqrt(diag.shear2[win]), sub, ok & np.isfinite(diag.shear2[win]),
+                            quantiles=False).rms
+        numbers["shear_depth_km"] = _num(scales.U / sh / 1e3) if sh else None
+    if not f_ok:
+        return numbers
+    numbers["rossby_local_median"] = weighted_stats(
+        np.abs(diag.vorticity[win] * diag.grid.inverse_f[win]), sub, ok).median
+    if rms.get("residual") is not None and rms.get("coriolis"):
+        numbers["residual_to_coriolis"] = rms["residual"] / rms["coriolis"]
+    if scales is None:
+        return numbers
+    numbers["rossby"] = _num(rossby_number(scales.U, scales.f0, scales.L))
+    numbers["ekman"] = _num(ekman_number(scales.nu, scales.f0, scales.H))
+    if n2m is not None:
+        numbers["froude"] = _num(froude_number(scales.U, n2m, scales.H))
+        numbers["burger"] = _num(burger_number(n2m, scales.H, scales.f0, scales.L))
+        lr = _num(deformation_radius(n2m, scales.H, scales.f0))
+        numbers["deformation_radius_km"] = None if lr is None else lr / 1e3
+    return numbers
+
+
+def _notes(diag, win, ins, invalid, numbers, resolution, ground, hag, ratios, flow, th):
+    g = diag.grid
+    notes = list(diag.budget.notes)
+    tropics = int(np.count_nonzero(g.tropics_mask[win] & ins))
+    if tropics:
+        notes.append(f"{tropics} points within {g.min_lat:g} degrees of the equator: quantities "
+                     "divided by f (geostrophic wind, local Rossby number) are masked there")
+    if _mostly_tropical(ratios, th):
+        notes.append(f"the region lies mostly within {g.min_lat:g} degrees of the equator: the "
+                     "balances and numbers that need f are not given")
+    if invalid["pole_row"]:
+        notes.append(f"{invalid['pole_row']} points lie on a pole row (|lat| >= "
+                     f"{g.pole_limit:g}), where east and north have no meaning: masked")
+    if invalid["below_ground"]:
+        notes.append(f"{invalid['below_ground']} points of the region lie below the ground at "
+                     f"{diag.pressure / 100:g} hPa: masked")
+    if invalid.get("high_ground"):
+        from .surface import MAX_ELEVATION_M
+
+        notes.append(f"{invalid['high_ground']} points of the region lie on ground higher "
+                     f"than {MAX_ELEVATION_M:g} m, where the sea-level pressure is a reduction "
+                     "through the mountain: left out")
+    no_root = int(np.count_nonzero(diag.gradient.no_root[win] & ins))
+    if no_root:
+        notes.append(f"{no_root} points have no real gradient-wind root (anticyclonic curvature "
+                     "too strong for the pressure gradient); they are left out of the gradient "
+                     "speed")
+    if numbers.get("residual_to_coriolis") is not None:
+        notes.append("residual over Coriolis (RMS): the friction the residual implies against "
+                     "the Coriolis force, if it is all friction; the Ekman number is the "
+                     "textbook's nu / (f0 H^2)")
+    if ratios.get("curvature"):
+        notes.append(f"the centripetal term of the gradient and cyclostrophic balances takes "
+                     f"the {ratios['curvature']} curvature")
+    if resolution is not None:
+        notes.append(f"grid spacing {resolution['grid_spacing_km']:.0f} km against a flow length "
+                     f"scale of {resolution['flow_length_km']:.0f} km "
+                     f"({resolution['points_per_length']:.1f} spacings; "
+                     f"{'resolved' if resolution['resolved'] else 'under-resolved'}, the line "
+                     f"is {th.resolved_ratio:g}); the length scale is {flow.recipe}")
+    notes.append(ground[1] + (f" ({diag.height_above_ground_source})"
+                              if diag.height_above_ground_source and hag is not None else ""))
+    return notes
+
+
+def _parts_not_given(diag, why: str) -> dict:
+    names = list(AGEOSTROPHIC_PARTS) + ["isallobaric"]
+    return {"measured_rms": None, "points": 0, "note": f"not given: {why}",
+            "parts": {n: {"speed_rms": None, "note": why} for n in names}}
+
+
 def _ageostrophic_parts(diag, cropped, win, sub, ok) -> dict:
     """RMS speed of each part of the ageostrophic wind over the region (see
-    :func:`balance_core.budget.ageostrophic_parts`), and of the measured V - Vg; the parts
-    are counted only where f is outside the tropical mask."""
+    :func:`balance_core.budget.ageostrophic_parts`), of the measured V - Vg, and of the
+    isallobaric wind (:func:`balance_core.budget.isallobaric_wind`) beside them; counted
+    only where f is outside the tropical mask."""
+    from .budget import isallobaric_wind
+
     inv_f = diag.grid.inverse_f[win]
     have_f = ok & np.isfinite(inv_f)
     out = {"measured_rms": None, "points": int(have_f.sum()), "parts": {}}
     if not have_f.any():
         out["note"] = "every point of the region is within the tropical mask, where 1/f is not used"
-        for name in AGEOSTROPHIC_PARTS:
+        for name in list(AGEOSTROPHIC_PARTS) + ["isallobaric"]:
             out["parts"][name] = {"speed_rms": None, "note": "within the tropical mask"}
         return out
     ua, va = diag.u[win] - diag.ug[win], diag.v[win] - diag.vg[win]
     out["measured_rms"] = weighted_stats(np.hypot(ua, va), sub, have_f, quantiles=False).rms
     speed = weighted_stats(np.hypot(diag.u[win], diag.v[win]), sub, have_f,
                            quantiles=False).rms
-    if out["measured_rms"] is not None and speed and out["measured_rms"] > 2.0 * speed:
-        out["note"] = ("V - Vg is more than twice the wind itself: the geostrophic wind "
-                       "overstates the flow here (tight curvature, small f), so the parts "
-                       "describe how far the flow is from geostrophy, not a real cross-flow")
+    if out["measured_rms"] is not None and speed and out["measured_rms"] > speed:
+        out["note"] = ("V - Vg exceeds the wind itself: the geostrophic wind overstates the "
+                       "flow here (tight curvature, small f), so the parts describe how far "
+                       "the flow is from geostrophy, not a real cross-flow")
     for name, part in ageostrophic_parts(cropped, inv_f).items():
         if not part.available:
             out["parts"][name] = {"speed_rms": None, "note": part.note}
             continue
         s = weighted_stats(np.hypot(part.x, part.y), sub, have_f, quantiles=False).rms
         out["parts"][name] = {"speed_rms": _num(s), "note": part.note}
+    if diag.height_tendency is None:
+        out["parts"]["isallobaric"] = {
+            "speed_rms": None, "note": "no height tendency (one valid time)"}
+    else:
+        ix, iy = isallobaric_wind(diag.grid, diag.height_tendency)
+        s = weighted_stats(np.hypot(ix[win], iy[win]), sub, have_f, quantiles=False).rms
+        out["parts"]["isallobaric"] = {
+            "speed_rms": _num(s),
+            "note": ("-(g/f^2) grad(dZ/dt), from the height tendency: beside the parts, not "
+                     "one of them (the tendency part is the wind's own change)")}
     return out
 
 
@@ -477,6 +598,7 @@ class _GridWindow:
         self.cell_area = grid.cell_area[win]
         self.lat = grid.lat[win]
         self.f = grid.f[win]
+        self.tropics_mask = grid.tropics_mask[win]
         self.radius = grid.radius
 
 
@@ -498,7 +620,8 @@ def geostrophic_only_report(grid: Grid, ug, vg, inside, why: str) -> dict:
                       "ageostrophic_fraction_median": None, "gradient_speed_rms": None})
     rep["verdict"] = {"balance": "none", "text": f"No verdict: {why}, so no momentum budget "
                       "can be made; the geostrophic wind of the region is given instead.",
-                      "why": "A verdict needs the wind."}
+                      "why": "A verdict needs the wind.", "tested": {}, "not_tested": {},
+                      "cautions": []}
     rep["notes"] = [f"{why}: the geostrophic wind only"]
     return rep
 
@@ -512,8 +635,9 @@ def _empty_report(inside, th: Thresholds = Thresholds(), invalid=None, verdict=N
     return {"points": 0, "region_points": n, "valid_share": 0.0, "masked_points": n,
             "invalid": invalid, "terms": [], "derived": [], "winds": {}, "numbers": {},
             "scales": None, "scales_recipe": dict(RECIPE), "resolution": None, "ground": None,
-            "balances": {}, "shares": {},
+            "balances": {}, "balances_tested": {}, "curvature": None, "shares": {},
             "verdict": {"balance": "none", "text": text,
-                        "why": "A verdict needs valid points." if verdict is None else verdict.why},
+                        "why": "A verdict needs valid points." if verdict is None else verdict.why,
+                        "tested": {}, "not_tested": {}, "cautions": []},
             "explain": dict(EXPLAIN), "residual_causes": [], "notes": [],
             "ageostrophic_parts": {"measured_rms": None, "points": 0, "parts": {}}}

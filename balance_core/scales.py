@@ -30,7 +30,8 @@ from . import constants as c
 from .numbers import burger_number, deformation_radius, ekman_number, froude_number, rossby_number
 
 __all__ = ["ScaleSet", "ScaleResult", "PRESETS", "analyse_scales", "estimate_scales",
-           "SCALE_TERMS", "estimate_for_term", "RECIPE"]
+           "SCALE_TERMS", "estimate_for_term", "RECIPE", "BY_CONSTRUCTION", "FlowLength",
+           "flow_length_scale", "flow_rows", "MERIDIONAL_MARGIN_KM"]
 
 #: Names of the scale-analysis terms, as used in the JSON output.
 SCALE_TERMS = ("acceleration", "vertical_advection", "metric_uv", "metric_uw",
@@ -159,6 +160,7 @@ def estimate_for_term(name: str, s: ScaleSet) -> float:
     table = dict(r.terms)
     alias = {"tendency": "acceleration", "horizontal_advection": "acceleration",
              "along_stream": "acceleration", "centripetal": "acceleration",
+             "centripetal_trajectory": "acceleration",
              "residual": "viscous"}
     return table[alias.get(name, name)]
 
@@ -211,17 +213,165 @@ PRESETS = {
 #: The recipe of :func:`estimate_scales`, one line a scale, for the notes beside its numbers.
 RECIPE = {
     "U": "the area-weighted RMS wind speed in the region",
-    "L": "std(Z) / RMS|grad Z|: the distance over which the height changes by its spread",
-    "dP": "rho g std(Z): the pressure difference over that same distance L",
+    "L": ("the flow's length scale: one over the mean wavenumber of the height along the "
+          "whole grid rows and columns through the region (wavelength / 2 pi for one wave), "
+          "so it belongs to the flow and not to the box"),
+    "dP": "rho g dZ, dZ the standard deviation of the height along those same rows and columns",
     "W": "RMS(omega) / (rho g)",
-    "H": "U / RMS|dV/dz| where the shear is known, else the density scale height R_d T / g",
+    "H": "the depth of the troposphere, 10 km (Holton and Hakim 2013)",
     "f0": "the area-weighted mean |f| of the region",
     "nu": "an eddy viscosity typical of the boundary layer, 10 m2 s-1 (common practice)",
 }
+#: The a priori estimates made of scales taken from the very fields their measured terms are
+#: made of (U from the wind, W from omega): they agree with the measurement by construction
+#: and are said to (no diamond on the page).
+BY_CONSTRUCTION = ("coriolis", "coriolis_w", "metric_uw")
+
+
+@dataclasses.dataclass(frozen=True)
+class FlowLength:
+    """The length scale of the flow through a region and how it was found.
+
+    ``length`` (m); ``amplitude`` (m): the standard deviation of the height pattern the
+    length belongs to; ``recipe`` in words; ``along_x`` and ``along_y`` (m, or None):
+    the two directions' own scales.
+    """
+
+    length: float
+    amplitude: float
+    recipe: str
+    along_x: float | None = None
+    along_y: float | None = None
+
+
+#: Rows or columns with less than this share of valid points do not enter the spectra.
+_MIN_VALID = 0.75
+
+
+def _mean_wavenumber(lines, lengths, periodic):
+    """The power-weighted mean wavenumber (rad m-1) and variance of height along lines.
+
+    ``lines``: (n, m) values along n lines of m points; ``lengths``: each line's length (m,
+    the circle's for a periodic line). Each line's mean is removed (a non-periodic one is
+    then tapered with a Hann window; a slope across it counts as the largest scale), its
+    gaps filled with zero deviation; its power spectrum (numpy's FFT) gives the mean wavenumber
+    2 pi sum(m P_m) / (L sum(P_m)) over the harmonics m >= 1. Lines are weighted by their
+    variance. Returns (wavenumber, variance) or (None, 0) where there is no pattern.
+    """
+    z = np.asarray(lines, dtype=np.float64)
+    lengths = np.asarray(lengths, dtype=np.float64)
+    ok = np.isfinite(z)
+    keep = (ok.mean(axis=1) >= _MIN_VALID) & (lengths > 0)
+    if not keep.any():
+        return None, 0.0
+    z, ok, lengths = z[keep], ok[keep], lengths[keep]
+    n = ok.sum(axis=1)
+    zz = np.where(ok, z, 0.0)
+    if periodic:
+        dev = np.where(ok, z - (zz.sum(axis=1) / n)[:, None], 0.0)
+        spec_in = dev
+    else:
+        dev = np.where(ok, z - (zz.sum(axis=1) / n)[:, None], 0.0)
+        spec_in = dev * np.hanning(z.shape[1])[None, :]
+    var = (dev * dev).sum(axis=1) / n
+    power = np.abs(np.fft.rfft(spec_in, axis=1)[:, 1:]) ** 2
+    m = np.arange(1, power.shape[1] + 1, dtype=np.float64)
+    total = power.sum(axis=1)
+    good = total > 0
+    if not good.any():
+        return None, 0.0
+    k = 2.0 * np.pi * (power[good] @ m) / total[good] / lengths[good]
+    w = var[good]
+    if not w.sum() > 0:
+        return None, 0.0
+    return float(np.sum(w * k) / np.sum(w)), float(np.mean(w))
+
+
+#: The columns of the flow's length scale reach this far beyond the region's rows, km (the
+#: project's own choice: a synoptic wave's meridional extent), so that the meridional scale
+#: depends little on how far the region itself reaches.
+MERIDIONAL_MARGIN_KM = 2500.0
+
+
+def flow_rows(grid, inside, margin_km: float = MERIDIONAL_MARGIN_KM):
+    """(j0, j1): the rows :func:`flow_length_scale` reads for a region -- the region's rows
+    and those within ``margin_km`` of them along the grid's middle column (a batch reading
+    a band of rows must read these)."""
+    from .region import great_circle_km
+
+    rows = np.nonzero(np.any(inside, axis=1))[0]
+    if rows.size == 0:
+        return None
+    lat, lon = np.asarray(grid.lat, np.float64), np.asarray(grid.lon, np.float64)
+    cols = np.nonzero(np.any(inside, axis=0))[0]
+    i = int(cols[cols.size // 2])
+    step = np.concatenate([[0.0], great_circle_km(lon[:-1, i], lat[:-1, i], lon[1:, i],
+                                                  lat[1:, i])])
+    dist = np.cumsum(step) * (grid.radius / c.EARTH_RADIUS)
+    lo, hi = dist[rows[0]] - margin_km, dist[rows[-1]] + margin_km
+    near = np.nonzero((dist >= lo) & (dist <= hi))[0]
+    return int(near[0]), int(near[-1]) + 1
+
+
+def flow_length_scale(grid, height, inside) -> FlowLength | None:
+    """The length scale of the flow through a region, from the height pattern, m.
+
+    One over the mean wavenumber of the height along the grid's rows that pass through the
+    region, each taken whole -- the whole latitude circle on a global grid, the whole
+    domain on a regional one -- and along its columns from :data:`MERIDIONAL_MARGIN_KM`
+    before the region to as far beyond it (:func:`flow_rows`), so that the scale belongs to
+    the flow, not to the box drawn around it: the same jet in a 10- and a 20-degree box has
+    nearly the same scale. The two directions' mean wavenumbers (power-weighted, see
+    :func:`_mean_wavenumber`) combine in quadrature, L = 1 / sqrt(kx^2 + ky^2); for one
+    sine wave of wavelength lambda, L = lambda / (2 pi), the distance over which its
+    slope changes by its size. The amplitude is the height's standard deviation along the
+    same lines. The project's own recipe (documented in DEVELOPERS.md). None where the
+    height has no pattern.
+    """
+    z = np.asarray(height, dtype=np.float64)
+    rows = np.nonzero(np.any(inside, axis=1))[0]
+    cols = np.nonzero(np.any(inside, axis=0))[0]
+    if rows.size == 0:
+        return None
+    lat, lon = np.asarray(grid.lat, np.float64), np.asarray(grid.lon, np.float64)
+    periodic = bool(getattr(grid, "periodic", False))
+
+    from .region import great_circle_km
+
+    def path_lengths(la, lo, closed):
+        """The length (m) of each line (rows of la, lo) from its points, closed or not."""
+        d = great_circle_km(lo[:, :-1], la[:, :-1], lo[:, 1:], la[:, 1:]).sum(axis=1)
+        if closed:
+            d = d + great_circle_km(lo[:, -1], la[:, -1], lo[:, 0], la[:, 0])
+        return np.asarray(d, dtype=np.float64) * 1e3 * (grid.radius / c.EARTH_RADIUS)
+
+    j0, j1 = flow_rows(grid, inside)
+    # a line of n points sampled at spacing d: its spectrum's harmonics are of n d (an open
+    # line's path is (n - 1) d long; a closed circle's is n d already)
+    nx, ny = z.shape[1], j1 - j0
+    row_lengths = path_lengths(lat[rows], lon[rows], periodic) * (1.0 if periodic else
+                                                                 nx / max(nx - 1, 1))
+    col_lengths = path_lengths(lat[j0:j1, cols].T, lon[j0:j1, cols].T, False) * \
+        (ny / max(ny - 1, 1))
+    kx, vx = _mean_wavenumber(z[rows], row_lengths, periodic)
+    ky, vy = (None, 0.0) if j1 - j0 < 4 else _mean_wavenumber(z[j0:j1, cols].T, col_lengths,
+                                                                False)
+    # the height's gradient variance is about var_x kx^2 + var_y ky^2 over its variance: a
+    # direction along which the height does not vary adds nothing
+    parts = [(k, v) for k, v in ((kx, vx), (ky, vy)) if k is not None and v > 0]
+    if not parts:
+        return None
+    vmax = max(v for _, v in parts)
+    k = float(np.sqrt(sum(v * q * q for q, v in parts) / vmax))
+    amp = float(np.sqrt(vmax))
+    return FlowLength(length=1.0 / k, amplitude=amp,
+                      recipe=RECIPE["L"], along_x=None if kx is None else 1.0 / kx,
+                      along_y=None if ky is None else 1.0 / ky)
 
 
 def estimate_scales(grid, inside, *, u, v, height, pressure, omega=None, temperature=None,
-                    shear2=None, nu: float = c.NU_AIR, n2=None, height_gradient=None) -> ScaleSet:
+                    shear2=None, nu: float = c.NU_AIR, n2=None, height_gradient=None,
+                    flow_length: FlowLength | None = None) -> ScaleSet:
     """Scales of the flow inside a region, estimated from the data.
 
     Parameters
@@ -237,22 +387,25 @@ def estimate_scales(grid, inside, *, u, v, height, pressure, omega=None, tempera
         Viscosity for the viscous estimate (molecular by default).
     n2 : float, optional
         N^2 (s-2) in the region, passed on.
-    height_gradient : 2-D array, optional
-        |grad Z| (m m-1) if already known; else taken with ``grid.grad``.
+    height_gradient : unused (kept for callers)
+    flow_length : FlowLength, optional
+        The flow's length scale and amplitude if already known (a closed system's
+        radius); else :func:`flow_length_scale` of ``height`` over the whole rows and
+        columns through the region.
 
     Notes
     -----
-    U is the area-weighted RMS speed; L the height field's own gradient length
-    std(Z) / RMS|grad Z|, and dP = rho g0 std(Z) the pressure difference over
-    that same distance, so that dP / (rho L) = g0 RMS|grad Z| is the measured
-    pressure-gradient force (a dP from the range of Z over an L from the
-    standard deviation would overstate it by range / std, 3 to 4 times);
-    rho = p / (R_d T) (or the standard atmosphere); W = RMS(omega) / (rho g0);
-    H = U / RMS|dV/dz| where the shear is known, else the density scale height
-    R_d T / g0; f0 the area-weighted mean |f| and lat0 the mean latitude; nu as
-    given (the box report passes the eddy viscosity
-    :data:`balance_core.constants.EDDY_VISCOSITY`). This is the project's own
-    recipe (documented in DEVELOPERS.md); :data:`RECIPE` says it in words.
+    U is the area-weighted RMS speed; L the flow's length scale (:func:`flow_length_scale`,
+    or the caller's); dP = rho g dZ, dZ the amplitude of that same height pattern, so the
+    a priori pressure gradient dP / (rho L) comes from the pattern's size and scale and can
+    disagree with the one measured in the region; rho = p / (R_d T) (or the standard
+    atmosphere); W = RMS(omega) / (rho g0); H the depth of the troposphere, 10 km (Holton
+    and Hakim 2013), as in the textbook scale analysis; f0 the area-weighted mean |f| and
+    lat0 the mean latitude; nu as given (the box report passes the eddy viscosity
+    :data:`balance_core.constants.EDDY_VISCOSITY`). The Coriolis, vertical Coriolis and
+    vertical metric estimates are products of scales taken from the same fields their
+    measured terms are made of (:data:`BY_CONSTRUCTION`). This is the project's own recipe
+    (documented in DEVELOPERS.md); :data:`RECIPE` says it in words.
     """
     from .region import weighted_stats
     from .thermo import standard_atmosphere_temperature
@@ -263,37 +416,28 @@ def estimate_scales(grid, inside, *, u, v, height, pressure, omega=None, tempera
         raise ValueError("no valid points in the region to estimate scales from")
     speed = np.hypot(u, v)
     U = weighted_stats(speed, grid, ok).rms
-    if height_gradient is None:
-        zx, zy = grid.grad(height)
-        height_gradient = np.hypot(zx, zy)
-    gz = height_gradient
-    zstat = weighted_stats(height, grid, ok)
-    zdev = np.where(ok, height - zstat.mean, np.nan)
-    zstd = weighted_stats(zdev, grid, ok).rms
-    gstat = weighted_stats(gz, grid, ok & np.isfinite(gz)).rms
-    L = zstd / gstat if gstat else float("nan")
+    fl = flow_length
+    if fl is None:
+        fl = flow_length_scale(grid, height, ok)
+    if fl is None or not (np.isfinite(fl.length) and fl.length > 0):
+        raise ValueError("the height has no pattern through the region: no length scale")
+    L = fl.length
     if temperature is not None:
         T = weighted_stats(temperature, grid, ok & np.isfinite(temperature)).mean
     else:
         T = float(standard_atmosphere_temperature(pressure))
     rho = pressure / (c.R_DRY * T)
-    dP = rho * c.G0 * zstd
+    dP = rho * c.G0 * fl.amplitude
     W = 0.0
     if omega is not None:
         om = weighted_stats(omega, grid, ok & np.isfinite(omega)).rms
         W = (om or 0.0) / (rho * c.G0)
-    H = c.R_DRY * T / c.G0
-    if shear2 is not None:
-        sh = weighted_stats(np.sqrt(shear2), grid, ok & np.isfinite(shear2)).rms
-        if sh:
-            H = U / sh
+    H = c.TROPOSPHERE_DEPTH
     fstat = weighted_stats(np.abs(grid.f), grid, ok)
     lat0 = float(np.sum(w * grid.lat) / np.sum(w))
     sign = 1.0 if lat0 >= 0 else -1.0
     if not U > 0:
         raise ValueError("the wind is calm everywhere in the region: no velocity scale")
-    if not (np.isfinite(L) and L > 0):
-        raise ValueError("the height is uniform in the region: no length scale")
     return ScaleSet(U=U, W=W, L=float(L), H=float(H), dP=dP, rho=rho, f0=sign * fstat.mean,
                     lat0=lat0,
                     a=grid.radius, nu=nu, n2=n2, name="from the data",

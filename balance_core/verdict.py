@@ -71,15 +71,38 @@ class Thresholds:
         A candidate balance holds when its imbalance ratio is at or below this.
     good : float
         A balance holding to within this is kept even when one with more terms
-        does better still.
+        does better still (but see ``curvature_share`` for gradient balance).
     improvement : float
-        Otherwise a candidate with more terms replaces a simpler one that also
-        holds only if its ratio is at most ``improvement`` times the simpler one's.
+        Otherwise frictional balance replaces a balance that also holds only if its
+        ratio is at most ``improvement`` times that one's.
+    curvature_share : float
+        Gradient balance is preferred to geostrophic where the centripetal term is at
+        least this share of the Coriolis term (RMS over the region) ...
+    gradient_gain : float
+        ... and its ratio is at most ``gradient_gain`` times the geostrophic one (it fits
+        clearly better). The same two numbers decide between gradient and cyclostrophic,
+        with Coriolis in place of the centripetal term.
     friction_share : float
         Frictional balance needs RMS|residual| / RMS|PGF| at or above this.
     unsteady_share : float
-        With no balance holding, RMS|DV/Dt| / RMS|PGF| at or above this makes
-        the class "unsteady"; below it, "unbalanced".
+        With no balance holding and the local tendency known, RMS|DV/Dt| / RMS|PGF| at or
+        above this makes the class "unsteady".
+    unexplained_share : float
+        A term in no candidate balance (vertical advection, the residual away from the
+        ground, ...) at least this share of the pressure gradient gets a caution.
+    weak_pgf : float
+        Below this RMS pressure-gradient force (m s-2; 2.5e-4 is the force of a geostrophic
+        wind of 2.5 m/s at f = 1e-4 s-1) the ratios are noise: verdict "none".
+    weak_wind : float
+        Below this RMS wind speed (m s-1) the wind's direction and curvature mean nothing:
+        the balances that need them (gradient, cyclostrophic, frictional) are not tested.
+    tropics_share : float
+        Where more than this share of the region's valid points lie within the tropical
+        mask, the balances that need f (geostrophic, gradient) are not tested and the
+        numbers that divide by f are not quoted.
+    rossby_share : float
+        Where the local Rossby number |zeta / f| exceeds 1 over more than this share of the
+        region, geostrophy is not claimed.
     comparable_factor : float
         Scale verdict: a term within this factor of the pressure gradient
         matters ("within a factor of a few").
@@ -88,7 +111,7 @@ class Thresholds:
         ``rossby_large`` leaves Coriolis out of a curved flow (cyclostrophic).
     min_points, min_valid_share : int, float
         No verdict ("none") unless at least ``min_points`` points, and at least
-        ``min_valid_share`` of the region's points, have every term.
+        ``min_valid_share`` of the region's points, have every term; no number either.
     friction_alignment : float
         Frictional balance needs the residual to oppose the wind: the
         area-weighted mean of -cos(angle between residual and wind) at least this.
@@ -100,15 +123,22 @@ class Thresholds:
         pressures of at least) this count as near the ground, Pa.
     resolved_ratio : float
         The flow is under-resolved where its length scale L (see
-        :func:`balance_core.scales.estimate_scales`) is less than this many grid
+        :func:`balance_core.scales.flow_length_scale`) is less than this many grid
         spacings; the verdict then says so and names truncation error.
     """
 
     balanced: float = 0.3
     good: float = 0.1
     improvement: float = 0.5
+    curvature_share: float = 0.1
+    gradient_gain: float = 0.8
     friction_share: float = 0.2
     unsteady_share: float = 0.5
+    unexplained_share: float = 0.7
+    weak_pgf: float = 2.5e-4
+    weak_wind: float = 1.0
+    tropics_share: float = 0.5
+    rossby_share: float = 0.5
     comparable_factor: float = 3.0
     rossby_small: float = 0.3
     rossby_large: float = 3.0
@@ -122,15 +152,25 @@ class Thresholds:
 
 @dataclasses.dataclass(frozen=True)
 class Verdict:
-    """A balance class with its plain-language sentence, why it was chosen, and the evidence."""
+    """A balance class with its plain-language sentence, why it was chosen, and the evidence.
+
+    ``tested`` says of each candidate balance (and "unsteady") whether it was tested: None
+    if it was, else the sentence saying why not. ``cautions`` are the reasons to take the
+    verdict with care.
+    """
 
     balance: str
     text: str
     ratios: dict = dataclasses.field(default_factory=dict)
     why: str = ""
+    tested: dict = dataclasses.field(default_factory=dict)
+    cautions: tuple = ()
 
     def as_dict(self) -> dict:
-        return {"balance": self.balance, "text": self.text, "why": self.why}
+        return {"balance": self.balance, "text": self.text, "why": self.why,
+                "tested": {k: v is None for k, v in self.tested.items()},
+                "not_tested": {k: v for k, v in self.tested.items() if v is not None},
+                "cautions": list(self.cautions)}
 
 
 def _rms(field, grid, inside):
@@ -138,16 +178,18 @@ def _rms(field, grid, inside):
     return s.rms
 
 
-def imbalance_ratios(budget, grid, inside, *, u=None, v=None) -> dict:
-    """Imbalance ratio of each candidate balance and the two shares over a region.
+def imbalance_ratios(budget, grid, inside, *, u=None, v=None, vorticity=None) -> dict:
+    """Imbalance ratio of each candidate balance and the shares that decide the verdict.
 
     Parameters
     ----------
     budget : balance_core.budget.Budget
-    grid : Grid
+    grid : Grid (or a window of one: ``cell_area``, ``f``, ``tropics_mask``)
     inside : bool array, or a Region
     u, v : arrays, optional
-        The wind (m s-1); gives ``friction_alignment``.
+        The wind (m s-1); gives ``friction_alignment`` and ``speed_rms``.
+    vorticity : array, optional
+        Relative vorticity (s-1); gives ``rossby_local_share``.
 
     Returns
     -------
@@ -155,10 +197,14 @@ def imbalance_ratios(budget, grid, inside, *, u=None, v=None) -> dict:
         ``geostrophic``, ``cyclostrophic``, ``gradient``, ``frictional``,
         ``acceleration_share``, ``residual_share``, ``friction_alignment`` (the
         area-weighted mean of -cos(residual, wind): 1 when the residual opposes
-        the wind everywhere, 0 when it is unrelated), ``points`` (valid),
-        ``region_points``, and the RMS magnitudes of every term and view under
-        ``"rms"``. A value is None where the region has no valid points or the
-        needed terms are unavailable.
+        the wind everywhere, 0 when it is unrelated), ``curvature`` ("trajectory" where
+        the local tendency is known, else "streamline": which curvature the centripetal
+        term of the gradient and cyclostrophic balances takes), ``has_tendency``,
+        ``tropics_share`` (valid points within the tropical mask), ``rossby_local_share``
+        (points with |zeta / f| > 1 among those outside it), ``speed_rms``, ``points``
+        (valid), ``region_points``, and the RMS magnitudes of every term and view under
+        ``"rms"`` (``"centripetal_used"``: the one the balances took). A value is None
+        where the region has no valid points or the needed terms are unavailable.
     """
     if isinstance(inside, Region):
         inside = inside.mask(grid)
@@ -175,10 +221,16 @@ def imbalance_ratios(budget, grid, inside, *, u=None, v=None) -> dict:
     for n in names:
         t = budget[n]
         rms[n] = _rms(np.hypot(t.x, t.y), grid, ok) if t.available else None
+    traj = budget.derived.get("centripetal_trajectory")
+    use_traj = traj is not None and traj.available
+    cen = traj if use_traj else budget["centripetal"]
+    out["curvature"] = "trajectory" if use_traj else "streamline"
+    out["has_tendency"] = bool(budget.terms["tendency"].available)
+    rms["centripetal_used"] = rms["centripetal_trajectory"] if use_traj else rms["centripetal"]
     out["rms"] = rms
     p = rms["pressure_gradient"]
     for cand, parts in CANDIDATES.items():
-        terms = [budget[n] for n in parts]
+        terms = [cen if n == "centripetal" else budget[n] for n in parts]
         if not p or not all(t.available for t in terms):
             out[cand] = None
             continue
@@ -189,13 +241,28 @@ def imbalance_ratios(budget, grid, inside, *, u=None, v=None) -> dict:
     out["acceleration_share"] = acc / p if p and acc is not None else None
     out["residual_share"] = res / p if p and res is not None else None
     out["friction_alignment"] = None
+    out["speed_rms"] = None
     if u is not None and v is not None and ok.any():
+        out["speed_rms"] = _rms(np.hypot(u, v), grid, ok)
         r = budget["residual"]
         with np.errstate(invalid="ignore", divide="ignore"):
             cos = (r.x * u + r.y * v) / (np.hypot(r.x, r.y) * np.hypot(u, v))
         good = ok & np.isfinite(cos)
         if good.any():
             out["friction_alignment"] = -weighted_stats(cos, grid, good, quantiles=False).mean
+    tropics = getattr(grid, "tropics_mask", None)
+    out["tropics_share"] = None
+    out["rossby_local_share"] = None
+    if ok.any() and tropics is not None:
+        wts = grid.cell_area
+        total = float(np.sum(wts[ok]))
+        trop = ok & np.asarray(tropics, dtype=bool)
+        out["tropics_share"] = float(np.sum(wts[trop])) / total
+        free = ok & ~trop
+        if vorticity is not None and free.any():
+            with np.errstate(invalid="ignore", divide="ignore"):
+                big = free & (np.abs(vorticity) > np.abs(grid.f))
+            out["rossby_local_share"] = float(np.sum(wts[big]) / np.sum(wts[free]))
     return out
 
 
@@ -220,25 +287,72 @@ def near_ground(level_pa: float, height_above_ground_m: float | None,
                   f"ground (levels at or below {th.boundary_layer_pa / 100:g} hPa are near)")
 
 
+#: Terms that no candidate balance holds: when one of them rivals the pressure gradient,
+#: the verdict says so.
+_OUTSIDE = ("vertical_advection", "metric_uw", "coriolis_w", "metric_uv")
+
+
+def _not_tested(ratios, th: Thresholds, ground) -> dict:
+    """Each candidate (and "unsteady"): None if it can be tested here, else why not."""
+    out = {c: None for c in CANDIDATES}
+    out["unsteady"] = None
+    trop = ratios.get("tropics_share")
+    if trop is not None and trop > th.tropics_share:
+        why = (f"{_pct(trop)} of the region lies within the tropical mask, where f is too "
+               "small for the Coriolis force to balance the pressure gradient")
+        out["geostrophic"] = f"Geostrophic balance was not tested: {why}."
+        out["gradient"] = f"Gradient balance was not tested: {why}."
+    ro = ratios.get("rossby_local_share")
+    if out["geostrophic"] is None and ro is not None and ro > th.rossby_share:
+        out["geostrophic"] = (f"Geostrophic balance was not tested: the local Rossby number "
+                              f"|zeta / f| exceeds 1 over {_pct(ro)} of the region, where the "
+                              "flow spins faster than the planet and geostrophy cannot hold.")
+    speed = ratios.get("speed_rms")
+    if speed is not None and speed < th.weak_wind:
+        for cand in ("gradient", "cyclostrophic", "frictional"):
+            if out[cand] is None:
+                out[cand] = (f"{cand.capitalize()} balance was not tested: the wind "
+                             f"({speed:.1f} m/s RMS) is under {th.weak_wind:g} m/s, too weak "
+                             "for its direction and curvature to mean anything.")
+    for cand in CANDIDATES:
+        if out[cand] is None and ratios.get(cand) is None:
+            out[cand] = (f"{cand.capitalize()} balance was not tested: a term it needs is not "
+                         "in the data.")
+    if out["frictional"] is None:
+        out["frictional"] = _friction_barrier(ratios, th, ground)
+    if not ratios.get("has_tendency", True):
+        out["unsteady"] = ("Unsteady flow was not tested: with one valid time the local "
+                           "tendency is unknown, so the total acceleration DV/Dt is not.")
+    return out
+
+
 def classify_budget(ratios: dict, thresholds: Thresholds = Thresholds(), *,
                     ground: tuple | None = None) -> Verdict:
     """Pick one class from the imbalance ratios of :func:`imbalance_ratios`.
 
-    Rule (the project's own):
+    Rule (the project's own, thresholds in :class:`Thresholds`):
 
     * fewer than ``min_points`` valid points, or less than ``min_valid_share`` of
       the region valid: "none";
-    * the candidate balances that hold (ratio at or below ``balanced``) are taken
-      simplest first (geostrophic and cyclostrophic, then gradient, then
-      frictional); a more complex one replaces the current choice only if the
-      current one is not already within ``good`` and the new ratio is at most
-      ``improvement`` times the current one;
-    * frictional is a candidate only near the ground (``ground``, from
-      :func:`near_ground`; without it, by the level's pressure) and where the
-      residual opposes the wind (``friction_alignment``) and matters
-      (``friction_share``);
-    * if none holds, "unsteady" when the acceleration share reaches
-      ``unsteady_share`` and "unbalanced" otherwise.
+    * a pressure gradient under ``weak_pgf`` (RMS): "none", the ratios would be noise;
+    * candidates that cannot be tested here are left out and say why: geostrophic and
+      gradient where most of the region lies within the tropical mask, geostrophic where
+      the local Rossby number exceeds 1 over most of it, frictional away from the ground
+      or where the residual does not act as friction (:func:`_friction_barrier`),
+      gradient, cyclostrophic and frictional under a wind weaker than ``weak_wind``,
+      "unsteady" with one valid time;
+    * of the balances that hold (ratio at or below ``balanced``), the simplest with the
+      smallest ratio (geostrophic or cyclostrophic) is taken; gradient replaces it where
+      the term it adds matters (the centripetal term at least ``curvature_share`` of
+      Coriolis, or Coriolis that share of the centripetal term) and it fits clearly
+      better (at most ``gradient_gain`` times the ratio); frictional replaces the
+      choice only if that is not already within ``good`` and frictional leaves at most
+      ``improvement`` times as much;
+    * if none holds: "unsteady" where the tendency is known and the acceleration share
+      reaches ``unsteady_share``; "none" where no balance could be tested; otherwise
+      "unbalanced";
+    * a term that is in no candidate balance and at least ``unexplained_share`` of the
+      pressure gradient is named in a caution.
     """
     th = thresholds
     rms = ratios.get("rms", {})
@@ -255,50 +369,109 @@ def classify_budget(ratios: dict, thresholds: Thresholds = Thresholds(), *,
                        f"least {th.min_points} points and {100 * th.min_valid_share:.0f} % of "
                        "the region are needed before a balance is named.", ratios,
                        "Too few valid points to name a balance.")
-    holds, skipped = {}, []
-    for cand in CANDIDATES:
-        r = ratios.get(cand)
-        if r is None or r > th.balanced:
-            continue
-        if cand == "frictional":
-            why_not = _friction_barrier(ratios, th, ground)
-            if why_not:
-                skipped.append(why_not)
-                continue
-        holds[cand] = r
+    p = rms["pressure_gradient"]
+    if p < th.weak_pgf:
+        weak = f"the pressure-gradient force ({_fmt(p)}) is under {th.weak_pgf:.1e} m s-2"
+        return Verdict("none", f"No verdict: {weak}, too weak for the imbalance ratios to "
+                       "mean anything (each is a share of the pressure gradient).", ratios,
+                       "The pressure gradient is too weak to name a balance.",
+                       cautions=(f"Weak forcing: {weak}.",))
+    tested = _not_tested(ratios, th, ground)
+    holds = {c: ratios[c] for c in CANDIDATES
+             if tested[c] is None and ratios.get(c) is not None and ratios[c] <= th.balanced}
+    why = []
+    curv = ratios.get("curvature", "streamline")
+    cen, cor = rms.get("centripetal_used"), rms.get("coriolis")
     chosen = None
     simple = [c for c in ("geostrophic", "cyclostrophic") if c in holds]
     if simple:
         chosen = min(simple, key=holds.get)
-    why = []
-    if chosen:
         why.append(f"{chosen.capitalize()} is the simplest balance that holds: it leaves "
                    f"{_pct(holds[chosen])} of the pressure-gradient force unbalanced (a balance "
                    f"holds at {_pct(th.balanced)} or less).")
-    for cand in ("gradient", "frictional"):
-        if cand not in holds:
-            continue
+    if "gradient" in holds:
+        g = holds["gradient"]
         if chosen is None:
-            chosen = cand
-            why.append(f"{cand.capitalize()} is the simplest balance that holds: it leaves "
-                       f"{_pct(holds[cand])} (a balance holds at {_pct(th.balanced)} or less).")
-        elif holds[chosen] > th.good and holds[cand] <= th.improvement * holds[chosen]:
-            why.append(f"{cand.capitalize()} replaces {chosen}: it leaves {_pct(holds[cand])} "
-                       f"against {_pct(holds[chosen])}, at most {th.improvement:g} times as much, "
-                       "so its extra term earns its place.")
-            chosen = cand
+            chosen = "gradient"
+            why.append(f"Gradient is the simplest balance that holds: it leaves {_pct(g)} (a "
+                       f"balance holds at {_pct(th.balanced)} or less).")
         else:
-            why.append(f"{cand.capitalize()} also holds ({_pct(holds[cand])}) but does not do "
-                       f"enough better than {chosen} ({_pct(holds[chosen])}) to prefer the "
-                       "balance with more terms.")
-    why.extend(skipped)
+            other = rms.get("centripetal_used") if chosen == "geostrophic" else cor
+            base = cor if chosen == "geostrophic" else cen
+            added = "the centripetal term" if chosen == "geostrophic" else "Coriolis"
+            share = other / base if other is not None and base else 0.0
+            if share >= th.curvature_share and g <= th.gradient_gain * holds[chosen]:
+                why.append(f"Gradient replaces {chosen}: {added} is {_pct(share)} of "
+                           f"{'Coriolis' if chosen == 'geostrophic' else 'the centripetal term'}"
+                           f" and gradient leaves {_pct(g)} against {_pct(holds[chosen])}, "
+                           f"clearly less (at most {th.gradient_gain:g} times).")
+                chosen = "gradient"
+            elif g >= holds[chosen]:
+                why.append(f"Gradient also holds ({_pct(g)}) but fits no better than "
+                           f"{chosen} ({_pct(holds[chosen])}).")
+            elif share < th.curvature_share:
+                why.append(f"Gradient fits a little better ({_pct(g)} against "
+                           f"{_pct(holds[chosen])}), but {added} is only {_pct(share)} of "
+                           f"{'Coriolis' if chosen == 'geostrophic' else 'the centripetal term'}"
+                           f": too small to matter (the line is {_pct(th.curvature_share)}).")
+            else:
+                why.append(f"Gradient fits a little better ({_pct(g)} against "
+                           f"{_pct(holds[chosen])}), not clearly (it would need at most "
+                           f"{th.gradient_gain:g} times), so the simpler {chosen} stays.")
+    if "frictional" in holds:
+        f_ = holds["frictional"]
+        if chosen is None:
+            chosen = "frictional"
+            why.append(f"Frictional is the balance that holds: it leaves {_pct(f_)} (a balance "
+                       f"holds at {_pct(th.balanced)} or less).")
+        elif holds[chosen] > th.good and f_ <= th.improvement * holds[chosen]:
+            why.append(f"Frictional replaces {chosen}: it leaves {_pct(f_)} against "
+                       f"{_pct(holds[chosen])}, at most {th.improvement:g} times as much, so "
+                       "friction earns its place.")
+            chosen = "frictional"
+        else:
+            why.append(f"Frictional also holds ({_pct(f_)}) but does not do enough better than "
+                       f"{chosen} ({_pct(holds[chosen])}) to add friction.")
+    if chosen in ("gradient", "cyclostrophic"):
+        why.append(f"The centripetal term takes the {curv} curvature"
+                   + (" (the streamlines' curvature plus the cross-stream tendency over V^2)."
+                      if curv == "trajectory" else
+                      " (one valid time: no tendency to turn it into the trajectory's)."))
     if chosen is None:
+        testable = [c for c in CANDIDATES if tested[c] is None]
         acc = ratios.get("acceleration_share")
-        chosen = "unsteady" if acc is not None and acc >= th.unsteady_share else "unbalanced"
-        why.insert(0, f"No candidate balance leaves {_pct(th.balanced)} or less; the total "
-                      "acceleration is " + ("" if chosen == "unsteady" else "not ") +
-                   f"at least {_pct(th.unsteady_share)} of the pressure-gradient force.")
-    return Verdict(chosen, _sentence(chosen, ratios), ratios, " ".join(why))
+        if tested["unsteady"] is None and acc is not None and acc >= th.unsteady_share:
+            chosen = "unsteady"
+            why.insert(0, f"No candidate balance leaves {_pct(th.balanced)} or less; the "
+                          f"total acceleration is {_pct(acc)} of the pressure-gradient force "
+                          f"(at least {_pct(th.unsteady_share)}).")
+        elif not testable:
+            chosen = "none"
+            why.insert(0, "No candidate balance could be tested here.")
+        elif tested["geostrophic"] is not None and tested["gradient"] is not None and \
+                ratios.get("tropics_share") is not None and \
+                ratios["tropics_share"] > th.tropics_share:
+            chosen = "none"
+            why.insert(0, "Within the tropics only the balances that do without f can be "
+                          "tested, and none of them holds here.")
+        else:
+            chosen = "unbalanced"
+            tail = ("" if tested["unsteady"] is None else
+                    " With one valid time, whether the flow is unsteady cannot be told.")
+            why.insert(0, f"No candidate balance leaves {_pct(th.balanced)} or less.{tail}")
+    why.extend(t for c, t in tested.items() if t is not None)
+    cautions = []
+    for name in _OUTSIDE + (() if ground and ground[0] else ("residual",)):
+        m = rms.get(name)
+        if m is not None and m >= th.unexplained_share * p:
+            cautions.append(f"{_PRETTY[name].capitalize()} is {_pct(m / p)} of the "
+                            "pressure-gradient force and no candidate balance holds it: "
+                            "check that term (or the data it comes from) before trusting "
+                            "this verdict.")
+    text = _sentence(chosen, ratios, tested)
+    if cautions:
+        text += " Caution: " + " ".join(cautions)
+    return Verdict(chosen, text, ratios, " ".join(why), tested, tuple(cautions))
 
 
 def _friction_barrier(ratios, th, ground) -> str | None:
@@ -322,11 +495,12 @@ def _friction_barrier(ratios, th, ground) -> str | None:
 
 
 def budget_verdict(budget, grid, inside, thresholds: Thresholds = Thresholds(), *, u=None,
-                   v=None, height_above_ground_m: float | None = None) -> Verdict:
+                   v=None, height_above_ground_m: float | None = None,
+                   vorticity=None) -> Verdict:
     """:func:`imbalance_ratios` then :func:`classify_budget` (ground from :func:`near_ground`)."""
     ground = near_ground(budget.level_pa, height_above_ground_m, thresholds)
-    return classify_budget(imbalance_ratios(budget, grid, inside, u=u, v=v), thresholds,
-                           ground=ground)
+    return classify_budget(imbalance_ratios(budget, grid, inside, u=u, v=v,
+                                            vorticity=vorticity), thresholds, ground=ground)
 
 
 def _fmt(x):
@@ -337,17 +511,19 @@ def _pct(x):
     return f"{100 * x:.0f} %"
 
 
-def _sentence(cls, ratios) -> str:
+def _sentence(cls, ratios, tested=None) -> str:
     rms = ratios["rms"]
     p = rms["pressure_gradient"]
     ranked = sorted(((v, k) for k, v in rms.items()
-                     if v is not None and k not in ("pressure_gradient", "residual", "acceleration",
-                                                    "along_stream", "centripetal", "tendency")),
+                     if v is not None and k in TERM_NAMES and k not in (
+                         "pressure_gradient", "residual", "acceleration", "along_stream",
+                         "centripetal", "tendency")),
                     reverse=True)
     cor = rms.get("coriolis")
-    cen = rms.get("centripetal")
+    cen = rms.get("centripetal_used")
     acc = rms.get("acceleration")
     res = rms.get("residual")
+    steady = "" if ratios.get("has_tendency", True) else " (one valid time: the steady-state residual)"
     if cls == "geostrophic":
         other = next((k for v, k in ranked if k != "coriolis"), None)
         tail = f"; the largest other term is {_PRETTY[other]} ({_fmt(rms[other])})" if other else ""
@@ -358,22 +534,29 @@ def _sentence(cls, ratios) -> str:
                 f"centripetal acceleration ({_fmt(cen)}) to within {_pct(ratios['cyclostrophic'])}; "
                 f"Coriolis ({_fmt(cor)}) is minor.")
     if cls == "gradient":
+        geo = ratios.get("geostrophic")
+        geo_txt = "" if geo is None or (tested and tested.get("geostrophic")) else \
+            f" (geostrophy alone leaves {_pct(geo)})"
         return (f"Gradient: the pressure-gradient force ({_fmt(p)}) is balanced by Coriolis "
                 f"({_fmt(cor)}) and the centripetal acceleration ({_fmt(cen)}) together, to within "
-                f"{_pct(ratios['gradient'])} (geostrophy alone leaves {_pct(ratios['geostrophic'])}).")
+                f"{_pct(ratios['gradient'])}{geo_txt}.")
     if cls == "frictional":
         return (f"Frictional: the pressure-gradient force ({_fmt(p)}), Coriolis ({_fmt(cor)}) and "
-                f"the residual friction ({_fmt(res)}) balance to within {_pct(ratios['frictional'])}; "
-                f"geostrophy alone leaves {_pct(ratios['geostrophic'])}.")
+                f"the residual friction ({_fmt(res)}{steady}) balance to within "
+                f"{_pct(ratios['frictional'])}; geostrophy alone leaves "
+                f"{_pct(ratios['geostrophic'])}.")
     best = min(((ratios[c], c) for c in ("geostrophic", "cyclostrophic", "gradient")
-                if ratios.get(c) is not None), default=None)
+                if ratios.get(c) is not None and not (tested and tested.get(c))), default=None)
     best_txt = f"; the closest balance, {best[1]}, leaves {_pct(best[0])}" if best else ""
     if cls == "unsteady":
         return (f"Unsteady: the total acceleration DV/Dt ({_fmt(acc)}) is "
                 f"{_pct(ratios['acceleration_share'])} of the pressure-gradient force ({_fmt(p)}), "
                 f"so no balance holds{best_txt}.")
+    if cls == "none":
+        return (f"No verdict: no candidate balance that can be tested here holds (the "
+                f"pressure-gradient force is {_fmt(p)}){best_txt}; see why below.")
     return (f"Unbalanced: no candidate balance holds for the pressure-gradient force ({_fmt(p)})"
-            f"{best_txt}; the residual is {_fmt(res)}.")
+            f"{best_txt}; the residual is {_fmt(res)}{steady}.")
 
 
 def classify_scales(result, thresholds: Thresholds = Thresholds()) -> Verdict:

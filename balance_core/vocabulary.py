@@ -24,6 +24,7 @@ TERM_NAMES = {
     "acceleration": "total acceleration DV/Dt",
     "along_stream": "along-stream acceleration",
     "centripetal": "centripetal acceleration",
+    "centripetal_trajectory": "centripetal acceleration (trajectory)",
     "viscous": "friction (eddy viscosity)",
 }
 
@@ -55,9 +56,10 @@ SYSTEM_NAMES = {"low": "closed low", "high": "closed high", "jet_streak": "jet s
 
 #: Parts of the ageostrophic wind (balance_core.budget.ageostrophic_parts).
 PART_NAMES = {
-    "tendency": "tendency (isallobaric)", "inertial_advective": "inertial-advective",
+    "tendency": "tendency (local change of the wind)", "inertial_advective": "inertial-advective",
     "vertical_advection": "vertical advection",
     "remainder": "remainder (curvature, friction, unresolved)",
+    "isallobaric": "isallobaric wind (from the height tendency; not one of the parts)",
 }
 
 

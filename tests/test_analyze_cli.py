@@ -43,16 +43,26 @@ def test_json_object_has_every_field(capsys):
     mags = [t["magnitude"] for t in rep["terms"]]
     assert mags == sorted(mags, reverse=True)
     for t in rep["terms"] + rep["derived"]:
-        assert set(t) == {"name", "magnitude", "x_rms", "y_rms", "estimate", "note"}
+        assert set(t) == {"name", "magnitude", "x_rms", "y_rms", "estimate",
+                          "estimate_by_construction", "note"}
         assert t["magnitude"] == pytest.approx(np.hypot(t["x_rms"], t["y_rms"]), rel=1e-9)
-    assert [t["name"] for t in rep["derived"]] == ["acceleration", "along_stream", "centripetal"]
+    # the trajectory's centripetal term beside the streamlines' (the case has several times)
+    assert [t["name"] for t in rep["derived"]] == ["acceleration", "along_stream", "centripetal",
+                                                   "centripetal_trajectory"]
+    assert rep["curvature"] == "trajectory"
+    assert {t["name"] for t in rep["terms"] if t["estimate_by_construction"]} == \
+        {"coriolis", "coriolis_w", "metric_uw"}
     assert set(rep["winds"]) == {"speed_rms", "geostrophic_speed_rms",
                                  "ageostrophic_fraction_median", "gradient_speed_rms"}
     assert set(rep["numbers"]) == {"rossby", "rossby_local_median", "ekman", "froude", "burger",
-                                   "richardson_median", "deformation_radius_km"}
+                                   "richardson_median", "deformation_radius_km",
+                                   "residual_to_coriolis", "shear_depth_km"}
     assert set(rep["scales"]) == {"U", "W", "L", "H", "dP", "f0", "nu"}
     assert set(rep["scales_recipe"]) >= {"U", "L", "dP", "nu"}
     assert set(rep["balances"]) == {"geostrophic", "gradient", "cyclostrophic", "frictional"}
+    assert rep["balances_tested"] == {"geostrophic": True, "gradient": True,
+                                      "cyclostrophic": True, "frictional": False}
+    assert "frictional" in rep["verdict"]["not_tested"] and rep["verdict"]["cautions"] == []
     assert rep["verdict"]["balance"] == "geostrophic" and rep["verdict"]["text"]
     assert "simplest balance that holds" in rep["verdict"]["why"]
     assert rep["region_points"] == rep["points"] and rep["valid_share"] == 1.0

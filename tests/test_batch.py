@@ -34,7 +34,7 @@ def archive(tmp_path_factory):
     for i in range(3):
         # from 2 to 82 N: the boxes (35 to 60 N) take a band of its rows, so the rows
         # compared with analyze below come from the band (app.batch._band)
-        ds, _ = latlon_dataset(np.linspace(2, 82, 41), np.linspace(-60, 20, 41))
+        ds, _ = latlon_dataset(np.linspace(-78, 82, 81), np.linspace(-60, 20, 41))
         ds.attrs["title"] = f"synthetic archive file {i}"
         ds.to_netcdf(folder / f"run{i}.nc")
     return folder

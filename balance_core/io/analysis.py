@@ -158,7 +158,7 @@ def _crosses_equator(region: Region) -> bool:
 
 def _no_verdict(rep: dict, sentence: str) -> dict:
     rep = dict(rep)
-    rep["verdict"] = {"balance": "none", "text": f"No verdict: {sentence}.",
+    rep["verdict"] = {**rep["verdict"], "balance": "none", "text": f"No verdict: {sentence}.",
                       "why": sentence[0].upper() + sentence[1:] + "."}
     return rep
 
