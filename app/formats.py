@@ -303,7 +303,7 @@ def systems_table(out: dict) -> str:
         if top:
             lines.append("   largest terms: " + ", ".join(
                 f"{vocab.term_name(t['name'])} {t['magnitude']:.1e}" for t in top) + " m s-2")
-        if rep.get("surface"):
+        if rep.get("surface") and out.get("level") == "msl":
             sf = rep["surface"]
             ang, rat = sf.get("cross_isobar_angle_median_deg"), \
                 sf.get("speed_over_geostrophic_median")

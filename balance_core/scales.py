@@ -31,7 +31,8 @@ from .numbers import burger_number, deformation_radius, ekman_number, froude_num
 
 __all__ = ["ScaleSet", "ScaleResult", "PRESETS", "analyse_scales", "estimate_scales",
            "SCALE_TERMS", "estimate_for_term", "RECIPE", "BY_CONSTRUCTION", "FlowLength",
-           "flow_length_scale", "flow_rows", "MERIDIONAL_MARGIN_KM"]
+           "flow_length_scale", "flow_rows", "MERIDIONAL_MARGIN_KM",
+           "ZONAL_HALF_KM"]
 
 #: Names of the scale-analysis terms, as used in the JSON output.
 SCALE_TERMS = ("acceleration", "vertical_advection", "metric_uv", "metric_uw",
@@ -213,9 +214,9 @@ PRESETS = {
 #: The recipe of :func:`estimate_scales`, one line a scale, for the notes beside its numbers.
 RECIPE = {
     "U": "the area-weighted RMS wind speed in the region",
-    "L": ("the flow's length scale: one over the mean wavenumber of the height along the "
-          "whole grid rows and columns through the region (wavelength / 2 pi for one wave), "
-          "so it belongs to the flow and not to the box"),
+    "L": ("the flow's length scale: one over the mean wavenumber of the height along whole "
+          "grid rows within 1000 km of the region's centre and along its columns 2500 km either "
+          "side (wavelength / 2 pi for one wave), so it belongs to the flow and not to the box"),
     "dP": "rho g dZ, dZ the standard deviation of the height along those same rows and columns",
     "W": "RMS(omega) / (rho g)",
     "H": "the depth of the troposphere, 10 km (Holton and Hakim 2013)",
@@ -293,35 +294,52 @@ def _mean_wavenumber(lines, lengths, periodic):
 MERIDIONAL_MARGIN_KM = 2500.0
 
 
-def flow_rows(grid, inside, margin_km: float = MERIDIONAL_MARGIN_KM):
-    """(j0, j1): the rows :func:`flow_length_scale` reads for a region -- the region's rows
-    and those within ``margin_km`` of them along the grid's middle column (a batch reading
-    a band of rows must read these)."""
+#: The rows whose whole length gives the zonal scale lie within this of the region's central
+#: row, km (the project's own choice).
+ZONAL_HALF_KM = 1000.0
+
+
+def _distances_along_column(grid, inside):
+    """(distance of every row from the region's central row along its middle column, km)."""
     from .region import great_circle_km
 
     rows = np.nonzero(np.any(inside, axis=1))[0]
-    if rows.size == 0:
-        return None
-    lat, lon = np.asarray(grid.lat, np.float64), np.asarray(grid.lon, np.float64)
     cols = np.nonzero(np.any(inside, axis=0))[0]
+    lat, lon = np.asarray(grid.lat, np.float64), np.asarray(grid.lon, np.float64)
     i = int(cols[cols.size // 2])
     step = np.concatenate([[0.0], great_circle_km(lon[:-1, i], lat[:-1, i], lon[1:, i],
                                                   lat[1:, i])])
     dist = np.cumsum(step) * (grid.radius / c.EARTH_RADIUS)
-    lo, hi = dist[rows[0]] - margin_km, dist[rows[-1]] + margin_km
-    near = np.nonzero((dist >= lo) & (dist <= hi))[0]
+    centre = 0.5 * (dist[rows[0]] + dist[rows[-1]])
+    return np.abs(dist - centre)
+
+
+def _rows_within(dist, km):
+    near = np.nonzero(dist <= km)[0]
+    if near.size == 0:
+        near = np.array([int(np.argmin(dist))])
     return int(near[0]), int(near[-1]) + 1
+
+
+def flow_rows(grid, inside, margin_km: float = MERIDIONAL_MARGIN_KM):
+    """(j0, j1): the rows :func:`flow_length_scale` reads for a region -- those within
+    ``margin_km`` of the region's central row along the grid's middle column through the
+    region (a batch reading a band of rows must read these), or None for no region."""
+    if not np.any(inside):
+        return None
+    return _rows_within(_distances_along_column(grid, inside), margin_km)
 
 
 def flow_length_scale(grid, height, inside) -> FlowLength | None:
     """The length scale of the flow through a region, from the height pattern, m.
 
-    One over the mean wavenumber of the height along the grid's rows that pass through the
-    region, each taken whole -- the whole latitude circle on a global grid, the whole
-    domain on a regional one -- and along its columns from :data:`MERIDIONAL_MARGIN_KM`
-    before the region to as far beyond it (:func:`flow_rows`), so that the scale belongs to
-    the flow, not to the box drawn around it: the same jet in a 10- and a 20-degree box has
-    nearly the same scale. The two directions' mean wavenumbers (power-weighted, see
+    One over the mean wavenumber of the height along the grid's rows within
+    :data:`ZONAL_HALF_KM` of the region's central row, each taken whole -- the whole
+    latitude circle on a global grid, the whole domain on a regional one -- and along the
+    columns through the region within :data:`MERIDIONAL_MARGIN_KM` of that row
+    (:func:`flow_rows`), so that the scale belongs to the flow where the region is, not to
+    the box drawn around it: the same jet in a 10- and a 20-degree box has nearly the same
+    scale. The two directions' mean wavenumbers (power-weighted, see
     :func:`_mean_wavenumber`) combine in quadrature, L = 1 / sqrt(kx^2 + ky^2); for one
     sine wave of wavelength lambda, L = lambda / (2 pi), the distance over which its
     slope changes by its size. The amplitude is the height's standard deviation along the
@@ -329,10 +347,11 @@ def flow_length_scale(grid, height, inside) -> FlowLength | None:
     height has no pattern.
     """
     z = np.asarray(height, dtype=np.float64)
-    rows = np.nonzero(np.any(inside, axis=1))[0]
-    cols = np.nonzero(np.any(inside, axis=0))[0]
-    if rows.size == 0:
+    if not np.any(inside):
         return None
+    cols = np.nonzero(np.any(inside, axis=0))[0]
+    dist = _distances_along_column(grid, inside)
+    rows = np.arange(*_rows_within(dist, ZONAL_HALF_KM))
     lat, lon = np.asarray(grid.lat, np.float64), np.asarray(grid.lon, np.float64)
     periodic = bool(getattr(grid, "periodic", False))
 

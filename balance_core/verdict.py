@@ -123,8 +123,10 @@ class Thresholds:
         pressures of at least) this count as near the ground, Pa.
     resolved_ratio : float
         The flow is under-resolved where its length scale L (see
-        :func:`balance_core.scales.flow_length_scale`) is less than this many grid
-        spacings; the verdict then says so and names truncation error.
+        :func:`balance_core.scales.flow_length_scale`, wavelength / 2 pi for one wave) is
+        less than this many grid spacings; the verdict then says so and names truncation
+        error. 1.5 is about 9 points a wavelength, where a centred difference loses
+        sin(k dx) / (k dx), about 7 %, of a first derivative.
     """
 
     balanced: float = 0.3
@@ -147,7 +149,7 @@ class Thresholds:
     friction_alignment: float = 0.5
     boundary_layer_m: float = 2000.0
     boundary_layer_pa: float = 85000.0
-    resolved_ratio: float = 3.0
+    resolved_ratio: float = 1.5
 
 
 @dataclasses.dataclass(frozen=True)

@@ -92,13 +92,17 @@ class Evidence(pn.viewable.Viewer):
             m, e = t["magnitude"], t["estimate"]
             name = vocab.term_name(t["name"])
             tip = f"{name}: measured {m:.3g} m s-2" + (f", a priori {e:.1g} m s-2" if e else "")
+            if t.get("estimate_by_construction"):
+                e = None  # made of the same fields: it would agree by construction
+                tip += " (no a priori estimate shown: it would be made of the same fields)"
             return Bar(name=name, value=m, label=f"{m:.2g}" if m > 0 else "0 (none)",
                        colour=colour, estimate=e if e and e > 0 else None, tip=tip)
 
         self.ranking = [bar(t, BLUE if t["name"] in pairs else
                             (VERMILION if t["name"] == "residual" else GREEN)) for t in avail]
         out = _heading("Terms, largest first", "bars: measured in the region (m s-2); "
-                       "diamonds: a priori, from the region's own scales")
+                       "diamonds: a priori, from the region's own scales (none where the "
+                       "estimate is made of the same fields as the term)")
         out += log_bars(self.ranking, lo, hi, "magnitude, m s-2 (log scale)")
         if rep.get("unavailable"):
             out += ("<div style='font-size:15px;color:" + INK + "'><b>Unavailable:</b> " +
@@ -110,8 +114,11 @@ class Evidence(pn.viewable.Viewer):
         return out
 
     def _balances_html(self, rep):
-        bal = [(k, r) for k, r in rep["balances"].items() if r is not None]
-        if not bal:
+        not_tested = (rep.get("verdict") or {}).get("not_tested", {})
+        bal = [(k, r) for k, r in rep["balances"].items()
+               if r is not None and k not in not_tested]
+        untested = [k for k in rep["balances"] if k in not_tested]
+        if not bal and not untested:
             return ""
         chosen = rep["verdict"]["balance"]
         th = self.thresholds.balanced
@@ -121,44 +128,70 @@ class Evidence(pn.viewable.Viewer):
                     tip=f"{vocab.balance_name(k)}: what its terms leave over is "
                         f"{100 * r:.0f} % of the pressure gradient")
                 for k, r in bal]
-        return (_heading("Candidate balances", "|sum of their terms| / |pressure gradient|; "
-                         "smaller holds better") +
-                linear_bars(bars, 0.0, 1.5, [(0, "0"), (0.5, "50 %"), (1.0, "100 %"),
-                                             (1.5, "150 %")],
-                            f"dashed: the limit for a balance, {100 * th:.0f} %", dashed_at=th))
+        out = _heading("Candidate balances", "|sum of their terms| / |pressure gradient|; "
+                       "smaller holds better")
+        if bars:
+            out += linear_bars(bars, 0.0, 1.5, [(0, "0"), (0.5, "50 %"), (1.0, "100 %"),
+                                                (1.5, "150 %")],
+                               f"dashed: the limit for a balance, {100 * th:.0f} %",
+                               dashed_at=th)
+        if untested:
+            out += (f"<div class='bd-untested' style='font-size:15px;color:{INK}'>"
+                    "<b>Not tested:</b> " + "; ".join(
+                        f"{esc(vocab.balance_name(k))} ({esc(_after_colon(not_tested[k]))})"
+                        for k in untested) + "</div>")
+        curv = rep.get("curvature")
+        if curv:
+            out += (f"<div style='font-size:14px;color:{MUTED}'>The centripetal term takes the "
+                    f"{esc(curv)} curvature.</div>")
+        cautions = (rep.get("verdict") or {}).get("cautions") or []
+        if cautions:
+            out += (f"<div class='bd-cautions' style='font-size:15px;color:#7a3d00'>"
+                    "<b>Take care:</b> " + " ".join(esc(c) for c in cautions) + "</div>")
+        return out
 
     def _numbers_html(self, rep):
-        rows = []
-        explain = rep.get("explain", {})
-        for k, (label, unit, meaning) in vocab.NUMBERS.items():
-            val = rep["numbers"].get(k)
-            txt = "n/a" if val is None else (f"{val:.3g}")
-            said = explain.get(k)
-            line = (f"<tr><td colspan='2' style='font-size:14px;color:{MUTED};"
-                    f"padding:0 0 6px 8px'>{esc(said)}</td></tr>") if said else ""
-            rows.append(f"<tr><td style='padding:2px 12px 2px 0;border-bottom:1px dotted #999'>"
-                        f"{esc(label)}</td><td style='text-align:right'><b>{esc(txt)}</b> "
-                        f"{esc(unit)}</td></tr>{line}")
-        w = rep.get("winds", {})
-        unit = self.state.wind_units
-        k = vocab.WIND_UNITS[unit][1]
-        for key, label, meaning in (("speed_rms", "wind speed", "RMS in the region"),
-                                    ("geostrophic_speed_rms", "geostrophic speed",
-                                     "RMS, from the height gradient")):
-            val = w.get(key)
-            if val is None:
-                continue
-            warn = (" <span style='color:#a30000'>(far above the wind: geostrophy fails here)"
-                    "</span>" if key == "geostrophic_speed_rms" and w.get("speed_rms") and
-                    val > 2 * w["speed_rms"] else "")
-            rows.append(f"<tr><td>{label} ({meaning})</td><td style='text-align:right'>"
-                        f"<b>{val * k:.1f}</b> {esc(unit)}{warn}</td></tr>")
-        more = "".join(f"<li><b>{esc(label)}</b>: {esc(meaning)}</li>"
-                       for key, (label, _, meaning) in vocab.NUMBERS.items() if key not in explain)
-        return (f"<div style='font-size:16px;color:{INK}'><b>Numbers</b>"
-                "<table style='font-size:16px'>" + "".join(rows) + "</table>"
-                "<details style='font-size:15px'><summary>What the other numbers mean</summary>"
-                f"<ul>{more}</ul></details></div>")
+        return _numbers_table(rep, self.state.wind_units)
 
     def __panel__(self):
         return self.layout
+
+
+def _after_colon(sentence: str) -> str:
+    """The reason in a "... was not tested: REASON." sentence."""
+    head, _, tail = str(sentence).partition(": ")
+    return (tail or head).rstrip(".")
+
+
+def _numbers_table(rep, wind_units):
+    """The numbers of the report, each with its meaning, and the region's wind speeds."""
+    rows = []
+    explain = rep.get("explain", {})
+    for k, (label, unit, meaning) in vocab.NUMBERS.items():
+        val = rep["numbers"].get(k)
+        txt = "n/a" if val is None else (f"{val:.3g}")
+        said = explain.get(k)
+        line = (f"<tr><td colspan='2' style='font-size:14px;color:{MUTED};"
+                f"padding:0 0 6px 8px'>{esc(said)}</td></tr>") if said else ""
+        rows.append(f"<tr><td style='padding:2px 12px 2px 0;border-bottom:1px dotted #999'>"
+                    f"{esc(label)}</td><td style='text-align:right'><b>{esc(txt)}</b> "
+                    f"{esc(unit)}</td></tr>{line}")
+    w = rep.get("winds", {})
+    k = vocab.WIND_UNITS[wind_units][1]
+    for key, label, meaning in (("speed_rms", "wind speed", "RMS in the region"),
+                                ("geostrophic_speed_rms", "geostrophic speed",
+                                 "RMS, from the height gradient")):
+        val = w.get(key)
+        if val is None:
+            continue
+        warn = (" <span style='color:#a30000'>(more than twice the wind: geostrophy overstates "
+                "the flow here)</span>" if key == "geostrophic_speed_rms" and
+                w.get("speed_rms") and val > w["speed_rms"] * 2 else "")
+        rows.append(f"<tr><td>{label} ({meaning})</td><td style='text-align:right'>"
+                    f"<b>{val * k:.1f}</b> {esc(wind_units)}{warn}</td></tr>")
+    more = "".join(f"<li><b>{esc(label)}</b>: {esc(meaning)}</li>"
+                   for key, (label, _, meaning) in vocab.NUMBERS.items() if key not in explain)
+    return (f"<div style='font-size:16px;color:{INK}'><b>Numbers</b>"
+            "<table style='font-size:16px'>" + "".join(rows) + "</table>"
+            "<details style='font-size:15px'><summary>What the other numbers mean</summary>"
+            f"<ul>{more}</ul></details></div>")

@@ -97,7 +97,8 @@ def _times(case: Case, t: int) -> dict:
 
 
 def analyse_case(case: Case, level_hpa, time=None, box=None, *, smooth_km=None,
-                 thresholds: Thresholds = Thresholds(), diagnostics=None) -> dict:
+                 thresholds: Thresholds = Thresholds(), diagnostics=None,
+                 flow_length=None) -> dict:
     """The analysis of one box (west, east, south, north; a Region; None for the whole domain)
     at a pressure level (hPa) or at sea level (:data:`SEA_LEVEL`).
 
@@ -119,7 +120,8 @@ def analyse_case(case: Case, level_hpa, time=None, box=None, *, smooth_km=None,
         diag = sea_level_diagnostics_for(case, t, smooth_km)
     else:
         diag = diagnostics_for(case, k, t, smooth_km)
-    rep = box_report(diag, inside, thresholds=thresholds, below_ground=below)
+    rep = box_report(diag, inside, thresholds=thresholds, below_ground=below,
+                     flow_length=flow_length)
     out = {
         "case": case.name,
         "level_hpa": level_value,
@@ -260,7 +262,8 @@ def analyse_systems(case: Case, level_hpa, time=None, *, smooth_km=None,
     for s in found:
         if budget:
             rep = analyse_case(case, level_out, t, s.region, smooth_km=smooth_km,
-                               thresholds=thresholds, diagnostics=diag)
+                               thresholds=thresholds, diagnostics=diag,
+                               flow_length=_system_length(s, sea))
         else:
             rep = geostrophic_only_report(case.grid, ug, vg, s.region, why_not)
         if _crosses_equator(s.region):
@@ -282,6 +285,23 @@ def analyse_systems(case: Case, level_hpa, time=None, *, smooth_km=None,
         "notes": notes,
         "systems": systems,
     }
+
+
+def _system_length(s, sea: bool):
+    """A closed low's or high's length scale: the radius of its outermost closed contour,
+    its depth the amplitude (as a height: at sea level through the standard sea-level
+    density); None for a jet streak (the flow's own length scale then)."""
+    from .. import constants as C
+    from ..scales import FlowLength
+    from ..thermo import standard_atmosphere_density
+
+    if s.kind == "jet_streak" or not s.depth:
+        return None
+    amp = s.depth
+    if sea:
+        amp = s.depth / (float(standard_atmosphere_density(C.STD_SEA_LEVEL_PRESSURE)) * C.G0)
+    return FlowLength(length=s.radius_km * 1e3, amplitude=amp,
+                      recipe="the radius of the system's outermost closed contour")
 
 
 def track_systems(case: Case, level_hpa, *, smooth_km=None,
