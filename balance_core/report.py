@@ -422,7 +422,8 @@ def _numbers(diag, win, sub, ok, scales, ratios, enough, f_ok) -> dict:
     if diag.shear2 is not None and scales is not None:
         sh = weighted_stats(np.sqrt(diag.shear2[win]), sub, ok & np.isfinite(diag.shear2[win]),
                             quantiles=False).rms
-        numbers["shear_depth_km"] = _num(scales.U / sh / 1e3) if sh else None
+        # under 1e-6 s-1 (1 m/s over 1000 km of height) there is no shear to speak of
+        numbers["shear_depth_km"] = _num(scales.U / sh / 1e3) if sh and sh > 1e-6 else None
     if not f_ok:
         return numbers
     numbers["rossby_local_median"] = weighted_stats(

@@ -146,7 +146,7 @@ class Thresholds:
     rossby_large: float = 3.0
     min_points: int = 25
     min_valid_share: float = 0.5
-    friction_alignment: float = 0.5
+    friction_alignment: float = 0.4
     boundary_layer_m: float = 2000.0
     boundary_layer_pa: float = 85000.0
     resolved_ratio: float = 1.5
@@ -372,13 +372,16 @@ def classify_budget(ratios: dict, thresholds: Thresholds = Thresholds(), *,
                        "the region are needed before a balance is named.", ratios,
                        "Too few valid points to name a balance.")
     p = rms["pressure_gradient"]
+    tested = _not_tested(ratios, th, ground)
     if p < th.weak_pgf:
         weak = f"the pressure-gradient force ({_fmt(p)}) is under {th.weak_pgf:.1e} m s-2"
+        why = (f"{weak[0].upper() + weak[1:]}: every ratio is a share of it, so none means "
+               "anything.")
+        tested = {c: (f"{c.capitalize()} {'flow' if c == 'unsteady' else 'balance'} was not "
+                      f"tested: {weak}.") for c in tested}
         return Verdict("none", f"No verdict: {weak}, too weak for the imbalance ratios to "
                        "mean anything (each is a share of the pressure gradient).", ratios,
-                       "The pressure gradient is too weak to name a balance.",
-                       cautions=(f"Weak forcing: {weak}.",))
-    tested = _not_tested(ratios, th, ground)
+                       why, tested, cautions=(f"Weak forcing: {weak}.",))
     holds = {c: ratios[c] for c in CANDIDATES
              if tested[c] is None and ratios.get(c) is not None and ratios[c] <= th.balanced}
     why = []

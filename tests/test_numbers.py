@@ -95,3 +95,72 @@ def test_local_rossby_numbers():
     assert nb.local_rossby_vorticity(2e-5, -1e-4) == pytest.approx(0.2)
     val = nb.local_rossby_acceleration(np.array(3e-4), np.array(4e-4), 1e-4, 10.0, 0.0)
     assert val == pytest.approx(0.5)
+
+
+# -- the textbook numbers in a region's report, against hand computations -----------------------
+
+def test_the_reports_textbook_numbers_against_hand_computations():
+    # An isothermal atmosphere at 250 K: N^2 = g^2 / (c_p T) exactly (Holton and Hakim 2013,
+    # ch. 2: dtheta/dz = theta g / (c_p T) when dT/dz = 0). A uniform westerly of 20 m/s in
+    # geostrophic balance on an f-plane at 45N. With H the depth of the troposphere
+    # (10 km, Holton and Hakim 2013) and the eddy viscosity 10 m2 s-1:
+    # Fr = U / (N H), Bu = (N H / (f0 L))^2, L_R = N H / f0, Ek = nu / (f0 H^2).
+    import math
+
+    from balance_core import Fields, Grid
+    from balance_core import constants as C
+    from balance_core.report import box_report, level_diagnostics
+
+    g = Grid.latlon(np.linspace(40, 50, 41), np.linspace(-10, 10, 81)).f_plane(45.0)
+    f0 = float(g.f[0, 0])
+    T, U = 250.0, 20.0
+    p = np.array([60000.0, 50000.0, 40000.0])
+    y = np.deg2rad(g.lat - 45.0) * g.radius
+    z = np.stack([C.R_DRY * T / C.G0 * np.log(1e5 / pk) - f0 * U / C.G0 * y for pk in p])
+    u = np.full(z.shape, U)
+    fields = Fields(u[None], 0 * u[None], z[None], p, None, None, np.full(z[None].shape, T))
+    d = level_diagnostics(g, fields, 0, 1)
+    inside = (np.abs(g.lat - 45) < 4) & (np.abs(g.lon) < 8)
+    rep = box_report(d, inside)
+    n = math.sqrt(C.G0 ** 2 / (C.CP_DRY * T))  # by hand
+    H, nu = 1.0e4, 10.0
+    L = rep["scales"]["L"]
+    assert rep["scales"]["H"] == H and rep["scales"]["U"] == pytest.approx(U)
+    num = rep["numbers"]
+    assert num["froude"] == pytest.approx(U / (n * H), rel=1e-3)
+    assert num["deformation_radius_km"] == pytest.approx(n * H / abs(f0) / 1e3, rel=1e-3)
+    assert num["burger"] == pytest.approx((n * H / (abs(f0) * L)) ** 2, rel=1e-3)
+    assert num["ekman"] == pytest.approx(nu / (abs(f0) * H ** 2), rel=1e-9)
+    # the data's own beside them, under their own names: no shear, no shear depth
+    assert num["shear_depth_km"] is None
+    mags = {t["name"]: t["magnitude"] for t in rep["terms"]}
+    assert num["residual_to_coriolis"] == pytest.approx(mags["residual"] / mags["coriolis"])
+
+
+def test_the_isallobaric_wind_of_a_travelling_height_wave():
+    # Z = Z0 + A cos(k x - w t) on an f-plane: dZ/dt = A w sin(k x - w t), and the isallobaric
+    # wind -(g/f^2) grad(dZ/dt) = (-(g/f^2) A w k cos(k x - w t), 0) (Holton and Hakim 2013,
+    # ch. 6, the isallobaric wind), in closed form here
+    from balance_core import Fields, Grid
+    from balance_core import constants as C
+    from balance_core.budget import isallobaric_wind
+    from balance_core.report import level_diagnostics
+
+    g = Grid.latlon(np.linspace(40, 50, 101), np.linspace(-30, 30, 601)).f_plane(45.0)
+    f0 = float(g.f[0, 0])
+    x = np.deg2rad(g.lon) * g.radius * np.cos(np.deg2rad(45.0))
+    k, w, A = 2 * np.pi / 3.0e6, 2 * np.pi / (5 * 86400.0), 100.0
+    # x is measured along 45N; on a row at latitude phi an east step is cos(phi)/cos(45) as long
+    stretch = np.cos(np.deg2rad(45.0)) / np.cos(np.deg2rad(g.lat))
+    truth_u = -(C.G0 / f0 ** 2) * A * w * k * stretch * np.cos(k * x)
+    ix, iy = isallobaric_wind(g, A * w * np.sin(k * x))
+    inner = slice(None), slice(5, -5)
+    scale = np.abs(truth_u).max()
+    assert np.nanmax(np.abs(ix - truth_u)[inner]) < 0.01 * scale
+    assert np.nanmax(np.abs(iy)[inner]) < 1e-6 * scale
+    # through a level's diagnostics: the height tendency from three times an hour apart
+    t = np.array([-3600.0, 0.0, 3600.0])
+    z = np.stack([5500 + A * np.cos(k * x - w * tt) for tt in t])[:, None]
+    u = np.full(z.shape, 10.0)
+    d = level_diagnostics(g, Fields(u, 0 * u, z, [50000.0], t), 1, 0)
+    assert np.nanmax(np.abs(d.height_tendency - A * w * np.sin(k * x))) < 1e-3 * A * w

@@ -240,3 +240,122 @@ def test_one_curvature_for_the_gradient_candidate_and_the_gradient_wind():
     gw = gradient_wind(case.grid, z)
     rel = np.abs(gw.speed - case.u)[inside] / case.u[inside]
     assert np.nanmax(rel) < 2e-3
+
+
+# -- each rule of the verdict saying yes and no (the project's own rules) -----------------------
+
+def _ratios(**kw):
+    """Ratios of a region as imbalance_ratios returns them, the PGF 1e-3 m s-2."""
+    rms = {"pressure_gradient": 1e-3, "coriolis": 1e-3, "centripetal_used": 2e-4,
+           "centripetal": 2e-4, "acceleration": 2e-4, "residual": 5e-5,
+           "vertical_advection": 1e-5, "metric_uv": 1e-5, "metric_uw": 1e-8,
+           "coriolis_w": 1e-7, "tendency": 1e-4, "horizontal_advection": 2e-4}
+    rms.update(kw.pop("rms", {}))
+    r = {"points": 400, "region_points": 400, "geostrophic": 0.2, "gradient": 0.1,
+         "cyclostrophic": 0.9, "frictional": 0.25, "acceleration_share": 0.2,
+         "residual_share": 0.05, "friction_alignment": 0.0, "curvature": "trajectory",
+         "has_tendency": True, "tropics_share": 0.0, "rossby_local_share": 0.1,
+         "speed_rms": 20.0, "rms": rms}
+    r.update(kw)
+    return r
+
+
+ALOFT = (False, "500 hPa lies about 5500 m above the ground")
+
+
+def test_gradient_replaces_geostrophic_where_curvature_matters_and_it_fits_clearly_better():
+    v = classify_budget(_ratios(), ground=ALOFT)  # 10 % against 20 %, centripetal 20 % of Cor
+    assert v.balance == "gradient" and "replaces geostrophic" in v.why
+    # no: the centripetal term only 5 % of Coriolis
+    v = classify_budget(_ratios(rms={"centripetal_used": 5e-5}), ground=ALOFT)
+    assert v.balance == "geostrophic" and "too small to matter" in v.why
+    # no: it fits only a little better (17 % against 20 %)
+    v = classify_budget(_ratios(gradient=0.17), ground=ALOFT)
+    assert v.balance == "geostrophic" and "not clearly" in v.why
+    # no, and the sentence compares what it says: gradient worse than geostrophic
+    v = classify_budget(_ratios(gradient=0.25), ground=ALOFT)
+    assert v.balance == "geostrophic" and "fits no better than geostrophic" in v.why
+
+
+def test_with_one_valid_time_unsteady_is_never_given():
+    # the acceleration share is 0.8, but without the local tendency it is not DV/Dt
+    r = _ratios(geostrophic=0.6, gradient=0.6, frictional=0.6, acceleration_share=0.8)
+    assert classify_budget(r, ground=ALOFT).balance == "unsteady"  # yes, with the tendency
+    v = classify_budget({**r, "has_tendency": False, "curvature": "streamline"}, ground=ALOFT)
+    assert v.balance == "unbalanced"
+    assert "one valid time" in v.tested["unsteady"] and "unsteady" in v.as_dict()["not_tested"]
+
+
+def test_within_the_tropics_the_balances_that_need_f_are_not_claimed():
+    r = _ratios(tropics_share=0.8, geostrophic=0.1, gradient=0.05)
+    v = classify_budget(r, ground=ALOFT)
+    assert v.balance == "none" and "tropical mask" in v.tested["geostrophic"]
+    assert "tropical mask" in v.tested["gradient"]
+    # cyclostrophic where the curvature supports it
+    v = classify_budget({**r, "cyclostrophic": 0.2}, ground=ALOFT)
+    assert v.balance == "cyclostrophic"
+    # no: outside the tropics the same ratios give gradient
+    assert classify_budget({**r, "tropics_share": 0.3}, ground=ALOFT).balance == "gradient"
+
+
+def test_geostrophy_is_not_claimed_where_the_local_rossby_number_exceeds_one():
+    r = _ratios(rossby_local_share=0.7, gradient=0.5)
+    v = classify_budget(r, ground=ALOFT)
+    assert v.balance != "geostrophic" and "exceeds 1" in v.tested["geostrophic"]
+    assert classify_budget({**r, "rossby_local_share": 0.3}, ground=ALOFT).balance == \
+        "geostrophic"
+
+
+def test_a_weak_pressure_gradient_gives_no_verdict():
+    v = classify_budget(_ratios(rms={"pressure_gradient": 2e-4}), ground=ALOFT)
+    assert v.balance == "none" and "too weak" in v.text and v.cautions
+    assert all(v.tested[c] for c in v.tested)  # every candidate says why it was not tested
+    assert classify_budget(_ratios(rms={"pressure_gradient": 3e-4}), ground=ALOFT).balance \
+        == "gradient"
+
+
+def test_a_weak_wind_tests_no_curved_or_frictional_balance():
+    r = _ratios(speed_rms=0.5, geostrophic=0.6, gradient=0.1, cyclostrophic=0.2,
+                acceleration_share=0.9)
+    v = classify_budget(r, ground=ALOFT)
+    assert v.balance == "unsteady"
+    assert "too weak for its direction" in v.tested["gradient"]
+    assert "too weak for its direction" in v.tested["cyclostrophic"]
+    assert classify_budget({**r, "speed_rms": 5.0}, ground=ALOFT).balance == "gradient"
+
+
+def test_a_term_no_balance_holds_that_rivals_the_pressure_gradient_gets_a_caution():
+    r = _ratios(geostrophic=0.6, gradient=0.6, has_tendency=False,
+                rms={"vertical_advection": 8e-4})
+    v = classify_budget(r, ground=ALOFT)
+    assert v.balance == "unbalanced" and v.cautions
+    assert "Vertical advection is 80 %" in v.cautions[0] and "Caution" in v.text
+    v = classify_budget(_ratios(geostrophic=0.6, gradient=0.6, has_tendency=False,
+                                rms={"vertical_advection": 4e-4}), ground=ALOFT)
+    assert v.cautions == ()
+
+
+def test_frictional_balance_is_tested_only_where_the_residual_acts_as_friction():
+    near = (True, "1000 hPa lies about 100 m above the ground")
+    r = _ratios(geostrophic=0.5, gradient=0.5, frictional=0.1, residual_share=0.4,
+                friction_alignment=0.7)
+    assert classify_budget(r, ground=near).balance == "frictional"
+    v = classify_budget({**r, "friction_alignment": 0.1}, ground=near)
+    assert v.balance != "frictional" and "does not oppose the wind" in v.tested["frictional"]
+    v = classify_budget(r, ground=ALOFT)
+    assert v.balance != "frictional" and "not tested" in v.tested["frictional"]
+
+
+def test_a_region_of_one_point_quotes_no_number():
+    # the report's numbers need the verdict's least number of points: no Rossby number of
+    # 2e14 from one point
+    from balance_core.report import box_report, level_diagnostics
+
+    case = analytic.williamson_case2(90)
+    f = _steady(case.u, case.v, case.geopotential / C.G0)
+    d = level_diagnostics(case.grid, f, 1, 0)
+    one = np.zeros(case.grid.shape, bool)
+    one[20, 40] = True
+    rep = box_report(d, one)
+    assert rep["points"] == 1 and rep["verdict"]["balance"] == "none"
+    assert all(v is None for v in rep["numbers"].values())
