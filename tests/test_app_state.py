@@ -416,3 +416,24 @@ def test_a_jet_streak_chosen_on_real_output_gives_its_flow_aligned_region():
     assert "kt" not in page.systems.detail.object
     page.state.wind_units = "kt"
     assert "kt" in page.systems.detail.object
+
+
+def test_the_evidence_tells_the_same_story_as_the_verdict(library):
+    # 500 hPa, one region: frictional is not tested (far from the ground), so it gets no
+    # bar under the line but a "not tested" line with the reason; the estimates made of the
+    # same fields (Coriolis) get no diamond; the numbers carry the textbook names
+    from app.desk.page import build_page
+
+    page = build_page(library, {"case": ["ocean_cyclone"], "level": ["500"],
+                                "time": ["2041-01-19T12:00:00Z"],
+                                "region": ["box:-52,-28,38,56"]})
+    page.start()
+    html = page.evidence.body.object
+    assert "frictional" in page.report["verdict"]["not_tested"]
+    assert "Not tested:</b> Frictional (500 hPa" in html
+    assert "Frictional" not in html.split("Candidate balances")[1].split("Not tested")[0]
+    assert "Geostrophic" in html.split("Candidate balances")[1].split("Not tested")[0]
+    bars = {b.name: b for b in page.evidence.ranking}
+    assert bars["Coriolis"].estimate is None and bars["pressure gradient"].estimate
+    assert "Ekman number" in html and "(effective)" not in html
+    assert "residual over Coriolis" in html and "shear depth" in html
