@@ -142,6 +142,8 @@ class ChartData:
 
 def _field_values(key, diag, state):
     """(values on the case grid, units, kind of colour scale)."""
+    if diag.no_wind and key not in ("height", "geostrophic_speed", "temperature"):
+        raise CaseError(f"{diag.no_wind}, so the chart has no {field_label(key)}")
     if key == "height" and diag.surface:
         return diag.sea_level_pressure / 100.0, "hPa", "sequential"
     if key == "height":
@@ -225,21 +227,25 @@ def chart_data(library, state: ViewState) -> ChartData:
     contours = render.contour_lines(geom.xs, geom.ys, zr, levels)
     # vectors, and a reference arrow of one lattice cell
     vectors, vlabel, arrow = None, "", None
-    if state.vectors != "none":
+    kind_of_vectors = state.vectors
+    if diag.no_wind and kind_of_vectors in ("wind", "ageostrophic"):
+        notes.append(f"{diag.no_wind}: the vectors are the geostrophic wind of the heights")
+        kind_of_vectors = "geostrophic"
+    if kind_of_vectors != "none":
         uu, vv = {"wind": (diag.u, diag.v), "geostrophic": (diag.ug, diag.vg),
-                  "ageostrophic": (diag.u - diag.ug, diag.v - diag.vg)}[state.vectors]
+                  "ageostrophic": (diag.u - diag.ug, diag.v - diag.vg)}[kind_of_vectors]
         ur = render.sample(geom, uu)
         vr = render.sample(geom, vv)
         vectors = render.vector_lattice(geom, ur, vr, n_across=18)
         ref, wunit = vocab.wind(vectors["ref_speed"], state.wind_units)
         speed = _round_speed(float(ref))
-        vlabel = f"Vectors: {VECTORS[state.vectors]}" + (" at 10 m" if diag.surface else "")
+        vlabel = f"Vectors: {VECTORS[kind_of_vectors]}" + (" at 10 m" if diag.surface else "")
         x0, x1, y0, y1 = geom.extent
         cell = vectors["cell"] * speed / float(ref) if float(ref) > 0 else vectors["cell"]
         arrow = {"x0": x0 + 0.04 * (x1 - x0), "y0": y0 + 0.05 * (y1 - y0),
                  "x1": x0 + 0.04 * (x1 - x0) + 0.95 * cell, "y1": y0 + 0.05 * (y1 - y0),
                  "text": f"{speed:g} {wunit}"}
-        if state.vectors != "wind" and np.isnan(ur).mean() > 0.05:
+        if kind_of_vectors != "wind" and np.isnan(ur).mean() > 0.05:
             notes.append("geostrophic wind masked within "
                          f"{state.min_lat:g} degrees of the equator")
     hover = _hover(geom, diag, vals, state, units)
@@ -259,7 +265,9 @@ def chart_data(library, state: ViewState) -> ChartData:
         land = (lx, ly)
     region_xy = None if spec is None else region_outline(geom, spec)
     # points without data at this level: below the ground or missing, shown, never hidden
-    valid = np.isfinite(diag.height) & np.isfinite(diag.u) & np.isfinite(diag.v)
+    valid = np.isfinite(diag.height)
+    if not diag.no_wind:
+        valid &= np.isfinite(diag.u) & np.isfinite(diag.v)
     masked = None
     share = float(1.0 - valid.mean())
     if share > 0:

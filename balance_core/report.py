@@ -31,7 +31,7 @@ from .verdict import (CANDIDATES, Thresholds, Verdict, classify_budget, imbalanc
 from .winds import Flow, GradientWind, geostrophic_wind, gradient_wind
 
 __all__ = ["LevelDiagnostics", "level_diagnostics", "surface_diagnostics", "box_report",
-           "geostrophic_only_report", "window"]
+           "geostrophic_only_report", "heights_only_diagnostics", "window"]
 
 
 @dataclasses.dataclass
@@ -69,6 +69,10 @@ class LevelDiagnostics:
     sea_level_pressure: np.ndarray | None = None
     high_ground: np.ndarray | None = None
     density_source: str = ""
+    #: why there is no budget (the data have no wind): the wind is then NaN, the budget's
+    #: terms unavailable but the pressure gradient, and a region's report the geostrophic
+    #: wind only (:func:`geostrophic_only_report`); empty with a wind
+    no_wind: str = ""
 
     @property
     def speed(self):
@@ -178,6 +182,30 @@ def surface_diagnostics(grid: Grid, pressure, u, v, *, t2m=None, time=None, it: 
         high_ground=high, density_source=how)
 
 
+def heights_only_diagnostics(grid: Grid, height, pressure: float, why: str, *,
+                             temperature=None, below_ground=None) -> LevelDiagnostics:
+    """The diagnostics of a level whose file gives the height and no wind: the geostrophic
+    and gradient winds of the height, the pressure-gradient force, and nothing that needs
+    the wind (NaN, or unavailable with ``why``)."""
+    from .budget import Term
+
+    z = np.asarray(height, dtype=np.float64)
+    nan = np.full(z.shape, np.nan)
+    px, py = grid.grad(z)
+    terms = {n: Term(n, None, None, why) for n in TERMS}
+    terms["pressure_gradient"] = Term("pressure_gradient", -C.G0 * px, -C.G0 * py)
+    budget = Budget(terms=terms, derived={n: Term(n, None, None, why) for n in DERIVED},
+                    residual_includes=list(TERMS[:-1]), notes=[why], level_pa=float(pressure),
+                    time_index=0, level_index=0)
+    ug, vg = geostrophic_wind(grid, z)
+    return LevelDiagnostics(
+        grid=grid, budget=budget, pressure=float(pressure), u=nan, v=nan, height=z,
+        omega=None, temperature=None if temperature is None else np.asarray(temperature,
+                                                                            np.float64),
+        ug=ug, vg=vg, gradient=gradient_wind(grid, z), vorticity=nan, n2=None, shear2=None,
+        time_step_s=None, below_ground=below_ground, no_wind=why)
+
+
 def window(inside: np.ndarray):
     """Row and column slices bounding the True points of ``inside`` (None if none)."""
     rows = np.nonzero(inside.any(axis=1))[0]
@@ -249,6 +277,8 @@ def box_report(diag: LevelDiagnostics, inside, *, thresholds: Thresholds = Thres
     th = thresholds
     if isinstance(inside, Region):
         inside = inside.mask(g)
+    if diag.no_wind:
+        return geostrophic_only_report(g, diag.ug, diag.vg, inside, diag.no_wind)
     win = window(inside)
     if win is None:
         return _empty_report(inside, th)

@@ -188,7 +188,7 @@ def browser_figures(repeat):
             page.goto(url + bb.LINK)
             bb.seen(page, "verdict")
             page.wait_for_timeout(3000)
-            select = page.get_by_label("Level")
+            select = page.get_by_label("Level", exact=True)
             cycle = ["850 hPa", "250 hPa", "700 hPa", "300 hPa", "925 hPa", "500 hPa"]
             level_ms = []
             for i in range(repeat):

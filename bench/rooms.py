@@ -131,7 +131,7 @@ async def follow(url, store_path, seconds, people, browsers, pid):
             before = await leader.locator(".bd-verdict-where").first.inner_text()
             t0 = await leader.evaluate("Date.now()")
             if i % 2 == 0:
-                await leader.get_by_label("Level").select_option(
+                await leader.get_by_label("Level", exact=True).select_option(
                     label=LEVELS[(i // 2) % len(LEVELS)])
             else:
                 box = BOXES[(i // 2 + 1) % len(BOXES)]  # not the room's first box

@@ -437,3 +437,28 @@ def test_the_evidence_tells_the_same_story_as_the_verdict(library):
     assert bars["Coriolis"].estimate is None and bars["pressure gradient"].estimate
     assert "Ekman number" in html and "(effective)" not in html
     assert "residual over Coriolis" in html and "shear depth" in html
+
+
+def test_a_file_with_heights_and_no_wind_is_shown_with_its_geostrophic_wind_and_systems():
+    # the ERA5 sample carries geopotential and temperature only: the page draws the
+    # heights with the geostrophic wind, lists the lows and highs, and says that no budget
+    # can be made -- nothing is refused that can be answered
+    path = os.path.join(HERE, "..", ".cache", "cfgrib-samples", "era5-levels-members.grib")
+    if not os.path.exists(path):
+        if os.environ.get("CI"):
+            pytest.fail(f"{path} is missing: make test fetches it", pytrace=False)
+        pytest.skip("the ERA5 sample is missing")
+    from app.desk.page import build_page
+
+    lib = CaseLibrary([path])
+    page = build_page(lib, {"level": ["500"]})
+    page.start()
+    assert page.chart.alert.object == "" and page.evidence.alert.object == ""
+    assert page.report["verdict"]["balance"] == "none"
+    assert "no momentum budget" in page.report["verdict"]["text"]
+    assert page.report["winds"]["geostrophic_speed_rms"] > 5.0
+    kinds = {s["kind"] for s in page.systems.data["systems"]}
+    assert kinds == {"low", "high"}
+    cd = compute.chart_data(lib, page.state)
+    assert cd.vector_label == "Vectors: geostrophic wind" and cd.masked_share == 0.0
+    assert any("no wind" in n for n in cd.notes)

@@ -209,8 +209,6 @@ CORPUS = {
                             ["--member", "5"], "has 3 ensemble members; member 5"),
     "member_not_an_index": (lambda t: nc(t, "ens2.nc", good()), ["--member", "first"],
                             "--member must be an index or 'mean'"),
-    "no_wind": (lambda t: nc(t, "nowind.nc", good().drop_vars(["ua", "va"])), [],
-                "has no eastward and northward wind"),
     "not_on_pressure_levels": (lambda t: nc(t, "hl.nc", height_levels(good())), [],
                                "no geopotential or geopotential height on pressure levels"),
     "curvilinear_without_projection": (lambda t: nc(t, "curv.nc", curvilinear(good())), [],
@@ -271,3 +269,19 @@ def test_unexpected_errors_exit_1_and_debug_shows_traceback(tmp_path, capsys, mo
     assert "unexpected error" in err and "--debug" in err and "Traceback" not in err
     with pytest.raises(RuntimeError):
         main(["--debug", "analyze", path, "--level", "500"])
+
+
+def test_a_file_without_wind_is_answered_with_its_geostrophic_wind(tmp_path, capsys):
+    # no longer bad input: heights alone give the geostrophic wind and the closed systems;
+    # the verdict says that no budget can be made
+    import json
+
+    from app.cli import main
+
+    path = nc(str(tmp_path), "nowind.nc", good().drop_vars(["ua", "va"]))
+    code = main(["analyze", path, "--level", "500", "--format", "json"])
+    out = capsys.readouterr()
+    assert code == 0, out.err
+    rep = json.loads(out.out)
+    assert rep["verdict"]["balance"] == "none" and "no momentum budget" in rep["verdict"]["text"]
+    assert rep["winds"]["geostrophic_speed_rms"] > 0

@@ -149,14 +149,14 @@ def test_taking_over_stepping_out_and_back_in(server, store_path, browser):
     b.get_by_role("button", name="Steer the room").click()
     _wait_status(b, "You steer")
     _wait_status(a, "You follow Ben")
-    b.get_by_label("Level").select_option(label="850 hPa")
+    b.get_by_label("Level", exact=True).select_option(label="850 hPa")
     a.locator(".bd-verdict-where", has_text="850 hPa").first.wait_for(timeout=WAIT)
     # Ana looks on her own: Ben's changes no longer reach her, and hers stay hers
     a.get_by_role("button", name="Look on my own").click()
     _wait_status(a, "on your own")
-    a.get_by_label("Level").select_option(label="250 hPa")
+    a.get_by_label("Level", exact=True).select_option(label="250 hPa")
     a.locator(".bd-verdict-where", has_text="250 hPa").first.wait_for(timeout=WAIT)
-    b.get_by_label("Level").select_option(label="700 hPa")
+    b.get_by_label("Level", exact=True).select_option(label="700 hPa")
     b.locator(".bd-verdict-where", has_text="700 hPa").first.wait_for(timeout=WAIT)
     a.wait_for_timeout(1000)
     assert "250 hPa" in a.locator(".bd-verdict-where").first.inner_text()
@@ -167,7 +167,7 @@ def test_taking_over_stepping_out_and_back_in(server, store_path, browser):
     a.locator(".bd-verdict-where", has_text="700 hPa").first.wait_for(timeout=WAIT)
     _wait_status(a, "You follow Ben")
     # a follower who changes something looks on their own from then on
-    a.get_by_label("Level").select_option(label="925 hPa")
+    a.get_by_label("Level", exact=True).select_option(label="925 hPa")
     _wait_status(a, "on your own")
     b.wait_for_timeout(800)
     assert "700 hPa" in b.locator(".bd-verdict-where").first.inner_text()
@@ -183,7 +183,7 @@ def test_a_note_reaches_the_other_and_survives_a_restart(store_path, browser, tm
     try:
         a = _person(browser, link, "Ana")
         b = _person(browser, link, "Ben")
-        a.get_by_label("Level").select_option(label="850 hPa")
+        a.get_by_label("Level", exact=True).select_option(label="850 hPa")
         b.locator(".bd-verdict-where", has_text="850 hPa").first.wait_for(timeout=WAIT)
         a.get_by_text("Pin it to a point: click the chart").click()
         canv = _canvas(a)
@@ -215,7 +215,7 @@ def test_a_note_reaches_the_other_and_survives_a_restart(store_path, browser, tm
             b.get_by_role("button", name="Briefing image (PNG)").click()
         assert open(dl.value.path(), "rb").read() != with_notes
         # the view moves on; the note brings its view back for the whole room
-        a.get_by_label("Level").select_option(label="300 hPa")
+        a.get_by_label("Level", exact=True).select_option(label="300 hPa")
         b.locator(".bd-verdict-where", has_text="300 hPa").first.wait_for(timeout=WAIT)
         b.get_by_role("button", name="Show it to the room").click()
         a.locator(".bd-verdict-where", has_text="850 hPa").first.wait_for(timeout=WAIT)
@@ -336,7 +336,7 @@ def test_a_change_reaches_a_follower_in_a_few_messages(server, store_path, brows
         a.get_by_role("button", name="Add the note").click()
         a.get_by_role("option", name="#1 Ana").first.wait_for(state="attached", timeout=WAIT)
         t1 = time.time()
-        a.get_by_label("Level").select_option(label="850 hPa")
+        a.get_by_label("Level", exact=True).select_option(label="850 hPa")
         follower_shows("850 hPa", t1)
         time.sleep(2.0)  # what comes after the verdict (systems, the levels' table)
         t0 = time.time()

@@ -112,14 +112,27 @@ class WirePage:
         await self._send("PATCH-DOC", READY)
         return self
 
+    async def _widget(self, name: str, timeout: float = 180.0) -> str:
+        """The id of the widget titled or labelled ``name``: at once if the pulled document
+        held it, else as soon as a message from the server brings it (a page built when its
+        session connects sends its parts after the document; :meth:`run` reads them)."""
+        import asyncio
+
+        t0 = time.time()
+        while name not in self.widgets:
+            if time.time() - t0 > timeout:
+                raise TimeoutError(f"the page never sent a widget called {name!r}")
+            await asyncio.sleep(0.05)  # the reading task adds widgets as messages come
+        return self.widgets[name]
+
     async def change(self, widget: str, attr: str, new):
         """Set ``attr`` of the widget titled or labelled ``widget``, as its input would."""
+        wid = await self._widget(widget)
         await self._send("PATCH-DOC", {"events": [
-            {"kind": "ModelChanged", "model": {"id": self.widgets[widget]}, "attr": attr,
-             "new": new}]})
+            {"kind": "ModelChanged", "model": {"id": wid}, "attr": attr, "new": new}]})
 
     async def click(self, widget: str):
-        await self._send("PATCH-DOC", _click(self.widgets[widget]))
+        await self._send("PATCH-DOC", _click(await self._widget(widget)))
 
     async def set_box(self, box):
         """Type a box (west, east, south, north) and press "Use this box"."""
@@ -153,7 +166,10 @@ class WirePage:
         return content
 
     def _look(self, content):
-        """Note the verdict's line wherever a text in the message carries it."""
+        """Note the verdict's line wherever a text in the message carries it, and every
+        widget the message brings."""
+        for name, wid in _widgets(content):
+            self.widgets.setdefault(name, wid)
         for text in _texts(content):
             where = verdict_where(text)
             if where is not None:

@@ -38,8 +38,23 @@ def level_words(level) -> str:
     return "sea level" if is_sea_level(level) else f"{float(level):g} hPa"
 
 
+#: Why a file without wind gives no budget.
+NO_WIND = "the file has no wind on this level"
+
+
 def diagnostics_for(case: Case, level_index: int, time_index: int, smooth_km=None):
-    """:func:`balance_core.report.level_diagnostics` for one level and time of a case."""
+    """:func:`balance_core.report.level_diagnostics` for one level and time of a case (a file
+    with heights and no wind: :func:`balance_core.report.heights_only_diagnostics`)."""
+    if "u" not in case.data or "v" not in case.data:
+        from ..report import heights_only_diagnostics
+
+        t = None
+        if "temperature" in case.data:
+            t = _slab(case, "temperature", time_index, level_index, smooth_km)
+        return heights_only_diagnostics(
+            case.grid, _slab(case, "height", time_index, level_index, smooth_km),
+            float(case.levels_pa[level_index]), NO_WIND, temperature=t,
+            below_ground=case.below_ground_mask(time_index, level_index))
     fields, it, ik = case.fields(time_index, level_index, smooth_km=smooth_km)
     hag, how = case.height_above_ground(time_index, level_index)
     return level_diagnostics(case.grid, fields, it, ik, height_above_ground=hag,
@@ -224,7 +239,7 @@ def analyse_systems(case: Case, level_hpa, time=None, *, smooth_km=None,
             diag = diagnostics or diagnostics_for(case, k, t, smooth_km)
             field, u, v = diag.height, diag.u, diag.v
         else:
-            why_not = "the file has no wind on this level"
+            why_not = NO_WIND
             field, u, v = _slab(case, "height", t, k, smooth_km), None, None
             ug, vg = geostrophic_wind(case.grid, field)
             notes.append("the file has no wind: closed lows and highs only (no jet streaks), "
