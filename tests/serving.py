@@ -30,6 +30,10 @@ def start_server(args=(), *, env=None, cwd=ROOT, port=None, ready_path="/"):
     port = port or free_port()
     log = tempfile.NamedTemporaryFile("w+", suffix=".log", delete=False)
     full_env = dict(os.environ if env is None else env, PYTHONUNBUFFERED="1")
+    if "--store" not in args:
+        # a store of its own: servers of tests running side by side never share one file
+        full_env["BALANCE_DESK_STORE"] = os.path.join(tempfile.mkdtemp(prefix="bd-store-"),
+                                                      "rooms.sqlite")
     proc = subprocess.Popen([sys.executable, "-m", "app.cli", "serve", *args, "--port",
                              str(port)], stdout=log, stderr=subprocess.STDOUT, text=True,
                             cwd=cwd, env=full_env)
