@@ -110,8 +110,18 @@ class Region:
         return cls("whole")
 
     def mask(self, grid: Grid) -> np.ndarray:
-        """Boolean (ny, nx): True for the grid points inside the region."""
-        return self.contains(grid.lon, grid.lat)
+        """Boolean (ny, nx): True for the grid points inside the region.
+
+        On a lat-lon grid only the rows within the region's latitudes are looked at."""
+        lat1 = getattr(grid, "lat1d", None)
+        if self.kind == "whole" or lat1 is None or getattr(grid, "kind", "") != "latlon":
+            return self.contains(grid.lon, grid.lat)
+        rows = np.nonzero((lat1 >= self.south) & (lat1 <= self.north))[0]
+        out = np.zeros(grid.shape, dtype=bool)
+        if rows.size:
+            j0, j1 = int(rows[0]), int(rows[-1]) + 1
+            out[j0:j1] = self.contains(grid.lon[j0:j1], grid.lat[j0:j1])
+        return out
 
     def contains(self, lon, lat) -> np.ndarray:
         """Boolean, the shape of ``lon`` and ``lat`` (degrees): True for points inside."""
