@@ -13,13 +13,19 @@ PORT   ?= 5006
 # nothing may reach for the network at run time
 export PROJ_NETWORK := OFF
 
-.PHONY: run test install system samples bench verify clean
+.PHONY: run test check install system samples bench verify clean
 
 run: system install
 	$(BIN)/balance-desk serve --port $(PORT)
 
-test: system install samples
-	$(BIN)/python -m pytest $(PYTEST_ARGS)
+# the checks first (lint, format, the core's types), then the suite on every core
+test: system install samples check
+	$(BIN)/python -m pytest -n auto $(PYTEST_ARGS)
+
+check: install
+	$(BIN)/ruff check .
+	$(BIN)/ruff format --check .
+	$(BIN)/mypy
 
 bench: install samples
 	$(BIN)/python bench/core.py

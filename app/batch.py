@@ -28,8 +28,19 @@ import os
 import sys
 import time
 
-__all__ = ["Task", "plan_file", "plan_tasks", "run_task", "flatten", "run_batch",
-           "read_boxes", "BatchError", "file_checksum", "combine", "local_cluster"]
+__all__ = [
+    "Task",
+    "plan_file",
+    "plan_tasks",
+    "run_task",
+    "flatten",
+    "run_batch",
+    "read_boxes",
+    "BatchError",
+    "file_checksum",
+    "combine",
+    "local_cluster",
+]
 
 #: seconds a run waits with no worker left before it stops (the pieces done are kept)
 NO_WORKER_S = float(os.environ.get("BALANCE_DESK_BATCH_NO_WORKER_S", "120"))
@@ -45,18 +56,27 @@ class BatchError(Exception):
 @dataclasses.dataclass(frozen=True)
 class Task:
     path: str
-    member: object        # an index, "mean", or None for a file without members
+    member: object  # an index, "mean", or None for a file without members
     time_index: int
     level_hpa: float
-    regions: tuple        # ((name, (W, E, S, N)), ...) or () for the systems found
+    regions: tuple  # ((name, (W, E, S, N)), ...) or () for the systems found
     systems: bool = False
     min_lat: float = 10.0
 
     @property
     def key(self) -> str:
         """A name for the task's part file: the same for the same piece of work."""
-        text = json.dumps([os.path.abspath(self.path), str(self.member), self.time_index,
-                           self.level_hpa, self.regions, self.systems, self.min_lat])
+        text = json.dumps(
+            [
+                os.path.abspath(self.path),
+                str(self.member),
+                self.time_index,
+                self.level_hpa,
+                self.regions,
+                self.systems,
+                self.min_lat,
+            ]
+        )
         return hashlib.sha1(text.encode()).hexdigest()[:20]
 
 
@@ -88,17 +108,24 @@ def read_boxes(path) -> list:
         with open(path, encoding="utf-8") as fh:
             data = yaml.safe_load(fh)
     except (OSError, yaml.YAMLError) as exc:
-        raise BatchError(f"balance-desk batch: the boxes file {path} cannot be read "
-                         f"({getattr(exc, 'strerror', None) or exc})") from None
-    items = data.items() if isinstance(data, dict) else [
-        (d.get("name"), d.get("box")) for d in (data or []) if isinstance(d, dict)]
+        raise BatchError(
+            f"balance-desk batch: the boxes file {path} cannot be read "
+            f"({getattr(exc, 'strerror', None) or exc})"
+        ) from None
+    items = (
+        data.items()
+        if isinstance(data, dict)
+        else [(d.get("name"), d.get("box")) for d in (data or []) if isinstance(d, dict)]
+    )
     boxes = []
     for name, box in items:
         try:
             b = _box(",".join(str(v) for v in box))
         except Exception:  # noqa: BLE001 - one sentence for any malformed entry
-            raise BatchError(f"balance-desk batch: the box {name!r} in {path} is not four "
-                             "numbers west, east, south, north") from None
+            raise BatchError(
+                f"balance-desk batch: the box {name!r} in {path} is not four "
+                "numbers west, east, south, north"
+            ) from None
         boxes.append((str(name), tuple(b)))
     if not boxes:
         raise BatchError(f"balance-desk batch: {path} holds no boxes")
@@ -136,9 +163,19 @@ def plan_file(path, levels, *, boxes=(), systems=False, member="0", min_lat=10.0
     from balance_core.io import CaseError, open_case
 
     def failed(sentence):
-        return {"tasks": [], "checksum": None,
-                "errors": [{"file": path, "member": None, "valid_time": None,
-                            "level_hpa": None, "error": sentence}]}
+        return {
+            "tasks": [],
+            "checksum": None,
+            "errors": [
+                {
+                    "file": path,
+                    "member": None,
+                    "valid_time": None,
+                    "level_hpa": None,
+                    "error": sentence,
+                }
+            ],
+        }
 
     try:
         if member in ("all", "mean"):
@@ -157,10 +194,15 @@ def plan_file(path, levels, *, boxes=(), systems=False, member="0", min_lat=10.0
         have = [float(p) / 100 for p in case.levels_pa]
         for lev in levels:
             if not any(abs(h - lev) < 1e-6 for h in have):
-                raise CaseError(f"has no {lev:g} hPa level (it has "
-                                f"{', '.join(f'{h:g}' for h in have)})", path)
-        tasks = [Task(path, m, t, float(lev), tuple(boxes), systems, min_lat)
-                 for m in members for t in range(case.times.size) for lev in levels]
+                raise CaseError(
+                    f"has no {lev:g} hPa level (it has {', '.join(f'{h:g}' for h in have)})", path
+                )
+        tasks = [
+            Task(path, m, t, float(lev), tuple(boxes), systems, min_lat)
+            for m in members
+            for t in range(case.times.size)
+            for lev in levels
+        ]
     except CaseError as exc:
         return failed(str(exc))
     except Exception as exc:  # noqa: BLE001 - a file that breaks the reader
@@ -168,15 +210,15 @@ def plan_file(path, levels, *, boxes=(), systems=False, member="0", min_lat=10.0
     return {"tasks": tasks, "errors": [], "checksum": file_checksum(path)}
 
 
-def plan_tasks(files, levels, *, boxes=(), systems=False, member="0", min_lat=10.0,
-               errors=None) -> list:
+def plan_tasks(
+    files, levels, *, boxes=(), systems=False, member="0", min_lat=10.0, errors=None
+) -> list:
     """The tasks of a run, in this process: every (file, member, valid time, level). A file
     that cannot be opened goes to ``errors`` (a list of dicts with its sentence) and the
     others are planned; without ``errors`` it raises BatchError."""
     tasks = []
     for path in files:
-        plan = plan_file(path, levels, boxes=boxes, systems=systems, member=member,
-                         min_lat=min_lat)
+        plan = plan_file(path, levels, boxes=boxes, systems=systems, member=member, min_lat=min_lat)
         if plan["errors"] and errors is None:
             raise BatchError(plan["errors"][0]["error"])
         tasks += plan["tasks"]
@@ -198,7 +240,6 @@ def _band(case, regions):
     import numpy as np
 
     from balance_core.region import Region
-
     from balance_core.scales import flow_rows
 
     ny = case.grid.shape[0]
@@ -209,7 +250,7 @@ def _band(case, regions):
             rows |= inside.any(axis=1)
             span = flow_rows(case.grid, inside)  # the rows the flow's length scale reads
             if span is not None:
-                rows[span[0]:span[1]] = True
+                rows[span[0] : span[1]] = True
     except ValueError:
         return None  # analyse_case says what is wrong with the box
     hit = np.nonzero(rows)[0]
@@ -240,15 +281,17 @@ def run_task(task: Task) -> dict:
                 rows.append(flatten(s["report"], task, f"{s['kind']} {i}", system=s))
         else:
             for name, box in task.regions:
-                rep = analyse_case(case, task.level_hpa, task.time_index, box,
-                                   diagnostics=diag)
+                rep = analyse_case(case, task.level_hpa, task.time_index, box, diagnostics=diag)
                 rows.append(flatten(rep, task, name))
         return {"rows": rows, "error": None}
     except CaseError as exc:
         return {"rows": [], "error": str(exc)}
     except Exception as exc:  # noqa: BLE001 - the run goes on; the sentence says what broke
-        return {"rows": [], "error": f"{os.path.basename(task.path)}: could not be analysed "
-                                     f"({type(exc).__name__}: {exc})"}
+        return {
+            "rows": [],
+            "error": f"{os.path.basename(task.path)}: could not be analysed "
+            f"({type(exc).__name__}: {exc})",
+        }
 
 
 def _f(x):
@@ -265,21 +308,38 @@ def flatten(rep: dict, task: Task, region: str, system=None) -> dict:
     """One row of a report, with stable column names (see the README's table)."""
     from balance_core import __version__ as core_version
 
-    row = {"file": os.path.basename(task.path), "path": os.path.abspath(task.path),
-           "member": "" if task.member is None else str(task.member),
-           "valid_time": rep.get("valid_time"), "reference_time": rep.get("reference_time"),
-           "lead_time_h": _f(rep.get("lead_time_h")), "level_hpa": _f(rep.get("level_hpa")),
-           "region": region}
+    row = {
+        "file": os.path.basename(task.path),
+        "path": os.path.abspath(task.path),
+        "member": "" if task.member is None else str(task.member),
+        "valid_time": rep.get("valid_time"),
+        "reference_time": rep.get("reference_time"),
+        "lead_time_h": _f(rep.get("lead_time_h")),
+        "level_hpa": _f(rep.get("level_hpa")),
+        "region": region,
+    }
     box = rep.get("box") or {}
     for k in ("west", "east", "south", "north"):
         row[f"region_{k}"] = _f(box.get(k))
     if system is not None:
-        row.update({"system_kind": system["kind"], "system_lon": _f(system["lon"]),
-                    "system_lat": _f(system["lat"]), "system_intensity": _f(system["intensity"])})
+        row.update(
+            {
+                "system_kind": system["kind"],
+                "system_lon": _f(system["lon"]),
+                "system_lat": _f(system["lat"]),
+                "system_intensity": _f(system["intensity"]),
+            }
+        )
     v = rep.get("verdict") or {}
-    row.update({"verdict": v.get("balance"), "verdict_text": v.get("text"),
-                "points": rep.get("points"), "region_points": rep.get("region_points"),
-                "valid_share": _f(rep.get("valid_share"))})
+    row.update(
+        {
+            "verdict": v.get("balance"),
+            "verdict_text": v.get("text"),
+            "points": rep.get("points"),
+            "region_points": rep.get("region_points"),
+            "valid_share": _f(rep.get("valid_share")),
+        }
+    )
     for k, x in (rep.get("balances") or {}).items():
         row[f"ratio_{k}"] = _f(x)
     for k, x in (rep.get("shares") or {}).items():
@@ -316,6 +376,7 @@ def file_checksum(path) -> str:
 
 # -- parts, combining ------------------------------------------------------------------------
 
+
 def _parts_dir(out) -> str:
     return out + ".parts"
 
@@ -339,14 +400,27 @@ def combine(out, tasks, checksums) -> tuple:
         with open(path, encoding="utf-8") as fh:
             part = json.load(fh)
         if part.get("error"):
-            errors.append({"file": os.path.basename(task.path), "member": str(task.member),
-                           "time_index": task.time_index, "level_hpa": task.level_hpa,
-                           "error": part["error"]})
+            errors.append(
+                {
+                    "file": os.path.basename(task.path),
+                    "member": str(task.member),
+                    "time_index": task.time_index,
+                    "level_hpa": task.level_hpa,
+                    "error": part["error"],
+                }
+            )
         for r in part["rows"]:
             r["file_sha256"] = checksums.get(r["path"])
             rows.append(r)
-    rows.sort(key=lambda r: (r["file"], r["member"], r["valid_time"] or "", r["level_hpa"] or 0,
-                             r["region"]))
+    rows.sort(
+        key=lambda r: (
+            r["file"],
+            r["member"],
+            r["valid_time"] or "",
+            r["level_hpa"] or 0,
+            r["region"],
+        )
+    )
     return rows, errors
 
 
@@ -354,8 +428,9 @@ def _write_table(path, rows):
     import pandas as pd
 
     df = pd.DataFrame(rows)
-    cols = [c for c in KEY_COLUMNS if c in df.columns] + [c for c in df.columns
-                                                          if c not in KEY_COLUMNS]
+    cols = [c for c in KEY_COLUMNS if c in df.columns] + [
+        c for c in df.columns if c not in KEY_COLUMNS
+    ]
     df = df[cols] if len(df.columns) else df
     if path.endswith(".parquet"):
         df.to_parquet(path, index=False)
@@ -374,8 +449,10 @@ def summary(rows) -> str:
     lines = ["verdicts by level and region:"]
     for (lev, reg), c in sorted(counts.items(), key=lambda kv: (-(kv[0][0] or 0), kv[0][1])):
         total = sum(c.values())
-        parts = ", ".join(f"{k} {n} ({100 * n / total:.0f} %)" for k, n in
-                          sorted(c.items(), key=lambda kv: -kv[1]))
+        parts = ", ".join(
+            f"{k} {n} ({100 * n / total:.0f} %)"
+            for k, n in sorted(c.items(), key=lambda kv: -kv[1])
+        )
         lines.append(f"  {lev:g} hPa, {reg}: {total} rows: {parts}")
     return "\n".join(lines)
 
@@ -383,7 +460,7 @@ def summary(rows) -> str:
 # -- the run ---------------------------------------------------------------------------------
 
 #: glibc's mmap threshold in the workers of a local cluster (see :func:`local_cluster`)
-MMAP_THRESHOLD = 64 * 2 ** 20
+MMAP_THRESHOLD = 64 * 2**20
 
 
 def local_cluster(n_workers, memory_limit=None):
@@ -402,11 +479,19 @@ def local_cluster(n_workers, memory_limit=None):
     import dask
     from distributed import LocalCluster
 
-    with dask.config.set({"distributed.nanny.pre-spawn-environ.MALLOC_MMAP_THRESHOLD_":
-                          MMAP_THRESHOLD, "distributed.worker.profile.enabled": False}):
-        return LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True,
-                            memory_limit="auto" if memory_limit is None else memory_limit,
-                            dashboard_address=":0")
+    with dask.config.set(
+        {
+            "distributed.nanny.pre-spawn-environ.MALLOC_MMAP_THRESHOLD_": MMAP_THRESHOLD,
+            "distributed.worker.profile.enabled": False,
+        }
+    ):
+        return LocalCluster(
+            n_workers=n_workers,
+            threads_per_worker=1,
+            processes=True,
+            memory_limit="auto" if memory_limit is None else memory_limit,
+            dashboard_address=":0",
+        )
 
 
 def worker_environment() -> dict:
@@ -422,16 +507,31 @@ def worker_environment() -> dict:
 
 
 def _not_analysed(path, task, exc, what="the workers running it died"):
-    return {"file": os.path.basename(path),
-            "member": None if task is None else str(task.member),
-            "time_index": None if task is None else task.time_index,
-            "level_hpa": None if task is None else task.level_hpa,
-            "error": f"not analysed: {what} ({type(exc).__name__}; a worker over its memory "
-                     "limit is restarted by dask); run again to try it again"}
+    return {
+        "file": os.path.basename(path),
+        "member": None if task is None else str(task.member),
+        "time_index": None if task is None else task.time_index,
+        "level_hpa": None if task is None else task.level_hpa,
+        "error": f"not analysed: {what} ({type(exc).__name__}; a worker over its memory "
+        "limit is restarted by dask); run again to try it again",
+    }
 
 
-def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, scheduler=None,
-              memory_limit=None, member="0", min_lat=10.0, say=print, err=None) -> dict:
+def run_batch(
+    files,
+    levels,
+    out,
+    *,
+    boxes=(),
+    systems=False,
+    workers=None,
+    scheduler=None,
+    memory_limit=None,
+    member="0",
+    min_lat=10.0,
+    say=print,
+    err=None,
+) -> dict:
     """Run a batch (see the module docstring); returns counts and the output paths.
 
     The files are planned on the workers (:func:`plan_file`, which opens each once and
@@ -462,8 +562,9 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
     t0 = time.monotonic()
     futures = []
     try:
-        opts = dict(levels=list(levels), boxes=tuple(boxes), systems=systems, member=member,
-                    min_lat=min_lat)
+        opts = dict(
+            levels=list(levels), boxes=tuple(boxes), systems=systems, member=member, min_lat=min_lat
+        )
         plan_of, run_of = {}, {}
         queue = list(enumerate(files))
 
@@ -476,11 +577,16 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
             if not queue:
                 return
             i, path = queue.pop(0)
-            key = "plan-" + hashlib.sha1(json.dumps([os.path.abspath(path), i, str(opts)])
-                                         .encode()).hexdigest()[:20]
+            key = (
+                "plan-"
+                + hashlib.sha1(
+                    json.dumps([os.path.abspath(path), i, str(opts)]).encode()
+                ).hexdigest()[:20]
+            )
             near = dict(workers=where, allow_other_workers=True) if where else {}
-            fut = client.submit(plan_file, path, key=key, priority=-2 * i, pure=False,
-                                **near, **opts)
+            fut = client.submit(
+                plan_file, path, key=key, priority=-2 * i, pure=False, **near, **opts
+            )
             plan_of[fut.key] = (i, path)
             futures.append(fut)
             pending.add(fut)
@@ -506,7 +612,8 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
                     raise BatchError(
                         f"balance-desk batch: no worker has been left for {NO_WORKER_S:.0f} s "
                         f"(each piece may need more memory than --memory-limit gives); the "
-                        f"{done} pieces done are kept in {folder}: run again to go on")
+                        f"{done} pieces done are kept in {folder}: run again to go on"
+                    )
                 continue
             for fut in ready:
                 pending.discard(fut)
@@ -516,21 +623,30 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
                     try:
                         plan = fut.result()
                     except Exception as exc:  # noqa: BLE001 - the worker died, or was lost
-                        lost.append(_not_analysed(path, None, exc,
-                                                  "the workers opening the file died"))
+                        lost.append(
+                            _not_analysed(path, None, exc, "the workers opening the file died")
+                        )
                         plan_next()
                         continue
                     errors += plan["errors"]
                     checksums[os.path.abspath(path)] = plan["checksum"]
                     tasks += plan["tasks"]
-                    todo = [t for t in plan["tasks"]
-                            if not os.path.exists(os.path.join(folder, f"{t.key}.json"))]
+                    todo = [
+                        t
+                        for t in plan["tasks"]
+                        if not os.path.exists(os.path.join(folder, f"{t.key}.json"))
+                    ]
                     skipped += len(plan["tasks"]) - len(todo)
                     where = list(client.who_has([fut]).get(fut.key, ()))
                     if todo:
                         near = dict(workers=where, allow_other_workers=True) if where else {}
-                        new = client.map(run_task, todo, key=[f"balance-{t.key}" for t in todo],
-                                         priority=-2 * i + 1, **near)
+                        new = client.map(
+                            run_task,
+                            todo,
+                            key=[f"balance-{t.key}" for t in todo],
+                            priority=-2 * i + 1,
+                            **near,
+                        )
                         for t, f in zip(todo, new):
                             run_of[f.key] = t
                         futures += new
@@ -559,16 +675,22 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
                 # the files not planned yet are guessed to hold as many pieces as the others
                 guess = total * len(files) / max(planned, 1)
                 left = (guess - done) / rate if rate > 0 else float("inf")
-                err(f"  [{_bar(done, guess)}] {done}/{total} pieces, {failed} failed, "
+                err(
+                    f"  [{_bar(done, guess)}] {done}/{total} pieces, {failed} failed, "
                     f"{planned}/{len(files)} files opened, {_clock(now - t0)} elapsed, about "
-                    f"{_clock(left)} left")
-        say(f"balance-desk batch: {len(tasks)} pieces ({len(files)} files), {skipped} "
-            f"already done in {folder}")
+                    f"{_clock(left)} left"
+                )
+        say(
+            f"balance-desk batch: {len(tasks)} pieces ({len(files)} files), {skipped} "
+            f"already done in {folder}"
+        )
     except KeyboardInterrupt:
         for f in futures:
             f.cancel()
-        say(f"balance-desk batch: stopped; {done} pieces of this run are kept in {folder}: run "
-            "the same command again to go on")
+        say(
+            f"balance-desk batch: stopped; {done} pieces of this run are kept in {folder}: run "
+            "the same command again to go on"
+        )
         raise
     finally:
         client.close()
@@ -585,12 +707,19 @@ def run_batch(files, levels, out, *, boxes=(), systems=False, workers=None, sche
     err_path = os.path.splitext(out)[0] + ".errors.csv"
     import pandas as pd
 
-    pd.DataFrame(errors, columns=["file", "member", "time_index", "level_hpa", "error"]
-                 ).to_csv(err_path, index=False)
+    pd.DataFrame(errors, columns=["file", "member", "time_index", "level_hpa", "error"]).to_csv(
+        err_path, index=False
+    )
     say(summary(rows))
     say(f"balance-desk batch: {len(rows)} rows in {out}; {len(errors)} errors in {err_path}")
-    return {"rows": len(rows), "errors": len(errors), "out": out, "errors_path": err_path,
-            "tasks": len(tasks), "lost": len(lost)}
+    return {
+        "rows": len(rows),
+        "errors": len(errors),
+        "out": out,
+        "errors_path": err_path,
+        "tasks": len(tasks),
+        "lost": len(lost),
+    }
 
 
 # The bar is the run's own. distributed.diagnostics' TextProgressBar follows a fixed set of
@@ -607,5 +736,8 @@ def _clock(seconds):
     if not math.isfinite(seconds):
         return "?"
     seconds = int(seconds)
-    return f"{seconds // 3600}h{seconds // 60 % 60:02d}m" if seconds >= 3600 else \
-        f"{seconds // 60}m{seconds % 60:02d}s"
+    return (
+        f"{seconds // 3600}h{seconds // 60 % 60:02d}m"
+        if seconds >= 3600
+        else f"{seconds // 60}m{seconds % 60:02d}s"
+    )

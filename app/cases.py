@@ -11,11 +11,9 @@ import json
 import os
 
 import numpy as np
-
 import pyproj  # noqa: F401  (before anything that may load eccodes)
 
-__all__ = ["sample_dir", "case_paths", "case_names", "describe_case", "list_cases",
-           "CASE_SUFFIXES"]
+__all__ = ["sample_dir", "case_paths", "case_names", "describe_case", "list_cases", "CASE_SUFFIXES"]
 
 #: File names taken as cases when a directory is given.
 CASE_SUFFIXES = (".nc", ".nc4", ".grib", ".grib2", ".grb", ".grb2", ".zarr")
@@ -23,8 +21,7 @@ CASE_SUFFIXES = (".nc", ".nc4", ".grib", ".grib2", ".grb", ".grb2", ".zarr")
 
 def sample_dir() -> str:
     """The bundled invented sample cases (sample_cases/ next to the app package)."""
-    return os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))),
-                        "sample_cases")
+    return os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "sample_cases")
 
 
 def case_paths(files=None, cases_dir=None) -> list:
@@ -32,8 +29,11 @@ def case_paths(files=None, cases_dir=None) -> list:
     if files:
         return [str(f) for f in files]
     d = cases_dir or sample_dir()
-    return sorted(p for p in glob.glob(os.path.join(glob.escape(d), "*"))
-                  if p.rstrip("/").endswith(CASE_SUFFIXES))
+    return sorted(
+        p
+        for p in glob.glob(os.path.join(glob.escape(d), "*"))
+        if p.rstrip("/").endswith(CASE_SUFFIXES)
+    )
 
 
 def case_names(paths) -> list:
@@ -82,13 +82,17 @@ def describe_case(path, name=None) -> dict:
     except ValueError:
         expected = []
     return {
-        "name": c.name, "file": base, "title": printable(c.title),
+        "name": c.name,
+        "file": base,
+        "title": printable(c.title),
         "levels_hpa": [float(p / 100) for p in c.levels_pa],
         "sea_level": bool(c.has_sea_level),
-        "valid_times": [iso(t) for t in c.times], "step_hours": step,
-        "suggested_box": _suggested_box(c.attrs), "expected": expected,
-        "invented": "invented" in str(c.attrs.get("geography", "")).lower() or
-                    "synthetic" in str(c.attrs.get("source", "")).lower(),
+        "valid_times": [iso(t) for t in c.times],
+        "step_hours": step,
+        "suggested_box": _suggested_box(c.attrs),
+        "expected": expected,
+        "invented": "invented" in str(c.attrs.get("geography", "")).lower()
+        or "synthetic" in str(c.attrs.get("source", "")).lower(),
     }
 
 

@@ -49,6 +49,7 @@ class _Parser(argparse.ArgumentParser):
 
 def _number(name, lower=None, strict=False):
     """An argparse type: a finite number, optionally at least (or above) ``lower``."""
+
     def conv(text):
         try:
             val = float(text)
@@ -60,6 +61,7 @@ def _number(name, lower=None, strict=False):
             what = "a positive number" if strict else "zero or positive"
             raise argparse.ArgumentTypeError(f"{name} must be {what}, got {text}")
         return val
+
     return conv
 
 
@@ -72,6 +74,7 @@ def _bounded(name, lo, hi):
         if not lo <= val <= hi:
             raise argparse.ArgumentTypeError(f"{name} must lie from {lo:g} to {hi:g}, got {text}")
         return val
+
     return conv
 
 
@@ -96,8 +99,10 @@ def _size(name):
         try:
             return parse_size(text)
         except ValueError:
-            raise argparse.ArgumentTypeError(f"{name} must be a size such as 512M or 4G, got "
-                                             f"{text!r}") from None
+            raise argparse.ArgumentTypeError(
+                f"{name} must be a size such as 512M or 4G, got {text!r}"
+            ) from None
+
     return conv
 
 
@@ -107,8 +112,9 @@ def _levels(text):
         try:
             v = float(part)
         except ValueError:
-            raise argparse.ArgumentTypeError(f"--levels must be pressure levels in hPa such as "
-                                             f"850,500,250, got {text!r}") from None
+            raise argparse.ArgumentTypeError(
+                f"--levels must be pressure levels in hPa such as 850,500,250, got {text!r}"
+            ) from None
         if not (math.isfinite(v) and 1 <= v <= 1100):
             raise argparse.ArgumentTypeError(f"--levels must lie from 1 to 1100 hPa, got {part}")
         out.append(v)
@@ -124,11 +130,13 @@ def _level(text):
     try:
         v = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"--level must be a pressure level in hPa or msl "
-                                         f"(sea level), got {text!r}") from None
+        raise argparse.ArgumentTypeError(
+            f"--level must be a pressure level in hPa or msl (sea level), got {text!r}"
+        ) from None
     if not (math.isfinite(v) and 1 <= v <= 1100):
-        raise argparse.ArgumentTypeError(f"--level must lie from 1 to 1100 hPa, or be msl "
-                                         f"(sea level), got {text!r}")
+        raise argparse.ArgumentTypeError(
+            f"--level must lie from 1 to 1100 hPa, or be msl (sea level), got {text!r}"
+        )
     return v
 
 
@@ -149,168 +157,310 @@ def _box(text):
     w, e, s, n = vals
     if not (-360 <= w <= 360 and -360 <= e <= 360):
         raise argparse.ArgumentTypeError(
-            f"--box west {w:g} and east {e:g} must lie within -360 to 360 degrees")
+            f"--box west {w:g} and east {e:g} must lie within -360 to 360 degrees"
+        )
     if not -90 <= s < n <= 90:
         raise argparse.ArgumentTypeError(
-            f"--box south {s:g} and north {n:g} must satisfy -90 <= south < north <= 90")
+            f"--box south {s:g} and north {n:g} must satisfy -90 <= south < north <= 90"
+        )
     return vals
 
 
 def _reading_options(p, members="N|mean", budget=True):
     """The options of every command that reads cases: the tropical mask, the member and
     (but for batch, whose workers have --memory-limit) the memory budget of a level."""
-    p.add_argument("--min-lat", type=_bounded("--min-lat", 0.0, 60.0), default=10.0,
-                   metavar="DEG", help="mask quantities divided by f this close to the equator "
-                                       "(0 to 60, default 10)")
-    p.add_argument("--member", default="0", metavar=members,
-                   help="ensemble member index, or 'mean'" +
-                        (", or 'all' (one row each)" if "all" in members else "") +
-                        " (default 0, the first)")
+    p.add_argument(
+        "--min-lat",
+        type=_bounded("--min-lat", 0.0, 60.0),
+        default=10.0,
+        metavar="DEG",
+        help="mask quantities divided by f this close to the equator (0 to 60, default 10)",
+    )
+    p.add_argument(
+        "--member",
+        default="0",
+        metavar=members,
+        help="ensemble member index, or 'mean'"
+        + (", or 'all' (one row each)" if "all" in members else "")
+        + " (default 0, the first)",
+    )
     if budget:
-        p.add_argument("--memory-budget", type=_size("--memory-budget"), default=None,
-                       metavar="SIZE", help="memory one level may use, e.g. 4G (default: a "
-                                            "quarter of the machine's memory, or "
-                                            "BALANCE_DESK_MEMORY_BUDGET)")
+        p.add_argument(
+            "--memory-budget",
+            type=_size("--memory-budget"),
+            default=None,
+            metavar="SIZE",
+            help="memory one level may use, e.g. 4G (default: a "
+            "quarter of the machine's memory, or "
+            "BALANCE_DESK_MEMORY_BUDGET)",
+        )
 
 
 def build_parser() -> argparse.ArgumentParser:
-    parser = _Parser(prog="balance-desk",
-                     description="Is the flow balanced? The momentum budget of gridded model "
-                                 "output, term by term. A diagnostic aid: official forecasts "
-                                 "and warnings come from the responsible meteorological service.")
+    parser = _Parser(
+        prog="balance-desk",
+        description="Is the flow balanced? The momentum budget of gridded model "
+        "output, term by term. A diagnostic aid: official forecasts "
+        "and warnings come from the responsible meteorological service.",
+    )
     parser.add_argument("--debug", action="store_true", help="show tracebacks")
     sub = parser.add_subparsers(dest="command", parser_class=_Parser, metavar="COMMAND")
 
-    p = sub.add_parser("scales", help="a priori scale analysis of the momentum equations",
-                       description="Term magnitudes, numbers and a verdict from the scales of a "
-                                   "phenomenon. Start from a preset and change any scale.")
-    p.add_argument("--preset", default=DEFAULT_PRESET, help=f"one of: {', '.join(PRESETS)} "
-                   f"(default {DEFAULT_PRESET})")
+    p = sub.add_parser(
+        "scales",
+        help="a priori scale analysis of the momentum equations",
+        description="Term magnitudes, numbers and a verdict from the scales of a "
+        "phenomenon. Start from a preset and change any scale.",
+    )
+    p.add_argument(
+        "--preset",
+        default=DEFAULT_PRESET,
+        help=f"one of: {', '.join(PRESETS)} (default {DEFAULT_PRESET})",
+    )
     p.add_argument("--U", type=_positive("--U"), metavar="M_S", help="horizontal velocity scale")
     p.add_argument("--W", type=_non_negative("--W"), metavar="M_S", help="vertical velocity scale")
     p.add_argument("--L", type=_positive("--L"), metavar="M", help="horizontal length scale")
     p.add_argument("--H", type=_positive("--H"), metavar="M", help="depth scale")
-    p.add_argument("--dp", type=_non_negative("--dp"), metavar="PA",
-                   help="horizontal pressure difference")
+    p.add_argument(
+        "--dp", type=_non_negative("--dp"), metavar="PA", help="horizontal pressure difference"
+    )
     p.add_argument("--rho", type=_positive("--rho"), metavar="KG_M3", help="density")
     g = p.add_mutually_exclusive_group()
     g.add_argument("--f0", type=_number("--f0"), metavar="PER_S", help="Coriolis parameter")
     g.add_argument("--lat", type=_number("--lat"), metavar="DEG", help="latitude")
     p.add_argument("--a", type=_positive("--a"), metavar="M", help="Earth radius")
-    p.add_argument("--nu", type=_non_negative("--nu"), metavar="M2_S",
-                   help="viscosity (molecular, or an eddy viscosity)")
-    p.add_argument("--n2", type=_number("--n2"), metavar="PER_S2",
-                   help="N^2, for the Froude and Burger numbers and the deformation radius")
-    p.add_argument("--curved", action=argparse.BooleanOptionalAction, default=None,
-                   help="the flow follows curved paths (a vortex)")
+    p.add_argument(
+        "--nu",
+        type=_non_negative("--nu"),
+        metavar="M2_S",
+        help="viscosity (molecular, or an eddy viscosity)",
+    )
+    p.add_argument(
+        "--n2",
+        type=_number("--n2"),
+        metavar="PER_S2",
+        help="N^2, for the Froude and Burger numbers and the deformation radius",
+    )
+    p.add_argument(
+        "--curved",
+        action=argparse.BooleanOptionalAction,
+        default=None,
+        help="the flow follows curved paths (a vortex)",
+    )
     p.add_argument("--format", choices=("table", "json"), default="table")
     p.set_defaults(func=cmd_scales)
 
-    p = sub.add_parser("analyze", help="the momentum budget of a box at one level and time",
-                       description="Every term of the horizontal momentum equations in a box, "
-                                   "ranked, beside the a priori estimate from the box's own "
-                                   "scales, with the numbers and a balance verdict.")
-    p.add_argument("files", nargs="+", metavar="FILE",
-                   help="NetCDF, GRIB or Zarr; several files are joined along valid time")
-    p.add_argument("--level", required=True, type=_level, metavar="HPA",
-                   help="pressure level in hPa, or msl: the sea-level pressure with the 10 m "
-                        "wind")
-    p.add_argument("--time", default=None, metavar="INDEX_OR_ISO",
-                   help="valid time: an index (0 is the first) or an ISO 8601 time")
-    p.add_argument("--box", default=None, type=_box, metavar="WEST,EAST,SOUTH,NORTH",
-                   help="degrees; west > east crosses the dateline (default: the whole domain)")
-    p.add_argument("--smooth", type=_non_negative("--smooth"), default=None, metavar="KM",
-                   help="Gaussian smoothing of the input fields (standard deviation, km)")
+    p = sub.add_parser(
+        "analyze",
+        help="the momentum budget of a box at one level and time",
+        description="Every term of the horizontal momentum equations in a box, "
+        "ranked, beside the a priori estimate from the box's own "
+        "scales, with the numbers and a balance verdict.",
+    )
+    p.add_argument(
+        "files",
+        nargs="+",
+        metavar="FILE",
+        help="NetCDF, GRIB or Zarr; several files are joined along valid time",
+    )
+    p.add_argument(
+        "--level",
+        required=True,
+        type=_level,
+        metavar="HPA",
+        help="pressure level in hPa, or msl: the sea-level pressure with the 10 m wind",
+    )
+    p.add_argument(
+        "--time",
+        default=None,
+        metavar="INDEX_OR_ISO",
+        help="valid time: an index (0 is the first) or an ISO 8601 time",
+    )
+    p.add_argument(
+        "--box",
+        default=None,
+        type=_box,
+        metavar="WEST,EAST,SOUTH,NORTH",
+        help="degrees; west > east crosses the dateline (default: the whole domain)",
+    )
+    p.add_argument(
+        "--smooth",
+        type=_non_negative("--smooth"),
+        default=None,
+        metavar="KM",
+        help="Gaussian smoothing of the input fields (standard deviation, km)",
+    )
     _reading_options(p)
     p.add_argument("--format", choices=("table", "json", "csv"), default="table")
     p.set_defaults(func=cmd_analyze)
 
-    p = sub.add_parser("systems", help="the lows, highs and jet streaks of a level, each with "
-                                       "its balance",
-                       description="Finds closed lows and highs of the height and jet streaks "
-                                   "of the wind on one level, and gives each the report of its "
-                                   "region: ranked terms, balances, numbers, verdict, and the "
-                                   "parts of its ageostrophic wind.")
+    p = sub.add_parser(
+        "systems",
+        help="the lows, highs and jet streaks of a level, each with its balance",
+        description="Finds closed lows and highs of the height and jet streaks "
+        "of the wind on one level, and gives each the report of its "
+        "region: ranked terms, balances, numbers, verdict, and the "
+        "parts of its ageostrophic wind.",
+    )
     p.add_argument("files", nargs="+", metavar="FILE")
-    p.add_argument("--level", type=_level, default=500.0, metavar="HPA",
-                   help="pressure level in hPa (default 500), or msl: the lows and highs of "
-                        "the sea-level pressure")
+    p.add_argument(
+        "--level",
+        type=_level,
+        default=500.0,
+        metavar="HPA",
+        help="pressure level in hPa (default 500), or msl: the lows and highs of "
+        "the sea-level pressure",
+    )
     p.add_argument("--time", default=None, metavar="INDEX_OR_ISO")
-    p.add_argument("--track", action="store_true",
-                   help="every valid time, the systems matched into tracks")
-    p.add_argument("--limit", type=_bounded("--limit", 1, 200), default=30,
-                   help="at most this many systems (default 30)")
+    p.add_argument(
+        "--track", action="store_true", help="every valid time, the systems matched into tracks"
+    )
+    p.add_argument(
+        "--limit",
+        type=_bounded("--limit", 1, 200),
+        default=30,
+        help="at most this many systems (default 30)",
+    )
     _reading_options(p)
     p.add_argument("--format", choices=("table", "json", "csv"), default="table")
     p.set_defaults(func=cmd_systems)
 
-    p = sub.add_parser("batch", help="the report of boxes or systems over whole archives, on "
-                                     "dask.distributed",
-                       description="One row per (file, member, valid time, level, region), "
-                                   "with everything analyze reports; on a local cluster sized "
-                                   "to this machine, or on an existing one (--scheduler).")
+    p = sub.add_parser(
+        "batch",
+        help="the report of boxes or systems over whole archives, on dask.distributed",
+        description="One row per (file, member, valid time, level, region), "
+        "with everything analyze reports; on a local cluster sized "
+        "to this machine, or on an existing one (--scheduler).",
+    )
     p.add_argument("files", nargs="+", metavar="FILE_OR_GLOB")
     p.add_argument("--levels", required=True, type=_levels, metavar="HPA,HPA,...")
     regions = p.add_mutually_exclusive_group(required=True)
-    regions.add_argument("--box", action="append", type=_box, metavar="W,E,S,N",
-                         help="a box (may be given several times)")
-    regions.add_argument("--boxes", metavar="FILE.yaml",
-                         help="named boxes: 'name: [west, east, south, north]' per line")
-    regions.add_argument("--systems", action="store_true",
-                         help="the systems found in each field, each with its region")
+    regions.add_argument(
+        "--box",
+        action="append",
+        type=_box,
+        metavar="W,E,S,N",
+        help="a box (may be given several times)",
+    )
+    regions.add_argument(
+        "--boxes",
+        metavar="FILE.yaml",
+        help="named boxes: 'name: [west, east, south, north]' per line",
+    )
+    regions.add_argument(
+        "--systems",
+        action="store_true",
+        help="the systems found in each field, each with its region",
+    )
     p.add_argument("--out", required=True, metavar="RESULT.parquet|RESULT.csv")
-    p.add_argument("--workers", type=_bounded("--workers", 1, 512), default=None,
-                   help="workers of the local cluster (default: one per core)")
-    p.add_argument("--scheduler", default=None, metavar="tcp://HOST:PORT",
-                   help="an existing dask scheduler instead of a local cluster")
-    p.add_argument("--memory-limit", default=None, metavar="SIZE",
-                   help="memory per worker of the local cluster, e.g. 2GB")
+    p.add_argument(
+        "--workers",
+        type=_bounded("--workers", 1, 512),
+        default=None,
+        help="workers of the local cluster (default: one per core)",
+    )
+    p.add_argument(
+        "--scheduler",
+        default=None,
+        metavar="tcp://HOST:PORT",
+        help="an existing dask scheduler instead of a local cluster",
+    )
+    p.add_argument(
+        "--memory-limit",
+        default=None,
+        metavar="SIZE",
+        help="memory per worker of the local cluster, e.g. 2GB",
+    )
     _reading_options(p, members="all|N|mean", budget=False)
     p.set_defaults(func=cmd_batch)
 
-    p = sub.add_parser("cases", help="list the bundled sample cases",
-                       description="The invented sample cases, with their levels, times and a "
-                                   "suggested box.")
+    p = sub.add_parser(
+        "cases",
+        help="list the bundled sample cases",
+        description="The invented sample cases, with their levels, times and a suggested box.",
+    )
     p.add_argument("--dir", default=None, help="a directory of cases (default: sample_cases/)")
     p.add_argument("--format", choices=("table", "json"), default="table")
     p.set_defaults(func=cmd_cases)
 
-    p = sub.add_parser("serve", help="start the dashboard in the browser",
-                       description="Serve the dashboard on the given files, on every case in a "
-                                   "directory, or on the bundled sample cases.")
+    p = sub.add_parser(
+        "serve",
+        help="start the dashboard in the browser",
+        description="Serve the dashboard on the given files, on every case in a "
+        "directory, or on the bundled sample cases.",
+    )
     p.add_argument("files", nargs="*", metavar="FILE")
     p.add_argument("--cases", default=None, metavar="DIR", help="serve every case in DIR")
     p.add_argument("--host", default="127.0.0.1", help="address to bind (default 127.0.0.1)")
     p.add_argument("--port", type=_port, default=5006, help="1 to 65535 (default 5006)")
     p.add_argument("--show", action="store_true", help="open a browser window")
-    p.add_argument("--memory-budget", type=_size("--memory-budget"), default=None,
-                   metavar="SIZE", help="memory one level may use, e.g. 4G")
-    p.add_argument("--store", default=None, metavar="PATH",
-                   help="the review rooms' SQLite file (default: BALANCE_DESK_STORE, else "
-                        "rooms.sqlite in your data folder)")
-    p.add_argument("--passphrase-file", default=None, metavar="FILE",
-                   help="the access passphrase (first line), needed on any address other "
-                        "than this machine's own; or set BALANCE_DESK_PASSPHRASE")
-    p.add_argument("--open-without-passphrase", action="store_true",
-                   help="serve another address without a passphrase (warns at every start)")
-    p.add_argument("--origin", action="append", default=[], metavar="HOST[:PORT]",
-                   help="another address people type to reach the server (for websockets)")
-    p.add_argument("--archive", action="append", default=[], metavar="RESULT.parquet",
-                   help="a result of balance-desk batch, shown through the archive at /archive")
+    p.add_argument(
+        "--memory-budget",
+        type=_size("--memory-budget"),
+        default=None,
+        metavar="SIZE",
+        help="memory one level may use, e.g. 4G",
+    )
+    p.add_argument(
+        "--store",
+        default=None,
+        metavar="PATH",
+        help="the review rooms' SQLite file (default: BALANCE_DESK_STORE, else "
+        "rooms.sqlite in your data folder)",
+    )
+    p.add_argument(
+        "--passphrase-file",
+        default=None,
+        metavar="FILE",
+        help="the access passphrase (first line), needed on any address other "
+        "than this machine's own; or set BALANCE_DESK_PASSPHRASE",
+    )
+    p.add_argument(
+        "--open-without-passphrase",
+        action="store_true",
+        help="serve another address without a passphrase (warns at every start)",
+    )
+    p.add_argument(
+        "--origin",
+        action="append",
+        default=[],
+        metavar="HOST[:PORT]",
+        help="another address people type to reach the server (for websockets)",
+    )
+    p.add_argument(
+        "--archive",
+        action="append",
+        default=[],
+        metavar="RESULT.parquet",
+        help="a result of balance-desk batch, shown through the archive at /archive",
+    )
     p.set_defaults(func=cmd_serve)
 
-    p = sub.add_parser("rooms", help="review rooms: create one, list them, export notes",
-                       description="Review rooms live in the store that `serve` uses "
-                                   "(--store PATH, or BALANCE_DESK_STORE).")
+    p = sub.add_parser(
+        "rooms",
+        help="review rooms: create one, list them, export notes",
+        description="Review rooms live in the store that `serve` uses "
+        "(--store PATH, or BALANCE_DESK_STORE).",
+    )
     rsub = p.add_subparsers(dest="rooms_command", parser_class=_Parser, metavar="ACTION")
     r = rsub.add_parser("create", help="open a room and print its link")
     r.add_argument("title")
-    r.add_argument("--case", default=None, help="the case under review (default: the first "
-                                                 "case the server has)")
-    r.add_argument("--days", type=_bounded("--days", 0.01, 3650), default=30.0,
-                   help="how long its link works (default 30 days; notes are kept after)")
-    r.add_argument("--base-url", default="http://127.0.0.1:5006",
-                   help="the server's address, for the printed link")
+    r.add_argument(
+        "--case",
+        default=None,
+        help="the case under review (default: the first case the server has)",
+    )
+    r.add_argument(
+        "--days",
+        type=_bounded("--days", 0.01, 3650),
+        default=30.0,
+        help="how long its link works (default 30 days; notes are kept after)",
+    )
+    r.add_argument(
+        "--base-url",
+        default="http://127.0.0.1:5006",
+        help="the server's address, for the printed link",
+    )
     r.add_argument("--store", default=None, metavar="PATH")
     r.set_defaults(func=cmd_rooms_create)
     r = rsub.add_parser("list", help="the rooms, with their links")
@@ -323,9 +473,12 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--store", default=None, metavar="PATH")
     r.set_defaults(func=cmd_rooms_export)
 
-    p = sub.add_parser("verify", help="run the reference checks on this machine",
-                       description="Checks the numerics against published test cases and "
-                                   "reference values, and prints each with its source.")
+    p = sub.add_parser(
+        "verify",
+        help="run the reference checks on this machine",
+        description="Checks the numerics against published test cases and "
+        "reference values, and prints each with its source.",
+    )
     p.add_argument("--format", choices=("table", "json"), default="table")
     p.set_defaults(func=cmd_verify)
     return parser
@@ -333,15 +486,27 @@ def build_parser() -> argparse.ArgumentParser:
 
 # -- scales --------------------------------------------------------------------------
 
+
 def scale_set_from_args(args) -> ScaleSet:
     if args.preset not in PRESETS:
-        raise UsageError(f"balance-desk scales: unknown preset {args.preset!r}; choose one of "
-                         f"{', '.join(PRESETS)}")
+        raise UsageError(
+            f"balance-desk scales: unknown preset {args.preset!r}; choose one of "
+            f"{', '.join(PRESETS)}"
+        )
     s = PRESETS[args.preset]
     changes = {}
-    for flag, key in (("U", "U"), ("W", "W"), ("L", "L"), ("H", "H"), ("dp", "dP"),
-                      ("rho", "rho"), ("a", "a"), ("nu", "nu"), ("n2", "n2"),
-                      ("curved", "curved")):
+    for flag, key in (
+        ("U", "U"),
+        ("W", "W"),
+        ("L", "L"),
+        ("H", "H"),
+        ("dp", "dP"),
+        ("rho", "rho"),
+        ("a", "a"),
+        ("nu", "nu"),
+        ("n2", "n2"),
+        ("curved", "curved"),
+    ):
         val = getattr(args, flag)
         if val is not None:
             changes[key] = val
@@ -356,8 +521,10 @@ def scale_set_from_args(args) -> ScaleSet:
     except ValueError as exc:
         raise UsageError(f"balance-desk scales: {exc}") from None
     if s.f0 == 0:
-        raise UsageError("balance-desk scales: f0 = 0 (on the equator) gives no Rossby number; give a "
-                         "non-zero --f0 or a --lat off the equator")
+        raise UsageError(
+            "balance-desk scales: f0 = 0 (on the equator) gives no Rossby number; give a "
+            "non-zero --f0 or a --lat off the equator"
+        )
     return s
 
 
@@ -375,8 +542,19 @@ def scales_report(s: ScaleSet) -> dict:
     }
 
 
-_UNITS = {"U": "m s-1", "W": "m s-1", "L": "m", "H": "m", "dP": "Pa", "rho": "kg m-3",
-          "f0": "s-1", "lat0": "deg", "a": "m", "nu": "m2 s-1", "n2": "s-2"}
+_UNITS = {
+    "U": "m s-1",
+    "W": "m s-1",
+    "L": "m",
+    "H": "m",
+    "dP": "Pa",
+    "rho": "kg m-3",
+    "f0": "s-1",
+    "lat0": "deg",
+    "a": "m",
+    "nu": "m2 s-1",
+    "n2": "s-2",
+}
 _NUMBER_UNITS = {"deformation_radius": "m"}
 
 
@@ -394,7 +572,10 @@ def format_scales_table(rep: dict) -> str:
         val = f"{sc[k]:.2f}" if k == "lat0" else _sci(sc[k])
         lines.append(f"  {k:<5}  {val:<10}  {unit}")
     pgf = next(t["magnitude"] for t in rep["terms"] if t["name"] == "pressure_gradient")
-    lines += ["", "  rank  term                 magnitude (m s-2)  power of ten  / pressure gradient"]
+    lines += [
+        "",
+        "  rank  term                 magnitude (m s-2)  power of ten  / pressure gradient",
+    ]
     for i, t in enumerate(rep["terms"], 1):
         m = t["magnitude"]
         p10 = f"10^{math.floor(math.log10(m) + 1e-9):d}" if m > 0 else "0"
@@ -419,13 +600,16 @@ def cmd_scales(args) -> int:
 
 # -- analyze -------------------------------------------------------------------------
 
+
 def _member(text):
     if str(text).strip().lower() == "mean":
         return "mean"
     try:
         return int(text)
     except ValueError:
-        raise UsageError(f"balance-desk analyze: --member must be an index or 'mean', got {text!r}")
+        raise UsageError(
+            f"balance-desk analyze: --member must be an index or 'mean', got {text!r}"
+        ) from None
 
 
 def cmd_analyze(args) -> int:
@@ -434,8 +618,12 @@ def cmd_analyze(args) -> int:
     from . import formats
 
     try:
-        case = open_case(args.files, member=_member(args.member), min_lat=args.min_lat,
-                         memory_budget=args.memory_budget)
+        case = open_case(
+            args.files,
+            member=_member(args.member),
+            min_lat=args.min_lat,
+            memory_budget=args.memory_budget,
+        )
         rep = analyse_case(case, args.level, args.time, args.box, smooth_km=args.smooth or None)
     except CaseError as exc:
         raise UsageError(str(exc)) from None
@@ -450,14 +638,19 @@ def cmd_analyze(args) -> int:
 
 # -- systems -------------------------------------------------------------------------
 
+
 def cmd_systems(args) -> int:
     from balance_core.io import CaseError, analyse_systems, open_case, track_systems
 
     from . import formats
 
     try:
-        case = open_case(args.files, member=_member(args.member), min_lat=args.min_lat,
-                         memory_budget=args.memory_budget)
+        case = open_case(
+            args.files,
+            member=_member(args.member),
+            min_lat=args.min_lat,
+            memory_budget=args.memory_budget,
+        )
         if args.track:
             out = track_systems(case, args.level, limit=int(args.limit))
         else:
@@ -475,6 +668,7 @@ def cmd_systems(args) -> int:
 
 # -- batch ---------------------------------------------------------------------------
 
+
 def cmd_batch(args) -> int:
     import logging
 
@@ -490,13 +684,28 @@ def cmd_batch(args) -> int:
             boxes = [(f"box {','.join(f'{v:g}' for v in b)}", tuple(b)) for b in args.box]
         else:
             boxes = []
-        for name in ("distributed", "distributed.worker", "distributed.scheduler",
-                     "distributed.nanny", "distributed.core", "distributed.http.proxy"):
+        for name in (
+            "distributed",
+            "distributed.worker",
+            "distributed.scheduler",
+            "distributed.nanny",
+            "distributed.core",
+            "distributed.http.proxy",
+        ):
             logging.getLogger(name).setLevel(logging.ERROR)
-        run_batch(args.files, args.levels, args.out, boxes=boxes, systems=args.systems,
-                  workers=None if args.workers is None else int(args.workers),
-                  scheduler=args.scheduler, memory_limit=args.memory_limit, member=member,
-                  min_lat=args.min_lat, say=lambda text: print(text, flush=True))
+        run_batch(
+            args.files,
+            args.levels,
+            args.out,
+            boxes=boxes,
+            systems=args.systems,
+            workers=None if args.workers is None else int(args.workers),
+            scheduler=args.scheduler,
+            memory_limit=args.memory_limit,
+            member=member,
+            min_lat=args.min_lat,
+            say=lambda text: print(text, flush=True),
+        )
     except BatchError as exc:
         raise UsageError(str(exc)) from None
     except KeyboardInterrupt:
@@ -505,6 +714,7 @@ def cmd_batch(args) -> int:
 
 
 # -- cases ---------------------------------------------------------------------------
+
 
 def cmd_cases(args) -> int:
     import os
@@ -522,22 +732,29 @@ def cmd_cases(args) -> int:
             print(f"{c['file']}: could not be read: {c['error']}")
             print()
             continue
-        print(f"{c['name']}  ({c['file']})" + ("  [invented demo data]" if c.get("invented")
-                                                else ""))
+        print(
+            f"{c['name']}  ({c['file']})" + ("  [invented demo data]" if c.get("invented") else "")
+        )
         print(f"  {c['title']}")
-        print(f"  levels: {', '.join(f'{p:g}' for p in c['levels_hpa'])} hPa"
-              + (", and sea level" if c.get("sea_level") else ""))
+        print(
+            f"  levels: {', '.join(f'{p:g}' for p in c['levels_hpa'])} hPa"
+            + (", and sea level" if c.get("sea_level") else "")
+        )
         step = f" every {c['step_hours']:g} h" if c["step_hours"] else ""
-        print(f"  valid times: {len(c['valid_times'])}, {c['valid_times'][0]} to "
-              f"{c['valid_times'][-1]}{step}")
+        print(
+            f"  valid times: {len(c['valid_times'])}, {c['valid_times'][0]} to "
+            f"{c['valid_times'][-1]}{step}"
+        )
         if c["suggested_box"]:
             b = c["suggested_box"]
             print(f"  suggested box: --box {b[0]:g},{b[1]:g},{b[2]:g},{b[3]:g}")
         for e in c["expected"]:
             try:
                 where = "sea level" if e["level_hpa"] == "msl" else f"{e['level_hpa']} hPa"
-                print(f"  expected at {where}, time {e['time_index']}, box "
-                      f"{','.join(f'{x:g}' for x in e['box'])}: {e['balance']}")
+                print(
+                    f"  expected at {where}, time {e['time_index']}, box "
+                    f"{','.join(f'{x:g}' for x in e['box'])}: {e['balance']}"
+                )
             except (KeyError, TypeError, ValueError):
                 continue
         print()
@@ -545,6 +762,7 @@ def cmd_cases(args) -> int:
 
 
 # -- serve ---------------------------------------------------------------------------
+
 
 def cmd_serve(args) -> int:
     import os
@@ -556,17 +774,27 @@ def cmd_serve(args) -> int:
     if args.cases and not os.path.isdir(args.cases):
         raise UsageError(f"balance-desk serve: no directory {args.cases}")
     try:
-        serve(args.files, args.cases, host=args.host, port=args.port, show=args.show,
-              memory_budget=args.memory_budget, out=lambda text: print(text, flush=True),
-              store=args.store, passphrase_file=args.passphrase_file,
-              open_without_passphrase=args.open_without_passphrase, origins=args.origin,
-              archives=args.archive)
+        serve(
+            args.files,
+            args.cases,
+            host=args.host,
+            port=args.port,
+            show=args.show,
+            memory_budget=args.memory_budget,
+            out=lambda text: print(text, flush=True),
+            store=args.store,
+            passphrase_file=args.passphrase_file,
+            open_without_passphrase=args.open_without_passphrase,
+            origins=args.origin,
+            archives=args.archive,
+        )
     except ServeError as exc:
         raise UsageError(str(exc)) from None
     return 0
 
 
 # -- rooms ---------------------------------------------------------------------------
+
 
 def _store(args):
     from .rooms import StoreError, open_store
@@ -600,13 +828,15 @@ def cmd_rooms_create(args) -> int:
         names = case_names(case_paths(None, None))
         case = names[0] if names else ""
     try:
-        room = store.create_room(args.title, case, {"case": case} if case else {},
-                                 days=args.days)
+        room = store.create_room(args.title, case, {"case": case} if case else {}, days=args.days)
     except StoreError as exc:
         raise UsageError(f"balance-desk rooms create: {exc}") from None
     print(room_link(args.base_url, room.token))
-    print(f"(room {room.title!r} on case {room.case}, kept in {path}; the link is the room's "
-          f"key: give it only to the team)", file=sys.stderr)
+    print(
+        f"(room {room.title!r} on case {room.case}, kept in {path}; the link is the room's "
+        f"key: give it only to the team)",
+        file=sys.stderr,
+    )
     return 0
 
 
@@ -622,8 +852,10 @@ def cmd_rooms_list(args) -> int:
     for r in rooms:
         n = len(store.notes(r.token))
         state = "link expired" if r.expired else f"until {stamp(r.expires)}"
-        print(f"{r.title}  |  case {r.case}  |  opened {stamp(r.created)}  |  {n} notes  |  "
-              f"{state}\n    {room_link(args.base_url, r.token)}")
+        print(
+            f"{r.title}  |  case {r.case}  |  opened {stamp(r.created)}  |  {n} notes  |  "
+            f"{state}\n    {room_link(args.base_url, r.token)}"
+        )
     return 0
 
 
@@ -639,6 +871,7 @@ def cmd_rooms_export(args) -> int:
 
 
 # -- verify --------------------------------------------------------------------------
+
 
 def cmd_verify(args) -> int:
     from .verify import run_all
@@ -659,13 +892,18 @@ def cmd_verify(args) -> int:
 
 # -- entry point ---------------------------------------------------------------------
 
+
 def _join_negative_values(argv):
     """Let ``--box -52,-28,38,56`` work: argparse would read the value as an option."""
     out, i = [], 0
     while i < len(argv):
         a = argv[i]
-        if a == "--box" and i + 1 < len(argv) and argv[i + 1].startswith("-") and \
-                "," in argv[i + 1]:
+        if (
+            a == "--box"
+            and i + 1 < len(argv)
+            and argv[i + 1].startswith("-")
+            and "," in argv[i + 1]
+        ):
             out.append(f"--box={argv[i + 1]}")
             i += 2
             continue
@@ -691,11 +929,14 @@ def main(argv=None) -> int:
         return 2
     except KeyboardInterrupt:
         return 130
-    except Exception as exc:  # noqa: BLE001 - the last line of defence
+    except Exception as exc:
         if debug:
             raise
-        print(f"balance-desk: unexpected error ({type(exc).__name__}: {exc}); "
-              "run again with --debug for the details", file=sys.stderr)
+        print(
+            f"balance-desk: unexpected error ({type(exc).__name__}: {exc}); "
+            "run again with --debug for the details",
+            file=sys.stderr,
+        )
         return 1
 
 

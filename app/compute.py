@@ -22,13 +22,34 @@ from balance_core.verdict import Thresholds
 
 from . import render, vocab
 from .library import SEA_LEVEL_INDEX
-from .state import (SEA_LEVEL, SHEET_SCALES, VECTORS, ViewState, field_label, is_sea_level,
-                    level_text)
+from .state import (
+    SEA_LEVEL,
+    SHEET_SCALES,
+    VECTORS,
+    ViewState,
+    field_label,
+    is_sea_level,
+    level_text,
+)
 
-__all__ = ["Selection", "resolve", "region_of", "ChartData", "chart_data", "box_data",
-           "shared_chart_data", "shared_box_data", "ready_chart_data", "ready_box_data",
-           "levels_data", "times_data", "scale_sheet", "region_outline", "nearest_level",
-           "case_facts"]
+__all__ = [
+    "Selection",
+    "resolve",
+    "region_of",
+    "ChartData",
+    "chart_data",
+    "box_data",
+    "shared_chart_data",
+    "shared_box_data",
+    "ready_chart_data",
+    "ready_box_data",
+    "levels_data",
+    "times_data",
+    "scale_sheet",
+    "region_outline",
+    "nearest_level",
+    "case_facts",
+]
 
 
 @dataclasses.dataclass
@@ -52,8 +73,10 @@ def resolve(library, state: ViewState) -> Selection:
     case = library.get(state.case)
     if is_sea_level(state.level):
         if not has_sea_level(case):
-            raise CaseError("this case has no sea-level pressure with the 10 m wind, so "
-                            "there is no sea-level chart; choose a pressure level")
+            raise CaseError(
+                "this case has no sea-level pressure with the 10 m wind, so "
+                "there is no sea-level chart; choose a pressure level"
+            )
         k, hpa = SEA_LEVEL_INDEX, SEA_LEVEL
     else:
         k = case.level_index(state.level)
@@ -90,8 +113,10 @@ def case_facts(case) -> dict:
     """What the page says about a case beside its name: invented or not, its title."""
     geo = str(case.attrs.get("geography", "")).lower()
     src = str(case.attrs.get("source", "")).lower()
-    return {"invented": "invented" in geo or "synthetic" in src or "invented" in src,
-            "title": str(case.title)}
+    return {
+        "invented": "invented" in geo or "synthetic" in src or "invented" in src,
+        "title": str(case.title),
+    }
 
 
 def region_of(state: ViewState) -> Region:
@@ -100,11 +125,13 @@ def region_of(state: ViewState) -> Region:
 
 
 def _diag(library, state, sel):
-    return library.diagnostics(state.case, sel.level_index, sel.time_index,
-                               state.smooth_km, state.min_lat)
+    return library.diagnostics(
+        state.case, sel.level_index, sel.time_index, state.smooth_km, state.min_lat
+    )
 
 
 # -- the chart -------------------------------------------------------------------------
+
 
 @dataclasses.dataclass
 class ChartData:
@@ -118,8 +145,8 @@ class ChartData:
     units: str
     raster: np.ndarray
     color_range: tuple
-    color_kind: str          # "sequential", "diverging" or "log"
-    contours: tuple          # (xs, ys, levels, labels) of height
+    color_kind: str  # "sequential", "diverging" or "log"
+    contours: tuple  # (xs, ys, levels, labels) of height
     contour_units: str
     contour_interval: float
     vectors: dict | None
@@ -150,8 +177,11 @@ def _field_values(key, diag, state):
         v, u = vocab.height(diag.height, state.height_units)
         return v, u, "sequential"
     if key in ("speed", "geostrophic_speed", "ageostrophic_speed"):
-        raw = {"speed": diag.speed, "geostrophic_speed": diag.geostrophic_speed,
-               "ageostrophic_speed": np.hypot(diag.u - diag.ug, diag.v - diag.vg)}[key]
+        raw = {
+            "speed": diag.speed,
+            "geostrophic_speed": diag.geostrophic_speed,
+            "ageostrophic_speed": np.hypot(diag.u - diag.ug, diag.v - diag.vg),
+        }[key]
         v, u = vocab.wind(raw, state.wind_units)
         return v, u, "sequential"
     if key == "ageostrophic_fraction":
@@ -166,8 +196,7 @@ def _field_values(key, diag, state):
         return diag.omega, "Pa s-1", "diverging"
     if key == "temperature":
         if diag.temperature is None:
-            raise CaseError("this case has no temperature" +
-                            (" at 2 m" if diag.surface else ""))
+            raise CaseError("this case has no temperature" + (" at 2 m" if diag.surface else ""))
         return diag.temperature - 273.15, "degC", "sequential"
     if key.startswith("term:"):
         name = key[5:]
@@ -208,16 +237,25 @@ def chart_data(library, state: ViewState) -> ChartData:
     region = region_of(state)
     centre = None
     if spec is not None:
-        centre = (0.5 * (region.west + region.east if region.east >= region.west
-                         else region.west + region.east + 360), 0.5 * (region.south + region.north))
+        centre = (
+            0.5
+            * (
+                region.west + region.east
+                if region.east >= region.west
+                else region.west + region.east + 360
+            ),
+            0.5 * (region.south + region.north),
+        )
     geom = render.geometry_for(case, state.projection, centre=centre)
     notes = []
     key = state.field
     try:
         vals, units, kind = _field_values(key, diag, state)
     except CaseError as exc:
-        notes.append(f"{field_label(key)}: {exc.reason if hasattr(exc, 'reason') else exc}; "
-                     "showing the height instead")
+        notes.append(
+            f"{field_label(key)}: {exc.reason if hasattr(exc, 'reason') else exc}; "
+            "showing the height instead"
+        )
         key = "height"
         vals, units, kind = _field_values(key, diag, state)
     raster = render.sample(geom, vals)
@@ -232,8 +270,11 @@ def chart_data(library, state: ViewState) -> ChartData:
         notes.append(f"{diag.no_wind}: the vectors are the geostrophic wind of the heights")
         kind_of_vectors = "geostrophic"
     if kind_of_vectors != "none":
-        uu, vv = {"wind": (diag.u, diag.v), "geostrophic": (diag.ug, diag.vg),
-                  "ageostrophic": (diag.u - diag.ug, diag.v - diag.vg)}[kind_of_vectors]
+        uu, vv = {
+            "wind": (diag.u, diag.v),
+            "geostrophic": (diag.ug, diag.vg),
+            "ageostrophic": (diag.u - diag.ug, diag.v - diag.vg),
+        }[kind_of_vectors]
         ur = render.sample(geom, uu)
         vr = render.sample(geom, vv)
         vectors = render.vector_lattice(geom, ur, vr, n_across=18)
@@ -242,18 +283,23 @@ def chart_data(library, state: ViewState) -> ChartData:
         vlabel = f"Vectors: {VECTORS[kind_of_vectors]}" + (" at 10 m" if diag.surface else "")
         x0, x1, y0, y1 = geom.extent
         cell = vectors["cell"] * speed / float(ref) if float(ref) > 0 else vectors["cell"]
-        arrow = {"x0": x0 + 0.04 * (x1 - x0), "y0": y0 + 0.05 * (y1 - y0),
-                 "x1": x0 + 0.04 * (x1 - x0) + 0.95 * cell, "y1": y0 + 0.05 * (y1 - y0),
-                 "text": f"{speed:g} {wunit}"}
+        arrow = {
+            "x0": x0 + 0.04 * (x1 - x0),
+            "y0": y0 + 0.05 * (y1 - y0),
+            "x1": x0 + 0.04 * (x1 - x0) + 0.95 * cell,
+            "y1": y0 + 0.05 * (y1 - y0),
+            "text": f"{speed:g} {wunit}",
+        }
         if kind_of_vectors != "wind" and np.isnan(ur).mean() > 0.05:
-            notes.append("geostrophic wind masked within "
-                         f"{state.min_lat:g} degrees of the equator")
+            notes.append(f"geostrophic wind masked within {state.min_lat:g} degrees of the equator")
     hover = _hover(geom, diag, vals, state, units)
     coast = render.coastlines(geom)
     coast_note = ""
     if coast is None:
-        coast_note = ("Coastlines unavailable: install the Debian package python-cartopy-data "
-                      "(offline GSHHS shorelines)")
+        coast_note = (
+            "Coastlines unavailable: install the Debian package python-cartopy-data "
+            "(offline GSHHS shorelines)"
+        )
     facts = case_facts(case)
     if "invented" in str(case.attrs.get("geography", "")):
         coast, coast_note = None, "Invented geography: real coastlines are not drawn"
@@ -275,21 +321,42 @@ def chart_data(library, state: ViewState) -> ChartData:
         masked = np.where(frac > 0.5, 1.0, np.nan).astype(np.float32)
         below = case.below_ground_mask(sel.time_index, sel.level_index)
         nb = 0 if below is None else int(np.count_nonzero(below))
-        notes.append(f"Grey: {100 * share:.0f} % of the level has no data"
-                     + (f" ({nb} points below the ground)" if nb else "")
-                     + "; those points are left out of every number")
+        notes.append(
+            f"Grey: {100 * share:.0f} % of the level has no data"
+            + (f" ({nb} points below the ground)" if nb else "")
+            + "; those points are left out of every number"
+        )
     title = f"{case.name} \u00b7 {level_text(sel.level_hpa)} \u00b7 {sel.when}"
-    return ChartData(geom=geom, title=title, level_hpa=sel.level_hpa, valid_time=sel.valid_time,
-                     when=sel.when, field_key=key,
-                     field_label="sea-level pressure" if key == "height" and diag.surface
-                     else field_label(key), units=units,
-                     raster=raster, color_range=_color_range(raster, kind), color_kind=kind,
-                     contours=contours, contour_units=zunits, contour_interval=interval,
-                     contour_label=contour_label,
-                     vectors=vectors, vector_label=vlabel, reference_arrow=arrow, hover=hover,
-                     coast=coast, coast_note=coast_note, land=land,
-                     graticule=render.graticule(geom), region_xy=region_xy, notes=notes,
-                     invented=facts["invented"], masked=masked, masked_share=share)
+    return ChartData(
+        geom=geom,
+        title=title,
+        level_hpa=sel.level_hpa,
+        valid_time=sel.valid_time,
+        when=sel.when,
+        field_key=key,
+        field_label="sea-level pressure" if key == "height" and diag.surface else field_label(key),
+        units=units,
+        raster=raster,
+        color_range=_color_range(raster, kind),
+        color_kind=kind,
+        contours=contours,
+        contour_units=zunits,
+        contour_interval=interval,
+        contour_label=contour_label,
+        vectors=vectors,
+        vector_label=vlabel,
+        reference_arrow=arrow,
+        hover=hover,
+        coast=coast,
+        coast_note=coast_note,
+        land=land,
+        graticule=render.graticule(geom),
+        region_xy=region_xy,
+        notes=notes,
+        invented=facts["invented"],
+        masked=masked,
+        masked_share=share,
+    )
 
 
 def _contour_field(geom, diag, sel, state):
@@ -300,8 +367,12 @@ def _contour_field(geom, diag, sel, state):
     from balance_core.systems import contour_interval
 
     if diag.surface:
-        return (render.sample(geom, diag.sea_level_pressure) / 100.0, "hPa",
-                contour_interval(None) / 100.0, "isobars")
+        return (
+            render.sample(geom, diag.sea_level_pressure) / 100.0,
+            "hPa",
+            contour_interval(None) / 100.0,
+            "isobars",
+        )
     zr, zunits = vocab.height(render.sample(geom, diag.height), state.height_units)
     k = vocab.HEIGHT_UNITS[state.height_units][1]
     return zr, zunits, contour_interval(sel.level_hpa * 100.0) * k, "height contours"
@@ -320,7 +391,7 @@ def _hover(geom, diag, vals, state, units, n_across=40):
     writes them (N/S/E/W, the units, "no data") when the mouse is over one."""
     ny, nx = geom.lon.shape
     step = max(1, nx // n_across)
-    jj, ii = np.mgrid[step // 2:ny:step, step // 2:nx:step]
+    jj, ii = np.mgrid[step // 2 : ny : step, step // 2 : nx : step]
     lon, lat = geom.lon[jj, ii], geom.lat[jj, ii]
     sub = dataclasses.replace(geom, rows=geom.rows[jj, ii], cols=geom.cols[jj, ii])
     f = render.sample(sub, vals)
@@ -336,12 +407,21 @@ def _hover(geom, diag, vals, state, units, n_across=40):
     dx = (geom.xs[-1] - geom.xs[0]) / max(nx - 1, 1) * step
     dy = (geom.ys[-1] - geom.ys[0]) / max(ny - 1, 1) * step
     f32 = np.float32
-    return {"x": geom.xs[ii][ok].astype(f32), "y": geom.ys[jj][ok].astype(f32),
-            "w": float(abs(dx)),
-            "h": float(abs(dy)), "lat": lat[ok].astype(f32), "lon": lon[ok].astype(f32),
-            "field": np.asarray(f[ok], f32), "height": np.asarray(z[ok], f32),
-            "speed": np.asarray(spd[ok], f32), "dir": np.asarray(direction[ok], f32),
-            "field_units": units, "height_units": zu, "wind_units": wu}
+    return {
+        "x": geom.xs[ii][ok].astype(f32),
+        "y": geom.ys[jj][ok].astype(f32),
+        "w": float(abs(dx)),
+        "h": float(abs(dy)),
+        "lat": lat[ok].astype(f32),
+        "lon": lon[ok].astype(f32),
+        "field": np.asarray(f[ok], f32),
+        "height": np.asarray(z[ok], f32),
+        "speed": np.asarray(spd[ok], f32),
+        "dir": np.asarray(direction[ok], f32),
+        "field_units": units,
+        "height_units": zu,
+        "wind_units": wu,
+    }
 
 
 def region_outline(geom, spec):
@@ -355,14 +435,21 @@ def region_outline(geom, spec):
 
 # -- the box ---------------------------------------------------------------------------
 
+
 def box_data(library, state: ViewState, thresholds: Thresholds = Thresholds()) -> dict:
     """The analysis of the state's region: the same object as ``balance-desk analyze``."""
     sel = resolve(library, state)
     diag = _diag(library, state, sel)
     case = library.case_for(state.case, state.min_lat)
-    rep = analyse_case(case, core_level(sel.level_hpa), sel.time_index, region_of(state),
-                       smooth_km=state.smooth_km or None, thresholds=thresholds,
-                       diagnostics=diag)
+    rep = analyse_case(
+        case,
+        core_level(sel.level_hpa),
+        sel.time_index,
+        region_of(state),
+        smooth_km=state.smooth_km or None,
+        thresholds=thresholds,
+        diagnostics=diag,
+    )
     rep["region_text"] = state.region_text()
     rep["when"] = sel.when
     rep["invented"] = case_facts(case)["invented"]
@@ -371,8 +458,19 @@ def box_data(library, state: ViewState, thresholds: Thresholds = Thresholds()) -
 
 
 #: what a chart and a region's report depend on (the rest of the state does not change them)
-CHART_KEYS = ("case", "level", "time", "field", "vectors", "smooth_km", "min_lat", "region",
-              "projection", "height_units", "wind_units")
+CHART_KEYS = (
+    "case",
+    "level",
+    "time",
+    "field",
+    "vectors",
+    "smooth_km",
+    "min_lat",
+    "region",
+    "projection",
+    "height_units",
+    "wind_units",
+)
 BOX_KEYS = ("case", "level", "time", "smooth_km", "min_lat", "region")
 
 
@@ -403,8 +501,9 @@ def _read_only(obj):
 def shared_chart_data(library, state: ViewState) -> ChartData:
     """:func:`chart_data`, computed once per view for every session that shows it (a review
     room's followers). The result is shared: its arrays are read-only."""
-    return library.view(_key("chart", state, CHART_KEYS),
-                        lambda: _read_only(chart_data(library, state)))
+    return library.view(
+        _key("chart", state, CHART_KEYS), lambda: _read_only(chart_data(library, state))
+    )
 
 
 def ready_chart_data(library, state: ViewState):
@@ -424,8 +523,9 @@ def shared_box_data(library, state: ViewState, thresholds: Thresholds = Threshol
     """:func:`box_data`, computed once per view for every session; each gets its own copy."""
     import copy
 
-    rep = library.view(_key("box", state, BOX_KEYS, thresholds),
-                       lambda: box_data(library, state, thresholds))
+    rep = library.view(
+        _key("box", state, BOX_KEYS, thresholds), lambda: box_data(library, state, thresholds)
+    )
     return copy.deepcopy(rep)
 
 
@@ -450,13 +550,24 @@ def levels_data(library, state: ViewState, progress=None) -> dict:
                 rows.append({"level_hpa": float(p / 100), "error": str(exc)})
             else:
                 mags = {t["name"]: t["magnitude"] for t in rep["terms"] + rep["derived"]}
-                rows.append({"level_hpa": float(p / 100), "magnitudes": mags,
-                             "balance": rep["verdict"]["balance"], "ratios": rep["balances"],
-                             "valid_share": rep.get("valid_share")})
+                rows.append(
+                    {
+                        "level_hpa": float(p / 100),
+                        "magnitudes": mags,
+                        "balance": rep["verdict"]["balance"],
+                        "ratios": rep["balances"],
+                        "valid_share": rep.get("valid_share"),
+                    }
+                )
             if progress is not None:
                 progress(k + 1, n)
-        return {"rows": rows, "region": state.region_text(), "time": sel.valid_time,
-                "when": sel.when, "region_kind": region.kind}
+        return {
+            "rows": rows,
+            "region": state.region_text(),
+            "time": sel.valid_time,
+            "when": sel.when,
+            "region_kind": region.kind,
+        }
 
     return library.profile(key, make)
 
@@ -475,14 +586,23 @@ def times_data(library, state: ViewState, progress=None) -> dict:
             try:
                 rep = box_data(library, s2)
             except CaseError:
-                out.append({"time": iso(when), "rossby_local": None, "ageostrophic_fraction": None,
-                            "balance": None})
+                out.append(
+                    {
+                        "time": iso(when),
+                        "rossby_local": None,
+                        "ageostrophic_fraction": None,
+                        "balance": None,
+                    }
+                )
             else:
-                out.append({"time": iso(when),
-                            "rossby_local": rep["numbers"].get("rossby_local_median"),
-                            "ageostrophic_fraction":
-                                rep["winds"].get("ageostrophic_fraction_median"),
-                            "balance": rep["verdict"]["balance"]})
+                out.append(
+                    {
+                        "time": iso(when),
+                        "rossby_local": rep["numbers"].get("rossby_local_median"),
+                        "ageostrophic_fraction": rep["winds"].get("ageostrophic_fraction_median"),
+                        "balance": rep["verdict"]["balance"],
+                    }
+                )
             if progress is not None:
                 progress(t + 1, n)
         return {"series": out, "current": sel.valid_time, "level_hpa": sel.level_hpa}
@@ -491,6 +611,7 @@ def times_data(library, state: ViewState, progress=None) -> dict:
 
 
 # -- the a priori scale sheet ------------------------------------------------------------
+
 
 def scale_sheet(state: ViewState, box_report: dict | None) -> dict:
     """The preset (with the state's edits), its ranked magnitudes, numbers and verdict, beside
@@ -521,23 +642,50 @@ def scale_sheet(state: ViewState, box_report: dict | None) -> dict:
     term_rows = []
     for name, mag in res.terms:
         data_name = alias.get(name, name)
-        term_rows.append({"name": name, "label": vocab.term_name(name),
-                          "data_label": vocab.term_name(data_name) +
-                          (" (all that is unresolved)" if name == "viscous" else ""),
-                          "sheet": mag, "from_box_scales": estimated.get(data_name),
-                          "measured": measured.get(data_name)})
+        term_rows.append(
+            {
+                "name": name,
+                "label": vocab.term_name(name),
+                "data_label": vocab.term_name(data_name)
+                + (" (all that is unresolved)" if name == "viscous" else ""),
+                "sheet": mag,
+                "from_box_scales": estimated.get(data_name),
+                "measured": measured.get(data_name),
+            }
+        )
     scale_rows = []
     for k in SHEET_SCALES:
         box_k = {"lat0": None, "rho": None}.get(k, box_scales.get(k))
-        scale_rows.append({"name": k, "label": vocab.SCALE_NAMES.get(k, k),
-                           "sheet": getattr(s, k), "from_box": box_k,
-                           "edited": k in changes})
-    scale_rows.append({"name": "f0", "label": vocab.SCALE_NAMES["f0"], "sheet": s.f0,
-                       "from_box": box_scales.get("f0"), "edited": False})
-    return {"preset": state.preset, "preset_label": vocab.preset_name(state.preset),
-            "source": s.source, "scales": scale_rows, "terms": term_rows,
-            "numbers": res.numbers, "verdict": verdict.as_dict(), "error": error,
-            "box_verdict": (box_report or {}).get("verdict"), "order": list(SCALE_TERMS)}
+        scale_rows.append(
+            {
+                "name": k,
+                "label": vocab.SCALE_NAMES.get(k, k),
+                "sheet": getattr(s, k),
+                "from_box": box_k,
+                "edited": k in changes,
+            }
+        )
+    scale_rows.append(
+        {
+            "name": "f0",
+            "label": vocab.SCALE_NAMES["f0"],
+            "sheet": s.f0,
+            "from_box": box_scales.get("f0"),
+            "edited": False,
+        }
+    )
+    return {
+        "preset": state.preset,
+        "preset_label": vocab.preset_name(state.preset),
+        "source": s.source,
+        "scales": scale_rows,
+        "terms": term_rows,
+        "numbers": res.numbers,
+        "verdict": verdict.as_dict(),
+        "error": error,
+        "box_verdict": (box_report or {}).get("verdict"),
+        "order": list(SCALE_TERMS),
+    }
 
 
 # -- systems --------------------------------------------------------------------------
@@ -557,8 +705,10 @@ def system_region_spec(r: dict, radius_m: float | None = None):
         text = f"circle:{r['lon']:.4f},{r['lat']:.4f},{r['radius_km']:.1f}"
     elif r["kind"] == "flow_box":
         corners = ";".join(f"{lo:.4f},{la:.4f}" for lo, la in r["corners"])
-        text = (f"area:aeqd,lat_0={r['lat_0']:.6f},lon_0={r['lon_0']:.6f},"
-                f"R={radius_m or EARTH_RADIUS:.4f};{corners}")
+        text = (
+            f"area:aeqd,lat_0={r['lat_0']:.6f},lon_0={r['lon_0']:.6f},"
+            f"R={radius_m or EARTH_RADIUS:.4f};{corners}"
+        )
     else:
         text = f"box:{r['west']:.4f},{r['east']:.4f},{r['south']:.4f},{r['north']:.4f}"
     return parse_region(text)[0]  # the link's own compact form
@@ -579,9 +729,14 @@ def systems_data(library, state: ViewState, thresholds: Thresholds = Thresholds(
     def make():
         sel = resolve(library, state)
         case = library.case_for(state.case, state.min_lat)
-        out = analyse_systems(case, core_level(sel.level_hpa), sel.time_index,
-                              smooth_km=state.smooth_km or None, thresholds=thresholds,
-                              diagnostics=_diag(library, state, sel))
+        out = analyse_systems(
+            case,
+            core_level(sel.level_hpa),
+            sel.time_index,
+            smooth_km=state.smooth_km or None,
+            thresholds=thresholds,
+            diagnostics=_diag(library, state, sel),
+        )
         order = {"low": 0, "high": 1, "jet_streak": 2}
         systems = sorted(out["systems"], key=lambda s: (order[s["kind"]], -s["intensity"]))
         count = {}
@@ -592,27 +747,43 @@ def systems_data(library, state: ViewState, thresholds: Thresholds = Thresholds(
             spec = system_region_spec(s["region"])
             region = spec.to_text() if spec is not None else ""
             rep = s["report"]
-            rows.append({"label": f"{letter}{count[letter]}", "kind": s["kind"],
-                         "lon": s["lon"], "lat": s["lat"], "intensity": s["intensity"],
-                         "value": s["value"], "depth": s["depth"],
-                         "outer_level": s["outer_level"],
-                         "units": s.get("units", "m"), "note": s.get("note", ""),
-                         "intensity_text": formats.intensity_text(s),
-                         "region": region, "region_text": formats.system_region_text(s["region"]),
-                         "verdict": rep["verdict"]["balance"],
-                         "verdict_text": rep["verdict"]["text"],
-                         "points": rep.get("points", 0),
-                         "rossby_local": (rep.get("numbers") or {}).get("rossby_local_median"),
-                         "ageostrophic_parts": rep.get("ageostrophic_parts")})
-        return {"systems": rows, "rules": out["rules"], "when": sel.when,
-                "level_hpa": out.get("level_hpa"), "level": out.get("level"),
-                "notes": out.get("notes", [])}
+            rows.append(
+                {
+                    "label": f"{letter}{count[letter]}",
+                    "kind": s["kind"],
+                    "lon": s["lon"],
+                    "lat": s["lat"],
+                    "intensity": s["intensity"],
+                    "value": s["value"],
+                    "depth": s["depth"],
+                    "outer_level": s["outer_level"],
+                    "units": s.get("units", "m"),
+                    "note": s.get("note", ""),
+                    "intensity_text": formats.intensity_text(s),
+                    "region": region,
+                    "region_text": formats.system_region_text(s["region"]),
+                    "verdict": rep["verdict"]["balance"],
+                    "verdict_text": rep["verdict"]["text"],
+                    "points": rep.get("points", 0),
+                    "rossby_local": (rep.get("numbers") or {}).get("rossby_local_median"),
+                    "ageostrophic_parts": rep.get("ageostrophic_parts"),
+                }
+            )
+        return {
+            "systems": rows,
+            "rules": out["rules"],
+            "when": sel.when,
+            "level_hpa": out.get("level_hpa"),
+            "level": out.get("level"),
+            "notes": out.get("notes", []),
+        }
 
     return library.view(_key("systems", state, SYSTEM_KEYS, thresholds), make)
 
 
-def system_life(library, state: ViewState, label: str,
-                thresholds: Thresholds = Thresholds()) -> dict | None:
+def system_life(
+    library, state: ViewState, label: str, thresholds: Thresholds = Thresholds()
+) -> dict | None:
     """The track through the valid times of the system ``label`` of the state's time:
     its centre, intensity, local Rossby number and verdict at each time (None if it is
     not found)."""
@@ -627,17 +798,29 @@ def system_life(library, state: ViewState, label: str,
 
     def make():
         case = library.case_for(state.case, state.min_lat)
-        return track_systems(case, core_level(sel.level_hpa),
-                             smooth_km=state.smooth_km or None,
-                             thresholds=thresholds)
+        return track_systems(
+            case,
+            core_level(sel.level_hpa),
+            smooth_km=state.smooth_km or None,
+            thresholds=thresholds,
+        )
 
     tracks = library.view(key, make)
     when = sel.valid_time
     for tr in tracks["tracks"]:
         for p in tr["life"]:
-            if p["valid_time"] == when and tr["kind"] == me["kind"] and \
-                    abs(p["lon"] - me["lon"]) < 1e-6 and abs(p["lat"] - me["lat"]) < 1e-6:
-                return {"label": label, "kind": tr["kind"], "units": me.get("units", "m"),
-                        "life": tr["life"], "match": tracks["match"],
-                        "notes": tracks.get("notes", [])}
+            if (
+                p["valid_time"] == when
+                and tr["kind"] == me["kind"]
+                and abs(p["lon"] - me["lon"]) < 1e-6
+                and abs(p["lat"] - me["lat"]) < 1e-6
+            ):
+                return {
+                    "label": label,
+                    "kind": tr["kind"],
+                    "units": me.get("units", "m"),
+                    "life": tr["life"],
+                    "match": tracks["match"],
+                    "notes": tracks.get("notes", []),
+                }
     return None

@@ -24,11 +24,20 @@ __all__ = ["briefing_png", "OUTLINE_RGB", "INVENTED_RGB"]
 OUTLINE_RGB = (0xE6, 0x9F, 0x00)
 #: the invented-data mark's background, which tests look for too
 INVENTED_RGB = (0x5C, 0x0A, 0x5C)
-INVENTED_RGB_HEX = "#%02X%02X%02X" % INVENTED_RGB
+INVENTED_RGB_HEX = "#{:02X}{:02X}{:02X}".format(*INVENTED_RGB)
 
 
-def briefing_png(chart, report, outline, *, region_text: str, caution: str,
-                 invented_text: str, notes=(), room_notes=()) -> bytes:
+def briefing_png(
+    chart,
+    report,
+    outline,
+    *,
+    region_text: str,
+    caution: str,
+    invented_text: str,
+    notes=(),
+    room_notes=(),
+) -> bytes:
     """A PNG of the chart beside the ranked term magnitudes (see the module docstring).
 
     ``outline`` is the region's (x, y) in the chart's view coordinates, or None
@@ -51,12 +60,19 @@ def briefing_png(chart, report, outline, *, region_text: str, caution: str,
         title = f"{chart.title}"
     fig.suptitle(title, fontsize=17, fontweight="bold", x=0.04, y=0.975, ha="left")
     fig.text(0.04, 0.905, f"Region: {region_text}", fontsize=13)
-    if invented_text and (chart is not None and chart.invented or
-                          (report or {}).get("invented")):
+    if invented_text and (chart is not None and chart.invented or (report or {}).get("invented")):
         # on the region's line, right-aligned: clear of the title however long it is
-        fig.text(0.985, 0.915, invented_text, fontsize=13, fontweight="bold", color="white",
-                 ha="right", va="center", bbox=dict(facecolor=INVENTED_RGB_HEX, edgecolor="none",
-                                                    pad=6))
+        fig.text(
+            0.985,
+            0.915,
+            invented_text,
+            fontsize=13,
+            fontweight="bold",
+            color="white",
+            ha="right",
+            va="center",
+            bbox=dict(facecolor=INVENTED_RGB_HEX, edgecolor="none", pad=6),
+        )
     if report and report.get("terms"):
         _draw_ranking(fig, axr, axb, report)
     else:
@@ -80,9 +96,16 @@ def _draw_room_notes(fig, ax, room_notes, shown=4):
     for label, xy, _text in room_notes:
         if ax is not None and xy is not None:
             ax.plot(*xy, marker="s", ms=9, color="#1a1a1a", mec="white", mew=1.5)
-            ax.annotate(label, xy, xytext=(7, 3), textcoords="offset points", fontsize=11,
-                        color="white", fontweight="bold",
-                        bbox=dict(facecolor="#1a1a1a", lw=0, pad=1.5))
+            ax.annotate(
+                label,
+                xy,
+                xytext=(7, 3),
+                textcoords="offset points",
+                fontsize=11,
+                color="white",
+                fontweight="bold",
+                bbox=dict(facecolor="#1a1a1a", lw=0, pad=1.5),
+            )
     lines = []
     for label, _xy, text in room_notes[:shown]:
         short = textwrap.shorten(text, width=70, placeholder="\u2026")
@@ -102,16 +125,36 @@ def _draw_chart(fig, ax, chart, outline):
         from matplotlib.colors import LogNorm
 
         data = np.where(data > 0, data, np.nan)
-        im = ax.imshow(data, origin="lower", extent=(x0, x1, y0, y1), cmap="cividis",
-                       norm=LogNorm(*chart.color_range), aspect="auto")
+        im = ax.imshow(
+            data,
+            origin="lower",
+            extent=(x0, x1, y0, y1),
+            cmap="cividis",
+            norm=LogNorm(*chart.color_range),
+            aspect="auto",
+        )
     else:
         cmap = "RdBu_r" if chart.color_kind == "diverging" else "cividis"
-        im = ax.imshow(data, origin="lower", extent=(x0, x1, y0, y1), cmap=cmap,
-                       vmin=chart.color_range[0], vmax=chart.color_range[1], aspect="auto")
+        im = ax.imshow(
+            data,
+            origin="lower",
+            extent=(x0, x1, y0, y1),
+            cmap=cmap,
+            vmin=chart.color_range[0],
+            vmax=chart.color_range[1],
+            aspect="auto",
+        )
     if chart.masked is not None:
-        ax.imshow(np.where(np.isfinite(chart.masked), 1.0, np.nan), origin="lower",
-                  extent=(x0, x1, y0, y1), cmap="Greys", vmin=0, vmax=1.8, alpha=0.6,
-                  aspect="auto")
+        ax.imshow(
+            np.where(np.isfinite(chart.masked), 1.0, np.nan),
+            origin="lower",
+            extent=(x0, x1, y0, y1),
+            cmap="Greys",
+            vmin=0,
+            vmax=1.8,
+            alpha=0.6,
+            aspect="auto",
+        )
     cb = fig.colorbar(im, ax=ax, fraction=0.035, pad=0.01)
     cb.set_label(chart.field_label + (f" ({chart.units})" if chart.units else ""), fontsize=13)
     cb.ax.tick_params(labelsize=12)
@@ -120,8 +163,15 @@ def _draw_chart(fig, ax, chart, outline):
         ax.plot(xs, ys, color="black", lw=1.0)
     digits = 1 if chart.contour_units == "dam" and chart.contour_interval < 1.5 else 0
     for x, y, v in labels:
-        ax.text(x, y, f"{v:.{digits}f}", fontsize=11, ha="center", va="center",
-                bbox=dict(facecolor="white", alpha=0.85, lw=0, pad=1))
+        ax.text(
+            x,
+            y,
+            f"{v:.{digits}f}",
+            fontsize=11,
+            ha="center",
+            va="center",
+            bbox=dict(facecolor="white", alpha=0.85, lw=0, pad=1),
+        )
     if chart.coast is not None:
         for xs, ys in zip(*chart.coast):
             ax.plot(xs, ys, color="#222222", lw=1.2)
@@ -132,21 +182,45 @@ def _draw_chart(fig, ax, chart, outline):
     for xs, ys in zip(gx, gy):
         ax.plot(xs, ys, color="#555555", lw=0.8, ls=":")
     for x, y, text, _ in glab:
-        ax.text(x, y, text, fontsize=10, color="#1a1a1a",
-                bbox=dict(facecolor="white", alpha=0.85, lw=0, pad=1))
+        ax.text(
+            x,
+            y,
+            text,
+            fontsize=10,
+            color="#1a1a1a",
+            bbox=dict(facecolor="white", alpha=0.85, lw=0, pad=1),
+        )
     if chart.vectors is not None:
         v = chart.vectors
-        ax.quiver(v["x0"], v["y0"], v["x1"] - v["x0"], v["y1"] - v["y0"], angles="xy",
-                  scale_units="xy", scale=1, width=0.0022, color="black")
+        ax.quiver(
+            v["x0"],
+            v["y0"],
+            v["x1"] - v["x0"],
+            v["y1"] - v["y0"],
+            angles="xy",
+            scale_units="xy",
+            scale=1,
+            width=0.0022,
+            color="black",
+        )
     a = chart.reference_arrow
     if a is not None:
-        ax.annotate("", xy=(a["x1"], a["y1"]), xytext=(a["x0"], a["y0"]),
-                    arrowprops=dict(arrowstyle="-|>", lw=2.2, color="black"))
-        ax.text(a["x0"], a["y0"] + 0.025 * (y1 - y0), f"arrow: {a['text']}", fontsize=11,
-                bbox=dict(facecolor="white", alpha=0.9, lw=0, pad=2))
+        ax.annotate(
+            "",
+            xy=(a["x1"], a["y1"]),
+            xytext=(a["x0"], a["y0"]),
+            arrowprops=dict(arrowstyle="-|>", lw=2.2, color="black"),
+        )
+        ax.text(
+            a["x0"],
+            a["y0"] + 0.025 * (y1 - y0),
+            f"arrow: {a['text']}",
+            fontsize=11,
+            bbox=dict(facecolor="white", alpha=0.9, lw=0, pad=2),
+        )
     if outline is not None:
         ax.plot(*outline, color="white", lw=5)
-        ax.plot(*outline, color="#%02X%02X%02X" % OUTLINE_RGB, lw=3)
+        ax.plot(*outline, color="#{:02X}{:02X}{:02X}".format(*OUTLINE_RGB), lw=3)
     ax.set_xlim(x0, x1)
     ax.set_ylim(y0, y1)
     if g.kind != "plate_carree":
@@ -157,10 +231,12 @@ def _draw_chart(fig, ax, chart, outline):
         ax.xaxis.set_major_formatter(lambda x, _: vocab.lon(x, 0))
         ax.yaxis.set_major_formatter(lambda y, _: vocab.lat(y, 0))
     ax.tick_params(labelsize=12)
-    interval = "" if not math.isfinite(chart.contour_interval) else \
-        f" every {chart.contour_interval:g} {chart.contour_units}"
-    ax.set_title(f"{chart.field_label}; {chart.contour_label}{interval}; {g.label}",
-                 fontsize=13)
+    interval = (
+        ""
+        if not math.isfinite(chart.contour_interval)
+        else f" every {chart.contour_interval:g} {chart.contour_units}"
+    )
+    ax.set_title(f"{chart.field_label}; {chart.contour_label}{interval}; {g.label}", fontsize=13)
 
 
 def _draw_ranking(fig, axr, axb, report):
@@ -171,8 +247,15 @@ def _draw_ranking(fig, axr, axb, report):
     if vals:
         lo = 10.0 ** math.floor(math.log10(min(vals))) / 10
         axr.barh(names, [v - lo for v in vals], left=lo, color="#0072B2")
-        axr.scatter(est, names, marker="D", facecolor="white", edgecolor="black", zorder=3,
-                    label="a priori (region's scales)")
+        axr.scatter(
+            est,
+            names,
+            marker="D",
+            facecolor="white",
+            edgecolor="black",
+            zorder=3,
+            label="a priori (region's scales)",
+        )
         axr.set_xscale("log")
         axr.legend(fontsize=11, loc="lower right")
     axr.set_xlabel("m s-2 (area-weighted RMS)", fontsize=12)
@@ -180,8 +263,11 @@ def _draw_ranking(fig, axr, axb, report):
     axr.set_title("Terms in the region", fontsize=14)
     bal = [(k, r) for k, r in report["balances"].items() if r is not None]
     chosen = report["verdict"]["balance"]
-    axb.barh([vocab.balance_name(k) for k, _ in bal], [min(r, 1.5) for _, r in bal],
-             color=["#E69F00" if k == chosen else "#8a8a8a" for k, _ in bal])
+    axb.barh(
+        [vocab.balance_name(k) for k, _ in bal],
+        [min(r, 1.5) for _, r in bal],
+        color=["#E69F00" if k == chosen else "#8a8a8a" for k, _ in bal],
+    )
     axb.axvline(0.3, color="black", ls="--")
     axb.set_xlim(0, 1.6)
     axb.tick_params(labelsize=12)
@@ -190,5 +276,12 @@ def _draw_ranking(fig, axr, axb, report):
     name = vocab.balance_name(v["balance"])
     # the verdict's sentence names its balance first ("Geostrophic: ..."); it is not repeated
     text = v["text"] if v["text"].lower().startswith(name.lower()) else f"{name}. {v['text']}"
-    fig.text(0.655, 0.85, textwrap.fill(text, 62), fontsize=12, va="top", ha="left",
-             bbox=dict(facecolor="#fafafa", edgecolor="#E69F00", lw=2, pad=6))
+    fig.text(
+        0.655,
+        0.85,
+        textwrap.fill(text, 62),
+        fontsize=12,
+        va="top",
+        ha="left",
+        bbox=dict(facecolor="#fafafa", edgecolor="#E69F00", lw=2, pad=6),
+    )

@@ -16,9 +16,20 @@ import math
 
 from . import vocab
 
-__all__ = ["table", "export_json", "export_csv", "context_of", "clean", "systems_table",
-           "systems_csv", "system_region_text", "intensity_text", "quantity", "rules_text",
-           "level_text"]
+__all__ = [
+    "table",
+    "export_json",
+    "export_csv",
+    "context_of",
+    "clean",
+    "systems_table",
+    "systems_csv",
+    "system_region_text",
+    "intensity_text",
+    "quantity",
+    "rules_text",
+    "level_text",
+]
 
 
 def clean(obj):
@@ -44,15 +55,25 @@ def _round(obj, digits=4):
     return obj
 
 
-def context_of(rep: dict, *, region_text: str | None = None, wind_units: str = "m/s",
-               height_units: str = "m", case_title: str | None = None,
-               invented: bool = False) -> dict:
+def context_of(
+    rep: dict,
+    *,
+    region_text: str | None = None,
+    wind_units: str = "m/s",
+    height_units: str = "m",
+    case_title: str | None = None,
+    invented: bool = False,
+) -> dict:
     """What view a report belongs to, for the exports (and their headings)."""
     return {
-        "case": rep.get("case"), "case_title": case_title, "invented_demo_data": bool(invented),
-        "level_hpa": rep.get("level_hpa"), "level": level_text(rep),
+        "case": rep.get("case"),
+        "case_title": case_title,
+        "invented_demo_data": bool(invented),
+        "level_hpa": rep.get("level_hpa"),
+        "level": level_text(rep),
         "valid_time": rep.get("valid_time"),
-        "reference_time": rep.get("reference_time"), "lead_time_h": rep.get("lead_time_h"),
+        "reference_time": rep.get("reference_time"),
+        "lead_time_h": rep.get("lead_time_h"),
         "valid_time_text": vocab.when(rep.get("valid_time"), rep.get("reference_time")),
         "region": region_text or _box_text(rep.get("box")),
         "units": {"terms": "m s-2", "wind": wind_units, "height": height_units},
@@ -69,8 +90,10 @@ def level_text(rep: dict) -> str:
 def _box_text(box):
     if not box or box.get("west") is None:
         return "whole case"
-    return (f"box {vocab.lon(box['west'])} to {vocab.lon(box['east'])}, "
-            f"{vocab.lat(box['south'])} to {vocab.lat(box['north'])}")
+    return (
+        f"box {vocab.lon(box['west'])} to {vocab.lon(box['east'])}, "
+        f"{vocab.lat(box['south'])} to {vocab.lat(box['north'])}"
+    )
 
 
 def _winds_in(rep, wind_units):
@@ -94,31 +117,95 @@ def export_csv(rep: dict, context: dict) -> str:
     buf = io.StringIO()
     w = csv.writer(buf)
     level = context["level_hpa"]
-    ctx = [context["case"], context.get("level") if level is None else f"{level:g}",
-           context["valid_time"],
-           context["reference_time"] or "", _num(context["lead_time_h"]), context["region"]]
-    w.writerow(["case", "level (hPa)", "valid time", "reference time", "lead time (h)", "region",
-                "kind", "name", "value", "unit", "x part", "y part", "a priori estimate", "note"])
+    ctx = [
+        context["case"],
+        context.get("level") if level is None else f"{level:g}",
+        context["valid_time"],
+        context["reference_time"] or "",
+        _num(context["lead_time_h"]),
+        context["region"],
+    ]
+    w.writerow(
+        [
+            "case",
+            "level (hPa)",
+            "valid time",
+            "reference time",
+            "lead time (h)",
+            "region",
+            "kind",
+            "name",
+            "value",
+            "unit",
+            "x part",
+            "y part",
+            "a priori estimate",
+            "note",
+        ]
+    )
     for kind, rows in (("term", rep.get("terms", [])), ("derived view", rep.get("derived", []))):
         for t in rows:
-            w.writerow(ctx + [kind, vocab.term_name(t["name"]), _num(t["magnitude"]), "m s-2",
-                              _num(t["x_rms"]), _num(t["y_rms"]), _num(t["estimate"]),
-                              t["note"] or ""])
+            w.writerow(
+                ctx
+                + [
+                    kind,
+                    vocab.term_name(t["name"]),
+                    _num(t["magnitude"]),
+                    "m s-2",
+                    _num(t["x_rms"]),
+                    _num(t["y_rms"]),
+                    _num(t["estimate"]),
+                    t["note"] or "",
+                ]
+            )
     chosen = (rep.get("verdict") or {}).get("balance")
     for k, v in (rep.get("balances") or {}).items():
-        w.writerow(ctx + ["balance (imbalance ratio)", vocab.balance_name(k), _num(v), "", "",
-                          "", "", "the verdict" if k == chosen else ""])
+        w.writerow(
+            ctx
+            + [
+                "balance (imbalance ratio)",
+                vocab.balance_name(k),
+                _num(v),
+                "",
+                "",
+                "",
+                "",
+                "the verdict" if k == chosen else "",
+            ]
+        )
     for k, v in (rep.get("numbers") or {}).items():
         name, unit, _ = vocab.NUMBERS.get(k, (k, "", ""))
         w.writerow(ctx + ["number", name, _num(v), unit, "", "", "", ""])
     unit = context["units"]["wind"]
     for k, v in _winds_in(rep, unit).items():
         is_speed = k.endswith("_rms")
-        w.writerow(ctx + ["wind", k.replace("_", " ").replace(" rms", " (RMS)"), _num(v),
-                          unit if is_speed else "", "", "", "", ""])
+        w.writerow(
+            ctx
+            + [
+                "wind",
+                k.replace("_", " ").replace(" rms", " (RMS)"),
+                _num(v),
+                unit if is_speed else "",
+                "",
+                "",
+                "",
+                "",
+            ]
+        )
     v = rep.get("verdict") or {}
-    w.writerow(ctx + ["verdict", vocab.balance_name(v.get("balance", "")), "", "", "", "", "",
-                      v.get("text", "")])
+    w.writerow(
+        ctx
+        + [
+            "verdict",
+            vocab.balance_name(v.get("balance", "")),
+            "",
+            "",
+            "",
+            "",
+            "",
+            v.get("text", ""),
+        ]
+    )
     return buf.getvalue()
 
 
@@ -129,6 +216,7 @@ def _num(x):
 
 # -- the command line's table ----------------------------------------------------------------
 
+
 def _fmt(x, spec=".2e"):
     return "n/a" if x is None else format(x, spec)
 
@@ -137,13 +225,16 @@ def table(rep: dict) -> str:
     """The text of ``balance-desk analyze`` (format table)."""
     where = _box_text(rep["box"])
     share = rep.get("valid_share")
-    lines = [f"{rep['case']}  {level_text(rep)}  "
-             f"{vocab.when(rep['valid_time'], rep.get('reference_time'))}  {where}",
-             f"{rep['points']} of {rep.get('region_points', rep['points'])} points valid"
-             + (f" ({100 * share:.0f} %)" if share is not None else "")
-             + f", {rep['masked_points']} masked", "",
-             f"verdict: {vocab.balance_name(rep['verdict']['balance'])}",
-             f"  {rep['verdict']['text']}"]
+    lines = [
+        f"{rep['case']}  {level_text(rep)}  "
+        f"{vocab.when(rep['valid_time'], rep.get('reference_time'))}  {where}",
+        f"{rep['points']} of {rep.get('region_points', rep['points'])} points valid"
+        + (f" ({100 * share:.0f} %)" if share is not None else "")
+        + f", {rep['masked_points']} masked",
+        "",
+        f"verdict: {vocab.balance_name(rep['verdict']['balance'])}",
+        f"  {rep['verdict']['text']}",
+    ]
     if rep["verdict"].get("why"):
         lines.append(f"  why: {rep['verdict']['why']}")
     lines.append("")
@@ -153,15 +244,20 @@ def table(rep: dict) -> str:
         ratio = _fmt(t["magnitude"] / pgf, ".2f") if t["magnitude"] is not None and pgf else "n/a"
         note = t["note"] if t["magnitude"] is None or t["name"] == "residual" else ""
         est = _fmt(t["estimate"]) + ("*" if t.get("estimate_by_construction") else "")
-        lines.append(f"  {vocab.term_name(t['name']):<25}  {_fmt(t['magnitude']):<16}  "
-                     f"{est:<9}  {ratio:<6}  {note or ''}".rstrip())
+        lines.append(
+            f"  {vocab.term_name(t['name']):<25}  {_fmt(t['magnitude']):<16}  "
+            f"{est:<9}  {ratio:<6}  {note or ''}".rstrip()
+        )
     if any(t.get("estimate_by_construction") for t in rep["terms"]):
-        lines.append("  * a priori estimate made of the same fields as the term: it agrees by "
-                     "construction")
+        lines.append(
+            "  * a priori estimate made of the same fields as the term: it agrees by construction"
+        )
     lines.append("  derived views (not part of the sum)")
     for t in rep["derived"]:
-        lines.append(f"  {vocab.term_name(t['name']):<25}  {_fmt(t['magnitude']):<16}  "
-                     f"{_fmt(t['estimate']):<9}")
+        lines.append(
+            f"  {vocab.term_name(t['name']):<25}  {_fmt(t['magnitude']):<16}  "
+            f"{_fmt(t['estimate']):<9}"
+        )
     lines += ["", "  balance         imbalance ratio (RMS of the sum / RMS of the PGF)"]
     not_tested = rep["verdict"].get("not_tested", {})
     for k, v in rep["balances"].items():
@@ -184,25 +280,38 @@ def table(rep: dict) -> str:
     for k, text in rep.get("explain", {}).items():
         lines.append(f"    {vocab.NUMBERS.get(k, (k,))[0]}: {text}")
     if rep.get("scales"):
-        lines += ["", "  scales from the box: " + ", ".join(
-            f"{k} {_fmt(v, '.2e')}" for k, v in rep["scales"].items())]
+        lines += [
+            "",
+            "  scales from the box: "
+            + ", ".join(f"{k} {_fmt(v, '.2e')}" for k, v in rep["scales"].items()),
+        ]
         for k, text in rep.get("scales_recipe", {}).items():
             lines.append(f"    {k}: {text}")
     res = rep.get("resolution")
     if res:
-        lines.append(f"  resolution: grid spacing {res['grid_spacing_km']:.0f} km, flow length "
-                     f"scale {res['flow_length_km']:.0f} km ({res['points_per_length']:.1f} "
-                     f"spacings): {'resolved' if res['resolved'] else 'UNDER-RESOLVED'}")
+        lines.append(
+            f"  resolution: grid spacing {res['grid_spacing_km']:.0f} km, flow length "
+            f"scale {res['flow_length_km']:.0f} km ({res['points_per_length']:.1f} "
+            f"spacings): {'resolved' if res['resolved'] else 'UNDER-RESOLVED'}"
+        )
     for c in rep.get("residual_causes", []):
         lines.append(f"  residual: {c}")
     if rep.get("sources"):
         lines += ["", "  sources"]
         for role, src in rep["sources"].items():
-            grib = (f", GRIB {src['grib_short_name']} (paramId {src['grib_param_id']}, "
-                    f"{src['grib_type_of_level']})") if src.get("grib_short_name") else ""
-            conv = (f", {src['units_from']} -> {src['units_to']}"
-                    if src.get("units_from") and _differ(src["units_from"], src["units_to"])
-                    else "")
+            grib = (
+                (
+                    f", GRIB {src['grib_short_name']} (paramId {src['grib_param_id']}, "
+                    f"{src['grib_type_of_level']})"
+                )
+                if src.get("grib_short_name")
+                else ""
+            )
+            conv = (
+                f", {src['units_from']} -> {src['units_to']}"
+                if src.get("units_from") and _differ(src["units_from"], src["units_to"])
+                else ""
+            )
             lines.append(f"  {role:<17} {src['variable']!r} ({src['level_type']}{grib}{conv})")
     for why in rep.get("left_out", {}).values():
         lines.append(f"  left out: {why}")
@@ -219,15 +328,22 @@ def _differ(a, b) -> bool:
 
 # -- systems ------------------------------------------------------------------------------
 
+
 def system_region_text(region: dict) -> str:
     if region["kind"] == "circle":
-        return (f"within {region['radius_km']:.0f} km of {vocab.lat(region['lat'])} "
-                f"{vocab.lon(region['lon'])}")
+        return (
+            f"within {region['radius_km']:.0f} km of {vocab.lat(region['lat'])} "
+            f"{vocab.lon(region['lon'])}"
+        )
     if region["kind"] == "flow_box":
-        return (f"{region['length_km']:.0f} km along the flow by {region['width_km']:.0f} km "
-                f"across, centred on {vocab.lat(region['lat_0'])} {vocab.lon(region['lon_0'])}")
-    return (f"box {vocab.lon(region['west'])} to {vocab.lon(region['east'])}, "
-            f"{vocab.lat(region['south'])} to {vocab.lat(region['north'])}")
+        return (
+            f"{region['length_km']:.0f} km along the flow by {region['width_km']:.0f} km "
+            f"across, centred on {vocab.lat(region['lat_0'])} {vocab.lon(region['lon_0'])}"
+        )
+    return (
+        f"box {vocab.lon(region['west'])} to {vocab.lon(region['east'])}, "
+        f"{vocab.lat(region['south'])} to {vocab.lat(region['north'])}"
+    )
 
 
 def quantity(value, units: str, height_units: str = "m", digits: int = 0) -> str:
@@ -249,21 +365,27 @@ def intensity_text(s: dict, wind_units: str = "m/s", height_units: str = "m") ->
         return f"peak {float(v):.0f} {u}"
     side = "below" if s["kind"] == "low" else "above"
     units = s.get("units", "m")
-    return (f"centre {quantity(s['value'], units, height_units)}, "
-            f"{quantity(s['depth'], units, height_units)} {side} its outermost closed contour "
-            f"({quantity(s['outer_level'], units, height_units)})")
+    return (
+        f"centre {quantity(s['value'], units, height_units)}, "
+        f"{quantity(s['depth'], units, height_units)} {side} its outermost closed contour "
+        f"({quantity(s['outer_level'], units, height_units)})"
+    )
 
 
 def rules_text(out: dict, wind_units: str = "m/s", height_units: str = "m") -> str:
     """The rules a systems listing used, in the view's units."""
     r = out["rules"]
-    text = (f"closed contours every {quantity(r['contour_interval'], r['units'], height_units)}"
-            f", at least {quantity(r['min_depth'], r['units'], height_units)} deep, within one "
-            f"hemisphere and {100 * r['max_share']:.0f} % of the globe")
+    text = (
+        f"closed contours every {quantity(r['contour_interval'], r['units'], height_units)}"
+        f", at least {quantity(r['min_depth'], r['units'], height_units)} deep, within one "
+        f"hemisphere and {100 * r['max_share']:.0f} % of the globe"
+    )
     if r.get("jet_threshold_ms") is not None:
         v, u = vocab.wind(r["jet_threshold_ms"], wind_units)
-        text += (f"; jet streaks above {float(v):.0f} {u}, core above "
-                 f"{100 * r['core_fraction']:.0f} % of the peak")
+        text += (
+            f"; jet streaks above {float(v):.0f} {u}, core above "
+            f"{100 * r['core_fraction']:.0f} % of the peak"
+        )
     return text
 
 
@@ -271,22 +393,29 @@ def systems_table(out: dict) -> str:
     """The text ``balance-desk systems`` prints: one block per system (or per track)."""
     if "tracks" in out:
         m = out["match"]
-        lines = [f"Tracks of {out['case']} at {level_text(out)} (matched within "
-                 f"{m['speed_kmh']:g} km/h x the time step, at least {m['min_km']:g} km and "
-                 f"{m['spacings']:g} grid spacings of {m['grid_spacing_km']:.0f} km)", ""]
+        lines = [
+            f"Tracks of {out['case']} at {level_text(out)} (matched within "
+            f"{m['speed_kmh']:g} km/h x the time step, at least {m['min_km']:g} km and "
+            f"{m['spacings']:g} grid spacings of {m['grid_spacing_km']:.0f} km)",
+            "",
+        ]
         lines += [f"  note: {n}" for n in out.get("notes", [])]
         for i, tr in enumerate(out["tracks"], 1):
             lines.append(f"{i}. {vocab.system_name(tr['kind'])}, {len(tr['life'])} times")
             for p in tr["life"]:
                 ro = p["rossby_local_median"]
-                lines.append(f"   {vocab.when_short(p['valid_time'])}  {vocab.lat(p['lat'])} "
-                             f"{vocab.lon(p['lon'])}  intensity {p['intensity']:.1f}  local Ro "
-                             f"{'n/a' if ro is None else f'{ro:.2g}'}  "
-                             f"{vocab.balance_name(p['verdict'])}")
+                lines.append(
+                    f"   {vocab.when_short(p['valid_time'])}  {vocab.lat(p['lat'])} "
+                    f"{vocab.lon(p['lon'])}  intensity {p['intensity']:.1f}  local Ro "
+                    f"{'n/a' if ro is None else f'{ro:.2g}'}  "
+                    f"{vocab.balance_name(p['verdict'])}"
+                )
         return "\n".join(lines)
-    lines = [f"Systems of {out['case']} at {level_text(out)}, "
-             f"{vocab.when(out['valid_time'], out.get('reference_time'))}",
-             f"  rules: {rules_text(out)}"]
+    lines = [
+        f"Systems of {out['case']} at {level_text(out)}, "
+        f"{vocab.when(out['valid_time'], out.get('reference_time'))}",
+        f"  rules: {rules_text(out)}",
+    ]
     lines += [f"  note: {n}" for n in out.get("notes", [])]
     lines.append("")
     if not out["systems"]:
@@ -294,29 +423,45 @@ def systems_table(out: dict) -> str:
     for i, s in enumerate(out["systems"], 1):
         rep = s["report"]
         v = rep["verdict"]
-        lines.append(f"{i}. {vocab.system_name(s['kind'])} at {vocab.lat(s['lat'])} "
-                     f"{vocab.lon(s['lon'])}: {intensity_text(s)}")
-        lines.append(f"   region: {system_region_text(s['region'])}, {rep.get('points', 0)} "
-                     "valid points" + (f" ({s['note']})" if s.get("note") else ""))
+        lines.append(
+            f"{i}. {vocab.system_name(s['kind'])} at {vocab.lat(s['lat'])} "
+            f"{vocab.lon(s['lon'])}: {intensity_text(s)}"
+        )
+        lines.append(
+            f"   region: {system_region_text(s['region'])}, {rep.get('points', 0)} "
+            "valid points" + (f" ({s['note']})" if s.get("note") else "")
+        )
         lines.append(f"   verdict: {vocab.balance_name(v['balance'])}. {v['text']}")
         top = [t for t in rep.get("terms", []) if t["magnitude"] is not None][:3]
         if top:
-            lines.append("   largest terms: " + ", ".join(
-                f"{vocab.term_name(t['name'])} {t['magnitude']:.1e}" for t in top) + " m s-2")
+            lines.append(
+                "   largest terms: "
+                + ", ".join(f"{vocab.term_name(t['name'])} {t['magnitude']:.1e}" for t in top)
+                + " m s-2"
+            )
         if rep.get("surface") and out.get("level") == "msl":
             sf = rep["surface"]
-            ang, rat = sf.get("cross_isobar_angle_median_deg"), \
-                sf.get("speed_over_geostrophic_median")
+            ang, rat = (
+                sf.get("cross_isobar_angle_median_deg"),
+                sf.get("speed_over_geostrophic_median"),
+            )
             if ang is not None:
-                lines.append(f"   10 m wind: crosses the isobars toward low pressure by "
-                             f"{ang:.0f} degrees (median), at {rat:.2f} of the geostrophic "
-                             "speed")
+                lines.append(
+                    f"   10 m wind: crosses the isobars toward low pressure by "
+                    f"{ang:.0f} degrees (median), at {rat:.2f} of the geostrophic "
+                    "speed"
+                )
         parts = rep.get("ageostrophic_parts") or {}
         if parts.get("measured_rms") is not None:
-            bits = [f"{vocab.part_name(k)} {p['speed_rms']:.1f}" if p["speed_rms"] is not None
-                    else f"{vocab.part_name(k)} n/a" for k, p in parts["parts"].items()]
-            lines.append(f"   ageostrophic wind {parts['measured_rms']:.1f} m/s (RMS): "
-                         + "; ".join(bits))
+            bits = [
+                f"{vocab.part_name(k)} {p['speed_rms']:.1f}"
+                if p["speed_rms"] is not None
+                else f"{vocab.part_name(k)} n/a"
+                for k, p in parts["parts"].items()
+            ]
+            lines.append(
+                f"   ageostrophic wind {parts['measured_rms']:.1f} m/s (RMS): " + "; ".join(bits)
+            )
             if parts.get("note"):
                 lines.append(f"   caution: {parts['note']}")
         lines.append("")
@@ -329,33 +474,85 @@ def systems_csv(out: dict) -> str:
     w = csv.writer(buf)
     parts = ("tendency", "inertial_advective", "vertical_advection", "remainder")
     if "tracks" in out:
-        w.writerow(["case", "level", "track", "kind", "valid_time", "lat", "lon",
-                    "intensity", "rossby_local_median", "verdict"])
+        w.writerow(
+            [
+                "case",
+                "level",
+                "track",
+                "kind",
+                "valid_time",
+                "lat",
+                "lon",
+                "intensity",
+                "rossby_local_median",
+                "verdict",
+            ]
+        )
         for i, tr in enumerate(out["tracks"], 1):
             for p in tr["life"]:
-                w.writerow([out["case"], level_text(out), i, vocab.system_name(tr["kind"]),
-                            p["valid_time"], vocab.sig(p["lat"]), vocab.sig(p["lon"]),
-                            vocab.sig(p["intensity"]), vocab.sig(p["rossby_local_median"]),
-                            vocab.balance_name(p["verdict"])])
+                w.writerow(
+                    [
+                        out["case"],
+                        level_text(out),
+                        i,
+                        vocab.system_name(tr["kind"]),
+                        p["valid_time"],
+                        vocab.sig(p["lat"]),
+                        vocab.sig(p["lon"]),
+                        vocab.sig(p["intensity"]),
+                        vocab.sig(p["rossby_local_median"]),
+                        vocab.balance_name(p["verdict"]),
+                    ]
+                )
         return buf.getvalue()
-    w.writerow(["case", "level", "valid_time", "kind", "lat", "lon", "intensity", "units",
-                "depth", "outer_contour", "region", "points", "verdict",
-                "geostrophic_ratio", "gradient_ratio", "cyclostrophic_ratio",
-                "rossby_local_median", "ageostrophic_rms_ms"]
-               + [f"ageostrophic_{p}_rms_ms" for p in parts])
+    w.writerow(
+        [
+            "case",
+            "level",
+            "valid_time",
+            "kind",
+            "lat",
+            "lon",
+            "intensity",
+            "units",
+            "depth",
+            "outer_contour",
+            "region",
+            "points",
+            "verdict",
+            "geostrophic_ratio",
+            "gradient_ratio",
+            "cyclostrophic_ratio",
+            "rossby_local_median",
+            "ageostrophic_rms_ms",
+        ]
+        + [f"ageostrophic_{p}_rms_ms" for p in parts]
+    )
     for s in out["systems"]:
         rep = s["report"]
         b = rep.get("balances") or {}
         ap = rep.get("ageostrophic_parts") or {}
-        w.writerow([out["case"], level_text(out), out["valid_time"],
-                    vocab.system_name(s["kind"]), vocab.sig(s["lat"]), vocab.sig(s["lon"]),
-                    vocab.sig(s["intensity"]), s.get("units", "m"), vocab.sig(s["depth"]),
-                    vocab.sig(s["outer_level"]), system_region_text(s["region"]),
-                    rep.get("points"), vocab.balance_name(rep["verdict"]["balance"]),
-                    vocab.sig(b.get("geostrophic")), vocab.sig(b.get("gradient")),
-                    vocab.sig(b.get("cyclostrophic")),
-                    vocab.sig((rep.get("numbers") or {}).get("rossby_local_median")),
-                    vocab.sig(ap.get("measured_rms"))]
-                   + [vocab.sig(((ap.get("parts") or {}).get(p) or {}).get("speed_rms"))
-                      for p in parts])
+        w.writerow(
+            [
+                out["case"],
+                level_text(out),
+                out["valid_time"],
+                vocab.system_name(s["kind"]),
+                vocab.sig(s["lat"]),
+                vocab.sig(s["lon"]),
+                vocab.sig(s["intensity"]),
+                s.get("units", "m"),
+                vocab.sig(s["depth"]),
+                vocab.sig(s["outer_level"]),
+                system_region_text(s["region"]),
+                rep.get("points"),
+                vocab.balance_name(rep["verdict"]["balance"]),
+                vocab.sig(b.get("geostrophic")),
+                vocab.sig(b.get("gradient")),
+                vocab.sig(b.get("cyclostrophic")),
+                vocab.sig((rep.get("numbers") or {}).get("rossby_local_median")),
+                vocab.sig(ap.get("measured_rms")),
+            ]
+            + [vocab.sig(((ap.get("parts") or {}).get(p) or {}).get("speed_rms")) for p in parts]
+        )
     return buf.getvalue()

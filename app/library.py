@@ -90,11 +90,15 @@ class CaseLibrary:
             except CaseError as exc:
                 log.warning("could not load %s: %s", printable(str(p)), exc)
                 self.cases[name] = LoadedCase(name, str(p), None, str(exc))
-            except Exception as exc:  # noqa: BLE001 - the server never dies on a bad file
+            except Exception as exc:
                 log.exception("could not load %s", printable(str(p)))
-                self.cases[name] = LoadedCase(name, str(p), None,
-                                              f"{printable(os.path.basename(str(p)))}: could not "
-                                              f"be read ({type(exc).__name__})")
+                self.cases[name] = LoadedCase(
+                    name,
+                    str(p),
+                    None,
+                    f"{printable(os.path.basename(str(p)))}: could not "
+                    f"be read ({type(exc).__name__})",
+                )
         self._diag = _LRU(cache_size)
         self._profiles = _LRU(cache_size * 4)
         self._views = _LRU(cache_size * 4)
@@ -111,7 +115,7 @@ class CaseLibrary:
         return {n: lc.error for n, lc in self.cases.items() if lc.case is None}
 
     @classmethod
-    def from_cases(cls, cases, *, cache_size: int = 24) -> "CaseLibrary":
+    def from_cases(cls, cases, *, cache_size: int = 24) -> CaseLibrary:
         """A library of already opened cases (tests, benchmarks)."""
         lib = cls([], cache_size=cache_size)
         for c in cases:
@@ -131,8 +135,14 @@ class CaseLibrary:
             raise CaseError(f"this case could not be loaded: {lc.error}")
         return lc.case
 
-    def diagnostics(self, name: str, level_index: int, time_index: int,
-                    smooth_km: float = 0.0, min_lat: float = 10.0):
+    def diagnostics(
+        self,
+        name: str,
+        level_index: int,
+        time_index: int,
+        smooth_km: float = 0.0,
+        min_lat: float = 10.0,
+    ):
         """LevelDiagnostics, computed once per key for every session (``level_index``
         :data:`SEA_LEVEL_INDEX`: the surface budget at sea level)."""
         key = (name, int(level_index), int(time_index), float(smooth_km or 0), float(min_lat))
@@ -150,8 +160,10 @@ class CaseLibrary:
         case = self.get(name)
         if case.grid.min_lat == min_lat:
             return case
-        return self._masked.get_or_make((name, float(min_lat)), lambda: dataclasses.replace(
-            case, grid=case.grid.with_min_lat(min_lat)))
+        return self._masked.get_or_make(
+            (name, float(min_lat)),
+            lambda: dataclasses.replace(case, grid=case.grid.with_min_lat(min_lat)),
+        )
 
     def profile(self, key, make):
         """A shared cache for per-box summaries (through the levels, through the times)."""

@@ -22,8 +22,17 @@ import numpy as np
 import pyproj
 from scipy import ndimage
 
-__all__ = ["ViewGeometry", "geometry_for", "sample", "contour_lines", "interval_levels",
-           "vector_lattice", "coastlines", "graticule", "COAST_DIRS"]
+__all__ = [
+    "ViewGeometry",
+    "geometry_for",
+    "sample",
+    "contour_lines",
+    "interval_levels",
+    "vector_lattice",
+    "coastlines",
+    "graticule",
+    "COAST_DIRS",
+]
 
 log = logging.getLogger("balance_desk")
 
@@ -35,15 +44,15 @@ COAST_DIRS = ("/usr/share/cartopy/data", os.path.expanduser("~/.local/share/cart
 class ViewGeometry:
     """A view of one case: projection, extent, raster and index map into the case grid."""
 
-    kind: str                  # "plate_carree" or "conformal"
-    crs: pyproj.CRS | None     # None for plate carree (coordinates are lon/lat degrees)
-    label: str                 # e.g. "Lambert conformal, standard parallels 38N and 52N"
-    xs: np.ndarray             # raster x centres (1-D)
-    ys: np.ndarray             # raster y centres (1-D, ascending)
-    lon: np.ndarray            # (ny, nx) lon of raster points
-    lat: np.ndarray            # (ny, nx) lat
-    rows: np.ndarray           # fractional row index into the case grid (NaN outside)
-    cols: np.ndarray           # fractional column index (padded by one column if periodic)
+    kind: str  # "plate_carree" or "conformal"
+    crs: pyproj.CRS | None  # None for plate carree (coordinates are lon/lat degrees)
+    label: str  # e.g. "Lambert conformal, standard parallels 38N and 52N"
+    xs: np.ndarray  # raster x centres (1-D)
+    ys: np.ndarray  # raster y centres (1-D, ascending)
+    lon: np.ndarray  # (ny, nx) lon of raster points
+    lat: np.ndarray  # (ny, nx) lat
+    rows: np.ndarray  # fractional row index into the case grid (NaN outside)
+    cols: np.ndarray  # fractional column index (padded by one column if periodic)
     periodic: bool
     convergence: np.ndarray | None  # view's meridian convergence at raster points (deg)
     grid: object = dataclasses.field(default=None, repr=False)  # the case grid
@@ -52,7 +61,12 @@ class ViewGeometry:
     def extent(self):
         dx = (self.xs[-1] - self.xs[0]) / max(self.xs.size - 1, 1)
         dy = (self.ys[-1] - self.ys[0]) / max(self.ys.size - 1, 1)
-        return (self.xs[0] - dx / 2, self.xs[-1] + dx / 2, self.ys[0] - dy / 2, self.ys[-1] + dy / 2)
+        return (
+            self.xs[0] - dx / 2,
+            self.xs[-1] + dx / 2,
+            self.ys[0] - dy / 2,
+            self.ys[-1] + dy / 2,
+        )
 
     def to_view(self, lon, lat):
         """View coordinates of lon/lat points."""
@@ -80,8 +94,12 @@ class ViewGeometry:
     def outline(self, x0, y0, x1, y1, n=40):
         """The lon/lat polygon of a rectangle drawn in view coordinates."""
         t = np.linspace(0, 1, n)
-        xs = np.concatenate([x0 + (x1 - x0) * t, np.full(n, x1), x1 + (x0 - x1) * t, np.full(n, x0)])
-        ys = np.concatenate([np.full(n, y0), y0 + (y1 - y0) * t, np.full(n, y1), y1 + (y0 - y1) * t])
+        xs = np.concatenate(
+            [x0 + (x1 - x0) * t, np.full(n, x1), x1 + (x0 - x1) * t, np.full(n, x0)]
+        )
+        ys = np.concatenate(
+            [np.full(n, y0), y0 + (y1 - y0) * t, np.full(n, y1), y1 + (y0 - y1) * t]
+        )
         return self.to_lonlat(xs, ys)
 
 
@@ -109,29 +127,48 @@ def _conformal_crs(lat_lo, lat_hi, lon_c):
     if lat_lo >= 55 or lat_hi <= -55:
         pole = 90 if lat_c > 0 else -90
         ts = 60 if pole > 0 else -60
-        return (pyproj.CRS.from_proj4(f"+proj=stere +lat_0={pole} +lat_ts={ts} +lon_0={lon_c:.2f} "
-                                      "+R=6371008.7714 +units=m +no_defs"),
-                f"polar stereographic, true at {abs(ts)}{'N' if ts > 0 else 'S'}")
+        return (
+            pyproj.CRS.from_proj4(
+                f"+proj=stere +lat_0={pole} +lat_ts={ts} +lon_0={lon_c:.2f} "
+                "+R=6371008.7714 +units=m +no_defs"
+            ),
+            f"polar stereographic, true at {abs(ts)}{'N' if ts > 0 else 'S'}",
+        )
     if abs(lat_c) < 20 and lat_lo > -30 and lat_hi < 30:
-        return (pyproj.CRS.from_proj4(f"+proj=merc +lat_ts={lat_c:.2f} +lon_0={lon_c:.2f} "
-                                      "+R=6371008.7714 +units=m +no_defs"),
-                "Mercator")
+        return (
+            pyproj.CRS.from_proj4(
+                f"+proj=merc +lat_ts={lat_c:.2f} +lon_0={lon_c:.2f} "
+                "+R=6371008.7714 +units=m +no_defs"
+            ),
+            "Mercator",
+        )
     span = lat_hi - lat_lo
     p1, p2 = lat_lo + span / 6, lat_hi - span / 6  # standard parallels: common practice
-    return (pyproj.CRS.from_proj4(f"+proj=lcc +lat_1={p1:.2f} +lat_2={p2:.2f} +lat_0={lat_c:.2f} "
-                                  f"+lon_0={lon_c:.2f} +R=6371008.7714 +units=m +no_defs"),
-            f"Lambert conformal, standard parallels {_deg(p1, 'N', 'S')} and {_deg(p2, 'N', 'S')}")
+    return (
+        pyproj.CRS.from_proj4(
+            f"+proj=lcc +lat_1={p1:.2f} +lat_2={p2:.2f} +lat_0={lat_c:.2f} "
+            f"+lon_0={lon_c:.2f} +R=6371008.7714 +units=m +no_defs"
+        ),
+        f"Lambert conformal, standard parallels {_deg(p1, 'N', 'S')} and {_deg(p2, 'N', 'S')}",
+    )
 
 
 def _deg(v, pos, neg):
     return f"{abs(v):.0f}{pos if v >= 0 else neg}"
 
 
-def geometry_for(case, projection: str, *, max_nx: int = 560, max_ny: int = 420,
-                 centre=None) -> ViewGeometry:
+def geometry_for(
+    case, projection: str, *, max_nx: int = 560, max_ny: int = 420, centre=None
+) -> ViewGeometry:
     """The view geometry of a case in a projection (cached per case, projection, centre)."""
-    key = (id(case), case.name, projection, max_nx, max_ny,
-           None if centre is None else tuple(round(c, 1) for c in centre))
+    key = (
+        id(case),
+        case.name,
+        projection,
+        max_nx,
+        max_ny,
+        None if centre is None else tuple(round(c, 1) for c in centre),
+    )
     return _geometry_cached(key, case, projection, max_nx, max_ny, centre)
 
 
@@ -180,8 +217,10 @@ def _make_geometry(case, projection, max_nx, max_ny, centre):
             fwd = pyproj.Transformer.from_crs(crs.geodetic_crs, crs, always_xy=True)
             bl = np.linspace(lon_lo2, lon_hi2, 60)
             bp = np.linspace(lat_lo2, lat_hi2, 60)
-            ex, ey = fwd.transform(np.concatenate([bl, np.full(60, lon_hi2), bl, np.full(60, lon_lo2)]),
-                                   np.concatenate([np.full(60, lat_lo2), bp, np.full(60, lat_hi2), bp]))
+            ex, ey = fwd.transform(
+                np.concatenate([bl, np.full(60, lon_hi2), bl, np.full(60, lon_lo2)]),
+                np.concatenate([np.full(60, lat_lo2), bp, np.full(60, lat_hi2), bp]),
+            )
             x0, x1, y0, y1 = np.nanmin(ex), np.nanmax(ex), np.nanmin(ey), np.nanmax(ey)
         nx, ny = _raster_shape(x1 - x0, y1 - y0, max_nx, max_ny)
         xs = np.linspace(x0, x1, nx)
@@ -194,14 +233,31 @@ def _make_geometry(case, projection, max_nx, max_ny, centre):
     else:
         crs, label, kind, conv = None, "plate carree", "plate_carree", None
         native = grid.shape if grid.kind == "latlon" else None
-        nx, ny = _raster_shape((lon_hi - lon_lo) * np.cos(np.deg2rad(0.5 * (lat_lo + lat_hi))),
-                               lat_hi - lat_lo, max_nx, max_ny, native)
+        nx, ny = _raster_shape(
+            (lon_hi - lon_lo) * np.cos(np.deg2rad(0.5 * (lat_lo + lat_hi))),
+            lat_hi - lat_lo,
+            max_nx,
+            max_ny,
+            native,
+        )
         xs = np.linspace(lon_lo, lon_hi, nx)
         ys = np.linspace(lat_lo, lat_hi, ny)
         lon, lat = np.meshgrid(xs, ys)
     rows, cols, periodic = _index_map(grid, lon, lat)
-    return ViewGeometry(kind=kind, crs=crs, label=label, xs=xs, ys=ys, lon=lon, lat=lat,
-                        rows=rows, cols=cols, periodic=periodic, convergence=conv, grid=grid)
+    return ViewGeometry(
+        kind=kind,
+        crs=crs,
+        label=label,
+        xs=xs,
+        ys=ys,
+        lon=lon,
+        lat=lat,
+        rows=rows,
+        cols=cols,
+        periodic=periodic,
+        convergence=conv,
+        grid=grid,
+    )
 
 
 def _is_conformal(crs) -> bool:
@@ -228,20 +284,34 @@ def _index_map(grid, lon, lat):
             if lonu[-1] - ref > 180:
                 lon_rel = np.where(lon_rel < ref - 1e-9, lon_rel + 360, lon_rel)
             if lonu[-1] < lonu[0]:
-                cols = np.interp(lon_rel, lonu[::-1], np.arange(lonu.size)[::-1].astype(float),
-                                 left=np.nan, right=np.nan)
+                cols = np.interp(
+                    lon_rel,
+                    lonu[::-1],
+                    np.arange(lonu.size)[::-1].astype(float),
+                    left=np.nan,
+                    right=np.nan,
+                )
             else:
-                cols = np.interp(lon_rel, lonu, np.arange(lonu.size, dtype=float),
-                                 left=np.nan, right=np.nan)
+                cols = np.interp(
+                    lon_rel, lonu, np.arange(lonu.size, dtype=float), left=np.nan, right=np.nan
+                )
         return rows, cols, bool(grid.periodic)
     fwd = pyproj.Transformer.from_crs(grid.crs.geodetic_crs, grid.crs, always_xy=True)
     x, y = fwd.transform(lon, lat)
-    cols = np.interp(x, grid.x, np.arange(grid.x.size, dtype=float), left=np.nan, right=np.nan) \
-        if grid.x[-1] > grid.x[0] else np.interp(x, grid.x[::-1], np.arange(grid.x.size)[::-1] * 1.0,
-                                                  left=np.nan, right=np.nan)
-    rows = np.interp(y, grid.y, np.arange(grid.y.size, dtype=float), left=np.nan, right=np.nan) \
-        if grid.y[-1] > grid.y[0] else np.interp(y, grid.y[::-1], np.arange(grid.y.size)[::-1] * 1.0,
-                                                  left=np.nan, right=np.nan)
+    cols = (
+        np.interp(x, grid.x, np.arange(grid.x.size, dtype=float), left=np.nan, right=np.nan)
+        if grid.x[-1] > grid.x[0]
+        else np.interp(
+            x, grid.x[::-1], np.arange(grid.x.size)[::-1] * 1.0, left=np.nan, right=np.nan
+        )
+    )
+    rows = (
+        np.interp(y, grid.y, np.arange(grid.y.size, dtype=float), left=np.nan, right=np.nan)
+        if grid.y[-1] > grid.y[0]
+        else np.interp(
+            y, grid.y[::-1], np.arange(grid.y.size)[::-1] * 1.0, left=np.nan, right=np.nan
+        )
+    )
     return rows, cols, False
 
 
@@ -318,7 +388,7 @@ def vector_lattice(geom: ViewGeometry, u_raster, v_raster, n_across: int = 22):
     """
     ny, nx = u_raster.shape
     step = max(1, nx // n_across)
-    jj, ii = np.mgrid[step // 2:ny:step, step // 2:nx:step]
+    jj, ii = np.mgrid[step // 2 : ny : step, step // 2 : nx : step]
     u = u_raster[jj, ii].astype(np.float64)
     v = v_raster[jj, ii].astype(np.float64)
     ok = np.isfinite(u) & np.isfinite(v)
@@ -344,12 +414,20 @@ def vector_lattice(geom: ViewGeometry, u_raster, v_raster, n_across: int = 22):
     x1 = x0 + du * length
     y1 = y0 + dv * length
     keep = np.isfinite(x1) & np.isfinite(y1)
-    return {"x0": x0[keep], "y0": y0[keep], "x1": x1[keep], "y1": y1[keep],
-            "angle": np.arctan2(dv, du)[keep], "speed": speed[keep], "ref_speed": ref,
-            "cell": cell}
+    return {
+        "x0": x0[keep],
+        "y0": y0[keep],
+        "x1": x1[keep],
+        "y1": y1[keep],
+        "angle": np.arctan2(dv, du)[keep],
+        "speed": speed[keep],
+        "ref_speed": ref,
+        "cell": cell,
+    }
 
 
 # -- coastlines ----------------------------------------------------------------------
+
 
 def _coast_file():
     for d in COAST_DIRS:
@@ -382,7 +460,7 @@ def _coast_polygons():
                 return list(feature.geometries())
         finally:
             quiet.setLevel(level)
-    except Exception:  # noqa: BLE001 - coastlines are a nicety; say so and go on
+    except Exception:
         log.exception("could not read the offline coastlines")
         return None
 
@@ -395,7 +473,11 @@ def coastlines(geom: ViewGeometry):
 
     Projected once per view geometry and cached.
     """
-    key = (geom.kind, None if geom.crs is None else geom.crs.to_wkt(), tuple(np.round(geom.extent, 3)))
+    key = (
+        geom.kind,
+        None if geom.crs is None else geom.crs.to_wkt(),
+        tuple(np.round(geom.extent, 3)),
+    )
     if key in _COAST_CACHE:
         return _COAST_CACHE[key]
     polys = _coast_polygons()
@@ -427,7 +509,11 @@ def coastlines(geom: ViewGeometry):
                 c = np.asarray(line.coords)
                 if c.shape[0] < 2:
                     continue
-                x, y = geom.to_view(c[:, 0], c[:, 1]) if geom.kind == "conformal" else (c[:, 0], c[:, 1])
+                x, y = (
+                    geom.to_view(c[:, 0], c[:, 1])
+                    if geom.kind == "conformal"
+                    else (c[:, 0], c[:, 1])
+                )
                 xs.append(np.asarray(x, dtype=np.float64))
                 ys.append(np.asarray(y, dtype=np.float64))
     _COAST_CACHE[key] = (xs, ys)
@@ -442,8 +528,7 @@ def graticule(geom: ViewGeometry, step: float | None = None):
     per view geometry, like the coastlines: the page sends them again only when new)."""
     if geom.kind != "conformal":
         return [], [], []
-    key = (None if geom.crs is None else geom.crs.to_wkt(), tuple(np.round(geom.extent, 3)),
-           step)
+    key = (None if geom.crs is None else geom.crs.to_wkt(), tuple(np.round(geom.extent, 3)), step)
     if key not in _GRATICULE_CACHE:
         _GRATICULE_CACHE[key] = _graticule(geom, step)
     return _GRATICULE_CACHE[key]
@@ -465,7 +550,9 @@ def _graticule(geom: ViewGeometry, step: float | None):
         inside = (np.asarray(y) >= y0) & (np.asarray(x) >= x0) & (np.asarray(x) <= x1)
         if inside.any():
             k = np.nonzero(inside)[0][0]
-            labels.append((float(x[k]), float(y0), _deg(((lon + 180) % 360) - 180, "E", "W"), "lon"))
+            labels.append(
+                (float(x[k]), float(y0), _deg(((lon + 180) % 360) - 180, "E", "W"), "lon")
+            )
     for lat in np.arange(np.floor(lat_lo / step) * step, lat_hi + step, step):
         if abs(lat) >= 90:
             continue
@@ -492,12 +579,16 @@ def _thin_labels(labels, extent, chars_across=70.0, rows_up=32.0):
     for x, y, text, kind in labels:
         w = (len(text) + 1) * cw
         # lon labels sit on the bottom edge, centred; lat labels on the left edge, upward
-        box = (x - w / 2, y, x + w / 2, y + 1.4 * ch) if kind == "lon" else \
-              (x, y - 0.7 * ch, x + w, y + 0.7 * ch)
+        box = (
+            (x - w / 2, y, x + w / 2, y + 1.4 * ch)
+            if kind == "lon"
+            else (x, y - 0.7 * ch, x + w, y + 0.7 * ch)
+        )
         if box[0] < x0 - cw or box[2] > x1 + cw or box[3] > y1 + ch:
             continue
-        if any(not (box[2] < b[0] or box[0] > b[2] or box[3] < b[1] or box[1] > b[3])
-               for b in boxes):
+        if any(
+            not (box[2] < b[0] or box[0] > b[2] or box[3] < b[1] or box[1] > b[3]) for b in boxes
+        ):
             continue
         kept.append((x, y, text, kind))
         boxes.append(box)

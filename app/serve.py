@@ -19,8 +19,18 @@ import pyproj  # noqa: F401  (before anything that may load eccodes)
 
 from .cases import case_paths
 
-__all__ = ["serve", "case_paths", "security_headers", "ServeError", "check_address",
-           "PageLimit", "LIMIT", "is_loopback", "read_passphrase", "MAX_URI"]
+__all__ = [
+    "serve",
+    "case_paths",
+    "security_headers",
+    "ServeError",
+    "check_address",
+    "PageLimit",
+    "LIMIT",
+    "is_loopback",
+    "read_passphrase",
+    "MAX_URI",
+]
 
 #: the longest request line taken, with a readable "414" beyond it (Tornado's own limit
 #: on a request's head is 64 KiB); within it every value of a link is still refused on
@@ -36,22 +46,28 @@ class ServeError(Exception):
 
 def security_headers(host: str, port: int) -> dict:
     """The headers every response carries (see the module docstring)."""
-    csp = "; ".join([
-        "default-src 'self'",
-        "script-src 'self' 'unsafe-inline' 'unsafe-eval' blob:",
-        "worker-src 'self' blob:",
-        "style-src 'self' 'unsafe-inline'",
-        "img-src 'self' data: blob:",
-        "font-src 'self' data:",
-        f"connect-src 'self' ws://{host}:{port} wss://{host}:{port}",
-        "object-src 'none'",
-        "base-uri 'self'",
-        "form-action 'self'",
-        "frame-ancestors 'self'",
-    ])
-    return {"Content-Security-Policy": csp, "X-Frame-Options": "SAMEORIGIN",
-            "X-Content-Type-Options": "nosniff", "Referrer-Policy": "no-referrer",
-            "Cross-Origin-Opener-Policy": "same-origin"}
+    csp = "; ".join(
+        [
+            "default-src 'self'",
+            "script-src 'self' 'unsafe-inline' 'unsafe-eval' blob:",
+            "worker-src 'self' blob:",
+            "style-src 'self' 'unsafe-inline'",
+            "img-src 'self' data: blob:",
+            "font-src 'self' data:",
+            f"connect-src 'self' ws://{host}:{port} wss://{host}:{port}",
+            "object-src 'none'",
+            "base-uri 'self'",
+            "form-action 'self'",
+            "frame-ancestors 'self'",
+        ]
+    )
+    return {
+        "Content-Security-Policy": csp,
+        "X-Frame-Options": "SAMEORIGIN",
+        "X-Content-Type-Options": "nosniff",
+        "Referrer-Policy": "no-referrer",
+        "Cross-Origin-Opener-Policy": "same-origin",
+    }
 
 
 def _transform(headers):
@@ -171,8 +187,10 @@ def check_address(host: str, port: int):
     try:
         socket.getaddrinfo(host, port, type=socket.SOCK_STREAM)
     except (socket.gaierror, UnicodeError, OSError) as exc:
-        raise ServeError(f"balance-desk serve: the host {host!r} cannot be used "
-                         f"({getattr(exc, 'strerror', None) or exc})") from None
+        raise ServeError(
+            f"balance-desk serve: the host {host!r} cannot be used "
+            f"({getattr(exc, 'strerror', None) or exc})"
+        ) from None
 
 
 def is_loopback(host: str) -> bool:
@@ -199,8 +217,10 @@ def read_passphrase(path: str | None, env=None) -> str | None:
             with open(path, encoding="utf-8") as fh:
                 text = fh.readline().strip()
         except (OSError, UnicodeError) as exc:
-            raise ServeError(f"balance-desk serve: the passphrase file cannot be read "
-                             f"({getattr(exc, 'strerror', None) or exc})") from None
+            raise ServeError(
+                f"balance-desk serve: the passphrase file cannot be read "
+                f"({getattr(exc, 'strerror', None) or exc})"
+            ) from None
     else:
         text = (env.get("BALANCE_DESK_PASSPHRASE") or "").strip()
     if not text:
@@ -225,9 +245,23 @@ def _origins(host, port, extra=()):
     return out
 
 
-def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *,
-          memory_budget=None, start=True, out=print, store=None, passphrase_file=None,
-          open_without_passphrase=False, origins=(), env=None, archives=()):
+def serve(
+    files=None,
+    cases_dir=None,
+    host="127.0.0.1",
+    port=5006,
+    show=False,
+    *,
+    memory_budget=None,
+    start=True,
+    out=print,
+    store=None,
+    passphrase_file=None,
+    open_without_passphrase=False,
+    origins=(),
+    env=None,
+    archives=(),
+):
     """Load the cases once and serve the desk page and the review rooms.
 
     Says which cases failed and why, refuses to start (ServeError) when none loads
@@ -254,12 +288,16 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
     passphrase = read_passphrase(passphrase_file, env)
     if not is_loopback(host) and passphrase is None:
         if not open_without_passphrase:
-            raise ServeError(f"balance-desk serve: {host} can be reached from other machines, "
-                             "so an access passphrase is needed (--passphrase-file FILE or the "
-                             "environment variable BALANCE_DESK_PASSPHRASE)")
-        out(f"WARNING: balance-desk is served on {host} WITHOUT a passphrase: anyone who can "
+            raise ServeError(
+                f"balance-desk serve: {host} can be reached from other machines, "
+                "so an access passphrase is needed (--passphrase-file FILE or the "
+                "environment variable BALANCE_DESK_PASSPHRASE)"
+            )
+        out(
+            f"WARNING: balance-desk is served on {host} WITHOUT a passphrase: anyone who can "
             "reach this address can see the cases, join every room whose link they have, and "
-            "write notes.")
+            "write notes."
+        )
     store_path = store or default_store_path()
     import os
 
@@ -268,8 +306,9 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
         if per_minute < 1:
             raise ValueError
     except ValueError:
-        raise ServeError("balance-desk serve: BALANCE_DESK_NOTES_PER_MINUTE must be a whole "
-                         "number of 1 or more") from None
+        raise ServeError(
+            "balance-desk serve: BALANCE_DESK_NOTES_PER_MINUTE must be a whole number of 1 or more"
+        ) from None
     try:
         hub = Hub(open_store(store_path), RoomLimits(notes_per_minute=per_minute))
     except StoreError as exc:
@@ -309,17 +348,28 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
     try:
         from .desk.archive import make_archive_session
 
-        server = pn.serve({"/": lambda: make_session(library, hub=hub),
-                           "/room": lambda: make_room_session(library, hub),
-                           "/archive": lambda: make_archive_session(results,
-                                                                     archive_problems)},
-                          address=host, port=port, show=show,
-                          title="balance-desk", websocket_origin=origins, start=False,
-                          print=False, transforms=[_transform(security_headers(host, port))],
-                          check_unused_sessions=5000, unused_session_lifetime=60000, **auth)
+        server = pn.serve(
+            {
+                "/": lambda: make_session(library, hub=hub),
+                "/room": lambda: make_room_session(library, hub),
+                "/archive": lambda: make_archive_session(results, archive_problems),
+            },
+            address=host,
+            port=port,
+            show=show,
+            title="balance-desk",
+            websocket_origin=origins,
+            start=False,
+            print=False,
+            transforms=[_transform(security_headers(host, port))],
+            check_unused_sessions=5000,
+            unused_session_lifetime=60000,
+            **auth,
+        )
     except OSError as exc:
-        raise ServeError(f"balance-desk serve: cannot listen on {host}:{port} "
-                         f"({exc.strerror or exc})") from None
+        raise ServeError(
+            f"balance-desk serve: cannot listen on {host}:{port} ({exc.strerror or exc})"
+        ) from None
     finally:
         quiet.setLevel(level)
     logging.basicConfig(level=logging.INFO, format="%(asctime)s %(levelname)s %(message)s")
@@ -340,10 +390,14 @@ def serve(files=None, cases_dir=None, host="127.0.0.1", port=5006, show=False, *
         pass
     out(f"balance-desk: review rooms are kept in {store_path}")
     if results:
-        out(f"balance-desk: batch results through the archive at http://{host}:{port}/archive "
-            f"({', '.join(results)})")
-    out(f"balance-desk: serving {len(library.good)} case(s) at http://{host}:{port}/ "
-        f"({', '.join(library.good)})")
+        out(
+            f"balance-desk: batch results through the archive at http://{host}:{port}/archive "
+            f"({', '.join(results)})"
+        )
+    out(
+        f"balance-desk: serving {len(library.good)} case(s) at http://{host}:{port}/ "
+        f"({', '.join(library.good)})"
+    )
     if start:
         # what is loaded by now (the cases, the libraries) lives as long as the server: keep
         # it out of every later full garbage collection, which would otherwise walk it all

@@ -29,10 +29,24 @@ from balance_core.scales import PRESETS
 
 from . import vocab
 
-__all__ = ["ViewState", "FIELDS", "VECTORS", "PROJECTIONS", "URL_PARAMS", "field_label",
-           "SEA_LEVEL", "is_sea_level", "level_text",
-           "RegionSpec", "parse_region", "parse_box", "parse_query", "encode_query",
-           "SHEET_SCALES", "MAX_QUERY_VALUE"]
+__all__ = [
+    "ViewState",
+    "FIELDS",
+    "VECTORS",
+    "PROJECTIONS",
+    "URL_PARAMS",
+    "field_label",
+    "SEA_LEVEL",
+    "is_sea_level",
+    "level_text",
+    "RegionSpec",
+    "parse_region",
+    "parse_box",
+    "parse_query",
+    "encode_query",
+    "SHEET_SCALES",
+    "MAX_QUERY_VALUE",
+]
 
 #: Fields that can fill the chart: key -> label (units are added by the view).
 FIELDS = {
@@ -50,16 +64,35 @@ FIELDS = {
     "term:centripetal": f"|{vocab.term_name('centripetal')}|",
 }
 
-VECTORS = {"wind": "actual wind", "geostrophic": "geostrophic wind",
-           "ageostrophic": "ageostrophic wind", "none": "no vectors"}
-PROJECTIONS = {"plate_carree": "plate carree (lon/lat)", "conformal": "conformal (Lambert or "
-               "polar stereographic)"}
+VECTORS = {
+    "wind": "actual wind",
+    "geostrophic": "geostrophic wind",
+    "ageostrophic": "ageostrophic wind",
+    "none": "no vectors",
+}
+PROJECTIONS = {
+    "plate_carree": "plate carree (lon/lat)",
+    "conformal": "conformal (Lambert or polar stereographic)",
+}
 #: The a priori scales the sheet lets you edit (the rest come from the preset).
 SHEET_SCALES = ("U", "W", "L", "H", "dP", "rho", "lat0", "nu")
 
 #: The parameters a page link carries (name in the link = parameter name).
-URL_PARAMS = ("case", "level", "time", "field", "vectors", "smooth_km", "min_lat", "region",
-              "projection", "height_units", "wind_units", "preset", "sheet")
+URL_PARAMS = (
+    "case",
+    "level",
+    "time",
+    "field",
+    "vectors",
+    "smooth_km",
+    "min_lat",
+    "region",
+    "projection",
+    "height_units",
+    "wind_units",
+    "preset",
+    "sheet",
+)
 #: Longest value taken from a link (a drawn area is about 110 characters).
 MAX_QUERY_VALUE = 400
 
@@ -86,18 +119,23 @@ def field_label(key: str) -> str:
 # -- the region -----------------------------------------------------------------------------
 
 #: Projections a drawn area may name, and the parameters each takes (proj4 names).
-_AREA_PROJ = {"lcc": ("lat_1", "lat_2", "lat_0", "lon_0", "R"),
-              "stere": ("lat_0", "lat_ts", "lon_0", "R"),
-              "merc": ("lat_ts", "lon_0", "R"),
-              # a jet streak's region: a rectangle along the flow, straight in the azimuthal
-              # equidistant projection centred on the streak's peak
-              "aeqd": ("lat_0", "lon_0", "R")}
+_AREA_PROJ = {
+    "lcc": ("lat_1", "lat_2", "lat_0", "lon_0", "R"),
+    "stere": ("lat_0", "lat_ts", "lon_0", "R"),
+    "merc": ("lat_ts", "lon_0", "R"),
+    # a jet streak's region: a rectangle along the flow, straight in the azimuthal
+    # equidistant projection centred on the streak's peak
+    "aeqd": ("lat_0", "lon_0", "R"),
+}
 _NUM = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
 
 
 def _finite(x) -> bool:
-    return isinstance(x, (int, float, np.floating, np.integer)) and not isinstance(x, bool) \
+    return (
+        isinstance(x, (int, float, np.floating, np.integer))
+        and not isinstance(x, bool)
         and math.isfinite(float(x))
+    )
 
 
 def parse_box(vals):
@@ -118,18 +156,18 @@ def parse_box(vals):
 class RegionSpec:
     """A region of the view: a lon/lat box, or an area drawn on a conformal chart."""
 
-    kind: str                       # "box", "area" or "circle"
-    bounds: tuple = ()              # box: (W, E, S, N)
-    corners: tuple = ()             # area: four (lon, lat) corners; circle: its centre
-    proj: tuple = ()                # area: ("lcc", (("lat_1", 38.0), ...)) the chart's projection
-    radius_km: float = 0.0          # circle: its radius
+    kind: str  # "box", "area" or "circle"
+    bounds: tuple = ()  # box: (W, E, S, N)
+    corners: tuple = ()  # area: four (lon, lat) corners; circle: its centre
+    proj: tuple = ()  # area: ("lcc", (("lat_1", 38.0), ...)) the chart's projection
+    radius_km: float = 0.0  # circle: its radius
 
     def to_text(self) -> str:
         """The compact form carried by a link (see the module docstring)."""
         if self.kind == "box":
             return "box:" + ",".join(_short(v) for v in self.bounds)
         if self.kind == "circle":
-            (lon, lat), = self.corners
+            ((lon, lat),) = self.corners
             return f"circle:{_short(lon)},{_short(lat)},{_short(self.radius_km, 1)}"
         name, params = self.proj
         p = name + "".join(f",{k}={_short(v, 6)}" for k, v in params)
@@ -151,8 +189,9 @@ class RegionSpec:
                 e += 360
             t = np.linspace(0, 1, n)
             lons = np.concatenate([w + (e - w) * t, np.full(n, e), e + (w - e) * t, np.full(n, w)])
-            lats = np.concatenate([np.full(n, s), s + (n_ - s) * t, np.full(n, n_),
-                                   n_ + (s - n_) * t])
+            lats = np.concatenate(
+                [np.full(n, s), s + (n_ - s) * t, np.full(n, n_), n_ + (s - n_) * t]
+            )
             return lons, lats
         if self.kind == "circle":
             return _circle_outline(self.corners[0], self.radius_km, 4 * n)
@@ -173,7 +212,7 @@ class RegionSpec:
         if self.kind == "box":
             return Region.box(*self.bounds)
         if self.kind == "circle":
-            (lon, lat), = self.corners
+            ((lon, lat),) = self.corners
             return Region.circle(lon, lat, self.radius_km)
         lons, lats = self.outline()
         ok = np.isfinite(lons) & np.isfinite(lats)
@@ -184,16 +223,20 @@ class RegionSpec:
             w, e, s, n = self.bounds
             return f"box {vocab.lon(w)} to {vocab.lon(e)}, {vocab.lat(s)} to {vocab.lat(n)}"
         if self.kind == "circle":
-            (lon, lat), = self.corners
+            ((lon, lat),) = self.corners
             return f"within {self.radius_km:.0f} km of {vocab.lat(lat)} {vocab.lon(lon)}"
         if self.proj[0] == "aeqd":
             params = dict(self.proj[1])
-            return (f"area along the flow around {vocab.lat(params['lat_0'])} "
-                    f"{vocab.lon(params['lon_0'])}")
+            return (
+                f"area along the flow around {vocab.lat(params['lat_0'])} "
+                f"{vocab.lon(params['lon_0'])}"
+            )
         lons, lats = self.outline(8)
-        return (f"drawn area {vocab.lon(float(np.nanmin(lons)))} to "
-                f"{vocab.lon(float(np.nanmax(lons)))}, {vocab.lat(float(np.nanmin(lats)))} to "
-                f"{vocab.lat(float(np.nanmax(lats)))}")
+        return (
+            f"drawn area {vocab.lon(float(np.nanmin(lons)))} to "
+            f"{vocab.lon(float(np.nanmax(lons)))}, {vocab.lat(float(np.nanmin(lats)))} to "
+            f"{vocab.lat(float(np.nanmax(lats)))}"
+        )
 
     @property
     def bounds_box(self):
@@ -204,8 +247,12 @@ class RegionSpec:
             r = self.region()
             return (r.west, r.east, r.south, r.north)
         lons, lats = self.outline(8)
-        return (float(np.nanmin(lons)), float(np.nanmax(lons)), float(np.nanmin(lats)),
-                float(np.nanmax(lats)))
+        return (
+            float(np.nanmin(lons)),
+            float(np.nanmax(lons)),
+            float(np.nanmin(lats)),
+            float(np.nanmax(lats)),
+        )
 
 
 def _circle_outline(centre, radius_km, n):
@@ -217,8 +264,9 @@ def _circle_outline(centre, radius_km, n):
     d = radius_km * 1e3 / EARTH_RADIUS
     b = np.linspace(0, 2 * np.pi, n + 1)
     lat = np.arcsin(np.sin(lat0) * np.cos(d) + np.cos(lat0) * np.sin(d) * np.cos(b))
-    lon = lon0 + np.arctan2(np.sin(b) * np.sin(d) * np.cos(lat0),
-                            np.cos(d) - np.sin(lat0) * np.sin(lat))
+    lon = lon0 + np.arctan2(
+        np.sin(b) * np.sin(d) * np.cos(lat0), np.cos(d) - np.sin(lat0) * np.sin(lat)
+    )
     lon = np.rad2deg(lon)
     lon = np.rad2deg(np.unwrap(np.deg2rad(lon)))
     return lon, np.rad2deg(lat)
@@ -246,8 +294,9 @@ def area_from_crs(crs, corners) -> RegionSpec | None:
             params.append(("R", float(d.get("R", d.get("a", 6371008.7714)))))
         elif k in d:
             params.append((k, float(d[k])))
-    spec = RegionSpec("area", corners=tuple((float(a), float(b)) for a, b in corners),
-                      proj=(name, tuple(params)))
+    spec = RegionSpec(
+        "area", corners=tuple((float(a), float(b)) for a, b in corners), proj=(name, tuple(params))
+    )
     return parse_region(spec.to_text())[0]
 
 
@@ -315,26 +364,35 @@ def _proj_ok(name, p) -> bool:
 
 # -- the state ----------------------------------------------------------------------------
 
+
 class ViewState(param.Parameterized):
     """What one person is looking at. Round-trips through the page link."""
 
     case = param.String(default="", doc="name of the case shown")
-    level = param.Number(default=500.0, bounds=(0.0, 1100.0),
-                         doc="pressure level, hPa; 0 (SEA_LEVEL) for sea level")
+    level = param.Number(
+        default=500.0, bounds=(0.0, 1100.0), doc="pressure level, hPa; 0 (SEA_LEVEL) for sea level"
+    )
     time = param.String(default="", doc="valid time, ISO 8601 (empty: the first)")
     field = param.Selector(default="height", objects=list(FIELDS), doc="the filled field")
     vectors = param.Selector(default="wind", objects=list(VECTORS), doc="the vectors drawn")
-    smooth_km = param.Number(default=0.0, bounds=(0.0, 2000.0),
-                             doc="Gaussian smoothing of the inputs, km (0 = none)")
-    min_lat = param.Number(default=10.0, bounds=(0.0, 45.0),
-                           doc="quantities divided by f are masked this close to the equator")
-    region = param.String(default="", doc="the region in its compact form (box:W,E,S,N or "
-                                          "area:...); empty = the whole case")
+    smooth_km = param.Number(
+        default=0.0, bounds=(0.0, 2000.0), doc="Gaussian smoothing of the inputs, km (0 = none)"
+    )
+    min_lat = param.Number(
+        default=10.0,
+        bounds=(0.0, 45.0),
+        doc="quantities divided by f are masked this close to the equator",
+    )
+    region = param.String(
+        default="",
+        doc="the region in its compact form (box:W,E,S,N or area:...); empty = the whole case",
+    )
     projection = param.Selector(default="plate_carree", objects=list(PROJECTIONS))
     height_units = param.Selector(default="m", objects=["m", "dam"])
     wind_units = param.Selector(default="m/s", objects=["m/s", "kt"])
-    preset = param.Selector(default="synoptic_cyclone", objects=list(PRESETS),
-                            doc="the a priori scale sheet's preset")
+    preset = param.Selector(
+        default="synoptic_cyclone", objects=list(PRESETS), doc="the a priori scale sheet's preset"
+    )
     sheet = param.Dict(default={}, doc="the scale sheet's edits: scale name -> value")
 
     # -- the region ----------------------------------------------------------------
@@ -347,8 +405,7 @@ class ViewState(param.Parameterized):
 
     def set_circle(self, lon, lat, radius_km):
         """A weather system's region: within ``radius_km`` of (lon, lat)."""
-        spec, problem = parse_region(f"circle:{_short(lon)},{_short(lat)},"
-                                     f"{_short(radius_km, 1)}")
+        spec, problem = parse_region(f"circle:{_short(lon)},{_short(lat)},{_short(radius_km, 1)}")
         if spec is None:
             raise ValueError(problem)
         self.region = spec.to_text()
@@ -382,9 +439,10 @@ class ViewState(param.Parameterized):
             self.param.update(**values)
         return problems
 
-    def copy(self) -> "ViewState":
-        return ViewState(**{k: (dict(v) if isinstance(v, dict) else v)
-                            for k, v in self.values().items()})
+    def copy(self) -> ViewState:
+        return ViewState(
+            **{k: (dict(v) if isinstance(v, dict) else v) for k, v in self.values().items()}
+        )
 
 
 def encode_query(values: dict) -> dict:
@@ -482,8 +540,11 @@ def _parse_sheet(raw) -> dict:
         return out
     for kv in raw.split(","):
         k, _, v = kv.partition("=")
-        if k not in SHEET_SCALES or not re.fullmatch(_NUM, v.strip()) or \
-                not math.isfinite(float(v)):
+        if (
+            k not in SHEET_SCALES
+            or not re.fullmatch(_NUM, v.strip())
+            or not math.isfinite(float(v))
+        ):
             raise ValueError(f"{vocab.quote(kv)} is not a scale and a number")
         out[k] = float(v)
     return out

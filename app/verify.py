@@ -13,8 +13,16 @@ import math
 
 import numpy as np
 
-from balance_core import Fields, Grid, PRESETS, analyse_scales, classify_scales, momentum_budget
-from balance_core import analytic, thermo
+from balance_core import (
+    PRESETS,
+    Fields,
+    Grid,
+    analyse_scales,
+    analytic,
+    classify_scales,
+    momentum_budget,
+    thermo,
+)
 from balance_core.grid import coriolis_parameter
 from balance_core.winds import gradient_wind_from_pressure
 
@@ -38,19 +46,33 @@ def check_synoptic_scales() -> CheckResult:
     """The synoptic scale table: orders of magnitude and a geostrophic verdict."""
     s = PRESETS["synoptic_cyclone"]
     r = analyse_scales(s)
-    expected = {"acceleration": -4, "metric_uv": -5, "metric_uw": -8, "pressure_gradient": -3,
-                "coriolis": -3, "coriolis_w": -6, "viscous": -12}
+    expected = {
+        "acceleration": -4,
+        "metric_uv": -5,
+        "metric_uw": -8,
+        "pressure_gradient": -3,
+        "coriolis": -3,
+        "coriolis_w": -6,
+        "viscous": -12,
+    }
     got = {k: math.floor(math.log10(v) + 1e-9) for k, v in r.terms}
     bad = {k: got[k] for k, e in expected.items() if got[k] != e}
     verdict = classify_scales(r).balance
     ok = not bad and verdict == "geostrophic"
-    detail = ("orders of magnitude " + ", ".join(f"{k} 1e{got[k]}" for k in expected)
-              + f"; verdict {verdict}")
+    detail = (
+        "orders of magnitude "
+        + ", ".join(f"{k} 1e{got[k]}" for k in expected)
+        + f"; verdict {verdict}"
+    )
     if bad:
         detail += f"; wrong: {bad}"
-    return CheckResult("synoptic scale table (U 10 m/s, L 1000 km, f0 1e-4 /s)",
-                       "the classic synoptic scale analysis (common practice, no source)",
-                       ok, detail, {"orders": got, "verdict": verdict})
+    return CheckResult(
+        "synoptic scale table (U 10 m/s, L 1000 km, f0 1e-4 /s)",
+        "the classic synoptic scale analysis (common practice, no source)",
+        ok,
+        detail,
+        {"orders": got, "verdict": verdict},
+    )
 
 
 def williamson_residuals(resolutions=(24, 48, 96)) -> dict:
@@ -66,13 +88,18 @@ def williamson_residuals(resolutions=(24, 48, 96)) -> dict:
         case = analytic.williamson_case2(n)
         g = case.grid
         stack = lambda a: np.broadcast_to(a, (3, 1) + a.shape)  # noqa: E731
-        fields = Fields(stack(case.u), stack(case.v), stack(case.geopotential / 9.80665),
-                        pressure=[50000.0], time=[0.0, 3600.0, 7200.0])
+        fields = Fields(
+            stack(case.u),
+            stack(case.v),
+            stack(case.geopotential / 9.80665),
+            pressure=[50000.0],
+            time=[0.0, 3600.0, 7200.0],
+        )
         b = momentum_budget(g, fields, 1, 0)
         res = np.hypot(b["residual"].x, b["residual"].y)[1:-1]
         pgf = np.hypot(b["pressure_gradient"].x, b["pressure_gradient"].y)[1:-1]
         w = g.cell_area[1:-1]
-        out[n] = float(np.sqrt(np.sum(w * res ** 2) / np.sum(w * pgf ** 2)))
+        out[n] = float(np.sqrt(np.sum(w * res**2) / np.sum(w * pgf**2)))
     return out
 
 
@@ -87,12 +114,18 @@ def check_williamson() -> CheckResult:
     errs = williamson_residuals()
     slope = convergence_slope(errs)
     ok = 1.8 <= slope <= 2.2
-    detail = ("relative RMS residual " + ", ".join(f"{180 / n:.2f} deg: {e:.2e}" for n, e in errs.items())
-              + f"; convergence slope {slope:.2f} (second order: 1.8 to 2.2)")
+    detail = (
+        "relative RMS residual "
+        + ", ".join(f"{180 / n:.2f} deg: {e:.2e}" for n, e in errs.items())
+        + f"; convergence slope {slope:.2f} (second order: 1.8 to 2.2)"
+    )
     return CheckResult(
         "steady geostrophic flow over the poles (alpha = pi/4): budget residual converges",
-        "Williamson et al. (1992), J. Comput. Phys. 102, 211-224, test case 2", ok, detail,
-        {"errors": errs, "slope": slope})
+        "Williamson et al. (1992), J. Comput. Phys. 102, 211-224, test case 2",
+        ok,
+        detail,
+        {"errors": errs, "slope": slope},
+    )
 
 
 def holland_errors(step_deg: float = 0.05, lat0: float = 20.0, f_plane: bool = True) -> dict:
@@ -129,25 +162,37 @@ def holland_errors(step_deg: float = 0.05, lat0: float = 20.0, f_plane: bool = T
 def check_holland() -> CheckResult:
     e = holland_errors()
     es = holland_errors(f_plane=False)
-    ok = (e["max_error_over_vmax"] <= 0.03 and e["max_relative_error_outside_rmax"] <= 0.02
-          and e["no_root_points"] == 0)
-    detail = (f"f-plane, 0.05 deg grid: max error {100 * e['max_error_over_vmax']:.1f} % of Vmax "
-              f"({e['vmax']:.1f} m/s) beyond 3 grid lengths (limit 3 %), "
-              f"{100 * e['max_relative_error_outside_rmax']:.1f} % beyond R_max (limit 2 %); "
-              f"with f varying on the sphere instead: {100 * es['max_error_over_vmax']:.1f} % "
-              "(the formula assumes an f-plane)")
-    return CheckResult("gradient wind of a parametric hurricane from contour curvature",
-                       "Holland (1980), Mon. Wea. Rev. 108, 1212-1218", ok, detail,
-                       {"f_plane": e, "sphere": es})
+    ok = (
+        e["max_error_over_vmax"] <= 0.03
+        and e["max_relative_error_outside_rmax"] <= 0.02
+        and e["no_root_points"] == 0
+    )
+    detail = (
+        f"f-plane, 0.05 deg grid: max error {100 * e['max_error_over_vmax']:.1f} % of Vmax "
+        f"({e['vmax']:.1f} m/s) beyond 3 grid lengths (limit 3 %), "
+        f"{100 * e['max_relative_error_outside_rmax']:.1f} % beyond R_max (limit 2 %); "
+        f"with f varying on the sphere instead: {100 * es['max_error_over_vmax']:.1f} % "
+        "(the formula assumes an f-plane)"
+    )
+    return CheckResult(
+        "gradient wind of a parametric hurricane from contour curvature",
+        "Holland (1980), Mon. Wea. Rev. 108, 1212-1218",
+        ok,
+        detail,
+        {"f_plane": e, "sphere": es},
+    )
 
 
 def check_standard_atmosphere() -> CheckResult:
     z = thermo.standard_atmosphere_height(np.array([85000.0, 50000.0]))
     ok = abs(z[0] - 1457) < 1.0 and abs(z[1] - 5574) < 1.0
-    return CheckResult("standard-atmosphere heights of 850 and 500 hPa",
-                       "U.S. Standard Atmosphere, 1976 (1457 m and 5574 m)", ok,
-                       f"850 hPa {z[0]:.1f} m, 500 hPa {z[1]:.1f} m (within 1 m)",
-                       {"z850": float(z[0]), "z500": float(z[1])})
+    return CheckResult(
+        "standard-atmosphere heights of 850 and 500 hPa",
+        "U.S. Standard Atmosphere, 1976 (1457 m and 5574 m)",
+        ok,
+        f"850 hPa {z[0]:.1f} m, 500 hPa {z[1]:.1f} m (within 1 m)",
+        {"z850": float(z[0]), "z500": float(z[1])},
+    )
 
 
 def check_linear_exact() -> CheckResult:
@@ -162,10 +207,13 @@ def check_linear_exact() -> CheckResult:
     ey = np.full_like(z, -200 / g.radius)
     err = max(np.max(np.abs(dzdx - ex) / np.abs(ex)), np.max(np.abs(dzdy - ey) / np.abs(ey)))
     ok = err < 1e-11
-    return CheckResult("fields linear in the grid coordinates differentiate exactly",
-                       "property of second-order differences (common practice, no source)", ok,
-                       f"largest relative error {err:.1e} (limit 1e-11, rounding only)",
-                       {"error": float(err)})
+    return CheckResult(
+        "fields linear in the grid coordinates differentiate exactly",
+        "property of second-order differences (common practice, no source)",
+        ok,
+        f"largest relative error {err:.1e} (limit 1e-11, rounding only)",
+        {"error": float(err)},
+    )
 
 
 def check_metpy_geostrophic() -> CheckResult:
@@ -179,8 +227,9 @@ def check_metpy_geostrophic() -> CheckResult:
         import pyproj
         from metpy.units import units
     except ImportError:
-        return CheckResult(name, source, False, "MetPy is not installed (pip extra 'test')",
-                           skipped=True)
+        return CheckResult(
+            name, source, False, "MetPy is not installed (pip extra 'test')", skipped=True
+        )
     from balance_core import constants as C
     from balance_core.winds import geostrophic_wind
 
@@ -189,24 +238,37 @@ def check_metpy_geostrophic() -> CheckResult:
     g = Grid.latlon(lat, lon)
     phi, lam = np.deg2rad(g.lat), np.deg2rad(g.lon)
     z = 5500 + 150 * np.sin(phi) ** 2 * np.cos(3 * lam) + 40 * np.cos(2 * phi)
-    dx, dy = mpcalc.lat_lon_grid_deltas(lon, lat, geod=pyproj.Geod(a=C.EARTH_RADIUS,
-                                                                   b=C.EARTH_RADIUS))
+    dx, dy = mpcalc.lat_lon_grid_deltas(
+        lon, lat, geod=pyproj.Geod(a=C.EARTH_RADIUS, b=C.EARTH_RADIUS)
+    )
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        mu, mv = mpcalc.geostrophic_wind(z * units.m, dx=dx, dy=dy,
-                                         latitude=lat[:, None] * units.degree)
+        mu, mv = mpcalc.geostrophic_wind(
+            z * units.m, dx=dx, dy=dy, latitude=lat[:, None] * units.degree
+        )
     ug, vg = geostrophic_wind(g, z)
     ok = ~g.tropics_mask
     ok[:, [0, -1]] = False  # MetPy does not wrap around the globe
     scale = np.nanmax(np.hypot(ug, vg))
     err = max(np.abs(mu.m - ug)[ok].max(), np.abs(mv.m - vg)[ok].max()) / scale
-    return CheckResult(name, source, err < 2e-4,
-                       f"largest difference {err:.1e} of the top speed (limit 2e-4: geodesic "
-                       "versus along-parallel spacing)", {"error": float(err)})
+    return CheckResult(
+        name,
+        source,
+        err < 2e-4,
+        f"largest difference {err:.1e} of the top speed (limit 2e-4: geodesic "
+        "versus along-parallel spacing)",
+        {"error": float(err)},
+    )
 
 
-CHECKS = (check_synoptic_scales, check_standard_atmosphere, check_linear_exact, check_williamson,
-          check_holland, check_metpy_geostrophic)
+CHECKS = (
+    check_synoptic_scales,
+    check_standard_atmosphere,
+    check_linear_exact,
+    check_williamson,
+    check_holland,
+    check_metpy_geostrophic,
+)
 
 
 def run_all() -> list:

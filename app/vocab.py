@@ -13,12 +13,40 @@ import math
 
 import numpy as np
 
-from balance_core.vocabulary import (BALANCE_NAMES, PART_NAMES, PRESET_NAMES, SCALE_NAMES,
-                                     SYSTEM_NAMES, TERM_NAMES, term_name)
+from balance_core.vocabulary import (
+    BALANCE_NAMES,
+    PART_NAMES,
+    PRESET_NAMES,
+    SCALE_NAMES,
+    SYSTEM_NAMES,
+    TERM_NAMES,
+    term_name,
+)
 
-__all__ = ["system_name", "part_name", "TERM_NAMES", "BALANCE_NAMES", "SCALE_NAMES", "PRESET_NAMES", "FIELD_NAMES",
-           "NUMBERS", "term_name", "balance_name", "preset_name", "when", "when_short", "lat",
-           "lon", "sig", "quote", "KT", "wind", "height", "WIND_UNITS", "HEIGHT_UNITS"]
+__all__ = [
+    "system_name",
+    "part_name",
+    "TERM_NAMES",
+    "BALANCE_NAMES",
+    "SCALE_NAMES",
+    "PRESET_NAMES",
+    "FIELD_NAMES",
+    "NUMBERS",
+    "term_name",
+    "balance_name",
+    "preset_name",
+    "when",
+    "when_short",
+    "lat",
+    "lon",
+    "sig",
+    "quote",
+    "KT",
+    "wind",
+    "height",
+    "WIND_UNITS",
+    "HEIGHT_UNITS",
+]
 
 KT = 0.514444  # m s-1 per knot (1852 m per hour)
 WIND_UNITS = {"m/s": ("m/s", 1.0), "kt": ("kt", 1 / KT)}
@@ -39,32 +67,53 @@ FIELD_NAMES = {
 
 #: Numbers of the report: key -> (display name, unit, what it means).
 NUMBERS = {
-    "rossby": ("box Rossby number", "",
-               "U / (f0 L), U the region's RMS wind, L the flow's length scale: how large the "
-               "acceleration of the flow is against Coriolis for the region as a whole (small: "
-               "geostrophy can hold)"),
-    "rossby_local_median": ("local Rossby number", "",
-                            "median |zeta / f| over the region's points: how strongly the flow "
-                            "spins against the planet's rotation at a typical point (large in "
-                            "tight vortices even when the box number is small)"),
-    "ekman": ("Ekman number", "",
-              "nu / (f0 H^2), nu an eddy viscosity of 10 m2/s and H the depth of the "
-              "troposphere (10 km): friction against Coriolis over the depth of the flow"),
-    "froude": ("Froude number", "",
-               "U / (N H), H the depth of the troposphere: flow speed over the speed of "
-               "gravity waves"),
+    "rossby": (
+        "box Rossby number",
+        "",
+        "U / (f0 L), U the region's RMS wind, L the flow's length scale: how large the "
+        "acceleration of the flow is against Coriolis for the region as a whole (small: "
+        "geostrophy can hold)",
+    ),
+    "rossby_local_median": (
+        "local Rossby number",
+        "",
+        "median |zeta / f| over the region's points: how strongly the flow "
+        "spins against the planet's rotation at a typical point (large in "
+        "tight vortices even when the box number is small)",
+    ),
+    "ekman": (
+        "Ekman number",
+        "",
+        "nu / (f0 H^2), nu an eddy viscosity of 10 m2/s and H the depth of the "
+        "troposphere (10 km): friction against Coriolis over the depth of the flow",
+    ),
+    "froude": (
+        "Froude number",
+        "",
+        "U / (N H), H the depth of the troposphere: flow speed over the speed of gravity waves",
+    ),
     "burger": ("Burger number", "", "(N H / (f0 L))^2: stratification against rotation"),
-    "deformation_radius_km": ("deformation radius", "km",
-                              "N H / f0: the length at which rotation and stratification "
-                              "matter equally"),
-    "richardson_median": ("Richardson number", "",
-                          "median N^2 / |dV/dz|^2: below 1/4 the shear can overturn the layer"),
-    "residual_to_coriolis": ("residual over Coriolis", "",
-                             "RMS residual / RMS Coriolis (from the data): what the residual "
-                             "would be against the Coriolis force if it were all friction"),
-    "shear_depth_km": ("shear depth", "km",
-                       "U / RMS|dV/dz| (from the data): the depth over which the wind changes "
-                       "by its own speed"),
+    "deformation_radius_km": (
+        "deformation radius",
+        "km",
+        "N H / f0: the length at which rotation and stratification matter equally",
+    ),
+    "richardson_median": (
+        "Richardson number",
+        "",
+        "median N^2 / |dV/dz|^2: below 1/4 the shear can overturn the layer",
+    ),
+    "residual_to_coriolis": (
+        "residual over Coriolis",
+        "",
+        "RMS residual / RMS Coriolis (from the data): what the residual "
+        "would be against the Coriolis force if it were all friction",
+    ),
+    "shear_depth_km": (
+        "shear depth",
+        "km",
+        "U / RMS|dV/dz| (from the data): the depth over which the wind changes by its own speed",
+    ),
 }
 
 
@@ -85,8 +134,11 @@ def preset_name(code: str) -> str:
 
 
 def _dt(t):
-    return np.datetime64(t, "m").astype(object) if t is not None and not (
-        isinstance(t, np.datetime64) and np.isnat(t)) else None
+    return (
+        np.datetime64(t, "m").astype(object)
+        if t is not None and not (isinstance(t, np.datetime64) and np.isnat(t))
+        else None
+    )
 
 
 def when(valid, reference=None) -> str:
@@ -106,8 +158,11 @@ def when(valid, reference=None) -> str:
 def when_short(valid) -> str:
     """'19 Jan 00 UTC', for axes and lists."""
     v = _dt(_as64(valid))
-    return "no time" if v is None else v.strftime("%d %b %H") + (
-        f":{v.minute:02d}" if v.minute else "") + " UTC"
+    return (
+        "no time"
+        if v is None
+        else v.strftime("%d %b %H") + (f":{v.minute:02d}" if v.minute else "") + " UTC"
+    )
 
 
 def _as64(t):

@@ -41,7 +41,7 @@ FIRST = ("box", "chart", "outline")
 class Lane:
     """One session's queue: the newest waiting job of each kind."""
 
-    def __init__(self, pool: "FairPool", name: str = ""):
+    def __init__(self, pool: FairPool, name: str = ""):
         self.pool = pool
         self.name = name or uuid.uuid4().hex[:8]
         self.waiting: dict = {}
@@ -93,8 +93,9 @@ class Lane:
 
     def _take(self):
         first_busy = any(self.running[k] for k in FIRST)
-        for kind in sorted(self.waiting, key=lambda k: KIND_ORDER.index(k)
-                           if k in KIND_ORDER else len(KIND_ORDER)):
+        for kind in sorted(
+            self.waiting, key=lambda k: KIND_ORDER.index(k) if k in KIND_ORDER else len(KIND_ORDER)
+        ):
             if first_busy and kind not in FIRST:
                 return None  # taken up again when the first screen's job ends
             gen, fn, done = self.waiting.pop(kind)
@@ -161,8 +162,12 @@ class FairPool:
                     computed = True
                     value = fn()
                     status = "ok"
-                    log.debug("lane %s: %s computed in %.0f ms", lane.name, kind,
-                              1e3 * (time.perf_counter() - t0))
+                    log.debug(
+                        "lane %s: %s computed in %.0f ms",
+                        lane.name,
+                        kind,
+                        1e3 * (time.perf_counter() - t0),
+                    )
                 except Exception as exc:  # noqa: BLE001 - the page says it in one sentence
                     status, value = "error", exc
                 _safe(done, status if lane.current(kind, gen) else "stale", value, gen)
@@ -187,7 +192,7 @@ class FairPool:
 def _safe(done, status, value, gen):
     try:
         done(status, value, gen)
-    except Exception:  # noqa: BLE001 - a callback must not kill a worker
+    except Exception:
         log.exception("a view's callback failed")
 
 

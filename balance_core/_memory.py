@@ -40,8 +40,9 @@ class BlockPool:
             block = np.empty(shape)
             self._blocks.append(block)
             if len(self._blocks) > self.keep:
-                free = [i for i in range(len(self._blocks) - 1)
-                        if sys.getrefcount(self._blocks[i]) <= 2]
+                free = [
+                    i for i in range(len(self._blocks) - 1) if sys.getrefcount(self._blocks[i]) <= 2
+                ]
                 self._blocks.pop(free[0] if free else 0)
             return block
 

@@ -13,13 +13,17 @@ import numpy as np
 
 from .grid import Grid
 
-__all__ = ["WILLIAMSON", "williamson_case2", "holland_pressure", "holland_gradient_wind",
-           "great_circle_distance"]
+__all__ = [
+    "WILLIAMSON",
+    "williamson_case2",
+    "holland_pressure",
+    "holland_gradient_wind",
+    "great_circle_distance",
+]
 
 #: Constants of Williamson et al. (1992), section 2 (Earth radius, rotation,
 #: gravity) and test case 2 (u0 = 2 pi a / 12 days, g h0 = 2.94e4 m2 s-2).
-WILLIAMSON = {"a": 6.37122e6, "omega": 7.292e-5, "g": 9.80616, "gh0": 2.94e4,
-              "days": 12.0}
+WILLIAMSON = {"a": 6.37122e6, "omega": 7.292e-5, "g": 9.80616, "gh0": 2.94e4, "days": 12.0}
 
 
 @dataclasses.dataclass
@@ -62,7 +66,7 @@ def williamson_case2(nlat: int, alpha: float = np.pi / 4) -> WilliamsonCase2:
     s = -np.cos(lam) * np.cos(phi) * np.sin(alpha) + np.sin(phi) * np.cos(alpha)
     u = u0 * (np.cos(phi) * np.cos(alpha) + np.cos(lam) * np.sin(phi) * np.sin(alpha))
     v = -u0 * np.sin(lam) * np.sin(alpha)
-    gh = w["gh0"] - (a * om * u0 + u0 ** 2 / 2) * s ** 2
+    gh = w["gh0"] - (a * om * u0 + u0**2 / 2) * s**2
     grid = Grid.latlon(lat, lon, radius=a, omega=om, coriolis=2 * om * s)
     return WilliamsonCase2(grid, u, v, gh, alpha)
 
@@ -85,9 +89,9 @@ def holland_gradient_wind(r, delta_p: float, r_max: float, b: float, rho: float,
     A = R_max^B (Holland 1980), with constant f (an f-plane).
     """
     r = np.asarray(r, dtype=np.float64)
-    A = r_max ** b
+    A = r_max**b
     with np.errstate(divide="ignore", over="ignore", invalid="ignore"):
-        term = A * b * delta_p * np.exp(-A / r ** b) / (rho * r ** b)
+        term = A * b * delta_p * np.exp(-A / r**b) / (rho * r**b)
         return np.sqrt(term + (r * f) ** 2 / 4) - r * abs(f) / 2
 
 

@@ -46,6 +46,7 @@ import dataclasses
 import os
 import threading
 from concurrent.futures import ThreadPoolExecutor
+from typing import Any
 
 import numpy as np
 
@@ -55,13 +56,32 @@ from .grid import Grid, derivative_weights
 from .thermo import standard_atmosphere_density
 from .winds import Flow
 
-__all__ = ["Fields", "Term", "Budget", "momentum_budget", "TERMS", "FORCING_TERMS", "DERIVED",
-           "ageostrophic_parts", "AGEOSTROPHIC_PARTS", "trajectory_centripetal",
-           "isallobaric_wind"]
+__all__ = [
+    "Fields",
+    "Term",
+    "Budget",
+    "momentum_budget",
+    "TERMS",
+    "FORCING_TERMS",
+    "DERIVED",
+    "ageostrophic_parts",
+    "AGEOSTROPHIC_PARTS",
+    "trajectory_centripetal",
+    "isallobaric_wind",
+]
 
 #: The terms of the budget, in the order of the equations; the residual last.
-TERMS = ("tendency", "horizontal_advection", "vertical_advection", "metric_uv", "metric_uw",
-         "coriolis", "coriolis_w", "pressure_gradient", "residual")
+TERMS = (
+    "tendency",
+    "horizontal_advection",
+    "vertical_advection",
+    "metric_uv",
+    "metric_uw",
+    "coriolis",
+    "coriolis_w",
+    "pressure_gradient",
+    "residual",
+)
 #: The terms on the right-hand side that the data resolves.
 FORCING_TERMS = TERMS[1:-1]
 #: Views derived from the terms, not part of the sum.
@@ -88,8 +108,8 @@ class Fields:
     height: np.ndarray
     pressure: np.ndarray
     time: np.ndarray | None = None
-    omega: np.ndarray | None = None
-    temperature: np.ndarray | None = None
+    omega: Any = None  # an array, or None
+    temperature: Any = None  # an array, or None
     #: why an optional field is None, if the reason is more than "not in the data"
     reasons: dict = dataclasses.field(default_factory=dict)
 
@@ -115,11 +135,22 @@ class Fields:
         elif shape[0] > 1:
             raise ValueError("several time steps need their times (seconds)")
 
-    def rows(self, j0: int, j1: int) -> "Fields":
+    def rows(self, j0: int, j1: int) -> Fields:
         """The same fields restricted to rows j0..j1-1 (views, no copies)."""
-        cut = lambda a: None if a is None else a[..., j0:j1, :]  # noqa: E731
-        return Fields(cut(self.u), cut(self.v), cut(self.height), self.pressure, self.time,
-                      cut(self.omega), cut(self.temperature), dict(self.reasons))
+
+        def cut(a: Any) -> Any:
+            return None if a is None else a[..., j0:j1, :]
+
+        return Fields(
+            cut(self.u),
+            cut(self.v),
+            cut(self.height),
+            self.pressure,
+            self.time,
+            cut(self.omega),
+            cut(self.temperature),
+            dict(self.reasons),
+        )
 
     @property
     def ntime(self) -> int:
@@ -139,8 +170,10 @@ class Term:
     """
 
     name: str
-    x: np.ndarray | None
-    y: np.ndarray | None
+    #: numpy arrays, or None where unavailable (typed Any: a check of ``available`` comes
+    #: before every use, which the type checker cannot follow)
+    x: Any
+    y: Any
     note: str | None = None
 
     @property
@@ -235,8 +268,15 @@ def _pool(n: int) -> ThreadPoolExecutor:
         return _POOLS[n]
 
 
-def momentum_budget(grid: Grid, fields: Fields, time_index: int = 0, level_index: int = 0,
-                    *, views: bool = True, workers: int | None = None) -> Budget:
+def momentum_budget(
+    grid: Grid,
+    fields: Fields,
+    time_index: int = 0,
+    level_index: int = 0,
+    *,
+    views: bool = True,
+    workers: int | None = None,
+) -> Budget:
     """Compute every term of the x and y momentum equations at one level and time.
 
     Parameters
@@ -325,8 +365,9 @@ class _Layout:
                 self.notes.append("tendency from two times: a first-order difference")
         else:
             self.t_ids = self.t_w = None
-            self.missing["tendency"] = fields.reasons.get("tendency",
-                                                          "one time only, so no local tendency")
+            self.missing["tendency"] = fields.reasons.get(
+                "tendency", "one time only, so no local tendency"
+            )
         if fields.nlevel >= 2:
             self.p_ids, self.p_w = derivative_weights(fields.pressure, ik)
         else:
@@ -346,9 +387,12 @@ class _Layout:
                 why_t = fields.reasons.get("temperature", "no temperature in the data")
                 self.notes.append(
                     f"w = -omega / (rho g), rho = {self.rho_std:.3f} kg m-3 from the standard "
-                    f"atmosphere ({why_t})")
+                    f"atmosphere ({why_t})"
+                )
             if self.p_ids is None:
-                self.missing["vertical_advection"] = "one pressure level only, so no vertical derivative"
+                self.missing["vertical_advection"] = (
+                    "one pressure level only, so no vertical derivative"
+                )
         self.includes = [n for n in TERMS[:-1] if n in self.missing]
         note = "friction, sub-grid processes and numerical or data error"
         if self.includes:
@@ -377,7 +421,9 @@ def _allocate(L: _Layout, shape, views: bool) -> Budget:
         elif n == "coriolis_w":
             terms[n] = Term(n, next(slots), _zeros(shape))  # no y part, by definition
         else:
-            terms[n] = Term(n, next(slots), next(slots), L.residual_note if n == "residual" else None)
+            terms[n] = Term(
+                n, next(slots), next(slots), L.residual_note if n == "residual" else None
+            )
     notes = []
     if not L.available("vertical_advection"):
         notes.append("without vertical advection")
@@ -385,10 +431,18 @@ def _allocate(L: _Layout, shape, views: bool) -> Budget:
         notes.append("without the local tendency (one time): the steady-state value")
     der = {}
     for n in derived:
-        der[n] = Term(n, next(slots), next(slots),
-                      ("; ".join(notes) or None) if n == "acceleration" else None)
-    return Budget(terms=terms, derived=der, residual_includes=L.includes, notes=list(L.notes),
-                  level_pa=L.p, time_index=L.it, level_index=L.ik)
+        der[n] = Term(
+            n, next(slots), next(slots), ("; ".join(notes) or None) if n == "acceleration" else None
+        )
+    return Budget(
+        terms=terms,
+        derived=der,
+        residual_includes=L.includes,
+        notes=list(L.notes),
+        level_pa=L.p,
+        time_index=L.it,
+        level_index=L.ik,
+    )
 
 
 def _f64(a):
@@ -421,8 +475,7 @@ def _grad_rows(gb: Grid, gi: Grid, fh, a: int, b: int, factor=None):
     return gx[a:b], gy[a:b]
 
 
-def _fill_band(grid: Grid, fields: Fields, L: _Layout, out: Budget, j0: int, j1: int,
-               views: bool):
+def _fill_band(grid: Grid, fields: Fields, L: _Layout, out: Budget, j0: int, j1: int, views: bool):
     """Every term of rows j0..j1-1, written straight into ``out``.
 
     Derivatives across rows use one halo row each side (from the whole field),
@@ -439,14 +492,16 @@ def _fill_band(grid: Grid, fields: Fields, L: _Layout, out: Budget, j0: int, j1:
     vh = _f64(fields.v[it, ik, h0:h1])
     u, v = uh[a:b], vh[a:b]
     neg_u = np.negative(u)
-    w = w_over_a = om = None
+    w: Any = None  # w, w / a and omega where the data give omega
+    w_over_a: Any = None
+    om: Any = None
     if L.has_omega:
         om = _f64(fields.omega[it, ik, rows])
         if L.has_temperature:  # w = -omega / (rho g), rho = p / (R_d T)
             w = np.multiply(om, fields.temperature[it, ik, rows], dtype=np.float64)
             w *= -c.R_DRY / (L.p * c.G0)
         else:
-            w = om * (-1.0 / (c.G0 * L.rho_std))
+            w = om * (-1.0 / (c.G0 * float(L.rho_std or 0.0)))
         w_over_a = w * (1.0 / grid.radius)
 
     def o(name, comp):
@@ -464,23 +519,27 @@ def _fill_band(grid: Grid, fields: Fields, L: _Layout, out: Budget, j0: int, j1:
         dqdy *= v
         adv -= dqdy
         if L.t_ids is not None:
-            _weighted_sum([q0 if i == it else q[i, ik, rows] for i in L.t_ids], L.t_w,
-                          o("tendency", comp))
+            _weighted_sum(
+                [q0 if i == it else q[i, ik, rows] for i in L.t_ids], L.t_w, o("tendency", comp)
+            )
         if L.available("vertical_advection"):  # -omega dq/dp
-            va = _weighted_sum([q0 if k == ik else q[it, k, rows] for k in L.p_ids],
-                               [-x for x in L.p_w], o("vertical_advection", comp))
+            va = _weighted_sum(
+                [q0 if k == ik else q[it, k, rows] for k in L.p_ids],
+                [-x for x in L.p_w],
+                o("vertical_advection", comp),
+            )
             va *= om
     mx, my = o("metric_uv", "x"), o("metric_uv", "y")
-    np.multiply(u, v, out=mx)          # + u v tan(phi) / a
+    np.multiply(u, v, out=mx)  # + u v tan(phi) / a
     mx *= gi.tan_lat_over_a
-    np.multiply(u, neg_u, out=my)      # - u^2 tan(phi) / a
+    np.multiply(u, neg_u, out=my)  # - u^2 tan(phi) / a
     my *= gi.tan_lat_over_a
-    np.multiply(gi.f, v, out=o("coriolis", "x"))       # + f v
-    np.multiply(gi.f, neg_u, out=o("coriolis", "y"))   # - f u
+    np.multiply(gi.f, v, out=o("coriolis", "x"))  # + f v
+    np.multiply(gi.f, neg_u, out=o("coriolis", "y"))  # - f u
     if w is not None:
-        np.multiply(neg_u, w_over_a, out=o("metric_uw", "x"))   # - u w / a
+        np.multiply(neg_u, w_over_a, out=o("metric_uw", "x"))  # - u w / a
         muy = o("metric_uw", "y")
-        np.multiply(v, w_over_a, out=muy)                       # - v w / a
+        np.multiply(v, w_over_a, out=muy)  # - v w / a
         np.negative(muy, out=muy)
         np.multiply(w, -2.0 * grid.omega * gi.cos_lat, out=o("coriolis_w", "x"))
     for comp in ("x", "y"):
@@ -492,8 +551,11 @@ def _fill_band(grid: Grid, fields: Fields, L: _Layout, out: Budget, j0: int, j1:
 def _residual_into(L: _Layout, out: Budget, rows, comp):
     """residual = tendency - sum of the forcing terms (or -sum without a tendency)."""
     res = getattr(out.terms["residual"], comp)[rows]
-    parts = [getattr(out.terms[n], comp)[rows] for n in FORCING_TERMS
-             if L.available(n) and not (n == "coriolis_w" and comp == "y")]
+    parts = [
+        getattr(out.terms[n], comp)[rows]
+        for n in FORCING_TERMS
+        if L.available(n) and not (n == "coriolis_w" and comp == "y")
+    ]
     if L.t_ids is None:
         np.add(parts[0], parts[1], out=res)
         for p in parts[2:]:
@@ -518,8 +580,9 @@ def _derived_into(gi: Grid, L: _Layout, out: Budget, rows, u, v):
         if L.available("vertical_advection"):
             acc -= getattr(out.terms["vertical_advection"], comp)[rows]
     s, n = out.derived["along_stream"], out.derived["centripetal"]
-    Flow(gi, u, v).natural_split(hadv.x[rows], hadv.y[rows],
-                                 out=(s.x[rows], s.y[rows], n.x[rows], n.y[rows]))
+    Flow(gi, u, v).natural_split(
+        hadv.x[rows], hadv.y[rows], out=(s.x[rows], s.y[rows], n.x[rows], n.y[rows])
+    )
     # the Earth's curvature of the trajectory: metric_uv is normal to the wind
     n.x[rows] += out.terms["metric_uv"].x[rows]
     n.y[rows] += out.terms["metric_uv"].y[rows]
@@ -536,7 +599,7 @@ def isallobaric_wind(grid: Grid, height_tendency):
     across the grid is left out, as in the textbook form); NaN in the tropical mask.
     """
     gx, gy = grid.grad(np.asarray(height_tendency, dtype=np.float64))
-    k = -c.G0 * grid.inverse_f ** 2
+    k = -c.G0 * grid.inverse_f**2
     return gx * k, gy * k
 
 
@@ -556,16 +619,24 @@ def trajectory_centripetal(budget: Budget, u, v) -> Term:
     ten = budget.terms["tendency"]
     cen = budget.derived.get("centripetal")
     if not ten.available or cen is None or not cen.available:
-        return Term("centripetal_trajectory", None, None,
-                    "no local tendency (one valid time): only the streamlines' curvature")
+        return Term(
+            "centripetal_trajectory",
+            None,
+            None,
+            "no local tendency (one valid time): only the streamlines' curvature",
+        )
     u = np.asarray(u, dtype=np.float64)
     v = np.asarray(v, dtype=np.float64)
     speed = np.hypot(u, v)
     with np.errstate(invalid="ignore", divide="ignore"):
         nx, ny = -v / speed, u / speed
     along_n = ten.x * nx + ten.y * ny
-    return Term("centripetal_trajectory", cen.x - along_n * nx, cen.y - along_n * ny,
-                "the streamlines' curvature plus the cross-stream tendency over V^2")
+    return Term(
+        "centripetal_trajectory",
+        cen.x - along_n * nx,
+        cen.y - along_n * ny,
+        "the streamlines' curvature plus the cross-stream tendency over V^2",
+    )
 
 
 #: The parts of the ageostrophic wind, by the terms that make them (see ageostrophic_parts).
@@ -613,15 +684,24 @@ def ageostrophic_parts(budget: Budget, inverse_f) -> dict:
 
     out = {}
     ten = t["tendency"]
-    out["tendency"] = Term("tendency", *turned(ten.x, ten.y)) if ten.available else \
-        Term("tendency", None, None, f"no tendency ({ten.note}); the remainder holds its part")
+    out["tendency"] = (
+        Term("tendency", *turned(ten.x, ten.y))
+        if ten.available
+        else Term("tendency", None, None, f"no tendency ({ten.note}); the remainder holds its part")
+    )
     adv = t["horizontal_advection"]
     out["inertial_advective"] = Term("inertial_advective", *turned(adv.x, adv.y, -1.0))
     vad = t["vertical_advection"]
     out["vertical_advection"] = (
-        Term("vertical_advection", *turned(vad.x, vad.y, -1.0)) if vad.available else
-        Term("vertical_advection", None, None,
-             f"no vertical advection ({vad.note}); the remainder holds its part"))
+        Term("vertical_advection", *turned(vad.x, vad.y, -1.0))
+        if vad.available
+        else Term(
+            "vertical_advection",
+            None,
+            None,
+            f"no vertical advection ({vad.note}); the remainder holds its part",
+        )
+    )
     rx = np.zeros_like(t["residual"].x)
     ry = np.zeros_like(t["residual"].y)
     for name in ("metric_uv", "metric_uw", "coriolis_w", "residual"):
@@ -629,7 +709,11 @@ def ageostrophic_parts(budget: Budget, inverse_f) -> dict:
         if term.available:
             rx = rx + term.x
             ry = ry + term.y
-    out["remainder"] = Term("remainder", *turned(rx, ry, -1.0),
-                            "metric terms, vertical Coriolis and the residual (friction, "
-                            "unresolved processes, error)")
+    remx, remy = turned(rx, ry, -1.0)
+    out["remainder"] = Term(
+        "remainder",
+        remx,
+        remy,
+        "metric terms, vertical Coriolis and the residual (friction, unresolved processes, error)",
+    )
     return out

@@ -145,8 +145,19 @@ class Stencil:
         two axes (y, x) of the fields.
     """
 
-    def __init__(self, coord, axis: int, *, periodic: bool = False, period: float | None = None,
-                 scale=1.0, like: "Stencil | None" = None):
+    uniform: bool
+    _h: np.ndarray
+
+    def __init__(
+        self,
+        coord,
+        axis: int,
+        *,
+        periodic: bool = False,
+        period: float | None = None,
+        scale=1.0,
+        like: Stencil | None = None,
+    ):
         c = np.asarray(coord, dtype=np.float64)
         if c.ndim != 1 or c.size < 3:
             raise ValueError("a second-order derivative needs at least 3 points along the axis")
@@ -165,8 +176,9 @@ class Stencil:
         # choice of formula and its uniform spacing are kept, so that the stretch's inner
         # derivatives are the whole axis's to the last bit (a stretch's own first spacing
         # can differ from the whole axis's by a rounding)
-        self.uniform = like.uniform if like is not None else \
-            bool(np.allclose(hh, hh[0], rtol=1e-9, atol=0.0))
+        self.uniform = (
+            like.uniform if like is not None else bool(np.allclose(hh, hh[0], rtol=1e-9, atol=0.0))
+        )
         if like is not None and like.uniform:
             hh = np.full_like(hh, like._h[0])
         self._h = hh
@@ -248,7 +260,9 @@ class Stencil:
             raise ValueError(
                 f"field has {f.shape[self.axis]} points along axis {self.axis}, grid has {self.n}"
             )
-        shape = np.broadcast_shapes(f.shape, np.shape(self._scale)) if np.ndim(self._scale) else f.shape
+        shape = (
+            np.broadcast_shapes(f.shape, np.shape(self._scale)) if np.ndim(self._scale) else f.shape
+        )
         if out is None:
             out = np.empty(shape, dtype=np.float64)
         nd, ax, n = f.ndim, self.axis, self.n
@@ -272,16 +286,26 @@ class Stencil:
             o_int += f[T(slice(2, n))] * hi
             if self.periodic:
                 lo, mid, hi = self.w_first
-                out[T(slice(0, 1))] = f[T(slice(n - 1, n))] * lo + f[T(slice(0, 1))] * mid + f[T(slice(1, 2))] * hi
+                out[T(slice(0, 1))] = (
+                    f[T(slice(n - 1, n))] * lo + f[T(slice(0, 1))] * mid + f[T(slice(1, 2))] * hi
+                )
                 lo, mid, hi = self.w_last
-                out[T(slice(n - 1, n))] = (f[T(slice(n - 2, n - 1))] * lo + f[T(slice(n - 1, n))] * mid
-                                           + f[T(slice(0, 1))] * hi)
+                out[T(slice(n - 1, n))] = (
+                    f[T(slice(n - 2, n - 1))] * lo
+                    + f[T(slice(n - 1, n))] * mid
+                    + f[T(slice(0, 1))] * hi
+                )
                 return out
         w0, w1, w2 = self.w_first
-        out[T(slice(0, 1))] = f[T(slice(0, 1))] * w0 + f[T(slice(1, 2))] * w1 + f[T(slice(2, 3))] * w2
+        out[T(slice(0, 1))] = (
+            f[T(slice(0, 1))] * w0 + f[T(slice(1, 2))] * w1 + f[T(slice(2, 3))] * w2
+        )
         w0, w1, w2 = self.w_last
-        out[T(slice(n - 1, n))] = (f[T(slice(n - 3, n - 2))] * w0 + f[T(slice(n - 2, n - 1))] * w1
-                                   + f[T(slice(n - 1, n))] * w2)
+        out[T(slice(n - 1, n))] = (
+            f[T(slice(n - 3, n - 2))] * w0
+            + f[T(slice(n - 2, n - 1))] * w1
+            + f[T(slice(n - 1, n))] * w2
+        )
         return out
 
 
@@ -310,22 +334,49 @@ class _Metrics:
     to east and north.
     """
 
-    def __init__(self, x_coord, y_coord, x_scale, y_scale, periodic, cos_g=None, sin_g=None,
-                 like: "_Metrics | None" = None):
+    ddx_axis: Stencil
+    ddy_axis: Stencil
+
+    def __init__(
+        self,
+        x_coord,
+        y_coord,
+        x_scale,
+        y_scale,
+        periodic,
+        cos_g=None,
+        sin_g=None,
+        like: _Metrics | None = None,
+    ):
         self.x_coord, self.y_coord = x_coord, y_coord
         self.x_scale, self.y_scale = x_scale, y_scale
         self.periodic = periodic
         self.cos_g, self.sin_g = cos_g, sin_g
-        self.ddx_axis = Stencil(x_coord, -1, periodic=periodic, period=2 * np.pi, scale=x_scale,
-                                like=None if like is None else like.ddx_axis)
-        self.ddy_axis = Stencil(y_coord, -2, scale=y_scale,
-                                like=None if like is None else like.ddy_axis)
+        self.ddx_axis = Stencil(
+            x_coord,
+            -1,
+            periodic=periodic,
+            period=2 * np.pi,
+            scale=x_scale,
+            like=None if like is None else like.ddx_axis,
+        )
+        self.ddy_axis = Stencil(
+            y_coord, -2, scale=y_scale, like=None if like is None else like.ddy_axis
+        )
 
-    def rows(self, j0: int, j1: int) -> "_Metrics":
+    def rows(self, j0: int, j1: int) -> _Metrics:
         """The metrics of rows j0..j1-1 (a latitude band or a strip of y)."""
         cut = lambda a: a if a is None or np.ndim(a) == 0 else a[j0:j1]  # noqa: E731
-        return _Metrics(self.x_coord, self.y_coord[j0:j1], cut(self.x_scale), cut(self.y_scale),
-                        self.periodic, cut(self.cos_g), cut(self.sin_g), like=self)
+        return _Metrics(
+            self.x_coord,
+            self.y_coord[j0:j1],
+            cut(self.x_scale),
+            cut(self.y_scale),
+            self.periodic,
+            cut(self.cos_g),
+            cut(self.sin_g),
+            like=self,
+        )
 
 
 class Grid:
@@ -355,9 +406,28 @@ class Grid:
 
     frame = "earth-relative components; derivatives along east and north"
 
-    def __init__(self, *, kind, lat2d, lon2d, metrics, cell_area, radius, omega, f=None,
-                 min_lat=10.0, pole_limit=89.99, periodic=False, x=None, y=None, crs=None,
-                 lat1d=None, lon1d=None, map_factor=None, convergence=None):
+    def __init__(
+        self,
+        *,
+        kind,
+        lat2d,
+        lon2d,
+        metrics,
+        cell_area,
+        radius,
+        omega,
+        f=None,
+        min_lat=10.0,
+        pole_limit=89.99,
+        periodic=False,
+        x=None,
+        y=None,
+        crs=None,
+        lat1d=None,
+        lon1d=None,
+        map_factor=None,
+        convergence=None,
+    ):
         self.kind = kind
         self.lat = _readonly(lat2d)
         self.lon = _readonly(lon2d)
@@ -380,9 +450,17 @@ class Grid:
 
     # -- constructors -----------------------------------------------------------
     @classmethod
-    def latlon(cls, lat, lon, *, radius: float = constants.EARTH_RADIUS,
-               omega: float = constants.OMEGA, min_lat: float = 10.0,
-               pole_limit: float = 89.99, coriolis=None) -> "Grid":
+    def latlon(
+        cls,
+        lat,
+        lon,
+        *,
+        radius: float = constants.EARTH_RADIUS,
+        omega: float = constants.OMEGA,
+        min_lat: float = 10.0,
+        pole_limit: float = 89.99,
+        coriolis=None,
+    ) -> Grid:
         """A regular or Gaussian latitude-longitude grid.
 
         Parameters
@@ -408,7 +486,9 @@ class Grid:
             raise ValueError("latitude and longitude must be 1-D for a lat-lon grid")
         if lat.size < 3 or lon.size < 3:
             raise ValueError(
-                f"grid has {lat.size} x {lon.size} points; at least 3 x 3 are needed for derivatives")
+                f"grid has {lat.size} x {lon.size} points; at least 3 x 3 are needed for "
+                "derivatives"
+            )
         if not np.all(np.isfinite(lat)) or not np.all(np.isfinite(lon)):
             raise ValueError("latitude or longitude holds missing values")
         if np.any(np.abs(lat) > 90 + 1e-9):
@@ -424,7 +504,9 @@ class Grid:
         mean_step = span / (lon.size - 1)
         wrap = 360.0 - span
         if abs(wrap) < 1e-6 * 360:
-            raise ValueError("longitude repeats its first column at the end (a cyclic point); drop it")
+            raise ValueError(
+                "longitude repeats its first column at the end (a cyclic point); drop it"
+            )
         periodic = bool(abs(wrap - mean_step) < 1e-3 * mean_step)
         if span > 360 + 1e-6:
             raise ValueError("longitude spans more than 360 degrees")
@@ -437,30 +519,60 @@ class Grid:
             inv_acos = np.where(polar, np.nan, 1.0 / (radius * cos_phi))[:, None]
 
         # cell areas: a^2 dlambda (sin phi_north - sin phi_south), bounds at midpoints
-        lat_b = np.concatenate([[phi[0] - (phi[1] - phi[0]) / 2], (phi[1:] + phi[:-1]) / 2,
-                                [phi[-1] + (phi[-1] - phi[-2]) / 2]])
+        lat_b = np.concatenate(
+            [
+                [phi[0] - (phi[1] - phi[0]) / 2],
+                (phi[1:] + phi[:-1]) / 2,
+                [phi[-1] + (phi[-1] - phi[-2]) / 2],
+            ]
+        )
         lat_b = np.clip(lat_b, -np.pi / 2, np.pi / 2)
         band = np.abs(np.diff(np.sin(lat_b)))
         if periodic:
             lon_w = np.full(lon.size, 2 * np.pi / lon.size)
         else:
-            lon_b = np.concatenate([[lam[0] - (lam[1] - lam[0]) / 2], (lam[1:] + lam[:-1]) / 2,
-                                    [lam[-1] + (lam[-1] - lam[-2]) / 2]])
+            lon_b = np.concatenate(
+                [
+                    [lam[0] - (lam[1] - lam[0]) / 2],
+                    (lam[1:] + lam[:-1]) / 2,
+                    [lam[-1] + (lam[-1] - lam[-2]) / 2],
+                ]
+            )
             lon_w = np.abs(np.diff(lon_b))
-        area = radius ** 2 * band[:, None] * lon_w[None, :]
+        area = radius**2 * band[:, None] * lon_w[None, :]
 
         lat2d, lon2d = np.broadcast_arrays(lat[:, None], lon[None, :])
-        grid = cls(kind="latlon", lat2d=lat2d, lon2d=lon2d, metrics=_Metrics(lam, phi, inv_acos, 1.0 / radius, periodic),
-                   cell_area=area, radius=radius, omega=omega, min_lat=min_lat,
-                   pole_limit=pole_limit, periodic=periodic, lat1d=lat, lon1d=lon)
+        grid = cls(
+            kind="latlon",
+            lat2d=lat2d,
+            lon2d=lon2d,
+            metrics=_Metrics(lam, phi, inv_acos, 1.0 / radius, periodic),
+            cell_area=area,
+            radius=radius,
+            omega=omega,
+            min_lat=min_lat,
+            pole_limit=pole_limit,
+            periodic=periodic,
+            lat1d=lat,
+            lon1d=lon,
+        )
         if coriolis is not None:
             grid = grid.with_coriolis(coriolis)
         return grid
 
     @classmethod
-    def projected(cls, x, y, crs, *, radius: float = constants.EARTH_RADIUS,
-                  omega: float = constants.OMEGA, min_lat: float = 10.0,
-                  pole_limit: float = 89.99, coriolis=None) -> "Grid":
+    def projected(
+        cls,
+        x,
+        y,
+        crs,
+        *,
+        radius: float = constants.EARTH_RADIUS,
+        omega: float = constants.OMEGA,
+        min_lat: float = 10.0,
+        pole_limit: float = 89.99,
+        coriolis=None,
+    ) -> Grid:
         """A grid regular in the coordinates (x, y) of a map projection.
 
         The map factor and the meridian convergence come from pyproj
@@ -498,7 +610,8 @@ class Grid:
         if not (conformal or aligned):
             raise ValueError(
                 f"projection {crs.name!r} is neither conformal nor aligned with the meridians; "
-                "regrid the data or use a conformal projection")
+                "regrid the data or use a conformal projection"
+            )
         if conformal:
             mx = my = k
         else:
@@ -509,32 +622,44 @@ class Grid:
         g = np.deg2rad(gamma)
         # at a pole east and north are undefined: no rotation, so no gradient
         g[np.abs(lat2d) >= pole_limit] = np.nan
-        grid = cls(kind="projected", lat2d=lat2d, lon2d=lon2d,
-                   metrics=_Metrics(x, y, mx, my, False, np.cos(g), np.sin(g)), cell_area=area,
-                   radius=radius, omega=omega, min_lat=min_lat, pole_limit=pole_limit,
-                   periodic=False, x=x, y=y, crs=crs, map_factor=k, convergence=gamma)
+        grid = cls(
+            kind="projected",
+            lat2d=lat2d,
+            lon2d=lon2d,
+            metrics=_Metrics(x, y, mx, my, False, np.cos(g), np.sin(g)),
+            cell_area=area,
+            radius=radius,
+            omega=omega,
+            min_lat=min_lat,
+            pole_limit=pole_limit,
+            periodic=False,
+            x=x,
+            y=y,
+            crs=crs,
+            map_factor=k,
+            convergence=gamma,
+        )
         if coriolis is not None:
             grid = grid.with_coriolis(coriolis)
         return grid
 
     # -- variants -----------------------------------------------------------------
-    def _replace(self, **changes) -> "Grid":
+    def _replace(self, **changes) -> Grid:
         new = object.__new__(Grid)
-        new.__dict__.update({k: v for k, v in self.__dict__.items()
-                             if k not in _CACHED})
+        new.__dict__.update({k: v for k, v in self.__dict__.items() if k not in _CACHED})
         new.__dict__.update(changes)
         return new
 
-    def with_coriolis(self, f) -> "Grid":
+    def with_coriolis(self, f) -> Grid:
         """The same grid with the Coriolis parameter replaced by ``f`` (s-1)."""
         f = np.broadcast_to(np.asarray(f, dtype=np.float64), self.shape)
         return self._replace(f=_readonly(f))
 
-    def f_plane(self, lat0: float) -> "Grid":
+    def f_plane(self, lat0: float) -> Grid:
         """f = 2 Omega sin(lat0) everywhere (an f-plane)."""
         return self.with_coriolis(np.full(self.shape, coriolis_parameter(lat0, self.omega)))
 
-    def beta_plane(self, lat0: float) -> "Grid":
+    def beta_plane(self, lat0: float) -> Grid:
         """f = f0 + beta0 * a (phi - phi0): the beta-plane about ``lat0``.
 
         beta0 = 2 Omega cos(phi0) / a (Holton and Hakim 2013, An Introduction
@@ -546,7 +671,7 @@ class Grid:
         yy = self.radius * (np.deg2rad(self.lat) - phi0)
         return self.with_coriolis(f0 + beta0 * yy)
 
-    def rows(self, j0: int, j1: int) -> "Grid":
+    def rows(self, j0: int, j1: int) -> Grid:
         """The grid of rows j0..j1-1 (a band of latitude or a strip of y).
 
         Metrics, areas and f are sliced from this grid, so derivatives inside
@@ -560,20 +685,26 @@ class Grid:
             band = cache[(j0, j1)] = self._rows(j0, j1)
         return band
 
-    def _rows(self, j0: int, j1: int) -> "Grid":
+    def _rows(self, j0: int, j1: int) -> Grid:
         ny = self.shape[0]
         if not 0 <= j0 < j1 <= ny or j1 - j0 < 3:
             raise ValueError(f"rows {j0}..{j1} do not make a band of at least 3 rows in {ny}")
         sl = slice(j0, j1)
         cut = lambda a: None if a is None else _readonly(a[sl])  # noqa: E731
         return self._replace(
-            lat=cut(self.lat), lon=cut(self.lon), shape=(j1 - j0, self.shape[1]),
-            _m=self._m.rows(j0, j1), cell_area=cut(self.cell_area), f=cut(self.f),
+            lat=cut(self.lat),
+            lon=cut(self.lon),
+            shape=(j1 - j0, self.shape[1]),
+            _m=self._m.rows(j0, j1),
+            cell_area=cut(self.cell_area),
+            f=cut(self.f),
             y=None if self.y is None else self.y[sl],
             lat1d=None if self.lat1d is None else self.lat1d[sl],
-            map_factor=cut(self.map_factor), convergence=cut(self.convergence))
+            map_factor=cut(self.map_factor),
+            convergence=cut(self.convergence),
+        )
 
-    def with_min_lat(self, min_lat: float) -> "Grid":
+    def with_min_lat(self, min_lat: float) -> Grid:
         """The same grid with another tropical mask latitude (degrees)."""
         return self._replace(min_lat=float(min_lat))
 
@@ -666,12 +797,21 @@ class Grid:
     def __repr__(self):
         ny, nx = self.shape
         extra = " periodic" if self.periodic else ""
-        return (f"<Grid {self.kind} {ny}x{nx}{extra} lat {np.nanmin(self.lat):.2f}.."
-                f"{np.nanmax(self.lat):.2f}>")
+        return (
+            f"<Grid {self.kind} {ny}x{nx}{extra} lat {np.nanmin(self.lat):.2f}.."
+            f"{np.nanmax(self.lat):.2f}>"
+        )
 
 
-_CACHED = ("tan_lat_over_a", "cos_lat", "pole_mask", "tropics_mask", "inverse_f", "_bands",
-           "_systems_work")
+_CACHED = (
+    "tan_lat_over_a",
+    "cos_lat",
+    "pole_mask",
+    "tropics_mask",
+    "inverse_f",
+    "_bands",
+    "_systems_work",
+)
 
 
 def _convergence(factors):
@@ -688,7 +828,8 @@ def _convergence(factors):
 
 def _readonly(a):
     """A read-only array owning its data (metrics must not be changed in place)."""
-    a = np.array(a, dtype=np.result_type(a, np.float64) if np.asarray(a).dtype != bool else bool,
-                 copy=True)
+    a = np.array(
+        a, dtype=np.result_type(a, np.float64) if np.asarray(a).dtype != bool else bool, copy=True
+    )
     a.flags.writeable = False
     return a

@@ -91,7 +91,7 @@ def brunt_vaisala_squared(temperature, pressure, axis: int = 0):
     pp = p.reshape(shape)
     ln_theta = np.log(potential_temperature(t, pp))
     dlntheta_dlnp = derivative_along(ln_theta, np.log(p), axis)
-    return -(c.G0 ** 2) / (c.R_DRY * t) * dlntheta_dlnp
+    return -(c.G0**2) / (c.R_DRY * t) * dlntheta_dlnp
 
 
 def brunt_vaisala_squared_height(theta, height, axis: int = 0):

@@ -17,8 +17,14 @@ import numpy as np
 from . import constants as C
 from .grid import Grid
 
-__all__ = ["Region", "Stats", "weighted_stats", "vector_stats", "weighted_quantile",
-           "great_circle_km"]
+__all__ = [
+    "Region",
+    "Stats",
+    "weighted_stats",
+    "vector_stats",
+    "weighted_quantile",
+    "great_circle_km",
+]
 
 
 def great_circle_km(lon0, lat0, lon, lat):
@@ -51,7 +57,7 @@ class Region:
     radius_km: float | None = None
 
     @classmethod
-    def box(cls, west: float, east: float, south: float, north: float) -> "Region":
+    def box(cls, west: float, east: float, south: float, north: float) -> Region:
         """A box in degrees. ``west > east`` (after wrapping) crosses the dateline.
 
         West and east are taken modulo 360, so 170..-170 and 170..190 are the
@@ -62,11 +68,13 @@ class Region:
         if not all(np.isfinite(vals)):
             raise ValueError("box edges must be finite numbers")
         if not -90 <= south < north <= 90:
-            raise ValueError(f"box south {south} and north {north} must satisfy -90 <= south < north <= 90")
+            raise ValueError(
+                f"box south {south} and north {north} must satisfy -90 <= south < north <= 90"
+            )
         return cls("box", float(west), float(east), float(south), float(north))
 
     @classmethod
-    def polygon(cls, lons, lats) -> "Region":
+    def polygon(cls, lons, lats) -> Region:
         """A polygon given by its lon/lat vertices (degrees), closed implicitly.
 
         Edges are straight lines in (lon, lat) between consecutive vertices, the
@@ -80,32 +88,46 @@ class Region:
         if not (np.all(np.isfinite(lons)) and np.all(np.isfinite(lats))):
             raise ValueError("polygon vertices must be finite numbers")
         unwrapped = np.rad2deg(np.unwrap(np.deg2rad(lons)))
-        return cls("polygon", lons=tuple(unwrapped), lats=tuple(lats),
-                   west=float(unwrapped.min()), east=float(unwrapped.max()),
-                   south=float(lats.min()), north=float(lats.max()))
+        return cls(
+            "polygon",
+            lons=tuple(unwrapped),
+            lats=tuple(lats),
+            west=float(unwrapped.min()),
+            east=float(unwrapped.max()),
+            south=float(lats.min()),
+            north=float(lats.max()),
+        )
 
     @classmethod
-    def circle(cls, lon: float, lat: float, radius_km: float) -> "Region":
+    def circle(cls, lon: float, lat: float, radius_km: float) -> Region:
         """The points within ``radius_km`` (great-circle distance on a sphere of the mean
         Earth radius) of (lon, lat), degrees."""
         vals = [lon, lat, radius_km]
         if not all(np.isfinite(vals)) or not -90 <= lat <= 90 or not 0 < radius_km <= 20000:
-            raise ValueError("a circle needs a finite centre on the Earth and a radius of more "
-                             "than 0 and at most 20000 km")
+            raise ValueError(
+                "a circle needs a finite centre on the Earth and a radius of more "
+                "than 0 and at most 20000 km"
+            )
         delta = radius_km * 1e3 / C.EARTH_RADIUS  # the radius as an angle, radians
         dlat = np.rad2deg(delta)
         if abs(lat) + dlat >= 90.0:
             dlon = 180.0  # the cap holds a pole: every longitude
         else:
             # the half-width in longitude of a spherical cap: sin(dlon) = sin(delta) / cos(lat)
-            dlon = float(np.rad2deg(np.arcsin(min(1.0, np.sin(delta) /
-                                                  np.cos(np.deg2rad(lat))))))
-        return cls("circle", float(lon) - dlon, float(lon) + dlon, max(-90.0, lat - dlat),
-                   min(90.0, lat + dlat), lons=(float(lon),), lats=(float(lat),),
-                   radius_km=float(radius_km))
+            dlon = float(np.rad2deg(np.arcsin(min(1.0, np.sin(delta) / np.cos(np.deg2rad(lat))))))
+        return cls(
+            "circle",
+            float(lon) - dlon,
+            float(lon) + dlon,
+            max(-90.0, lat - dlat),
+            min(90.0, lat + dlat),
+            lons=(float(lon),),
+            lats=(float(lat),),
+            radius_km=float(radius_km),
+        )
 
     @classmethod
-    def whole(cls) -> "Region":
+    def whole(cls) -> Region:
         """Every point of the grid."""
         return cls("whole")
 
@@ -123,39 +145,49 @@ class Region:
             out[j0:j1] = self.contains(grid.lon[j0:j1], grid.lat[j0:j1])
         return out
 
+    def bounds(self) -> tuple[float, float, float, float]:
+        """West, east, south, north (degrees) of a region that has them (not "whole")."""
+        if self.west is None or self.east is None or self.south is None or self.north is None:
+            raise ValueError("the whole grid has no bounds")
+        return self.west, self.east, self.south, self.north
+
+    def vertices(self) -> tuple[tuple, tuple]:
+        """The longitudes and latitudes of a polygon (a circle's: its centre)."""
+        if self.lons is None or self.lats is None:
+            raise ValueError(f"a {self.kind} region has no vertices")
+        return self.lons, self.lats
+
     def contains(self, lon, lat) -> np.ndarray:
         """Boolean, the shape of ``lon`` and ``lat`` (degrees): True for points inside."""
         lon = np.asarray(lon, dtype=np.float64)
         lat = np.asarray(lat, dtype=np.float64)
         if self.kind == "whole":
             return np.ones(lat.shape, dtype=bool)
+        west, east, south, north = self.bounds()
         if self.kind == "box":
-            inside_lat = (lat >= self.south) & (lat <= self.north)
-            width = (self.east - self.west) % 360.0
-            if width == 0.0 and self.east != self.west:
+            inside_lat = (lat >= south) & (lat <= north)
+            width = (east - west) % 360.0
+            if width == 0.0 and east != west:
                 return inside_lat
-            offset = (lon - self.west) % 360.0
+            offset = (lon - west) % 360.0
             return inside_lat & (offset <= width + 1e-9)
+        # circles and polygons: only the points in the lon/lat box are tested
+        lon, lat = np.broadcast_arrays(lon, lat)
+        near = (lat >= south) & (lat <= north)
+        if east - west < 360.0:
+            near &= (lon - west) % 360.0 <= (east - west)
+        out = np.zeros(lat.shape, dtype=bool)
+        lons, lats = self.vertices()
         if self.kind == "circle":
-            # the distance only for points in the circle's lon/lat box
-            near = (lat >= self.south) & (lat <= self.north)
-            if self.east - self.west < 360.0:
-                near &= (lon - self.west) % 360.0 <= (self.east - self.west)
-            out = np.zeros(np.broadcast(lon, lat).shape, dtype=bool)
-            out[near] = great_circle_km(self.lons[0], self.lats[0], lon[near],
-                                        lat[near]) <= self.radius_km
+            out[near] = great_circle_km(lons[0], lats[0], lon[near], lat[near]) <= float(
+                self.radius_km or 0.0
+            )
             return out
         from shapely import Polygon, contains_xy  # vectorised point-in-polygon
 
-        lon, lat = np.broadcast_arrays(lon, lat)
-        out = np.zeros(lat.shape, dtype=bool)
-        # only the points in the polygon's lon/lat box are tested
-        near = (lat >= self.south) & (lat <= self.north)
-        if self.east - self.west < 360.0:
-            near &= (lon - self.west) % 360.0 <= (self.east - self.west)
-        poly = Polygon(zip(self.lons, self.lats))
+        poly = Polygon(zip(lons, lats))
         # put each point's longitude in the polygon's unwrapped range
-        ref = self.lons[0]
+        ref = lons[0]
         plon = ref + _wrap180(lon[near] - ref)
         plat = lat[near]
         inside = contains_xy(poly, plon, plat)

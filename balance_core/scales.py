@@ -29,14 +29,34 @@ import numpy as np
 from . import constants as c
 from .numbers import burger_number, deformation_radius, ekman_number, froude_number, rossby_number
 
-__all__ = ["ScaleSet", "ScaleResult", "PRESETS", "analyse_scales", "estimate_scales",
-           "SCALE_TERMS", "estimate_for_term", "RECIPE", "BY_CONSTRUCTION", "FlowLength",
-           "flow_length_scale", "flow_rows", "MERIDIONAL_MARGIN_KM",
-           "ZONAL_HALF_KM"]
+__all__ = [
+    "ScaleSet",
+    "ScaleResult",
+    "PRESETS",
+    "analyse_scales",
+    "estimate_scales",
+    "SCALE_TERMS",
+    "estimate_for_term",
+    "RECIPE",
+    "BY_CONSTRUCTION",
+    "FlowLength",
+    "flow_length_scale",
+    "flow_rows",
+    "MERIDIONAL_MARGIN_KM",
+    "ZONAL_HALF_KM",
+]
 
 #: Names of the scale-analysis terms, as used in the JSON output.
-SCALE_TERMS = ("acceleration", "vertical_advection", "metric_uv", "metric_uw",
-               "coriolis", "coriolis_w", "pressure_gradient", "viscous")
+SCALE_TERMS = (
+    "acceleration",
+    "vertical_advection",
+    "metric_uv",
+    "metric_uw",
+    "coriolis",
+    "coriolis_w",
+    "pressure_gradient",
+    "viscous",
+)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -86,12 +106,13 @@ class ScaleSet:
             if abs(ratio) > 1:
                 raise ValueError(
                     f"|f0| = {abs(self.f0):.3g} s-1 exceeds 2 Omega = {2 * c.OMEGA:.3g} s-1; "
-                    "no latitude has it")
+                    "no latitude has it"
+                )
             object.__setattr__(self, "lat0", math.degrees(math.asin(ratio)))
         if self.f0 is None:
             object.__setattr__(self, "f0", 2 * c.OMEGA * math.sin(math.radians(self.lat0)))
 
-    def replace(self, **changes) -> "ScaleSet":
+    def replace(self, **changes) -> ScaleSet:
         """A copy with some scales changed (f0 and lat0 re-derived as needed)."""
         if "f0" in changes and "lat0" not in changes:
             changes["lat0"] = None
@@ -100,8 +121,10 @@ class ScaleSet:
         return dataclasses.replace(self, **changes)
 
     def as_dict(self) -> dict:
-        return {k: getattr(self, k) for k in ("U", "W", "L", "H", "dP", "rho", "f0", "lat0",
-                                              "a", "nu", "n2")}
+        return {
+            k: getattr(self, k)
+            for k in ("U", "W", "L", "H", "dP", "rho", "f0", "lat0", "a", "nu", "n2")
+        }
 
 
 @dataclasses.dataclass(frozen=True)
@@ -124,15 +147,17 @@ def analyse_scales(s: ScaleSet) -> ScaleResult:
     (N H / (f0 L))^2 and the deformation radius N H / |f0| (m). A number that
     the scales cannot give (f0 = 0, N^2 <= 0) is None.
     """
+    f0 = 0.0 if s.f0 is None else s.f0  # both are set once the ScaleSet is made
+    lat0 = 0.0 if s.lat0 is None else s.lat0
     mags = {
-        "acceleration": s.U ** 2 / s.L,
+        "acceleration": s.U**2 / s.L,
         "vertical_advection": s.U * s.W / s.H,
-        "metric_uv": s.U ** 2 / s.a,
+        "metric_uv": s.U**2 / s.a,
         "metric_uw": s.U * s.W / s.a,
         "pressure_gradient": s.dP / (s.rho * s.L),
-        "coriolis": abs(s.f0) * s.U,
-        "coriolis_w": 2 * c.OMEGA * abs(math.cos(math.radians(s.lat0))) * s.W,
-        "viscous": s.nu * s.U / s.H ** 2,
+        "coriolis": abs(f0) * s.U,
+        "coriolis_w": 2 * c.OMEGA * abs(math.cos(math.radians(lat0))) * s.W,
+        "viscous": s.nu * s.U / s.H**2,
     }
     terms = tuple(sorted(mags.items(), key=lambda kv: -kv[1]))
     numbers = {
@@ -159,10 +184,14 @@ def estimate_for_term(name: str, s: ScaleSet) -> float:
     """
     r = analyse_scales(s)
     table = dict(r.terms)
-    alias = {"tendency": "acceleration", "horizontal_advection": "acceleration",
-             "along_stream": "acceleration", "centripetal": "acceleration",
-             "centripetal_trajectory": "acceleration",
-             "residual": "viscous"}
+    alias = {
+        "tendency": "acceleration",
+        "horizontal_advection": "acceleration",
+        "along_stream": "acceleration",
+        "centripetal": "acceleration",
+        "centripetal_trajectory": "acceleration",
+        "residual": "viscous",
+    }
     return table[alias.get(name, name)]
 
 
@@ -174,39 +203,110 @@ def _preset(name, source, **kw) -> ScaleSet:
 PRESETS = {
     p.name: p
     for p in (
-        _preset("planetary_wave",
-                "typical long-wave values at 500 hPa, from memory; length class after Orlanski "
-                "(1975), 'A rational subdivision of scales for atmospheric processes', "
-                "Bull. Amer. Meteor. Soc. 56, 527-530",
-                U=15.0, W=1e-3, L=3e6, H=1e4, dP=3000.0, rho=0.7, lat0=50.0, n2=1e-4),
-        _preset("synoptic_cyclone",
-                "the classic synoptic scale set (common practice, no source)",
-                U=10.0, W=0.01, L=1e6, H=1e4, dP=1000.0, rho=1.0, f0=1e-4, a=1e7, nu=1e-5,
-                n2=1e-4),
-        _preset("front",
-                "cross-front length and frontal wind, from memory; Orlanski (1975) meso-alpha "
-                "class",
-                U=10.0, W=0.05, L=1e5, H=1e3, dP=200.0, rho=1.1, lat0=45.0, n2=1e-4),
-        _preset("mesoscale_convective_system",
-                "typical organised-convection values, from memory; Orlanski (1975) meso-beta "
-                "class",
-                U=10.0, W=1.0, L=1e5, H=1e4, dP=200.0, rho=0.8, lat0=35.0, n2=1e-4),
-        _preset("tropical_cyclone",
-                "radius of maximum wind and pressure deficit of a mature storm, from memory; "
-                "consistent with the parametric profile of Holland (1980), Mon. Wea. Rev. 108, "
-                "1212-1218",
-                U=40.0, W=0.5, L=5e4, H=1e4, dP=5000.0, rho=1.1, lat0=20.0, n2=1e-4,
-                curved=True),
-        _preset("sea_breeze",
-                "coastal circulation values, from memory; Orlanski (1975) meso-gamma class",
-                U=5.0, W=0.1, L=2e4, H=1e3, dP=50.0, rho=1.2, lat0=35.0, n2=1e-4),
-        _preset("tornado",
-                "core radius, wind and pressure deficit of a strong vortex, from memory; "
-                "Orlanski (1975) micro-alpha class",
-                U=50.0, W=10.0, L=200.0, H=1e3, dP=2000.0, rho=1.1, lat0=35.0, curved=True),
-        _preset("boundary_layer",
-                "a daytime boundary layer with an eddy viscosity of 20 m2 s-1, from memory",
-                U=10.0, W=0.01, L=1e6, H=500.0, dP=1000.0, rho=1.2, lat0=45.0, nu=20.0),
+        _preset(
+            "planetary_wave",
+            "typical long-wave values at 500 hPa, from memory; length class after Orlanski "
+            "(1975), 'A rational subdivision of scales for atmospheric processes', "
+            "Bull. Amer. Meteor. Soc. 56, 527-530",
+            U=15.0,
+            W=1e-3,
+            L=3e6,
+            H=1e4,
+            dP=3000.0,
+            rho=0.7,
+            lat0=50.0,
+            n2=1e-4,
+        ),
+        _preset(
+            "synoptic_cyclone",
+            "the classic synoptic scale set (common practice, no source)",
+            U=10.0,
+            W=0.01,
+            L=1e6,
+            H=1e4,
+            dP=1000.0,
+            rho=1.0,
+            f0=1e-4,
+            a=1e7,
+            nu=1e-5,
+            n2=1e-4,
+        ),
+        _preset(
+            "front",
+            "cross-front length and frontal wind, from memory; Orlanski (1975) meso-alpha class",
+            U=10.0,
+            W=0.05,
+            L=1e5,
+            H=1e3,
+            dP=200.0,
+            rho=1.1,
+            lat0=45.0,
+            n2=1e-4,
+        ),
+        _preset(
+            "mesoscale_convective_system",
+            "typical organised-convection values, from memory; Orlanski (1975) meso-beta class",
+            U=10.0,
+            W=1.0,
+            L=1e5,
+            H=1e4,
+            dP=200.0,
+            rho=0.8,
+            lat0=35.0,
+            n2=1e-4,
+        ),
+        _preset(
+            "tropical_cyclone",
+            "radius of maximum wind and pressure deficit of a mature storm, from memory; "
+            "consistent with the parametric profile of Holland (1980), Mon. Wea. Rev. 108, "
+            "1212-1218",
+            U=40.0,
+            W=0.5,
+            L=5e4,
+            H=1e4,
+            dP=5000.0,
+            rho=1.1,
+            lat0=20.0,
+            n2=1e-4,
+            curved=True,
+        ),
+        _preset(
+            "sea_breeze",
+            "coastal circulation values, from memory; Orlanski (1975) meso-gamma class",
+            U=5.0,
+            W=0.1,
+            L=2e4,
+            H=1e3,
+            dP=50.0,
+            rho=1.2,
+            lat0=35.0,
+            n2=1e-4,
+        ),
+        _preset(
+            "tornado",
+            "core radius, wind and pressure deficit of a strong vortex, from memory; "
+            "Orlanski (1975) micro-alpha class",
+            U=50.0,
+            W=10.0,
+            L=200.0,
+            H=1e3,
+            dP=2000.0,
+            rho=1.1,
+            lat0=35.0,
+            curved=True,
+        ),
+        _preset(
+            "boundary_layer",
+            "a daytime boundary layer with an eddy viscosity of 20 m2 s-1, from memory",
+            U=10.0,
+            W=0.01,
+            L=1e6,
+            H=500.0,
+            dP=1000.0,
+            rho=1.2,
+            lat0=45.0,
+            nu=20.0,
+        ),
     )
 }
 
@@ -214,9 +314,11 @@ PRESETS = {
 #: The recipe of :func:`estimate_scales`, one line a scale, for the notes beside its numbers.
 RECIPE = {
     "U": "the area-weighted RMS wind speed in the region",
-    "L": ("the flow's length scale: one over the mean wavenumber of the height along whole "
-          "grid rows within 1000 km of the region's centre and along its columns 2500 km either "
-          "side (wavelength / 2 pi for one wave), so it belongs to the flow and not to the box"),
+    "L": (
+        "the flow's length scale: one over the mean wavenumber of the height along whole "
+        "grid rows within 1000 km of the region's centre and along its columns 2500 km either "
+        "side (wavelength / 2 pi for one wave), so it belongs to the flow and not to the box"
+    ),
     "dP": "rho g dZ, dZ the standard deviation of the height along those same rows and columns",
     "W": "RMS(omega) / (rho g)",
     "H": "the depth of the troposphere, 10 km (Holton and Hakim 2013)",
@@ -307,8 +409,9 @@ def _distances_along_column(grid, inside):
     cols = np.nonzero(np.any(inside, axis=0))[0]
     lat, lon = np.asarray(grid.lat, np.float64), np.asarray(grid.lon, np.float64)
     i = int(cols[cols.size // 2])
-    step = np.concatenate([[0.0], great_circle_km(lon[:-1, i], lat[:-1, i], lon[1:, i],
-                                                  lat[1:, i])])
+    step = np.concatenate(
+        [[0.0], great_circle_km(lon[:-1, i], lat[:-1, i], lon[1:, i], lat[1:, i])]
+    )
     dist = np.cumsum(step) * (grid.radius / c.EARTH_RADIUS)
     centre = 0.5 * (dist[rows[0]] + dist[rows[-1]])
     return np.abs(dist - centre)
@@ -368,13 +471,14 @@ def flow_length_scale(grid, height, inside) -> FlowLength | None:
     # a line of n points sampled at spacing d: its spectrum's harmonics are of n d (an open
     # line's path is (n - 1) d long; a closed circle's is n d already)
     nx, ny = z.shape[1], j1 - j0
-    row_lengths = path_lengths(lat[rows], lon[rows], periodic) * (1.0 if periodic else
-                                                                 nx / max(nx - 1, 1))
-    col_lengths = path_lengths(lat[j0:j1, cols].T, lon[j0:j1, cols].T, False) * \
-        (ny / max(ny - 1, 1))
+    row_lengths = path_lengths(lat[rows], lon[rows], periodic) * (
+        1.0 if periodic else nx / max(nx - 1, 1)
+    )
+    col_lengths = path_lengths(lat[j0:j1, cols].T, lon[j0:j1, cols].T, False) * (
+        ny / max(ny - 1, 1)
+    )
     kx, vx = _mean_wavenumber(z[rows], row_lengths, periodic)
-    ky, vy = (None, 0.0) if j1 - j0 < 4 else _mean_wavenumber(z[j0:j1, cols].T, col_lengths,
-                                                                False)
+    ky, vy = (None, 0.0) if j1 - j0 < 4 else _mean_wavenumber(z[j0:j1, cols].T, col_lengths, False)
     # the height's gradient variance is about var_x kx^2 + var_y ky^2 over its variance: a
     # direction along which the height does not vary adds nothing
     parts = [(k, v) for k, v in ((kx, vx), (ky, vy)) if k is not None and v > 0]
@@ -383,14 +487,31 @@ def flow_length_scale(grid, height, inside) -> FlowLength | None:
     vmax = max(v for _, v in parts)
     k = float(np.sqrt(sum(v * q * q for q, v in parts) / vmax))
     amp = float(np.sqrt(vmax))
-    return FlowLength(length=1.0 / k, amplitude=amp,
-                      recipe=RECIPE["L"], along_x=None if kx is None else 1.0 / kx,
-                      along_y=None if ky is None else 1.0 / ky)
+    return FlowLength(
+        length=1.0 / k,
+        amplitude=amp,
+        recipe=RECIPE["L"],
+        along_x=None if kx is None else 1.0 / kx,
+        along_y=None if ky is None else 1.0 / ky,
+    )
 
 
-def estimate_scales(grid, inside, *, u, v, height, pressure, omega=None, temperature=None,
-                    shear2=None, nu: float = c.NU_AIR, n2=None, height_gradient=None,
-                    flow_length: FlowLength | None = None) -> ScaleSet:
+def estimate_scales(
+    grid,
+    inside,
+    *,
+    u,
+    v,
+    height,
+    pressure,
+    omega=None,
+    temperature=None,
+    shear2=None,
+    nu: float = c.NU_AIR,
+    n2=None,
+    height_gradient=None,
+    flow_length: FlowLength | None = None,
+) -> ScaleSet:
     """Scales of the flow inside a region, estimated from the data.
 
     Parameters
@@ -441,9 +562,10 @@ def estimate_scales(grid, inside, *, u, v, height, pressure, omega=None, tempera
     if fl is None or not (np.isfinite(fl.length) and fl.length > 0):
         raise ValueError("the height has no pattern through the region: no length scale")
     L = fl.length
+    T = None
     if temperature is not None:
         T = weighted_stats(temperature, grid, ok & np.isfinite(temperature)).mean
-    else:
+    if T is None:
         T = float(standard_atmosphere_temperature(pressure))
     rho = pressure / (c.R_DRY * T)
     dP = rho * c.G0 * fl.amplitude
@@ -455,9 +577,20 @@ def estimate_scales(grid, inside, *, u, v, height, pressure, omega=None, tempera
     fstat = weighted_stats(np.abs(grid.f), grid, ok)
     lat0 = float(np.sum(w * grid.lat) / np.sum(w))
     sign = 1.0 if lat0 >= 0 else -1.0
-    if not U > 0:
+    if U is None or not U > 0:
         raise ValueError("the wind is calm everywhere in the region: no velocity scale")
-    return ScaleSet(U=U, W=W, L=float(L), H=float(H), dP=dP, rho=rho, f0=sign * fstat.mean,
-                    lat0=lat0,
-                    a=grid.radius, nu=nu, n2=n2, name="from the data",
-                    source="estimated from the data in the region")
+    return ScaleSet(
+        U=U,
+        W=W,
+        L=float(L),
+        H=float(H),
+        dP=dP,
+        rho=rho,
+        f0=sign * (fstat.mean or 0.0),
+        lat0=lat0,
+        a=grid.radius,
+        nu=nu,
+        n2=n2,
+        name="from the data",
+        source="estimated from the data in the region",
+    )

@@ -46,8 +46,9 @@ NOT_AT_THE_SURFACE = {
 }
 
 
-def surface_budget(grid: Grid, pressure, u, v, density, *, time=None, it: int = 0,
-                   keep=None) -> Budget:
+def surface_budget(
+    grid: Grid, pressure, u, v, density, *, time=None, it: int = 0, keep=None
+) -> Budget:
     """Every term of the momentum budget of the 10 m wind over the sea-level pressure.
 
     Parameters
@@ -90,11 +91,16 @@ def surface_budget(grid: Grid, pressure, u, v, density, *, time=None, it: int = 
     dpdx, dpdy = grid.grad(p0)
     terms = {
         "horizontal_advection": Term("horizontal_advection", -ax, -ay),
-        "metric_uv": Term("metric_uv", u0 * v0 * grid.tan_lat_over_a,
-                          -u0 * u0 * grid.tan_lat_over_a),
+        "metric_uv": Term(
+            "metric_uv", u0 * v0 * grid.tan_lat_over_a, -u0 * u0 * grid.tan_lat_over_a
+        ),
         "coriolis": Term("coriolis", grid.f * v0, -grid.f * u0),
-        "pressure_gradient": Term("pressure_gradient", -dpdx / rho, -dpdy / rho,
-                                  "-(1/rho) grad p of the sea-level pressure"),
+        "pressure_gradient": Term(
+            "pressure_gradient",
+            -dpdx / rho,
+            -dpdy / rho,
+            "-(1/rho) grad p of the sea-level pressure",
+        ),
     }
     missing = dict(NOT_AT_THE_SURFACE)
     notes = ["the surface budget: sea-level pressure and the 10 m wind"]
@@ -117,31 +123,51 @@ def surface_budget(grid: Grid, pressure, u, v, density, *, time=None, it: int = 
         rx, ry = terms["tendency"].x - sx, terms["tendency"].y - sy
     else:
         rx, ry = -sx, -sy
-    terms["residual"] = Term("residual", rx, ry,
-                             "friction, sub-grid processes and numerical or data error; also "
-                             "holds the unavailable " + ", ".join(includes))
+    terms["residual"] = Term(
+        "residual",
+        rx,
+        ry,
+        "friction, sub-grid processes and numerical or data error; also "
+        "holds the unavailable " + ", ".join(includes),
+    )
     hx, hy = terms["horizontal_advection"].x, terms["horizontal_advection"].y
     if terms["tendency"].available:
         acc = Term("acceleration", terms["tendency"].x - hx, terms["tendency"].y - hy)
     else:
-        acc = Term("acceleration", -hx, -hy,
-                   "without the local tendency (one time): the steady-state value")
+        acc = Term(
+            "acceleration",
+            -hx,
+            -hy,
+            "without the local tendency (one time): the steady-state value",
+        )
     sxx, syy, nxx, nyy = flow.natural_split(hx, hy)
-    derived = {"acceleration": acc, "along_stream": Term("along_stream", sxx, syy),
-               "centripetal": Term("centripetal", nxx + terms["metric_uv"].x,
-                                   nyy + terms["metric_uv"].y)}
-    return Budget(terms={n: terms[n] for n in TERMS}, derived={n: derived[n] for n in DERIVED},
-                  residual_includes=includes, notes=notes, level_pa=float("nan"),
-                  time_index=it, level_index=0)
+    derived = {
+        "acceleration": acc,
+        "along_stream": Term("along_stream", sxx, syy),
+        "centripetal": Term("centripetal", nxx + terms["metric_uv"].x, nyy + terms["metric_uv"].y),
+    }
+    return Budget(
+        terms={n: terms[n] for n in TERMS},
+        derived={n: derived[n] for n in DERIVED},
+        residual_includes=includes,
+        notes=notes,
+        level_pa=float("nan"),
+        time_index=it,
+        level_index=0,
+    )
 
 
 def density_from(pressure, t2m=None):
     """Air density at the ground, kg m-3: p / (R_d T) from the 2 m temperature, else the
     1976 Standard Atmosphere's sea-level density; and a sentence saying which."""
     if t2m is not None:
-        return (np.asarray(pressure, dtype=np.float64) / (C.R_DRY * np.asarray(t2m)),
-                "density from the 2 m temperature")
+        return (
+            np.asarray(pressure, dtype=np.float64) / (C.R_DRY * np.asarray(t2m)),
+            "density from the 2 m temperature",
+        )
     from .thermo import standard_atmosphere_density
 
-    return (float(standard_atmosphere_density(C.STD_SEA_LEVEL_PRESSURE)),
-            "standard-atmosphere density at sea level (no 2 m temperature)")
+    return (
+        float(standard_atmosphere_density(C.STD_SEA_LEVEL_PRESSURE)),
+        "standard-atmosphere density at sea level (no 2 m temperature)",
+    )

@@ -60,11 +60,26 @@ from . import constants as C
 from .grid import Grid
 from .region import Region, great_circle_km
 
-__all__ = ["System", "contour_interval", "jet_threshold", "find_closed_extrema",
-           "find_jet_streaks", "find_systems", "match_tracks", "track_limit_km",
-           "TRACK_SPEED_KMH", "MIN_TRACK_KM", "TRACK_SPACINGS", "MAX_SHARE", "RING_KM",
-           "RING_TANGENTIAL", "SEA_LEVEL_INTERVAL_PA", "JET_MIN_HALF_LENGTH",
-           "JET_MIN_HALF_WIDTH", "QUADRANTS"]
+__all__ = [
+    "System",
+    "contour_interval",
+    "jet_threshold",
+    "find_closed_extrema",
+    "find_jet_streaks",
+    "find_systems",
+    "match_tracks",
+    "track_limit_km",
+    "TRACK_SPEED_KMH",
+    "MIN_TRACK_KM",
+    "TRACK_SPACINGS",
+    "MAX_SHARE",
+    "RING_KM",
+    "RING_TANGENTIAL",
+    "SEA_LEVEL_INTERVAL_PA",
+    "JET_MIN_HALF_LENGTH",
+    "JET_MIN_HALF_WIDTH",
+    "QUADRANTS",
+]
 
 #: The largest share of the Earth's surface the outermost closed contour of a closed
 #: synoptic system may enclose (the project's own choice: a tenth of the globe is a cap
@@ -131,15 +146,15 @@ class System:
     streak's peak speed).
     """
 
-    kind: str                 # "low", "high" or "jet_streak"
-    lon: float                # centre (refined below the grid), degrees
+    kind: str  # "low", "high" or "jet_streak"
+    lon: float  # centre (refined below the grid), degrees
     lat: float
-    value: float              # central value on the grid, or peak speed
-    depth: float | None       # below (low) or above (high) the outermost closed contour
+    value: float  # central value on the grid, or peak speed
+    depth: float | None  # below (low) or above (high) the outermost closed contour
     outer_level: float | None  # the outermost closed contour's value
-    area_km2: float           # inside the outermost closed contour, or the streak's core
-    region: Region            # circle (lows, highs) or flow-aligned polygon (streaks)
-    index: tuple              # (row, column) of the centre on the grid
+    area_km2: float  # inside the outermost closed contour, or the streak's core
+    region: Region  # circle (lows, highs) or flow-aligned polygon (streaks)
+    index: tuple  # (row, column) of the centre on the grid
     units: str = "m"
     note: str = ""
     #: a streak's flow-aligned frame: peak, direction, half-length and half-width (km),
@@ -154,7 +169,7 @@ class System:
     @property
     def intensity(self) -> float:
         """What ranks systems of a kind: a low's or high's depth, a streak's peak speed."""
-        return self.value if self.kind == "jet_streak" else float(self.depth)
+        return self.value if self.kind == "jet_streak" else float(self.depth or 0.0)
 
     @property
     def radius_km(self) -> float:
@@ -166,35 +181,62 @@ class System:
         if self.inside is None:
             return False
         r, c = row // self.coarsening, col // self.coarsening
-        return 0 <= r < self.inside.shape[0] and 0 <= c < self.inside.shape[1] and \
-            bool(self.inside[r, c])
+        return (
+            0 <= r < self.inside.shape[0]
+            and 0 <= c < self.inside.shape[1]
+            and bool(self.inside[r, c])
+        )
 
     def as_dict(self) -> dict:
         r = self.region
         if r.kind == "circle":
-            region = {"kind": "circle", "lon": r.lons[0], "lat": r.lats[0],
-                      "radius_km": r.radius_km}
+            region = {
+                "kind": "circle",
+                "lon": r.vertices()[0][0],
+                "lat": r.vertices()[1][0],
+                "radius_km": r.radius_km,
+            }
         elif self.frame is not None and r.kind == "polygon":
-            region = {"kind": "flow_box", "projection": "aeqd",
-                      "lon_0": self.frame["lon"], "lat_0": self.frame["lat"],
-                      "corners": [list(c) for c in self.frame["corners"]],
-                      "length_km": 2 * self.frame["half_length_km"],
-                      "width_km": 2 * self.frame["half_width_km"],
-                      "direction_deg": self.frame["direction_deg"]}
+            region = {
+                "kind": "flow_box",
+                "projection": "aeqd",
+                "lon_0": self.frame["lon"],
+                "lat_0": self.frame["lat"],
+                "corners": [list(c) for c in self.frame["corners"]],
+                "length_km": 2 * self.frame["half_length_km"],
+                "width_km": 2 * self.frame["half_width_km"],
+                "direction_deg": self.frame["direction_deg"],
+            }
         else:
-            region = {"kind": "box", "west": r.west, "east": r.east, "south": r.south,
-                      "north": r.north}
-        out = {"kind": self.kind, "lon": self.lon, "lat": self.lat, "value": self.value,
-               "units": self.units, "depth": self.depth, "outer_level": self.outer_level,
-               "area_km2": self.area_km2, "intensity": self.intensity, "region": region,
-               "note": self.note}
+            region = {
+                "kind": "box",
+                "west": r.west,
+                "east": r.east,
+                "south": r.south,
+                "north": r.north,
+            }
+        out = {
+            "kind": self.kind,
+            "lon": self.lon,
+            "lat": self.lat,
+            "value": self.value,
+            "units": self.units,
+            "depth": self.depth,
+            "outer_level": self.outer_level,
+            "area_km2": self.area_km2,
+            "intensity": self.intensity,
+            "region": region,
+            "note": self.note,
+        }
         if self.frame is not None:
-            out["quadrants"] = {q: {"corners": [list(c) for c in self.frame["quadrants"][q]]}
-                                for q in QUADRANTS}
+            out["quadrants"] = {
+                q: {"corners": [list(c) for c in self.frame["quadrants"][q]]} for q in QUADRANTS
+            }
         return out
 
 
 # -- the working grid -------------------------------------------------------------------
+
 
 @dataclasses.dataclass
 class _Work:
@@ -204,11 +246,11 @@ class _Work:
     k: int
     lat: np.ndarray
     lon: np.ndarray
-    area: np.ndarray          # km2
-    periodic: bool            # the first and last columns are neighbours
-    joined: tuple             # rows whose points are all neighbours of each other (a pole)
-    spacing_km: float         # the square root of the median cell area
-    grid_spacing_km: float    # the same of the grid itself
+    area: np.ndarray  # km2
+    periodic: bool  # the first and last columns are neighbours
+    joined: tuple  # rows whose points are all neighbours of each other (a pole)
+    spacing_km: float  # the square root of the median cell area
+    grid_spacing_km: float  # the same of the grid itself
 
 
 def _coarsening(grid: Grid, target_km: float = 55.0) -> int:
@@ -334,20 +376,20 @@ def _open_regions(labels, n, work: _Work, edge, max_share, radius) -> np.ndarray
         # a region round the whole grid that holds no pole is a band between two latitude
         # circles: no single contour encloses it
         nx = labels.shape[1]
-        caps = set()
+        caps: set[int] = set()
         for r in work.joined:
             caps.update(int(x) for x in np.unique(labels[r]) if x)
         for i, sl in enumerate(ndimage.find_objects(labels), start=1):
             if sl is None or open_[i] or i in caps:
                 continue
-            if sl[1].stop - sl[1].start == nx and \
-                    (labels[sl] == i).any(axis=0).all():
+            if sl[1].stop - sl[1].start == nx and (labels[sl] == i).any(axis=0).all():
                 open_[i] = True
     open_[0] = True
     return open_
 
 
 # -- lows and highs ---------------------------------------------------------------------------
+
 
 def _candidates(zf, invalid, work: _Work):
     """Local minima of the working field: no lower point among its four neighbours (the
@@ -364,11 +406,11 @@ def _candidates(zf, invalid, work: _Work):
         nb[:, :-1] = np.minimum(nb[:, :-1], zf[:, 1:])
     minima = (zf <= nb) & ~invalid
     ny = zf.shape[0]
-    for r, nb in ((0, 1), (ny - 1, ny - 2)):
+    for r, row_next in ((0, 1), (ny - 1, ny - 2)):
         minima[r, :] = False
         if r in work.joined and np.isfinite(zf[r]).any():
             c = int(np.argmin(zf[r]))
-            if np.isfinite(zf[r, c]) and zf[r, c] <= np.min(zf[nb]):
+            if np.isfinite(zf[r, c]) and zf[r, c] <= np.min(zf[row_next]):
                 minima[r, c] = True
     if not work.periodic:
         minima[:, 0] = minima[:, -1] = False
@@ -383,12 +425,14 @@ def _refine(z, r, c, periodic):
     if r <= 0 or r >= ny - 1 or (not periodic and (c <= 0 or c >= nx - 1)):
         return float(r), float(c)
     cols = [(c + d) % nx for d in (-1, 0, 1)]
-    block = z[r - 1:r + 2][:, cols]
+    block = z[r - 1 : r + 2][:, cols]
     if not np.isfinite(block).all():
         return float(r), float(c)
     yy, xx = np.mgrid[-1:2, -1:2]
-    a = np.stack([np.ones(9), xx.ravel(), yy.ravel(), xx.ravel() ** 2, yy.ravel() ** 2,
-                  (xx * yy).ravel()], axis=1)
+    a = np.stack(
+        [np.ones(9), xx.ravel(), yy.ravel(), xx.ravel() ** 2, yy.ravel() ** 2, (xx * yy).ravel()],
+        axis=1,
+    )
     coef = np.linalg.lstsq(a, block.ravel(), rcond=None)[0]
     _, b, cy, d, e, f = coef
     hess = np.array([[2 * d, f], [f, 2 * e]])
@@ -422,10 +466,18 @@ def _position(grid: Grid, rf, cf):
     return (lon / wsum + 180.0) % 360.0 - 180.0, lat / wsum
 
 
-def find_closed_extrema(grid: Grid, height, pressure_pa: float | None, kind: str = "low", *,
-                        interval: float | None = None, min_depth: float | None = None,
-                        max_levels: int = 400, max_share: float = MAX_SHARE,
-                        units: str | None = None) -> list:
+def find_closed_extrema(
+    grid: Grid,
+    height,
+    pressure_pa: float | None,
+    kind: str = "low",
+    *,
+    interval: float | None = None,
+    min_depth: float | None = None,
+    max_levels: int = 400,
+    max_share: float = MAX_SHARE,
+    units: str | None = None,
+) -> list:
     """Closed lows (``kind="low"``) or highs of a field, deepest first.
 
     ``height`` is the geopotential height (m) of the level ``pressure_pa``, or, with
@@ -472,7 +524,7 @@ def find_closed_extrema(grid: Grid, height, pressure_pa: float | None, kind: str
             if lb and lb not in first:
                 first[lb] = i
         sizes = _sizes(labels, work, n + 1)
-        for i in np.nonzero(active)[0]:
+        for i in map(int, np.nonzero(active)[0]):
             lb = lab[i]
             if not lb or open_[lb] or first[lb] != i:
                 done[i] = True  # open, or now around a deeper extremum: the last level holds
@@ -508,39 +560,60 @@ def find_closed_extrema(grid: Grid, height, pressure_pa: float | None, kind: str
         note = ""
         to_equator = abs(lat) * math.pi / 180.0 * grid.radius / 1e3
         if radius > to_equator and abs(lat) > 0:
-            note = (f"its region is cut back to the equator ({to_equator:.0f} km from the "
-                    f"centre; the circle of its contour's area would reach {radius:.0f} km)")
+            note = (
+                f"its region is cut back to the equator ({to_equator:.0f} km from the "
+                f"centre; the circle of its contour's area would reach {radius:.0f} km)"
+            )
             radius = max(to_equator, 1.0)
-        found.append(System(kind, (lon + 180.0) % 360.0 - 180.0, lat, sign * centre, depth,
-                            float(sign * outer[i]), float(outer_area[i]),
-                            Region.circle(lon, lat, radius), (int(fr), int(fc)), units, note,
-                            inside=inside, coarsening=k))
-    found.sort(key=lambda s: -s.depth)
+        found.append(
+            System(
+                kind,
+                (lon + 180.0) % 360.0 - 180.0,
+                lat,
+                sign * centre,
+                depth,
+                float(sign * outer[i]),
+                float(outer_area[i]),
+                Region.circle(lon, lat, radius),
+                (int(fr), int(fc)),
+                units,
+                note,
+                inside=inside,
+                coarsening=k,
+            )
+        )
+    found.sort(key=lambda s: -(s.depth or 0.0))
     return found
 
 
 # -- jet streaks ------------------------------------------------------------------------------
+
 
 def _aeqd(lon0, lat0, radius):
     """Transformers to and from the azimuthal equidistant projection centred on a point
     (x east, y north at the centre, m), on a sphere of the grid's radius."""
     import pyproj
 
-    crs = pyproj.CRS.from_proj4(f"+proj=aeqd +lat_0={lat0!r} +lon_0={lon0!r} "
-                                f"+R={radius!r} +units=m +no_defs")
+    crs = pyproj.CRS.from_proj4(
+        f"+proj=aeqd +lat_0={lat0!r} +lon_0={lon0!r} +R={radius!r} +units=m +no_defs"
+    )
     geo = crs.geodetic_crs
-    return (pyproj.Transformer.from_crs(geo, crs, always_xy=True),
-            pyproj.Transformer.from_crs(crs, geo, always_xy=True))
+    return (
+        pyproj.Transformer.from_crs(geo, crs, always_xy=True),
+        pyproj.Transformer.from_crs(crs, geo, always_xy=True),
+    )
 
 
 def flow_box_outline(inverse, corners_xy, n: int = 40):
     """Lon/lat points along the sides of a quadrilateral whose sides are straight in the
     projection of ``inverse`` (a pyproj Transformer to lon/lat), ``n`` per side."""
     t = np.linspace(0.0, 1.0, n, endpoint=False)
-    xs = np.concatenate([corners_xy[i][0] + (corners_xy[(i + 1) % 4][0] - corners_xy[i][0]) * t
-                         for i in range(4)])
-    ys = np.concatenate([corners_xy[i][1] + (corners_xy[(i + 1) % 4][1] - corners_xy[i][1]) * t
-                         for i in range(4)])
+    xs = np.concatenate(
+        [corners_xy[i][0] + (corners_xy[(i + 1) % 4][0] - corners_xy[i][0]) * t for i in range(4)]
+    )
+    ys = np.concatenate(
+        [corners_xy[i][1] + (corners_xy[(i + 1) % 4][1] - corners_xy[i][1]) * t for i in range(4)]
+    )
     lons, lats = inverse.transform(xs, ys)
     return np.asarray(lons), np.asarray(lats)
 
@@ -548,8 +621,10 @@ def flow_box_outline(inverse, corners_xy, n: int = 40):
 def _rect(ex, ey, a0, a1, b0, b1):
     """Corners (x, y) of the rectangle along in [a0, a1], cross in [b0, b1] (left of the
     flow positive), for the flow direction (ex, ey); counter-clockwise."""
+
     def pt(a, b):
         return (a * ex - b * ey, a * ey + b * ex)
+
     return [pt(a0, b1), pt(a0, b0), pt(a1, b0), pt(a1, b1)]
 
 
@@ -561,21 +636,28 @@ def _flow_box(lon0, lat0, u0, v0, core_lon, core_lat, spacing_km, radius):
         return None
     ex, ey = u0 / speed, v0 / speed  # along the flow (east, north at the peak)
     fwd, inv = _aeqd(lon0, lat0, radius)
-    x, y = fwd.transform(np.asarray(core_lon, dtype=np.float64),
-                         np.asarray(core_lat, dtype=np.float64))
+    x, y = fwd.transform(
+        np.asarray(core_lon, dtype=np.float64), np.asarray(core_lat, dtype=np.float64)
+    )
     along = (x * ex + y * ey) / 1e3
     cross = (-x * ey + y * ex) / 1e3
     core_half = max(float(np.max(np.abs(along))), 0.5 * spacing_km)
-    a = min(max(2.0 * core_half, JET_MIN_HALF_LENGTH * spacing_km),
-            max(JET_MAX_HALF_LENGTH_KM, JET_MIN_HALF_LENGTH * spacing_km))
-    b = min(max(float(np.max(np.abs(cross))) + spacing_km, JET_MIN_HALF_WIDTH * spacing_km),
-            max(JET_MAX_HALF_WIDTH_KM, JET_MIN_HALF_WIDTH * spacing_km))
+    a = min(
+        max(2.0 * core_half, JET_MIN_HALF_LENGTH * spacing_km),
+        max(JET_MAX_HALF_LENGTH_KM, JET_MIN_HALF_LENGTH * spacing_km),
+    )
+    b = min(
+        max(float(np.max(np.abs(cross))) + spacing_km, JET_MIN_HALF_WIDTH * spacing_km),
+        max(JET_MAX_HALF_WIDTH_KM, JET_MIN_HALF_WIDTH * spacing_km),
+    )
     am, bm = a * 1e3, b * 1e3
     box = _rect(ex, ey, -am, am, -bm, bm)
-    parts = {"entrance_left": _rect(ex, ey, -am, 0.0, 0.0, bm),
-             "entrance_right": _rect(ex, ey, -am, 0.0, -bm, 0.0),
-             "exit_left": _rect(ex, ey, 0.0, am, 0.0, bm),
-             "exit_right": _rect(ex, ey, 0.0, am, -bm, 0.0)}
+    parts = {
+        "entrance_left": _rect(ex, ey, -am, 0.0, 0.0, bm),
+        "entrance_right": _rect(ex, ey, -am, 0.0, -bm, 0.0),
+        "exit_left": _rect(ex, ey, 0.0, am, 0.0, bm),
+        "exit_right": _rect(ex, ey, 0.0, am, -bm, 0.0),
+    }
 
     def lonlat(corners):
         lo, la = inv.transform([p[0] for p in corners], [p[1] for p in corners])
@@ -593,16 +675,29 @@ def _flow_box(lon0, lat0, u0, v0, core_lon, core_lat, spacing_km, radius):
     for q, corners in parts.items():
         ql, qa = flow_box_outline(inv, corners)
         quads[q] = Region.polygon(ql, qa)
-    frame = {"lon": float(lon0), "lat": float(lat0),
-             "direction_deg": float(math.degrees(math.atan2(ex, ey)) % 360.0),
-             "half_length_km": a, "half_width_km": b, "corners": lonlat(box),
-             "quadrants": {q: lonlat(c) for q, c in parts.items()}}
+    frame = {
+        "lon": float(lon0),
+        "lat": float(lat0),
+        "direction_deg": float(math.degrees(math.atan2(ex, ey)) % 360.0),
+        "half_length_km": a,
+        "half_width_km": b,
+        "corners": lonlat(box),
+        "quadrants": {q: lonlat(c) for q, c in parts.items()},
+    }
     return region, frame, quads
 
 
-def find_jet_streaks(grid: Grid, u, v, pressure_pa: float, *, threshold: float | None = None,
-                     core_fraction: float = 0.8, separation_km: float = 500.0,
-                     most: int = 50) -> list:
+def find_jet_streaks(
+    grid: Grid,
+    u,
+    v,
+    pressure_pa: float,
+    *,
+    threshold: float | None = None,
+    core_fraction: float = 0.8,
+    separation_km: float = 500.0,
+    most: int = 50,
+) -> list:
     """Jet streaks of the wind (u, v in m s-1), strongest first (see the module docstring).
 
     A peak is a local maximum of the speed (its eight neighbours) above the threshold; a
@@ -630,7 +725,9 @@ def find_jet_streaks(grid: Grid, u, v, pressure_pa: float, *, threshold: float |
     order = np.argsort(-vals, kind="stable")
     cand, vals = cand[order], vals[order]
     above, _ = _label(sf >= thr, work)
-    found, cores, kept = [], [], []
+    found: list[System] = []
+    cores: list[np.ndarray] = []
+    kept: list[tuple[int, int]] = []
     ny, nx = speed_full.shape
     grid_spacing = work.grid_spacing_km
     for (r, c), peak in zip(cand, vals):
@@ -638,9 +735,12 @@ def find_jet_streaks(grid: Grid, u, v, pressure_pa: float, *, threshold: float |
             break
         if any(core[r, c] for core in cores):
             continue  # a weaker peak inside a stronger streak's core is part of it
-        if any(above[r, c] == above[a, b] and
-               great_circle_km(work.lon[a, b], work.lat[a, b], work.lon[r, c],
-                               work.lat[r, c]) < separation_km for a, b in kept):
+        if any(
+            above[r, c] == above[a, b]
+            and great_circle_km(work.lon[a, b], work.lat[a, b], work.lon[r, c], work.lat[r, c])
+            < separation_km
+            for a, b in kept
+        ):
             continue  # and so is one close to a stronger peak above the same threshold
         kept.append((r, c))
         labels, _ = _label(sf >= core_fraction * peak, work)
@@ -652,18 +752,39 @@ def find_jet_streaks(grid: Grid, u, v, pressure_pa: float, *, threshold: float |
         j = np.nanargmax(block)
         fr, fc = r0 + j // block.shape[1], c0 + j % block.shape[1]
         lon0, lat0 = float(grid.lon[fr, fc]), float(grid.lat[fr, fc])
-        box = _flow_box(lon0, lat0, float(u[fr, fc]), float(v[fr, fc]), work.lon[core],
-                        work.lat[core], max(grid_spacing, work.spacing_km), grid.radius)
+        box = _flow_box(
+            lon0,
+            lat0,
+            float(u[fr, fc]),
+            float(v[fr, fc]),
+            work.lon[core],
+            work.lat[core],
+            max(grid_spacing, work.spacing_km),
+            grid.radius,
+        )
         if box is None:
             half = max(JET_MIN_HALF_LENGTH * max(grid_spacing, work.spacing_km), 500.0)
             region, frame, quads = Region.circle(lon0, lat0, half), None, None
             note = "its region is a circle: the flow-aligned box would hold a pole"
         else:
             (region, frame, quads), note = box, ""
-        found.append(System("jet_streak", (lon0 + 180.0) % 360.0 - 180.0, lat0,
-                            float(speed_full[fr, fc]), None, None,
-                            float(work.area[core].sum()), region, (int(fr), int(fc)),
-                            "m s-1", note, frame=frame, quadrants=quads))
+        found.append(
+            System(
+                "jet_streak",
+                (lon0 + 180.0) % 360.0 - 180.0,
+                lat0,
+                float(speed_full[fr, fc]),
+                None,
+                None,
+                float(work.area[core].sum()),
+                region,
+                (int(fr), int(fc)),
+                "m s-1",
+                note,
+                frame=frame,
+                quadrants=quads,
+            )
+        )
     return found
 
 
@@ -692,13 +813,27 @@ def is_ring(streak: System, vortex: System, u, v) -> bool:
         return True
     if d > 1.5 * vortex.radius_km:
         return False
-    return _tangential_share(vortex, streak.lon, streak.lat, float(u[r, c]),
-                             float(v[r, c])) >= RING_TANGENTIAL
+    return (
+        _tangential_share(vortex, streak.lon, streak.lat, float(u[r, c]), float(v[r, c]))
+        >= RING_TANGENTIAL
+    )
 
 
-def find_systems(grid: Grid, height, u, v, pressure_pa: float, *, interval=None,
-                 min_depth=None, jet=None, core_fraction: float = 0.8,
-                 limit: int = 30, vortices=(), shallow: list | None = None) -> list:
+def find_systems(
+    grid: Grid,
+    height,
+    u,
+    v,
+    pressure_pa: float | None,
+    *,
+    interval=None,
+    min_depth=None,
+    jet=None,
+    core_fraction: float = 0.8,
+    limit: int = 30,
+    vortices=(),
+    shallow: list | None = None,
+) -> list:
     """Closed lows and highs and jet streaks of one level, at most ``limit`` of them:
     the most intense of each kind first, kinds taken in turn.
 
@@ -710,21 +845,26 @@ def find_systems(grid: Grid, height, u, v, pressure_pa: float, *, interval=None,
     """
     ci = float(interval or contour_interval(pressure_pa))
     depth_min = 0.5 * ci if min_depth is None else float(min_depth)
-    lows = find_closed_extrema(grid, height, pressure_pa, "low", interval=interval,
-                               min_depth=0.0)
-    highs = find_closed_extrema(grid, height, pressure_pa, "high", interval=interval,
-                                min_depth=0.0)
+    lows = find_closed_extrema(grid, height, pressure_pa, "low", interval=interval, min_depth=0.0)
+    highs = find_closed_extrema(grid, height, pressure_pa, "high", interval=interval, min_depth=0.0)
     if shallow is not None:
         shallow.extend(s for s in lows + highs if s.depth < depth_min)
     lows = [s for s in lows if s.depth >= depth_min]
     highs = [s for s in highs if s.depth >= depth_min]
     jets = []
-    if u is not None and v is not None:
-        jets = find_jet_streaks(grid, u, v, pressure_pa, threshold=jet,
-                                core_fraction=core_fraction, most=max(50, 2 * limit))
+    if u is not None and v is not None and pressure_pa is not None:
+        jets = find_jet_streaks(
+            grid,
+            u,
+            v,
+            pressure_pa,
+            threshold=jet,
+            core_fraction=core_fraction,
+            most=max(50, 2 * limit),
+        )
         centres = lows + highs + list(vortices)
         jets = [j for j in jets if not any(is_ring(j, e, u, v) for e in centres)]
-    out = []
+    out: list[System] = []
     queues = [list(lows), list(highs), list(jets)]
     while len(out) < limit and any(queues):
         for q in queues:
@@ -773,7 +913,7 @@ def match_tracks(systems_by_time, hours, grid_spacing_km: float = 0.0) -> list:
                         pairs.append((d, i, j))
         pairs.sort()
         used_i, used_j, nxt = set(), set(), {}
-        for d, i, j in pairs:
+        for _d, i, j in pairs:
             if i in used_i or j in used_j or i not in open_tracks:
                 continue
             used_i.add(i)

@@ -141,7 +141,7 @@ def log_pressure_mean(values, pressure, axis: int = 0):
 
 
 def hypsometric_thickness(mean_virtual_temperature, p_bottom, p_top):
-    """Thickness (geopotential m) of a layer: Z_top - Z_bottom = (R_d T_v / g0) ln(p_bottom / p_top).
+    """Thickness (geopotential m) of a layer: Z_top - Z_bottom = (R_d T_v / g0) ln(p_b / p_t).
 
     The hypsometric equation (American Meteorological Society, Glossary of
     Meteorology, "hypsometric equation").

@@ -38,14 +38,25 @@ configurable by every caller.
 from __future__ import annotations
 
 import dataclasses
+from typing import Any
 
 import numpy as np
 
 from .region import Region, weighted_stats
 from .vocabulary import TERM_NAMES
 
-__all__ = ["Thresholds", "Verdict", "imbalance_ratios", "classify_budget", "classify_scales",
-           "budget_verdict", "residual_causes", "near_ground", "CANDIDATES", "CLASSES"]
+__all__ = [
+    "Thresholds",
+    "Verdict",
+    "imbalance_ratios",
+    "classify_budget",
+    "classify_scales",
+    "budget_verdict",
+    "residual_causes",
+    "near_ground",
+    "CANDIDATES",
+    "CLASSES",
+]
 
 #: Candidate balances, simplest first, and the terms each adds up.
 CANDIDATES = {
@@ -55,8 +66,15 @@ CANDIDATES = {
     "frictional": ("pressure_gradient", "coriolis", "residual"),
 }
 #: Every class a verdict can take ("none": the data cannot support a verdict).
-CLASSES = ("geostrophic", "gradient", "cyclostrophic", "frictional", "unsteady", "unbalanced",
-           "none")
+CLASSES = (
+    "geostrophic",
+    "gradient",
+    "cyclostrophic",
+    "frictional",
+    "unsteady",
+    "unbalanced",
+    "none",
+)
 
 _PRETTY = TERM_NAMES
 
@@ -169,10 +187,14 @@ class Verdict:
     cautions: tuple = ()
 
     def as_dict(self) -> dict:
-        return {"balance": self.balance, "text": self.text, "why": self.why,
-                "tested": {k: v is None for k, v in self.tested.items()},
-                "not_tested": {k: v for k, v in self.tested.items() if v is not None},
-                "cautions": list(self.cautions)}
+        return {
+            "balance": self.balance,
+            "text": self.text,
+            "why": self.why,
+            "tested": {k: v is None for k, v in self.tested.items()},
+            "not_tested": {k: v for k, v in self.tested.items() if v is not None},
+            "cautions": list(self.cautions),
+        }
 
 
 def _rms(field, grid, inside):
@@ -217,9 +239,12 @@ def imbalance_ratios(budget, grid, inside, *, u=None, v=None, vorticity=None) ->
         t = budget[n]
         if t.available:
             ok &= np.isfinite(t.x) & np.isfinite(t.y)
-    out = {"points": int(ok.sum()), "region_points": int(inside.sum()),
-           "masked_points": int(inside.sum() - ok.sum())}
-    rms = {}
+    out: dict[str, Any] = {
+        "points": int(ok.sum()),
+        "region_points": int(inside.sum()),
+        "masked_points": int(inside.sum() - ok.sum()),
+    }
+    rms: dict[str, float | None] = {}
     for n in names:
         t = budget[n]
         rms[n] = _rms(np.hypot(t.x, t.y), grid, ok) if t.available else None
@@ -251,7 +276,8 @@ def imbalance_ratios(budget, grid, inside, *, u=None, v=None, vorticity=None) ->
             cos = (r.x * u + r.y * v) / (np.hypot(r.x, r.y) * np.hypot(u, v))
         good = ok & np.isfinite(cos)
         if good.any():
-            out["friction_alignment"] = -weighted_stats(cos, grid, good, quantiles=False).mean
+            mean = weighted_stats(cos, grid, good, quantiles=False).mean
+            out["friction_alignment"] = None if mean is None else -mean
     tropics = getattr(grid, "tropics_mask", None)
     out["tropics_share"] = None
     out["rossby_local_share"] = None
@@ -268,8 +294,9 @@ def imbalance_ratios(budget, grid, inside, *, u=None, v=None, vorticity=None) ->
     return out
 
 
-def near_ground(level_pa: float, height_above_ground_m: float | None,
-                thresholds: "Thresholds" = None) -> tuple:
+def near_ground(
+    level_pa: float, height_above_ground_m: float | None, thresholds: Thresholds | None = None
+) -> tuple:
     """(near, sentence): is the level in or near the boundary layer, and how that was judged.
 
     With the height above the ground known (median over the region), near means
@@ -280,13 +307,17 @@ def near_ground(level_pa: float, height_above_ground_m: float | None,
     th = thresholds or Thresholds()
     if height_above_ground_m is not None and np.isfinite(height_above_ground_m):
         near = height_above_ground_m <= th.boundary_layer_m
-        return near, (f"{level_pa / 100:g} hPa lies about {height_above_ground_m:.0f} m above "
-                      f"the ground ({'within' if near else 'above'} the "
-                      f"{th.boundary_layer_m:.0f} m taken as the boundary layer)")
+        return near, (
+            f"{level_pa / 100:g} hPa lies about {height_above_ground_m:.0f} m above "
+            f"the ground ({'within' if near else 'above'} the "
+            f"{th.boundary_layer_m:.0f} m taken as the boundary layer)"
+        )
     near = level_pa >= th.boundary_layer_pa
-    return near, (f"{level_pa / 100:g} hPa, with no orography or surface pressure to give its "
-                  f"height above the ground, counts as {'near' if near else 'far from'} the "
-                  f"ground (levels at or below {th.boundary_layer_pa / 100:g} hPa are near)")
+    return near, (
+        f"{level_pa / 100:g} hPa, with no orography or surface pressure to give its "
+        f"height above the ground, counts as {'near' if near else 'far from'} the "
+        f"ground (levels at or below {th.boundary_layer_pa / 100:g} hPa are near)"
+    )
 
 
 #: Terms that no candidate balance holds: when one of them rivals the pressure gradient,
@@ -296,40 +327,50 @@ _OUTSIDE = ("vertical_advection", "metric_uw", "coriolis_w", "metric_uv")
 
 def _not_tested(ratios, th: Thresholds, ground) -> dict:
     """Each candidate (and "unsteady"): None if it can be tested here, else why not."""
-    out = {c: None for c in CANDIDATES}
+    out: dict[str, str | None] = {c: None for c in CANDIDATES}
     out["unsteady"] = None
     trop = ratios.get("tropics_share")
     if trop is not None and trop > th.tropics_share:
-        why = (f"{_pct(trop)} of the region lies within the tropical mask, where f is too "
-               "small for the Coriolis force to balance the pressure gradient")
+        why = (
+            f"{_pct(trop)} of the region lies within the tropical mask, where f is too "
+            "small for the Coriolis force to balance the pressure gradient"
+        )
         out["geostrophic"] = f"Geostrophic balance was not tested: {why}."
         out["gradient"] = f"Gradient balance was not tested: {why}."
     ro = ratios.get("rossby_local_share")
     if out["geostrophic"] is None and ro is not None and ro > th.rossby_share:
-        out["geostrophic"] = (f"Geostrophic balance was not tested: the local Rossby number "
-                              f"|zeta / f| exceeds 1 over {_pct(ro)} of the region, where the "
-                              "flow spins faster than the planet and geostrophy cannot hold.")
+        out["geostrophic"] = (
+            f"Geostrophic balance was not tested: the local Rossby number "
+            f"|zeta / f| exceeds 1 over {_pct(ro)} of the region, where the "
+            "flow spins faster than the planet and geostrophy cannot hold."
+        )
     speed = ratios.get("speed_rms")
     if speed is not None and speed < th.weak_wind:
         for cand in ("gradient", "cyclostrophic", "frictional"):
             if out[cand] is None:
-                out[cand] = (f"{cand.capitalize()} balance was not tested: the wind "
-                             f"({speed:.1f} m/s RMS) is under {th.weak_wind:g} m/s, too weak "
-                             "for its direction and curvature to mean anything.")
+                out[cand] = (
+                    f"{cand.capitalize()} balance was not tested: the wind "
+                    f"({speed:.1f} m/s RMS) is under {th.weak_wind:g} m/s, too weak "
+                    "for its direction and curvature to mean anything."
+                )
     for cand in CANDIDATES:
         if out[cand] is None and ratios.get(cand) is None:
-            out[cand] = (f"{cand.capitalize()} balance was not tested: a term it needs is not "
-                         "in the data.")
+            out[cand] = (
+                f"{cand.capitalize()} balance was not tested: a term it needs is not in the data."
+            )
     if out["frictional"] is None:
         out["frictional"] = _friction_barrier(ratios, th, ground)
     if not ratios.get("has_tendency", True):
-        out["unsteady"] = ("Unsteady flow was not tested: with one valid time the local "
-                           "tendency is unknown, so the total acceleration DV/Dt is not.")
+        out["unsteady"] = (
+            "Unsteady flow was not tested: with one valid time the local "
+            "tendency is unknown, so the total acceleration DV/Dt is not."
+        )
     return out
 
 
-def classify_budget(ratios: dict, thresholds: Thresholds = Thresholds(), *,
-                    ground: tuple | None = None) -> Verdict:
+def classify_budget(
+    ratios: dict, thresholds: Thresholds = Thresholds(), *, ground: tuple | None = None
+) -> Verdict:
     """Pick one class from the imbalance ratios of :func:`imbalance_ratios`.
 
     Rule (the project's own, thresholds in :class:`Thresholds`):
@@ -361,118 +402,177 @@ def classify_budget(ratios: dict, thresholds: Thresholds = Thresholds(), *,
     n, total = ratios.get("points") or 0, ratios.get("region_points")
     total = n if total is None else total
     if not n or not rms.get("pressure_gradient"):
-        return Verdict("none", f"No verdict: none of the {total} points of the region has "
-                       "every term of the budget (missing data, below the ground or outside "
-                       "the grid), so no balance can be tested.", ratios,
-                       "A verdict needs valid points.")
+        return Verdict(
+            "none",
+            f"No verdict: none of the {total} points of the region has "
+            "every term of the budget (missing data, below the ground or outside "
+            "the grid), so no balance can be tested.",
+            ratios,
+            "A verdict needs valid points.",
+        )
     if n < th.min_points or (total and n / total < th.min_valid_share):
-        return Verdict("none", f"No verdict: only {n} of the {total} points of the region "
-                       f"({100 * n / max(total, 1):.0f} %) have every term of the budget; at "
-                       f"least {th.min_points} points and {100 * th.min_valid_share:.0f} % of "
-                       "the region are needed before a balance is named.", ratios,
-                       "Too few valid points to name a balance.")
+        return Verdict(
+            "none",
+            f"No verdict: only {n} of the {total} points of the region "
+            f"({100 * n / max(total, 1):.0f} %) have every term of the budget; at "
+            f"least {th.min_points} points and {100 * th.min_valid_share:.0f} % of "
+            "the region are needed before a balance is named.",
+            ratios,
+            "Too few valid points to name a balance.",
+        )
     p = rms["pressure_gradient"]
     tested = _not_tested(ratios, th, ground)
     if p < th.weak_pgf:
         weak = f"the pressure-gradient force ({_fmt(p)}) is under {th.weak_pgf:.1e} m s-2"
-        why = (f"{weak[0].upper() + weak[1:]}: every ratio is a share of it, so none means "
-               "anything.")
-        tested = {c: (f"{c.capitalize()} {'flow' if c == 'unsteady' else 'balance'} was not "
-                      f"tested: {weak}.") for c in tested}
-        return Verdict("none", f"No verdict: {weak}, too weak for the imbalance ratios to "
-                       "mean anything (each is a share of the pressure gradient).", ratios,
-                       why, tested, cautions=(f"Weak forcing: {weak}.",))
-    holds = {c: ratios[c] for c in CANDIDATES
-             if tested[c] is None and ratios.get(c) is not None and ratios[c] <= th.balanced}
-    why = []
+        reason = (
+            f"{weak[0].upper() + weak[1:]}: every ratio is a share of it, so none means anything."
+        )
+        tested = {
+            c: (
+                f"{c.capitalize()} {'flow' if c == 'unsteady' else 'balance'} was not "
+                f"tested: {weak}."
+            )
+            for c in tested
+        }
+        return Verdict(
+            "none",
+            f"No verdict: {weak}, too weak for the imbalance ratios to "
+            "mean anything (each is a share of the pressure gradient).",
+            ratios,
+            reason,
+            tested,
+            cautions=(f"Weak forcing: {weak}.",),
+        )
+    holds = {
+        c: ratios[c]
+        for c in CANDIDATES
+        if tested[c] is None and ratios.get(c) is not None and ratios[c] <= th.balanced
+    }
+    why: list[str] = []
     curv = ratios.get("curvature", "streamline")
     cen, cor = rms.get("centripetal_used"), rms.get("coriolis")
-    chosen = None
+    chosen: str | None = None
     simple = [c for c in ("geostrophic", "cyclostrophic") if c in holds]
     if simple:
-        chosen = min(simple, key=holds.get)
-        why.append(f"{chosen.capitalize()} is the simplest balance that holds: it leaves "
-                   f"{_pct(holds[chosen])} of the pressure-gradient force unbalanced (a balance "
-                   f"holds at {_pct(th.balanced)} or less).")
+        chosen = min(simple, key=lambda c: holds[c])
+        why.append(
+            f"{chosen.capitalize()} is the simplest balance that holds: it leaves "
+            f"{_pct(holds[chosen])} of the pressure-gradient force unbalanced (a balance "
+            f"holds at {_pct(th.balanced)} or less)."
+        )
     if "gradient" in holds:
         g = holds["gradient"]
         if chosen is None:
             chosen = "gradient"
-            why.append(f"Gradient is the simplest balance that holds: it leaves {_pct(g)} (a "
-                       f"balance holds at {_pct(th.balanced)} or less).")
+            why.append(
+                f"Gradient is the simplest balance that holds: it leaves {_pct(g)} (a "
+                f"balance holds at {_pct(th.balanced)} or less)."
+            )
         else:
             other = rms.get("centripetal_used") if chosen == "geostrophic" else cor
             base = cor if chosen == "geostrophic" else cen
             added = "the centripetal term" if chosen == "geostrophic" else "Coriolis"
             share = other / base if other is not None and base else 0.0
             if share >= th.curvature_share and g <= th.gradient_gain * holds[chosen]:
-                why.append(f"Gradient replaces {chosen}: {added} is {_pct(share)} of "
-                           f"{'Coriolis' if chosen == 'geostrophic' else 'the centripetal term'}"
-                           f" and gradient leaves {_pct(g)} against {_pct(holds[chosen])}, "
-                           f"clearly less (at most {th.gradient_gain:g} times).")
+                why.append(
+                    f"Gradient replaces {chosen}: {added} is {_pct(share)} of "
+                    f"{'Coriolis' if chosen == 'geostrophic' else 'the centripetal term'}"
+                    f" and gradient leaves {_pct(g)} against {_pct(holds[chosen])}, "
+                    f"clearly less (at most {th.gradient_gain:g} times)."
+                )
                 chosen = "gradient"
             elif g >= holds[chosen]:
-                why.append(f"Gradient also holds ({_pct(g)}) but fits no better than "
-                           f"{chosen} ({_pct(holds[chosen])}).")
+                why.append(
+                    f"Gradient also holds ({_pct(g)}) but fits no better than "
+                    f"{chosen} ({_pct(holds[chosen])})."
+                )
             elif share < th.curvature_share:
-                why.append(f"Gradient fits a little better ({_pct(g)} against "
-                           f"{_pct(holds[chosen])}), but {added} is only {_pct(share)} of "
-                           f"{'Coriolis' if chosen == 'geostrophic' else 'the centripetal term'}"
-                           f": too small to matter (the line is {_pct(th.curvature_share)}).")
+                why.append(
+                    f"Gradient fits a little better ({_pct(g)} against "
+                    f"{_pct(holds[chosen])}), but {added} is only {_pct(share)} of "
+                    f"{'Coriolis' if chosen == 'geostrophic' else 'the centripetal term'}"
+                    f": too small to matter (the line is {_pct(th.curvature_share)})."
+                )
             else:
-                why.append(f"Gradient fits a little better ({_pct(g)} against "
-                           f"{_pct(holds[chosen])}), not clearly (it would need at most "
-                           f"{th.gradient_gain:g} times), so the simpler {chosen} stays.")
+                why.append(
+                    f"Gradient fits a little better ({_pct(g)} against "
+                    f"{_pct(holds[chosen])}), not clearly (it would need at most "
+                    f"{th.gradient_gain:g} times), so the simpler {chosen} stays."
+                )
     if "frictional" in holds:
         f_ = holds["frictional"]
         if chosen is None:
             chosen = "frictional"
-            why.append(f"Frictional is the balance that holds: it leaves {_pct(f_)} (a balance "
-                       f"holds at {_pct(th.balanced)} or less).")
+            why.append(
+                f"Frictional is the balance that holds: it leaves {_pct(f_)} (a balance "
+                f"holds at {_pct(th.balanced)} or less)."
+            )
         elif holds[chosen] > th.good and f_ <= th.improvement * holds[chosen]:
-            why.append(f"Frictional replaces {chosen}: it leaves {_pct(f_)} against "
-                       f"{_pct(holds[chosen])}, at most {th.improvement:g} times as much, so "
-                       "friction earns its place.")
+            why.append(
+                f"Frictional replaces {chosen}: it leaves {_pct(f_)} against "
+                f"{_pct(holds[chosen])}, at most {th.improvement:g} times as much, so "
+                "friction earns its place."
+            )
             chosen = "frictional"
         else:
-            why.append(f"Frictional also holds ({_pct(f_)}) but does not do enough better than "
-                       f"{chosen} ({_pct(holds[chosen])}) to add friction.")
+            why.append(
+                f"Frictional also holds ({_pct(f_)}) but does not do enough better than "
+                f"{chosen} ({_pct(holds[chosen])}) to add friction."
+            )
     if chosen in ("gradient", "cyclostrophic"):
-        why.append(f"The centripetal term takes the {curv} curvature"
-                   + (" (the streamlines' curvature plus the cross-stream tendency over V^2)."
-                      if curv == "trajectory" else
-                      " (one valid time: no tendency to turn it into the trajectory's)."))
+        why.append(
+            f"The centripetal term takes the {curv} curvature"
+            + (
+                " (the streamlines' curvature plus the cross-stream tendency over V^2)."
+                if curv == "trajectory"
+                else " (one valid time: no tendency to turn it into the trajectory's)."
+            )
+        )
     if chosen is None:
         testable = [c for c in CANDIDATES if tested[c] is None]
         acc = ratios.get("acceleration_share")
         if tested["unsteady"] is None and acc is not None and acc >= th.unsteady_share:
             chosen = "unsteady"
-            why.insert(0, f"No candidate balance leaves {_pct(th.balanced)} or less; the "
-                          f"total acceleration is {_pct(acc)} of the pressure-gradient force "
-                          f"(at least {_pct(th.unsteady_share)}).")
+            why.insert(
+                0,
+                f"No candidate balance leaves {_pct(th.balanced)} or less; the "
+                f"total acceleration is {_pct(acc)} of the pressure-gradient force "
+                f"(at least {_pct(th.unsteady_share)}).",
+            )
         elif not testable:
             chosen = "none"
             why.insert(0, "No candidate balance could be tested here.")
-        elif tested["geostrophic"] is not None and tested["gradient"] is not None and \
-                ratios.get("tropics_share") is not None and \
-                ratios["tropics_share"] > th.tropics_share:
+        elif (
+            tested["geostrophic"] is not None
+            and tested["gradient"] is not None
+            and ratios.get("tropics_share") is not None
+            and ratios["tropics_share"] > th.tropics_share
+        ):
             chosen = "none"
-            why.insert(0, "Within the tropics only the balances that do without f can be "
-                          "tested, and none of them holds here.")
+            why.insert(
+                0,
+                "Within the tropics only the balances that do without f can be "
+                "tested, and none of them holds here.",
+            )
         else:
             chosen = "unbalanced"
-            tail = ("" if tested["unsteady"] is None else
-                    " With one valid time, whether the flow is unsteady cannot be told.")
+            tail = (
+                ""
+                if tested["unsteady"] is None
+                else " With one valid time, whether the flow is unsteady cannot be told."
+            )
             why.insert(0, f"No candidate balance leaves {_pct(th.balanced)} or less.{tail}")
     why.extend(t for c, t in tested.items() if t is not None)
     cautions = []
     for name in _OUTSIDE + (() if ground and ground[0] else ("residual",)):
         m = rms.get(name)
         if m is not None and m >= th.unexplained_share * p:
-            cautions.append(f"{_PRETTY[name].capitalize()} is {_pct(m / p)} of the "
-                            "pressure-gradient force and no candidate balance holds it: "
-                            "check that term (or the data it comes from) before trusting "
-                            "this verdict.")
+            cautions.append(
+                f"{_PRETTY[name].capitalize()} is {_pct(m / p)} of the "
+                "pressure-gradient force and no candidate balance holds it: "
+                "check that term (or the data it comes from) before trusting "
+                "this verdict."
+            )
     text = _sentence(chosen, ratios, tested)
     if cautions:
         text += " Caution: " + " ".join(cautions)
@@ -482,30 +582,46 @@ def classify_budget(ratios: dict, thresholds: Thresholds = Thresholds(), *,
 def _friction_barrier(ratios, th, ground) -> str | None:
     """Why frictional balance is not a candidate here (None if it is)."""
     if ground is None:
-        return ("Frictional balance was not tested: the level's height above the ground is "
-                "not known.")
+        return (
+            "Frictional balance was not tested: the level's height above the ground is not known."
+        )
     near, where = ground
     if not near:
         return f"Frictional balance was not tested: {where}."
     if (ratios.get("residual_share") or 0) < th.friction_share:
-        return (f"Frictional balance was not tested: the residual is only "
-                f"{_pct(ratios.get('residual_share') or 0)} of the pressure-gradient force.")
+        return (
+            f"Frictional balance was not tested: the residual is only "
+            f"{_pct(ratios.get('residual_share') or 0)} of the pressure-gradient force."
+        )
     align = ratios.get("friction_alignment")
     if align is None or align < th.friction_alignment:
         shown = "unknown" if align is None else f"{align:.2f}"
-        return (f"Frictional balance was not tested: the residual does not oppose the wind "
-                f"(alignment {shown}, at least {th.friction_alignment:g} is needed), so it does "
-                "not act as friction.")
+        return (
+            f"Frictional balance was not tested: the residual does not oppose the wind "
+            f"(alignment {shown}, at least {th.friction_alignment:g} is needed), so it does "
+            "not act as friction."
+        )
     return None
 
 
-def budget_verdict(budget, grid, inside, thresholds: Thresholds = Thresholds(), *, u=None,
-                   v=None, height_above_ground_m: float | None = None,
-                   vorticity=None) -> Verdict:
+def budget_verdict(
+    budget,
+    grid,
+    inside,
+    thresholds: Thresholds = Thresholds(),
+    *,
+    u=None,
+    v=None,
+    height_above_ground_m: float | None = None,
+    vorticity=None,
+) -> Verdict:
     """:func:`imbalance_ratios` then :func:`classify_budget` (ground from :func:`near_ground`)."""
     ground = near_ground(budget.level_pa, height_above_ground_m, thresholds)
-    return classify_budget(imbalance_ratios(budget, grid, inside, u=u, v=v,
-                                            vorticity=vorticity), thresholds, ground=ground)
+    return classify_budget(
+        imbalance_ratios(budget, grid, inside, u=u, v=v, vorticity=vorticity),
+        thresholds,
+        ground=ground,
+    )
 
 
 def _fmt(x):
@@ -519,49 +635,87 @@ def _pct(x):
 def _sentence(cls, ratios, tested=None) -> str:
     rms = ratios["rms"]
     p = rms["pressure_gradient"]
-    ranked = sorted(((v, k) for k, v in rms.items()
-                     if v is not None and k in TERM_NAMES and k not in (
-                         "pressure_gradient", "residual", "acceleration", "along_stream",
-                         "centripetal", "tendency")),
-                    reverse=True)
+    ranked = sorted(
+        (
+            (v, k)
+            for k, v in rms.items()
+            if v is not None
+            and k in TERM_NAMES
+            and k
+            not in (
+                "pressure_gradient",
+                "residual",
+                "acceleration",
+                "along_stream",
+                "centripetal",
+                "tendency",
+            )
+        ),
+        reverse=True,
+    )
     cor = rms.get("coriolis")
     cen = rms.get("centripetal_used")
     acc = rms.get("acceleration")
     res = rms.get("residual")
-    steady = "" if ratios.get("has_tendency", True) else " (one valid time: the steady-state residual)"
+    steady = (
+        "" if ratios.get("has_tendency", True) else " (one valid time: the steady-state residual)"
+    )
     if cls == "geostrophic":
         other = next((k for v, k in ranked if k != "coriolis"), None)
         tail = f"; the largest other term is {_PRETTY[other]} ({_fmt(rms[other])})" if other else ""
-        return (f"Geostrophic: the pressure-gradient force ({_fmt(p)}) is balanced by Coriolis "
-                f"({_fmt(cor)}) to within {_pct(ratios['geostrophic'])}{tail}.")
+        return (
+            f"Geostrophic: the pressure-gradient force ({_fmt(p)}) is balanced by Coriolis "
+            f"({_fmt(cor)}) to within {_pct(ratios['geostrophic'])}{tail}."
+        )
     if cls == "cyclostrophic":
-        return (f"Cyclostrophic: the pressure-gradient force ({_fmt(p)}) is balanced by the "
-                f"centripetal acceleration ({_fmt(cen)}) to within {_pct(ratios['cyclostrophic'])}; "
-                f"Coriolis ({_fmt(cor)}) is minor.")
+        return (
+            f"Cyclostrophic: the pressure-gradient force ({_fmt(p)}) is balanced by the "
+            f"centripetal acceleration ({_fmt(cen)}) to within {_pct(ratios['cyclostrophic'])}; "
+            f"Coriolis ({_fmt(cor)}) is minor."
+        )
     if cls == "gradient":
         geo = ratios.get("geostrophic")
-        geo_txt = "" if geo is None or (tested and tested.get("geostrophic")) else \
-            f" (geostrophy alone leaves {_pct(geo)})"
-        return (f"Gradient: the pressure-gradient force ({_fmt(p)}) is balanced by Coriolis "
-                f"({_fmt(cor)}) and the centripetal acceleration ({_fmt(cen)}) together, to within "
-                f"{_pct(ratios['gradient'])}{geo_txt}.")
+        geo_txt = (
+            ""
+            if geo is None or (tested and tested.get("geostrophic"))
+            else f" (geostrophy alone leaves {_pct(geo)})"
+        )
+        return (
+            f"Gradient: the pressure-gradient force ({_fmt(p)}) is balanced by Coriolis "
+            f"({_fmt(cor)}) and the centripetal acceleration ({_fmt(cen)}) together, to within "
+            f"{_pct(ratios['gradient'])}{geo_txt}."
+        )
     if cls == "frictional":
-        return (f"Frictional: the pressure-gradient force ({_fmt(p)}), Coriolis ({_fmt(cor)}) and "
-                f"the residual friction ({_fmt(res)}{steady}) balance to within "
-                f"{_pct(ratios['frictional'])}; geostrophy alone leaves "
-                f"{_pct(ratios['geostrophic'])}.")
-    best = min(((ratios[c], c) for c in ("geostrophic", "cyclostrophic", "gradient")
-                if ratios.get(c) is not None and not (tested and tested.get(c))), default=None)
+        return (
+            f"Frictional: the pressure-gradient force ({_fmt(p)}), Coriolis ({_fmt(cor)}) and "
+            f"the residual friction ({_fmt(res)}{steady}) balance to within "
+            f"{_pct(ratios['frictional'])}; geostrophy alone leaves "
+            f"{_pct(ratios['geostrophic'])}."
+        )
+    best = min(
+        (
+            (ratios[c], c)
+            for c in ("geostrophic", "cyclostrophic", "gradient")
+            if ratios.get(c) is not None and not (tested and tested.get(c))
+        ),
+        default=None,
+    )
     best_txt = f"; the closest balance, {best[1]}, leaves {_pct(best[0])}" if best else ""
     if cls == "unsteady":
-        return (f"Unsteady: the total acceleration DV/Dt ({_fmt(acc)}) is "
-                f"{_pct(ratios['acceleration_share'])} of the pressure-gradient force ({_fmt(p)}), "
-                f"so no balance holds{best_txt}.")
+        return (
+            f"Unsteady: the total acceleration DV/Dt ({_fmt(acc)}) is "
+            f"{_pct(ratios['acceleration_share'])} of the pressure-gradient force ({_fmt(p)}), "
+            f"so no balance holds{best_txt}."
+        )
     if cls == "none":
-        return (f"No verdict: no candidate balance that can be tested here holds (the "
-                f"pressure-gradient force is {_fmt(p)}){best_txt}; see why below.")
-    return (f"Unbalanced: no candidate balance holds for the pressure-gradient force ({_fmt(p)})"
-            f"{best_txt}; the residual is {_fmt(res)}{steady}.")
+        return (
+            f"No verdict: no candidate balance that can be tested here holds (the "
+            f"pressure-gradient force is {_fmt(p)}){best_txt}; see why below."
+        )
+    return (
+        f"Unbalanced: no candidate balance holds for the pressure-gradient force ({_fmt(p)})"
+        f"{best_txt}; the residual is {_fmt(res)}{steady}."
+    )
 
 
 def classify_scales(result, thresholds: Thresholds = Thresholds()) -> Verdict:
@@ -584,42 +738,71 @@ def classify_scales(result, thresholds: Thresholds = Thresholds()) -> Verdict:
     p = mags["pressure_gradient"]
     ro = result.numbers.get("rossby")
     if p <= 0:
-        return Verdict("unbalanced", "The pressure difference is zero, so no balance can be tested "
-                       "by scales.")
-    near = {k for k, v in mags.items() if k != "pressure_gradient" and v * th.comparable_factor >= p}
+        return Verdict(
+            "unbalanced", "The pressure difference is zero, so no balance can be tested by scales."
+        )
+    near = {
+        k for k, v in mags.items() if k != "pressure_gradient" and v * th.comparable_factor >= p
+    }
     curved = result.scales.curved
     ro_txt = "n/a" if ro is None else f"{ro:.2g}"
     listing = ", ".join(f"{_PRETTY[k]} {mags[k]:.1e}" for k in sorted(near, key=lambda k: -mags[k]))
-    head = (f"By scales (magnitudes only, no signs): pressure gradient {p:.1e} m s-2, Rossby number "
-            f"{ro_txt}; within a factor {th.comparable_factor:g}: {listing or 'no other term'}.")
+    head = (
+        f"By scales (magnitudes only, no signs): pressure gradient {p:.1e} m s-2, Rossby number "
+        f"{ro_txt}; within a factor {th.comparable_factor:g}: {listing or 'no other term'}."
+    )
     if "viscous" in near:
         return Verdict("frictional", head + " Friction matters: frictional balance.")
     if near == {"coriolis"} and ro is not None and ro < th.rossby_small:
         return Verdict("geostrophic", head + " Coriolis alone balances it: geostrophic.")
     if "acceleration" in near and "coriolis" in near and (ro is None or ro <= th.rossby_large):
         if curved:
-            return Verdict("gradient", head + " Curved flow with Coriolis and centripetal terms "
-                           "both in play: gradient balance.")
-        return Verdict("unsteady", head + " Acceleration rivals Coriolis in a flow that is not "
-                       "curved: unsteady (scales cannot tell curvature from speeding up).")
+            return Verdict(
+                "gradient",
+                head + " Curved flow with Coriolis and centripetal terms "
+                "both in play: gradient balance.",
+            )
+        return Verdict(
+            "unsteady",
+            head + " Acceleration rivals Coriolis in a flow that is not "
+            "curved: unsteady (scales cannot tell curvature from speeding up).",
+        )
     if "acceleration" in near:
         if curved:
-            return Verdict("cyclostrophic", head + " Curved flow with Coriolis minor: "
-                           "cyclostrophic balance.")
-        return Verdict("unsteady", head + " Acceleration dominates Coriolis: unsteady (scales "
-                       "cannot tell curvature from speeding up).")
+            return Verdict(
+                "cyclostrophic", head + " Curved flow with Coriolis minor: cyclostrophic balance."
+            )
+        return Verdict(
+            "unsteady",
+            head + " Acceleration dominates Coriolis: unsteady (scales "
+            "cannot tell curvature from speeding up).",
+        )
     if "coriolis" in near:
-        return Verdict("geostrophic", head + " Coriolis balances it (Rossby number not small, so "
-                       "take this with care): geostrophic.")
-    return Verdict("unbalanced", head + " No term at these scales opposes the pressure gradient: "
-                   "the scales are not consistent with each other.")
+        return Verdict(
+            "geostrophic",
+            head + " Coriolis balances it (Rossby number not small, so "
+            "take this with care): geostrophic.",
+        )
+    return Verdict(
+        "unbalanced",
+        head + " No term at these scales opposes the pressure gradient: "
+        "the scales are not consistent with each other.",
+    )
 
 
-def residual_causes(*, level_pa: float, budget=None, time_step_s: float | None = None,
-                    residual_share: float | None = None, below_ground: int = 0,
-                    steep_terrain: bool = False, ground: tuple | None = None,
-                    resolution: dict | None = None, friction_alignment: float | None = None,
-                    thresholds: Thresholds = Thresholds()) -> list:
+def residual_causes(
+    *,
+    level_pa: float,
+    budget=None,
+    time_step_s: float | None = None,
+    residual_share: float | None = None,
+    below_ground: int = 0,
+    steep_terrain: bool = False,
+    ground: tuple | None = None,
+    resolution: dict | None = None,
+    friction_alignment: float | None = None,
+    thresholds: Thresholds = Thresholds(),
+) -> list:
     """Likely causes of a large residual, as short sentences (most likely first).
 
     The residual is the tendency minus every resolved term; which of friction,
@@ -638,35 +821,48 @@ def residual_causes(*, level_pa: float, budget=None, time_step_s: float | None =
     near = ground[0] if ground is not None else level_pa >= th.boundary_layer_pa
     large = residual_share is not None and residual_share >= th.friction_share
     if near:
-        where = ground[1] if ground is not None else (f"{level_pa / 100:.0f} hPa is in or near "
-                                                      "the boundary layer")
+        where = (
+            ground[1]
+            if ground is not None
+            else (f"{level_pa / 100:.0f} hPa is in or near the boundary layer")
+        )
         if friction_alignment is not None and friction_alignment < th.friction_alignment:
-            causes.append(f"{where}, where friction is expected, but the residual does not "
-                          "oppose the wind, so it is not mainly friction")
+            causes.append(
+                f"{where}, where friction is expected, but the residual does not "
+                "oppose the wind, so it is not mainly friction"
+            )
         else:
             causes.append(f"{where}, where friction is expected")
     if resolution is not None and resolution.get("resolved") is False:
-        causes.append(f"truncation error: the grid spacing ({resolution['grid_spacing_km']:.0f} "
-                      f"km) is coarse for the flow's length scale "
-                      f"({resolution['flow_length_km']:.0f} km)")
+        causes.append(
+            f"truncation error: the grid spacing ({resolution['grid_spacing_km']:.0f} "
+            f"km) is coarse for the flow's length scale "
+            f"({resolution['flow_length_km']:.0f} km)"
+        )
     if budget is not None:
         if "tendency" in budget.residual_includes:
             causes.append("one time only: the residual holds the local tendency")
         if "vertical_advection" in budget.residual_includes:
             causes.append("no vertical advection: the residual holds it")
     if time_step_s is not None and time_step_s > 6 * 3600:
-        causes.append(f"a time step of {time_step_s / 3600:.0f} h is too coarse to resolve the "
-                      "local tendency")
+        causes.append(
+            f"a time step of {time_step_s / 3600:.0f} h is too coarse to resolve the local tendency"
+        )
     if below_ground:
-        causes.append(f"{below_ground} points lie below the ground (values extrapolated by the "
-                      "model's post-processing)")
+        causes.append(
+            f"{below_ground} points lie below the ground (values extrapolated by the "
+            "model's post-processing)"
+        )
     if steep_terrain:
         causes.append("steep terrain: pressure-level gradients are noisy there")
     if large and not near:
-        causes.append("away from the ground the residual is unexplained imbalance, not friction: "
-                      "sub-grid processes (convection, gravity waves) or numerical error in the "
-                      "data")
+        causes.append(
+            "away from the ground the residual is unexplained imbalance, not friction: "
+            "sub-grid processes (convection, gravity waves) or numerical error in the "
+            "data"
+        )
     elif not causes and large:
-        causes.append("sub-grid processes (convection, gravity waves) or numerical error in the "
-                      "data")
+        causes.append(
+            "sub-grid processes (convection, gravity waves) or numerical error in the data"
+        )
     return causes

@@ -7,8 +7,15 @@ page's ranking, field menu, chart titles and exports all say these words.
 
 from __future__ import annotations
 
-__all__ = ["TERM_NAMES", "BALANCE_NAMES", "SCALE_NAMES", "PRESET_NAMES", "SYSTEM_NAMES",
-           "PART_NAMES", "term_name"]
+__all__ = [
+    "TERM_NAMES",
+    "BALANCE_NAMES",
+    "SCALE_NAMES",
+    "PRESET_NAMES",
+    "SYSTEM_NAMES",
+    "PART_NAMES",
+    "term_name",
+]
 
 #: Terms of the momentum equations and their derived views.
 TERM_NAMES = {
@@ -30,23 +37,39 @@ TERM_NAMES = {
 
 #: Balance classes of a verdict.
 BALANCE_NAMES = {
-    "geostrophic": "Geostrophic", "gradient": "Gradient", "cyclostrophic": "Cyclostrophic",
-    "frictional": "Frictional", "unsteady": "Unsteady", "unbalanced": "Unbalanced",
+    "geostrophic": "Geostrophic",
+    "gradient": "Gradient",
+    "cyclostrophic": "Cyclostrophic",
+    "frictional": "Frictional",
+    "unsteady": "Unsteady",
+    "unbalanced": "Unbalanced",
     "none": "No verdict",
 }
 
 #: Scales of the a priori analysis.
 SCALE_NAMES = {
-    "U": "velocity U", "W": "vertical velocity W", "L": "length L", "H": "depth H",
-    "dP": "pressure difference dP", "rho": "density rho", "lat0": "latitude",
-    "f0": "Coriolis parameter f0", "nu": "viscosity nu", "a": "Earth radius a", "n2": "N^2",
+    "U": "velocity U",
+    "W": "vertical velocity W",
+    "L": "length L",
+    "H": "depth H",
+    "dP": "pressure difference dP",
+    "rho": "density rho",
+    "lat0": "latitude",
+    "f0": "Coriolis parameter f0",
+    "nu": "viscosity nu",
+    "a": "Earth radius a",
+    "n2": "N^2",
 }
 
 #: Scale presets, by their key in balance_core.scales.PRESETS.
 PRESET_NAMES = {
-    "planetary_wave": "Planetary wave", "synoptic_cyclone": "Synoptic cyclone",
-    "front": "Front", "mesoscale_convective_system": "Mesoscale convective system",
-    "tropical_cyclone": "Tropical cyclone", "sea_breeze": "Sea breeze", "tornado": "Tornado",
+    "planetary_wave": "Planetary wave",
+    "synoptic_cyclone": "Synoptic cyclone",
+    "front": "Front",
+    "mesoscale_convective_system": "Mesoscale convective system",
+    "tropical_cyclone": "Tropical cyclone",
+    "sea_breeze": "Sea breeze",
+    "tornado": "Tornado",
     "boundary_layer": "Boundary layer",
 }
 
@@ -56,7 +79,8 @@ SYSTEM_NAMES = {"low": "closed low", "high": "closed high", "jet_streak": "jet s
 
 #: Parts of the ageostrophic wind (balance_core.budget.ageostrophic_parts).
 PART_NAMES = {
-    "tendency": "tendency (local change of the wind)", "inertial_advective": "inertial-advective",
+    "tendency": "tendency (local change of the wind)",
+    "inertial_advective": "inertial-advective",
     "vertical_advection": "vertical advection",
     "remainder": "remainder (curvature, friction, unresolved)",
     "isallobaric": "isallobaric wind (from the height tendency; not one of the parts)",

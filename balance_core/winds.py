@@ -215,8 +215,16 @@ def _gradient_wind_of(grid: Grid, gx, gy) -> GradientWind:
         anomalous = np.where(np.abs(curv) > 0, q / curv, np.nan)
         radius = 1.0 / curv
     tx, ty = -s * ny, s * nx
-    return GradientWind(speed=regular, anomalous=anomalous, u=regular * tx, v=regular * ty,
-                        radius=radius, no_root=no_root & ~flat, tangent_x=tx, tangent_y=ty)
+    return GradientWind(
+        speed=regular,
+        anomalous=anomalous,
+        u=regular * tx,
+        v=regular * ty,
+        radius=radius,
+        no_root=no_root & ~flat,
+        tangent_x=tx,
+        tangent_y=ty,
+    )
 
 
 class Flow:
@@ -339,4 +347,4 @@ class Flow:
         ax, ay = self.advection
         cross = self.u * ay - self.v * ax
         with np.errstate(invalid="ignore", divide="ignore"):
-            return self.speed ** 3 / cross
+            return self.speed**3 / cross

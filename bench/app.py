@@ -31,9 +31,8 @@ import sys
 import time
 
 os.environ.setdefault("PROJ_NETWORK", "OFF")
-import pyproj  # noqa: E402,F401
-
-import numpy as np  # noqa: E402
+import numpy as np
+import pyproj  # noqa: F401
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.join(HERE, "..")
@@ -64,21 +63,34 @@ def global_quarter_degree_case():
         ph = lam - 2e-6 * 6 * 3600 * i
         for k, p in enumerate(levels):
             s = np.log(1e5 / p) / np.log(4)
-            z[i, k] = standard_atmosphere_height(p) - 300 * s * sin ** 2 + \
-                80 * (1 + s) * np.cos(5 * ph) * (2 * sin * cos) ** 2
-            u[i, k] = (10 + 25 * s) * cos ** 2 * (2 * sin) ** 2 + 5 * np.sin(5 * ph) * cos
+            z[i, k] = (
+                standard_atmosphere_height(p)
+                - 300 * s * sin**2
+                + 80 * (1 + s) * np.cos(5 * ph) * (2 * sin * cos) ** 2
+            )
+            u[i, k] = (10 + 25 * s) * cos**2 * (2 * sin) ** 2 + 5 * np.sin(5 * ph) * cos
             v[i, k] = 6 * (1 + s) * np.cos(5 * ph) * cos * sin
             om[i, k] = 0.3 * np.sin(5 * ph) * cos * np.sin(np.pi * (p - 2.5e4) / 7.5e4)
-            t[i, k] = standard_atmosphere_temperature(p) + 25 * (cos ** 2 - 0.5) - 5 * s
+            t[i, k] = standard_atmosphere_temperature(p) + 25 * (cos**2 - 0.5) - 5 * s
     dims = ("time", "level", "y", "x")
     coords = {"time": times, "level": levels}
-    data = {name: xr.DataArray(arr, dims=dims, coords=coords)
-            for name, arr in (("height", z), ("u", u), ("v", v), ("omega", om),
-                              ("temperature", t))}
-    return Case(name="global_quarter_degree", title="synthetic global 0.25-degree case",
-                paths=[], grid=Grid.latlon(lat, lon), times=times.astype("datetime64[ns]"),
-                levels_pa=levels, data=data, surface={}, notes=[], below_ground={},
-                attrs={"suggested_box": "[-20, 20, 35, 60]"})
+    data = {
+        name: xr.DataArray(arr, dims=dims, coords=coords)
+        for name, arr in (("height", z), ("u", u), ("v", v), ("omega", om), ("temperature", t))
+    }
+    return Case(
+        name="global_quarter_degree",
+        title="synthetic global 0.25-degree case",
+        paths=[],
+        grid=Grid.latlon(lat, lon),
+        times=times.astype("datetime64[ns]"),
+        levels_pa=levels,
+        data=data,
+        surface={},
+        notes=[],
+        below_ground={},
+        attrs={"suggested_box": "[-20, 20, 35, 60]"},
+    )
 
 
 def _serialise(models):
@@ -124,8 +136,7 @@ def server_side(library, case_name, boxes, level_cycle, repeat):
         _serialise(sources)
         box_times.append(time.perf_counter() - t0)
     level_times = []
-    chart_sources = [ch.img_src, ch.cont_src, ch.clab_src, ch.vec_src, ch.hover_src,
-                     ev.body]
+    chart_sources = [ch.img_src, ch.cont_src, ch.clab_src, ch.vec_src, ch.hover_src, ev.body]
     for i in range(repeat):
         lev = float(level_cycle[(i + 1) % len(level_cycle)])
         ti = i % case.times.size
@@ -193,16 +204,20 @@ def browser_figures(repeat):
             level_ms = []
             for i in range(repeat):
                 lev = cycle[i % len(cycle)]
-                page.evaluate(f"bdWatch('chart', '.bd-chart-title', {lev!r}); "
-                              f"bdWatch('rank', '.bd-verdict-where', {lev!r})")
+                page.evaluate(
+                    f"bdWatch('chart', '.bd-chart-title', {lev!r}); "
+                    f"bdWatch('rank', '.bd-verdict-where', {lev!r})"
+                )
                 t0 = bb.mark(page)
                 select.select_option(label=lev)
                 level_ms.append(max(bb.seen(page, "chart"), bb.seen(page, "rank")) - t0)
                 page.wait_for_timeout(800)
             out["level_change"] = statistics.median(level_ms)
 
-            canv = max((c.bounding_box() for c in page.locator("canvas").all()
-                        if c.bounding_box()), key=lambda bb_: bb_["width"] * bb_["height"])
+            canv = max(
+                (c.bounding_box() for c in page.locator("canvas").all() if c.bounding_box()),
+                key=lambda bb_: bb_["width"] * bb_["height"],
+            )
             box_ms = []
             for i in range(repeat):
                 fx0 = 0.15 + 0.05 * (i % 6)
@@ -228,7 +243,7 @@ def browser_figures(repeat):
             page2.goto(url + bb.LINK)
             bb.seen(page2, "verdict")
             page2.wait_for_timeout(4000)
-            out["second_session_mb"] = (server.memory_info().rss - rss1) / 2 ** 20
+            out["second_session_mb"] = (server.memory_info().rss - rss1) / 2**20
             b.close()
         return out
     finally:
@@ -241,8 +256,7 @@ def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeat", type=int, default=7)
     ap.add_argument("--no-browser", action="store_true")
-    ap.add_argument("--browser-only", action="store_true",
-                    help="only the figures from the browser")
+    ap.add_argument("--browser-only", action="store_true", help="only the figures from the browser")
     args = ap.parse_args(argv)
     if args.browser_only:
         br = browser_figures(args.repeat)
@@ -254,22 +268,33 @@ def main(argv=None):
 
     samples = sorted(glob.glob(os.path.join(ROOT, "sample_cases", "*.nc")))
     lib = CaseLibrary(samples)
-    cyclone_boxes = [[-52, -28, 38, 56], [-45, -20, 30, 50], [-60, -35, 45, 60],
-                     [-40, -10, 35, 55]]
-    box_s, lev_s = server_side(lib, "ocean_cyclone", cyclone_boxes,
-                               [500, 850, 250, 1000, 700, 300, 925], args.repeat)
+    cyclone_boxes = [[-52, -28, 38, 56], [-45, -20, 30, 50], [-60, -35, 45, 60], [-40, -10, 35, 55]]
+    box_s, lev_s = server_side(
+        lib, "ocean_cyclone", cyclone_boxes, [500, 850, 250, 1000, 700, 300, 925], args.repeat
+    )
     t0 = time.perf_counter()
     big = global_quarter_degree_case()
     build_s = time.perf_counter() - t0
     glib = CaseLibrary.from_cases([big])
-    global_boxes = [[-20, 20, 35, 60], [100, 160, 20, 50], [170, -150, 30, 70],
-                    [-80, -40, -50, -20]]
-    box_g, lev_g = server_side(glib, "global_quarter_degree", global_boxes,
-                               [500, 850, 250, 1000, 700, 300, 925], args.repeat)
+    global_boxes = [
+        [-20, 20, 35, 60],
+        [100, 160, 20, 50],
+        [170, -150, 30, 70],
+        [-80, -40, -50, -20],
+    ]
+    box_g, lev_g = server_side(
+        glib,
+        "global_quarter_degree",
+        global_boxes,
+        [500, 850, 250, 1000, 700, 300, 925],
+        args.repeat,
+    )
     br = None if args.no_browser else browser_figures(args.repeat)
-    print(f"sample case: ocean_cyclone ({lib.get('ocean_cyclone').grid.shape}); synthetic "
-          f"global case {big.grid.shape} x 7 levels x 5 times built in {build_s:.1f} s; "
-          f"median of {args.repeat}")
+    print(
+        f"sample case: ocean_cyclone ({lib.get('ocean_cyclone').grid.shape}); synthetic "
+        f"global case {big.grid.shape} x 7 levels x 5 times built in {build_s:.1f} s; "
+        f"median of {args.repeat}"
+    )
     print(f"  box change, sample:               {box_s:8.1f} ms   (goal < 50)")
     print(f"  box change, global 0.25 deg:      {box_g:8.1f} ms   (goal < 300)")
     print(f"  level change, sample:             {lev_s:8.1f} ms   (goal < 300)")
@@ -280,8 +305,10 @@ def main(argv=None):
         print(f"    page ready, a fresh browser:    {br['page_ready_cold']:8.1f} ms")
         print(f"    level change to chart+ranking:  {br['level_change']:8.1f} ms   (goal < 400)")
         print(f"    drag end to ranking:            {br['box_to_ranking']:8.1f} ms   (goal < 100)")
-        print(f"  second browser session of the same case: {br['second_session_mb']:+.1f} MB "
-              "resident (goal < 20)")
+        print(
+            f"  second browser session of the same case: {br['second_session_mb']:+.1f} MB "
+            "resident (goal < 20)"
+        )
     print(f"figure box_change/sample {box_s:.1f}")
     print(f"figure box_change/global_quarter_degree {box_g:.1f}")
     print(f"figure level_change/sample {lev_s:.1f}")

@@ -46,15 +46,17 @@ import threading
 import time
 
 os.environ.setdefault("PROJ_NETWORK", "OFF")
-import pyproj  # noqa: E402,F401
-
-import numpy as np  # noqa: E402
+import numpy as np
+import pyproj  # noqa: F401
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(HERE)
 sys.path.insert(0, ROOT)
 
-BOXES = [("north atlantic", (-60.0, -10.0, 35.0, 65.0)), ("north pacific", (150.0, -140.0, 30.0, 60.0))]
+BOXES = [
+    ("north atlantic", (-60.0, -10.0, 35.0, 65.0)),
+    ("north pacific", (150.0, -140.0, 30.0, 60.0)),
+]
 LEVELS = [850.0, 500.0, 250.0]
 
 
@@ -79,8 +81,11 @@ def make_archive(folder, n_times):
         z, u, v, om, t = (np.empty(shape, np.float32) for _ in range(5))
         for k, p in enumerate(levels):
             s = np.log(1e3 / p) / np.log(4)
-            z[0, k] = standard_atmosphere_height(p * 100) - 300 * s * sin ** 2 + \
-                80 * (1 + s) * np.cos(5 * ph) * (2 * sin * cos) ** 2
+            z[0, k] = (
+                standard_atmosphere_height(p * 100)
+                - 300 * s * sin**2
+                + 80 * (1 + s) * np.cos(5 * ph) * (2 * sin * cos) ** 2
+            )
             # the wind of the heights (geostrophic; calm within the tropical mask), with a
             # ten per cent ageostrophic part
             ug, vg = geostrophic_wind(grid, z[0, k].astype(np.float64))
@@ -88,21 +93,29 @@ def make_archive(folder, n_times):
             u[0, k] = 0.92 * ug - 0.1 * vg
             v[0, k] = 0.92 * vg + 0.1 * ug
             om[0, k] = 0.3 * np.sin(5 * ph) * cos
-            t[0, k] = standard_atmosphere_temperature(p * 100) + 25 * (cos ** 2 - 0.5) - 5 * s
-        coords = {"time": [t0 + pd.Timedelta(hours=6 * i)], "level": ("level", levels,
-                                                                      {"units": "hPa"}),
-                  "lat": ("lat", lat, {"units": "degrees_north", "standard_name": "latitude"}),
-                  "lon": ("lon", lon, {"units": "degrees_east", "standard_name": "longitude"})}
+            t[0, k] = standard_atmosphere_temperature(p * 100) + 25 * (cos**2 - 0.5) - 5 * s
+        coords = {
+            "time": [t0 + pd.Timedelta(hours=6 * i)],
+            "level": ("level", levels, {"units": "hPa"}),
+            "lat": ("lat", lat, {"units": "degrees_north", "standard_name": "latitude"}),
+            "lon": ("lon", lon, {"units": "degrees_east", "standard_name": "longitude"}),
+        }
         dims = ("time", "level", "lat", "lon")
-        ds = xr.Dataset({
-            "z": (dims, z, {"standard_name": "geopotential_height", "units": "m"}),
-            "u": (dims, u, {"standard_name": "eastward_wind", "units": "m s-1"}),
-            "v": (dims, v, {"standard_name": "northward_wind", "units": "m s-1"}),
-            "w": (dims, om, {"standard_name": "lagrangian_tendency_of_air_pressure",
-                             "units": "Pa s-1"}),
-            "t": (dims, t, {"standard_name": "air_temperature", "units": "K"})},
-            coords=coords, attrs={"title": "synthetic archive for bench/batch.py",
-                                  "source": "synthetic"})
+        ds = xr.Dataset(
+            {
+                "z": (dims, z, {"standard_name": "geopotential_height", "units": "m"}),
+                "u": (dims, u, {"standard_name": "eastward_wind", "units": "m s-1"}),
+                "v": (dims, v, {"standard_name": "northward_wind", "units": "m s-1"}),
+                "w": (
+                    dims,
+                    om,
+                    {"standard_name": "lagrangian_tendency_of_air_pressure", "units": "Pa s-1"},
+                ),
+                "t": (dims, t, {"standard_name": "air_temperature", "units": "K"}),
+            },
+            coords=coords,
+            attrs={"title": "synthetic archive for bench/batch.py", "source": "synthetic"},
+        )
         ds.to_netcdf(os.path.join(folder, f"an_{i:03d}.nc"))
 
 
@@ -142,8 +155,15 @@ def run(files, out, workers, memory_limit=None, sample=False):
             th = threading.Thread(target=watch, args=(list(client.run(os.getpid).values()),))
             th.start()
             try:
-                run_batch(files, LEVELS, out, boxes=BOXES, scheduler=lc.scheduler_address,
-                          say=lambda *a: None, err=lambda *a: None)
+                run_batch(
+                    files,
+                    LEVELS,
+                    out,
+                    boxes=BOXES,
+                    scheduler=lc.scheduler_address,
+                    say=lambda *a: None,
+                    err=lambda *a: None,
+                )
             finally:
                 stop.set()
                 th.join()
@@ -151,17 +171,24 @@ def run(files, out, workers, memory_limit=None, sample=False):
         finally:
             client.close()
             lc.close()
-        return time.perf_counter() - t0, max(peaks.values()) / 2 ** 20, sorted(after - before)
-    run_batch(files, LEVELS, out, boxes=BOXES, workers=workers, memory_limit=memory_limit,
-              say=lambda *a: None, err=lambda *a: None)
+        return time.perf_counter() - t0, max(peaks.values()) / 2**20, sorted(after - before)
+    run_batch(
+        files,
+        LEVELS,
+        out,
+        boxes=BOXES,
+        workers=workers,
+        memory_limit=memory_limit,
+        say=lambda *a: None,
+        err=lambda *a: None,
+    )
     return time.perf_counter() - t0, None, []
 
 
 def steady_rate(out):
     """Pieces a second while the run was going: the part files written after the first,
     over the time from the first to the last (their modification times)."""
-    times = sorted(os.path.getmtime(p) for p in glob.glob(os.path.join(out + ".parts",
-                                                                       "*.json")))
+    times = sorted(os.path.getmtime(p) for p in glob.glob(os.path.join(out + ".parts", "*.json")))
     return (len(times) - 1) / (times[-1] - times[0])
 
 
@@ -208,8 +235,12 @@ def _direct_in_processes(files, n=2, worker_env=True):
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--times", type=int, default=40)
-    ap.add_argument("--rounds", type=int, default=3,
-                    help="pairs of 1-worker and 2-worker runs, one after the other")
+    ap.add_argument(
+        "--rounds",
+        type=int,
+        default=3,
+        help="pairs of 1-worker and 2-worker runs, one after the other",
+    )
     ap.add_argument("--keep", default=None, help="keep the archive in this folder")
     args = ap.parse_args(argv)
     folder = args.keep or tempfile.mkdtemp(prefix="bd-archive-")
@@ -220,48 +251,60 @@ def main(argv=None):
         make_archive(folder, args.times)
         files = sorted(glob.glob(os.path.join(folder, "an_*.nc")))
         print(f"archive made in {time.perf_counter() - t0:.0f} s", file=sys.stderr)
-    size_mb = sum(os.path.getsize(f) for f in files) / 2 ** 20
+    size_mb = sum(os.path.getsize(f) for f in files) / 2**20
     pieces = len(files) * len(LEVELS)
 
     # the reference: the same work in one process with a worker's environment, a file at
     # a time -- opened (and its checksum taken) once, then every piece of it
-    print(f"archive: {len(files)} files, {pieces} pieces (3 levels x {len(files)} times, "
-          f"0.25-degree global), {size_mb:.0f} MB; {os.cpu_count()} cores", flush=True)
+    print(
+        f"archive: {len(files)} files, {pieces} pieces (3 levels x {len(files)} times, "
+        f"0.25-degree global), {size_mb:.0f} MB; {os.cpu_count()} cores",
+        flush=True,
+    )
     direct = _direct_in_processes(files, 1)
-    print(f"  direct calls, 1 process:        {direct:7.1f} s ({direct / pieces:.2f} s a piece)",
-          flush=True)
+    print(
+        f"  direct calls, 1 process:        {direct:7.1f} s ({direct / pieces:.2f} s a piece)",
+        flush=True,
+    )
     direct2 = _direct_in_processes(files, 2)
     print(f"  direct calls, 2 processes:      {direct2:7.1f} s", flush=True)
     out = os.path.join(folder, "result.parquet")
     pairs = []
-    for r in range(args.rounds):
+    for _ in range(args.rounds):
         one, _, _ = run(files, out, 1)
         rate1 = steady_rate(out)
-        print(f"  batch, 1 worker:                {one:7.1f} s ({one / pieces:.2f} s a piece); "
-              f"{rate1:.2f} pieces/s once running", flush=True)
+        print(
+            f"  batch, 1 worker:                {one:7.1f} s ({one / pieces:.2f} s a piece); "
+            f"{rate1:.2f} pieces/s once running",
+            flush=True,
+        )
         two, _, _ = run(files, out, 2)
         rate2 = steady_rate(out)
-        print(f"  batch, 2 workers:               {two:7.1f} s; {rate2:.2f} pieces/s once "
-              f"running; this pair: {rate2 / rate1:.2f}", flush=True)
+        print(
+            f"  batch, 2 workers:               {two:7.1f} s; {rate2:.2f} pieces/s once "
+            f"running; this pair: {rate2 / rate1:.2f}",
+            flush=True,
+        )
         pairs.append((one, rate1, two, rate2))
     # the median pair (by its throughput ratio) gives every figure below
     one, rate1, two, rate2 = sorted(pairs, key=lambda p: p[3] / p[1])[len(pairs) // 2]
     first_one = pairs[0][0]
     here = _direct_in_processes(files, 1, worker_env=False)
-    print(f"  direct calls, 1 process with the band pool on every core: {here:7.1f} s",
-          flush=True)
+    print(f"  direct calls, 1 process with the band pool on every core: {here:7.1f} s", flush=True)
     # unlimited, sampled: what one worker needs
     free, peak_free, _ = run(files, out, 2, memory_limit=0, sample=True)
     print(f"  peak memory of a worker without a limit: {peak_free:.0f} MB", flush=True)
-    limit = int(size_mb / 4 * 2 ** 20)
+    limit = int(size_mb / 4 * 2**20)
     limited, peak, restarts = run(files, out, 2, memory_limit=limit, sample=True)
     import pandas as pd
 
     rows = pd.read_parquet(out)
     errors = pd.read_csv(os.path.splitext(out)[0] + ".errors.csv")
-    print(f"  batch, 2 workers limited to {limit / 2 ** 20:.0f} MB each: {limited:7.1f} s, "
-          f"{len(rows)} rows of {pieces * len(BOXES)}, {len(errors)} pieces not analysed, "
-          f"workers replaced: {len(restarts)}; peak worker memory {peak:.0f} MB")
+    print(
+        f"  batch, 2 workers limited to {limit / 2**20:.0f} MB each: {limited:7.1f} s, "
+        f"{len(rows)} rows of {pieces * len(BOXES)}, {len(errors)} pieces not analysed, "
+        f"workers replaced: {len(restarts)}; peak worker memory {peak:.0f} MB"
+    )
     print(f"figure archive_mb {size_mb:.0f}")
     print(f"figure peak_worker_memory_mb {peak_free:.0f}")
     # throughput: pieces a second from the first piece written to the last (the cluster's

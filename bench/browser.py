@@ -18,8 +18,8 @@ ROOT = os.path.dirname(HERE)
 if os.path.join(ROOT, "tests") not in sys.path:
     sys.path.append(os.path.join(ROOT, "tests"))
 
-from chromium import ARGS, CHROMIUM  # noqa: E402,F401 - Chromium's path and flags, as the tests
 import serving  # noqa: E402
+from chromium import ARGS, CHROMIUM  # noqa: E402,F401 - Chromium's path and flags, as the tests
 
 LINK = "?case=ocean_cyclone&level=500&time=2041-01-19T12%3A00%3A00Z"
 

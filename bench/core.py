@@ -25,12 +25,11 @@ import tracemalloc
 import warnings
 
 os.environ.setdefault("PROJ_NETWORK", "OFF")
-import pyproj  # noqa: E402,F401  (before anything that may load eccodes)
+import numpy as np
+import pyproj  # noqa: F401  (before anything that may load eccodes)
 
-import numpy as np  # noqa: E402
-
-from balance_core import Fields, Grid, _memory, momentum_budget  # noqa: E402
-from balance_core.winds import geostrophic_wind  # noqa: E402
+from balance_core import Fields, Grid, _memory, momentum_budget
+from balance_core.winds import geostrophic_wind
 
 
 def synthetic_level(dtype=np.float64, seed=1):
@@ -45,7 +44,9 @@ def synthetic_level(dtype=np.float64, seed=1):
     for i in range(3):
         for k in range(3):
             s = 1 + 0.01 * i + 0.1 * k
-            u[i, k] = s * (25 * np.cos(phi) ** 2 + 8 * np.sin(4 * lam - 0.1 * i) * np.cos(phi)) + noise(0.5)
+            u[i, k] = s * (
+                25 * np.cos(phi) ** 2 + 8 * np.sin(4 * lam - 0.1 * i) * np.cos(phi)
+            ) + noise(0.5)
             v[i, k] = s * 6 * np.cos(3 * lam + 0.1 * i) * np.cos(phi) + noise(0.5)
             z[i, k] = 5500 + 1500 * (1 - k) + 200 * np.cos(2 * phi) * s + noise(2)
             om[i, k] = 0.2 * np.sin(5 * lam) * np.cos(phi) + noise(0.02)
@@ -115,8 +116,7 @@ def main(argv=None):
     rows.append(("full budget, float32 input", t_bud32))
     t_views = median_ms(lambda: momentum_budget(grid, f64, 1, 1), args.repeat)
     rows.append(("full budget plus derived views (DV/Dt, along-stream, centripetal)", t_views))
-    t_one = median_ms(lambda: momentum_budget(grid, f64, 1, 1, views=False, workers=1),
-                      args.repeat)
+    t_one = median_ms(lambda: momentum_budget(grid, f64, 1, 1, views=False, workers=1), args.repeat)
     rows.append(("full budget in one thread", t_one))
 
     # input: the slices the budget at (time 1, level 1) reads: u and v at five
@@ -130,8 +130,10 @@ def main(argv=None):
     print(f"grid 721 x 1440, 3 times x 3 levels, {os.cpu_count()} cores, median of {args.repeat}")
     for name, ms in rows:
         print(f"  {name:<70} {ms:8.1f} ms")
-    print(f"  peak traced memory of the budget with views, float64: {peak / 2**20:.0f} MiB "
-          f"for {input_bytes / 2**20:.0f} MiB of input slices")
+    print(
+        f"  peak traced memory of the budget with views, float64: {peak / 2**20:.0f} MiB "
+        f"for {input_bytes / 2**20:.0f} MiB of input slices"
+    )
     print(f"  same with float32 input: {peak32 / 2**20:.0f} MiB for {input32 / 2**20:.0f} MiB")
     print(f"ratio full_budget_with_views/metpy_geostrophic_wind {t_views / t_metpy:.3f}")
     print(f"ratio full_budget_float32/metpy_geostrophic_wind {t_bud32 / t_metpy:.3f}")

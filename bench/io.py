@@ -42,9 +42,8 @@ import tempfile
 import time
 
 os.environ.setdefault("PROJ_NETWORK", "OFF")
-import pyproj  # noqa: E402  (before eccodes)
-
-import numpy as np  # noqa: E402
+import numpy as np
+import pyproj
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(HERE)
@@ -75,11 +74,13 @@ def make_file(path):
     from gribwrite import write_grib2
     from makedata import truth
 
-    crs = pyproj.CRS.from_proj4("+proj=lcc +lat_1=25 +lat_2=25 +lat_0=25 +lon_0=265 "
-                                "+R=6371229 +units=m")
+    crs = pyproj.CRS.from_proj4(
+        "+proj=lcc +lat_1=25 +lat_2=25 +lat_0=25 +lon_0=265 +R=6371229 +units=m"
+    )
     to_geo = pyproj.Transformer.from_crs(crs, crs.geodetic_crs, always_xy=True)
     x0, y0 = pyproj.Transformer.from_crs(crs.geodetic_crs, crs, always_xy=True).transform(
-        -133.459, 12.19)
+        -133.459, 12.19
+    )
     x = x0 + DX * np.arange(NX)
     y = y0 + DX * np.arange(NY)
     X, Y = np.meshgrid(x, y)
@@ -99,19 +100,45 @@ def make_file(path):
     z10, u10, v10, _, t2 = truth(lat, lon, 1000.0, 0.0)
     cloud = np.where(np.sin(np.deg2rad(5 * lon)) > 0.3, 40000.0, -50000.0)
     single = {
-        ("pres", "surface"): one(sp), ("prmsl", "meanSea"): one(101300.0 + 0 * sp),
-        ("pres", "cloudTop"): one(cloud), ("gh", "cloudTop"): one(7000.0 + 0 * sp),
-        ("pres", "tropopause"): one(25000.0 + 0 * sp), ("gh", "tropopause"): one(10500 + 0 * sp),
-        ("t", "tropopause"): one(215.0 + 0 * sp), ("u", "tropopause"): one(0.8 * u10),
-        ("v", "tropopause"): one(0.8 * v10), ("u", "10m"): one(0.6 * u10),
-        ("v", "10m"): one(0.6 * v10), ("t", "2m"): one(t2 + 2.0), ("r", "2m"): one(60 + 0 * sp),
-        ("t", "surface"): one(t2 + 3.0), ("tke", "surface"): one(0.5 + 0 * sp),
+        ("pres", "surface"): one(sp),
+        ("prmsl", "meanSea"): one(101300.0 + 0 * sp),
+        ("pres", "cloudTop"): one(cloud),
+        ("gh", "cloudTop"): one(7000.0 + 0 * sp),
+        ("pres", "tropopause"): one(25000.0 + 0 * sp),
+        ("gh", "tropopause"): one(10500 + 0 * sp),
+        ("t", "tropopause"): one(215.0 + 0 * sp),
+        ("u", "tropopause"): one(0.8 * u10),
+        ("v", "tropopause"): one(0.8 * v10),
+        ("u", "10m"): one(0.6 * u10),
+        ("v", "10m"): one(0.6 * v10),
+        ("t", "2m"): one(t2 + 2.0),
+        ("r", "2m"): one(60 + 0 * sp),
+        ("t", "surface"): one(t2 + 3.0),
+        ("tke", "surface"): one(0.5 + 0 * sp),
     }
-    grid = dict(kind="lambert", lat_first=float(lat[0, 0]), lon_first=float(lon[0, 0]),
-                dx=DX, dy=DX, lad=25.0, lov=265.0, latin1=25.0, latin2=25.0)
+    grid = dict(
+        kind="lambert",
+        lat_first=float(lat[0, 0]),
+        lon_first=float(lon[0, 0]),
+        dx=DX,
+        dy=DX,
+        lad=25.0,
+        lov=265.0,
+        latin1=25.0,
+        latin2=25.0,
+    )
     # NCEP's own packing of such output: complex packing with spatial differencing
-    write_grib2(path, grid, f, levels, [(20041209, 12)], uv_relative=True, single=single,
-                packing="grid_complex_spatial_differencing", bits=12)
+    write_grib2(
+        path,
+        grid,
+        f,
+        levels,
+        [(20041209, 12)],
+        uv_relative=True,
+        single=single,
+        packing="grid_complex_spatial_differencing",
+        bits=12,
+    )
     return len(levels) * len(f) + len(single)
 
 
@@ -133,8 +160,9 @@ def pair(path, repeat):
         script = fh.name
     try:
         ref = wall([exe, script, path], repeat)
-        ours = wall([exe, "-m", "app.cli", "analyze", path, "--level", "500", "--format",
-                     "json"], repeat)
+        ours = wall(
+            [exe, "-m", "app.cli", "analyze", path, "--level", "500", "--format", "json"], repeat
+        )
     finally:
         os.unlink(script)
     return ref, ours
@@ -165,22 +193,27 @@ def main(argv=None) -> int:
         n = make_file(path)
         size = os.path.getsize(path) / 2**20
         ref, ours = pair(path, args.repeat)
-        print(f"regional GRIB2, {NX} x {NY} Lambert, {n} messages on 10 kinds of level, "
-              f"{size:.1f} MiB; median of {args.repeat} whole processes")
+        print(
+            f"regional GRIB2, {NX} x {NY} Lambert, {n} messages on 10 kinds of level, "
+            f"{size:.1f} MiB; median of {args.repeat} whole processes"
+        )
         print(f"  eccodes: open and decode every message   {1000 * ref:8.0f} ms")
         print(f"  balance-desk analyze --level 500         {1000 * ours:8.0f} ms")
         lines.append(f"ratio analyze_grib/eccodes_decode {ours / ref:.2f}")
         refused, small = huge_refusal(tmp, args.repeat)
         print("a 300 kB NetCDF4 file declaring a 100000 x 100000 grid, refused from its metadata")
-        print(f"  balance-desk analyze (exit 2)            {1000 * refused:8.0f} ms"
-              "   (goal < 2000)")
+        print(
+            f"  balance-desk analyze (exit 2)            {1000 * refused:8.0f} ms   (goal < 2000)"
+        )
         print(f"  balance-desk analyze, smallest sample    {1000 * small:8.0f} ms")
         lines.append(f"ratio refuse_huge_file/analyze_small_sample {refused / small:.2f}")
     eta = os.path.join(ROOT, ".cache", "pygrib-samples", "eta.grb")
     if os.path.exists(eta):
         ref, ours = pair(eta, args.repeat)
-        print(f"real NCEP Eta sample (pygrib 2.1.8 sampledata), 93 x 65, 181 fields, "
-              f"{os.path.getsize(eta) / 2**20:.1f} MiB")
+        print(
+            f"real NCEP Eta sample (pygrib 2.1.8 sampledata), 93 x 65, 181 fields, "
+            f"{os.path.getsize(eta) / 2**20:.1f} MiB"
+        )
         print(f"  eccodes: open and decode every message   {1000 * ref:8.0f} ms")
         print(f"  balance-desk analyze --level 500         {1000 * ours:8.0f} ms")
         lines.insert(0, f"ratio analyze_grib_eta_sample/eccodes_decode {ours / ref:.2f}")

@@ -37,7 +37,7 @@ import time
 import urllib.request
 
 os.environ.setdefault("PROJ_NETWORK", "OFF")
-import pyproj  # noqa: E402,F401
+import pyproj  # noqa: F401
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(HERE)
@@ -48,8 +48,16 @@ sys.path.append(os.path.join(ROOT, "tests"))
 from browser import ARGS, CHROMIUM, LINK, page_ready, set_box, start_server  # noqa: E402
 from wire_page import WirePage  # noqa: E402
 
-BOXES = [(-52, -28, 38, 56), (-45, -20, 30, 50), (-60, -35, 45, 60), (-40, -10, 35, 55),
-         (-30, -5, 40, 52), (-55, -45, 30, 40), (-20, 0, 45, 60), (-65, -40, 28, 42)]
+BOXES = [
+    (-52, -28, 38, 56),
+    (-45, -20, 30, 50),
+    (-60, -35, 45, 60),
+    (-40, -10, 35, 55),
+    (-30, -5, 40, 52),
+    (-55, -45, 30, 40),
+    (-20, 0, 45, 60),
+    (-65, -40, 28, 42),
+]
 
 
 def _state(box):
@@ -68,8 +76,9 @@ def expected(box):
     from app import compute, vocab
     from app.library import CaseLibrary
 
-    lib = expected.__dict__.setdefault("lib", CaseLibrary(
-        sorted(glob.glob(os.path.join(ROOT, "sample_cases", "*.nc")))))
+    lib = expected.__dict__.setdefault(
+        "lib", CaseLibrary(sorted(glob.glob(os.path.join(ROOT, "sample_cases", "*.nc"))))
+    )
     st = _state(box)
     want = compute.box_data(lib, st)
     return st.region_text(), vocab.balance_name(want["verdict"]["balance"])
@@ -90,21 +99,24 @@ def hammer_wire(url, seconds, n_sessions, result, ready):
             n += 1
             deadline = time.perf_counter() + 30
             while time.perf_counter() < deadline and not any(
-                    region in where for _, where in w.log[seen:]):
+                region in where for _, where in w.log[seen:]
+            ):
                 await asyncio.sleep(0.01)
         return n
 
     async def main():
-        pages = [await WirePage(url + LINK, agent=f"hammer {i + 1}").open()
-                 for i in range(n_sessions)]
+        pages = [
+            await WirePage(url + LINK, agent=f"hammer {i + 1}").open() for i in range(n_sessions)
+        ]
         readers = [asyncio.ensure_future(w.run()) for w in pages]
         while not all(w.log for w in pages):
             await asyncio.sleep(0.05)
         ready.set()
         last = [None] * n_sessions
         t_end = time.perf_counter() + seconds
-        counts = await asyncio.gather(*(session(w, random.Random(7 + i), t_end, last, i)
-                                        for i, w in enumerate(pages)))
+        counts = await asyncio.gather(
+            *(session(w, random.Random(7 + i), t_end, last, i) for i, w in enumerate(pages))
+        )
         right, t0 = 0, time.perf_counter()
         for w, box in zip(pages, last):
             region, name = expected(box)
@@ -176,8 +188,11 @@ def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--seconds", type=float, default=30.0)
     ap.add_argument("--repeat", type=int, default=3)
-    ap.add_argument("--browsers", action="store_true",
-                    help="hammer from 6 Chromium pages on this machine instead of the wire")
+    ap.add_argument(
+        "--browsers",
+        action="store_true",
+        help="hammer from 6 Chromium pages on this machine instead of the wire",
+    )
     args = ap.parse_args(argv)
     from playwright.sync_api import sync_playwright
 
@@ -189,12 +204,15 @@ def main(argv=None):
             idle = statistics.median(page_ready(b, url) for _ in range(args.repeat))
             print(f"idle: {idle:.2f} s", file=sys.stderr, flush=True)
             result, ready, stop, counts = {}, threading.Event(), threading.Event(), []
-            h = threading.Thread(target=hammer if args.browsers else hammer_wire,
-                                 args=(url, args.seconds, 6, result, ready))
+            h = threading.Thread(
+                target=hammer if args.browsers else hammer_wire,
+                args=(url, args.seconds, 6, result, ready),
+            )
             h.start()
             ready.wait(timeout=300)
-            fetchers = [threading.Thread(target=fetch_loop, args=(url, stop, counts))
-                        for _ in range(4)]
+            fetchers = [
+                threading.Thread(target=fetch_loop, args=(url, stop, counts)) for _ in range(4)
+            ]
             for f in fetchers:
                 f.start()
             time.sleep(min(5.0, args.seconds / 4))
@@ -216,16 +234,22 @@ def main(argv=None):
     finally:
         proc.terminate()
         proc.wait(timeout=30)
-    print(f"sample case ocean_cyclone, {os.cpu_count()} cores; new user's page from navigation "
-          f"to verdict, median of {args.repeat}")
+    print(
+        f"sample case ocean_cyclone, {os.cpu_count()} cores; new user's page from navigation "
+        f"to verdict, median of {args.repeat}"
+    )
     print(f"  idle server:                          {1000 * idle:8.0f} ms")
     who = "Chromium pages on this machine" if args.browsers else "sessions on the wire"
-    print(f"  under load ({args.seconds:.0f} s of 6 {who} hammering "
-          f"boxes, 4 clients fetching the page): {1000 * load:8.0f} ms "
-          f"(each: {', '.join(f'{1000 * x:.0f}' for x in loaded)})")
+    print(
+        f"  under load ({args.seconds:.0f} s of 6 {who} hammering "
+        f"boxes, 4 clients fetching the page): {1000 * load:8.0f} ms "
+        f"(each: {', '.join(f'{1000 * x:.0f}' for x in loaded)})"
+    )
     print(f"  box changes made: {result.get('changes')}; plain page fetches: {sum(counts)}")
-    print(f"  sessions showing the right final verdict: {result.get('right')} of 6 "
-          f"(all settled {result.get('settle_s', float('nan')):.1f} s after the load)")
+    print(
+        f"  sessions showing the right final verdict: {result.get('right')} of 6 "
+        f"(all settled {result.get('settle_s', float('nan')):.1f} s after the load)"
+    )
     print(f"figure new_user_under_load/idle {load / idle:.2f}")
     return 0 if result.get("right") == 6 else 1
 

@@ -24,9 +24,8 @@ import sys
 import time
 
 os.environ.setdefault("PROJ_NETWORK", "OFF")
-import pyproj  # noqa: E402,F401
-
-import numpy as np  # noqa: E402
+import numpy as np
+import pyproj  # noqa: F401
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 sys.path.insert(0, os.path.dirname(HERE))
@@ -54,12 +53,11 @@ def global_level():
         lo = rng.uniform(0, 360)
         amp = rng.uniform(150, 400) * (1 if i % 3 else -1)
         r = great_circle_distance(la, lo, g.lat, g.lon, g.radius)
-        z = z - amp * np.exp(-(r / rng.uniform(4e5, 1.2e6)) ** 2)
+        z = z - amp * np.exp(-((r / rng.uniform(4e5, 1.2e6)) ** 2))
     ug, vg = geostrophic_wind(g, z)
     u = np.nan_to_num(ug)
     v = np.nan_to_num(vg)
-    fields = Fields(u=u[None, None], v=v[None, None], height=z[None, None],
-                    pressure=np.array([P]))
+    fields = Fields(u=u[None, None], v=v[None, None], height=z[None, None], pressure=np.array([P]))
     return g, level_diagnostics(g, fields, 0, 0)
 
 
@@ -85,8 +83,10 @@ def main(argv=None):
     verdicts = {}
     for r in reports:
         verdicts[r["verdict"]["balance"]] = verdicts.get(r["verdict"]["balance"], 0) + 1
-    print(f"{g.shape[0]} x {g.shape[1]} global level built in {built:.1f} s; {os.cpu_count()} "
-          f"cores; median of {args.repeat}")
+    print(
+        f"{g.shape[0]} x {g.shape[1]} global level built in {built:.1f} s; {os.cpu_count()} "
+        f"cores; median of {args.repeat}"
+    )
     print(f"  systems found: {len(found)} ({kinds}); verdicts {verdicts}")
     print(f"  finding them and a report for each: {ms:8.1f} ms (goal < 1000)")
     print(f"  one report of a 20-degree box:      {ref_ms:8.1f} ms")

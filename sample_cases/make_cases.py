@@ -40,18 +40,36 @@ import numpy as np
 
 # the cases use the project's constants (facts, not code under test)
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."))
-from balance_core import constants as C  # noqa: E402
-from balance_core.thermo import standard_atmosphere_height  # noqa: E402
+from balance_core import constants as C
+from balance_core.thermo import standard_atmosphere_height
 
 OUT_LEVELS = np.array([1000.0, 925.0, 850.0, 700.0, 500.0, 300.0, 250.0])  # hPa
 #: the sea breeze is shallow: it also gets the extra lower levels that global models
 #: publish, so that its vertical derivatives are resolved
-BREEZE_LEVELS = np.array([1000.0, 975.0, 950.0, 925.0, 900.0, 875.0, 850.0, 800.0, 750.0,
-                          700.0, 650.0, 600.0, 500.0, 300.0, 250.0])
+BREEZE_LEVELS = np.array(
+    [
+        1000.0,
+        975.0,
+        950.0,
+        925.0,
+        900.0,
+        875.0,
+        850.0,
+        800.0,
+        750.0,
+        700.0,
+        650.0,
+        600.0,
+        500.0,
+        300.0,
+        250.0,
+    ]
+)
 A, OMEGA, G, RD = C.EARTH_RADIUS, C.OMEGA, C.G0, C.R_DRY
 
 
 # -- grid helpers (numpy.gradient: independent of balance_core.grid) -----------------
+
 
 class Sphere:
     """Spherical derivatives on a lat-lon grid with numpy.gradient (second order)."""
@@ -102,19 +120,28 @@ def omega_from_continuity(div, p_pa, axis=0):
     """omega(p) = -integral from the top p[0] to p of div dp (omega = 0 at the top)."""
     d = np.moveaxis(div, axis, 0)
     dp = np.diff(p_pa).reshape((-1,) + (1,) * (d.ndim - 1))
-    cum = np.concatenate([np.zeros((1,) + d.shape[1:]),
-                          np.cumsum(0.5 * (d[1:] + d[:-1]) * dp, axis=0)])
+    cum = np.concatenate(
+        [np.zeros((1,) + d.shape[1:]), np.cumsum(0.5 * (d[1:] + d[:-1]) * dp, axis=0)]
+    )
     return np.moveaxis(-cum, 0, axis)
 
 
 # -- case 1: mid-latitude ocean cyclone ------------------------------------------------
 
 CYCLONE = dict(
-    lat=(25.0, 65.0), lon=(-70.0, 0.0), step=0.5,
-    start="2041-01-19T00:00", hours=6, ntimes=5,
-    centre_lat=47.0, centre_lon=-42.0, drift_ms=10.0,  # eastward drift at the centre latitude
-    jet_lat=42.0, jet_width_deg=10.0,
-    drag_per_s=1.0 / (6 * 3600.0), drag_depth_hpa=110.0,
+    lat=(25.0, 65.0),
+    lon=(-70.0, 0.0),
+    step=0.5,
+    start="2041-01-19T00:00",
+    hours=6,
+    ntimes=5,
+    centre_lat=47.0,
+    centre_lon=-42.0,
+    drift_ms=10.0,  # eastward drift at the centre latitude
+    jet_lat=42.0,
+    jet_width_deg=10.0,
+    drag_per_s=1.0 / (6 * 3600.0),
+    drag_depth_hpa=110.0,
 )
 
 
@@ -136,7 +163,7 @@ def cyclone_height(S, p_hpa, t_s, cfg=CYCLONE):
 def drag_rate(p_hpa, cfg):
     """Rayleigh drag rate 1/tau (s-1) at each pressure: strongest at 1000 hPa, none aloft."""
     p = np.asarray(p_hpa, float)
-    return cfg["drag_per_s"] * np.exp(-((1000.0 - p) / cfg["drag_depth_hpa"]) ** 2)
+    return cfg["drag_per_s"] * np.exp(-(((1000.0 - p) / cfg["drag_depth_hpa"]) ** 2))
 
 
 def balanced_wind(S, z, p_hpa, omega_c, rate, *, iterations=12):
@@ -192,46 +219,62 @@ def make_cyclone(cfg=CYCLONE):
     """The ocean-cyclone fields on the output grid; also the exact tendency."""
     out_lat = np.arange(cfg["lat"][1], cfg["lat"][0] - 1e-9, -cfg["step"])
     out_lon = np.arange(cfg["lon"][0], cfg["lon"][1] + 1e-9, cfg["step"])
-    fine = Sphere(np.arange(cfg["lat"][1], cfg["lat"][0] - 1e-9, -cfg["step"] / 2),
-                  np.arange(cfg["lon"][0], cfg["lon"][1] + 1e-9, cfg["step"] / 2))
+    fine = Sphere(
+        np.arange(cfg["lat"][1], cfg["lat"][0] - 1e-9, -cfg["step"] / 2),
+        np.arange(cfg["lon"][0], cfg["lon"][1] + 1e-9, cfg["step"] / 2),
+    )
     p_fine = np.arange(150.0, 1000.0 + 1e-9, 25.0)  # top first: omega = 0 at 150 hPa
     kk = [int(np.nonzero(np.isclose(p_fine, p))[0][0]) for p in OUT_LEVELS]
     times = _times(cfg)
     fields = {k: [] for k in ("height", "u", "v", "omega", "temperature", "tend_u", "tend_v")}
     for t in times["seconds"]:
         z, omega_c = cyclone_height(fine, p_fine, t, cfg)
-        u, v, om, temp, tu, tv, change = balanced_wind(fine, z, p_fine, omega_c,
-                                                       drag_rate(p_fine, cfg))
+        u, v, om, temp, tu, tv, change = balanced_wind(
+            fine, z, p_fine, omega_c, drag_rate(p_fine, cfg)
+        )
         for name, arr in zip(fields, (z, u, v, om, temp, tu, tv)):
             fields[name].append(arr[kk][:, ::2, ::2])
     data = {k: np.stack(v) for k, v in fields.items()}
-    data.update(sea_level_fields(data["height"][:, 0], data["temperature"][:, 0],
-                                 data["u"][:, 0], data["v"][:, 0]))
+    data.update(
+        sea_level_fields(
+            data["height"][:, 0], data["temperature"][:, 0], data["u"][:, 0], data["v"][:, 0]
+        )
+    )
     rate = drag_rate(OUT_LEVELS, cfg)
     box = [-52.0, -28.0, 38.0, 56.0]
     attrs = {
         "title": "Invented ocean cyclone under a westerly jet (synthetic sample case)",
-        "how_made": ("height prescribed: U.S. Standard Atmosphere 1976 heights, a zonal jet "
-                     "(tanh in latitude, deepening with height) and a Gaussian low 1000 km wide "
-                     "drifting east at 10 m/s along 47N; wind from iterating both momentum "
-                     "equations to convergence on a grid twice as fine; omega from continuity "
-                     "(zero at 150 hPa); temperature from the hypsometric relation"),
-        "friction": ("Rayleigh drag F = -V / tau with 1/tau = (1/6 h) exp(-((1000 - p) / "
-                     "110 hPa)^2): strongest at 1000 hPa, negligible above 800 hPa"),
+        "how_made": (
+            "height prescribed: U.S. Standard Atmosphere 1976 heights, a zonal jet "
+            "(tanh in latitude, deepening with height) and a Gaussian low 1000 km wide "
+            "drifting east at 10 m/s along 47N; wind from iterating both momentum "
+            "equations to convergence on a grid twice as fine; omega from continuity "
+            "(zero at 150 hPa); temperature from the hypsometric relation"
+        ),
+        "friction": (
+            "Rayleigh drag F = -V / tau with 1/tau = (1/6 h) exp(-((1000 - p) / "
+            "110 hPa)^2): strongest at 1000 hPa, negligible above 800 hPa"
+        ),
         "friction_rate_per_level_s-1": json.dumps(dict(zip(map(str, OUT_LEVELS), rate.tolist()))),
-        "pattern_angular_speed_rad_s-1": f"{cfg['drift_ms'] / (A * np.cos(np.deg2rad(cfg['centre_lat']))):.6e}",
+        "pattern_angular_speed_rad_s-1": (
+            f"{cfg['drift_ms'] / (A * np.cos(np.deg2rad(cfg['centre_lat']))):.6e}"
+        ),
         "suggested_box": json.dumps(box),
-        "expected_verdicts": json.dumps([
-            {"level_hpa": 500, "time_index": 2, "box": box, "balance": "geostrophic"},
-            {"level_hpa": 1000, "time_index": 2, "box": box, "balance": "frictional"},
-            {"level_hpa": "msl", "time_index": 2, "box": box, "balance": "frictional"},
-        ]),
+        "expected_verdicts": json.dumps(
+            [
+                {"level_hpa": 500, "time_index": 2, "box": box, "balance": "geostrophic"},
+                {"level_hpa": 1000, "time_index": 2, "box": box, "balance": "frictional"},
+                {"level_hpa": "msl", "time_index": 2, "box": box, "balance": "frictional"},
+            ]
+        ),
         "free_atmosphere_levels_hpa": json.dumps([700, 500, 300, 250]),
         "friction_levels_hpa": json.dumps([1000]),
-        "sea_level": ("sea-level pressure from the 1000 hPa height and temperature through the "
-                      "hypsometric relation; the 10 m wind is the 1000 hPa wind (the ocean "
-                      "lies about 100 m below that level); 2 m temperature from the 1000 hPa "
-                      "temperature with a 6.5 K/km lapse rate"),
+        "sea_level": (
+            "sea-level pressure from the 1000 hPa height and temperature through the "
+            "hypsometric relation; the 10 m wind is the 1000 hPa wind (the ocean "
+            "lies about 100 m below that level); 2 m temperature from the 1000 hPa "
+            "temperature with a 6.5 K/km lapse rate"
+        ),
         "scale_preset": "synoptic_cyclone",
     }
     return out_lat, out_lon, times, data, attrs
@@ -241,24 +284,36 @@ def sea_level_fields(z1000, t1000, u1000, v1000):
     """Sea-level pressure (Pa), 10 m wind and 2 m temperature of the invented ocean case:
     p = 1000 hPa exp(g Z / (R_d T)) at the 1000 hPa height Z, the 1000 hPa wind as the 10 m
     wind, and T + 6.5 K/km Z as the 2 m temperature."""
-    return {"msl": 1.0e5 * np.exp(G * z1000 / (RD * t1000)), "u10": u1000, "v10": v1000,
-            "t2m": t1000 + 0.0065 * z1000}
+    return {
+        "msl": 1.0e5 * np.exp(G * z1000 / (RD * t1000)),
+        "u10": u1000,
+        "v10": v1000,
+        "t2m": t1000 + 0.0065 * z1000,
+    }
 
 
 # -- case 2: tropical cyclone ---------------------------------------------------------
 
 TROPICAL = dict(
-    lat=(13.0, 23.0), lon=(140.0, 150.0), step=0.1,
-    start="2038-09-04T00:00", hours=3, ntimes=5,
-    centre_lat=18.0, centre_lon=146.0, steering_ms=-1.5,  # solid-body easterlies at the equator
-    vmax_ms=50.0, rmax_km=45.0, shape=0.6,
+    lat=(13.0, 23.0),
+    lon=(140.0, 150.0),
+    step=0.1,
+    start="2038-09-04T00:00",
+    hours=3,
+    ntimes=5,
+    centre_lat=18.0,
+    centre_lon=146.0,
+    steering_ms=-1.5,  # solid-body easterlies at the equator
+    vmax_ms=50.0,
+    rmax_km=45.0,
+    shape=0.6,
 )
 
 
 def vortex_speed(r, vmax, rmax, a):
     """Tangential speed v = Vmax x exp((1 - x^a) / a), x = r / R_max (maximum Vmax at R_max)."""
     x = r / rmax
-    return vmax * x * np.exp((1.0 - x ** a) / a)
+    return vmax * x * np.exp((1.0 - x**a) / a)
 
 
 def tropical_wind(S, p_hpa, t_s, cfg=TROPICAL):
@@ -345,8 +400,10 @@ class PotentialFit:
 def make_tropical(cfg=TROPICAL):
     out_lat = np.arange(cfg["lat"][1], cfg["lat"][0] - 1e-9, -cfg["step"])
     out_lon = np.arange(cfg["lon"][0], cfg["lon"][1] + 1e-9, cfg["step"])
-    fine = Sphere(np.arange(cfg["lat"][1], cfg["lat"][0] - 1e-9, -cfg["step"] / 2),
-                  np.arange(cfg["lon"][0], cfg["lon"][1] + 1e-9, cfg["step"] / 2))
+    fine = Sphere(
+        np.arange(cfg["lat"][1], cfg["lat"][0] - 1e-9, -cfg["step"] / 2),
+        np.arange(cfg["lon"][0], cfg["lon"][1] + 1e-9, cfg["step"] / 2),
+    )
     fitter = PotentialFit(fine)
     half = 12.5  # hPa either side of each output level, for the hypsometric temperature
     p_fine = np.sort(np.concatenate([OUT_LEVELS - half, OUT_LEVELS, OUT_LEVELS + half]))
@@ -370,32 +427,51 @@ def make_tropical(cfg=TROPICAL):
         temp = temperature_from_height(z, p_fine)
         pick = [int(np.nonzero(np.isclose(p_fine, p))[0][0]) for p in OUT_LEVELS]
         zero = np.zeros_like(u[pick])
-        arrays = (z[pick], u[pick], v[pick], zero, temp[pick],
-                  -c * fine.ddx(u[pick]), -c * fine.ddx(v[pick]))
+        arrays = (
+            z[pick],
+            u[pick],
+            v[pick],
+            zero,
+            temp[pick],
+            -c * fine.ddx(u[pick]),
+            -c * fine.ddx(v[pick]),
+        )
         for name, arr in zip(keep, arrays):
             keep[name].append(arr[:, ::2, ::2])
     data = {k: np.stack(v) for k, v in keep.items()}
     lon_mid = cfg["centre_lon"] + np.rad2deg(cfg["steering_ms"] / A * times["seconds"][2])
-    core = [round(lon_mid - 0.6, 2), round(lon_mid + 0.6, 2), cfg["centre_lat"] - 0.6,
-            cfg["centre_lat"] + 0.6]
-    outer = [round(lon_mid + 1.5, 2), round(lon_mid + 3.5, 2), cfg["centre_lat"] - 1.0,
-             cfg["centre_lat"] + 1.0]
+    core = [
+        round(lon_mid - 0.6, 2),
+        round(lon_mid + 0.6, 2),
+        cfg["centre_lat"] - 0.6,
+        cfg["centre_lat"] + 0.6,
+    ]
+    outer = [
+        round(lon_mid + 1.5, 2),
+        round(lon_mid + 3.5, 2),
+        cfg["centre_lat"] - 1.0,
+        cfg["centre_lat"] + 1.0,
+    ]
     attrs = {
         "title": "Invented tropical cyclone in easterly steering flow (synthetic sample case)",
-        "how_made": ("wind prescribed: a tangential vortex (Vmax 50 m/s at 1000 hPa weakening "
-                     "upward, radius of maximum wind 45 km widening upward) drifting slowly west "
-                     "in solid-body easterlies; height from the least-squares potential of the "
-                     "force the wind needs (advection relative to the drifting pattern, Coriolis, "
-                     "metric terms), on a grid twice as fine; temperature from the hypsometric "
-                     "relation; no secondary circulation, so omega is zero"),
+        "how_made": (
+            "wind prescribed: a tangential vortex (Vmax 50 m/s at 1000 hPa weakening "
+            "upward, radius of maximum wind 45 km widening upward) drifting slowly west "
+            "in solid-body easterlies; height from the least-squares potential of the "
+            "force the wind needs (advection relative to the drifting pattern, Coriolis, "
+            "metric terms), on a grid twice as fine; temperature from the hypsometric "
+            "relation; no secondary circulation, so omega is zero"
+        ),
         "friction": "none",
         "friction_rate_per_level_s-1": json.dumps({str(p): 0.0 for p in OUT_LEVELS}),
         "pattern_angular_speed_rad_s-1": f"{cfg['steering_ms'] / A:.6e}",
         "suggested_box": json.dumps(core),
-        "expected_verdicts": json.dumps([
-            {"level_hpa": 850, "time_index": 2, "box": core, "balance": "cyclostrophic"},
-            {"level_hpa": 850, "time_index": 2, "box": outer, "balance": "gradient"},
-        ]),
+        "expected_verdicts": json.dumps(
+            [
+                {"level_hpa": 850, "time_index": 2, "box": core, "balance": "cyclostrophic"},
+                {"level_hpa": 850, "time_index": 2, "box": outer, "balance": "gradient"},
+            ]
+        ),
         "free_atmosphere_levels_hpa": json.dumps([850, 700, 500]),
         "friction_levels_hpa": json.dumps([]),
         "scale_preset": "tropical_cyclone",
@@ -406,11 +482,20 @@ def make_tropical(cfg=TROPICAL):
 # -- case 3: sea breeze --------------------------------------------------------------
 
 SEA_BREEZE = dict(
-    lat=(24.0, 26.0), lon=(-31.5, -28.5), step=0.03,
-    start="2039-06-21T09:00", hours=3, ntimes=5,
-    coast_lon=-30.0, width_km=20.0, peak_ms=8.0, onset_hours=3.0, period_hours=16.0,
+    lat=(24.0, 26.0),
+    lon=(-31.5, -28.5),
+    step=0.03,
+    start="2039-06-21T09:00",
+    hours=3,
+    ntimes=5,
+    coast_lon=-30.0,
+    width_km=20.0,
+    peak_ms=8.0,
+    onset_hours=3.0,
+    period_hours=16.0,
     depth_hpa=150.0,
-    drag_per_s=1.0 / 3600.0, mixed_layer_top_hpa=780.0,
+    drag_per_s=1.0 / 3600.0,
+    mixed_layer_top_hpa=780.0,
 )
 
 
@@ -448,7 +533,7 @@ def make_sea_breeze(cfg=SEA_BREEZE):
     times = _times(cfg)
     phi0 = np.deg2rad(0.5 * sum(cfg["lat"]))
     x = A * np.cos(phi0) * np.deg2rad(lon - cfg["coast_lon"])  # distance from the coast (m)
-    X = np.exp(-(x / (cfg["width_km"] * 1e3)) ** 2)
+    X = np.exp(-((x / (cfg["width_km"] * 1e3)) ** 2))
     dXdx = -2 * x / (cfg["width_km"] * 1e3) ** 2 * X
     P = breeze_profile(p_fine, cfg["depth_hpa"])[:, None]
     Q = breeze_mass(p_fine, cfg["depth_hpa"])[:, None] * cfg["depth_hpa"] * 100.0  # dp = -depth ds
@@ -477,7 +562,8 @@ def make_sea_breeze(cfg=SEA_BREEZE):
         return np.gradient(vv, p_pa, axis=0, edge_order=2)
 
     def rhs(t, vv):
-        # along-shore momentum at the reference latitude, per unit f: dv/dt = -u v_x - omega v_p - u - r v
+        # along-shore momentum at the reference latitude, per unit f:
+        # dv/dt = -u v_x - omega v_p - u - r v
         uu, om = u_of(t), omega_of(t)
         return -uu * dvdx(vv) - om * dvdp(vv) - uu - rate * vv
 
@@ -507,7 +593,8 @@ def make_sea_breeze(cfg=SEA_BREEZE):
         tend_u = amp_rate(t) * X[None, None, :] * P[:, :, None] * np.ones_like(u)
         tend_v = fy * rhs(t, vt2)[:, None, :]
         temp_guess = np.broadcast_to(
-            temperature_from_height(std_height(p_fine), p_fine)[:, None, None], u.shape)
+            temperature_from_height(std_height(p_fine), p_fine)[:, None, None], u.shape
+        )
         w = -om * RD * temp_guess / (p_pa[:, None, None] * G)
         # Du/Dt with the exact local tendency; the x-momentum equation gives g dZ/dx
         dudx = np.gradient(u, x, axis=-1, edge_order=2)
@@ -517,18 +604,31 @@ def make_sea_breeze(cfg=SEA_BREEZE):
         hx = (fy * v + mx - rate[:, :, None] * u - du) / G
         # integrate across the coast on each parallel, zero at the western (sea) edge
         dx_row = A * S.cos[None] * np.gradient(S.lam)[None, None, :]
-        zp = np.concatenate([np.zeros(hx.shape[:2] + (1,)),
-                             np.cumsum(0.5 * (hx[..., 1:] + hx[..., :-1]) *
-                                       0.5 * (dx_row[..., 1:] + dx_row[..., :-1]), axis=-1)],
-                            axis=-1)
+        zp = np.concatenate(
+            [
+                np.zeros(hx.shape[:2] + (1,)),
+                np.cumsum(
+                    0.5 * (hx[..., 1:] + hx[..., :-1]) * 0.5 * (dx_row[..., 1:] + dx_row[..., :-1]),
+                    axis=-1,
+                ),
+            ],
+            axis=-1,
+        )
         z = std_height(p_fine)[:, None, None] + zp
         temp = temperature_from_height(z, p_fine)
         pick = []
         for p in BREEZE_LEVELS:
             hit = np.nonzero(np.isclose(p_fine, p))[0]
             pick.append(int(hit[0]) if hit.size else None)
-        arrays = {"height": z, "u": u, "v": v, "omega": om, "temperature": temp,
-                  "tend_u": tend_u, "tend_v": tend_v}
+        arrays = {
+            "height": z,
+            "u": u,
+            "v": v,
+            "omega": om,
+            "temperature": temp,
+            "tend_u": tend_u,
+            "tend_v": tend_v,
+        }
         for name, arr in arrays.items():
             out = []
             for p, k in zip(BREEZE_LEVELS, pick):
@@ -537,38 +637,49 @@ def make_sea_breeze(cfg=SEA_BREEZE):
                 elif name == "height":
                     out.append(np.full((lat.size, out_lon.size), float(std_height(p))))
                 elif name == "temperature":
-                    t_std = temperature_from_height(std_height(np.array([p - 5, p, p + 5])),
-                                                    np.array([p - 5, p, p + 5]))[1]
+                    t_std = temperature_from_height(
+                        std_height(np.array([p - 5, p, p + 5])), np.array([p - 5, p, p + 5])
+                    )[1]
                     out.append(np.full((lat.size, out_lon.size), float(t_std)))
                 else:
                     out.append(np.zeros((lat.size, out_lon.size)))
             keep[name].append(np.stack(out))
     data = {k: np.stack(v) for k, v in keep.items()}
-    data["land_mask"] = (np.broadcast_to(out_lon[None, :] > cfg["coast_lon"],
-                                         (out_lat.size, out_lon.size))).astype(np.float32)
+    data["land_mask"] = (
+        np.broadcast_to(out_lon[None, :] > cfg["coast_lon"], (out_lat.size, out_lon.size))
+    ).astype(np.float32)
     rate_out = mixed_layer_drag(BREEZE_LEVELS, cfg)
     box = [cfg["coast_lon"] - 0.4, cfg["coast_lon"] + 0.4, 24.5, 25.5]
     attrs = {
         "title": "Invented afternoon sea breeze on a straight coast (synthetic sample case)",
-        "how_made": ("onshore wind prescribed: 8 m/s peak, 20 km wide across an invented "
-                     "coast along 30W, 150 hPa deep with a return flow near 850-750 hPa, rising and "
-                     "falling over a 16 h day; along-shore wind integrated in time from its own "
-                     "momentum equation (Coriolis turning, advection, drag) from the onset 3 h "
-                     "before the first time; omega from continuity; height integrated across the "
-                     "coast from the force the onshore wind needs, on a grid twice as fine; "
-                     "temperature from the hypsometric relation; calm above 600 hPa"),
-        "friction": ("Rayleigh drag F = -V / tau, 1/tau = (1/1 h) in a daytime mixed layer "
-                     "below 780 hPa, tapering to none by 730 hPa: the whole circulation is "
-                     "turbulent; above it only the weak top of the return flow is free of friction"),
-        "friction_rate_per_level_s-1": json.dumps(dict(zip(map(str, BREEZE_LEVELS),
-                                                           rate_out.tolist()))),
-        "geography": ("invented: the coast along 30W (land to the east) is drawn from the "
-                      "file's land mask; real coastlines do not apply"),
+        "how_made": (
+            "onshore wind prescribed: 8 m/s peak, 20 km wide across an invented "
+            "coast along 30W, 150 hPa deep with a return flow near 850-750 hPa, rising and "
+            "falling over a 16 h day; along-shore wind integrated in time from its own "
+            "momentum equation (Coriolis turning, advection, drag) from the onset 3 h "
+            "before the first time; omega from continuity; height integrated across the "
+            "coast from the force the onshore wind needs, on a grid twice as fine; "
+            "temperature from the hypsometric relation; calm above 600 hPa"
+        ),
+        "friction": (
+            "Rayleigh drag F = -V / tau, 1/tau = (1/1 h) in a daytime mixed layer "
+            "below 780 hPa, tapering to none by 730 hPa: the whole circulation is "
+            "turbulent; above it only the weak top of the return flow is free of friction"
+        ),
+        "friction_rate_per_level_s-1": json.dumps(
+            dict(zip(map(str, BREEZE_LEVELS), rate_out.tolist()))
+        ),
+        "geography": (
+            "invented: the coast along 30W (land to the east) is drawn from the "
+            "file's land mask; real coastlines do not apply"
+        ),
         "suggested_box": json.dumps(box),
-        "expected_verdicts": json.dumps([
-            {"level_hpa": 1000, "time_index": 2, "box": box, "balance": "unsteady"},
-            {"level_hpa": 900, "time_index": 2, "box": box, "balance": "unsteady"},
-        ]),
+        "expected_verdicts": json.dumps(
+            [
+                {"level_hpa": 1000, "time_index": 2, "box": box, "balance": "unsteady"},
+                {"level_hpa": 900, "time_index": 2, "box": box, "balance": "unsteady"},
+            ]
+        ),
         "free_atmosphere_levels_hpa": json.dumps([700, 650]),
         "friction_levels_hpa": json.dumps([1000, 950, 900, 850]),
         "scale_preset": "sea_breeze",
@@ -577,6 +688,7 @@ def make_sea_breeze(cfg=SEA_BREEZE):
 
 
 # -- writing --------------------------------------------------------------------------
+
 
 def _times(cfg):
     t0 = np.datetime64(cfg["start"], "s")
@@ -598,44 +710,72 @@ def to_dataset(name, lat, lon, times, data, attrs, levels=None):
     }
     var = {}
     for key, (std, units, long) in meta.items():
-        var[key] = (dims, data[key].astype(np.float32),
-                    {"standard_name": std, "units": units, "long_name": long})
+        var[key] = (
+            dims,
+            data[key].astype(np.float32),
+            {"standard_name": std, "units": units, "long_name": long},
+        )
     for key, std, units, long in (
-            ("msl", "air_pressure_at_mean_sea_level", "Pa", "mean sea level pressure"),
-            ("u10", "eastward_wind", "m s-1", "10 m eastward wind"),
-            ("v10", "northward_wind", "m s-1", "10 m northward wind"),
-            ("t2m", "air_temperature", "K", "2 m air temperature")):
+        ("msl", "air_pressure_at_mean_sea_level", "Pa", "mean sea level pressure"),
+        ("u10", "eastward_wind", "m s-1", "10 m eastward wind"),
+        ("v10", "northward_wind", "m s-1", "10 m northward wind"),
+        ("t2m", "air_temperature", "K", "2 m air temperature"),
+    ):
         if key in data:
-            var[key] = (("time", "lat", "lon"), data[key].astype(np.float32),
-                        {"standard_name": std, "units": units, "long_name": long})
+            var[key] = (
+                ("time", "lat", "lon"),
+                data[key].astype(np.float32),
+                {"standard_name": std, "units": units, "long_name": long},
+            )
     if "land_mask" in data:
-        var["land_mask"] = (("lat", "lon"), data["land_mask"],
-                            {"standard_name": "land_binary_mask", "units": "1",
-                             "long_name": "land (1) or sea (0), invented"})
+        var["land_mask"] = (
+            ("lat", "lon"),
+            data["land_mask"],
+            {
+                "standard_name": "land_binary_mask",
+                "units": "1",
+                "long_name": "land (1) or sea (0), invented",
+            },
+        )
     ds = xr.Dataset(
         var,
         coords={
-            "time": ("time", times["datetime"].astype("datetime64[ns]"),
-                     {"standard_name": "time", "long_name": "valid time"}),
-            "plev": ("plev", levels, {"standard_name": "air_pressure", "units": "hPa",
-                                          "positive": "down", "axis": "Z"}),
-            "lat": ("lat", lat, {"standard_name": "latitude", "units": "degrees_north",
-                                 "axis": "Y"}),
-            "lon": ("lon", lon, {"standard_name": "longitude", "units": "degrees_east",
-                                 "axis": "X"}),
+            "time": (
+                "time",
+                times["datetime"].astype("datetime64[ns]"),
+                {"standard_name": "time", "long_name": "valid time"},
+            ),
+            "plev": (
+                "plev",
+                levels,
+                {"standard_name": "air_pressure", "units": "hPa", "positive": "down", "axis": "Z"},
+            ),
+            "lat": (
+                "lat",
+                lat,
+                {"standard_name": "latitude", "units": "degrees_north", "axis": "Y"},
+            ),
+            "lon": (
+                "lon",
+                lon,
+                {"standard_name": "longitude", "units": "degrees_east", "axis": "X"},
+            ),
         },
         attrs={
             "Conventions": "CF-1.11",
             "institution": "balance-desk sample cases",
-            "source": ("synthetic: invented analytic fields made by sample_cases/make_cases.py; "
-                       "not model output, not observations"),
+            "source": (
+                "synthetic: invented analytic fields made by sample_cases/make_cases.py; "
+                "not model output, not observations"
+            ),
             "history": f"created by sample_cases/make_cases.py ({name})",
             "references": "see the docstring of sample_cases/make_cases.py",
             **attrs,
         },
     )
-    ds["time"].encoding.update(units="hours since 2000-01-01 00:00:00", calendar="standard",
-                               dtype="float64")
+    ds["time"].encoding.update(
+        units="hours since 2000-01-01 00:00:00", calendar="standard", dtype="float64"
+    )
     return ds
 
 
@@ -674,8 +814,11 @@ def _height_coordinates(path):
     import netCDF4
 
     with netCDF4.Dataset(path, "a") as nc:
-        for var, height, name in (("u10", 10.0, "height10m"), ("v10", 10.0, "height10m"),
-                                  ("t2m", 2.0, "height2m")):
+        for var, height, name in (
+            ("u10", 10.0, "height10m"),
+            ("v10", 10.0, "height10m"),
+            ("t2m", 2.0, "height2m"),
+        ):
             if var not in nc.variables:
                 continue
             if name not in nc.variables:

@@ -15,8 +15,14 @@ import pytest
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 
 #: no sandbox (root in a container), no GPU, nothing fetched in the background
-ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networking",
-        "--disable-component-update", "--no-first-run", "--disable-sync"]
+ARGS = [
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--no-first-run",
+    "--disable-sync",
+]
 
 
 def require():

@@ -12,13 +12,13 @@ os.environ.setdefault("PROJ_NETWORK", "OFF")
 if "BALANCE_DESK_STORE" not in os.environ:
     import tempfile
 
-    os.environ["BALANCE_DESK_STORE"] = os.path.join(tempfile.mkdtemp(prefix="bd-store-"),
-                                                    "rooms.sqlite")
+    os.environ["BALANCE_DESK_STORE"] = os.path.join(
+        tempfile.mkdtemp(prefix="bd-store-"), "rooms.sqlite"
+    )
 
-import pyproj  # noqa: E402,F401  - before anything that may load eccodes
-
-import numpy as np  # noqa: E402
-import pytest  # noqa: E402
+import numpy as np
+import pyproj  # noqa: F401  - before anything that may load eccodes
+import pytest
 
 
 @pytest.fixture

@@ -5,10 +5,9 @@ Key names and meanings follow the WMO GRIB2 templates as eccodes exposes them
 (WMO-No. 306, template 3.30 Lambert conformal, 3.20 polar stereographic).
 """
 
+import eccodes
 import numpy as np
 import pyproj  # noqa: F401  (before eccodes: the other order crashes at exit)
-
-import eccodes
 
 PARAMS = {  # name: (discipline, parameterCategory, parameterNumber), WMO GRIB2 table 4.2
     "gh": (0, 3, 5),
@@ -16,7 +15,7 @@ PARAMS = {  # name: (discipline, parameterCategory, parameterNumber), WMO GRIB2 
     "v": (0, 2, 3),
     "t": (0, 0, 0),
     "w": (0, 2, 8),
-    "pres": (0, 3, 0),    # eccodes calls it sp at the surface, pres elsewhere
+    "pres": (0, 3, 0),  # eccodes calls it sp at the surface, pres elsewhere
     "prmsl": (0, 3, 1),
     "r": (0, 1, 1),
     "absv": (0, 2, 10),
@@ -25,12 +24,28 @@ PARAMS = {  # name: (discipline, parameterCategory, parameterNumber), WMO GRIB2 
 }
 #: kinds of level: (typeOfFirstFixedSurface, scaled value), WMO GRIB2 code table 4.5;
 #: "isobaric" takes the level in hPa instead.
-LEVELS = {"surface": (1, 0), "cloudTop": (3, 0), "tropopause": (7, 0), "meanSea": (101, 0),
-          "10m": (103, 10), "2m": (103, 2)}
+LEVELS = {
+    "surface": (1, 0),
+    "cloudTop": (3, 0),
+    "tropopause": (7, 0),
+    "meanSea": (101, 0),
+    "10m": (103, 10),
+    "2m": (103, 2),
+}
 
 
-def _message(grid, values, short, level_hpa, date, hour, uv_relative, level_type="isobaric",
-             packing=None, bits=24):
+def _message(
+    grid,
+    values,
+    short,
+    level_hpa,
+    date,
+    hour,
+    uv_relative,
+    level_type="isobaric",
+    packing=None,
+    bits=24,
+):
     kind = grid["kind"]
     if kind == "polar_stereographic":
         h = eccodes.codes_grib_new_from_samples("polar_stereographic_pl_grib2")
@@ -43,12 +58,14 @@ def _message(grid, values, short, level_hpa, date, hour, uv_relative, level_type
     if kind == "regular_ll":
         eccodes.codes_set(h, "Ni", nx)
         eccodes.codes_set(h, "Nj", ny)
-        for k, v in (("latitudeOfFirstGridPointInDegrees", grid["lat0"]),
-                     ("longitudeOfFirstGridPointInDegrees", grid["lon0"]),
-                     ("latitudeOfLastGridPointInDegrees", grid["lat1"]),
-                     ("longitudeOfLastGridPointInDegrees", grid["lon1"]),
-                     ("iDirectionIncrementInDegrees", grid["dlon"]),
-                     ("jDirectionIncrementInDegrees", grid["dlat"])):
+        for k, v in (
+            ("latitudeOfFirstGridPointInDegrees", grid["lat0"]),
+            ("longitudeOfFirstGridPointInDegrees", grid["lon0"]),
+            ("latitudeOfLastGridPointInDegrees", grid["lat1"]),
+            ("longitudeOfLastGridPointInDegrees", grid["lon1"]),
+            ("iDirectionIncrementInDegrees", grid["dlon"]),
+            ("jDirectionIncrementInDegrees", grid["dlat"]),
+        ):
             eccodes.codes_set(h, k, v)
         eccodes.codes_set(h, "jScansPositively", 1 if grid["lat1"] > grid["lat0"] else 0)
     else:
@@ -85,8 +102,19 @@ def _message(grid, values, short, level_hpa, date, hour, uv_relative, level_type
     return h
 
 
-def write_grib2(path, grid, fields, levels_hpa, dates_hours, *, uv_relative, single=None,
-                mode="wb", packing=None, bits=24):
+def write_grib2(
+    path,
+    grid,
+    fields,
+    levels_hpa,
+    dates_hours,
+    *,
+    uv_relative,
+    single=None,
+    mode="wb",
+    packing=None,
+    bits=24,
+):
     """fields: {shortName: array (time, level, y, x)}; rows from south to north.
 
     single: {(name, level_type): array (time, y, x)} for fields on other kinds of level
@@ -97,12 +125,31 @@ def write_grib2(path, grid, fields, levels_hpa, dates_hours, *, uv_relative, sin
         for it, (date, hour) in enumerate(dates_hours):
             for ik, lev in enumerate(levels_hpa):
                 for short, arr in fields.items():
-                    h = _message(grid, arr[it, ik], short, lev, date, hour, uv_relative,
-                                 packing=packing, bits=bits)
+                    h = _message(
+                        grid,
+                        arr[it, ik],
+                        short,
+                        lev,
+                        date,
+                        hour,
+                        uv_relative,
+                        packing=packing,
+                        bits=bits,
+                    )
                     eccodes.codes_write(h, fh)
                     eccodes.codes_release(h)
             for (short, level_type), arr in (single or {}).items():
-                h = _message(grid, arr[it], short, 0.0, date, hour, uv_relative, level_type,
-                             packing=packing, bits=bits)
+                h = _message(
+                    grid,
+                    arr[it],
+                    short,
+                    0.0,
+                    date,
+                    hour,
+                    uv_relative,
+                    level_type,
+                    packing=packing,
+                    bits=bits,
+                )
                 eccodes.codes_write(h, fh)
                 eccodes.codes_release(h)

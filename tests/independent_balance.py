@@ -17,10 +17,10 @@ from __future__ import annotations
 
 import numpy as np
 
-G0 = 9.80665            # standard gravity (3rd CGPM 1901)
-OMEGA = 7.292115e-5     # the Earth's rotation, rad s-1 (GRS80; Moritz 2000)
-A = 6371008.7714        # mean Earth radius, m (GRS80 R1; Moritz 2000)
-RHO_SEA = 1.225         # kg m-3 (U.S. Standard Atmosphere 1976, sea level)
+G0 = 9.80665  # standard gravity (3rd CGPM 1901)
+OMEGA = 7.292115e-5  # the Earth's rotation, rad s-1 (GRS80; Moritz 2000)
+A = 6371008.7714  # mean Earth radius, m (GRS80 R1; Moritz 2000)
+RHO_SEA = 1.225  # kg m-3 (U.S. Standard Atmosphere 1976, sea level)
 
 
 _OPENED: dict = {}
@@ -32,8 +32,9 @@ def cfgrib(path, **keys):
 
     key = (path, tuple(sorted(keys.items())))
     if key not in _OPENED:
-        _OPENED[key] = xr.open_dataset(path, engine="cfgrib", backend_kwargs={
-            "filter_by_keys": keys, "indexpath": ""}).load()
+        _OPENED[key] = xr.open_dataset(
+            path, engine="cfgrib", backend_kwargs={"filter_by_keys": keys, "indexpath": ""}
+        ).load()
     return _OPENED[key]
 
 
@@ -79,8 +80,10 @@ class Curvilinear:
         self.det = self.xi[0] * self.xj[1] - self.xi[1] * self.xj[0]
 
     def grad(self, f):
-        fi, fj = np.gradient(np.asarray(f, float), axis=1), np.gradient(np.asarray(f, float),
-                                                                        axis=0)
+        fi, fj = (
+            np.gradient(np.asarray(f, float), axis=1),
+            np.gradient(np.asarray(f, float), axis=0),
+        )
         # [fi, fj] = [[xi_e, xi_n], [xj_e, xj_n]] [fx, fy]
         fx = (fi * self.xj[1] - fj * self.xi[1]) / self.det
         fy = (fj * self.xi[0] - fi * self.xj[0]) / self.det
@@ -89,7 +92,7 @@ class Curvilinear:
     def rotate(self, u, v):
         """Grid-relative components (along i and j) to east and north."""
         ex = np.hypot(*self.xi)
-        cx, sx = self.xi[0] / ex, self.xi[1] / ex   # the i direction in east, north
+        cx, sx = self.xi[0] / ex, self.xi[1] / ex  # the i direction in east, north
         ue = u * cx - v * sx
         vn = u * sx + v * cx
         return ue, vn
@@ -110,8 +113,9 @@ def streamline_curvature(grid, u, v):
     vx, vy = grid.grad(v)
     speed = np.hypot(u, v)
     with np.errstate(divide="ignore", invalid="ignore"):
-        return ((u * u * vx - v * v * uy + u * v * (vy - ux)) / speed ** 3
-                + u * np.tan(np.deg2rad(grid.lat)) / (A * speed))
+        return (u * u * vx - v * v * uy + u * v * (vy - ux)) / speed**3 + u * np.tan(
+            np.deg2rad(grid.lat)
+        ) / (A * speed)
 
 
 def gradient_wind(grid, z, curvature=None, u=None, v=None):

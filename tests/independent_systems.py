@@ -35,8 +35,9 @@ def latlon_cell_area_km2(lat1d, nlon, radius=RADIUS):
     """Cell areas (km2) of a global regular lat-lon grid, (ny, nlon)."""
     phi = np.deg2rad(np.asarray(lat1d, dtype=np.float64))
     mid = (phi[1:] + phi[:-1]) / 2
-    bounds = np.concatenate([[phi[0] - (phi[1] - phi[0]) / 2], mid,
-                             [phi[-1] + (phi[-1] - phi[-2]) / 2]])
+    bounds = np.concatenate(
+        [[phi[0] - (phi[1] - phi[0]) / 2], mid, [phi[-1] + (phi[-1] - phi[-2]) / 2]]
+    )
     bounds = np.clip(bounds, -np.pi / 2, np.pi / 2)
     band = np.abs(np.diff(np.sin(bounds)))
     return np.repeat((radius / 1e3) ** 2 * band[:, None] * (2 * np.pi / nlon), nlon, axis=1)
@@ -54,8 +55,19 @@ def joined_rows(lat1d, periodic):
     return tuple(out)
 
 
-def closed_extrema(z, lat, area_km2, *, interval, kind="low", periodic=False, joined=(),
-                   max_share=0.10, min_depth=None, radius=RADIUS):
+def closed_extrema(
+    z,
+    lat,
+    area_km2,
+    *,
+    interval,
+    kind="low",
+    periodic=False,
+    joined=(),
+    max_share=0.10,
+    min_depth=None,
+    radius=RADIUS,
+):
     """The closed lows (or highs) of ``z`` by the priority flood.
 
     Returns a list of dicts: ``index`` (row, column) of the minimum, ``value``,
@@ -83,8 +95,8 @@ def closed_extrema(z, lat, area_km2, *, interval, kind="low", periodic=False, jo
     earth = 4 * math.pi * (radius / 1e3) ** 2
     full_cols = (1 << nx) - 1
     parent = {}
-    comp = {}          # root -> attributes
-    spill = {}         # minimum's cell -> the value at which its basin stopped being closed
+    comp = {}  # root -> attributes
+    spill = {}  # minimum's cell -> the value at which its basin stopped being closed
 
     def find(x):
         while parent[x] != x:
@@ -93,8 +105,12 @@ def closed_extrema(z, lat, area_km2, *, interval, kind="low", periodic=False, jo
         return x
 
     def bad(a):
-        return (a["edge"] or a["area"] > max_share * earth or (a["lo"] < 0 < a["hi"])
-                or (periodic and a["cols"] == full_cols and not a["cap"]))
+        return (
+            a["edge"]
+            or a["area"] > max_share * earth
+            or (a["lo"] < 0 < a["hi"])
+            or (periodic and a["cols"] == full_cols and not a["cap"])
+        )
 
     def union(x, y, value):
         rx, ry = find(x), find(y)
@@ -119,9 +135,17 @@ def closed_extrema(z, lat, area_km2, *, interval, kind="low", periodic=False, jo
     for value, flat in order:
         r, c = divmod(flat, nx)
         parent[flat] = flat
-        comp[flat] = {"min": value, "cell": (r, c), "area": float(area_km2[r, c]),
-                      "lo": float(lat[r, c]), "hi": float(lat[r, c]), "cols": 1 << c,
-                      "cap": r in joined, "edge": bool(edge[r, c]), "failed": False}
+        comp[flat] = {
+            "min": value,
+            "cell": (r, c),
+            "area": float(area_km2[r, c]),
+            "lo": float(lat[r, c]),
+            "hi": float(lat[r, c]),
+            "cols": 1 << c,
+            "cap": r in joined,
+            "edge": bool(edge[r, c]),
+            "failed": False,
+        }
         nbs = []
         if r > 0:
             nbs.append((r - 1) * nx + c)
@@ -152,8 +176,9 @@ def closed_extrema(z, lat, area_km2, *, interval, kind="low", periodic=False, jo
         outer = math.floor(s / ci) * ci
         if outer <= zmin or outer - zmin < depth_min:
             continue
-        out.append({"index": cell, "value": sign * zmin, "outer": sign * outer,
-                    "depth": outer - zmin})
+        out.append(
+            {"index": cell, "value": sign * zmin, "outer": sign * outer, "depth": outer - zmin}
+        )
     out.sort(key=lambda d: -d["depth"])
     return out
 

@@ -7,7 +7,7 @@ interpolation, and every reader path can be compared with the truth.
 
 import numpy as np
 import pandas as pd
-import pyproj  # noqa: F401
+import pyproj
 import xarray as xr
 
 from balance_core import constants as C
@@ -29,8 +29,11 @@ def truth(lat, lon, p_hpa, t_hours=0.0):
     s = np.log(1000.0 / p) / np.log(10 / 3)
     phase = lon - 2e-6 * t_hours * 3600
     amp, slope = 60 + 80 * s, 300 + 900 * s
-    z = (standard_atmosphere_height(p * 100) + amp * np.sin(2 * lat) ** 2 * np.cos(3 * phase)
-         - slope * np.sin(lat) ** 2)
+    z = (
+        standard_atmosphere_height(p * 100)
+        + amp * np.sin(2 * lat) ** 2 * np.cos(3 * phase)
+        - slope * np.sin(lat) ** 2
+    )
     dz_dlat = amp * np.cos(3 * phase) * 2 * np.sin(4 * lat) - slope * np.sin(2 * lat)
     dz_dlon = -3 * amp * np.sin(2 * lat) ** 2 * np.sin(3 * phase)
     f = 2 * C.OMEGA * np.sin(lat)
@@ -59,16 +62,22 @@ def latlon_dataset(lat, lon, *, levels=LEVELS, times=TIMES, style="cf"):
             for key, val in zip(arr, vals):
                 arr[key][i, k] = val
     dims = ("time", "level", "latitude", "longitude")
-    coords = {"time": times, "latitude": ("latitude", lat, {"units": "degrees_north"}),
-              "longitude": ("longitude", lon, {"units": "degrees_east"})}
+    coords = {
+        "time": times,
+        "latitude": ("latitude", lat, {"units": "degrees_north"}),
+        "longitude": ("longitude", lon, {"units": "degrees_east"}),
+    }
     if style == "cf":
         coords["level"] = ("level", levels, {"units": "hPa", "standard_name": "air_pressure"})
         data = {
             "height": (dims, arr["z"], {"standard_name": "geopotential_height", "units": "m"}),
             "ua": (dims, arr["u"], {"standard_name": "eastward_wind", "units": "m s-1"}),
             "va": (dims, arr["v"], {"standard_name": "northward_wind", "units": "m s-1"}),
-            "wap": (dims, arr["om"], {"standard_name": "lagrangian_tendency_of_air_pressure",
-                                      "units": "Pa s-1"}),
+            "wap": (
+                dims,
+                arr["om"],
+                {"standard_name": "lagrangian_tendency_of_air_pressure", "units": "Pa s-1"},
+            ),
             "ta": (dims, arr["t"], {"standard_name": "air_temperature", "units": "K"}),
         }
     elif style == "era5":
@@ -117,7 +126,8 @@ def projected_dataset(crs, x, y, *, angle=None, levels=LEVELS, times=TIMES):
             z, u, v, om, t = truth(lat, lon, p, h)
             arr["z"][i, k], arr["u"][i, k], arr["v"][i, k] = z, u, v
             arr["om"][i, k], arr["t"][i, k] = om, t
-            # earth-relative (u, v) to grid-relative: u_g = u cos g - v sin g, v_g = u sin g + v cos g
+            # earth-relative (u, v) to grid-relative:
+            # u_g = u cos g - v sin g, v_g = u sin g + v cos g
             arr["xw"][i, k] = u * np.cos(g) - v * np.sin(g)
             arr["yw"][i, k] = u * np.sin(g) + v * np.cos(g)
     dims = ("time", "plev", "y", "x")
@@ -125,11 +135,22 @@ def projected_dataset(crs, x, y, *, angle=None, levels=LEVELS, times=TIMES):
     common = {"grid_mapping": "crs", "coordinates": "lat lon"}
     ds = xr.Dataset(
         {
-            "zg": (dims, arr["z"], {"standard_name": "geopotential_height", "units": "m", **common}),
+            "zg": (
+                dims,
+                arr["z"],
+                {"standard_name": "geopotential_height", "units": "m", **common},
+            ),
             "x_wind": (dims, arr["xw"], {"standard_name": "x_wind", "units": "m s-1", **common}),
             "y_wind": (dims, arr["yw"], {"standard_name": "y_wind", "units": "m s-1", **common}),
-            "wap": (dims, arr["om"], {"standard_name": "lagrangian_tendency_of_air_pressure",
-                                      "units": "Pa s-1", **common}),
+            "wap": (
+                dims,
+                arr["om"],
+                {
+                    "standard_name": "lagrangian_tendency_of_air_pressure",
+                    "units": "Pa s-1",
+                    **common,
+                },
+            ),
             "ta": (dims, arr["t"], {"standard_name": "air_temperature", "units": "K", **common}),
             "crs": ((), 0, gm),
         },
@@ -160,8 +181,12 @@ def huge_declaring_netcdf(path):
         lev = ds.createVariable("level", "f8", ("level",))
         lev.units, lev.standard_name = "hPa", "air_pressure"
         lev[:] = [500]
-        for name, sn, u in (("z", "geopotential_height", "m"), ("ua", "eastward_wind", "m s-1"),
-                            ("va", "northward_wind", "m s-1")):
-            v = ds.createVariable(name, "f4", ("time", "level", "lat", "lon"),
-                                  chunksizes=(1, 1, 1000, 1000))
+        for name, sn, u in (
+            ("z", "geopotential_height", "m"),
+            ("ua", "eastward_wind", "m s-1"),
+            ("va", "northward_wind", "m s-1"),
+        ):
+            v = ds.createVariable(
+                name, "f4", ("time", "level", "lat", "lon"), chunksizes=(1, 1, 1000, 1000)
+            )
             v.standard_name, v.units = sn, u

@@ -32,11 +32,17 @@ def start_server(args=(), *, env=None, cwd=ROOT, port=None, ready_path="/"):
     full_env = dict(os.environ if env is None else env, PYTHONUNBUFFERED="1")
     if "--store" not in args:
         # a store of its own: servers of tests running side by side never share one file
-        full_env["BALANCE_DESK_STORE"] = os.path.join(tempfile.mkdtemp(prefix="bd-store-"),
-                                                      "rooms.sqlite")
-    proc = subprocess.Popen([sys.executable, "-m", "app.cli", "serve", *args, "--port",
-                             str(port)], stdout=log, stderr=subprocess.STDOUT, text=True,
-                            cwd=cwd, env=full_env)
+        full_env["BALANCE_DESK_STORE"] = os.path.join(
+            tempfile.mkdtemp(prefix="bd-store-"), "rooms.sqlite"
+        )
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "app.cli", "serve", *args, "--port", str(port)],
+        stdout=log,
+        stderr=subprocess.STDOUT,
+        text=True,
+        cwd=cwd,
+        env=full_env,
+    )
     proc.log_path = log.name
     url = f"http://127.0.0.1:{port}/"
     for _ in range(240):
@@ -47,7 +53,8 @@ def start_server(args=(), *, env=None, cwd=ROOT, port=None, ready_path="/"):
             return proc, url, port  # it answers (a refusal is an answer)
         except Exception:  # noqa: BLE001
             if proc.poll() is not None:
-                raise RuntimeError(open(log.name).read())
+                with open(log.name) as fh:
+                    raise RuntimeError(fh.read()) from None
             time.sleep(0.5)
     proc.kill()
     raise RuntimeError("the server did not start")

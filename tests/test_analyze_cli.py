@@ -7,17 +7,25 @@ import os
 
 import numpy as np
 import pytest
+from makedata import latlon_dataset
 
 from app.cli import main
-
-from makedata import latlon_dataset
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 CYCLONE = os.path.join(HERE, "..", "sample_cases", "ocean_cyclone.nc")
 BOX = "-52,-28,38,56"
 
-TERM_NAMES = {"tendency", "horizontal_advection", "vertical_advection", "metric_uv",
-              "metric_uw", "coriolis", "coriolis_w", "pressure_gradient", "residual"}
+TERM_NAMES = {
+    "tendency",
+    "horizontal_advection",
+    "vertical_advection",
+    "metric_uv",
+    "metric_uw",
+    "coriolis",
+    "coriolis_w",
+    "pressure_gradient",
+    "residual",
+}
 
 
 def _run(capsys, *args):
@@ -43,25 +51,55 @@ def test_json_object_has_every_field(capsys):
     mags = [t["magnitude"] for t in rep["terms"]]
     assert mags == sorted(mags, reverse=True)
     for t in rep["terms"] + rep["derived"]:
-        assert set(t) == {"name", "magnitude", "x_rms", "y_rms", "estimate",
-                          "estimate_by_construction", "note"}
+        assert set(t) == {
+            "name",
+            "magnitude",
+            "x_rms",
+            "y_rms",
+            "estimate",
+            "estimate_by_construction",
+            "note",
+        }
         assert t["magnitude"] == pytest.approx(np.hypot(t["x_rms"], t["y_rms"]), rel=1e-9)
     # the trajectory's centripetal term beside the streamlines' (the case has several times)
-    assert [t["name"] for t in rep["derived"]] == ["acceleration", "along_stream", "centripetal",
-                                                   "centripetal_trajectory"]
+    assert [t["name"] for t in rep["derived"]] == [
+        "acceleration",
+        "along_stream",
+        "centripetal",
+        "centripetal_trajectory",
+    ]
     assert rep["curvature"] == "trajectory"
-    assert {t["name"] for t in rep["terms"] if t["estimate_by_construction"]} == \
-        {"coriolis", "coriolis_w", "metric_uw"}
-    assert set(rep["winds"]) == {"speed_rms", "geostrophic_speed_rms",
-                                 "ageostrophic_fraction_median", "gradient_speed_rms"}
-    assert set(rep["numbers"]) == {"rossby", "rossby_local_median", "ekman", "froude", "burger",
-                                   "richardson_median", "deformation_radius_km",
-                                   "residual_to_coriolis", "shear_depth_km"}
+    assert {t["name"] for t in rep["terms"] if t["estimate_by_construction"]} == {
+        "coriolis",
+        "coriolis_w",
+        "metric_uw",
+    }
+    assert set(rep["winds"]) == {
+        "speed_rms",
+        "geostrophic_speed_rms",
+        "ageostrophic_fraction_median",
+        "gradient_speed_rms",
+    }
+    assert set(rep["numbers"]) == {
+        "rossby",
+        "rossby_local_median",
+        "ekman",
+        "froude",
+        "burger",
+        "richardson_median",
+        "deformation_radius_km",
+        "residual_to_coriolis",
+        "shear_depth_km",
+    }
     assert set(rep["scales"]) == {"U", "W", "L", "H", "dP", "f0", "nu"}
     assert set(rep["scales_recipe"]) >= {"U", "L", "dP", "nu"}
     assert set(rep["balances"]) == {"geostrophic", "gradient", "cyclostrophic", "frictional"}
-    assert rep["balances_tested"] == {"geostrophic": True, "gradient": True,
-                                      "cyclostrophic": True, "frictional": False}
+    assert rep["balances_tested"] == {
+        "geostrophic": True,
+        "gradient": True,
+        "cyclostrophic": True,
+        "frictional": False,
+    }
     assert "frictional" in rep["verdict"]["not_tested"] and rep["verdict"]["cautions"] == []
     assert rep["verdict"]["balance"] == "geostrophic" and rep["verdict"]["text"]
     assert "simplest balance that holds" in rep["verdict"]["why"]
@@ -72,8 +110,10 @@ def test_json_object_has_every_field(capsys):
     assert rep["ground"]["near"] is False
     assert set(rep["explain"]) == {"rossby", "rossby_local_median"}
     # where every field came from
-    assert rep["sources"]["height"]["variable"] and rep["sources"]["height"]["level_type"] == \
-        "pressure"
+    assert (
+        rep["sources"]["height"]["variable"]
+        and rep["sources"]["height"]["level_type"] == "pressure"
+    )
     assert {"u", "v", "height"} <= set(rep["sources"])
     assert rep["reference_time"] is None or rep["lead_time_h"] is not None
 
@@ -109,12 +149,14 @@ def test_unavailable_terms_listed_with_reasons(tmp_path, capsys):
 
 def test_min_lat_and_smoothing_change_the_answer(capsys):
     base = _json(capsys, "analyze", CYCLONE, "--level", "500", "--box", BOX, "--time", "2")
-    smooth = _json(capsys, "analyze", CYCLONE, "--level", "500", "--box", BOX, "--time", "2",
-                   "--smooth", "200")
+    smooth = _json(
+        capsys, "analyze", CYCLONE, "--level", "500", "--box", BOX, "--time", "2", "--smooth", "200"
+    )
     adv = lambda r: next(t["magnitude"] for t in r["terms"] if t["name"] == "horizontal_advection")  # noqa: E731
     assert smooth["smooth_km"] == 200.0 and adv(smooth) != adv(base)
-    masked = _json(capsys, "analyze", CYCLONE, "--level", "500", "--box", BOX, "--time", "2",
-                   "--min-lat", "45")
+    masked = _json(
+        capsys, "analyze", CYCLONE, "--level", "500", "--box", BOX, "--time", "2", "--min-lat", "45"
+    )
     assert masked["min_lat"] == 45.0
     assert any("within 45 degrees of the equator" in n for n in masked["notes"])
     assert masked["winds"]["geostrophic_speed_rms"] != base["winds"]["geostrophic_speed_rms"]
@@ -123,25 +165,43 @@ def test_min_lat_and_smoothing_change_the_answer(capsys):
 def test_csv_and_table(capsys):
     from balance_core.vocabulary import TERM_NAMES as WORDS
 
-    code, out, _ = _run(capsys, "analyze", CYCLONE, "--level", "1000", "--time", "2", "--box",
-                        BOX, "--format", "csv")
+    code, out, _ = _run(
+        capsys,
+        "analyze",
+        CYCLONE,
+        "--level",
+        "1000",
+        "--time",
+        "2",
+        "--box",
+        BOX,
+        "--format",
+        "csv",
+    )
     assert code == 0
     rows = list(csv.DictReader(io.StringIO(out)))
     kinds = {r["kind"] for r in rows}
-    assert kinds == {"term", "derived view", "balance (imbalance ratio)", "number", "wind",
-                     "verdict"}
+    assert kinds == {
+        "term",
+        "derived view",
+        "balance (imbalance ratio)",
+        "number",
+        "wind",
+        "verdict",
+    }
     # plain words, never code names; every row carries the context
     assert {r["name"] for r in rows if r["kind"] == "term"} == {WORDS[t] for t in TERM_NAMES}
     assert all(r["case"] == "ocean_cyclone" and r["level (hPa)"] == "1000" for r in rows)
     assert all(r["region"] == "box 52.0W to 28.0W, 38.0N to 56.0N" for r in rows)
-    chosen = [r["name"] for r in rows if r["kind"].startswith("balance") and
-              r["note"] == "the verdict"]
+    chosen = [
+        r["name"] for r in rows if r["kind"].startswith("balance") and r["note"] == "the verdict"
+    ]
     assert chosen == ["Frictional"]
     vals = [r["value"] for r in rows if r["kind"] == "term" and r["value"]]
-    assert all(len(v.split("e")[0].replace(".", "").replace("-", "").lstrip("0")) <= 4
-               for v in vals)  # four significant digits
-    code, out, _ = _run(capsys, "analyze", CYCLONE, "--level", "1000", "--time", "2", "--box",
-                        BOX)
+    assert all(
+        len(v.split("e")[0].replace(".", "").replace("-", "").lstrip("0")) <= 4 for v in vals
+    )  # four significant digits
+    code, out, _ = _run(capsys, "analyze", CYCLONE, "--level", "1000", "--time", "2", "--box", BOX)
     assert "verdict: Frictional" in out and "residual" in out and "a priori" in out
 
 

@@ -31,28 +31,39 @@ def _state(**kw):
 
 
 def _chart_signature(cd):
-    return (cd.field_key, cd.units, float(np.nanmean(cd.raster)), cd.raster.shape,
-            len(cd.contours[0]), None if cd.vectors is None else len(cd.vectors["x0"]),
-            None if cd.vectors is None else float(np.nanmean(cd.vectors["x1"])), cd.vector_label,
-            cd.hover["wind_units"],
-            cd.geom.label, None if cd.region_xy is None else float(np.nanmean(cd.region_xy[0])),
-            cd.contour_units)
+    return (
+        cd.field_key,
+        cd.units,
+        float(np.nanmean(cd.raster)),
+        cd.raster.shape,
+        len(cd.contours[0]),
+        None if cd.vectors is None else len(cd.vectors["x0"]),
+        None if cd.vectors is None else float(np.nanmean(cd.vectors["x1"])),
+        cd.vector_label,
+        cd.hover["wind_units"],
+        cd.geom.label,
+        None if cd.region_xy is None else float(np.nanmean(cd.region_xy[0])),
+        cd.contour_units,
+    )
 
 
-@pytest.mark.parametrize("param, value", [
-    ("case", "tropical_cyclone"),
-    ("level", 250.0),
-    ("time", "2041-01-20T00:00:00Z"),
-    ("field", "speed"),
-    ("field", "term:residual"),
-    ("vectors", "geostrophic"),
-    ("vectors", "none"),
-    ("smooth_km", 300.0),
-    ("projection", "conformal"),
-    ("height_units", "dam"),
-    ("wind_units", "kt"),
-    ("region", "box:-40,-10,30,45"),
-])
+@pytest.mark.parametrize(
+    "param, value",
+    [
+        ("case", "tropical_cyclone"),
+        ("level", 250.0),
+        ("time", "2041-01-20T00:00:00Z"),
+        ("field", "speed"),
+        ("field", "term:residual"),
+        ("vectors", "geostrophic"),
+        ("vectors", "none"),
+        ("smooth_km", 300.0),
+        ("projection", "conformal"),
+        ("height_units", "dam"),
+        ("wind_units", "kt"),
+        ("region", "box:-40,-10,30,45"),
+    ],
+)
 def test_every_chart_control_changes_the_chart(library, param, value):
     before = compute.chart_data(library, _state(level=850.0 if param == "case" else 500.0))
     st = _state(level=850.0 if param == "case" else 500.0)
@@ -65,20 +76,26 @@ def test_every_chart_control_changes_the_chart(library, param, value):
     assert _chart_signature(after) != _chart_signature(before)
 
 
-@pytest.mark.parametrize("param, value", [
-    ("level", 1000.0),
-    ("time", "2041-01-19T00:00:00Z"),
-    ("smooth_km", 300.0),
-    ("min_lat", 45.0),
-    ("region", "box:-40,-10,30,45"),
-])
+@pytest.mark.parametrize(
+    "param, value",
+    [
+        ("level", 1000.0),
+        ("time", "2041-01-19T00:00:00Z"),
+        ("smooth_km", 300.0),
+        ("min_lat", 45.0),
+        ("region", "box:-40,-10,30,45"),
+    ],
+)
 def test_every_box_control_changes_the_analysis(library, param, value):
     a = compute.box_data(library, _state())
     st = _state()
     setattr(st, param, value)
     b = compute.box_data(library, st)
-    sig = lambda r: (r["points"], tuple(round(t["magnitude"] or 0, 12) for t in r["terms"]),  # noqa: E731
-                     r["winds"]["geostrophic_speed_rms"])
+    sig = lambda r: (  # noqa: E731
+        r["points"],
+        tuple(round(t["magnitude"] or 0, 12) for t in r["terms"]),
+        r["winds"]["geostrophic_speed_rms"],
+    )
     assert sig(a) != sig(b)
 
 
@@ -111,21 +128,44 @@ def test_scale_sheet_presets_and_edits(library):
     # side by side with the region; the friction estimate stands beside the residual, so named
     rows = {r["name"]: r for r in sheet["terms"]}
     assert rows["coriolis"]["measured"] == pytest.approx(
-        next(t["magnitude"] for t in rep["terms"] if t["name"] == "coriolis"))
+        next(t["magnitude"] for t in rep["terms"] if t["name"] == "coriolis")
+    )
     assert rows["viscous"]["data_label"].startswith("residual")
 
 
 def test_url_round_trip_restores_a_view():
     from app.state import RegionSpec
 
-    st = ViewState(case="tropical_cyclone", level=850.0, time="2038-09-04T06:00:00Z",
-                   field="rossby_local", vectors="ageostrophic", smooth_km=50.0, min_lat=12.0,
-                   projection="conformal", height_units="dam", wind_units="kt",
-                   preset="tropical_cyclone", sheet={"U": 30.0, "L": 4e4})
-    st.set_area(RegionSpec("area", corners=((145.0, 17.0), (147.0, 17.0), (147.0, 19.0),
-                                            (145.0, 19.0)),
-                           proj=("lcc", (("lat_1", 15.0), ("lat_2", 21.0), ("lat_0", 18.0),
-                                         ("lon_0", 146.0), ("R", 6371008.7714)))))
+    st = ViewState(
+        case="tropical_cyclone",
+        level=850.0,
+        time="2038-09-04T06:00:00Z",
+        field="rossby_local",
+        vectors="ageostrophic",
+        smooth_km=50.0,
+        min_lat=12.0,
+        projection="conformal",
+        height_units="dam",
+        wind_units="kt",
+        preset="tropical_cyclone",
+        sheet={"U": 30.0, "L": 4e4},
+    )
+    st.set_area(
+        RegionSpec(
+            "area",
+            corners=((145.0, 17.0), (147.0, 17.0), (147.0, 19.0), (145.0, 19.0)),
+            proj=(
+                "lcc",
+                (
+                    ("lat_1", 15.0),
+                    ("lat_2", 21.0),
+                    ("lat_0", 18.0),
+                    ("lon_0", 146.0),
+                    ("R", 6371008.7714),
+                ),
+            ),
+        )
+    )
     url = "?" + urllib.parse.urlencode(st.to_query())
     assert len(url) < 400  # a drawn area stays short
     query = urllib.parse.parse_qs(url[1:], keep_blank_values=True)
@@ -138,9 +178,15 @@ def test_url_round_trip_restores_a_view():
 
 def test_bad_url_values_fall_back_with_a_message():
     st = ViewState()
-    problems = st.update_from_query({"level": ["not a number"], "field": ["nonsense"],
-                                     "min_lat": ["1000"], "case": ["sea_breeze"],
-                                     "region": ["{'kind': 'box'}"]})
+    problems = st.update_from_query(
+        {
+            "level": ["not a number"],
+            "field": ["nonsense"],
+            "min_lat": ["1000"],
+            "case": ["sea_breeze"],
+            "region": ["{'kind': 'box'}"],
+        }
+    )
     assert st.case == "sea_breeze"
     assert st.field == "height" and st.min_lat == 10.0 and st.level == 500.0 and st.region == ""
     assert len(problems) == 4 and all("default is shown" in p for p in problems)
@@ -251,8 +297,7 @@ def test_a_page_fetched_while_the_pool_is_busy_starts_its_work_on_connecting(lib
 
     pool = FairPool(threads=1)
     gate, started = threading.Event(), threading.Event()
-    pool.lane("other").submit("box", lambda: (started.set(), gate.wait(30)),
-                              lambda *a: None)
+    pool.lane("other").submit("box", lambda: (started.set(), gate.wait(30)), lambda *a: None)
     assert started.wait(30) and pool.busy()
     page = Page(library, _state(), pool=pool)
     page.prime()
@@ -308,8 +353,7 @@ def test_the_systems_of_the_level_are_listed_marked_and_chosen(library):
     # can be hidden, its life is followed through the times, and winds follow the unit
     from app.desk.page import build_page
 
-    page = build_page(library, {"case": ["tropical_cyclone"], "level": ["850"],
-                                "region": [""]})
+    page = build_page(library, {"case": ["tropical_cyclone"], "level": ["850"], "region": [""]})
     page.start()
     data = page.systems.data
     assert [s["label"] for s in data["systems"]] == ["L1"]
@@ -355,9 +399,15 @@ def test_sea_level_is_a_level_of_the_page_with_isobars_and_the_surface_budget(li
     from app.desk.page import build_page
     from app.state import SEA_LEVEL, encode_query
 
-    page = build_page(library, {"case": ["ocean_cyclone"], "level": ["msl"],
-                                "time": ["2041-01-19T12:00:00Z"],
-                                "region": ["box:-52,-28,38,56"]})
+    page = build_page(
+        library,
+        {
+            "case": ["ocean_cyclone"],
+            "level": ["msl"],
+            "time": ["2041-01-19T12:00:00Z"],
+            "region": ["box:-52,-28,38,56"],
+        },
+    )
     page.start()
     assert page.state.level == SEA_LEVEL
     assert page.controls.w_level.options["sea level"] == SEA_LEVEL
@@ -390,8 +440,10 @@ def test_the_chart_contours_at_the_interval_the_systems_are_found_with(library):
         cd = compute.chart_data(library, st)
         k = 0.1 if units == "dam" else 1.0
         assert cd.contour_interval == pytest.approx(contour_interval(level * 100) * k)
-        assert all(abs(v / cd.contour_interval - round(v / cd.contour_interval)) < 1e-6
-                   for v in cd.contours[2])
+        assert all(
+            abs(v / cd.contour_interval - round(v / cd.contour_interval)) < 1e-6
+            for v in cd.contours[2]
+        )
         data = compute.systems_data(library, st)
         assert data["rules"]["contour_interval"] == contour_interval(level * 100)
 
@@ -424,9 +476,15 @@ def test_the_evidence_tells_the_same_story_as_the_verdict(library):
     # same fields (Coriolis) get no diamond; the numbers carry the textbook names
     from app.desk.page import build_page
 
-    page = build_page(library, {"case": ["ocean_cyclone"], "level": ["500"],
-                                "time": ["2041-01-19T12:00:00Z"],
-                                "region": ["box:-52,-28,38,56"]})
+    page = build_page(
+        library,
+        {
+            "case": ["ocean_cyclone"],
+            "level": ["500"],
+            "time": ["2041-01-19T12:00:00Z"],
+            "region": ["box:-52,-28,38,56"],
+        },
+    )
     page.start()
     html = page.evidence.body.object
     assert "frictional" in page.report["verdict"]["not_tested"]

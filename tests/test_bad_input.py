@@ -13,10 +13,9 @@ import sys
 import numpy as np
 import pytest
 import xarray as xr
+from makedata import latlon_dataset
 
 from app.cli import main
-
-from makedata import latlon_dataset
 
 LAT = np.arange(60.0, 39.9, -2.0)
 LON = np.arange(-20.0, 20.1, 2.0)
@@ -75,8 +74,7 @@ def grib_temperature_only(tmp, name):
 
     la, lo = np.meshgrid(LAT[::-1], LON, indexing="ij")
     t = np.broadcast_to(250.0 + 0 * la, (1, 1) + la.shape).copy()
-    grid = dict(kind="regular_ll", lat0=40.0, lat1=60.0, lon0=340.0, lon1=20.0, dlat=2.0,
-                dlon=2.0)
+    grid = dict(kind="regular_ll", lat0=40.0, lat1=60.0, lon0=340.0, lon1=20.0, dlat=2.0, dlon=2.0)
     path = os.path.join(tmp, name)
     write_grib2(path, grid, {"t": t}, [500.0], [(20400203, 0)], uv_relative=False)
     return path
@@ -87,8 +85,7 @@ def truncated_grib(tmp, name):
 
     la, lo = np.meshgrid(LAT[::-1], LON, indexing="ij")
     z = np.broadcast_to(5500.0 + la, (1, 1) + la.shape).copy()
-    grid = dict(kind="regular_ll", lat0=40.0, lat1=60.0, lon0=340.0, lon1=20.0, dlat=2.0,
-                dlon=2.0)
+    grid = dict(kind="regular_ll", lat0=40.0, lat1=60.0, lon0=340.0, lon1=20.0, dlat=2.0, dlon=2.0)
     path = os.path.join(tmp, name + ".full")
     write_grib2(path, grid, {"gh": z}, [500.0], [(20400203, 0)], uv_relative=False)
     with open(path, "rb") as fh:
@@ -109,8 +106,10 @@ def height_levels(ds):
 def curvilinear(ds):
     la, lo = np.meshgrid(LAT, LON, indexing="ij")
     ds = ds.rename({"latitude": "y", "longitude": "x"}).drop_vars(["x", "y"])
-    ds = ds.assign_coords(lat=(("y", "x"), la, {"standard_name": "latitude"}),
-                          lon=(("y", "x"), lo, {"standard_name": "longitude"}))
+    ds = ds.assign_coords(
+        lat=(("y", "x"), la, {"standard_name": "latitude"}),
+        lon=(("y", "x"), lo, {"standard_name": "longitude"}),
+    )
     for v in ds.data_vars:
         ds[v].attrs["coordinates"] = "lat lon"
     return ds
@@ -140,85 +139,210 @@ def numeric_time_no_units(ds):
 CORPUS = {
     "no_such_file": (lambda t: os.path.join(t, "absent.nc"), [], "no such file"),
     "empty_file": (lambda t: raw(t, "empty.nc", b""), [], "is empty"),
-    "text_file": (lambda t: raw(t, "notes.nc", b"this is not a model file\n"), [],
-                  "not a NetCDF, GRIB or Zarr file"),
+    "text_file": (
+        lambda t: raw(t, "notes.nc", b"this is not a model file\n"),
+        [],
+        "not a NetCDF, GRIB or Zarr file",
+    ),
     "truncated_netcdf": (lambda t: truncated(t, "cut.nc"), [], "damaged or truncated"),
     "truncated_grib": (lambda t: truncated_grib(t, "cut.grib2"), [], "damaged or truncated"),
-    "directory_not_zarr": (lambda t: os.makedirs(os.path.join(t, "dir.zarr"), exist_ok=True) or
-                           os.path.join(t, "dir.zarr"), [], "not a Zarr store"),
-    "no_height": (lambda t: nc(t, "noz.nc", good().drop_vars("height")), [],
-                  "no geopotential or geopotential height"),
-    "height_without_units": (lambda t: nc(t, "zu.nc", drop_units(good(), "height")), [],
-                             "has no units attribute"),
-    "height_in_kelvin": (lambda t: nc(t, "zk.nc", with_var(good(), "height", attrs={
-        "standard_name": "geopotential_height", "units": "K"})), [], "cannot be read as m"),
-    "wind_unknown_units": (lambda t: nc(t, "wu.nc", with_var(good(), "ua", attrs={
-        "standard_name": "eastward_wind", "units": "metres per dingle"})), [],
-        "cannot be read as m s-1"),
-    "levels_without_units": (lambda t: nc(t, "lu.nc", coord_values(
-        good(), "level", good()["level"].values, {"standard_name": "air_pressure"})), [],
-        "has no units attribute"),
-    "levels_repeated": (lambda t: nc(t, "lr.nc", coord_values(
-        good(), "level", np.array([1000.0, 850.0, 850.0, 500.0, 300.0]))), [],
-        "pressure levels repeat a value"),
-    "levels_negative": (lambda t: nc(t, "ln.nc", coord_values(
-        good(), "level", np.array([1000.0, 850.0, 700.0, 500.0, -300.0]))), [],
-        "must be positive"),
-    "latitude_unsorted": (lambda t: nc(t, "lat.nc", coord_values(
-        good(), "latitude", np.concatenate([LAT[:5], LAT[5:][::-1]]))), [],
-        "latitude is not strictly monotonic"),
-    "longitude_repeated": (lambda t: nc(t, "lon.nc", coord_values(
-        good(), "longitude", np.concatenate([LON[:10], LON[9:-1]]))), [],
-        "longitude is not strictly monotonic"),
-    "height_all_missing": (lambda t: nc(t, "nan.nc", with_var(good(), "height",
-                                                              values=lambda a: a * np.nan)), [],
-                           "no valid values"),
+    "directory_not_zarr": (
+        lambda t: (
+            os.makedirs(os.path.join(t, "dir.zarr"), exist_ok=True) or os.path.join(t, "dir.zarr")
+        ),
+        [],
+        "not a Zarr store",
+    ),
+    "no_height": (
+        lambda t: nc(t, "noz.nc", good().drop_vars("height")),
+        [],
+        "no geopotential or geopotential height",
+    ),
+    "height_without_units": (
+        lambda t: nc(t, "zu.nc", drop_units(good(), "height")),
+        [],
+        "has no units attribute",
+    ),
+    "height_in_kelvin": (
+        lambda t: nc(
+            t,
+            "zk.nc",
+            with_var(
+                good(), "height", attrs={"standard_name": "geopotential_height", "units": "K"}
+            ),
+        ),
+        [],
+        "cannot be read as m",
+    ),
+    "wind_unknown_units": (
+        lambda t: nc(
+            t,
+            "wu.nc",
+            with_var(
+                good(), "ua", attrs={"standard_name": "eastward_wind", "units": "metres per dingle"}
+            ),
+        ),
+        [],
+        "cannot be read as m s-1",
+    ),
+    "levels_without_units": (
+        lambda t: nc(
+            t,
+            "lu.nc",
+            coord_values(
+                good(), "level", good()["level"].values, {"standard_name": "air_pressure"}
+            ),
+        ),
+        [],
+        "has no units attribute",
+    ),
+    "levels_repeated": (
+        lambda t: nc(
+            t,
+            "lr.nc",
+            coord_values(good(), "level", np.array([1000.0, 850.0, 850.0, 500.0, 300.0])),
+        ),
+        [],
+        "pressure levels repeat a value",
+    ),
+    "levels_negative": (
+        lambda t: nc(
+            t,
+            "ln.nc",
+            coord_values(good(), "level", np.array([1000.0, 850.0, 700.0, 500.0, -300.0])),
+        ),
+        [],
+        "must be positive",
+    ),
+    "latitude_unsorted": (
+        lambda t: nc(
+            t, "lat.nc", coord_values(good(), "latitude", np.concatenate([LAT[:5], LAT[5:][::-1]]))
+        ),
+        [],
+        "latitude is not strictly monotonic",
+    ),
+    "longitude_repeated": (
+        lambda t: nc(
+            t, "lon.nc", coord_values(good(), "longitude", np.concatenate([LON[:10], LON[9:-1]]))
+        ),
+        [],
+        "longitude is not strictly monotonic",
+    ),
+    "height_all_missing": (
+        lambda t: nc(t, "nan.nc", with_var(good(), "height", values=lambda a: a * np.nan)),
+        [],
+        "no valid values",
+    ),
     # an undeclared fill value that is not one of the usual ones, in a field the budget needs
-    "undeclared_fill_value": (lambda t: nc(t, "fill.nc", with_var(
-        good(), "height", values=lambda a: np.where(np.arange(a.size).reshape(a.shape) % 7 == 0,
-                                                    7.7e25, a))), [], "undeclared fill value"),
-    "single_grid_point": (lambda t: nc(t, "one.nc", good().isel(latitude=[3], longitude=[4])),
-                          [], "at least 3 x 3"),
-    "two_by_two_grid": (lambda t: nc(t, "two.nc", good().isel(latitude=[1, 2],
-                                                              longitude=[1, 2])), [],
-                        "at least 3 x 3"),
-    "mismatched_grids": (lambda t: two_files(t, good().isel(time=[0]),
-                                             good().isel(time=[1], latitude=slice(0, -1))), [],
-                         "has another grid"),
-    "duplicate_times": (lambda t: two_files(t, good().isel(time=[0, 1]), good().isel(time=[1])),
-                        [], "appears more than once"),
-    "level_not_in_file": (lambda t: nc(t, "ok1.nc", good()), ["--level", "600"],
-                          "has no 600 hPa level"),
-    "time_index_outside": (lambda t: nc(t, "ok2.nc", good()), ["--time", "9"],
-                           "time index 9 is outside the 3 valid times"),
-    "time_not_in_file": (lambda t: nc(t, "ok3.nc", good()), ["--time", "2041-01-01T00:00"],
-                         "is not one of the 3 valid times"),
-    "time_not_a_time": (lambda t: nc(t, "ok4.nc", good()), ["--time", "yesterday"],
-                        "neither an index nor an ISO 8601 time"),
-    "box_without_points": (lambda t: nc(t, "ok5.nc", good()), ["--box", "100,110,-10,0"],
-                           "holds no grid points"),
-    "box_south_of_north": (lambda t: nc(t, "ok6.nc", good()), ["--box", "0,10,50,40"],
-                           "must satisfy -90 <= south < north <= 90"),
-    "box_three_numbers": (lambda t: nc(t, "ok7.nc", good()), ["--box", "0,10,50"],
-                          "needs WEST,EAST,SOUTH,NORTH"),
-    "no_time_coordinate": (lambda t: nc(t, "nt.nc", no_time(good())), [],
-                           "has no time coordinate"),
-    "numeric_time_without_units": (lambda t: nc(t, "tu.nc", numeric_time_no_units(good())), [],
-                                   "is numeric and has no units"),
-    "member_out_of_range": (lambda t: nc(t, "ens.nc", xr.concat([good()] * 3, dim="number")),
-                            ["--member", "5"], "has 3 ensemble members; member 5"),
-    "member_not_an_index": (lambda t: nc(t, "ens2.nc", good()), ["--member", "first"],
-                            "--member must be an index or 'mean'"),
-    "not_on_pressure_levels": (lambda t: nc(t, "hl.nc", height_levels(good())), [],
-                               "no geopotential or geopotential height on pressure levels"),
-    "curvilinear_without_projection": (lambda t: nc(t, "curv.nc", curvilinear(good())), [],
-                                       "2-D latitude and longitude but no projection"),
-    "grid_mapping_missing": (lambda t: nc(t, "gm.nc", missing_mapping(good())), [],
-                             "which is not in the file"),
-    "unknown_extra_dimension": (lambda t: nc(t, "extra.nc", extra_dim(good())), [],
-                                "extra dimension 'sector' of size 2"),
-    "grib_without_height": (lambda t: grib_temperature_only(t, "t.grib2"), [],
-                            "no geopotential or geopotential height"),
+    "undeclared_fill_value": (
+        lambda t: nc(
+            t,
+            "fill.nc",
+            with_var(
+                good(),
+                "height",
+                values=lambda a: np.where(np.arange(a.size).reshape(a.shape) % 7 == 0, 7.7e25, a),
+            ),
+        ),
+        [],
+        "undeclared fill value",
+    ),
+    "single_grid_point": (
+        lambda t: nc(t, "one.nc", good().isel(latitude=[3], longitude=[4])),
+        [],
+        "at least 3 x 3",
+    ),
+    "two_by_two_grid": (
+        lambda t: nc(t, "two.nc", good().isel(latitude=[1, 2], longitude=[1, 2])),
+        [],
+        "at least 3 x 3",
+    ),
+    "mismatched_grids": (
+        lambda t: two_files(t, good().isel(time=[0]), good().isel(time=[1], latitude=slice(0, -1))),
+        [],
+        "has another grid",
+    ),
+    "duplicate_times": (
+        lambda t: two_files(t, good().isel(time=[0, 1]), good().isel(time=[1])),
+        [],
+        "appears more than once",
+    ),
+    "level_not_in_file": (
+        lambda t: nc(t, "ok1.nc", good()),
+        ["--level", "600"],
+        "has no 600 hPa level",
+    ),
+    "time_index_outside": (
+        lambda t: nc(t, "ok2.nc", good()),
+        ["--time", "9"],
+        "time index 9 is outside the 3 valid times",
+    ),
+    "time_not_in_file": (
+        lambda t: nc(t, "ok3.nc", good()),
+        ["--time", "2041-01-01T00:00"],
+        "is not one of the 3 valid times",
+    ),
+    "time_not_a_time": (
+        lambda t: nc(t, "ok4.nc", good()),
+        ["--time", "yesterday"],
+        "neither an index nor an ISO 8601 time",
+    ),
+    "box_without_points": (
+        lambda t: nc(t, "ok5.nc", good()),
+        ["--box", "100,110,-10,0"],
+        "holds no grid points",
+    ),
+    "box_south_of_north": (
+        lambda t: nc(t, "ok6.nc", good()),
+        ["--box", "0,10,50,40"],
+        "must satisfy -90 <= south < north <= 90",
+    ),
+    "box_three_numbers": (
+        lambda t: nc(t, "ok7.nc", good()),
+        ["--box", "0,10,50"],
+        "needs WEST,EAST,SOUTH,NORTH",
+    ),
+    "no_time_coordinate": (lambda t: nc(t, "nt.nc", no_time(good())), [], "has no time coordinate"),
+    "numeric_time_without_units": (
+        lambda t: nc(t, "tu.nc", numeric_time_no_units(good())),
+        [],
+        "is numeric and has no units",
+    ),
+    "member_out_of_range": (
+        lambda t: nc(t, "ens.nc", xr.concat([good()] * 3, dim="number")),
+        ["--member", "5"],
+        "has 3 ensemble members; member 5",
+    ),
+    "member_not_an_index": (
+        lambda t: nc(t, "ens2.nc", good()),
+        ["--member", "first"],
+        "--member must be an index or 'mean'",
+    ),
+    "not_on_pressure_levels": (
+        lambda t: nc(t, "hl.nc", height_levels(good())),
+        [],
+        "no geopotential or geopotential height on pressure levels",
+    ),
+    "curvilinear_without_projection": (
+        lambda t: nc(t, "curv.nc", curvilinear(good())),
+        [],
+        "2-D latitude and longitude but no projection",
+    ),
+    "grid_mapping_missing": (
+        lambda t: nc(t, "gm.nc", missing_mapping(good())),
+        [],
+        "which is not in the file",
+    ),
+    "unknown_extra_dimension": (
+        lambda t: nc(t, "extra.nc", extra_dim(good())),
+        [],
+        "extra dimension 'sector' of size 2",
+    ),
+    "grib_without_height": (
+        lambda t: grib_temperature_only(t, "t.grib2"),
+        [],
+        "no geopotential or geopotential height",
+    ),
 }
 
 
@@ -245,13 +369,18 @@ def test_bad_input_gets_one_sentence_and_status_2(tmp_path, capsys, case):
         assert named in err or os.path.basename(paths[0]) in err, err
 
 
-@pytest.mark.parametrize("case", ["truncated_netcdf", "truncated_grib", "text_file",
-                                  "undeclared_fill_value"])
+@pytest.mark.parametrize(
+    "case", ["truncated_netcdf", "truncated_grib", "text_file", "undeclared_fill_value"]
+)
 def test_bad_input_in_a_real_process(tmp_path, case):
     build, extra, fragment = CORPUS[case]
     path = build(str(tmp_path))
-    r = subprocess.run([sys.executable, "-m", "app.cli", "analyze", path, "--level", "500"],
-                       capture_output=True, text=True, timeout=300)
+    r = subprocess.run(
+        [sys.executable, "-m", "app.cli", "analyze", path, "--level", "500"],
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
     assert r.returncode == 2, (r.returncode, r.stderr)
     assert fragment in r.stderr and "Traceback" not in r.stderr
 

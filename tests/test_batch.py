@@ -18,7 +18,6 @@ import time
 import numpy as np
 import pandas as pd
 import pytest
-
 from makedata import latlon_dataset
 
 pytestmark = pytest.mark.slow
@@ -42,8 +41,7 @@ def archive(tmp_path_factory):
 
 def _batch(args, cwd, env=None, **kw):
     cmd = [sys.executable, "-m", "app.cli", "batch", *args]
-    return subprocess.run(cmd, capture_output=True, text=True, cwd=cwd, timeout=600,
-                          env=env, **kw)
+    return subprocess.run(cmd, capture_output=True, text=True, cwd=cwd, timeout=600, env=env, **kw)
 
 
 def _box_args():
@@ -61,14 +59,38 @@ def test_rows_from_a_real_cluster_equal_analyze(archive, tmp_path):
     from balance_core.io import analyse_case, open_case
 
     port = _free_port()
-    sched = subprocess.Popen([os.path.join(BIN, "dask"), "scheduler", "--host", "127.0.0.1",
-                              "--port", str(port), "--dashboard-address", ":0"],
-                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
-                             start_new_session=True)
-    worker = subprocess.Popen([os.path.join(BIN, "dask"), "worker", f"tcp://127.0.0.1:{port}",
-                               "--nworkers", "2", "--nthreads", "1", "--dashboard-address",
-                               ":0"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
-                              cwd=ROOT, start_new_session=True)
+    sched = subprocess.Popen(
+        [
+            os.path.join(BIN, "dask"),
+            "scheduler",
+            "--host",
+            "127.0.0.1",
+            "--port",
+            str(port),
+            "--dashboard-address",
+            ":0",
+        ],
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+        start_new_session=True,
+    )
+    worker = subprocess.Popen(
+        [
+            os.path.join(BIN, "dask"),
+            "worker",
+            f"tcp://127.0.0.1:{port}",
+            "--nworkers",
+            "2",
+            "--nthreads",
+            "1",
+            "--dashboard-address",
+            ":0",
+        ],
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+        cwd=ROOT,
+        start_new_session=True,
+    )
     try:
         from distributed import Client
 
@@ -81,8 +103,19 @@ def test_rows_from_a_real_cluster_equal_analyze(archive, tmp_path):
                 pass
             time.sleep(0.5)
         out = tmp_path / "rows.parquet"
-        p = _batch([str(archive / "run*.nc"), "--levels", "850,500", *_box_args(), "--out",
-                    str(out), "--scheduler", f"tcp://127.0.0.1:{port}"], cwd=ROOT)
+        p = _batch(
+            [
+                str(archive / "run*.nc"),
+                "--levels",
+                "850,500",
+                *_box_args(),
+                "--out",
+                str(out),
+                "--scheduler",
+                f"tcp://127.0.0.1:{port}",
+            ],
+            cwd=ROOT,
+        )
         assert p.returncode == 0, p.stderr + p.stdout
         assert "verdicts by level and region" in p.stdout
         rows = pd.read_parquet(out)
@@ -103,10 +136,15 @@ def test_rows_from_a_real_cluster_equal_analyze(archive, tmp_path):
             for lev in (850.0, 500.0):
                 for b in BOXES:
                     name = f"box {','.join(f'{v:g}' for v in b)}"
-                    want = flatten(analyse_case(case, lev, t, b),
-                                   Task(str(path), None, t, lev, ()), name)
-                    got = rows[(rows.file == path.name) & (rows.valid_time == want["valid_time"])
-                               & (rows.level_hpa == lev) & (rows.region == name)]
+                    want = flatten(
+                        analyse_case(case, lev, t, b), Task(str(path), None, t, lev, ()), name
+                    )
+                    got = rows[
+                        (rows.file == path.name)
+                        & (rows.valid_time == want["valid_time"])
+                        & (rows.level_hpa == lev)
+                        & (rows.region == name)
+                    ]
                     assert len(got) == 1
                     got = got.iloc[0]
                     for k, v in want.items():
@@ -122,14 +160,21 @@ def test_a_run_killed_partway_goes_on_without_gaps_or_repeats(archive, tmp_path)
     many = tmp_path / "many"
     many.mkdir()
     for i in range(4):
-        ds, _ = latlon_dataset(np.linspace(20, 70, 26), np.linspace(-60, 20, 41),
-                               levels=np.array([1000, 925, 850, 700, 500, 300, 250.0]))
+        ds, _ = latlon_dataset(
+            np.linspace(20, 70, 26),
+            np.linspace(-60, 20, 41),
+            levels=np.array([1000, 925, 850, 700, 500, 300, 250.0]),
+        )
         ds.to_netcdf(many / f"f{i}.nc")
     args = [str(many / "f*.nc"), "--levels", "850,700,500,300", *_box_args(), "--workers", "2"]
     out = tmp_path / "rows.csv"
-    proc = subprocess.Popen([sys.executable, "-m", "app.cli", "batch", *args, "--out",
-                             str(out)], cwd=ROOT, stdout=subprocess.DEVNULL,
-                            stderr=subprocess.DEVNULL, start_new_session=True)
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "app.cli", "batch", *args, "--out", str(out)],
+        cwd=ROOT,
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+        start_new_session=True,
+    )
     parts = tmp_path / "rows.csv.parts"
     deadline = time.time() + 300
     while time.time() < deadline:
@@ -159,8 +204,19 @@ def test_a_bad_file_is_one_error_and_the_others_are_analysed(archive, tmp_path):
         (folder / f.name).write_bytes(f.read_bytes())
     (folder / "broken.nc").write_bytes(b"this is not a NetCDF file")
     out = tmp_path / "rows.csv"
-    p = _batch([str(folder / "*.nc"), "--levels", "500", *_box_args(), "--out", str(out),
-                "--workers", "1"], cwd=ROOT)
+    p = _batch(
+        [
+            str(folder / "*.nc"),
+            "--levels",
+            "500",
+            *_box_args(),
+            "--out",
+            str(out),
+            "--workers",
+            "1",
+        ],
+        cwd=ROOT,
+    )
     assert p.returncode == 0, p.stderr + p.stdout
     rows = pd.read_csv(out)
     errors = pd.read_csv(tmp_path / "rows.errors.csv")
@@ -171,14 +227,37 @@ def test_a_bad_file_is_one_error_and_the_others_are_analysed(archive, tmp_path):
 
 def test_bad_arguments_are_one_sentence(tmp_path):
     for args, words in (
-            (["nothing*.nc", "--levels", "500", "--systems", "--out", str(tmp_path / "a.csv")],
-             "no file matches"),
-            ([str(tmp_path / "x.nc"), "--levels", "500", "--systems", "--out",
-              str(tmp_path / "a.txt")], "must end in .parquet or .csv"),
-            ([str(tmp_path / "x.nc"), "--levels", "5000", "--systems", "--out",
-              str(tmp_path / "a.csv")], "--levels must lie"),
-            ([str(tmp_path / "x.nc"), "--levels", "500", "--out", str(tmp_path / "a.csv")],
-             "one of the arguments")):
+        (
+            ["nothing*.nc", "--levels", "500", "--systems", "--out", str(tmp_path / "a.csv")],
+            "no file matches",
+        ),
+        (
+            [
+                str(tmp_path / "x.nc"),
+                "--levels",
+                "500",
+                "--systems",
+                "--out",
+                str(tmp_path / "a.txt"),
+            ],
+            "must end in .parquet or .csv",
+        ),
+        (
+            [
+                str(tmp_path / "x.nc"),
+                "--levels",
+                "5000",
+                "--systems",
+                "--out",
+                str(tmp_path / "a.csv"),
+            ],
+            "--levels must lie",
+        ),
+        (
+            [str(tmp_path / "x.nc"), "--levels", "500", "--out", str(tmp_path / "a.csv")],
+            "one of the arguments",
+        ),
+    ):
         (tmp_path / "x.nc").write_bytes(b"")
         p = _batch(args, cwd=ROOT)
         assert p.returncode == 2 and words in p.stderr, (args, p.stderr)
@@ -223,8 +302,22 @@ def test_workers_too_small_for_a_piece_end_the_run_with_a_sentence(archive, tmp_
     # pieces as not analysed -- and leave nothing half-written
     env = dict(os.environ, BALANCE_DESK_BATCH_NO_WORKER_S="20")
     out = tmp_path / "rows.csv"
-    p = _batch([str(archive / "run0.nc"), "--levels", "500", *_box_args(), "--out", str(out),
-                "--workers", "1", "--memory-limit", "120MB"], cwd=ROOT, env=env)
+    p = _batch(
+        [
+            str(archive / "run0.nc"),
+            "--levels",
+            "500",
+            *_box_args(),
+            "--out",
+            str(out),
+            "--workers",
+            "1",
+            "--memory-limit",
+            "120MB",
+        ],
+        cwd=ROOT,
+        env=env,
+    )
     if p.returncode == 2:
         last = p.stderr.strip().splitlines()[-1]
         assert "no worker has been left" in last and "run again to go on" in last
@@ -235,8 +328,7 @@ def test_workers_too_small_for_a_piece_end_the_run_with_a_sentence(archive, tmp_
     assert not list((tmp_path / "rows.csv.parts").glob(".*.tmp"))
 
 
-def test_a_run_in_this_process_leaves_its_environment_as_it_was(archive, tmp_path,
-                                                               monkeypatch):
+def test_a_run_in_this_process_leaves_its_environment_as_it_was(archive, tmp_path, monkeypatch):
     """A LocalCluster's nanny sets its workers' OMP_NUM_THREADS=1 (and more) in the process
     that starts them, for good; run_batch puts them back, so that a program calling it
     keeps its band pool on every core afterwards (balance_core.budget.band_threads)."""
@@ -247,9 +339,15 @@ def test_a_run_in_this_process_leaves_its_environment_as_it_was(archive, tmp_pat
     before_seed = os.environ.get("PYTHONHASHSEED")
     assert worker_environment()["OMP_NUM_THREADS"] == "1"
     out = str(tmp_path / "rows.csv")
-    counts = run_batch([str(archive / "run0.nc")], [500.0], out,
-                       boxes=[("a", BOXES[0])], workers=1, say=lambda *a: None,
-                       err=lambda *a: None)
+    counts = run_batch(
+        [str(archive / "run0.nc")],
+        [500.0],
+        out,
+        boxes=[("a", BOXES[0])],
+        workers=1,
+        say=lambda *a: None,
+        err=lambda *a: None,
+    )
     assert counts["rows"] == 3 and counts["errors"] == 0, counts  # its 3 valid times
     assert "OMP_NUM_THREADS" not in os.environ
     assert os.environ["MALLOC_TRIM_THRESHOLD_"] == "12345"

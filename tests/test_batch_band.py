@@ -21,8 +21,14 @@ PIECES = [
     # path, member, time index, level, boxes, a band expected (the flow's length scale reads
     # 2500 km of columns beyond a box: on the small domains that is the whole grid)
     (GFS, None, 0, 850.0, [("rockies", (-115.0, -95.0, 35.0, 50.0))], True),  # below ground
-    (GFS, None, 0, 500.0, [("atlantic", (-60.0, -10.0, 35.0, 65.0)),
-                           ("pacific", (150.0, -140.0, 30.0, 60.0))], True),  # across 180
+    (
+        GFS,
+        None,
+        0,
+        500.0,
+        [("atlantic", (-60.0, -10.0, 35.0, 65.0)), ("pacific", (150.0, -140.0, 30.0, 60.0))],
+        True,
+    ),  # across 180
     (GFS, None, 0, 850.0, [("south", (-70.0, 20.0, -60.0, -30.0))], True),
     (ETA, None, 0, 500.0, [("plains", (-105.0, -90.0, 32.0, 42.0))], False),
     (SAMPLE, None, 1, 850.0, [("core", (-45.0, -25.0, 38.0, 50.0))], False),
@@ -35,11 +41,14 @@ def _same(a, b):
     return a == b
 
 
-@pytest.mark.parametrize("path, member, t, level, boxes, banded", PIECES,
-                         ids=[f"{os.path.basename(p[0])}-{int(p[3])}-{p[4][0][0]}"
-                              for p in PIECES])
-def test_a_piece_on_a_band_of_rows_equals_analyze_on_the_whole_grid(path, member, t, level,
-                                                                    boxes, banded):
+@pytest.mark.parametrize(
+    "path, member, t, level, boxes, banded",
+    PIECES,
+    ids=[f"{os.path.basename(p[0])}-{int(p[3])}-{p[4][0][0]}" for p in PIECES],
+)
+def test_a_piece_on_a_band_of_rows_equals_analyze_on_the_whole_grid(
+    path, member, t, level, boxes, banded
+):
     if not os.path.exists(path):
         if os.environ.get("CI"):
             pytest.fail(f"{path} is missing: make test fetches it", pytrace=False)
@@ -73,4 +82,4 @@ def test_a_box_over_most_of_the_grid_is_computed_on_the_whole_grid():
     case = open_case(SAMPLE)
     assert _band(case, [("all", (-70.0, 0.0, 26.0, 64.0))]) is None
     assert _band(case, [("none", (100.0, 120.0, 26.0, 64.0))]) is None  # no point: analyze says
-    assert _band(case, [("bad", (-70.0, 0.0, 64.0, 26.0))]) is None    # south > north: likewise
+    assert _band(case, [("bad", (-70.0, 0.0, 64.0, 26.0))]) is None  # south > north: likewise

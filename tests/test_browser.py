@@ -11,7 +11,6 @@ import time
 
 import numpy as np
 import pytest
-
 from chromium import launched, require
 from serving import start_server, stop_server
 
@@ -93,10 +92,12 @@ def test_page_loads_without_errors(server, browser):
 
 
 def test_drawing_a_box_changes_the_ranking_and_verdict(server, browser):
-    page, errors = _page(browser, server + "?case=ocean_cyclone&level=500&time="
-                         "2041-01-19T12:00:00Z")
-    before = _wait_for(page, lambda: re.search(r"Geostrophic", _verdict_text(page)) and
-                       _verdict_text(page))
+    page, errors = _page(
+        browser, server + "?case=ocean_cyclone&level=500&time=2041-01-19T12:00:00Z"
+    )
+    before = _wait_for(
+        page, lambda: re.search(r"Geostrophic", _verdict_text(page)) and _verdict_text(page)
+    )
     bb = _main_canvas(page)
     # drag across the south of the chart (the jet's warm flank), away from the suggested box
     x0, y0 = bb["x"] + bb["width"] * 0.55, bb["y"] + bb["height"] * 0.72
@@ -127,8 +128,11 @@ def test_changing_the_level_updates_the_chart(server, browser):
 
 
 def test_sea_level_in_the_level_menu_draws_isobars_and_the_surface_verdict(server, browser):
-    page, errors = _page(browser, server + "?case=ocean_cyclone&level=500"
-                         "&time=2041-01-19T12%3A00%3A00Z&region=box%3A-52%2C-28%2C38%2C56")
+    page, errors = _page(
+        browser,
+        server + "?case=ocean_cyclone&level=500"
+        "&time=2041-01-19T12%3A00%3A00Z&region=box%3A-52%2C-28%2C38%2C56",
+    )
     _wait_for(page, lambda: "500 hPa" in _chart_title(page))
     page.locator("select").nth(1).select_option(label="sea level")
     _wait_for(page, lambda: "sea level" in _chart_title(page))
@@ -142,11 +146,19 @@ def test_sea_level_in_the_level_menu_draws_isobars_and_the_surface_verdict(serve
 
 
 def test_a_link_reopens_the_view(server, browser):
-    link = (server + "?case=tropical_cyclone&level=850&time=2038-09-04T06%3A00%3A00Z"
-            "&field=rossby_local&projection=conformal&wind_units=kt")
+    link = (
+        server + "?case=tropical_cyclone&level=850&time=2038-09-04T06%3A00%3A00Z"
+        "&field=rossby_local&projection=conformal&wind_units=kt"
+    )
     page, errors = _page(browser, link)
-    _wait_for(page, lambda: "tropical_cyclone" in _chart_title(page) and
-              "850 hPa" in _chart_title(page) and "06 UTC" in _chart_title(page))
+    _wait_for(
+        page,
+        lambda: (
+            "tropical_cyclone" in _chart_title(page)
+            and "850 hPa" in _chart_title(page)
+            and "06 UTC" in _chart_title(page)
+        ),
+    )
     _wait_for(page, lambda: "Cyclostrophic" in _verdict_text(page))
     assert "local Rossby" in page.locator("text=local Rossby number |zeta / f|").first.inner_text()
     _shot(page, "04_link_tropical_cyclone")
@@ -155,8 +167,9 @@ def test_a_link_reopens_the_view(server, browser):
 
 
 def test_errors_show_in_the_page(server, browser):
-    page, errors = _page(browser, server + "?case=ocean_cyclone&level=500&region="
-                         "box%3A100%2C110%2C-10%2C0")
+    page, errors = _page(
+        browser, server + "?case=ocean_cyclone&level=500&region=box%3A100%2C110%2C-10%2C0"
+    )
     _wait_for(page, lambda: page.locator("text=holds no grid points").count() > 0)
     _shot(page, "05_box_without_points")
     # the page keeps working: back to the whole case
@@ -167,8 +180,9 @@ def test_errors_show_in_the_page(server, browser):
 
 
 def test_sea_breeze_and_scale_sheet(server, browser):
-    page, errors = _page(browser, server + "?case=sea_breeze&level=1000&field=speed"
-                         "&time=2039-06-21T15%3A00%3A00Z")
+    page, errors = _page(
+        browser, server + "?case=sea_breeze&level=1000&field=speed&time=2039-06-21T15%3A00%3A00Z"
+    )
     _wait_for(page, lambda: "Unsteady" in _verdict_text(page))
     page.locator("text=A priori scale sheet").first.click()
     page.wait_for_timeout(800)
@@ -289,17 +303,23 @@ def test_the_briefing_outline_lies_where_the_typed_box_is(server, browser):
     page, errors = _page(browser, server + OCEAN)
     _wait_for(page, lambda: _verdict_text(page))
     edges = {}
-    boxes = {"a": (-60, -45, 35, 45), "b": (-40, -25, 35, 45), "c": (-60, -45, 50, 60),
-             "d": (-35, -15, 45, 58)}
+    boxes = {
+        "a": (-60, -45, 35, 45),
+        "b": (-40, -25, 35, 45),
+        "c": (-60, -45, 50, 60),
+        "d": (-35, -15, 45, 58),
+    }
     for key, box in boxes.items():
         _set_box(page, box)
         # the verdict's footer names the box once its report is computed
-        _wait_for(page, lambda: f"{abs(box[0]):.1f}W to {abs(box[1]):.1f}W" in
-                  _verdict_text(page))
+        _wait_for(
+            page,
+            lambda box=box: f"{abs(box[0]):.1f}W to {abs(box[1]):.1f}W" in _verdict_text(page),
+        )
         edges[key] = _outline_edges(_download(page, "Briefing image (PNG)"))
     (la, ra, ta, ba), (lb, _, _, _), (_, _, tc, _) = edges["a"], edges["b"], edges["c"]
-    kx = (lb - la) / (boxes["b"][0] - boxes["a"][0])           # px per degree east
-    ky = (tc - ta) / (boxes["c"][3] - boxes["a"][3])           # px per degree north (< 0)
+    kx = (lb - la) / (boxes["b"][0] - boxes["a"][0])  # px per degree east
+    ky = (tc - ta) / (boxes["c"][3] - boxes["a"][3])  # px per degree north (< 0)
     assert kx > 0 and ky < 0
     x = lambda lon: la + kx * (lon - boxes["a"][0])  # noqa: E731
     y = lambda lat: ta + ky * (lat - boxes["a"][3])  # noqa: E731
@@ -331,12 +351,15 @@ def test_at_a_laptop_size_the_verdict_and_ranking_are_in_view(server, browser):
     page.close()
 
 
-@pytest.mark.parametrize("size, zoom, name", [((1920, 1080), 1, "09_desk_1920x1080"),
-                                              ((960, 540), 2, "10_zoom_200_percent")])
+@pytest.mark.parametrize(
+    "size, zoom, name",
+    [((1920, 1080), 1, "09_desk_1920x1080"), ((960, 540), 2, "10_zoom_200_percent")],
+)
 def test_screens_at_desk_size_and_at_double_zoom(server, browser, size, zoom, name):
     # 200 % browser zoom is a CSS viewport of half the screen at two device pixels each
-    page = browser.new_page(viewport={"width": size[0], "height": size[1]},
-                            device_scale_factor=zoom)
+    page = browser.new_page(
+        viewport={"width": size[0], "height": size[1]}, device_scale_factor=zoom
+    )
     page.goto(server + OCEAN)
     page.locator(".bd-verdict").first.wait_for(timeout=60_000)
     page.wait_for_timeout(1200)
@@ -356,15 +379,18 @@ def test_after_knots_no_number_in_the_page_is_in_metres_per_second(server, brows
     _wait_for(page, lambda: _verdict_text(page))
     assert WIND_IN_MS.search(_all_text(page))  # the check can fail: m/s before the switch
     page.get_by_role("button", name="kt", exact=True).click()
-    _wait_for(page, lambda: "wind_units=kt" in page.url and
-              re.search(r"\d\s*kt", _all_text(page)))
+    _wait_for(page, lambda: "wind_units=kt" in page.url and re.search(r"\d\s*kt", _all_text(page)))
     page.wait_for_timeout(1500)  # let every part that follows the unit be redrawn
-    for tab in ("Through the levels", "Through the times", "A priori scale sheet",
-                "Notes on the data"):
+    for tab in (
+        "Through the levels",
+        "Through the times",
+        "A priori scale sheet",
+        "Notes on the data",
+    ):
         page.locator(f"text={tab}").first.click()
         page.wait_for_timeout(1500)
         text = _all_text(page)
-        hits = [text[max(0, m.start() - 40): m.end()] for m in WIND_IN_MS.finditer(text)]
+        hits = [text[max(0, m.start() - 40) : m.end()] for m in WIND_IN_MS.finditer(text)]
         assert not hits, (tab, hits)
     assert errors == [], errors
     page.close()
@@ -380,8 +406,9 @@ def test_an_invented_case_says_so_in_the_page_and_in_the_briefing(server, browse
     mark = np.abs(im - np.array(INVENTED_RGB)).max(axis=-1) <= 6
     rows, cols = np.nonzero(mark)
     # a solid band across the top right of the image
-    assert mark.sum() > 5000 and rows.max() < 0.15 * im.shape[0] and \
-        cols.min() > 0.3 * im.shape[1], (mark.sum(), rows.max(), cols.min())
+    assert (
+        mark.sum() > 5000 and rows.max() < 0.15 * im.shape[0] and cols.min() > 0.3 * im.shape[1]
+    ), (mark.sum(), rows.max(), cols.min())
     assert errors == [], errors
     page.close()
 
@@ -393,8 +420,16 @@ def test_a_burst_of_level_changes_never_shows_a_level_the_header_does_not(server
     _wait_for(page, lambda: _verdict_text(page))
     select = page.get_by_label("Level", exact=True)
     readings = []
-    for label in ("850 hPa", "700 hPa", "300 hPa", "1000 hPa", "250 hPa", "500 hPa",
-                  "925 hPa", "700 hPa"):
+    for label in (
+        "850 hPa",
+        "700 hPa",
+        "300 hPa",
+        "1000 hPa",
+        "250 hPa",
+        "500 hPa",
+        "925 hPa",
+        "700 hPa",
+    ):
         select.select_option(label=label)
         for _ in range(3):
             readings.append(page.evaluate(LEVELS_NOW_JS))
@@ -403,14 +438,19 @@ def test_a_burst_of_level_changes_never_shows_a_level_the_header_does_not(server
     while time.time() - t0 < 30:
         r = page.evaluate(LEVELS_NOW_JS)
         readings.append(r)
-        if r["header"] == "700" and all(r[k] and r[k][0] == "700" and r[k][1] > 0.99
-                                        for k in ("chart", "verdict")):
+        if r["header"] == "700" and all(
+            r[k] and r[k][0] == "700" and r[k][1] > 0.99 for k in ("chart", "verdict")
+        ):
             break
         page.wait_for_timeout(50)
     else:
         raise AssertionError(f"the page did not settle on 700 hPa: {readings[-1]}")
-    wrong = [r for r in readings for k in ("chart", "verdict")
-             if r[k] and r[k][0] != r["header"] and r[k][1] > 0.5]
+    wrong = [
+        r
+        for r in readings
+        for k in ("chart", "verdict")
+        if r[k] and r[k][0] != r["header"] and r[k][1] > 0.5
+    ]
     assert not wrong, wrong
     # the readings saw the panels faded at least once (the check can see a busy state)
     assert any(r[k] and r[k][1] < 0.5 for r in readings for k in ("chart", "verdict"))
@@ -420,8 +460,10 @@ def test_a_burst_of_level_changes_never_shows_a_level_the_header_does_not(server
 
 #: the one way the page writes a time: "Tue 19 Jan 2041 12 UTC", with an optional run and
 #: lead "(run 19 Jan 00 UTC, +12 h)"; short forms on axes "19 Jan 12 UTC"
-LONG_TIME = re.compile(r"\b(Mon|Tue|Wed|Thu|Fri|Sat|Sun) \d\d (Jan|Feb|Mar|Apr|May|Jun|Jul|Aug"
-                       r"|Sep|Oct|Nov|Dec) \d{4} \d\d(:\d\d)? UTC\b")
+LONG_TIME = re.compile(
+    r"\b(Mon|Tue|Wed|Thu|Fri|Sat|Sun) \d\d (Jan|Feb|Mar|Apr|May|Jun|Jul|Aug"
+    r"|Sep|Oct|Nov|Dec) \d{4} \d\d(:\d\d)? UTC\b"
+)
 OTHER_TIME = re.compile(r"\d{4}-\d\d-\d\d[T ]\d\d:\d\d|\d\d:\d\d(:\d\d)?Z|\d\d:\d\d UTC")
 
 
@@ -429,13 +471,17 @@ def test_one_time_format_throughout(server, browser):
     page, errors = _page(browser, server + OCEAN)
     _wait_for(page, lambda: _verdict_text(page))
     seen = []
-    for tab in ("Through the levels", "Through the times", "A priori scale sheet",
-                "Notes on the data"):
+    for tab in (
+        "Through the levels",
+        "Through the times",
+        "A priori scale sheet",
+        "Notes on the data",
+    ):
         page.locator(f"text={tab}").first.click()
         page.wait_for_timeout(1500)
         text = _all_text(page)
         seen += LONG_TIME.findall(text)
-        others = [text[max(0, m.start() - 30): m.end() + 10] for m in OTHER_TIME.finditer(text)]
+        others = [text[max(0, m.start() - 30) : m.end() + 10] for m in OTHER_TIME.finditer(text)]
         assert not others, (tab, others)
     assert seen  # the check reads times: the header, the chart title, the time menu
     assert errors == [], errors

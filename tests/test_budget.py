@@ -5,15 +5,19 @@ import pyproj
 import pytest
 
 import balance_core.budget as budget_mod
-from balance_core import TERMS, Fields, Grid, momentum_budget
-from balance_core import analytic
+from balance_core import TERMS, Fields, Grid, analytic, momentum_budget
 from balance_core import constants as C
 
 
 def _steady(case):
     stack = lambda a: np.broadcast_to(a, (3, 1) + a.shape)  # noqa: E731
-    return Fields(stack(case.u), stack(case.v), stack(case.geopotential / C.G0),
-                  pressure=[50000.0], time=[0.0, 3600.0, 7200.0])
+    return Fields(
+        stack(case.u),
+        stack(case.v),
+        stack(case.geopotential / C.G0),
+        pressure=[50000.0],
+        time=[0.0, 3600.0, 7200.0],
+    )
 
 
 def test_williamson_case2_residual_converges_at_second_order():
@@ -34,7 +38,7 @@ def test_williamson_pressure_gradient_balances_coriolis_metric_advection():
     sx = sum(b[n].x for n in ("coriolis", "metric_uv", "horizontal_advection"))[rows]
     sy = sum(b[n].y for n in ("coriolis", "metric_uv", "horizontal_advection"))[rows]
     px, py = b["pressure_gradient"].x[rows], b["pressure_gradient"].y[rows]
-    rel = np.sqrt(np.mean((px + sx) ** 2 + (py + sy) ** 2) / np.mean(px ** 2 + py ** 2))
+    rel = np.sqrt(np.mean((px + sx) ** 2 + (py + sy) ** 2) / np.mean(px**2 + py**2))
     assert rel < 1e-3
     # the tendency is exactly zero for three equal times
     assert np.all(b["tendency"].x == 0)
@@ -43,9 +47,16 @@ def test_williamson_pressure_gradient_balances_coriolis_metric_advection():
 def _random_fields(rng, nt=3, nk=3, shape=(20, 30), dtype=np.float64):
     def f(base, amp):
         return (base + amp * rng.standard_normal((nt, nk) + shape)).astype(dtype)
-    return Fields(f(10, 5), f(0, 5), f(5500, 30), pressure=[85000.0, 70000.0, 50000.0][:nk],
-                  time=np.arange(nt) * 10800.0 if nt > 1 else None, omega=f(0, 0.2),
-                  temperature=f(260, 3))
+
+    return Fields(
+        f(10, 5),
+        f(0, 5),
+        f(5500, 30),
+        pressure=[85000.0, 70000.0, 50000.0][:nk],
+        time=np.arange(nt) * 10800.0 if nt > 1 else None,
+        omega=f(0, 0.2),
+        temperature=f(260, 3),
+    )
 
 
 def test_closure_is_exact(rng):
@@ -103,6 +114,7 @@ def test_standard_atmosphere_density_without_temperature(rng):
     assert any("standard atmosphere" in n for n in b.notes)
     # w = -omega / (rho g) with the 1976 density at 700 hPa
     from balance_core.thermo import standard_atmosphere_density
+
     rho = standard_atmosphere_density(70000.0)
     w = -f.omega[1, 1] / (rho * C.G0)
     np.testing.assert_allclose(b["coriolis_w"].x, -2 * C.OMEGA * np.cos(np.deg2rad(g.lat)) * w)
@@ -134,7 +146,7 @@ def test_tendency_of_translating_field():
 def test_vertical_advection_on_uneven_levels():
     g = Grid.latlon(np.linspace(30, 40, 5), np.linspace(0, 10, 6))
     p = np.array([100000, 92500, 85000, 70000, 50000.0])
-    u = (2e-8 * p ** 2)[None, :, None, None] * np.ones((1, 5, 5, 6))  # quadratic in p: exact
+    u = (2e-8 * p**2)[None, :, None, None] * np.ones((1, 5, 5, 6))  # quadratic in p: exact
     om = np.full((1, 5, 5, 6), 0.3)
     f = Fields(u, np.zeros_like(u), 5500 + 0 * u, p, None, om, 250 + 0 * u)
     for k in range(5):
@@ -150,7 +162,9 @@ def test_solid_body_rotation_terms():
     b = momentum_budget(case.grid, _steady(case), 1, 0)
     phi = np.deg2rad(case.grid.lat)
     u = case.u
-    np.testing.assert_allclose(b["metric_uv"].y, -u ** 2 * np.tan(phi) / case.grid.radius, rtol=1e-12)
+    np.testing.assert_allclose(
+        b["metric_uv"].y, -(u**2) * np.tan(phi) / case.grid.radius, rtol=1e-12
+    )
     np.testing.assert_allclose(b["coriolis"].y, -case.grid.f * u, rtol=1e-12)
     assert np.abs(b["horizontal_advection"].x).max() < 1e-12
 
@@ -158,7 +172,9 @@ def test_solid_body_rotation_terms():
 @pytest.mark.parametrize("projected", [False, True])
 def test_bands_match_one_piece(rng, monkeypatch, projected):
     if projected:
-        crs = pyproj.CRS.from_proj4("+proj=lcc +lat_1=45 +lat_2=45 +lat_0=45 +lon_0=0 +R=6371008.7714")
+        crs = pyproj.CRS.from_proj4(
+            "+proj=lcc +lat_1=45 +lat_2=45 +lat_0=45 +lon_0=0 +R=6371008.7714"
+        )
         g = Grid.projected(np.arange(-6e5, 6e5 + 1, 3e4), np.arange(-6e5, 6e5 + 1, 3e4), crs)
     else:
         g = Grid.latlon(np.linspace(-85, 85, 41), np.arange(0, 360, 9.0))
@@ -175,8 +191,7 @@ def test_bands_match_one_piece(rng, monkeypatch, projected):
 def test_band_threads_follow_the_cpus_given_and_omp_num_threads(monkeypatch):
     """A dask worker gets OMP_NUM_THREADS=1 (distributed's pre-spawn environment); its
     bands are then computed in the calling thread, not in a pool of their own."""
-    monkeypatch.setattr(budget_mod.os, "sched_getaffinity", lambda pid: {0, 1, 2, 3},
-                        raising=False)
+    monkeypatch.setattr(budget_mod.os, "sched_getaffinity", lambda pid: {0, 1, 2, 3}, raising=False)
     monkeypatch.delenv("OMP_NUM_THREADS", raising=False)
     assert budget_mod.band_threads() == 4
     monkeypatch.setenv("OMP_NUM_THREADS", "not a number")
@@ -209,8 +224,13 @@ def test_one_thread_computes_the_bands_in_the_calling_thread(rng, monkeypatch):
 def test_float32_input_computed_in_float64(rng):
     g = Grid.latlon(np.linspace(20, 60, 20), np.linspace(-40, 20, 30))
     f64 = _random_fields(rng)
-    f32 = Fields(*(a.astype(np.float32) for a in (f64.u, f64.v, f64.height)), f64.pressure,
-                 f64.time, f64.omega.astype(np.float32), f64.temperature.astype(np.float32))
+    f32 = Fields(
+        *(a.astype(np.float32) for a in (f64.u, f64.v, f64.height)),
+        f64.pressure,
+        f64.time,
+        f64.omega.astype(np.float32),
+        f64.temperature.astype(np.float32),
+    )
     b32 = momentum_budget(g, f32, 1, 1)
     assert all(b32[n].x.dtype == np.float64 for n in TERMS)
     cx, _ = b32.closure()

@@ -14,10 +14,9 @@ import time
 
 import numpy as np
 import pytest
+from makedata import latlon_dataset
 
 from app.cli import main
-
-from makedata import latlon_dataset
 
 ROOT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..")
 LAT = np.arange(60.0, 39.9, -2.0)
@@ -25,8 +24,14 @@ LON = np.arange(-20.0, 20.1, 2.0)
 
 
 def run(*args, timeout=120, env=None):
-    r = subprocess.run([sys.executable, "-m", "app.cli", *args], capture_output=True, text=True,
-                       timeout=timeout, cwd=ROOT, env=env)
+    r = subprocess.run(
+        [sys.executable, "-m", "app.cli", *args],
+        capture_output=True,
+        text=True,
+        timeout=timeout,
+        cwd=ROOT,
+        env=env,
+    )
     return r.returncode, r.stdout, r.stderr
 
 
@@ -43,7 +48,6 @@ def one_sentence(err):
 
 def mixed_grib(tmp):
     from gribwrite import write_grib2
-
     from makedata import truth
 
     def fields(lat, lon):
@@ -55,28 +59,40 @@ def mixed_grib(tmp):
     path = os.path.join(tmp, "mixed.grib2")
     a = dict(kind="regular_ll", lat0=40.0, lat1=60.0, lon0=340.0, lon1=20.0, dlat=2.0, dlon=2.0)
     b = dict(kind="regular_ll", lat0=40.0, lat1=60.0, lon0=340.0, lon1=20.0, dlat=1.0, dlon=1.0)
-    fa, fb = fields(np.arange(40.0, 60.1, 2), np.arange(-20.0, 20.1, 2)), \
-        fields(np.arange(40.0, 60.1, 1), np.arange(-20.0, 20.1, 1))
+    fa, fb = (
+        fields(np.arange(40.0, 60.1, 2), np.arange(-20.0, 20.1, 2)),
+        fields(np.arange(40.0, 60.1, 1), np.arange(-20.0, 20.1, 1)),
+    )
     write_grib2(path, a, {"gh": fa["gh"]}, [500.0], [(20400203, 0)], uv_relative=False)
-    write_grib2(path, b, {"u": fb["u"], "v": fb["v"]}, [500.0], [(20400203, 0)],
-                uv_relative=False, mode="ab")
+    write_grib2(
+        path,
+        b,
+        {"u": fb["u"], "v": fb["v"]},
+        [500.0],
+        [(20400203, 0)],
+        uv_relative=False,
+        mode="ab",
+    )
     return path
 
 
-@pytest.mark.parametrize("fault, build, extra, fragment", [
-    ("one_point_no_latitude", lambda t: _one_point(t), [], "has no horizontal grid"),
-    ("grib_fields_of_mixed_sizes", mixed_grib, [], "is not on the height's grid"),
-    ("time_superscript_two", good, ["--time", "\u00b2"], "neither an index nor an ISO 8601"),
-    ("smoothing_1e308", good, ["--smooth", "1e308"], "exceeds the size of the domain"),
-    ("smoothing_1e9", good, ["--smooth", "1e9"], "exceeds the size of the domain"),
-    ("member_without_members", good, ["--member", "5"], "has no ensemble member dimension"),
-    ("member_mean_without_members", good, ["--member", "mean"], "no member can be averaged"),
-    ("min_lat_95", good, ["--min-lat", "95"], "--min-lat must lie from 0 to 60"),
-    ("min_lat_negative", good, ["--min-lat", "-5"], "--min-lat must lie from 0 to 60"),
-    ("box_longitude_1e300", good, ["--box", "1e300,10,40,50"], "within -360 to 360"),
-    ("box_longitude_nan", good, ["--box", "nan,10,40,50"], "finite"),
-    ("memory_budget_nonsense", good, ["--memory-budget", "lots"], "must be a size"),
-])
+@pytest.mark.parametrize(
+    "fault, build, extra, fragment",
+    [
+        ("one_point_no_latitude", lambda t: _one_point(t), [], "has no horizontal grid"),
+        ("grib_fields_of_mixed_sizes", mixed_grib, [], "is not on the height's grid"),
+        ("time_superscript_two", good, ["--time", "\u00b2"], "neither an index nor an ISO 8601"),
+        ("smoothing_1e308", good, ["--smooth", "1e308"], "exceeds the size of the domain"),
+        ("smoothing_1e9", good, ["--smooth", "1e9"], "exceeds the size of the domain"),
+        ("member_without_members", good, ["--member", "5"], "has no ensemble member dimension"),
+        ("member_mean_without_members", good, ["--member", "mean"], "no member can be averaged"),
+        ("min_lat_95", good, ["--min-lat", "95"], "--min-lat must lie from 0 to 60"),
+        ("min_lat_negative", good, ["--min-lat", "-5"], "--min-lat must lie from 0 to 60"),
+        ("box_longitude_1e300", good, ["--box", "1e300,10,40,50"], "within -360 to 360"),
+        ("box_longitude_nan", good, ["--box", "nan,10,40,50"], "finite"),
+        ("memory_budget_nonsense", good, ["--memory-budget", "lots"], "must be a size"),
+    ],
+)
 def test_input_faults_exit_2_with_one_sentence(tmp_path, fault, build, extra, fragment):
     path = build(str(tmp_path))
     code, out, err = run("analyze", path, "--level", "500", *extra)
@@ -126,8 +142,12 @@ def test_a_file_name_that_is_not_utf8(tmp_path):
     raw = os.path.join(os.fsencode(str(tmp_path)), b"caf\xe9.nc")
     with open(raw, "wb") as fh:
         fh.write(data)
-    r = subprocess.run([sys.executable.encode(), b"-m", b"app.cli", b"analyze", raw, b"--level",
-                        b"500"], capture_output=True, cwd=ROOT, timeout=120)
+    r = subprocess.run(
+        [sys.executable.encode(), b"-m", b"app.cli", b"analyze", raw, b"--level", b"500"],
+        capture_output=True,
+        cwd=ROOT,
+        timeout=120,
+    )
     err = r.stderr.decode("utf-8", "replace")
     assert r.returncode == 2 and "not valid UTF-8" in err and "damaged" not in err, err
     assert "caf\\xe9.nc" in err
@@ -142,8 +162,16 @@ def test_a_newline_in_a_file_name_gives_one_line(tmp_path):
 
 
 def test_a_time_with_a_zone_offset_gives_no_warning(tmp_path):
-    code, out, err = run("analyze", good(str(tmp_path)), "--level", "500", "--time",
-                         "2040-02-03T07:00+01:00", "--format", "json")
+    code, out, err = run(
+        "analyze",
+        good(str(tmp_path)),
+        "--level",
+        "500",
+        "--time",
+        "2040-02-03T07:00+01:00",
+        "--format",
+        "json",
+    )
     assert code == 0 and err == "", err
     assert '"valid_time": "2040-02-03T06:00:00Z"' in out
 
@@ -159,13 +187,30 @@ def test_a_file_declaring_huge_dimensions_is_refused_from_its_metadata(tmp_path)
     # A fresh parent runs the command and reports its only child's peak resident memory
     # (Linux reports kB); RUSAGE_CHILDREN of this test process would include every child
     # any earlier test started.
-    probe = ("import resource, subprocess, sys; "
-             "r = subprocess.run(sys.argv[1:], capture_output=True, text=True); "
-             "sys.stdout.write(str(resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss)); "
-             "sys.stderr.write(r.stderr); sys.exit(r.returncode)")
-    r = subprocess.run([sys.executable, "-c", probe, sys.executable, "-m", "app.cli", "analyze",
-                        path, "--level", "500"], capture_output=True, text=True, cwd=ROOT,
-                       timeout=120)
+    probe = (
+        "import resource, subprocess, sys; "
+        "r = subprocess.run(sys.argv[1:], capture_output=True, text=True); "
+        "sys.stdout.write(str(resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss)); "
+        "sys.stderr.write(r.stderr); sys.exit(r.returncode)"
+    )
+    r = subprocess.run(
+        [
+            sys.executable,
+            "-c",
+            probe,
+            sys.executable,
+            "-m",
+            "app.cli",
+            "analyze",
+            path,
+            "--level",
+            "500",
+        ],
+        capture_output=True,
+        text=True,
+        cwd=ROOT,
+        timeout=120,
+    )
     code, err, peak_kb = r.returncode, r.stderr, int(r.stdout)
     assert code == 2 and "declares a 100000 x 100000 grid" in err and "memory" in err, err
     one_sentence(err)
@@ -196,11 +241,14 @@ def _free_port():
         return s.getsockname()[1]
 
 
-@pytest.mark.parametrize("args, fragment", [
-    (["--port", "99999"], "--port must lie from 1 to 65535"),
-    (["--port", "0"], "--port must lie from 1 to 65535"),
-    (["--host", "no-such-host.invalid"], "cannot be used"),
-])
+@pytest.mark.parametrize(
+    "args, fragment",
+    [
+        (["--port", "99999"], "--port must lie from 1 to 65535"),
+        (["--port", "0"], "--port must lie from 1 to 65535"),
+        (["--host", "no-such-host.invalid"], "cannot be used"),
+    ],
+)
 def test_serve_refuses_a_bad_address(args, fragment):
     code, out, err = run("serve", *args, timeout=60)
     assert code == 2 and fragment in err, (code, out, err)
@@ -230,9 +278,13 @@ def test_serve_says_which_cases_failed_and_serves_the_others(tmp_path):
     good(str(tmp_path), "fine.nc")
     (tmp_path / "broken.nc").write_bytes(b"not a file at all")
     port = _free_port()
-    proc = subprocess.Popen([sys.executable, "-m", "app.cli", "serve", "--cases", str(tmp_path),
-                             "--port", str(port)], stdout=subprocess.PIPE,
-                            stderr=subprocess.STDOUT, text=True, cwd=ROOT)
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "app.cli", "serve", "--cases", str(tmp_path), "--port", str(port)],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.STDOUT,
+        text=True,
+        cwd=ROOT,
+    )
     lines = []
     try:
         t0 = time.time()

@@ -18,14 +18,16 @@ from balance_core.thermo import hypsometric_thickness
 from balance_core.winds import geostrophic_wind
 
 HERE = os.path.dirname(os.path.abspath(__file__))
-SAMPLES = os.environ.get("BALANCE_DESK_SAMPLES", os.path.join(HERE, "..", ".cache",
-                                                              "cfgrib-samples"))
+SAMPLES = os.environ.get(
+    "BALANCE_DESK_SAMPLES", os.path.join(HERE, "..", ".cache", "cfgrib-samples")
+)
 ERA5 = os.path.join(SAMPLES, "era5-levels-members.grib")
 
 if not os.path.exists(ERA5):
     if os.environ.get("CI"):
-        pytest.fail(f"{ERA5} is missing: 'make test' fetches it (see .ci/fetch-samples)",
-                    pytrace=False)
+        pytest.fail(
+            f"{ERA5} is missing: 'make test' fetches it (see .ci/fetch-samples)", pytrace=False
+        )
     pytest.skip(f"{ERA5} not fetched yet: run 'make samples'", allow_module_level=True)
 
 
@@ -84,19 +86,21 @@ def test_geostrophic_wind_matches_metpy(case):
     # degrees; the pole rows, the tropics (|lat| < 10) and the two x-edge columns
     # (MetPy does not wrap) are left out.
     mpcalc = pytest.importorskip("metpy.calc")
-    from metpy.units import units
     import pyproj
+    from metpy.units import units
 
     from balance_core import constants as C
 
     g = case.grid
     z = case.data["height"].values[0, 1]
-    dx, dy = mpcalc.lat_lon_grid_deltas(g.lon1d, g.lat1d,
-                                        geod=pyproj.Geod(a=C.EARTH_RADIUS, b=C.EARTH_RADIUS))
+    dx, dy = mpcalc.lat_lon_grid_deltas(
+        g.lon1d, g.lat1d, geod=pyproj.Geod(a=C.EARTH_RADIUS, b=C.EARTH_RADIUS)
+    )
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        mu, mv = mpcalc.geostrophic_wind(z * units.m, dx=dx, dy=dy,
-                                         latitude=g.lat1d[:, None] * units.degree)
+        mu, mv = mpcalc.geostrophic_wind(
+            z * units.m, dx=dx, dy=dy, latitude=g.lat1d[:, None] * units.degree
+        )
     ug, vg = geostrophic_wind(g, z)
     ok = ~g.tropics_mask & ~g.pole_mask
     ok[:, [0, -1]] = False

@@ -15,23 +15,23 @@ import urllib.error
 import urllib.request
 
 import pytest
+from serving import start_server, stop_server
 
 from app.desk.page import EarlyBuilds
 from app.serve import PageLimit, quiet_closed_sockets
-from serving import start_server, stop_server
 
 
 def test_early_builds_are_counted_per_client_and_for_the_server():
     early = EarlyBuilds(per_client=2, limit=3, window=20.0)
     a, b, c = ("127.0.0.1", "script"), ("127.0.0.1", "browser"), ("10.0.0.2", "browser")
     assert early.take(a, 1, now=0.0) and early.take(a, 2, now=0.1)
-    assert not early.take(a, 3, now=0.2)           # the script's own allowance is used up
-    assert early.take(b, 4, now=0.3)               # someone else's page is still built early
-    assert not early.take(c, 5, now=0.4)           # the server's allowance is used up
-    early.connected(4)                             # that browser came
+    assert not early.take(a, 3, now=0.2)  # the script's own allowance is used up
+    assert early.take(b, 4, now=0.3)  # someone else's page is still built early
+    assert not early.take(c, 5, now=0.4)  # the server's allowance is used up
+    early.connected(4)  # that browser came
     assert early.take(c, 6, now=0.5)
     assert not early.take(a, 7, now=19.0)
-    assert early.take(a, 8, now=20.5)              # the script's first pages have aged out
+    assert early.take(a, 8, now=20.5)  # the script's first pages have aged out
 
 
 def test_a_write_to_a_closed_page_is_one_line_other_errors_go_on():
@@ -49,10 +49,12 @@ def test_a_write_to_a_closed_page_is_one_line_other_errors_go_on():
             self.passed.append(context)
 
     loop = Loop()
-    quiet_closed_sockets(loop, {"message": "Task exception was never retrieved",
-                                "exception": WebSocketClosedError()})
-    quiet_closed_sockets(loop, {"message": "Task exception was never retrieved",
-                                "exception": StreamClosedError()})
+    quiet_closed_sockets(
+        loop, {"message": "Task exception was never retrieved", "exception": WebSocketClosedError()}
+    )
+    quiet_closed_sockets(
+        loop, {"message": "Task exception was never retrieved", "exception": StreamClosedError()}
+    )
     assert loop.passed == []
     other = {"message": "Task exception was never retrieved", "exception": ValueError("x")}
     quiet_closed_sockets(loop, other)
@@ -90,9 +92,9 @@ def test_a_fetch_loop_builds_no_pages_and_is_held_back(debug_server):
     link = url + "?case=ocean_cyclone&level=500"
     answers = [_fetch(link) for _ in range(14)]
     codes = [a[0] for a in answers]
-    assert codes[:8] == [200] * 8, codes           # the first pages come at once
+    assert codes[:8] == [200] * 8, codes  # the first pages come at once
     refused = [a for a in answers if a[0] == 429]
-    assert refused, codes                          # the loop is refused past the burst
+    assert refused, codes  # the loop is refused past the burst
     status, headers, seconds = refused[0]
     assert headers.get("Retry-After") == "2"
     # the refusal is held for the time it names, so a loop that retries at once is slowed
@@ -136,24 +138,35 @@ def test_boxes_typed_on_the_wire_end_on_the_last_ones_view(debug_server):
     import asyncio
     import glob
 
+    from wire_page import WirePage
+
     from app import compute, vocab
     from app.library import CaseLibrary
     from app.state import ViewState
-    from wire_page import WirePage
 
     proc, url = debug_server
     # boxes no other test uses (views are shared between sessions, and kept)
     boxes = [(-51.5, -27.5, 37.5 + i, 55.5) for i in range(6)]
     st = ViewState(case="ocean_cyclone", level=500.0, time="2041-01-19T12:00:00Z")
     st.set_box(*boxes[-1])
-    lib = CaseLibrary(sorted(glob.glob(os.path.join(os.path.dirname(os.path.dirname(
-        os.path.abspath(__file__))), "sample_cases", "*.nc"))))
+    lib = CaseLibrary(
+        sorted(
+            glob.glob(
+                os.path.join(
+                    os.path.dirname(os.path.dirname(os.path.abspath(__file__))),
+                    "sample_cases",
+                    "*.nc",
+                )
+            )
+        )
+    )
     region = st.region_text()
     name = vocab.balance_name(compute.box_data(lib, st)["verdict"]["balance"])
 
     async def run():
-        w = await WirePage(url + "?case=ocean_cyclone&level=500&time=2041-01-19T12%3A00%3A00Z",
-                           agent="wire test").open()
+        w = await WirePage(
+            url + "?case=ocean_cyclone&level=500&time=2041-01-19T12%3A00%3A00Z", agent="wire test"
+        ).open()
         reading = asyncio.ensure_future(w.run())
         try:
             for _ in range(600):

@@ -11,7 +11,7 @@ def test_stencil_exact_for_quadratics_on_uneven_points(rng):
     # Three-point second-order weights are exact for polynomials of degree 2
     # (Fornberg 1988, Math. Comp. 51, 699-706), at the edges too.
     x = np.sort(rng.uniform(0, 10, 25))
-    f = 3 * x ** 2 - 2 * x + 1
+    f = 3 * x**2 - 2 * x + 1
     for coord, vals in ((x, f), (x[::-1], f[::-1])):
         d = Stencil(coord, -1)(vals[None, :])[0]
         np.testing.assert_allclose(d, 6 * coord - 2, rtol=1e-10, atol=1e-9)
@@ -77,7 +77,7 @@ def test_gaussian_latitudes_second_order():
 
 def test_pressure_levels_uneven_exact_for_quadratics():
     p = np.array([100000, 92500, 85000, 70000, 50000, 30000, 25000.0])
-    col = 1e-9 * p ** 2 - 3e-4 * p
+    col = 1e-9 * p**2 - 3e-4 * p
     d = derivative_along(col[:, None, None] * np.ones((1, 2, 2)), p, 0)
     np.testing.assert_allclose(d[:, 0, 0], 2e-9 * p - 3e-4, rtol=1e-10)
 
@@ -101,7 +101,8 @@ def test_lambert_rotation_angle_matches_closed_form():
     # "Map Projections: A Working Manual", USGS Prof. Paper 1395, ch. 15).
     lat_t, lon0 = 50.0, 10.0
     crs = pyproj.CRS.from_proj4(
-        f"+proj=lcc +lat_1={lat_t} +lat_2={lat_t} +lat_0={lat_t} +lon_0={lon0} +R=6371008.7714")
+        f"+proj=lcc +lat_1={lat_t} +lat_2={lat_t} +lat_0={lat_t} +lon_0={lon0} +R=6371008.7714"
+    )
     x = np.arange(-2e6, 2e6 + 1, 2e5)
     y = np.arange(-1.5e6, 1.5e6 + 1, 2e5)
     g = Grid.projected(x, y, crs)
@@ -161,9 +162,14 @@ def test_rows_band_matches_whole_grid():
         np.testing.assert_allclose(a[6:19], b[1:-1], rtol=1e-12)
 
 
-@pytest.mark.parametrize("lat", [np.linspace(90, -90, 721),               # 0.25 degree
-                                 np.degrees(np.arcsin(np.polynomial.legendre.leggauss(96)[0]))],
-                         ids=["quarter-degree", "gaussian-n48"])
+@pytest.mark.parametrize(
+    "lat",
+    [
+        np.linspace(90, -90, 721),  # 0.25 degree
+        np.degrees(np.arcsin(np.polynomial.legendre.leggauss(96)[0])),
+    ],
+    ids=["quarter-degree", "gaussian-n48"],
+)
 def test_a_band_s_inner_derivatives_are_the_whole_grid_s_to_the_last_bit(lat):
     # a band's own spacings differ from the whole axis's by a rounding; with them the
     # band's derivatives differed in the 16th digit
@@ -175,13 +181,13 @@ def test_a_band_s_inner_derivatives_are_the_whole_grid_s_to_the_last_bit(lat):
         full = g.grad(z)
         band = g.rows(j0, j1).grad(z[j0:j1])
         for a, b in zip(full, band):
-            assert np.array_equal(a[j0 + 1:j1 - 1], b[1:-1], equal_nan=True)
+            assert np.array_equal(a[j0 + 1 : j1 - 1], b[1:-1], equal_nan=True)
 
 
 def test_cell_areas_sum_to_sphere():
     # 4 pi a^2 (exact for cells bounded by midpoints and the poles).
     g = Grid.latlon(np.linspace(-90, 90, 73), np.arange(0, 360, 2.5))
-    assert np.isclose(g.cell_area.sum(), 4 * np.pi * g.radius ** 2, rtol=1e-12)
+    assert np.isclose(g.cell_area.sum(), 4 * np.pi * g.radius**2, rtol=1e-12)
 
 
 def test_masks_reported():
@@ -204,13 +210,16 @@ def test_masks_follow_overridden_f():
     assert np.all(np.diff(beta[:, 0]) > 0)
 
 
-@pytest.mark.parametrize("lat, lon, msg", [
-    (np.array([0, 1, 1, 2.0]), np.arange(5.0), "latitude is not strictly monotonic"),
-    (np.arange(5.0), np.array([0, 2, 1, 3, 4.0]), "longitude is not strictly monotonic"),
-    (np.arange(5.0), np.arange(0, 361, 90.0), "cyclic point"),
-    (np.arange(2.0), np.arange(5.0), "at least 3 x 3"),
-    (np.array([80, 85, 95.0]), np.arange(5.0), "outside -90..90"),
-])
+@pytest.mark.parametrize(
+    "lat, lon, msg",
+    [
+        (np.array([0, 1, 1, 2.0]), np.arange(5.0), "latitude is not strictly monotonic"),
+        (np.arange(5.0), np.array([0, 2, 1, 3, 4.0]), "longitude is not strictly monotonic"),
+        (np.arange(5.0), np.arange(0, 361, 90.0), "cyclic point"),
+        (np.arange(2.0), np.arange(5.0), "at least 3 x 3"),
+        (np.array([80, 85, 95.0]), np.arange(5.0), "outside -90..90"),
+    ],
+)
 def test_bad_coordinates_say_what_is_wrong(lat, lon, msg):
     with pytest.raises(ValueError, match=msg):
         Grid.latlon(lat, lon)

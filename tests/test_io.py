@@ -7,12 +7,10 @@ import numpy as np
 import pyproj
 import pytest
 import xarray as xr
-
+from makedata import LEVELS, TIMES, latlon_dataset, projected_dataset, truth
 
 from balance_core.io import CaseError, analyse_case, open_case
 from balance_core.winds import geostrophic_wind
-
-from makedata import LEVELS, TIMES, latlon_dataset, projected_dataset, truth
 
 LAT = np.arange(70.0, 29.9, -1.0)
 LON = np.arange(-30.0, 30.1, 1.0)
@@ -93,7 +91,8 @@ def test_forecast_steps_give_valid_times(tmp_path):
     ds, _ = latlon_dataset(LAT, LON)
     fc = ds.rename({"time": "step"}).assign_coords(
         step=("step", (TIMES - TIMES[0]).values + np.timedelta64(12, "h")),
-        time=((), np.datetime64("2040-02-02T12:00", "ns")))
+        time=((), np.datetime64("2040-02-02T12:00", "ns")),
+    )
     c = open_case(_write(fc, tmp_path / "fc.nc"))
     assert list(c.times) == list(TIMES.values)
     assert any("reference time + step" in n for n in c.notes)
@@ -120,8 +119,11 @@ def test_below_ground_levels_are_masked_and_counted(tmp_path):
     ds, _ = latlon_dataset(LAT, LON)
     ps = np.full((len(TIMES), LAT.size, LON.size), 101000.0)
     ps[:, :10, :] = 88000.0  # high ground in the north: 1000 hPa lies below it
-    ds["sp"] = (("time", "latitude", "longitude"), ps, {"standard_name": "surface_air_pressure",
-                                                        "units": "Pa"})
+    ds["sp"] = (
+        ("time", "latitude", "longitude"),
+        ps,
+        {"standard_name": "surface_air_pressure", "units": "Pa"},
+    )
     c = open_case(_write(ds, tmp_path / "ps.nc"))
     assert c.below_ground == {1000.0: 3 * 10 * LON.size}
     assert np.isnan(c.data["u"].values[:, 0, :10]).all()
@@ -150,8 +152,11 @@ def test_surface_friction_evidence(tmp_path):
     u10 = 0.7 * (ug * np.cos(a) - vg * np.sin(a))
     v10 = 0.7 * (ug * np.sin(a) + vg * np.cos(a))
     st = lambda f: np.broadcast_to(f, (len(TIMES),) + f.shape)  # noqa: E731
-    ds["msl"] = (("time", "latitude", "longitude"), st(msl), {"units": "Pa",
-                 "standard_name": "air_pressure_at_mean_sea_level"})
+    ds["msl"] = (
+        ("time", "latitude", "longitude"),
+        st(msl),
+        {"units": "Pa", "standard_name": "air_pressure_at_mean_sea_level"},
+    )
     ds["u10"] = (("time", "latitude", "longitude"), st(u10), {"units": "m s-1"})
     ds["v10"] = (("time", "latitude", "longitude"), st(v10), {"units": "m s-1"})
     ds["t2m"] = (("time", "latitude", "longitude"), st(t2), {"units": "K"})
@@ -195,10 +200,16 @@ def test_projected_grid_relative_winds_come_back_earth_relative(tmp_path, kind):
     g = np.deg2rad(_closed_form_angle(kind)(lat, lon))
     u10, v10 = 0.7 * arr["u"][:, 0], 0.7 * arr["v"][:, 0]
     common = {"grid_mapping": "crs", "coordinates": "lat lon"}
-    ds["uas"] = (("time", "y", "x"), u10 * np.cos(g) - v10 * np.sin(g),
-                 {"standard_name": "x_wind", "units": "m s-1", **common})
-    ds["vas"] = (("time", "y", "x"), u10 * np.sin(g) + v10 * np.cos(g),
-                 {"standard_name": "y_wind", "units": "m s-1", **common})
+    ds["uas"] = (
+        ("time", "y", "x"),
+        u10 * np.cos(g) - v10 * np.sin(g),
+        {"standard_name": "x_wind", "units": "m s-1", **common},
+    )
+    ds["vas"] = (
+        ("time", "y", "x"),
+        u10 * np.sin(g) + v10 * np.cos(g),
+        {"standard_name": "y_wind", "units": "m s-1", **common},
+    )
     ds = ds.assign_coords(height=((), 10.0, {"standard_name": "height", "units": "m"}))
     c = open_case(_write(ds, tmp_path / f"{kind}.nc"))
     assert c.grid.kind == "projected"
@@ -238,9 +249,11 @@ def test_projected_budget_equals_latlon_budget(tmp_path, kind):
     ug, vg = geostrophic_wind(pc.grid, pc.data["height"].values[1, k])
     d = 1e-5
     zx = (truth(lat, lon + d, 500.0, 6.0)[0] - truth(lat, lon - d, 500.0, 6.0)[0]) / (
-        2 * np.deg2rad(d) * pc.grid.radius * np.cos(np.deg2rad(lat)))
+        2 * np.deg2rad(d) * pc.grid.radius * np.cos(np.deg2rad(lat))
+    )
     zy = (truth(lat + d, lon, 500.0, 6.0)[0] - truth(lat - d, lon, 500.0, 6.0)[0]) / (
-        2 * np.deg2rad(d) * pc.grid.radius)
+        2 * np.deg2rad(d) * pc.grid.radius
+    )
     exact_u = -9.80665 * zy * pc.grid.inverse_f
     exact_v = 9.80665 * zx * pc.grid.inverse_f
     inner = (slice(1, -1), slice(1, -1))
@@ -252,8 +265,15 @@ def test_projected_budget_equals_latlon_budget(tmp_path, kind):
     rl = analyse_case(lc, 500, 1, box)
     mp = {t["name"]: t["magnitude"] for t in rp["terms"] + rp["derived"]}
     ml = {t["name"]: t["magnitude"] for t in rl["terms"] + rl["derived"]}
-    for name in ("pressure_gradient", "coriolis", "horizontal_advection", "metric_uv",
-                 "tendency", "vertical_advection", "acceleration"):
+    for name in (
+        "pressure_gradient",
+        "coriolis",
+        "horizontal_advection",
+        "metric_uv",
+        "tendency",
+        "vertical_advection",
+        "acceleration",
+    ):
         assert mp[name] == pytest.approx(ml[name], rel=0.03), name
     assert rp["verdict"]["balance"] == rl["verdict"]["balance"]
 
@@ -264,8 +284,9 @@ def test_grib2_lambert_grid_relative_winds(tmp_path):
     # back earth-relative (WMO-No. 306, code table 3.3).
     from gribwrite import write_grib2
 
-    crs = pyproj.CRS.from_proj4("+proj=lcc +lat_1=45 +lat_2=45 +lat_0=45 +lon_0=10 "
-                                "+R=6371229 +units=m")
+    crs = pyproj.CRS.from_proj4(
+        "+proj=lcc +lat_1=45 +lat_2=45 +lat_0=45 +lon_0=10 +R=6371229 +units=m"
+    )
     x, y = np.arange(-6e5, 6e5 + 1, 5e4), np.arange(-5e5, 5e5 + 1, 5e4)
     X, Y = np.meshgrid(x, y)
     lon, lat = pyproj.Transformer.from_crs(crs, crs.geodetic_crs, always_xy=True).transform(X, Y)
@@ -280,14 +301,26 @@ def test_grib2_lambert_grid_relative_winds(tmp_path):
             fields["u"][it, ik] = u * np.cos(gam) - v * np.sin(gam)
             fields["v"][it, ik] = u * np.sin(gam) + v * np.cos(gam)
             truth_uv[:, it, ik] = u, v
-    grid = dict(kind="lambert", lat_first=float(lat[0, 0]), lon_first=float(lon[0, 0]), dx=5e4,
-                dy=5e4, lad=45.0, lov=10.0, latin1=45.0, latin2=45.0)
+    grid = dict(
+        kind="lambert",
+        lat_first=float(lat[0, 0]),
+        lon_first=float(lon[0, 0]),
+        dx=5e4,
+        dy=5e4,
+        lad=45.0,
+        lov=10.0,
+        latin1=45.0,
+        latin2=45.0,
+    )
     u10, v10 = 0.6 * truth_uv[0, :, 0] + 1.0, 0.6 * truth_uv[1, :, 0] - 1.5  # (time, y, x)
-    single = {("u", "10m"): u10 * np.cos(gam) - v10 * np.sin(gam),
-              ("v", "10m"): u10 * np.sin(gam) + v10 * np.cos(gam)}
+    single = {
+        ("u", "10m"): u10 * np.cos(gam) - v10 * np.sin(gam),
+        ("v", "10m"): u10 * np.sin(gam) + v10 * np.cos(gam),
+    }
     path = tmp_path / "lcc.grib2"
-    write_grib2(path, grid, fields, levels, [(20400203, 0), (20400203, 6)], uv_relative=True,
-                single=single)
+    write_grib2(
+        path, grid, fields, levels, [(20400203, 0), (20400203, 6)], uv_relative=True, single=single
+    )
     c = open_case(str(path))
     assert c.grid.kind == "projected"
     # 24-bit packing: agreement to the packing precision
@@ -312,8 +345,7 @@ def test_grib2_regular_latlon(tmp_path):
             z, u, v, om, t = truth(la, lo, p, hours)
             for key, val in zip(("gh", "u", "v", "w", "t"), (z, u, v, om, t)):
                 fields[key][it, ik] = val
-    grid = dict(kind="regular_ll", lat0=30.0, lat1=70.0, lon0=330.0, lon1=30.0, dlat=1.0,
-                dlon=1.0)
+    grid = dict(kind="regular_ll", lat0=30.0, lat1=70.0, lon0=330.0, lon1=30.0, dlat=1.0, dlon=1.0)
     path = tmp_path / "ll.grib2"
     write_grib2(path, grid, fields, levels, [(20400203, 0), (20400203, 6)], uv_relative=False)
     c = open_case(str(path))
@@ -340,17 +372,35 @@ def test_real_command_exit_status_on_grib_and_netcdf(tmp_path):
             z, u, v, om, t = truth(la, lo, p, 6.0 * it)
             for key, val in zip(("gh", "u", "v", "w", "t"), (z, u, v, om, t)):
                 fields[key][it, ik] = val
-    grid = dict(kind="regular_ll", lat0=30.0, lat1=70.0, lon0=330.0, lon1=30.0, dlat=2.0,
-                dlon=2.0)
+    grid = dict(kind="regular_ll", lat0=30.0, lat1=70.0, lon0=330.0, lon1=30.0, dlat=2.0, dlon=2.0)
     grib = tmp_path / "run.grib2"
-    write_grib2(grib, grid, fields, [850.0, 500.0],
-                [(20400203, 0), (20400203, 6), (20400203, 12)], uv_relative=False)
+    write_grib2(
+        grib,
+        grid,
+        fields,
+        [850.0, 500.0],
+        [(20400203, 0), (20400203, 6), (20400203, 12)],
+        uv_relative=False,
+    )
     ds, _ = latlon_dataset(lat, lon)
     nc = _write(ds, tmp_path / "run.nc")
     for path in (grib, nc):
-        r = subprocess.run([sys.executable, "-m", "app.cli", "analyze", str(path), "--level",
-                            "500", "--format", "json"], capture_output=True, text=True,
-                           timeout=300)
+        r = subprocess.run(
+            [
+                sys.executable,
+                "-m",
+                "app.cli",
+                "analyze",
+                str(path),
+                "--level",
+                "500",
+                "--format",
+                "json",
+            ],
+            capture_output=True,
+            text=True,
+            timeout=300,
+        )
         assert r.returncode == 0, (path, r.returncode, r.stderr[-500:])
         assert '"verdict"' in r.stdout
 
@@ -368,11 +418,20 @@ def test_grib2_polar_stereographic(tmp_path):
     fields["gh"][0, 0] = z
     fields["u"][0, 0] = u * np.cos(gam) - v * np.sin(gam)
     fields["v"][0, 0] = u * np.sin(gam) + v * np.cos(gam)
-    grid = dict(kind="polar_stereographic", lat_first=float(lat[0, 0]), lon_first=float(lon[0, 0]),
-                dx=6e4, dy=6e4, lad=60.0, lov=-35.0)
+    grid = dict(
+        kind="polar_stereographic",
+        lat_first=float(lat[0, 0]),
+        lon_first=float(lon[0, 0]),
+        dx=6e4,
+        dy=6e4,
+        lad=60.0,
+        lov=-35.0,
+    )
     u10, v10 = 0.6 * u - 1.0, 0.6 * v + 2.0  # 10 m winds, flagged grid-relative too
-    single = {("u", "10m"): (u10 * np.cos(gam) - v10 * np.sin(gam))[None],
-              ("v", "10m"): (u10 * np.sin(gam) + v10 * np.cos(gam))[None]}
+    single = {
+        ("u", "10m"): (u10 * np.cos(gam) - v10 * np.sin(gam))[None],
+        ("v", "10m"): (u10 * np.sin(gam) + v10 * np.cos(gam))[None],
+    }
     path = tmp_path / "ps.grib2"
     write_grib2(path, grid, fields, [500.0], [(20400203, 0)], uv_relative=True, single=single)
     c = open_case(str(path))
@@ -392,14 +451,20 @@ def test_cf_mercator_grid(tmp_path):
     c = open_case(_write(ds, tmp_path / "merc.nc"))
     np.testing.assert_allclose(c.grid.convergence, 0, atol=1e-9)  # Mercator: north is up
     # the map factor of Mercator is sec(lat) / sec(lat_ts) on the sphere (Snyder 1987, ch. 7)
-    np.testing.assert_allclose(c.grid.map_factor, np.cos(np.deg2rad(20)) / np.cos(np.deg2rad(lat)),
-                               rtol=1e-6)
+    np.testing.assert_allclose(
+        c.grid.map_factor, np.cos(np.deg2rad(20)) / np.cos(np.deg2rad(lat)), rtol=1e-6
+    )
     np.testing.assert_allclose(c.data["u"].values, arr["u"], atol=1e-9)
 
 
 def test_rotated_pole_is_refused_clearly(tmp_path):
-    crs = pyproj.CRS.from_cf({"grid_mapping_name": "rotated_latitude_longitude",
-                              "grid_north_pole_latitude": 40.0, "grid_north_pole_longitude": -170.0})
+    crs = pyproj.CRS.from_cf(
+        {
+            "grid_mapping_name": "rotated_latitude_longitude",
+            "grid_north_pole_latitude": 40.0,
+            "grid_north_pole_longitude": -170.0,
+        }
+    )
     ds, _ = latlon_dataset(LAT, LON)
     ds = ds.rename({"latitude": "rlat", "longitude": "rlon"})
     ds["rlat"].attrs = {"standard_name": "grid_latitude", "units": "degrees"}
@@ -416,8 +481,11 @@ def test_orography_masks_levels_under_the_ground(tmp_path):
     ds, arr = latlon_dataset(LAT, LON)
     orog = np.zeros((LAT.size, LON.size))
     orog[:, :5] = 2000.0  # a plateau in the west: 1000 and 850 hPa lie under it
-    ds["orog"] = (("latitude", "longitude"), orog, {"standard_name": "surface_altitude",
-                                                    "units": "m"})
+    ds["orog"] = (
+        ("latitude", "longitude"),
+        orog,
+        {"standard_name": "surface_altitude", "units": "m"},
+    )
     ds["orog"] = ds["orog"].expand_dims(time=ds["time"])
     c = open_case(_write(ds, tmp_path / "orog.nc"))
     assert set(c.below_ground) == {1000.0, 850.0}
@@ -431,8 +499,9 @@ def test_a_variable_missing_at_some_levels(tmp_path):
     ds, _ = latlon_dataset(LAT, LON)
     om = ds["wap"].isel(level=slice(0, 4))
     ds = ds.drop_vars("wap")
-    ds["omega"] = om.rename({"level": "plev"}).assign_coords(plev=("plev", om["level"].values,
-                                                                   {"units": "hPa"}))
+    ds["omega"] = om.rename({"level": "plev"}).assign_coords(
+        plev=("plev", om["level"].values, {"units": "hPa"})
+    )
     ds["omega"].attrs = {"standard_name": "lagrangian_tendency_of_air_pressure", "units": "Pa s-1"}
     c = open_case(_write(ds, tmp_path / "partial.nc"))
     assert any("omega is not given at 300 hPa" in n for n in c.notes)

@@ -56,7 +56,7 @@ def test_brunt_vaisala_dtheta_dp_form_is_not_exact():
     z, t = _lapse_rate_column(p)
     exact = C.G0 / t * (C.G0 / C.CP_DRY - 0.0065)
     theta = potential_temperature(t, p)
-    naive = -(C.G0 ** 2) * p / (C.R_DRY * t * theta) * np.gradient(theta, p, edge_order=2)
+    naive = -(C.G0**2) * p / (C.R_DRY * t * theta) * np.gradient(theta, p, edge_order=2)
     assert np.abs(naive / exact - 1).max() > 1e-2
 
 
@@ -86,8 +86,9 @@ def test_richardson_number_against_metpy():
     theta = potential_temperature(t, p)
     n2 = nb.brunt_vaisala_squared(t, p)
     ri = nb.richardson_number(n2, nb.vertical_shear_squared(u, v, t, p))
-    ref = mpcalc.gradient_richardson_number(z * units.m, theta * units.K, u * units("m/s"),
-                                             v * units("m/s")).m
+    ref = mpcalc.gradient_richardson_number(
+        z * units.m, theta * units.K, u * units("m/s"), v * units("m/s")
+    ).m
     np.testing.assert_allclose(ri[1:-1], ref[1:-1], rtol=3e-2)
 
 
@@ -98,6 +99,7 @@ def test_local_rossby_numbers():
 
 
 # -- the textbook numbers in a region's report, against hand computations -----------------------
+
 
 def test_the_reports_textbook_numbers_against_hand_computations():
     # An isothermal atmosphere at 250 K: N^2 = g^2 / (c_p T) exactly (Holton and Hakim 2013,
@@ -122,7 +124,7 @@ def test_the_reports_textbook_numbers_against_hand_computations():
     d = level_diagnostics(g, fields, 0, 1)
     inside = (np.abs(g.lat - 45) < 4) & (np.abs(g.lon) < 8)
     rep = box_report(d, inside)
-    n = math.sqrt(C.G0 ** 2 / (C.CP_DRY * T))  # by hand
+    n = math.sqrt(C.G0**2 / (C.CP_DRY * T))  # by hand
     H, nu = 1.0e4, 10.0
     L = rep["scales"]["L"]
     assert rep["scales"]["H"] == H and rep["scales"]["U"] == pytest.approx(U)
@@ -130,7 +132,7 @@ def test_the_reports_textbook_numbers_against_hand_computations():
     assert num["froude"] == pytest.approx(U / (n * H), rel=1e-3)
     assert num["deformation_radius_km"] == pytest.approx(n * H / abs(f0) / 1e3, rel=1e-3)
     assert num["burger"] == pytest.approx((n * H / (abs(f0) * L)) ** 2, rel=1e-3)
-    assert num["ekman"] == pytest.approx(nu / (abs(f0) * H ** 2), rel=1e-9)
+    assert num["ekman"] == pytest.approx(nu / (abs(f0) * H**2), rel=1e-9)
     # the data's own beside them, under their own names: no shear, no shear depth
     assert num["shear_depth_km"] is None
     mags = {t["name"]: t["magnitude"] for t in rep["terms"]}
@@ -152,7 +154,7 @@ def test_the_isallobaric_wind_of_a_travelling_height_wave():
     k, w, A = 2 * np.pi / 3.0e6, 2 * np.pi / (5 * 86400.0), 100.0
     # x is measured along 45N; on a row at latitude phi an east step is cos(phi)/cos(45) as long
     stretch = np.cos(np.deg2rad(45.0)) / np.cos(np.deg2rad(g.lat))
-    truth_u = -(C.G0 / f0 ** 2) * A * w * k * stretch * np.cos(k * x)
+    truth_u = -(C.G0 / f0**2) * A * w * k * stretch * np.cos(k * x)
     ix, iy = isallobaric_wind(g, A * w * np.sin(k * x))
     inner = slice(None), slice(5, -5)
     scale = np.abs(truth_u).max()

@@ -16,18 +16,18 @@ import matplotlib
 import netCDF4
 import numpy as np
 import pytest
+from makedata import latlon_dataset
 
 from app import compute
 from app.library import CaseLibrary
 from app.state import ViewState
 
-from makedata import latlon_dataset
-
 HERE = os.path.dirname(os.path.abspath(__file__))
 SAMPLES = sorted(glob.glob(os.path.join(HERE, "..", "sample_cases", "*.nc")))
 ETA = os.path.join(HERE, "..", ".cache", "pygrib-samples", "eta.grb")
-FONT = os.path.join(os.path.dirname(matplotlib.__file__), "mpl-data", "fonts", "ttf",
-                    "DejaVuSans.ttf")
+FONT = os.path.join(
+    os.path.dirname(matplotlib.__file__), "mpl-data", "fonts", "ttf", "DejaVuSans.ttf"
+)
 
 
 @pytest.fixture(scope="module")
@@ -36,6 +36,7 @@ def library():
 
 
 # -- graticule labels ------------------------------------------------------------------------
+
 
 def _label_boxes(cd, frame_px):
     """Pixel boxes of the graticule labels as Bokeh draws them (anchored at their left and
@@ -53,8 +54,11 @@ def _label_boxes(cd, frame_px):
 
 
 def _collisions(boxes):
-    return [(a[4], b[4]) for a, b in itertools.combinations(boxes, 2)
-            if not (a[2] <= b[0] or b[2] <= a[0] or a[3] <= b[1] or b[3] <= a[1])]
+    return [
+        (a[4], b[4])
+        for a, b in itertools.combinations(boxes, 2)
+        if not (a[2] <= b[0] or b[2] <= a[0] or a[3] <= b[1] or b[3] <= a[1])
+    ]
 
 
 def test_graticule_labels_never_collide(library):
@@ -62,8 +66,7 @@ def test_graticule_labels_never_collide(library):
 
     for name in library.good:
         case = library.get(name)
-        st = ViewState(case=name, level=compute.nearest_level(case, 500.0),
-                       projection="conformal")
+        st = ViewState(case=name, level=compute.nearest_level(case, 500.0), projection="conformal")
         cd = compute.chart_data(library, st)
         # at the chart's widest and at its narrowest (the text keeps its size)
         for frame in (WIDTH - 100, (WIDTH - 100) * MIN_WIDTH / WIDTH):
@@ -93,12 +96,13 @@ def _rgb(colour):
     if m:
         c = "#" + "".join(ch * 2 for ch in m.group(1))
     m = re.fullmatch(r"#([0-9a-f]{6})", c)
-    return None if m is None else [int(m.group(1)[i:i + 2], 16) / 255 for i in (0, 2, 4)]
+    return None if m is None else [int(m.group(1)[i : i + 2], 16) / 255 for i in (0, 2, 4)]
 
 
 def contrast(fg, bg):
     """WCAG 2.1 contrast ratio of two sRGB colours (definitions of relative luminance and
     contrast ratio in the WCAG 2.1 recommendation, W3C 2018)."""
+
     def lum(rgb):
         lin = [c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4 for c in rgb]
         return 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
@@ -140,8 +144,9 @@ class _Pairs(html.parser.HTMLParser):
 def _low_contrast(markup):
     p = _Pairs()
     p.feed(markup)
-    return [(t, fg, bg, round(contrast(fg, bg), 2)) for t, fg, bg in p.pairs
-            if contrast(fg, bg) < 4.5]
+    return [
+        (t, fg, bg, round(contrast(fg, bg), 2)) for t, fg, bg in p.pairs if contrast(fg, bg) < 4.5
+    ]
 
 
 def test_all_text_of_the_page_has_a_contrast_of_at_least_4_5(library):
@@ -153,9 +158,15 @@ def test_all_text_of_the_page_has_a_contrast_of_at_least_4_5(library):
     page.start()
     for tab in range(4):  # a closed tab's text is written when it is opened
         page.below.tabs.active = tab
-    parts = {"header": page.header, "caption": page.chart.caption, "notes": page.chart.note,
-             "evidence": page.evidence.body, "levels": page.below.levels_table,
-             "sheet": page.below.sheet_out, "data notes": page.below.notes}
+    parts = {
+        "header": page.header,
+        "caption": page.chart.caption,
+        "notes": page.chart.note,
+        "evidence": page.evidence.body,
+        "levels": page.below.levels_table,
+        "sheet": page.below.sheet_out,
+        "data notes": page.below.notes,
+    }
     for name, pane in parts.items():
         markup = pane.object if isinstance(pane.object, str) else ""
         assert markup, name
@@ -169,6 +180,7 @@ def test_the_contrast_check_can_fail():
 
 
 # -- one time, and a case switch ---------------------------------------------------------------
+
 
 def test_a_file_with_one_time_says_so_in_the_times_view(tmp_path):
     from app.desk import Page

@@ -36,10 +36,10 @@ GFS = os.path.join(PYGRIB, "gfs.t12z.pgrbf120.2p5deg.grib2")
 
 if not (os.path.exists(ETA) and os.path.exists(GFS)):
     if os.environ.get("CI"):
-        pytest.fail(f"{PYGRIB} is incomplete: 'make test' fetches it (.ci/fetch-samples)",
-                    pytrace=False)
-    pytest.skip("real GRIB samples not fetched yet: run 'make samples'",
-                allow_module_level=True)
+        pytest.fail(
+            f"{PYGRIB} is incomplete: 'make test' fetches it (.ci/fetch-samples)", pytrace=False
+        )
+    pytest.skip("real GRIB samples not fetched yet: run 'make samples'", allow_module_level=True)
 
 eccodes = pytest.importorskip("eccodes")
 
@@ -54,11 +54,14 @@ def raw_field(path, short, level_type, level=None):
                 if h is None:
                     break
                 try:
-                    if eccodes.codes_get(h, "shortName") == short and \
-                            eccodes.codes_get(h, "typeOfLevel") == level_type and \
-                            (level is None or eccodes.codes_get(h, "level") == level):
-                        nx = eccodes.codes_get(h, "Nx" if eccodes.codes_is_defined(h, "Nx")
-                                               else "Ni")
+                    if (
+                        eccodes.codes_get(h, "shortName") == short
+                        and eccodes.codes_get(h, "typeOfLevel") == level_type
+                        and (level is None or eccodes.codes_get(h, "level") == level)
+                    ):
+                        nx = eccodes.codes_get(
+                            h, "Nx" if eccodes.codes_is_defined(h, "Nx") else "Ni"
+                        )
                         vals = eccodes.codes_get_values(h).reshape(-1, nx)
                         lat = eccodes.codes_get_array(h, "latitudes").reshape(-1, nx)
                         lon = eccodes.codes_get_array(h, "longitudes").reshape(-1, nx)
@@ -81,6 +84,7 @@ def gfs():
 
 
 # -- the right field from the right level --------------------------------------------
+
 
 def test_eta_surface_pressure_is_the_surface_field_not_the_cloud_top(eta):
     src = eta.sources["surface_pressure"]
@@ -120,7 +124,7 @@ def _lambert_tangent(lat, lon, lat1=25.0, lon0=265.0):
     n = np.sin(np.deg2rad(lat1))
     t = np.tan(np.pi / 4 + np.deg2rad(lat) / 2)
     t1 = np.tan(np.pi / 4 + np.deg2rad(lat1) / 2)
-    k = np.cos(np.deg2rad(lat1)) * t1 ** n / (np.cos(np.deg2rad(lat)) * t ** n)
+    k = np.cos(np.deg2rad(lat1)) * t1**n / (np.cos(np.deg2rad(lat)) * t**n)
     dlon = (lon - lon0 + 180.0) % 360.0 - 180.0
     return k, n * dlon
 
@@ -208,27 +212,34 @@ def test_gfs_north_atlantic_500_is_geostrophic_and_resolved(gfs):
     assert rep["sources"]["surface_pressure"]["variable"] == "sp"
 
 
-@pytest.mark.parametrize("name, fragment", [
-    ("reduced_gg.grib", "reduced_gg, which balance-desk cannot use"),
-    ("hpa_and_pa.grib", "no geopotential or geopotential height"),
-    ("uv_on_different_levels.grib", "no geopotential or geopotential height"),
-    ("t_on_different_level_types.grib", "no geopotential or geopotential height"),
-    ("era5-levels-corrupted.grib", "damaged or truncated"),
-])
+@pytest.mark.parametrize(
+    "name, fragment",
+    [
+        ("reduced_gg.grib", "reduced_gg, which balance-desk cannot use"),
+        ("hpa_and_pa.grib", "no geopotential or geopotential height"),
+        ("uv_on_different_levels.grib", "no geopotential or geopotential height"),
+        ("t_on_different_level_types.grib", "no geopotential or geopotential height"),
+        ("era5-levels-corrupted.grib", "damaged or truncated"),
+    ],
+)
 def test_cfgrib_edge_cases_get_one_sentence(name, fragment):
     path = os.path.join(CFGRIB, name)
     if not os.path.exists(path):
-        pytest.fail(f"{path} missing: 'make test' fetches it") if os.environ.get("CI") else \
-            pytest.skip(f"{name} not fetched")
+        pytest.fail(f"{path} missing: 'make test' fetches it") if os.environ.get(
+            "CI"
+        ) else pytest.skip(f"{name} not fetched")
     with pytest.raises(CaseError, match=fragment.replace("(", r"\(")):
         open_case(path)
 
 
-@pytest.mark.parametrize("name, fragment", [
-    ("ecmwf_tigge.grb", "reduced_gg"),
-    ("rotated_ll.grib1", "rotated_ll"),
-    ("ngm.grb", "no geopotential or geopotential height"),
-])
+@pytest.mark.parametrize(
+    "name, fragment",
+    [
+        ("ecmwf_tigge.grb", "reduced_gg"),
+        ("rotated_ll.grib1", "rotated_ll"),
+        ("ngm.grb", "no geopotential or geopotential height"),
+    ],
+)
 def test_pygrib_files_the_core_cannot_use_get_one_sentence(name, fragment):
     with pytest.raises(CaseError, match=fragment):
         open_case(os.path.join(PYGRIB, name))

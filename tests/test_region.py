@@ -13,7 +13,7 @@ def test_box_across_dateline(lon):
     a = Region.box(170, -170, -10, 10).mask(g)
     b = Region.box(170, 190, -10, 10).mask(g)
     assert (a == b).all()
-    sel_lon = np.unique(((g.lon[a] + 360) % 360))
+    sel_lon = np.unique((g.lon[a] + 360) % 360)
     np.testing.assert_allclose(sel_lon, [170, 175, 180, 185, 190])
     assert np.unique(g.lat[a]).size == 5
 
@@ -30,7 +30,13 @@ def test_polygon_across_dateline_matches_box():
     inner = Region.polygon([160.01, -150.01, -150.01, 160.01], [0.01, 0.01, 29.99, 29.99]).mask(g)
     assert (poly.mask(g) <= box).all()
     # strictly inside points agree; the polygon edge points are the difference
-    strict = box & (g.lat > 0) & (g.lat < 30) & (((g.lon - 160) % 360) > 0) & (((g.lon - 160) % 360) < 50)
+    strict = (
+        box
+        & (g.lat > 0)
+        & (g.lat < 30)
+        & (((g.lon - 160) % 360) > 0)
+        & (((g.lon - 160) % 360) < 50)
+    )
     assert (inner == strict).all()
 
 
@@ -79,8 +85,10 @@ def test_vector_stats():
     assert s.rms == pytest.approx(5.0) and xr == pytest.approx(3.0) and yr == pytest.approx(4.0)
 
 
-@pytest.mark.parametrize("lon, lat, radius", [(179.5, 40.0, 800.0), (-179.0, -20.0, 1500.0),
-                                              (10.0, 86.0, 900.0), (0.0, 0.0, 3000.0)])
+@pytest.mark.parametrize(
+    "lon, lat, radius",
+    [(179.5, 40.0, 800.0), (-179.0, -20.0, 1500.0), (10.0, 86.0, 900.0), (0.0, 0.0, 3000.0)],
+)
 def test_a_circle_holds_the_points_within_its_great_circle_radius(lon, lat, radius):
     # the circle's points are those whose haversine distance (Sinnott 1984) is within the
     # radius: the fast mask (a lon/lat box first) against every point by brute force

@@ -13,26 +13,26 @@
 How fast a change reaches every follower is measured in bench/rooms.py, not here.
 """
 
+import asyncio
 import os
+import threading
+import time
 import urllib.parse
 
 import pytest
-
-import asyncio
-import threading
-import time
-
-from app.rooms import SQLiteStore
 from chromium import launched, require
 from serving import start_server, stop_server
 from test_security import PAYLOADS
 from wire_page import WirePage
 
+from app.rooms import SQLiteStore
+
 pytestmark = pytest.mark.browser
 
 require()
-SHOTS = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "artifacts",
-                     "screenshots")
+SHOTS = os.path.join(
+    os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "artifacts", "screenshots"
+)
 WAIT = 30_000  # ms before a wait gives up (a hang, not a speed check)
 
 
@@ -57,8 +57,11 @@ def browser():
 
 def _room(store_path, title="Briefing 12 UTC", case="ocean_cyclone", view=None):
     s = SQLiteStore(store_path)
-    room = s.create_room(title, case, view if view is not None else {
-        "case": case, "level": "500", "region": "box:-52,-28,38,56"})
+    room = s.create_room(
+        title,
+        case,
+        view if view is not None else {"case": case, "level": "500", "region": "box:-52,-28,38,56"},
+    )
     s.close()
     return room
 
@@ -68,8 +71,9 @@ def _person(browser, url, name=None):
     ctx = browser.new_context(viewport={"width": 1500, "height": 1100})
     if name is not None:
         host = urllib.parse.urlparse(url).hostname
-        ctx.add_cookies([{"name": "bd_name", "value": urllib.parse.quote(name), "domain": host,
-                          "path": "/"}])
+        ctx.add_cookies(
+            [{"name": "bd_name", "value": urllib.parse.quote(name), "domain": host, "path": "/"}]
+        )
     page = ctx.new_page()
     page.dialogs, page.errors = [], []
     page.on("dialog", lambda d: (page.dialogs.append(d.message), d.dismiss()))
@@ -99,8 +103,9 @@ def _wait_status(page, text):
 
 def _canvas(page):
     """The chart's canvas, scrolled into view: its box on the screen."""
-    big = max(page.locator("canvas").all(),
-              key=lambda c: (c.bounding_box() or {"width": 0})["width"])
+    big = max(
+        page.locator("canvas").all(), key=lambda c: (c.bounding_box() or {"width": 0})["width"]
+    )
     big.scroll_into_view_if_needed()
     return big.bounding_box()
 
@@ -124,11 +129,11 @@ def test_a_box_drawn_by_the_one_steering_reaches_a_follower(server, store_path, 
     before = b.locator(".bd-verdict-where").first.inner_text()
     _drag(a, 0.2, 0.3, 0.55, 0.7)
     a.locator(".bd-verdict-where").filter(has_not_text=before.split(" · ")[2]).first.wait_for(
-        timeout=WAIT)
+        timeout=WAIT
+    )
     where_a = a.locator(".bd-verdict-where").first.inner_text()
     # the follower shows the same region and, from it, the same verdict
-    b.locator(".bd-verdict-where", has_text=where_a.split(" · ")[2]).first.wait_for(
-        timeout=WAIT)
+    b.locator(".bd-verdict-where", has_text=where_a.split(" · ")[2]).first.wait_for(timeout=WAIT)
     b.wait_for_timeout(300)
     assert _verdict(b) == _verdict(a)
     assert "Ana" in b.locator(".bd-room-people").first.inner_text()
@@ -160,8 +165,10 @@ def test_taking_over_stepping_out_and_back_in(server, store_path, browser):
     b.locator(".bd-verdict-where", has_text="700 hPa").first.wait_for(timeout=WAIT)
     a.wait_for_timeout(1000)
     assert "250 hPa" in a.locator(".bd-verdict-where").first.inner_text()
-    assert "850 hPa" in b.locator(".bd-verdict-where").first.inner_text() or \
-        "700 hPa" in b.locator(".bd-verdict-where").first.inner_text()
+    assert (
+        "850 hPa" in b.locator(".bd-verdict-where").first.inner_text()
+        or "700 hPa" in b.locator(".bd-verdict-where").first.inner_text()
+    )
     # ... and back: she gets the room's view
     a.get_by_role("button", name="Back to the room's view").click()
     a.locator(".bd-verdict-where", has_text="700 hPa").first.wait_for(timeout=WAIT)
@@ -245,12 +252,13 @@ def test_a_wrong_link_gets_the_plain_page(server, store_path, browser):
     for token in ("wrong-token-" + "x" * 20, old.token, "", "<script>alert(1)</script>"):
         page = browser.new_page()
         dialogs = []
-        page.on("dialog", lambda d: (dialogs.append(d.message), d.dismiss()))
+        page.on("dialog", lambda d, dialogs=dialogs: (dialogs.append(d.message), d.dismiss()))
         page.goto(f"{server['url']}room?" + urllib.parse.urlencode({"room": token}))
         page.get_by_text("No such room").first.wait_for(timeout=WAIT)
         text = page.locator("body").inner_text() + page.evaluate(
             "() => [...document.querySelectorAll('*')].map(e => e.shadowRoot ? "
-            "e.shadowRoot.textContent : '').join(' ')")
+            "e.shadowRoot.textContent : '').join(' ')"
+        )
         assert "ocean_cyclone" not in text and "old room" not in text and dialogs == []
         page.close()
 
@@ -266,8 +274,7 @@ def test_markup_in_notes_names_and_titles_stays_text(server, store_path, browser
     for i, text in enumerate(payloads):
         a.get_by_label("New note").fill(text[:2000])
         a.get_by_role("button", name="Add the note").click()
-        b.get_by_role("option", name=f"#{i + 1} ").first.wait_for(state="attached",
-                                                                 timeout=WAIT)
+        b.get_by_role("option", name=f"#{i + 1} ").first.wait_for(state="attached", timeout=WAIT)
     for i, text in enumerate(payloads[:6]):
         b.get_by_label("Notes (choose one to read it)").select_option(index=i)
         shown = b.locator(".bd-note-text").first
@@ -276,8 +283,19 @@ def test_markup_in_notes_names_and_titles_stays_text(server, store_path, browser
         b.locator(".bd-note").filter(has_text=f"#{i + 1} by").first.wait_for(timeout=WAIT)
         assert b.locator(".bd-note-text").first.inner_text().strip() == text.strip()
     for p in (a, b):
-        for sel in ("iframe", "marquee", "object", "video", "form", "math", "[onerror]",
-                    "[onload]", "[ontoggle]", "[onfocus]", "a[href^=javascript]"):
+        for sel in (
+            "iframe",
+            "marquee",
+            "object",
+            "video",
+            "form",
+            "math",
+            "[onerror]",
+            "[onload]",
+            "[ontoggle]",
+            "[onfocus]",
+            "a[href^=javascript]",
+        ):
             assert p.locator(sel).count() == 0, sel
         assert p.dialogs == [] and p.errors == [], (p.dialogs, p.errors)
     a.screenshot(path=os.path.join(SHOTS, "room_02_payloads.png"), full_page=True)

@@ -18,31 +18,50 @@ import urllib.parse
 import urllib.request
 
 import pytest
+from serving import free_port, start_server, stop_server
 
 from app.rooms import SQLiteStore
-from serving import free_port, start_server, stop_server
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
 
 def run(*args, env=None, timeout=120):
-    p = subprocess.run([sys.executable, "-m", "app.cli", *args], capture_output=True,
-                       text=True, cwd=ROOT, env=env, timeout=timeout)
+    p = subprocess.run(
+        [sys.executable, "-m", "app.cli", *args],
+        capture_output=True,
+        text=True,
+        cwd=ROOT,
+        env=env,
+        timeout=timeout,
+    )
     return p.returncode, p.stdout, p.stderr
 
 
 def test_create_list_and_export(tmp_path):
     store = str(tmp_path / "r.sqlite")
-    code, out, err = run("rooms", "create", "Tuesday <b>12 UTC</b>", "--case", "ocean_cyclone",
-                         "--store", store, "--base-url", "http://desk.example:5006")
+    code, out, err = run(
+        "rooms",
+        "create",
+        "Tuesday <b>12 UTC</b>",
+        "--case",
+        "ocean_cyclone",
+        "--store",
+        store,
+        "--base-url",
+        "http://desk.example:5006",
+    )
     assert code == 0, err
     link = out.strip()
     assert link.startswith("http://desk.example:5006/room?room=")
     token = urllib.parse.parse_qs(urllib.parse.urlparse(link).query)["room"][0]
     assert len(base64.urlsafe_b64decode(token + "=" * (-len(token) % 4))) * 8 >= 128
     s = SQLiteStore(store)
-    view = {"case": "ocean_cyclone", "level": "500", "time": "2041-01-19T12:00:00Z",
-            "region": "box:-52,-28,38,56"}
+    view = {
+        "case": "ocean_cyclone",
+        "level": "500",
+        "time": "2041-01-19T12:00:00Z",
+        "region": "box:-52,-28,38,56",
+    }
     n = s.add_note(token, "Ana", "The low is <i>not</i> geostrophic", view, (-40.0, 52.0))
     s.edit_note(token, n.note_id, "Ben", "The low is in gradient balance")
     s.close()
@@ -57,17 +76,22 @@ def test_create_list_and_export(tmp_path):
     d = json.loads(js)
     assert code == 0 and token not in js
     assert [v["text"] for v in d["notes"][0]["versions"]] == [
-        "The low is <i>not</i> geostrophic", "The low is in gradient balance"]
+        "The low is <i>not</i> geostrophic",
+        "The low is in gradient balance",
+    ]
     assert d["notes"][0]["view"]["level"] == "500" and d["notes"][0]["point"] == [-40.0, 52.0]
 
 
-@pytest.mark.parametrize("args, words", [
-    (("rooms", "create", ""), "title is empty"),
-    (("rooms", "create", "x" * 121), "longer than 120"),
-    (("rooms", "create", "ok", "--days", "0"), "--days"),
-    (("rooms", "export", "no-such-room"), "no such room"),
-    (("rooms", "export", "http://h/room?room=nope", "--format", "pdf"), "invalid choice"),
-])
+@pytest.mark.parametrize(
+    "args, words",
+    [
+        (("rooms", "create", ""), "title is empty"),
+        (("rooms", "create", "x" * 121), "longer than 120"),
+        (("rooms", "create", "ok", "--days", "0"), "--days"),
+        (("rooms", "export", "no-such-room"), "no such room"),
+        (("rooms", "export", "http://h/room?room=nope", "--format", "pdf"), "invalid choice"),
+    ],
+)
 def test_bad_room_requests_exit_2_with_one_sentence(tmp_path, args, words):
     code, out, err = run(*args, "--store", str(tmp_path / "r.sqlite"))
     assert code == 2 and words in err and len(err.strip().splitlines()) == 1, err
@@ -86,11 +110,20 @@ def test_another_address_needs_a_passphrase(tmp_path):
     assert code == 2 and "passphrase is needed" in err and len(err.strip().splitlines()) == 1
     short = tmp_path / "short"
     short.write_text("tooshort\n")
-    code, _, err = run("serve", "--host", "0.0.0.0", "--port", port, "--passphrase-file",
-                       str(short), env=env)
+    code, _, err = run(
+        "serve", "--host", "0.0.0.0", "--port", port, "--passphrase-file", str(short), env=env
+    )
     assert code == 2 and "at least 12 characters" in err
-    code, _, err = run("serve", "--host", "0.0.0.0", "--port", port, "--passphrase-file",
-                       str(tmp_path / "missing"), env=env)
+    code, _, err = run(
+        "serve",
+        "--host",
+        "0.0.0.0",
+        "--port",
+        port,
+        "--passphrase-file",
+        str(tmp_path / "missing"),
+        env=env,
+    )
     assert code == 2 and "cannot be read" in err
     # the passphrase is never taken from the command line
     code, _, err = run("serve", "--passphrase", "a long enough passphrase", env=env)
@@ -100,8 +133,9 @@ def test_another_address_needs_a_passphrase(tmp_path):
 def test_serving_another_address_without_a_passphrase_warns_at_every_start():
     env = {k: v for k, v in os.environ.items() if k != "BALANCE_DESK_PASSPHRASE"}
     port = free_port()
-    proc, url, _ = start_server(["--host", "0.0.0.0", "--open-without-passphrase"], env=env,
-                                port=port)
+    proc, url, _ = start_server(
+        ["--host", "0.0.0.0", "--open-without-passphrase"], env=env, port=port
+    )
     out = stop_server(proc)
     assert "WARNING: balance-desk is served on 0.0.0.0 WITHOUT a passphrase" in out
     assert out.index("WARNING") < out.index("serving 3 case(s)")
@@ -114,9 +148,11 @@ def test_a_websocket_from_another_origin_is_refused_and_long_links_are_too():
 
     proc, url, port = start_server()
     try:
+
         async def connect(origin):
-            req = tornado.httpclient.HTTPRequest(f"ws://127.0.0.1:{port}/ws",
-                                                 headers={"Origin": origin})
+            req = tornado.httpclient.HTTPRequest(
+                f"ws://127.0.0.1:{port}/ws", headers={"Origin": origin}
+            )
             try:
                 conn = await tornado.websocket.websocket_connect(req)
                 conn.close()
@@ -124,8 +160,7 @@ def test_a_websocket_from_another_origin_is_refused_and_long_links_are_too():
             except tornado.httpclient.HTTPClientError as exc:
                 return exc.code
 
-        code = tornado.ioloop.IOLoop.current().run_sync(
-            lambda: connect("http://evil.invalid"))
+        code = tornado.ioloop.IOLoop.current().run_sync(lambda: connect("http://evil.invalid"))
         assert code == 403
         with pytest.raises(urllib.error.HTTPError) as info:
             urllib.request.urlopen(url + "?case=" + "x" * 61000, timeout=30)

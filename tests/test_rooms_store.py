@@ -58,9 +58,11 @@ def test_every_version_of_a_note_is_kept(store):
     n3 = store.withdraw_note(room.token, n1.note_id, "Ana")
     assert (n2.version, n3.version) == (2, 3) and n3.withdrawn
     hist = store.history(room.token, n1.note_id)
-    assert [h.text for h in hist] == ["jet streak is ageostrophic",
-                                      "jet streak exit: ageostrophic",
-                                      "jet streak exit: ageostrophic"]
+    assert [h.text for h in hist] == [
+        "jet streak is ageostrophic",
+        "jet streak exit: ageostrophic",
+        "jet streak exit: ageostrophic",
+    ]
     assert [h.author for h in hist] == ["Ana", "Ben", "Ana"]
     latest = store.notes(room.token)
     assert len(latest) == 1 and latest[0].withdrawn and latest[0].first_author == "Ana"
@@ -115,6 +117,7 @@ def test_an_expired_room_is_no_room_for_the_hub(store):
 
 # -- the hub ----------------------------------------------------------------------------
 
+
 class Inbox:
     def __init__(self):
         self.got = []
@@ -136,8 +139,10 @@ def test_one_steers_the_others_follow(store):
     hub.join(room.token, "c", "Chi", c)
     new = dict(VIEW, level="850")
     assert hub.change_view(room.token, "a", new)
-    assert ("view", {"view": new, "version": 1, "by": "a"}) in b.got and \
-        ("view", {"view": new, "version": 1, "by": "a"}) in c.got
+    assert ("view", {"view": new, "version": 1, "by": "a"}) in b.got and (
+        "view",
+        {"view": new, "version": 1, "by": "a"},
+    ) in c.got
     assert "view" not in a.kinds()  # the one who made the change has it already
     # a follower's change is not the room's
     assert not hub.change_view(room.token, "b", dict(VIEW, level="250"))
@@ -232,9 +237,11 @@ def test_a_kill_in_the_middle_of_writes_loses_nothing_acknowledged(tmp_path):
     s = SQLiteStore(path)
     token = s.create_room("crash", "ocean_cyclone").token
     s.close()
-    proc = subprocess.Popen([sys.executable, "-c", WRITER.format(root=ROOT, path=path,
-                                                                 token=token)],
-                            stdout=subprocess.PIPE, text=True)
+    proc = subprocess.Popen(
+        [sys.executable, "-c", WRITER.format(root=ROOT, path=path, token=token)],
+        stdout=subprocess.PIPE,
+        text=True,
+    )
     acked = []
     for line in proc.stdout:
         acked.append(line.split(" ", 1)[1].strip())
@@ -242,8 +249,9 @@ def test_a_kill_in_the_middle_of_writes_loses_nothing_acknowledged(tmp_path):
             break
     os.kill(proc.pid, signal.SIGKILL)  # in the middle of the next writes
     proc.wait()
-    acked += [line.split(" ", 1)[1].strip() for line in proc.stdout.read().splitlines()
-              if " " in line]
+    acked += [
+        line.split(" ", 1)[1].strip() for line in proc.stdout.read().splitlines() if " " in line
+    ]
     s2 = SQLiteStore(path)
     assert s2.integrity() == "ok"
     stored = {n.text for n in s2.notes(token)}

@@ -45,8 +45,16 @@ def test_files_are_small_multilevel_multitime_and_say_synthetic(cases, name):
     steps = np.diff(c.times) / np.timedelta64(1, "h")
     assert np.all((steps >= 3) & (steps <= 6))
     assert c.missing == []
-    for key in ("title", "history", "source", "Conventions", "how_made", "friction",
-                "expected_verdicts", "suggested_box"):
+    for key in (
+        "title",
+        "history",
+        "source",
+        "Conventions",
+        "how_made",
+        "friction",
+        "expected_verdicts",
+        "suggested_box",
+    ):
         assert key in c.attrs, key
     assert "synthetic" in c.attrs["source"]
     assert "synthetic" in c.attrs["title"]
@@ -56,8 +64,13 @@ def test_files_are_small_multilevel_multitime_and_say_synthetic(cases, name):
 def test_generator_is_deterministic(cases, built, name):
     ds, _ = built[name]
     c = cases[name]
-    for key, role in (("height", "height"), ("u", "u"), ("v", "v"), ("omega", "omega"),
-                      ("temperature", "temperature")):
+    for key, role in (
+        ("height", "height"),
+        ("u", "u"),
+        ("v", "v"),
+        ("omega", "omega"),
+        ("temperature", "temperature"),
+    ):
         new = ds[key].values.astype(np.float32).astype(np.float64)
         old = c.data[role].values
         scale = max(np.abs(new).max(), 1e-6)

@@ -20,9 +20,16 @@ def test_synoptic_table_orders_of_magnitude():
     # The classic synoptic scale analysis (common practice, no source).
     r = analyse_scales(ScaleSet(**SYNOPTIC))
     orders = {k: math.floor(math.log10(v) + 1e-9) for k, v in r.terms}
-    assert orders == {"acceleration": -4, "vertical_advection": -5, "metric_uv": -5,
-                      "metric_uw": -8, "pressure_gradient": -3, "coriolis": -3,
-                      "coriolis_w": -6, "viscous": -12}
+    assert orders == {
+        "acceleration": -4,
+        "vertical_advection": -5,
+        "metric_uv": -5,
+        "metric_uw": -8,
+        "pressure_gradient": -3,
+        "coriolis": -3,
+        "coriolis_w": -6,
+        "viscous": -12,
+    }
     assert classify_scales(r).balance == "geostrophic"
     assert r.numbers["rossby"] == pytest.approx(0.1)
     assert r.numbers["ekman"] == pytest.approx(1e-9)
@@ -53,8 +60,9 @@ def test_preset_classes_are_the_expected_ones():
     assert got["sea_breeze"] == "unsteady"
 
 
-@pytest.mark.parametrize("bad", [dict(L=-1.0), dict(U=0.0), dict(H=float("nan")),
-                                 dict(f0=None, lat0=None), dict(f0=1.0)])
+@pytest.mark.parametrize(
+    "bad", [dict(L=-1.0), dict(U=0.0), dict(H=float("nan")), dict(f0=None, lat0=None), dict(f0=1.0)]
+)
 def test_bad_scales_raise(bad):
     with pytest.raises(ValueError):
         ScaleSet(**{**SYNOPTIC, **bad})
@@ -69,8 +77,9 @@ def test_scales_estimated_from_data():
     z = 5500 + 50 * np.sin(k * x)
     u = np.full(g.shape, 20.0)
     om = np.full(g.shape, 0.1)
-    s = estimate_scales(g, Region.whole().mask(g), u=u, v=0 * u, height=z, pressure=50000.0,
-                        omega=om)
+    s = estimate_scales(
+        g, Region.whole().mask(g), u=u, v=0 * u, height=z, pressure=50000.0, omega=om
+    )
     assert s.U == pytest.approx(20.0)
     assert s.L == pytest.approx(1 / k, rel=0.02)
     rho = 50000.0 / (C.R_DRY * 251.916)  # standard-atmosphere temperature at 500 hPa
@@ -78,7 +87,8 @@ def test_scales_estimated_from_data():
     # dP over the same distance L: rho g std(Z), std of a sine of amplitude 50 m = 50 / sqrt(2)
     assert s.dP == pytest.approx(rho * C.G0 * 50 / np.sqrt(2), rel=5e-3)  # sampled sine
     assert s.W == pytest.approx(0.1 / (rho * C.G0), rel=1e-6)
-    # so the a priori pressure gradient dP / (rho L) is the measured RMS g |grad Z| = g 50 k / sqrt(2)
+    # for one sine the a priori pressure gradient dP / (rho L) is the measured RMS g |grad Z|,
+    # g 50 k / sqrt(2)
     assert s.dP / (s.rho * s.L) == pytest.approx(C.G0 * 50 * k / np.sqrt(2), rel=0.02)
 
 
@@ -122,7 +132,9 @@ def test_scales_flags_change_the_answer(capsys):
     rep = json.loads(out)
     assert rep["scales"]["L"] == 1e4 and rep["numbers"]["rossby"] > 10
     _, out, _ = _run(capsys, "scales", "--format", "json", "--f0", "5e-5")
-    assert json.loads(out)["scales"]["lat0"] == pytest.approx(math.degrees(math.asin(5e-5 / (2 * C.OMEGA))))
+    assert json.loads(out)["scales"]["lat0"] == pytest.approx(
+        math.degrees(math.asin(5e-5 / (2 * C.OMEGA)))
+    )
 
 
 def test_scales_table_is_readable(capsys):
@@ -131,16 +143,19 @@ def test_scales_table_is_readable(capsys):
     assert "verdict: cyclostrophic" in out and "10^-2" in out and "m s-2" in out
 
 
-@pytest.mark.parametrize("args, fragment", [
-    (["scales", "--L", "-5"], "--L must be a positive number"),
-    (["scales", "--preset", "nope"], "unknown preset 'nope'"),
-    (["scales", "--lat", "0"], "gives no Rossby number"),
-    (["scales", "--f0", "0"], "gives no Rossby number"),
-    (["scales", "--f0", "1e-3"], "exceeds 2 Omega"),
-    (["scales", "--U", "fast"], "must be a number"),
-    (["scales", "--f0", "1e-4", "--lat", "40"], "not allowed with"),
-    (["scales", "--format", "xml"], "invalid choice"),
-])
+@pytest.mark.parametrize(
+    "args, fragment",
+    [
+        (["scales", "--L", "-5"], "--L must be a positive number"),
+        (["scales", "--preset", "nope"], "unknown preset 'nope'"),
+        (["scales", "--lat", "0"], "gives no Rossby number"),
+        (["scales", "--f0", "0"], "gives no Rossby number"),
+        (["scales", "--f0", "1e-3"], "exceeds 2 Omega"),
+        (["scales", "--U", "fast"], "must be a number"),
+        (["scales", "--f0", "1e-4", "--lat", "40"], "not allowed with"),
+        (["scales", "--format", "xml"], "invalid choice"),
+    ],
+)
 def test_bad_flags_one_sentence_exit_2(capsys, args, fragment):
     code, out, err = _run(capsys, *args)
     assert code == 2
@@ -149,12 +164,20 @@ def test_bad_flags_one_sentence_exit_2(capsys, args, fragment):
 
 
 def test_console_script_runs_in_a_subprocess():
-    r = subprocess.run([sys.executable, "-m", "app.cli", "scales", "--format", "json"],
-                       capture_output=True, text=True, timeout=120)
+    r = subprocess.run(
+        [sys.executable, "-m", "app.cli", "scales", "--format", "json"],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
     assert r.returncode == 0, r.stderr
     assert json.loads(r.stdout)["verdict"]["balance"] == "geostrophic"
-    r = subprocess.run([sys.executable, "-m", "app.cli", "scales", "--L", "0"],
-                       capture_output=True, text=True, timeout=120)
+    r = subprocess.run(
+        [sys.executable, "-m", "app.cli", "scales", "--L", "0"],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
     assert r.returncode == 2 and "Traceback" not in r.stderr
 
 

@@ -18,7 +18,6 @@ from http.server import BaseHTTPRequestHandler, HTTPServer
 
 import numpy as np
 import pytest
-
 from chromium import launched, require
 from serving import free_port, start_server, stop_server
 
@@ -35,11 +34,11 @@ require()
 PAYLOADS = [
     "<script>alert(1)</script>",
     "<img src=x onerror=alert(1)>",
-    "\"><img src=x onerror=alert(2)>",
+    '"><img src=x onerror=alert(2)>',
     "'><svg onload=alert(3)>",
     "<svg><script>alert(4)</script></svg>",
     "<iframe srcdoc='<script>alert(5)</script>'></iframe>",
-    "<a href=\"javascript:alert(6)\">click</a>",
+    '<a href="javascript:alert(6)">click</a>',
     "javascript:alert(7)",
     "data:text/html,<script>alert(8)</script>",
     "[link](javascript:alert(9))",
@@ -65,12 +64,25 @@ PAYLOADS = [
     "%3Cscript%3Ealert(26)%3C%2Fscript%3E",
     "&lt;img src=x onerror=alert(27)&gt;",
     "<img src=x onerror=alert(28)>" + "A" * 3000,
-    "<div style=\"position:fixed;inset:0;background:red\">covered</div>",
+    '<div style="position:fixed;inset:0;background:red">covered</div>',
     "<form action=//evil.invalid><input name=q></form>",
 ]
 
-PARAMS = ["case", "level", "time", "field", "vectors", "smooth_km", "min_lat", "region",
-          "projection", "height_units", "wind_units", "preset", "sheet"]
+PARAMS = [
+    "case",
+    "level",
+    "time",
+    "field",
+    "vectors",
+    "smooth_km",
+    "min_lat",
+    "region",
+    "projection",
+    "height_units",
+    "wind_units",
+    "preset",
+    "sheet",
+]
 
 
 def test_the_corpus_is_large_enough():
@@ -98,9 +110,12 @@ def _hostile_cases(tmp):
     ds.to_netcdf(os.path.join(tmp, name + ".nc"))
     # attributes and variable names with markup
     ds2 = ds.rename({"height": "z<svg onload=alert(102)>"})  # a name must start with a letter
-    ds2.attrs.update(title="<script>alert(103)</script>", suggested_box="<b>not a box</b>",
-                     scale_preset="<img src=x onerror=alert(104)>",
-                     geography="<script>alert(105)</script>")
+    ds2.attrs.update(
+        title="<script>alert(103)</script>",
+        suggested_box="<b>not a box</b>",
+        scale_preset="<img src=x onerror=alert(104)>",
+        geography="<script>alert(105)</script>",
+    )
     ds2["ta"].attrs["long_name"] = "<img src=x onerror=alert(106)> potential temperature"
     ds2.to_netcdf(os.path.join(tmp, "attrs.nc"))
     # a broken file whose error message repeats markup from its attributes
@@ -133,7 +148,8 @@ def _open(browser, url, wait_verdict=True):
     page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
     page.goto(url)
     page.locator(".bd-chart-title").or_(page.get_by_text("could not be loaded")).first.wait_for(
-        timeout=60_000)
+        timeout=60_000
+    )
     if wait_verdict:
         page.locator(".bd-verdict").first.wait_for(timeout=60_000)
     return page, dialogs, errors
@@ -144,7 +160,8 @@ def _body_text(page):
     return "\n".join(page.locator("div").all_inner_texts()[:1]) + page.evaluate(
         "() => { const out = []; const walk = n => { if (n.shadowRoot) walk(n.shadowRoot); "
         "for (const c of n.children || []) walk(c); if (n.nodeType === 1 && !n.children.length)"
-        " out.push(n.textContent); }; walk(document.body); return out.join('\\n'); }")
+        " out.push(n.textContent); }; walk(document.body); return out.join('\\n'); }"
+    )
 
 
 @pytest.mark.parametrize("i", range(len(PAYLOADS)))
@@ -165,8 +182,20 @@ def test_payloads_in_every_link_parameter_stay_text(hostile_server, browser, i):
     shown = printable(payload)[:10]
     assert any(shown in line for line in text.splitlines()), shown
     # no element from the payload made it into the page's markup
-    for sel in ("iframe", "marquee", "object", "video", "form", "math", "[onerror]",
-                "[onload]", "[ontoggle]", "[onfocus]", "[onstart]", "a[href^=javascript]"):
+    for sel in (
+        "iframe",
+        "marquee",
+        "object",
+        "video",
+        "form",
+        "math",
+        "[onerror]",
+        "[onload]",
+        "[ontoggle]",
+        "[onfocus]",
+        "[onstart]",
+        "a[href^=javascript]",
+    ):
         assert page.locator(sel).count() == 0, sel
     if i in (0, 1, len(PAYLOADS) - 1):
         os.makedirs(SHOTS, exist_ok=True)
@@ -176,8 +205,9 @@ def test_payloads_in_every_link_parameter_stay_text(hostile_server, browser, i):
 
 def test_file_names_attributes_and_variable_names_stay_text(hostile_server, browser):
     for case in ("<img src=x onerror=alert(101)>", "attrs"):
-        page, dialogs, errors = _open(browser, hostile_server + "?" + urllib.parse.urlencode(
-            {"case": case}))
+        page, dialogs, errors = _open(
+            browser, hostile_server + "?" + urllib.parse.urlencode({"case": case})
+        )
         page.locator("text=Notes on the data").first.click()
         page.wait_for_timeout(800)
         assert dialogs == [], (case, dialogs)
@@ -217,9 +247,11 @@ def test_headers_forbid_framing_and_sniffing(hostile_server):
 class _Framer(BaseHTTPRequestHandler):
     target = ""
 
-    def do_GET(self):  # noqa: N802 - the name http.server wants
-        body = (f"<html><body><h1>another origin</h1><iframe id='f' src='{self.target}' "
-                "width=800 height=600></iframe></body></html>").encode()
+    def do_GET(self):
+        body = (
+            f"<html><body><h1>another origin</h1><iframe id='f' src='{self.target}' "
+            "width=800 height=600></iframe></body></html>"
+        ).encode()
         self.send_response(200)
         self.send_header("Content-Type", "text/html")
         self.end_headers()
@@ -242,8 +274,11 @@ def test_another_origin_cannot_frame_the_desk(hostile_server, browser):
         child = [f for f in page.frames if f != page.main_frame]
         assert child, "no frame"
         # the browser refuses to show the desk inside another origin's page
-        content = child[0].evaluate("() => document.body ? document.body.innerText : ''") \
-            if not child[0].url.startswith("chrome-error") else ""
+        content = (
+            child[0].evaluate("() => document.body ? document.body.innerText : ''")
+            if not child[0].url.startswith("chrome-error")
+            else ""
+        )
         assert "balance-desk" not in content
         assert child[0].url.startswith("chrome-error") or content == ""
         page.close()

@@ -12,8 +12,17 @@ import urllib.parse
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from app.state import (FIELDS, PROJECTIONS, SHEET_SCALES, URL_PARAMS, VECTORS, RegionSpec,
-                       ViewState, parse_query, parse_region)
+from app.state import (
+    FIELDS,
+    PROJECTIONS,
+    SHEET_SCALES,
+    URL_PARAMS,
+    VECTORS,
+    RegionSpec,
+    ViewState,
+    parse_query,
+    parse_region,
+)
 from balance_core.scales import PRESETS
 
 CASES = ["ocean_cyclone", "tropical_cyclone", "sea_breeze"]
@@ -36,33 +45,50 @@ def areas(draw):
     proj = draw(st.sampled_from(["lcc", "stere", "merc"]))
     lo0 = round(draw(st.floats(-180, 180)), 2)
     if proj == "lcc":
-        p = (("lat_1", round(draw(st.floats(20, 60)), 2)),
-             ("lat_2", round(draw(st.floats(20, 60)), 2)), ("lat_0", 45.0), ("lon_0", lo0),
-             ("R", 6371008.7714))
+        p = (
+            ("lat_1", round(draw(st.floats(20, 60)), 2)),
+            ("lat_2", round(draw(st.floats(20, 60)), 2)),
+            ("lat_0", 45.0),
+            ("lon_0", lo0),
+            ("R", 6371008.7714),
+        )
     elif proj == "stere":
-        p = (("lat_0", draw(st.sampled_from([90.0, -90.0]))), ("lat_ts", 60.0), ("lon_0", lo0),
-             ("R", 6371008.7714))
+        p = (
+            ("lat_0", draw(st.sampled_from([90.0, -90.0]))),
+            ("lat_ts", 60.0),
+            ("lon_0", lo0),
+            ("R", 6371008.7714),
+        )
     else:
         p = (("lat_ts", round(draw(st.floats(0, 30)), 2)), ("lon_0", lo0), ("R", 6371008.7714))
-    corners = tuple((round(draw(st.floats(-180, 180)), 4), round(draw(st.floats(-80, 80)), 4))
-                    for _ in range(4))
+    corners = tuple(
+        (round(draw(st.floats(-180, 180)), 4), round(draw(st.floats(-80, 80)), 4)) for _ in range(4)
+    )
     return ("area", (proj, p, corners))
 
 
 @st.composite
 def circles(draw):
     """A weather system's region: a centre and a radius."""
-    return ("circle", (round(draw(st.floats(-180, 180)), 4), round(draw(st.floats(-89, 89)), 4),
-                       round(draw(st.floats(1, 5000)), 1)))
+    return (
+        "circle",
+        (
+            round(draw(st.floats(-180, 180)), 4),
+            round(draw(st.floats(-89, 89)), 4),
+            round(draw(st.floats(1, 5000)), 1),
+        ),
+    )
 
 
 changes = st.one_of(
     st.tuples(st.just("case"), st.sampled_from(CASES)),
-    st.tuples(st.just("level"), st.sampled_from([1000.0, 925.0, 850.0, 700.0, 500.0, 250.0,
-                                                 0.0])),  # 0: sea level, "msl" in a link
+    st.tuples(
+        st.just("level"), st.sampled_from([1000.0, 925.0, 850.0, 700.0, 500.0, 250.0, 0.0])
+    ),  # 0: sea level, "msl" in a link
     st.tuples(st.just("level"), st.floats(1, 1100, allow_nan=False).map(lambda v: round(v, 4))),
-    st.tuples(st.just("time"), st.sampled_from(["", "2041-01-19T12:00:00Z",
-                                                "2038-09-04T06:00:00Z"])),
+    st.tuples(
+        st.just("time"), st.sampled_from(["", "2041-01-19T12:00:00Z", "2038-09-04T06:00:00Z"])
+    ),
     st.tuples(st.just("field"), st.sampled_from(list(FIELDS))),
     st.tuples(st.just("vectors"), st.sampled_from(list(VECTORS))),
     st.tuples(st.just("smooth_km"), st.floats(0, 2000, allow_nan=False).map(lambda v: round(v, 4))),
@@ -71,11 +97,15 @@ changes = st.one_of(
     st.tuples(st.just("height_units"), st.sampled_from(["m", "dam"])),
     st.tuples(st.just("wind_units"), st.sampled_from(["m/s", "kt"])),
     st.tuples(st.just("preset"), st.sampled_from(list(PRESETS))),
-    st.tuples(st.just("sheet"), st.dictionaries(st.sampled_from(SHEET_SCALES),
-                                                st.floats(1e-6, 1e7).map(lambda v: float(f"{v:.6g}")),
-                                                max_size=4)),
-    st.tuples(st.just("region"), st.one_of(st.just(("whole", None)), boxes(), areas(),
-                                           circles())),
+    st.tuples(
+        st.just("sheet"),
+        st.dictionaries(
+            st.sampled_from(SHEET_SCALES),
+            st.floats(1e-6, 1e7).map(lambda v: float(f"{v:.6g}")),
+            max_size=4,
+        ),
+    ),
+    st.tuples(st.just("region"), st.one_of(st.just(("whole", None)), boxes(), areas(), circles())),
 )
 
 
@@ -128,8 +158,13 @@ def test_every_reachable_state_reopens_to_itself(seq):
 
 
 @settings(max_examples=400, deadline=None)
-@given(st.dictionaries(st.sampled_from(list(URL_PARAMS) + ["other"]),
-                       st.one_of(st.text(max_size=300), st.binary(max_size=60)), max_size=8))
+@given(
+    st.dictionaries(
+        st.sampled_from(list(URL_PARAMS) + ["other"]),
+        st.one_of(st.text(max_size=300), st.binary(max_size=60)),
+        max_size=8,
+    )
+)
 def test_any_text_parses_to_defaults_or_valid_values(query):
     values, problems = parse_query({k: [v] for k, v in query.items()}, cases=CASES)
     s = ViewState()

@@ -28,21 +28,28 @@ import pytest
 from balance_core import Grid, analytic
 from balance_core.budget import Fields, ageostrophic_parts
 from balance_core.report import box_report, level_diagnostics
-from balance_core.systems import (System, contour_interval, find_closed_extrema,
-                                  find_jet_streaks, find_systems, jet_threshold, match_tracks)
+from balance_core.systems import (
+    System,
+    contour_interval,
+    find_closed_extrema,
+    find_jet_streaks,
+    find_systems,
+    jet_threshold,
+    match_tracks,
+)
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 G0 = 9.80665
 
 
 def _diag(grid, z, u, v, p):
-    f = Fields(u=u[None, None], v=v[None, None], height=z[None, None],
-               pressure=np.array([p]), time=None)
+    f = Fields(
+        u=u[None, None], v=v[None, None], height=z[None, None], pressure=np.array([p]), time=None
+    )
     return level_diagnostics(grid, f, 0, 0)
 
 
-def holland(step=0.1, lat0=20.0, lon0=150.0, dp=4000.0, rmax=40e3, b=1.5, rho=1.15,
-            half=6.0):
+def holland(step=0.1, lat0=20.0, lon0=150.0, dp=4000.0, rmax=40e3, b=1.5, rho=1.15, half=6.0):
     """A Holland (1980) vortex on a pressure level: height from the pressure deficit
     (dZ = dp / (rho g)), winds the Holland gradient wind, on an f-plane at lat0."""
     lat = np.arange(lat0 - half, lat0 + half + 1e-9, step)
@@ -91,7 +98,7 @@ def test_two_vortices_of_opposite_sign_are_a_low_and_a_high():
     g = Grid.latlon(lat, lon)
     r1 = analytic.great_circle_distance(45.0, -20.0, g.lat, g.lon, g.radius)
     r2 = analytic.great_circle_distance(42.0, 5.0, g.lat, g.lon, g.radius)
-    z = 5500.0 - 200.0 * np.exp(-(r1 / 600e3) ** 2) + 180.0 * np.exp(-(r2 / 500e3) ** 2)
+    z = 5500.0 - 200.0 * np.exp(-((r1 / 600e3) ** 2)) + 180.0 * np.exp(-((r2 / 500e3) ** 2))
     lows = find_closed_extrema(g, z, 50000.0, "low")
     highs = find_closed_extrema(g, z, 50000.0, "high")
     # the centres refined below the grid: within a tenth of a grid cell of where they were put
@@ -107,7 +114,7 @@ def test_a_low_that_reaches_the_edge_of_the_data_is_not_closed():
     lon = np.arange(-40.0, 20.01, 0.5)
     g = Grid.latlon(lat, lon)
     r1 = analytic.great_circle_distance(45.0, -39.0, g.lat, g.lon, g.radius)  # at the edge
-    z = 5500.0 - 200.0 * np.exp(-(r1 / 600e3) ** 2)
+    z = 5500.0 - 200.0 * np.exp(-((r1 / 600e3) ** 2))
     assert find_closed_extrema(g, z, 50000.0, "low") == []
 
 
@@ -126,8 +133,11 @@ def test_williamson_case_2_has_its_polar_lows_and_no_high():
     # their outermost closed contours enclose at most a tenth of the globe (a cap poleward
     # of asin(0.8) = 53.1 degrees): the contour below that is planetary, not synoptic
     for s in lows:
-        assert 0.09 * 4 * math.pi * (6371.0087714) ** 2 < s.area_km2 <= \
-            0.10 * 4 * math.pi * (6371.0087714) ** 2
+        assert (
+            0.09 * 4 * math.pi * (6371.0087714) ** 2
+            < s.area_km2
+            <= 0.10 * 4 * math.pi * (6371.0087714) ** 2
+        )
     # saying no: the same flow on a grid that stops 2 degrees short of the poles has no
     # pole row to join, and its polar contours reach the edge of the data
     lat = np.linspace(-88.0, 88.0, 89)
@@ -141,9 +151,9 @@ def test_a_streak_on_a_zonal_jet_is_found_at_its_peak():
     lat = np.arange(10.0, 80.01, 0.5)
     lon = np.arange(-100.0, 60.01, 0.5)
     g = Grid.latlon(lat, lon)
-    jet = np.exp(-((g.lat - 45.0) / 8.0) ** 2)
-    streak = np.exp(-((g.lon + 20.0) / 15.0) ** 2)
-    u = 25.0 * jet + 30.0 * jet * streak   # 55 m/s at (20W, 45N); 25 m/s elsewhere on the jet
+    jet = np.exp(-(((g.lat - 45.0) / 8.0) ** 2))
+    streak = np.exp(-(((g.lon + 20.0) / 15.0) ** 2))
+    u = 25.0 * jet + 30.0 * jet * streak  # 55 m/s at (20W, 45N); 25 m/s elsewhere on the jet
     v = np.zeros_like(u)
     found = find_jet_streaks(g, u, v, 25000.0)
     assert len(found) == 1
@@ -159,11 +169,13 @@ def test_systems_are_matched_through_the_times():
     def sys_(kind, lon, lat):
         from balance_core.region import Region
 
-        return System(kind, lon, lat, 0.0, 60.0, 0.0, 1.0, Region.circle(lon, lat, 100.0),
-                      (0, 0))
-    times = [[sys_("low", -40, 50), sys_("high", 0, 40)],
-             [sys_("high", 1, 40), sys_("low", -37, 50)],    # moved about 210 km in 6 h
-             [sys_("low", -20, 50)]]                         # 1200 km in 6 h: a new system
+        return System(kind, lon, lat, 0.0, 60.0, 0.0, 1.0, Region.circle(lon, lat, 100.0), (0, 0))
+
+    times = [
+        [sys_("low", -40, 50), sys_("high", 0, 40)],
+        [sys_("high", 1, 40), sys_("low", -37, 50)],  # moved about 210 km in 6 h
+        [sys_("low", -20, 50)],
+    ]  # 1200 km in 6 h: a new system
     tracks = match_tracks(times, [0.0, 6.0, 12.0])
     assert [(0, 0), (1, 1)] in tracks and [(0, 1), (1, 0)] in tracks and [(2, 0)] in tracks
 
@@ -211,16 +223,17 @@ def _closed_contour_around(z, level, row, col, periodic=False):
     return False
 
 
-REAL = [(os.path.join(ROOT, ".cache", "cfgrib-samples", "era5-levels-members.grib"), 50000.0),
-        (os.path.join(ROOT, ".cache", "pygrib-samples", "eta.grb"), 50000.0),
-        (os.path.join(ROOT, ".cache", "pygrib-samples", "gfs.t12z.pgrbf120.2p5deg.grib2"),
-         50000.0),
-        (os.path.join(ROOT, ".cache", "pygrib-samples", "gfs.t12z.pgrbf120.2p5deg.grib2"),
-         85000.0)]
+REAL = [
+    (os.path.join(ROOT, ".cache", "cfgrib-samples", "era5-levels-members.grib"), 50000.0),
+    (os.path.join(ROOT, ".cache", "pygrib-samples", "eta.grb"), 50000.0),
+    (os.path.join(ROOT, ".cache", "pygrib-samples", "gfs.t12z.pgrbf120.2p5deg.grib2"), 50000.0),
+    (os.path.join(ROOT, ".cache", "pygrib-samples", "gfs.t12z.pgrbf120.2p5deg.grib2"), 85000.0),
+]
 
 
-@pytest.mark.parametrize("path, level", REAL, ids=[f"{os.path.basename(p)}-{int(lv / 100)}"
-                                                   for p, lv in REAL])
+@pytest.mark.parametrize(
+    "path, level", REAL, ids=[f"{os.path.basename(p)}-{int(lv / 100)}" for p, lv in REAL]
+)
 def test_every_low_found_in_real_data_is_a_minimum_inside_a_closed_contour(path, level):
     if not os.path.exists(path):
         if os.environ.get("CI"):
@@ -236,6 +249,7 @@ def test_every_low_found_in_real_data_is_a_minimum_inside_a_closed_contour(path,
     highs = find_closed_extrema(case.grid, z, case.levels_pa[k], "high")
     if "gfs" in path:  # a global chart has closed systems (common practice, no source)
         assert lows and highs
+
     def cap(s):
         # a contour around a pole is no closed ring on the lon/lat array: marching squares
         # cannot draw it; those are checked by the priority flood (test_systems_real.py)
@@ -243,15 +257,19 @@ def test_every_low_found_in_real_data_is_a_minimum_inside_a_closed_contour(path,
 
     for s in lows:
         r, c = s.index
-        win = z[max(r - 1, 0):r + 2, max(c - 1, 0):c + 2]
+        win = z[max(r - 1, 0) : r + 2, max(c - 1, 0) : c + 2]
         assert z[r, c] == np.nanmin(win)  # a local minimum of the data
         # just under the outermost closed contour's height, a closed contour around it
-        assert cap(s) or _closed_contour_around(z, s.outer_level - 1e-6, r, c, periodic), \
-            (s.lon, s.lat)
+        assert cap(s) or _closed_contour_around(z, s.outer_level - 1e-6, r, c, periodic), (
+            s.lon,
+            s.lat,
+        )
     for s in highs:
         r, c = s.index
-        assert cap(s) or _closed_contour_around(-z, -s.outer_level - 1e-6, r, c, periodic), \
-            (s.lon, s.lat)
+        assert cap(s) or _closed_contour_around(-z, -s.outer_level - 1e-6, r, c, periodic), (
+            s.lon,
+            s.lat,
+        )
 
 
 def test_the_ageostrophic_parts_add_up_to_the_ageostrophic_wind():
@@ -271,8 +289,10 @@ def test_the_ageostrophic_parts_add_up_to_the_ageostrophic_wind():
     scale = np.nanmax(np.hypot(ua, va))
     assert np.nanmax(np.abs(sx - ua)[ok]) < 1e-9 * scale
     assert np.nanmax(np.abs(sy - va)[ok]) < 1e-9 * scale
-    assert all(parts[n].available for n in ("tendency", "inertial_advective",
-                                            "vertical_advection", "remainder"))
+    assert all(
+        parts[n].available
+        for n in ("tendency", "inertial_advective", "vertical_advection", "remainder")
+    )
 
 
 def test_on_a_steady_vortex_the_inertial_advective_part_carries_the_gradient_excess():
@@ -293,6 +313,7 @@ def test_on_a_steady_vortex_the_inertial_advective_part_carries_the_gradient_exc
 
 # -- the rules of the systems issue, each shown saying yes and no ------------------------------
 
+
 def _global(step=1.0):
     lat = np.arange(90.0, -90.01, -step)
     lon = np.arange(0.0, 360.0, step)
@@ -306,8 +327,8 @@ def test_a_centre_between_grid_points_is_refined_below_the_grid():
     lon = np.arange(-40.0, 0.01, 0.5)
     g = Grid.latlon(lat, lon)
     r = analytic.great_circle_distance(45.25, -19.75, g.lat, g.lon, g.radius)
-    z = 5500.0 - 200.0 * np.exp(-(r / 600e3) ** 2)
-    low, = find_closed_extrema(g, z, 50000.0, "low")
+    z = 5500.0 - 200.0 * np.exp(-((r / 600e3) ** 2))
+    (low,) = find_closed_extrema(g, z, 50000.0, "low")
     r0, c0 = low.index
     assert abs(g.lat[r0, c0] - 45.25) == 0.25 and abs(g.lon[r0, c0] + 19.75) == 0.25
     assert abs(low.lat - 45.25) < 0.05 and abs(low.lon + 19.75) < 0.05
@@ -319,11 +340,11 @@ def test_a_high_is_bounded_by_the_share_of_the_globe_its_contour_may_enclose():
     # the rule allows, its outermost closed contour is a smaller one
     g = _global()
     r = analytic.great_circle_distance(65.0, 200.0, g.lat, g.lon, g.radius)
-    z = 10400.0 + 300.0 * np.exp(-(r / 4000e3) ** 2)
-    earth = 4 * math.pi * 6371.0087714 ** 2
-    high, = find_closed_extrema(g, z, 25000.0, "high")
+    z = 10400.0 + 300.0 * np.exp(-((r / 4000e3) ** 2))
+    earth = 4 * math.pi * 6371.0087714**2
+    (high,) = find_closed_extrema(g, z, 25000.0, "high")
     assert high.area_km2 <= 0.10 * earth
-    wide, = find_closed_extrema(g, z, 25000.0, "high", max_share=0.5)
+    (wide,) = find_closed_extrema(g, z, 25000.0, "high", max_share=0.5)
     assert wide.area_km2 > 0.15 * earth  # the rule said no to these wider contours
     assert wide.depth > high.depth
 
@@ -334,14 +355,14 @@ def test_a_contour_that_crosses_the_equator_does_not_close_a_system():
     # closed contour is the next, 11040 m (1070 km out), north of the equator
     g = _global()
     r = analytic.great_circle_distance(10.0, 100.0, g.lat, g.lon, g.radius)
-    z = 10800.0 + 400.0 * np.exp(-(r / 1500e3) ** 2)
-    high, = find_closed_extrema(g, z, 25000.0, "high")
+    z = 10800.0 + 400.0 * np.exp(-((r / 1500e3) ** 2))
+    (high,) = find_closed_extrema(g, z, 25000.0, "high")
     inside = high.inside
     assert inside.any() and g.lat[inside].min() >= 0.0 and high.outer_level == 11040.0
     assert high.region.south >= 0.0  # the region stays north
     # saying no: moved to 30N the same high keeps its wider contour (nothing to cross)
     r = analytic.great_circle_distance(30.0, 100.0, g.lat, g.lon, g.radius)
-    far, = find_closed_extrema(g, 10800.0 + 400.0 * np.exp(-(r / 1500e3) ** 2), 25000.0, "high")
+    (far,) = find_closed_extrema(g, 10800.0 + 400.0 * np.exp(-((r / 1500e3) ** 2)), 25000.0, "high")
     assert far.outer_level == 10920.0 and far.depth > high.depth
 
 
@@ -353,8 +374,10 @@ def test_a_latitude_band_is_no_closed_low_but_a_polar_cap_is():
     assert find_closed_extrema(g, band, 50000.0, "low") == []
     cap = 5000.0 + 400.0 * np.cos(np.deg2rad(g.lat)) ** 2 + 0.0 * g.lon
     lows = find_closed_extrema(g, cap, 50000.0, "low")
-    assert [round(s.lat) for s in lows] == [90, -90] or sorted(round(s.lat) for s in lows) == \
-        [-90, 90]
+    assert [round(s.lat) for s in lows] == [90, -90] or sorted(round(s.lat) for s in lows) == [
+        -90,
+        90,
+    ]
 
 
 def test_a_tropical_cyclones_ring_of_wind_is_no_jet_streak_but_a_streak_far_away_is():
@@ -370,8 +393,8 @@ def test_a_tropical_cyclones_ring_of_wind_is_no_jet_streak_but_a_streak_far_away
     lon = np.arange(135.0, 175.01, 0.25)
     g2 = Grid.latlon(lat, lon)
     r = analytic.great_circle_distance(20.0, 150.0, g2.lat, g2.lon, g2.radius)
-    z2 = 1500.0 - 300.0 * np.exp(-(r / 300e3) ** 2)
-    streak = 30.0 * np.exp(-((g2.lat - 32.6) / 1.5) ** 2 - ((g2.lon - 150.0) / 5.0) ** 2)
+    z2 = 1500.0 - 300.0 * np.exp(-((r / 300e3) ** 2))
+    streak = 30.0 * np.exp(-(((g2.lat - 32.6) / 1.5) ** 2) - ((g2.lon - 150.0) / 5.0) ** 2)
     found = find_systems(g2, z2, streak, 0.0 * streak, 85000.0)
     kinds = [s.kind for s in found]
     assert kinds.count("low") == 1 and kinds.count("jet_streak") == 1
@@ -395,11 +418,11 @@ def test_a_streak_near_a_low_is_its_ring_only_within_its_circulation():
     lon = np.arange(-30.0, 30.01, 0.25)
     g = Grid.latlon(lat, lon)
     r = analytic.great_circle_distance(45.0, 0.0, g.lat, g.lon, g.radius)
-    z = 5500.0 - 200.0 * np.exp(-(r / 300e3) ** 2)
-    low, = find_closed_extrema(g, z, 50000.0, "low")
+    z = 5500.0 - 200.0 * np.exp(-((r / 300e3) ** 2))
+    (low,) = find_closed_extrema(g, z, 50000.0, "low")
     for lat_jet, ring in ((38.7, False), (45.0 - 1.2, True)):
-        streak = 35.0 * np.exp(-((g.lat - lat_jet) / 1.0) ** 2 - (g.lon / 6.0) ** 2)
-        jet, = find_jet_streaks(g, streak, 0.0 * streak, 50000.0)
+        streak = 35.0 * np.exp(-(((g.lat - lat_jet) / 1.0) ** 2) - (g.lon / 6.0) ** 2)
+        (jet,) = find_jet_streaks(g, streak, 0.0 * streak, 50000.0)
         d = great_circle_km_(jet, low.lon, low.lat)
         assert d < RING_KM
         # 700 km away: outside the contour (radius about 420 km) and past 1.5 radii -> a streak;
@@ -419,10 +442,10 @@ def test_a_jet_streaks_region_is_aligned_with_the_flow_big_enough_and_has_four_q
     x = (g.lon + 20.0) * np.cos(np.deg2rad(45.0))
     y = g.lat - 45.0
     along, across = (x + y) / math.sqrt(2), (y - x) / math.sqrt(2)
-    speed = 60.0 * np.exp(-(along / 8.0) ** 2 - (across / 3.0) ** 2)
+    speed = 60.0 * np.exp(-((along / 8.0) ** 2) - (across / 3.0) ** 2)
     u = speed / math.sqrt(2)
     v = speed / math.sqrt(2)
-    jet, = find_jet_streaks(g, u, v, 25000.0)
+    (jet,) = find_jet_streaks(g, u, v, 25000.0)
     assert jet.region.kind == "polygon"
     assert abs(jet.frame["direction_deg"] - 45.0) < 1.0
     spacing = math.sqrt(np.nanmedian(g.cell_area)) / 1e3
@@ -432,8 +455,13 @@ def test_a_jet_streaks_region_is_aligned_with_the_flow_big_enough_and_has_four_q
     assert jet.region.mask(g).sum() >= 25  # the verdict's least number of points
     # quadrants: entrance upstream (south-west), exit downstream; left of the flow north-west
     assert set(jet.quadrants) == set(QUADRANTS)
-    centroid = {q: (np.mean([c[0] for c in jet.frame["quadrants"][q]]),
-                    np.mean([c[1] for c in jet.frame["quadrants"][q]])) for q in QUADRANTS}
+    centroid = {
+        q: (
+            np.mean([c[0] for c in jet.frame["quadrants"][q]]),
+            np.mean([c[1] for c in jet.frame["quadrants"][q]]),
+        )
+        for q in QUADRANTS
+    }
     el, er = centroid["entrance_left"], centroid["entrance_right"]
     xl, xr = centroid["exit_left"], centroid["exit_right"]
     assert xl[0] + xl[1] > el[0] + el[1] and xr[0] + xr[1] > er[0] + er[1]  # exit downstream
@@ -453,8 +481,9 @@ def test_a_streak_moving_one_grid_column_a_step_on_a_ten_degree_grid_is_tracked(
     by_time = []
     for step in range(3):
         peak_lon = 100.0 + 10.0 * step
-        speed = 50.0 * np.exp(-((g.lat - 40.0) / 10.0) ** 2 -
-                              (((g.lon - peak_lon + 180) % 360 - 180) / 15.0) ** 2)
+        speed = 50.0 * np.exp(
+            -(((g.lat - 40.0) / 10.0) ** 2) - (((g.lon - peak_lon + 180) % 360 - 180) / 15.0) ** 2
+        )
         by_time.append(find_jet_streaks(g, speed, 0.0 * speed, 25000.0))
     assert all(len(s) == 1 for s in by_time)
     moved = great_circle_km_(by_time[1][0], by_time[0][0].lon, by_time[0][0].lat)
@@ -490,11 +519,10 @@ def test_a_file_with_heights_and_no_wind_gets_its_lows_and_highs():
 
 
 def test_valid_times_of_different_runs_are_said_to_be_so(tmp_path):
+    import makedata
     import xarray as xr
 
     from balance_core.io import analyse_case, open_case, track_systems
-
-    import makedata
 
     lat = np.arange(20.0, 70.01, 2.0)
     lon = np.arange(-60.0, 20.01, 2.0)
@@ -511,8 +539,9 @@ def test_valid_times_of_different_runs_are_said_to_be_so(tmp_path):
     assert any("2 model runs" in n for n in tr["notes"])
     # saying no: one run, no sentence
     one = open_case(str(pa))
-    assert not any("model runs" in n for n in analyse_case(one, 500.0, 1, (-40, 0, 35, 55))
-                   ["notes"])
+    assert not any(
+        "model runs" in n for n in analyse_case(one, 500.0, 1, (-40, 0, 35, 55))["notes"]
+    )
     assert xr is not None
 
 
@@ -522,8 +551,8 @@ def test_a_region_that_would_cross_the_equator_is_cut_back_to_it():
     g = _global(0.5)
     dx = np.deg2rad(((g.lon - 100.0) + 180) % 360 - 180) * g.radius * np.cos(np.deg2rad(8.0))
     dy = np.deg2rad(g.lat - 8.0) * g.radius
-    z = 10800.0 + 400.0 * np.exp(-(dx / 3000e3) ** 2 - (dy / 400e3) ** 2)
-    high, = find_closed_extrema(g, z, 25000.0, "high")
+    z = 10800.0 + 400.0 * np.exp(-((dx / 3000e3) ** 2) - (dy / 400e3) ** 2)
+    (high,) = find_closed_extrema(g, z, 25000.0, "high")
     assert g.lat[high.inside].min() > 0.0
     assert high.radius_km > 890.0  # the circle of the contour's area
     assert "cut back to the equator" in high.note
@@ -532,9 +561,9 @@ def test_a_region_that_would_cross_the_equator_is_cut_back_to_it():
 
 
 def test_two_runs_at_the_same_valid_time_are_refused_with_a_sentence(tmp_path):
-    from balance_core.io import CaseError, open_case
-
     import makedata
+
+    from balance_core.io import CaseError, open_case
 
     lat = np.arange(20.0, 70.01, 2.0)
     lon = np.arange(-60.0, 20.01, 2.0)

@@ -16,13 +16,11 @@ the NCEP Eta (NAM) regional output on a Lambert grid, and ECMWF ERA5 samples.
   every closed centre is a jet streak.
 """
 
-import math
 import os
 
+import independent_systems as ind
 import numpy as np
 import pytest
-
-import independent_systems as ind
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 GFS = os.path.join(ROOT, ".cache", "pygrib-samples", "gfs.t12z.pgrbf120.2p5deg.grib2")
@@ -40,8 +38,9 @@ def _need(path):
 def _cfgrib(path, **keys):
     import xarray as xr
 
-    return xr.open_dataset(path, engine="cfgrib",
-                           backend_kwargs={"filter_by_keys": keys, "indexpath": ""})
+    return xr.open_dataset(
+        path, engine="cfgrib", backend_kwargs={"filter_by_keys": keys, "indexpath": ""}
+    )
 
 
 def _areas(lat, lon):
@@ -57,8 +56,9 @@ def _areas(lat, lon):
 
 
 def _reference(z, lat2d, area, periodic, joined, ci, kind):
-    return ind.closed_extrema(z, lat2d, area, interval=ci, kind=kind, periodic=periodic,
-                              joined=joined)
+    return ind.closed_extrema(
+        z, lat2d, area, interval=ci, kind=kind, periodic=periodic, joined=joined
+    )
 
 
 def _same_point(a, b, joined):
@@ -71,6 +71,7 @@ def _same_point(a, b, joined):
 
 def _compare(found, ref, joined, nx, periodic):
     """Every reference system matched by one found, and every found one by the reference."""
+
     def close(a, b):
         (r1, c1), (r2, c2) = a, b
         if periodic:
@@ -99,10 +100,19 @@ def gfs():
     lat = gh.latitude.values
     lon = gh.longitude.values
     lat2d = np.broadcast_to(lat[:, None], (lat.size, lon.size))
-    return {"gh": gh, "sp": sp.sp.values, "msl": msl.prmsl.values, "u": u, "v": v,
-            "lat": lat, "lon": lon, "lat2d": lat2d,
-            "area": ind.latlon_cell_area_km2(lat, lon.size),
-            "joined": ind.joined_rows(lat, True), "case": open_case(GFS)}
+    return {
+        "gh": gh,
+        "sp": sp.sp.values,
+        "msl": msl.prmsl.values,
+        "u": u,
+        "v": v,
+        "lat": lat,
+        "lon": lon,
+        "lat2d": lat2d,
+        "area": ind.latlon_cell_area_km2(lat, lon.size),
+        "joined": ind.joined_rows(lat, True),
+        "case": open_case(GFS),
+    }
 
 
 @pytest.mark.parametrize("level", LEVELS_GFS + [None], ids=["850", "500", "250", "msl"])
@@ -128,8 +138,9 @@ def test_gfs_closed_lows_and_highs_are_those_the_flood_finds(gfs, level):
         assert not missed, f"{kind}s the flood finds and the tool misses: {missed}"
         assert not extra, f"{kind}s the tool finds and the flood does not: {extra}"
         for s in found:  # the same depth where both found it
-            d = min(ref, key=lambda d: abs(d["index"][0] - s.index[0]) +
-                    abs(d["index"][1] - s.index[1]))
+            d = min(
+                ref, key=lambda d: abs(d["index"][0] - s.index[0]) + abs(d["index"][1] - s.index[1])
+            )
             assert s.value == pytest.approx(d["value"], abs=1e-6)
             assert s.outer_level == pytest.approx(d["outer"], abs=1e-6)
         near_pole += sum(abs(s.lat) > 80 for s in found)
@@ -197,14 +208,16 @@ def test_gfs_every_wind_maximum_far_from_closed_centres_is_a_jet_streak(gfs, lev
     zc = np.asarray(case.data["height"].isel(time=0, level=k).values, np.float64)
     uc = np.asarray(case.data["u"].isel(time=0, level=k).values, np.float64)
     vc = np.asarray(case.data["v"].isel(time=0, level=k).values, np.float64)
-    jets = [s for s in find_systems(case.grid, zc, uc, vc, level, limit=1000)
-            if s.kind == "jet_streak"]
+    jets = [
+        s for s in find_systems(case.grid, zc, uc, vc, level, limit=1000) if s.kind == "jet_streak"
+    ]
     lon2d = np.broadcast_to(gfs["lon"][None, :], gfs["lat2d"].shape)
     checked = 0
     for m in maxima:
         core_lon, core_lat = lon2d[m["core"]], gfs["lat2d"][m["core"]]
-        far = all(np.min(ind.great_circle_km(lo, la, core_lon, core_lat)) > 1000.0
-                  for lo, la in centres)
+        far = all(
+            np.min(ind.great_circle_km(lo, la, core_lon, core_lat)) > 1000.0 for lo, la in centres
+        )
         if not far:
             continue
         checked += 1
@@ -212,8 +225,10 @@ def test_gfs_every_wind_maximum_far_from_closed_centres_is_a_jet_streak(gfs, lev
         lo, la = gfs["lon"][c], gfs["lat"][r]
         # peaks closer than the finder's separation (500 km) are one streak
         near = [s for s in jets if ind.great_circle_km(lo, la, s.lon, s.lat) <= 600.0]
-        assert near, (f"a wind maximum of {m['value']:.0f} m/s at {la:.1f}N {lo:.1f}E, more "
-                      "than 1000 km from every closed centre, is not a jet streak")
+        assert near, (
+            f"a wind maximum of {m['value']:.0f} m/s at {la:.1f}N {lo:.1f}E, more "
+            "than 1000 km from every closed centre, is not a jet streak"
+        )
     assert checked >= 5
 
 

@@ -11,11 +11,10 @@ import os
 
 import numpy as np
 import pytest
+from makedata import latlon_dataset, truth
 
 from app.cli import main
 from balance_core.io import CaseError, analyse_case, open_case
-
-from makedata import latlon_dataset, truth
 
 LAT = np.arange(60.0, 39.9, -2.0)
 LON = np.arange(-20.0, 20.1, 2.0)
@@ -60,6 +59,7 @@ def surface_pressure_field(la, lo):
 
 # -- GRIB files with many kinds of level ---------------------------------------------------
 
+
 def grib_file(tmp, name, single=None, *, uv_grid_shift=0.0, cut_messages=0):
     """A GRIB2 file of gh, u, v, t on 1000..300 hPa at three times, plus ``single`` fields
     on other kinds of level; winds optionally on a grid shifted east; optionally cut
@@ -76,15 +76,28 @@ def grib_file(tmp, name, single=None, *, uv_grid_shift=0.0, cut_messages=0):
             z, u, v, _, t = truth(la, lo, p, 6.0 * it)
             f["gh"][it, ik], f["u"][it, ik], f["v"][it, ik], f["t"][it, ik] = z, u, v, t
     times = [(20400203, 0), (20400203, 6), (20400203, 12)]
-    grid = dict(kind="regular_ll", lat0=40.0, lat1=60.0, lon0=340.0, lon1=20.0, dlat=2.0,
-                dlon=2.0)
+    grid = dict(kind="regular_ll", lat0=40.0, lat1=60.0, lon0=340.0, lon1=20.0, dlat=2.0, dlon=2.0)
     path = os.path.join(tmp, name)
     if uv_grid_shift:
-        write_grib2(path, grid, {k: f[k] for k in ("gh", "t")}, levels, times, uv_relative=False,
-                    single=single)
+        write_grib2(
+            path,
+            grid,
+            {k: f[k] for k in ("gh", "t")},
+            levels,
+            times,
+            uv_relative=False,
+            single=single,
+        )
         shifted = dict(grid, lon0=(340.0 + uv_grid_shift) % 360, lon1=(20.0 + uv_grid_shift) % 360)
-        write_grib2(path, shifted, {k: f[k] for k in ("u", "v")}, levels, times,
-                    uv_relative=False, mode="ab")
+        write_grib2(
+            path,
+            shifted,
+            {k: f[k] for k in ("u", "v")},
+            levels,
+            times,
+            uv_relative=False,
+            mode="ab",
+        )
     else:
         write_grib2(path, grid, f, levels, times, uv_relative=False, single=single)
     if cut_messages:
@@ -114,8 +127,11 @@ def test_cloud_top_pressure_is_not_the_surface_pressure(tmp_path, capsys):
     la, lo = _grid2d()
     cloud = np.where(np.cos(np.deg2rad(4 * lo)) > 0, 45000.0, -50000.0)
     sp = surface_pressure_field(la, lo)
-    path = grib_file(str(tmp_path), "clouds.grib2", {
-        ("pres", "cloudTop"): np.stack([cloud] * 3), ("pres", "surface"): np.stack([sp] * 3)})
+    path = grib_file(
+        str(tmp_path),
+        "clouds.grib2",
+        {("pres", "cloudTop"): np.stack([cloud] * 3), ("pres", "surface"): np.stack([sp] * 3)},
+    )
     rep = ok_json(capsys, path)
     assert rep["sources"]["surface_pressure"]["grib_type_of_level"] == "surface"
     assert rep["points"] == rep["region_points"]
@@ -129,8 +145,11 @@ def test_pressure_on_cloud_top_or_tropopause_alone_is_not_taken(tmp_path, capsys
     la, lo = _grid2d()
     cloud = np.where(np.cos(np.deg2rad(4 * lo)) > 0, 45000.0, -50000.0)
     trop = 32000.0 + 3000.0 * np.cos(np.deg2rad(la))  # within the surface range: tempting
-    path = grib_file(str(tmp_path), "tops.grib2", {("pres", "cloudTop"): np.stack([cloud] * 3),
-                                                  ("pres", "tropopause"): np.stack([trop] * 3)})
+    path = grib_file(
+        str(tmp_path),
+        "tops.grib2",
+        {("pres", "cloudTop"): np.stack([cloud] * 3), ("pres", "tropopause"): np.stack([trop] * 3)},
+    )
     rep = ok_json(capsys, path)
     assert "surface_pressure" not in rep["sources"]
     assert not any("below the ground" in n for n in rep["notes"])
@@ -149,6 +168,7 @@ def test_a_grib_file_cut_at_a_message_boundary(tmp_path, capsys):
 
 
 # -- NetCDF files ---------------------------------------------------------------------------
+
 
 def test_producer_fill_values_are_treated_as_missing(tmp_path, capsys):
     # -9999 in the height, -32767 in the temperature, 9.99e14 in the wind, undeclared:
@@ -172,25 +192,30 @@ def test_producer_fill_values_are_treated_as_missing(tmp_path, capsys):
 def test_surface_pressure_in_hpa_labelled_pa_is_dropped_with_a_note(tmp_path, capsys):
     ds = good()
     la, lo = np.meshgrid(LAT, LON, indexing="ij")
-    ds["ps"] = (("time", "latitude", "longitude"), np.stack([surface_pressure_field(la, lo)
-                                                            / 100] * 3),
-                {"standard_name": "surface_air_pressure", "units": "Pa"})
+    ds["ps"] = (
+        ("time", "latitude", "longitude"),
+        np.stack([surface_pressure_field(la, lo) / 100] * 3),
+        {"standard_name": "surface_air_pressure", "units": "Pa"},
+    )
     rep = ok_json(capsys, nc(str(tmp_path), "ps_hpa.nc", ds))
     assert "surface_pressure" not in rep["sources"]
-    assert any("surface pressure" in n and "left out" in n and "physical range" in n
-               for n in rep["notes"])
+    assert any(
+        "surface pressure" in n and "left out" in n and "physical range" in n for n in rep["notes"]
+    )
     assert rep["points"] == rep["region_points"]  # nothing masked by a wrong field
 
 
 def test_levels_in_hpa_labelled_pa(tmp_path, capsys):
     ds = good()
-    ds = ds.assign_coords(level=("level", ds["level"].values, {"units": "Pa",
-                                                               "standard_name": "air_pressure"}))
+    ds = ds.assign_coords(
+        level=("level", ds["level"].values, {"units": "Pa", "standard_name": "air_pressure"})
+    )
     bad(capsys, nc(str(tmp_path), "lev_pa.nc", ds), "pressure levels in hPa labelled Pa")
 
 
-@pytest.mark.parametrize("factor, hint", [(0.1, "decametres labelled metres"),
-                                          (0.001, "kilometres labelled metres")])
+@pytest.mark.parametrize(
+    "factor, hint", [(0.1, "decametres labelled metres"), (0.001, "kilometres labelled metres")]
+)
 def test_heights_in_dam_or_km_labelled_m(tmp_path, capsys, factor, hint):
     ds = good()
     ds["height"] = ds["height"] * factor
@@ -209,20 +234,28 @@ def test_knots_labelled_m_per_s(tmp_path, capsys):
 
 def test_sea_water_velocity_named_u_is_not_the_wind(tmp_path, capsys):
     ds = good()
-    ds["u"] = (ds["ua"].dims, 0.3 + 0 * ds["ua"].values,
-               {"standard_name": "sea_water_x_velocity", "units": "m s-1"})
+    ds["u"] = (
+        ds["ua"].dims,
+        0.3 + 0 * ds["ua"].values,
+        {"standard_name": "sea_water_x_velocity", "units": "m s-1"},
+    )
     ds = ds[["u"] + [v for v in ds.data_vars if v != "u"]]  # found first
     rep = ok_json(capsys, nc(str(tmp_path), "ocean_u.nc", ds))
     assert rep["sources"]["u"]["variable"] == "ua"
-    assert any("'u' was not taken as eastward wind" in n and "sea_water_x_velocity" in n
-               for n in rep["notes"])
+    assert any(
+        "'u' was not taken as eastward wind" in n and "sea_water_x_velocity" in n
+        for n in rep["notes"]
+    )
 
 
 def test_a_height_spread_is_not_the_height(tmp_path, capsys):
     ds = good()
     spread = 20.0 + 0 * ds["height"]
-    spread.attrs = {"standard_name": "geopotential_height", "units": "m",
-                    "cell_methods": "realization: standard_deviation"}
+    spread.attrs = {
+        "standard_name": "geopotential_height",
+        "units": "m",
+        "cell_methods": "realization: standard_deviation",
+    }
     ds["gh"] = spread
     ds = ds[["gh"] + [v for v in ds.data_vars if v != "gh"]]
     rep = ok_json(capsys, nc(str(tmp_path), "spread.nc", ds))
@@ -249,8 +282,11 @@ def test_pres_without_a_level_is_not_surface_pressure(tmp_path, capsys):
     # 'pres' names a pressure on any kind of level: without one it is not taken
     ds = good()
     la, lo = np.meshgrid(LAT, LON, indexing="ij")
-    ds["pres"] = (("time", "latitude", "longitude"),
-                  np.stack([surface_pressure_field(la, lo)] * 3), {"units": "Pa"})
+    ds["pres"] = (
+        ("time", "latitude", "longitude"),
+        np.stack([surface_pressure_field(la, lo)] * 3),
+        {"units": "Pa"},
+    )
     rep = ok_json(capsys, nc(str(tmp_path), "pres.nc", ds))
     assert "surface_pressure" not in rep["sources"]
     # the same field named wgrib2-style for the surface is taken
@@ -263,8 +299,10 @@ def test_surface_pressure_name_on_another_kind_of_level(tmp_path, capsys):
     # 'sp' on a coordinate that marks another vertical level (axis Z, a tropopause index)
     ds = good()
     la, lo = np.meshgrid(LAT, LON, indexing="ij")
-    ds["sp"] = (("time", "trop", "latitude", "longitude"),
-                np.stack([surface_pressure_field(la, lo) * 0.3] * 3)[:, None])
+    ds["sp"] = (
+        ("time", "trop", "latitude", "longitude"),
+        np.stack([surface_pressure_field(la, lo) * 0.3] * 3)[:, None],
+    )
     ds["sp"].attrs = {"units": "Pa"}
     ds = ds.assign_coords(trop=("trop", [1], {"axis": "Z", "long_name": "tropopause"}))
     rep = ok_json(capsys, nc(str(tmp_path), "sp_trop.nc", ds))
@@ -272,6 +310,7 @@ def test_surface_pressure_name_on_another_kind_of_level(tmp_path, capsys):
 
 
 # -- missing data: no verdict rather than a guess -------------------------------------------
+
 
 def test_an_all_missing_level_gets_no_verdict(tmp_path, capsys):
     ds = good()
@@ -304,8 +343,7 @@ def test_a_zarr_store_with_a_missing_chunk(tmp_path, capsys):
     # others keep theirs.
     ds = good().chunk({"time": 1, "level": 1})
     store = os.path.join(str(tmp_path), "cut.zarr")
-    ds.to_zarr(store, encoding={"height": {"_FillValue": np.nan}}, zarr_format=2,
-               consolidated=True)
+    ds.to_zarr(store, encoding={"height": {"_FillValue": np.nan}}, zarr_format=2, consolidated=True)
     k = list(ds["level"].values).index(500.0)
     chunk = os.path.join(store, "height", f"2.{k}.0.0")
     assert os.path.exists(chunk)
@@ -334,8 +372,11 @@ def test_no_field_is_ever_masked_silently(tmp_path):
     # the masking field's work is said level by level in the notes
     ds = good()
     la, lo = np.meshgrid(LAT, LON, indexing="ij")
-    ds["ps"] = (("time", "latitude", "longitude"), np.stack([surface_pressure_field(la, lo)] * 3),
-                {"standard_name": "surface_air_pressure", "units": "Pa"})
+    ds["ps"] = (
+        ("time", "latitude", "longitude"),
+        np.stack([surface_pressure_field(la, lo)] * 3),
+        {"standard_name": "surface_air_pressure", "units": "Pa"},
+    )
     c = open_case(nc(str(tmp_path), "masked.nc", ds))
     note = next(n for n in c.notes if "below the ground" in n)
     assert "1000 hPa" in note and "%" in note
@@ -354,14 +395,26 @@ def test_scalar_height_coordinates_belong_to_the_variables_that_list_them(tmp_pa
     ds = good()
     la, lo = np.meshgrid(LAT, LON, indexing="ij")
     shape = (ds.sizes["time"],) + la.shape
-    ds["psl"] = (("time", "latitude", "longitude"), np.full(shape, 101000.0),
-                 {"standard_name": "air_pressure_at_mean_sea_level", "units": "Pa"})
-    ds["uas"] = (("time", "latitude", "longitude"), np.full(shape, 5.0),
-                 {"standard_name": "eastward_wind", "units": "m s-1"})
-    ds["vas"] = (("time", "latitude", "longitude"), np.full(shape, -3.0),
-                 {"standard_name": "northward_wind", "units": "m s-1"})
-    ds["tas"] = (("time", "latitude", "longitude"), np.full(shape, 285.0),
-                 {"standard_name": "air_temperature", "units": "K"})
+    ds["psl"] = (
+        ("time", "latitude", "longitude"),
+        np.full(shape, 101000.0),
+        {"standard_name": "air_pressure_at_mean_sea_level", "units": "Pa"},
+    )
+    ds["uas"] = (
+        ("time", "latitude", "longitude"),
+        np.full(shape, 5.0),
+        {"standard_name": "eastward_wind", "units": "m s-1"},
+    )
+    ds["vas"] = (
+        ("time", "latitude", "longitude"),
+        np.full(shape, -3.0),
+        {"standard_name": "northward_wind", "units": "m s-1"},
+    )
+    ds["tas"] = (
+        ("time", "latitude", "longitude"),
+        np.full(shape, 285.0),
+        {"standard_name": "air_temperature", "units": "K"},
+    )
     path = nc(str(tmp_path), "two_heights.nc", ds)
     with netCDF4.Dataset(path, "a") as f:
         for name, h in (("height10m", 10.0), ("height2m", 2.0)):

@@ -3,8 +3,7 @@
 import numpy as np
 import pytest
 
-from balance_core import Fields, Grid, Region, Thresholds, budget_verdict, momentum_budget
-from balance_core import analytic
+from balance_core import Fields, Grid, Region, Thresholds, analytic, budget_verdict, momentum_budget
 from balance_core import constants as C
 from balance_core.grid import coriolis_parameter
 from balance_core.verdict import classify_budget, imbalance_ratios, residual_causes
@@ -84,7 +83,7 @@ def _drag_flow(level_pa, drag=True, residual_across=False):
     f0, tau = g.f[5, 5], 2e4
     u, v = 8.0, 3.0
     fx, fy = (-u / tau, -v / tau) if not residual_across else (v / tau, -u / tau)
-    pgf_x = f0 * v * -1 - fx   # PGF = -(Cor) - F
+    pgf_x = f0 * v * -1 - fx  # PGF = -(Cor) - F
     pgf_y = f0 * u - fy
     uu, vv, z = _uniform(g, u, v, pgf_x, pgf_y)
     gp = g.f_plane(45.0)
@@ -96,8 +95,9 @@ def test_frictional_balance_near_the_ground():
     # A boundary-layer flow with linear drag is frictional: the residual is the drag
     # and opposes the wind (alignment 1).
     g, b, u, v = _drag_flow(100000.0)
-    verdict = budget_verdict(b, g, Region.box(0.3, 1.2, 44.7, 45.3), u=u, v=v,
-                             height_above_ground_m=100.0)
+    verdict = budget_verdict(
+        b, g, Region.box(0.3, 1.2, 44.7, 45.3), u=u, v=v, height_above_ground_m=100.0
+    )
     assert verdict.balance == "frictional", verdict.ratios
     assert verdict.ratios["residual_share"] > 0.4
     # the box's curvature of the Earth adds a little to the residual: alignment 0.9996
@@ -109,8 +109,9 @@ def test_the_same_drag_aloft_is_not_frictional():
     # construction, so it cannot say no by itself: the same flow at 500 hPa, 5.5 km
     # above the ground, must not come out frictional.
     g, b, u, v = _drag_flow(50000.0)
-    verdict = budget_verdict(b, g, Region.box(0.3, 1.2, 44.7, 45.3), u=u, v=v,
-                             height_above_ground_m=5500.0)
+    verdict = budget_verdict(
+        b, g, Region.box(0.3, 1.2, 44.7, 45.3), u=u, v=v, height_above_ground_m=5500.0
+    )
     assert verdict.balance != "frictional", verdict.ratios
     assert verdict.ratios["frictional"] < 0.02  # the identity would have said yes
     assert "not tested" in verdict.why and "above the ground" in verdict.why
@@ -119,8 +120,9 @@ def test_the_same_drag_aloft_is_not_frictional():
 def test_a_residual_across_the_wind_is_not_friction():
     # Near the ground, but the residual acts at right angles to the wind: not friction.
     g, b, u, v = _drag_flow(100000.0, residual_across=True)
-    verdict = budget_verdict(b, g, Region.box(0.3, 1.2, 44.7, 45.3), u=u, v=v,
-                             height_above_ground_m=100.0)
+    verdict = budget_verdict(
+        b, g, Region.box(0.3, 1.2, 44.7, 45.3), u=u, v=v, height_above_ground_m=100.0
+    )
     assert verdict.balance != "frictional", verdict.ratios
     assert abs(verdict.ratios["friction_alignment"]) < 0.01
     assert "does not oppose the wind" in verdict.why
@@ -135,11 +137,13 @@ def test_truncation_error_aloft_is_not_frictional():
     inside = Region.box(0, 360, 20, 70).mask(case.grid)
     r = imbalance_ratios(b, case.grid, inside, u=case.u, v=case.v)
     assert r["residual_share"] > 0.01  # truncation error is there
-    verdict = budget_verdict(b, case.grid, inside, u=case.u, v=case.v,
-                             height_above_ground_m=5500.0)
+    verdict = budget_verdict(b, case.grid, inside, u=case.u, v=case.v, height_above_ground_m=5500.0)
     assert verdict.balance != "frictional"
-    causes = residual_causes(level_pa=50000.0, residual_share=0.3,
-                             ground=(False, "500 hPa lies about 5500 m above the ground"))
+    causes = residual_causes(
+        level_pa=50000.0,
+        residual_share=0.3,
+        ground=(False, "500 hPa lies about 5500 m above the ground"),
+    )
     assert any("unexplained imbalance, not friction" in c for c in causes)
 
 
@@ -200,8 +204,10 @@ def test_thresholds_are_configurable():
     b = momentum_budget(case.grid, _steady(case.u, case.v, case.geopotential / C.G0))
     r = imbalance_ratios(b, case.grid, Region.box(0, 360, 30, 70).mask(case.grid))
     assert classify_budget(r).balance == "geostrophic"
-    assert classify_budget(r, Thresholds(balanced=r["geostrophic"] / 2,
-                                         unsteady_share=10)).balance != "geostrophic"
+    assert (
+        classify_budget(r, Thresholds(balanced=r["geostrophic"] / 2, unsteady_share=10)).balance
+        != "geostrophic"
+    )
 
 
 def test_empty_region():
@@ -244,18 +250,41 @@ def test_one_curvature_for_the_gradient_candidate_and_the_gradient_wind():
 
 # -- each rule of the verdict saying yes and no (the project's own rules) -----------------------
 
+
 def _ratios(**kw):
     """Ratios of a region as imbalance_ratios returns them, the PGF 1e-3 m s-2."""
-    rms = {"pressure_gradient": 1e-3, "coriolis": 1e-3, "centripetal_used": 2e-4,
-           "centripetal": 2e-4, "acceleration": 2e-4, "residual": 5e-5,
-           "vertical_advection": 1e-5, "metric_uv": 1e-5, "metric_uw": 1e-8,
-           "coriolis_w": 1e-7, "tendency": 1e-4, "horizontal_advection": 2e-4}
+    rms = {
+        "pressure_gradient": 1e-3,
+        "coriolis": 1e-3,
+        "centripetal_used": 2e-4,
+        "centripetal": 2e-4,
+        "acceleration": 2e-4,
+        "residual": 5e-5,
+        "vertical_advection": 1e-5,
+        "metric_uv": 1e-5,
+        "metric_uw": 1e-8,
+        "coriolis_w": 1e-7,
+        "tendency": 1e-4,
+        "horizontal_advection": 2e-4,
+    }
     rms.update(kw.pop("rms", {}))
-    r = {"points": 400, "region_points": 400, "geostrophic": 0.2, "gradient": 0.1,
-         "cyclostrophic": 0.9, "frictional": 0.25, "acceleration_share": 0.2,
-         "residual_share": 0.05, "friction_alignment": 0.0, "curvature": "trajectory",
-         "has_tendency": True, "tropics_share": 0.0, "rossby_local_share": 0.1,
-         "speed_rms": 20.0, "rms": rms}
+    r = {
+        "points": 400,
+        "region_points": 400,
+        "geostrophic": 0.2,
+        "gradient": 0.1,
+        "cyclostrophic": 0.9,
+        "frictional": 0.25,
+        "acceleration_share": 0.2,
+        "residual_share": 0.05,
+        "friction_alignment": 0.0,
+        "curvature": "trajectory",
+        "has_tendency": True,
+        "tropics_share": 0.0,
+        "rossby_local_share": 0.1,
+        "speed_rms": 20.0,
+        "rms": rms,
+    }
     r.update(kw)
     return r
 
@@ -302,21 +331,23 @@ def test_geostrophy_is_not_claimed_where_the_local_rossby_number_exceeds_one():
     r = _ratios(rossby_local_share=0.7, gradient=0.5)
     v = classify_budget(r, ground=ALOFT)
     assert v.balance != "geostrophic" and "exceeds 1" in v.tested["geostrophic"]
-    assert classify_budget({**r, "rossby_local_share": 0.3}, ground=ALOFT).balance == \
-        "geostrophic"
+    assert classify_budget({**r, "rossby_local_share": 0.3}, ground=ALOFT).balance == "geostrophic"
 
 
 def test_a_weak_pressure_gradient_gives_no_verdict():
     v = classify_budget(_ratios(rms={"pressure_gradient": 2e-4}), ground=ALOFT)
     assert v.balance == "none" and "too weak" in v.text and v.cautions
     assert all(v.tested[c] for c in v.tested)  # every candidate says why it was not tested
-    assert classify_budget(_ratios(rms={"pressure_gradient": 3e-4}), ground=ALOFT).balance \
+    assert (
+        classify_budget(_ratios(rms={"pressure_gradient": 3e-4}), ground=ALOFT).balance
         == "gradient"
+    )
 
 
 def test_a_weak_wind_tests_no_curved_or_frictional_balance():
-    r = _ratios(speed_rms=0.5, geostrophic=0.6, gradient=0.1, cyclostrophic=0.2,
-                acceleration_share=0.9)
+    r = _ratios(
+        speed_rms=0.5, geostrophic=0.6, gradient=0.1, cyclostrophic=0.2, acceleration_share=0.9
+    )
     v = classify_budget(r, ground=ALOFT)
     assert v.balance == "unsteady"
     assert "too weak for its direction" in v.tested["gradient"]
@@ -325,20 +356,24 @@ def test_a_weak_wind_tests_no_curved_or_frictional_balance():
 
 
 def test_a_term_no_balance_holds_that_rivals_the_pressure_gradient_gets_a_caution():
-    r = _ratios(geostrophic=0.6, gradient=0.6, has_tendency=False,
-                rms={"vertical_advection": 8e-4})
+    r = _ratios(geostrophic=0.6, gradient=0.6, has_tendency=False, rms={"vertical_advection": 8e-4})
     v = classify_budget(r, ground=ALOFT)
     assert v.balance == "unbalanced" and v.cautions
     assert "Vertical advection is 80 %" in v.cautions[0] and "Caution" in v.text
-    v = classify_budget(_ratios(geostrophic=0.6, gradient=0.6, has_tendency=False,
-                                rms={"vertical_advection": 4e-4}), ground=ALOFT)
+    v = classify_budget(
+        _ratios(
+            geostrophic=0.6, gradient=0.6, has_tendency=False, rms={"vertical_advection": 4e-4}
+        ),
+        ground=ALOFT,
+    )
     assert v.cautions == ()
 
 
 def test_frictional_balance_is_tested_only_where_the_residual_acts_as_friction():
     near = (True, "1000 hPa lies about 100 m above the ground")
-    r = _ratios(geostrophic=0.5, gradient=0.5, frictional=0.1, residual_share=0.4,
-                friction_alignment=0.7)
+    r = _ratios(
+        geostrophic=0.5, gradient=0.5, frictional=0.1, residual_share=0.4, friction_alignment=0.7
+    )
     assert classify_budget(r, ground=near).balance == "frictional"
     v = classify_budget({**r, "friction_alignment": 0.1}, ground=near)
     assert v.balance != "frictional" and "does not oppose the wind" in v.tested["frictional"]

@@ -16,10 +16,9 @@ geostrophic one with a curvature share of 10 %, 2.5e-4 m s-2 for a weak gradient
 
 import os
 
+import independent_balance as ib
 import numpy as np
 import pytest
-
-import independent_balance as ib
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 GFS = os.path.join(ROOT, ".cache", "pygrib-samples", "gfs.t12z.pgrbf120.2p5deg.grib2")
@@ -36,8 +35,9 @@ def _need(path):
 
 def _box_mask(lat, lon, box):
     w, e, s, n = box
-    return (lat >= s) & (lat <= n) & (((lon - w) % 360.0) <= ((e - w) % 360.0)) & \
-        (np.abs(lat) < 89.9)
+    return (
+        (lat >= s) & (lat <= n) & (((lon - w) % 360.0) <= ((e - w) % 360.0)) & (np.abs(lat) < 89.9)
+    )
 
 
 def _upper_air(path, level, box, grid_kind):
@@ -84,11 +84,14 @@ def _expected_upper(d):
         return {"none"}, f"the pressure gradient ({d['pgf']:.1e} m s-2) is weak"
     best = min(d["d_grad"], d["d_grad_streamline"])
     if best <= 0.3 and best <= 0.8 * d["d_geo"] and d["curvature"] >= 0.1:
-        return {"gradient"}, (f"the gradient wind fits clearly better ({best:.2f} against "
-                              f"{d['d_geo']:.2f})")
+        return {"gradient"}, (
+            f"the gradient wind fits clearly better ({best:.2f} against {d['d_geo']:.2f})"
+        )
     if d["d_geo"] <= 0.3 and (best >= 0.9 * d["d_geo"] or d["curvature"] < 0.1):
-        return {"geostrophic"}, (f"the wind is geostrophic to {d['d_geo']:.2f} and the gradient "
-                                 f"wind fits no better ({best:.2f})")
+        return {"geostrophic"}, (
+            f"the wind is geostrophic to {d['d_geo']:.2f} and the gradient "
+            f"wind fits no better ({best:.2f})"
+        )
     if d["d_geo"] <= 0.3:
         return {"geostrophic", "gradient"}, "a balance holds; the curvature helps a little"
     return {"unbalanced", "none"}, "the wind departs from both balances"
@@ -119,8 +122,7 @@ def test_upper_air_verdicts_agree_with_the_independent_winds(name, path, kind, l
     expected, why = _expected_upper(d)
     rep = analyse_case(open_case(path), float(level), 0, box)
     got = rep["verdict"]["balance"]
-    assert got in expected, (name, got, expected, why, d, rep["balances"],
-                             rep["verdict"]["why"])
+    assert got in expected, (name, got, expected, why, d, rep["balances"], rep["verdict"]["why"])
     # one valid time: no verdict rests on a tendency
     assert got != "unsteady" and "unsteady" in rep["verdict"]["not_tested"]
     if "tropics" in why or "equator" in why:
@@ -137,9 +139,11 @@ def test_the_sea_at_sea_level_is_in_frictional_balance_where_the_wind_crosses_th
     _need(ETA)
     from balance_core.io import analyse_case, open_case
 
-    for path, kind, box in ((GFS, "latlon", (-50, -10, 45, 65)),
-                            (GFS, "latlon", (0, 40, -60, -40)),
-                            (ETA, "curvilinear", (-75, -60, 30, 45))):
+    for path, kind, box in (
+        (GFS, "latlon", (-50, -10, 45, 65)),
+        (GFS, "latlon", (0, 40, -60, -40)),
+        (ETA, "curvilinear", (-75, -60, 30, 45)),
+    ):
         msl = ib.cfgrib(path, typeOfLevel="meanSea", shortName="prmsl")
         u10 = ib.cfgrib(path, typeOfLevel="heightAboveGround", level=10, shortName="10u")
         v10 = ib.cfgrib(path, typeOfLevel="heightAboveGround", level=10, shortName="10v")
@@ -157,8 +161,11 @@ def test_the_sea_at_sea_level_is_in_frictional_balance_where_the_wind_crosses_th
         slower = ib.rms(np.hypot(u, v), w, m) < ib.rms(np.hypot(ug, vg), w, m)
         assert median_angle > 10.0 and slower, (box, median_angle)
         rep = analyse_case(open_case(path), "msl", 0, box)
-        assert rep["verdict"]["balance"] == "frictional", (box, rep["balances"],
-                                                           rep["verdict"]["why"])
+        assert rep["verdict"]["balance"] == "frictional", (
+            box,
+            rep["balances"],
+            rep["verdict"]["why"],
+        )
 
 
 def test_the_ground_over_mountains_is_not_called_frictional_where_the_residual_is_not():
@@ -184,5 +191,6 @@ def test_a_file_without_wind_gets_no_verdict_but_the_geostrophic_wind():
     from balance_core.io import analyse_systems, open_case
 
     out = analyse_systems(open_case(ERA5), 500.0, 0)
-    assert out["systems"] and all(s["report"]["verdict"]["balance"] == "none"
-                                  for s in out["systems"])
+    assert out["systems"] and all(
+        s["report"]["verdict"]["balance"] == "none" for s in out["systems"]
+    )

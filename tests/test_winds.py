@@ -6,12 +6,16 @@ import numpy as np
 import pyproj
 import pytest
 
-from balance_core import Flow, Grid
-from balance_core import analytic, thermo
+from balance_core import Flow, Grid, analytic, thermo
 from balance_core import constants as C
 from balance_core.grid import coriolis_parameter
-from balance_core.winds import (geostrophic_wind, gradient_wind, gradient_wind_from_pressure,
-                                thermal_wind, thermal_wind_from_temperature)
+from balance_core.winds import (
+    geostrophic_wind,
+    gradient_wind,
+    gradient_wind_from_pressure,
+    thermal_wind,
+    thermal_wind_from_temperature,
+)
 
 mpcalc = pytest.importorskip("metpy.calc")
 units = pytest.importorskip("metpy.units").units
@@ -20,7 +24,9 @@ SPHERE = pyproj.CRS.from_proj4(f"+proj=longlat +R={C.EARTH_RADIUS}")
 
 
 def _sphere_deltas(lon, lat):
-    return mpcalc.lat_lon_grid_deltas(lon, lat, geod=pyproj.Geod(a=C.EARTH_RADIUS, b=C.EARTH_RADIUS))
+    return mpcalc.lat_lon_grid_deltas(
+        lon, lat, geod=pyproj.Geod(a=C.EARTH_RADIUS, b=C.EARTH_RADIUS)
+    )
 
 
 @pytest.fixture(autouse=True)
@@ -39,9 +45,12 @@ def _globe(step):
 def test_coriolis_parameter_matches_metpy():
     # MetPy's coriolis_parameter uses the same Omega (7.292115e-5 rad/s): to rounding.
     lat = np.linspace(-90, 90, 19)
-    np.testing.assert_allclose(coriolis_parameter(lat),
-                               mpcalc.coriolis_parameter(lat * units.degree).m, rtol=1e-12,
-                               atol=1e-20)
+    np.testing.assert_allclose(
+        coriolis_parameter(lat),
+        mpcalc.coriolis_parameter(lat * units.degree).m,
+        rtol=1e-12,
+        atol=1e-20,
+    )
 
 
 def test_geostrophic_wind_matches_metpy():
@@ -54,7 +63,9 @@ def test_geostrophic_wind_matches_metpy():
     phi, lam = np.deg2rad(g.lat), np.deg2rad(g.lon)
     z = 5500 + 150 * np.sin(phi) ** 2 * np.cos(3 * lam) + 40 * np.cos(2 * phi)
     dx, dy = _sphere_deltas(lon, lat)
-    mu, mv = mpcalc.geostrophic_wind(z * units.m, dx=dx, dy=dy, latitude=lat[:, None] * units.degree)
+    mu, mv = mpcalc.geostrophic_wind(
+        z * units.m, dx=dx, dy=dy, latitude=lat[:, None] * units.degree
+    )
     ug, vg = geostrophic_wind(g, z)
     ok = ~g.tropics_mask
     ok[:, [0, -1]] = False
@@ -79,15 +90,29 @@ def test_vorticity_divergence_both_converge_to_analytic(which):
         u = 20 * np.cos(phi) + 5 * np.sin(2 * lam) * np.cos(phi) ** 2
         v = 3 * np.cos(lam) * np.cos(phi)
         if which == "vorticity":
-            exact = (-3 * np.sin(lam) + 40 * np.sin(phi) + 15 * np.sin(2 * lam) * np.cos(phi) * np.sin(phi)) / g.radius
+            exact = (
+                -3 * np.sin(lam)
+                + 40 * np.sin(phi)
+                + 15 * np.sin(2 * lam) * np.cos(phi) * np.sin(phi)
+            ) / g.radius
             mine = Flow(g, u, v).vorticity
-            ref = mpcalc.vorticity(u * units("m/s"), v * units("m/s"), latitude=lat * units.degree,
-                                   longitude=lon * units.degree, crs=SPHERE).m
+            ref = mpcalc.vorticity(
+                u * units("m/s"),
+                v * units("m/s"),
+                latitude=lat * units.degree,
+                longitude=lon * units.degree,
+                crs=SPHERE,
+            ).m
         else:
             exact = (10 * np.cos(2 * lam) * np.cos(phi) - 6 * np.cos(lam) * np.sin(phi)) / g.radius
             mine = Flow(g, u, v).divergence
-            ref = mpcalc.divergence(u * units("m/s"), v * units("m/s"), latitude=lat * units.degree,
-                                    longitude=lon * units.degree, crs=SPHERE).m
+            ref = mpcalc.divergence(
+                u * units("m/s"),
+                v * units("m/s"),
+                latitude=lat * units.degree,
+                longitude=lon * units.degree,
+                crs=SPHERE,
+            ).m
         inner = (slice(1, -1), slice(1, -1))
         s = np.abs(exact).max()
         ours.append(np.abs(mine - exact)[inner].max() / s)
@@ -108,8 +133,14 @@ def test_advection_matches_metpy():
     u = 20 * np.cos(phi) + 5 * np.sin(2 * lam) * np.cos(phi) ** 2
     v = 3 * np.cos(lam) * np.cos(phi)
     ax, _ = Flow(g, u, v).advection
-    ref = mpcalc.advection(u * units("m/s"), u * units("m/s"), v * units("m/s"),
-                           latitude=lat * units.degree, longitude=lon * units.degree, crs=SPHERE).m
+    ref = mpcalc.advection(
+        u * units("m/s"),
+        u * units("m/s"),
+        v * units("m/s"),
+        latitude=lat * units.degree,
+        longitude=lon * units.degree,
+        crs=SPHERE,
+    ).m
     inner = (slice(1, -1), slice(1, -1))
     assert np.abs(-ax - ref)[inner].max() / np.abs(ax).max() < 1e-3
 
@@ -154,7 +185,7 @@ def _vortex(lat0, f=None, sign=-1.0, step=0.05, dp=3000.0):
     g = Grid.latlon(lat, lon)
     g = g.with_coriolis(np.full(g.shape, coriolis_parameter(lat0) if f is None else f))
     r = analytic.great_circle_distance(lat0, 103.0, g.lat, g.lon, g.radius)
-    p = 100000 + sign * dp * np.exp(-(r / 1.5e5) ** 2)
+    p = 100000 + sign * dp * np.exp(-((r / 1.5e5) ** 2))
     return g, r, p
 
 
@@ -193,13 +224,13 @@ def test_gradient_wind_same_in_both_hemispheres():
     # both grids' rows ascend: row j in the north mirrors row n-1-j in the south
     np.testing.assert_allclose(wn.speed, ws.speed[::-1], rtol=1e-9, atol=1e-9)
     ok = np.isfinite(wn.radius)
-    assert np.all(wn.radius[ok] * gn.f[ok] > 0)          # f R > 0: cyclonic in the north
+    assert np.all(wn.radius[ok] * gn.f[ok] > 0)  # f R > 0: cyclonic in the north
     ok = np.isfinite(ws.radius)
-    assert np.all(ws.radius[ok] * gs.f[ok] > 0)          # and in the south
+    assert np.all(ws.radius[ok] * gs.f[ok] > 0)  # and in the south
     centre = tuple(np.array(gn.shape) // 2)
     east = (centre[0], centre[1] + 20)
-    assert wn.v[east] > 0            # counter-clockwise in the north: northward east of the low
-    assert ws.v[::-1][east] < 0      # clockwise in the south
+    assert wn.v[east] > 0  # counter-clockwise in the north: northward east of the low
+    assert ws.v[::-1][east] < 0  # clockwise in the south
 
 
 def test_gradient_wind_tends_to_geostrophic_for_straight_contours():

@@ -132,10 +132,12 @@ def test_the_unit_choice_reaches_every_number_hover_colour_bar_and_export(librar
     assert b.contour_interval == pytest.approx(a.contour_interval / 10)
     # the hover's numbers and their units
     ha, hb = si.chart.hover_src.data, kt.chart.hover_src.data
-    assert np.allclose(np.asarray(hb["speed"]), np.asarray(ha["speed"]) * KT_PER_MS, rtol=1e-4,
-                       equal_nan=True)
-    assert np.allclose(np.asarray(hb["height"]), np.asarray(ha["height"]) / 10, rtol=1e-5,
-                       equal_nan=True)
+    assert np.allclose(
+        np.asarray(hb["speed"]), np.asarray(ha["speed"]) * KT_PER_MS, rtol=1e-4, equal_nan=True
+    )
+    assert np.allclose(
+        np.asarray(hb["height"]), np.asarray(ha["height"]) / 10, rtol=1e-5, equal_nan=True
+    )
     assert kt.chart.hover_units == {"field": "kt", "height": "dam", "wind": "kt"}
     # the reference arrow says its speed in knots
     assert b.reference_arrow["text"].endswith(" kt")
@@ -149,12 +151,12 @@ def test_the_unit_choice_reaches_every_number_hover_colour_bar_and_export(librar
     assert speed
     for k in speed:
         assert (wa[k]["unit"], wb[k]["unit"]) == ("m/s", "kt")
-        assert float(wb[k]["value"]) == pytest.approx(float(wa[k]["value"]) * KT_PER_MS,
-                                                      rel=2e-3)  # both to 4 digits
+        assert float(wb[k]["value"]) == pytest.approx(
+            float(wa[k]["value"]) * KT_PER_MS, rel=2e-3
+        )  # both to 4 digits
     ja, jb = (json.loads(p.exports.json_text().getvalue()) for p in (si, kt))
     assert jb["context"]["units"] == {"terms": "m s-2", "wind": "kt", "height": "dam"}
-    assert jb["winds"]["speed_rms"] == pytest.approx(ja["winds"]["speed_rms"] * KT_PER_MS,
-                                                     rel=2e-3)
+    assert jb["winds"]["speed_rms"] == pytest.approx(ja["winds"]["speed_rms"] * KT_PER_MS, rel=2e-3)
     # the PNG: colour bar label and reference arrow
     texts = " | ".join(_png_texts(kt, monkeypatch))
     assert "(kt)" in texts and re.search(r"arrow: [\d.]+ kt", texts), texts
@@ -197,9 +199,11 @@ def _png_outline_vs_screen(page, monkeypatch):
     png = page.exports.png_bytes().getvalue()
     im = np.asarray(Image.open(io.BytesIO(png)).convert("RGB")).astype(int)
     mask = np.abs(im - np.array(OUTLINE_RGB)).max(axis=-1) <= 8
-    mask[:, int(0.62 * im.shape[1]):] = False  # the verdict's panel uses the same orange
-    xs, ys = (np.asarray(v, float) for v in (page.chart.region_src.data["x"],
-                                             page.chart.region_src.data["y"]))
+    mask[:, int(0.62 * im.shape[1]) :] = False  # the verdict's panel uses the same orange
+    xs, ys = (
+        np.asarray(v, float)
+        for v in (page.chart.region_src.data["x"], page.chart.region_src.data["y"])
+    )
     ok = np.isfinite(xs) & np.isfinite(ys)
     pts = seen["ax"].transData.transform(np.column_stack([xs[ok], ys[ok]]))
     pts[:, 1] = seen["height"] - pts[:, 1]  # matplotlib counts rows from the bottom
@@ -255,9 +259,10 @@ def test_the_briefing_image_marks_and_lists_room_notes():
 
     fig = plt.figure()
     ax = fig.add_axes([0.1, 0.2, 0.5, 0.7])
-    notes = [("#1", (-40.0, 52.0), "Ana: the low is in gradient balance"),
-             ("#2", None, "Ben: jet exit " + "x" * 200)] + [
-        (f"#{i}", None, f"note {i}") for i in range(3, 7)]
+    notes = [
+        ("#1", (-40.0, 52.0), "Ana: the low is in gradient balance"),
+        ("#2", None, "Ben: jet exit " + "x" * 200),
+    ] + [(f"#{i}", None, f"note {i}") for i in range(3, 7)]
     _draw_room_notes(fig, ax, notes)
     texts = [t.get_text() for t in fig.texts]
     assert "#1 Ana: the low is in gradient balance" in texts

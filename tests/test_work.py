@@ -34,6 +34,7 @@ class Log:
             with self.lock:
                 self.events.append(("end", name))
             return name
+
         return fn
 
     def callback(self, name):
@@ -41,6 +42,7 @@ class Log:
             with self.finished:
                 self.done[name] = (status, value)
                 self.finished.notify_all()
+
         return done
 
     def wait_for(self, *names):
@@ -193,5 +195,5 @@ def test_a_view_given_another_way_supersedes_its_waiting_and_running_jobs():
     gate.set()
     log.wait_for("running", "waiting")
     assert log.done["waiting"] == ("stale", None)  # dropped without running
-    assert log.done["running"][0] == "stale"       # its result is no longer wanted
+    assert log.done["running"][0] == "stale"  # its result is no longer wanted
     assert "waiting" not in log.order()

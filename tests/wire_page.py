@@ -59,16 +59,31 @@ def _message(msgid: str, msgtype: str, content: dict) -> list[str]:
     return [json.dumps({"msgid": msgid, "msgtype": msgtype}), "{}", json.dumps(content)]
 
 
-READY = {"events": [{"kind": "MessageSent", "msg_type": "bokeh_event",
-                     "msg_data": {"type": "event", "name": "document_ready",
-                                  "values": {"type": "map"}}}]}
+READY = {
+    "events": [
+        {
+            "kind": "MessageSent",
+            "msg_type": "bokeh_event",
+            "msg_data": {"type": "event", "name": "document_ready", "values": {"type": "map"}},
+        }
+    ]
+}
 
 
 def _click(model_id: str) -> dict:
-    return {"events": [{"kind": "MessageSent", "msg_type": "bokeh_event",
-                        "msg_data": {"type": "event", "name": "button_click",
-                                     "values": {"type": "map",
-                                                "entries": [["model", {"id": model_id}]]}}}]}
+    return {
+        "events": [
+            {
+                "kind": "MessageSent",
+                "msg_type": "bokeh_event",
+                "msg_data": {
+                    "type": "event",
+                    "name": "button_click",
+                    "values": {"type": "map", "entries": [["model", {"id": model_id}]]},
+                },
+            }
+        ]
+    }
 
 
 class WirePage:
@@ -94,16 +109,19 @@ class WirePage:
 
     async def open(self):
         cookie = "; ".join(f"{k}={urllib.parse.quote(v)}" for k, v in self.cookies.items())
-        resp = await AsyncHTTPClient().fetch(HTTPRequest(
-            self.link, headers={"Cookie": cookie, "User-Agent": self.agent},
-            request_timeout=180))
+        resp = await AsyncHTTPClient().fetch(
+            HTTPRequest(
+                self.link, headers={"Cookie": cookie, "User-Agent": self.agent}, request_timeout=180
+            )
+        )
         token = TOKEN.search(resp.body.decode("utf-8")).group(1)
         parts = urllib.parse.urlsplit(self.link)
-        ws = urllib.parse.urlunsplit(("ws", parts.netloc, parts.path.rstrip("/") + "/ws", "",
-                                      ""))
-        self._ws = await websocket_connect(HTTPRequest(ws, headers={"User-Agent": self.agent}),
-                                           subprotocols=["bokeh", token],
-                                           max_message_size=1 << 30)
+        ws = urllib.parse.urlunsplit(("ws", parts.netloc, parts.path.rstrip("/") + "/ws", "", ""))
+        self._ws = await websocket_connect(
+            HTTPRequest(ws, headers={"User-Agent": self.agent}),
+            subprotocols=["bokeh", token],
+            max_message_size=1 << 30,
+        )
         await self._read()  # ACK
         await self._send("PULL-DOC-REQ", {})
         reply = await self._read()
@@ -128,8 +146,10 @@ class WirePage:
     async def change(self, widget: str, attr: str, new):
         """Set ``attr`` of the widget titled or labelled ``widget``, as its input would."""
         wid = await self._widget(widget)
-        await self._send("PATCH-DOC", {"events": [
-            {"kind": "ModelChanged", "model": {"id": wid}, "attr": attr, "new": new}]})
+        await self._send(
+            "PATCH-DOC",
+            {"events": [{"kind": "ModelChanged", "model": {"id": wid}, "attr": attr, "new": new}]},
+        )
 
     async def click(self, widget: str):
         await self._send("PATCH-DOC", _click(await self._widget(widget)))

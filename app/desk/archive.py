@@ -13,7 +13,6 @@ import os
 
 import numpy as np
 import panel as pn
-
 from bokeh.models import ColumnDataSource, HoverTool, Span
 from bokeh.plotting import figure
 
@@ -23,8 +22,11 @@ from .systems import VERDICT_COLOURS
 
 __all__ = ["load_result", "ArchivePage", "make_archive_session"]
 
-RATIOS = {"ratio_geostrophic": ("geostrophic", BLUE), "ratio_gradient": ("gradient", GREEN),
-          "ratio_cyclostrophic": ("cyclostrophic", VERMILION)}
+RATIOS = {
+    "ratio_geostrophic": ("geostrophic", BLUE),
+    "ratio_gradient": ("gradient", GREEN),
+    "ratio_cyclostrophic": ("cyclostrophic", VERMILION),
+}
 
 
 def load_result(path):
@@ -34,12 +36,16 @@ def load_result(path):
     try:
         df = pd.read_parquet(path) if str(path).endswith(".parquet") else pd.read_csv(path)
     except Exception as exc:  # noqa: BLE001 - one sentence
-        raise ValueError(f"{os.path.basename(str(path))}: not a batch result that can be read "
-                         f"({type(exc).__name__})") from None
+        raise ValueError(
+            f"{os.path.basename(str(path))}: not a batch result that can be read "
+            f"({type(exc).__name__})"
+        ) from None
     need = {"valid_time", "level_hpa", "region", "verdict", "ratio_geostrophic"}
     if not need <= set(df.columns):
-        raise ValueError(f"{os.path.basename(str(path))}: not a balance-desk batch result "
-                         f"(it lacks {', '.join(sorted(need - set(df.columns)))})")
+        raise ValueError(
+            f"{os.path.basename(str(path))}: not a balance-desk batch result "
+            f"(it lacks {', '.join(sorted(need - set(df.columns)))})"
+        )
     df = df.copy()
     df["valid_time"] = pd.to_datetime(df["valid_time"], utc=True).dt.tz_localize(None)
     return df
@@ -53,30 +59,68 @@ class ArchivePage(pn.viewable.Viewer):
         self.results = results
         css = [WIDGET_CSS]
         names = list(results)
-        self.w_result = pn.widgets.Select(label="Result", options=names,
-                                          value=names[0] if names else None, width=320,
-                                          stylesheets=css)
+        self.w_result = pn.widgets.Select(
+            label="Result",
+            options=names,
+            value=names[0] if names else None,
+            width=320,
+            stylesheets=css,
+        )
         self.w_region = pn.widgets.Select(label="Region", width=320, stylesheets=css)
         self.w_level = pn.widgets.Select(label="Pressure level", width=160, stylesheets=css)
-        self.src = ColumnDataSource(dict(t=[], **{k: [] for k in RATIOS}, verdict=[],
-                                         colour=[], y=[]))
-        fig = figure(height=380, sizing_mode="stretch_width", x_axis_type="datetime",
-                     y_axis_label="imbalance ratio (smaller holds better)",
-                     tools="pan,wheel_zoom,reset,save", toolbar_location="above",
-                     output_backend="canvas", y_range=(0, 1.5))
+        self.src = ColumnDataSource(
+            dict(t=[], **{k: [] for k in RATIOS}, verdict=[], colour=[], y=[])
+        )
+        fig = figure(
+            height=380,
+            sizing_mode="stretch_width",
+            x_axis_type="datetime",
+            y_axis_label="imbalance ratio (smaller holds better)",
+            tools="pan,wheel_zoom,reset,save",
+            toolbar_location="above",
+            output_backend="canvas",
+            y_range=(0, 1.5),
+        )
         for k, (name, colour) in RATIOS.items():
-            fig.line("t", k, source=self.src, line_width=2.5, color=colour,
-                     legend_label=vocab.balance_name(name))
-        fig.scatter("t", "y", source=self.src, size=11, fill_color="colour",
-                    line_color="white", line_width=1.5, legend_label="verdict")
-        fig.add_layout(Span(location=0.3, dimension="width", line_dash="dashed",
-                            line_color="black", line_width=1.5))
-        fig.add_tools(HoverTool(tooltips=[("time", "@t{%a %d %b %Y %H UTC}"),
-                                          ("verdict", "@verdict"),
-                                          ("geostrophic", "@ratio_geostrophic{0.00}"),
-                                          ("gradient", "@ratio_gradient{0.00}"),
-                                          ("cyclostrophic", "@ratio_cyclostrophic{0.00}")],
-                                formatters={"@t": "datetime"}))
+            fig.line(
+                "t",
+                k,
+                source=self.src,
+                line_width=2.5,
+                color=colour,
+                legend_label=vocab.balance_name(name),
+            )
+        fig.scatter(
+            "t",
+            "y",
+            source=self.src,
+            size=11,
+            fill_color="colour",
+            line_color="white",
+            line_width=1.5,
+            legend_label="verdict",
+        )
+        fig.add_layout(
+            Span(
+                location=0.3,
+                dimension="width",
+                line_dash="dashed",
+                line_color="black",
+                line_width=1.5,
+            )
+        )
+        fig.add_tools(
+            HoverTool(
+                tooltips=[
+                    ("time", "@t{%a %d %b %Y %H UTC}"),
+                    ("verdict", "@verdict"),
+                    ("geostrophic", "@ratio_geostrophic{0.00}"),
+                    ("gradient", "@ratio_gradient{0.00}"),
+                    ("cyclostrophic", "@ratio_cyclostrophic{0.00}"),
+                ],
+                formatters={"@t": "datetime"},
+            )
+        )
         fig.legend.location = "top_left"
         style_figure(fig)
         self.fig = fig
@@ -86,20 +130,30 @@ class ArchivePage(pn.viewable.Viewer):
             w.param.watch(lambda e: self.update(), "value")
         self.w_result.param.watch(lambda e: self._choices(), "value")
         self.layout = pn.Column(
-            pn.pane.HTML(f"<div style='color:{INK}'><span style='font-size:26px;font-weight:700'>"
-                         "balance-desk</span> <span style='font-size:19px'>&middot; through the "
-                         "archive</span></div>", sizing_mode="stretch_width"),
+            pn.pane.HTML(
+                f"<div style='color:{INK}'><span style='font-size:26px;font-weight:700'>"
+                "balance-desk</span> <span style='font-size:19px'>&middot; through the "
+                "archive</span></div>",
+                sizing_mode="stretch_width",
+            ),
             pn.Row(self.w_result, self.w_region, self.w_level, styles={"flex-wrap": "wrap"}),
-            self.note, pn.pane.Bokeh(fig, sizing_mode="stretch_width"),
-            pn.pane.HTML("<div style='font-size:15px'>Lines: the imbalance ratio of each "
-                         "candidate balance (the dashed line is the limit for a balance, "
-                         "30 %); marks: the verdict at each time (at the smallest ratio), "
-                         "filled by balance as on the chart.</div>", sizing_mode="stretch_width"),
+            self.note,
+            pn.pane.Bokeh(fig, sizing_mode="stretch_width"),
+            pn.pane.HTML(
+                "<div style='font-size:15px'>Lines: the imbalance ratio of each "
+                "candidate balance (the dashed line is the limit for a balance, "
+                "30 %); marks: the verdict at each time (at the smallest ratio), "
+                "filled by balance as on the chart.</div>",
+                sizing_mode="stretch_width",
+            ),
             self.counts,
-            pn.pane.HTML(f"<div style='background:#fff3cd;padding:8px;border-top:2px solid "
-                         f"#856404;font-size:16px'><b>Caution.</b> {esc(CAUTION)}</div>",
-                         sizing_mode="stretch_width"),
-            sizing_mode="stretch_width")
+            pn.pane.HTML(
+                f"<div style='background:#fff3cd;padding:8px;border-top:2px solid "
+                f"#856404;font-size:16px'><b>Caution.</b> {esc(CAUTION)}</div>",
+                sizing_mode="stretch_width",
+            ),
+            sizing_mode="stretch_width",
+        )
         self._choices()
 
     def _df(self):
@@ -108,8 +162,9 @@ class ArchivePage(pn.viewable.Viewer):
     def _choices(self):
         df = self._df()
         if df is None:
-            self.note.object = alert("No batch result was given to this server (serve "
-                                     "--archive RESULT.parquet).", "info")
+            self.note.object = alert(
+                "No batch result was given to this server (serve --archive RESULT.parquet).", "info"
+            )
             return
         regions = sorted(df["region"].astype(str).unique())
         levels = sorted(df["level_hpa"].unique(), reverse=True)
@@ -125,14 +180,17 @@ class ArchivePage(pn.viewable.Viewer):
         df = self._df()
         if df is None or self.w_region.value is None or self.w_level.value is None:
             return
-        sel = df[(df["region"].astype(str) == self.w_region.value) &
-                 (np.isclose(df["level_hpa"], self.w_level.value))].sort_values("valid_time")
+        sel = df[
+            (df["region"].astype(str) == self.w_region.value)
+            & (np.isclose(df["level_hpa"], self.w_level.value))
+        ].sort_values("valid_time")
         data = {"t": sel["valid_time"].to_numpy()}
         for k in RATIOS:
             data[k] = sel[k].to_numpy(dtype=float) if k in sel else np.full(len(sel), np.nan)
         ratios = np.vstack([data[k] for k in RATIOS]) if len(sel) else np.zeros((3, 0))
-        data["y"] = np.nanmin(np.where(np.isfinite(ratios), ratios, np.inf), axis=0) \
-            if len(sel) else []
+        data["y"] = (
+            np.nanmin(np.where(np.isfinite(ratios), ratios, np.inf), axis=0) if len(sel) else []
+        )
         data["y"] = np.where(np.isfinite(data["y"]), data["y"], 0.0) if len(sel) else []
         data["verdict"] = [vocab.balance_name(v) for v in sel["verdict"]]
         data["colour"] = [VERDICT_COLOURS.get(v, "#8c8c8c") for v in sel["verdict"]]
@@ -143,11 +201,14 @@ class ArchivePage(pn.viewable.Viewer):
             f"<li><span style='display:inline-block;width:12px;height:12px;background:"
             f"{VERDICT_COLOURS.get(v, '#8c8c8c')};border:1px solid #333'></span> "
             f"{esc(vocab.balance_name(v))}: {n} of {total} ({100 * n / total:.0f} %)</li>"
-            for v, n in counts.items())
+            for v, n in counts.items()
+        )
         files = sel["file"].nunique() if "file" in sel else 0
-        self.counts.object = (f"<div style='font-size:16px;color:{INK}'><b>Verdicts</b> at "
-                              f"{self.w_level.value:g} hPa in {esc(self.w_region.value)}, "
-                              f"{total} valid times from {files} files:<ul>{items}</ul></div>")
+        self.counts.object = (
+            f"<div style='font-size:16px;color:{INK}'><b>Verdicts</b> at "
+            f"{self.w_level.value:g} hPa in {esc(self.w_region.value)}, "
+            f"{total} valid times from {files} files:<ul>{items}</ul></div>"
+        )
         self.note.object = ""
 
     def __panel__(self):
@@ -161,11 +222,12 @@ def make_archive_session(results: dict, problems=()):
         if problems:
             page.note.object = alert("; ".join(problems))
         return page.layout
-    except Exception:  # noqa: BLE001
+    except Exception:
         import logging
         import uuid
 
         eid = uuid.uuid4().hex[:8]
         logging.getLogger("balance_desk").exception("archive page failed (error id %s)", eid)
-        return pn.pane.HTML(alert(f"The archive page could not be built (error id {eid}).",
-                                  "error"))
+        return pn.pane.HTML(
+            alert(f"The archive page could not be built (error id {eid}).", "error")
+        )

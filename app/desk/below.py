@@ -12,9 +12,7 @@ import math
 import numpy as np
 import panel as pn
 import param
-
-from bokeh.models import (ColumnDataSource, Legend, LegendItem,
-                          Span)
+from bokeh.models import ColumnDataSource, Legend, LegendItem, Span
 from bokeh.plotting import figure
 
 from balance_core.scales import PRESETS
@@ -25,17 +23,36 @@ from .look import BLUE, INK, MUTED, ORANGE, VERMILION, WIDGET_CSS, alert, esc, p
 
 __all__ = ["Below"]
 
-LEVEL_TERMS = ("pressure_gradient", "coriolis", "horizontal_advection", "tendency",
-               "vertical_advection", "metric_uv", "residual", "acceleration", "centripetal")
-UNITS = {"U": "m s-1", "W": "m s-1", "L": "m", "H": "m", "dP": "Pa", "rho": "kg m-3",
-         "lat0": "degrees", "nu": "m2 s-1"}
+LEVEL_TERMS = (
+    "pressure_gradient",
+    "coriolis",
+    "horizontal_advection",
+    "tendency",
+    "vertical_advection",
+    "metric_uv",
+    "residual",
+    "acceleration",
+    "centripetal",
+)
+UNITS = {
+    "U": "m s-1",
+    "W": "m s-1",
+    "L": "m",
+    "H": "m",
+    "dP": "Pa",
+    "rho": "kg m-3",
+    "lat0": "degrees",
+    "nu": "m2 s-1",
+}
 
 
 def _ink_on(hex_colour: str) -> str:
     """Black or white text, whichever contrasts more with the cell (WCAG relative luminance)."""
-    rgb = [int(hex_colour[i:i + 2], 16) / 255 for i in (1, 3, 5)]
-    lum = sum(w * (c / 12.92 if c <= 0.03928 else ((c + 0.055) / 1.055) ** 2.4)
-              for w, c in zip((0.2126, 0.7152, 0.0722), rgb))
+    rgb = [int(hex_colour[i : i + 2], 16) / 255 for i in (1, 3, 5)]
+    lum = sum(
+        w * (c / 12.92 if c <= 0.03928 else ((c + 0.055) / 1.055) ** 2.4)
+        for w, c in zip((0.2126, 0.7152, 0.0722), rgb)
+    )
     return "#000000" if (lum + 0.05) / 0.05 >= 1.05 / (lum + 0.05) else "#ffffff"
 
 
@@ -43,8 +60,12 @@ def levels_table(data) -> str:
     """The region through the levels as an HTML table: a cell per term and level, coloured
     by log10 of its magnitude (cividis), its value written in it; the balance last."""
     pal = palette("sequential")
-    mags = [m for r in data["rows"] for t, m in (r.get("magnitudes") or {}).items()
-            if m and t in LEVEL_TERMS]
+    mags = [
+        m
+        for r in data["rows"]
+        for t, m in (r.get("magnitudes") or {}).items()
+        if m and t in LEVEL_TERMS
+    ]
     lo = math.floor(math.log10(min(mags))) if mags else -8
     hi = math.ceil(math.log10(max(mags))) if mags else -2
     hi = max(hi, lo + 1)
@@ -52,36 +73,49 @@ def levels_table(data) -> str:
 
     def cell(m):
         if not m:
-            return ("<td style='background:#e3e3e3;color:#1a1a1a;text-align:center;"
-                    "padding:4px 6px'>n/a</td>")
+            return (
+                "<td style='background:#e3e3e3;color:#1a1a1a;text-align:center;"
+                "padding:4px 6px'>n/a</td>"
+            )
         x = (math.log10(m) - lo) / (hi - lo)
         bg = pal[min(max(int(x * (len(pal) - 1)), 0), len(pal) - 1)]
-        return (f"<td title='{m:.3g} m s-2' style='background:{bg};color:{_ink_on(bg)};"
-                f"text-align:center;padding:4px 6px;font-variant-numeric:tabular-nums'>"
-                f"{m:.0e}</td>")
+        return (
+            f"<td title='{m:.3g} m s-2' style='background:{bg};color:{_ink_on(bg)};"
+            f"text-align:center;padding:4px 6px;font-variant-numeric:tabular-nums'>"
+            f"{m:.0e}</td>"
+        )
 
-    head = "".join(f"<th scope='col' style='padding:4px 6px;font-weight:600;vertical-align:bottom'"
-                   f">{esc(vocab.term_name(t))}</th>" for t in LEVEL_TERMS)
+    head = "".join(
+        f"<th scope='col' style='padding:4px 6px;font-weight:600;vertical-align:bottom'"
+        f">{esc(vocab.term_name(t))}</th>"
+        for t in LEVEL_TERMS
+    )
     rows = []
     for r in sorted(data["rows"], key=lambda r: r["level_hpa"]):
         bal = vocab.balance_name(r["balance"]) if r.get("balance") else "error"
-        rows.append(f"<tr><th scope='row' style='text-align:right;padding:4px 8px;"
-                    f"white-space:nowrap'>{r['level_hpa']:g} hPa</th>" +
-                    "".join(cell((r.get("magnitudes") or {}).get(t)) for t in LEVEL_TERMS) +
-                    f"<td style='padding:4px 8px;font-weight:700'>{esc(bal)}</td></tr>")
+        rows.append(
+            f"<tr><th scope='row' style='text-align:right;padding:4px 8px;"
+            f"white-space:nowrap'>{r['level_hpa']:g} hPa</th>"
+            + "".join(cell((r.get("magnitudes") or {}).get(t)) for t in LEVEL_TERMS)
+            + f"<td style='padding:4px 8px;font-weight:700'>{esc(bal)}</td></tr>"
+        )
     steps = 8
     scale = "".join(
         f"<span style='display:inline-block;width:34px;height:14px;background:"
-        f"{pal[int(k / (steps - 1) * (len(pal) - 1))]}'></span>" for k in range(steps))
-    return (f"<div style='color:{INK}'><div style='font-size:17px;font-weight:700;margin:4px 0'>"
-            f"Term magnitudes through the levels (m s-2) &middot; {esc(data['region'])}, "
-            f"{esc(data['when'])}</div><div style='overflow-x:auto'>"
-            "<table class='bd-levels' style='border-collapse:separate;border-spacing:2px;"
-            "font-size:15px'>"
-            f"<thead><tr><th></th>{head}<th scope='col' style='padding:4px 6px'>balance</th>"
-            f"</tr></thead><tbody>{''.join(rows)}</tbody></table></div>"
-            f"<div style='font-size:14px;margin-top:4px'>colour: 1e{lo} {scale} 1e{hi} m s-2 "
-            "(log scale)</div></div>")
+        f"{pal[int(k / (steps - 1) * (len(pal) - 1))]}'></span>"
+        for k in range(steps)
+    )
+    return (
+        f"<div style='color:{INK}'><div style='font-size:17px;font-weight:700;margin:4px 0'>"
+        f"Term magnitudes through the levels (m s-2) &middot; {esc(data['region'])}, "
+        f"{esc(data['when'])}</div><div style='overflow-x:auto'>"
+        "<table class='bd-levels' style='border-collapse:separate;border-spacing:2px;"
+        "font-size:15px'>"
+        f"<thead><tr><th></th>{head}<th scope='col' style='padding:4px 6px'>balance</th>"
+        f"</tr></thead><tbody>{''.join(rows)}</tbody></table></div>"
+        f"<div style='font-size:14px;margin-top:4px'>colour: 1e{lo} {scale} 1e{hi} m s-2 "
+        "(log scale)</div></div>"
+    )
 
 
 class Below(pn.viewable.Viewer):
@@ -97,14 +131,17 @@ class Below(pn.viewable.Viewer):
         self.notes = pn.pane.HTML("", sizing_mode="stretch_width")
         # only the open tab is in the page (the browser lays out less); what a closed tab
         # is given waits until it is opened (see _put)
-        self.tabs = pn.Tabs(("Through the levels", self.levels_pane),
-                            ("Through the times", self.times_pane),
-                            ("A priori scale sheet", self.sheet),
-                            ("Notes on the data", self.notes), dynamic=True,
-                            sizing_mode="stretch_width", css_classes=["bd-live"])
+        self.tabs = pn.Tabs(
+            ("Through the levels", self.levels_pane),
+            ("Through the times", self.times_pane),
+            ("A priori scale sheet", self.sheet),
+            ("Notes on the data", self.notes),
+            dynamic=True,
+            sizing_mode="stretch_width",
+            css_classes=["bd-live"],
+        )
         self._tab_of = {id(p): 0 for p in (self.levels_status, self.levels_table)}
-        self._tab_of.update({id(self.times_status): 1, id(self.sheet_out): 2,
-                             id(self.notes): 3})
+        self._tab_of.update({id(self.times_status): 1, id(self.sheet_out): 2, id(self.notes): 3})
         self._pending: dict = {}
         self.tabs.param.watch(self._opened, "active")
 
@@ -137,17 +174,26 @@ class Below(pn.viewable.Viewer):
         self.levels_status = pn.pane.HTML("", sizing_mode="stretch_width")
         self.levels_table = pn.pane.HTML(
             f"<div style='font-size:16px;color:{MUTED}'>Computing the levels...</div>",
-            sizing_mode="stretch_width")
-        self.levels_pane = pn.Column(self.levels_status, self.levels_table, pn.pane.HTML(
-            "<div style='font-size:15px'>Each row is one pressure level of the region at this "
-            "valid time: the colour and the number are the term's magnitude in m s-2 "
-            "(log scale; grey: not available); the last column is the balance found there (no "
-            "verdict where too few points are valid).</div>"), sizing_mode="stretch_width")
+            sizing_mode="stretch_width",
+        )
+        self.levels_pane = pn.Column(
+            self.levels_status,
+            self.levels_table,
+            pn.pane.HTML(
+                "<div style='font-size:15px'>Each row is one pressure level of the region at this "
+                "valid time: the colour and the number are the term's magnitude in m s-2 "
+                "(log scale; grey: not available); the last column is the balance found there (no "
+                "verdict where too few points are valid).</div>"
+            ),
+            sizing_mode="stretch_width",
+        )
 
     def levels_progress(self, done, total):
         of = "" if total is None else f": {done} of {total} done"
-        self._put(self.levels_status, alert(f"Computing the levels{of}...", "info")
-                  if total is None or done < total else "")
+        self._put(
+            self.levels_status,
+            alert(f"Computing the levels{of}...", "info") if total is None or done < total else "",
+        )
 
     def show_levels(self, data, error=None):
         if error or not data:
@@ -163,32 +209,52 @@ class Below(pn.viewable.Viewer):
         self.times_fig = None
         self.times_status = pn.pane.HTML("", sizing_mode="stretch_width")
         self.times_plot = pn.Column(sizing_mode="stretch_width")
-        self.times_pane = pn.Column(self.times_status, self.times_plot, pn.pane.HTML(
-            "<div style='font-size:15px'>The orange line marks the valid time shown on the "
-            "chart.</div>"), sizing_mode="stretch_width")
+        self.times_pane = pn.Column(
+            self.times_status,
+            self.times_plot,
+            pn.pane.HTML(
+                "<div style='font-size:15px'>The orange line marks the valid time shown on the "
+                "chart.</div>"
+            ),
+            sizing_mode="stretch_width",
+        )
 
     def _times_figure(self):
         if self.times_fig is not None:
             return self.times_fig
         self.times_src = ColumnDataSource(dict(t=[], ro=[], agf=[], label=[]))
-        f = figure(height=360, x_axis_type="datetime", tools="hover", toolbar_location=None,
-                   sizing_mode="stretch_width", min_width=700,
-                   title="Through the valid times, for the region at this level",
-                   tooltips=[("time", "@label"), ("local Rossby", "@ro{0.000}"),
-                             ("ageostrophic fraction", "@agf{0.000}")])
+        f = figure(
+            height=360,
+            x_axis_type="datetime",
+            tools="hover",
+            toolbar_location=None,
+            sizing_mode="stretch_width",
+            min_width=700,
+            title="Through the valid times, for the region at this level",
+            tooltips=[
+                ("time", "@label"),
+                ("local Rossby", "@ro{0.000}"),
+                ("ageostrophic fraction", "@agf{0.000}"),
+            ],
+        )
         r1 = f.line("t", "ro", source=self.times_src, line_width=3, color=BLUE)
         r2 = f.scatter("t", "ro", source=self.times_src, size=10, color=BLUE)
-        r3 = f.line("t", "agf", source=self.times_src, line_width=3, color=VERMILION,
-                    line_dash="dashed")
-        r4 = f.scatter("t", "agf", source=self.times_src, size=10, color=VERMILION,
-                       marker="square")
+        r3 = f.line(
+            "t", "agf", source=self.times_src, line_width=3, color=VERMILION, line_dash="dashed"
+        )
+        r4 = f.scatter("t", "agf", source=self.times_src, size=10, color=VERMILION, marker="square")
         self.time_span = Span(location=0, dimension="height", line_color=ORANGE, line_width=4)
         f.add_layout(self.time_span)
-        legend = Legend(items=[LegendItem(label="local Rossby number (median |zeta / f|)",
-                                          renderers=[r1, r2]),
-                               LegendItem(label="ageostrophic fraction (median |V - Vg| / |V|)",
-                                          renderers=[r3, r4])],
-                        label_text_font_size="15px", label_text_color=INK)
+        legend = Legend(
+            items=[
+                LegendItem(label="local Rossby number (median |zeta / f|)", renderers=[r1, r2]),
+                LegendItem(
+                    label="ageostrophic fraction (median |V - Vg| / |V|)", renderers=[r3, r4]
+                ),
+            ],
+            label_text_font_size="15px",
+            label_text_color=INK,
+        )
         f.add_layout(legend, "below")  # beside the data, never over the first point
         f.yaxis.axis_label = "dimensionless"
         style_figure(f)
@@ -198,8 +264,12 @@ class Below(pn.viewable.Viewer):
 
     def times_progress(self, done, total):
         of = "" if total is None else f": {done} of {total} done"
-        self._put(self.times_status, alert(f"Computing the valid times{of}...", "info")
-                  if total is None or done < total else "")
+        self._put(
+            self.times_status,
+            alert(f"Computing the valid times{of}...", "info")
+            if total is None or done < total
+            else "",
+        )
 
     def show_times(self, data, error=None):
         if error or not data:
@@ -208,51 +278,80 @@ class Below(pn.viewable.Viewer):
         ser = data["series"]
         if len(ser) < 2:
             s = ser[0] if ser else {}
-            self._put(self.times_status, alert(
-                "This case has one valid time only, so there is nothing to follow through the "
-                "times" + (f" (local Rossby number {s['rossby_local']:.3g}, ageostrophic "
-                           f"fraction {s['ageostrophic_fraction']:.3g})"
-                           if s.get("rossby_local") is not None and
-                           s.get("ageostrophic_fraction") is not None else "") + ".", "info"))
+            self._put(
+                self.times_status,
+                alert(
+                    "This case has one valid time only, so there is nothing to follow through the "
+                    "times"
+                    + (
+                        f" (local Rossby number {s['rossby_local']:.3g}, ageostrophic "
+                        f"fraction {s['ageostrophic_fraction']:.3g})"
+                        if s.get("rossby_local") is not None
+                        and s.get("ageostrophic_fraction") is not None
+                        else ""
+                    )
+                    + ".",
+                    "info",
+                ),
+            )
             self.times_plot.visible = False
             return
         self._times_figure()
         self.times_plot.visible = True
         self._put(self.times_status, "")
-        t = [np.datetime64(s["time"].replace("Z", "")).astype("datetime64[ms]").astype(float)
-             for s in ser]
-        self.times_src.data = dict(t=t, ro=[np.nan if s["rossby_local"] is None else
-                                            s["rossby_local"] for s in ser],
-                                   agf=[np.nan if s["ageostrophic_fraction"] is None else
-                                        s["ageostrophic_fraction"] for s in ser],
-                                   label=[vocab.when(s["time"]) for s in ser])
-        self.time_span.location = float(np.datetime64(data["current"].replace("Z", ""))
-                                        .astype("datetime64[ms]").astype(float))
+        t = [
+            np.datetime64(s["time"].replace("Z", "")).astype("datetime64[ms]").astype(float)
+            for s in ser
+        ]
+        self.times_src.data = dict(
+            t=t,
+            ro=[np.nan if s["rossby_local"] is None else s["rossby_local"] for s in ser],
+            agf=[
+                np.nan if s["ageostrophic_fraction"] is None else s["ageostrophic_fraction"]
+                for s in ser
+            ],
+            label=[vocab.when(s["time"]) for s in ser],
+        )
+        self.time_span.location = float(
+            np.datetime64(data["current"].replace("Z", "")).astype("datetime64[ms]").astype(float)
+        )
         pad = 0.04 * (t[-1] - t[0])
         self.times_fig.x_range.update(start=t[0] - pad, end=t[-1] + pad)
-        self.times_fig.title.text = (f"Through the valid times, for the region at "
-                                     f"{level_text(data['level_hpa'])}")
+        self.times_fig.title.text = (
+            f"Through the valid times, for the region at {level_text(data['level_hpa'])}"
+        )
 
     # -- the a priori scale sheet ------------------------------------------------------------
     def _build_sheet(self):
         css = [WIDGET_CSS]
-        self.w_preset = pn.widgets.Select(label="Preset", width=290, stylesheets=css,
-                                          options={vocab.preset_name(k): k for k in PRESETS},
-                                          value=self.state.preset)
+        self.w_preset = pn.widgets.Select(
+            label="Preset",
+            width=290,
+            stylesheets=css,
+            options={vocab.preset_name(k): k for k in PRESETS},
+            value=self.state.preset,
+        )
         self.w_preset.param.watch(self._preset_to_state, "value")
         self.scale_inputs = {}
         for k in SHEET_SCALES:
-            w = pn.widgets.FloatInput(label=f"{vocab.SCALE_NAMES.get(k, k)} ({UNITS[k]})",
-                                      value=None, width=140, placeholder="preset",
-                                      stylesheets=css)
+            w = pn.widgets.FloatInput(
+                label=f"{vocab.SCALE_NAMES.get(k, k)} ({UNITS[k]})",
+                value=None,
+                width=140,
+                placeholder="preset",
+                stylesheets=css,
+            )
             w.param.watch(self._scales_to_state, "value")
             self.scale_inputs[k] = w
         self.w_reset = pn.widgets.Button(label="Back to the preset", width=290, stylesheets=css)
         self.w_reset.on_click(lambda e: setattr(self.state, "sheet", {}))
         self.sheet_out = pn.pane.HTML("", sizing_mode="stretch_width")
         grid = pn.GridBox(*self.scale_inputs.values(), ncols=2, width=300)
-        self.sheet = pn.Row(pn.Column(self.w_preset, grid, self.w_reset, width=310),
-                            self.sheet_out, sizing_mode="stretch_width")
+        self.sheet = pn.Row(
+            pn.Column(self.w_preset, grid, self.w_reset, width=310),
+            self.sheet_out,
+            sizing_mode="stretch_width",
+        )
 
     def _preset_to_state(self, event):
         if event.new and event.new != self.state.preset:
@@ -280,27 +379,37 @@ class Below(pn.viewable.Viewer):
         srows = "".join(
             f"<tr><td>{esc(r['label'])}{' (edited)' if r['edited'] else ''}</td>"
             f"<td style='text-align:right'>{f(r['sheet'])}</td>"
-            f"<td style='text-align:right'>{f(r['from_box'])}</td></tr>" for r in sh["scales"])
+            f"<td style='text-align:right'>{f(r['from_box'])}</td></tr>"
+            for r in sh["scales"]
+        )
         trows = "".join(
             f"<tr><td>{esc(r['label'])}</td><td style='text-align:right'>{f(r['sheet'])}</td>"
             f"<td style='text-align:right'>{f(r['from_box_scales'])}</td>"
             f"<td style='text-align:right'>{f(r['measured'])}</td>"
-            f"<td style='color:{MUTED}'>{esc(r['data_label'])}</td></tr>" for r in sh["terms"])
-        nums = ", ".join(f"{esc(vocab.NUMBERS.get(k, (k,))[0])} {f(v, '.2g')}"
-                         for k, v in sh["numbers"].items())
+            f"<td style='color:{MUTED}'>{esc(r['data_label'])}</td></tr>"
+            for r in sh["terms"]
+        )
+        nums = ", ".join(
+            f"{esc(vocab.NUMBERS.get(k, (k,))[0])} {f(v, '.2g')}" for k, v in sh["numbers"].items()
+        )
         err = alert(sh["error"], "error") if sh["error"] else ""
         bv = sh.get("box_verdict") or {}
-        self._put(self.sheet_out, (
-            f"<div style='font-size:16px;color:{INK}'>"
-            f"<p><b>Preset:</b> {esc(sh['preset_label'])} &mdash; <i>{esc(sh['source'])}</i></p>"
-            f"{err}<div style='display:flex;gap:28px;flex-wrap:wrap'>"
-            "<table><tr><th>scale</th><th>sheet</th><th>from the region</th></tr>"
-            f"{srows}</table>"
-            "<table><tr><th>term (m s-2)</th><th>sheet</th><th>region's scales</th>"
-            f"<th>measured</th><th>measured as</th></tr>{trows}</table></div>"
-            f"<p><b>Numbers from the sheet:</b> {nums}</p>"
-            f"<p><b>The sheet says:</b> {esc(sh['verdict']['text'])}</p>"
-            f"<p><b>The data in the region say:</b> {esc(bv.get('text', 'n/a'))}</p></div>"))
+        self._put(
+            self.sheet_out,
+            (
+                f"<div style='font-size:16px;color:{INK}'>"
+                f"<p><b>Preset:</b> {esc(sh['preset_label'])} &mdash; "
+                f"<i>{esc(sh['source'])}</i></p>"
+                f"{err}<div style='display:flex;gap:28px;flex-wrap:wrap'>"
+                "<table><tr><th>scale</th><th>sheet</th><th>from the region</th></tr>"
+                f"{srows}</table>"
+                "<table><tr><th>term (m s-2)</th><th>sheet</th><th>region's scales</th>"
+                f"<th>measured</th><th>measured as</th></tr>{trows}</table></div>"
+                f"<p><b>Numbers from the sheet:</b> {nums}</p>"
+                f"<p><b>The sheet says:</b> {esc(sh['verdict']['text'])}</p>"
+                f"<p><b>The data in the region say:</b> {esc(bv.get('text', 'n/a'))}</p></div>"
+            ),
+        )
 
     # -- notes --------------------------------------------------------------------------------
     def show_notes(self, rep, thresholds):
@@ -314,13 +423,22 @@ class Below(pn.viewable.Viewer):
         if src:
             parts.append("<h4>Where each field came from</h4><ul>")
             for role, d in src.items():
-                grib = (f", GRIB {d['grib_short_name']} (paramId {d['grib_param_id']}, "
-                        f"{d['grib_type_of_level']})" if d.get("grib_short_name") else "")
-                conv = (f", converted from {d['units_from']}" if d.get("units_from") and
-                        d["units_from"] != d.get("units_to") else "")
+                grib = (
+                    f", GRIB {d['grib_short_name']} (paramId {d['grib_param_id']}, "
+                    f"{d['grib_type_of_level']})"
+                    if d.get("grib_short_name")
+                    else ""
+                )
+                conv = (
+                    f", converted from {d['units_from']}"
+                    if d.get("units_from") and d["units_from"] != d.get("units_to")
+                    else ""
+                )
                 rot = f", {d['rotated']}" if d.get("rotated") else ""
-                parts.append(f"<li>{esc(role)}: {esc(repr(d['variable']))} of {esc(d['file'])}, "
-                             f"{esc(d['level_type'])}{esc(grib + conv + rot)}</li>")
+                parts.append(
+                    f"<li>{esc(role)}: {esc(repr(d['variable']))} of {esc(d['file'])}, "
+                    f"{esc(d['level_type'])}{esc(grib + conv + rot)}</li>"
+                )
             parts.append("</ul>")
         if rep.get("left_out"):
             parts.append("<h4>Found but left out</h4><ul>")
@@ -332,17 +450,24 @@ class Below(pn.viewable.Viewer):
             parts.append("</ul>")
         s = rep.get("scales") or {}
         if s:
-            parts.append("<h4>Scales estimated from the region</h4><p>" +
-                         esc(", ".join(f"{k} = {v:.3g}" for k, v in s.items())) + "</p><ul>")
-            parts += [f"<li>{esc(k)}: {esc(t)}</li>"
-                      for k, t in (rep.get("scales_recipe") or {}).items()]
+            parts.append(
+                "<h4>Scales estimated from the region</h4><p>"
+                + esc(", ".join(f"{k} = {v:.3g}" for k, v in s.items()))
+                + "</p><ul>"
+            )
+            parts += [
+                f"<li>{esc(k)}: {esc(t)}</li>" for k, t in (rep.get("scales_recipe") or {}).items()
+            ]
             parts.append("</ul>")
-        parts.append(f"<p>Verdict thresholds are the project's own choice (a balance holds at "
-                     f"{thresholds.balanced:g} or less; at least {thresholds.min_points} valid "
-                     f"points and {100 * thresholds.min_valid_share:.0f} % of the region for a "
-                     "verdict); see DEVELOPERS.md.</p>")
-        self._put(self.notes, f"<div style='font-size:16px;color:{INK}'>" + "".join(parts) +
-                  "</div>")
+        parts.append(
+            f"<p>Verdict thresholds are the project's own choice (a balance holds at "
+            f"{thresholds.balanced:g} or less; at least {thresholds.min_points} valid "
+            f"points and {100 * thresholds.min_valid_share:.0f} % of the region for a "
+            "verdict); see DEVELOPERS.md.</p>"
+        )
+        self._put(
+            self.notes, f"<div style='font-size:16px;color:{INK}'>" + "".join(parts) + "</div>"
+        )
 
     def __panel__(self):
         return self.tabs

@@ -13,17 +13,29 @@ import math
 import numpy as np
 import panel as pn
 import param
-
 from bokeh import events
-from bokeh.models import (Arrow, BoxSelectTool, ColorBar, ColumnDataSource, CustomJSHover,
-                          CustomJSTickFormatter, HoverTool, Label, LabelSet, LinearColorMapper,
-                          NormalHead, PanTool, Range1d, ResetTool, SingleIntervalTicker,
-                          WheelZoomTool)
+from bokeh.models import (
+    Arrow,
+    BoxSelectTool,
+    ColorBar,
+    ColumnDataSource,
+    CustomJSHover,
+    CustomJSTickFormatter,
+    HoverTool,
+    Label,
+    LabelSet,
+    LinearColorMapper,
+    NormalHead,
+    PanTool,
+    Range1d,
+    ResetTool,
+    SingleIntervalTicker,
+    WheelZoomTool,
+)
 from bokeh.plotting import figure
 
 from ..state import ViewState, area_from_crs
-from .look import (BUSY, GREY, INK, INVENTED_BG, ORANGE, alert, esc, mark_busy, palette,
-                   style_figure)
+from .look import BUSY, GREY, INK, INVENTED_BG, ORANGE, alert, esc, mark_busy, palette, style_figure
 
 __all__ = ["Chart"]
 
@@ -31,7 +43,7 @@ __all__ = ["Chart"]
 WIDTH, MIN_WIDTH = 860, 520
 
 
-def HOVER_TIPS(field_label, contoured="height", same=False):  # noqa: N802 - the readout
+def HOVER_TIPS(field_label, contoured="height", same=False):
     """The readout's lines: where, the field, the contoured quantity (unless it is the
     field), the wind."""
     tips = [("where", "@lat{lat}, @lon{lon}"), (field_label, "@field{value}")]
@@ -43,27 +55,29 @@ def HOVER_TIPS(field_label, contoured="height", same=False):  # noqa: N802 - the
 #: the readout written in the page from the numbers: N/S/E/W, the units, "no data"
 _HOVER_JS = {
     "@lat": "if (!isFinite(value)) return ''; "
-            "return Math.abs(value).toFixed(1) + (value > 0 ? 'N' : (value < 0 ? 'S' : ''));",
+    "return Math.abs(value).toFixed(1) + (value > 0 ? 'N' : (value < 0 ? 'S' : ''));",
     "@lon": "if (!isFinite(value)) return ''; let x = ((value + 180) % 360 + 360) % 360 - 180; "
-            "if (Math.abs(Math.abs(x) - 180) < 1e-9) return '180.0'; "
-            "return Math.abs(x).toFixed(1) + (x > 0 ? 'E' : (x < 0 ? 'W' : ''));",
+    "if (Math.abs(Math.abs(x) - 180) < 1e-9) return '180.0'; "
+    "return Math.abs(x).toFixed(1) + (x > 0 ? 'E' : (x < 0 ? 'W' : ''));",
     "@field": "if (!isFinite(value)) return 'no data'; const a = Math.abs(value); "
-              "const t = a === 0 ? '0' : (a >= 1000 ? value.toFixed(0) : (a >= 1e-2 ? "
-              "String(Number(value.toPrecision(3))) : value.toExponential(2))); "
-              "return unit ? t + ' ' + unit : t;",
+    "const t = a === 0 ? '0' : (a >= 1000 ? value.toFixed(0) : (a >= 1e-2 ? "
+    "String(Number(value.toPrecision(3))) : value.toExponential(2))); "
+    "return unit ? t + ' ' + unit : t;",
     "@height": "if (!isFinite(value)) return 'no data'; "
-               "return value.toFixed(unit === 'm' ? 0 : 1) + ' ' + unit;",
+    "return value.toFixed(unit === 'm' ? 0 : 1) + ' ' + unit;",
     "@speed": "if (!isFinite(value)) return 'no data'; "
-              "const d = src.data.dir[special_vars.index]; "
-              "return value.toFixed(0) + ' ' + unit + ' from ' + "
-              "String(Math.round(d) % 360).padStart(3, '0') + ' deg';",
+    "const d = src.data.dir[special_vars.index]; "
+    "return value.toFixed(0) + ' ' + unit + ' from ' + "
+    "String(Math.round(d) % 360).padStart(3, '0') + ' deg';",
 }
 
 
 def _hover_formatters(src, units):
     unit_of = {"@field": units["field"], "@height": units["height"], "@speed": units["wind"]}
-    return {k: CustomJSHover(code=code, args={"src": src, "unit": unit_of.get(k, "")})
-            for k, code in _HOVER_JS.items()}
+    return {
+        k: CustomJSHover(code=code, args={"src": src, "unit": unit_of.get(k, "")})
+        for k, code in _HOVER_JS.items()
+    }
 
 
 def one_line(lines) -> list:
@@ -86,9 +100,12 @@ def _update_source(src, data: dict, geometry=()):
     """Replace a source's columns; when the ``geometry`` columns are unchanged (a new level
     or time on the same grid), send only the others."""
     old = src.data
-    same = geometry and all(k in old and len(old[k]) == len(data[k]) and
-                            np.array_equal(np.asarray(old[k]), data[k], equal_nan=True)
-                            for k in geometry)
+    same = geometry and all(
+        k in old
+        and len(old[k]) == len(data[k])
+        and np.array_equal(np.asarray(old[k]), data[k], equal_nan=True)
+        for k in geometry
+    )
     if same:
         src.data.update({k: v for k, v in data.items() if k not in geometry})
     else:
@@ -123,75 +140,220 @@ class Chart(pn.viewable.Viewer):
         self.tap_listener = None
         #: called with (lon, lat) for any other click (the systems' marks take it)
         self.tap_default = None
-        self.hover_src = ColumnDataSource(dict(x=[], y=[], lat=[], lon=[], field=[], height=[],
-                                               speed=[], dir=[]))
+        self.hover_src = ColumnDataSource(
+            dict(x=[], y=[], lat=[], lon=[], field=[], height=[], speed=[], dir=[])
+        )
         self.mapper = LinearColorMapper(palette=palette("sequential"), nan_color=(0, 0, 0, 0))
-        fig = figure(width=WIDTH, height=620, tools="", toolbar_location="above", title="",
-                     output_backend="canvas", x_range=Range1d(0, 1), y_range=Range1d(0, 1),
-                     sizing_mode="scale_width", min_width=MIN_WIDTH, max_width=WIDTH + 120)
-        fig.image(image="image", x="x", y="y", dw="dw", dh="dh", source=self.img_src,
-                  color_mapper=self.mapper)
-        fig.image(image="image", x="x", y="y", dw="dw", dh="dh", source=self.mask_src,
-                  color_mapper=LinearColorMapper(palette=[GREY], low=0, high=1,
-                                                 nan_color=(0, 0, 0, 0)), global_alpha=0.6)
-        fig.multi_line("xs", "ys", source=self.grat_src, line_color="#555555", line_alpha=0.7,
-                       line_dash="dotted", line_width=1)
+        fig = figure(
+            width=WIDTH,
+            height=620,
+            tools="",
+            toolbar_location="above",
+            title="",
+            output_backend="canvas",
+            x_range=Range1d(0, 1),
+            y_range=Range1d(0, 1),
+            sizing_mode="scale_width",
+            min_width=MIN_WIDTH,
+            max_width=WIDTH + 120,
+        )
+        fig.image(
+            image="image",
+            x="x",
+            y="y",
+            dw="dw",
+            dh="dh",
+            source=self.img_src,
+            color_mapper=self.mapper,
+        )
+        fig.image(
+            image="image",
+            x="x",
+            y="y",
+            dw="dw",
+            dh="dh",
+            source=self.mask_src,
+            color_mapper=LinearColorMapper(palette=[GREY], low=0, high=1, nan_color=(0, 0, 0, 0)),
+            global_alpha=0.6,
+        )
+        fig.multi_line(
+            "xs",
+            "ys",
+            source=self.grat_src,
+            line_color="#555555",
+            line_alpha=0.7,
+            line_dash="dotted",
+            line_width=1,
+        )
         fig.multi_line("xs", "ys", source=self.coast_src, line_color="#222222", line_width=1.6)
-        fig.multi_line("xs", "ys", source=self.land_src, line_color="#5b3a1a", line_width=2.5,
-                       line_dash="dashed")
+        fig.multi_line(
+            "xs",
+            "ys",
+            source=self.land_src,
+            line_color="#5b3a1a",
+            line_width=2.5,
+            line_dash="dashed",
+        )
         fig.multi_line("xs", "ys", source=self.cont_src, line_color="black", line_width=1.3)
-        fig.segment("x0", "y0", "x1", "y1", source=self.vec_src, line_color="white",
-                    line_width=3.5, line_alpha=0.8)
-        fig.segment("x0", "y0", "x1", "y1", source=self.vec_src, line_color="black",
-                    line_width=1.6)
-        fig.scatter("x1", "y1", source=self.vec_src, marker="triangle", angle="angle",
-                    size="head", fill_color="black", line_color="white", line_width=0.5)
+        fig.segment(
+            "x0",
+            "y0",
+            "x1",
+            "y1",
+            source=self.vec_src,
+            line_color="white",
+            line_width=3.5,
+            line_alpha=0.8,
+        )
+        fig.segment("x0", "y0", "x1", "y1", source=self.vec_src, line_color="black", line_width=1.6)
+        fig.scatter(
+            "x1",
+            "y1",
+            source=self.vec_src,
+            marker="triangle",
+            angle="angle",
+            size="head",
+            fill_color="black",
+            line_color="white",
+            line_width=0.5,
+        )
         # the region's outline on the overlay layer: moving it repaints that layer alone, not
         # the raster, contours and arrows below (Bokeh paints the two canvases apart)
-        fig.line("x", "y", source=self.region_src, line_color="white", line_width=6,
-                 level="overlay")
-        fig.line("x", "y", source=self.region_src, line_color=ORANGE, line_width=3.5,
-                 level="overlay")
+        fig.line(
+            "x", "y", source=self.region_src, line_color="white", line_width=6, level="overlay"
+        )
+        fig.line(
+            "x", "y", source=self.region_src, line_color=ORANGE, line_width=3.5, level="overlay"
+        )
         # weather systems: shape by kind, fill by verdict, a white rim, the label in a box;
         # on the overlay layer too (they come after the chart, and a room's notes at any time:
         # each would repaint the raster, contours and arrows)
-        fig.scatter("x", "y", source=self.sys_src, marker="marker", size=20,
-                    fill_color="colour", line_color="white", line_width=2.5, level="overlay")
-        fig.add_layout(LabelSet(x="x", y="y", text="label", source=self.sys_src,
-                                text_font_size="14px", text_color=INK, text_font_style="bold",
-                                x_offset=12, y_offset=-8, background_fill_color="white",
-                                background_fill_alpha=0.9, level="overlay"))
+        fig.scatter(
+            "x",
+            "y",
+            source=self.sys_src,
+            marker="marker",
+            size=20,
+            fill_color="colour",
+            line_color="white",
+            line_width=2.5,
+            level="overlay",
+        )
+        fig.add_layout(
+            LabelSet(
+                x="x",
+                y="y",
+                text="label",
+                source=self.sys_src,
+                text_font_size="14px",
+                text_color=INK,
+                text_font_style="bold",
+                x_offset=12,
+                y_offset=-8,
+                background_fill_color="white",
+                background_fill_alpha=0.9,
+                level="overlay",
+            )
+        )
         # review notes pinned to a point: a dark square with a white number beside it
-        fig.scatter("x", "y", source=self.note_src, marker="square_pin", size=16,
-                    fill_color=INK, line_color="white", line_width=2, level="overlay")
-        fig.add_layout(LabelSet(x="x", y="y", text="label", source=self.note_src,
-                                text_font_size="14px", text_color="#ffffff",
-                                text_font_style="bold", x_offset=9, y_offset=2,
-                                background_fill_color=INK, background_fill_alpha=0.9,
-                                level="overlay"))
+        fig.scatter(
+            "x",
+            "y",
+            source=self.note_src,
+            marker="square_pin",
+            size=16,
+            fill_color=INK,
+            line_color="white",
+            line_width=2,
+            level="overlay",
+        )
+        fig.add_layout(
+            LabelSet(
+                x="x",
+                y="y",
+                text="label",
+                source=self.note_src,
+                text_font_size="14px",
+                text_color="#ffffff",
+                text_font_style="bold",
+                x_offset=9,
+                y_offset=2,
+                background_fill_color=INK,
+                background_fill_alpha=0.9,
+                level="overlay",
+            )
+        )
         # the contours' labels stay above the region's outline: on its layer, after it
-        fig.add_layout(LabelSet(x="x", y="y", text="text", source=self.clab_src,
-                                text_font_size="14px", text_align="center", text_color=INK,
-                                text_baseline="middle", background_fill_color="white",
-                                background_fill_alpha=0.85, level="overlay"))
-        fig.add_layout(LabelSet(x="x", y="y", text="text", source=self.glab_src,
-                                text_font_size="14px", text_color=INK,
-                                background_fill_color="white", background_fill_alpha=0.85))
+        fig.add_layout(
+            LabelSet(
+                x="x",
+                y="y",
+                text="text",
+                source=self.clab_src,
+                text_font_size="14px",
+                text_align="center",
+                text_color=INK,
+                text_baseline="middle",
+                background_fill_color="white",
+                background_fill_alpha=0.85,
+                level="overlay",
+            )
+        )
+        fig.add_layout(
+            LabelSet(
+                x="x",
+                y="y",
+                text="text",
+                source=self.glab_src,
+                text_font_size="14px",
+                text_color=INK,
+                background_fill_color="white",
+                background_fill_alpha=0.85,
+            )
+        )
         # the reference arrow, in a white box at the lower left
-        self.ref_arrow = Arrow(end=NormalHead(size=10, fill_color="black"), x_start=0, y_start=0,
-                               x_end=0, y_end=0, line_width=2.5, visible=False)
-        self.ref_label = Label(x=0, y=0, text="", text_font_size="15px", text_color=INK,
-                               background_fill_color="white", background_fill_alpha=0.9,
-                               x_offset=6, y_offset=6, visible=False)
+        self.ref_arrow = Arrow(
+            end=NormalHead(size=10, fill_color="black"),
+            x_start=0,
+            y_start=0,
+            x_end=0,
+            y_end=0,
+            line_width=2.5,
+            visible=False,
+        )
+        self.ref_label = Label(
+            x=0,
+            y=0,
+            text="",
+            text_font_size="15px",
+            text_color=INK,
+            background_fill_color="white",
+            background_fill_alpha=0.9,
+            x_offset=6,
+            y_offset=6,
+            visible=False,
+        )
         fig.add_layout(self.ref_arrow)
         fig.add_layout(self.ref_label)
-        self.hover_rect = fig.rect("x", "y", 1.0, 1.0, source=self.hover_src, fill_alpha=0.0,
-                                   line_alpha=0.0, hover_fill_alpha=0.08,
-                                   hover_fill_color="white", hover_line_alpha=0.0)
+        self.hover_rect = fig.rect(
+            "x",
+            "y",
+            1.0,
+            1.0,
+            source=self.hover_src,
+            fill_alpha=0.0,
+            line_alpha=0.0,
+            hover_fill_alpha=0.08,
+            hover_fill_color="white",
+            hover_line_alpha=0.0,
+        )
         hover_r = self.hover_rect
         self.hover_units = {"field": "", "height": "m", "wind": "m/s"}
-        self.hover = HoverTool(renderers=[hover_r], tooltips=HOVER_TIPS("field"),
-                               formatters=_hover_formatters(self.hover_src, self.hover_units))
+        self.hover = HoverTool(
+            renderers=[hover_r],
+            tooltips=HOVER_TIPS("field"),
+            formatters=_hover_formatters(self.hover_src, self.hover_units),
+        )
         # the tool selects from an empty renderer: only the drawn geometry is wanted, not
         # the indices of the hover grid's cells under it (hundreds sent at every drag)
         nothing = fig.scatter(x=[], y=[], size=0, alpha=0)
@@ -199,29 +361,47 @@ class Chart(pn.viewable.Viewer):
         fig.add_tools(self.box_tool, PanTool(), WheelZoomTool(), ResetTool(), self.hover)
         fig.toolbar.active_drag = self.box_tool
         fig.toolbar.active_scroll = None
-        fmt = CustomJSTickFormatter(code="return Math.abs(tick) >= 1000 ? tick.toFixed(0) : "
-                                         "+tick.toPrecision(3);")
-        self.colorbar = ColorBar(color_mapper=self.mapper, width=18, title="",
-                                 title_text_font_size="16px", title_text_color=INK,
-                                 major_label_text_font_size="15px", location=(0, 0),
-                                 major_label_text_color=INK, formatter=fmt)
-        self.colorbar_log = ColorBar(color_mapper=self.mapper, width=18, title="",
-                                     title_text_font_size="16px", visible=False,
-                                     title_text_color=INK, major_label_text_color=INK,
-                                     major_label_text_font_size="15px", location=(0, 0),
-                                     ticker=SingleIntervalTicker(interval=1),
-                                     formatter=CustomJSTickFormatter(
-                                         code="return '1e' + Math.round(tick);"))
+        fmt = CustomJSTickFormatter(
+            code="return Math.abs(tick) >= 1000 ? tick.toFixed(0) : +tick.toPrecision(3);"
+        )
+        self.colorbar = ColorBar(
+            color_mapper=self.mapper,
+            width=18,
+            title="",
+            title_text_font_size="16px",
+            title_text_color=INK,
+            major_label_text_font_size="15px",
+            location=(0, 0),
+            major_label_text_color=INK,
+            formatter=fmt,
+        )
+        self.colorbar_log = ColorBar(
+            color_mapper=self.mapper,
+            width=18,
+            title="",
+            title_text_font_size="16px",
+            visible=False,
+            title_text_color=INK,
+            major_label_text_color=INK,
+            major_label_text_font_size="15px",
+            location=(0, 0),
+            ticker=SingleIntervalTicker(interval=1),
+            formatter=CustomJSTickFormatter(code="return '1e' + Math.round(tick);"),
+        )
         fig.add_layout(self.colorbar, "right")
         fig.add_layout(self.colorbar_log, "right")
-        digits_js = ("var d = (ticks.length > 1 && Math.abs(ticks[1] - ticks[0]) < 1) ? "
-                     "(Math.abs(ticks[1] - ticks[0]) < 0.1 ? 2 : 1) : 0; ")
+        digits_js = (
+            "var d = (ticks.length > 1 && Math.abs(ticks[1] - ticks[0]) < 1) ? "
+            "(Math.abs(ticks[1] - ticks[0]) < 0.1 ? 2 : 1) : 0; "
+        )
         self._lon_fmt = CustomJSTickFormatter(
             code=digits_js + "var x = ((tick + 180) % 360 + 360) % 360 - 180; "
-                 "return Math.abs(x).toFixed(d) + (x < 0 ? 'W' : (x > 0 ? 'E' : ''));")
+            "return Math.abs(x).toFixed(d) + (x < 0 ? 'W' : (x > 0 ? 'E' : ''));"
+        )
         self._lat_fmt = CustomJSTickFormatter(
             code=digits_js + "return Math.abs(tick).toFixed(d) + "
-                             "(tick < 0 ? 'S' : (tick > 0 ? 'N' : ''));")
+            "(tick < 0 ? 'S' : (tick > 0 ? 'N' : ''));"
+        )
         fig.on_event(events.SelectionGeometry, self._on_select)
         fig.on_event(events.Tap, self._on_tap)
         fig.grid.grid_line_color = "#555555"
@@ -231,20 +411,32 @@ class Chart(pn.viewable.Viewer):
         self.fig = fig
         # scale_width: the chart keeps its shape (a map stretched sideways misleads) and
         # takes the column's width
-        self.pane = pn.pane.Bokeh(fig, sizing_mode="scale_width", min_width=MIN_WIDTH,
-                                  max_width=WIDTH + 120)
+        self.pane = pn.pane.Bokeh(
+            fig, sizing_mode="scale_width", min_width=MIN_WIDTH, max_width=WIDTH + 120
+        )
         # the chart fades while it changes through a box of its own: a style set on the
         # figure itself makes Bokeh repaint the whole map (raster, contours, arrows) once more
-        self.figure_box = pn.Column(self.pane, sizing_mode="stretch_width", margin=0,
-                                    styles=dict(BUSY))
+        self.figure_box = pn.Column(
+            self.pane, sizing_mode="stretch_width", margin=0, styles=dict(BUSY)
+        )
         # the caption names the level and time: it fades with the chart while they change
-        self.caption = pn.pane.HTML("", sizing_mode="stretch_width",
-                                    styles={"font-size": "18px", "font-weight": "600", **BUSY})
+        self.caption = pn.pane.HTML(
+            "",
+            sizing_mode="stretch_width",
+            styles={"font-size": "18px", "font-weight": "600", **BUSY},
+        )
         self.alert = pn.pane.HTML("", sizing_mode="stretch_width")
         self.note = pn.pane.HTML("", sizing_mode="stretch_width")
-        self.layout = pn.Column(self.caption, self.alert, self.figure_box, self.note,
-                                sizing_mode="stretch_width", min_width=MIN_WIDTH,
-                                max_width=WIDTH + 140, css_classes=["bd-live"])
+        self.layout = pn.Column(
+            self.caption,
+            self.alert,
+            self.figure_box,
+            self.note,
+            sizing_mode="stretch_width",
+            min_width=MIN_WIDTH,
+            max_width=WIDTH + 140,
+            css_classes=["bd-live"],
+        )
 
     # -- showing ----------------------------------------------------------------------------
     def busy(self, on: bool = True):
@@ -275,20 +467,34 @@ class Chart(pn.viewable.Viewer):
         self.mapper.low, self.mapper.high = float(lo), float(hi)
         self.img_src.data = dict(image=[data], x=[x0], y=[y0], dw=[x1 - x0], dh=[y1 - y0])
         blank = np.full((2, 2), np.nan, np.float32)
-        self.mask_src.data = dict(image=[cd.masked if cd.masked is not None else blank],
-                                  x=[x0], y=[y0], dw=[x1 - x0], dh=[y1 - y0])
-        self.colorbar.title = self.colorbar_log.title = (
-            f"{cd.field_label}" + (f" ({cd.units})" if cd.units else ""))
+        self.mask_src.data = dict(
+            image=[cd.masked if cd.masked is not None else blank],
+            x=[x0],
+            y=[y0],
+            dw=[x1 - x0],
+            dh=[y1 - y0],
+        )
+        self.colorbar.title = self.colorbar_log.title = f"{cd.field_label}" + (
+            f" ({cd.units})" if cd.units else ""
+        )
         lx, ly, lv, labels = cd.contours
         self.cont_src.data = dict(xs=one_line(lx), ys=one_line(ly))
         digits = 1 if cd.contour_units == "dam" and cd.contour_interval < 1.5 else 0
-        self.clab_src.data = dict(x=[a for a, _, _ in labels], y=[b for _, b, _ in labels],
-                                  text=[f"{c:.{digits}f}" for _, _, c in labels])
+        self.clab_src.data = dict(
+            x=[a for a, _, _ in labels],
+            y=[b for _, b, _ in labels],
+            text=[f"{c:.{digits}f}" for _, _, c in labels],
+        )
         if cd.vectors is not None:
             v = cd.vectors
-            self.vec_src.data = dict(x0=v["x0"], y0=v["y0"], x1=v["x1"], y1=v["y1"],
-                                     angle=v["angle"] - np.pi / 2,
-                                     head=head_sizes(v, cd.reference_arrow))
+            self.vec_src.data = dict(
+                x0=v["x0"],
+                y0=v["y0"],
+                x1=v["x1"],
+                y1=v["y1"],
+                angle=v["angle"] - np.pi / 2,
+                head=head_sizes(v, cd.reference_arrow),
+            )
         else:
             self.vec_src.data = dict(x0=[], y0=[], x1=[], y1=[], angle=[], head=[])
         a = cd.reference_arrow
@@ -307,21 +513,30 @@ class Chart(pn.viewable.Viewer):
             self.land_src.data = dict(xs=one_line(lx2), ys=one_line(ly2))
             gx, gy, glab = cd.graticule
             self.grat_src.data = dict(xs=one_line(gx), ys=one_line(gy))
-            self.glab_src.data = dict(x=[p[0] for p in glab], y=[p[1] for p in glab],
-                                      text=[p[2] for p in glab])
+            self.glab_src.data = dict(
+                x=[p[0] for p in glab], y=[p[1] for p in glab], text=[p[2] for p in glab]
+            )
         self.show_outline(cd.region_xy)
         h = cd.hover
-        _update_source(self.hover_src, {k: h[k] for k in ("x", "y", "lat", "lon", "field",
-                                                         "height", "speed", "dir")},
-                       geometry=("x", "y", "lat", "lon"))
+        _update_source(
+            self.hover_src,
+            {k: h[k] for k in ("x", "y", "lat", "lon", "field", "height", "speed", "dir")},
+            geometry=("x", "y", "lat", "lon"),
+        )
         self.hover_rect.glyph.update(width=h["w"], height=h["h"])
-        units = {"field": h["field_units"] or "", "height": h["height_units"],
-                 "wind": h["wind_units"]}
+        units = {
+            "field": h["field_units"] or "",
+            "height": h["height_units"],
+            "wind": h["wind_units"],
+        }
         if units != self.hover_units:
             self.hover_units = units
             self.hover.formatters = _hover_formatters(self.hover_src, units)
-        tips = HOVER_TIPS(cd.field_label, "sea-level pressure" if cd.contour_units == "hPa"
-                          else "height", cd.field_key == "height")
+        tips = HOVER_TIPS(
+            cd.field_label,
+            "sea-level pressure" if cd.contour_units == "hPa" else "height",
+            cd.field_key == "height",
+        )
         if tips != self.hover.tooltips:
             self.hover.tooltips = tips
         _set(fig.x_range, start=x0, end=x1, reset_start=x0, reset_end=x1)
@@ -341,20 +556,32 @@ class Chart(pn.viewable.Viewer):
             fig.axis.visible = lonlat
             fig.grid.visible = lonlat  # on conformal charts the graticule draws them
         _set(fig, width=WIDTH, height=int(min(max(WIDTH * aspect, 320), 720)) + 60)
-        interval = "" if not math.isfinite(cd.contour_interval) else \
-            f" every {cd.contour_interval:g} {cd.contour_units}"
-        mark = (f" <span style='background:{INVENTED_BG};color:#fff;padding:2px 8px;"
+        interval = (
+            ""
+            if not math.isfinite(cd.contour_interval)
+            else f" every {cd.contour_interval:g} {cd.contour_units}"
+        )
+        mark = (
+            (
+                f" <span style='background:{INVENTED_BG};color:#fff;padding:2px 8px;"
                 "border-radius:4px;font-size:15px;white-space:nowrap'>invented demo data"
-                "</span>") if cd.invented else ""
-        self.caption.object = (f"<div><span class='bd-chart-title'>{esc(cd.title)}</span>{mark}"
-                               f"</div><div style='font-size:16px;font-weight:400'>"
-                               f"{esc(cd.field_label)}" + (f" ({esc(cd.units)})" if cd.units
-                                                           else "") +
-                               f"; {esc(cd.contour_label)}{esc(interval)}</div>")
+                "</span>"
+            )
+            if cd.invented
+            else ""
+        )
+        self.caption.object = (
+            f"<div><span class='bd-chart-title'>{esc(cd.title)}</span>{mark}"
+            f"</div><div style='font-size:16px;font-weight:400'>"
+            f"{esc(cd.field_label)}"
+            + (f" ({esc(cd.units)})" if cd.units else "")
+            + f"; {esc(cd.contour_label)}{esc(interval)}</div>"
+        )
         notes = [n for n in (cd.coast_note, cd.vector_label, f"Projection: {g.label}") if n]
         notes += cd.notes
-        self.note.object = "<div style='font-size:15px'>" + "<br>".join(esc(n) for n in notes) + \
-            "</div>"
+        self.note.object = (
+            "<div style='font-size:15px'>" + "<br>".join(esc(n) for n in notes) + "</div>"
+        )
         self.busy(False)
 
     def show_outline(self, xy):
@@ -373,22 +600,25 @@ class Chart(pn.viewable.Viewer):
         x, y = self.data.geom.to_view(lon, lat)
         x, y = np.asarray(x, float), np.asarray(y, float)
         ok = np.isfinite(x) & np.isfinite(y)
-        self.note_src.data = dict(x=x[ok], y=y[ok],
-                                  label=[p[2] for p, k in zip(points, ok) if k])
+        self.note_src.data = dict(x=x[ok], y=y[ok], label=[p[2] for p, k in zip(points, ok) if k])
 
     def show_systems(self, marks):
         """Mark weather systems: ``marks`` is a list of (lon, lat, label, marker, colour)."""
         if self.data is None or not marks:
             self.sys_src.data = dict(x=[], y=[], label=[], marker=[], colour=[])
             return
-        x, y = self.data.geom.to_view(np.array([m[0] for m in marks], float),
-                                      np.array([m[1] for m in marks], float))
+        x, y = self.data.geom.to_view(
+            np.array([m[0] for m in marks], float), np.array([m[1] for m in marks], float)
+        )
         x, y = np.asarray(x, float), np.asarray(y, float)
         ok = np.isfinite(x) & np.isfinite(y)
-        self.sys_src.data = dict(x=x[ok], y=y[ok],
-                                 label=[m[2] for m, k in zip(marks, ok) if k],
-                                 marker=[m[3] for m, k in zip(marks, ok) if k],
-                                 colour=[m[4] for m, k in zip(marks, ok) if k])
+        self.sys_src.data = dict(
+            x=x[ok],
+            y=y[ok],
+            label=[m[2] for m, k in zip(marks, ok) if k],
+            marker=[m[3] for m, k in zip(marks, ok) if k],
+            colour=[m[4] for m, k in zip(marks, ok) if k],
+        )
 
     def _on_tap(self, event):
         listener = self.tap_listener or self.tap_default
@@ -452,6 +682,7 @@ def head_sizes(v, ref, full=8.0):
     ref_len = math.hypot(ref["x1"] - ref["x0"], ref["y1"] - ref["y0"])
     if not ref_len > 0:
         return np.full(n, full)
-    length = np.hypot(np.asarray(v["x1"]) - np.asarray(v["x0"]),
-                      np.asarray(v["y1"]) - np.asarray(v["y0"]))
+    length = np.hypot(
+        np.asarray(v["x1"]) - np.asarray(v["x0"]), np.asarray(v["y1"]) - np.asarray(v["y0"])
+    )
     return full * np.clip(length / (0.4 * ref_len), 0.25, 1.0)

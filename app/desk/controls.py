@@ -33,42 +33,85 @@ class Controls(pn.viewable.Viewer):
         super().__init__(state=state, **params)
         self.library = library
         css = [WIDGET_CSS]
-        self.w_case = pn.widgets.Select(label="Case", options=library.names, value=state.case,
-                                        width=W, stylesheets=css)
+        self.w_case = pn.widgets.Select(
+            label="Case", options=library.names, value=state.case, width=W, stylesheets=css
+        )
         self.w_level = pn.widgets.Select(label="Level", width=W, stylesheets=css)
         self.w_time = pn.widgets.Select(label="Valid time", width=W, stylesheets=css)
         self.w_prev = pn.widgets.Button(label="< earlier", width=W // 2 - 5, stylesheets=css)
         self.w_next = pn.widgets.Button(label="later >", width=W // 2 - 5, stylesheets=css)
-        self.w_field = pn.widgets.Select(label="Filled field", width=W, stylesheets=css,
-                                         options={v: k for k, v in FIELDS.items()},
-                                         value=state.field)
-        self.w_vectors = pn.widgets.Select(label="Vectors", width=W, stylesheets=css,
-                                           options={v: k for k, v in VECTORS.items()},
-                                           value=state.vectors)
-        self.w_proj = pn.widgets.Select(label="Projection", width=W, stylesheets=css,
-                                        options={v: k for k, v in PROJECTIONS.items()},
-                                        value=state.projection)
-        self.w_hunits = pn.widgets.RadioButtonGroup(label="Heights", options=["m", "dam"],
-                                                    value=state.height_units, width=W // 2 - 5,
-                                                    stylesheets=css)
-        self.w_wunits = pn.widgets.RadioButtonGroup(label="Winds", options=["m/s", "kt"],
-                                                    value=state.wind_units, width=W // 2 - 5,
-                                                    stylesheets=css)
-        self.w_smooth = pn.widgets.FloatInput(label="Smoothing (km, 0 = none)",
-                                              value=state.smooth_km, start=0, end=2000, step=25,
-                                              width=W, stylesheets=css)
-        self.w_minlat = pn.widgets.FloatInput(label="Tropical mask (degrees)", value=state.min_lat,
-                                              start=0, end=45, step=1, width=W, stylesheets=css)
-        self.w_box = [pn.widgets.FloatInput(label=n, width=W // 2 - 5, value=None, stylesheets=css)
-                      for n in ("West", "East", "South", "North")]
-        self.w_apply = pn.widgets.Button(label="Use this box", color="primary",
-                                         width=W // 2 - 5, stylesheets=css)
+        self.w_field = pn.widgets.Select(
+            label="Filled field",
+            width=W,
+            stylesheets=css,
+            options={v: k for k, v in FIELDS.items()},
+            value=state.field,
+        )
+        self.w_vectors = pn.widgets.Select(
+            label="Vectors",
+            width=W,
+            stylesheets=css,
+            options={v: k for k, v in VECTORS.items()},
+            value=state.vectors,
+        )
+        self.w_proj = pn.widgets.Select(
+            label="Projection",
+            width=W,
+            stylesheets=css,
+            options={v: k for k, v in PROJECTIONS.items()},
+            value=state.projection,
+        )
+        self.w_hunits = pn.widgets.RadioButtonGroup(
+            label="Heights",
+            options=["m", "dam"],
+            value=state.height_units,
+            width=W // 2 - 5,
+            stylesheets=css,
+        )
+        self.w_wunits = pn.widgets.RadioButtonGroup(
+            label="Winds",
+            options=["m/s", "kt"],
+            value=state.wind_units,
+            width=W // 2 - 5,
+            stylesheets=css,
+        )
+        self.w_smooth = pn.widgets.FloatInput(
+            label="Smoothing (km, 0 = none)",
+            value=state.smooth_km,
+            start=0,
+            end=2000,
+            step=25,
+            width=W,
+            stylesheets=css,
+        )
+        self.w_minlat = pn.widgets.FloatInput(
+            label="Tropical mask (degrees)",
+            value=state.min_lat,
+            start=0,
+            end=45,
+            step=1,
+            width=W,
+            stylesheets=css,
+        )
+        self.w_box = [
+            pn.widgets.FloatInput(label=n, width=W // 2 - 5, value=None, stylesheets=css)
+            for n in ("West", "East", "South", "North")
+        ]
+        self.w_apply = pn.widgets.Button(
+            label="Use this box", color="primary", width=W // 2 - 5, stylesheets=css
+        )
         self.w_whole = pn.widgets.Button(label="Whole case", width=W // 2 - 5, stylesheets=css)
         self.box_alert = pn.pane.HTML("", width=W)
-        for w, p in ((self.w_case, "case"), (self.w_field, "field"), (self.w_vectors, "vectors"),
-                     (self.w_proj, "projection"), (self.w_hunits, "height_units"),
-                     (self.w_wunits, "wind_units"), (self.w_smooth, "smooth_km"),
-                     (self.w_minlat, "min_lat")):
+        for w, p in (
+            (self.w_case, "case"),
+            (self.w_field, "field"),
+            (self.w_vectors, "vectors"),
+            (self.w_proj, "projection"),
+            (self.w_hunits, "height_units"),
+            (self.w_wunits, "wind_units"),
+            (self.w_smooth, "smooth_km"),
+            (self.w_minlat, "min_lat"),
+        ):
             w.param.watch(partial(self._to_state, p), "value")
         self.w_level.param.watch(self._level_widget, "value")
         self.w_time.param.watch(self._time_widget, "value")
@@ -78,18 +121,35 @@ class Controls(pn.viewable.Viewer):
         self.w_whole.on_click(lambda e: self.state.clear_region())
         self.exports_slot = pn.Column(width=W, margin=0)
         self.layout = pn.Column(
-            self.w_case, self.w_level, self.w_time, pn.Row(self.w_prev, self.w_next),
-            self.w_field, self.w_vectors, self.w_proj,
+            self.w_case,
+            self.w_level,
+            self.w_time,
+            pn.Row(self.w_prev, self.w_next),
+            self.w_field,
+            self.w_vectors,
+            self.w_proj,
             pn.pane.HTML("<b>Heights and winds in</b>", margin=(8, 5, 0, 5)),
-            pn.Row(self.w_hunits, self.w_wunits), self.w_smooth, self.w_minlat,
-            pn.pane.HTML("<h3 style='margin:10px 0 0 0'>Region</h3><div style='font-size:15px'>"
-                         "Drag on the chart to draw a region, or type one (degrees; west &gt; "
-                         "east crosses the date line).</div>", width=W, margin=(5, 5, 0, 5)),
-            pn.Row(self.w_box[0], self.w_box[1]), pn.Row(self.w_box[2], self.w_box[3]),
-            pn.Row(self.w_apply, self.w_whole), self.box_alert,
-            pn.pane.HTML("<h3 style='margin:10px 0 0 0'>For the briefing</h3>", width=W,
-                         margin=(5, 5, 0, 5)),
-            self.exports_slot, width=W + 15, margin=(0, 5))
+            pn.Row(self.w_hunits, self.w_wunits),
+            self.w_smooth,
+            self.w_minlat,
+            pn.pane.HTML(
+                "<h3 style='margin:10px 0 0 0'>Region</h3><div style='font-size:15px'>"
+                "Drag on the chart to draw a region, or type one (degrees; west &gt; "
+                "east crosses the date line).</div>",
+                width=W,
+                margin=(5, 5, 0, 5),
+            ),
+            pn.Row(self.w_box[0], self.w_box[1]),
+            pn.Row(self.w_box[2], self.w_box[3]),
+            pn.Row(self.w_apply, self.w_whole),
+            self.box_alert,
+            pn.pane.HTML(
+                "<h3 style='margin:10px 0 0 0'>For the briefing</h3>", width=W, margin=(5, 5, 0, 5)
+            ),
+            self.exports_slot,
+            width=W + 15,
+            margin=(0, 5),
+        )
         self.sync_case()
         self.follow(set(ViewState.param) - {"name"})
 
@@ -107,8 +167,11 @@ class Controls(pn.viewable.Viewer):
             self.state.time = event.new
 
     def step_time(self, d):
-        opts = list(self.w_time.options.values()) if isinstance(self.w_time.options, dict) \
+        opts = (
+            list(self.w_time.options.values())
+            if isinstance(self.w_time.options, dict)
             else list(self.w_time.options)
+        )
         if not opts:
             return
         cur = self.state.time if self.state.time in opts else opts[0]
@@ -124,9 +187,11 @@ class Controls(pn.viewable.Viewer):
         try:
             self.state.set_box(w, e, s, n)
         except ValueError:
-            self.box_alert.object = alert("A box needs the south edge below the north edge, "
-                                          "within -90 to 90 degrees, and longitudes within "
-                                          "-360 to 360.")
+            self.box_alert.object = alert(
+                "A box needs the south edge below the north edge, "
+                "within -90 to 90 degrees, and longitudes within "
+                "-360 to 360."
+            )
             return
         self.box_alert.object = ""
 
@@ -145,15 +210,22 @@ class Controls(pn.viewable.Viewer):
         refs = case.reference_times
         self.w_time.options = {
             vocab.when(t, None if refs is None or np.isnat(refs[i]) else refs[i]): iso(t)
-            for i, t in enumerate(case.times)}
+            for i, t in enumerate(case.times)
+        }
 
     def follow(self, names):
         """Show the state's values (after a change made anywhere)."""
         s = self.state
-        for w, p in ((self.w_case, "case"), (self.w_field, "field"), (self.w_vectors, "vectors"),
-                     (self.w_proj, "projection"), (self.w_hunits, "height_units"),
-                     (self.w_wunits, "wind_units"), (self.w_smooth, "smooth_km"),
-                     (self.w_minlat, "min_lat")):
+        for w, p in (
+            (self.w_case, "case"),
+            (self.w_field, "field"),
+            (self.w_vectors, "vectors"),
+            (self.w_proj, "projection"),
+            (self.w_hunits, "height_units"),
+            (self.w_wunits, "wind_units"),
+            (self.w_smooth, "smooth_km"),
+            (self.w_minlat, "min_lat"),
+        ):
             if p in names and w.value != getattr(s, p):
                 w.value = getattr(s, p)
         if "case" in names:

@@ -25,14 +25,28 @@ class Exports(pn.viewable.Viewer):
         super().__init__(**params)
         self.page = page
         css = [WIDGET_CSS]
-        self.png = pn.widgets.FileDownload(callback=self.png_bytes, filename="briefing.png",
-                                           label="Briefing image (PNG)", width=width,
-                                           color="success", stylesheets=css)
-        self.csv = pn.widgets.FileDownload(callback=self.csv_text, filename="terms.csv",
-                                           label="Term table (CSV)", width=width, stylesheets=css)
-        self.json = pn.widgets.FileDownload(callback=self.json_text, filename="terms.json",
-                                            label="Term table (JSON)", width=width,
-                                            stylesheets=css)
+        self.png = pn.widgets.FileDownload(
+            callback=self.png_bytes,
+            filename="briefing.png",
+            label="Briefing image (PNG)",
+            width=width,
+            color="success",
+            stylesheets=css,
+        )
+        self.csv = pn.widgets.FileDownload(
+            callback=self.csv_text,
+            filename="terms.csv",
+            label="Term table (CSV)",
+            width=width,
+            stylesheets=css,
+        )
+        self.json = pn.widgets.FileDownload(
+            callback=self.json_text,
+            filename="terms.json",
+            label="Term table (JSON)",
+            width=width,
+            stylesheets=css,
+        )
         self.layout = pn.Column(self.png, self.csv, self.json, margin=0)
 
     def _context(self):
@@ -43,9 +57,14 @@ class Exports(pn.viewable.Viewer):
             case_title = self.page.library.get(st.case).title
         except Exception:  # noqa: BLE001 - a case that failed has no title
             pass
-        return formats.context_of(rep, region_text=st.region_text(), wind_units=st.wind_units,
-                                  height_units=st.height_units, case_title=case_title,
-                                  invented=bool(rep.get("invented")))
+        return formats.context_of(
+            rep,
+            region_text=st.region_text(),
+            wind_units=st.wind_units,
+            height_units=st.height_units,
+            case_title=case_title,
+            invented=bool(rep.get("invented")),
+        )
 
     def _outline(self):
         chart = self.page.chart.data
@@ -60,10 +79,18 @@ class Exports(pn.viewable.Viewer):
         notes = []
         if rep and rep.get("reference_time"):
             notes.append(f"Valid {vocab.when(rep['valid_time'], rep['reference_time'])}")
-        return io.BytesIO(briefing_png(chart, rep, self._outline(),
-                                       region_text=self.page.state.region_text(),
-                                       caution=CAUTION, invented_text=INVENTED, notes=notes,
-                                       room_notes=self._room_notes(chart)))
+        return io.BytesIO(
+            briefing_png(
+                chart,
+                rep,
+                self._outline(),
+                region_text=self.page.state.region_text(),
+                caution=CAUTION,
+                invented_text=INVENTED,
+                notes=notes,
+                room_notes=self._room_notes(chart),
+            )
+        )
 
     def _room_notes(self, chart):
         """A review room's notes for the image: (label, (x, y) on the chart or None, text)."""

@@ -14,21 +14,49 @@ from __future__ import annotations
 
 import html
 
-__all__ = ["CAUTION", "ORANGE", "SKY", "GREEN", "BLUE", "VERMILION", "PURPLE", "GREY",
-           "INK", "MUTED", "esc", "GLOBAL_CSS", "style_figure", "palette", "alert",
-           "INVENTED", "INVENTED_BG", "FONT", "BUSY", "mark_busy"]
+__all__ = [
+    "CAUTION",
+    "ORANGE",
+    "SKY",
+    "GREEN",
+    "BLUE",
+    "VERMILION",
+    "PURPLE",
+    "GREY",
+    "INK",
+    "MUTED",
+    "esc",
+    "GLOBAL_CSS",
+    "style_figure",
+    "palette",
+    "alert",
+    "INVENTED",
+    "INVENTED_BG",
+    "FONT",
+    "BUSY",
+    "mark_busy",
+]
 
-CAUTION = ("balance-desk is a diagnostic aid. Official forecasts and warnings come from the "
-           "responsible meteorological service; local rules and licensed practice come first.")
-INVENTED = ("Invented demo data: a synthetic case made for trying the tool, not weather that "
-            "happened.")
+CAUTION = (
+    "balance-desk is a diagnostic aid. Official forecasts and warnings come from the "
+    "responsible meteorological service; local rules and licensed practice come first."
+)
+INVENTED = (
+    "Invented demo data: a synthetic case made for trying the tool, not weather that happened."
+)
 
 # Okabe-Ito colours
-ORANGE, SKY, GREEN, BLUE, VERMILION, PURPLE = ("#E69F00", "#56B4E9", "#009E73", "#0072B2",
-                                               "#D55E00", "#CC79A7")
-GREY = "#6f6f6f"      # no data; 5.1:1 on white
+ORANGE, SKY, GREEN, BLUE, VERMILION, PURPLE = (
+    "#E69F00",
+    "#56B4E9",
+    "#009E73",
+    "#0072B2",
+    "#D55E00",
+    "#CC79A7",
+)
+GREY = "#6f6f6f"  # no data; 5.1:1 on white
 INK = "#1a1a1a"
-MUTED = "#4a4a4a"     # secondary text; 8.9:1 on white
+MUTED = "#4a4a4a"  # secondary text; 8.9:1 on white
 INVENTED_BG = "#5c0a5c"  # behind the invented-data mark (white on it: 13:1); the PNG's too
 
 FONT = {"axis": "16px", "tick": "15px", "title": "18px", "label": "15px"}
@@ -77,12 +105,16 @@ def alert(text: str, kind: str = "warning") -> str:
     """An alert box (HTML) with escaped text; '' when there is nothing to say."""
     if not text:
         return ""
-    colours = {"warning": ("#fff3cd", "#5c4400", "#856404"),
-               "error": ("#fde2e1", "#5c0000", "#a30000"),
-               "info": ("#e6f0fa", "#0a2f55", "#0b5cad")}
+    colours = {
+        "warning": ("#fff3cd", "#5c4400", "#856404"),
+        "error": ("#fde2e1", "#5c0000", "#a30000"),
+        "info": ("#e6f0fa", "#0a2f55", "#0b5cad"),
+    }
     bg, fg, edge = colours.get(kind, colours["warning"])
-    return (f"<div role='status' style='background:{bg};color:{fg};border-left:6px solid {edge};"
-            f"padding:8px 12px;font-size:16px'>{esc(text)}</div>")
+    return (
+        f"<div role='status' style='background:{bg};color:{fg};border-left:6px solid {edge};"
+        f"padding:8px 12px;font-size:16px'>{esc(text)}</div>"
+    )
 
 
 def style_figure(fig, title_size=FONT["title"]):

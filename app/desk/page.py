@@ -21,7 +21,6 @@ import uuid
 from functools import partial
 
 import panel as pn
-
 from bokeh.models import CustomJS
 from panel.io.state import set_curdoc
 
@@ -37,15 +36,25 @@ from .chart import Chart
 from .controls import Controls
 from .evidence import Evidence
 from .exports import Exports
-from .systems import SystemsPanel
 from .look import CAUTION, GLOBAL_CSS, INK, INVENTED_BG, alert, esc
+from .systems import SystemsPanel
 
 __all__ = ["Page", "make_session", "make_room_session", "error_page", "EarlyBuilds"]
 
 log = logging.getLogger("balance_desk")
 
-CHART = {"case", "level", "time", "field", "vectors", "smooth_km", "min_lat", "projection",
-         "height_units", "wind_units"}
+CHART = {
+    "case",
+    "level",
+    "time",
+    "field",
+    "vectors",
+    "smooth_km",
+    "min_lat",
+    "projection",
+    "height_units",
+    "wind_units",
+}
 BOX = {"case", "level", "time", "smooth_km", "min_lat", "region"}
 SYSTEMS = {"case", "level", "time", "smooth_km", "min_lat"}
 #: the report is the same in other units: its numbers are only written again
@@ -77,8 +86,16 @@ def _error_id() -> str:
 class Page(pn.viewable.Viewer):
     """One browser session's page."""
 
-    def __init__(self, library, state: ViewState | None = None, *, pool=POOL,
-                 thresholds: Thresholds = Thresholds(), problems=(), **params):
+    def __init__(
+        self,
+        library,
+        state: ViewState | None = None,
+        *,
+        pool=POOL,
+        thresholds: Thresholds = Thresholds(),
+        problems=(),
+        **params,
+    ):
         super().__init__(**params)
         #: the page writes its view to its link (not in a review room: its link is the room's)
         self.sync_link = True
@@ -106,12 +123,14 @@ class Page(pn.viewable.Viewer):
         self.exports = Exports(self)
         self.controls.exports_slot.objects = [self.exports]
         self.header = pn.pane.HTML("", sizing_mode="stretch_width")
-        self.problems = pn.pane.HTML(alert("; ".join(problems)) if problems else "",
-                                     sizing_mode="stretch_width")
-        footer = pn.pane.HTML(f"<div style='font-size:16px;color:{INK}'><b>Caution.</b> "
-                              f"{esc(CAUTION)}</div>", sizing_mode="stretch_width",
-                              styles={"background": "#fff3cd", "padding": "8px",
-                                      "border-top": "2px solid #856404"})
+        self.problems = pn.pane.HTML(
+            alert("; ".join(problems)) if problems else "", sizing_mode="stretch_width"
+        )
+        footer = pn.pane.HTML(
+            f"<div style='font-size:16px;color:{INK}'><b>Caution.</b> {esc(CAUTION)}</div>",
+            sizing_mode="stretch_width",
+            styles={"background": "#fff3cd", "padding": "8px", "border-top": "2px solid #856404"},
+        )
         # a row that wraps: the evidence goes below the chart on a narrow screen (a plain
         # Row with CSS, not a FlexBox: that one is a template the browser lays out slowly).
         # Panel gives a stretching row the sum of its parts' minimum widths, as if it could
@@ -119,9 +138,13 @@ class Page(pn.viewable.Viewer):
         # inline style, which wins, so that at a narrow window or a high zoom the parts go
         # below one another instead of off to the side
         narrowest = {"min-width": "540px"}
-        main = pn.Row(self.controls, self.chart, self.evidence, sizing_mode="stretch_width",
-                      styles={"flex-wrap": "wrap", "gap": "8px", "align-items": "flex-start",
-                              **narrowest})
+        main = pn.Row(
+            self.controls,
+            self.chart,
+            self.evidence,
+            sizing_mode="stretch_width",
+            styles={"flex-wrap": "wrap", "gap": "8px", "align-items": "flex-start", **narrowest},
+        )
         self.chart.layout.styles = {"flex": "1 1 560px"}
         #: where a review room puts its bar (above the parts) and its notes (under the chart,
         #: in its column)
@@ -133,9 +156,16 @@ class Page(pn.viewable.Viewer):
         self.chart.tap_default = self._system_tapped
         self.chart.layout.append(self.systems)
         self.chart.layout.append(self.middle)
-        self.layout = pn.Column(self.header, self.problems, self.top, main,
-                                self.below.tabs, footer, sizing_mode="stretch_width",
-                                styles=narrowest)
+        self.layout = pn.Column(
+            self.header,
+            self.problems,
+            self.top,
+            main,
+            self.below.tabs,
+            footer,
+            sizing_mode="stretch_width",
+            styles=narrowest,
+        )
         self._update_header()
         self._watcher = self.state.param.watch(self._on_state, list(URL_PARAMS))
         self.below.tabs.param.watch(self._tab_opened, "active")
@@ -239,7 +269,7 @@ class Page(pn.viewable.Viewer):
             search = "?" + urllib.parse.urlencode(q)
             if loc.search != search:
                 loc.search = search
-        except Exception:  # noqa: BLE001 - the link is a convenience; the page goes on
+        except Exception:
             log.exception("could not update the page's link")
 
     # -- work -------------------------------------------------------------------------------------
@@ -258,12 +288,15 @@ class Page(pn.viewable.Viewer):
                 self._apply("box", None, self._show_box, "ok", rep)
             else:
                 self.evidence.busy(True)
-                self._submit("box", lambda: compute.shared_box_data(self.library, snap,
-                                                                     self.thresholds),
-                             self._show_box)
+                self._submit(
+                    "box",
+                    lambda: compute.shared_box_data(self.library, snap, self.thresholds),
+                    self._show_box,
+                )
         geom = self.chart.data.geom if self.chart.data is not None else None
-        global_conformal = geom is not None and geom.kind == "conformal" and \
-            getattr(geom.grid, "periodic", False)
+        global_conformal = (
+            geom is not None and geom.kind == "conformal" and getattr(geom.grid, "periodic", False)
+        )
         if "chart" not in views:
             pass
         elif names & CHART or ("region" in names and (geom is None or global_conformal)):
@@ -273,17 +306,20 @@ class Page(pn.viewable.Viewer):
                 self._apply("chart", None, self._show_chart, "ok", cd)
             else:
                 self.chart.busy(True)
-                self._submit("chart", lambda: compute.shared_chart_data(self.library, snap),
-                             self._show_chart)
+                self._submit(
+                    "chart", lambda: compute.shared_chart_data(self.library, snap), self._show_chart
+                )
         elif "region" in names:
             # only the outline moves: no new raster, contours or vectors to send
             spec = snap.region_spec()
             self.chart.show_outline(None if spec is None else compute.region_outline(geom, spec))
         if names & SYSTEMS and "systems" in views:
             self.systems.busy()
-            self._submit("systems", lambda: compute.systems_data(self.library, snap,
-                                                                  self.thresholds),
-                         self._show_systems)
+            self._submit(
+                "systems",
+                lambda: compute.systems_data(self.library, snap, self.thresholds),
+                self._show_systems,
+            )
         if names & BOX:
             # the views through the levels and the times are computed for an open tab only;
             # a closed one is brought up to date when it is opened
@@ -306,14 +342,22 @@ class Page(pn.viewable.Viewer):
         self._stale.discard(kind)
         if kind == "levels":
             self.below.levels_progress(0, None)
-            self._submit("levels", lambda: compute.levels_data(
-                self.library, snap, progress=self._progress(self.below.levels_progress)),
-                self.below.show_levels)
+            self._submit(
+                "levels",
+                lambda: compute.levels_data(
+                    self.library, snap, progress=self._progress(self.below.levels_progress)
+                ),
+                self.below.show_levels,
+            )
         else:
             self.below.times_progress(0, None)
-            self._submit("times", lambda: compute.times_data(
-                self.library, snap, progress=self._progress(self.below.times_progress)),
-                self.below.show_times)
+            self._submit(
+                "times",
+                lambda: compute.times_data(
+                    self.library, snap, progress=self._progress(self.below.times_progress)
+                ),
+                self.below.show_times,
+            )
 
     def _tab_opened(self, event):
         for kind in list(self._stale):
@@ -332,6 +376,7 @@ class Page(pn.viewable.Viewer):
                 return  # the start is already shown, and the end replaces the line
             last[0] = now
             self._later(partial(show, done, total))
+
         return report
 
     def _later(self, fn):
@@ -376,23 +421,35 @@ class Page(pn.viewable.Viewer):
             if status == "ok":
                 show(value)
             else:
-                show(None, self._sentence(kind, value)) if kind in ("levels", "times",
-                                                                    "systems", "life") else \
-                    self._show_error(kind, self._sentence(kind, value))
-        except Exception:  # noqa: BLE001 - a view that cannot be drawn says so, the page lives
+                show(None, self._sentence(kind, value)) if kind in (
+                    "levels",
+                    "times",
+                    "systems",
+                    "life",
+                ) else self._show_error(kind, self._sentence(kind, value))
+        except Exception:
             eid = _error_id()
             log.exception("drawing the %s view failed (error id %s)", kind, eid)
-            self._show_error(kind, f"This view could not be drawn (error id {eid}; the server "
-                                   "log has the details).")
+            self._show_error(
+                kind,
+                f"This view could not be drawn (error id {eid}; the server log has the details).",
+            )
 
     def _sentence(self, kind, exc) -> str:
         if isinstance(exc, CaseError):
             return str(exc)
         eid = _error_id()
-        log.error("%s view failed for %s (error id %s)", kind, encode_query(self.state.values()),
-                  eid, exc_info=exc)
-        return (f"Something went wrong computing this view (error id {eid}); the server log has "
-                "the details.")
+        log.error(
+            "%s view failed for %s (error id %s)",
+            kind,
+            encode_query(self.state.values()),
+            eid,
+            exc_info=exc,
+        )
+        return (
+            f"Something went wrong computing this view (error id {eid}); the server log has "
+            "the details."
+        )
 
     def _show_error(self, kind, text):
         if kind == "chart":
@@ -442,9 +499,11 @@ class Page(pn.viewable.Viewer):
             return
         snap = self.state.copy()
         self.systems.show_life(None, "Following it through the valid times...")
-        self._submit("life", lambda: compute.system_life(self.library, snap, s["label"],
-                                                         self.thresholds),
-                     self._show_life)
+        self._submit(
+            "life",
+            lambda: compute.system_life(self.library, snap, s["label"], self.thresholds),
+            self._show_life,
+        )
 
     def _show_life(self, life, error=None):
         if error:
@@ -462,7 +521,7 @@ class Page(pn.viewable.Viewer):
         self.below.show_sheet(compute.scale_sheet(self.state, rep))
         self._update_header()
 
-    # -- the header ---------------------------------------------------------------------------------
+    # -- the header ------------------------------------------------------------------------
     def _update_header(self):
         s = self.state
         rep = self.report or {}
@@ -475,14 +534,19 @@ class Page(pn.viewable.Viewer):
         share = rep.get("valid_share")
         rep_level = 0.0 if rep.get("level") == "msl" else rep.get("level_hpa")
         current = rep and rep_level == level and rep.get("region_text") == s.region_text()
-        valid = (f" &middot; {100 * share:.0f} % of the region valid" if current and
-                 share is not None else "")
+        valid = (
+            f" &middot; {100 * share:.0f} % of the region valid"
+            if current and share is not None
+            else ""
+        )
         invented = ""
         try:
             if compute.case_facts(self.library.get(s.case))["invented"]:
-                invented = (f" <span style='background:{INVENTED_BG};color:#fff;padding:2px 8px;"
-                            "border-radius:4px;font-size:16px;white-space:nowrap'>invented demo "
-                            "data</span>")
+                invented = (
+                    f" <span style='background:{INVENTED_BG};color:#fff;padding:2px 8px;"
+                    "border-radius:4px;font-size:16px;white-space:nowrap'>invented demo "
+                    "data</span>"
+                )
         except CaseError:
             pass
         self.header.object = (
@@ -491,7 +555,8 @@ class Page(pn.viewable.Viewer):
             "<span style='font-size:26px;font-weight:700'>balance-desk</span>"
             f"<span class='bd-header' style='font-size:19px'>{esc(s.case)}{invented} &middot; "
             f"{esc(level_text(level))} "
-            f"&middot; {esc(when)} &middot; {esc(s.region_text())}{valid}</span></div>")
+            f"&middot; {esc(when)} &middot; {esc(s.region_text())}{valid}</span></div>"
+        )
 
     def __panel__(self):
         return self.layout
@@ -499,8 +564,10 @@ class Page(pn.viewable.Viewer):
 
 def error_page(text: str):
     """A plain page with one sentence (a session that could not be built)."""
-    return pn.Column(pn.pane.HTML(f"<h1>balance-desk</h1>{alert(text, 'error')}"
-                                  f"<p>{esc(CAUTION)}</p>"), sizing_mode="stretch_width")
+    return pn.Column(
+        pn.pane.HTML(f"<h1>balance-desk</h1>{alert(text, 'error')}<p>{esc(CAUTION)}</p>"),
+        sizing_mode="stretch_width",
+    )
 
 
 def _frame(text: str):
@@ -510,7 +577,8 @@ def _frame(text: str):
         f"<div style='font-size:19px;margin:24px 0'>{esc(text)}</div>"
         f"<div style='background:#fff3cd;padding:8px;border-top:2px solid #856404;"
         f"font-size:16px'><b>Caution.</b> {esc(CAUTION)}</div></div>",
-        sizing_mode="stretch_width")
+        sizing_mode="stretch_width",
+    )
 
 
 def build_page(library, query: dict, thresholds: Thresholds = Thresholds(), doc=None) -> Page:
@@ -519,8 +587,9 @@ def build_page(library, query: dict, thresholds: Thresholds = Thresholds(), doc=
     The state is complete before the page is made, so the page's first work is for the
     view it will show (a default filled in afterwards would start every view again).
     """
-    state = ViewState(case=library.good[0] if library.good else
-                      (library.names[0] if library.names else ""))
+    state = ViewState(
+        case=library.good[0] if library.good else (library.names[0] if library.names else "")
+    )
     problems = state.update_from_query(query, cases=library.names)
     try:
         case = library.get(state.case)
@@ -592,8 +661,9 @@ def _client(doc):
         return ("", "")
 
 
-def make_session(library, thresholds: Thresholds = Thresholds(), early: EarlyBuilds = EARLY,
-                 hub=None):
+def make_session(
+    library, thresholds: Thresholds = Thresholds(), early: EarlyBuilds = EARLY, hub=None
+):
     """The page of one new browser session (the function the server calls per request).
 
     A GET gets the page's frame (its name, a loading line, the caution). The page's
@@ -605,6 +675,7 @@ def make_session(library, thresholds: Thresholds = Thresholds(), early: EarlyBui
     page can open a review room on its view. Never raises: a failure shows one
     sentence with an error id, the server log the details.
     """
+
     def extend(page, doc):
         if hub is not None:
             from .room import RoomOpener
@@ -615,8 +686,9 @@ def make_session(library, thresholds: Thresholds = Thresholds(), early: EarlyBui
     return _session(library, dict(pn.state.session_args or {}), thresholds, early, extend)
 
 
-def make_room_session(library, hub, thresholds: Thresholds = Thresholds(),
-                      early: EarlyBuilds = EARLY):
+def make_room_session(
+    library, hub, thresholds: Thresholds = Thresholds(), early: EarlyBuilds = EARLY
+):
     """The page of a review room (``/room?room=TOKEN``): the desk page on the room's view,
     with the room's bar and notes; a person joins the room when their browser connects.
     A wrong or expired token gets a plain "no such room" page and nothing else."""
@@ -653,8 +725,9 @@ def _session(library, query, thresholds, early, extend):
     def failed():
         eid = _error_id()
         log.exception("could not build a page (error id %s)", eid)
-        return error_page(f"The page could not be built (error id {eid}); the server log has "
-                          "the details.")
+        return error_page(
+            f"The page could not be built (error id {eid}); the server log has the details."
+        )
 
     try:
         if GLOBAL_CSS not in pn.config.raw_css:
@@ -673,8 +746,11 @@ def _session(library, query, thresholds, early, extend):
 
         doc._template_variables.setdefault("dist_url", get_dist_path(cdn=False))
         # the page's own minimum width, inline (see Page: Panel would sum its parts')
-        holder = pn.Column(_frame("Loading the case..."), sizing_mode="stretch_width",
-                           styles={"min-width": "540px"})
+        holder = pn.Column(
+            _frame("Loading the case..."),
+            sizing_mode="stretch_width",
+            styles={"min-width": "540px"},
+        )
         built = []
 
         def build():
@@ -700,11 +776,12 @@ def _session(library, query, thresholds, early, extend):
                 if on_connect is not None:
                     try:
                         on_connect()
-                    except Exception:  # noqa: BLE001 - the page lives without the room
+                    except Exception:
                         eid = _error_id()
                         log.exception("could not join the room (error id %s)", eid)
                         page.problems.object = alert(
-                            f"Could not join the room (error id {eid}).", "error")
+                            f"Could not join the room (error id {eid}).", "error"
+                        )
 
         if early.take(_client(doc), id(doc)):
             doc.add_next_tick_callback(build)

@@ -30,8 +30,15 @@ from ..rooms.store import MAX_NAME, MAX_NOTE, MAX_TITLE
 from ..state import URL_PARAMS, encode_query, parse_query
 from .look import BLUE, INK, MUTED, WIDGET_CSS, alert, esc
 
-__all__ = ["RoomBar", "RoomNotes", "RoomSession", "NAME_COOKIE", "no_such_room", "RoomOpener",
-           "room_link"]
+__all__ = [
+    "RoomBar",
+    "RoomNotes",
+    "RoomSession",
+    "NAME_COOKIE",
+    "no_such_room",
+    "RoomOpener",
+    "room_link",
+]
 
 log = logging.getLogger("balance_desk")
 
@@ -42,9 +49,10 @@ WRAP = {"flex-wrap": "wrap", "min-width": "0"}
 NAME_COOKIE = "bd_name"
 #: run in the browser when a name is chosen: remember it
 REMEMBER_NAME_JS = (
-    "const v = (name.value_input || name.value || '').trim().slice(0, %d);"
-    "if (v) { document.cookie = '%s=' + encodeURIComponent(v) + "
-    "'; path=/; max-age=31536000; SameSite=Strict'; }" % (MAX_NAME, NAME_COOKIE))
+    f"const v = (name.value_input || name.value || '').trim().slice(0, {MAX_NAME});"
+    f"if (v) {{ document.cookie = '{NAME_COOKIE}=' + encodeURIComponent(v) + "
+    "'; path=/; max-age=31536000; SameSite=Strict'; }"
+)
 
 
 def room_link(base: str, token: str) -> str:
@@ -54,8 +62,10 @@ def room_link(base: str, token: str) -> str:
 
 def no_such_room():
     """The page of a wrong or expired room link: it says nothing more."""
-    return pn.pane.HTML(f"<div style='color:{INK};font-size:18px'><h1>No such room</h1>"
-                        "<p>This link does not lead to a review room on this server.</p></div>")
+    return pn.pane.HTML(
+        f"<div style='color:{INK};font-size:18px'><h1>No such room</h1>"
+        "<p>This link does not lead to a review room on this server.</p></div>"
+    )
 
 
 class RoomBar(pn.viewable.Viewer):
@@ -66,30 +76,53 @@ class RoomBar(pn.viewable.Viewer):
         css = [WIDGET_CSS]
         self.title = pn.pane.HTML(
             f"<div style='font-size:20px;font-weight:700;color:{INK}'>Review room: "
-            f"<span class='bd-room-title'>{esc(title)}</span></div>", sizing_mode="stretch_width")
+            f"<span class='bd-room-title'>{esc(title)}</span></div>",
+            sizing_mode="stretch_width",
+        )
         self.people = pn.pane.HTML("", sizing_mode="stretch_width")
         self.status = pn.pane.HTML("", sizing_mode="stretch_width")
-        self.w_steer = pn.widgets.Button(label="Steer the room", button_type="primary",
-                                         width=170, stylesheets=css)
+        self.w_steer = pn.widgets.Button(
+            label="Steer the room", button_type="primary", width=170, stylesheets=css
+        )
         self.w_alone = pn.widgets.Button(label="Look on my own", width=170, stylesheets=css)
-        self.w_back = pn.widgets.Button(label="Back to the room's view", width=200,
-                                        stylesheets=css, visible=False)
-        self.w_name = pn.widgets.TextInput(label="Your name, as the room sees it",
-                                           value=name if named else "", max_length=MAX_NAME,
-                                           placeholder="type your name", width=230,
-                                           stylesheets=css)
-        self.w_use_name = pn.widgets.Button(label="Use this name", width=140, stylesheets=css,
-                                            align="end")
+        self.w_back = pn.widgets.Button(
+            label="Back to the room's view", width=200, stylesheets=css, visible=False
+        )
+        self.w_name = pn.widgets.TextInput(
+            label="Your name, as the room sees it",
+            value=name if named else "",
+            max_length=MAX_NAME,
+            placeholder="type your name",
+            width=230,
+            stylesheets=css,
+        )
+        self.w_use_name = pn.widgets.Button(
+            label="Use this name", width=140, stylesheets=css, align="end"
+        )
         self.w_use_name.js_on_click(args={"name": self.w_name}, code=REMEMBER_NAME_JS)
         self.alert = pn.pane.HTML("", sizing_mode="stretch_width")
         self.layout = pn.Column(
-            self.title, self.people,
-            pn.Row(self.status, self.w_steer, self.w_alone, self.w_back, self.w_name,
-                   self.w_use_name, sizing_mode="stretch_width",
-                   styles={**WRAP, "align-items": "flex-end", "gap": "6px"}),
-            self.alert, sizing_mode="stretch_width",
-            styles={"background": "#eef3f9", "border-left": f"6px solid {BLUE}",
-                    "padding": "6px 12px", "min-width": "520px"})
+            self.title,
+            self.people,
+            pn.Row(
+                self.status,
+                self.w_steer,
+                self.w_alone,
+                self.w_back,
+                self.w_name,
+                self.w_use_name,
+                sizing_mode="stretch_width",
+                styles={**WRAP, "align-items": "flex-end", "gap": "6px"},
+            ),
+            self.alert,
+            sizing_mode="stretch_width",
+            styles={
+                "background": "#eef3f9",
+                "border-left": f"6px solid {BLUE}",
+                "padding": "6px 12px",
+                "min-width": "520px",
+            },
+        )
 
     def show(self, snap, me: str):
         """Draw the room's people and your part in it from a hub snapshot."""
@@ -107,21 +140,23 @@ class RoomBar(pn.viewable.Viewer):
             parts.append("following: " + ", ".join(following))
         if alone:
             parts.append("on their own: " + ", ".join(alone))
-        self.people.object = (f"<div class='bd-room-people' style='font-size:16px;color:{INK}'>"
-                              f"{len(people)} in the room &middot; " + " &middot; ".join(parts)
-                              + "</div>")
+        self.people.object = (
+            f"<div class='bd-room-people' style='font-size:16px;color:{INK}'>"
+            f"{len(people)} in the room &middot; " + " &middot; ".join(parts) + "</div>"
+        )
         mine = next((p for p in people if p["key"] == me), None)
         if mine is None:
             text = "You are not in the room."
         elif mine["steering"]:
             text = "You steer the room: everyone following sees what you see."
         elif mine["following"]:
-            text = (f"You follow {esc(steering['name'])}." if steering else
-                    "You follow the room.")
+            text = f"You follow {esc(steering['name'])}." if steering else "You follow the room."
         else:
             text = "You are looking on your own: the room's changes do not reach you."
-        self.status.object = (f"<div class='bd-room-status' style='font-size:16px;"
-                              f"font-weight:600;color:{INK};min-width:260px'>{text}</div>")
+        self.status.object = (
+            f"<div class='bd-room-status' style='font-size:16px;"
+            f"font-weight:600;color:{INK};min-width:260px'>{text}</div>"
+        )
         self.w_steer.visible = mine is not None and not mine["steering"]
         self.w_alone.visible = mine is not None and mine["following"]
         self.w_back.visible = mine is not None and not mine["following"]
@@ -136,48 +171,83 @@ class RoomNotes(pn.viewable.Viewer):
     def __init__(self, **params):
         super().__init__(**params)
         css = [WIDGET_CSS]
-        self.w_list = pn.widgets.Select(label="Notes (choose one to read it)", options={},
-                                        size=7, width=360, stylesheets=css)
+        self.w_list = pn.widgets.Select(
+            label="Notes (choose one to read it)", options={}, size=7, width=360, stylesheets=css
+        )
         self.detail = pn.pane.HTML("", sizing_mode="stretch_width")
-        self.w_show = pn.widgets.Button(label="Show it to the room", width=170,
-                                        button_type="primary", stylesheets=css, disabled=True)
+        self.w_show = pn.widgets.Button(
+            label="Show it to the room",
+            width=170,
+            button_type="primary",
+            stylesheets=css,
+            disabled=True,
+        )
         self.w_edit = pn.widgets.Button(label="Edit", width=90, stylesheets=css, disabled=True)
-        self.w_withdraw = pn.widgets.Button(label="Withdraw", width=110, stylesheets=css,
-                                            disabled=True)
-        self.w_text = pn.widgets.TextAreaInput(label="New note", max_length=MAX_NOTE,
-                                               placeholder="What do you see here? (the level, "
-                                               "time and region go with it)", height=90,
-                                               sizing_mode="stretch_width", stylesheets=css)
-        self.w_pin = pn.widgets.Toggle(label="Pin it to a point: click the chart", width=280,
-                                       stylesheets=css)
+        self.w_withdraw = pn.widgets.Button(
+            label="Withdraw", width=110, stylesheets=css, disabled=True
+        )
+        self.w_text = pn.widgets.TextAreaInput(
+            label="New note",
+            max_length=MAX_NOTE,
+            placeholder="What do you see here? (the level, time and region go with it)",
+            height=90,
+            sizing_mode="stretch_width",
+            stylesheets=css,
+        )
+        self.w_pin = pn.widgets.Toggle(
+            label="Pin it to a point: click the chart", width=280, stylesheets=css
+        )
         self.pin_text = pn.pane.HTML("", sizing_mode="stretch_width")
-        self.w_add = pn.widgets.Button(label="Add the note", button_type="primary", width=160,
-                                       stylesheets=css)
-        self.w_cancel = pn.widgets.Button(label="Cancel the edit", width=150, stylesheets=css,
-                                          visible=False)
-        self.w_briefing = pn.widgets.Checkbox(label="Room notes in the briefing image",
-                                              value=True, stylesheets=css)
-        self.w_md = pn.widgets.FileDownload(label="Notes (Markdown)", filename="room-notes.md",
-                                            callback=None, width=180, stylesheets=css)
-        self.w_json = pn.widgets.FileDownload(label="Notes (JSON)", filename="room-notes.json",
-                                              callback=None, width=160, stylesheets=css)
+        self.w_add = pn.widgets.Button(
+            label="Add the note", button_type="primary", width=160, stylesheets=css
+        )
+        self.w_cancel = pn.widgets.Button(
+            label="Cancel the edit", width=150, stylesheets=css, visible=False
+        )
+        self.w_briefing = pn.widgets.Checkbox(
+            label="Room notes in the briefing image", value=True, stylesheets=css
+        )
+        self.w_md = pn.widgets.FileDownload(
+            label="Notes (Markdown)",
+            filename="room-notes.md",
+            callback=None,
+            width=180,
+            stylesheets=css,
+        )
+        self.w_json = pn.widgets.FileDownload(
+            label="Notes (JSON)",
+            filename="room-notes.json",
+            callback=None,
+            width=160,
+            stylesheets=css,
+        )
         self.alert = pn.pane.HTML("", sizing_mode="stretch_width")
         self.layout = pn.Column(
-            pn.pane.HTML(f"<h3 style='margin:4px 0;color:{INK}'>Room notes</h3>"
-                         f"<div style='font-size:15px;color:{MUTED}'>Each note keeps the view it "
-                         "was written on; every version is kept.</div>",
-                         sizing_mode="stretch_width"),
+            pn.pane.HTML(
+                f"<h3 style='margin:4px 0;color:{INK}'>Room notes</h3>"
+                f"<div style='font-size:15px;color:{MUTED}'>Each note keeps the view it "
+                "was written on; every version is kept.</div>",
+                sizing_mode="stretch_width",
+            ),
             # rows that wrap, each stating its own minimum width (Panel would sum its parts')
-            pn.Row(pn.Column(self.w_list, pn.Row(self.w_show, self.w_edit, self.w_withdraw,
-                                                 styles=WRAP), width=380),
-                   pn.Column(self.detail, sizing_mode="stretch_width", styles=WRAP),
-                   sizing_mode="stretch_width", styles=WRAP),
-            self.w_text, pn.Row(self.w_pin, self.w_add, self.w_cancel, styles=WRAP),
-            self.pin_text, self.alert,
+            pn.Row(
+                pn.Column(
+                    self.w_list,
+                    pn.Row(self.w_show, self.w_edit, self.w_withdraw, styles=WRAP),
+                    width=380,
+                ),
+                pn.Column(self.detail, sizing_mode="stretch_width", styles=WRAP),
+                sizing_mode="stretch_width",
+                styles=WRAP,
+            ),
+            self.w_text,
+            pn.Row(self.w_pin, self.w_add, self.w_cancel, styles=WRAP),
+            self.pin_text,
+            self.alert,
             pn.Row(self.w_briefing, self.w_md, self.w_json, styles=WRAP),
             sizing_mode="stretch_width",
-            styles={"border-top": f"3px solid {BLUE}", "padding": "6px 4px",
-                    "min-width": "380px"})
+            styles={"border-top": f"3px solid {BLUE}", "padding": "6px 4px", "min-width": "380px"},
+        )
 
     def show_list(self, notes, chosen=None):
         """``notes``: the latest version of each, oldest first."""
@@ -193,18 +263,29 @@ class RoomNotes(pn.viewable.Viewer):
 
     def show_detail(self, number, note, history):
         if note is None:
-            self.detail.object = (f"<div style='font-size:15px;color:{MUTED}'>No note chosen."
-                                  "</div>")
+            self.detail.object = f"<div style='font-size:15px;color:{MUTED}'>No note chosen.</div>"
             for w in (self.w_show, self.w_edit, self.w_withdraw):
                 w.disabled = True
             return
+
+        def what(v):
+            return "withdrawn" if v.withdrawn else ("written" if v.version == 1 else "edited")
+
         versions = "".join(
-            f"<li>{v.version}: {'withdrawn' if v.withdrawn else ('written' if v.version == 1 else 'edited')} "
+            f"<li>{v.version}: {what(v)} "
             f"by {esc(v.author)}, {esc(stamp(v.created))}"
-            + ("" if v.withdrawn or v.version == 1 else f": <i>{esc(v.text)}</i>") + "</li>"
-            for v in history)
-        state = (" <span style='background:#5c4400;color:#fff;padding:1px 6px;border-radius:3px'>"
-                 "withdrawn</span>") if note.withdrawn else ""
+            + ("" if v.withdrawn or v.version == 1 else f": <i>{esc(v.text)}</i>")
+            + "</li>"
+            for v in history
+        )
+        state = (
+            (
+                " <span style='background:#5c4400;color:#fff;padding:1px 6px;border-radius:3px'>"
+                "withdrawn</span>"
+            )
+            if note.withdrawn
+            else ""
+        )
         self.detail.object = (
             f"<div class='bd-note' style='font-size:16px;color:{INK}'>"
             f"<div><b>#{number}</b> by {esc(note.first_author)}, "
@@ -214,7 +295,8 @@ class RoomNotes(pn.viewable.Viewer):
             f"<div style='font-size:15px;color:{MUTED}'>View: "
             f"{esc(describe_view(note.view, note.point))}</div>"
             f"<details style='font-size:15px;margin-top:4px'><summary>Versions ({len(history)})"
-            f"</summary><ul style='margin:4px 0'>{versions}</ul></details></div>")
+            f"</summary><ul style='margin:4px 0'>{versions}</ul></details></div>"
+        )
         self.w_show.disabled = False
         self.w_edit.disabled = note.withdrawn
         self.w_withdraw.disabled = note.withdrawn
@@ -236,7 +318,7 @@ class RoomSession:
         self.joined = False
         self.snap = None
         self._applying = False
-        self._notes: dict = {}      # note_id -> latest Note, in the order they came
+        self._notes: dict = {}  # note_id -> latest Note, in the order they came
         self._editing = None
         self._pin = None
         self.bar = RoomBar(self.title, self.name, bool(cleaned))
@@ -249,15 +331,15 @@ class RoomSession:
         b.w_steer.on_click(lambda e: self._guard(self.steer))
         b.w_alone.on_click(lambda e: self._guard(self.step_out))
         b.w_back.on_click(lambda e: self._guard(self.step_in))
-        b.w_use_name.on_click(lambda e: self._guard(self.rename, b.w_name.value_input or
-                                                    b.w_name.value))
+        b.w_use_name.on_click(
+            lambda e: self._guard(self.rename, b.w_name.value_input or b.w_name.value)
+        )
         n.w_list.param.watch(lambda e: self._show_chosen(), "value")
         n.w_show.on_click(lambda e: self._guard(self.show_note, n.w_list.value))
         n.w_edit.on_click(lambda e: self._start_edit())
         n.w_cancel.on_click(lambda e: self._stop_edit())
         n.w_withdraw.on_click(lambda e: self._guard(self.withdraw, n.w_list.value))
-        n.w_add.on_click(lambda e: self._guard(self.write, n.w_text.value_input or
-                                               n.w_text.value))
+        n.w_add.on_click(lambda e: self._guard(self.write, n.w_text.value_input or n.w_text.value))
         n.w_pin.param.watch(self._pin_mode, "value")
         n.w_briefing.param.watch(lambda e: self._briefing(), "value")
         n.w_md.callback = lambda: io.StringIO(self._export("md"))
@@ -295,8 +377,9 @@ class RoomSession:
         if kind == "people":
             self._people(payload)
         elif kind == "view":
-            mine = next((p for p in (self.snap or {}).get("people", [])
-                         if p["key"] == self.key), None)
+            mine = next(
+                (p for p in (self.snap or {}).get("people", []) if p["key"] == self.key), None
+            )
             if mine is None or mine["following"]:
                 self._apply(payload["view"])
         elif kind == "notes":
@@ -341,8 +424,7 @@ class RoomSession:
         return encode_query(self.page.state.values())
 
     def _me(self):
-        return next((p for p in (self.snap or {}).get("people", []) if p["key"] == self.key),
-                    None)
+        return next((p for p in (self.snap or {}).get("people", []) if p["key"] == self.key), None)
 
     def _local(self, *events):
         """A change of this page's view: the room's if this page steers; a follower who
@@ -369,8 +451,10 @@ class RoomSession:
         snap = page.state.copy()
 
         def compute_views():
-            for make in (lambda: compute.shared_box_data(page.library, snap, page.thresholds),
-                         lambda: compute.shared_chart_data(page.library, snap)):
+            for make in (
+                lambda: compute.shared_box_data(page.library, snap, page.thresholds),
+                lambda: compute.shared_chart_data(page.library, snap),
+            ):
                 try:
                     make()
                 except Exception:  # noqa: BLE001 - each follower's page says it itself
@@ -392,8 +476,7 @@ class RoomSession:
         try:
             fn(*args)
         except RoomError as exc:
-            target = self.notes if fn in (self.write, self.withdraw, self.show_note) else \
-                self.bar
+            target = self.notes if fn in (self.write, self.withdraw, self.show_note) else self.bar
             target.alert.object = alert(str(exc))
 
     def steer(self):
@@ -425,8 +508,9 @@ class RoomSession:
             self.hub.edit_note(self.token, self.key, self._editing, text)
             self._stop_edit()
         else:
-            self.hub.add_note(self.token, self.key, text, self._view(), self._pin,
-                              request=uuid.uuid4().hex)
+            self.hub.add_note(
+                self.token, self.key, text, self._view(), self._pin, request=uuid.uuid4().hex
+            )
             self.notes.w_pin.value = False
             self._pin = None
             self.notes.pin_text.object = ""
@@ -464,8 +548,9 @@ class RoomSession:
         from .. import vocab
 
         self._pin = (lon, lat)
-        self.notes.pin_text.object = alert(f"The note will be pinned at {vocab.lat(lat)} "
-                                           f"{vocab.lon(lon)}.", "info")
+        self.notes.pin_text.object = alert(
+            f"The note will be pinned at {vocab.lat(lat)} {vocab.lon(lon)}.", "info"
+        )
 
     # -- drawing the notes ----------------------------------------------------------------
     def _number(self, note_id) -> int:
@@ -483,30 +568,47 @@ class RoomSession:
         if note is None:
             self.notes.show_detail(None, None, [])
             return
-        self.notes.show_detail(self._number(note.note_id), note,
-                               self.hub.history(self.token, note.note_id))
+        self.notes.show_detail(
+            self._number(note.note_id), note, self.hub.history(self.token, note.note_id)
+        )
 
     def _shown_here(self):
         case = self.page.state.case
-        return [(i, n) for i, n in enumerate(self._notes.values(), 1)
-                if not n.withdrawn and n.view.get("case") == case]
+        return [
+            (i, n)
+            for i, n in enumerate(self._notes.values(), 1)
+            if not n.withdrawn and n.view.get("case") == case
+        ]
 
     def _mark_notes(self):
-        self.page.chart.show_notes([(n.point[0], n.point[1], f"#{i}")
-                                    for i, n in self._shown_here() if n.point is not None])
+        self.page.chart.show_notes(
+            [
+                (n.point[0], n.point[1], f"#{i}")
+                for i, n in self._shown_here()
+                if n.point is not None
+            ]
+        )
 
     def _briefing(self):
         on = self.notes.w_briefing.value
-        self.page.briefing_notes = [
-            (f"#{i}", n.point, f"{n.first_author}: {' '.join(n.text.split())}")
-            for i, n in self._shown_here()] if on else []
+        self.page.briefing_notes = (
+            [
+                (f"#{i}", n.point, f"{n.first_author}: {' '.join(n.text.split())}")
+                for i, n in self._shown_here()
+            ]
+            if on
+            else []
+        )
 
     def _export(self, kind):
         room = self.hub.room(self.token)
         if room is None:
             return "no such room\n"
-        return notes_markdown(room, self.hub.store) if kind == "md" else \
-            notes_json(room, self.hub.store)
+        return (
+            notes_markdown(room, self.hub.store)
+            if kind == "md"
+            else notes_json(room, self.hub.store)
+        )
 
 
 class RoomOpener(pn.viewable.Viewer):
@@ -516,12 +618,14 @@ class RoomOpener(pn.viewable.Viewer):
         super().__init__(**params)
         css = [WIDGET_CSS]
         self.hub, self.page = hub, page
-        self.w_title = pn.widgets.TextInput(label="Review with others: a title",
-                                            max_length=MAX_TITLE, width=width,
-                                            placeholder="e.g. Tuesday 12 UTC briefing",
-                                            stylesheets=css)
-        self.w_open = pn.widgets.Button(label="Open a review room", width=width,
-                                        stylesheets=css)
+        self.w_title = pn.widgets.TextInput(
+            label="Review with others: a title",
+            max_length=MAX_TITLE,
+            width=width,
+            placeholder="e.g. Tuesday 12 UTC briefing",
+            stylesheets=css,
+        )
+        self.w_open = pn.widgets.Button(label="Open a review room", width=width, stylesheets=css)
         self.out = pn.pane.HTML("", width=width)
         self.w_open.on_click(lambda e: self.open())
         self.layout = pn.Column(self.w_title, self.w_open, self.out, margin=0)
@@ -532,8 +636,9 @@ class RoomOpener(pn.viewable.Viewer):
             self.out.object = alert("Give the room a title first.")
             return
         try:
-            room = self.hub.create(title, self.page.state.case,
-                                   encode_query(self.page.state.values()))
+            room = self.hub.create(
+                title, self.page.state.case, encode_query(self.page.state.values())
+            )
         except Exception as exc:  # noqa: BLE001 - a store error is one sentence
             self.out.object = alert(f"The room could not be opened: {exc}", "error")
             return
@@ -542,11 +647,13 @@ class RoomOpener(pn.viewable.Viewer):
         if loc is not None and loc.hostname:
             base = f"{loc.protocol}//{loc.hostname}" + (f":{loc.port}" if loc.port else "")
         link = room_link(base or "", room.token)
-        self.out.object = (f"<div style='font-size:15px;color:{INK}'>The room is open. Give "
-                           f"this link to the team (it is the room's key):<br>"
-                           f"<a class='bd-room-link' href='{esc(link)}' target='_blank' "
-                           f"rel='noopener noreferrer' style='word-break:break-all'>"
-                           f"{esc(link)}</a></div>")
+        self.out.object = (
+            f"<div style='font-size:15px;color:{INK}'>The room is open. Give "
+            f"this link to the team (it is the room's key):<br>"
+            f"<a class='bd-room-link' href='{esc(link)}' target='_blank' "
+            f"rel='noopener noreferrer' style='word-break:break-all'>"
+            f"{esc(link)}</a></div>"
+        )
 
     def __panel__(self):
         return self.layout

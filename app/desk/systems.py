@@ -22,23 +22,39 @@ from .look import BLUE, GREEN, INK, MUTED, ORANGE, PURPLE, VERMILION, WIDGET_CSS
 __all__ = ["SystemsPanel", "VERDICT_COLOURS", "KIND_MARKERS"]
 
 #: the fill of a system's mark by its verdict (Okabe-Ito; black and grey for the rest)
-VERDICT_COLOURS = {"geostrophic": BLUE, "gradient": GREEN, "cyclostrophic": VERMILION,
-                   "frictional": ORANGE, "unsteady": PURPLE, "unbalanced": "#000000",
-                   "none": "#8c8c8c"}
+VERDICT_COLOURS = {
+    "geostrophic": BLUE,
+    "gradient": GREEN,
+    "cyclostrophic": VERMILION,
+    "frictional": ORANGE,
+    "unsteady": PURPLE,
+    "unbalanced": "#000000",
+    "none": "#8c8c8c",
+}
 #: the shape of a system's mark by its kind
 KIND_MARKERS = {"low": "circle", "high": "square", "jet_streak": "triangle"}
 _SHAPE_TEXT = {"low": "&#9679;", "high": "&#9632;", "jet_streak": "&#9650;"}
 
 
+def _ro(value) -> str:
+    return "n/a" if value is None else format(value, ".2g")
+
+
 def legend_html() -> str:
-    shapes = " ".join(f"<span style='white-space:nowrap'>{_SHAPE_TEXT[k]} "
-                      f"{esc(vocab.system_name(k))}</span>" for k in KIND_MARKERS)
+    shapes = " ".join(
+        f"<span style='white-space:nowrap'>{_SHAPE_TEXT[k]} {esc(vocab.system_name(k))}</span>"
+        for k in KIND_MARKERS
+    )
     colours = " ".join(
         f"<span style='white-space:nowrap'><span style='display:inline-block;width:12px;"
         f"height:12px;background:{c};border:1px solid #333;vertical-align:middle'></span> "
-        f"{esc(vocab.balance_name(k))}</span>" for k, c in VERDICT_COLOURS.items())
-    return (f"<div style='font-size:14px;color:{INK}'>Marks: {shapes}. Fill: the verdict of "
-            f"its region: {colours}</div>")
+        f"{esc(vocab.balance_name(k))}</span>"
+        for k, c in VERDICT_COLOURS.items()
+    )
+    return (
+        f"<div style='font-size:14px;color:{INK}'>Marks: {shapes}. Fill: the verdict of "
+        f"its region: {colours}</div>"
+    )
 
 
 class SystemsPanel(pn.viewable.Viewer):
@@ -50,12 +66,15 @@ class SystemsPanel(pn.viewable.Viewer):
         super().__init__(state=state, **params)
         css = [WIDGET_CSS]
         self.data = None
-        self.w_marks = pn.widgets.Checkbox(label="Marks on the chart", value=True,
-                                           stylesheets=css)
-        self.w_list = pn.widgets.Select(label="Systems on this level (choose one: its region "
-                                             "becomes the view's region)",
-                                        options={"(none chosen)": ""}, value="", size=6,
-                                        sizing_mode="stretch_width", stylesheets=css)
+        self.w_marks = pn.widgets.Checkbox(label="Marks on the chart", value=True, stylesheets=css)
+        self.w_list = pn.widgets.Select(
+            label="Systems on this level (choose one: its region becomes the view's region)",
+            options={"(none chosen)": ""},
+            value="",
+            size=6,
+            sizing_mode="stretch_width",
+            stylesheets=css,
+        )
         self.status = pn.pane.HTML("", sizing_mode="stretch_width")
         self.detail = pn.pane.HTML("", sizing_mode="stretch_width")
         self.life = pn.pane.HTML("", sizing_mode="stretch_width")
@@ -63,19 +82,25 @@ class SystemsPanel(pn.viewable.Viewer):
         self._quiet = False
         self.w_list.param.watch(self._chosen, "value")
         self.layout = pn.Column(
-            pn.pane.HTML(f"<h3 style='margin:6px 0 2px 0;color:{INK}'>Systems on this level</h3>",
-                         sizing_mode="stretch_width"),
-            self.status, self.w_list, pn.Row(self.w_marks, styles={"flex-wrap": "wrap",
-                                                                   "min-width": "0"}),
+            pn.pane.HTML(
+                f"<h3 style='margin:6px 0 2px 0;color:{INK}'>Systems on this level</h3>",
+                sizing_mode="stretch_width",
+            ),
+            self.status,
+            self.w_list,
+            pn.Row(self.w_marks, styles={"flex-wrap": "wrap", "min-width": "0"}),
             pn.pane.HTML(legend_html(), sizing_mode="stretch_width"),
-            self.detail, self.life, sizing_mode="stretch_width",
-            styles={"border-top": f"3px solid {BLUE}", "padding": "4px 4px",
-                    "min-width": "380px"})
+            self.detail,
+            self.life,
+            sizing_mode="stretch_width",
+            styles={"border-top": f"3px solid {BLUE}", "padding": "4px 4px", "min-width": "380px"},
+        )
 
     # -- showing --------------------------------------------------------------------------
     def busy(self):
-        self.status.object = (f"<div style='font-size:15px;color:{MUTED}'>Finding the systems "
-                              "of this level...</div>")
+        self.status.object = (
+            f"<div style='font-size:15px;color:{MUTED}'>Finding the systems of this level...</div>"
+        )
 
     def _w(self, value, digits=0):
         """A wind speed (m/s) in the view's unit, as text."""
@@ -87,18 +112,22 @@ class SystemsPanel(pn.viewable.Viewer):
         rows = data["systems"]
         where = "sea level" if data.get("level_hpa") is None else f"{data['level_hpa']:g} hPa"
         rules = formats.rules_text(data, self.state.wind_units, self.state.height_units)
-        notes = "".join(f"<div style='color:{MUTED}'>{esc(n)}</div>"
-                        for n in data.get("notes", []))
+        notes = "".join(f"<div style='color:{MUTED}'>{esc(n)}</div>" for n in data.get("notes", []))
         self.status.object = (
             f"<div style='font-size:15px;color:{INK}'>{len(rows)} found at {esc(where)}, "
-            f"{esc(data['when'])}: {esc(rules)}.{notes}</div>")
+            f"{esc(data['when'])}: {esc(rules)}.{notes}</div>"
+        )
         # a first entry meaning "none chosen": a list box takes its first entry when nothing
         # else fits, and choosing a system must be a change
         options = {"(none chosen)": ""}
         for s in rows:
-            options[(f"{s['label']} · {vocab.system_name(s['kind'])} · {vocab.lat(s['lat'])} "
-                     f"{vocab.lon(s['lon'])} · {self._short_intensity(s)} · "
-                     f"{vocab.balance_name(s['verdict'])}")] = s["label"]
+            options[
+                (
+                    f"{s['label']} · {vocab.system_name(s['kind'])} · {vocab.lat(s['lat'])} "
+                    f"{vocab.lon(s['lon'])} · {self._short_intensity(s)} · "
+                    f"{vocab.balance_name(s['verdict'])}"
+                )
+            ] = s["label"]
         self._quiet = True
         try:
             chosen = self.w_list.value
@@ -130,8 +159,10 @@ class SystemsPanel(pn.viewable.Viewer):
             f"{td}{esc(vocab.lat(p['lat']))} {esc(vocab.lon(p['lon']))}</td>"
             f"{td}{esc(self._amount(p['intensity'], life))}</td>"
             f"{td}"
-            f"{'n/a' if p['rossby_local_median'] is None else format(p['rossby_local_median'], '.2g')}"
-            f"</td>{td}{esc(vocab.balance_name(p['verdict']))}</td></tr>" for p in life["life"])
+            f"{_ro(p['rossby_local_median'])}"
+            f"</td>{td}{esc(vocab.balance_name(p['verdict']))}</td></tr>"
+            for p in life["life"]
+        )
         what = "peak" if life["kind"] == "jet_streak" else "depth"
         self.life.object = (
             f"<div style='font-size:15px;color:{INK}'><b>{esc(life['label'])} through the "
@@ -139,11 +170,15 @@ class SystemsPanel(pn.viewable.Viewer):
             f"{life['match']['speed_kmh']:g} km/h of travel, and at least "
             f"{life['match'].get('spacings', 1.5):g} grid spacings)<table class='bd-life' "
             "style='border-collapse:collapse;margin-top:4px'><tr>"
-            + "".join(f"<th style='text-align:left;padding:2px 10px 2px 0'>{h}</th>"
-                      for h in ("time", "centre", what, "local Rossby", "verdict")) + "</tr>"
+            + "".join(
+                f"<th style='text-align:left;padding:2px 10px 2px 0'>{h}</th>"
+                for h in ("time", "centre", what, "local Rossby", "verdict")
+            )
+            + "</tr>"
             f"{rows}</table>"
-            + "".join(f"<div style='color:{MUTED}'>{esc(n)}</div>"
-                      for n in life.get("notes", [])) + "</div>")
+            + "".join(f"<div style='color:{MUTED}'>{esc(n)}</div>" for n in life.get("notes", []))
+            + "</div>"
+        )
 
     def _amount(self, value, s):
         """A system's intensity (a depth, or a streak's peak) in the view's units."""
@@ -176,24 +211,36 @@ class SystemsPanel(pn.viewable.Viewer):
             rows = "".join(
                 f"<tr><td>{esc(vocab.part_name(k))}</td><td style='text-align:right'>"
                 f"{'n/a' if p['speed_rms'] is None else self._w(p['speed_rms'], 1)}</td>"
-                f"<td style='color:{MUTED}'>{esc(p['note'] or '') if p['speed_rms'] is None else ''}"
-                "</td></tr>" for k, p in parts["parts"].items())
-            rows = (f"<div style='margin-top:4px'><b>Why it is off geostrophy</b>: the "
-                    f"ageostrophic wind, {self._w(parts['measured_rms'], 1)} RMS, split by the "
-                    "terms that make it (RMS over the region)"
-                    f"<table style='border-collapse:collapse'>{rows}</table>"
-                    + (f"<div style='color:{MUTED}'>{esc(parts['note'])}</div>"
-                       if parts.get("note") else "") + "</div>")
+                f"<td style='color:{MUTED}'>"
+                f"{esc(p['note'] or '') if p['speed_rms'] is None else ''}"
+                "</td></tr>"
+                for k, p in parts["parts"].items()
+            )
+            rows = (
+                f"<div style='margin-top:4px'><b>Why it is off geostrophy</b>: the "
+                f"ageostrophic wind, {self._w(parts['measured_rms'], 1)} RMS, split by the "
+                "terms that make it (RMS over the region)"
+                f"<table style='border-collapse:collapse'>{rows}</table>"
+                + (
+                    f"<div style='color:{MUTED}'>{esc(parts['note'])}</div>"
+                    if parts.get("note")
+                    else ""
+                )
+                + "</div>"
+            )
         elif parts:
-            rows = (f"<div style='color:{MUTED}'>The ageostrophic parts are not given here: "
-                    f"{esc(parts.get('note', 'no valid point outside the tropical mask'))}.</div>")
+            rows = (
+                f"<div style='color:{MUTED}'>The ageostrophic parts are not given here: "
+                f"{esc(parts.get('note', 'no valid point outside the tropical mask'))}.</div>"
+            )
         self.detail.object = (
             f"<div class='bd-system' style='font-size:15px;color:{INK}'><b>{esc(s['label'])}, "
             f"{esc(vocab.system_name(s['kind']))}</b> at {esc(vocab.lat(s['lat']))} "
             f"{esc(vocab.lon(s['lon']))}: {esc(self._intensity(s))}. Region: "
             f"{esc(s['region_text'])} ({s['points']} valid points). "
             f"<b>{esc(vocab.balance_name(s['verdict']))}.</b> {esc(s['verdict_text'])}"
-            f"{rows}</div>")
+            f"{rows}</div>"
+        )
 
     def _chosen(self, event):
         if self._quiet:
@@ -218,8 +265,16 @@ class SystemsPanel(pn.viewable.Viewer):
         """(lon, lat, label, marker, colour) of every system, or [] with the marks off."""
         if self.data is None or not self.w_marks.value:
             return []
-        return [(s["lon"], s["lat"], s["label"], KIND_MARKERS[s["kind"]],
-                 VERDICT_COLOURS.get(s["verdict"], "#8c8c8c")) for s in self.data["systems"]]
+        return [
+            (
+                s["lon"],
+                s["lat"],
+                s["label"],
+                KIND_MARKERS[s["kind"]],
+                VERDICT_COLOURS.get(s["verdict"], "#8c8c8c"),
+            )
+            for s in self.data["systems"]
+        ]
 
     def __panel__(self):
         return self.layout

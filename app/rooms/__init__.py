@@ -7,5 +7,15 @@ keeps who is in a room and who steers it, and tells every page of a change.
 from .hub import Hub, RoomError, RoomLimits
 from .store import Note, Room, RoomStore, SQLiteStore, StoreError, default_store_path, open_store
 
-__all__ = ["Hub", "RoomError", "RoomLimits", "Note", "Room", "RoomStore", "SQLiteStore",
-           "StoreError", "default_store_path", "open_store"]
+__all__ = [
+    "Hub",
+    "RoomError",
+    "RoomLimits",
+    "Note",
+    "Room",
+    "RoomStore",
+    "SQLiteStore",
+    "StoreError",
+    "default_store_path",
+    "open_store",
+]

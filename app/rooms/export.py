@@ -21,7 +21,7 @@ __all__ = ["notes_markdown", "notes_json", "describe_view", "stamp"]
 
 def stamp(t: float) -> str:
     """A time of the room (seconds since the epoch) in the page's time format."""
-    d = dt.datetime.fromtimestamp(float(t), tz=dt.timezone.utc)
+    d = dt.datetime.fromtimestamp(float(t), tz=dt.UTC)
     return d.strftime("%a %d %b %Y %H:%M UTC")
 
 
@@ -37,8 +37,11 @@ def describe_view(view: dict, point=None) -> str:
     parts = [str(view.get("case") or "?")]
     if view.get("level") is not None and view.get("level") != "":
         level = view["level"]
-        parts.append("sea level" if str(level).strip().lower() == "msl" or
-                     _is_zero(level) else f"{level} hPa")
+        parts.append(
+            "sea level"
+            if str(level).strip().lower() == "msl" or _is_zero(level)
+            else f"{level} hPa"
+        )
     if view.get("time"):
         parts.append(vocab.when(view["time"], None))
     spec, _ = parse_region(view.get("region", ""))
@@ -55,19 +58,40 @@ def _versions(store, token, note):
 def notes_json(room, store) -> str:
     notes = []
     for i, n in enumerate(store.notes(room.token), 1):
-        notes.append({
-            "number": i, "note_id": n.note_id, "withdrawn": n.withdrawn,
-            "text": n.text, "view": n.view, "view_text": describe_view(n.view, n.point),
-            "point": list(n.point) if n.point else None,
-            "versions": [{"version": v.version, "author": v.author, "time": v.created,
-                          "time_text": stamp(v.created), "text": v.text,
-                          "withdrawn": v.withdrawn} for v in _versions(store, room.token, n)]})
-    out = {"room": {"title": room.title, "case": room.case, "created": room.created,
-                    "created_text": stamp(room.created)},
-           "notes": notes,
-           "caution": "balance-desk is a diagnostic aid. Official forecasts and warnings come "
-                      "from the responsible meteorological service; local rules and licensed "
-                      "practice come first."}
+        notes.append(
+            {
+                "number": i,
+                "note_id": n.note_id,
+                "withdrawn": n.withdrawn,
+                "text": n.text,
+                "view": n.view,
+                "view_text": describe_view(n.view, n.point),
+                "point": list(n.point) if n.point else None,
+                "versions": [
+                    {
+                        "version": v.version,
+                        "author": v.author,
+                        "time": v.created,
+                        "time_text": stamp(v.created),
+                        "text": v.text,
+                        "withdrawn": v.withdrawn,
+                    }
+                    for v in _versions(store, room.token, n)
+                ],
+            }
+        )
+    out = {
+        "room": {
+            "title": room.title,
+            "case": room.case,
+            "created": room.created,
+            "created_text": stamp(room.created),
+        },
+        "notes": notes,
+        "caution": "balance-desk is a diagnostic aid. Official forecasts and warnings come "
+        "from the responsible meteorological service; local rules and licensed "
+        "practice come first.",
+    }
     return json.dumps(out, indent=2, ensure_ascii=False)
 
 
@@ -75,24 +99,34 @@ def notes_markdown(room, store) -> str:
     e = html.escape
     notes = store.notes(room.token)
     withdrawn = sum(n.withdrawn for n in notes)
-    lines = [f"# Review room: {e(room.title)}", "",
-             f"Case {e(room.case)} · opened {stamp(room.created)} · {len(notes)} notes"
-             + (f" ({withdrawn} withdrawn)" if withdrawn else ""), "",
-             "*balance-desk is a diagnostic aid. Official forecasts and warnings come from the "
-             "responsible meteorological service; local rules and licensed practice come "
-             "first.*", ""]
+    lines = [
+        f"# Review room: {e(room.title)}",
+        "",
+        f"Case {e(room.case)} · opened {stamp(room.created)} · {len(notes)} notes"
+        + (f" ({withdrawn} withdrawn)" if withdrawn else ""),
+        "",
+        "*balance-desk is a diagnostic aid. Official forecasts and warnings come from the "
+        "responsible meteorological service; local rules and licensed practice come "
+        "first.*",
+        "",
+    ]
     for i, n in enumerate(notes, 1):
         state = " (withdrawn)" if n.withdrawn else ""
-        lines += [f"## Note {i}{state}: {e(n.first_author)}, {stamp(n.first_created)}", "",
-                  f"View: {e(describe_view(n.view, n.point))}", ""]
+        lines += [
+            f"## Note {i}{state}: {e(n.first_author)}, {stamp(n.first_created)}",
+            "",
+            f"View: {e(describe_view(n.view, n.point))}",
+            "",
+        ]
         lines += ["> " + e(line) if line else ">" for line in n.text.splitlines()] + [""]
         hist = _versions(store, room.token, n)
         if len(hist) > 1:
             lines.append("Versions:")
             for v in hist:
-                what = "withdrawn" if v.withdrawn else ("written" if v.version == 1 else
-                                                        "edited")
-                lines.append(f"- {v.version}: {what} by {e(v.author)}, {stamp(v.created)}"
-                             + ("" if v.withdrawn else f": {e(' '.join(v.text.split()))}"))
+                what = "withdrawn" if v.withdrawn else ("written" if v.version == 1 else "edited")
+                lines.append(
+                    f"- {v.version}: {what} by {e(v.author)}, {stamp(v.created)}"
+                    + ("" if v.withdrawn else f": {e(' '.join(v.text.split()))}")
+                )
             lines.append("")
     return "\n".join(lines)

@@ -37,14 +37,14 @@ class RoomError(Exception):
 class RoomLimits:
     """Bounds on what one person may send (common practice, no source: our own choices)."""
 
-    notes_per_minute: int = 20     # notes, edits and withdrawals per person per minute
-    people: int = 60               # people in one room at once
+    notes_per_minute: int = 20  # notes, edits and withdrawals per person per minute
+    people: int = 60  # people in one room at once
     view_changes_per_second: float = 20.0  # the steering person's changes (a burst is fine)
 
 
 @dataclasses.dataclass
 class Person:
-    key: str               # the browser session
+    key: str  # the browser session
     name: str
     joined: float
     following: bool = True
@@ -59,7 +59,7 @@ class _Live:
         self.case = room.case
         self.view = dict(room.view)
         self.version = room.view_version
-        self.people: "collections.OrderedDict[str, Person]" = collections.OrderedDict()
+        self.people: collections.OrderedDict[str, Person] = collections.OrderedDict()
         self.steering: str | None = None
         self.lock = threading.RLock()
 
@@ -72,9 +72,9 @@ def clean_name(name) -> str:
 class Hub:
     """The live rooms of one server, over a store."""
 
-    def __init__(self, store: RoomStore, limits: RoomLimits = RoomLimits()):
+    def __init__(self, store: RoomStore, limits: RoomLimits | None = None):
         self.store = store
-        self.limits = limits
+        self.limits = RoomLimits() if limits is None else limits
         self._live: dict = {}
         self._lock = threading.Lock()
 
@@ -110,8 +110,7 @@ class Hub:
         with live.lock:
             if key not in live.people and len(live.people) >= self.limits.people:
                 raise RoomError(f"this room is full ({self.limits.people} people)")
-            live.people[key] = Person(key, clean_name(name) or "someone", time.time(),
-                                      True, notify)
+            live.people[key] = Person(key, clean_name(name) or "someone", time.time(), True, notify)
             if live.steering is None:
                 live.steering = key
             snap = self._snapshot(live)
@@ -187,8 +186,13 @@ class Hub:
                 return True
             version = self.store.save_view(token, view)
             live.view, live.version = dict(view), version
-        self._tell(live, "view", {"view": dict(view), "version": version, "by": key},
-                   followers_only=True, skip=key)
+        self._tell(
+            live,
+            "view",
+            {"view": dict(view), "version": version, "by": key},
+            followers_only=True,
+            skip=key,
+        )
         return True
 
     # -- notes --------------------------------------------------------------------------
@@ -200,8 +204,7 @@ class Hub:
         while p.writes and now - p.writes[0] > 60:
             p.writes.popleft()
         if len(p.writes) >= self.limits.notes_per_minute:
-            raise RoomError(f"at most {self.limits.notes_per_minute} notes a minute: wait a "
-                            "moment")
+            raise RoomError(f"at most {self.limits.notes_per_minute} notes a minute: wait a moment")
         p.writes.append(now)
         return p
 
@@ -251,20 +254,34 @@ class Hub:
 
     def _snapshot(self, live) -> dict:
         with live.lock:
-            return {"token": live.token, "title": live.title, "case": live.case,
-                    "view": dict(live.view), "version": live.version,
-                    "steering": live.steering,
-                    "people": [{"key": p.key, "name": p.name, "following": p.following,
-                                "steering": p.key == live.steering}
-                               for p in live.people.values()]}
+            return {
+                "token": live.token,
+                "title": live.title,
+                "case": live.case,
+                "view": dict(live.view),
+                "version": live.version,
+                "steering": live.steering,
+                "people": [
+                    {
+                        "key": p.key,
+                        "name": p.name,
+                        "following": p.following,
+                        "steering": p.key == live.steering,
+                    }
+                    for p in live.people.values()
+                ],
+            }
 
     def _tell(self, live, kind, payload, followers_only=False, skip=None):
         snap = self._snapshot(live) if kind == "people" else None
         with live.lock:
-            targets = [p for p in live.people.values()
-                       if p.key != skip and (p.following or not followers_only)]
+            targets = [
+                p
+                for p in live.people.values()
+                if p.key != skip and (p.following or not followers_only)
+            ]
         for p in targets:
             try:
                 p.notify(kind, snap if kind == "people" else payload)
-            except Exception:  # noqa: BLE001 - one broken page must not stop the others
+            except Exception:
                 log.exception("could not tell a page of room %s", live.title)

@@ -26,8 +26,20 @@ import sqlite3
 import threading
 import time
 
-__all__ = ["Room", "Note", "RoomStore", "SQLiteStore", "StoreError", "default_store_path",
-           "open_store", "new_token", "TOKEN_BYTES", "MAX_TITLE", "MAX_NOTE", "MAX_NAME"]
+__all__ = [
+    "Room",
+    "Note",
+    "RoomStore",
+    "SQLiteStore",
+    "StoreError",
+    "default_store_path",
+    "open_store",
+    "new_token",
+    "TOKEN_BYTES",
+    "MAX_TITLE",
+    "MAX_NOTE",
+    "MAX_NAME",
+]
 
 #: a room's token: 24 random bytes from :mod:`secrets` (192 bits), URL-safe text
 TOKEN_BYTES = 24
@@ -60,8 +72,8 @@ class Room:
     title: str
     case: str
     created: float
-    view: dict          # the room's last view (the link's parameters, see app.state)
-    view_version: int   # counts every change of the view
+    view: dict  # the room's last view (the link's parameters, see app.state)
+    view_version: int  # counts every change of the view
     expires: float = float("inf")  # after this (seconds since the epoch) its link is refused
 
     @property
@@ -71,13 +83,13 @@ class Room:
 
 @dataclasses.dataclass(frozen=True)
 class Note:
-    note_id: str        # the same for every version of one note
-    version: int        # 1 for the first text, then one more per edit or withdrawal
+    note_id: str  # the same for every version of one note
+    version: int  # 1 for the first text, then one more per edit or withdrawal
     room: str
-    author: str         # who wrote this version
-    created: float      # when this version was written (seconds since the epoch, UTC)
+    author: str  # who wrote this version
+    created: float  # when this version was written (seconds since the epoch, UTC)
     text: str
-    view: dict          # the view it was written on
+    view: dict  # the view it was written on
     point: tuple | None  # (lon, lat) on the chart, or None
     withdrawn: bool
     first_author: str = ""
@@ -92,13 +104,15 @@ class Note:
 class RoomStore:
     """What the rooms need from a store (see :class:`SQLiteStore`)."""
 
-    def create_room(self, title: str, case: str, view: dict | None = None,
-                    days: float = 30.0) -> Room: ...
+    def create_room(
+        self, title: str, case: str, view: dict | None = None, days: float = 30.0
+    ) -> Room: ...
     def room(self, token: str) -> Room | None: ...
     def rooms(self) -> list: ...
     def save_view(self, token: str, view: dict) -> int: ...
-    def add_note(self, token: str, author: str, text: str, view: dict, point=None,
-                 request: str | None = None) -> Note: ...
+    def add_note(
+        self, token: str, author: str, text: str, view: dict, point=None, request: str | None = None
+    ) -> Note: ...
     def edit_note(self, token: str, note_id: str, author: str, text: str) -> Note: ...
     def withdraw_note(self, token: str, note_id: str, author: str) -> Note: ...
     def notes(self, token: str) -> list: ...
@@ -157,8 +171,9 @@ class SQLiteStore(RoomStore):
         folder = os.path.dirname(os.path.abspath(path))
         try:
             os.makedirs(folder, exist_ok=True)
-            self._db = sqlite3.connect(path, check_same_thread=False, isolation_level=None,
-                                       timeout=30)
+            self._db = sqlite3.connect(
+                path, check_same_thread=False, isolation_level=None, timeout=30
+            )
             self._db.execute("PRAGMA journal_mode=WAL")
             self._db.execute("PRAGMA synchronous=FULL")
             self._db.execute("PRAGMA foreign_keys=ON")
@@ -177,35 +192,47 @@ class SQLiteStore(RoomStore):
         view = dict(view or {})
         expires = now + 86400.0 * days
         with self._lock, self._db:
-            self._db.execute("INSERT INTO rooms (token, title, case_name, created, view, expires) "
-                             "VALUES (?, ?, ?, ?, ?, ?)",
-                             (token, title, str(case), now, json.dumps(view), expires))
+            self._db.execute(
+                "INSERT INTO rooms (token, title, case_name, created, view, expires) "
+                "VALUES (?, ?, ?, ?, ?, ?)",
+                (token, title, str(case), now, json.dumps(view), expires),
+            )
         return Room(token, title, str(case), now, view, 0, expires)
 
     def room(self, token) -> Room | None:
         if not isinstance(token, str) or not token or len(token) > 100:
             return None
         with self._lock:
-            row = self._db.execute("SELECT token, title, case_name, created, view, view_version, "
-                                   "expires FROM rooms WHERE token = ?", (token,)).fetchone()
-        return None if row is None else Room(row[0], row[1], row[2], row[3],
-                                             json.loads(row[4]), row[5], row[6])
+            row = self._db.execute(
+                "SELECT token, title, case_name, created, view, view_version, "
+                "expires FROM rooms WHERE token = ?",
+                (token,),
+            ).fetchone()
+        return (
+            None
+            if row is None
+            else Room(row[0], row[1], row[2], row[3], json.loads(row[4]), row[5], row[6])
+        )
 
     def rooms(self) -> list:
         with self._lock:
             rows = self._db.execute(
                 "SELECT token, title, case_name, created, view, view_version, expires "
-                "FROM rooms ORDER BY created").fetchall()
+                "FROM rooms ORDER BY created"
+            ).fetchall()
         return [Room(r[0], r[1], r[2], r[3], json.loads(r[4]), r[5], r[6]) for r in rows]
 
     def save_view(self, token, view) -> int:
         with self._lock, self._db:
-            cur = self._db.execute("UPDATE rooms SET view = ?, view_version = view_version + 1 "
-                                   "WHERE token = ?", (json.dumps(dict(view)), token))
+            cur = self._db.execute(
+                "UPDATE rooms SET view = ?, view_version = view_version + 1 WHERE token = ?",
+                (json.dumps(dict(view)), token),
+            )
             if cur.rowcount == 0:
                 raise StoreError("no such room")
-            return self._db.execute("SELECT view_version FROM rooms WHERE token = ?",
-                                    (token,)).fetchone()[0]
+            return self._db.execute(
+                "SELECT view_version FROM rooms WHERE token = ?", (token,)
+            ).fetchone()[0]
 
     # -- notes ----------------------------------------------------------------------
     def add_note(self, token, author, text, view, point=None, request=None) -> Note:
@@ -214,24 +241,35 @@ class SQLiteStore(RoomStore):
         lon, lat = _point(point)
         with self._lock, self._db:
             if request is not None:
-                row = self._db.execute("SELECT note_id, version FROM notes WHERE request = ?",
-                                       (str(request),)).fetchone()
+                row = self._db.execute(
+                    "SELECT note_id, version FROM notes WHERE request = ?", (str(request),)
+                ).fetchone()
                 if row is not None:  # the same write again: the note already stored
                     return self._version(row[0], row[1])
-            if self._db.execute("SELECT 1 FROM rooms WHERE token = ?", (token,)).fetchone() \
-                    is None:
+            if self._db.execute("SELECT 1 FROM rooms WHERE token = ?", (token,)).fetchone() is None:
                 raise StoreError("no such room")
             note_id = secrets.token_hex(8)
             self._db.execute(
                 "INSERT INTO notes (room, note_id, version, author, created, text, view, lon, "
                 "lat, withdrawn, request) VALUES (?, ?, 1, ?, ?, ?, ?, ?, ?, 0, ?)",
-                (token, note_id, author, time.time(), text, json.dumps(dict(view)), lon, lat,
-                 None if request is None else str(request)))
+                (
+                    token,
+                    note_id,
+                    author,
+                    time.time(),
+                    text,
+                    json.dumps(dict(view)),
+                    lon,
+                    lat,
+                    None if request is None else str(request),
+                ),
+            )
             return self._version(note_id, 1)
 
     def edit_note(self, token, note_id, author, text) -> Note:
-        return self._next_version(token, note_id, author, _clean(text, MAX_NOTE, "note"),
-                                  withdrawn=False)
+        return self._next_version(
+            token, note_id, author, _clean(text, MAX_NOTE, "note"), withdrawn=False
+        )
 
     def withdraw_note(self, token, note_id, author) -> Note:
         return self._next_version(token, note_id, author, None, withdrawn=True)
@@ -241,16 +279,28 @@ class SQLiteStore(RoomStore):
         with self._lock, self._db:
             last = self._db.execute(
                 "SELECT version, text, view, lon, lat FROM notes WHERE room = ? AND note_id = ? "
-                "ORDER BY version DESC LIMIT 1", (token, note_id)).fetchone()
+                "ORDER BY version DESC LIMIT 1",
+                (token, note_id),
+            ).fetchone()
             if last is None:
                 raise StoreError("no such note in this room")
             version = last[0] + 1
             self._db.execute(
                 "INSERT INTO notes (room, note_id, version, author, created, text, view, lon, "
                 "lat, withdrawn) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-                (token, note_id, version, author, time.time(),
-                 last[1] if text is None else text, last[2], last[3], last[4],
-                 int(withdrawn)))
+                (
+                    token,
+                    note_id,
+                    version,
+                    author,
+                    time.time(),
+                    last[1] if text is None else text,
+                    last[2],
+                    last[3],
+                    last[4],
+                    int(withdrawn),
+                ),
+            )
             return self._version(note_id, version)
 
     def notes(self, token) -> list:
@@ -261,25 +311,42 @@ class SQLiteStore(RoomStore):
                 "SELECT n.note_id, n.version FROM notes n JOIN (SELECT note_id, MAX(version) v, "
                 "MIN(seq) first FROM notes WHERE room = ? GROUP BY note_id) m "
                 "ON n.note_id = m.note_id AND n.version = m.v ORDER BY m.first",
-                (token,)).fetchall()
+                (token,),
+            ).fetchall()
             return [self._version(r[0], r[1]) for r in rows]
 
     def history(self, token, note_id) -> list:
         """Every version of one note, first to last."""
         with self._lock:
-            rows = self._db.execute("SELECT version FROM notes WHERE room = ? AND note_id = ? "
-                                    "ORDER BY version", (token, note_id)).fetchall()
+            rows = self._db.execute(
+                "SELECT version FROM notes WHERE room = ? AND note_id = ? ORDER BY version",
+                (token, note_id),
+            ).fetchall()
             return [self._version(note_id, r[0]) for r in rows]
 
     def _version(self, note_id, version) -> Note:
         row = self._db.execute(
             "SELECT note_id, version, room, author, created, text, view, lon, lat, withdrawn "
-            "FROM notes WHERE note_id = ? AND version = ?", (note_id, version)).fetchone()
-        first = self._db.execute("SELECT author, created FROM notes WHERE note_id = ? AND "
-                                 "version = 1", (note_id,)).fetchone()
+            "FROM notes WHERE note_id = ? AND version = ?",
+            (note_id, version),
+        ).fetchone()
+        first = self._db.execute(
+            "SELECT author, created FROM notes WHERE note_id = ? AND version = 1", (note_id,)
+        ).fetchone()
         point = None if row[7] is None else (row[7], row[8])
-        return Note(row[0], row[1], row[2], row[3], row[4], row[5], json.loads(row[6]), point,
-                    bool(row[9]), first[0], first[1])
+        return Note(
+            row[0],
+            row[1],
+            row[2],
+            row[3],
+            row[4],
+            row[5],
+            json.loads(row[6]),
+            point,
+            bool(row[9]),
+            first[0],
+            first[1],
+        )
 
     def integrity(self) -> str:
         """SQLite's own integrity check: "ok" when the file is sound."""
@@ -300,8 +367,7 @@ def _point(point):
         raise StoreError("a note's point is not a longitude and a latitude") from None
     import math
 
-    if not (math.isfinite(lon) and math.isfinite(lat) and -540 <= lon <= 540 and
-            -90 <= lat <= 90):
+    if not (math.isfinite(lon) and math.isfinite(lat) and -540 <= lon <= 540 and -90 <= lat <= 90):
         raise StoreError("a note's point is not on the Earth")
     return lon, lat
 

@@ -13,11 +13,30 @@ before anything can load eccodes (see DEVELOPERS.md).
 
 import pyproj  # noqa: F401  (before cfgrib/eccodes: the other order crashes at exit)
 
-from .analysis import (SEA_LEVEL, analyse_case, analyse_systems, diagnostics_for, is_sea_level,
-                       level_words, sea_level_diagnostics_for, track_systems)
+from .analysis import (
+    SEA_LEVEL,
+    analyse_case,
+    analyse_systems,
+    diagnostics_for,
+    is_sea_level,
+    level_words,
+    sea_level_diagnostics_for,
+    track_systems,
+)
 from .case import Case, iso, open_case
 from .errors import CaseError
 
-__all__ = ["Case", "CaseError", "open_case", "analyse_case", "diagnostics_for", "iso",
-           "analyse_systems", "track_systems", "SEA_LEVEL", "is_sea_level", "level_words",
-           "sea_level_diagnostics_for"]
+__all__ = [
+    "Case",
+    "CaseError",
+    "open_case",
+    "analyse_case",
+    "diagnostics_for",
+    "iso",
+    "analyse_systems",
+    "track_systems",
+    "SEA_LEVEL",
+    "is_sea_level",
+    "level_words",
+    "sea_level_diagnostics_for",
+]

@@ -17,8 +17,16 @@ from ..verdict import Thresholds
 from .case import Case, iso
 from .errors import CaseError
 
-__all__ = ["analyse_case", "diagnostics_for", "sea_level_diagnostics_for", "analyse_systems",
-           "track_systems", "SEA_LEVEL", "is_sea_level", "level_words"]
+__all__ = [
+    "analyse_case",
+    "diagnostics_for",
+    "sea_level_diagnostics_for",
+    "analyse_systems",
+    "track_systems",
+    "SEA_LEVEL",
+    "is_sea_level",
+    "level_words",
+]
 
 #: The name of sea level where a level is asked for (the command line's ``--level msl``).
 SEA_LEVEL = "msl"
@@ -52,14 +60,24 @@ def diagnostics_for(case: Case, level_index: int, time_index: int, smooth_km=Non
         if "temperature" in case.data:
             t = _slab(case, "temperature", time_index, level_index, smooth_km)
         return heights_only_diagnostics(
-            case.grid, _slab(case, "height", time_index, level_index, smooth_km),
-            float(case.levels_pa[level_index]), NO_WIND, temperature=t,
-            below_ground=case.below_ground_mask(time_index, level_index))
+            case.grid,
+            _slab(case, "height", time_index, level_index, smooth_km),
+            float(case.levels_pa[level_index]),
+            NO_WIND,
+            temperature=t,
+            below_ground=case.below_ground_mask(time_index, level_index),
+        )
     fields, it, ik = case.fields(time_index, level_index, smooth_km=smooth_km)
     hag, how = case.height_above_ground(time_index, level_index)
-    return level_diagnostics(case.grid, fields, it, ik, height_above_ground=hag,
-                             height_above_ground_source=how,
-                             below_ground=case.below_ground_mask(time_index, level_index))
+    return level_diagnostics(
+        case.grid,
+        fields,
+        it,
+        ik,
+        height_above_ground=hag,
+        height_above_ground_source=how,
+        below_ground=case.below_ground_mask(time_index, level_index),
+    )
 
 
 def sea_level_diagnostics_for(case: Case, time_index: int, smooth_km=None):
@@ -70,8 +88,9 @@ def sea_level_diagnostics_for(case: Case, time_index: int, smooth_km=None):
         from ..smoothing import smooth
 
         p, u, v = (smooth(case.grid, a, smooth_km) for a in (p, u, v))
-    return surface_diagnostics(case.grid, p, u, v, t2m=f["t2m"], time=f["time"], it=f["it"],
-                               elevation=f["elevation"])
+    return surface_diagnostics(
+        case.grid, p, u, v, t2m=f["t2m"], time=f["time"], it=f["it"], elevation=f["elevation"]
+    )
 
 
 def _region_and_box(case: Case, box):
@@ -79,10 +98,17 @@ def _region_and_box(case: Case, box):
         region = box
         box_d = region.describe()
         if region.kind == "polygon":
-            box_d = {**box_d, "polygon": {"lons": list(region.lons), "lats": list(region.lats)}}
+            lons, lats = region.vertices()
+            box_d = {**box_d, "polygon": {"lons": list(lons), "lats": list(lats)}}
         if region.kind == "circle":
-            box_d = {**box_d, "circle": {"lon": region.lons[0], "lat": region.lats[0],
-                                         "radius_km": region.radius_km}}
+            box_d = {
+                **box_d,
+                "circle": {
+                    "lon": region.vertices()[0][0],
+                    "lat": region.vertices()[1][0],
+                    "radius_km": region.radius_km,
+                },
+            }
     elif box is None:
         region = Region.whole()
         box_d = {"west": None, "east": None, "south": None, "north": None}
@@ -94,10 +120,12 @@ def _region_and_box(case: Case, box):
         box_d = dict(zip(("west", "east", "south", "north"), map(float, box)))
     inside = region.mask(case.grid)
     if not inside.any() and region.kind != "whole":
-        raise CaseError(f"box {box_d['west']:g},{box_d['east']:g},{box_d['south']:g},"
-                        f"{box_d['north']:g} holds no grid points of {case.name} (its grid spans "
-                        f"lat {case.grid.lat.min():.1f} to {case.grid.lat.max():.1f}, lon "
-                        f"{case.grid.lon.min():.1f} to {case.grid.lon.max():.1f})")
+        raise CaseError(
+            f"box {box_d['west']:g},{box_d['east']:g},{box_d['south']:g},"
+            f"{box_d['north']:g} holds no grid points of {case.name} (its grid spans "
+            f"lat {case.grid.lat.min():.1f} to {case.grid.lat.max():.1f}, lon "
+            f"{case.grid.lon.min():.1f} to {case.grid.lon.max():.1f})"
+        )
     return region, box_d, inside
 
 
@@ -105,15 +133,26 @@ def _times(case: Case, t: int) -> dict:
     ref = None
     if case.reference_times is not None and not np.isnat(case.reference_times[t]):
         ref = case.reference_times[t]
-    return {"valid_time": iso(case.times[t]),
-            "reference_time": None if ref is None else iso(ref),
-            "lead_time_h": None if ref is None else float((case.times[t] - ref) /
-                                                         np.timedelta64(1, "h"))}
+    return {
+        "valid_time": iso(case.times[t]),
+        "reference_time": None if ref is None else iso(ref),
+        "lead_time_h": None
+        if ref is None
+        else float((case.times[t] - ref) / np.timedelta64(1, "h")),
+    }
 
 
-def analyse_case(case: Case, level_hpa, time=None, box=None, *, smooth_km=None,
-                 thresholds: Thresholds = Thresholds(), diagnostics=None,
-                 flow_length=None) -> dict:
+def analyse_case(
+    case: Case,
+    level_hpa,
+    time=None,
+    box=None,
+    *,
+    smooth_km=None,
+    thresholds: Thresholds = Thresholds(),
+    diagnostics=None,
+    flow_length=None,
+) -> dict:
     """The analysis of one box (west, east, south, north; a Region; None for the whole domain)
     at a pressure level (hPa) or at sea level (:data:`SEA_LEVEL`).
 
@@ -135,8 +174,9 @@ def analyse_case(case: Case, level_hpa, time=None, box=None, *, smooth_km=None,
         diag = sea_level_diagnostics_for(case, t, smooth_km)
     else:
         diag = diagnostics_for(case, k, t, smooth_km)
-    rep = box_report(diag, inside, thresholds=thresholds, below_ground=below,
-                     flow_length=flow_length)
+    rep = box_report(
+        diag, inside, thresholds=thresholds, below_ground=below, flow_length=flow_length
+    )
     out = {
         "case": case.name,
         "level_hpa": level_value,
@@ -150,8 +190,11 @@ def analyse_case(case: Case, level_hpa, time=None, box=None, *, smooth_km=None,
     out["sources"] = {role: dict(src) for role, src in case.sources.items()}
     out["left_out"] = dict(case.dropped)
     out["notes"] = list(case.notes) + rep["notes"]
-    runs = case.runs_note(case.time_window(t)) if "tendency" not in \
-        diag.budget.residual_includes else None
+    runs = (
+        case.runs_note(case.time_window(t))
+        if "tendency" not in diag.budget.residual_includes
+        else None
+    )
     if runs:
         out["notes"].append(f"the local tendency: {runs}")
     sfc = case.surface_analysis(t)
@@ -159,24 +202,33 @@ def analyse_case(case: Case, level_hpa, time=None, box=None, *, smooth_km=None,
         ok = inside & np.isfinite(sfc["cross_isobar_angle"]) & np.isfinite(sfc["speed_ratio"])
         ang = weighted_stats(sfc["cross_isobar_angle"], case.grid, ok)
         rat = weighted_stats(sfc["speed_ratio"], case.grid, ok)
-        out["surface"] = {"cross_isobar_angle_median_deg": ang.median,
-                          "speed_over_geostrophic_median": rat.median,
-                          "points": ang.count, "note": sfc["density_source"]}
+        out["surface"] = {
+            "cross_isobar_angle_median_deg": ang.median,
+            "speed_over_geostrophic_median": rat.median,
+            "points": ang.count,
+            "note": sfc["density_source"],
+        }
     return out
 
 
 def _crosses_equator(region: Region) -> bool:
-    if region.kind == "circle":
-        return region.south < 0.0 < region.north
+    if region.kind == "whole":
+        return False
     if region.kind == "polygon":
-        return min(region.lats) < 0.0 < max(region.lats)
-    return region.kind == "box" and region.south < 0.0 < region.north
+        lats = region.vertices()[1]
+        return min(lats) < 0.0 < max(lats)
+    _, _, south, north = region.bounds()
+    return south < 0.0 < north
 
 
 def _no_verdict(rep: dict, sentence: str) -> dict:
     rep = dict(rep)
-    rep["verdict"] = {**rep["verdict"], "balance": "none", "text": f"No verdict: {sentence}.",
-                      "why": sentence[0].upper() + sentence[1:] + "."}
+    rep["verdict"] = {
+        **rep["verdict"],
+        "balance": "none",
+        "text": f"No verdict: {sentence}.",
+        "why": sentence[0].upper() + sentence[1:] + ".",
+    }
     return rep
 
 
@@ -189,9 +241,19 @@ def _slab(case: Case, role: str, t: int, k: int, smooth_km):
     return a
 
 
-def analyse_systems(case: Case, level_hpa, time=None, *, smooth_km=None,
-                    thresholds: Thresholds = Thresholds(), diagnostics=None, limit: int = 30,
-                    interval=None, min_depth=None, jet=None) -> dict:
+def analyse_systems(
+    case: Case,
+    level_hpa,
+    time=None,
+    *,
+    smooth_km=None,
+    thresholds: Thresholds = Thresholds(),
+    diagnostics=None,
+    limit: int = 30,
+    interval=None,
+    min_depth=None,
+    jet=None,
+) -> dict:
     """The weather systems of one level and time (:func:`balance_core.systems.find_systems`)
     and, for each, the report of its region (:func:`analyse_case`).
 
@@ -230,7 +292,7 @@ def analyse_systems(case: Case, level_hpa, time=None, *, smooth_km=None,
             rho, _ = density_from(field, None)
             ug, vg = geostrophic_wind_from_pressure(case.grid, field, rho)
         vortices = ()
-        level_out = SEA_LEVEL
+        level_out: str | float = SEA_LEVEL
     else:
         k = case.level_index(level_hpa)
         p = float(case.levels_pa[k])
@@ -242,61 +304,103 @@ def analyse_systems(case: Case, level_hpa, time=None, *, smooth_km=None,
             why_not = NO_WIND
             field, u, v = _slab(case, "height", t, k, smooth_km), None, None
             ug, vg = geostrophic_wind(case.grid, field)
-            notes.append("the file has no wind: closed lows and highs only (no jet streaks), "
-                         "each with the geostrophic wind of its region")
+            notes.append(
+                "the file has no wind: closed lows and highs only (no jet streaks), "
+                "each with the geostrophic wind of its region"
+            )
         vortices = ()
         if p >= 85000.0 and case.has_sea_level and u is not None:
             # the sea-level lows and highs under a low level: their rings are not jet streaks
             msl = case.sea_level_pressure(t)
-            vortices = tuple(S.find_closed_extrema(case.grid, msl, None, "low") +
-                             S.find_closed_extrema(case.grid, msl, None, "high"))
+            vortices = tuple(
+                S.find_closed_extrema(case.grid, msl, None, "low")
+                + S.find_closed_extrema(case.grid, msl, None, "high")
+            )
         below = case.below_ground_mask(t, k)
         if below is not None and below.mean() > BELOW_GROUND_SHARE:
-            notes.append(f"{100 * below.mean():.0f} % of the {p / 100:g} hPa level lies below the "
-                         "ground, where no contour can be traced: lows and highs near the "
-                         "ground are found in the sea-level pressure (--level msl, or \"sea "
-                         "level\" on the page)")
+            notes.append(
+                f"{100 * below.mean():.0f} % of the {p / 100:g} hPa level lies below the "
+                "ground, where no contour can be traced: lows and highs near the "
+                'ground are found in the sea-level pressure (--level msl, or "sea '
+                'level" on the page)'
+            )
         level_out = p / 100
-    shallow = []
-    found = S.find_systems(case.grid, field, u, v, p, interval=interval, min_depth=min_depth,
-                           jet=jet, limit=limit, vortices=vortices, shallow=shallow)
+    shallow: list = []
+    found = S.find_systems(
+        case.grid,
+        field,
+        u,
+        v,
+        p,
+        interval=interval,
+        min_depth=min_depth,
+        jet=jet,
+        limit=limit,
+        vortices=vortices,
+        shallow=shallow,
+    )
     ci = float(interval or S.contour_interval(p))
     depth_min = 0.5 * ci if min_depth is None else float(min_depth)
     if shallow:
-        unit, k = ("hPa", 0.01) if sea else ("m", 1.0)
-        listed = "; ".join(f"a {s.kind} of {s.value * k:.{1 if sea else 0}f} {unit} at "
-                           f"{abs(s.lat):.1f}{'N' if s.lat >= 0 else 'S'} "
-                           f"{abs(s.lon):.1f}{'E' if s.lon >= 0 else 'W'}, "
-                           f"{s.depth * k:.{1 if sea else 0}f} {unit} inside its "
-                           f"{s.outer_level * k:g} {unit} contour" for s in shallow[:3])
+        unit, scale = ("hPa", 0.01) if sea else ("m", 1.0)
+        listed = "; ".join(
+            f"a {s.kind} of {s.value * scale:.{1 if sea else 0}f} {unit} at "
+            f"{abs(s.lat):.1f}{'N' if s.lat >= 0 else 'S'} "
+            f"{abs(s.lon):.1f}{'E' if s.lon >= 0 else 'W'}, "
+            f"{s.depth * scale:.{1 if sea else 0}f} {unit} inside its "
+            f"{s.outer_level * scale:g} {unit} contour"
+            for s in shallow[:3]
+        )
         n = len(shallow)
-        notes.append(f"{n} shallow {'low or high is' if n == 1 else 'lows and highs are'} left "
-                     f"out: closed by a contour, but less than {depth_min * k:g} {unit} (half an "
-                     f"interval) inside it: {listed}" + ("; and others" if n > 3 else ""))
+        notes.append(
+            f"{n} shallow {'low or high is' if n == 1 else 'lows and highs are'} left "
+            f"out: closed by a contour, but less than {depth_min * scale:g} {unit} (half an "
+            f"interval) inside it: {listed}" + ("; and others" if n > 3 else "")
+        )
     systems = []
     for s in found:
         if budget:
-            rep = analyse_case(case, level_out, t, s.region, smooth_km=smooth_km,
-                               thresholds=thresholds, diagnostics=diag,
-                               flow_length=_system_length(s, sea))
+            rep = analyse_case(
+                case,
+                level_out,
+                t,
+                s.region,
+                smooth_km=smooth_km,
+                thresholds=thresholds,
+                diagnostics=diag,
+                flow_length=_system_length(s, sea),
+            )
         else:
             rep = geostrophic_only_report(case.grid, ug, vg, s.region, why_not)
         if _crosses_equator(s.region):
-            rep = _no_verdict(rep, "the region crosses the equator, where the Coriolis "
-                                   "parameter changes sign and no balance that needs it holds")
+            rep = _no_verdict(
+                rep,
+                "the region crosses the equator, where the Coriolis "
+                "parameter changes sign and no balance that needs it holds",
+            )
         d = s.as_dict()
         d["report"] = rep
         systems.append(d)
     return {
-        "case": case.name, "level_hpa": None if sea else p / 100, "level": level_out,
+        "case": case.name,
+        "level_hpa": None if p is None else p / 100,
+        "level": level_out,
         **_times(case, t),
-        "rules": {"field": "sea_level_pressure" if sea else "height",
-                  "units": "Pa" if sea else "m",
-                  "contour_interval": ci,
-                  "min_depth": depth_min, "shallow_left_out": len(shallow),
-                  "jet_threshold_ms": None if u is None else float(jet or S.jet_threshold(p)),
-                  "core_fraction": 0.8, "limit": limit, "max_share": S.MAX_SHARE,
-                  "ring_km": S.RING_KM, "ring_tangential": S.RING_TANGENTIAL},
+        "rules": {
+            "field": "sea_level_pressure" if sea else "height",
+            "units": "Pa" if sea else "m",
+            "contour_interval": ci,
+            "min_depth": depth_min,
+            "shallow_left_out": len(shallow),
+            "jet_threshold_ms": None
+            if u is None or p is None
+            else float(jet or S.jet_threshold(p)),
+            "core_fraction": 0.8,
+            "limit": limit,
+            "max_share": S.MAX_SHARE,
+            "ring_km": S.RING_KM,
+            "ring_tangential": S.RING_TANGENTIAL,
+        },
         "notes": notes,
         "systems": systems,
     }
@@ -315,26 +419,49 @@ def _system_length(s, sea: bool):
     amp = s.depth
     if sea:
         amp = s.depth / (float(standard_atmosphere_density(C.STD_SEA_LEVEL_PRESSURE)) * C.G0)
-    return FlowLength(length=s.radius_km * 1e3, amplitude=amp,
-                      recipe="the radius of the system's outermost closed contour")
+    return FlowLength(
+        length=s.radius_km * 1e3,
+        amplitude=amp,
+        recipe="the radius of the system's outermost closed contour",
+    )
 
 
-def track_systems(case: Case, level_hpa, *, smooth_km=None,
-                  thresholds: Thresholds = Thresholds(), limit: int = 30, progress=None) -> dict:
+def track_systems(
+    case: Case,
+    level_hpa,
+    *,
+    smooth_km=None,
+    thresholds: Thresholds = Thresholds(),
+    limit: int = 30,
+    progress=None,
+) -> dict:
     """The systems of every valid time, matched into tracks
     (:func:`balance_core.systems.match_tracks`): each track's kind and, at each of its
     times, the centre, intensity, local Rossby number and verdict of its region."""
-    from ..systems import TRACK_SPACINGS, TRACK_SPEED_KMH, System, match_tracks, \
-        track_limit_km
+    from ..systems import TRACK_SPACINGS, TRACK_SPEED_KMH, System, match_tracks, track_limit_km
 
     per_time, objects = [], []
     for t in range(case.times.size):
-        out = analyse_systems(case, level_hpa, t, smooth_km=smooth_km, thresholds=thresholds,
-                              limit=limit)
+        out = analyse_systems(
+            case, level_hpa, t, smooth_km=smooth_km, thresholds=thresholds, limit=limit
+        )
         per_time.append(out)
-        objects.append([System(s["kind"], s["lon"], s["lat"], s["value"], s["depth"],
-                               s["outer_level"], s["area_km2"], Region.whole(), (0, 0))
-                        for s in out["systems"]])
+        objects.append(
+            [
+                System(
+                    s["kind"],
+                    s["lon"],
+                    s["lat"],
+                    s["value"],
+                    s["depth"],
+                    s["outer_level"],
+                    s["area_km2"],
+                    Region.whole(),
+                    (0, 0),
+                )
+                for s in out["systems"]
+            ]
+        )
         if progress is not None:
             progress(t + 1, case.times.size)
     hours = [float(h) for h in (case.times - case.times[0]) / np.timedelta64(1, "h")]
@@ -344,21 +471,36 @@ def track_systems(case: Case, level_hpa, *, smooth_km=None,
         life = []
         for t, i in track:
             s = per_time[t]["systems"][i]
-            life.append({"valid_time": per_time[t]["valid_time"], "lon": s["lon"],
-                         "lat": s["lat"], "intensity": s["intensity"],
-                         "rossby_local_median": (s["report"].get("numbers") or {}).get(
-                             "rossby_local_median"),
-                         "verdict": s["report"]["verdict"]["balance"]})
-        tracks.append({"kind": per_time[track[0][0]]["systems"][track[0][1]]["kind"],
-                       "life": life})
+            life.append(
+                {
+                    "valid_time": per_time[t]["valid_time"],
+                    "lon": s["lon"],
+                    "lat": s["lat"],
+                    "intensity": s["intensity"],
+                    "rossby_local_median": (s["report"].get("numbers") or {}).get(
+                        "rossby_local_median"
+                    ),
+                    "verdict": s["report"]["verdict"]["balance"],
+                }
+            )
+        tracks.append({"kind": per_time[track[0][0]]["systems"][track[0][1]]["kind"], "life": life})
     notes = []
     runs = case.runs_note(range(case.times.size))
     if runs:
         notes.append(f"tracks: {runs}")
     step = min((b - a for a, b in zip(hours, hours[1:])), default=0.0)
-    return {"case": case.name, "level_hpa": per_time[0]["level_hpa"] if per_time else None,
-            "level": per_time[0]["level"] if per_time else None,
-            "match": {"speed_kmh": TRACK_SPEED_KMH, "min_km": track_limit_km(0.0),
-                      "grid_spacing_km": spacing, "spacings": TRACK_SPACINGS,
-                      "limit_km": track_limit_km(step, spacing)},
-            "notes": notes, "tracks": tracks, "times": per_time}
+    return {
+        "case": case.name,
+        "level_hpa": per_time[0]["level_hpa"] if per_time else None,
+        "level": per_time[0]["level"] if per_time else None,
+        "match": {
+            "speed_kmh": TRACK_SPEED_KMH,
+            "min_km": track_limit_km(0.0),
+            "grid_spacing_km": spacing,
+            "spacings": TRACK_SPACINGS,
+            "limit_km": track_limit_km(step, spacing),
+        },
+        "notes": notes,
+        "tracks": tracks,
+        "times": per_time,
+    }

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import dataclasses
 import os
+from typing import Any
 
 import numpy as np
 
@@ -75,7 +76,7 @@ class Case:
     #: "surface_height") or None
     ground_field: str | None = None
     #: lazy bool DataArray (time, level, y, x): True below the ground, or None
-    below: object = None
+    below: Any = None
     #: how many ensemble members the files hold (1 without a member dimension)
     member_count: int = 1
 
@@ -102,8 +103,10 @@ class Case:
         hits = np.nonzero(np.isclose(self.levels_pa, float(hpa) * 100.0, rtol=0, atol=1.0))[0]
         if hits.size == 0:
             have = ", ".join(f"{p / 100:g}" for p in self.levels_pa)
-            raise CaseError(f"has no {float(hpa):g} hPa level (levels: {have} hPa)",
-                            self.paths[0] if self.paths else None)
+            raise CaseError(
+                f"has no {float(hpa):g} hPa level (levels: {have} hPa)",
+                self.paths[0] if self.paths else None,
+            )
         return int(hits[0])
 
     def time_index(self, spec) -> int:
@@ -116,18 +119,24 @@ class Case:
         if digits.isascii() and digits.isdigit():
             i = int(text)
             if not -n <= i < n:
-                raise CaseError(f"time index {i} is outside the {n} valid times (0..{n - 1})",
-                                self.paths[0] if self.paths else None)
+                raise CaseError(
+                    f"time index {i} is outside the {n} valid times (0..{n - 1})",
+                    self.paths[0] if self.paths else None,
+                )
             return i % n
         t = parse_time(text)
         if t is None:
-            raise CaseError(f"time {text!r} is neither an index nor an ISO 8601 time",
-                            self.paths[0] if self.paths else None)
+            raise CaseError(
+                f"time {text!r} is neither an index nor an ISO 8601 time",
+                self.paths[0] if self.paths else None,
+            )
         hits = np.nonzero(self.times == t)[0]
         if hits.size == 0:
             first, last = iso(self.times[0]), iso(self.times[-1])
-            raise CaseError(f"time {iso(t)} is not one of the {n} valid times ({first} to {last})",
-                            self.paths[0] if self.paths else None)
+            raise CaseError(
+                f"time {iso(t)} is not one of the {n} valid times ({first} to {last})",
+                self.paths[0] if self.paths else None,
+            )
         return int(hits[0])
 
     # -- arrays for the core -----------------------------------------------------------
@@ -139,15 +148,20 @@ class Case:
         arrays, and (it, ik) locate the requested time and level inside them.
         """
         if "u" not in self.data or "v" not in self.data:
-            raise CaseError("has no eastward and northward wind on pressure levels, so the "
-                            "momentum budget cannot be computed (the height alone gives only the "
-                            "geostrophic wind)", self.paths[0] if self.paths else None)
+            raise CaseError(
+                "has no eastward and northward wind on pressure levels, so the "
+                "momentum budget cannot be computed (the height alone gives only the "
+                "geostrophic wind)",
+                self.paths[0] if self.paths else None,
+            )
         if smooth_km:
             extent = self.extent_km()
             if not smooth_km <= extent:
-                raise CaseError(f"a smoothing length of {smooth_km:g} km exceeds the size of the "
-                                f"domain (about {extent:.0f} km); give at most that",
-                                self.paths[0] if self.paths else None)
+                raise CaseError(
+                    f"a smoothing length of {smooth_km:g} km exceeds the size of the "
+                    f"domain (about {extent:.0f} km); give at most that",
+                    self.paths[0] if self.paths else None,
+                )
         nt, nk = self.times.size, self.levels_pa.size
         t0, t1 = _window(time_index, nt)
         k0, k1 = _window(level_index, nk)
@@ -163,8 +177,12 @@ class Case:
         # a neighbouring time with no data at this level would spoil the tendency of every
         # point: leave it out of the window (and with it, perhaps, the tendency)
         ik_w = level_index - k0
-        empty = [i for i in range(t1 - t0) if i != time_index - t0 and not any(
-            np.isfinite(arrays[r][i, ik_w]).any() for r in ("u", "v", "height"))]
+        empty = [
+            i
+            for i in range(t1 - t0)
+            if i != time_index - t0
+            and not any(np.isfinite(arrays[r][i, ik_w]).any() for r in ("u", "v", "height"))
+        ]
         if empty:
             keep = [i for i in range(t1 - t0) if i not in empty]
             gone = ", ".join(iso(self.times[t0 + i]) for i in empty)
@@ -172,28 +190,43 @@ class Case:
             times_kept = self.times[t0:t1][keep]
             it_new = keep.index(time_index - t0)
             if len(keep) == 1:
-                reasons["tendency"] = (f"the neighbouring valid time {gone} holds no data at "
-                                       f"{self.levels_pa[level_index] / 100:g} hPa, so no "
-                                       "local tendency")
+                reasons["tendency"] = (
+                    f"the neighbouring valid time {gone} holds no data at "
+                    f"{self.levels_pa[level_index] / 100:g} hPa, so no "
+                    "local tendency"
+                )
         else:
             times_kept = self.times[t0:t1]
             it_new = time_index - t0
         for r in ("omega", "temperature"):
             a = arrays[r]
-            if r not in reasons and a is not None and \
-                    not np.isfinite(a[it_new, level_index - k0]).any():
+            if (
+                r not in reasons
+                and a is not None
+                and not np.isfinite(a[it_new, level_index - k0]).any()
+            ):
                 arrays[r] = None  # a variable the file does not give at this level or time
-                reasons[r] = (f"{r} is not given at {self.levels_pa[level_index] / 100:g} hPa, "
-                              f"{iso(self.times[time_index])}")
+                reasons[r] = (
+                    f"{r} is not given at {self.levels_pa[level_index] / 100:g} hPa, "
+                    f"{iso(self.times[time_index])}"
+                )
         if smooth_km:
             from ..smoothing import smooth
 
-            arrays = {r: None if a is None else smooth(self.grid, a, smooth_km)
-                      for r, a in arrays.items()}
+            arrays = {
+                r: None if a is None else smooth(self.grid, a, smooth_km) for r, a in arrays.items()
+            }
         secs = (times_kept - self.times[0]) / np.timedelta64(1, "s")
-        f = Fields(arrays["u"], arrays["v"], arrays["height"], self.levels_pa[k0:k1],
-                   secs.astype(np.float64) if times_kept.size > 1 else None, arrays["omega"],
-                   arrays["temperature"], reasons=reasons)
+        f = Fields(
+            arrays["u"],
+            arrays["v"],
+            arrays["height"],
+            self.levels_pa[k0:k1],
+            secs.astype(np.float64) if times_kept.size > 1 else None,
+            arrays["omega"],
+            arrays["temperature"],
+            reasons=reasons,
+        )
         return f, it_new, level_index - k0
 
     def extent_km(self) -> float:
@@ -241,18 +274,16 @@ class Case:
         """
         if "msl" not in self.surface or "u10" not in self.surface or "v10" not in self.surface:
             return None
-        from ..thermo import standard_atmosphere_density
+        from ..surface import density_from
         from ..winds import geostrophic_wind_from_pressure
 
         p = np.asarray(to_numpy(self.surface["msl"].isel(time=time_index)), dtype=np.float64)
         u = np.asarray(to_numpy(self.surface["u10"].isel(time=time_index)), dtype=np.float64)
         v = np.asarray(to_numpy(self.surface["v10"].isel(time=time_index)), dtype=np.float64)
+        t2m = None
         if "t2m" in self.surface:
-            rho = p / (C.R_DRY * np.asarray(to_numpy(self.surface["t2m"].isel(time=time_index))))
-            source = "density from the 2 m temperature"
-        else:
-            rho = float(standard_atmosphere_density(C.STD_SEA_LEVEL_PRESSURE))
-            source = "standard-atmosphere density at sea level (no 2 m temperature)"
+            t2m = np.asarray(to_numpy(self.surface["t2m"].isel(time=time_index)), np.float64)
+        rho, source = density_from(p, t2m)
         ug, vg = geostrophic_wind_from_pressure(self.grid, p, rho)
         cross = ug * v - vg * u
         dot = ug * u + vg * v
@@ -260,8 +291,15 @@ class Case:
         angle[~(np.hypot(ug, vg) > 1e-3) | ~(np.hypot(u, v) > 1e-3)] = np.nan  # no direction
         with np.errstate(invalid="ignore", divide="ignore"):
             ratio = np.hypot(u, v) / np.hypot(ug, vg)
-        return {"u": u, "v": v, "ug": ug, "vg": vg, "cross_isobar_angle": angle,
-                "speed_ratio": ratio, "density_source": source}
+        return {
+            "u": u,
+            "v": v,
+            "ug": ug,
+            "vg": vg,
+            "cross_isobar_angle": angle,
+            "speed_ratio": ratio,
+            "density_source": source,
+        }
 
     # -- the surface ---------------------------------------------------------------------
     @property
@@ -277,8 +315,10 @@ class Case:
     def sea_level_pressure(self, time_index: int):
         """Mean sea level pressure at one time, Pa, float64 (ny, nx)."""
         if not self.has_sea_level:
-            raise CaseError("has no mean sea level pressure, so nothing can be said at sea "
-                            "level", self.paths[0] if self.paths else None)
+            raise CaseError(
+                "has no mean sea level pressure, so nothing can be said at sea level",
+                self.paths[0] if self.paths else None,
+            )
         return np.asarray(to_numpy(self.surface["msl"].isel(time=time_index)), np.float64)
 
     def surface_fields(self, time_index: int) -> dict:
@@ -290,21 +330,37 @@ class Case:
         the time.
         """
         if not (self.has_sea_level and self.has_surface_wind):
-            lacks = [w for w, ok in (("mean sea level pressure", self.has_sea_level),
-                                     ("the 10 m wind", self.has_surface_wind)) if not ok]
-            raise CaseError(f"has no {' and no '.join(lacks)}, so there is no surface budget "
-                            "at sea level", self.paths[0] if self.paths else None)
+            lacks = [
+                w
+                for w, ok in (
+                    ("mean sea level pressure", self.has_sea_level),
+                    ("the 10 m wind", self.has_surface_wind),
+                )
+                if not ok
+            ]
+            raise CaseError(
+                f"has no {' and no '.join(lacks)}, so there is no surface budget at sea level",
+                self.paths[0] if self.paths else None,
+            )
         t0, t1 = _window(time_index, self.times.size)
 
         def load(role, sl):
             return np.asarray(to_numpy(self.surface[role].isel(time=sl)), np.float64)
 
         sl = slice(t0, t1)
-        out = {"pressure": load("msl", sl), "u": load("u10", sl), "v": load("v10", sl),
-               "it": time_index - t0, "time": None, "t2m": None, "elevation": None}
+        out = {
+            "pressure": load("msl", sl),
+            "u": load("u10", sl),
+            "v": load("v10", sl),
+            "it": time_index - t0,
+            "time": None,
+            "t2m": None,
+            "elevation": None,
+        }
         if t1 - t0 > 1:
-            out["time"] = ((self.times[t0:t1] - self.times[0]) /
-                           np.timedelta64(1, "s")).astype(np.float64)
+            out["time"] = ((self.times[t0:t1] - self.times[0]) / np.timedelta64(1, "s")).astype(
+                np.float64
+            )
         if "t2m" in self.surface:
             out["t2m"] = load("t2m", time_index)
         if "surface_height" in self.surface:
@@ -316,13 +372,16 @@ class Case:
         a tendency or a track across them mixes runs, not one model's evolution."""
         if self.reference_times is None:
             return None
-        refs = {iso(r) for r in np.asarray(self.reference_times)[list(time_indices)]
-                if not np.isnat(r)}
+        refs = {
+            iso(r) for r in np.asarray(self.reference_times)[list(time_indices)] if not np.isnat(r)
+        }
         if len(refs) < 2:
             return None
         listed = ", ".join(sorted(refs)[:4]) + (" and others" if len(refs) > 4 else "")
-        return (f"these valid times come from {len(refs)} model runs ({listed}): differences "
-                "and tracks across them join different runs, not one model's evolution")
+        return (
+            f"these valid times come from {len(refs)} model runs ({listed}): differences "
+            "and tracks across them join different runs, not one model's evolution"
+        )
 
     def time_window(self, time_index: int) -> range:
         """The valid times a budget at this time reads (the time and its neighbours)."""
@@ -343,12 +402,15 @@ class Case:
         if "surface_pressure" in self.surface:
             from ..thermo import standard_atmosphere_temperature
 
-            ps = np.asarray(to_numpy(self.surface["surface_pressure"].isel(time=time_index)),
-                            np.float64)
+            ps = np.asarray(
+                to_numpy(self.surface["surface_pressure"].isel(time=time_index)), np.float64
+            )
+            t: Any
             if "temperature" in self.data:
-                t = np.asarray(to_numpy(self.data["temperature"].isel(time=time_index,
-                                                                       level=level_index)),
-                               np.float64)
+                t = np.asarray(
+                    to_numpy(self.data["temperature"].isel(time=time_index, level=level_index)),
+                    np.float64,
+                )
                 how = "hypsometric, from the surface pressure and the level's temperature"
             else:
                 t = float(standard_atmosphere_temperature(p))
@@ -361,14 +423,13 @@ class Case:
         """Points where the level lies below the ground (bool), or None without a surface field."""
         if self.below is None:
             return None
-        return np.asarray(to_numpy(self.below.isel(time=time_index, level=level_index)),
-                          dtype=bool)
+        return np.asarray(to_numpy(self.below.isel(time=time_index, level=level_index)), dtype=bool)
 
     def column(self, role: str, time_index: int):
         """All levels of one variable at one time, float64 (level, y, x)."""
         return np.asarray(to_numpy(self.data[role].isel(time=time_index)), dtype=np.float64)
 
-    def rows(self, j0: int, j1: int) -> "Case":
+    def rows(self, j0: int, j1: int) -> Case:
         """The case on rows j0..j1-1 of its grid (a band of latitude, or a strip of y).
 
         Every field is sliced lazily, so only the band is read, and the grid is
@@ -380,10 +441,12 @@ class Case:
         """
         sl = {"y": slice(int(j0), int(j1))}
         return dataclasses.replace(
-            self, grid=self.grid.rows(int(j0), int(j1)),
+            self,
+            grid=self.grid.rows(int(j0), int(j1)),
             data={r: d.isel(sl) for r, d in self.data.items()},
             surface={r: d.isel(sl) for r, d in self.surface.items()},
-            below=None if self.below is None else self.below.isel(sl))
+            below=None if self.below is None else self.below.isel(sl),
+        )
 
     def describe(self) -> dict:
         return {
@@ -417,7 +480,7 @@ def parse_time(text: str):
     except ValueError:
         return None
     if when.tzinfo is not None:
-        when = when.astimezone(dt.timezone.utc).replace(tzinfo=None)
+        when = when.astimezone(dt.UTC).replace(tzinfo=None)
     return np.datetime64(when, "ns")
 
 
@@ -428,8 +491,16 @@ def iso(t) -> str:
 
 # -- opening ------------------------------------------------------------------------
 
-def open_case(paths, *, member=0, min_lat: float = 10.0, name: str | None = None,
-              chunks=None, memory_budget=None) -> Case:
+
+def open_case(
+    paths,
+    *,
+    member=0,
+    min_lat: float = 10.0,
+    name: str | None = None,
+    chunks=None,
+    memory_budget=None,
+) -> Case:
     """Open one file, several files (valid times concatenated) or a Zarr store.
 
     Parameters
@@ -460,8 +531,9 @@ def open_case(paths, *, member=0, min_lat: float = 10.0, name: str | None = None
     except (TypeError, ValueError):
         raise CaseError(f"the tropical mask latitude {min_lat!r} is not a number") from None
     if not 0.0 <= min_lat < 90.0:
-        raise CaseError(f"the tropical mask latitude must lie from 0 to under 90 degrees, got "
-                        f"{min_lat:g}")
+        raise CaseError(
+            f"the tropical mask latitude must lie from 0 to under 90 degrees, got {min_lat:g}"
+        )
     from .limits import memory_budget as _budget
 
     budget = _budget(memory_budget)
@@ -515,24 +587,37 @@ def _assemble(pieces, *, min_lat, name) -> Case:
     for role in list(data) + list(surface):
         parts = [pc.fills.get(role) for pc in pieces]
         if all(p is not None for p in parts):
-            fills[role] = parts[0].map(lambda _: xr.concat([p.data for p in parts], dim="time")) \
-                if len(parts) > 1 else parts[0]
+            fills[role] = (
+                parts[0].map(lambda _, parts=parts: xr.concat([p.data for p in parts], dim="time"))
+                if len(parts) > 1
+                else parts[0]
+            )
     times = np.concatenate([pc.times for pc in pieces])
-    refs = np.concatenate([pc.reference_times if pc.reference_times is not None else
-                           np.full(pc.times.size, np.datetime64("NaT", "ns")) for pc in pieces])
+    refs = np.concatenate(
+        [
+            pc.reference_times
+            if pc.reference_times is not None
+            else np.full(pc.times.size, np.datetime64("NaT", "ns"))
+            for pc in pieces
+        ]
+    )
     order = np.argsort(times, kind="stable")
     times, refs = times[order], refs[order]
     if np.unique(times).size != times.size:
         i = np.nonzero(np.diff(times) == np.timedelta64(0))[0][0]
         dup = times[i]
-        runs = {iso(r) for r in refs[i:i + 2] if not np.isnat(r)}
+        runs = {iso(r) for r in refs[i : i + 2] if not np.isnat(r)}
         if len(runs) == 2:
-            raise CaseError(f"valid time {iso(dup)} comes from two model runs "
-                            f"({', '.join(sorted(runs))}) across the files: runs are not "
-                            "differenced or tracked one into the other; open one run at a "
-                            "time", first.path)
-        raise CaseError(f"valid time {iso(dup)} appears more than once across the files",
-                        first.path)
+            raise CaseError(
+                f"valid time {iso(dup)} comes from two model runs "
+                f"({', '.join(sorted(runs))}) across the files: runs are not "
+                "differenced or tracked one into the other; open one run at a "
+                "time",
+                first.path,
+            )
+        raise CaseError(
+            f"valid time {iso(dup)} appears more than once across the files", first.path
+        )
     if not np.all(order == np.arange(order.size)):
         data = {r: d.isel(time=order) for r, d in data.items()}
         surface = {r: d.isel(time=order) for r, d in surface.items()}
@@ -551,11 +636,13 @@ def _assemble(pieces, *, min_lat, name) -> Case:
         if len(absent) == first.levels_pa.size:
             raise CaseError(f"{role} shares no pressure level with the height", first.path, role)
         data[role] = da.reindex(level=first.levels_pa, method="nearest", tolerance=1.0)
-        fills[role] = fills[role].map(lambda d: d.reindex(level=first.levels_pa,
-                                                          method="nearest", tolerance=1.0))
+        fills[role] = fills[role].map(
+            lambda d: d.reindex(level=first.levels_pa, method="nearest", tolerance=1.0)
+        )
         if absent:
-            level_notes.append(f"{role} is not given at " + ", ".join(f"{p / 100:g}" for p in absent)
-                               + " hPa")
+            level_notes.append(
+                f"{role} is not given at " + ", ".join(f"{p / 100:g}" for p in absent) + " hPa"
+            )
     notes = list(dict.fromkeys(n for pc in pieces for n in pc.notes)) + notes + level_notes
     dropped = {}
     for pc in pieces:
@@ -577,14 +664,14 @@ def _assemble(pieces, *, min_lat, name) -> Case:
         surface.pop(role, None)
     if first.grid_relative:
         data = _rotate_winds(grid, data, "x_wind", "y_wind", "u", "v")
-        notes.append("grid-relative winds rotated to east and north with the meridian "
-                     "convergence")
+        notes.append("grid-relative winds rotated to east and north with the meridian convergence")
     elif first.crs is not None:
         notes.append("winds taken as earth-relative (eastward/northward) on the projected grid")
     if "x_wind10" in surface and "y_wind10" in surface:
         surface = _rotate_winds(grid, surface, "x_wind10", "y_wind10", "u10", "v10")
-        notes.append("grid-relative 10 m winds rotated to east and north with the meridian "
-                     "convergence")
+        notes.append(
+            "grid-relative 10 m winds rotated to east and north with the meridian convergence"
+        )
     for a, b in (("x_wind", "u"), ("y_wind", "v"), ("x_wind10", "u10"), ("y_wind10", "v10")):
         if a in sources:
             sources[b] = sources.pop(a)
@@ -601,7 +688,8 @@ def _assemble(pieces, *, min_lat, name) -> Case:
         data.pop(r, None)
     _check_winds(grid, data, first.path, sources, first.levels_pa)
     data, below, mask_notes, mask_dropped, ground_field, below_da = _mask_below_ground(
-        data, surface, first.levels_pa)
+        data, surface, first.levels_pa
+    )
     notes.extend(mask_notes)
     for role in mask_dropped:
         dropped[role] = mask_dropped[role]
@@ -611,16 +699,30 @@ def _assemble(pieces, *, min_lat, name) -> Case:
         notes.append(sentence)
     title = str(first.attrs.get("title") or os.path.basename(first.path))
     nm = name or os.path.splitext(os.path.basename(first.path.rstrip("/")))[0]
-    return Case(name=nm, title=title, paths=[pc.path for pc in pieces], grid=grid,
-                times=times, levels_pa=first.levels_pa, data=data, surface=surface, notes=notes,
-                below_ground=below, attrs=first.attrs, sources=sources, reference_times=refs,
-                dropped=dropped, ground_field=ground_field, below=below_da,
-                member_count=max(pc.member_count for pc in pieces))
+    return Case(
+        name=nm,
+        title=title,
+        paths=[pc.path for pc in pieces],
+        grid=grid,
+        times=times,
+        levels_pa=first.levels_pa,
+        data=data,
+        surface=surface,
+        notes=notes,
+        below_ground=below,
+        attrs=first.attrs,
+        sources=sources,
+        reference_times=refs,
+        dropped=dropped,
+        ground_field=ground_field,
+        below=below_da,
+        member_count=max(pc.member_count for pc in pieces),
+    )
 
 
 def _check_times(pc) -> list:
     """Every field of a file must have the height's valid times (a cut file is reported)."""
-    notes = []
+    notes: list[str] = []
     for store in (pc.data, pc.surface):
         for role, da in list(store.items()):
             t = np.asarray(da["time"].values).astype("datetime64[ns]")
@@ -630,10 +732,15 @@ def _check_times(pc) -> list:
                 continue
             lack = [iso(x) for x in pc.times if x not in set(t)]
             extra = [iso(x) for x in t if x not in set(pc.times)]
-            what = (f"lacks the valid time{'s' if len(lack) > 1 else ''} {', '.join(lack[:3])}"
-                    if lack else f"has valid times the height lacks ({', '.join(extra[:3])})")
-            msg = (f"{ROLES[role].words} {what} that the height has ({t.size} against "
-                   f"{pc.times.size}); the file may be cut at a message boundary")
+            what = (
+                f"lacks the valid time{'s' if len(lack) > 1 else ''} {', '.join(lack[:3])}"
+                if lack
+                else f"has valid times the height lacks ({', '.join(extra[:3])})"
+            )
+            msg = (
+                f"{ROLES[role].words} {what} that the height has ({t.size} against "
+                f"{pc.times.size}); the file may be cut at a message boundary"
+            )
             if role in REQUIRED_ROLES:
                 raise CaseError(msg, pc.path, pc.sources.get(role, {}).get("variable", role))
             store.pop(role)
@@ -647,8 +754,10 @@ def _check_holes(pc) -> list:
     notes = []
     for role, n in pc.holes.items():
         var = pc.sources.get(role, {}).get("variable", role)
-        msg = (f"{n} of its GRIB fields are missing (some valid times lack some levels); the "
-               "file may be cut at a message boundary")
+        msg = (
+            f"{n} of its GRIB fields are missing (some valid times lack some levels); the "
+            "file may be cut at a message boundary"
+        )
         if role in REQUIRED_ROLES:
             raise CaseError(msg, pc.path, var)
         notes.append(f"{ROLES[role].words}: {msg}; those fields are treated as missing")
@@ -678,8 +787,9 @@ def _check_fields(fills, path, sources, levels) -> tuple:
             first = first.isel(level=ks)
             slab = to_numpy(first) if first.size <= 2e7 else None  # one read if small
             for j, k in enumerate(ks):
-                vals = np.asarray(slab[j] if slab is not None else to_numpy(first.isel(level=j)),
-                                  np.float64)
+                vals = np.asarray(
+                    slab[j] if slab is not None else to_numpy(first.isel(level=j)), np.float64
+                )
                 seen = seen or bool(np.isfinite(vals).any())
                 hit = fill_mask(vals, kind, scale, offset)
                 nfill += int(np.count_nonzero(hit))
@@ -688,7 +798,7 @@ def _check_fields(fills, path, sources, levels) -> tuple:
                 problem = range_problem(kind, si, ROLES[kind].target_units)
                 if problem is None and kind in ("height", "geopotential"):
                     z = si / C.G0 if kind == "geopotential" else si
-                    problem = height_problem(z[None], levels[k:k + 1])
+                    problem = height_problem(z[None], levels[k : k + 1])
                 elif problem is not None:
                     problem = f"at {levels[k] / 100:g} hPa, {problem}"
                 if problem:
@@ -698,15 +808,18 @@ def _check_fields(fills, path, sources, levels) -> tuple:
             seen = bool(np.isfinite(vals).any())
             hit = fill_mask(vals, kind, scale, offset)
             nfill, which = int(np.count_nonzero(hit)), set(np.unique(vals[hit]).tolist())
-            problem = range_problem(kind, to_si(vals, kind, scale, offset),
-                                    ROLES[kind].target_units)
+            problem = range_problem(
+                kind, to_si(vals, kind, scale, offset), ROLES[kind].target_units
+            )
         if role in REQUIRED_ROLES and not seen and not _any_valid(raw):
             raise CaseError("holds no valid values at any time (all missing)", path, var)
         if nfill:
             w = sorted(which)
-            notes.append(f"{var!r}: {nfill} values at the first valid time equal the producer "
-                         f"fill value{'s' if len(w) > 1 else ''} "
-                         f"{', '.join(f'{x:g}' for x in w[:4])} and are treated as missing")
+            notes.append(
+                f"{var!r}: {nfill} values at the first valid time equal the producer "
+                f"fill value{'s' if len(w) > 1 else ''} "
+                f"{', '.join(f'{x:g}' for x in w[:4])} and are treated as missing"
+            )
         if problem is None:
             continue
         if role in REQUIRED_ROLES:
@@ -779,12 +892,18 @@ def _free_atmosphere_speed_ratio(grid, data, levels):
 
 def _same_grid(a, b):
     def close(p, q):
-        return p is not None and q is not None and np.shape(p) == np.shape(q) and \
-            np.allclose(p, q, atol=1e-6)
+        return (
+            p is not None
+            and q is not None
+            and np.shape(p) == np.shape(q)
+            and np.allclose(p, q, atol=1e-6)
+        )
 
     if not (close(a.lat, b.lat) and close(a.lon, b.lon)):
-        raise CaseError(f"has another grid than {os.path.basename(a.path)} (latitudes or "
-                        "longitudes differ)", b.path)
+        raise CaseError(
+            f"has another grid than {os.path.basename(a.path)} (latitudes or longitudes differ)",
+            b.path,
+        )
     if a.levels_pa.shape != b.levels_pa.shape or not np.allclose(a.levels_pa, b.levels_pa):
         raise CaseError(f"has other pressure levels than {os.path.basename(a.path)}", b.path)
 
@@ -861,9 +980,11 @@ def _mask_below_ground(data, surface, levels):
         if high:
             share = float(to_numpy(first.isel(level=high).mean()))
             if share > IMPLAUSIBLE_MASK_SHARE:
-                dropped[role] = (f"{'surface pressure' if role == 'surface_pressure' else 'orography'}"
-                                 f" left out: it would put {100 * share:.0f} % of the levels at "
-                                 "or above 400 hPa below the ground, which no real surface does")
+                dropped[role] = (
+                    f"{'surface pressure' if role == 'surface_pressure' else 'orography'}"
+                    f" left out: it would put {100 * share:.0f} % of the levels at "
+                    "or above 400 hPa below the ground, which no real surface does"
+                )
                 continue
         break
     else:
@@ -875,12 +996,21 @@ def _mask_below_ground(data, surface, levels):
     levels_hpa = data["height"]["level"].values
     data = {r: d.where(~below) for r, d in data.items()}
     per_level = to_numpy(below.mean(("time", "y", "x")))
-    parts = [f"{p / 100:g} hPa {100 * s:.0f} %" if s >= 0.005 else f"{p / 100:g} hPa <1 %"
-             for p, s in zip(levels_hpa, per_level) if s > 0]
+    parts = [
+        f"{p / 100:g} hPa {100 * s:.0f} %" if s >= 0.005 else f"{p / 100:g} hPa <1 %"
+        for p, s in zip(levels_hpa, per_level)
+        if s > 0
+    ]
     src = "surface pressure" if role == "surface_pressure" else "orography"
     notes = [f"points below the ground ({src}) are masked: " + ", ".join(parts)]
-    return (data, {float(p / 100): int(n) for p, n in zip(levels_hpa, counts) if n}, notes,
-            dropped, role, below)
+    return (
+        data,
+        {float(p / 100): int(n) for p, n in zip(levels_hpa, counts) if n},
+        notes,
+        dropped,
+        role,
+        below,
+    )
 
 
 def _below(data, surface, role):

@@ -26,35 +26,68 @@ import numpy as np
 
 from ..thermo import standard_atmosphere_height
 
-__all__ = ["FILL_VALUES", "BOUNDS", "fill_mask", "to_si", "range_problem", "height_problem",
-           "wind_speed_problem", "HEIGHT_TOLERANCE"]
+__all__ = [
+    "FILL_VALUES",
+    "BOUNDS",
+    "fill_mask",
+    "to_si",
+    "range_problem",
+    "height_problem",
+    "wind_speed_problem",
+    "HEIGHT_TOLERANCE",
+]
 
 #: Fill values producers write without declaring them (common practice, no source):
 #: the WMO-ish 9999 family, the signed 16-bit extremes, GRIB and NCL's 9.999e20, the
 #: netCDF default float fill and the float32 extremes.
-FILL_VALUES = (-9999.0, -999.0, -99999.0, -999.9, -9999.9, 9999.0, 99999.0, -32767.0,
-               -32768.0, 32767.0, 65535.0, 9.999e20, 9.99e20, 1e20, -1e20, 9.99e14, 1e15,
-               -9.99e14, 1e30, -1e30, 9.969209968386869e36, 3.4028234663852886e38,
-               -3.4028234663852886e38)
+FILL_VALUES = (
+    -9999.0,
+    -999.0,
+    -99999.0,
+    -999.9,
+    -9999.9,
+    9999.0,
+    99999.0,
+    -32767.0,
+    -32768.0,
+    32767.0,
+    65535.0,
+    9.999e20,
+    9.99e20,
+    1e20,
+    -1e20,
+    9.99e14,
+    1e15,
+    -9.99e14,
+    1e30,
+    -1e30,
+    9.969209968386869e36,
+    3.4028234663852886e38,
+    -3.4028234663852886e38,
+)
 
 #: Physical range of each role in its SI unit (common practice, no source; record values
 #: from memory). Height is also checked level by level against the standard atmosphere.
 BOUNDS = {
-    "height": (-2000.0, 80000.0),            # m, any pressure level
+    "height": (-2000.0, 80000.0),  # m, any pressure level
     "geopotential": (-2000.0 * 9.80665, 80000.0 * 9.80665),
-    "u": (-150.0, 150.0), "v": (-150.0, 150.0),  # m s-1 (jets reach about 110)
-    "x_wind": (-150.0, 150.0), "y_wind": (-150.0, 150.0),
-    "omega": (-100.0, 100.0),                # Pa s-1 (convective cores a few tens)
-    "w": (-100.0, 100.0),                    # m s-1
-    "temperature": (150.0, 340.0),           # K
-    "msl": (85000.0, 109000.0),              # Pa: 850 to 1090 hPa
+    "u": (-150.0, 150.0),
+    "v": (-150.0, 150.0),  # m s-1 (jets reach about 110)
+    "x_wind": (-150.0, 150.0),
+    "y_wind": (-150.0, 150.0),
+    "omega": (-100.0, 100.0),  # Pa s-1 (convective cores a few tens)
+    "w": (-100.0, 100.0),  # m s-1
+    "temperature": (150.0, 340.0),  # K
+    "msl": (85000.0, 109000.0),  # Pa: 850 to 1090 hPa
     "surface_pressure": (30000.0, 110000.0),  # Pa: 300 to 1100 hPa
     "orography": (-500.0 * 9.80665, 9000.0 * 9.80665),  # m2 s-2
-    "surface_height": (-500.0, 9000.0),      # m
-    "u10": (-100.0, 100.0), "v10": (-100.0, 100.0),
-    "x_wind10": (-100.0, 100.0), "y_wind10": (-100.0, 100.0),
-    "t2m": (180.0, 340.0),                   # K
-    "land_mask": (0.0, 1.0),                 # fraction
+    "surface_height": (-500.0, 9000.0),  # m
+    "u10": (-100.0, 100.0),
+    "v10": (-100.0, 100.0),
+    "x_wind10": (-100.0, 100.0),
+    "y_wind10": (-100.0, 100.0),
+    "t2m": (180.0, 340.0),  # K
+    "land_mask": (0.0, 1.0),  # fraction
 }
 
 #: Height near the standard atmosphere: (metres, fraction of the standard height) for
@@ -109,9 +142,11 @@ def range_problem(role: str, values, units: str) -> str | None:
     n = int(np.count_nonzero(bad))
     if not n:
         return None
-    return (f"{n} of {int(fin.sum())} values lie outside the physical range {lo:g} to {hi:g} "
-            f"{units} (for example {_example(a, bad):.6g}); wrong units or an undeclared fill "
-            "value?")
+    return (
+        f"{n} of {int(fin.sum())} values lie outside the physical range {lo:g} to {hi:g} "
+        f"{units} (for example {_example(a, bad):.6g}); wrong units or an undeclared fill "
+        "value?"
+    )
 
 
 def height_problem(height, levels_pa) -> str | None:
@@ -136,9 +171,11 @@ def height_problem(height, levels_pa) -> str | None:
         if abs(med - zstd[k]) <= ma + mf * zstd[k] and worst <= pa + pf * zstd[k]:
             continue
         hint = _height_hint(med, zstd[k], p[k])
-        return (f"at {p[k] / 100:g} hPa the heights have a median of {med:.6g} m (largest "
-                f"departure {worst:.6g} m), but the 1976 Standard Atmosphere puts {p[k] / 100:g} "
-                f"hPa at {zstd[k]:.0f} m{hint}")
+        return (
+            f"at {p[k] / 100:g} hPa the heights have a median of {med:.6g} m (largest "
+            f"departure {worst:.6g} m), but the 1976 Standard Atmosphere puts {p[k] / 100:g} "
+            f"hPa at {zstd[k]:.0f} m{hint}"
+        )
     return None
 
 
@@ -176,5 +213,7 @@ def wind_speed_problem(ratio: float | None) -> str | None:
         hint = "; km h-1 labelled m s-1?"
     elif 0.4 < ratio < 0.6:
         hint = "; m s-1 labelled knots?"
-    return (f"the wind speed is {ratio:.2f} times the geostrophic wind (median over the free "
-            f"atmosphere away from the equator), where 0.5 to 1.6 is plausible{hint}")
+    return (
+        f"the wind speed is {ratio:.2f} times the geostrophic wind (median over the free "
+        f"atmosphere away from the equator), where 0.5 to 1.6 is plausible{hint}"
+    )

@@ -17,10 +17,21 @@ __all__ = ["crs_from_cf", "crs_from_grib", "GRIB_READ_KEYS", "projected_axes"]
 
 #: Keys to ask cfgrib for, beyond its defaults, so the projection can be built.
 GRIB_READ_KEYS = [
-    "shapeOfTheEarth", "radius", "LaDInDegrees", "LoVInDegrees", "Latin1InDegrees",
-    "Latin2InDegrees", "orientationOfTheGridInDegrees", "projectionCentreFlag",
-    "DxInMetres", "DyInMetres", "DiInMetres", "DjInMetres", "uvRelativeToGrid",
-    "resolutionAndComponentFlags", "latitudeOfFirstGridPointInDegrees",
+    "shapeOfTheEarth",
+    "radius",
+    "LaDInDegrees",
+    "LoVInDegrees",
+    "Latin1InDegrees",
+    "Latin2InDegrees",
+    "orientationOfTheGridInDegrees",
+    "projectionCentreFlag",
+    "DxInMetres",
+    "DyInMetres",
+    "DiInMetres",
+    "DjInMetres",
+    "uvRelativeToGrid",
+    "resolutionAndComponentFlags",
+    "latitudeOfFirstGridPointInDegrees",
     "longitudeOfFirstGridPointInDegrees",
 ]
 
@@ -39,8 +50,9 @@ def crs_from_cf(attrs: dict, path=None, variable=None) -> pyproj.CRS:
     try:
         return pyproj.CRS.from_cf(dict(attrs))
     except Exception as exc:  # noqa: BLE001
-        raise CaseError(f"grid mapping cannot be read as a projection ({exc})", path,
-                        variable) from None
+        raise CaseError(
+            f"grid mapping cannot be read as a projection ({exc})", path, variable
+        ) from None
 
 
 def _earth(attrs, path, variable):
@@ -64,19 +76,26 @@ def crs_from_grib(attrs: dict, path=None, variable=None) -> pyproj.CRS | None:
         if kind in (None, "regular_ll", "regular_gg"):
             return None
         if kind == "lambert":
-            text = (f"+proj=lcc +lat_1={g('Latin1InDegrees')} +lat_2={g('Latin2InDegrees')} "
-                    f"+lat_0={g('LaDInDegrees')} +lon_0={g('LoVInDegrees')} {earth} +units=m +no_defs")
+            text = (
+                f"+proj=lcc +lat_1={g('Latin1InDegrees')} +lat_2={g('Latin2InDegrees')} "
+                f"+lat_0={g('LaDInDegrees')} +lon_0={g('LoVInDegrees')} {earth} +units=m +no_defs"
+            )
         elif kind == "polar_stereographic":
             south = int(attrs.get("GRIB_projectionCentreFlag", 0)) & 128
             lat0 = -90 if south else 90
-            text = (f"+proj=stere +lat_0={lat0} +lat_ts={g('LaDInDegrees')} "
-                    f"+lon_0={g('orientationOfTheGridInDegrees')} {earth} +units=m +no_defs")
+            text = (
+                f"+proj=stere +lat_0={lat0} +lat_ts={g('LaDInDegrees')} "
+                f"+lon_0={g('orientationOfTheGridInDegrees')} {earth} +units=m +no_defs"
+            )
         elif kind == "mercator":
             text = f"+proj=merc +lat_ts={g('LaDInDegrees')} +lon_0=0 {earth} +units=m +no_defs"
         else:
-            raise CaseError(f"GRIB grid type {kind!r} is not supported (lat-lon, Gaussian, "
-                            "Lambert conformal, polar stereographic and Mercator are)", path,
-                            variable)
+            raise CaseError(
+                f"GRIB grid type {kind!r} is not supported (lat-lon, Gaussian, "
+                "Lambert conformal, polar stereographic and Mercator are)",
+                path,
+                variable,
+            )
     except KeyError as exc:
         raise CaseError(f"GRIB grid {kind!r} lacks the key {exc.args[0]}", path, variable) from None
     return pyproj.CRS.from_proj4(text)
@@ -93,8 +112,13 @@ def projected_axes(crs: pyproj.CRS, lat2d, lon2d, path=None, variable=None):
     x, y = xx[0, :], yy[:, 0]
     dx = np.abs(np.diff(x)).min() if x.size > 1 else 1.0
     dy = np.abs(np.diff(y)).min() if y.size > 1 else 1.0
-    if (np.nanmax(np.abs(xx - x[None, :])) > 1e-3 * dx or
-            np.nanmax(np.abs(yy - y[:, None])) > 1e-3 * dy):
-        raise CaseError("latitude and longitude do not form a regular grid in the file's "
-                        "projection", path, variable)
+    if (
+        np.nanmax(np.abs(xx - x[None, :])) > 1e-3 * dx
+        or np.nanmax(np.abs(yy - y[:, None])) > 1e-3 * dy
+    ):
+        raise CaseError(
+            "latitude and longitude do not form a regular grid in the file's projection",
+            path,
+            variable,
+        )
     return x, y

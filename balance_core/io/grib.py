@@ -25,6 +25,7 @@ import collections
 import dataclasses
 import os
 import threading
+from typing import Any
 
 import numpy as np
 import pyproj  # noqa: F401  (before eccodes: the other order crashes at exit)
@@ -35,11 +36,26 @@ __all__ = ["open_grib", "Message", "scan"]
 
 #: Cheap keys read from every message (coded numbers, no parameter-table look-up).
 _MESSAGE_KEYS = {
-    "edition": int, "centre": str, "discipline": int, "parameterCategory": int,
-    "parameterNumber": int, "table2Version": int, "indicatorOfParameter": int,
-    "typeOfLevel": str, "level": float, "stepType": str, "productDefinitionTemplateNumber": int,
-    "dataDate": int, "dataTime": int, "validityDate": int, "validityTime": int, "number": int,
-    "dataType": str, "md5GridSection": str, "numberOfValues": int, "derivedForecast": int,
+    "edition": int,
+    "centre": str,
+    "discipline": int,
+    "parameterCategory": int,
+    "parameterNumber": int,
+    "table2Version": int,
+    "indicatorOfParameter": int,
+    "typeOfLevel": str,
+    "level": float,
+    "stepType": str,
+    "productDefinitionTemplateNumber": int,
+    "dataDate": int,
+    "dataTime": int,
+    "validityDate": int,
+    "validityTime": int,
+    "number": int,
+    "dataType": str,
+    "md5GridSection": str,
+    "numberOfValues": int,
+    "derivedForecast": int,
 }
 #: Keys that need eccodes' parameter tables (about a millisecond each): read once per
 #: kind of field (see _concept_key) and shared by every message of that kind.
@@ -52,19 +68,44 @@ _RARE_KEYS = ("number", "derivedForecast")
 #: GRIB2 product templates of derived (ensemble mean or spread) forecasts (code table 4.0).
 _DERIVED_TEMPLATES = (2, 3, 4, 12, 13, 14)
 #: Keys that only one GRIB edition defines: {edition: keys}.
-_EDITION_KEYS = {1: ("table2Version", "indicatorOfParameter"),
-                 2: ("discipline", "parameterCategory", "parameterNumber",
-                     "productDefinitionTemplateNumber", "derivedForecast")}
+_EDITION_KEYS = {
+    1: ("table2Version", "indicatorOfParameter"),
+    2: (
+        "discipline",
+        "parameterCategory",
+        "parameterNumber",
+        "productDefinitionTemplateNumber",
+        "derivedForecast",
+    ),
+}
 #: Grid keys: read once per grid (md5GridSection).
 _GRID_READ = {
-    "gridType": str, "Ni": int, "Nj": int, "Nx": int, "Ny": int, "jPointsAreConsecutive": int,
-    "alternativeRowScanning": int, "iScansNegatively": int, "jScansPositively": int,
-    "resolutionAndComponentFlags": int, "uvRelativeToGrid": int, "shapeOfTheEarth": int,
-    "projectionCentreFlag": int, "radius": float, "LaDInDegrees": float, "LoVInDegrees": float,
-    "Latin1InDegrees": float, "Latin2InDegrees": float, "orientationOfTheGridInDegrees": float,
-    "DxInMetres": float, "DyInMetres": float, "latitudeOfFirstGridPointInDegrees": float,
-    "longitudeOfFirstGridPointInDegrees": float, "latitudeOfLastGridPointInDegrees": float,
-    "longitudeOfLastGridPointInDegrees": float, "iDirectionIncrementInDegrees": float,
+    "gridType": str,
+    "Ni": int,
+    "Nj": int,
+    "Nx": int,
+    "Ny": int,
+    "jPointsAreConsecutive": int,
+    "alternativeRowScanning": int,
+    "iScansNegatively": int,
+    "jScansPositively": int,
+    "resolutionAndComponentFlags": int,
+    "uvRelativeToGrid": int,
+    "shapeOfTheEarth": int,
+    "projectionCentreFlag": int,
+    "radius": float,
+    "LaDInDegrees": float,
+    "LoVInDegrees": float,
+    "Latin1InDegrees": float,
+    "Latin2InDegrees": float,
+    "orientationOfTheGridInDegrees": float,
+    "DxInMetres": float,
+    "DyInMetres": float,
+    "latitudeOfFirstGridPointInDegrees": float,
+    "longitudeOfFirstGridPointInDegrees": float,
+    "latitudeOfLastGridPointInDegrees": float,
+    "longitudeOfLastGridPointInDegrees": float,
+    "iDirectionIncrementInDegrees": float,
     "jDirectionIncrementInDegrees": float,
 }
 #: Keys read once per message only where defined: the component flags can differ between
@@ -90,8 +131,8 @@ _LOCK = threading.Lock()  # one decoder at a time: eccodes handles are not share
 class Message:
     """Where one field lies in the file and what its keys say."""
 
-    offset: int     # byte offset of its GRIB message
-    field: int      # index of the field inside a multi-field message
+    offset: int  # byte offset of its GRIB message
+    field: int  # index of the field inside a multi-field message
     keys: dict
 
 
@@ -99,8 +140,11 @@ def _eccodes(path):
     try:
         import eccodes
     except Exception:  # noqa: BLE001 - ImportError, or a missing eccodes library
-        raise CaseError("GRIB needs the eccodes library: install the 'grib' extra "
-                        "(pip install 'balance-desk[grib]')", path) from None
+        raise CaseError(
+            "GRIB needs the eccodes library: install the 'grib' extra "
+            "(pip install 'balance-desk[grib]')",
+            path,
+        ) from None
     return eccodes
 
 
@@ -135,7 +179,9 @@ def scan(path) -> list:
     Raises CaseError when a message cannot be decoded (a damaged or truncated file).
     """
     ec = _eccodes(path)
-    out, concepts, grids = [], {}, {}
+    out: list[Any] = []
+    concepts: dict[Any, Any] = {}
+    grids: dict[Any, Any] = {}
     wanted = _wanted_short_names()
     with _LOCK, open(path, "rb") as fh:
         ec.codes_grib_multi_support_on()
@@ -145,15 +191,21 @@ def scan(path) -> list:
                 try:
                     h = ec.codes_grib_new_from_file(fh)
                 except Exception as exc:  # noqa: BLE001
-                    raise CaseError(f"cannot be read as GRIB: damaged or truncated after "
-                                    f"{len(out)} fields ({_first_line(exc)})", path) from None
+                    raise CaseError(
+                        f"cannot be read as GRIB: damaged or truncated after "
+                        f"{len(out)} fields ({_first_line(exc)})",
+                        path,
+                    ) from None
                 if h is None:
                     break
                 try:
                     edition = _get(ec, h, "edition", int)
                     skip = _EDITION_KEYS.get(3 - (edition or 2), ())
-                    keys = {k: _get(ec, h, k, t) for k, t in _MESSAGE_KEYS.items()
-                            if k not in skip and k not in _RARE_KEYS}
+                    keys = {
+                        k: _get(ec, h, k, t)
+                        for k, t in _MESSAGE_KEYS.items()
+                        if k not in skip and k not in _RARE_KEYS
+                    }
                     keys["edition"] = edition
                     pdt = keys.get("productDefinitionTemplateNumber")
                     if edition == 1 or pdt in _ENSEMBLE_TEMPLATES:
@@ -187,11 +239,21 @@ def scan(path) -> list:
 
 def _concept_key(k) -> tuple:
     """What decides a field's parameter-table names: its coded parameter and level type."""
-    return tuple(k.get(key) for key in (
-        "edition", "centre", "discipline", "parameterCategory", "parameterNumber",
-        "table2Version", "indicatorOfParameter", "typeOfLevel", "stepType",
-        "productDefinitionTemplateNumber")) + (
-        None if k.get("typeOfLevel") in _ISOBARIC else k.get("level"),)
+    return tuple(
+        k.get(key)
+        for key in (
+            "edition",
+            "centre",
+            "discipline",
+            "parameterCategory",
+            "parameterNumber",
+            "table2Version",
+            "indicatorOfParameter",
+            "typeOfLevel",
+            "stepType",
+            "productDefinitionTemplateNumber",
+        )
+    ) + (None if k.get("typeOfLevel") in _ISOBARIC else k.get("level"),)
 
 
 def _first_line(exc) -> str:
@@ -217,9 +279,11 @@ def _level_of(k):
 
 
 def _member_of(k):
-    if k.get("productDefinitionTemplateNumber") in _ENSEMBLE_TEMPLATES or \
-            k.get("dataType") in ("pf", "cf") or (k.get("edition") == 1 and
-                                                  k.get("number") is not None):
+    if (
+        k.get("productDefinitionTemplateNumber") in _ENSEMBLE_TEMPLATES
+        or k.get("dataType") in ("pf", "cf")
+        or (k.get("edition") == 1 and k.get("number") is not None)
+    ):
         return k.get("number")
     return None
 
@@ -239,9 +303,9 @@ class _Fields:
 
     def __init__(self, path, messages, index, grid_shape, transposed):
         self.path = path
-        self.messages = messages          # list of Message
-        self.index = index                # int array (member, time, level) -> message or -1
-        self.grid_shape = grid_shape      # (ny, nx) after un-transposing
+        self.messages = messages  # list of Message
+        self.index = index  # int array (member, time, level) -> message or -1
+        self.grid_shape = grid_shape  # (ny, nx) after un-transposing
         self.transposed = transposed
         self.shape = index.shape + grid_shape
         self.dtype = np.dtype(np.float32)
@@ -249,12 +313,15 @@ class _Fields:
     def decode(self, key):
         """Values for a tuple of basic indexers (ints and slices) over all dimensions."""
         lead = key[: self.index.ndim]
-        rest = key[self.index.ndim:]
+        rest = key[self.index.ndim :]
         sel = self.index[lead]
         out = np.full(sel.shape + self.grid_shape, np.nan, dtype=np.float32)
         flat = out.reshape((-1,) + self.grid_shape)
-        order = sorted((self.messages[m].offset, self.messages[m].field, pos)
-                       for pos, m in enumerate(np.asarray(sel).ravel()) if m >= 0)
+        order = sorted(
+            (self.messages[m].offset, self.messages[m].field, pos)
+            for pos, m in enumerate(np.asarray(sel).ravel())
+            if m >= 0
+        )
         if order:
             ec = _eccodes(self.path)
             with _LOCK, open(self.path, "rb") as fh:
@@ -276,24 +343,27 @@ class _Fields:
                     ec.codes_release(h)
                 h = ec.codes_grib_new_from_file(fh)
             if h is None:
-                raise CaseError("a GRIB field vanished while reading (was the file changed?)",
-                                self.path)
+                raise CaseError(
+                    "a GRIB field vanished while reading (was the file changed?)", self.path
+                )
             missing = 9.999e20
             ec.codes_set_double(h, "missingValue", missing)
             vals = np.asarray(ec.codes_get_values(h), dtype=np.float64)
         except CaseError:
             raise
         except Exception as exc:  # noqa: BLE001
-            raise CaseError(f"a GRIB field cannot be decoded ({_first_line(exc)})",
-                            self.path) from None
+            raise CaseError(
+                f"a GRIB field cannot be decoded ({_first_line(exc)})", self.path
+            ) from None
         finally:
             if h is not None:
                 ec.codes_release(h)
         vals[vals == missing] = np.nan
         ny, nx = self.grid_shape
         if vals.size != ny * nx:
-            raise CaseError(f"a GRIB field has {vals.size} values for a {ny} x {nx} grid",
-                            self.path)
+            raise CaseError(
+                f"a GRIB field has {vals.size} values for a {ny} x {nx} grid", self.path
+            )
         if self.transposed:
             return vals.reshape(nx, ny).T
         return vals.reshape(ny, nx)
@@ -310,9 +380,9 @@ def _backend_array(fields: _Fields):
             self.dtype = f.dtype
 
         def __getitem__(self, key):
-            return indexing.explicit_indexing_adapter(key, self.shape,
-                                                      indexing.IndexingSupport.BASIC,
-                                                      self.f.decode)
+            return indexing.explicit_indexing_adapter(
+                key, self.shape, indexing.IndexingSupport.BASIC, self.f.decode
+            )
 
     return indexing.LazilyIndexedArray(GribArray(fields))
 
@@ -356,14 +426,18 @@ def open_grib(path, *, budget=None) -> list:
     import xarray as xr
 
     messages = scan(path)
-    unsupported = collections.Counter(m.keys.get("gridType") for m in messages
-                                      if m.keys.get("gridType") not in SUPPORTED_GRIDS)
+    unsupported = collections.Counter(
+        m.keys.get("gridType") for m in messages if m.keys.get("gridType") not in SUPPORTED_GRIDS
+    )
     usable = [m for m in messages if m.keys.get("gridType") in SUPPORTED_GRIDS]
     if not usable:
         kinds = ", ".join(sorted(str(k) for k in unsupported))
-        raise CaseError(f"holds only GRIB grids of type {kinds}, which balance-desk cannot use "
-                        "(regular lat-lon, Gaussian, Lambert conformal, polar stereographic and "
-                        "Mercator are supported; regrid first)", path)
+        raise CaseError(
+            f"holds only GRIB grids of type {kinds}, which balance-desk cannot use "
+            "(regular lat-lon, Gaussian, Lambert conformal, polar stereographic and "
+            "Mercator are supported; regrid first)",
+            path,
+        )
     if budget is not None:
         from .limits import check_level_slice
 
@@ -374,20 +448,29 @@ def open_grib(path, *, budget=None) -> list:
                 check_level_slice(path, ny, nx, budget, k.get("shortName"))
     bad_scan = [m for m in usable if m.keys.get("alternativeRowScanning")]
     if bad_scan:
-        raise CaseError("uses alternative row scanning (boustrophedon order), which "
-                        "balance-desk does not read", path, bad_scan[0].keys.get("shortName"))
+        raise CaseError(
+            "uses alternative row scanning (boustrophedon order), which balance-desk does not read",
+            path,
+            bad_scan[0].keys.get("shortName"),
+        )
     # group messages into variables
-    groups = collections.OrderedDict()
+    groups: collections.OrderedDict[Any, Any] = collections.OrderedDict()
     for i, m in enumerate(usable):
         k = m.keys
         lkind, lval = _level_of(k)
-        var_key = (k.get("shortName"), k.get("paramId"), lkind,
-                   None if lkind == "isobaric" else lval, k.get("stepType"), k.get("md5GridSection"),
-                   _concept_key(k))
+        var_key = (
+            k.get("shortName"),
+            k.get("paramId"),
+            lkind,
+            None if lkind == "isobaric" else lval,
+            k.get("stepType"),
+            k.get("md5GridSection"),
+            _concept_key(k),
+        )
         groups.setdefault(var_key, []).append(i)
-    grids = {}
+    grids: dict[Any, Any] = {}
     wanted = _wanted_short_names()
-    datasets = collections.OrderedDict()
+    datasets: collections.OrderedDict[Any, Any] = collections.OrderedDict()
     stamp = f"{os.path.abspath(path)}-{os.path.getmtime(path)}"
     lazy = sum(int(m.keys.get("numberOfValues") or 0) for m in usable) * 8 > EAGER_LIMIT_BYTES
     for vi, (var_key, ids) in enumerate(groups.items()):
@@ -402,18 +485,24 @@ def open_grib(path, *, budget=None) -> list:
             grids[gsig] = (len(grids),) + _coordinates(path, first, shape, transposed)
         gid, lat2d, lon2d = grids[gsig]
         members = sorted({_member_of(usable[i].keys) for i in ids}, key=lambda v: (v is None, v))
-        valid = sorted({_datetime(usable[i].keys.get("validityDate"),
-                                  usable[i].keys.get("validityTime")) for i in ids})
-        levels = sorted({_level_of(usable[i].keys)[1] for i in ids}, reverse=True) \
-            if lkind == "isobaric" else [lval]
+        valid = sorted(
+            {
+                _datetime(usable[i].keys.get("validityDate"), usable[i].keys.get("validityTime"))
+                for i in ids
+            }
+        )
+        levels = (
+            sorted({_level_of(usable[i].keys)[1] for i in ids}, reverse=True)
+            if lkind == "isobaric"
+            else [lval]
+        )
         index = np.full((len(members), len(valid), len(levels)), -1, dtype=np.int64)
-        refs = {}
+        refs: dict[Any, Any] = {}
         clash = None
         for i in ids:
             mk = usable[i].keys
             vt = _datetime(mk.get("validityDate"), mk.get("validityTime"))
-            cell = (members.index(_member_of(mk)), valid.index(vt),
-                    levels.index(_level_of(mk)[1]))
+            cell = (members.index(_member_of(mk)), valid.index(vt), levels.index(_level_of(mk)[1]))
             if index[cell] >= 0 and clash is None:
                 clash = vt
             index[cell] = i
@@ -421,11 +510,16 @@ def open_grib(path, *, budget=None) -> list:
         if clash is not None:
             if (name or "").lower() not in wanted:
                 continue  # a field no role uses: leave it out rather than refuse the file
-            raise CaseError(f"holds two fields of {name!r} ({lkind}) for the same member, valid "
-                            f"time {np.datetime_as_string(clash, unit='m')} and level (analysis "
-                            "and forecast mixed?); split the file by reference time", path, name)
+            raise CaseError(
+                f"holds two fields of {name!r} ({lkind}) for the same member, valid "
+                f"time {np.datetime_as_string(clash, unit='m')} and level (analysis "
+                "and forecast mixed?); split the file by reference time",
+                path,
+                name,
+            )
         holes = int(np.count_nonzero(index < 0))
-        dims, coords = [], {}
+        dims: list[str] = []
+        coords: dict[str, Any] = {}
         if len(members) > 1:
             dims.append("number")
             coords["number"] = ("number", np.array([-1 if m is None else m for m in members]))
@@ -434,44 +528,87 @@ def open_grib(path, *, budget=None) -> list:
             lead_index = index[0]
         dims.append("valid_time")
         coords["valid_time"] = ("valid_time", np.array(valid, dtype="datetime64[ns]"))
-        coords["reference_time"] = ("valid_time", np.array(
-            [min(refs[v]) for v in valid], dtype="datetime64[ns]"))
+        coords["reference_time"] = (
+            "valid_time",
+            np.array([min(refs[v]) for v in valid], dtype="datetime64[ns]"),
+        )
         if lkind == "isobaric":
             dims.append("isobaric")
-            coords["isobaric"] = ("isobaric", np.array(levels, dtype=np.float64),
-                                  {"units": "Pa", "standard_name": "air_pressure",
-                                   "long_name": "pressure (isobaric level)"})
+            coords["isobaric"] = (
+                "isobaric",
+                np.array(levels, dtype=np.float64),
+                {
+                    "units": "Pa",
+                    "standard_name": "air_pressure",
+                    "long_name": "pressure (isobaric level)",
+                },
+            )
             index_used = lead_index
         else:
             index_used = lead_index[..., 0]
-        fields = _Fields(path, usable, index_used if index_used.ndim else index_used[None],
-                         grid_shape, transposed)
+        fields = _Fields(
+            path,
+            usable,
+            index_used if index_used.ndim else index_used[None],
+            grid_shape,
+            transposed,
+        )
         if k["gridType"] in ("regular_ll", "regular_gg"):
             ydim, xdim = "latitude", "longitude"
-            coords["latitude"] = ("latitude", lat2d[:, 0],
-                                  {"units": "degrees_north", "standard_name": "latitude"})
-            coords["longitude"] = ("longitude", lon2d[0, :],
-                                   {"units": "degrees_east", "standard_name": "longitude"})
+            coords["latitude"] = (
+                "latitude",
+                lat2d[:, 0],
+                {"units": "degrees_north", "standard_name": "latitude"},
+            )
+            coords["longitude"] = (
+                "longitude",
+                lon2d[0, :],
+                {"units": "degrees_east", "standard_name": "longitude"},
+            )
         else:
             ydim, xdim = "y", "x"
-            coords["latitude"] = (("y", "x"), lat2d, {"units": "degrees_north",
-                                                      "standard_name": "latitude"})
-            coords["longitude"] = (("y", "x"), lon2d, {"units": "degrees_east",
-                                                       "standard_name": "longitude"})
+            coords["latitude"] = (
+                ("y", "x"),
+                lat2d,
+                {"units": "degrees_north", "standard_name": "latitude"},
+            )
+            coords["longitude"] = (
+                ("y", "x"),
+                lon2d,
+                {"units": "degrees_east", "standard_name": "longitude"},
+            )
         dims += [ydim, xdim]
         if lkind != "isobaric":
             coords[lkind] = ((), lval, {"units": "m" if lkind.startswith("height") else "1"})
-        attrs = {"units": k.get("units") or "", "GRIB_shortName": k.get("shortName"),
-                 "GRIB_paramId": k.get("paramId"), "GRIB_typeOfLevel": k.get("typeOfLevel"),
-                 "GRIB_level": None if lkind == "isobaric" else lval,
-                 "GRIB_stepType": step_type, "GRIB_edition": k.get("edition"),
-                 "GRIB_derivedForecast": k.get("derivedForecast"),
-                 "GRIB_missing_fields": holes, "GRIB_grid_id": gid}
-        for key in ("gridType", "resolutionAndComponentFlags", "uvRelativeToGrid",
-                    "shapeOfTheEarth", "radius", "LaDInDegrees", "LoVInDegrees",
-                    "Latin1InDegrees", "Latin2InDegrees", "orientationOfTheGridInDegrees",
-                    "projectionCentreFlag", "DxInMetres", "DyInMetres",
-                    "latitudeOfFirstGridPointInDegrees", "longitudeOfFirstGridPointInDegrees"):
+        attrs = {
+            "units": k.get("units") or "",
+            "GRIB_shortName": k.get("shortName"),
+            "GRIB_paramId": k.get("paramId"),
+            "GRIB_typeOfLevel": k.get("typeOfLevel"),
+            "GRIB_level": None if lkind == "isobaric" else lval,
+            "GRIB_stepType": step_type,
+            "GRIB_edition": k.get("edition"),
+            "GRIB_derivedForecast": k.get("derivedForecast"),
+            "GRIB_missing_fields": holes,
+            "GRIB_grid_id": gid,
+        }
+        for key in (
+            "gridType",
+            "resolutionAndComponentFlags",
+            "uvRelativeToGrid",
+            "shapeOfTheEarth",
+            "radius",
+            "LaDInDegrees",
+            "LoVInDegrees",
+            "Latin1InDegrees",
+            "Latin2InDegrees",
+            "orientationOfTheGridInDegrees",
+            "projectionCentreFlag",
+            "DxInMetres",
+            "DyInMetres",
+            "latitudeOfFirstGridPointInDegrees",
+            "longitudeOfFirstGridPointInDegrees",
+        ):
             if k.get(key) is not None:
                 attrs[f"GRIB_{key}"] = k[key]
         attrs = {a: v for a, v in attrs.items() if v is not None}
@@ -489,21 +626,23 @@ def open_grib(path, *, budget=None) -> list:
             n += 1
         ds["vars"][vname] = (var, coords)
     out = []
-    for (lkind, lval, gid), parts in datasets.items():
+    for (lkind, _lval, _gid), parts in datasets.items():
         # variables with other time or level axes go to datasets of their own
-        buckets = []
+        buckets: list[Any] = []
         for vname, (var, coords) in parts["vars"].items():
             for b in buckets:
-                if all(c not in b["coords"] or _same_coord(b["coords"][c], coords[c])
-                       for c in coords):
+                if all(
+                    c not in b["coords"] or _same_coord(b["coords"][c], coords[c]) for c in coords
+                ):
                     b["vars"][vname] = var
                     b["coords"].update(coords)
                     break
             else:
                 buckets.append({"vars": {vname: var}, "coords": dict(coords)})
         for b in buckets:
-            ds = xr.Dataset({n: v for n, v in b["vars"].items()},
-                            coords={c: v for c, v in b["coords"].items()})
+            ds = xr.Dataset(
+                {n: v for n, v in b["vars"].items()}, coords={c: v for c, v in b["coords"].items()}
+            )
             ds.attrs["GRIB_typeOfLevel"] = lkind
             out.append(ds)
     return out

@@ -31,7 +31,7 @@ FIELDS_PER_LEVEL = 64
 #: dimension coordinates when it opens a file).
 MAX_COORDINATE = 50_000_000
 
-_SUFFIX = {"": 1, "B": 1, "K": 2 ** 10, "M": 2 ** 20, "G": 2 ** 30, "T": 2 ** 40}
+_SUFFIX = {"": 1, "B": 1, "K": 2**10, "M": 2**20, "G": 2**30, "T": 2**40}
 
 
 def parse_size(text) -> int:
@@ -54,17 +54,19 @@ def memory_budget(explicit=None) -> int:
         try:
             return parse_size(env)
         except ValueError:
-            raise CaseError(f"BALANCE_DESK_MEMORY_BUDGET={env!r} is not a size (give bytes or "
-                            "a number with K, M, G or T)") from None
+            raise CaseError(
+                f"BALANCE_DESK_MEMORY_BUDGET={env!r} is not a size (give bytes or "
+                "a number with K, M, G or T)"
+            ) from None
     try:
         total = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
     except (ValueError, OSError, AttributeError):
-        total = 8 * 2 ** 30
+        total = 8 * 2**30
     return int(total // 4)
 
 
 def format_size(n: float) -> str:
-    for unit, k in (("TB", 2 ** 40), ("GB", 2 ** 30), ("MB", 2 ** 20), ("KB", 2 ** 10)):
+    for unit, k in (("TB", 2**40), ("GB", 2**30), ("MB", 2**20), ("KB", 2**10)):
         if n >= k:
             return f"{n / k:.3g} {unit}"
     return f"{n:.0f} bytes"
@@ -74,10 +76,13 @@ def check_level_slice(path, ny: int, nx: int, budget: int, variable=None):
     """Refuse a grid whose one-level working set exceeds the budget."""
     need = int(ny) * int(nx) * 8 * FIELDS_PER_LEVEL
     if need > budget:
-        raise CaseError(f"declares a {ny} x {nx} grid: analysing one level would need about "
-                        f"{format_size(need)} of memory, more than the budget of "
-                        f"{format_size(budget)} (set BALANCE_DESK_MEMORY_BUDGET to allow more)",
-                        path, variable)
+        raise CaseError(
+            f"declares a {ny} x {nx} grid: analysing one level would need about "
+            f"{format_size(need)} of memory, more than the budget of "
+            f"{format_size(budget)} (set BALANCE_DESK_MEMORY_BUDGET to allow more)",
+            path,
+            variable,
+        )
 
 
 def check_declared(path, kind: str, budget: int):
@@ -90,8 +95,12 @@ def check_declared(path, kind: str, budget: int):
         return
     for name, size in dims.items():
         if name in variables and len(variables[name]) == 1 and size > MAX_COORDINATE:
-            raise CaseError(f"declares a coordinate of {size} values, too many to read "
-                            f"(at most {MAX_COORDINATE})", path, name)
+            raise CaseError(
+                f"declares a coordinate of {size} values, too many to read "
+                f"(at most {MAX_COORDINATE})",
+                path,
+                name,
+            )
     for name, shape in variables.items():
         if len(shape) >= 2:
             check_level_slice(path, shape[-2], shape[-1], budget, name)
@@ -113,8 +122,11 @@ def _netcdf_shapes(path):
 
         with h5py.File(path, "r") as f:
             shapes = {}
-            f.visititems(lambda n, o: shapes.__setitem__(n, tuple(o.shape))
-                         if isinstance(o, h5py.Dataset) else None)
+            f.visititems(
+                lambda n, o: (
+                    shapes.__setitem__(n, tuple(o.shape)) if isinstance(o, h5py.Dataset) else None
+                )
+            )
             return {}, shapes
     except Exception:  # noqa: BLE001 - not HDF5 either: the real open reports it
         return {}, {}

@@ -16,19 +16,45 @@ from __future__ import annotations
 import dataclasses
 import os
 import warnings
+from typing import Any
 
 import numpy as np
 
 from .checks import to_si
 from .errors import CaseError
-from .names import (ABOVE_GROUND, GRIB_LEVEL_KINDS, HEIGHT_COORD_NAMES, LAT_NAMES, LON_NAMES,
-                    MEMBER_DIM_NAMES, OTHER, PRESSURE, PRESSURE_COORD_NAMES, REQUIRED_ROLES,
-                    ROLES, SINGLE, STANDARD_NAME_LEVELS, SURFACE_ROLES, TIME_NAMES, LEVEL_ROLES,
-                    LevelKind, name_level_hint, preference, ruled_out)
+from .names import (
+    ABOVE_GROUND,
+    GRIB_LEVEL_KINDS,
+    HEIGHT_COORD_NAMES,
+    LAT_NAMES,
+    LEVEL_ROLES,
+    LON_NAMES,
+    MEMBER_DIM_NAMES,
+    OTHER,
+    PRESSURE,
+    PRESSURE_COORD_NAMES,
+    REQUIRED_ROLES,
+    ROLES,
+    SINGLE,
+    STANDARD_NAME_LEVELS,
+    SURFACE_ROLES,
+    TIME_NAMES,
+    LevelKind,
+    name_level_hint,
+    preference,
+    ruled_out,
+)
 from .units import _canonical, convert, dimensionality_matches, linear_conversion
 
-__all__ = ["open_datasets", "normalise", "Piece", "sniff_format", "level_kind", "Candidate",
-           "find_candidates"]
+__all__ = [
+    "open_datasets",
+    "normalise",
+    "Piece",
+    "sniff_format",
+    "level_kind",
+    "Candidate",
+    "find_candidates",
+]
 
 #: Surface fields that do not change with time (may come without a time coordinate).
 STATIC_ROLES = ("orography", "surface_height", "land_mask")
@@ -42,8 +68,11 @@ def sniff_format(path) -> str:
     try:
         p.encode("utf-8")
     except UnicodeEncodeError:
-        raise CaseError("has a name that is not valid UTF-8, which the NetCDF and GRIB "
-                        "libraries cannot open; rename the file", p) from None
+        raise CaseError(
+            "has a name that is not valid UTF-8, which the NetCDF and GRIB "
+            "libraries cannot open; rename the file",
+            p,
+        ) from None
     if not os.path.exists(p):
         raise CaseError("no such file or directory", p)
     try:
@@ -93,26 +122,30 @@ def open_datasets(path, chunks=None, *, budget=None):
                 with open(path, "rb") as fh:
                     if fh.read(4) == b"\x89HDF":
                         engine = _hdf_engine()
-                return [xr.open_dataset(path, engine=engine, chunks=chunks,
-                                        decode_timedelta=True)]
+                return [xr.open_dataset(path, engine=engine, chunks=chunks, decode_timedelta=True)]
             return [xr.open_zarr(path, decode_timedelta=True)]
     except CaseError:
         raise
     except Exception as exc:  # noqa: BLE001 - every library error becomes one sentence
         detail = str(exc).splitlines()[0][:160] if str(exc) else type(exc).__name__
-        raise CaseError(f"cannot be read as {kind.upper() if kind != 'zarr' else 'Zarr'}: "
-                        f"damaged or truncated ({detail})", path) from None
+        raise CaseError(
+            f"cannot be read as {kind.upper() if kind != 'zarr' else 'Zarr'}: "
+            f"damaged or truncated ({detail})",
+            path,
+        ) from None
 
 
 def _hdf_engine():
     try:
         import netCDF4  # noqa: F401
+
         return "netcdf4"
     except ImportError:
         return "h5netcdf"
 
 
 # -- the kind of level --------------------------------------------------------------
+
 
 def _attr(da, key):
     v = da.attrs.get(key)
@@ -136,8 +169,13 @@ def _is_pressure_coord(name, ds) -> bool:
     if name.lower() in PRESSURE_COORD_NAMES:
         units = c.attrs.get("units")
         if units is None:
-            return name.lower() in ("isobaricinhpa", "isobaricinpa", "plev", "pressure",
-                                    "pressure_level")
+            return name.lower() in (
+                "isobaricinhpa",
+                "isobaricinpa",
+                "plev",
+                "pressure",
+                "pressure_level",
+            )
         return dimensionality_matches(units, "Pa")
     return False
 
@@ -146,10 +184,13 @@ def _is_vertical(name, var) -> bool:
     std = str(var.attrs.get("standard_name") or "").lower()
     axis = str(var.attrs.get("axis") or "").upper()
     positive = str(var.attrs.get("positive") or "").lower()
-    return (name.lower() in HEIGHT_COORD_NAMES or std in ("height", "altitude", "depth",
-                                                           "model_level_number") or
-            std.startswith(("atmosphere_", "ocean_")) or axis == "Z" or
-            positive in ("up", "down"))
+    return (
+        name.lower() in HEIGHT_COORD_NAMES
+        or std in ("height", "altitude", "depth", "model_level_number")
+        or std.startswith(("atmosphere_", "ocean_"))
+        or axis == "Z"
+        or positive in ("up", "down")
+    )
 
 
 def _vertical_coords(da, ds):
@@ -164,11 +205,15 @@ def _vertical_coords(da, ds):
     and a file whose writer listed its one height coordinate elsewhere still has its
     10 m wind.
     """
+
     def var_of(c):
         return da.coords[c] if c in da.coords else ds[c]
 
-    names = [c for c in dict.fromkeys(list(da.dims) + list(da.coords))
-             if (c in ds.variables or c in da.coords) and _is_vertical(c, var_of(c))]
+    names = [
+        c
+        for c in dict.fromkeys(list(da.dims) + list(da.coords))
+        if (c in ds.variables or c in da.coords) and _is_vertical(c, var_of(c))
+    ]
     own = set(str(da.encoding.get("coordinates") or "").split())
     scalars = [c for c in names if c not in da.dims]
     listed = [c for c in scalars if c in own]
@@ -212,17 +257,18 @@ def level_kind(name, da, ds) -> LevelKind:
 
 # -- recognising variables ----------------------------------------------------------
 
+
 @dataclasses.dataclass
 class Candidate:
     """A variable that could fill a role, with why and how well."""
 
     role: str
     name: str
-    da: object
-    ds: object
+    da: Any  # xarray.DataArray
+    ds: Any  # xarray.Dataset
     level: LevelKind
     rank: tuple
-    how: str            # "standard name", "short name" or "long name"
+    how: str  # "standard name", "short name" or "long name"
 
     def describe(self) -> str:
         grib = self.da.attrs.get("GRIB_shortName")
@@ -234,19 +280,25 @@ def _matches(name, da, ds, level):
     """(role, match rank, key, how) for every role the variable's names fit on its level."""
     std = (_attr(da, "standard_name") or "").lower()
     base, _ = name_level_hint(name)
-    keys = [("short name", base.lower()), ("short name", (_attr(da, "GRIB_shortName") or "").lower()),
-            ("long name", (_attr(da, "long_name") or "").lower())]
+    keys = [
+        ("short name", base.lower()),
+        ("short name", (_attr(da, "GRIB_shortName") or "").lower()),
+        ("long name", (_attr(da, "long_name") or "").lower()),
+    ]
     hits = []
     for role in LEVEL_ROLES + SURFACE_ROLES:
         if level.kind not in role.levels:
             continue
-        if level.kind == ABOVE_GROUND and role.above_ground is not None and (
-                level.value is None or abs(level.value - role.above_ground) > 0.5):
+        if (
+            level.kind == ABOVE_GROUND
+            and role.above_ground is not None
+            and (level.value is None or abs(level.value - role.above_ground) > 0.5)
+        ):
             continue
         if std and std in role.standard_names:
             hits.append((role, 0, std, "standard name"))
             continue
-        for rank, (how, key) in enumerate(keys, start=1):
+        for _rank, (how, key) in enumerate(keys, start=1):
             field = role.short_names if how == "short name" else role.long_names
             if key and key in field:
                 if key in role.ambiguous and level.kind != role.levels[0]:
@@ -266,8 +318,11 @@ def _by_units(hits, units):
     if same:
         return same  # the unit is already the role's: no registry needed
     kept = [h for h in hits if dimensionality_matches(units, h[0].target_units)]
-    if not kept and any(h[0].name == "geopotential" for h in hits) and \
-            dimensionality_matches(units, "m"):
+    if (
+        not kept
+        and any(h[0].name == "geopotential" for h in hits)
+        and dimensionality_matches(units, "m")
+    ):
         g = next(h for h in hits if h[0].name == "geopotential")
         kept = [(ROLES["height"], g[1], g[2], g[3])]
     return kept
@@ -292,16 +347,27 @@ def find_candidates(datasets):
             for role, match, key, how in hits:
                 why = ruled_out(role, da.attrs)
                 if why:
-                    ruled.setdefault(role.name, []).append(f"{name!r} was not taken as "
-                                                           f"{role.words}: {why}")
+                    ruled.setdefault(role.name, []).append(
+                        f"{name!r} was not taken as {role.words}: {why}"
+                    )
                     continue
-                cands.append(Candidate(role.name, name, da, ds, level,
-                                       preference(match, role, key, level) + (order,), how))
+                cands.append(
+                    Candidate(
+                        role.name,
+                        name,
+                        da,
+                        ds,
+                        level,
+                        preference(match, role, key, level) + (order,),
+                        how,
+                    )
+                )
                 order += 1
     return cands, ruled
 
 
 # -- one horizontal grid -----------------------------------------------------------
+
 
 def _horizontal(c: Candidate, path):
     """(sizes, [(what, values)]) of a candidate's horizontal grid, for comparison."""
@@ -309,15 +375,19 @@ def _horizontal(c: Candidate, path):
     sizes = (c.da.sizes[y_dim], c.da.sizes[x_dim])
     coords = []
     if kind == "latlon":
-        coords = [("latitudes", np.asarray(c.ds[y_dim].values, np.float64)),
-                  ("longitudes", np.asarray(c.ds[x_dim].values, np.float64) % 360.0)]
+        coords = [
+            ("latitudes", np.asarray(c.ds[y_dim].values, np.float64)),
+            ("longitudes", np.asarray(c.ds[x_dim].values, np.float64) % 360.0),
+        ]
     else:
         lat, lon = _find_latlon_2d(c.da, c.ds)
         if lat is None and "latitude" in c.da.coords and c.da["latitude"].ndim == 2:
             lat, lon = c.da["latitude"], c.da["longitude"]
         if lat is not None and lon is not None:
-            coords = [("latitudes", np.asarray(lat.values, np.float64)),
-                      ("longitudes", np.asarray(lon.values, np.float64) % 360.0)]
+            coords = [
+                ("latitudes", np.asarray(lat.values, np.float64)),
+                ("longitudes", np.asarray(lon.values, np.float64) % 360.0),
+            ]
         for d in (y_dim, x_dim):
             if d in c.ds.coords and c.ds[d].ndim == 1 and np.issubdtype(c.ds[d].dtype, np.number):
                 coords.append((f"{d} coordinates", np.asarray(c.ds[d].values, np.float64)))
@@ -341,8 +411,10 @@ def _grid_difference(ref, other) -> str | None:
             diff = np.minimum(diff, 360.0 - diff)
         if np.nanmax(diff, initial=0.0) > 1e-4 * (1.0 if "itudes" in what else 1e3):
             i = np.unravel_index(int(np.nanargmax(diff)), diff.shape)
-            return (f"its {what} differ from the height's by up to {np.nanmax(diff):.4g} "
-                    f"({o[i]:.6g} against {vals[i]:.6g})")
+            return (
+                f"its {what} differ from the height's by up to {np.nanmax(diff):.4g} "
+                f"({o[i]:.6g} against {vals[i]:.6g})"
+            )
     return None
 
 
@@ -350,12 +422,12 @@ def _grid_difference(ref, other) -> str | None:
 class Raw:
     """A field as the file holds it, with the linear conversion to its role's SI unit."""
 
-    data: object        # xarray.DataArray, raw values
+    data: Any  # xarray.DataArray, raw values
     scale: float
     offset: float
-    role: str           # the role whose checks apply (geopotential, not height)
+    role: str  # the role whose checks apply (geopotential, not height)
 
-    def map(self, fn) -> "Raw":
+    def map(self, fn) -> Raw:
         return dataclasses.replace(self, data=fn(self.data))
 
 
@@ -364,15 +436,15 @@ class Piece:
     """One file's normalised variables and grid description."""
 
     path: str
-    data: dict          # role -> xarray.DataArray (time, level, y, x) in SI units
-    surface: dict       # role -> xarray.DataArray (time, y, x) in SI units
-    lat: np.ndarray     # 1-D (lat-lon) or 2-D (projected)
+    data: dict  # role -> xarray.DataArray (time, level, y, x) in SI units
+    surface: dict  # role -> xarray.DataArray (time, y, x) in SI units
+    lat: np.ndarray  # 1-D (lat-lon) or 2-D (projected)
     lon: np.ndarray
-    crs: object | None  # pyproj CRS for projected grids
+    crs: Any  # pyproj CRS for projected grids, or None
     x: np.ndarray | None
     y: np.ndarray | None
     levels_pa: np.ndarray
-    times: np.ndarray   # datetime64[ns]
+    times: np.ndarray  # datetime64[ns]
     grid_relative: bool
     notes: list
     attrs: dict
@@ -391,6 +463,7 @@ class Piece:
 
 
 # -- normalising one variable -------------------------------------------------------
+
 
 def _member_dim(da, ds):
     for d in da.dims:
@@ -424,18 +497,35 @@ def _spatial_dims(da, ds, path, var):
         c = ds[d]
         std = c.attrs.get("standard_name", "").lower()
         units = c.attrs.get("units", "").lower()
-        if std == "latitude" or d.lower() in LAT_NAMES or units in ("degrees_north", "degree_north"):
+        if (
+            std == "latitude"
+            or d.lower() in LAT_NAMES
+            or units in ("degrees_north", "degree_north")
+        ):
             lat_dim = d
-        elif std == "longitude" or d.lower() in LON_NAMES or units in ("degrees_east", "degree_east"):
+        elif (
+            std == "longitude" or d.lower() in LON_NAMES or units in ("degrees_east", "degree_east")
+        ):
             lon_dim = d
     if lat_dim and lon_dim:
         return lat_dim, lon_dim, "latlon"
-    flat = [d for d in dims if not (_is_time_like(d, ds) or _is_step_like(d, ds) or
-                                    _is_pressure_coord(d, ds) or _member_dim_name(d, ds))]
+    flat = [
+        d
+        for d in dims
+        if not (
+            _is_time_like(d, ds)
+            or _is_step_like(d, ds)
+            or _is_pressure_coord(d, ds)
+            or _member_dim_name(d, ds)
+        )
+    ]
     if len(flat) < 2:
-        raise CaseError("has no horizontal grid (it needs latitude and longitude, or x and y, "
-                        f"dimensions; its dimensions are {', '.join(map(str, dims)) or 'none'})",
-                        path, var)
+        raise CaseError(
+            "has no horizontal grid (it needs latitude and longitude, or x and y, "
+            f"dimensions; its dimensions are {', '.join(map(str, dims)) or 'none'})",
+            path,
+            var,
+        )
     return flat[-2], flat[-1], "projected"
 
 
@@ -477,7 +567,8 @@ def _valid_times(da, ds, path, var):
             valid = ref + step
             da = da.drop_vars(["_vt", time_dims[0], sd], errors="ignore")
             da = da.assign_coords(_vt=("_vt", valid), reference_time=("_vt", ref)).rename(
-                {"_vt": "time"})
+                {"_vt": "time"}
+            )
             note = "valid time = reference time + step, over several forecasts"
         else:
             if time_dims:
@@ -486,29 +577,39 @@ def _valid_times(da, ds, path, var):
             if ref is None:
                 raise CaseError(f"has forecast steps ({sd}) but no reference time", path, var)
             valid = ref + da[sd].values
-            da = da.drop_vars([c for c in da.coords if c in ("time", "valid_time")], errors="ignore")
+            da = da.drop_vars(
+                [c for c in da.coords if c in ("time", "valid_time")], errors="ignore"
+            )
             da = da.rename({sd: "time"}).assign_coords(
-                time=("time", valid), reference_time=("time", np.repeat(ref, valid.size)))
+                time=("time", valid), reference_time=("time", np.repeat(ref, valid.size))
+            )
             note = "valid time = reference time + step"
     elif time_dims:
         td = time_dims[0]
         vals = da[td].values if td in da.coords else None
         if vals is None or not np.issubdtype(np.asarray(vals).dtype, np.datetime64):
             vals = _decode_time_values(ds, td, path, var)
-        da = da.drop_vars([td], errors="ignore").rename({td: "time"}).assign_coords(time=("time", vals))
+        da = (
+            da.drop_vars([td], errors="ignore")
+            .rename({td: "time"})
+            .assign_coords(time=("time", vals))
+        )
         step = _scalar_step(da)
         if step is not None:
-            da = da.assign_coords(time=("time", da["time"].values + step),
-                                  reference_time=("time", da["time"].values))
+            da = da.assign_coords(
+                time=("time", da["time"].values + step), reference_time=("time", da["time"].values)
+            )
             note = "valid time = reference time + step"
     else:
         t = _scalar_valid_time(da, ds, path, var)
         if t is None:
             raise CaseError("has no time coordinate (a valid time is needed)", path, var)
-        da = da.drop_vars([c for c in ("time", "valid_time", "step") if c in da.coords],
-                          errors="ignore").expand_dims(time=[t])
-    da = da.drop_vars([c for c in ("valid_time", "step") if c in da.coords and c != "time"],
-                      errors="ignore")
+        da = da.drop_vars(
+            [c for c in ("time", "valid_time", "step") if c in da.coords], errors="ignore"
+        ).expand_dims(time=[t])
+    da = da.drop_vars(
+        [c for c in ("valid_time", "step") if c in da.coords and c != "time"], errors="ignore"
+    )
     return da, note
 
 
@@ -521,14 +622,19 @@ def _decode_time_values(ds, td, path, var):
         return vals
     if vals.dtype.kind == "O":
         try:
-            return np.array([np.datetime64(v.isoformat()) for v in vals.ravel()],
-                            dtype="datetime64[ns]")
+            return np.array(
+                [np.datetime64(v.isoformat()) for v in vals.ravel()], dtype="datetime64[ns]"
+            )
         except Exception:  # noqa: BLE001
             pass
     units = c.attrs.get("units") or c.encoding.get("units")
     if not units:
-        raise CaseError(f"time coordinate {td!r} is numeric and has no units (CF: "
-                        "'hours since 2000-01-01 00:00')", path, td)
+        raise CaseError(
+            f"time coordinate {td!r} is numeric and has no units (CF: "
+            "'hours since 2000-01-01 00:00')",
+            path,
+            td,
+        )
     raise CaseError(f"time coordinate {td!r} has units {units!r} that cannot be decoded", path, td)
 
 
@@ -569,13 +675,17 @@ def _choose(path, cands, ruled):
         by_role.setdefault(c.role, []).append(c)
     for cs in by_role.values():
         cs.sort(key=lambda c: c.rank)
-    ref_role = "height" if "height" in by_role else "geopotential" if "geopotential" in by_role \
-        else None
+    ref_role = (
+        "height" if "height" in by_role else "geopotential" if "geopotential" in by_role else None
+    )
     if ref_role is None:
         why = "; ".join(ruled.get("height", []) + ruled.get("geopotential", []))
-        raise CaseError("has no geopotential or geopotential height on pressure levels "
-                        "(looked for CF standard names geopotential_height / geopotential and "
-                        "short names gh, hgt, zg, z)" + (f"; {why}" if why else ""), path)
+        raise CaseError(
+            "has no geopotential or geopotential height on pressure levels "
+            "(looked for CF standard names geopotential_height / geopotential and "
+            "short names gh, hgt, zg, z)" + (f"; {why}" if why else ""),
+            path,
+        )
     ref = by_role[ref_role][0]
     ref_grid = _horizontal(ref, path)
     chosen, notes, dropped = {ref_role: ref}, [], {}
@@ -601,9 +711,10 @@ def _choose(path, cands, ruled):
         chosen[role] = pick
         others = [c for c in cs if c is not pick]
         if others:
-            notes.append(f"{ROLES[role].words}: took {pick.describe()}, the first by the "
-                         "stated preference; also found " +
-                         ", ".join(c.describe() for c in others))
+            notes.append(
+                f"{ROLES[role].words}: took {pick.describe()}, the first by the "
+                "stated preference; also found " + ", ".join(c.describe() for c in others)
+            )
     for sentences in ruled.values():  # said whether or not another variable took the role
         notes.extend(sentences)
     return chosen, ref_role, notes, dropped
@@ -625,8 +736,12 @@ def normalise(path, datasets, *, member=0) -> Piece:
     member_count = 1
     grid_relative = False
     if kind == "projected":
-        for role, target in (("u", "x_wind"), ("v", "y_wind"), ("u10", "x_wind10"),
-                             ("v10", "y_wind10")):
+        for role, target in (
+            ("u", "x_wind"),
+            ("v", "y_wind"),
+            ("u10", "x_wind10"),
+            ("v10", "y_wind10"),
+        ):
             if role in chosen and _grib_grid_relative(chosen[role].da.attrs):
                 chosen[target] = dataclasses.replace(chosen.pop(role), role=target)
     statics = []
@@ -641,12 +756,18 @@ def normalise(path, datasets, *, member=0) -> Piece:
                 member_count = max(member_count, int(da.sizes[mdim]))
             da, mnote = _reduce_member(da, ds, member, path, vname)
             member_note = member_note or mnote
-            if role in STATIC_ROLES and not any(_is_time_like(d, ds) or _is_step_like(d, ds)
-                                                for d in da.dims):
+            if role in STATIC_ROLES and not any(
+                _is_time_like(d, ds) or _is_step_like(d, ds) for d in da.dims
+            ):
                 # orography and land masks need no time: repeated for every valid time below
-                da = da.drop_vars([c_ for c_ in ("time", "valid_time", "step", "reference_time")
-                                   if c_ in da.coords], errors="ignore").expand_dims(
-                    time=[np.datetime64("NaT", "ns")])
+                da = da.drop_vars(
+                    [
+                        c_
+                        for c_ in ("time", "valid_time", "step", "reference_time")
+                        if c_ in da.coords
+                    ],
+                    errors="ignore",
+                ).expand_dims(time=[np.datetime64("NaT", "ns")])
                 statics.append(role)
                 tnote = None
             else:
@@ -661,8 +782,12 @@ def normalise(path, datasets, *, member=0) -> Piece:
             extra = [d for d in da.dims if d not in keep]
             for d in extra:
                 if da.sizes[d] != 1:
-                    raise CaseError(f"has an extra dimension {d!r} of size {da.sizes[d]} that "
-                                    "balance-desk does not know how to reduce", path, vname)
+                    raise CaseError(
+                        f"has an extra dimension {d!r} of size {da.sizes[d]} that "
+                        "balance-desk does not know how to reduce",
+                        path,
+                        vname,
+                    )
                 da = da.isel({d: 0})
             da = da.transpose(*keep)
             spec = ROLES[role]
@@ -672,8 +797,9 @@ def normalise(path, datasets, *, member=0) -> Piece:
             raw = da
             da = _si(da, role, units, path, vname)
             scale, offset = linear_conversion(str(units), spec.target_units)
-            da = da.drop_vars([c_ for c_ in da.coords if c_ not in da.dims and c_ != "time"],
-                              errors="ignore")
+            da = da.drop_vars(
+                [c_ for c_ in da.coords if c_ not in da.dims and c_ != "time"], errors="ignore"
+            )
             da.attrs = {"units": spec.target_units}
             missing = int(c.da.attrs.get("GRIB_missing_fields") or 0)
             if missing:
@@ -682,8 +808,12 @@ def normalise(path, datasets, *, member=0) -> Piece:
             if lev:
                 da = _pressure_levels(da, ds, lev, path, vname)
                 data[role] = da.rename({c_y: "y", c_x: "x"})
-                fills[role] = Raw(_pressure_levels(raw, ds, lev, path, vname).rename(
-                    {c_y: "y", c_x: "x"}), scale, offset, role)
+                fills[role] = Raw(
+                    _pressure_levels(raw, ds, lev, path, vname).rename({c_y: "y", c_x: "x"}),
+                    scale,
+                    offset,
+                    role,
+                )
             else:
                 surface[role] = da.rename({c_y: "y", c_x: "x"})
                 fills[role] = Raw(raw.rename({c_y: "y", c_x: "x"}), scale, offset, role)
@@ -701,15 +831,23 @@ def normalise(path, datasets, *, member=0) -> Piece:
         notes.append(member_note)
     elif str(member) not in ("0", "None"):
         what = "averaged" if member == "mean" else f"chosen (member {member})"
-        raise CaseError(f"has no ensemble member dimension, so no member can be {what}; leave "
-                        "--member out", path)
+        raise CaseError(
+            f"has no ensemble member dimension, so no member can be {what}; leave --member out",
+            path,
+        )
     if statics and data:
         first = next(iter(data.values()))
         for role in statics:
-            surface[role] = surface[role].isel(time=[0] * first.sizes["time"]).assign_coords(
-                time=first["time"].values)
-            fills[role] = fills[role].map(lambda r: r.isel(time=[0] * first.sizes["time"])
-                                          .assign_coords(time=first["time"].values))
+            surface[role] = (
+                surface[role]
+                .isel(time=[0] * first.sizes["time"])
+                .assign_coords(time=first["time"].values)
+            )
+            fills[role] = fills[role].map(
+                lambda r: r.isel(time=[0] * first.sizes["time"]).assign_coords(
+                    time=first["time"].values
+                )
+            )
     if "geopotential" in data and "height" not in data:
         from ..constants import G0
 
@@ -717,8 +855,9 @@ def normalise(path, datasets, *, member=0) -> Piece:
         fills["height"] = fills.pop("geopotential")
         sources["height"] = sources.pop("geopotential")
         sources["height"]["note"] = "geopotential divided by standard gravity 9.80665 m s-2"
-        notes.append("geopotential divided by standard gravity 9.80665 m s-2 to give "
-                     "geopotential height")
+        notes.append(
+            "geopotential divided by standard gravity 9.80665 m s-2 to give geopotential height"
+        )
     else:
         data.pop("geopotential", None)
     if "orography" in surface:
@@ -739,11 +878,27 @@ def normalise(path, datasets, *, member=0) -> Piece:
         crs, x, y, lat, lon = _projected_grid(ref_da, ref_ds, y_dim, x_dim, path, name)
     levels = np.asarray(data["height"]["level"].values, dtype=np.float64)
     times = np.asarray(data["height"]["time"].values).astype("datetime64[ns]")
-    return Piece(path=str(path), data=data, surface=surface, lat=lat, lon=lon, crs=crs, x=x, y=y,
-                 levels_pa=levels, times=times, grid_relative=grid_relative, notes=notes,
-                 attrs=dict(ref_ds.attrs), sources=sources, dropped=dropped,
-                 reference_times=ref_times, fills=fills, holes=holes,
-                 member_count=member_count)
+    return Piece(
+        path=str(path),
+        data=data,
+        surface=surface,
+        lat=lat,
+        lon=lon,
+        crs=crs,
+        x=x,
+        y=y,
+        levels_pa=levels,
+        times=times,
+        grid_relative=grid_relative,
+        notes=notes,
+        attrs=dict(ref_ds.attrs),
+        sources=sources,
+        dropped=dropped,
+        reference_times=ref_times,
+        fills=fills,
+        holes=holes,
+        member_count=member_count,
+    )
 
 
 def _is_dask(da) -> bool:
@@ -757,14 +912,25 @@ def _si(da, role, units, path, vname):
     spec = ROLES[role]
     convert(0.0, units, spec.target_units, path=path, variable=vname, accepted=spec.accepted)
     scale, offset = linear_conversion(str(units), spec.target_units)
-    return xr.apply_ufunc(to_si, da, kwargs={"role": role, "scale": scale, "offset": offset},
-                          dask="parallelized", output_dtypes=[np.float64], keep_attrs=True)
+    return xr.apply_ufunc(
+        to_si,
+        da,
+        kwargs={"role": role, "scale": scale, "offset": offset},
+        dask="parallelized",
+        output_dtypes=[np.float64],
+        keep_attrs=True,
+    )
 
 
 def _source(c: Candidate, path, units, target) -> dict:
-    out = {"file": os.path.basename(str(path).rstrip("/")), "variable": c.name,
-           "level_type": c.level.describe(), "recognised_by": c.how,
-           "units_from": None if units is None else str(units), "units_to": target}
+    out = {
+        "file": os.path.basename(str(path).rstrip("/")),
+        "variable": c.name,
+        "level_type": c.level.describe(),
+        "recognised_by": c.how,
+        "units_from": None if units is None else str(units),
+        "units_to": target,
+    }
     if c.level.label:
         out["level_label"] = c.level.label
     if "GRIB_shortName" in c.da.attrs:
@@ -846,8 +1012,14 @@ def _pressure_levels(da, ds, lev, path, var):
     units = c.attrs.get("units")
     if units is None and lev.lower() == "isobaricinhpa":
         units = "hPa"
-    p = convert(np.asarray(c.values, dtype=np.float64), units, "Pa", path=path, variable=lev,
-                accepted="Pa, hPa, millibar")
+    p = convert(
+        np.asarray(c.values, dtype=np.float64),
+        units,
+        "Pa",
+        path=path,
+        variable=lev,
+        accepted="Pa, hPa, millibar",
+    )
     p = np.atleast_1d(p)
     if np.unique(p).size != p.size:
         raise CaseError("pressure levels repeat a value", path, lev)
@@ -871,22 +1043,54 @@ def _projected_grid(da, ds, y_dim, x_dim, path, var):
             raise CaseError(f"names grid_mapping {gm_name!r}, which is not in the file", path, var)
         crs = crs_from_cf(ds[gm_name].attrs, path, gm_name)
         if crs.is_geographic:
-            raise CaseError("rotated-pole and other geographic grid mappings are not supported; "
-                            "regrid to a regular lat-lon or conformal projected grid", path, gm_name)
+            raise CaseError(
+                "rotated-pole and other geographic grid mappings are not supported; "
+                "regrid to a regular lat-lon or conformal projected grid",
+                path,
+                gm_name,
+            )
     elif "GRIB_gridType" in da.attrs:
         crs = crs_from_grib(da.attrs, path, var)
     if crs is None:
         if lat2d is not None:
-            raise CaseError("has 2-D latitude and longitude but no projection (a CF "
-                            "grid_mapping or GRIB grid keys are needed)", path, var)
-        raise CaseError("has no latitude/longitude coordinates that balance-desk recognises "
-                        f"(dimensions {y_dim!r}, {x_dim!r})", path, var)
-    if x_dim in ds.coords and y_dim in ds.coords and ds[x_dim].ndim == 1 and \
-            np.issubdtype(ds[x_dim].dtype, np.number):
-        x = np.asarray(conv(np.asarray(ds[x_dim].values, np.float64), ds[x_dim].attrs.get("units"),
-                            "m", path=path, variable=x_dim, accepted="m, km"))
-        y = np.asarray(conv(np.asarray(ds[y_dim].values, np.float64), ds[y_dim].attrs.get("units"),
-                            "m", path=path, variable=y_dim, accepted="m, km"))
+            raise CaseError(
+                "has 2-D latitude and longitude but no projection (a CF "
+                "grid_mapping or GRIB grid keys are needed)",
+                path,
+                var,
+            )
+        raise CaseError(
+            "has no latitude/longitude coordinates that balance-desk recognises "
+            f"(dimensions {y_dim!r}, {x_dim!r})",
+            path,
+            var,
+        )
+    if (
+        x_dim in ds.coords
+        and y_dim in ds.coords
+        and ds[x_dim].ndim == 1
+        and np.issubdtype(ds[x_dim].dtype, np.number)
+    ):
+        x = np.asarray(
+            conv(
+                np.asarray(ds[x_dim].values, np.float64),
+                ds[x_dim].attrs.get("units"),
+                "m",
+                path=path,
+                variable=x_dim,
+                accepted="m, km",
+            )
+        )
+        y = np.asarray(
+            conv(
+                np.asarray(ds[y_dim].values, np.float64),
+                ds[y_dim].attrs.get("units"),
+                "m",
+                path=path,
+                variable=y_dim,
+                accepted="m, km",
+            )
+        )
         import pyproj
 
         to_geo = pyproj.Transformer.from_crs(crs, crs.geodetic_crs, always_xy=True)
@@ -897,6 +1101,7 @@ def _projected_grid(da, ds, y_dim, x_dim, path, var):
         lon = np.asarray(lon2d.values, np.float64)
         x, y = projected_axes(crs, lat, lon, path, var)
     else:
-        raise CaseError("has a projection but neither x/y coordinates nor 2-D latitude and "
-                        "longitude", path, var)
+        raise CaseError(
+            "has a projection but neither x/y coordinates nor 2-D latitude and longitude", path, var
+        )
     return crs, x, y, lat, lon

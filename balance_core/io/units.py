@@ -31,7 +31,7 @@ ALIASES = {
     "kt": "knot",
     "pa/s": "Pa s-1",
     "pascal/s": "Pa s-1",
-    "(0 - 1)": "1",        # eccodes' spelling of a fraction
+    "(0 - 1)": "1",  # eccodes' spelling of a fraction
     "0-1": "1",
     "fraction": "1",
     "proportion": "1",
@@ -55,7 +55,7 @@ def registry():
     level = quiet.level
     quiet.setLevel(logging.ERROR)  # cf_xarray redefines a few units on purpose
     try:
-        import cf_xarray.units  # noqa: F401 - defines the registry
+        import cf_xarray.units
     finally:
         quiet.setLevel(level)
     pint.application_registry.set(previous)
@@ -116,8 +116,9 @@ def convert(values, unit, target: str, *, path=None, variable=None, accepted: st
     try:
         scale, offset = linear_conversion(str(unit), target)
     except Exception:  # noqa: BLE001 - pint raises several kinds
-        raise CaseError(f"has units {unit!r}, which cannot be read as {target}{hint}", path,
-                        variable) from None
+        raise CaseError(
+            f"has units {unit!r}, which cannot be read as {target}{hint}", path, variable
+        ) from None
     if scale == 1.0 and offset == 0.0:
         return values
     out = values * scale
