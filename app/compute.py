@@ -21,6 +21,7 @@ from balance_core.scales import PRESETS, SCALE_TERMS
 from balance_core.verdict import Thresholds
 
 from . import render, vocab
+from .fields import field_values
 from .library import SEA_LEVEL_INDEX
 from .state import (
     SEA_LEVEL,
@@ -168,43 +169,8 @@ class ChartData:
 
 
 def _field_values(key, diag, state):
-    """(values on the case grid, units, kind of colour scale)."""
-    if diag.no_wind and key not in ("height", "geostrophic_speed", "temperature"):
-        raise CaseError(f"{diag.no_wind}, so the chart has no {field_label(key)}")
-    if key == "height" and diag.surface:
-        return diag.sea_level_pressure / 100.0, "hPa", "sequential"
-    if key == "height":
-        v, u = vocab.height(diag.height, state.height_units)
-        return v, u, "sequential"
-    if key in ("speed", "geostrophic_speed", "ageostrophic_speed"):
-        raw = {
-            "speed": diag.speed,
-            "geostrophic_speed": diag.geostrophic_speed,
-            "ageostrophic_speed": np.hypot(diag.u - diag.ug, diag.v - diag.vg),
-        }[key]
-        v, u = vocab.wind(raw, state.wind_units)
-        return v, u, "sequential"
-    if key == "ageostrophic_fraction":
-        return np.clip(diag.ageostrophic_fraction, 0, 2), "", "sequential"
-    if key == "rossby_local":
-        return diag.rossby_local, "", "log"
-    if key == "vorticity":
-        return diag.vorticity * 1e5, "1e-5 s-1", "diverging"
-    if key == "omega":
-        if diag.omega is None:
-            raise CaseError("this case has no vertical motion (omega)")
-        return diag.omega, "Pa s-1", "diverging"
-    if key == "temperature":
-        if diag.temperature is None:
-            raise CaseError("this case has no temperature" + (" at 2 m" if diag.surface else ""))
-        return diag.temperature - 273.15, "degC", "sequential"
-    if key.startswith("term:"):
-        name = key[5:]
-        t = diag.budget[name]
-        if not t.available:
-            raise CaseError(f"the {vocab.term_name(name)} term is unavailable: {t.note}")
-        return t.magnitude(), "m s-2", "log"
-    raise CaseError(f"unknown field {vocab.quote(key)}")
+    """(values on the case grid, units, kind of colour scale): :func:`app.fields.field_values`."""
+    return field_values(key, diag, state)
 
 
 def _color_range(vals, kind):

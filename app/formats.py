@@ -14,6 +14,8 @@ import io
 import json
 import math
 
+from balance_core.vocabulary import BALANCE_CLASSES
+
 from . import vocab
 
 __all__ = [
@@ -520,9 +522,7 @@ def systems_csv(out: dict) -> str:
             "region",
             "points",
             "verdict",
-            "geostrophic_ratio",
-            "gradient_ratio",
-            "cyclostrophic_ratio",
+            *[b.column for b in BALANCE_CLASSES if b.column],
             "rossby_local_median",
             "ageostrophic_rms_ms",
         ]
@@ -547,9 +547,7 @@ def systems_csv(out: dict) -> str:
                 system_region_text(s["region"]),
                 rep.get("points"),
                 vocab.balance_name(rep["verdict"]["balance"]),
-                vocab.sig(b.get("geostrophic")),
-                vocab.sig(b.get("gradient")),
-                vocab.sig(b.get("cyclostrophic")),
+                *[vocab.sig(b.get(c.name)) for c in BALANCE_CLASSES if c.column],
                 vocab.sig((rep.get("numbers") or {}).get("rossby_local_median")),
                 vocab.sig(ap.get("measured_rms")),
             ]

@@ -24,10 +24,11 @@ import re
 import numpy as np
 import param
 
-from balance_core import TERMS, Region
+from balance_core import Region
 from balance_core.scales import PRESETS
 
 from . import vocab
+from .fields import FIELDS as _FIELDS
 
 __all__ = [
     "ViewState",
@@ -48,21 +49,8 @@ __all__ = [
     "MAX_QUERY_VALUE",
 ]
 
-#: Fields that can fill the chart: key -> label (units are added by the view).
-FIELDS = {
-    "height": vocab.FIELD_NAMES["height"],
-    "speed": vocab.FIELD_NAMES["speed"],
-    "geostrophic_speed": vocab.FIELD_NAMES["geostrophic_speed"],
-    "ageostrophic_speed": vocab.FIELD_NAMES["ageostrophic_speed"],
-    "ageostrophic_fraction": vocab.FIELD_NAMES["ageostrophic_fraction"],
-    "rossby_local": vocab.FIELD_NAMES["rossby_local"],
-    "vorticity": vocab.FIELD_NAMES["vorticity"],
-    "omega": vocab.FIELD_NAMES["omega"],
-    "temperature": vocab.FIELD_NAMES["temperature"],
-    **{f"term:{t}": f"|{vocab.term_name(t)}|" for t in TERMS},
-    "term:acceleration": f"|{vocab.term_name('acceleration')}|",
-    "term:centripetal": f"|{vocab.term_name('centripetal')}|",
-}
+#: Fields that can fill the chart: key -> label (the one table is :mod:`app.fields`).
+FIELDS = _FIELDS
 
 VECTORS = {
     "wind": "actual wind",

@@ -43,7 +43,7 @@ from typing import Any
 import numpy as np
 
 from .region import Region, weighted_stats
-from .vocabulary import TERM_NAMES
+from .vocabulary import BALANCE_CLASSES, TERM_NAMES
 
 __all__ = [
     "Thresholds",
@@ -58,23 +58,11 @@ __all__ = [
     "CLASSES",
 ]
 
-#: Candidate balances, simplest first, and the terms each adds up.
-CANDIDATES = {
-    "geostrophic": ("pressure_gradient", "coriolis"),
-    "cyclostrophic": ("pressure_gradient", "centripetal"),
-    "gradient": ("pressure_gradient", "coriolis", "centripetal"),
-    "frictional": ("pressure_gradient", "coriolis", "residual"),
-}
+#: Candidate balances, simplest first, and the terms each adds up (from the one table,
+#: :data:`balance_core.vocabulary.BALANCE_CLASSES`).
+CANDIDATES = {b.name: b.terms for b in BALANCE_CLASSES if b.terms is not None}
 #: Every class a verdict can take ("none": the data cannot support a verdict).
-CLASSES = (
-    "geostrophic",
-    "gradient",
-    "cyclostrophic",
-    "frictional",
-    "unsteady",
-    "unbalanced",
-    "none",
-)
+CLASSES = tuple(b.name for b in BALANCE_CLASSES)
 
 _PRETTY = TERM_NAMES
 

@@ -7,8 +7,12 @@ page's ranking, field menu, chart titles and exports all say these words.
 
 from __future__ import annotations
 
+import dataclasses
+
 __all__ = [
     "TERM_NAMES",
+    "BalanceClass",
+    "BALANCE_CLASSES",
     "BALANCE_NAMES",
     "SCALE_NAMES",
     "PRESET_NAMES",
@@ -35,16 +39,45 @@ TERM_NAMES = {
     "viscous": "friction (eddy viscosity)",
 }
 
-#: Balance classes of a verdict.
-BALANCE_NAMES = {
-    "geostrophic": "Geostrophic",
-    "gradient": "Gradient",
-    "cyclostrophic": "Cyclostrophic",
-    "frictional": "Frictional",
-    "unsteady": "Unsteady",
-    "unbalanced": "Unbalanced",
-    "none": "No verdict",
-}
+
+@dataclasses.dataclass(frozen=True)
+class BalanceClass:
+    """One class a verdict can take, and how every output shows it.
+
+    ``terms``: for a candidate balance, the budget terms whose vector sum it tests
+    (None for the other classes); ``colour``: the fill of its marks and bars (the
+    Okabe-Ito palette, safe for colour-blind readers; black and grey for the rest);
+    ``column``: the name of its imbalance ratio in the tables (CSV, batch, archive).
+    """
+
+    name: str
+    display: str
+    colour: str
+    terms: tuple | None = None
+
+    @property
+    def column(self) -> str | None:
+        return None if self.terms is None else f"ratio_{self.name}"
+
+
+#: The classes of a verdict, candidate balances first and simplest first (the verdict
+#: takes them in this order). Adding a balance here is all that the report, the tables,
+#: the page and the archive need; its rule goes in :mod:`balance_core.verdict`.
+BALANCE_CLASSES = (
+    BalanceClass("geostrophic", "Geostrophic", "#0072B2", ("pressure_gradient", "coriolis")),
+    BalanceClass("cyclostrophic", "Cyclostrophic", "#D55E00", ("pressure_gradient", "centripetal")),
+    BalanceClass(
+        "gradient", "Gradient", "#009E73", ("pressure_gradient", "coriolis", "centripetal")
+    ),
+    BalanceClass(
+        "frictional", "Frictional", "#E69F00", ("pressure_gradient", "coriolis", "residual")
+    ),
+    BalanceClass("unsteady", "Unsteady", "#CC79A7"),
+    BalanceClass("unbalanced", "Unbalanced", "#000000"),
+    BalanceClass("none", "No verdict", "#8c8c8c"),
+)
+#: Balance classes of a verdict: code name -> display name.
+BALANCE_NAMES = {b.name: b.display for b in BALANCE_CLASSES}
 
 #: Scales of the a priori analysis.
 SCALE_NAMES = {

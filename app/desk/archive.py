@@ -16,17 +16,16 @@ import panel as pn
 from bokeh.models import ColumnDataSource, HoverTool, Span
 from bokeh.plotting import figure
 
+from balance_core.vocabulary import BALANCE_CLASSES
+
 from .. import vocab
-from .look import BLUE, CAUTION, GREEN, INK, VERMILION, WIDGET_CSS, alert, esc, style_figure
+from .look import CAUTION, INK, WIDGET_CSS, alert, esc, style_figure
 from .systems import VERDICT_COLOURS
 
 __all__ = ["load_result", "ArchivePage", "make_archive_session"]
 
-RATIOS = {
-    "ratio_geostrophic": ("geostrophic", BLUE),
-    "ratio_gradient": ("gradient", GREEN),
-    "ratio_cyclostrophic": ("cyclostrophic", VERMILION),
-}
+#: the candidate balances' ratio columns of a batch result: column -> (code name, colour)
+RATIOS = {b.column: (b.name, b.colour) for b in BALANCE_CLASSES if b.column is not None}
 
 
 def load_result(path):
@@ -114,9 +113,7 @@ class ArchivePage(pn.viewable.Viewer):
                 tooltips=[
                     ("time", "@t{%a %d %b %Y %H UTC}"),
                     ("verdict", "@verdict"),
-                    ("geostrophic", "@ratio_geostrophic{0.00}"),
-                    ("gradient", "@ratio_gradient{0.00}"),
-                    ("cyclostrophic", "@ratio_cyclostrophic{0.00}"),
+                    *[(name, f"@{col}{{0.00}}") for col, (name, _) in RATIOS.items()],
                 ],
                 formatters={"@t": "datetime"},
             )
@@ -187,11 +184,16 @@ class ArchivePage(pn.viewable.Viewer):
         data = {"t": sel["valid_time"].to_numpy()}
         for k in RATIOS:
             data[k] = sel[k].to_numpy(dtype=float) if k in sel else np.full(len(sel), np.nan)
-        ratios = np.vstack([data[k] for k in RATIOS]) if len(sel) else np.zeros((3, 0))
-        data["y"] = (
-            np.nanmin(np.where(np.isfinite(ratios), ratios, np.inf), axis=0) if len(sel) else []
-        )
-        data["y"] = np.where(np.isfinite(data["y"]), data["y"], 0.0) if len(sel) else []
+        # each time's mark sits on the ratio of its verdict's balance (the smallest ratio
+        # where the verdict is no candidate balance)
+        ratios = np.vstack([data[k] for k in RATIOS]) if len(sel) else np.zeros((len(RATIOS), 0))
+        smallest = np.nanmin(np.where(np.isfinite(ratios), ratios, np.inf), axis=0)
+        column = {name: i for i, (name, _) in enumerate(RATIOS.values())}
+        own = [
+            ratios[column[v], i] if v in column else smallest[i]
+            for i, v in enumerate(sel["verdict"])
+        ]
+        data["y"] = np.where(np.isfinite(own), own, 0.0) if len(sel) else []
         data["verdict"] = [vocab.balance_name(v) for v in sel["verdict"]]
         data["colour"] = [VERDICT_COLOURS.get(v, "#8c8c8c") for v in sel["verdict"]]
         self.src.data = data

@@ -15,22 +15,16 @@ from __future__ import annotations
 import panel as pn
 import param
 
+from balance_core.vocabulary import BALANCE_CLASSES
+
 from .. import formats, vocab
 from ..state import ViewState
-from .look import BLUE, GREEN, INK, MUTED, ORANGE, PURPLE, VERMILION, WIDGET_CSS, alert, esc
+from .look import BLUE, INK, MUTED, WIDGET_CSS, alert, esc
 
 __all__ = ["SystemsPanel", "VERDICT_COLOURS", "KIND_MARKERS"]
 
-#: the fill of a system's mark by its verdict (Okabe-Ito; black and grey for the rest)
-VERDICT_COLOURS = {
-    "geostrophic": BLUE,
-    "gradient": GREEN,
-    "cyclostrophic": VERMILION,
-    "frictional": ORANGE,
-    "unsteady": PURPLE,
-    "unbalanced": "#000000",
-    "none": "#8c8c8c",
-}
+#: the fill of a system's mark by its verdict (from the one table of balance classes)
+VERDICT_COLOURS = {b.name: b.colour for b in BALANCE_CLASSES}
 #: the shape of a system's mark by its kind
 KIND_MARKERS = {"low": "circle", "high": "square", "jet_streak": "triangle"}
 _SHAPE_TEXT = {"low": "&#9679;", "high": "&#9632;", "jet_streak": "&#9650;"}
