@@ -102,7 +102,7 @@ def read_boxes(path) -> list:
     list of ``{name: ..., box: [...]}``."""
     import yaml
 
-    from .cli import _box  # the same checks as --box
+    from .inputs import InputError, parse_box  # the same rules as --box and the page
 
     try:
         with open(path, encoding="utf-8") as fh:
@@ -120,12 +120,9 @@ def read_boxes(path) -> list:
     boxes = []
     for name, box in items:
         try:
-            b = _box(",".join(str(v) for v in box))
-        except Exception:  # noqa: BLE001 - one sentence for any malformed entry
-            raise BatchError(
-                f"balance-desk batch: the box {name!r} in {path} is not four "
-                "numbers west, east, south, north"
-            ) from None
+            b = parse_box(box if isinstance(box, (list, tuple)) else str(box))
+        except InputError as exc:
+            raise BatchError(f"balance-desk batch: the box {name!r} in {path}: {exc}") from None
         boxes.append((str(name), tuple(b)))
     if not boxes:
         raise BatchError(f"balance-desk batch: {path} holds no boxes")

@@ -26,6 +26,8 @@ import pyproj  # noqa: F401
 
 from balance_core import PRESETS, ScaleSet, analyse_scales, classify_scales
 
+from .inputs import InputError, parse_box, parse_level, parse_levels, parse_member
+
 __all__ = ["main", "UsageError"]
 
 DEFAULT_PRESET = "synoptic_cyclone"
@@ -106,64 +108,26 @@ def _size(name):
     return conv
 
 
-def _levels(text):
-    out = []
-    for part in str(text).split(","):
+def _typed(option, parse, **kw):
+    """An argparse type from one of :mod:`app.inputs`' parsers: its sentence, after the
+    option it was typed in."""
+
+    def conv(text):
         try:
-            v = float(part)
-        except ValueError:
-            raise argparse.ArgumentTypeError(
-                f"--levels must be pressure levels in hPa such as 850,500,250, got {text!r}"
-            ) from None
-        if not (math.isfinite(v) and 1 <= v <= 1100):
-            raise argparse.ArgumentTypeError(f"--levels must lie from 1 to 1100 hPa, got {part}")
-        out.append(v)
-    return out
+            return parse(text, **kw)
+        except InputError as exc:
+            raise argparse.ArgumentTypeError(f"{option}: {exc}") from None
+
+    return conv
 
 
-def _level(text):
-    """A pressure level in hPa, or sea level ("msl")."""
-    from balance_core.io.analysis import SEA_LEVEL, is_sea_level
-
-    if is_sea_level(text):
-        return SEA_LEVEL
-    try:
-        v = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(
-            f"--level must be a pressure level in hPa or msl (sea level), got {text!r}"
-        ) from None
-    if not (math.isfinite(v) and 1 <= v <= 1100):
-        raise argparse.ArgumentTypeError(
-            f"--level must lie from 1 to 1100 hPa, or be msl (sea level), got {text!r}"
-        )
-    return v
+_levels = _typed("--levels", parse_levels)
+_level = _typed("--level", parse_level)
+_box = _typed("--box", parse_box)
 
 
 def _non_negative(name):
     return _number(name, 0.0)
-
-
-def _box(text):
-    parts = [t for t in text.replace(" ", "").split(",") if t != ""]
-    if len(parts) != 4:
-        raise argparse.ArgumentTypeError(f"--box needs WEST,EAST,SOUTH,NORTH, got {text!r}")
-    try:
-        vals = [float(t) for t in parts]
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"--box needs four numbers, got {text!r}") from None
-    if not all(math.isfinite(v) for v in vals):
-        raise argparse.ArgumentTypeError(f"--box needs finite numbers, got {text!r}")
-    w, e, s, n = vals
-    if not (-360 <= w <= 360 and -360 <= e <= 360):
-        raise argparse.ArgumentTypeError(
-            f"--box west {w:g} and east {e:g} must lie within -360 to 360 degrees"
-        )
-    if not -90 <= s < n <= 90:
-        raise argparse.ArgumentTypeError(
-            f"--box south {s:g} and north {n:g} must satisfy -90 <= south < north <= 90"
-        )
-    return vals
 
 
 def _reading_options(p, members="N|mean", budget=True):
@@ -601,15 +565,11 @@ def cmd_scales(args) -> int:
 # -- analyze -------------------------------------------------------------------------
 
 
-def _member(text):
-    if str(text).strip().lower() == "mean":
-        return "mean"
+def _member(text, allow_all=False):
     try:
-        return int(text)
-    except ValueError:
-        raise UsageError(
-            f"balance-desk analyze: --member must be an index or 'mean', got {text!r}"
-        ) from None
+        return parse_member(text, allow_all=allow_all)
+    except InputError as exc:
+        raise UsageError(f"balance-desk: --member: {exc}") from None
 
 
 def cmd_analyze(args) -> int:
@@ -674,9 +634,7 @@ def cmd_batch(args) -> int:
 
     from .batch import BatchError, read_boxes, run_batch
 
-    member = str(args.member).strip().lower()
-    if member not in ("all", "mean"):
-        member = str(_member(member))
+    member = str(_member(args.member, allow_all=True))
     try:
         if args.boxes:
             boxes = read_boxes(args.boxes)
@@ -819,8 +777,8 @@ def _token_of(text: str) -> str:
 
 def cmd_rooms_create(args) -> int:
     from .cases import case_names, case_paths
-    from .desk.room import room_link
     from .rooms import StoreError
+    from .rooms.export import room_link
 
     store, path = _store(args)
     case = args.case
@@ -841,8 +799,7 @@ def cmd_rooms_create(args) -> int:
 
 
 def cmd_rooms_list(args) -> int:
-    from .desk.room import room_link
-    from .rooms.export import stamp
+    from .rooms.export import room_link, stamp
 
     store, path = _store(args)
     rooms = store.rooms()

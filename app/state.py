@@ -127,17 +127,14 @@ def _finite(x) -> bool:
 
 
 def parse_box(vals):
-    """[W, E, S, N] as floats if they make a box (finite, |lon| <= 360, -90 <= S < N <= 90)."""
+    """[W, E, S, N] as floats if they make a box (:func:`app.inputs.parse_box`), else None."""
+    from .inputs import InputError
+    from .inputs import parse_box as parse
+
     try:
-        vals = [float(v) for v in vals]
-    except (TypeError, ValueError):
+        return parse(vals)
+    except (InputError, TypeError):
         return None
-    if len(vals) != 4 or not all(math.isfinite(v) for v in vals):
-        return None
-    w, e, s, n = vals
-    if not (-360 <= w <= 360 and -360 <= e <= 360 and -90 <= s < n <= 90) or w == e:
-        return None
-    return [w, e, s, n]
 
 
 @dataclasses.dataclass(frozen=True)

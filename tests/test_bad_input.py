@@ -300,7 +300,7 @@ CORPUS = {
     "box_three_numbers": (
         lambda t: nc(t, "ok7.nc", good()),
         ["--box", "0,10,50"],
-        "needs WEST,EAST,SOUTH,NORTH",
+        "four numbers west,east,south,north",
     ),
     "no_time_coordinate": (lambda t: nc(t, "nt.nc", no_time(good())), [], "has no time coordinate"),
     "numeric_time_without_units": (
@@ -316,7 +316,7 @@ CORPUS = {
     "member_not_an_index": (
         lambda t: nc(t, "ens2.nc", good()),
         ["--member", "first"],
-        "--member must be an index or 'mean'",
+        "--member: a member must be an index or 'mean'",
     ),
     "not_on_pressure_levels": (
         lambda t: nc(t, "hl.nc", height_levels(good())),

@@ -251,7 +251,7 @@ def test_bad_arguments_are_one_sentence(tmp_path):
                 "--out",
                 str(tmp_path / "a.csv"),
             ],
-            "--levels must lie",
+            "--levels: a level must lie",
         ),
         (
             [str(tmp_path / "x.nc"), "--levels", "500", "--out", str(tmp_path / "a.csv")],

@@ -34,8 +34,13 @@ def test_every_place_loops_over_the_balance_classes():
     assert list(CANDIDATES) == [b.name for b in BALANCE_CLASSES if b.terms]
     assert systems.VERDICT_COLOURS == {b.name: b.colour for b in BALANCE_CLASSES}
     assert {name for name, _ in archive.RATIOS.values()} == set(CANDIDATES)
-    out = {"case": "c", "level_hpa": 500.0, "level": 500.0, "valid_time": "2041-01-19T00:00:00Z",
-           "systems": []}
+    out = {
+        "case": "c",
+        "level_hpa": 500.0,
+        "level": 500.0,
+        "valid_time": "2041-01-19T00:00:00Z",
+        "systems": [],
+    }
     header = formats.systems_csv(out).splitlines()[0].split(",")
     assert {f"ratio_{c}" for c in CANDIDATES} <= set(header)
     legend = systems.legend_html()

@@ -16,7 +16,6 @@ from __future__ import annotations
 
 import io
 import logging
-import urllib.parse
 import uuid
 from functools import partial
 
@@ -24,7 +23,7 @@ import panel as pn
 
 from .. import compute
 from ..rooms import RoomError
-from ..rooms.export import describe_view, notes_json, notes_markdown, stamp
+from ..rooms.export import describe_view, notes_json, notes_markdown, room_link, stamp
 from ..rooms.hub import clean_name
 from ..rooms.store import MAX_NAME, MAX_NOTE, MAX_TITLE
 from ..state import URL_PARAMS, encode_query, parse_query
@@ -53,11 +52,6 @@ REMEMBER_NAME_JS = (
     f"if (v) {{ document.cookie = '{NAME_COOKIE}=' + encodeURIComponent(v) + "
     "'; path=/; max-age=31536000; SameSite=Strict'; }"
 )
-
-
-def room_link(base: str, token: str) -> str:
-    """The address of a room: ``BASE/room?room=TOKEN``."""
-    return f"{base.rstrip('/')}/room?{urllib.parse.urlencode({'room': token})}"
 
 
 def no_such_room():

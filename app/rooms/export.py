@@ -19,6 +19,14 @@ from ..state import parse_region
 __all__ = ["notes_markdown", "notes_json", "describe_view", "stamp"]
 
 
+def room_link(base: str, token: str) -> str:
+    """The address of a room: ``BASE/room?room=TOKEN`` (the rooms commands make it without
+    the page)."""
+    import urllib.parse
+
+    return f"{base.rstrip('/')}/room?{urllib.parse.urlencode({'room': token})}"
+
+
 def stamp(t: float) -> str:
     """A time of the room (seconds since the epoch) in the page's time format."""
     d = dt.datetime.fromtimestamp(float(t), tz=dt.UTC)
