@@ -20,7 +20,7 @@ import json
 import math
 import sys
 
-# pyproj before anything that may load eccodes (cfgrib): the other order makes
+# pyproj before anything that may load eccodes: the other order makes
 # the process crash at exit with the current binary wheels.
 import pyproj  # noqa: F401
 

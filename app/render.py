@@ -328,12 +328,6 @@ def sample(geom: ViewGeometry, field) -> np.ndarray:
     return out.astype(np.float32)
 
 
-def sample_points(geom: ViewGeometry, field, lon, lat):
-    """The field at arbitrary lon/lat points."""
-    rows, cols, _ = _index_map(geom.grid, np.asarray(lon, float), np.asarray(lat, float))
-    return sample(dataclasses.replace(geom, rows=rows, cols=cols), field)
-
-
 def interval_levels(zmin, zmax, interval):
     """Contour levels at every multiple of ``interval`` within [zmin, zmax]."""
     if not (np.isfinite(zmin) and np.isfinite(zmax) and interval > 0) or zmax < zmin:

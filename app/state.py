@@ -118,14 +118,6 @@ _AREA_PROJ = {
 _NUM = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
 
 
-def _finite(x) -> bool:
-    return (
-        isinstance(x, (int, float, np.floating, np.integer))
-        and not isinstance(x, bool)
-        and math.isfinite(float(x))
-    )
-
-
 def parse_box(vals):
     """[W, E, S, N] as floats if they make a box (:func:`app.inputs.parse_box`), else None."""
     from .inputs import InputError

@@ -347,10 +347,6 @@ def _zeros(shape):
     return np.broadcast_to(np.float64(0.0), shape)
 
 
-def _is_zeros(a) -> bool:
-    return a is not None and a.ndim > 0 and all(st == 0 for st in a.strides)
-
-
 class _Layout:
     """What the data can give at one (time, level): weights, availability, notes. No arrays."""
 

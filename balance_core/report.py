@@ -348,7 +348,6 @@ def box_report(
     *,
     thresholds: Thresholds = Thresholds(),
     nu: float = C.EDDY_VISCOSITY,
-    below_ground: int = 0,
     flow_length=None,
 ) -> dict:
     """Reduce one level's diagnostics over a region.
@@ -362,8 +361,6 @@ def box_report(
     nu : float
         Viscosity of the a priori viscous (friction) estimate: by default an eddy
         viscosity typical of the boundary layer, 10 m2 s-1 (common practice).
-    below_ground : int
-        Unused (the report counts the region's own from ``diag.below_ground``).
     flow_length : balance_core.scales.FlowLength, optional
         The flow's length scale where the caller knows it (a closed system's radius);
         else :func:`balance_core.scales.flow_length_scale` over the whole grid.

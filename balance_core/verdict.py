@@ -64,8 +64,6 @@ CANDIDATES = {b.name: b.terms for b in BALANCE_CLASSES if b.terms is not None}
 #: Every class a verdict can take ("none": the data cannot support a verdict).
 CLASSES = tuple(b.name for b in BALANCE_CLASSES)
 
-_PRETTY = TERM_NAMES
-
 
 @dataclasses.dataclass(frozen=True)
 class Thresholds:
@@ -556,7 +554,7 @@ def classify_budget(
         m = rms.get(name)
         if m is not None and m >= th.unexplained_share * p:
             cautions.append(
-                f"{_PRETTY[name].capitalize()} is {_pct(m / p)} of the "
+                f"{TERM_NAMES[name].capitalize()} is {_pct(m / p)} of the "
                 "pressure-gradient force and no candidate balance holds it: "
                 "check that term (or the data it comes from) before trusting "
                 "this verdict."
@@ -650,7 +648,9 @@ def _sentence(cls, ratios, tested=None) -> str:
     )
     if cls == "geostrophic":
         other = next((k for v, k in ranked if k != "coriolis"), None)
-        tail = f"; the largest other term is {_PRETTY[other]} ({_fmt(rms[other])})" if other else ""
+        tail = (
+            f"; the largest other term is {TERM_NAMES[other]} ({_fmt(rms[other])})" if other else ""
+        )
         return (
             f"Geostrophic: the pressure-gradient force ({_fmt(p)}) is balanced by Coriolis "
             f"({_fmt(cor)}) to within {_pct(ratios['geostrophic'])}{tail}."
@@ -734,7 +734,9 @@ def classify_scales(result, thresholds: Thresholds = Thresholds()) -> Verdict:
     }
     curved = result.scales.curved
     ro_txt = "n/a" if ro is None else f"{ro:.2g}"
-    listing = ", ".join(f"{_PRETTY[k]} {mags[k]:.1e}" for k in sorted(near, key=lambda k: -mags[k]))
+    listing = ", ".join(
+        f"{TERM_NAMES[k]} {mags[k]:.1e}" for k in sorted(near, key=lambda k: -mags[k])
+    )
     head = (
         f"By scales (magnitudes only, no signs): pressure gradient {p:.1e} m s-2, Rossby number "
         f"{ro_txt}; within a factor {th.comparable_factor:g}: {listing or 'no other term'}."

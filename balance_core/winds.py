@@ -341,10 +341,3 @@ class Flow:
         np.subtract(ax, sx, out=nx_)
         np.subtract(ay, sy, out=ny_)
         return out
-
-    def streamline_radius(self):
-        """Signed radius of curvature of the streamlines R_s = V^3 / (V x A) . k, m."""
-        ax, ay = self.advection
-        cross = self.u * ay - self.v * ax
-        with np.errstate(invalid="ignore", divide="ignore"):
-            return self.speed**3 / cross

@@ -13,12 +13,12 @@ from app.inputs import InputError, parse_box, parse_level, parse_levels, parse_m
     "text, ok",
     [
         ("10,40,30,50", True),
-        ("170,-170,30,50", True),      # across the date line
-        ("-180,180,-90,90", True),     # the whole circle
-        ("10,10,40,50", False),        # no width
-        ("10,40,50,30", False),        # south north of north
-        ("10,40,30", False),           # three numbers
-        ("10,400,30,50", False),       # beyond 360
+        ("170,-170,30,50", True),  # across the date line
+        ("-180,180,-90,90", True),  # the whole circle
+        ("10,10,40,50", False),  # no width
+        ("10,40,50,30", False),  # south north of north
+        ("10,40,30", False),  # three numbers
+        ("10,400,30,50", False),  # beyond 360
         ("10,nan,30,50", False),
         ("a,b,c,d", False),
     ],

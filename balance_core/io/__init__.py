@@ -1,7 +1,7 @@
 """The xarray edge of the core: read model output, hand numpy arrays and a Grid to the core.
 
-``open_case`` reads NetCDF (netCDF4 or h5netcdf), GRIB1/GRIB2 (cfgrib with
-eccodes) and Zarr, one file or several (valid times concatenated), lazily with
+``open_case`` reads NetCDF (netCDF4 or h5netcdf), GRIB1/GRIB2 (eccodes, through
+io/grib.py) and Zarr, one file or several (valid times concatenated), lazily with
 dask chunks. Variables are recognised by CF standard_name first, then by the
 common short and long names of the major centres' output; units go through
 pint. Projected grids get their map factors and meridian convergence from
@@ -11,7 +11,7 @@ Import order matters with the current binary wheels: pyproj is imported here
 before anything can load eccodes (see DEVELOPERS.md).
 """
 
-import pyproj  # noqa: F401  (before cfgrib/eccodes: the other order crashes at exit)
+import pyproj  # noqa: F401  (before eccodes: the other order crashes at exit)
 
 from .analysis import (
     SEA_LEVEL,

@@ -162,11 +162,10 @@ def analyse_case(
     t = case.time_index(time)
     sea = is_sea_level(level_hpa)
     if sea:
-        level_value, below = None, 0
+        level_value = None
     else:
         k = case.level_index(level_hpa)
         level_value = float(case.levels_pa[k] / 100)
-        below = int(case.below_ground.get(level_value, 0))
     region, box_d, inside = _region_and_box(case, box)
     if diagnostics is not None:
         diag = diagnostics
@@ -174,9 +173,7 @@ def analyse_case(
         diag = sea_level_diagnostics_for(case, t, smooth_km)
     else:
         diag = diagnostics_for(case, k, t, smooth_km)
-    rep = box_report(
-        diag, inside, thresholds=thresholds, below_ground=below, flow_length=flow_length
-    )
+    rep = box_report(diag, inside, thresholds=thresholds, flow_length=flow_length)
     out = {
         "case": case.name,
         "level_hpa": level_value,

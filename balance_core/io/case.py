@@ -24,6 +24,9 @@ from .units import to_numpy
 __all__ = ["Case", "open_case", "REQUIRED", "OPTIONAL"]
 
 REQUIRED = ("height",)
+#: Pressure-level fields a case may lack: without the wind, the heights still give the
+#: geostrophic wind and the closed systems (no budget); without omega or temperature,
+#: the terms that need them are unavailable with the reason.
 OPTIONAL = ("u", "v", "omega", "temperature")
 
 

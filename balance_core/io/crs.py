@@ -13,27 +13,7 @@ import pyproj
 
 from .errors import CaseError
 
-__all__ = ["crs_from_cf", "crs_from_grib", "GRIB_READ_KEYS", "projected_axes"]
-
-#: Keys to ask cfgrib for, beyond its defaults, so the projection can be built.
-GRIB_READ_KEYS = [
-    "shapeOfTheEarth",
-    "radius",
-    "LaDInDegrees",
-    "LoVInDegrees",
-    "Latin1InDegrees",
-    "Latin2InDegrees",
-    "orientationOfTheGridInDegrees",
-    "projectionCentreFlag",
-    "DxInMetres",
-    "DyInMetres",
-    "DiInMetres",
-    "DjInMetres",
-    "uvRelativeToGrid",
-    "resolutionAndComponentFlags",
-    "latitudeOfFirstGridPointInDegrees",
-    "longitudeOfFirstGridPointInDegrees",
-]
+__all__ = ["crs_from_cf", "crs_from_grib", "projected_axes"]
 
 # WMO GRIB2 code table 3.2: shape of the earth (spheres and the common ellipsoids)
 _EARTH = {
@@ -68,7 +48,8 @@ def _earth(attrs, path, variable):
 
 
 def crs_from_grib(attrs: dict, path=None, variable=None) -> pyproj.CRS | None:
-    """The CRS of a GRIB grid from cfgrib's GRIB_* attributes; None for lat-lon grids."""
+    """The CRS of a GRIB grid from the GRIB_* attributes the reader (io/grib.py) gives its
+    variables; None for lat-lon grids."""
     kind = attrs.get("GRIB_gridType")
     earth = _earth(attrs, path, variable)
     g = lambda k: float(attrs[f"GRIB_{k}"])  # noqa: E731

@@ -414,7 +414,7 @@ def _coordinates(path, msg: Message, shape, transposed):
 def open_grib(path, *, budget=None) -> list:
     """xarray Datasets of a GRIB file, one per (level kind, grid), lazily decoded.
 
-    Each data variable carries cfgrib-style attributes (``GRIB_shortName``,
+    Each data variable carries GRIB_* attributes (``GRIB_shortName``,
     ``GRIB_paramId``, ``GRIB_typeOfLevel``, ``GRIB_gridType`` and the grid keys
     the projection needs), ``units`` and ``long_name``. Dimensions are
     ``number`` (ensemble members, where there are several), ``valid_time``,
