@@ -249,7 +249,7 @@ def _band(case, regions):
             if span is not None:
                 rows[span[0] : span[1]] = True
     except ValueError:
-        return None  # analyse_case says what is wrong with the box
+        return None  # analyze_case says what is wrong with the box
     hit = np.nonzero(rows)[0]
     if hit.size == 0:
         return None
@@ -261,7 +261,7 @@ def run_task(task: Task) -> dict:
     """One piece of work, on a worker: {"rows": [...], "error": None or a sentence}."""
     import pyproj  # noqa: F401
 
-    from balance_core.io import CaseError, analyse_case, analyse_systems, diagnostics_for
+    from balance_core.io import CaseError, analyze_case, analyze_systems, diagnostics_for
 
     try:
         # (None, a file without members, opens as its only member: the case the plan opened)
@@ -273,12 +273,12 @@ def run_task(task: Task) -> dict:
         diag = diagnostics_for(case, k, task.time_index)
         rows = []
         if task.systems:
-            out = analyse_systems(case, task.level_hpa, task.time_index, diagnostics=diag)
+            out = analyze_systems(case, task.level_hpa, task.time_index, diagnostics=diag)
             for i, s in enumerate(out["systems"], 1):
                 rows.append(flatten(s["report"], task, f"{s['kind']} {i}", system=s))
         else:
             for name, box in task.regions:
-                rep = analyse_case(case, task.level_hpa, task.time_index, box, diagnostics=diag)
+                rep = analyze_case(case, task.level_hpa, task.time_index, box, diagnostics=diag)
                 rows.append(flatten(rep, task, name))
         return {"rows": rows, "error": None}
     except CaseError as exc:
@@ -286,7 +286,7 @@ def run_task(task: Task) -> dict:
     except Exception as exc:  # noqa: BLE001 - the run goes on; the sentence says what broke
         return {
             "rows": [],
-            "error": f"{os.path.basename(task.path)}: could not be analysed "
+            "error": f"{os.path.basename(task.path)}: could not be analyzed "
             f"({type(exc).__name__}: {exc})",
         }
 
@@ -509,7 +509,7 @@ def _not_analysed(path, task, exc, what="the workers running it died"):
         "member": None if task is None else str(task.member),
         "time_index": None if task is None else task.time_index,
         "level_hpa": None if task is None else task.level_hpa,
-        "error": f"not analysed: {what} ({type(exc).__name__}; a worker over its memory "
+        "error": f"not analyzed: {what} ({type(exc).__name__}; a worker over its memory "
         "limit is restarted by dask); run again to try it again",
     }
 

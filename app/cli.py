@@ -24,7 +24,7 @@ import sys
 # the process crash at exit with the current binary wheels.
 import pyproj  # noqa: F401
 
-from balance_core import PRESETS, ScaleSet, analyse_scales, classify_scales
+from balance_core import PRESETS, ScaleSet, analyze_scales, classify_scales
 
 from .inputs import InputError, parse_box, parse_level, parse_levels, parse_member
 
@@ -494,7 +494,7 @@ def scale_set_from_args(args) -> ScaleSet:
 
 def scales_report(s: ScaleSet) -> dict:
     """The JSON object of ``balance-desk scales``."""
-    r = analyse_scales(s)
+    r = analyze_scales(s)
     v = classify_scales(r)
     return {
         "preset": s.name,
@@ -573,9 +573,9 @@ def _member(text, allow_all=False):
 
 
 def cmd_analyze(args) -> int:
-    from balance_core.io import CaseError, analyse_case, open_case
+    from balance_core.io import CaseError, analyze_case, open_case
 
-    from . import formats
+    from . import report_files
 
     try:
         case = open_case(
@@ -584,15 +584,15 @@ def cmd_analyze(args) -> int:
             min_lat=args.min_lat,
             memory_budget=args.memory_budget,
         )
-        rep = analyse_case(case, args.level, args.time, args.box, smooth_km=args.smooth or None)
+        rep = analyze_case(case, args.level, args.time, args.box, smooth_km=args.smooth or None)
     except CaseError as exc:
         raise UsageError(str(exc)) from None
     if args.format == "json":
-        print(json.dumps(formats.clean(rep), indent=2))
+        print(json.dumps(report_files.clean(rep), indent=2))
     elif args.format == "csv":
-        print(formats.export_csv(rep, formats.context_of(rep)), end="")
+        print(report_files.export_csv(rep, report_files.context_of(rep)), end="")
     else:
-        print(formats.table(rep))
+        print(report_files.table(rep))
     return 0
 
 
@@ -600,9 +600,9 @@ def cmd_analyze(args) -> int:
 
 
 def cmd_systems(args) -> int:
-    from balance_core.io import CaseError, analyse_systems, open_case, track_systems
+    from balance_core.io import CaseError, analyze_systems, open_case, track_systems
 
-    from . import formats
+    from . import report_files
 
     try:
         case = open_case(
@@ -614,15 +614,15 @@ def cmd_systems(args) -> int:
         if args.track:
             out = track_systems(case, args.level, limit=int(args.limit))
         else:
-            out = analyse_systems(case, args.level, args.time, limit=int(args.limit))
+            out = analyze_systems(case, args.level, args.time, limit=int(args.limit))
     except CaseError as exc:
         raise UsageError(str(exc)) from None
     if args.format == "json":
-        print(json.dumps(formats.clean(out), indent=2))
+        print(json.dumps(report_files.clean(out), indent=2))
     elif args.format == "csv":
-        print(formats.systems_csv(out), end="")
+        print(report_files.systems_csv(out), end="")
     else:
-        print(formats.systems_table(out))
+        print(report_files.systems_table(out))
     return 0
 
 
@@ -778,7 +778,7 @@ def _token_of(text: str) -> str:
 def cmd_rooms_create(args) -> int:
     from .cases import case_names, case_paths
     from .rooms import StoreError
-    from .rooms.export import room_link
+    from .rooms.share import room_link
 
     store, path = _store(args)
     case = args.case
@@ -799,7 +799,7 @@ def cmd_rooms_create(args) -> int:
 
 
 def cmd_rooms_list(args) -> int:
-    from .rooms.export import room_link, stamp
+    from .rooms.share import room_link, stamp
 
     store, path = _store(args)
     rooms = store.rooms()
@@ -817,7 +817,7 @@ def cmd_rooms_list(args) -> int:
 
 
 def cmd_rooms_export(args) -> int:
-    from .rooms.export import notes_json, notes_markdown
+    from .rooms.share import notes_json, notes_markdown
 
     store, _ = _store(args)
     room = store.room(_token_of(args.room))

@@ -3,7 +3,7 @@
 Pure functions of (library, state) returning plain data; the page only draws
 what they return, and the tests drive them directly. All physics comes from
 balance_core (the budget, the winds, the statistics, the verdict); the words and
-formats from :mod:`app.vocab`.
+formats from :mod:`app.wording`.
 """
 
 from __future__ import annotations
@@ -13,14 +13,14 @@ import math
 
 import numpy as np
 
-from balance_core import Region, analyse_scales, classify_scales
+from balance_core import Region, analyze_scales, classify_scales
 from balance_core.io import CaseError, iso
 from balance_core.io.analysis import SEA_LEVEL as SEA_LEVEL_NAME
-from balance_core.io.analysis import analyse_case
+from balance_core.io.analysis import analyze_case
 from balance_core.scales import PRESETS, SCALE_TERMS
 from balance_core.verdict import Thresholds
 
-from . import render, vocab
+from . import render, wording
 from .fields import field_values
 from .library import SEA_LEVEL_INDEX
 from .state import (
@@ -66,7 +66,7 @@ class Selection:
 
     @property
     def when(self) -> str:
-        return vocab.when(self.valid_time, self.reference_time)
+        return wording.when(self.valid_time, self.reference_time)
 
 
 def resolve(library, state: ViewState) -> Selection:
@@ -244,7 +244,7 @@ def chart_data(library, state: ViewState) -> ChartData:
         ur = render.sample(geom, uu)
         vr = render.sample(geom, vv)
         vectors = render.vector_lattice(geom, ur, vr, n_across=18)
-        ref, wunit = vocab.wind(vectors["ref_speed"], state.wind_units)
+        ref, wunit = wording.wind(vectors["ref_speed"], state.wind_units)
         speed = _round_speed(float(ref))
         vlabel = f"Vectors: {VECTORS[kind_of_vectors]}" + (" at 10 m" if diag.surface else "")
         x0, x1, y0, y1 = geom.extent
@@ -339,8 +339,8 @@ def _contour_field(geom, diag, sel, state):
             contour_interval(None) / 100.0,
             "isobars",
         )
-    zr, zunits = vocab.height(render.sample(geom, diag.height), state.height_units)
-    k = vocab.HEIGHT_UNITS[state.height_units][1]
+    zr, zunits = wording.height(render.sample(geom, diag.height), state.height_units)
+    k = wording.HEIGHT_UNITS[state.height_units][1]
     return zr, zunits, contour_interval(sel.level_hpa * 100.0) * k, "height contours"
 
 
@@ -364,10 +364,10 @@ def _hover(geom, diag, vals, state, units, n_across=40):
     if diag.surface:
         z, zu = render.sample(sub, diag.sea_level_pressure) / 100.0, "hPa"
     else:
-        z, zu = vocab.height(render.sample(sub, diag.height), state.height_units)
+        z, zu = wording.height(render.sample(sub, diag.height), state.height_units)
     u = render.sample(sub, diag.u)
     v = render.sample(sub, diag.v)
-    spd, wu = vocab.wind(np.hypot(u, v), state.wind_units)
+    spd, wu = wording.wind(np.hypot(u, v), state.wind_units)
     direction = (np.degrees(np.arctan2(-u, -v)) + 360) % 360  # where the wind comes from
     ok = np.isfinite(f) | np.isfinite(z)
     dx = (geom.xs[-1] - geom.xs[0]) / max(nx - 1, 1) * step
@@ -407,7 +407,7 @@ def box_data(library, state: ViewState, thresholds: Thresholds = Thresholds()) -
     sel = resolve(library, state)
     diag = _diag(library, state, sel)
     case = library.case_for(state.case, state.min_lat)
-    rep = analyse_case(
+    rep = analyze_case(
         case,
         core_level(sel.level_hpa),
         sel.time_index,
@@ -596,7 +596,7 @@ def scale_sheet(state: ViewState, box_report: dict | None) -> dict:
         error = None
     except ValueError as exc:
         s, error = base, str(exc)
-    res = analyse_scales(s)
+    res = analyze_scales(s)
     verdict = classify_scales(res)
     box_scales = (box_report or {}).get("scales") or {}
     rows = (box_report or {}).get("terms", []) + (box_report or {}).get("derived", [])
@@ -611,8 +611,8 @@ def scale_sheet(state: ViewState, box_report: dict | None) -> dict:
         term_rows.append(
             {
                 "name": name,
-                "label": vocab.term_name(name),
-                "data_label": vocab.term_name(data_name)
+                "label": wording.term_name(name),
+                "data_label": wording.term_name(data_name)
                 + (" (all that is unresolved)" if name == "viscous" else ""),
                 "sheet": mag,
                 "from_box_scales": estimated.get(data_name),
@@ -625,7 +625,7 @@ def scale_sheet(state: ViewState, box_report: dict | None) -> dict:
         scale_rows.append(
             {
                 "name": k,
-                "label": vocab.SCALE_NAMES.get(k, k),
+                "label": wording.SCALE_NAMES.get(k, k),
                 "sheet": getattr(s, k),
                 "from_box": box_k,
                 "edited": k in changes,
@@ -634,7 +634,7 @@ def scale_sheet(state: ViewState, box_report: dict | None) -> dict:
     scale_rows.append(
         {
             "name": "f0",
-            "label": vocab.SCALE_NAMES["f0"],
+            "label": wording.SCALE_NAMES["f0"],
             "sheet": s.f0,
             "from_box": box_scales.get("f0"),
             "edited": False,
@@ -642,7 +642,7 @@ def scale_sheet(state: ViewState, box_report: dict | None) -> dict:
     )
     return {
         "preset": state.preset,
-        "preset_label": vocab.preset_name(state.preset),
+        "preset_label": wording.preset_name(state.preset),
         "source": s.source,
         "scales": scale_rows,
         "terms": term_rows,
@@ -682,20 +682,20 @@ def system_region_spec(r: dict, radius_m: float | None = None):
 
 def systems_data(library, state: ViewState, thresholds: Thresholds = Thresholds()) -> dict:
     """The weather systems of the state's level and time, each with its region's report
-    (:func:`balance_core.io.analyse_systems`), shared by every session that shows them.
+    (:func:`balance_core.io.analyze_systems`), shared by every session that shows them.
 
     Returns ``systems`` (lows and highs by depth, then jet streaks by peak speed; each
     with ``label``, ``region_text``, ``region`` for the view state, ``verdict``), ``rules``
     and ``when``.
     """
-    from balance_core.io import analyse_systems
+    from balance_core.io import analyze_systems
 
-    from . import formats
+    from . import report_files
 
     def make():
         sel = resolve(library, state)
         case = library.case_for(state.case, state.min_lat)
-        out = analyse_systems(
+        out = analyze_systems(
             case,
             core_level(sel.level_hpa),
             sel.time_index,
@@ -725,9 +725,9 @@ def systems_data(library, state: ViewState, thresholds: Thresholds = Thresholds(
                     "outer_level": s["outer_level"],
                     "units": s.get("units", "m"),
                     "note": s.get("note", ""),
-                    "intensity_text": formats.intensity_text(s),
+                    "intensity_text": report_files.intensity_text(s),
                     "region": region,
-                    "region_text": formats.system_region_text(s["region"]),
+                    "region_text": report_files.system_region_text(s["region"]),
                     "verdict": rep["verdict"]["balance"],
                     "verdict_text": rep["verdict"]["text"],
                     "points": rep.get("points", 0),

@@ -17,7 +17,7 @@ import numpy as np
 from balance_core import TERMS
 from balance_core.io import CaseError
 
-from . import vocab
+from . import wording
 
 __all__ = ["ChartField", "CHART_FIELDS", "FIELDS", "field_values"]
 
@@ -41,12 +41,12 @@ class ChartField:
 def _height(diag, state):
     if diag.surface:
         return diag.sea_level_pressure / 100.0, "hPa"
-    return vocab.height(diag.height, state.height_units)
+    return wording.height(diag.height, state.height_units)
 
 
 def _speed(of):
     def make(diag, state):
-        return vocab.wind(of(diag), state.wind_units)
+        return wording.wind(of(diag), state.wind_units)
 
     return make
 
@@ -67,49 +67,52 @@ def _term(name):
     def make(diag, state):
         t = diag.budget[name]
         if not t.available:
-            raise CaseError(f"the {vocab.term_name(name)} term is unavailable: {t.note}")
+            raise CaseError(f"the {wording.term_name(name)} term is unavailable: {t.note}")
         return t.magnitude(), "m s-2"
 
     return make
 
 
 CHART_FIELDS = (
-    ChartField("height", vocab.FIELD_NAMES["height"], "sequential", _height, wind=False),
-    ChartField("speed", vocab.FIELD_NAMES["speed"], "sequential", _speed(lambda d: d.speed)),
+    ChartField("height", wording.FIELD_NAMES["height"], "sequential", _height, wind=False),
+    ChartField("speed", wording.FIELD_NAMES["speed"], "sequential", _speed(lambda d: d.speed)),
     ChartField(
         "geostrophic_speed",
-        vocab.FIELD_NAMES["geostrophic_speed"],
+        wording.FIELD_NAMES["geostrophic_speed"],
         "sequential",
         _speed(lambda d: d.geostrophic_speed),
         wind=False,
     ),
     ChartField(
         "ageostrophic_speed",
-        vocab.FIELD_NAMES["ageostrophic_speed"],
+        wording.FIELD_NAMES["ageostrophic_speed"],
         "sequential",
         _speed(lambda d: np.hypot(d.u - d.ug, d.v - d.vg)),
     ),
     ChartField(
         "ageostrophic_fraction",
-        vocab.FIELD_NAMES["ageostrophic_fraction"],
+        wording.FIELD_NAMES["ageostrophic_fraction"],
         "sequential",
         lambda d, s: (np.clip(d.ageostrophic_fraction, 0, 2), ""),
     ),
     ChartField(
-        "rossby_local", vocab.FIELD_NAMES["rossby_local"], "log", lambda d, s: (d.rossby_local, "")
+        "rossby_local",
+        wording.FIELD_NAMES["rossby_local"],
+        "log",
+        lambda d, s: (d.rossby_local, ""),
     ),
     ChartField(
         "vorticity",
-        vocab.FIELD_NAMES["vorticity"],
+        wording.FIELD_NAMES["vorticity"],
         "diverging",
         lambda d, s: (d.vorticity * 1e5, "1e-5 s-1"),
     ),
-    ChartField("omega", vocab.FIELD_NAMES["omega"], "diverging", _omega),
+    ChartField("omega", wording.FIELD_NAMES["omega"], "diverging", _omega),
     ChartField(
-        "temperature", vocab.FIELD_NAMES["temperature"], "sequential", _temperature, wind=False
+        "temperature", wording.FIELD_NAMES["temperature"], "sequential", _temperature, wind=False
     ),
     *[
-        ChartField(f"term:{t}", f"|{vocab.term_name(t)}|", "log", _term(t))
+        ChartField(f"term:{t}", f"|{wording.term_name(t)}|", "log", _term(t))
         for t in (*TERMS, "acceleration", "centripetal")
     ],
 )
@@ -124,7 +127,7 @@ def field_values(key, diag, state):
     sentence where the data cannot give it."""
     field = _BY_KEY.get(key)
     if field is None:
-        raise CaseError(f"unknown field {vocab.quote(key)}")
+        raise CaseError(f"unknown field {wording.quote(key)}")
     if field.wind and diag.no_wind:
         raise CaseError(f"{diag.no_wind}, so the chart has no {field.label}")
     values, units = field.make(diag, state)

@@ -27,7 +27,7 @@ import param
 from balance_core import Region
 from balance_core.scales import PRESETS
 
-from . import vocab
+from . import wording
 from .fields import FIELDS as _FIELDS
 
 __all__ = [
@@ -198,21 +198,21 @@ class RegionSpec:
     def describe(self) -> str:
         if self.kind == "box":
             w, e, s, n = self.bounds
-            return f"box {vocab.lon(w)} to {vocab.lon(e)}, {vocab.lat(s)} to {vocab.lat(n)}"
+            return f"box {wording.lon(w)} to {wording.lon(e)}, {wording.lat(s)} to {wording.lat(n)}"
         if self.kind == "circle":
             ((lon, lat),) = self.corners
-            return f"within {self.radius_km:.0f} km of {vocab.lat(lat)} {vocab.lon(lon)}"
+            return f"within {self.radius_km:.0f} km of {wording.lat(lat)} {wording.lon(lon)}"
         if self.proj[0] == "aeqd":
             params = dict(self.proj[1])
             return (
-                f"area along the flow around {vocab.lat(params['lat_0'])} "
-                f"{vocab.lon(params['lon_0'])}"
+                f"area along the flow around {wording.lat(params['lat_0'])} "
+                f"{wording.lon(params['lon_0'])}"
             )
         lons, lats = self.outline(8)
         return (
-            f"drawn area {vocab.lon(float(np.nanmin(lons)))} to "
-            f"{vocab.lon(float(np.nanmax(lons)))}, {vocab.lat(float(np.nanmin(lats)))} to "
-            f"{vocab.lat(float(np.nanmax(lats)))}"
+            f"drawn area {wording.lon(float(np.nanmin(lons)))} to "
+            f"{wording.lon(float(np.nanmax(lons)))}, {wording.lat(float(np.nanmin(lats)))} to "
+            f"{wording.lat(float(np.nanmax(lats)))}"
         )
 
     @property
@@ -470,7 +470,7 @@ def parse_query(query: dict, *, cases=None):
 
 def _parse_one(k, raw, cases, defaults):
     p = defaults[k]
-    shown = vocab.quote(raw)
+    shown = wording.quote(raw)
     if k == "case":
         if cases is not None and raw not in cases:
             raise ValueError(f"{shown} is not a case on this server")
@@ -522,6 +522,6 @@ def _parse_sheet(raw) -> dict:
             or not re.fullmatch(_NUM, v.strip())
             or not math.isfinite(float(v))
         ):
-            raise ValueError(f"{vocab.quote(kv)} is not a scale and a number")
+            raise ValueError(f"{wording.quote(kv)} is not a scale and a number")
         out[k] = float(v)
     return out

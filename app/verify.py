@@ -17,8 +17,8 @@ from balance_core import (
     PRESETS,
     Fields,
     Grid,
-    analyse_scales,
     analytic,
+    analyze_scales,
     classify_scales,
     momentum_budget,
     thermo,
@@ -45,7 +45,7 @@ class CheckResult:
 def check_synoptic_scales() -> CheckResult:
     """The synoptic scale table: orders of magnitude and a geostrophic verdict."""
     s = PRESETS["synoptic_cyclone"]
-    r = analyse_scales(s)
+    r = analyze_scales(s)
     expected = {
         "acceleration": -4,
         "metric_uv": -5,

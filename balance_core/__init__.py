@@ -19,7 +19,7 @@ only on request, so the compute modules never pull in xarray.
 from .budget import DERIVED, FORCING_TERMS, TERMS, Budget, Fields, Term, momentum_budget
 from .grid import Grid, coriolis_parameter
 from .region import Region, vector_stats, weighted_stats
-from .scales import PRESETS, ScaleSet, analyse_scales, estimate_scales
+from .scales import PRESETS, ScaleSet, analyze_scales, estimate_scales
 from .verdict import Thresholds, Verdict, budget_verdict, classify_budget, classify_scales
 from .winds import Flow, geostrophic_wind, gradient_wind
 
@@ -40,7 +40,7 @@ __all__ = [
     "weighted_stats",
     "PRESETS",
     "ScaleSet",
-    "analyse_scales",
+    "analyze_scales",
     "estimate_scales",
     "Thresholds",
     "Verdict",

@@ -51,7 +51,7 @@ from typing import Any
 import numpy as np
 
 from . import _memory
-from . import constants as c
+from . import constants as C
 from .grid import Grid, derivative_weights
 from .thermo import standard_atmosphere_density
 from .winds import Flow
@@ -399,31 +399,31 @@ class _Layout:
         return name not in self.missing
 
 
-def _allocate(L: _Layout, shape, views: bool) -> Budget:
+def _allocate(layout: _Layout, shape, views: bool) -> Budget:
     """The output Budget: every field a view into one block (see :mod:`._memory`).
 
     One large allocation is mapped with huge pages where the system allows and
     is recycled once no budget refers to it, where dozens of separate arrays
     would each pay for their own page faults.
     """
-    names = [n for n in TERMS if L.available(n)]
+    names = [n for n in TERMS if layout.available(n)]
     derived = list(DERIVED) if views else []
     n_arrays = 2 * (len(names) + len(derived)) - ("coriolis_w" in names)
     slots = iter(_memory.take((n_arrays,) + tuple(shape)))
     terms = {}
     for n in TERMS:
-        if not L.available(n):
-            terms[n] = Term(n, None, None, L.missing[n])
+        if not layout.available(n):
+            terms[n] = Term(n, None, None, layout.missing[n])
         elif n == "coriolis_w":
             terms[n] = Term(n, next(slots), _zeros(shape))  # no y part, by definition
         else:
             terms[n] = Term(
-                n, next(slots), next(slots), L.residual_note if n == "residual" else None
+                n, next(slots), next(slots), layout.residual_note if n == "residual" else None
             )
     notes = []
-    if not L.available("vertical_advection"):
+    if not layout.available("vertical_advection"):
         notes.append("without vertical advection")
-    if not L.available("tendency"):
+    if not layout.available("tendency"):
         notes.append("without the local tendency (one time): the steady-state value")
     der = {}
     for n in derived:
@@ -433,11 +433,11 @@ def _allocate(L: _Layout, shape, views: bool) -> Budget:
     return Budget(
         terms=terms,
         derived=der,
-        residual_includes=L.includes,
-        notes=list(L.notes),
-        level_pa=L.p,
-        time_index=L.it,
-        level_index=L.ik,
+        residual_includes=layout.includes,
+        notes=list(layout.notes),
+        level_pa=layout.p,
+        time_index=layout.it,
+        level_index=layout.ik,
     )
 
 
@@ -471,7 +471,9 @@ def _grad_rows(gb: Grid, gi: Grid, fh, a: int, b: int, factor=None):
     return gx[a:b], gy[a:b]
 
 
-def _fill_band(grid: Grid, fields: Fields, L: _Layout, out: Budget, j0: int, j1: int, views: bool):
+def _fill_band(
+    grid: Grid, fields: Fields, layout: _Layout, out: Budget, j0: int, j1: int, views: bool
+):
     """Every term of rows j0..j1-1, written straight into ``out``.
 
     Derivatives across rows use one halo row each side (from the whole field),
@@ -483,7 +485,7 @@ def _fill_band(grid: Grid, fields: Fields, L: _Layout, out: Budget, j0: int, j1:
     gb = grid if (h0, h1) == (0, ny) else grid.rows(h0, h1)
     gi = grid if (j0, j1) == (0, ny) else grid.rows(j0, j1)
     a, b = j0 - h0, j1 - h0
-    it, ik, rows = L.it, L.ik, slice(j0, j1)
+    it, ik, rows = layout.it, layout.ik, slice(j0, j1)
     uh = _f64(fields.u[it, ik, h0:h1])
     vh = _f64(fields.v[it, ik, h0:h1])
     u, v = uh[a:b], vh[a:b]
@@ -491,20 +493,20 @@ def _fill_band(grid: Grid, fields: Fields, L: _Layout, out: Budget, j0: int, j1:
     w: Any = None  # w, w / a and omega where the data give omega
     w_over_a: Any = None
     om: Any = None
-    if L.has_omega:
+    if layout.has_omega:
         om = _f64(fields.omega[it, ik, rows])
-        if L.has_temperature:  # w = -omega / (rho g), rho = p / (R_d T)
+        if layout.has_temperature:  # w = -omega / (rho g), rho = p / (R_d T)
             w = np.multiply(om, fields.temperature[it, ik, rows], dtype=np.float64)
-            w *= -c.R_DRY / (L.p * c.G0)
+            w *= -C.R_DRY / (layout.p * C.G0)
         else:
-            w = om * (-1.0 / (c.G0 * float(L.rho_std or 0.0)))
+            w = om * (-1.0 / (C.G0 * float(layout.rho_std or 0.0)))
         w_over_a = w * (1.0 / grid.radius)
 
     def o(name, comp):
         return getattr(out.terms[name], comp)[rows]
 
     zh = fields.height[it, ik, h0:h1]
-    pgf_x, pgf_y = _grad_rows(gb, gi, zh, a, b, factor=-c.G0)
+    pgf_x, pgf_y = _grad_rows(gb, gi, zh, a, b, factor=-C.G0)
     o("pressure_gradient", "x")[...] = pgf_x
     o("pressure_gradient", "y")[...] = pgf_y
     for comp, q, qh in (("x", fields.u, uh), ("y", fields.v, vh)):
@@ -514,14 +516,16 @@ def _fill_band(grid: Grid, fields: Fields, L: _Layout, out: Budget, j0: int, j1:
         np.multiply(dqdx, neg_u, out=adv)  # -(u dq/dx + v dq/dy)
         dqdy *= v
         adv -= dqdy
-        if L.t_ids is not None:
+        if layout.t_ids is not None:
             _weighted_sum(
-                [q0 if i == it else q[i, ik, rows] for i in L.t_ids], L.t_w, o("tendency", comp)
+                [q0 if i == it else q[i, ik, rows] for i in layout.t_ids],
+                layout.t_w,
+                o("tendency", comp),
             )
-        if L.available("vertical_advection"):  # -omega dq/dp
+        if layout.available("vertical_advection"):  # -omega dq/dp
             va = _weighted_sum(
-                [q0 if k == ik else q[it, k, rows] for k in L.p_ids],
-                [-x for x in L.p_w],
+                [q0 if k == ik else q[it, k, rows] for k in layout.p_ids],
+                [-x for x in layout.p_w],
                 o("vertical_advection", comp),
             )
             va *= om
@@ -539,20 +543,20 @@ def _fill_band(grid: Grid, fields: Fields, L: _Layout, out: Budget, j0: int, j1:
         np.negative(muy, out=muy)
         np.multiply(w, -2.0 * grid.omega * gi.cos_lat, out=o("coriolis_w", "x"))
     for comp in ("x", "y"):
-        _residual_into(L, out, rows, comp)
+        _residual_into(layout, out, rows, comp)
     if views:
-        _derived_into(gi, L, out, rows, u, v)
+        _derived_into(gi, layout, out, rows, u, v)
 
 
-def _residual_into(L: _Layout, out: Budget, rows, comp):
+def _residual_into(layout: _Layout, out: Budget, rows, comp):
     """residual = tendency - sum of the forcing terms (or -sum without a tendency)."""
     res = getattr(out.terms["residual"], comp)[rows]
     parts = [
         getattr(out.terms[n], comp)[rows]
         for n in FORCING_TERMS
-        if L.available(n) and not (n == "coriolis_w" and comp == "y")
+        if layout.available(n) and not (n == "coriolis_w" and comp == "y")
     ]
-    if L.t_ids is None:
+    if layout.t_ids is None:
         np.add(parts[0], parts[1], out=res)
         for p in parts[2:]:
             res += p
@@ -563,17 +567,17 @@ def _residual_into(L: _Layout, out: Budget, rows, comp):
         res -= p
 
 
-def _derived_into(gi: Grid, L: _Layout, out: Budget, rows, u, v):
+def _derived_into(gi: Grid, layout: _Layout, out: Budget, rows, u, v):
     """DV/Dt and the natural-coordinate split of the horizontal advection."""
     hadv = out.terms["horizontal_advection"]
     for comp in ("x", "y"):
         acc = getattr(out.derived["acceleration"], comp)[rows]
         h = getattr(hadv, comp)[rows]
-        if L.t_ids is not None:
+        if layout.t_ids is not None:
             np.subtract(getattr(out.terms["tendency"], comp)[rows], h, out=acc)
         else:
             np.negative(h, out=acc)
-        if L.available("vertical_advection"):
+        if layout.available("vertical_advection"):
             acc -= getattr(out.terms["vertical_advection"], comp)[rows]
     s, n = out.derived["along_stream"], out.derived["centripetal"]
     Flow(gi, u, v).natural_split(
@@ -595,7 +599,7 @@ def isallobaric_wind(grid: Grid, height_tendency):
     across the grid is left out, as in the textbook form); NaN in the tropical mask.
     """
     gx, gy = grid.grad(np.asarray(height_tendency, dtype=np.float64))
-    k = -c.G0 * grid.inverse_f**2
+    k = -C.G0 * grid.inverse_f**2
     return gx * k, gy * k
 
 

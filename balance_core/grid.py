@@ -36,7 +36,7 @@ from functools import cached_property
 
 import numpy as np
 
-from . import constants
+from . import constants as C
 
 __all__ = [
     "Grid",
@@ -47,7 +47,7 @@ __all__ = [
 ]
 
 
-def coriolis_parameter(lat_deg, omega: float = constants.OMEGA):
+def coriolis_parameter(lat_deg, omega: float = C.OMEGA):
     """Coriolis parameter f = 2 Omega sin(phi), s-1.
 
     Parameters
@@ -455,8 +455,8 @@ class Grid:
         lat,
         lon,
         *,
-        radius: float = constants.EARTH_RADIUS,
-        omega: float = constants.OMEGA,
+        radius: float = C.EARTH_RADIUS,
+        omega: float = C.OMEGA,
         min_lat: float = 10.0,
         pole_limit: float = 89.99,
         coriolis=None,
@@ -567,8 +567,8 @@ class Grid:
         y,
         crs,
         *,
-        radius: float = constants.EARTH_RADIUS,
-        omega: float = constants.OMEGA,
+        radius: float = C.EARTH_RADIUS,
+        omega: float = C.OMEGA,
         min_lat: float = 10.0,
         pole_limit: float = 89.99,
         coriolis=None,

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from . import constants as c
+from . import constants as C
 from .grid import derivative_along
 from .thermo import potential_temperature
 
@@ -91,20 +91,20 @@ def brunt_vaisala_squared(temperature, pressure, axis: int = 0):
     pp = p.reshape(shape)
     ln_theta = np.log(potential_temperature(t, pp))
     dlntheta_dlnp = derivative_along(ln_theta, np.log(p), axis)
-    return -(c.G0**2) / (c.R_DRY * t) * dlntheta_dlnp
+    return -(C.G0**2) / (C.R_DRY * t) * dlntheta_dlnp
 
 
 def brunt_vaisala_squared_height(theta, height, axis: int = 0):
     """N^2 = (g / theta) dtheta/dz from potential temperature on height levels (m)."""
     th = _f64(theta)
-    return c.G0 / th * derivative_along(th, _f64(height), axis)
+    return C.G0 / th * derivative_along(th, _f64(height), axis)
 
 
 def vertical_shear_squared(u, v, temperature, pressure, axis: int = 0):
     """|dV/dz|^2 on pressure levels, s-2, with d/dz = -(g / (R_d T)) d/dln(p) (hydrostatic)."""
     p = _f64(pressure)
     t = _f64(temperature)
-    k = -c.G0 / (c.R_DRY * t)  # dln(p)/dz
+    k = -C.G0 / (C.R_DRY * t)  # dln(p)/dz
     lnp = np.log(p)
     dudz = derivative_along(u, lnp, axis) * k
     dvdz = derivative_along(v, lnp, axis) * k

@@ -26,14 +26,14 @@ import math
 
 import numpy as np
 
-from . import constants as c
+from . import constants as C
 from .numbers import burger_number, deformation_radius, ekman_number, froude_number, rossby_number
 
 __all__ = [
     "ScaleSet",
     "ScaleResult",
     "PRESETS",
-    "analyse_scales",
+    "analyze_scales",
     "estimate_scales",
     "SCALE_TERMS",
     "estimate_for_term",
@@ -79,8 +79,8 @@ class ScaleSet:
     rho: float = 1.0
     f0: float | None = None
     lat0: float | None = None
-    a: float = c.EARTH_RADIUS
-    nu: float = c.NU_AIR
+    a: float = C.EARTH_RADIUS
+    nu: float = C.NU_AIR
     n2: float | None = None
     curved: bool = False
     name: str = "custom"
@@ -102,15 +102,15 @@ class ScaleSet:
         if self.f0 is not None and not math.isfinite(self.f0):
             raise ValueError("f0 must be a finite number")
         if self.lat0 is None:
-            ratio = self.f0 / (2 * c.OMEGA)
+            ratio = self.f0 / (2 * C.OMEGA)
             if abs(ratio) > 1:
                 raise ValueError(
-                    f"|f0| = {abs(self.f0):.3g} s-1 exceeds 2 Omega = {2 * c.OMEGA:.3g} s-1; "
+                    f"|f0| = {abs(self.f0):.3g} s-1 exceeds 2 Omega = {2 * C.OMEGA:.3g} s-1; "
                     "no latitude has it"
                 )
             object.__setattr__(self, "lat0", math.degrees(math.asin(ratio)))
         if self.f0 is None:
-            object.__setattr__(self, "f0", 2 * c.OMEGA * math.sin(math.radians(self.lat0)))
+            object.__setattr__(self, "f0", 2 * C.OMEGA * math.sin(math.radians(self.lat0)))
 
     def replace(self, **changes) -> ScaleSet:
         """A copy with some scales changed (f0 and lat0 re-derived as needed)."""
@@ -139,7 +139,7 @@ class ScaleResult:
         return dict(self.terms)[name]
 
 
-def analyse_scales(s: ScaleSet) -> ScaleResult:
+def analyze_scales(s: ScaleSet) -> ScaleResult:
     """Magnitudes of the momentum-equation terms and the numbers of a ScaleSet.
 
     See the module docstring for the formulas. Numbers: Rossby U / (|f0| L),
@@ -156,7 +156,7 @@ def analyse_scales(s: ScaleSet) -> ScaleResult:
         "metric_uw": s.U * s.W / s.a,
         "pressure_gradient": s.dP / (s.rho * s.L),
         "coriolis": abs(f0) * s.U,
-        "coriolis_w": 2 * c.OMEGA * abs(math.cos(math.radians(lat0))) * s.W,
+        "coriolis_w": 2 * C.OMEGA * abs(math.cos(math.radians(lat0))) * s.W,
         "viscous": s.nu * s.U / s.H**2,
     }
     terms = tuple(sorted(mags.items(), key=lambda kv: -kv[1]))
@@ -182,7 +182,7 @@ def estimate_for_term(name: str, s: ScaleSet) -> float:
     The local tendency, the horizontal advection and the derived views scale as
     U^2 / L (T = L / U); the residual as the viscous term nu U / H^2.
     """
-    r = analyse_scales(s)
+    r = analyze_scales(s)
     table = dict(r.terms)
     alias = {
         "tendency": "acceleration",
@@ -412,7 +412,7 @@ def _distances_along_column(grid, inside):
     step = np.concatenate(
         [[0.0], great_circle_km(lon[:-1, i], lat[:-1, i], lon[1:, i], lat[1:, i])]
     )
-    dist = np.cumsum(step) * (grid.radius / c.EARTH_RADIUS)
+    dist = np.cumsum(step) * (grid.radius / C.EARTH_RADIUS)
     centre = 0.5 * (dist[rows[0]] + dist[rows[-1]])
     return np.abs(dist - centre)
 
@@ -465,7 +465,7 @@ def flow_length_scale(grid, height, inside) -> FlowLength | None:
         d = great_circle_km(lo[:, :-1], la[:, :-1], lo[:, 1:], la[:, 1:]).sum(axis=1)
         if closed:
             d = d + great_circle_km(lo[:, -1], la[:, -1], lo[:, 0], la[:, 0])
-        return np.asarray(d, dtype=np.float64) * 1e3 * (grid.radius / c.EARTH_RADIUS)
+        return np.asarray(d, dtype=np.float64) * 1e3 * (grid.radius / C.EARTH_RADIUS)
 
     j0, j1 = flow_rows(grid, inside)
     # a line of n points sampled at spacing d: its spectrum's harmonics are of n d (an open
@@ -507,7 +507,7 @@ def estimate_scales(
     omega=None,
     temperature=None,
     shear2=None,
-    nu: float = c.NU_AIR,
+    nu: float = C.NU_AIR,
     n2=None,
     height_gradient=None,
     flow_length: FlowLength | None = None,
@@ -567,13 +567,13 @@ def estimate_scales(
         T = weighted_stats(temperature, grid, ok & np.isfinite(temperature)).mean
     if T is None:
         T = float(standard_atmosphere_temperature(pressure))
-    rho = pressure / (c.R_DRY * T)
-    dP = rho * c.G0 * fl.amplitude
+    rho = pressure / (C.R_DRY * T)
+    dP = rho * C.G0 * fl.amplitude
     W = 0.0
     if omega is not None:
         om = weighted_stats(omega, grid, ok & np.isfinite(omega)).rms
-        W = (om or 0.0) / (rho * c.G0)
-    H = c.TROPOSPHERE_DEPTH
+        W = (om or 0.0) / (rho * C.G0)
+    H = C.TROPOSPHERE_DEPTH
     fstat = weighted_stats(np.abs(grid.f), grid, ok)
     lat0 = float(np.sum(w * grid.lat) / np.sum(w))
     sign = 1.0 if lat0 >= 0 else -1.0

@@ -7,7 +7,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from . import constants as c
+from . import constants as C
 
 __all__ = [
     "potential_temperature",
@@ -30,12 +30,12 @@ def potential_temperature(temperature, pressure):
     Poisson's equation with p0 = 1000 hPa and R_d / c_p = 2/7 (American
     Meteorological Society, Glossary of Meteorology, "potential temperature").
     """
-    return np.asarray(temperature, dtype=np.float64) * (c.P0 / np.asarray(pressure)) ** c.KAPPA
+    return np.asarray(temperature, dtype=np.float64) * (C.P0 / np.asarray(pressure)) ** C.KAPPA
 
 
 def density(pressure, temperature):
     """Density of dry air from the ideal gas law, rho = p / (R_d T), kg m-3."""
-    return np.asarray(pressure, dtype=np.float64) / (c.R_DRY * np.asarray(temperature))
+    return np.asarray(pressure, dtype=np.float64) / (C.R_DRY * np.asarray(temperature))
 
 
 def virtual_temperature(temperature, mixing_ratio):
@@ -45,7 +45,7 @@ def virtual_temperature(temperature, mixing_ratio):
     Meteorology, "virtual temperature", written with the mixing ratio).
     """
     w = np.asarray(mixing_ratio, dtype=np.float64)
-    return np.asarray(temperature) * (w + c.EPSILON) / (c.EPSILON * (1.0 + w))
+    return np.asarray(temperature) * (w + C.EPSILON) / (C.EPSILON * (1.0 + w))
 
 
 def vertical_velocity(omega, pressure, temperature=None):
@@ -60,24 +60,24 @@ def vertical_velocity(omega, pressure, temperature=None):
         rho = standard_atmosphere_density(p)
     else:
         rho = density(p, temperature)
-    return -np.asarray(omega, dtype=np.float64) / (rho * c.G0)
+    return -np.asarray(omega, dtype=np.float64) / (rho * C.G0)
 
 
 def _std_layers():
     """Base pressure, temperature, height and lapse rate of each 1976 layer."""
     rows = []
-    p, t = c.STD_SEA_LEVEL_PRESSURE, c.STD_SEA_LEVEL_TEMPERATURE
-    r = c.STD_GAS_CONSTANT / c.STD_MOLAR_MASS
-    for (z0, lapse), nxt in zip(c.STD_LAYERS, c.STD_LAYERS[1:] + ((np.inf, 0.0),)):
+    p, t = C.STD_SEA_LEVEL_PRESSURE, C.STD_SEA_LEVEL_TEMPERATURE
+    r = C.STD_GAS_CONSTANT / C.STD_MOLAR_MASS
+    for (z0, lapse), nxt in zip(C.STD_LAYERS, C.STD_LAYERS[1:] + ((np.inf, 0.0),)):
         rows.append((p, t, z0, lapse))
         dz = nxt[0] - z0
         if not np.isfinite(dz):
             break
         if lapse == 0.0:
-            p = p * np.exp(-c.G0 * dz / (r * t))
+            p = p * np.exp(-C.G0 * dz / (r * t))
         else:
             t_top = t + lapse * dz
-            p = p * (t_top / t) ** (-c.G0 / (r * lapse))
+            p = p * (t_top / t) ** (-C.G0 / (r * lapse))
             t = t_top
     return rows
 
@@ -92,15 +92,15 @@ def standard_atmosphere_height(pressure):
     850 hPa 1457 m, 500 hPa 5574 m (U.S. Standard Atmosphere 1976, Table I).
     """
     p = np.asarray(pressure, dtype=np.float64)
-    r = c.STD_GAS_CONSTANT / c.STD_MOLAR_MASS
+    r = C.STD_GAS_CONSTANT / C.STD_MOLAR_MASS
     z = np.full(p.shape, np.nan)
     for i, (pb, tb, zb, lapse) in enumerate(_LAYERS):
         p_top = _LAYERS[i + 1][0] if i + 1 < len(_LAYERS) else 0.0
         sel = (p <= pb) & (p > p_top) if i > 0 else (p > p_top)
         if lapse == 0.0:
-            zz = zb - r * tb / c.G0 * np.log(p / pb)
+            zz = zb - r * tb / C.G0 * np.log(p / pb)
         else:
-            zz = zb + tb / lapse * ((p / pb) ** (-r * lapse / c.G0) - 1.0)
+            zz = zb + tb / lapse * ((p / pb) ** (-r * lapse / C.G0) - 1.0)
         z = np.where(sel, zz, z)
     return z
 
@@ -120,7 +120,7 @@ def standard_atmosphere_temperature(pressure):
 def standard_atmosphere_density(pressure):
     """Density (kg m-3) of the U.S. Standard Atmosphere (1976) at a pressure (Pa)."""
     p = np.asarray(pressure, dtype=np.float64)
-    r = c.STD_GAS_CONSTANT / c.STD_MOLAR_MASS
+    r = C.STD_GAS_CONSTANT / C.STD_MOLAR_MASS
     return p / (r * standard_atmosphere_temperature(p))
 
 
@@ -146,4 +146,4 @@ def hypsometric_thickness(mean_virtual_temperature, p_bottom, p_top):
     The hypsometric equation (American Meteorological Society, Glossary of
     Meteorology, "hypsometric equation").
     """
-    return c.R_DRY * np.asarray(mean_virtual_temperature) / c.G0 * np.log(p_bottom / p_top)
+    return C.R_DRY * np.asarray(mean_virtual_temperature) / C.G0 * np.log(p_bottom / p_top)

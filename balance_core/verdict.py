@@ -707,7 +707,7 @@ def _sentence(cls, ratios, tested=None) -> str:
 
 
 def classify_scales(result, thresholds: Thresholds = Thresholds()) -> Verdict:
-    """Verdict of an a priori scale analysis (:func:`balance_core.scales.analyse_scales`).
+    """Verdict of an a priori scale analysis (:func:`balance_core.scales.analyze_scales`).
 
     Scales carry no signs, so this follows the magnitudes alone: the Rossby
     number and which terms are within ``comparable_factor`` of the pressure

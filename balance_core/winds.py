@@ -15,7 +15,7 @@ from functools import cached_property
 import numpy as np
 
 from . import _memory
-from . import constants as c
+from . import constants as C
 from .grid import Grid
 
 __all__ = [
@@ -56,9 +56,9 @@ def geostrophic_wind(grid: Grid, height):
     ug, vg = block[0], block[1]
     grid.grad(height, out=(vg, ug))  # dZ/dx into vg, dZ/dy into ug
     ug *= grid.inverse_f
-    ug *= -c.G0
+    ug *= -C.G0
     vg *= grid.inverse_f
-    vg *= c.G0
+    vg *= C.G0
     return ug, vg
 
 
@@ -98,7 +98,7 @@ def thermal_wind_from_temperature(grid: Grid, mean_temperature, p_bottom, p_top)
     """
     grid.check_field(mean_temperature, "mean_temperature")
     dtdx, dtdy = grid.grad(mean_temperature)
-    k = c.R_DRY * np.log(p_bottom / p_top) * grid.inverse_f
+    k = C.R_DRY * np.log(p_bottom / p_top) * grid.inverse_f
     return -dtdy * k, dtdx * k
 
 
@@ -172,7 +172,7 @@ def gradient_wind(grid: Grid, height) -> GradientWind:
     the equator. D < 0 (no real root) is flagged in ``no_root``.
     """
     grid.check_field(height, "height")
-    phi = np.asarray(height, dtype=np.float64) * c.G0
+    phi = np.asarray(height, dtype=np.float64) * C.G0
     return _gradient_wind(grid, phi)
 
 

@@ -302,7 +302,7 @@ def main(argv=None):
     errors = pd.read_csv(os.path.splitext(out)[0] + ".errors.csv")
     print(
         f"  batch, 2 workers limited to {limit / 2**20:.0f} MB each: {limited:7.1f} s, "
-        f"{len(rows)} rows of {pieces * len(BOXES)}, {len(errors)} pieces not analysed, "
+        f"{len(rows)} rows of {pieces * len(BOXES)}, {len(errors)} pieces not analyzed, "
         f"workers replaced: {len(restarts)}; peak worker memory {peak:.0f} MB"
     )
     print(f"figure archive_mb {size_mb:.0f}")

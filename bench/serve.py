@@ -73,7 +73,7 @@ def expected(box):
     """(the box's region text, the name of the verdict the core gives for it)."""
     import glob
 
-    from app import compute, vocab
+    from app import compute, wording
     from app.library import CaseLibrary
 
     lib = expected.__dict__.setdefault(
@@ -81,7 +81,7 @@ def expected(box):
     )
     st = _state(box)
     want = compute.box_data(lib, st)
-    return st.region_text(), vocab.balance_name(want["verdict"]["balance"])
+    return st.region_text(), wording.balance_name(want["verdict"]["balance"])
 
 
 def hammer_wire(url, seconds, n_sessions, result, ready):

@@ -251,14 +251,14 @@ def test_page_without_a_server(library):
 
 def test_exports_carry_the_view(library):
     page = _page(library, _state())
-    png = page.exports.png_bytes().getvalue()
+    png = page.downloads.png_bytes().getvalue()
     assert png[:8] == b"\x89PNG\r\n\x1a\n" and len(png) > 50_000
-    csv_text = page.exports.csv_text().getvalue()
+    csv_text = page.downloads.csv_text().getvalue()
     head, first = csv_text.splitlines()[:2]
     assert head.startswith("case,level (hPa),valid time,reference time,lead time (h),region")
     assert first.startswith("ocean_cyclone,500")
     assert "box 52.0W to 28.0W, 38.0N to 56.0N" in first
-    rep = json.loads(page.exports.json_text().getvalue())
+    rep = json.loads(page.downloads.json_text().getvalue())
     assert rep["context"]["case"] == "ocean_cyclone" and rep["verdict"]["balance"] == "geostrophic"
     assert rep["context"]["units"] == {"terms": "m s-2", "wind": "m/s", "height": "m"}
     assert {t["name"] for t in rep["terms"]} >= {"pressure_gradient", "coriolis", "residual"}

@@ -56,7 +56,7 @@ def _free_port():
 
 def test_rows_from_a_real_cluster_equal_analyze(archive, tmp_path):
     from app.batch import Task, flatten
-    from balance_core.io import analyse_case, open_case
+    from balance_core.io import analyze_case, open_case
 
     port = _free_port()
     sched = subprocess.Popen(
@@ -137,7 +137,7 @@ def test_rows_from_a_real_cluster_equal_analyze(archive, tmp_path):
                 for b in BOXES:
                     name = f"box {','.join(f'{v:g}' for v in b)}"
                     want = flatten(
-                        analyse_case(case, lev, t, b), Task(str(path), None, t, lev, ()), name
+                        analyze_case(case, lev, t, b), Task(str(path), None, t, lev, ()), name
                     )
                     got = rows[
                         (rows.file == path.name)
@@ -269,14 +269,14 @@ def test_a_result_opens_through_the_archive(tmp_path):
     # writes them: the archive page shows their ratios and verdicts for a region and level
     from app.batch import Task, _write_table, flatten
     from app.desk.archive import ArchivePage, load_result
-    from balance_core.io import analyse_case, open_case
+    from balance_core.io import analyze_case, open_case
 
     path = os.path.join(ROOT, "sample_cases", "ocean_cyclone.nc")
     case = open_case(path)
     rows = []
     for t in range(case.times.size):
         for lev in (500.0, 1000.0):
-            rep = analyse_case(case, lev, t, (-52.0, -28.0, 38.0, 56.0))
+            rep = analyze_case(case, lev, t, (-52.0, -28.0, 38.0, 56.0))
             rows.append(flatten(rep, Task(path, None, t, lev, ()), "cyclone box"))
     out = str(tmp_path / "r.parquet")
     _write_table(out, rows)
@@ -299,7 +299,7 @@ def test_a_result_opens_through_the_archive(tmp_path):
 def test_workers_too_small_for_a_piece_end_the_run_with_a_sentence(archive, tmp_path):
     # 120 MB per worker is less than a worker needs to start: dask restarts them until it
     # gives up; the run must end (never wait for ever) with one sentence, or report the
-    # pieces as not analysed -- and leave nothing half-written
+    # pieces as not analyzed -- and leave nothing half-written
     env = dict(os.environ, BALANCE_DESK_BATCH_NO_WORKER_S="20")
     out = tmp_path / "rows.csv"
     p = _batch(
@@ -324,7 +324,7 @@ def test_workers_too_small_for_a_piece_end_the_run_with_a_sentence(archive, tmp_
     else:
         assert p.returncode == 0, p.stderr
         errors = pd.read_csv(tmp_path / "rows.errors.csv")
-        assert (errors.error.str.startswith("not analysed")).all() and len(errors) > 0
+        assert (errors.error.str.startswith("not analyzed")).all() and len(errors) > 0
     assert not list((tmp_path / "rows.csv.parts").glob(".*.tmp"))
 
 

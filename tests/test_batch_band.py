@@ -1,7 +1,7 @@
 """A batch piece computes on a band of rows; its rows must be the whole grid's, bit for bit.
 
 ``run_task`` cuts the case to the rows its boxes cover and a halo (app.batch._band) to
-spare memory. The truth here is ``analyse_case`` on the whole case -- the path the
+spare memory. The truth here is ``analyze_case`` on the whole case -- the path the
 ``analyze`` command takes, with no band -- on real files from registry packages (GFS
 2.5-degree global with orography and surface fields, an Eta Lambert conformal grid) and
 an invented sample with several times (the tendency's neighbours).
@@ -54,7 +54,7 @@ def test_a_piece_on_a_band_of_rows_equals_analyze_on_the_whole_grid(
             pytest.fail(f"{path} is missing: make test fetches it", pytrace=False)
         pytest.skip(f"{path} is missing (make test fetches it)")
     from app.batch import Task, _band, flatten, run_task
-    from balance_core.io import analyse_case, open_case
+    from balance_core.io import analyze_case, open_case
 
     case = open_case(path, member=0 if member is None else member)
     band = _band(case, boxes)
@@ -68,7 +68,7 @@ def test_a_piece_on_a_band_of_rows_equals_analyze_on_the_whole_grid(
     assert result["error"] is None, result["error"]
     assert len(result["rows"]) == len(boxes)
     for (name, box), got in zip(boxes, result["rows"]):
-        want = flatten(analyse_case(case, level, t, box), task, name)
+        want = flatten(analyze_case(case, level, t, box), task, name)
         assert got.keys() == want.keys()
         differ = [k for k in want if not _same(got[k], want[k])]
         assert not differ, {k: (got[k], want[k]) for k in differ}

@@ -284,7 +284,7 @@ def _edges(mask, axis):
 def _outline_edges(path):
     """(left, right, top, bottom) pixel centres of the region's outline in the chart's part
     of a briefing PNG (the left 62 %: the verdict's panel uses the same orange)."""
-    from app.export import OUTLINE_RGB
+    from app.briefing_image import OUTLINE_RGB
 
     im = _rgb(path)
     im = im[:, : int(0.62 * im.shape[1])]
@@ -397,7 +397,7 @@ def test_after_knots_no_number_in_the_page_is_in_metres_per_second(server, brows
 
 
 def test_an_invented_case_says_so_in_the_page_and_in_the_briefing(server, browser):
-    from app.export import INVENTED_RGB
+    from app.briefing_image import INVENTED_RGB
 
     page, errors = _page(browser, server + OCEAN)
     _wait_for(page, lambda: _verdict_text(page))

@@ -140,7 +140,7 @@ def test_boxes_typed_on_the_wire_end_on_the_last_ones_view(debug_server):
 
     from wire_page import WirePage
 
-    from app import compute, vocab
+    from app import compute, wording
     from app.library import CaseLibrary
     from app.state import ViewState
 
@@ -161,7 +161,7 @@ def test_boxes_typed_on_the_wire_end_on_the_last_ones_view(debug_server):
         )
     )
     region = st.region_text()
-    name = vocab.balance_name(compute.box_data(lib, st)["verdict"]["balance"])
+    name = wording.balance_name(compute.box_data(lib, st)["verdict"]["balance"])
 
     async def run():
         w = await WirePage(

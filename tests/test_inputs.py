@@ -69,7 +69,7 @@ def test_no_import_circle_and_the_rooms_commands_need_no_page():
     # loads neither Panel nor Bokeh
     code = (
         "import sys; import app.batch; assert 'app.cli' not in sys.modules; "
-        "from app.rooms.export import room_link; room_link('http://x', 'k'); "
+        "from app.rooms.share import room_link; room_link('http://x', 'k'); "
         "import app.cli; assert 'panel' not in sys.modules and 'bokeh' not in sys.modules"
     )
     subprocess.run([sys.executable, "-c", code], check=True)

@@ -9,7 +9,7 @@ import pytest
 import xarray as xr
 from makedata import LEVELS, TIMES, latlon_dataset, projected_dataset, truth
 
-from balance_core.io import CaseError, analyse_case, open_case
+from balance_core.io import CaseError, analyze_case, open_case
 from balance_core.winds import geostrophic_wind
 
 LAT = np.arange(70.0, 29.9, -1.0)
@@ -45,8 +45,8 @@ def test_level_and_latitude_order_do_not_matter(tmp_path):
     a = open_case(_write(ds, tmp_path / "a.nc"))
     b = open_case(_write(flipped, tmp_path / "b.nc"))
     np.testing.assert_allclose(b.levels_pa, a.levels_pa)  # both surface first
-    ra = analyse_case(a, 500, 1, (-20, 20, 40, 60))
-    rb = analyse_case(b, 500, 1, (-20, 20, 40, 60))
+    ra = analyze_case(a, 500, 1, (-20, 20, 40, 60))
+    rb = analyze_case(b, 500, 1, (-20, 20, 40, 60))
     for ta, tb in zip(ra["terms"], rb["terms"]):
         assert ta["name"] == tb["name"]
         if ta["magnitude"] is not None:
@@ -128,7 +128,7 @@ def test_below_ground_levels_are_masked_and_counted(tmp_path):
     assert c.below_ground == {1000.0: 3 * 10 * LON.size}
     assert np.isnan(c.data["u"].values[:, 0, :10]).all()
     assert np.isfinite(c.data["u"].values[:, 1]).all()
-    rep = analyse_case(c, 1000, 1, (-20, 20, 45, 70))
+    rep = analyze_case(c, 1000, 1, (-20, 20, 45, 70))
     assert rep["masked_points"] > 0
     assert any("below the ground" in n for n in rep["residual_causes"])
 
@@ -165,7 +165,7 @@ def test_surface_friction_evidence(tmp_path):
     ok = np.isfinite(sfc["cross_isobar_angle"]) & (np.abs(g.lat) > 35)
     np.testing.assert_allclose(sfc["cross_isobar_angle"][ok], 20.0, atol=1e-6)
     np.testing.assert_allclose(sfc["speed_ratio"][ok], 0.7, rtol=1e-9)
-    rep = analyse_case(c, 850, 0, (-20, 20, 40, 60))
+    rep = analyze_case(c, 850, 0, (-20, 20, 40, 60))
     assert rep["surface"]["cross_isobar_angle_median_deg"] == pytest.approx(20.0)
 
 
@@ -261,8 +261,8 @@ def test_projected_budget_equals_latlon_budget(tmp_path, kind):
     assert np.nanmax(np.abs(ug - exact_u)[inner]) / scale < 5e-3
     assert np.nanmax(np.abs(vg - exact_v)[inner]) / scale < 5e-3
     # the budget over the same box
-    rp = analyse_case(pc, 500, 1, box)
-    rl = analyse_case(lc, 500, 1, box)
+    rp = analyze_case(pc, 500, 1, box)
+    rl = analyze_case(lc, 500, 1, box)
     mp = {t["name"]: t["magnitude"] for t in rp["terms"] + rp["derived"]}
     ml = {t["name"]: t["magnitude"] for t in rl["terms"] + rl["derived"]}
     for name in (
@@ -505,9 +505,9 @@ def test_a_variable_missing_at_some_levels(tmp_path):
     ds["omega"].attrs = {"standard_name": "lagrangian_tendency_of_air_pressure", "units": "Pa s-1"}
     c = open_case(_write(ds, tmp_path / "partial.nc"))
     assert any("omega is not given at 300 hPa" in n for n in c.notes)
-    rep = analyse_case(c, 300, 1, (-20, 20, 40, 60))
+    rep = analyze_case(c, 300, 1, (-20, 20, 40, 60))
     by = {t["name"]: t for t in rep["terms"]}
     assert by["vertical_advection"]["magnitude"] is None
     assert "not given at 300 hPa" in by["vertical_advection"]["note"]
-    ok = analyse_case(c, 700, 1, (-20, 20, 40, 60))
+    ok = analyze_case(c, 700, 1, (-20, 20, 40, 60))
     assert {t["name"]: t for t in ok["terms"]}["vertical_advection"]["magnitude"] is not None

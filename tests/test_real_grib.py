@@ -25,7 +25,7 @@ import pyproj  # noqa: F401  (before eccodes)
 import pytest
 
 from balance_core import constants as C
-from balance_core.io import CaseError, analyse_case, open_case
+from balance_core.io import CaseError, analyze_case, open_case
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.join(HERE, "..", ".cache")
@@ -151,7 +151,7 @@ def test_eta_box_figures_agree_with_an_independent_computation(eta):
     # The 500 hPa box over the western US: every point valid (the cloud-top pressure
     # once masked 96 % of it). Geostrophic speed and pressure-gradient force from
     # numpy.gradient on the projected grid, times the closed-form map factor.
-    rep = analyse_case(eta, 500, 0, (-120, -105, 35, 45))
+    rep = analyze_case(eta, 500, 0, (-120, -105, 35, 45))
     assert rep["points"] == rep["region_points"] > 150
     assert rep["verdict"]["balance"] not in ("none", "frictional")
     gh, lat, lon = raw_field(ETA, "gh", "isobaricInhPa", 500)
@@ -175,7 +175,7 @@ def test_eta_box_figures_agree_with_an_independent_computation(eta):
 def test_eta_central_us_is_not_frictional_from_a_handful_of_points(eta):
     # Once 'Frictional' from 4 valid points; now the box is whole and the verdict is
     # not friction at 500 hPa.
-    rep = analyse_case(eta, 500, 0, (-100, -90, 35, 45))
+    rep = analyze_case(eta, 500, 0, (-100, -90, 35, 45))
     assert rep["valid_share"] == 1.0
     assert rep["verdict"]["balance"] != "frictional"
 
@@ -205,7 +205,7 @@ def test_gfs_masks_exactly_where_the_surface_is_above_the_level(gfs):
 
 
 def test_gfs_north_atlantic_500_is_geostrophic_and_resolved(gfs):
-    rep = analyse_case(gfs, 500, 0, (-60, -10, 35, 60))
+    rep = analyze_case(gfs, 500, 0, (-60, -10, 35, 60))
     assert rep["verdict"]["balance"] == "geostrophic"
     assert rep["resolution"]["resolved"]
     assert rep["ground"]["near"] is False

@@ -9,7 +9,7 @@ import re
 
 import pytest
 
-from app import fields, formats
+from app import fields, report_files
 from app.desk import archive, systems
 from app.state import FIELDS, ViewState
 from balance_core.verdict import CANDIDATES, CLASSES
@@ -41,7 +41,7 @@ def test_every_place_loops_over_the_balance_classes():
         "valid_time": "2041-01-19T00:00:00Z",
         "systems": [],
     }
-    header = formats.systems_csv(out).splitlines()[0].split(",")
+    header = report_files.systems_csv(out).splitlines()[0].split(",")
     assert {f"ratio_{c}" for c in CANDIDATES} <= set(header)
     legend = systems.legend_html()
     assert all(b.display in legend for b in BALANCE_CLASSES)

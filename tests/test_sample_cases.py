@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 
 from balance_core import Region, weighted_stats
-from balance_core.io import analyse_case, diagnostics_for, open_case
+from balance_core.io import analyze_case, diagnostics_for, open_case
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 CASES_DIR = os.path.join(HERE, "..", "sample_cases")
@@ -89,7 +89,7 @@ def _rms(field, c, inside):
 def test_each_case_lands_in_its_recorded_class(cases, name):
     c = cases[name]
     for e in json.loads(c.attrs["expected_verdicts"]):
-        rep = analyse_case(c, e["level_hpa"], e["time_index"], e["box"])
+        rep = analyze_case(c, e["level_hpa"], e["time_index"], e["box"])
         assert rep["verdict"]["balance"] == e["balance"], (e, rep["balances"], rep["shares"])
 
 
@@ -146,7 +146,7 @@ def test_centred_time_differences_resolve_the_tendency(cases, built, name):
 def test_cyclone_is_near_geostrophic_aloft_and_crosses_isobars_below(cases):
     c = cases["ocean_cyclone"]
     box = _box(c)
-    aloft = analyse_case(c, 500, 2, box)
+    aloft = analyze_case(c, 500, 2, box)
     assert 0.05 <= aloft["numbers"]["rossby_local_median"] <= 0.2
     low = diagnostics_for(c, c.level_index(1000), 2)
     inside = Region.box(*box).mask(c.grid)
@@ -161,7 +161,7 @@ def test_cyclone_is_near_geostrophic_aloft_and_crosses_isobars_below(cases):
 
 def test_tropical_cyclone_core_is_cyclostrophic(cases):
     c = cases["tropical_cyclone"]
-    rep = analyse_case(c, 850, 2, _box(c))
+    rep = analyze_case(c, 850, 2, _box(c))
     assert rep["numbers"]["rossby_local_median"] > 5
     mags = {t["name"]: t["magnitude"] for t in rep["terms"] + rep["derived"]}
     assert mags["centripetal"] > 5 * mags["coriolis"]
@@ -169,7 +169,7 @@ def test_tropical_cyclone_core_is_cyclostrophic(cases):
 
 def test_sea_breeze_advection_beats_coriolis(cases):
     c = cases["sea_breeze"]
-    rep = analyse_case(c, 1000, 2, _box(c))
+    rep = analyze_case(c, 1000, 2, _box(c))
     mags = {t["name"]: t["magnitude"] for t in rep["terms"] + rep["derived"]}
     assert mags["horizontal_advection"] > mags["coriolis"]
     assert mags["acceleration"] > mags["coriolis"]

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from app.cli import main
-from balance_core import PRESETS, Grid, Region, ScaleSet, analyse_scales, classify_scales
+from balance_core import PRESETS, Grid, Region, ScaleSet, analyze_scales, classify_scales
 from balance_core import constants as C
 from balance_core.scales import SCALE_TERMS, estimate_scales
 
@@ -18,7 +18,7 @@ SYNOPTIC = dict(U=10.0, W=0.01, L=1e6, H=1e4, dP=1000.0, rho=1.0, f0=1e-4, a=1e7
 
 def test_synoptic_table_orders_of_magnitude():
     # The classic synoptic scale analysis (common practice, no source).
-    r = analyse_scales(ScaleSet(**SYNOPTIC))
+    r = analyze_scales(ScaleSet(**SYNOPTIC))
     orders = {k: math.floor(math.log10(v) + 1e-9) for k, v in r.terms}
     assert orders == {
         "acceleration": -4,
@@ -46,13 +46,13 @@ def test_f0_alone_gives_its_latitude():
 def test_every_preset_has_a_source_and_a_class(name):
     p = PRESETS[name]
     assert p.source and len(p.source) > 20
-    v = classify_scales(analyse_scales(p))
+    v = classify_scales(analyze_scales(p))
     assert v.balance in ("geostrophic", "gradient", "cyclostrophic", "frictional", "unsteady")
     assert v.text.startswith("By scales")
 
 
 def test_preset_classes_are_the_expected_ones():
-    got = {n: classify_scales(analyse_scales(p)).balance for n, p in PRESETS.items()}
+    got = {n: classify_scales(analyze_scales(p)).balance for n, p in PRESETS.items()}
     assert got["synoptic_cyclone"] == "geostrophic"
     assert got["planetary_wave"] == "geostrophic"
     assert got["tornado"] == "cyclostrophic"

@@ -501,11 +501,11 @@ def test_a_file_with_heights_and_no_wind_gets_its_lows_and_highs():
         if os.environ.get("CI"):
             pytest.fail(f"{path} is missing: make test fetches it", pytrace=False)
         pytest.skip(f"{path} is missing")
-    from balance_core.io import analyse_systems, open_case
+    from balance_core.io import analyze_systems, open_case
 
     case = open_case(path)
     assert "u" not in case.data  # the ERA5 sample carries geopotential and temperature only
-    out = analyse_systems(case, 500.0, 0)
+    out = analyze_systems(case, 500.0, 0)
     kinds = {s["kind"] for s in out["systems"]}
     assert kinds == {"low", "high"}  # and no jet streak without wind
     assert out["rules"]["jet_threshold_ms"] is None
@@ -522,7 +522,7 @@ def test_valid_times_of_different_runs_are_said_to_be_so(tmp_path):
     import makedata
     import xarray as xr
 
-    from balance_core.io import analyse_case, open_case, track_systems
+    from balance_core.io import analyze_case, open_case, track_systems
 
     lat = np.arange(20.0, 70.01, 2.0)
     lon = np.arange(-60.0, 20.01, 2.0)
@@ -533,14 +533,14 @@ def test_valid_times_of_different_runs_are_said_to_be_so(tmp_path):
     a.to_netcdf(pa)
     b.to_netcdf(pb)
     case = open_case([str(pa), str(pb)])
-    rep = analyse_case(case, 500.0, 1, (-40, 0, 35, 55))
+    rep = analyze_case(case, 500.0, 1, (-40, 0, 35, 55))
     assert any("2 model runs" in n for n in rep["notes"]), rep["notes"]
     tr = track_systems(case, 500.0)
     assert any("2 model runs" in n for n in tr["notes"])
     # saying no: one run, no sentence
     one = open_case(str(pa))
     assert not any(
-        "model runs" in n for n in analyse_case(one, 500.0, 1, (-40, 0, 35, 55))["notes"]
+        "model runs" in n for n in analyze_case(one, 500.0, 1, (-40, 0, 35, 55))["notes"]
     )
     assert xr is not None
 

@@ -167,11 +167,11 @@ def test_gfs_sea_level_lows_below_990_hpa_are_found_with_their_value(gfs):
 
 
 def test_gfs_no_region_with_a_verdict_crosses_the_equator(gfs):
-    from balance_core.io import analyse_systems
+    from balance_core.io import analyze_systems
 
     case = gfs["case"]
     for level in ("msl", 850.0, 250.0):
-        out = analyse_systems(case, level, limit=200)
+        out = analyze_systems(case, level, limit=200)
         assert out["systems"]
         for s in out["systems"]:
             r = s["region"]

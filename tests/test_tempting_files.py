@@ -14,7 +14,7 @@ import pytest
 from makedata import latlon_dataset, truth
 
 from app.cli import main
-from balance_core.io import CaseError, analyse_case, open_case
+from balance_core.io import CaseError, analyze_case, open_case
 
 LAT = np.arange(60.0, 39.9, -2.0)
 LON = np.arange(-20.0, 20.1, 2.0)
@@ -380,10 +380,10 @@ def test_no_field_is_ever_masked_silently(tmp_path):
     c = open_case(nc(str(tmp_path), "masked.nc", ds))
     note = next(n for n in c.notes if "below the ground" in n)
     assert "1000 hPa" in note and "%" in note
-    rep = analyse_case(c, 1000, 0, (-20, 20, 40, 60))
+    rep = analyze_case(c, 1000, 0, (-20, 20, 40, 60))
     assert rep["invalid"]["below_ground"] > 0
     with pytest.raises(CaseError):
-        analyse_case(c, 600, 0, None)  # no such level: said, not guessed
+        analyze_case(c, 600, 0, None)  # no such level: said, not guessed
 
 
 def test_scalar_height_coordinates_belong_to_the_variables_that_list_them(tmp_path):

@@ -116,11 +116,11 @@ UPPER = [
 @pytest.mark.parametrize("name, path, kind, level, box", UPPER, ids=[u[0] for u in UPPER])
 def test_upper_air_verdicts_agree_with_the_independent_winds(name, path, kind, level, box):
     _need(path)
-    from balance_core.io import analyse_case, open_case
+    from balance_core.io import analyze_case, open_case
 
     d = _upper_air(path, level, box, kind)
     expected, why = _expected_upper(d)
-    rep = analyse_case(open_case(path), float(level), 0, box)
+    rep = analyze_case(open_case(path), float(level), 0, box)
     got = rep["verdict"]["balance"]
     assert got in expected, (name, got, expected, why, d, rep["balances"], rep["verdict"]["why"])
     # one valid time: no verdict rests on a tendency
@@ -137,7 +137,7 @@ def test_the_sea_at_sea_level_is_in_frictional_balance_where_the_wind_crosses_th
     # over 10 degrees) and slower than the geostrophic wind, friction is the balance
     _need(GFS)
     _need(ETA)
-    from balance_core.io import analyse_case, open_case
+    from balance_core.io import analyze_case, open_case
 
     for path, kind, box in (
         (GFS, "latlon", (-50, -10, 45, 65)),
@@ -160,7 +160,7 @@ def test_the_sea_at_sea_level_is_in_frictional_balance_where_the_wind_crosses_th
         median_angle = float(np.median(angle[m & np.isfinite(angle)]))
         slower = ib.rms(np.hypot(u, v), w, m) < ib.rms(np.hypot(ug, vg), w, m)
         assert median_angle > 10.0 and slower, (box, median_angle)
-        rep = analyse_case(open_case(path), "msl", 0, box)
+        rep = analyze_case(open_case(path), "msl", 0, box)
         assert rep["verdict"]["balance"] == "frictional", (
             box,
             rep["balances"],
@@ -174,12 +174,12 @@ def test_the_ground_over_mountains_is_not_called_frictional_where_the_residual_i
     # named (the rule saying no on real data); the flow is geostrophic to 22 % by the
     # independent winds
     _need(GFS)
-    from balance_core.io import analyse_case, open_case
+    from balance_core.io import analyze_case, open_case
 
     box = (-105, -90, 35, 50)
     d = _upper_air(GFS, 850, box, "latlon")
     assert d["d_geo"] <= 0.3
-    rep = analyse_case(open_case(GFS), 850.0, 0, box)
+    rep = analyze_case(open_case(GFS), 850.0, 0, box)
     assert rep["ground"]["near"] is True
     assert rep["verdict"]["balance"] == "geostrophic"
     assert "frictional" in rep["verdict"]["not_tested"]
@@ -188,9 +188,9 @@ def test_the_ground_over_mountains_is_not_called_frictional_where_the_residual_i
 
 def test_a_file_without_wind_gets_no_verdict_but_the_geostrophic_wind():
     _need(ERA5)
-    from balance_core.io import analyse_systems, open_case
+    from balance_core.io import analyze_systems, open_case
 
-    out = analyse_systems(open_case(ERA5), 500.0, 0)
+    out = analyze_systems(open_case(ERA5), 500.0, 0)
     assert out["systems"] and all(
         s["report"]["verdict"]["balance"] == "none" for s in out["systems"]
     )

@@ -16,7 +16,7 @@ import re
 import numpy as np
 import pytest
 
-from app import vocab
+from app import wording
 from app.library import CaseLibrary
 from app.state import FIELDS, ViewState
 from balance_core.vocabulary import BALANCE_NAMES, PRESET_NAMES, TERM_NAMES
@@ -58,13 +58,13 @@ def _png_texts(page, monkeypatch):
         return save(fig, *a, **k)
 
     monkeypatch.setattr(matplotlib.figure.Figure, "savefig", spy)
-    png = page.exports.png_bytes().getvalue()
+    png = page.downloads.png_bytes().getvalue()
     assert png[:4] == b"\x89PNG"
     return seen
 
 
 def _csv_rows(page):
-    return list(csv.DictReader(io.StringIO(page.exports.csv_text().getvalue())))
+    return list(csv.DictReader(io.StringIO(page.downloads.csv_text().getvalue())))
 
 
 def test_one_table_of_names_in_the_ranking_menu_chart_png_csv_and_json(library, monkeypatch):
@@ -95,9 +95,9 @@ def test_one_table_of_names_in_the_ranking_menu_chart_png_csv_and_json(library, 
     bal = [r["name"] for r in rows if r["kind"].startswith("balance")]
     assert bal and set(bal) <= set(BALANCE_NAMES.values()), bal
     nums = [r["name"] for r in rows if r["kind"] == "number"]
-    assert nums and set(nums) <= {v[0] for v in vocab.NUMBERS.values()}, nums
+    assert nums and set(nums) <= {v[0] for v in wording.NUMBERS.values()}, nums
     # the JSON keeps the code names, as keys for programs
-    rep = json.loads(page.exports.json_text().getvalue())
+    rep = json.loads(page.downloads.json_text().getvalue())
     assert {t["name"] for t in rep["terms"]} <= set(TERM_NAMES)
     assert set(rep["balances"]) <= set(BALANCE_NAMES)
 
@@ -154,7 +154,7 @@ def test_the_unit_choice_reaches_every_number_hover_colour_bar_and_export(librar
         assert float(wb[k]["value"]) == pytest.approx(
             float(wa[k]["value"]) * KT_PER_MS, rel=2e-3
         )  # both to 4 digits
-    ja, jb = (json.loads(p.exports.json_text().getvalue()) for p in (si, kt))
+    ja, jb = (json.loads(p.downloads.json_text().getvalue()) for p in (si, kt))
     assert jb["context"]["units"] == {"terms": "m s-2", "wind": "kt", "height": "dam"}
     assert jb["winds"]["speed_rms"] == pytest.approx(ja["winds"]["speed_rms"] * KT_PER_MS, rel=2e-3)
     # the PNG: colour bar label and reference arrow
@@ -184,7 +184,7 @@ def _png_outline_vs_screen(page, monkeypatch):
     import matplotlib.figure
     from PIL import Image
 
-    from app.export import OUTLINE_RGB
+    from app.briefing_image import OUTLINE_RGB
 
     seen = {}
     save = matplotlib.figure.Figure.savefig
@@ -196,7 +196,7 @@ def _png_outline_vs_screen(page, monkeypatch):
         return save(fig, *a, **k)
 
     monkeypatch.setattr(matplotlib.figure.Figure, "savefig", spy)
-    png = page.exports.png_bytes().getvalue()
+    png = page.downloads.png_bytes().getvalue()
     im = np.asarray(Image.open(io.BytesIO(png)).convert("RGB")).astype(int)
     mask = np.abs(im - np.array(OUTLINE_RGB)).max(axis=-1) <= 8
     mask[:, int(0.62 * im.shape[1]) :] = False  # the verdict's panel uses the same orange
@@ -255,7 +255,7 @@ def test_the_briefing_image_marks_and_lists_room_notes():
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from app.export import _draw_room_notes
+    from app.briefing_image import _draw_room_notes
 
     fig = plt.figure()
     ax = fig.add_axes([0.1, 0.2, 0.5, 0.7])

@@ -5,7 +5,7 @@
     chart.py     the filled field, contours, vectors, coastlines, no-data points, the region
     evidence.py  the verdict and why, the ranked terms, the balances, the numbers
     below.py     through the levels, through the times, the scale sheet, the notes
-    exports.py   the briefing PNG and the CSV and JSON of the region's report
+    downloads.py   the briefing PNG and the CSV and JSON of the region's report
     room.py      a review room: its bar (who steers, who follows), its notes
     look.py      colours, type, the caution, text made safe for HTML
 

@@ -18,7 +18,7 @@ from bokeh.plotting import figure
 
 from balance_core.vocabulary import BALANCE_CLASSES
 
-from .. import vocab
+from .. import wording
 from .look import CAUTION, INK, WIDGET_CSS, alert, esc, style_figure
 from .systems import VERDICT_COLOURS
 
@@ -87,7 +87,7 @@ class ArchivePage(pn.viewable.Viewer):
                 source=self.src,
                 line_width=2.5,
                 color=colour,
-                legend_label=vocab.balance_name(name),
+                legend_label=wording.balance_name(name),
             )
         fig.scatter(
             "t",
@@ -194,7 +194,7 @@ class ArchivePage(pn.viewable.Viewer):
             for i, v in enumerate(sel["verdict"])
         ]
         data["y"] = np.where(np.isfinite(own), own, 0.0) if len(sel) else []
-        data["verdict"] = [vocab.balance_name(v) for v in sel["verdict"]]
+        data["verdict"] = [wording.balance_name(v) for v in sel["verdict"]]
         data["colour"] = [VERDICT_COLOURS.get(v, "#8c8c8c") for v in sel["verdict"]]
         self.src.data = data
         counts = sel["verdict"].value_counts()
@@ -202,7 +202,7 @@ class ArchivePage(pn.viewable.Viewer):
         items = "".join(
             f"<li><span style='display:inline-block;width:12px;height:12px;background:"
             f"{VERDICT_COLOURS.get(v, '#8c8c8c')};border:1px solid #333'></span> "
-            f"{esc(vocab.balance_name(v))}: {n} of {total} ({100 * n / total:.0f} %)</li>"
+            f"{esc(wording.balance_name(v))}: {n} of {total} ({100 * n / total:.0f} %)</li>"
             for v, n in counts.items()
         )
         files = sel["file"].nunique() if "file" in sel else 0

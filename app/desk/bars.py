@@ -21,7 +21,7 @@ __all__ = ["Bar", "log_range", "log_bars", "linear_bars"]
 
 @dataclass
 class Bar:
-    name: str  #: the display name (app.vocab)
+    name: str  #: the display name (app.wording)
     value: float  #: where the bar ends (axis units)
     label: str  #: the value as shown beside the bar
     colour: str

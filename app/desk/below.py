@@ -17,7 +17,7 @@ from bokeh.plotting import figure
 
 from balance_core.scales import PRESETS
 
-from .. import vocab
+from .. import wording
 from ..state import SHEET_SCALES, ViewState, level_text
 from .look import BLUE, INK, MUTED, ORANGE, VERMILION, WIDGET_CSS, alert, esc, palette, style_figure
 
@@ -87,12 +87,12 @@ def levels_table(data) -> str:
 
     head = "".join(
         f"<th scope='col' style='padding:4px 6px;font-weight:600;vertical-align:bottom'"
-        f">{esc(vocab.term_name(t))}</th>"
+        f">{esc(wording.term_name(t))}</th>"
         for t in LEVEL_TERMS
     )
     rows = []
     for r in sorted(data["rows"], key=lambda r: r["level_hpa"]):
-        bal = vocab.balance_name(r["balance"]) if r.get("balance") else "error"
+        bal = wording.balance_name(r["balance"]) if r.get("balance") else "error"
         rows.append(
             f"<tr><th scope='row' style='text-align:right;padding:4px 8px;"
             f"white-space:nowrap'>{r['level_hpa']:g} hPa</th>"
@@ -310,7 +310,7 @@ class Below(pn.viewable.Viewer):
                 np.nan if s["ageostrophic_fraction"] is None else s["ageostrophic_fraction"]
                 for s in ser
             ],
-            label=[vocab.when(s["time"]) for s in ser],
+            label=[wording.when(s["time"]) for s in ser],
         )
         self.time_span.location = float(
             np.datetime64(data["current"].replace("Z", "")).astype("datetime64[ms]").astype(float)
@@ -328,14 +328,14 @@ class Below(pn.viewable.Viewer):
             label="Preset",
             width=290,
             stylesheets=css,
-            options={vocab.preset_name(k): k for k in PRESETS},
+            options={wording.preset_name(k): k for k in PRESETS},
             value=self.state.preset,
         )
         self.w_preset.param.watch(self._preset_to_state, "value")
         self.scale_inputs = {}
         for k in SHEET_SCALES:
             w = pn.widgets.FloatInput(
-                label=f"{vocab.SCALE_NAMES.get(k, k)} ({UNITS[k]})",
+                label=f"{wording.SCALE_NAMES.get(k, k)} ({UNITS[k]})",
                 value=None,
                 width=140,
                 placeholder="preset",
@@ -390,7 +390,8 @@ class Below(pn.viewable.Viewer):
             for r in sh["terms"]
         )
         nums = ", ".join(
-            f"{esc(vocab.NUMBERS.get(k, (k,))[0])} {f(v, '.2g')}" for k, v in sh["numbers"].items()
+            f"{esc(wording.NUMBERS.get(k, (k,))[0])} {f(v, '.2g')}"
+            for k, v in sh["numbers"].items()
         )
         err = alert(sh["error"], "error") if sh["error"] else ""
         bv = sh.get("box_verdict") or {}

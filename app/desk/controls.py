@@ -14,7 +14,7 @@ import param
 
 from balance_core.io import CaseError, iso
 
-from .. import vocab
+from .. import wording
 from ..compute import has_sea_level as compute_has_sea_level
 from ..state import FIELDS, PROJECTIONS, SEA_LEVEL, VECTORS, ViewState
 from .look import WIDGET_CSS, alert
@@ -119,7 +119,7 @@ class Controls(pn.viewable.Viewer):
         self.w_next.on_click(lambda e: self.step_time(+1))
         self.w_apply.on_click(self.apply_box)
         self.w_whole.on_click(lambda e: self.state.clear_region())
-        self.exports_slot = pn.Column(width=W, margin=0)
+        self.downloads_slot = pn.Column(width=W, margin=0)
         self.layout = pn.Column(
             self.w_case,
             self.w_level,
@@ -146,7 +146,7 @@ class Controls(pn.viewable.Viewer):
             pn.pane.HTML(
                 "<h3 style='margin:10px 0 0 0'>For the briefing</h3>", width=W, margin=(5, 5, 0, 5)
             ),
-            self.exports_slot,
+            self.downloads_slot,
             width=W + 15,
             margin=(0, 5),
         )
@@ -209,7 +209,7 @@ class Controls(pn.viewable.Viewer):
         self.w_level.options = levels
         refs = case.reference_times
         self.w_time.options = {
-            vocab.when(t, None if refs is None or np.isnat(refs[i]) else refs[i]): iso(t)
+            wording.when(t, None if refs is None or np.isnat(refs[i]) else refs[i]): iso(t)
             for i, t in enumerate(case.times)
         }
 

@@ -12,7 +12,7 @@ import param
 
 from balance_core.verdict import Thresholds
 
-from .. import formats, vocab
+from .. import report_files, wording
 from ..state import ViewState
 from .bars import Bar, linear_bars, log_bars, log_range
 from .look import (
@@ -107,10 +107,11 @@ class Evidence(pn.viewable.Viewer):
         return (
             f"<div class='bd-verdict' style='font-size:19px;line-height:1.35;color:{INK};"
             f"border-left:6px solid {edge};padding:6px 10px;background:#fafafa'>"
-            f"<div style='font-size:24px;font-weight:700'>{esc(vocab.balance_name(v['balance']))}"
+            f"<div style='font-size:24px;font-weight:700'>{esc(wording.balance_name(v['balance']))}"
             f"</div>{esc(v['text'])}{why}<div class='bd-verdict-where' style='font-size:15px;"
             f"color:{MUTED};margin-top:4px'>"
-            f"{esc(formats.level_text(rep))} &middot; {esc(rep.get('when', rep['valid_time']))} "
+            f"{esc(report_files.level_text(rep))} &middot; "
+            f"{esc(rep.get('when', rep['valid_time']))} "
             f"&middot; {esc(rep.get('region_text', ''))} &middot; {esc(valid)}</div>{mark}</div>"
         )
 
@@ -125,7 +126,7 @@ class Evidence(pn.viewable.Viewer):
 
         def bar(t, colour):
             m, e = t["magnitude"], t["estimate"]
-            name = vocab.term_name(t["name"])
+            name = wording.term_name(t["name"])
             tip = f"{name}: measured {m:.3g} m s-2" + (f", a priori {e:.1g} m s-2" if e else "")
             if t.get("estimate_by_construction"):
                 e = None  # made of the same fields: it would agree by construction
@@ -158,7 +159,7 @@ class Evidence(pn.viewable.Viewer):
                 + INK
                 + "'><b>Unavailable:</b> "
                 + "; ".join(
-                    f"{esc(vocab.term_name(t['name']))} ({esc(t['note'])})"
+                    f"{esc(wording.term_name(t['name']))} ({esc(t['note'])})"
                     for t in rep["unavailable"]
                 )
                 + "</div>"
@@ -178,12 +179,12 @@ class Evidence(pn.viewable.Viewer):
         th = self.thresholds.balanced
         bars = [
             Bar(
-                name=vocab.balance_name(k),
+                name=wording.balance_name(k),
                 value=min(r, 1.5),
                 label=f"{100 * r:.0f} %" + (" (verdict)" if k == chosen else ""),
                 colour=ORANGE if k == chosen else "#8a8a8a",
                 strong=k == chosen,
-                tip=f"{vocab.balance_name(k)}: what its terms leave over is "
+                tip=f"{wording.balance_name(k)}: what its terms leave over is "
                 f"{100 * r:.0f} % of the pressure gradient",
             )
             for k, r in bal
@@ -205,7 +206,7 @@ class Evidence(pn.viewable.Viewer):
                 f"<div class='bd-untested' style='font-size:15px;color:{INK}'>"
                 "<b>Not tested:</b> "
                 + "; ".join(
-                    f"{esc(vocab.balance_name(k))} ({esc(_after_colon(not_tested[k]))})"
+                    f"{esc(wording.balance_name(k))} ({esc(_after_colon(not_tested[k]))})"
                     for k in untested
                 )
                 + "</div>"
@@ -241,7 +242,7 @@ def _numbers_table(rep, wind_units):
     """The numbers of the report, each with its meaning, and the region's wind speeds."""
     rows = []
     explain = rep.get("explain", {})
-    for k, (label, unit, _meaning) in vocab.NUMBERS.items():
+    for k, (label, unit, _meaning) in wording.NUMBERS.items():
         val = rep["numbers"].get(k)
         txt = "n/a" if val is None else (f"{val:.3g}")
         said = explain.get(k)
@@ -259,7 +260,7 @@ def _numbers_table(rep, wind_units):
             f"{esc(unit)}</td></tr>{line}"
         )
     w = rep.get("winds", {})
-    k = vocab.WIND_UNITS[wind_units][1]
+    k = wording.WIND_UNITS[wind_units][1]
     for key, label, meaning in (
         ("speed_rms", "wind speed", "RMS in the region"),
         ("geostrophic_speed_rms", "geostrophic speed", "RMS, from the height gradient"),
@@ -279,7 +280,7 @@ def _numbers_table(rep, wind_units):
         )
     more = "".join(
         f"<li><b>{esc(label)}</b>: {esc(meaning)}</li>"
-        for key, (label, _, meaning) in vocab.NUMBERS.items()
+        for key, (label, _, meaning) in wording.NUMBERS.items()
         if key not in explain
     )
     return (

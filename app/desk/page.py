@@ -1,7 +1,7 @@
 """The desk page: its parts, one shared view state, and the work that keeps them current.
 
 The parts (:mod:`.controls`, :mod:`.chart`, :mod:`.evidence`, :mod:`.below`,
-:mod:`.exports`) each own one part of the page and read or write one
+:mod:`.downloads`) each own one part of the page and read or write one
 :class:`~app.state.ViewState`. This module builds the page from them, turns a
 change of the state into work -- submitted to the session's lane of the fair
 pool (:mod:`app.work`), newest request first, the region's ranking before the
@@ -34,8 +34,8 @@ from ..work import POOL
 from .below import Below
 from .chart import Chart
 from .controls import Controls
+from .downloads import Downloads
 from .evidence import Evidence
-from .exports import Exports
 from .look import CAUTION, GLOBAL_CSS, INK, INVENTED_BG, alert, esc
 from .systems import SystemsPanel
 
@@ -102,7 +102,7 @@ class Page(pn.viewable.Viewer):
         #: True while the page corrects its own state (a level the new case has, ...): such
         #: a change follows a person's change and is not one (see app.desk.room)
         self.correcting = False
-        #: notes the briefing image carries (a review room's), see Exports
+        #: notes the briefing image carries (a review room's), see Downloads
         self.briefing_notes = []
         #: called after a new chart is drawn (a review room marks its notes on it)
         self.after_chart = []
@@ -120,8 +120,8 @@ class Page(pn.viewable.Viewer):
         self.evidence = Evidence(self.state, thresholds)
         self.below = Below(self.state)
         self.below.follow(set(URL_PARAMS))  # the sheet's preset and edits of a link
-        self.exports = Exports(self)
-        self.controls.exports_slot.objects = [self.exports]
+        self.downloads = Downloads(self)
+        self.controls.downloads_slot.objects = [self.downloads]
         self.header = pn.pane.HTML("", sizing_mode="stretch_width")
         self.problems = pn.pane.HTML(
             alert("; ".join(problems)) if problems else "", sizing_mode="stretch_width"
@@ -680,7 +680,7 @@ def make_session(
         if hub is not None:
             from .room import RoomOpener
 
-            page.controls.exports_slot.objects = [page.exports, RoomOpener(hub, page)]
+            page.controls.downloads_slot.objects = [page.downloads, RoomOpener(hub, page)]
         return None
 
     return _session(library, dict(pn.state.session_args or {}), thresholds, early, extend)

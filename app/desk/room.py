@@ -23,8 +23,8 @@ import panel as pn
 
 from .. import compute
 from ..rooms import RoomError
-from ..rooms.export import describe_view, notes_json, notes_markdown, room_link, stamp
 from ..rooms.hub import clean_name
+from ..rooms.share import describe_view, notes_json, notes_markdown, room_link, stamp
 from ..rooms.store import MAX_NAME, MAX_NOTE, MAX_TITLE
 from ..state import URL_PARAMS, encode_query, parse_query
 from .look import BLUE, INK, MUTED, WIDGET_CSS, alert, esc
@@ -539,11 +539,11 @@ class RoomSession:
             self.notes.pin_text.object = ""
 
     def _picked(self, lon, lat):
-        from .. import vocab
+        from .. import wording
 
         self._pin = (lon, lat)
         self.notes.pin_text.object = alert(
-            f"The note will be pinned at {vocab.lat(lat)} {vocab.lon(lon)}.", "info"
+            f"The note will be pinned at {wording.lat(lat)} {wording.lon(lon)}.", "info"
         )
 
     # -- drawing the notes ----------------------------------------------------------------

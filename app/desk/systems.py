@@ -17,7 +17,7 @@ import param
 
 from balance_core.vocabulary import BALANCE_CLASSES
 
-from .. import formats, vocab
+from .. import report_files, wording
 from ..state import ViewState
 from .look import BLUE, INK, MUTED, WIDGET_CSS, alert, esc
 
@@ -36,13 +36,13 @@ def _ro(value) -> str:
 
 def legend_html() -> str:
     shapes = " ".join(
-        f"<span style='white-space:nowrap'>{_SHAPE_TEXT[k]} {esc(vocab.system_name(k))}</span>"
+        f"<span style='white-space:nowrap'>{_SHAPE_TEXT[k]} {esc(wording.system_name(k))}</span>"
         for k in KIND_MARKERS
     )
     colours = " ".join(
         f"<span style='white-space:nowrap'><span style='display:inline-block;width:12px;"
         f"height:12px;background:{c};border:1px solid #333;vertical-align:middle'></span> "
-        f"{esc(vocab.balance_name(k))}</span>"
+        f"{esc(wording.balance_name(k))}</span>"
         for k, c in VERDICT_COLOURS.items()
     )
     return (
@@ -98,14 +98,14 @@ class SystemsPanel(pn.viewable.Viewer):
 
     def _w(self, value, digits=0):
         """A wind speed (m/s) in the view's unit, as text."""
-        v, unit = vocab.wind(value, self.state.wind_units)
+        v, unit = wording.wind(value, self.state.wind_units)
         return f"{float(v):.{digits}f} {unit}"
 
     def show(self, data):
         self.data = data
         rows = data["systems"]
         where = "sea level" if data.get("level_hpa") is None else f"{data['level_hpa']:g} hPa"
-        rules = formats.rules_text(data, self.state.wind_units, self.state.height_units)
+        rules = report_files.rules_text(data, self.state.wind_units, self.state.height_units)
         notes = "".join(f"<div style='color:{MUTED}'>{esc(n)}</div>" for n in data.get("notes", []))
         self.status.object = (
             f"<div style='font-size:15px;color:{INK}'>{len(rows)} found at {esc(where)}, "
@@ -117,9 +117,9 @@ class SystemsPanel(pn.viewable.Viewer):
         for s in rows:
             options[
                 (
-                    f"{s['label']} · {vocab.system_name(s['kind'])} · {vocab.lat(s['lat'])} "
-                    f"{vocab.lon(s['lon'])} · {self._short_intensity(s)} · "
-                    f"{vocab.balance_name(s['verdict'])}"
+                    f"{s['label']} · {wording.system_name(s['kind'])} · {wording.lat(s['lat'])} "
+                    f"{wording.lon(s['lon'])} · {self._short_intensity(s)} · "
+                    f"{wording.balance_name(s['verdict'])}"
                 )
             ] = s["label"]
         self._quiet = True
@@ -149,12 +149,12 @@ class SystemsPanel(pn.viewable.Viewer):
             return
         td = "<td style='padding:2px 10px 2px 0'>"
         rows = "".join(
-            f"<tr>{td}{esc(vocab.when_short(p['valid_time']))}</td>"
-            f"{td}{esc(vocab.lat(p['lat']))} {esc(vocab.lon(p['lon']))}</td>"
+            f"<tr>{td}{esc(wording.when_short(p['valid_time']))}</td>"
+            f"{td}{esc(wording.lat(p['lat']))} {esc(wording.lon(p['lon']))}</td>"
             f"{td}{esc(self._amount(p['intensity'], life))}</td>"
             f"{td}"
             f"{_ro(p['rossby_local_median'])}"
-            f"</td>{td}{esc(vocab.balance_name(p['verdict']))}</td></tr>"
+            f"</td>{td}{esc(wording.balance_name(p['verdict']))}</td></tr>"
             for p in life["life"]
         )
         what = "peak" if life["kind"] == "jet_streak" else "depth"
@@ -178,7 +178,7 @@ class SystemsPanel(pn.viewable.Viewer):
         """A system's intensity (a depth, or a streak's peak) in the view's units."""
         if s["kind"] == "jet_streak":
             return self._w(value)
-        return formats.quantity(value, s.get("units", "m"), self.state.height_units)
+        return report_files.quantity(value, s.get("units", "m"), self.state.height_units)
 
     def _short_intensity(self, s):
         if s["kind"] == "jet_streak":
@@ -186,7 +186,7 @@ class SystemsPanel(pn.viewable.Viewer):
         return f"{self._amount(s['depth'], s)} deep"
 
     def _intensity(self, s):
-        return formats.intensity_text(s, self.state.wind_units, self.state.height_units)
+        return report_files.intensity_text(s, self.state.wind_units, self.state.height_units)
 
     def chosen(self):
         if self.data is None:
@@ -203,7 +203,7 @@ class SystemsPanel(pn.viewable.Viewer):
         rows = ""
         if parts.get("measured_rms") is not None:
             rows = "".join(
-                f"<tr><td>{esc(vocab.part_name(k))}</td><td style='text-align:right'>"
+                f"<tr><td>{esc(wording.part_name(k))}</td><td style='text-align:right'>"
                 f"{'n/a' if p['speed_rms'] is None else self._w(p['speed_rms'], 1)}</td>"
                 f"<td style='color:{MUTED}'>"
                 f"{esc(p['note'] or '') if p['speed_rms'] is None else ''}"
@@ -229,10 +229,10 @@ class SystemsPanel(pn.viewable.Viewer):
             )
         self.detail.object = (
             f"<div class='bd-system' style='font-size:15px;color:{INK}'><b>{esc(s['label'])}, "
-            f"{esc(vocab.system_name(s['kind']))}</b> at {esc(vocab.lat(s['lat']))} "
-            f"{esc(vocab.lon(s['lon']))}: {esc(self._intensity(s))}. Region: "
+            f"{esc(wording.system_name(s['kind']))}</b> at {esc(wording.lat(s['lat']))} "
+            f"{esc(wording.lon(s['lon']))}: {esc(self._intensity(s))}. Region: "
             f"{esc(s['region_text'])} ({s['points']} valid points). "
-            f"<b>{esc(vocab.balance_name(s['verdict']))}.</b> {esc(s['verdict_text'])}"
+            f"<b>{esc(wording.balance_name(s['verdict']))}.</b> {esc(s['verdict_text'])}"
             f"{rows}</div>"
         )
 

@@ -15,8 +15,8 @@ import pyproj  # noqa: F401  (before eccodes: the other order crashes at exit)
 
 from .analysis import (
     SEA_LEVEL,
-    analyse_case,
-    analyse_systems,
+    analyze_case,
+    analyze_systems,
     diagnostics_for,
     is_sea_level,
     level_words,
@@ -30,10 +30,10 @@ __all__ = [
     "Case",
     "CaseError",
     "open_case",
-    "analyse_case",
+    "analyze_case",
     "diagnostics_for",
     "iso",
-    "analyse_systems",
+    "analyze_systems",
     "track_systems",
     "SEA_LEVEL",
     "is_sea_level",

@@ -18,10 +18,10 @@ from .case import Case, iso
 from .errors import CaseError
 
 __all__ = [
-    "analyse_case",
+    "analyze_case",
     "diagnostics_for",
     "sea_level_diagnostics_for",
-    "analyse_systems",
+    "analyze_systems",
     "track_systems",
     "SEA_LEVEL",
     "is_sea_level",
@@ -142,7 +142,7 @@ def _times(case: Case, t: int) -> dict:
     }
 
 
-def analyse_case(
+def analyze_case(
     case: Case,
     level_hpa,
     time=None,
@@ -238,7 +238,7 @@ def _slab(case: Case, role: str, t: int, k: int, smooth_km):
     return a
 
 
-def analyse_systems(
+def analyze_systems(
     case: Case,
     level_hpa,
     time=None,
@@ -252,7 +252,7 @@ def analyse_systems(
     jet=None,
 ) -> dict:
     """The weather systems of one level and time (:func:`balance_core.systems.find_systems`)
-    and, for each, the report of its region (:func:`analyse_case`).
+    and, for each, the report of its region (:func:`analyze_case`).
 
     ``level_hpa`` is a pressure level or sea level (:data:`SEA_LEVEL`): there the lows and
     highs of the mean sea level pressure, every 4 hPa, each with the surface budget of
@@ -357,7 +357,7 @@ def analyse_systems(
     systems = []
     for s in found:
         if budget:
-            rep = analyse_case(
+            rep = analyze_case(
                 case,
                 level_out,
                 t,
@@ -439,7 +439,7 @@ def track_systems(
 
     per_time, objects = [], []
     for t in range(case.times.size):
-        out = analyse_systems(
+        out = analyze_systems(
             case, level_hpa, t, smooth_km=smooth_km, thresholds=thresholds, limit=limit
         )
         per_time.append(out)

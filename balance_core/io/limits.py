@@ -23,7 +23,7 @@ from .errors import CaseError
 
 __all__ = ["memory_budget", "parse_size", "check_declared", "FIELDS_PER_LEVEL", "format_size"]
 
-#: float64 fields of one level that are alive at once while one level is analysed
+#: float64 fields of one level that are alive at once while one level is analyzed
 #: (measured: bench/core.py's peak memory is under 2 times the 13 input slices of the budget
 #: alone; the wind diagnostics, the views and the statistics bring it to a few dozen).
 FIELDS_PER_LEVEL = 64

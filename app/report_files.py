@@ -16,7 +16,7 @@ import math
 
 from balance_core.vocabulary import BALANCE_CLASSES
 
-from . import vocab
+from . import wording
 
 __all__ = [
     "table",
@@ -53,7 +53,7 @@ def _round(obj, digits=4):
     if isinstance(obj, list):
         return [_round(v, digits) for v in obj]
     if isinstance(obj, float):
-        return vocab.sig(obj, digits)
+        return wording.sig(obj, digits)
     return obj
 
 
@@ -76,7 +76,7 @@ def context_of(
         "valid_time": rep.get("valid_time"),
         "reference_time": rep.get("reference_time"),
         "lead_time_h": rep.get("lead_time_h"),
-        "valid_time_text": vocab.when(rep.get("valid_time"), rep.get("reference_time")),
+        "valid_time_text": wording.when(rep.get("valid_time"), rep.get("reference_time")),
         "region": region_text or _box_text(rep.get("box")),
         "units": {"terms": "m s-2", "wind": wind_units, "height": height_units},
     }
@@ -93,13 +93,13 @@ def _box_text(box):
     if not box or box.get("west") is None:
         return "whole case"
     return (
-        f"box {vocab.lon(box['west'])} to {vocab.lon(box['east'])}, "
-        f"{vocab.lat(box['south'])} to {vocab.lat(box['north'])}"
+        f"box {wording.lon(box['west'])} to {wording.lon(box['east'])}, "
+        f"{wording.lat(box['south'])} to {wording.lat(box['north'])}"
     )
 
 
 def _winds_in(rep, wind_units):
-    _, k = vocab.WIND_UNITS[wind_units]
+    _, k = wording.WIND_UNITS[wind_units]
     out = {}
     for key, v in (rep.get("winds") or {}).items():
         out[key] = v * k if (v is not None and key.endswith("_rms")) else v
@@ -151,7 +151,7 @@ def export_csv(rep: dict, context: dict) -> str:
                 ctx
                 + [
                     kind,
-                    vocab.term_name(t["name"]),
+                    wording.term_name(t["name"]),
                     _num(t["magnitude"]),
                     "m s-2",
                     _num(t["x_rms"]),
@@ -166,7 +166,7 @@ def export_csv(rep: dict, context: dict) -> str:
             ctx
             + [
                 "balance (imbalance ratio)",
-                vocab.balance_name(k),
+                wording.balance_name(k),
                 _num(v),
                 "",
                 "",
@@ -176,7 +176,7 @@ def export_csv(rep: dict, context: dict) -> str:
             ]
         )
     for k, v in (rep.get("numbers") or {}).items():
-        name, unit, _ = vocab.NUMBERS.get(k, (k, "", ""))
+        name, unit, _ = wording.NUMBERS.get(k, (k, "", ""))
         w.writerow(ctx + ["number", name, _num(v), unit, "", "", "", ""])
     unit = context["units"]["wind"]
     for k, v in _winds_in(rep, unit).items():
@@ -199,7 +199,7 @@ def export_csv(rep: dict, context: dict) -> str:
         ctx
         + [
             "verdict",
-            vocab.balance_name(v.get("balance", "")),
+            wording.balance_name(v.get("balance", "")),
             "",
             "",
             "",
@@ -212,7 +212,7 @@ def export_csv(rep: dict, context: dict) -> str:
 
 
 def _num(x):
-    y = vocab.sig(x)
+    y = wording.sig(x)
     return "" if y is None else f"{y:.4g}"
 
 
@@ -229,12 +229,12 @@ def table(rep: dict) -> str:
     share = rep.get("valid_share")
     lines = [
         f"{rep['case']}  {level_text(rep)}  "
-        f"{vocab.when(rep['valid_time'], rep.get('reference_time'))}  {where}",
+        f"{wording.when(rep['valid_time'], rep.get('reference_time'))}  {where}",
         f"{rep['points']} of {rep.get('region_points', rep['points'])} points valid"
         + (f" ({100 * share:.0f} %)" if share is not None else "")
         + f", {rep['masked_points']} masked",
         "",
-        f"verdict: {vocab.balance_name(rep['verdict']['balance'])}",
+        f"verdict: {wording.balance_name(rep['verdict']['balance'])}",
         f"  {rep['verdict']['text']}",
     ]
     if rep["verdict"].get("why"):
@@ -247,7 +247,7 @@ def table(rep: dict) -> str:
         note = t["note"] if t["magnitude"] is None or t["name"] == "residual" else ""
         est = _fmt(t["estimate"]) + ("*" if t.get("estimate_by_construction") else "")
         lines.append(
-            f"  {vocab.term_name(t['name']):<25}  {_fmt(t['magnitude']):<16}  "
+            f"  {wording.term_name(t['name']):<25}  {_fmt(t['magnitude']):<16}  "
             f"{est:<9}  {ratio:<6}  {note or ''}".rstrip()
         )
     if any(t.get("estimate_by_construction") for t in rep["terms"]):
@@ -257,7 +257,7 @@ def table(rep: dict) -> str:
     lines.append("  derived views (not part of the sum)")
     for t in rep["derived"]:
         lines.append(
-            f"  {vocab.term_name(t['name']):<25}  {_fmt(t['magnitude']):<16}  "
+            f"  {wording.term_name(t['name']):<25}  {_fmt(t['magnitude']):<16}  "
             f"{_fmt(t['estimate']):<9}"
         )
     lines += ["", "  balance         imbalance ratio (RMS of the sum / RMS of the PGF)"]
@@ -265,9 +265,9 @@ def table(rep: dict) -> str:
     for k, v in rep["balances"].items():
         mark = "  <- verdict" if k == rep["verdict"]["balance"] else ""
         if k in not_tested:
-            lines.append(f"  {vocab.balance_name(k):<14}  not tested")
+            lines.append(f"  {wording.balance_name(k):<14}  not tested")
         else:
-            lines.append(f"  {vocab.balance_name(k):<14}  {_fmt(v, '.3f')}{mark}")
+            lines.append(f"  {wording.balance_name(k):<14}  {_fmt(v, '.3f')}{mark}")
     if rep.get("curvature"):
         lines.append(f"  (the centripetal term takes the {rep['curvature']} curvature)")
     for c in rep["verdict"].get("cautions", []):
@@ -277,10 +277,10 @@ def table(rep: dict) -> str:
         lines.append(f"  {k.replace('_', ' '):<30}  {_fmt(v, '.3g')}")
     lines += ["", "  numbers"]
     for k, v in rep["numbers"].items():
-        name, unit, _ = vocab.NUMBERS.get(k, (k, "", ""))
+        name, unit, _ = wording.NUMBERS.get(k, (k, "", ""))
         lines.append(f"  {name:<30}  {_fmt(v, '.3g')} {unit}".rstrip())
     for k, text in rep.get("explain", {}).items():
-        lines.append(f"    {vocab.NUMBERS.get(k, (k,))[0]}: {text}")
+        lines.append(f"    {wording.NUMBERS.get(k, (k,))[0]}: {text}")
     if rep.get("scales"):
         lines += [
             "",
@@ -334,17 +334,17 @@ def _differ(a, b) -> bool:
 def system_region_text(region: dict) -> str:
     if region["kind"] == "circle":
         return (
-            f"within {region['radius_km']:.0f} km of {vocab.lat(region['lat'])} "
-            f"{vocab.lon(region['lon'])}"
+            f"within {region['radius_km']:.0f} km of {wording.lat(region['lat'])} "
+            f"{wording.lon(region['lon'])}"
         )
     if region["kind"] == "flow_box":
         return (
             f"{region['length_km']:.0f} km along the flow by {region['width_km']:.0f} km "
-            f"across, centred on {vocab.lat(region['lat_0'])} {vocab.lon(region['lon_0'])}"
+            f"across, centred on {wording.lat(region['lat_0'])} {wording.lon(region['lon_0'])}"
         )
     return (
-        f"box {vocab.lon(region['west'])} to {vocab.lon(region['east'])}, "
-        f"{vocab.lat(region['south'])} to {vocab.lat(region['north'])}"
+        f"box {wording.lon(region['west'])} to {wording.lon(region['east'])}, "
+        f"{wording.lat(region['south'])} to {wording.lat(region['north'])}"
     )
 
 
@@ -356,14 +356,14 @@ def quantity(value, units: str, height_units: str = "m", digits: int = 0) -> str
     if units == "Pa":
         hpa = value / 100
         return f"{hpa:g} hPa" if float(hpa).is_integer() else f"{hpa:.1f} hPa"
-    v, u = vocab.height(value, height_units)
+    v, u = wording.height(value, height_units)
     d = digits + (1 if height_units == "dam" else 0)
     return f"{float(v):.{d}f} {u}"
 
 
 def intensity_text(s: dict, wind_units: str = "m/s", height_units: str = "m") -> str:
     if s["kind"] == "jet_streak":
-        v, u = vocab.wind(s["value"], wind_units)
+        v, u = wording.wind(s["value"], wind_units)
         return f"peak {float(v):.0f} {u}"
     side = "below" if s["kind"] == "low" else "above"
     units = s.get("units", "m")
@@ -383,7 +383,7 @@ def rules_text(out: dict, wind_units: str = "m/s", height_units: str = "m") -> s
         f"hemisphere and {100 * r['max_share']:.0f} % of the globe"
     )
     if r.get("jet_threshold_ms") is not None:
-        v, u = vocab.wind(r["jet_threshold_ms"], wind_units)
+        v, u = wording.wind(r["jet_threshold_ms"], wind_units)
         text += (
             f"; jet streaks above {float(v):.0f} {u}, core above "
             f"{100 * r['core_fraction']:.0f} % of the peak"
@@ -403,19 +403,19 @@ def systems_table(out: dict) -> str:
         ]
         lines += [f"  note: {n}" for n in out.get("notes", [])]
         for i, tr in enumerate(out["tracks"], 1):
-            lines.append(f"{i}. {vocab.system_name(tr['kind'])}, {len(tr['life'])} times")
+            lines.append(f"{i}. {wording.system_name(tr['kind'])}, {len(tr['life'])} times")
             for p in tr["life"]:
                 ro = p["rossby_local_median"]
                 lines.append(
-                    f"   {vocab.when_short(p['valid_time'])}  {vocab.lat(p['lat'])} "
-                    f"{vocab.lon(p['lon'])}  intensity {p['intensity']:.1f}  local Ro "
+                    f"   {wording.when_short(p['valid_time'])}  {wording.lat(p['lat'])} "
+                    f"{wording.lon(p['lon'])}  intensity {p['intensity']:.1f}  local Ro "
                     f"{'n/a' if ro is None else f'{ro:.2g}'}  "
-                    f"{vocab.balance_name(p['verdict'])}"
+                    f"{wording.balance_name(p['verdict'])}"
                 )
         return "\n".join(lines)
     lines = [
         f"Systems of {out['case']} at {level_text(out)}, "
-        f"{vocab.when(out['valid_time'], out.get('reference_time'))}",
+        f"{wording.when(out['valid_time'], out.get('reference_time'))}",
         f"  rules: {rules_text(out)}",
     ]
     lines += [f"  note: {n}" for n in out.get("notes", [])]
@@ -426,19 +426,19 @@ def systems_table(out: dict) -> str:
         rep = s["report"]
         v = rep["verdict"]
         lines.append(
-            f"{i}. {vocab.system_name(s['kind'])} at {vocab.lat(s['lat'])} "
-            f"{vocab.lon(s['lon'])}: {intensity_text(s)}"
+            f"{i}. {wording.system_name(s['kind'])} at {wording.lat(s['lat'])} "
+            f"{wording.lon(s['lon'])}: {intensity_text(s)}"
         )
         lines.append(
             f"   region: {system_region_text(s['region'])}, {rep.get('points', 0)} "
             "valid points" + (f" ({s['note']})" if s.get("note") else "")
         )
-        lines.append(f"   verdict: {vocab.balance_name(v['balance'])}. {v['text']}")
+        lines.append(f"   verdict: {wording.balance_name(v['balance'])}. {v['text']}")
         top = [t for t in rep.get("terms", []) if t["magnitude"] is not None][:3]
         if top:
             lines.append(
                 "   largest terms: "
-                + ", ".join(f"{vocab.term_name(t['name'])} {t['magnitude']:.1e}" for t in top)
+                + ", ".join(f"{wording.term_name(t['name'])} {t['magnitude']:.1e}" for t in top)
                 + " m s-2"
             )
         if rep.get("surface") and out.get("level") == "msl":
@@ -456,9 +456,9 @@ def systems_table(out: dict) -> str:
         parts = rep.get("ageostrophic_parts") or {}
         if parts.get("measured_rms") is not None:
             bits = [
-                f"{vocab.part_name(k)} {p['speed_rms']:.1f}"
+                f"{wording.part_name(k)} {p['speed_rms']:.1f}"
                 if p["speed_rms"] is not None
-                else f"{vocab.part_name(k)} n/a"
+                else f"{wording.part_name(k)} n/a"
                 for k, p in parts["parts"].items()
             ]
             lines.append(
@@ -497,13 +497,13 @@ def systems_csv(out: dict) -> str:
                         out["case"],
                         level_text(out),
                         i,
-                        vocab.system_name(tr["kind"]),
+                        wording.system_name(tr["kind"]),
                         p["valid_time"],
-                        vocab.sig(p["lat"]),
-                        vocab.sig(p["lon"]),
-                        vocab.sig(p["intensity"]),
-                        vocab.sig(p["rossby_local_median"]),
-                        vocab.balance_name(p["verdict"]),
+                        wording.sig(p["lat"]),
+                        wording.sig(p["lon"]),
+                        wording.sig(p["intensity"]),
+                        wording.sig(p["rossby_local_median"]),
+                        wording.balance_name(p["verdict"]),
                     ]
                 )
         return buf.getvalue()
@@ -537,20 +537,20 @@ def systems_csv(out: dict) -> str:
                 out["case"],
                 level_text(out),
                 out["valid_time"],
-                vocab.system_name(s["kind"]),
-                vocab.sig(s["lat"]),
-                vocab.sig(s["lon"]),
-                vocab.sig(s["intensity"]),
+                wording.system_name(s["kind"]),
+                wording.sig(s["lat"]),
+                wording.sig(s["lon"]),
+                wording.sig(s["intensity"]),
                 s.get("units", "m"),
-                vocab.sig(s["depth"]),
-                vocab.sig(s["outer_level"]),
+                wording.sig(s["depth"]),
+                wording.sig(s["outer_level"]),
                 system_region_text(s["region"]),
                 rep.get("points"),
-                vocab.balance_name(rep["verdict"]["balance"]),
-                *[vocab.sig(b.get(c.name)) for c in BALANCE_CLASSES if c.column],
-                vocab.sig((rep.get("numbers") or {}).get("rossby_local_median")),
-                vocab.sig(ap.get("measured_rms")),
+                wording.balance_name(rep["verdict"]["balance"]),
+                *[wording.sig(b.get(c.name)) for c in BALANCE_CLASSES if c.column],
+                wording.sig((rep.get("numbers") or {}).get("rossby_local_median")),
+                wording.sig(ap.get("measured_rms")),
             ]
-            + [vocab.sig(((ap.get("parts") or {}).get(p) or {}).get("speed_rms")) for p in parts]
+            + [wording.sig(((ap.get("parts") or {}).get(p) or {}).get("speed_rms")) for p in parts]
         )
     return buf.getvalue()

@@ -11,14 +11,14 @@ import io
 
 import panel as pn
 
-from .. import compute, formats, vocab
-from ..export import briefing_png
+from .. import compute, report_files, wording
+from ..briefing_image import briefing_png
 from .look import CAUTION, INVENTED, WIDGET_CSS
 
-__all__ = ["Exports"]
+__all__ = ["Downloads"]
 
 
-class Exports(pn.viewable.Viewer):
+class Downloads(pn.viewable.Viewer):
     """The download buttons; ``page`` gives the chart, the report and the state."""
 
     def __init__(self, page, width=250, **params):
@@ -57,7 +57,7 @@ class Exports(pn.viewable.Viewer):
             case_title = self.page.library.get(st.case).title
         except Exception:  # noqa: BLE001 - a case that failed has no title
             pass
-        return formats.context_of(
+        return report_files.context_of(
             rep,
             region_text=st.region_text(),
             wind_units=st.wind_units,
@@ -78,7 +78,7 @@ class Exports(pn.viewable.Viewer):
         rep = self.page.report
         notes = []
         if rep and rep.get("reference_time"):
-            notes.append(f"Valid {vocab.when(rep['valid_time'], rep['reference_time'])}")
+            notes.append(f"Valid {wording.when(rep['valid_time'], rep['reference_time'])}")
         return io.BytesIO(
             briefing_png(
                 chart,
@@ -107,11 +107,11 @@ class Exports(pn.viewable.Viewer):
         rep = self.page.report
         if not rep:
             return io.StringIO("no region report yet\n")
-        return io.StringIO(formats.export_csv(rep, self._context()))
+        return io.StringIO(report_files.export_csv(rep, self._context()))
 
     def json_text(self):
         rep = self.page.report or {}
-        return io.StringIO(formats.export_json(rep, self._context()))
+        return io.StringIO(report_files.export_json(rep, self._context()))
 
     def __panel__(self):
         return self.layout

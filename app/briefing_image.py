@@ -16,7 +16,7 @@ import textwrap
 
 import numpy as np
 
-from . import vocab
+from . import wording
 
 __all__ = ["briefing_png", "OUTLINE_RGB", "INVENTED_RGB"]
 
@@ -228,8 +228,8 @@ def _draw_chart(fig, ax, chart, outline):
         ax.set_yticks([])
     else:
         ax.grid(color="#555555", alpha=0.45, ls=":")
-        ax.xaxis.set_major_formatter(lambda x, _: vocab.lon(x, 0))
-        ax.yaxis.set_major_formatter(lambda y, _: vocab.lat(y, 0))
+        ax.xaxis.set_major_formatter(lambda x, _: wording.lon(x, 0))
+        ax.yaxis.set_major_formatter(lambda y, _: wording.lat(y, 0))
     ax.tick_params(labelsize=12)
     interval = (
         ""
@@ -241,7 +241,7 @@ def _draw_chart(fig, ax, chart, outline):
 
 def _draw_ranking(fig, axr, axb, report):
     avail = [t for t in report["terms"] if t["magnitude"] is not None and t["magnitude"] > 0][::-1]
-    names = [vocab.term_name(t["name"]) for t in avail]
+    names = [wording.term_name(t["name"]) for t in avail]
     vals = [t["magnitude"] for t in avail]
     est = [t["estimate"] or np.nan for t in avail]
     if vals:
@@ -264,7 +264,7 @@ def _draw_ranking(fig, axr, axb, report):
     bal = [(k, r) for k, r in report["balances"].items() if r is not None]
     chosen = report["verdict"]["balance"]
     axb.barh(
-        [vocab.balance_name(k) for k, _ in bal],
+        [wording.balance_name(k) for k, _ in bal],
         [min(r, 1.5) for _, r in bal],
         color=["#E69F00" if k == chosen else "#8a8a8a" for k, _ in bal],
     )
@@ -273,7 +273,7 @@ def _draw_ranking(fig, axr, axb, report):
     axb.tick_params(labelsize=12)
     axb.set_title("Imbalance ratios (orange: the verdict)", fontsize=13)
     v = report["verdict"]
-    name = vocab.balance_name(v["balance"])
+    name = wording.balance_name(v["balance"])
     # the verdict's sentence names its balance first ("Geostrophic: ..."); it is not repeated
     text = v["text"] if v["text"].lower().startswith(name.lower()) else f"{name}. {v['text']}"
     fig.text(

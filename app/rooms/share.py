@@ -13,7 +13,7 @@ import datetime as dt
 import html
 import json
 
-from .. import vocab
+from .. import wording
 from ..state import parse_region
 
 __all__ = ["notes_markdown", "notes_json", "describe_view", "stamp"]
@@ -51,11 +51,11 @@ def describe_view(view: dict, point=None) -> str:
             else f"{level} hPa"
         )
     if view.get("time"):
-        parts.append(vocab.when(view["time"], None))
+        parts.append(wording.when(view["time"], None))
     spec, _ = parse_region(view.get("region", ""))
     parts.append("whole case" if spec is None else spec.describe())
     if point is not None:
-        parts.append(f"point {vocab.lat(point[1])} {vocab.lon(point[0])}")
+        parts.append(f"point {wording.lat(point[1])} {wording.lon(point[0])}")
     return " · ".join(parts)
 
 
