@@ -28,6 +28,8 @@ import os
 import sys
 import time
 
+from balance_core import settings
+
 __all__ = [
     "Task",
     "plan_file",
@@ -42,8 +44,6 @@ __all__ = [
     "local_cluster",
 ]
 
-#: seconds a run waits with no worker left before it stops (the pieces done are kept)
-NO_WORKER_S = float(os.environ.get("BALANCE_DESK_BATCH_NO_WORKER_S", "120"))
 
 #: columns that say where a row comes from, first in every result
 KEY_COLUMNS = ("file", "member", "valid_time", "level_hpa", "region")
@@ -593,6 +593,7 @@ def run_batch(
             plan_next()
         last = 0.0
         alone_since = None
+        no_worker_s = settings.seconds("BALANCE_DESK_BATCH_NO_WORKER_S")
         while pending:
             try:
                 ready = wait(pending, timeout=10, return_when="FIRST_COMPLETED").done
@@ -605,9 +606,9 @@ def run_batch(
                     alone_since = None
                 elif alone_since is None:
                     alone_since = time.monotonic()
-                elif time.monotonic() - alone_since > NO_WORKER_S:
+                elif time.monotonic() - alone_since > no_worker_s:
                     raise BatchError(
-                        f"balance-desk batch: no worker has been left for {NO_WORKER_S:.0f} s "
+                        f"balance-desk batch: no worker has been left for {no_worker_s:.0f} s "
                         f"(each piece may need more memory than --memory-limit gives); the "
                         f"{done} pieces done are kept in {folder}: run again to go on"
                     )

@@ -25,7 +25,7 @@ __all__ = ["CaseLibrary", "LoadedCase", "SEA_LEVEL_INDEX"]
 #: The level index that stands for sea level (the surface budget) in the shared caches.
 SEA_LEVEL_INDEX = -1
 
-log = logging.getLogger("balance_desk")
+log = logging.getLogger(__name__)
 
 
 @dataclasses.dataclass

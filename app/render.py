@@ -34,7 +34,7 @@ __all__ = [
     "COAST_DIRS",
 ]
 
-log = logging.getLogger("balance_desk")
+log = logging.getLogger(__name__)
 
 #: Where offline coastlines are looked for (Debian's python-cartopy-data first).
 COAST_DIRS = ("/usr/share/cartopy/data", os.path.expanduser("~/.local/share/cartopy"))

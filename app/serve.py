@@ -13,9 +13,12 @@ framing by another origin.
 from __future__ import annotations
 
 import logging
+import os
 import socket
 
 import pyproj  # noqa: F401  (before anything that may load eccodes)
+
+from balance_core import settings
 
 from .cases import case_paths
 
@@ -37,7 +40,7 @@ __all__ = [
 #: its own past 400 characters (app.state.MAX_QUERY_VALUE), so the page works and says so
 MAX_URI = 60000
 
-log = logging.getLogger("balance_desk")
+log = logging.getLogger(__name__)
 
 
 class ServeError(Exception):
@@ -209,9 +212,6 @@ def read_passphrase(path: str | None, env=None) -> str | None:
     """The access passphrase: from the file ``path`` (its first line), else the
     environment variable BALANCE_DESK_PASSPHRASE; None when neither gives one. Never
     from the command line, where other users of the machine could read it."""
-    import os
-
-    env = os.environ if env is None else env
     if path:
         try:
             with open(path, encoding="utf-8") as fh:
@@ -222,7 +222,7 @@ def read_passphrase(path: str | None, env=None) -> str | None:
                 f"({getattr(exc, 'strerror', None) or exc})"
             ) from None
     else:
-        text = (env.get("BALANCE_DESK_PASSPHRASE") or "").strip()
+        text = settings.text("BALANCE_DESK_PASSPHRASE", env) or ""
     if not text:
         return None
     if len(text) < 12:
@@ -299,16 +299,11 @@ def serve(
             "write notes."
         )
     store_path = store or default_store_path()
-    import os
-
     try:
-        per_minute = int((env or os.environ).get("BALANCE_DESK_NOTES_PER_MINUTE", "20"))
-        if per_minute < 1:
-            raise ValueError
-    except ValueError:
-        raise ServeError(
-            "balance-desk serve: BALANCE_DESK_NOTES_PER_MINUTE must be a whole number of 1 or more"
-        ) from None
+        per_minute = settings.whole_number("BALANCE_DESK_NOTES_PER_MINUTE", env)
+        level = settings.log_level(env=env)
+    except settings.SettingError as exc:
+        raise ServeError(f"balance-desk serve: {exc}") from None
     try:
         hub = Hub(open_store(store_path), RoomLimits(notes_per_minute=per_minute))
     except StoreError as exc:
@@ -377,9 +372,8 @@ def serve(
         logging.getLogger(name).addFilter(HideRoomKeys())
     for handler in logging.getLogger().handlers:
         handler.addFilter(HideRoomKeys())
-    import os
-
-    log.setLevel(os.environ.get("BALANCE_DESK_LOG", "INFO").upper())  # DEBUG: page timings
+    for name in ("app", "balance_core"):  # every logger of ours is named by its module
+        logging.getLogger(name).setLevel(level)  # DEBUG: page timings
     logging.getLogger("panel.util").setLevel(logging.ERROR)  # it warns of every odd link value
     try:  # kill -USR1 prints every thread's stack to stderr (a stuck server shows where)
         import faulthandler

@@ -27,7 +27,7 @@ import uuid
 
 __all__ = ["FairPool", "Lane", "POOL"]
 
-log = logging.getLogger("balance_desk")
+log = logging.getLogger(__name__)
 
 #: the order a lane's waiting jobs are taken in: the ranking before the chart, then a review
 #: room's view (given to the room once the first two are computed), the systems of the

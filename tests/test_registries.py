@@ -55,3 +55,62 @@ def test_every_chart_field_is_complete(f):
 def test_the_link_and_the_menu_take_the_fields_of_the_one_table():
     assert list(FIELDS) == [f.key for f in fields.CHART_FIELDS]
     assert list(ViewState.param["field"].objects) == list(FIELDS)
+
+
+def _tree_files():
+    import pathlib
+    import subprocess
+
+    root = pathlib.Path(__file__).resolve().parents[1]
+    listed = subprocess.run(
+        ["git", "ls-files", "*.py", "Makefile", ".ci/*"],
+        cwd=root,
+        capture_output=True,
+        text=True,
+        check=False,
+    ).stdout.split()
+    if not listed:  # not a git checkout: every Python file of ours
+        listed = [str(p.relative_to(root)) for p in root.glob("[!.]*/**/*.py")]
+    return root, listed
+
+
+def test_every_environment_variable_is_in_the_settings_table_and_the_readme():
+    from balance_core.settings import SETTINGS
+
+    root, files = _tree_files()
+    used = set()
+    for name in files:
+        text = (root / name).read_text(encoding="utf-8", errors="replace")
+        used |= set(re.findall(r"BALANCE_DESK_[A-Z0-9_]+", text))
+    assert used, "no BALANCE_DESK_ variable found: the search is broken"
+    assert used <= set(SETTINGS), sorted(used - set(SETTINGS))
+    readme = (root / "README.md").read_text(encoding="utf-8")
+    missing = [n for n in SETTINGS if f"| `{n}` |" not in readme]
+    assert not missing, f"not in the README's settings table: {missing}"
+
+
+def test_only_the_settings_module_reads_the_environment_for_our_variables():
+    root, files = _tree_files()
+    readers = [
+        name
+        for name in files
+        if name.endswith(".py")
+        and not name.startswith(("tests/", "bench/"))
+        and re.search(r"environ(\.get)?[\[(]\s*\"BALANCE_DESK_", (root / name).read_text())
+    ]
+    assert readers == [], readers
+
+
+def test_a_setting_that_cannot_be_used_is_refused_by_name():
+    from balance_core import settings
+
+    env = {"BALANCE_DESK_NOTES_PER_MINUTE": "0", "BALANCE_DESK_LOG": "LOUD"}
+    with pytest.raises(settings.SettingError, match="BALANCE_DESK_NOTES_PER_MINUTE"):
+        settings.whole_number("BALANCE_DESK_NOTES_PER_MINUTE", env)
+    with pytest.raises(settings.SettingError, match="BALANCE_DESK_LOG"):
+        settings.log_level(env=env)
+    with pytest.raises(settings.SettingError, match="BALANCE_DESK_BATCH_NO_WORKER_S"):
+        settings.seconds("BALANCE_DESK_BATCH_NO_WORKER_S", {"BALANCE_DESK_BATCH_NO_WORKER_S": "x"})
+    assert settings.whole_number("BALANCE_DESK_NOTES_PER_MINUTE", {}) == 20
+    assert settings.log_level(env={}) == 20  # logging.INFO
+    assert settings.text("BALANCE_DESK_STORE", {"BALANCE_DESK_STORE": "  "}) is None

@@ -229,7 +229,7 @@ def make_archive_session(results: dict, problems=()):
         import uuid
 
         eid = uuid.uuid4().hex[:8]
-        logging.getLogger("balance_desk").exception("archive page failed (error id %s)", eid)
+        logging.getLogger(__name__).exception("archive page failed (error id %s)", eid)
         return pn.pane.HTML(
             alert(f"The archive page could not be built (error id {eid}).", "error")
         )

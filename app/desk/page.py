@@ -41,7 +41,7 @@ from .systems import SystemsPanel
 
 __all__ = ["Page", "make_session", "make_room_session", "error_page", "EarlyBuilds"]
 
-log = logging.getLogger("balance_desk")
+log = logging.getLogger(__name__)
 
 CHART = {
     "case",

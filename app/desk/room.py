@@ -39,7 +39,7 @@ __all__ = [
     "room_link",
 ]
 
-log = logging.getLogger("balance_desk")
+log = logging.getLogger(__name__)
 
 #: a row that wraps and says its own minimum width
 WRAP = {"flex-wrap": "wrap", "min-width": "0"}

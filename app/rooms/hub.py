@@ -26,7 +26,7 @@ from .store import MAX_NAME, RoomStore, StoreError
 
 __all__ = ["Hub", "Person", "RoomLimits", "RoomError"]
 
-log = logging.getLogger("balance_desk")
+log = logging.getLogger(__name__)
 
 
 class RoomError(Exception):

@@ -26,6 +26,8 @@ import sqlite3
 import threading
 import time
 
+from balance_core import settings
+
 __all__ = [
     "Room",
     "Note",
@@ -58,7 +60,7 @@ def new_token() -> str:
 
 def default_store_path() -> str:
     """``BALANCE_DESK_STORE``, else rooms.sqlite in the user's data folder."""
-    env = os.environ.get("BALANCE_DESK_STORE")
+    env = settings.text("BALANCE_DESK_STORE")
     if env:
         return env
     import platformdirs

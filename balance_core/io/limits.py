@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import os
 
+from .. import settings
 from .errors import CaseError
 
 __all__ = ["memory_budget", "parse_size", "check_declared", "FIELDS_PER_LEVEL", "format_size"]
@@ -49,7 +50,7 @@ def memory_budget(explicit=None) -> int:
     """The memory budget in bytes (see the module docstring)."""
     if explicit is not None:
         return parse_size(explicit)
-    env = os.environ.get("BALANCE_DESK_MEMORY_BUDGET")
+    env = settings.text("BALANCE_DESK_MEMORY_BUDGET")
     if env:
         try:
             return parse_size(env)
