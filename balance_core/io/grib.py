@@ -411,6 +411,28 @@ def _coordinates(path, msg: Message, shape, transposed):
     return lat.reshape(shape), lon.reshape(shape)
 
 
+#: grid types whose latitude and longitude are 1-D dimensions
+_LATLON_GRIDS = ("regular_ll", "regular_gg")
+#: grid keys copied to every variable as GRIB_* attributes (the projection needs them)
+_GRID_KEYS = (
+    "gridType",
+    "resolutionAndComponentFlags",
+    "uvRelativeToGrid",
+    "shapeOfTheEarth",
+    "radius",
+    "LaDInDegrees",
+    "LoVInDegrees",
+    "Latin1InDegrees",
+    "Latin2InDegrees",
+    "orientationOfTheGridInDegrees",
+    "projectionCentreFlag",
+    "DxInMetres",
+    "DyInMetres",
+    "latitudeOfFirstGridPointInDegrees",
+    "longitudeOfFirstGridPointInDegrees",
+)
+
+
 def open_grib(path, *, budget=None) -> list:
     """xarray Datasets of a GRIB file, one per (level kind, grid), lazily decoded.
 
@@ -423,9 +445,40 @@ def open_grib(path, *, budget=None) -> list:
     lazily indexed (decoded on access) or, for files above
     :data:`EAGER_LIMIT_BYTES`, dask arrays of one chunk per field.
     """
-    import xarray as xr
+    usable = _usable_messages(path, scan(path), budget)
+    grids: dict[Any, Any] = {}
+    wanted = _wanted_short_names()
+    datasets: collections.OrderedDict[Any, Any] = collections.OrderedDict()
+    stamp = f"{os.path.abspath(path)}-{os.path.getmtime(path)}"
+    lazy = sum(int(m.keys.get("numberOfValues") or 0) for m in usable) * 8 > EAGER_LIMIT_BYTES
+    for vi, (var_key, ids) in enumerate(_group_variables(usable).items()):
+        name, lkind, lval, gsig = var_key[0], var_key[2], var_key[3], var_key[5]
+        first = usable[ids[0]]
+        shape, transposed = _shape(first.keys)
+        if None in shape:
+            raise CaseError(f"GRIB grid of {name!r} has no size keys", path, name)
+        if gsig not in grids:
+            grids[gsig] = (len(grids),) + _coordinates(path, first, shape, transposed)
+        axes = _variable_axes(path, usable, ids, lkind, lval, keep=(name or "").lower() in wanted)
+        if axes is None:
+            continue  # two fields in one cell of a field no role uses: left out
+        var, coords = _variable(path, usable, var_key, axes, grids[gsig], transposed)
+        if lazy:
+            chunks = {d: 1 for d in ("number", "valid_time", "isobaric") if d in var.dims}
+            # a name of our own: dask would otherwise pickle the message list to name chunks
+            var = var.chunk(chunks, name=f"grib-{stamp}-{vi}")
+        ds_key = (lkind, lval if lkind != "isobaric" else None, grids[gsig][0])
+        ds = datasets.setdefault(ds_key, {"vars": {}, "coords": {}})
+        vname, n = name, 2
+        while vname in ds["vars"]:
+            vname, n = f"{name}_{n}", n + 1
+        ds["vars"][vname] = (var, coords)
+    return [ds for (lkind, _, _), parts in datasets.items() for ds in _datasets(lkind, parts)]
 
-    messages = scan(path)
+
+def _usable_messages(path, messages: list, budget) -> list:
+    """The messages on grids balance-desk reads; refuse a file with none, one too large for
+    the memory budget, or one in alternative row scanning."""
     unsupported = collections.Counter(
         m.keys.get("gridType") for m in messages if m.keys.get("gridType") not in SUPPORTED_GRIDS
     )
@@ -453,7 +506,12 @@ def open_grib(path, *, budget=None) -> list:
             path,
             bad_scan[0].keys.get("shortName"),
         )
-    # group messages into variables
+    return usable
+
+
+def _group_variables(usable: list) -> collections.OrderedDict:
+    """Message numbers by variable: (short name, paramId, level kind, level value (None on
+    isobaric levels, which become an axis), step type, grid, concept)."""
     groups: collections.OrderedDict[Any, Any] = collections.OrderedDict()
     for i, m in enumerate(usable):
         k = m.keys
@@ -468,183 +526,149 @@ def open_grib(path, *, budget=None) -> list:
             _concept_key(k),
         )
         groups.setdefault(var_key, []).append(i)
-    grids: dict[Any, Any] = {}
-    wanted = _wanted_short_names()
-    datasets: collections.OrderedDict[Any, Any] = collections.OrderedDict()
-    stamp = f"{os.path.abspath(path)}-{os.path.getmtime(path)}"
-    lazy = sum(int(m.keys.get("numberOfValues") or 0) for m in usable) * 8 > EAGER_LIMIT_BYTES
-    for vi, (var_key, ids) in enumerate(groups.items()):
-        name, _, lkind, lval, step_type, gsig, _ = var_key
-        first = usable[ids[0]]
-        k = first.keys
-        shape, transposed = _shape(k)
-        if None in shape:
-            raise CaseError(f"GRIB grid of {name!r} has no size keys", path, name)
-        grid_shape = (shape[1], shape[0]) if transposed else shape
-        if gsig not in grids:
-            grids[gsig] = (len(grids),) + _coordinates(path, first, shape, transposed)
-        gid, lat2d, lon2d = grids[gsig]
-        members = sorted({_member_of(usable[i].keys) for i in ids}, key=lambda v: (v is None, v))
-        valid = sorted(
-            {
-                _datetime(usable[i].keys.get("validityDate"), usable[i].keys.get("validityTime"))
-                for i in ids
-            }
-        )
-        levels = (
-            sorted({_level_of(usable[i].keys)[1] for i in ids}, reverse=True)
-            if lkind == "isobaric"
-            else [lval]
-        )
-        index = np.full((len(members), len(valid), len(levels)), -1, dtype=np.int64)
-        refs: dict[Any, Any] = {}
-        clash = None
-        for i in ids:
-            mk = usable[i].keys
-            vt = _datetime(mk.get("validityDate"), mk.get("validityTime"))
-            cell = (members.index(_member_of(mk)), valid.index(vt), levels.index(_level_of(mk)[1]))
-            if index[cell] >= 0 and clash is None:
-                clash = vt
-            index[cell] = i
-            refs.setdefault(vt, set()).add(_datetime(mk.get("dataDate"), mk.get("dataTime")))
-        if clash is not None:
-            if (name or "").lower() not in wanted:
-                continue  # a field no role uses: leave it out rather than refuse the file
-            raise CaseError(
-                f"holds two fields of {name!r} ({lkind}) for the same member, valid "
-                f"time {np.datetime_as_string(clash, unit='m')} and level (analysis "
-                "and forecast mixed?); split the file by reference time",
-                path,
-                name,
-            )
-        holes = int(np.count_nonzero(index < 0))
-        dims: list[str] = []
-        coords: dict[str, Any] = {}
-        if len(members) > 1:
-            dims.append("number")
-            coords["number"] = ("number", np.array([-1 if m is None else m for m in members]))
-            lead_index = index
-        else:
-            lead_index = index[0]
-        dims.append("valid_time")
-        coords["valid_time"] = ("valid_time", np.array(valid, dtype="datetime64[ns]"))
-        coords["reference_time"] = (
-            "valid_time",
-            np.array([min(refs[v]) for v in valid], dtype="datetime64[ns]"),
-        )
-        if lkind == "isobaric":
-            dims.append("isobaric")
-            coords["isobaric"] = (
-                "isobaric",
-                np.array(levels, dtype=np.float64),
-                {
-                    "units": "Pa",
-                    "standard_name": "air_pressure",
-                    "long_name": "pressure (isobaric level)",
-                },
-            )
-            index_used = lead_index
-        else:
-            index_used = lead_index[..., 0]
-        fields = _Fields(
-            path,
-            usable,
-            index_used if index_used.ndim else index_used[None],
-            grid_shape,
-            transposed,
-        )
-        if k["gridType"] in ("regular_ll", "regular_gg"):
-            ydim, xdim = "latitude", "longitude"
-            coords["latitude"] = (
-                "latitude",
-                lat2d[:, 0],
-                {"units": "degrees_north", "standard_name": "latitude"},
-            )
-            coords["longitude"] = (
-                "longitude",
-                lon2d[0, :],
-                {"units": "degrees_east", "standard_name": "longitude"},
-            )
-        else:
-            ydim, xdim = "y", "x"
-            coords["latitude"] = (
-                ("y", "x"),
-                lat2d,
-                {"units": "degrees_north", "standard_name": "latitude"},
-            )
-            coords["longitude"] = (
-                ("y", "x"),
-                lon2d,
-                {"units": "degrees_east", "standard_name": "longitude"},
-            )
-        dims += [ydim, xdim]
-        if lkind != "isobaric":
-            coords[lkind] = ((), lval, {"units": "m" if lkind.startswith("height") else "1"})
-        attrs = {
-            "units": k.get("units") or "",
-            "GRIB_shortName": k.get("shortName"),
-            "GRIB_paramId": k.get("paramId"),
-            "GRIB_typeOfLevel": k.get("typeOfLevel"),
-            "GRIB_level": None if lkind == "isobaric" else lval,
-            "GRIB_stepType": step_type,
-            "GRIB_edition": k.get("edition"),
-            "GRIB_derivedForecast": k.get("derivedForecast"),
-            "GRIB_missing_fields": holes,
-            "GRIB_grid_id": gid,
+    return groups
+
+
+@dataclasses.dataclass
+class _Axes:
+    """A variable's members, valid times, levels and message number of each cell (-1: none)."""
+
+    members: list
+    valid: list
+    levels: list
+    index: np.ndarray
+    references: dict
+
+
+def _variable_axes(path, usable, ids, lkind, lval, keep: bool) -> _Axes | None:
+    """The axes of one variable's messages; None when two messages fill one cell of a
+    variable no role uses (``keep`` False), a CaseError when it is one that is used."""
+    members = sorted({_member_of(usable[i].keys) for i in ids}, key=lambda v: (v is None, v))
+    valid = sorted(
+        {
+            _datetime(usable[i].keys.get("validityDate"), usable[i].keys.get("validityTime"))
+            for i in ids
         }
-        for key in (
-            "gridType",
-            "resolutionAndComponentFlags",
-            "uvRelativeToGrid",
-            "shapeOfTheEarth",
-            "radius",
-            "LaDInDegrees",
-            "LoVInDegrees",
-            "Latin1InDegrees",
-            "Latin2InDegrees",
-            "orientationOfTheGridInDegrees",
-            "projectionCentreFlag",
-            "DxInMetres",
-            "DyInMetres",
-            "latitudeOfFirstGridPointInDegrees",
-            "longitudeOfFirstGridPointInDegrees",
-        ):
-            if k.get(key) is not None:
-                attrs[f"GRIB_{key}"] = k[key]
-        attrs = {a: v for a, v in attrs.items() if v is not None}
-        var = xr.Variable(dims, _backend_array(fields), attrs)
-        if lazy:
-            chunks = {d: 1 for d in ("number", "valid_time", "isobaric") if d in dims}
-            # a name of our own: dask would otherwise pickle the message list to name chunks
-            var = var.chunk(chunks, name=f"grib-{stamp}-{vi}")
-        ds_key = (lkind, lval if lkind != "isobaric" else None, gid)
-        ds = datasets.setdefault(ds_key, {"vars": {}, "coords": {}})
-        vname = name
-        n = 2
-        while vname in ds["vars"]:
-            vname = f"{name}_{n}"
-            n += 1
-        ds["vars"][vname] = (var, coords)
-    out = []
-    for (lkind, _lval, _gid), parts in datasets.items():
-        # variables with other time or level axes go to datasets of their own
-        buckets: list[Any] = []
-        for vname, (var, coords) in parts["vars"].items():
-            for b in buckets:
-                if all(
-                    c not in b["coords"] or _same_coord(b["coords"][c], coords[c]) for c in coords
-                ):
-                    b["vars"][vname] = var
-                    b["coords"].update(coords)
-                    break
-            else:
-                buckets.append({"vars": {vname: var}, "coords": dict(coords)})
+    )
+    levels = (
+        sorted({_level_of(usable[i].keys)[1] for i in ids}, reverse=True)
+        if lkind == "isobaric"
+        else [lval]
+    )
+    index = np.full((len(members), len(valid), len(levels)), -1, dtype=np.int64)
+    refs: dict[Any, Any] = {}
+    clash = None
+    for i in ids:
+        mk = usable[i].keys
+        vt = _datetime(mk.get("validityDate"), mk.get("validityTime"))
+        cell = (members.index(_member_of(mk)), valid.index(vt), levels.index(_level_of(mk)[1]))
+        if index[cell] >= 0 and clash is None:
+            clash = vt
+        index[cell] = i
+        refs.setdefault(vt, set()).add(_datetime(mk.get("dataDate"), mk.get("dataTime")))
+    if clash is None:
+        return _Axes(members, valid, levels, index, refs)
+    if not keep:
+        return None
+    name = usable[ids[0]].keys.get("shortName")
+    raise CaseError(
+        f"holds two fields of {name!r} ({lkind}) for the same member, valid "
+        f"time {np.datetime_as_string(clash, unit='m')} and level (analysis "
+        "and forecast mixed?); split the file by reference time",
+        path,
+        name,
+    )
+
+
+def _variable(path, usable, var_key, axes: _Axes, grid, transposed):
+    """One variable (lazily decoded) and its coordinates; its attributes are those of its
+    first message in the file."""
+    import xarray as xr
+
+    _, _, lkind, lval, step_type, _, _ = var_key
+    gid, lat2d, lon2d = grid
+    k = usable[int(axes.index[axes.index >= 0].min())].keys
+    shape, _ = _shape(k)
+    dims: list[str] = []
+    coords: dict[str, Any] = {}
+    index = axes.index
+    if len(axes.members) > 1:
+        dims.append("number")
+        coords["number"] = ("number", np.array([-1 if m is None else m for m in axes.members]))
+    else:
+        index = index[0]
+    dims.append("valid_time")
+    coords["valid_time"] = ("valid_time", np.array(axes.valid, dtype="datetime64[ns]"))
+    coords["reference_time"] = (
+        "valid_time",
+        np.array([min(axes.references[v]) for v in axes.valid], dtype="datetime64[ns]"),
+    )
+    if lkind == "isobaric":
+        dims.append("isobaric")
+        coords["isobaric"] = (
+            "isobaric",
+            np.array(axes.levels, dtype=np.float64),
+            {
+                "units": "Pa",
+                "standard_name": "air_pressure",
+                "long_name": "pressure (isobaric level)",
+            },
+        )
+    else:
+        index = index[..., 0]
+        coords[lkind] = ((), lval, {"units": "m" if lkind.startswith("height") else "1"})
+    grid_shape = (shape[1], shape[0]) if transposed else shape
+    fields = _Fields(path, usable, index if index.ndim else index[None], grid_shape, transposed)
+    coords.update(_horizontal_coords(k["gridType"], lat2d, lon2d))
+    dims += ["latitude", "longitude"] if k["gridType"] in _LATLON_GRIDS else ["y", "x"]
+    attrs = {
+        "units": k.get("units") or "",
+        "GRIB_shortName": k.get("shortName"),
+        "GRIB_paramId": k.get("paramId"),
+        "GRIB_typeOfLevel": k.get("typeOfLevel"),
+        "GRIB_level": None if lkind == "isobaric" else lval,
+        "GRIB_stepType": step_type,
+        "GRIB_edition": k.get("edition"),
+        "GRIB_derivedForecast": k.get("derivedForecast"),
+        "GRIB_missing_fields": int(np.count_nonzero(axes.index < 0)),
+        "GRIB_grid_id": gid,
+    }
+    attrs.update({f"GRIB_{key}": k[key] for key in _GRID_KEYS if k.get(key) is not None})
+    attrs = {a: v for a, v in attrs.items() if v is not None}
+    return xr.Variable(dims, _backend_array(fields), attrs), coords
+
+
+def _horizontal_coords(grid_type: str, lat2d, lon2d) -> dict:
+    """Latitude and longitude: 1-D dimensions on lat-lon and Gaussian grids, else 2-D on y, x."""
+    lat_attrs = {"units": "degrees_north", "standard_name": "latitude"}
+    lon_attrs = {"units": "degrees_east", "standard_name": "longitude"}
+    if grid_type in _LATLON_GRIDS:
+        return {
+            "latitude": ("latitude", lat2d[:, 0], lat_attrs),
+            "longitude": ("longitude", lon2d[0, :], lon_attrs),
+        }
+    return {"latitude": (("y", "x"), lat2d, lat_attrs), "longitude": (("y", "x"), lon2d, lon_attrs)}
+
+
+def _datasets(lkind: str, parts: dict) -> list:
+    """The Datasets of one level kind and grid: variables whose time or level axes differ
+    go to datasets of their own."""
+    import xarray as xr
+
+    buckets: list[Any] = []
+    for vname, (var, coords) in parts["vars"].items():
         for b in buckets:
-            ds = xr.Dataset(
-                {n: v for n, v in b["vars"].items()}, coords={c: v for c, v in b["coords"].items()}
-            )
-            ds.attrs["GRIB_typeOfLevel"] = lkind
-            out.append(ds)
+            if all(c not in b["coords"] or _same_coord(b["coords"][c], coords[c]) for c in coords):
+                b["vars"][vname] = var
+                b["coords"].update(coords)
+                break
+        else:
+            buckets.append({"vars": {vname: var}, "coords": dict(coords)})
+    out = []
+    for b in buckets:
+        ds = xr.Dataset(dict(b["vars"]), coords=dict(b["coords"]))
+        ds.attrs["GRIB_typeOfLevel"] = lkind
+        out.append(ds)
     return out
 
 
