@@ -89,8 +89,10 @@ def _port(text):
         val = int(text)
     except ValueError:
         raise argparse.ArgumentTypeError(f"--port must be a whole number, got {text!r}") from None
-    if not 1 <= val <= 65535:
-        raise argparse.ArgumentTypeError(f"--port must lie from 1 to 65535, got {text}")
+    if not 0 <= val <= 65535:
+        raise argparse.ArgumentTypeError(
+            f"--port must lie from 1 to 65535 (or 0: a free port), got {text}"
+        )
     return val
 
 
@@ -356,7 +358,12 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("files", nargs="*", metavar="FILE")
     p.add_argument("--cases", default=None, metavar="DIR", help="serve every case in DIR")
     p.add_argument("--host", default="127.0.0.1", help="address to bind (default 127.0.0.1)")
-    p.add_argument("--port", type=_port, default=5006, help="1 to 65535 (default 5006)")
+    p.add_argument(
+        "--port",
+        type=_port,
+        default=5006,
+        help="1 to 65535, or 0 for a free port the system picks (it is printed; default 5006)",
+    )
     p.add_argument("--show", action="store_true", help="open a browser window")
     p.add_argument(
         "--memory-budget",

@@ -184,9 +184,10 @@ class HideRoomKeys(logging.Filter):
 
 
 def check_address(host: str, port: int):
-    """One sentence (ServeError) if the port is out of range or the host cannot be resolved."""
-    if not isinstance(port, int) or not 1 <= port <= 65535:
-        raise ServeError(f"balance-desk serve: port {port} is not a port (1 to 65535)")
+    """One sentence (ServeError) if the port is out of range or the host cannot be resolved.
+    Port 0 asks the system for a free port (the server says which once it listens)."""
+    if not isinstance(port, int) or not 0 <= port <= 65535:
+        raise ServeError(f"balance-desk serve: port {port} is not a port (1 to 65535, or 0)")
     try:
         socket.getaddrinfo(host, port, type=socket.SOCK_STREAM)
     except (socket.gaierror, UnicodeError, OSError) as exc:
@@ -301,7 +302,7 @@ def serve(
     store_path = store or default_store_path()
     try:
         per_minute = settings.whole_number("BALANCE_DESK_NOTES_PER_MINUTE", env)
-        level = settings.log_level(env=env)
+        log_level = settings.log_level(env=env)
     except settings.SettingError as exc:
         raise ServeError(f"balance-desk serve: {exc}") from None
     try:
@@ -330,7 +331,9 @@ def serve(
     _limit_page_requests()
     if GLOBAL_CSS not in pn.config.raw_css:
         pn.config.raw_css.append(GLOBAL_CSS)
-    origins = _origins(host, port, origins)
+    extra_origins = list(origins)
+    origins = _origins(host, port, extra_origins)
+    headers = security_headers(host, port)
     auth = {}
     if passphrase is not None:
         import secrets
@@ -356,7 +359,7 @@ def serve(
             websocket_origin=origins,
             start=False,
             print=False,
-            transforms=[_transform(security_headers(host, port))],
+            transforms=[_transform(headers)],
             check_unused_sessions=5000,
             unused_session_lifetime=60000,
             **auth,
@@ -367,13 +370,19 @@ def serve(
         ) from None
     finally:
         quiet.setLevel(level)
+    if port == 0:  # the system picked the port as the server bound it: known only now
+        port = server.port
+        headers.update(security_headers(host, port))
+        allowed = server._tornado.websocket_origins  # Bokeh's own set; it has no setter
+        allowed.clear()
+        allowed.update(_origins(host, port, extra_origins))
     logging.basicConfig(level=logging.INFO, format="%(asctime)s %(levelname)s %(message)s")
     for name in ("tornado.access", "bokeh.server.views.ws", "bokeh", "tornado", "panel"):
         logging.getLogger(name).addFilter(HideRoomKeys())
     for handler in logging.getLogger().handlers:
         handler.addFilter(HideRoomKeys())
     for name in ("app", "balance_core"):  # every logger of ours is named by its module
-        logging.getLogger(name).setLevel(level)  # DEBUG: page timings
+        logging.getLogger(name).setLevel(log_level)  # DEBUG: page timings
     logging.getLogger("panel.util").setLevel(logging.ERROR)  # it warns of every odd link value
     try:  # kill -USR1 prints every thread's stack to stderr (a stuck server shows where)
         import faulthandler

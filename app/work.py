@@ -90,6 +90,8 @@ class Lane:
         with self.pool._lock:
             self.closed = True
             self.waiting.clear()
+            if not any(self.running.values()):
+                log.debug("lane %s: idle", self.name)
 
     def _take(self):
         first_busy = any(self.running[k] for k in FIRST)
@@ -178,6 +180,8 @@ class FairPool:
                     lane.served += computed
                     if lane.waiting and not lane.closed:
                         self._ready(lane)
+                    elif not any(lane.running.values()):
+                        log.debug("lane %s: idle", lane.name)  # the sign tests wait on
 
     def busy(self) -> bool:
         """Every thread at work, or work waiting: a new job would queue."""

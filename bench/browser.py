@@ -15,11 +15,11 @@ import time
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(HERE)
-if os.path.join(ROOT, "tests") not in sys.path:
-    sys.path.append(os.path.join(ROOT, "tests"))
+if ROOT not in sys.path:
+    sys.path.insert(0, ROOT)
 
-import serving  # noqa: E402
-from chromium import ARGS, CHROMIUM  # noqa: E402,F401 - Chromium's path and flags, as the tests
+from testkit import serving  # noqa: E402
+from testkit.chromium import ARGS, CHROMIUM  # noqa: E402,F401 - Chromium's path and flags, as the tests
 
 LINK = "?case=ocean_cyclone&level=500&time=2041-01-19T12%3A00%3A00Z"
 

@@ -47,7 +47,7 @@ import pyproj
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(HERE)
-sys.path.insert(0, os.path.join(ROOT, "tests"))
+sys.path.insert(0, ROOT)
 
 #: NCEP grid 218: 614 x 428 points, 12.19 km, Lambert conformal tangent at 25 N, LoV 265 E
 NX, NY, DX = 614, 428, 12191.0
@@ -71,8 +71,8 @@ print(n)
 
 def make_file(path):
     """The regional multi-level-type GRIB2 file described in the module docstring."""
-    from gribwrite import write_grib2
-    from makedata import truth
+    from testkit.gribwrite import write_grib2
+    from testkit.makedata import truth
 
     crs = pyproj.CRS.from_proj4(
         "+proj=lcc +lat_1=25 +lat_2=25 +lat_0=25 +lon_0=265 +R=6371229 +units=m"
@@ -171,7 +171,7 @@ def pair(path, repeat):
 def huge_refusal(tmp, repeat):
     """The refusal of a file declaring a huge grid, against analysing the smallest sample
     case (the same interpreter start and imports): seconds, seconds."""
-    from makedata import huge_declaring_netcdf
+    from testkit.makedata import huge_declaring_netcdf
 
     huge = os.path.join(tmp, "huge.nc")
     huge_declaring_netcdf(huge)

@@ -43,13 +43,11 @@ import pyproj  # noqa: F401
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(HERE)
 sys.path.insert(0, ROOT)
-sys.path.insert(0, os.path.join(ROOT, "tests"))
-
-from chromium import ARGS, CHROMIUM  # noqa: E402
-from serving import start_server, stop_server  # noqa: E402
-from wire_page import WirePage  # noqa: E402
 
 from app.rooms import SQLiteStore  # noqa: E402
+from testkit.chromium import ARGS, CHROMIUM  # noqa: E402
+from testkit.serving import start_server, stop_server  # noqa: E402
+from testkit.wire_page import WirePage  # noqa: E402
 
 #: in every follower: a log of (Date.now(), text) each time the verdict line changes
 WATCH_JS = """
@@ -258,7 +256,7 @@ async def crash(store_path, writers=4, seconds=8.0):
         await asyncio.gather(*tasks, return_exceptions=True)
         await b.close()
     stop_server(proc)
-    proc, url, port = start_server(["--store", store_path], env=env, port=port)
+    proc, url, port = start_server(["--store", store_path], env=env)
     stop_server(proc)
     s = SQLiteStore(store_path)
     ok = s.integrity()

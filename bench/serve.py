@@ -43,10 +43,10 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(HERE)
 sys.path.insert(0, ROOT)
 sys.path.append(HERE)  # after the project: bench/app.py must not hide the app package
-sys.path.append(os.path.join(ROOT, "tests"))
 
 from browser import ARGS, CHROMIUM, LINK, page_ready, set_box, start_server  # noqa: E402
-from wire_page import WirePage  # noqa: E402
+
+from testkit.wire_page import WirePage  # noqa: E402
 
 BOXES = [
     (-52, -28, 38, 56),

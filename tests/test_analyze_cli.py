@@ -7,9 +7,9 @@ import os
 
 import numpy as np
 import pytest
-from makedata import latlon_dataset
 
 from app.cli import main
+from testkit.makedata import latlon_dataset
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 CYCLONE = os.path.join(HERE, "..", "sample_cases", "ocean_cyclone.nc")

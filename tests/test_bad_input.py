@@ -13,9 +13,9 @@ import sys
 import numpy as np
 import pytest
 import xarray as xr
-from makedata import latlon_dataset
 
 from app.cli import main
+from testkit.makedata import latlon_dataset
 
 LAT = np.arange(60.0, 39.9, -2.0)
 LON = np.arange(-20.0, 20.1, 2.0)
@@ -70,7 +70,7 @@ def coord_values(ds, coord, values, attrs=None):
 
 
 def grib_temperature_only(tmp, name):
-    from gribwrite import write_grib2
+    from testkit.gribwrite import write_grib2
 
     la, lo = np.meshgrid(LAT[::-1], LON, indexing="ij")
     t = np.broadcast_to(250.0 + 0 * la, (1, 1) + la.shape).copy()
@@ -81,7 +81,7 @@ def grib_temperature_only(tmp, name):
 
 
 def truncated_grib(tmp, name):
-    from gribwrite import write_grib2
+    from testkit.gribwrite import write_grib2
 
     la, lo = np.meshgrid(LAT[::-1], LON, indexing="ij")
     z = np.broadcast_to(5500.0 + la, (1, 1) + la.shape).copy()

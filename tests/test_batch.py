@@ -8,17 +8,18 @@
 * a bad file among good ones: one row in the errors table, results for all the others.
 """
 
+import json
 import os
 import signal
-import socket
 import subprocess
 import sys
-import time
 
 import numpy as np
 import pandas as pd
 import pytest
-from makedata import latlon_dataset
+
+from testkit.makedata import latlon_dataset
+from testkit.serving import wait_until
 
 pytestmark = pytest.mark.slow
 
@@ -48,17 +49,12 @@ def _box_args():
     return [f"--box={','.join(f'{v:g}' for v in b)}" for b in BOXES]
 
 
-def _free_port():
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
 def test_rows_from_a_real_cluster_equal_analyze(archive, tmp_path):
     from app.batch import Task, flatten
     from balance_core.io import analyze_case, open_case
 
-    port = _free_port()
+    # port 0: the scheduler binds a free port and writes its address to the file
+    scheduler_file = str(tmp_path / "scheduler.json")
     sched = subprocess.Popen(
         [
             os.path.join(BIN, "dask"),
@@ -66,7 +62,9 @@ def test_rows_from_a_real_cluster_equal_analyze(archive, tmp_path):
             "--host",
             "127.0.0.1",
             "--port",
-            str(port),
+            "0",
+            "--scheduler-file",
+            scheduler_file,
             "--dashboard-address",
             ":0",
         ],
@@ -78,7 +76,8 @@ def test_rows_from_a_real_cluster_equal_analyze(archive, tmp_path):
         [
             os.path.join(BIN, "dask"),
             "worker",
-            f"tcp://127.0.0.1:{port}",
+            "--scheduler-file",
+            scheduler_file,
             "--nworkers",
             "2",
             "--nthreads",
@@ -94,14 +93,23 @@ def test_rows_from_a_real_cluster_equal_analyze(archive, tmp_path):
     try:
         from distributed import Client
 
-        for _ in range(120):
+        def address():
             try:
-                with Client(f"tcp://127.0.0.1:{port}", timeout="2s") as c:
-                    if len(c.scheduler_info()["workers"]) == 2:
-                        break
+                with open(scheduler_file) as fh:
+                    return json.load(fh)["address"]
+            except (OSError, ValueError, KeyError):
+                return None
+
+        scheduler = wait_until(address, 120, what="the scheduler's address")
+
+        def two_workers():
+            try:
+                with Client(scheduler, timeout="2s") as c:
+                    return len(c.scheduler_info()["workers"]) == 2
             except OSError:
-                pass
-            time.sleep(0.5)
+                return False
+
+        wait_until(two_workers, 120, what="two workers", every=0.5)
         out = tmp_path / "rows.parquet"
         p = _batch(
             [
@@ -112,7 +120,7 @@ def test_rows_from_a_real_cluster_equal_analyze(archive, tmp_path):
                 "--out",
                 str(out),
                 "--scheduler",
-                f"tcp://127.0.0.1:{port}",
+                scheduler,
             ],
             cwd=ROOT,
         )
@@ -176,12 +184,7 @@ def test_a_run_killed_partway_goes_on_without_gaps_or_repeats(archive, tmp_path)
         start_new_session=True,
     )
     parts = tmp_path / "rows.csv.parts"
-    deadline = time.time() + 300
-    while time.time() < deadline:
-        done = list(parts.glob("*.json")) if parts.exists() else []
-        if len(done) >= 5:
-            break
-        time.sleep(0.1)
+    wait_until(lambda: len(list(parts.glob("*.json"))) >= 5, 300, what="five pieces done")
     os.killpg(proc.pid, signal.SIGKILL)  # the client and its local cluster, at once
     proc.wait(timeout=60)
     assert 5 <= len(list(parts.glob("*.json"))) < 48  # of 4 files x 3 times x 4 levels

@@ -11,8 +11,9 @@ import time
 
 import numpy as np
 import pytest
-from chromium import launched, require
-from serving import start_server, stop_server
+
+from testkit.chromium import launched, require
+from testkit.serving import start_server, stop_server
 
 pytestmark = pytest.mark.browser
 

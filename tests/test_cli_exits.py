@@ -14,9 +14,10 @@ import time
 
 import numpy as np
 import pytest
-from makedata import latlon_dataset
 
 from app.cli import main
+from testkit.makedata import latlon_dataset
+from testkit.serving import SERVING
 
 ROOT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..")
 LAT = np.arange(60.0, 39.9, -2.0)
@@ -47,8 +48,8 @@ def one_sentence(err):
 
 
 def mixed_grib(tmp):
-    from gribwrite import write_grib2
-    from makedata import truth
+    from testkit.gribwrite import write_grib2
+    from testkit.makedata import truth
 
     def fields(lat, lon):
         la, lo = np.meshgrid(lat, lon, indexing="ij")
@@ -179,7 +180,7 @@ def test_a_time_with_a_zone_offset_gives_no_warning(tmp_path):
 def test_a_file_declaring_huge_dimensions_is_refused_from_its_metadata(tmp_path):
     # A few hundred kilobytes declaring a 100000 x 100000 grid whose chunks were never
     # written: refused from its metadata, without reading it.
-    from makedata import huge_declaring_netcdf
+    from testkit.makedata import huge_declaring_netcdf
 
     path = str(tmp_path / "huge.nc")
     huge_declaring_netcdf(path)
@@ -235,17 +236,11 @@ def test_files_with_the_same_name_do_not_hide_one_another(tmp_path):
     assert lib.names == ["run", "run-2"] and lib.good == ["run", "run-2"]
 
 
-def _free_port():
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
 @pytest.mark.parametrize(
     "args, fragment",
     [
         (["--port", "99999"], "--port must lie from 1 to 65535"),
-        (["--port", "0"], "--port must lie from 1 to 65535"),
+        (["--port", "-1"], "--port must lie from 1 to 65535"),
         (["--host", "no-such-host.invalid"], "cannot be used"),
     ],
 )
@@ -269,7 +264,7 @@ def test_serve_refuses_a_port_in_use():
 
 def test_serve_refuses_when_no_case_loads(tmp_path):
     (tmp_path / "broken.nc").write_bytes(b"not a file at all")
-    code, out, err = run("serve", "--cases", str(tmp_path), "--port", str(_free_port()))
+    code, out, err = run("serve", "--cases", str(tmp_path), "--port", "0")
     assert code == 2 and "none of the cases could be loaded" in err
     assert "not serving broken" in out and "serving 0" not in out
 
@@ -277,9 +272,8 @@ def test_serve_refuses_when_no_case_loads(tmp_path):
 def test_serve_says_which_cases_failed_and_serves_the_others(tmp_path):
     good(str(tmp_path), "fine.nc")
     (tmp_path / "broken.nc").write_bytes(b"not a file at all")
-    port = _free_port()
     proc = subprocess.Popen(
-        [sys.executable, "-m", "app.cli", "serve", "--cases", str(tmp_path), "--port", str(port)],
+        [sys.executable, "-m", "app.cli", "serve", "--cases", str(tmp_path), "--port", "0"],
         stdout=subprocess.PIPE,
         stderr=subprocess.STDOUT,
         text=True,
@@ -295,7 +289,8 @@ def test_serve_says_which_cases_failed_and_serves_the_others(tmp_path):
             lines.append(line)
             if "serving" in line and "not serving" not in line:
                 break
-        # "serving" comes only once the port listens
+        # "serving" comes only once the port listens, and says which port the system gave
+        port = int(SERVING.search(lines[-1]).group(1))
         with socket.create_connection(("127.0.0.1", port), timeout=5):
             pass
     finally:

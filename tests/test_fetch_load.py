@@ -15,10 +15,18 @@ import urllib.error
 import urllib.request
 
 import pytest
-from serving import start_server, stop_server
 
 from app.desk.page import EarlyBuilds
 from app.serve import PageLimit, quiet_closed_sockets
+from testkit.serving import (
+    lane_asked,
+    lane_idle,
+    lane_lines,
+    log_text,
+    start_server,
+    stop_server,
+    wait_until,
+)
 
 
 def test_early_builds_are_counted_per_client_and_for_the_server():
@@ -100,9 +108,13 @@ def test_a_fetch_loop_builds_no_pages_and_is_held_back(debug_server):
     # the refusal is held for the time it names, so a loop that retries at once is slowed
     # (a lower bound set by the server's own wait, not a speed goal)
     assert seconds >= 1.9
-    time.sleep(1.0)  # the pool's log lines
-    with open(proc.log_path) as fh:
-        log = fh.read()
+
+    def settled():  # every page the server built has finished its work
+        text = log_text(proc)
+        lanes = lane_lines(text)
+        return text if lanes and all(lane_idle(text, lane) for lane in lanes) else None
+
+    log = wait_until(settled, 120, proc=proc, what="every page's work to end")
     built = log.count(": box computed")
     # the start-up check and these fetches come from one client (Python's User-Agent): at
     # most its allowance of early-built pages, never one per fetch
@@ -113,21 +125,21 @@ def test_an_opened_page_computes_its_first_screen_once(debug_server):
     # a link without a region gets the case's suggested box and a level the case has:
     # filled in before the page starts its work, not after (which would compute the
     # ranking and the chart twice for every new page)
-    from chromium import launched
+    from testkit.chromium import launched
 
     proc, url = debug_server
-    with open(proc.log_path) as fh:
-        before = len(fh.read())
     with launched() as b:
         page = b.new_page()
         # a view nobody on this server has computed (views are shared between sessions)
         page.goto(url + "?case=ocean_cyclone&level=260&time=2041-01-19T18:00:00Z")
         page.locator(".bd-verdict").first.wait_for(timeout=60_000)
-        page.wait_for_timeout(1500)
-    with open(proc.log_path) as fh:
-        log = fh.read()[before:]
-    assert log.count(": box computed") == 1, log
-    assert log.count(": chart computed") == 1, log
+        asked = ("level=250 hPa", "time=2041-01-19T18:00:00Z")  # 260 is not a level of it
+        lane = wait_until(lambda: lane_asked(log_text(proc), *asked), 60, proc=proc)
+        # the page's lane has nothing left to do: every job it was going to run has run
+        wait_until(lambda: lane_idle(log_text(proc), lane), 120, proc=proc, what="idle")
+    lines = lane_lines(log_text(proc))[lane]
+    assert sum(w.startswith("box computed") for w in lines) == 1, lines
+    assert sum(w.startswith("chart computed") for w in lines) == 1, lines
 
 
 def test_boxes_typed_on_the_wire_end_on_the_last_ones_view(debug_server):
@@ -138,11 +150,10 @@ def test_boxes_typed_on_the_wire_end_on_the_last_ones_view(debug_server):
     import asyncio
     import glob
 
-    from wire_page import WirePage
-
     from app import compute, wording
     from app.library import CaseLibrary
     from app.state import ViewState
+    from testkit.wire_page import WirePage
 
     proc, url = debug_server
     # boxes no other test uses (views are shared between sessions, and kept)
@@ -169,28 +180,22 @@ def test_boxes_typed_on_the_wire_end_on_the_last_ones_view(debug_server):
         ).open()
         reading = asyncio.ensure_future(w.run())
         try:
-            for _ in range(600):
-                if w.log:
-                    break
-                await asyncio.sleep(0.05)
-            with open(proc.log_path) as fh:
-                before = len(fh.read())
+            await w.until(lambda: w.log, what="the first screen")
             for box in boxes:
                 await w.set_box(box)
-            for _ in range(600):
-                if w.pane and region in w.pane:
-                    break
-                await asyncio.sleep(0.05)
-            await asyncio.sleep(1.0)  # anything still on its way would come now
-            return w.pane, w.log, before
+            await w.until(lambda: w.pane and region in w.pane, what="the last box's ranking")
+            # the page's lane is idle: no job of it waits or runs, so nothing more is coming
+            lane = lane_asked(log_text(proc), f"region={region}")
+            await w.until(lambda: lane_idle(log_text(proc), lane), what="the lane to be idle")
+            return w.pane, w.log, lane
         finally:
             w.close()
             await reading
 
-    pane, log, before = asyncio.run(run())
+    pane, log, lane = asyncio.run(run())
     assert pane is not None and region in pane, log
     assert pane.startswith(name), pane[:200]
     assert region in log[-1][1], log
-    with open(proc.log_path) as fh:
-        computed = fh.read()[before:].count(": box computed")
+    lines = lane_lines(log_text(proc))[lane]
+    computed = sum(w.startswith("box computed") for w in lines)
     assert 1 <= computed < len(boxes), computed

@@ -7,10 +7,10 @@ import numpy as np
 import pyproj
 import pytest
 import xarray as xr
-from makedata import LEVELS, TIMES, latlon_dataset, projected_dataset, truth
 
 from balance_core.io import CaseError, analyze_case, open_case
 from balance_core.winds import geostrophic_wind
+from testkit.makedata import LEVELS, TIMES, latlon_dataset, projected_dataset, truth
 
 LAT = np.arange(70.0, 29.9, -1.0)
 LON = np.arange(-30.0, 30.1, 1.0)
@@ -282,7 +282,7 @@ def test_grib2_lambert_grid_relative_winds(tmp_path):
     # A GRIB2 file written with eccodes on a Lambert grid, winds flagged
     # grid-relative (resolution-and-component flags, bit 5): the case reads them
     # back earth-relative (WMO-No. 306, code table 3.3).
-    from gribwrite import write_grib2
+    from testkit.gribwrite import write_grib2
 
     crs = pyproj.CRS.from_proj4(
         "+proj=lcc +lat_1=45 +lat_2=45 +lat_0=45 +lon_0=10 +R=6371229 +units=m"
@@ -333,7 +333,7 @@ def test_grib2_lambert_grid_relative_winds(tmp_path):
 
 
 def test_grib2_regular_latlon(tmp_path):
-    from gribwrite import write_grib2
+    from testkit.gribwrite import write_grib2
 
     lat = np.arange(30.0, 70.01, 1.0)
     lon = np.arange(-30.0, 30.01, 1.0)
@@ -361,7 +361,7 @@ def test_grib2_regular_latlon(tmp_path):
 def test_real_command_exit_status_on_grib_and_netcdf(tmp_path):
     # The trap of these wheels: eccodes imported before pyproj crashes the process at
     # exit (status 134/139) after correct output. Run the real command and look.
-    from gribwrite import write_grib2
+    from testkit.gribwrite import write_grib2
 
     lat = np.arange(30.0, 70.01, 2.0)
     lon = np.arange(-30.0, 30.01, 2.0)
@@ -406,7 +406,7 @@ def test_real_command_exit_status_on_grib_and_netcdf(tmp_path):
 
 
 def test_grib2_polar_stereographic(tmp_path):
-    from gribwrite import write_grib2
+    from testkit.gribwrite import write_grib2
 
     crs = pyproj.CRS.from_proj4("+proj=stere +lat_0=90 +lat_ts=60 +lon_0=-35 +R=6371229 +units=m")
     x, y = np.arange(-1.5e6, 1.5e6 + 1, 6e4) + 3e4, np.arange(-3.5e6, -1.0e6 + 1, 6e4)

@@ -16,11 +16,11 @@ import matplotlib
 import netCDF4
 import numpy as np
 import pytest
-from makedata import latlon_dataset
 
 from app import compute
 from app.library import CaseLibrary
 from app.state import ViewState
+from testkit.makedata import latlon_dataset
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 SAMPLES = sorted(glob.glob(os.path.join(HERE, "..", "sample_cases", "*.nc")))

@@ -20,12 +20,12 @@ import time
 import urllib.parse
 
 import pytest
-from chromium import launched, require
-from serving import start_server, stop_server
 from test_security import PAYLOADS
-from wire_page import WirePage
 
 from app.rooms import SQLiteStore
+from testkit.chromium import launched, require
+from testkit.serving import start_server, stop_server
+from testkit.wire_page import WirePage
 
 pytestmark = pytest.mark.browser
 
@@ -233,7 +233,8 @@ def test_a_note_reaches_the_other_and_survives_a_restart(store_path, browser, tm
         b.context.close()
     finally:
         stop_server(proc)
-    proc, url, port = start_server(["--store", store_path], port=port)
+    proc, url, port = start_server(["--store", store_path])  # on another port, as it may be
+    link = f"{url}room?room={room.token}"
     try:
         c = _person(browser, link, "Chi")
         # the room's last view and its note are there after the restart

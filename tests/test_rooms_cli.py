@@ -18,9 +18,9 @@ import urllib.parse
 import urllib.request
 
 import pytest
-from serving import free_port, start_server, stop_server
 
 from app.rooms import SQLiteStore
+from testkit.serving import start_server, stop_server
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
@@ -105,7 +105,7 @@ def test_an_unusable_store_is_one_sentence(tmp_path):
 
 def test_another_address_needs_a_passphrase(tmp_path):
     env = {k: v for k, v in os.environ.items() if k != "BALANCE_DESK_PASSPHRASE"}
-    port = str(free_port())
+    port = "0"  # refused before it binds
     code, out, err = run("serve", "--host", "0.0.0.0", "--port", port, env=env)
     assert code == 2 and "passphrase is needed" in err and len(err.strip().splitlines()) == 1
     short = tmp_path / "short"
@@ -132,10 +132,7 @@ def test_another_address_needs_a_passphrase(tmp_path):
 
 def test_serving_another_address_without_a_passphrase_warns_at_every_start():
     env = {k: v for k, v in os.environ.items() if k != "BALANCE_DESK_PASSPHRASE"}
-    port = free_port()
-    proc, url, _ = start_server(
-        ["--host", "0.0.0.0", "--open-without-passphrase"], env=env, port=port
-    )
+    proc, url, _ = start_server(["--host", "0.0.0.0", "--open-without-passphrase"], env=env)
     out = stop_server(proc)
     assert "WARNING: balance-desk is served on 0.0.0.0 WITHOUT a passphrase" in out
     assert out.index("WARNING") < out.index("serving 3 case(s)")

@@ -18,8 +18,9 @@ from http.server import BaseHTTPRequestHandler, HTTPServer
 
 import numpy as np
 import pytest
-from chromium import launched, require
-from serving import free_port, start_server, stop_server
+
+from testkit.chromium import launched, require
+from testkit.serving import start_server, stop_server
 
 pytestmark = pytest.mark.browser
 
@@ -100,7 +101,7 @@ def _stop(proc):
 def _hostile_cases(tmp):
     """Case files whose names, attributes and variable names carry payloads."""
     sys.path.insert(0, HERE)
-    from makedata import latlon_dataset
+    from testkit.makedata import latlon_dataset
 
     lat = np.arange(60.0, 39.9, -2.0)
     lon = np.arange(-20.0, 20.1, 2.0)
@@ -262,9 +263,9 @@ class _Framer(BaseHTTPRequestHandler):
 
 
 def test_another_origin_cannot_frame_the_desk(hostile_server, browser):
-    port = free_port()
     _Framer.target = hostile_server
-    httpd = HTTPServer(("127.0.0.1", port), _Framer)
+    httpd = HTTPServer(("127.0.0.1", 0), _Framer)
+    port = httpd.server_address[1]
     t = threading.Thread(target=httpd.serve_forever, daemon=True)
     t.start()
     try:

@@ -519,10 +519,10 @@ def test_a_file_with_heights_and_no_wind_gets_its_lows_and_highs():
 
 
 def test_valid_times_of_different_runs_are_said_to_be_so(tmp_path):
-    import makedata
     import xarray as xr
 
     from balance_core.io import analyze_case, open_case, track_systems
+    from testkit import makedata
 
     lat = np.arange(20.0, 70.01, 2.0)
     lon = np.arange(-60.0, 20.01, 2.0)
@@ -561,9 +561,8 @@ def test_a_region_that_would_cross_the_equator_is_cut_back_to_it():
 
 
 def test_two_runs_at_the_same_valid_time_are_refused_with_a_sentence(tmp_path):
-    import makedata
-
     from balance_core.io import CaseError, open_case
+    from testkit import makedata
 
     lat = np.arange(20.0, 70.01, 2.0)
     lon = np.arange(-60.0, 20.01, 2.0)

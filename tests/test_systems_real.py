@@ -18,9 +18,10 @@ the NCEP Eta (NAM) regional output on a Lambert grid, and ECMWF ERA5 samples.
 
 import os
 
-import independent_systems as ind
 import numpy as np
 import pytest
+
+from testkit import independent_systems as ind
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 GFS = os.path.join(ROOT, ".cache", "pygrib-samples", "gfs.t12z.pgrbf120.2p5deg.grib2")

@@ -11,10 +11,10 @@ import os
 
 import numpy as np
 import pytest
-from makedata import latlon_dataset, truth
 
 from app.cli import main
 from balance_core.io import CaseError, analyze_case, open_case
+from testkit.makedata import latlon_dataset, truth
 
 LAT = np.arange(60.0, 39.9, -2.0)
 LON = np.arange(-20.0, 20.1, 2.0)
@@ -64,7 +64,7 @@ def grib_file(tmp, name, single=None, *, uv_grid_shift=0.0, cut_messages=0):
     """A GRIB2 file of gh, u, v, t on 1000..300 hPa at three times, plus ``single`` fields
     on other kinds of level; winds optionally on a grid shifted east; optionally cut
     ``cut_messages`` whole messages before its end."""
-    from gribwrite import write_grib2
+    from testkit.gribwrite import write_grib2
 
     levels = [1000.0, 850.0, 700.0, 500.0, 300.0]
     lat = LAT[::-1]

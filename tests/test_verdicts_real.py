@@ -16,9 +16,10 @@ geostrophic one with a curvature share of 10 %, 2.5e-4 m s-2 for a weak gradient
 
 import os
 
-import independent_balance as ib
 import numpy as np
 import pytest
+
+from testkit import independent_balance as ib
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 GFS = os.path.join(ROOT, ".cache", "pygrib-samples", "gfs.t12z.pgrbf120.2p5deg.grib2")

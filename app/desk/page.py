@@ -408,6 +408,17 @@ class Page(pn.viewable.Viewer):
             if status != "stale":
                 self._later(partial(self._apply, kind, gen, show, status, value))
 
+        if log.isEnabledFor(logging.DEBUG):  # before the job can start (and end)
+            s = self.state
+            log.debug(
+                "lane %s: %s asked for case=%s level=%s time=%s region=%s",
+                self._lane.name,
+                kind,
+                s.case,
+                level_text(s.level),
+                s.time,
+                s.region_text(),
+            )
         self._gens[kind] = self._lane.submit(kind, fn, done)
 
     def _cancel(self, kind):

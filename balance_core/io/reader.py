@@ -20,6 +20,7 @@ from typing import Any
 
 import numpy as np
 
+from .. import constants as C
 from .checks import to_si
 from .errors import CaseError
 from .names import (
@@ -726,158 +727,42 @@ def normalise(path, datasets, *, member=0) -> Piece:
     cands, ruled = find_candidates(datasets)
     chosen, key, notes, dropped = _choose(path, cands, ruled)
     ref = chosen[key]
-    name, ref_da, ref_ds = ref.name, ref.da, ref.ds
-    level_dim = _has_level_dim(ref_da, ref_ds)
-    if level_dim is None:
-        raise CaseError("is not on pressure levels (no pressure coordinate found)", path, name)
-    y_dim, x_dim, kind = _spatial_dims(ref_da, ref_ds, path, name)
-    data, surface, sources, fills, holes = {}, {}, {}, {}, {}
-    member_note = None
-    member_count = 1
-    grid_relative = False
+    if _has_level_dim(ref.da, ref.ds) is None:
+        raise CaseError("is not on pressure levels (no pressure coordinate found)", path, ref.name)
+    y_dim, x_dim, kind = _spatial_dims(ref.da, ref.ds, path, ref.name)
     if kind == "projected":
-        for role, target in (
-            ("u", "x_wind"),
-            ("v", "y_wind"),
-            ("u10", "x_wind10"),
-            ("v10", "y_wind10"),
-        ):
-            if role in chosen and _grib_grid_relative(chosen[role].da.attrs):
-                chosen[target] = dataclasses.replace(chosen.pop(role), role=target)
-    statics = []
-    ref_times = None
+        _mark_grid_relative(chosen)
+    data: dict[str, Any] = {}
+    surface: dict[str, Any] = {}
+    sources, fills, holes = {}, {}, {}
+    member_notes, member_count, statics, ref_times = [], 1, [], None
     for role, c in chosen.items():
         try:
-            vname, da, ds = c.name, c.da, c.ds
-            if role in ("x_wind", "y_wind"):
-                grid_relative = True
-            mdim = _member_dim(da, ds)
-            if mdim is not None:
-                member_count = max(member_count, int(da.sizes[mdim]))
-            da, mnote = _reduce_member(da, ds, member, path, vname)
-            member_note = member_note or mnote
-            if role in STATIC_ROLES and not any(
-                _is_time_like(d, ds) or _is_step_like(d, ds) for d in da.dims
-            ):
-                # orography and land masks need no time: repeated for every valid time below
-                da = da.drop_vars(
-                    [
-                        c_
-                        for c_ in ("time", "valid_time", "step", "reference_time")
-                        if c_ in da.coords
-                    ],
-                    errors="ignore",
-                ).expand_dims(time=[np.datetime64("NaT", "ns")])
-                statics.append(role)
-                tnote = None
-            else:
-                da, tnote = _valid_times(da, ds, path, vname)
-            if role == key:
-                ref_times = _reference_times(da, ds)
-            if tnote and tnote not in notes:
-                notes.append(tnote)
-            lev = _has_level_dim(da, ds)
-            c_y, c_x, _ = _spatial_dims(da, ds, path, vname)
-            keep = ["time"] + ([lev] if lev else []) + [c_y, c_x]
-            extra = [d for d in da.dims if d not in keep]
-            for d in extra:
-                if da.sizes[d] != 1:
-                    raise CaseError(
-                        f"has an extra dimension {d!r} of size {da.sizes[d]} that "
-                        "balance-desk does not know how to reduce",
-                        path,
-                        vname,
-                    )
-                da = da.isel({d: 0})
-            da = da.transpose(*keep)
-            spec = ROLES[role]
-            units = da.attrs.get("units")
-            if not _is_dask(da):
-                da = da.load()  # decode once (small GRIB files are read without dask)
-            raw = da
-            da = _si(da, role, units, path, vname)
-            scale, offset = linear_conversion(str(units), spec.target_units)
-            da = da.drop_vars(
-                [c_ for c_ in da.coords if c_ not in da.dims and c_ != "time"], errors="ignore"
-            )
-            da.attrs = {"units": spec.target_units}
-            missing = int(c.da.attrs.get("GRIB_missing_fields") or 0)
-            if missing:
-                holes[role] = missing
-            sources[role] = _source(c, path, units, spec.target_units)
-            if lev:
-                da = _pressure_levels(da, ds, lev, path, vname)
-                data[role] = da.rename({c_y: "y", c_x: "x"})
-                fills[role] = Raw(
-                    _pressure_levels(raw, ds, lev, path, vname).rename({c_y: "y", c_x: "x"}),
-                    scale,
-                    offset,
-                    role,
-                )
-            else:
-                surface[role] = da.rename({c_y: "y", c_x: "x"})
-                fills[role] = Raw(raw.rename({c_y: "y", c_x: "x"}), scale, offset, role)
+            r = _role_array(c, role, member, path, reference=role == key)
         except CaseError as exc:
             if role in REQUIRED_ROLES:
                 raise
             # an optional field that cannot be used is left out, and the case goes on
-            for store in (data, surface, sources, fills, holes):
-                store.pop(role, None)
-            if role in statics:
-                statics.remove(role)
             dropped[role] = f"{ROLES[role].words} left out: {exc}"
-
-    if member_note:
-        notes.append(member_note)
-    elif str(member) not in ("0", "None"):
-        what = "averaged" if member == "mean" else f"chosen (member {member})"
-        raise CaseError(
-            f"has no ensemble member dimension, so no member can be {what}; leave --member out",
-            path,
-        )
+            continue
+        member_count = max(member_count, r.members)
+        member_notes += [r.member_note] if r.member_note else []
+        if r.time_note and r.time_note not in notes:
+            notes.append(r.time_note)
+        if role == key:
+            ref_times = r.reference_times
+        if r.static:
+            statics.append(role)
+        if r.missing:
+            holes[role] = r.missing
+        sources[role] = r.source
+        (data if r.on_levels else surface)[role] = r.da
+        fills[role] = r.raw
+    _check_member(member, member_notes, notes, path)
     if statics and data:
-        first = next(iter(data.values()))
-        for role in statics:
-            surface[role] = (
-                surface[role]
-                .isel(time=[0] * first.sizes["time"])
-                .assign_coords(time=first["time"].values)
-            )
-            fills[role] = fills[role].map(
-                lambda r: r.isel(time=[0] * first.sizes["time"]).assign_coords(
-                    time=first["time"].values
-                )
-            )
-    if "geopotential" in data and "height" not in data:
-        from ..constants import G0
-
-        data["height"] = data.pop("geopotential") / G0
-        fills["height"] = fills.pop("geopotential")
-        sources["height"] = sources.pop("geopotential")
-        sources["height"]["note"] = "geopotential divided by standard gravity 9.80665 m s-2"
-        notes.append(
-            "geopotential divided by standard gravity 9.80665 m s-2 to give geopotential height"
-        )
-    else:
-        data.pop("geopotential", None)
-    if "orography" in surface:
-        from ..constants import G0
-
-        surface["surface_height"] = surface.pop("orography") / G0
-        fills["surface_height"] = fills.pop("orography")
-        sources["surface_height"] = sources.pop("orography")
-        sources["surface_height"]["note"] = "surface geopotential divided by 9.80665 m s-2"
-    # grid
-    lat = lon = x = y = crs = None
-    if kind == "latlon":
-        lat = np.asarray(ref_ds[y_dim].values, dtype=np.float64)
-        lon = np.asarray(ref_ds[x_dim].values, dtype=np.float64)
-        _check_units_deg(ref_ds[y_dim], "degrees_north", path)
-        _check_units_deg(ref_ds[x_dim], "degrees_east", path)
-    else:
-        crs, x, y, lat, lon = _projected_grid(ref_da, ref_ds, y_dim, x_dim, path, name)
-    levels = np.asarray(data["height"]["level"].values, dtype=np.float64)
-    times = np.asarray(data["height"]["time"].values).astype("datetime64[ns]")
+        _repeat_statics(statics, next(iter(data.values()))["time"].values, surface, fills)
+    _heights_from_geopotential(data, surface, fills, sources, notes)
+    lat, lon, crs, x, y = _grid_of(kind, ref, y_dim, x_dim, path)
     return Piece(
         path=str(path),
         data=data,
@@ -887,11 +772,11 @@ def normalise(path, datasets, *, member=0) -> Piece:
         crs=crs,
         x=x,
         y=y,
-        levels_pa=levels,
-        times=times,
-        grid_relative=grid_relative,
+        levels_pa=np.asarray(data["height"]["level"].values, dtype=np.float64),
+        times=np.asarray(data["height"]["time"].values).astype("datetime64[ns]"),
+        grid_relative=any(r in chosen for r in ("x_wind", "y_wind")),
         notes=notes,
-        attrs=dict(ref_ds.attrs),
+        attrs=dict(ref.ds.attrs),
         sources=sources,
         dropped=dropped,
         reference_times=ref_times,
@@ -899,6 +784,150 @@ def normalise(path, datasets, *, member=0) -> Piece:
         holes=holes,
         member_count=member_count,
     )
+
+
+def _mark_grid_relative(chosen: dict) -> None:
+    """On a projected grid, winds a GRIB file says are grid-relative take the x_/y_ roles."""
+    for role, target in (
+        ("u", "x_wind"),
+        ("v", "y_wind"),
+        ("u10", "x_wind10"),
+        ("v10", "y_wind10"),
+    ):
+        if role in chosen and _grib_grid_relative(chosen[role].da.attrs):
+            chosen[target] = dataclasses.replace(chosen.pop(role), role=target)
+
+
+@dataclasses.dataclass
+class _RoleArray:
+    """One role's variable read: in SI units on (time, [level,] y, x), with what was seen."""
+
+    da: Any
+    raw: Raw
+    on_levels: bool
+    static: bool
+    members: int
+    member_note: str | None
+    time_note: str | None
+    reference_times: Any
+    missing: int
+    source: dict
+
+
+def _role_array(c, role: str, member, path, reference: bool = False) -> _RoleArray:
+    """Reduce the member, find the valid times, drop length-1 dimensions, convert to SI and
+    put one candidate on (time, [level,] y, x); a CaseError says why it cannot be used.
+    ``reference``: the role whose reference (analysis) times the case takes."""
+    vname, da, ds = c.name, c.da, c.ds
+    mdim = _member_dim(da, ds)
+    members = int(da.sizes[mdim]) if mdim is not None else 1
+    da, member_note = _reduce_member(da, ds, member, path, vname)
+    static = role in STATIC_ROLES and not any(
+        _is_time_like(d, ds) or _is_step_like(d, ds) for d in da.dims
+    )
+    time_note = None
+    if static:  # orography and land masks need no time: repeated for every valid time later
+        gone = [t for t in ("time", "valid_time", "step", "reference_time") if t in da.coords]
+        da = da.drop_vars(gone, errors="ignore").expand_dims(time=[np.datetime64("NaT", "ns")])
+    else:
+        da, time_note = _valid_times(da, ds, path, vname)
+    reference_times = _reference_times(da, ds) if reference else None
+    lev = _has_level_dim(da, ds)
+    c_y, c_x, _ = _spatial_dims(da, ds, path, vname)
+    keep = ["time"] + ([lev] if lev else []) + [c_y, c_x]
+    for d in [d for d in da.dims if d not in keep]:
+        if da.sizes[d] != 1:
+            raise CaseError(
+                f"has an extra dimension {d!r} of size {da.sizes[d]} that "
+                "balance-desk does not know how to reduce",
+                path,
+                vname,
+            )
+        da = da.isel({d: 0})
+    da = da.transpose(*keep)
+    spec = ROLES[role]
+    units = da.attrs.get("units")
+    if not _is_dask(da):
+        da = da.load()  # decode once (small GRIB files are read without dask)
+    raw = da
+    da = _si(da, role, units, path, vname)
+    scale, offset = linear_conversion(str(units), spec.target_units)
+    da = da.drop_vars([k for k in da.coords if k not in da.dims and k != "time"], errors="ignore")
+    da.attrs = {"units": spec.target_units}
+    source = _source(c, path, units, spec.target_units)
+    if lev:
+        da = _pressure_levels(da, ds, lev, path, vname)
+        raw = _pressure_levels(raw, ds, lev, path, vname)
+    yx = {c_y: "y", c_x: "x"}
+    return _RoleArray(
+        da=da.rename(yx),
+        raw=Raw(raw.rename(yx), scale, offset, role),
+        on_levels=bool(lev),
+        static=static,
+        members=members,
+        member_note=member_note,
+        time_note=time_note,
+        reference_times=reference_times,
+        missing=int(c.da.attrs.get("GRIB_missing_fields") or 0),
+        source=source,
+    )
+
+
+def _check_member(member, member_notes: list, notes: list, path) -> None:
+    """Say which member was taken; refuse a member asked of a file that has none."""
+    if member_notes:
+        notes.append(member_notes[0])
+    elif str(member) not in ("0", "None"):
+        what = "averaged" if member == "mean" else f"chosen (member {member})"
+        raise CaseError(
+            f"has no ensemble member dimension, so no member can be {what}; leave --member out",
+            path,
+        )
+
+
+def _repeat_statics(statics: list, times, surface: dict, fills: dict) -> None:
+    """Fields with no time (orography, land mask) repeated for every valid time."""
+
+    def repeat(a):
+        return a.isel(time=[0] * len(times)).assign_coords(time=times)
+
+    for role in statics:
+        surface[role] = repeat(surface[role])
+        fills[role] = fills[role].map(repeat)
+
+
+def _heights_from_geopotential(data, surface, fills, sources, notes) -> None:
+    """Geopotential height Z = Phi / g0 (g0 = 9.80665 m s-2, the standard gravity of the WMO
+    definition of geopotential metre), where a file gives geopotential and no height; the
+    surface geopotential likewise gives the surface height."""
+    if "geopotential" in data and "height" not in data:
+        data["height"] = data.pop("geopotential") / C.G0
+        fills["height"] = fills.pop("geopotential")
+        sources["height"] = sources.pop("geopotential")
+        sources["height"]["note"] = "geopotential divided by standard gravity 9.80665 m s-2"
+        notes.append(
+            "geopotential divided by standard gravity 9.80665 m s-2 to give geopotential height"
+        )
+    else:
+        data.pop("geopotential", None)
+    if "orography" in surface:
+        surface["surface_height"] = surface.pop("orography") / C.G0
+        fills["surface_height"] = fills.pop("orography")
+        sources["surface_height"] = sources.pop("orography")
+        sources["surface_height"]["note"] = "surface geopotential divided by 9.80665 m s-2"
+
+
+def _grid_of(kind: str, ref, y_dim, x_dim, path):
+    """(lat, lon, crs, x, y): 1-D latitudes and longitudes of a lat-lon grid (crs, x, y
+    None), or a projected grid's CRS, coordinates and 2-D latitudes and longitudes."""
+    if kind == "latlon":
+        _check_units_deg(ref.ds[y_dim], "degrees_north", path)
+        _check_units_deg(ref.ds[x_dim], "degrees_east", path)
+        lat = np.asarray(ref.ds[y_dim].values, dtype=np.float64)
+        lon = np.asarray(ref.ds[x_dim].values, dtype=np.float64)
+        return lat, lon, None, None, None
+    crs, x, y, lat, lon = _projected_grid(ref.da, ref.ds, y_dim, x_dim, path, ref.name)
+    return lat, lon, crs, x, y
 
 
 def _is_dask(da) -> bool:

@@ -134,14 +134,21 @@ class WirePage:
         """The id of the widget titled or labelled ``name``: at once if the pulled document
         held it, else as soon as a message from the server brings it (a page built when its
         session connects sends its parts after the document; :meth:`run` reads them)."""
+        await self.until(lambda: name in self.widgets, timeout, f"a widget called {name!r}")
+        return self.widgets[name]
+
+    async def until(self, condition, timeout: float = 180.0, what: str = "the condition"):
+        """The first true value of ``condition()``, checked as the reading task (:meth:`run`)
+        takes in messages: a condition wait, never a fixed one; TimeoutError naming ``what``
+        after ``timeout`` seconds (a bound for a broken run, not a speed goal)."""
         import asyncio
 
-        t0 = time.time()
-        while name not in self.widgets:
-            if time.time() - t0 > timeout:
-                raise TimeoutError(f"the page never sent a widget called {name!r}")
-            await asyncio.sleep(0.05)  # the reading task adds widgets as messages come
-        return self.widgets[name]
+        deadline = time.monotonic() + timeout
+        while not (value := condition()):
+            if time.monotonic() > deadline:
+                raise TimeoutError(f"waited {timeout:.0f} s for {what}")
+            await asyncio.sleep(0.05)
+        return value
 
     async def change(self, widget: str, attr: str, new):
         """Set ``attr`` of the widget titled or labelled ``widget``, as its input would."""
