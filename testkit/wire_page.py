@@ -36,6 +36,9 @@ __all__ = ["WirePage", "verdict_where"]
 
 TOKEN = re.compile(r'"token":"([^"]+)"')
 WHERE = re.compile(r"class='bd-verdict-where'[^>]*>(.*?)</div>", re.S)
+#: the page's hidden mark of what it is doing (app.desk.page.Page.settle_mark)
+MARK = re.compile(r"class='bd-settled'([^>]*)>")
+MARK_DATA = re.compile(r"data-(\w+)='([^']*)'")
 TAG = re.compile(r"<[^>]+>")
 
 
@@ -101,6 +104,8 @@ class WirePage:
         #: (time.time(), number of events) of every message read
         self.received: list[tuple[float, int]] = []
         self.pane: str | None = None
+        #: the page's hidden mark as last sent: started, pending, step, tab, room
+        self.mark: dict[str, str] = {}
         #: the page's widgets, {title or label: model id}, from the pulled document
         self.widgets: dict[str, str] = {}
         self._ws = None
@@ -150,6 +155,25 @@ class WirePage:
             await asyncio.sleep(0.05)
         return value
 
+    def step(self) -> int:
+        """How many changes the page has followed (-1 before its mark came)."""
+        return int(self.mark.get("step", -1))
+
+    async def settled(self, after: int = -1, timeout: float = 180.0) -> int:
+        """Wait until the page has started, has no view on its way and has followed more
+        than ``after`` changes (as testkit.chromium.settled, for a page on the wire)."""
+        m = self.mark
+        await self.until(
+            lambda: (
+                self.mark.get("started") == "1"
+                and self.mark.get("pending") == ""
+                and self.step() > after
+            ),
+            timeout,
+            f"the page to settle after step {after} (mark {m})",
+        )
+        return self.step()
+
     async def change(self, widget: str, attr: str, new):
         """Set ``attr`` of the widget titled or labelled ``widget``, as its input would."""
         wid = await self._widget(widget)
@@ -198,6 +222,9 @@ class WirePage:
         for name, wid in _widgets(content):
             self.widgets.setdefault(name, wid)
         for text in _texts(content):
+            mark = MARK.search(_markup(text))
+            if mark is not None:
+                self.mark = dict(MARK_DATA.findall(mark.group(1)))
             where = verdict_where(text)
             if where is not None:
                 self.pane = _plain(_markup(text))
@@ -236,7 +263,7 @@ def _widgets(obj):
 def _texts(obj):
     """Every string in a decoded message that may hold a pane's HTML."""
     if isinstance(obj, str):
-        if "bd-verdict-where" in obj:
+        if "bd-verdict-where" in obj or "bd-settled" in obj:
             yield obj
     elif isinstance(obj, dict):
         for v in obj.values():

@@ -304,13 +304,10 @@ def test_a_page_fetched_while_the_pool_is_busy_starts_its_work_on_connecting(lib
     assert pool.waiting() == 0  # nothing queued for it
     gate.set()
     page.start()
-    import time
+    from testkit.serving import wait_until
 
-    for _ in range(3000):
-        if page.report is not None:
-            break
-        time.sleep(0.01)
-    assert page.report is not None and page.report["points"] > 0
+    wait_until(lambda: page.report is not None, 60, what="the page's report")
+    assert page.report["points"] > 0
 
 
 def test_sessions_showing_one_view_share_its_chart_and_report():

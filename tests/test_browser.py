@@ -12,8 +12,8 @@ import time
 import numpy as np
 import pytest
 
-from testkit.chromium import launched, require
-from testkit.serving import start_server, stop_server
+from testkit.chromium import launched, open_tab, require, settled
+from testkit.serving import start_server, stop_server, wait_until
 
 pytestmark = pytest.mark.browser
 
@@ -47,14 +47,9 @@ def _page(browser, url):
     return page, errors
 
 
-def _wait_for(page, fn, timeout=60.0, every=0.25):
-    t0 = time.time()
-    while time.time() - t0 < timeout:
-        v = fn()
-        if v:
-            return v
-        page.wait_for_timeout(every * 1000)
-    raise AssertionError("the page did not change in time")
+def _wait_for(page, fn, timeout=60.0):
+    """The first true value of ``fn()`` (a condition wait: testkit.serving.wait_until)."""
+    return wait_until(fn, timeout, what="the page to change", every=0.25)
 
 
 def _shot(page, name):
@@ -86,7 +81,7 @@ def test_page_loads_without_errors(server, browser):
     _wait_for(page, lambda: "hPa" in _chart_title(page))
     _wait_for(page, lambda: re.search(r"Geostrophic", _verdict_text(page)))
     assert "diagnostic aid" in page.locator("text=diagnostic aid").first.inner_text()
-    page.wait_for_timeout(1500)
+    settled(page)
     _shot(page, "01_first_view")
     assert errors == [], errors
     page.close()
@@ -185,11 +180,9 @@ def test_sea_breeze_and_scale_sheet(server, browser):
         browser, server + "?case=sea_breeze&level=1000&field=speed&time=2039-06-21T15%3A00%3A00Z"
     )
     _wait_for(page, lambda: "Unsteady" in _verdict_text(page))
-    page.locator("text=A priori scale sheet").first.click()
-    page.wait_for_timeout(800)
+    open_tab(page, "A priori scale sheet")
     _shot(page, "06_sea_breeze_scale_sheet")
-    page.locator("text=Through the times").first.click()
-    page.wait_for_timeout(800)
+    open_tab(page, "Through the times")
     _shot(page, "07_sea_breeze_times")
     assert errors == [], errors
     page.close()
@@ -337,8 +330,7 @@ def test_the_briefing_outline_lies_where_the_typed_box_is(server, browser):
 def test_at_a_laptop_size_the_verdict_and_ranking_are_in_view(server, browser):
     page = browser.new_page(viewport={"width": 1366, "height": 768})
     page.goto(server + OCEAN)
-    page.locator(".bd-verdict").first.wait_for(timeout=60_000)
-    page.wait_for_timeout(1000)
+    settled(page)
     vb = page.locator(".bd-verdict").first.bounding_box()
     assert vb["x"] >= 0 and vb["x"] + vb["width"] <= 1366, vb
     assert vb["y"] >= 0 and vb["y"] + 40 <= 768, vb  # at least its heading line shows
@@ -362,8 +354,7 @@ def test_screens_at_desk_size_and_at_double_zoom(server, browser, size, zoom, na
         viewport={"width": size[0], "height": size[1]}, device_scale_factor=zoom
     )
     page.goto(server + OCEAN)
-    page.locator(".bd-verdict").first.wait_for(timeout=60_000)
-    page.wait_for_timeout(1200)
+    settled(page)
     os.makedirs(SHOTS, exist_ok=True)
     page.screenshot(path=os.path.join(SHOTS, f"{name}.png"))
     page.screenshot(path=os.path.join(SHOTS, f"{name}_full.png"), full_page=True)
@@ -379,17 +370,19 @@ def test_after_knots_no_number_in_the_page_is_in_metres_per_second(server, brows
     page, errors = _page(browser, server + OCEAN + "&field=speed")
     _wait_for(page, lambda: _verdict_text(page))
     assert WIND_IN_MS.search(_all_text(page))  # the check can fail: m/s before the switch
+    before = settled(page)
     page.get_by_role("button", name="kt", exact=True).click()
     _wait_for(page, lambda: "wind_units=kt" in page.url and re.search(r"\d\s*kt", _all_text(page)))
-    page.wait_for_timeout(1500)  # let every part that follows the unit be redrawn
+    # every part that follows the unit has been redrawn: the page asked for its views again
+    # and has shown them all
+    settled(page, before)
     for tab in (
         "Through the levels",
         "Through the times",
         "A priori scale sheet",
         "Notes on the data",
     ):
-        page.locator(f"text={tab}").first.click()
-        page.wait_for_timeout(1500)
+        open_tab(page, tab)
         text = _all_text(page)
         hits = [text[max(0, m.start() - 40) : m.end()] for m in WIND_IN_MS.finditer(text)]
         assert not hits, (tab, hits)
@@ -478,8 +471,7 @@ def test_one_time_format_throughout(server, browser):
         "A priori scale sheet",
         "Notes on the data",
     ):
-        page.locator(f"text={tab}").first.click()
-        page.wait_for_timeout(1500)
+        open_tab(page, tab)
         text = _all_text(page)
         seen += LONG_TIME.findall(text)
         others = [text[max(0, m.start() - 30) : m.end() + 10] for m in OTHER_TIME.finditer(text)]

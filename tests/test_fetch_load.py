@@ -121,6 +121,7 @@ def test_a_fetch_loop_builds_no_pages_and_is_held_back(debug_server):
     assert built <= EarlyBuilds().per_client, built
 
 
+@pytest.mark.browser
 def test_an_opened_page_computes_its_first_screen_once(debug_server):
     # a link without a region gets the case's suggested box and a level the case has:
     # filled in before the page starts its work, not after (which would compute the

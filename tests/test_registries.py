@@ -114,3 +114,38 @@ def test_a_setting_that_cannot_be_used_is_refused_by_name():
     assert settings.whole_number("BALANCE_DESK_NOTES_PER_MINUTE", {}) == 20
     assert settings.log_level(env={}) == 20  # logging.INFO
     assert settings.text("BALANCE_DESK_STORE", {"BALANCE_DESK_STORE": "  "}) is None
+
+
+def test_every_test_that_drives_chromium_carries_the_browser_mark():
+    """`-m "not browser"` must leave out every test that starts Chromium: one that uses the
+    ``browser`` fixture or calls ``launched()`` is marked, itself or by its module."""
+    import ast
+
+    root, files = _tree_files()
+    unmarked = []
+    for name in files:
+        if not (name.startswith("tests/test_") and name.endswith(".py")):
+            continue
+        tree = ast.parse((root / name).read_text(encoding="utf-8"))
+        module_marked = "pytest.mark.browser" in ast.unparse(
+            [
+                n
+                for n in tree.body
+                if isinstance(n, ast.Assign)
+                and any(getattr(t, "id", "") == "pytestmark" for t in n.targets)
+            ]
+            or ast.Pass()
+        )
+        for fn in tree.body:
+            if not (isinstance(fn, ast.FunctionDef) and fn.name.startswith("test_")):
+                continue
+            calls = [
+                getattr(c.func, "id", getattr(c.func, "attr", ""))
+                for c in ast.walk(fn)
+                if isinstance(c, ast.Call)
+            ]
+            drives = "browser" in [a.arg for a in fn.args.args] or "launched" in calls
+            marked = any("browser" in ast.unparse(d) for d in fn.decorator_list)
+            if drives and not (module_marked or marked):
+                unmarked.append(f"{name}::{fn.name}")
+    assert unmarked == [], unmarked

@@ -20,11 +20,11 @@ import time
 import urllib.parse
 
 import pytest
-from test_security import PAYLOADS
 
 from app.rooms import SQLiteStore
-from testkit.chromium import launched, require
-from testkit.serving import start_server, stop_server
+from testkit.chromium import launched, require, room_views, settled
+from testkit.payloads import PAYLOADS
+from testkit.serving import start_server, stop_server, wait_until
 from testkit.wire_page import WirePage
 
 pytestmark = pytest.mark.browser
@@ -134,7 +134,8 @@ def test_a_box_drawn_by_the_one_steering_reaches_a_follower(server, store_path, 
     where_a = a.locator(".bd-verdict-where").first.inner_text()
     # the follower shows the same region and, from it, the same verdict
     b.locator(".bd-verdict-where", has_text=where_a.split(" · ")[2]).first.wait_for(timeout=WAIT)
-    b.wait_for_timeout(300)
+    settled(a)
+    settled(b)
     assert _verdict(b) == _verdict(a)
     assert "Ana" in b.locator(".bd-room-people").first.inner_text()
     for p in (a, b):
@@ -161,9 +162,14 @@ def test_taking_over_stepping_out_and_back_in(server, store_path, browser):
     _wait_status(a, "on your own")
     a.get_by_label("Level", exact=True).select_option(label="250 hPa")
     a.locator(".bd-verdict-where", has_text="250 hPa").first.wait_for(timeout=WAIT)
+    sent = room_views(a)
     b.get_by_label("Level", exact=True).select_option(label="700 hPa")
     b.locator(".bd-verdict-where", has_text="700 hPa").first.wait_for(timeout=WAIT)
-    a.wait_for_timeout(1000)
+    # where the room is now has reached Ana's page, to be said, not taken: she looks on her own
+    a.locator(".bd-room-status", has_text="The room is at ocean_cyclone · 700 hPa").first.wait_for(
+        timeout=WAIT
+    )
+    settled(a, room_after=sent)
     assert "250 hPa" in a.locator(".bd-verdict-where").first.inner_text()
     assert (
         "850 hPa" in b.locator(".bd-verdict-where").first.inner_text()
@@ -176,7 +182,9 @@ def test_taking_over_stepping_out_and_back_in(server, store_path, browser):
     # a follower who changes something looks on their own from then on
     a.get_by_label("Level", exact=True).select_option(label="925 hPa")
     _wait_status(a, "on your own")
-    b.wait_for_timeout(800)
+    # the room has taken in Ana's step out: Ben's list of people says so
+    b.locator(".bd-room-people", has_text="on their own: Ana").first.wait_for(timeout=WAIT)
+    settled(b)
     assert "700 hPa" in b.locator(".bd-verdict-where").first.inner_text()
     a.context.close()
     b.context.close()
@@ -216,8 +224,7 @@ def test_a_note_reaches_the_other_and_survives_a_restart(store_path, browser, tm
         with_notes = open(dl.value.path(), "rb").read()
         box = b.locator("input[type=checkbox]").last  # the room notes come after the systems
         assert box.is_checked()
-        box.uncheck()
-        b.wait_for_timeout(500)
+        box.uncheck()  # sent before the click below, on the same connection: no wait needed
         with b.expect_download(timeout=60_000) as dl:
             b.get_by_role("button", name="Briefing image (PNG)").click()
         assert open(dl.value.path(), "rb").read() != with_notes
@@ -314,7 +321,8 @@ def test_a_wrong_passphrase_is_refused(store_path, browser):
         page.locator("input[name=username]").fill("ana")
         page.locator("input[type=password]").fill("not the passphrase")
         page.locator("input[type=password]").press("Enter")
-        page.wait_for_timeout(1000)
+        # back at the door, with the login page's own word for it
+        page.locator(".errormessage", has_text="Invalid").first.wait_for(timeout=WAIT)
         assert page.locator(".bd-verdict").count() == 0
         assert page.locator("input[type=password]").count() == 1  # still at the door
         page.locator("input[name=username]").fill("ana")
@@ -327,7 +335,7 @@ def test_a_wrong_passphrase_is_refused(store_path, browser):
 
 
 def test_a_change_reaches_a_follower_in_a_few_messages(server, store_path, browser):
-    """The follower (a session on the wire, tests/wire_page.py) gets a view as one message
+    """The follower (a session on the wire, testkit/wire_page.py) gets a view as one message
     per step of its page (the view taken, the region's report, the chart, the systems...),
     not one per property. A note shown to the room reaches the follower through a callback
     the room's hub schedules from the session of the one who pressed the button; in that
@@ -343,10 +351,15 @@ def test_a_change_reaches_a_follower_in_a_few_messages(server, store_path, brows
     asyncio.run_coroutine_threadsafe(w.open(), loop).result(timeout=60)
     reading = asyncio.run_coroutine_threadsafe(w.run(), loop)
 
+    def on_its_loop(coro, timeout=180):
+        return asyncio.run_coroutine_threadsafe(coro, loop).result(timeout)
+
     def follower_shows(level, after):
-        while not (w.log and w.log[-1][0] > after and w.log[-1][1].startswith(level)):
-            assert time.time() < after + 30, w.log
-            time.sleep(0.1)
+        wait_until(
+            lambda: w.log and w.log[-1][0] > after and w.log[-1][1].startswith(level),
+            60,
+            what=f"the follower to show {level}",
+        )
 
     try:
         a.locator(".bd-room-people", has_text="Wren").first.wait_for(timeout=WAIT)
@@ -357,12 +370,13 @@ def test_a_change_reaches_a_follower_in_a_few_messages(server, store_path, brows
         t1 = time.time()
         a.get_by_label("Level", exact=True).select_option(label="850 hPa")
         follower_shows("850 hPa", t1)
-        time.sleep(2.0)  # what comes after the verdict (systems, the levels' table)
+        # what comes after the verdict (systems, the levels' table) has come too
+        step = on_its_loop(w.settled())
         t0 = time.time()
         a.get_by_label("Notes (choose one to read it)").select_option(index=0)
         a.get_by_role("button", name="Show it to the room").click()
         follower_shows("500 hPa", t0)
-        time.sleep(2.0)
+        on_its_loop(w.settled(step))  # every part of the room's view has come
         got = [n for t, n in w.received if t > t0]
         assert sum(got) >= 20, got  # the view did reach it: the chart's and the report's
         assert len(got) <= 6, got

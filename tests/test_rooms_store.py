@@ -155,8 +155,12 @@ def test_one_steers_the_others_follow(store):
     # stepping out: the room's changes no longer reach Chi, and back in gives the view
     hub.step_out(room.token, "c")
     n = len([k for k in c.kinds() if k == "view"])
+    assert "where" not in c.kinds()  # (followers are not told where the room is: they go)
     hub.change_view(room.token, "b", dict(VIEW, level="1000"))
     assert len([k for k in c.kinds() if k == "view"]) == n
+    # ... but told where it is, to show beside their own view
+    assert c.got[-1][0] == "where" and c.got[-1][1]["view"] == dict(VIEW, level="1000")
+    assert "where" not in a.kinds()
     assert hub.step_in(room.token, "c")["level"] == "1000"
     # the one steering leaves: the longest-present follower takes over
     hub.leave(room.token, "b")

@@ -156,13 +156,10 @@ def test_the_pool_says_when_it_is_busy():
     assert pool.busy()  # its only thread is at work
     gate.set()
     log.wait_for("hold")
-    import time
+    from testkit.serving import wait_until
 
-    for _ in range(3000):  # the worker counts itself free just after the callback
-        if not pool.busy():
-            break
-        time.sleep(0.01)
-    assert not pool.busy()
+    # the worker counts itself free just after the callback
+    wait_until(lambda: not pool.busy(), 60, what="the pool to be free")
 
 
 def test_a_new_session_goes_ahead_of_busy_ones():

@@ -118,6 +118,15 @@ def levels_table(data) -> str:
     )
 
 
+#: the tabs below the chart, in their order
+TAB_TITLES = {
+    "levels": "Through the levels",
+    "times": "Through the times",
+    "sheet": "A priori scale sheet",
+    "notes": "Notes on the data",
+}
+
+
 class Below(pn.viewable.Viewer):
     """The tabs under the chart."""
 
@@ -131,11 +140,10 @@ class Below(pn.viewable.Viewer):
         self.notes = pn.pane.HTML("", sizing_mode="stretch_width")
         # only the open tab is in the page (the browser lays out less); what a closed tab
         # is given waits until it is opened (see _put)
+        parts = {"levels": self.levels_pane, "times": self.times_pane, "sheet": self.sheet}
+        parts["notes"] = self.notes
         self.tabs = pn.Tabs(
-            ("Through the levels", self.levels_pane),
-            ("Through the times", self.times_pane),
-            ("A priori scale sheet", self.sheet),
-            ("Notes on the data", self.notes),
+            *((TAB_TITLES[k], parts[k]) for k in self.TAB),
             dynamic=True,
             sizing_mode="stretch_width",
             css_classes=["bd-live"],
@@ -145,7 +153,8 @@ class Below(pn.viewable.Viewer):
         self._pending: dict = {}
         self.tabs.param.watch(self._opened, "active")
 
-    TAB = {"levels": 0, "times": 1, "sheet": 2, "notes": 3}
+    #: each tab's number
+    TAB = {k: i for i, k in enumerate(TAB_TITLES)}
 
     def is_open(self, view: str) -> bool:
         return self.tabs.active == self.TAB[view]

@@ -114,6 +114,14 @@ class Page(pn.viewable.Viewer):
         self.live = False
         self._lane = pool.lane()
         self._gens = {}
+        #: the views asked of the pool and not shown yet, and how many changes the page has
+        #: followed: the page writes both into a hidden mark (see :meth:`_mark_pending`), the
+        #: sign that it has settled that a test (or a script driving the page) waits on
+        self._pending: set = set()
+        self._step = 0
+        self._started = False
+        self._room_views = 0  # views a review room sent (followed or not)
+        self.settle_mark = pn.pane.HTML(self._mark_html(), visible=False, margin=0)
         self._stale: set = set()  # views of closed tabs that are out of date
         self.controls = Controls(library, self.state)
         self.chart = Chart(self.state)
@@ -163,6 +171,7 @@ class Page(pn.viewable.Viewer):
             main,
             self.below.tabs,
             footer,
+            self.settle_mark,
             sizing_mode="stretch_width",
             styles=narrowest,
         )
@@ -200,9 +209,14 @@ class Page(pn.viewable.Viewer):
         self.live = True
         views = ("systems", "levels", "times") if getattr(self, "_primed", False) else None
         if self.doc is not None and self.doc.session_context is not None:
-            self._held(partial(self.refresh, set(URL_PARAMS), views))
+            self._held(partial(self._start_views, views))
         else:
-            self.refresh(set(URL_PARAMS), views)
+            self._start_views(views)
+
+    def _start_views(self, views):
+        self._started = True
+        self.settle_mark.object = self._mark_html()
+        self.refresh(set(URL_PARAMS), views)
 
     # -- the state changed -----------------------------------------------------------------------
     def _on_state(self, *events):
@@ -278,6 +292,8 @@ class Page(pn.viewable.Viewer):
         names = set(names or URL_PARAMS)
         views = set(views or ("box", "chart", "systems", "levels", "times"))
         snap = self.state.copy()
+        self._step += 1  # one more change followed (the mark is written below, or by a view)
+        self.settle_mark.object = self._mark_html()
         # a view another session computed already (a review room's followers) is shown at
         # once: no busy mark, no trip through the pool
         ready = self.live and self.doc is not None
@@ -363,6 +379,7 @@ class Page(pn.viewable.Viewer):
         for kind in list(self._stale):
             if self.below.is_open(kind) and self.live:
                 self._submit_below(kind)
+        self.settle_mark.object = self._mark_html()  # the tab the server has opened
 
     #: seconds between two progress reports of one view (each one costs the browser a layout)
     PROGRESS_EVERY = 0.5
@@ -420,6 +437,29 @@ class Page(pn.viewable.Viewer):
                 s.region_text(),
             )
         self._gens[kind] = self._lane.submit(kind, fn, done)
+        self._mark_pending(kind, True)
+
+    def _mark_html(self) -> str:
+        pending = " ".join(sorted(self._pending))
+        return (
+            f"<span class='bd-settled' data-started='{int(self._started)}' "
+            f"data-pending='{pending}' data-step='{self._step}' "
+            f"data-tab='{self.below.tabs.active if hasattr(self, 'below') else 0}' "
+            f"data-room='{self._room_views}'></span>"
+        )
+
+    def room_view_seen(self):
+        """A review room sent its view (taken if this page follows): counted in the mark."""
+        self._room_views += 1
+        self.settle_mark.object = self._mark_html()
+
+    def _mark_pending(self, kind, on: bool):
+        """A view asked of the pool (``on``) or shown: the hidden mark says which views are
+        still on their way (none: the page has settled)."""
+        before = set(self._pending)
+        (self._pending.add if on else self._pending.discard)(kind)
+        if on or self._pending != before:
+            self.settle_mark.object = self._mark_html()
 
     def _cancel(self, kind):
         """A view shown now: a result still on its way for an older request is dropped."""
@@ -445,6 +485,8 @@ class Page(pn.viewable.Viewer):
                 kind,
                 f"This view could not be drawn (error id {eid}; the server log has the details).",
             )
+        finally:
+            self._mark_pending(kind, False)  # in the same message as the view
 
     def _sentence(self, kind, exc) -> str:
         if isinstance(exc, CaseError):

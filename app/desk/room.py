@@ -65,6 +65,9 @@ def no_such_room():
 class RoomBar(pn.viewable.Viewer):
     """Above the page: the room, its people, and what you are doing in it."""
 
+    #: where the room is (its view), said to those looking on their own
+    where: dict | None = None
+
     def __init__(self, title: str, name: str, named: bool, **params):
         super().__init__(**params)
         css = [WIDGET_CSS]
@@ -118,8 +121,12 @@ class RoomBar(pn.viewable.Viewer):
             },
         )
 
-    def show(self, snap, me: str):
-        """Draw the room's people and your part in it from a hub snapshot."""
+    def show(self, snap, me: str, fresh: bool = True):
+        """Draw the room's people and your part in it from a hub snapshot (``fresh``: just
+        sent, so its view is where the room is now)."""
+        self._last = (snap, me)
+        if fresh and snap.get("view"):
+            self.where = dict(snap["view"])
         people = snap["people"]
         steering = next((p for p in people if p["steering"]), None)
 
@@ -147,6 +154,8 @@ class RoomBar(pn.viewable.Viewer):
             text = f"You follow {esc(steering['name'])}." if steering else "You follow the room."
         else:
             text = "You are looking on your own: the room's changes do not reach you."
+            if self.where:
+                text += f" The room is at {esc(describe_view(self.where))}."
         self.status.object = (
             f"<div class='bd-room-status' style='font-size:16px;"
             f"font-weight:600;color:{INK};min-width:260px'>{text}</div>"
@@ -154,6 +163,12 @@ class RoomBar(pn.viewable.Viewer):
         self.w_steer.visible = mine is not None and not mine["steering"]
         self.w_alone.visible = mine is not None and mine["following"]
         self.w_back.visible = mine is not None and not mine["following"]
+
+    def show_where(self, view: dict):
+        """The room has moved on while you look on your own: say where it is now."""
+        self.where = dict(view)
+        if getattr(self, "_last", None) is not None:
+            self.show(*self._last, fresh=False)
 
     def __panel__(self):
         return self.layout
@@ -370,7 +385,11 @@ class RoomSession:
             return
         if kind == "people":
             self._people(payload)
+        elif kind == "where":
+            self.page.room_view_seen()
+            self.bar.show_where(payload["view"])
         elif kind == "view":
+            self.page.room_view_seen()
             mine = next(
                 (p for p in (self.snap or {}).get("people", []) if p["key"] == self.key), None
             )

@@ -186,13 +186,10 @@ class Hub:
                 return True
             version = self.store.save_view(token, view)
             live.view, live.version = dict(view), version
-        self._tell(
-            live,
-            "view",
-            {"view": dict(view), "version": version, "by": key},
-            followers_only=True,
-            skip=key,
-        )
+        told = {"view": dict(view), "version": version, "by": key}
+        self._tell(live, "view", told, followers_only=True, skip=key)
+        # those looking on their own are told where the room is, to show, never to take
+        self._tell(live, "where", dict(told), alone_only=True, skip=key)
         return True
 
     # -- notes --------------------------------------------------------------------------
@@ -272,13 +269,15 @@ class Hub:
                 ],
             }
 
-    def _tell(self, live, kind, payload, followers_only=False, skip=None):
+    def _tell(self, live, kind, payload, followers_only=False, skip=None, alone_only=False):
         snap = self._snapshot(live) if kind == "people" else None
         with live.lock:
             targets = [
                 p
                 for p in live.people.values()
-                if p.key != skip and (p.following or not followers_only)
+                if p.key != skip
+                and (p.following or not followers_only)
+                and not (alone_only and p.following)
             ]
         for p in targets:
             try:
