@@ -149,3 +149,60 @@ def test_every_test_that_drives_chromium_carries_the_browser_mark():
             if drives and not (module_marked or marked):
                 unmarked.append(f"{name}::{fn.name}")
     assert unmarked == [], unmarked
+
+
+def _top_level_imports(folder):
+    """Every top-level module a folder's Python files import by absolute name."""
+    import ast
+    import pathlib
+
+    found = {}
+    for path in pathlib.Path(folder).rglob("*.py"):
+        for node in ast.walk(ast.parse(path.read_text())):
+            if isinstance(node, ast.Import):
+                names = [a.name for a in node.names]
+            elif isinstance(node, ast.ImportFrom) and node.level == 0 and node.module:
+                names = [node.module]
+            else:
+                continue
+            for name in names:
+                found.setdefault(name.split(".")[0], str(path))
+    return found
+
+
+def _declared_distributions():
+    """The distributions pyproject.toml names, in its dependencies and every extra."""
+    import pathlib
+    import tomllib
+
+    project = tomllib.loads((pathlib.Path(__file__).parent.parent / "pyproject.toml").read_text())[
+        "project"
+    ]
+    specs = list(project["dependencies"])
+    for extra in project["optional-dependencies"].values():
+        specs += extra
+    return {re.split(r"[<>=!~ \[;]", s, maxsplit=1)[0].lower().replace("_", "-") for s in specs}
+
+
+@pytest.mark.parametrize("folder", ["balance_core", "app", "testkit", "tests", "bench"])
+def test_every_package_the_code_imports_is_declared(folder):
+    """A package that arrives only as another's dependency can leave with it (colorcet did,
+    when a plotting library was dropped); everything imported is named in pyproject.toml."""
+    import importlib.metadata
+    import pathlib
+    import sys
+
+    root = pathlib.Path(__file__).parent.parent
+    ours = {p.name for p in root.iterdir() if p.is_dir()} | {
+        p.stem for p in root.rglob("*.py") if ".venv" not in p.parts
+    }
+    owners = importlib.metadata.packages_distributions()
+    declared = _declared_distributions()
+    missing = {}
+    for module, path in _top_level_imports(root / folder).items():
+        if module in sys.stdlib_module_names or module in ours:
+            continue
+        dists = {d.lower().replace("_", "-") for d in owners.get(module, [module])}
+        if not dists & declared:
+            missing[module] = path
+    assert not missing, f"imported but not declared in pyproject.toml: {missing}"
