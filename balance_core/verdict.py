@@ -385,6 +385,47 @@ def classify_budget(
     """
     th = thresholds
     rms = ratios.get("rms", {})
+    refused = _too_few_points(ratios, th)
+    if refused is not None:
+        return refused
+    p = rms["pressure_gradient"]
+    tested = _not_tested(ratios, th, ground)
+    if p < th.weak_pgf:
+        return _weak_forcing(ratios, th, tested, p)
+    holds = {
+        c: ratios[c]
+        for c in CANDIDATES
+        if tested[c] is None and ratios.get(c) is not None and ratios[c] <= th.balanced
+    }
+    why: list[str] = []
+    chosen = _simplest_that_holds(holds, th, why)
+    if "gradient" in holds:
+        chosen = _gradient_or_simpler(chosen, holds, rms, th, why)
+    if "frictional" in holds:
+        chosen = _frictional_or_not(chosen, holds, th, why)
+    if chosen in ("gradient", "cyclostrophic"):
+        curv = ratios.get("curvature", "streamline")
+        why.append(
+            f"The centripetal term takes the {curv} curvature"
+            + (
+                " (the streamlines' curvature plus the cross-stream tendency over V^2)."
+                if curv == "trajectory"
+                else " (one valid time: no tendency to turn it into the trajectory's)."
+            )
+        )
+    if chosen is None:
+        chosen = _when_none_holds(ratios, th, tested, why)
+    why.extend(t for c, t in tested.items() if t is not None)
+    cautions = _unexplained_terms(rms, p, th, ground)
+    text = _sentence(chosen, ratios, tested)
+    if cautions:
+        text += " Caution: " + " ".join(cautions)
+    return Verdict(chosen, text, ratios, " ".join(why), tested, tuple(cautions))
+
+
+def _too_few_points(ratios, th) -> Verdict | None:
+    """ "none" when no point, or too few or too small a share of the region, has every term."""
+    rms = ratios.get("rms", {})
     n, total = ratios.get("points") or 0, ratios.get("region_points")
     total = n if total is None else total
     if not n or not rms.get("pressure_gradient"):
@@ -406,149 +447,148 @@ def classify_budget(
             ratios,
             "Too few valid points to name a balance.",
         )
-    p = rms["pressure_gradient"]
-    tested = _not_tested(ratios, th, ground)
-    if p < th.weak_pgf:
-        weak = f"the pressure-gradient force ({_fmt(p)}) is under {th.weak_pgf:.1e} m s-2"
-        reason = (
-            f"{weak[0].upper() + weak[1:]}: every ratio is a share of it, so none means anything."
-        )
-        tested = {
-            c: (
-                f"{c.capitalize()} {'flow' if c == 'unsteady' else 'balance'} was not "
-                f"tested: {weak}."
-            )
-            for c in tested
-        }
-        return Verdict(
-            "none",
-            f"No verdict: {weak}, too weak for the imbalance ratios to "
-            "mean anything (each is a share of the pressure gradient).",
-            ratios,
-            reason,
-            tested,
-            cautions=(f"Weak forcing: {weak}.",),
-        )
-    holds = {
-        c: ratios[c]
-        for c in CANDIDATES
-        if tested[c] is None and ratios.get(c) is not None and ratios[c] <= th.balanced
+    return None
+
+
+def _weak_forcing(ratios, th, tested, p) -> Verdict:
+    """ "none" under a pressure gradient weaker than ``weak_pgf``: every ratio is a share of it."""
+    weak = f"the pressure-gradient force ({_fmt(p)}) is under {th.weak_pgf:.1e} m s-2"
+    reason = f"{weak[0].upper() + weak[1:]}: every ratio is a share of it, so none means anything."
+    tested = {
+        c: (f"{c.capitalize()} {'flow' if c == 'unsteady' else 'balance'} was not tested: {weak}.")
+        for c in tested
     }
-    why: list[str] = []
-    curv = ratios.get("curvature", "streamline")
-    cen, cor = rms.get("centripetal_used"), rms.get("coriolis")
-    chosen: str | None = None
+    return Verdict(
+        "none",
+        f"No verdict: {weak}, too weak for the imbalance ratios to "
+        "mean anything (each is a share of the pressure gradient).",
+        ratios,
+        reason,
+        tested,
+        cautions=(f"Weak forcing: {weak}.",),
+    )
+
+
+def _simplest_that_holds(holds, th, why) -> str | None:
+    """Geostrophic or cyclostrophic, whichever holds with the smaller ratio (or None)."""
     simple = [c for c in ("geostrophic", "cyclostrophic") if c in holds]
-    if simple:
-        chosen = min(simple, key=lambda c: holds[c])
+    if not simple:
+        return None
+    chosen = min(simple, key=lambda c: holds[c])
+    why.append(
+        f"{chosen.capitalize()} is the simplest balance that holds: it leaves "
+        f"{_pct(holds[chosen])} of the pressure-gradient force unbalanced (a balance "
+        f"holds at {_pct(th.balanced)} or less)."
+    )
+    return chosen
+
+
+def _gradient_or_simpler(chosen, holds, rms, th, why) -> str:
+    """Gradient where nothing simpler holds, or where the term it adds matters (at least
+    ``curvature_share``) and it fits clearly better (at most ``gradient_gain`` times)."""
+    g = holds["gradient"]
+    if chosen is None:
         why.append(
-            f"{chosen.capitalize()} is the simplest balance that holds: it leaves "
-            f"{_pct(holds[chosen])} of the pressure-gradient force unbalanced (a balance "
+            f"Gradient is the simplest balance that holds: it leaves {_pct(g)} (a "
+            f"balance holds at {_pct(th.balanced)} or less)."
+        )
+        return "gradient"
+    cen, cor = rms.get("centripetal_used"), rms.get("coriolis")
+    other = cen if chosen == "geostrophic" else cor
+    base = cor if chosen == "geostrophic" else cen
+    added = "the centripetal term" if chosen == "geostrophic" else "Coriolis"
+    against = "Coriolis" if chosen == "geostrophic" else "the centripetal term"
+    share = other / base if other is not None and base else 0.0
+    if share >= th.curvature_share and g <= th.gradient_gain * holds[chosen]:
+        why.append(
+            f"Gradient replaces {chosen}: {added} is {_pct(share)} of {against}"
+            f" and gradient leaves {_pct(g)} against {_pct(holds[chosen])}, "
+            f"clearly less (at most {th.gradient_gain:g} times)."
+        )
+        return "gradient"
+    if g >= holds[chosen]:
+        why.append(
+            f"Gradient also holds ({_pct(g)}) but fits no better than "
+            f"{chosen} ({_pct(holds[chosen])})."
+        )
+    elif share < th.curvature_share:
+        why.append(
+            f"Gradient fits a little better ({_pct(g)} against "
+            f"{_pct(holds[chosen])}), but {added} is only {_pct(share)} of {against}"
+            f": too small to matter (the line is {_pct(th.curvature_share)})."
+        )
+    else:
+        why.append(
+            f"Gradient fits a little better ({_pct(g)} against "
+            f"{_pct(holds[chosen])}), not clearly (it would need at most "
+            f"{th.gradient_gain:g} times), so the simpler {chosen} stays."
+        )
+    return chosen
+
+
+def _frictional_or_not(chosen, holds, th, why) -> str:
+    """Frictional where nothing else holds, or where the choice is not already within
+    ``good`` and friction leaves at most ``improvement`` times as much."""
+    f_ = holds["frictional"]
+    if chosen is None:
+        why.append(
+            f"Frictional is the balance that holds: it leaves {_pct(f_)} (a balance "
             f"holds at {_pct(th.balanced)} or less)."
         )
-    if "gradient" in holds:
-        g = holds["gradient"]
-        if chosen is None:
-            chosen = "gradient"
-            why.append(
-                f"Gradient is the simplest balance that holds: it leaves {_pct(g)} (a "
-                f"balance holds at {_pct(th.balanced)} or less)."
-            )
-        else:
-            other = rms.get("centripetal_used") if chosen == "geostrophic" else cor
-            base = cor if chosen == "geostrophic" else cen
-            added = "the centripetal term" if chosen == "geostrophic" else "Coriolis"
-            share = other / base if other is not None and base else 0.0
-            if share >= th.curvature_share and g <= th.gradient_gain * holds[chosen]:
-                why.append(
-                    f"Gradient replaces {chosen}: {added} is {_pct(share)} of "
-                    f"{'Coriolis' if chosen == 'geostrophic' else 'the centripetal term'}"
-                    f" and gradient leaves {_pct(g)} against {_pct(holds[chosen])}, "
-                    f"clearly less (at most {th.gradient_gain:g} times)."
-                )
-                chosen = "gradient"
-            elif g >= holds[chosen]:
-                why.append(
-                    f"Gradient also holds ({_pct(g)}) but fits no better than "
-                    f"{chosen} ({_pct(holds[chosen])})."
-                )
-            elif share < th.curvature_share:
-                why.append(
-                    f"Gradient fits a little better ({_pct(g)} against "
-                    f"{_pct(holds[chosen])}), but {added} is only {_pct(share)} of "
-                    f"{'Coriolis' if chosen == 'geostrophic' else 'the centripetal term'}"
-                    f": too small to matter (the line is {_pct(th.curvature_share)})."
-                )
-            else:
-                why.append(
-                    f"Gradient fits a little better ({_pct(g)} against "
-                    f"{_pct(holds[chosen])}), not clearly (it would need at most "
-                    f"{th.gradient_gain:g} times), so the simpler {chosen} stays."
-                )
-    if "frictional" in holds:
-        f_ = holds["frictional"]
-        if chosen is None:
-            chosen = "frictional"
-            why.append(
-                f"Frictional is the balance that holds: it leaves {_pct(f_)} (a balance "
-                f"holds at {_pct(th.balanced)} or less)."
-            )
-        elif holds[chosen] > th.good and f_ <= th.improvement * holds[chosen]:
-            why.append(
-                f"Frictional replaces {chosen}: it leaves {_pct(f_)} against "
-                f"{_pct(holds[chosen])}, at most {th.improvement:g} times as much, so "
-                "friction earns its place."
-            )
-            chosen = "frictional"
-        else:
-            why.append(
-                f"Frictional also holds ({_pct(f_)}) but does not do enough better than "
-                f"{chosen} ({_pct(holds[chosen])}) to add friction."
-            )
-    if chosen in ("gradient", "cyclostrophic"):
+        return "frictional"
+    if holds[chosen] > th.good and f_ <= th.improvement * holds[chosen]:
         why.append(
-            f"The centripetal term takes the {curv} curvature"
-            + (
-                " (the streamlines' curvature plus the cross-stream tendency over V^2)."
-                if curv == "trajectory"
-                else " (one valid time: no tendency to turn it into the trajectory's)."
-            )
+            f"Frictional replaces {chosen}: it leaves {_pct(f_)} against "
+            f"{_pct(holds[chosen])}, at most {th.improvement:g} times as much, so "
+            "friction earns its place."
         )
-    if chosen is None:
-        testable = [c for c in CANDIDATES if tested[c] is None]
-        acc = ratios.get("acceleration_share")
-        if tested["unsteady"] is None and acc is not None and acc >= th.unsteady_share:
-            chosen = "unsteady"
-            why.insert(
-                0,
-                f"No candidate balance leaves {_pct(th.balanced)} or less; the "
-                f"total acceleration is {_pct(acc)} of the pressure-gradient force "
-                f"(at least {_pct(th.unsteady_share)}).",
-            )
-        elif not testable:
-            chosen = "none"
-            why.insert(0, "No candidate balance could be tested here.")
-        elif (
-            tested["geostrophic"] is not None
-            and tested["gradient"] is not None
-            and ratios.get("tropics_share") is not None
-            and ratios["tropics_share"] > th.tropics_share
-        ):
-            chosen = "none"
-            why.insert(
-                0,
-                "Within the tropics only the balances that do without f can be "
-                "tested, and none of them holds here.",
-            )
-        else:
-            chosen = "unbalanced"
-            tail = (
-                ""
-                if tested["unsteady"] is None
-                else " With one valid time, whether the flow is unsteady cannot be told."
-            )
-            why.insert(0, f"No candidate balance leaves {_pct(th.balanced)} or less.{tail}")
-    why.extend(t for c, t in tested.items() if t is not None)
+        return "frictional"
+    why.append(
+        f"Frictional also holds ({_pct(f_)}) but does not do enough better than "
+        f"{chosen} ({_pct(holds[chosen])}) to add friction."
+    )
+    return chosen
+
+
+def _when_none_holds(ratios, th, tested, why) -> str:
+    """ "unsteady", "none" or "unbalanced" when no candidate balance holds."""
+    testable = [c for c in CANDIDATES if tested[c] is None]
+    acc = ratios.get("acceleration_share")
+    if tested["unsteady"] is None and acc is not None and acc >= th.unsteady_share:
+        why.insert(
+            0,
+            f"No candidate balance leaves {_pct(th.balanced)} or less; the "
+            f"total acceleration is {_pct(acc)} of the pressure-gradient force "
+            f"(at least {_pct(th.unsteady_share)}).",
+        )
+        return "unsteady"
+    if not testable:
+        why.insert(0, "No candidate balance could be tested here.")
+        return "none"
+    if (
+        tested["geostrophic"] is not None
+        and tested["gradient"] is not None
+        and ratios.get("tropics_share") is not None
+        and ratios["tropics_share"] > th.tropics_share
+    ):
+        why.insert(
+            0,
+            "Within the tropics only the balances that do without f can be "
+            "tested, and none of them holds here.",
+        )
+        return "none"
+    tail = (
+        ""
+        if tested["unsteady"] is None
+        else " With one valid time, whether the flow is unsteady cannot be told."
+    )
+    why.insert(0, f"No candidate balance leaves {_pct(th.balanced)} or less.{tail}")
+    return "unbalanced"
+
+
+def _unexplained_terms(rms, p, th, ground) -> list[str]:
+    """A caution for each term outside every candidate balance that reaches
+    ``unexplained_share`` of the pressure gradient (the residual too, away from the ground)."""
     cautions = []
     for name in _OUTSIDE + (() if ground and ground[0] else ("residual",)):
         m = rms.get(name)
@@ -559,10 +599,7 @@ def classify_budget(
                 "check that term (or the data it comes from) before trusting "
                 "this verdict."
             )
-    text = _sentence(chosen, ratios, tested)
-    if cautions:
-        text += " Caution: " + " ".join(cautions)
-    return Verdict(chosen, text, ratios, " ".join(why), tested, tuple(cautions))
+    return cautions
 
 
 def _friction_barrier(ratios, th, ground) -> str | None:

@@ -563,8 +563,7 @@ def _quiet_dask():
 
 
 def _assemble(pieces, *, min_lat, name) -> Case:
-    import xarray as xr
-
+    """One Case from the normalised pieces of one or more files, in named steps."""
     first = pieces[0]
     for pc in pieces[1:]:
         _same_grid(first, pc)
@@ -572,55 +571,8 @@ def _assemble(pieces, *, min_lat, name) -> Case:
     for pc in pieces:
         notes.extend(_check_times(pc))
         notes.extend(_check_holes(pc))
-    data = {}
-    for role in first.data:
-        parts = [pc.data.get(role) for pc in pieces]
-        if any(p is None for p in parts):
-            missing = pieces[[p is None for p in parts].index(True)].path
-            if role in REQUIRED_ROLES:
-                raise CaseError(f"lacks {ROLES[role].words}, which the first file has", missing)
-            notes.append(f"{ROLES[role].words} left out: {os.path.basename(missing)} lacks it")
-            continue
-        data[role] = xr.concat(parts, dim="time") if len(parts) > 1 else parts[0]
-    surface, fills = {}, {}
-    for role in first.surface:
-        parts = [pc.surface.get(role) for pc in pieces]
-        if all(p is not None for p in parts):
-            surface[role] = xr.concat(parts, dim="time") if len(parts) > 1 else parts[0]
-    for role in list(data) + list(surface):
-        parts = [pc.fills.get(role) for pc in pieces]
-        if all(p is not None for p in parts):
-            fills[role] = (
-                parts[0].map(lambda _, parts=parts: xr.concat([p.data for p in parts], dim="time"))
-                if len(parts) > 1
-                else parts[0]
-            )
-    times = np.concatenate([pc.times for pc in pieces])
-    refs = np.concatenate(
-        [
-            pc.reference_times
-            if pc.reference_times is not None
-            else np.full(pc.times.size, np.datetime64("NaT", "ns"))
-            for pc in pieces
-        ]
-    )
-    order = np.argsort(times, kind="stable")
-    times, refs = times[order], refs[order]
-    if np.unique(times).size != times.size:
-        i = np.nonzero(np.diff(times) == np.timedelta64(0))[0][0]
-        dup = times[i]
-        runs = {iso(r) for r in refs[i : i + 2] if not np.isnat(r)}
-        if len(runs) == 2:
-            raise CaseError(
-                f"valid time {iso(dup)} comes from two model runs "
-                f"({', '.join(sorted(runs))}) across the files: runs are not "
-                "differenced or tracked one into the other; open one run at a "
-                "time",
-                first.path,
-            )
-        raise CaseError(
-            f"valid time {iso(dup)} appears more than once across the files", first.path
-        )
+    data, surface, fills = _join_pieces(pieces, notes)
+    times, refs, order = _valid_times(pieces)
     if not np.all(order == np.arange(order.size)):
         data = {r: d.isel(time=order) for r, d in data.items()}
         surface = {r: d.isel(time=order) for r, d in surface.items()}
@@ -629,23 +581,7 @@ def _assemble(pieces, *, min_lat, name) -> Case:
         if role not in data:
             label = {"u": "eastward wind (u)", "v": "northward wind (v)"}.get(role, role)
             raise CaseError(f"has no {label} on pressure levels", first.path)
-    # every pressure-level variable on the height's levels; one that lacks some is missing there
-    level_notes = []
-    for role, da in list(data.items()):
-        lv = np.asarray(da["level"].values)
-        if lv.shape == first.levels_pa.shape and np.allclose(lv, first.levels_pa):
-            continue
-        absent = [p for p in first.levels_pa if not np.any(np.isclose(lv, p, atol=1.0))]
-        if len(absent) == first.levels_pa.size:
-            raise CaseError(f"{role} shares no pressure level with the height", first.path, role)
-        data[role] = da.reindex(level=first.levels_pa, method="nearest", tolerance=1.0)
-        fills[role] = fills[role].map(
-            lambda d: d.reindex(level=first.levels_pa, method="nearest", tolerance=1.0)
-        )
-        if absent:
-            level_notes.append(
-                f"{role} is not given at " + ", ".join(f"{p / 100:g}" for p in absent) + " hPa"
-            )
+    level_notes = _onto_height_levels(first, data, fills)
     notes = list(dict.fromkeys(n for pc in pieces for n in pc.notes)) + notes + level_notes
     dropped = {}
     for pc in pieces:
@@ -665,30 +601,8 @@ def _assemble(pieces, *, min_lat, name) -> Case:
         dropped[role] = sentence
         data.pop(role, None)
         surface.pop(role, None)
-    if first.grid_relative:
-        data = _rotate_winds(grid, data, "x_wind", "y_wind", "u", "v")
-        notes.append("grid-relative winds rotated to east and north with the meridian convergence")
-    elif first.crs is not None:
-        notes.append("winds taken as earth-relative (eastward/northward) on the projected grid")
-    if "x_wind10" in surface and "y_wind10" in surface:
-        surface = _rotate_winds(grid, surface, "x_wind10", "y_wind10", "u10", "v10")
-        notes.append(
-            "grid-relative 10 m winds rotated to east and north with the meridian convergence"
-        )
-    for a, b in (("x_wind", "u"), ("y_wind", "v"), ("x_wind10", "u10"), ("y_wind10", "v10")):
-        if a in sources:
-            sources[b] = sources.pop(a)
-            sources[b]["rotated"] = "grid-relative, rotated to east and north"
-    surface.pop("x_wind10", None)
-    surface.pop("y_wind10", None)
-    if "omega" not in data and "w" in data:
-        data["omega"] = _omega_from_w(data, first.levels_pa)
-        notes.append("omega = -rho g w from the vertical velocity w")
-        sources["omega"] = {**sources.pop("w"), "note": "omega = -rho g w"}
-    data.pop("w", None)
-    sources.pop("w", None)
-    for r in ("x_wind", "y_wind"):
-        data.pop(r, None)
+    data, surface = _earth_relative(grid, first, data, surface, sources, notes)
+    _omega_role(data, sources, notes, first.levels_pa)
     _check_winds(grid, data, first.path, sources, first.levels_pa)
     data, below, mask_notes, mask_dropped, ground_field, below_da = _mask_below_ground(
         data, surface, first.levels_pa
@@ -721,6 +635,137 @@ def _assemble(pieces, *, min_lat, name) -> Case:
         below=below_da,
         member_count=max(pc.member_count for pc in pieces),
     )
+
+
+def _join_pieces(pieces, notes) -> tuple[dict, dict, dict]:
+    """The pressure-level, surface and fill fields of every piece, joined along time.
+
+    A role the first file has and a later one lacks is refused when the budget needs it,
+    else left out with a note.
+    """
+    import xarray as xr
+
+    def joined(parts):
+        return xr.concat(parts, dim="time") if len(parts) > 1 else parts[0]
+
+    first = pieces[0]
+    data = {}
+    for role in first.data:
+        parts = [pc.data.get(role) for pc in pieces]
+        if any(p is None for p in parts):
+            missing = pieces[[p is None for p in parts].index(True)].path
+            if role in REQUIRED_ROLES:
+                raise CaseError(f"lacks {ROLES[role].words}, which the first file has", missing)
+            notes.append(f"{ROLES[role].words} left out: {os.path.basename(missing)} lacks it")
+            continue
+        data[role] = joined(parts)
+    surface = {}
+    for role in first.surface:
+        parts = [pc.surface.get(role) for pc in pieces]
+        if all(p is not None for p in parts):
+            surface[role] = joined(parts)
+    fills = {}
+    for role in list(data) + list(surface):
+        parts = [pc.fills.get(role) for pc in pieces]
+        if all(p is not None for p in parts):
+            fills[role] = (
+                parts[0].map(lambda _, parts=parts: xr.concat([p.data for p in parts], dim="time"))
+                if len(parts) > 1
+                else parts[0]
+            )
+    return data, surface, fills
+
+
+def _valid_times(pieces) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The valid and reference times of all pieces in time order, and that order.
+
+    A valid time given twice is refused; when the two come from different model runs the
+    message says so (runs are never differenced one into the other).
+    """
+    first = pieces[0]
+    times = np.concatenate([pc.times for pc in pieces])
+    refs = np.concatenate(
+        [
+            pc.reference_times
+            if pc.reference_times is not None
+            else np.full(pc.times.size, np.datetime64("NaT", "ns"))
+            for pc in pieces
+        ]
+    )
+    order = np.argsort(times, kind="stable")
+    times, refs = times[order], refs[order]
+    if np.unique(times).size != times.size:
+        i = np.nonzero(np.diff(times) == np.timedelta64(0))[0][0]
+        dup = times[i]
+        runs = {iso(r) for r in refs[i : i + 2] if not np.isnat(r)}
+        if len(runs) == 2:
+            raise CaseError(
+                f"valid time {iso(dup)} comes from two model runs "
+                f"({', '.join(sorted(runs))}) across the files: runs are not "
+                "differenced or tracked one into the other; open one run at a "
+                "time",
+                first.path,
+            )
+        raise CaseError(
+            f"valid time {iso(dup)} appears more than once across the files", first.path
+        )
+    return times, refs, order
+
+
+def _onto_height_levels(first, data, fills) -> list[str]:
+    """Every pressure-level variable on the height's levels (in place); one that lacks some
+    is missing there, and the notes say where. One that shares none is refused."""
+    level_notes = []
+    for role, da in list(data.items()):
+        lv = np.asarray(da["level"].values)
+        if lv.shape == first.levels_pa.shape and np.allclose(lv, first.levels_pa):
+            continue
+        absent = [p for p in first.levels_pa if not np.any(np.isclose(lv, p, atol=1.0))]
+        if len(absent) == first.levels_pa.size:
+            raise CaseError(f"{role} shares no pressure level with the height", first.path, role)
+        data[role] = da.reindex(level=first.levels_pa, method="nearest", tolerance=1.0)
+        fills[role] = fills[role].map(
+            lambda d: d.reindex(level=first.levels_pa, method="nearest", tolerance=1.0)
+        )
+        if absent:
+            level_notes.append(
+                f"{role} is not given at " + ", ".join(f"{p / 100:g}" for p in absent) + " hPa"
+            )
+    return level_notes
+
+
+def _earth_relative(grid, first, data, surface, sources, notes) -> tuple[dict, dict]:
+    """Winds as eastward and northward: grid-relative ones rotated by the meridian
+    convergence, the sources renamed to u, v (u10, v10) and told so."""
+    if first.grid_relative:
+        data = _rotate_winds(grid, data, "x_wind", "y_wind", "u", "v")
+        notes.append("grid-relative winds rotated to east and north with the meridian convergence")
+    elif first.crs is not None:
+        notes.append("winds taken as earth-relative (eastward/northward) on the projected grid")
+    if "x_wind10" in surface and "y_wind10" in surface:
+        surface = _rotate_winds(grid, surface, "x_wind10", "y_wind10", "u10", "v10")
+        notes.append(
+            "grid-relative 10 m winds rotated to east and north with the meridian convergence"
+        )
+    for a, b in (("x_wind", "u"), ("y_wind", "v"), ("x_wind10", "u10"), ("y_wind10", "v10")):
+        if a in sources:
+            sources[b] = sources.pop(a)
+            sources[b]["rotated"] = "grid-relative, rotated to east and north"
+    surface.pop("x_wind10", None)
+    surface.pop("y_wind10", None)
+    for r in ("x_wind", "y_wind"):
+        data.pop(r, None)
+    return data, surface
+
+
+def _omega_role(data, sources, notes, levels_pa) -> None:
+    """Omega from w (omega = -rho g w) when the file gives only w; w itself goes (in place)."""
+    if "omega" not in data and "w" in data:
+        data["omega"] = _omega_from_w(data, levels_pa)
+        notes.append("omega = -rho g w from the vertical velocity w")
+        sources["omega"] = {**sources.pop("w"), "note": "omega = -rho g w"}
+    data.pop("w", None)
+    sources.pop("w", None)
 
 
 def _check_times(pc) -> list:
