@@ -535,7 +535,7 @@ def run_batch(
     takes its checksum); the pieces of a file are then sent to the worker that opened it,
     before the next file is planned, so that they find it open.
     """
-    from distributed import Client, wait
+    from distributed import Client
 
     err = err or (lambda text: print(text, file=sys.stderr, flush=True))
     if not (out.endswith(".parquet") or out.endswith(".csv")):
@@ -554,140 +554,22 @@ def run_batch(
         cluster = local_cluster(workers or max(1, os.cpu_count() or 1), memory_limit)
         client = Client(cluster)
     say(f"balance-desk batch: dask dashboard at {client.dashboard_link}")
-    errors, lost, tasks, checksums = [], [], [], {}
-    done = failed = skipped = planned = 0
-    t0 = time.monotonic()
-    futures = []
+    opts = dict(
+        levels=list(levels), boxes=tuple(boxes), systems=systems, member=member, min_lat=min_lat
+    )
+    run = _Run(client, files, folder, opts, err)
     try:
-        opts = dict(
-            levels=list(levels), boxes=tuple(boxes), systems=systems, member=member, min_lat=min_lat
-        )
-        plan_of, run_of = {}, {}
-        queue = list(enumerate(files))
-
-        def plan_next(where=None):
-            # a file is planned on a worker, which keeps it open; its pieces are then sent
-            # there, and the next file's plan after them (a lower priority). So that a
-            # worker never starts another file before its pieces have arrived (and opens
-            # the file again), no more files are being planned than there are workers, and
-            # the plan that follows a file goes to the worker that planned it.
-            if not queue:
-                return
-            i, path = queue.pop(0)
-            key = (
-                "plan-"
-                + hashlib.sha1(
-                    json.dumps([os.path.abspath(path), i, str(opts)]).encode()
-                ).hexdigest()[:20]
-            )
-            near = dict(workers=where, allow_other_workers=True) if where else {}
-            fut = client.submit(
-                plan_file, path, key=key, priority=-2 * i, pure=False, **near, **opts
-            )
-            plan_of[fut.key] = (i, path)
-            futures.append(fut)
-            pending.add(fut)
-
-        pending = set()
-        for _ in range(max(1, len(client.scheduler_info().get("workers", {})))):
-            plan_next()
-        last = 0.0
-        alone_since = None
-        no_worker_s = settings.seconds("BALANCE_DESK_BATCH_NO_WORKER_S")
-        while pending:
-            try:
-                ready = wait(pending, timeout=10, return_when="FIRST_COMPLETED").done
-            except TimeoutError:  # (dask's wait raises when nothing finished in time)
-                ready = set()
-            if not ready:
-                # nothing finished: are there workers at all? (when every worker has died,
-                # dask neither runs nor fails the pieces: the run would wait for ever)
-                if client.scheduler_info().get("workers"):
-                    alone_since = None
-                elif alone_since is None:
-                    alone_since = time.monotonic()
-                elif time.monotonic() - alone_since > no_worker_s:
-                    raise BatchError(
-                        f"balance-desk batch: no worker has been left for {no_worker_s:.0f} s "
-                        f"(each piece may need more memory than --memory-limit gives); the "
-                        f"{done} pieces done are kept in {folder}: run again to go on"
-                    )
-                continue
-            for fut in ready:
-                pending.discard(fut)
-                if fut.key in plan_of:
-                    i, path = plan_of[fut.key]
-                    planned += 1
-                    try:
-                        plan = fut.result()
-                    except Exception as exc:  # noqa: BLE001 - the worker died, or was lost
-                        lost.append(
-                            _not_analysed(path, None, exc, "the workers opening the file died")
-                        )
-                        plan_next()
-                        continue
-                    errors += plan["errors"]
-                    checksums[os.path.abspath(path)] = plan["checksum"]
-                    tasks += plan["tasks"]
-                    todo = [
-                        t
-                        for t in plan["tasks"]
-                        if not os.path.exists(os.path.join(folder, f"{t.key}.json"))
-                    ]
-                    skipped += len(plan["tasks"]) - len(todo)
-                    where = list(client.who_has([fut]).get(fut.key, ()))
-                    if todo:
-                        near = dict(workers=where, allow_other_workers=True) if where else {}
-                        new = client.map(
-                            run_task,
-                            todo,
-                            key=[f"balance-{t.key}" for t in todo],
-                            priority=-2 * i + 1,
-                            **near,
-                        )
-                        for t, f in zip(todo, new):
-                            run_of[f.key] = t
-                        futures += new
-                        pending.update(new)
-                    fut.release()
-                    plan_next(where)
-                    continue
-                task = run_of[fut.key]
-                try:
-                    result = fut.result()
-                except Exception as exc:  # noqa: BLE001 - the worker died (memory), or was lost
-                    # no part file: a run started again tries this piece again
-                    lost.append(_not_analysed(task.path, task, exc))
-                    done += 1
-                    failed += 1
-                else:
-                    _write_part(folder, task, result)
-                    done += 1
-                    failed += bool(result["error"])
-                    fut.release()
-            now = time.monotonic()
-            if now - last > 1.0 or not pending:
-                last = now
-                total = len(tasks) - skipped
-                rate = done / max(now - t0, 1e-9)
-                # the files not planned yet are guessed to hold as many pieces as the others
-                guess = total * len(files) / max(planned, 1)
-                left = (guess - done) / rate if rate > 0 else float("inf")
-                err(
-                    f"  [{_bar(done, guess)}] {done}/{total} pieces, {failed} failed, "
-                    f"{planned}/{len(files)} files opened, {_clock(now - t0)} elapsed, about "
-                    f"{_clock(left)} left"
-                )
+        run.go()
         say(
-            f"balance-desk batch: {len(tasks)} pieces ({len(files)} files), {skipped} "
+            f"balance-desk batch: {len(run.tasks)} pieces ({len(files)} files), {run.skipped} "
             f"already done in {folder}"
         )
     except KeyboardInterrupt:
-        for f in futures:
+        for f in run.futures:
             f.cancel()
         say(
-            f"balance-desk batch: stopped; {done} pieces of this run are kept in {folder}: run "
-            "the same command again to go on"
+            f"balance-desk batch: stopped; {run.done} pieces of this run are kept in {folder}: "
+            "run the same command again to go on"
         )
         raise
     finally:
@@ -699,8 +581,8 @@ def run_batch(
                 os.environ.pop(k, None)
             else:
                 os.environ[k] = v
-    rows, task_errors = combine(out, tasks, checksums)
-    errors += task_errors + lost
+    rows, task_errors = combine(out, run.tasks, run.checksums)
+    errors = run.errors + task_errors + run.lost
     _write_table(out, rows)
     err_path = os.path.splitext(out)[0] + ".errors.csv"
     import pandas as pd
@@ -715,9 +597,162 @@ def run_batch(
         "errors": len(errors),
         "out": out,
         "errors_path": err_path,
-        "tasks": len(tasks),
-        "lost": len(lost),
+        "tasks": len(run.tasks),
+        "lost": len(run.lost),
     }
+
+
+class _Run:
+    """One batch on a dask client: files planned on workers, their pieces sent after them.
+
+    A file is planned on a worker, which keeps it open; its pieces are then sent there, and
+    the next file's plan after them (a lower priority). So that a worker never starts
+    another file before its pieces have arrived (and opens the file again), no more files
+    are being planned than there are workers, and the plan that follows a file goes to the
+    worker that planned it.
+    """
+
+    def __init__(self, client, files, folder, opts, err):
+        self.client, self.files, self.folder = client, files, folder
+        self.opts, self.err = opts, err
+        self.queue = list(enumerate(files))
+        self.pending: set = set()
+        self.futures: list = []
+        self.plan_of: dict = {}
+        self.run_of: dict = {}
+        self.errors: list = []
+        self.lost: list = []
+        self.tasks: list = []
+        self.checksums: dict = {}
+        self.done = self.failed = self.skipped = self.planned = 0
+        self.t0 = time.monotonic()
+        self.last_said = 0.0
+        self.alone_since: float | None = None
+        self.no_worker_s = settings.seconds("BALANCE_DESK_BATCH_NO_WORKER_S")
+
+    def go(self):
+        """Run until every planned piece has finished, failed or been lost."""
+        from distributed import wait
+
+        for _ in range(max(1, len(self.client.scheduler_info().get("workers", {})))):
+            self.plan_next()
+        while self.pending:
+            try:
+                ready = wait(self.pending, timeout=10, return_when="FIRST_COMPLETED").done
+            except TimeoutError:  # (dask's wait raises when nothing finished in time)
+                ready = set()
+            if not ready:
+                self.check_workers()
+                continue
+            for fut in ready:
+                self.pending.discard(fut)
+                if fut.key in self.plan_of:
+                    self.planned_file(fut)
+                else:
+                    self.finished_piece(fut)
+            self.progress()
+
+    def plan_next(self, where=None):
+        """Send the next file's plan, to ``where`` (the worker that planned the last) if given."""
+        if not self.queue:
+            return
+        i, path = self.queue.pop(0)
+        key = (
+            "plan-"
+            + hashlib.sha1(
+                json.dumps([os.path.abspath(path), i, str(self.opts)]).encode()
+            ).hexdigest()[:20]
+        )
+        near = dict(workers=where, allow_other_workers=True) if where else {}
+        fut = self.client.submit(
+            plan_file, path, key=key, priority=-2 * i, pure=False, **near, **self.opts
+        )
+        self.plan_of[fut.key] = (i, path)
+        self.futures.append(fut)
+        self.pending.add(fut)
+
+    def check_workers(self):
+        """Refuse to wait for ever: when every worker has died, dask neither runs nor fails
+        the pieces."""
+        if self.client.scheduler_info().get("workers"):
+            self.alone_since = None
+        elif self.alone_since is None:
+            self.alone_since = time.monotonic()
+        elif time.monotonic() - self.alone_since > self.no_worker_s:
+            raise BatchError(
+                f"balance-desk batch: no worker has been left for {self.no_worker_s:.0f} s "
+                f"(each piece may need more memory than --memory-limit gives); the "
+                f"{self.done} pieces done are kept in {self.folder}: run again to go on"
+            )
+
+    def planned_file(self, fut):
+        """A file's plan came back: send its pieces not done yet to the worker that has it
+        open, then the next file's plan."""
+        i, path = self.plan_of[fut.key]
+        self.planned += 1
+        try:
+            plan = fut.result()
+        except Exception as exc:  # noqa: BLE001 - the worker died, or was lost
+            self.lost.append(_not_analysed(path, None, exc, "the workers opening the file died"))
+            self.plan_next()
+            return
+        self.errors += plan["errors"]
+        self.checksums[os.path.abspath(path)] = plan["checksum"]
+        self.tasks += plan["tasks"]
+        todo = [
+            t
+            for t in plan["tasks"]
+            if not os.path.exists(os.path.join(self.folder, f"{t.key}.json"))
+        ]
+        self.skipped += len(plan["tasks"]) - len(todo)
+        where = list(self.client.who_has([fut]).get(fut.key, ()))
+        if todo:
+            near = dict(workers=where, allow_other_workers=True) if where else {}
+            new = self.client.map(
+                run_task,
+                todo,
+                key=[f"balance-{t.key}" for t in todo],
+                priority=-2 * i + 1,
+                **near,
+            )
+            for t, f in zip(todo, new):
+                self.run_of[f.key] = t
+            self.futures += new
+            self.pending.update(new)
+        fut.release()
+        self.plan_next(where)
+
+    def finished_piece(self, fut):
+        """A piece came back: its part file is written (none if its worker died, so that a
+        run started again tries it again)."""
+        task = self.run_of[fut.key]
+        self.done += 1
+        try:
+            result = fut.result()
+        except Exception as exc:  # noqa: BLE001 - the worker died (memory), or was lost
+            self.lost.append(_not_analysed(task.path, task, exc))
+            self.failed += 1
+            return
+        _write_part(self.folder, task, result)
+        self.failed += bool(result["error"])
+        fut.release()
+
+    def progress(self):
+        """The bar, at most once a second and at the end."""
+        now = time.monotonic()
+        if now - self.last_said <= 1.0 and self.pending:
+            return
+        self.last_said = now
+        total = len(self.tasks) - self.skipped
+        rate = self.done / max(now - self.t0, 1e-9)
+        # the files not planned yet are guessed to hold as many pieces as the others
+        guess = total * len(self.files) / max(self.planned, 1)
+        left = (guess - self.done) / rate if rate > 0 else float("inf")
+        self.err(
+            f"  [{_bar(self.done, guess)}] {self.done}/{total} pieces, {self.failed} failed, "
+            f"{self.planned}/{len(self.files)} files opened, {_clock(now - self.t0)} elapsed, "
+            f"about {_clock(left)} left"
+        )
 
 
 # The bar is the run's own. distributed.diagnostics' TextProgressBar follows a fixed set of
