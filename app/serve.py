@@ -246,6 +246,61 @@ def _origins(host, port, extra=()):
     return out
 
 
+def _passphrase(host, passphrase_file, env, open_without_passphrase, out) -> str | None:
+    """The access passphrase; refused start (ServeError) without one on an address other
+    machines can reach, unless ``open_without_passphrase``, which warns."""
+    passphrase = read_passphrase(passphrase_file, env)
+    if not is_loopback(host) and passphrase is None:
+        if not open_without_passphrase:
+            raise ServeError(
+                f"balance-desk serve: {host} can be reached from other machines, "
+                "so an access passphrase is needed (--passphrase-file FILE or the "
+                "environment variable BALANCE_DESK_PASSPHRASE)"
+            )
+        out(
+            f"WARNING: balance-desk is served on {host} WITHOUT a passphrase: anyone who can "
+            "reach this address can see the cases, join every room whose link they have, and "
+            "write notes."
+        )
+    return passphrase
+
+
+def _load_archives(archives, out) -> tuple[dict, list]:
+    """The batch results to serve at /archive, and why any could not be read."""
+    results, problems = {}, []
+    if archives:
+        from .desk.archive import load_result
+
+        for a in archives:
+            try:
+                results[os.path.basename(a)] = load_result(a)
+            except ValueError as exc:
+                problems.append(str(exc))
+                out(f"balance-desk: not serving {a}: {exc}")
+    return results, problems
+
+
+def _set_up_logging(log_level) -> None:
+    """Log lines with times; room keys hidden from every logger that could print a URL; our
+    loggers (named by module under app and balance_core) at ``log_level``; kill -USR1 prints
+    every thread's stack to stderr (a stuck server shows where)."""
+    logging.basicConfig(level=logging.INFO, format="%(asctime)s %(levelname)s %(message)s")
+    for name in ("tornado.access", "bokeh.server.views.ws", "bokeh", "tornado", "panel"):
+        logging.getLogger(name).addFilter(HideRoomKeys())
+    for handler in logging.getLogger().handlers:
+        handler.addFilter(HideRoomKeys())
+    for name in ("app", "balance_core"):
+        logging.getLogger(name).setLevel(log_level)  # DEBUG: page timings
+    logging.getLogger("panel.util").setLevel(logging.ERROR)  # it warns of every odd link value
+    try:
+        import faulthandler
+        import signal
+
+        faulthandler.register(signal.SIGUSR1, all_threads=True)
+    except (AttributeError, ValueError, OSError):
+        pass
+
+
 def serve(
     files=None,
     cases_dir=None,
@@ -286,19 +341,7 @@ def serve(
     bokeh_settings.resources.set_value("server")
 
     check_address(host, port)
-    passphrase = read_passphrase(passphrase_file, env)
-    if not is_loopback(host) and passphrase is None:
-        if not open_without_passphrase:
-            raise ServeError(
-                f"balance-desk serve: {host} can be reached from other machines, "
-                "so an access passphrase is needed (--passphrase-file FILE or the "
-                "environment variable BALANCE_DESK_PASSPHRASE)"
-            )
-        out(
-            f"WARNING: balance-desk is served on {host} WITHOUT a passphrase: anyone who can "
-            "reach this address can see the cases, join every room whose link they have, and "
-            "write notes."
-        )
+    passphrase = _passphrase(host, passphrase_file, env, open_without_passphrase, out)
     store_path = store or default_store_path()
     try:
         per_minute = settings.whole_number("BALANCE_DESK_NOTES_PER_MINUTE", env)
@@ -309,16 +352,7 @@ def serve(
         hub = Hub(open_store(store_path), RoomLimits(notes_per_minute=per_minute))
     except StoreError as exc:
         raise ServeError(f"balance-desk serve: {exc}") from None
-    results, archive_problems = {}, []
-    if archives:
-        from .desk.archive import load_result
-
-        for a in archives:
-            try:
-                results[os.path.basename(a)] = load_result(a)
-            except ValueError as exc:
-                archive_problems.append(str(exc))
-                out(f"balance-desk: not serving {a}: {exc}")
+    results, archive_problems = _load_archives(archives, out)
     paths = case_paths(files, cases_dir)
     if not paths:
         raise ServeError("balance-desk serve: no case files found")
@@ -376,21 +410,7 @@ def serve(
         allowed = server._tornado.websocket_origins  # Bokeh's own set; it has no setter
         allowed.clear()
         allowed.update(_origins(host, port, extra_origins))
-    logging.basicConfig(level=logging.INFO, format="%(asctime)s %(levelname)s %(message)s")
-    for name in ("tornado.access", "bokeh.server.views.ws", "bokeh", "tornado", "panel"):
-        logging.getLogger(name).addFilter(HideRoomKeys())
-    for handler in logging.getLogger().handlers:
-        handler.addFilter(HideRoomKeys())
-    for name in ("app", "balance_core"):  # every logger of ours is named by its module
-        logging.getLogger(name).setLevel(log_level)  # DEBUG: page timings
-    logging.getLogger("panel.util").setLevel(logging.ERROR)  # it warns of every odd link value
-    try:  # kill -USR1 prints every thread's stack to stderr (a stuck server shows where)
-        import faulthandler
-        import signal
-
-        faulthandler.register(signal.SIGUSR1, all_threads=True)
-    except (AttributeError, ValueError, OSError):
-        pass
+    _set_up_logging(log_level)
     out(f"balance-desk: review rooms are kept in {store_path}")
     if results:
         out(

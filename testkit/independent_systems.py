@@ -78,20 +78,7 @@ def closed_extrema(
     f = sign * np.asarray(z, dtype=np.float64)
     ny, nx = f.shape
     valid = np.isfinite(f)
-    edge = np.zeros((ny, nx), dtype=bool)
-    for r in (0, ny - 1):
-        if r not in joined:
-            edge[r, :] = True
-    if not periodic:
-        edge[:, 0] = edge[:, -1] = True
-    for r, c in zip(*np.nonzero(~valid)):
-        for dr in (-1, 0, 1):
-            for dc in (-1, 0, 1):
-                rr, cc = r + dr, c + dc
-                if periodic:
-                    cc %= nx
-                if 0 <= rr < ny and 0 <= cc < nx:
-                    edge[rr, cc] = True
+    edge = _edge_of_data(valid, periodic, joined)
     earth = 4 * math.pi * (radius / 1e3) ** 2
     full_cols = (1 << nx) - 1
     parent = {}
@@ -146,15 +133,7 @@ def closed_extrema(
             "edge": bool(edge[r, c]),
             "failed": False,
         }
-        nbs = []
-        if r > 0:
-            nbs.append((r - 1) * nx + c)
-        if r < ny - 1:
-            nbs.append((r + 1) * nx + c)
-        if c > 0 or periodic:
-            nbs.append(r * nx + (c - 1) % nx)
-        if c < nx - 1 or periodic:
-            nbs.append(r * nx + (c + 1) % nx)
+        nbs = _four_neighbours(r, c, ny, nx, periodic)
         if r in joined:
             if r in row_first:
                 nbs.append(row_first[r])
@@ -168,6 +147,47 @@ def closed_extrema(
         if not a["failed"] and bad(a):
             a["failed"] = True
             spill.setdefault(a["cell"], value)
+    return _outer_contours(f, spill, sign, interval, min_depth)
+
+
+def _edge_of_data(valid, periodic, joined):
+    """Where a basin touches the edge: the first and last rows unless a pole, the first and
+    last columns unless global, and the eight neighbours of every point without data."""
+    ny, nx = valid.shape
+    edge = np.zeros((ny, nx), dtype=bool)
+    for r in (0, ny - 1):
+        if r not in joined:
+            edge[r, :] = True
+    if not periodic:
+        edge[:, 0] = edge[:, -1] = True
+    for r, c in zip(*np.nonzero(~valid)):
+        for dr in (-1, 0, 1):
+            for dc in (-1, 0, 1):
+                rr, cc = r + dr, c + dc
+                if periodic:
+                    cc %= nx
+                if 0 <= rr < ny and 0 <= cc < nx:
+                    edge[rr, cc] = True
+    return edge
+
+
+def _four_neighbours(r, c, ny, nx, periodic):
+    """The flat indices of a point's 4-connected neighbours (across the seam when global)."""
+    nbs = []
+    if r > 0:
+        nbs.append((r - 1) * nx + c)
+    if r < ny - 1:
+        nbs.append((r + 1) * nx + c)
+    if c > 0 or periodic:
+        nbs.append(r * nx + (c - 1) % nx)
+    if c < nx - 1 or periodic:
+        nbs.append(r * nx + (c + 1) % nx)
+    return nbs
+
+
+def _outer_contours(f, spill, sign, interval, min_depth):
+    """Each basin's outermost closed contour (the highest multiple of the interval at or
+    below its spill value), kept when at least ``min_depth`` above its minimum."""
     out = []
     ci = float(interval)
     depth_min = 0.5 * ci if min_depth is None else float(min_depth)
