@@ -15,7 +15,7 @@ io layer adds the case name, level and valid time).
 from __future__ import annotations
 
 import dataclasses
-from typing import Any
+from typing import Any, TypedDict
 
 import numpy as np
 
@@ -47,6 +47,7 @@ from .verdict import (
     CANDIDATES,
     Thresholds,
     Verdict,
+    VerdictDict,
     classify_budget,
     imbalance_ratios,
     near_ground,
@@ -123,6 +124,47 @@ class LevelDiagnostics:
     def rossby_local(self):
         """|zeta / f| (NaN in the tropical mask)."""
         return np.abs(self.vorticity * self.grid.inverse_f)
+
+
+class TermEntry(TypedDict):
+    """One term of a region's budget: its area-weighted RMS magnitude (m s-2, None where it
+    is not available) and components, and its a priori estimate."""
+
+    name: str
+    magnitude: float | None
+    x_rms: float | None
+    y_rms: float | None
+    estimate: Any
+    estimate_by_construction: bool
+    note: str | None
+
+
+class BoxReport(TypedDict):
+    """What :func:`box_report` says about one region at one level (see its docstring);
+    the JSON, CSV, sheet and page all read these keys."""
+
+    points: int
+    region_points: int
+    valid_share: float
+    masked_points: int
+    invalid: dict[str, int]
+    terms: list[TermEntry]
+    derived: list[TermEntry]
+    winds: dict[str, Any]
+    numbers: dict[str, Any]
+    scales: dict[str, float] | None
+    scales_recipe: dict[str, str]
+    resolution: dict[str, Any] | None
+    ground: dict[str, Any] | None
+    balances: dict[str, float | None]
+    balances_tested: dict[str, bool]
+    curvature: str | None
+    shares: dict[str, float | None]
+    verdict: VerdictDict
+    explain: dict[str, str]
+    ageostrophic_parts: dict[str, Any]
+    residual_causes: list[Any]
+    notes: list[str]
 
 
 def level_diagnostics(
@@ -349,7 +391,7 @@ def box_report(
     thresholds: Thresholds = Thresholds(),
     nu: float = C.EDDY_VISCOSITY,
     flow_length=None,
-) -> dict:
+) -> BoxReport:
     """Reduce one level's diagnostics over a region.
 
     Parameters
@@ -545,7 +587,7 @@ def _with_resolution(verdict: Verdict, resolution, invalid, th) -> Verdict:
     return verdict
 
 
-def _entry(name, t, sub, ok, scales) -> dict:
+def _entry(name, t, sub, ok, scales) -> TermEntry:
     """One term's RMS magnitude and components, its a priori estimate and whether that
     estimate agrees by construction."""
     est = _estimate(name, scales)
@@ -842,7 +884,7 @@ class _GridWindow:
         self.radius = grid.radius
 
 
-def geostrophic_only_report(grid: Grid, ug, vg, inside, why: str) -> dict:
+def geostrophic_only_report(grid: Grid, ug, vg, inside, why: str) -> BoxReport:
     """The report of a region where no budget can be made (no wind in the data): the
     geostrophic wind's RMS speed over the region, and a verdict of "none" saying ``why``.
 
@@ -854,18 +896,16 @@ def geostrophic_only_report(grid: Grid, ug, vg, inside, why: str) -> dict:
     rep = _empty_report(inside)
     gstat = weighted_stats(np.hypot(ug, vg), grid, ok, quantiles=False)
     n, total = int(ok.sum()), int(inside.sum())
-    rep.update(
-        points=n,
-        valid_share=n / max(total, 1),
-        masked_points=total - n,
-        invalid={"below_ground": 0, "pole_row": 0, "missing_data": total - n},
-        winds={
-            "speed_rms": None,
-            "geostrophic_speed_rms": gstat.rms,
-            "ageostrophic_fraction_median": None,
-            "gradient_speed_rms": None,
-        },
-    )
+    rep["points"] = n
+    rep["valid_share"] = n / max(total, 1)
+    rep["masked_points"] = total - n
+    rep["invalid"] = {"below_ground": 0, "pole_row": 0, "missing_data": total - n}
+    rep["winds"] = {
+        "speed_rms": None,
+        "geostrophic_speed_rms": gstat.rms,
+        "ageostrophic_fraction_median": None,
+        "gradient_speed_rms": None,
+    }
     rep["verdict"] = {
         "balance": "none",
         "text": f"No verdict: {why}, so no momentum budget "
@@ -879,7 +919,7 @@ def geostrophic_only_report(grid: Grid, ug, vg, inside, why: str) -> dict:
     return rep
 
 
-def _empty_report(inside, th: Thresholds = Thresholds(), invalid=None, verdict=None) -> dict:
+def _empty_report(inside, th: Thresholds = Thresholds(), invalid=None, verdict=None) -> BoxReport:
     n = int(np.count_nonzero(inside))
     invalid = invalid or {"below_ground": 0, "pole_row": 0, "missing_data": n}
     text = (

@@ -38,7 +38,7 @@ configurable by every caller.
 from __future__ import annotations
 
 import dataclasses
-from typing import Any
+from typing import Any, TypedDict
 
 import numpy as np
 
@@ -156,6 +156,17 @@ class Thresholds:
     resolved_ratio: float = 1.5
 
 
+class VerdictDict(TypedDict):
+    """A verdict as reports and files carry it (:meth:`Verdict.as_dict`)."""
+
+    balance: str
+    text: str
+    why: str
+    tested: dict[str, bool]  # candidate -> whether it could be tested here
+    not_tested: dict[str, str]  # candidate -> why not
+    cautions: list[str]
+
+
 @dataclasses.dataclass(frozen=True)
 class Verdict:
     """A balance class with its plain-language sentence, why it was chosen, and the evidence.
@@ -172,7 +183,7 @@ class Verdict:
     tested: dict = dataclasses.field(default_factory=dict)
     cautions: tuple = ()
 
-    def as_dict(self) -> dict:
+    def as_dict(self) -> VerdictDict:
         return {
             "balance": self.balance,
             "text": self.text,

@@ -206,3 +206,32 @@ def test_every_package_the_code_imports_is_declared(folder):
         if not dists & declared:
             missing[module] = path
     assert not missing, f"imported but not declared in pyproject.toml: {missing}"
+
+
+def test_every_report_carries_the_keys_its_type_names():
+    """BoxReport and TermEntry (balance_core.report) are what the outputs read: a key added
+    to one kind of report and not to its type (or the other kinds) fails here."""
+    import os
+    import typing
+
+    import numpy as np
+
+    from balance_core.io import analyze_case, diagnostics_for, open_case
+    from balance_core.report import BoxReport, TermEntry, box_report, geostrophic_only_report
+    from balance_core.verdict import VerdictDict
+
+    case = open_case(os.path.join(os.path.dirname(__file__), "..", "sample_cases", "sea_breeze.nc"))
+    shape = case.grid.lon.shape
+    full = analyze_case(case, 850)
+    empty = box_report(diagnostics_for(case, 0, 0), np.zeros(shape, bool))
+    assert empty["points"] == 0 and full["points"] > 0
+    only_g = geostrophic_only_report(
+        case.grid, np.ones(shape), np.ones(shape), np.ones(shape, bool), "no wind"
+    )
+    names = set(typing.get_type_hints(BoxReport))
+    for rep in (full, empty, only_g):
+        assert names <= set(rep), names - set(rep)
+        assert set(typing.get_type_hints(VerdictDict)) == set(rep["verdict"])
+    assert set(only_g) == names
+    for entry in full["terms"] + full["derived"]:
+        assert set(entry) == set(typing.get_type_hints(TermEntry))

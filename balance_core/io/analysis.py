@@ -368,7 +368,7 @@ def analyze_systems(
                 flow_length=_system_length(s, sea),
             )
         else:
-            rep = geostrophic_only_report(case.grid, ug, vg, s.region, why_not)
+            rep = dict(geostrophic_only_report(case.grid, ug, vg, s.region, why_not))
         if _crosses_equator(s.region):
             rep = _no_verdict(
                 rep,
