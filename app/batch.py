@@ -27,6 +27,7 @@ import math
 import os
 import sys
 import time
+from typing import TypedDict
 
 from balance_core import settings
 
@@ -51,6 +52,32 @@ KEY_COLUMNS = ("file", "member", "valid_time", "level_hpa", "region")
 
 class BatchError(Exception):
     """Bad input to a batch run: one sentence, exit status 2."""
+
+
+class RunError(TypedDict):
+    """One row of a run's errors table (RESULT.errors.csv): a file that could not be
+    opened (no member, time or level), or a piece that failed or was lost."""
+
+    file: str  # the file's name, without its folder
+    member: str | None
+    time_index: int | None
+    level_hpa: float | None
+    error: str
+
+
+#: the errors table's columns, in order
+ERROR_COLUMNS = tuple(RunError.__annotations__)
+
+
+def run_error(path, task, sentence) -> RunError:
+    """The error row of ``path`` (``task`` None: the whole file) saying ``sentence``."""
+    return {
+        "file": os.path.basename(path),
+        "member": None if task is None else str(task.member),
+        "time_index": None if task is None else task.time_index,
+        "level_hpa": None if task is None else task.level_hpa,
+        "error": sentence,
+    }
 
 
 @dataclasses.dataclass(frozen=True)
@@ -148,7 +175,15 @@ def _open(path, member, min_lat):
     return cache[key]
 
 
-def plan_file(path, levels, *, boxes=(), systems=False, member="0", min_lat=10.0) -> dict:
+class FilePlan(TypedDict):
+    """One file's part of a run (:func:`plan_file`)."""
+
+    tasks: list[Task]
+    errors: list[RunError]
+    checksum: str | None  # SHA-256 of the file, None when it could not be opened
+
+
+def plan_file(path, levels, *, boxes=(), systems=False, member="0", min_lat=10.0) -> FilePlan:
     """One file's part of a run: {"tasks": [...], "errors": [...], "checksum": str or None}.
 
     The file is opened through the worker's case cache with the member its first task
@@ -159,30 +194,14 @@ def plan_file(path, levels, *, boxes=(), systems=False, member="0", min_lat=10.0
 
     from balance_core.io import CaseError, open_case
 
-    def failed(sentence):
-        return {
-            "tasks": [],
-            "checksum": None,
-            "errors": [
-                {
-                    "file": path,
-                    "member": None,
-                    "valid_time": None,
-                    "level_hpa": None,
-                    "error": sentence,
-                }
-            ],
-        }
+    def failed(sentence) -> FilePlan:
+        return {"tasks": [], "checksum": None, "errors": [run_error(path, None, sentence)]}
 
+    members: list[int | str | None]
     try:
         if member in ("all", "mean"):
             case = open_case(path, min_lat=min_lat)
-        else:
-            case = None
-        if member == "all":
-            members = list(range(case.member_count))
-        elif member == "mean":
-            members = ["mean"]
+            members = list(range(case.member_count)) if member == "all" else ["mean"]
         else:
             members = [int(member)]
             case = _open(path, members[0], min_lat)
@@ -397,15 +416,7 @@ def combine(out, tasks, checksums) -> tuple:
         with open(path, encoding="utf-8") as fh:
             part = json.load(fh)
         if part.get("error"):
-            errors.append(
-                {
-                    "file": os.path.basename(task.path),
-                    "member": str(task.member),
-                    "time_index": task.time_index,
-                    "level_hpa": task.level_hpa,
-                    "error": part["error"],
-                }
-            )
+            errors.append(run_error(task.path, task, part["error"]))
         for r in part["rows"]:
             r["file_sha256"] = checksums.get(r["path"])
             rows.append(r)
@@ -438,7 +449,7 @@ def _write_table(path, rows):
 
 def summary(rows) -> str:
     """Verdict counts by level and region."""
-    counts = {}
+    counts: dict[tuple, dict[str, int]] = {}
     for r in rows:
         key = (r["level_hpa"], r["region"] if not r.get("system_kind") else r["system_kind"])
         counts.setdefault(key, {}).setdefault(r["verdict"], 0)
@@ -503,15 +514,13 @@ def worker_environment() -> dict:
     return {str(k): str(v) for k, v in env.items()}
 
 
-def _not_analysed(path, task, exc, what="the workers running it died"):
-    return {
-        "file": os.path.basename(path),
-        "member": None if task is None else str(task.member),
-        "time_index": None if task is None else task.time_index,
-        "level_hpa": None if task is None else task.level_hpa,
-        "error": f"not analyzed: {what} ({type(exc).__name__}; a worker over its memory "
+def _not_analysed(path, task, exc, what="the workers running it died") -> RunError:
+    return run_error(
+        path,
+        task,
+        f"not analyzed: {what} ({type(exc).__name__}; a worker over its memory "
         "limit is restarted by dask); run again to try it again",
-    }
+    )
 
 
 def run_batch(
@@ -587,9 +596,7 @@ def run_batch(
     err_path = os.path.splitext(out)[0] + ".errors.csv"
     import pandas as pd
 
-    pd.DataFrame(errors, columns=["file", "member", "time_index", "level_hpa", "error"]).to_csv(
-        err_path, index=False
-    )
+    pd.DataFrame(errors, columns=list(ERROR_COLUMNS)).to_csv(err_path, index=False)
     say(summary(rows))
     say(f"balance-desk batch: {len(rows)} rows in {out}; {len(errors)} errors in {err_path}")
     return {
@@ -612,7 +619,7 @@ class _Run:
     worker that planned it.
     """
 
-    def __init__(self, client, files, folder, opts, err):
+    def __init__(self, client, files, folder, opts, err) -> None:
         self.client, self.files, self.folder = client, files, folder
         self.opts, self.err = opts, err
         self.queue = list(enumerate(files))
@@ -620,10 +627,10 @@ class _Run:
         self.futures: list = []
         self.plan_of: dict = {}
         self.run_of: dict = {}
-        self.errors: list = []
-        self.lost: list = []
-        self.tasks: list = []
-        self.checksums: dict = {}
+        self.errors: list[RunError] = []
+        self.lost: list[RunError] = []
+        self.tasks: list[Task] = []
+        self.checksums: dict[str, str | None] = {}
         self.done = self.failed = self.skipped = self.planned = 0
         self.t0 = time.monotonic()
         self.last_said = 0.0

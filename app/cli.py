@@ -171,7 +171,19 @@ def build_parser() -> argparse.ArgumentParser:
     )
     parser.add_argument("--debug", action="store_true", help="show tracebacks")
     sub = parser.add_subparsers(dest="command", parser_class=_Parser, metavar="COMMAND")
+    _add_scales(sub)
+    _add_analyze(sub)
+    _add_systems(sub)
+    _add_batch(sub)
+    _add_cases(sub)
+    _add_serve(sub)
+    _add_rooms(sub)
+    _add_verify(sub)
+    return parser
 
+
+def _add_scales(sub) -> None:
+    """The scales command's options."""
     p = sub.add_parser(
         "scales",
         help="a priori scale analysis of the momentum equations",
@@ -216,6 +228,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--format", choices=("table", "json"), default="table")
     p.set_defaults(func=cmd_scales)
 
+
+def _add_analyze(sub) -> None:
+    """The analyze command's options."""
     p = sub.add_parser(
         "analyze",
         help="the momentum budget of a box at one level and time",
@@ -260,6 +275,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--format", choices=("table", "json", "csv"), default="table")
     p.set_defaults(func=cmd_analyze)
 
+
+def _add_systems(sub) -> None:
+    """The systems command's options."""
     p = sub.add_parser(
         "systems",
         help="the lows, highs and jet streaks of a level, each with its balance",
@@ -291,6 +309,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--format", choices=("table", "json", "csv"), default="table")
     p.set_defaults(func=cmd_systems)
 
+
+def _add_batch(sub) -> None:
+    """The batch command's options."""
     p = sub.add_parser(
         "batch",
         help="the report of boxes or systems over whole archives, on dask.distributed",
@@ -340,6 +361,9 @@ def build_parser() -> argparse.ArgumentParser:
     _reading_options(p, members="all|N|mean", budget=False)
     p.set_defaults(func=cmd_batch)
 
+
+def _add_cases(sub) -> None:
+    """The cases command's options."""
     p = sub.add_parser(
         "cases",
         help="list the bundled sample cases",
@@ -349,6 +373,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--format", choices=("table", "json"), default="table")
     p.set_defaults(func=cmd_cases)
 
+
+def _add_serve(sub) -> None:
+    """The serve command's options."""
     p = sub.add_parser(
         "serve",
         help="start the dashboard in the browser",
@@ -407,6 +434,9 @@ def build_parser() -> argparse.ArgumentParser:
     )
     p.set_defaults(func=cmd_serve)
 
+
+def _add_rooms(sub) -> None:
+    """The rooms command's options."""
     p = sub.add_parser(
         "rooms",
         help="review rooms: create one, list them, export notes",
@@ -444,6 +474,9 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--store", default=None, metavar="PATH")
     r.set_defaults(func=cmd_rooms_export)
 
+
+def _add_verify(sub) -> None:
+    """The verify command's options."""
     p = sub.add_parser(
         "verify",
         help="run the reference checks on this machine",
@@ -452,7 +485,6 @@ def build_parser() -> argparse.ArgumentParser:
     )
     p.add_argument("--format", choices=("table", "json"), default="table")
     p.set_defaults(func=cmd_verify)
-    return parser
 
 
 # -- scales --------------------------------------------------------------------------

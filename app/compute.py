@@ -26,6 +26,7 @@ from .library import SEA_LEVEL_INDEX
 from .state import (
     SEA_LEVEL,
     SHEET_SCALES,
+    URL_PARAMS,
     VECTORS,
     ViewState,
     field_label,
@@ -424,19 +425,8 @@ def box_data(library, state: ViewState, thresholds: Thresholds = Thresholds()) -
 
 
 #: what a chart and a region's report depend on (the rest of the state does not change them)
-CHART_KEYS = (
-    "case",
-    "level",
-    "time",
-    "field",
-    "vectors",
-    "smooth_km",
-    "min_lat",
-    "region",
-    "projection",
-    "height_units",
-    "wind_units",
-)
+#: (every parameter of a link but the preset and the sheet, which change only the words)
+CHART_KEYS = tuple(p for p in URL_PARAMS if p not in ("preset", "sheet"))
 BOX_KEYS = ("case", "level", "time", "smooth_km", "min_lat", "region")
 
 

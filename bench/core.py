@@ -2,7 +2,10 @@
 
 A synthetic global 0.25-degree level (721 x 1440), three times and three
 pressure levels (the budget needs neighbours in both), in float64 and float32.
-Every timing is the median of several runs. The last lines are
+Each of our timings alternates with the reference's, ``--repeat`` pairs of runs one
+after the other: a shared machine's speed drifts by tens of per cent within minutes,
+and a pair run back to back sees the same machine. A ratio is the median of the pairs'
+ratios; its spread (lowest to highest pair) is printed beside it. The last lines are
 
     ratio geostrophic_wind/metpy VALUE          goal <= 0.2
     ratio full_budget/metpy_geostrophic_wind VALUE   goal <= 1.0
@@ -54,15 +57,28 @@ def synthetic_level(dtype=np.float64, seed=1):
     return lat, lon, Fields(u, v, z, [70000.0, 50000.0, 30000.0], [0.0, 10800.0, 21600.0], om, t)
 
 
-def median_ms(fn, repeat):
-    fn()  # warm up (first-touch memory, caches)
-    times = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        out = fn()
-        times.append(time.perf_counter() - t0)
-        del out
-    return 1e3 * statistics.median(times)
+def _once_ms(fn):
+    t0 = time.perf_counter()
+    out = fn()
+    ms = 1e3 * (time.perf_counter() - t0)
+    del out
+    return ms
+
+
+def paired(ours, reference, repeat):
+    """Alternate ``reference`` and ``ours``, ``repeat`` pairs after one warm-up run of each
+    (first-touch memory, caches). Returns (median ms of ours, median ms of the reference,
+    the median of the pairs' ratios, the lowest and the highest ratio)."""
+    ours(), reference()
+    pairs = [(_once_ms(reference), _once_ms(ours)) for _ in range(repeat)]
+    ratios = sorted(o / r for r, o in pairs)
+    return (
+        statistics.median(o for _, o in pairs),
+        statistics.median(r for r, _ in pairs),
+        statistics.median(ratios),
+        ratios[0],
+        ratios[-1],
+    )
 
 
 def peak_bytes(fn):
@@ -103,21 +119,34 @@ def main(argv=None):
             warnings.simplefilter("ignore")  # division by f = 0 on the equator row
             return mpcalc.geostrophic_wind(zq, dx=dx, dy=dy, latitude=latq)
 
-    rows = []
-    t_metpy = median_ms(metpy_geo, args.repeat)
-    rows.append(("metpy geostrophic_wind (plain arrays with units)", t_metpy))
-    t_geo = median_ms(lambda: geostrophic_wind(grid, z), args.repeat)
-    rows.append(("balance_core geostrophic_wind float64", t_geo))
-    t_geo32 = median_ms(lambda: geostrophic_wind(grid, f32.height[1, 1]), args.repeat)
-    rows.append(("balance_core geostrophic_wind float32 input", t_geo32))
-    t_bud = median_ms(lambda: momentum_budget(grid, f64, 1, 1, views=False), args.repeat)
-    rows.append(("full budget, every term of both equations, float64", t_bud))
-    t_bud32 = median_ms(lambda: momentum_budget(grid, f32, 1, 1, views=False), args.repeat)
-    rows.append(("full budget, float32 input", t_bud32))
-    t_views = median_ms(lambda: momentum_budget(grid, f64, 1, 1), args.repeat)
-    rows.append(("full budget plus derived views (DV/Dt, along-stream, centripetal)", t_views))
-    t_one = median_ms(lambda: momentum_budget(grid, f64, 1, 1, views=False, workers=1), args.repeat)
-    rows.append(("full budget in one thread", t_one))
+    ours = {
+        "geostrophic_wind": (
+            "balance_core geostrophic_wind float64",
+            lambda: geostrophic_wind(grid, z),
+        ),
+        "geostrophic_wind_float32": (
+            "balance_core geostrophic_wind float32 input",
+            lambda: geostrophic_wind(grid, f32.height[1, 1]),
+        ),
+        "full_budget": (
+            "full budget, every term of both equations, float64",
+            lambda: momentum_budget(grid, f64, 1, 1, views=False),
+        ),
+        "full_budget_float32": (
+            "full budget, float32 input",
+            lambda: momentum_budget(grid, f32, 1, 1, views=False),
+        ),
+        "full_budget_with_views": (
+            "full budget plus derived views (DV/Dt, along-stream, centripetal)",
+            lambda: momentum_budget(grid, f64, 1, 1),
+        ),
+        "full_budget_one_thread": (
+            "full budget in one thread",
+            lambda: momentum_budget(grid, f64, 1, 1, views=False, workers=1),
+        ),
+    }
+    timed = {key: paired(fn, metpy_geo, args.repeat) for key, (_, fn) in ours.items()}
+    t_metpy = statistics.median(t[1] for t in timed.values())
 
     # input: the slices the budget at (time 1, level 1) reads: u and v at five
     # (time, level) pairs, Z, omega and T at one
@@ -127,19 +156,27 @@ def main(argv=None):
     peak32 = peak_bytes(lambda: momentum_budget(grid, f32, 1, 1))
     input32 = (2 * 5 + 3) * f32.u[0, 0].nbytes
 
-    print(f"grid 721 x 1440, 3 times x 3 levels, {os.cpu_count()} cores, median of {args.repeat}")
-    for name, ms in rows:
-        print(f"  {name:<70} {ms:8.1f} ms")
+    print(
+        f"grid 721 x 1440, 3 times x 3 levels, {os.cpu_count()} cores, {args.repeat} pairs "
+        "of runs (ours, then MetPy's geostrophic wind) for each line"
+    )
+    print(f"  {'metpy geostrophic_wind (plain arrays with units)':<70} {t_metpy:8.1f} ms")
+    for key, (name, _) in ours.items():
+        ms, _, ratio, low, high = timed[key]
+        print(f"  {name:<70} {ms:8.1f} ms  x{ratio:.3f} ({low:.3f} to {high:.3f})")
     print(
         f"  peak traced memory of the budget with views, float64: {peak / 2**20:.0f} MiB "
         f"for {input_bytes / 2**20:.0f} MiB of input slices"
     )
     print(f"  same with float32 input: {peak32 / 2**20:.0f} MiB for {input32 / 2**20:.0f} MiB")
-    print(f"ratio full_budget_with_views/metpy_geostrophic_wind {t_views / t_metpy:.3f}")
-    print(f"ratio full_budget_float32/metpy_geostrophic_wind {t_bud32 / t_metpy:.3f}")
+    ratio = {key: t[2] for key, t in timed.items()}
+    print(
+        f"ratio full_budget_with_views/metpy_geostrophic_wind {ratio['full_budget_with_views']:.3f}"
+    )
+    print(f"ratio full_budget_float32/metpy_geostrophic_wind {ratio['full_budget_float32']:.3f}")
     print(f"ratio peak_memory_float32/input {peak32 / input32:.2f}")
-    print(f"ratio geostrophic_wind/metpy {t_geo / t_metpy:.3f}")
-    print(f"ratio full_budget/metpy_geostrophic_wind {t_bud / t_metpy:.3f}")
+    print(f"ratio geostrophic_wind/metpy {ratio['geostrophic_wind']:.3f}")
+    print(f"ratio full_budget/metpy_geostrophic_wind {ratio['full_budget']:.3f}")
     print(f"ratio peak_memory/input {peak / input_bytes:.2f}")
     return 0
 

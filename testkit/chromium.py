@@ -12,6 +12,8 @@ import shutil
 
 import pytest
 
+from .serving import HANG_MS
+
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 
 #: no sandbox (root in a container), no GPU, nothing fetched in the background
@@ -98,7 +100,7 @@ def settled(
     after: int = -1,
     tab: int | None = None,
     room_after: int = -1,
-    timeout_ms: float = 120_000,
+    timeout_ms: float = HANG_MS,
 ) -> int:
     """Wait until the page has settled: it has started its work in the browser, no view it
     asked for is still on its way, and it has followed more than ``after`` changes (pass
@@ -115,10 +117,17 @@ def settled(
     return int(handle.json_value())
 
 
-def open_tab(page, title: str, timeout_ms: float = 120_000) -> int:
+def open_tab(page, title: str, timeout_ms: float = HANG_MS) -> int:
     """Open the tab called ``title`` below the chart and wait until the server has opened
     it too and the page has settled (its parts are drawn when it is opened)."""
     from app.desk.below import TAB_TITLES
 
     page.locator(f"text={title}").first.click()
     return settled(page, tab=list(TAB_TITLES.values()).index(title), timeout_ms=timeout_ms)
+
+
+def address(page) -> str:
+    """The page's address as the browser has it now. ``page.url`` is Playwright's copy, which
+    follows a change the page makes to its own address (history.replaceState) only while
+    Playwright is being called: a poll on ``page.url`` alone never sees the change."""
+    return page.evaluate("() => window.location.href")

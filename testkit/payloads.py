@@ -38,3 +38,25 @@ PAYLOADS = [
     '<div style="position:fixed;inset:0;background:red">covered</div>',
     "<form action=//evil.invalid><input name=q></form>",
 ]
+
+#: elements and attributes that would mean a payload became markup (scripts run by
+#: Bokeh itself are allowed, so "script" is not among them)
+INJECTED = (
+    "iframe",
+    "marquee",
+    "object",
+    "video",
+    "form",
+    "math",
+    "[onerror]",
+    "[onload]",
+    "[ontoggle]",
+    "[onfocus]",
+    "[onstart]",
+    "a[href^=javascript]",
+)
+
+
+def injected(page) -> list[str]:
+    """The selectors of :data:`INJECTED` that match something on a Playwright page."""
+    return [sel for sel in INJECTED if page.locator(sel).count()]

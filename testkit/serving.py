@@ -17,6 +17,12 @@ ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
 
 #: the line a server prints once it listens, with the port it was given
+#: How long any wait of a test may last (s): a bound that only a hung run reaches, never a
+#: speed goal. A page under a full suite on two busy cores has taken over a minute to redraw
+#: everything after a change of units; nothing that works takes three.
+HANG_S = 180.0
+HANG_MS = 1000 * HANG_S
+
 SERVING = re.compile(r"balance-desk: serving \d+ case\(s\) at http://[^\s/]+:(\d+)/")
 
 

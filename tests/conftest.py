@@ -24,3 +24,12 @@ import pytest
 @pytest.fixture
 def rng():
     return np.random.default_rng(20261201)
+
+
+@pytest.fixture(scope="module")
+def browser():
+    """A headless Chromium for the module's browser tests (testkit.chromium.launched)."""
+    from testkit.chromium import launched
+
+    with launched() as b:
+        yield b

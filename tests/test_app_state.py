@@ -11,6 +11,8 @@ import pytest
 from app import compute
 from app.library import CaseLibrary
 from app.state import URL_PARAMS, ViewState
+from testkit import samples
+from testkit.serving import HANG_S
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 SAMPLES = sorted(glob.glob(os.path.join(HERE, "..", "sample_cases", "*.nc")))
@@ -306,7 +308,7 @@ def test_a_page_fetched_while_the_pool_is_busy_starts_its_work_on_connecting(lib
     page.start()
     from testkit.serving import wait_until
 
-    wait_until(lambda: page.report is not None, 60, what="the page's report")
+    wait_until(lambda: page.report is not None, HANG_S, what="the page's report")
     assert page.report["points"] > 0
 
 
@@ -446,11 +448,7 @@ def test_the_chart_contours_at_the_interval_the_systems_are_found_with(library):
 
 
 def test_a_jet_streak_chosen_on_real_output_gives_its_flow_aligned_region():
-    path = os.path.join(HERE, "..", ".cache", "pygrib-samples", "gfs.t12z.pgrbf120.2p5deg.grib2")
-    if not os.path.exists(path):
-        if os.environ.get("CI"):
-            pytest.fail(f"{path} is missing: make test fetches it", pytrace=False)
-        pytest.skip("the GFS sample is missing")
+    path = samples.need(samples.GFS)
     from app.desk.page import build_page
 
     lib = CaseLibrary([path])
@@ -498,11 +496,7 @@ def test_a_file_with_heights_and_no_wind_is_shown_with_its_geostrophic_wind_and_
     # the ERA5 sample carries geopotential and temperature only: the page draws the
     # heights with the geostrophic wind, lists the lows and highs, and says that no budget
     # can be made -- nothing is refused that can be answered
-    path = os.path.join(HERE, "..", ".cache", "cfgrib-samples", "era5-levels-members.grib")
-    if not os.path.exists(path):
-        if os.environ.get("CI"):
-            pytest.fail(f"{path} is missing: make test fetches it", pytrace=False)
-        pytest.skip("the ERA5 sample is missing")
+    path = samples.need(samples.ERA5)
     from app.desk.page import build_page
 
     lib = CaseLibrary([path])

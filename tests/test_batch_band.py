@@ -12,9 +12,11 @@ import os
 
 import pytest
 
+from testkit import samples
+
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-GFS = os.path.join(ROOT, ".cache", "pygrib-samples", "gfs.t12z.pgrbf120.2p5deg.grib2")
-ETA = os.path.join(ROOT, ".cache", "pygrib-samples", "eta.grb")
+GFS = samples.GFS
+ETA = samples.ETA
 SAMPLE = os.path.join(ROOT, "sample_cases", "ocean_cyclone.nc")
 
 PIECES = [
@@ -49,10 +51,7 @@ def _same(a, b):
 def test_a_piece_on_a_band_of_rows_equals_analyze_on_the_whole_grid(
     path, member, t, level, boxes, banded
 ):
-    if not os.path.exists(path):
-        if os.environ.get("CI"):
-            pytest.fail(f"{path} is missing: make test fetches it", pytrace=False)
-        pytest.skip(f"{path} is missing (make test fetches it)")
+    samples.need(path)
     from app.batch import Task, _band, flatten, run_task
     from balance_core.io import analyze_case, open_case
 

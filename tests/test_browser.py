@@ -12,8 +12,8 @@ import time
 import numpy as np
 import pytest
 
-from testkit.chromium import launched, open_tab, require, settled
-from testkit.serving import start_server, stop_server, wait_until
+from testkit.chromium import address, open_tab, require, settled
+from testkit.serving import HANG_MS, HANG_S, start_server, stop_server, wait_until
 
 pytestmark = pytest.mark.browser
 
@@ -31,23 +31,17 @@ def server():
     assert "Traceback" not in out, out[-3000:]
 
 
-@pytest.fixture(scope="module")
-def browser():
-    with launched() as b:
-        yield b
-
-
 def _page(browser, url):
     page = browser.new_page(viewport={"width": 1800, "height": 1200})
     errors = []
     page.on("pageerror", lambda e: errors.append(str(e)))
     page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
     page.goto(url)
-    page.locator(".bd-chart-title").first.wait_for(timeout=60_000)
+    page.locator(".bd-chart-title").first.wait_for(timeout=HANG_MS)
     return page, errors
 
 
-def _wait_for(page, fn, timeout=60.0):
+def _wait_for(page, fn, timeout=HANG_S):
     """The first true value of ``fn()`` (a condition wait: testkit.serving.wait_until)."""
     return wait_until(fn, timeout, what="the page to change", every=0.25)
 
@@ -105,7 +99,7 @@ def test_drawing_a_box_changes_the_ranking_and_verdict(server, browser):
     after = _wait_for(page, lambda: _verdict_text(page) != before and _verdict_text(page))
     assert after != before
     assert "box" in after
-    _wait_for(page, lambda: "region=box" in page.url)
+    _wait_for(page, lambda: "region=box" in address(page))
     _shot(page, "02_after_drawing_a_box")
     assert errors == [], errors
     page.close()
@@ -135,7 +129,7 @@ def test_sea_level_in_the_level_menu_draws_isobars_and_the_surface_verdict(serve
     _wait_for(page, lambda: page.locator("text=isobars every 4 hPa").count() > 0)
     _wait_for(page, lambda: "Frictional" in _verdict_text(page))
     _wait_for(page, lambda: page.locator("text=found at sea level").count() > 0)
-    assert "level=msl" in page.url
+    _wait_for(page, lambda: "level=msl" in address(page))
     _shot(page, "03b_sea_level")
     assert errors == [], errors
     page.close()
@@ -254,7 +248,7 @@ def _set_box(page, box):
 
 
 def _download(page, label):
-    with page.expect_download(timeout=60_000) as dl:
+    with page.expect_download(timeout=HANG_MS) as dl:
         page.get_by_role("button", name=label).click()
     return dl.value.path()
 
@@ -372,7 +366,9 @@ def test_after_knots_no_number_in_the_page_is_in_metres_per_second(server, brows
     assert WIND_IN_MS.search(_all_text(page))  # the check can fail: m/s before the switch
     before = settled(page)
     page.get_by_role("button", name="kt", exact=True).click()
-    _wait_for(page, lambda: "wind_units=kt" in page.url and re.search(r"\d\s*kt", _all_text(page)))
+    _wait_for(
+        page, lambda: "wind_units=kt" in address(page) and re.search(r"\d\s*kt", _all_text(page))
+    )
     # every part that follows the unit has been redrawn: the page asked for its views again
     # and has shown them all
     settled(page, before)

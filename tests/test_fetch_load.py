@@ -19,6 +19,8 @@ import pytest
 from app.desk.page import EarlyBuilds
 from app.serve import PageLimit, quiet_closed_sockets
 from testkit.serving import (
+    HANG_MS,
+    HANG_S,
     lane_asked,
     lane_idle,
     lane_lines,
@@ -114,7 +116,7 @@ def test_a_fetch_loop_builds_no_pages_and_is_held_back(debug_server):
         lanes = lane_lines(text)
         return text if lanes and all(lane_idle(text, lane) for lane in lanes) else None
 
-    log = wait_until(settled, 120, proc=proc, what="every page's work to end")
+    log = wait_until(settled, HANG_S, proc=proc, what="every page's work to end")
     built = log.count(": box computed")
     # the start-up check and these fetches come from one client (Python's User-Agent): at
     # most its allowance of early-built pages, never one per fetch
@@ -133,11 +135,11 @@ def test_an_opened_page_computes_its_first_screen_once(debug_server):
         page = b.new_page()
         # a view nobody on this server has computed (views are shared between sessions)
         page.goto(url + "?case=ocean_cyclone&level=260&time=2041-01-19T18:00:00Z")
-        page.locator(".bd-verdict").first.wait_for(timeout=60_000)
+        page.locator(".bd-verdict").first.wait_for(timeout=HANG_MS)
         asked = ("level=250 hPa", "time=2041-01-19T18:00:00Z")  # 260 is not a level of it
-        lane = wait_until(lambda: lane_asked(log_text(proc), *asked), 60, proc=proc)
+        lane = wait_until(lambda: lane_asked(log_text(proc), *asked), HANG_S, proc=proc)
         # the page's lane has nothing left to do: every job it was going to run has run
-        wait_until(lambda: lane_idle(log_text(proc), lane), 120, proc=proc, what="idle")
+        wait_until(lambda: lane_idle(log_text(proc), lane), HANG_S, proc=proc, what="idle")
     lines = lane_lines(log_text(proc))[lane]
     assert sum(w.startswith("box computed") for w in lines) == 1, lines
     assert sum(w.startswith("chart computed") for w in lines) == 1, lines

@@ -20,11 +20,12 @@ import pytest
 from app import compute
 from app.library import CaseLibrary
 from app.state import ViewState
+from testkit import samples
 from testkit.makedata import latlon_dataset
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 SAMPLES = sorted(glob.glob(os.path.join(HERE, "..", "sample_cases", "*.nc")))
-ETA = os.path.join(HERE, "..", ".cache", "pygrib-samples", "eta.grb")
+ETA = samples.ETA
 FONT = os.path.join(
     os.path.dirname(matplotlib.__file__), "mpl-data", "fonts", "ttf", "DejaVuSans.ttf"
 )

@@ -37,6 +37,7 @@ from balance_core.systems import (
     jet_threshold,
     match_tracks,
 )
+from testkit import samples
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 G0 = 9.80665
@@ -224,10 +225,10 @@ def _closed_contour_around(z, level, row, col, periodic=False):
 
 
 REAL = [
-    (os.path.join(ROOT, ".cache", "cfgrib-samples", "era5-levels-members.grib"), 50000.0),
-    (os.path.join(ROOT, ".cache", "pygrib-samples", "eta.grb"), 50000.0),
-    (os.path.join(ROOT, ".cache", "pygrib-samples", "gfs.t12z.pgrbf120.2p5deg.grib2"), 50000.0),
-    (os.path.join(ROOT, ".cache", "pygrib-samples", "gfs.t12z.pgrbf120.2p5deg.grib2"), 85000.0),
+    (samples.ERA5, 50000.0),
+    (samples.ETA, 50000.0),
+    (samples.GFS, 50000.0),
+    (samples.GFS, 85000.0),
 ]
 
 
@@ -235,10 +236,7 @@ REAL = [
     "path, level", REAL, ids=[f"{os.path.basename(p)}-{int(lv / 100)}" for p, lv in REAL]
 )
 def test_every_low_found_in_real_data_is_a_minimum_inside_a_closed_contour(path, level):
-    if not os.path.exists(path):
-        if os.environ.get("CI"):
-            pytest.fail(f"{path} is missing: make test fetches it", pytrace=False)
-        pytest.skip(f"{path} is missing (make test fetches it)")
+    samples.need(path)
     from balance_core.io import open_case
 
     case = open_case(path)
@@ -496,11 +494,7 @@ def test_a_streak_moving_one_grid_column_a_step_on_a_ten_degree_grid_is_tracked(
 
 
 def test_a_file_with_heights_and_no_wind_gets_its_lows_and_highs():
-    path = os.path.join(ROOT, ".cache", "cfgrib-samples", "era5-levels-members.grib")
-    if not os.path.exists(path):
-        if os.environ.get("CI"):
-            pytest.fail(f"{path} is missing: make test fetches it", pytrace=False)
-        pytest.skip(f"{path} is missing")
+    path = samples.need(samples.ERA5)
     from balance_core.io import analyze_systems, open_case
 
     case = open_case(path)

@@ -22,18 +22,12 @@ import numpy as np
 import pytest
 
 from testkit import independent_systems as ind
+from testkit import samples
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-GFS = os.path.join(ROOT, ".cache", "pygrib-samples", "gfs.t12z.pgrbf120.2p5deg.grib2")
-ETA = os.path.join(ROOT, ".cache", "pygrib-samples", "eta.grb")
-ERA5 = os.path.join(ROOT, ".cache", "cfgrib-samples", "era5-levels-members.grib")
-
-
-def _need(path):
-    if not os.path.exists(path):
-        if os.environ.get("CI"):
-            pytest.fail(f"{path} is missing: make test fetches it", pytrace=False)
-        pytest.skip(f"{path} is missing (make test fetches it)")
+GFS = samples.GFS
+ETA = samples.ETA
+ERA5 = samples.ERA5
 
 
 def _cfgrib(path, **keys):
@@ -90,7 +84,7 @@ LEVELS_GFS = [85000.0, 50000.0, 25000.0]
 
 @pytest.fixture(scope="module")
 def gfs():
-    _need(GFS)
+    samples.need(GFS)
     from balance_core.io import open_case
 
     gh = _cfgrib(GFS, typeOfLevel="isobaricInhPa", shortName="gh")
@@ -234,8 +228,8 @@ def test_gfs_every_wind_maximum_far_from_closed_centres_is_a_jet_streak(gfs, lev
 
 
 def test_eta_and_era5_closed_systems_are_those_the_flood_finds():
-    _need(ETA)
-    _need(ERA5)
+    samples.need(ETA)
+    samples.need(ERA5)
     from balance_core.io import open_case
     from balance_core.systems import contour_interval, find_closed_extrema
 

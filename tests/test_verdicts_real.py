@@ -20,18 +20,12 @@ import numpy as np
 import pytest
 
 from testkit import independent_balance as ib
+from testkit import samples
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-GFS = os.path.join(ROOT, ".cache", "pygrib-samples", "gfs.t12z.pgrbf120.2p5deg.grib2")
-ETA = os.path.join(ROOT, ".cache", "pygrib-samples", "eta.grb")
-ERA5 = os.path.join(ROOT, ".cache", "cfgrib-samples", "era5-levels-members.grib")
-
-
-def _need(path):
-    if not os.path.exists(path):
-        if os.environ.get("CI"):
-            pytest.fail(f"{path} is missing: make test fetches it", pytrace=False)
-        pytest.skip(f"{path} is missing (make test fetches it)")
+GFS = samples.GFS
+ETA = samples.ETA
+ERA5 = samples.ERA5
 
 
 def _box_mask(lat, lon, box):
@@ -116,7 +110,7 @@ UPPER = [
 
 @pytest.mark.parametrize("name, path, kind, level, box", UPPER, ids=[u[0] for u in UPPER])
 def test_upper_air_verdicts_agree_with_the_independent_winds(name, path, kind, level, box):
-    _need(path)
+    samples.need(path)
     from balance_core.io import analyze_case, open_case
 
     d = _upper_air(path, level, box, kind)
@@ -136,8 +130,8 @@ def test_the_sea_at_sea_level_is_in_frictional_balance_where_the_wind_crosses_th
     # GFS sea level, the North Atlantic and the Southern Ocean; Eta sea level off the US
     # east coast: where the 10 m wind blows across the isobars toward low pressure (median
     # over 10 degrees) and slower than the geostrophic wind, friction is the balance
-    _need(GFS)
-    _need(ETA)
+    samples.need(GFS)
+    samples.need(ETA)
     from balance_core.io import analyze_case, open_case
 
     for path, kind, box in (
@@ -174,7 +168,7 @@ def test_the_ground_over_mountains_is_not_called_frictional_where_the_residual_i
     # but the residual there does not oppose the wind (mean -cos below 0.4): friction is not
     # named (the rule saying no on real data); the flow is geostrophic to 22 % by the
     # independent winds
-    _need(GFS)
+    samples.need(GFS)
     from balance_core.io import analyze_case, open_case
 
     box = (-105, -90, 35, 50)
@@ -188,7 +182,7 @@ def test_the_ground_over_mountains_is_not_called_frictional_where_the_residual_i
 
 
 def test_a_file_without_wind_gets_no_verdict_but_the_geostrophic_wind():
-    _need(ERA5)
+    samples.need(ERA5)
     from balance_core.io import analyze_systems, open_case
 
     out = analyze_systems(open_case(ERA5), 500.0, 0)

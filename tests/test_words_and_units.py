@@ -20,6 +20,7 @@ from app import wording
 from app.library import CaseLibrary
 from app.state import FIELDS, ViewState
 from balance_core.vocabulary import BALANCE_NAMES, PRESET_NAMES, TERM_NAMES
+from testkit import samples
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 SAMPLES = sorted(glob.glob(os.path.join(HERE, "..", "sample_cases", "*.nc")))
@@ -174,7 +175,7 @@ def test_switching_units_on_an_open_page_rewrites_its_numbers(library):
 
 # -- the briefing's outline is the screen's ------------------------------------------------
 
-ETA = os.path.join(HERE, "..", ".cache", "pygrib-samples", "eta.grb")
+ETA = samples.ETA
 
 
 def _png_outline_vs_screen(page, monkeypatch):
@@ -234,11 +235,10 @@ def test_a_drawn_area_on_the_conformal_chart_is_the_briefings_outline(library, m
         _assert_outline_matches(mask2, pts)
 
 
-@pytest.mark.skipif(not os.path.exists(ETA), reason="real GRIB samples not fetched yet")
 def test_the_real_grib_case_has_its_outline_in_the_briefing(monkeypatch):
     from app.desk import Page
 
-    lib = CaseLibrary([ETA])
+    lib = CaseLibrary([samples.need(ETA)])
     st = ViewState(case=lib.good[0], level=500.0)
     st.set_box(-115, -100, 35, 45)
     page = Page(lib, st)

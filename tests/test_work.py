@@ -10,8 +10,9 @@ import threading
 import pytest
 
 from app.work import FairPool
+from testkit.serving import HANG_S
 
-WAIT = 30  # seconds before a test gives up on an event (a hang, not a speed check)
+WAIT = HANG_S  # before a test gives up on an event (a hang, not a speed check)
 
 
 class Log:
@@ -159,7 +160,7 @@ def test_the_pool_says_when_it_is_busy():
     from testkit.serving import wait_until
 
     # the worker counts itself free just after the callback
-    wait_until(lambda: not pool.busy(), 60, what="the pool to be free")
+    wait_until(lambda: not pool.busy(), HANG_S, what="the pool to be free")
 
 
 def test_a_new_session_goes_ahead_of_busy_ones():

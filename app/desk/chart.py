@@ -112,6 +112,11 @@ def _update_source(src, data: dict, geometry=()):
         src.data = data
 
 
+def _labels(source, text="text", **style):
+    """Text at the points of ``source`` (columns x, y and ``text``), 14 px unless told."""
+    return LabelSet(x="x", y="y", text=text, source=source, text_font_size="14px", **style)
+
+
 class Chart(pn.viewable.Viewer):
     """The middle of the page."""
 
@@ -240,12 +245,9 @@ class Chart(pn.viewable.Viewer):
             level="overlay",
         )
         fig.add_layout(
-            LabelSet(
-                x="x",
-                y="y",
+            _labels(
+                self.sys_src,
                 text="label",
-                source=self.sys_src,
-                text_font_size="14px",
                 text_color=INK,
                 text_font_style="bold",
                 x_offset=12,
@@ -268,12 +270,9 @@ class Chart(pn.viewable.Viewer):
             level="overlay",
         )
         fig.add_layout(
-            LabelSet(
-                x="x",
-                y="y",
+            _labels(
+                self.note_src,
                 text="label",
-                source=self.note_src,
-                text_font_size="14px",
                 text_color="#ffffff",
                 text_font_style="bold",
                 x_offset=9,
@@ -285,12 +284,8 @@ class Chart(pn.viewable.Viewer):
         )
         # the contours' labels stay above the region's outline: on its layer, after it
         fig.add_layout(
-            LabelSet(
-                x="x",
-                y="y",
-                text="text",
-                source=self.clab_src,
-                text_font_size="14px",
+            _labels(
+                self.clab_src,
                 text_align="center",
                 text_color=INK,
                 text_baseline="middle",
@@ -300,12 +295,8 @@ class Chart(pn.viewable.Viewer):
             )
         )
         fig.add_layout(
-            LabelSet(
-                x="x",
-                y="y",
-                text="text",
-                source=self.glab_src,
-                text_font_size="14px",
+            _labels(
+                self.glab_src,
                 text_color=INK,
                 background_fill_color="white",
                 background_fill_alpha=0.85,

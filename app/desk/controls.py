@@ -24,6 +24,17 @@ __all__ = ["Controls"]
 W = 250  # the column's width at every screen size
 
 
+def _menu(label, table, value):
+    """A menu of one of the state's tables (value -> the name shown)."""
+    return pn.widgets.Select(
+        label=label,
+        width=W,
+        stylesheets=[WIDGET_CSS],
+        options={shown: v for v, shown in table.items()},
+        value=value,
+    )
+
+
 class Controls(pn.viewable.Viewer):
     """The left column of the page."""
 
@@ -40,27 +51,9 @@ class Controls(pn.viewable.Viewer):
         self.w_time = pn.widgets.Select(label="Valid time", width=W, stylesheets=css)
         self.w_prev = pn.widgets.Button(label="< earlier", width=W // 2 - 5, stylesheets=css)
         self.w_next = pn.widgets.Button(label="later >", width=W // 2 - 5, stylesheets=css)
-        self.w_field = pn.widgets.Select(
-            label="Filled field",
-            width=W,
-            stylesheets=css,
-            options={v: k for k, v in FIELDS.items()},
-            value=state.field,
-        )
-        self.w_vectors = pn.widgets.Select(
-            label="Vectors",
-            width=W,
-            stylesheets=css,
-            options={v: k for k, v in VECTORS.items()},
-            value=state.vectors,
-        )
-        self.w_proj = pn.widgets.Select(
-            label="Projection",
-            width=W,
-            stylesheets=css,
-            options={v: k for k, v in PROJECTIONS.items()},
-            value=state.projection,
-        )
+        self.w_field = _menu("Filled field", FIELDS, state.field)
+        self.w_vectors = _menu("Vectors", VECTORS, state.vectors)
+        self.w_proj = _menu("Projection", PROJECTIONS, state.projection)
         self.w_hunits = pn.widgets.RadioButtonGroup(
             label="Heights",
             options=["m", "dam"],

@@ -43,19 +43,9 @@ __all__ = ["Page", "make_session", "make_room_session", "error_page", "EarlyBuil
 
 log = logging.getLogger(__name__)
 
-CHART = {
-    "case",
-    "level",
-    "time",
-    "field",
-    "vectors",
-    "smooth_km",
-    "min_lat",
-    "projection",
-    "height_units",
-    "wind_units",
-}
-BOX = {"case", "level", "time", "smooth_km", "min_lat", "region"}
+#: what redraws the chart (a new region only moves its outline, unless it must be drawn anew)
+CHART = set(compute.CHART_KEYS) - {"region"}
+BOX = set(compute.BOX_KEYS)
 SYSTEMS = {"case", "level", "time", "smooth_km", "min_lat"}
 #: the report is the same in other units: its numbers are only written again
 UNITS = {"height_units", "wind_units"}
