@@ -31,6 +31,8 @@ from typing import TypedDict
 
 from balance_core import settings
 
+from .outside import csv_frame
+
 __all__ = [
     "Task",
     "plan_file",
@@ -442,8 +444,8 @@ def _write_table(path, rows):
     df = df[cols] if len(df.columns) else df
     if path.endswith(".parquet"):
         df.to_parquet(path, index=False)
-    else:
-        df.to_csv(path, index=False)
+    else:  # outside text (a file named "=...") never a spreadsheet formula
+        csv_frame(df).to_csv(path, index=False)
     return df
 
 
@@ -596,7 +598,7 @@ def run_batch(
     err_path = os.path.splitext(out)[0] + ".errors.csv"
     import pandas as pd
 
-    pd.DataFrame(errors, columns=list(ERROR_COLUMNS)).to_csv(err_path, index=False)
+    csv_frame(pd.DataFrame(errors, columns=list(ERROR_COLUMNS))).to_csv(err_path, index=False)
     say(summary(rows))
     say(f"balance-desk batch: {len(rows)} rows in {out}; {len(errors)} errors in {err_path}")
     return {

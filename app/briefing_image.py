@@ -17,6 +17,7 @@ import textwrap
 import numpy as np
 
 from . import wording
+from .outside import FIGURE_RC, figure_text
 
 __all__ = ["briefing_png", "OUTLINE_RGB", "INVENTED_RGB"]
 
@@ -47,6 +48,25 @@ def briefing_png(
     import matplotlib
 
     matplotlib.use("Agg")
+
+    # every text drawn as plain text: a "$" in a note or a file name is a dollar sign, never
+    # mathematics that could fail to parse and break the image for the whole room
+    with matplotlib.rc_context(FIGURE_RC):
+        return _briefing_png(
+            chart,
+            report,
+            outline,
+            region_text=region_text,
+            caution=caution,
+            invented_text=invented_text,
+            notes=notes,
+            room_notes=room_notes,
+        )
+
+
+def _briefing_png(
+    chart, report, outline, *, region_text, caution, invented_text, notes, room_notes
+) -> bytes:
     import matplotlib.pyplot as plt
 
     fig = plt.figure(figsize=(16, 9), dpi=110)
@@ -57,9 +77,9 @@ def briefing_png(
     title = "balance-desk"
     if chart is not None:
         _draw_chart(fig, ax, chart, outline)
-        title = f"{chart.title}"
+        title = figure_text(chart.title)
     fig.suptitle(title, fontsize=17, fontweight="bold", x=0.04, y=0.975, ha="left")
-    fig.text(0.04, 0.905, f"Region: {region_text}", fontsize=13)
+    fig.text(0.04, 0.905, f"Region: {figure_text(region_text)}", fontsize=13)
     if invented_text and (chart is not None and chart.invented or (report or {}).get("invented")):
         # on the region's line, right-aligned: clear of the title however long it is
         fig.text(
@@ -79,7 +99,7 @@ def briefing_png(
         axr.set_axis_off()
         axb.set_axis_off()
     for i, n in enumerate(notes[:2]):
-        fig.text(0.04, 0.065 - 0.022 * i, n, fontsize=10.5, color="#333333")
+        fig.text(0.04, 0.065 - 0.022 * i, figure_text(n), fontsize=10.5, color="#333333")
     if room_notes:
         _draw_room_notes(fig, ax if chart is not None else None, room_notes)
     fig.text(0.04, 0.018, "Caution: " + caution, fontsize=11, color="#5a4500")
@@ -108,7 +128,7 @@ def _draw_room_notes(fig, ax, room_notes, shown=4):
             )
     lines = []
     for label, _xy, text in room_notes[:shown]:
-        short = textwrap.shorten(text, width=70, placeholder="\u2026")
+        short = textwrap.shorten(figure_text(text), width=70, placeholder="\u2026")
         lines.append(f"{label} {short}")
     if len(room_notes) > shown:
         lines.append(f"... and {len(room_notes) - shown} more (see the notes export)")

@@ -27,6 +27,7 @@ import pyproj  # noqa: F401
 from balance_core import PRESETS, ScaleSet, analyze_scales, classify_scales
 
 from .inputs import InputError, parse_box, parse_level, parse_levels, parse_member
+from .outside import one_line
 
 __all__ = ["main", "UsageError"]
 
@@ -726,13 +727,14 @@ def cmd_cases(args) -> int:
         return 0
     for c in cases:
         if "error" in c:
-            print(f"{c['file']}: could not be read: {c['error']}")
+            print(f"{one_line(c['file'])}: could not be read: {one_line(c['error'])}")
             print()
             continue
         print(
-            f"{c['name']}  ({c['file']})" + ("  [invented demo data]" if c.get("invented") else "")
+            f"{one_line(c['name'])}  ({one_line(c['file'])})"
+            + ("  [invented demo data]" if c.get("invented") else "")
         )
-        print(f"  {c['title']}")
+        print(f"  {one_line(c['title'])}")
         print(
             f"  levels: {', '.join(f'{p:g}' for p in c['levels_hpa'])} hPa"
             + (", and sea level" if c.get("sea_level") else "")
@@ -849,8 +851,8 @@ def cmd_rooms_list(args) -> int:
         n = len(store.notes(r.token))
         state = "link expired" if r.expired else f"until {stamp(r.expires)}"
         print(
-            f"{r.title}  |  case {r.case}  |  opened {stamp(r.created)}  |  {n} notes  |  "
-            f"{state}\n    {room_link(args.base_url, r.token)}"
+            f"{one_line(r.title)}  |  case {one_line(r.case)}  |  opened {stamp(r.created)}  |  "
+            f"{n} notes  |  {state}\n    {room_link(args.base_url, r.token)}"
         )
     return 0
 
@@ -909,6 +911,20 @@ def _join_negative_values(argv):
 
 
 def main(argv=None) -> int:
+    """Run one command. Everything it prints goes through :class:`app.outside.TerminalStream`:
+    a name, a title, a note or a file name that holds control characters reaches the
+    terminal spelled out, never as a control sequence."""
+    from .outside import TerminalStream
+
+    streams = sys.stdout, sys.stderr
+    sys.stdout, sys.stderr = TerminalStream(sys.stdout), TerminalStream(sys.stderr)
+    try:
+        return _main(argv)
+    finally:
+        sys.stdout, sys.stderr = streams
+
+
+def _main(argv=None) -> int:
     parser = build_parser()
     argv = _join_negative_values(list(sys.argv[1:] if argv is None else argv))
     debug = "--debug" in argv

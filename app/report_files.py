@@ -9,7 +9,6 @@
 
 from __future__ import annotations
 
-import csv
 import io
 import json
 import math
@@ -17,6 +16,7 @@ import math
 from balance_core.vocabulary import BALANCE_CLASSES
 
 from . import wording
+from .outside import csv_writer
 
 __all__ = [
     "table",
@@ -117,7 +117,7 @@ def export_json(rep: dict, context: dict) -> str:
 def export_csv(rep: dict, context: dict) -> str:
     """One row per term, view, balance, number and wind, each with the full context."""
     buf = io.StringIO()
-    w = csv.writer(buf)
+    w = csv_writer(buf)  # outside text (a case named "=...") never a formula
     level = context["level_hpa"]
     ctx = [
         context["case"],
@@ -473,7 +473,7 @@ def systems_table(out: dict) -> str:
 def systems_csv(out: dict) -> str:
     """One row per system (or per system and time with tracks), values to 4 digits."""
     buf = io.StringIO()
-    w = csv.writer(buf)
+    w = csv_writer(buf)  # outside text (a case named "=...") never a formula
     parts = ("tendency", "inertial_advective", "vertical_advection", "remainder")
     if "tracks" in out:
         w.writerow(

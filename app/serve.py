@@ -21,6 +21,7 @@ import pyproj  # noqa: F401  (before anything that may load eccodes)
 from balance_core import settings
 
 from .cases import case_paths
+from .outside import one_line
 
 __all__ = [
     "serve",
@@ -276,7 +277,7 @@ def _load_archives(archives, out) -> tuple[dict, list]:
                 results[os.path.basename(a)] = load_result(a)
             except ValueError as exc:
                 problems.append(str(exc))
-                out(f"balance-desk: not serving {a}: {exc}")
+                out(f"balance-desk: not serving {one_line(a)}: {one_line(exc)}")
     return results, problems
 
 
@@ -358,7 +359,7 @@ def serve(
         raise ServeError("balance-desk serve: no case files found")
     library = CaseLibrary(paths, memory_budget=memory_budget)
     for name, why in library.failed.items():
-        out(f"balance-desk: not serving {name}: {why}")
+        out(f"balance-desk: not serving {one_line(name)}: {one_line(why)}")
     if not library.good:
         raise ServeError("balance-desk serve: none of the cases could be loaded (see above)")
     pn.extension(notifications=False)  # the page has its own notice of a lost connection
@@ -415,11 +416,11 @@ def serve(
     if results:
         out(
             f"balance-desk: batch results through the archive at http://{host}:{port}/archive "
-            f"({', '.join(results)})"
+            f"({', '.join(one_line(r) for r in results)})"
         )
     out(
         f"balance-desk: serving {len(library.good)} case(s) at http://{host}:{port}/ "
-        f"({', '.join(library.good)})"
+        f"({', '.join(one_line(n) for n in library.good)})"
     )
     if start:
         # what is loaded by now (the cases, the libraries) lives as long as the server: keep

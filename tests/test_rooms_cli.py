@@ -69,9 +69,9 @@ def test_create_list_and_export(tmp_path):
     assert code == 0 and "Tuesday <b>12 UTC</b>" in out and "1 notes" in out and token in out
     code, md, _ = run("rooms", "export", link, "--store", store)
     assert code == 0
-    assert "# Review room: Tuesday &lt;b&gt;12 UTC&lt;/b&gt;" in md
+    assert "# Review room: Tuesday \\<b\\>12 UTC\\</b\\>" in md  # Markdown escapes
     assert "500 hPa" in md and "52.0N 40.0W" in md and "box 52.0W to 28.0W" in md
-    assert "edited by Ben" in md and "&lt;i&gt;not&lt;/i&gt;" in md and token not in md
+    assert "edited by Ben" in md and "\\<i\\>not\\</i\\>" in md and token not in md
     code, js, _ = run("rooms", "export", token, "--format", "json", "--store", store)
     d = json.loads(js)
     assert code == 0 and token not in js

@@ -3,17 +3,18 @@
 Both list every note with every version (edits and withdrawals included): who
 wrote each, when, and the view it was written on. The room's token is not in
 either: it is the room's key, and an export is passed around. Text a person
-typed is written as typed in JSON; in Markdown its HTML characters are
-escaped, so a viewer that renders HTML shows it as text.
+typed is written as typed in JSON (a string, escaped by JSON); in Markdown it goes
+through :func:`app.outside.markdown`, so no heading, link, image or HTML comes
+out of a note, a name or a title.
 """
 
 from __future__ import annotations
 
 import datetime as dt
-import html
 import json
 
 from .. import wording
+from ..outside import markdown
 from ..state import parse_region
 
 __all__ = ["notes_markdown", "notes_json", "describe_view", "stamp"]
@@ -104,7 +105,9 @@ def notes_json(room, store) -> str:
 
 
 def notes_markdown(room, store) -> str:
-    e = html.escape
+    def e(text):
+        return markdown(text, inline=True)
+
     notes = store.notes(room.token)
     withdrawn = sum(n.withdrawn for n in notes)
     lines = [
@@ -126,7 +129,7 @@ def notes_markdown(room, store) -> str:
             f"View: {e(describe_view(n.view, n.point))}",
             "",
         ]
-        lines += ["> " + e(line) if line else ">" for line in n.text.splitlines()] + [""]
+        lines += ["> " + line for line in markdown(n.text).split("\n")] + [""]
         hist = _versions(store, room.token, n)
         if len(hist) > 1:
             lines.append("Versions:")
