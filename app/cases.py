@@ -29,6 +29,8 @@ def case_paths(files=None, cases_dir=None) -> list:
     if files:
         return [str(f) for f in files]
     d = cases_dir or sample_dir()
+    # a pipe or a device named like a case is listed too: reading it is refused with one
+    # sentence (balance_core.io.reader.sniff_format), never waited on
     return sorted(
         p
         for p in glob.glob(os.path.join(glob.escape(d), "*"))

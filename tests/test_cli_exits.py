@@ -299,3 +299,33 @@ def test_serve_says_which_cases_failed_and_serves_the_others(tmp_path):
     text = "".join(lines)
     assert "not serving broken: broken.nc" in text
     assert "serving 1 case(s)" in text and "(fine)" in text
+
+
+def test_a_named_pipe_is_refused_with_one_sentence_never_waited_on(tmp_path):
+    """A pipe called *.nc blocks whoever opens it until someone writes: before, analyze,
+    cases --dir and batch hung there with no message. The subprocess timeouts below are
+    bounds for a hang, not speed goals."""
+    good(str(tmp_path), "fine.nc")
+    pipe = str(tmp_path / "pipe.nc")
+    os.mkfifo(pipe)
+    code, out, err = run("analyze", pipe, "--level", "500", timeout=120)
+    assert code == 2 and "pipe.nc" in err and "not a regular file" in err, (code, err)
+    code, out, err = run("cases", "--dir", str(tmp_path), timeout=120)
+    assert code == 0 and "pipe.nc: could not be read" in out and "fine" in out, (out, err)
+    assert "not a regular file" in out
+    code, out, err = run(
+        "batch",
+        str(tmp_path / "*.nc"),
+        "--levels",
+        "500",
+        "--box",
+        "-10,10,44,56",
+        "--workers",
+        "1",
+        "--out",
+        str(tmp_path / "rows.csv"),
+        timeout=600,
+    )
+    assert code == 0, err
+    errors = (tmp_path / "rows.errors.csv").read_text()
+    assert "pipe.nc" in errors and "not a regular file" in errors

@@ -82,6 +82,12 @@ def sniff_format(path) -> str:
             if names & {".zgroup", ".zmetadata", "zarr.json", ".zattrs"}:
                 return "zarr"
             raise CaseError("is a directory but not a Zarr store", p)
+        if not os.path.isfile(p):  # a pipe, a device, a socket: opening it could wait for ever
+            raise CaseError(
+                "is not a regular file (a named pipe, a device or a socket); only files "
+                "and Zarr folders are read",
+                p,
+            )
         with open(p, "rb") as fh:
             head = fh.read(16)
     except PermissionError:
