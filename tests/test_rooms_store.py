@@ -16,6 +16,7 @@ import sqlite3
 import subprocess
 import sys
 import threading
+import time
 
 import pytest
 
@@ -113,6 +114,36 @@ def test_an_expired_room_is_no_room_for_the_hub(store):
     hub2 = Hub(store)
     assert hub2.room(room.token) is None  # the link is refused ...
     assert store.room(room.token) is not None  # ... but nothing is deleted
+
+
+def test_a_room_in_use_closes_when_its_link_expires(store, monkeypatch):
+    """The hub keeps a joined room in memory; it checked the expiry only when it first
+    loaded it, so an expired link kept working for a room in use (joins, notes, views)."""
+    hub = Hub(store)
+    room = hub.create("in use", "ocean_cyclone", VIEW, days=1)
+    a, b = Inbox(), Inbox()
+    hub.join(room.token, "a", "Ana", a)
+    hub.join(room.token, "b", "Ben", b)
+    hub.add_note(room.token, "a", "before the end", VIEW)
+    assert hub.change_view(room.token, "a", dict(VIEW, level="850"))  # it says yes ...
+    later = time.time() + 2 * 86400.0  # two days on: the one-day link has expired
+    monkeypatch.setattr(time, "time", lambda: later)
+    for attempt in (
+        lambda: hub.add_note(room.token, "b", "after the end", VIEW),
+        lambda: hub.change_view(room.token, "a", dict(VIEW, level="700")),
+        lambda: hub.join(room.token, "c", "Chi", Inbox()),
+        lambda: hub.steer(room.token, "b", VIEW),
+    ):
+        with pytest.raises(RoomError, match="expired"):  # ... and now no
+            attempt()
+    # those in the room were told, with the sentence, once
+    for inbox in (a, b):
+        closed = [p for k, p in inbox.got if k == "closed"]
+        assert len(closed) == 1 and "expired" in closed[0]["why"]
+    assert hub.room(room.token) is None
+    # nothing is lost: the notes are kept and can be exported
+    assert [n.text for n in store.notes(room.token)] == ["before the end"]
+    assert store.room(room.token).view["level"] == "850"
 
 
 # -- the hub ----------------------------------------------------------------------------

@@ -164,6 +164,12 @@ class RoomBar(pn.viewable.Viewer):
         self.w_alone.visible = mine is not None and mine["following"]
         self.w_back.visible = mine is not None and not mine["following"]
 
+    def closed(self, why: str):
+        """The room has closed (its link expired): say why; nothing to steer or name."""
+        self.status.object = alert(why)
+        for w in (self.w_steer, self.w_alone, self.w_back, self.w_name, self.w_use_name):
+            w.visible = False
+
     def show_where(self, view: dict):
         """The room has moved on while you look on your own: say where it is now."""
         self.where = dict(view)
@@ -269,6 +275,14 @@ class RoomNotes(pn.viewable.Viewer):
         self.w_list.options = options
         if chosen in options.values():
             self.w_list.value = chosen
+
+    def closed(self, why: str):
+        """The room has closed: its notes stay readable and exportable, no more are written."""
+        self.alert.object = alert(why)
+        for w in (self.w_show, self.w_edit, self.w_withdraw, self.w_text, self.w_pin):
+            w.visible = False
+        for w in (self.w_add, self.w_cancel):
+            w.visible = False
 
     def show_detail(self, number, note, history):
         if note is None:
@@ -399,6 +413,10 @@ class RoomSession:
             note = payload["note"]
             self._notes[note.note_id] = note
             self._redraw_soon()
+        elif kind == "closed":
+            self.joined = False
+            self.bar.closed(payload["why"])
+            self.notes.closed(payload["why"])
 
     #: seconds a page waits before it redraws its notes, so that a burst of notes (a busy
     #: room) is one redraw per page, not one per note

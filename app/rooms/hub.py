@@ -33,6 +33,13 @@ class RoomError(Exception):
     """A request the room cannot take: one sentence for the person who made it."""
 
 
+#: what those in a room (and those who open its link) are told once its link has expired
+EXPIRED = (
+    "This room's link has expired: the room takes no more notes or views. Its notes are "
+    "kept and can still be exported (balance-desk rooms export)."
+)
+
+
 @dataclasses.dataclass
 class RoomLimits:
     """Bounds on what one person may send (common practice, no source: our own choices)."""
@@ -59,6 +66,7 @@ class _Live:
         self.case = room.case
         self.view = dict(room.view)
         self.version = room.view_version
+        self.expires = room.expires
         self.people: collections.OrderedDict[str, Person] = collections.OrderedDict()
         self.steering: str | None = None
         self.lock = threading.RLock()
@@ -88,6 +96,8 @@ class Hub:
         return None if live is None else self.store.room(token)
 
     def _get(self, token):
+        """The live room of a token; None for a wrong token or an expired room (whose
+        people are told it has closed, :meth:`_close`)."""
         with self._lock:
             live = self._live.get(token)
             if live is None:
@@ -95,13 +105,28 @@ class Hub:
                 if room is None or room.expired:
                     return None
                 live = self._live[token] = _Live(room)
-            return live
+                return live
+            if time.time() > live.expires:
+                del self._live[token]
+            else:
+                return live
+        self._close(live)
+        return None
 
     def _must(self, token):
+        """The live room, or RoomError: checked at every join, view change and write."""
         live = self._get(token)
         if live is None:
-            raise RoomError("no such room")
+            room = self.store.room(token)
+            raise RoomError(EXPIRED if room is not None and room.expired else "no such room")
         return live
+
+    def _close(self, live):
+        """An expired room closes for those in it: each is told, with the sentence."""
+        self._tell(live, "closed", {"why": EXPIRED})
+        with live.lock:
+            live.people.clear()
+            live.steering = None
 
     # -- people -------------------------------------------------------------------------
     def join(self, token, key, name, notify):
