@@ -313,19 +313,9 @@ def test_a_named_pipe_is_refused_with_one_sentence_never_waited_on(tmp_path):
     code, out, err = run("cases", "--dir", str(tmp_path), timeout=120)
     assert code == 0 and "pipe.nc: could not be read" in out and "fine" in out, (out, err)
     assert "not a regular file" in out
-    code, out, err = run(
-        "batch",
-        str(tmp_path / "*.nc"),
-        "--levels",
-        "500",
-        "--box",
-        "-10,10,44,56",
-        "--workers",
-        "1",
-        "--out",
-        str(tmp_path / "rows.csv"),
-        timeout=600,
-    )
-    assert code == 0, err
-    errors = (tmp_path / "rows.errors.csv").read_text()
-    assert "pipe.nc" in errors and "not a regular file" in errors
+    # the batch plans each file on a worker (app.batch.plan_file): the pipe is an error row
+    from app.batch import plan_file
+
+    plan = plan_file(pipe, [500.0], boxes=(("b", (-10.0, 10.0, 44.0, 56.0)),))
+    assert plan["tasks"] == [] and plan["errors"][0]["file"] == "pipe.nc"
+    assert "not a regular file" in plan["errors"][0]["error"]

@@ -12,8 +12,6 @@ implementation that Panel depends on), the PNG opened by Pillow.
 import csv
 import io
 import os
-import subprocess
-import sys
 import unicodedata
 
 import numpy as np
@@ -139,13 +137,16 @@ def test_the_rooms_markdown_export_gains_nothing_from_notes_names_and_titles(tmp
 
 
 def _run(*args):
-    r = subprocess.run(
-        [sys.executable, "-m", "app.cli", *args],
-        capture_output=True,
-        timeout=300,
-        cwd=ROOT,
-    )
-    return r.returncode, r.stdout.decode("utf-8", "surrogateescape"), r.stderr.decode()
+    """A command of app.cli in this process: its exit status, stdout and stderr (what it
+    prints goes through the same stream as in a terminal)."""
+    import contextlib
+
+    from app.cli import main
+
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        code = main(list(args))
+    return code, out.getvalue(), err.getvalue()
 
 
 HOSTILE_FILE_NAMES = [
