@@ -112,8 +112,16 @@ def settled(
     the tab of that number below the chart (a tab's parts are drawn when it is opened).
     ``room_after``: the page has been sent more than that many views of its review room
     (:func:`room_views` from before), whether it took them or not."""
+    from playwright.sync_api import TimeoutError as PlaywrightTimeout
+
     want = {"step": after, "tab": tab, "room": room_after}
-    handle = page.wait_for_function(_SETTLED_JS, arg=want, timeout=timeout_ms, polling=50)
+    try:
+        handle = page.wait_for_function(_SETTLED_JS, arg=want, timeout=timeout_ms, polling=50)
+    except PlaywrightTimeout:
+        raise AssertionError(
+            f"the page did not settle in {timeout_ms / 1000:.0f} s: its mark is {mark(page)}, "
+            f"the wait was for {want}"
+        ) from None
     return int(handle.json_value())
 
 

@@ -426,8 +426,9 @@ class Page(pn.viewable.Viewer):
                 s.time,
                 s.region_text(),
             )
-        self._gens[kind] = self._lane.submit(kind, fn, done)
+        # marked before it is submitted: a job that ends at once must find its mark to clear
         self._mark_pending(kind, True)
+        self._gens[kind] = self._lane.submit(kind, fn, done)
 
     def _mark_html(self) -> str:
         pending = " ".join(sorted(self._pending))
@@ -452,8 +453,10 @@ class Page(pn.viewable.Viewer):
             self.settle_mark.object = self._mark_html()
 
     def _cancel(self, kind):
-        """A view shown now: a result still on its way for an older request is dropped."""
+        """A view shown now: a result still on its way for an older request is dropped (and
+        so is not waited for: that result's _apply returns before it could unmark it)."""
         self._gens[kind] = self._lane.supersede(kind)
+        self._mark_pending(kind, False)
 
     def _apply(self, kind, gen, show, status, value):
         if gen is not None and self._gens.get(kind) != gen:
