@@ -201,4 +201,15 @@ def test_boxes_typed_on_the_wire_end_on_the_last_ones_view(debug_server):
     assert region in log[-1][1], log
     lines = lane_lines(log_text(proc))[lane]
     computed = sum(w.startswith("box computed") for w in lines)
-    assert 1 <= computed < len(boxes), computed
+    # how many were dropped depends on timing: a box whose view is computed before the next
+    # one arrives is not queued behind it (on a loaded machine all six can be). That a queued
+    # view is dropped, not computed, is shown without timing in tests/test_work.py
+    # (test_only_the_latest_request_of_a_view_is_computed); here, that the page asked for
+    # each box and ended on the last one's view
+    typed = []
+    for box in boxes:
+        st.set_box(*box)
+        typed.append(f"region={st.region_text()}")
+    asked = [w for w in lines if w.startswith("box asked") and any(t in w for t in typed)]
+    every_box = sum(w.startswith("box asked") for w in lines)  # the first screen's too
+    assert len(asked) == len(boxes) and 1 <= computed <= every_box, (asked, computed)
