@@ -487,7 +487,7 @@ def _parse_one(k, raw, cases, defaults):
     if k == "region":
         spec, problem = parse_region(raw)
         if problem:
-            raise ValueError(f"cannot be read ({problem})")
+            raise ValueError(f"{shown} cannot be read ({problem})")
         return "" if spec is None else spec.to_text()
     if k == "sheet":
         return _parse_sheet(raw)

@@ -165,6 +165,9 @@ class Page(pn.viewable.Viewer):
             sizing_mode="stretch_width",
             styles=narrowest,
         )
+        # the state the page last followed: the header names it, not a change still waiting
+        # for its tick, so a view shown before that tick is never beside a newer header
+        self._followed = self.state.copy()
         self._update_header()
         self._watcher = self.state.param.watch(self._on_state, list(URL_PARAMS))
         self.below.tabs.param.watch(self._tab_opened, "active")
@@ -219,6 +222,7 @@ class Page(pn.viewable.Viewer):
         log.debug("page %s: %s changed", id(self), ",".join(sorted(names)))
         if "case" in names:
             self._case_changed(names)
+        self._followed = self.state.copy()
         self.controls.follow(names)
         self.below.follow(names)
         self._sync_url()
@@ -569,7 +573,7 @@ class Page(pn.viewable.Viewer):
 
     # -- the header ------------------------------------------------------------------------
     def _update_header(self):
-        s = self.state
+        s = self._followed
         rep = self.report or {}
         when = ""
         try:
