@@ -335,7 +335,7 @@ def serve(
     from .desk.look import GLOBAL_CSS
     from .library import CaseLibrary
     from .rooms import Hub, RoomLimits, StoreError, open_store
-    from .rooms.store import default_store_path
+    from .rooms.store import ServerLock, default_store_path
 
     # every script and stylesheet from this server, also for parts drawn after the page
     # loaded (a tab opened later): the page works offline, and the CSP allows nothing else
@@ -350,7 +350,9 @@ def serve(
     except settings.SettingError as exc:
         raise ServeError(f"balance-desk serve: {exc}") from None
     try:
+        lock = ServerLock(store_path)  # one server per store: held until this process ends
         hub = Hub(open_store(store_path), RoomLimits(notes_per_minute=per_minute))
+        hub.server_lock = lock
     except StoreError as exc:
         raise ServeError(f"balance-desk serve: {exc}") from None
     results, archive_problems = _load_archives(archives, out)

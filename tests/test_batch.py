@@ -167,14 +167,14 @@ def test_rows_from_a_real_cluster_equal_analyze(archive, tmp_path):
 def test_a_run_killed_partway_goes_on_without_gaps_or_repeats(archive, tmp_path):
     many = tmp_path / "many"
     many.mkdir()
-    for i in range(4):
+    for i in range(3):
         ds, _ = latlon_dataset(
             np.linspace(20, 70, 26),
             np.linspace(-60, 20, 41),
             levels=np.array([1000, 925, 850, 700, 500, 300, 250.0]),
         )
         ds.to_netcdf(many / f"f{i}.nc")
-    args = [str(many / "f*.nc"), "--levels", "850,700,500,300", *_box_args(), "--workers", "2"]
+    args = [str(many / "f*.nc"), "--levels", "850,500,300", *_box_args(), "--workers", "2"]
     out = tmp_path / "rows.csv"
     proc = subprocess.Popen(
         [sys.executable, "-m", "app.cli", "batch", *args, "--out", str(out)],
@@ -187,13 +187,13 @@ def test_a_run_killed_partway_goes_on_without_gaps_or_repeats(archive, tmp_path)
     wait_until(lambda: len(list(parts.glob("*.json"))) >= 5, 300, what="five pieces done")
     os.killpg(proc.pid, signal.SIGKILL)  # the client and its local cluster, at once
     proc.wait(timeout=60)
-    assert 5 <= len(list(parts.glob("*.json"))) < 48  # of 4 files x 3 times x 4 levels
+    assert 5 <= len(list(parts.glob("*.json"))) < 27  # of 3 files x 3 times x 3 levels
     p = _batch([*args, "--out", str(out)], cwd=ROOT)
     assert p.returncode == 0, p.stderr + p.stdout
     assert "already done" in p.stdout
     rows = pd.read_csv(out)
     keys = rows[["file", "valid_time", "level_hpa", "region"]].apply(tuple, axis=1)
-    assert len(rows) == 4 * 3 * 4 * 2 and keys.is_unique
+    assert len(rows) == 3 * 3 * 3 * 2 and keys.is_unique
     fresh = tmp_path / "fresh.csv"
     p = _batch([*args, "--out", str(fresh)], cwd=ROOT)
     assert p.returncode == 0

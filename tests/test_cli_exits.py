@@ -36,6 +36,19 @@ def run(*args, timeout=120, env=None):
     return r.returncode, r.stdout, r.stderr
 
 
+@pytest.fixture
+def here(capsys):
+    """The command run in this process: (exit status, stdout, stderr). The same ``main``
+    the console script calls; the tests that need a process of its own use :func:`run`."""
+
+    def call(*args):
+        code = main(list(args))
+        out, err = capsys.readouterr()
+        return code, out, err
+
+    return call
+
+
 def good(tmp, name="good.nc"):
     ds, _ = latlon_dataset(LAT, LON)
     path = os.path.join(tmp, name)
@@ -94,9 +107,9 @@ def mixed_grib(tmp):
         ("memory_budget_nonsense", good, ["--memory-budget", "lots"], "must be a size"),
     ],
 )
-def test_input_faults_exit_2_with_one_sentence(tmp_path, fault, build, extra, fragment):
+def test_input_faults_exit_2_with_one_sentence(tmp_path, here, fault, build, extra, fragment):
     path = build(str(tmp_path))
-    code, out, err = run("analyze", path, "--level", "500", *extra)
+    code, out, err = here("analyze", path, "--level", "500", *extra)
     assert code == 2, (fault, code, err)
     assert fragment in err, err
     one_sentence(err)
@@ -109,11 +122,18 @@ def _one_point(tmp):
     return path
 
 
-def test_a_repeated_360_degree_column_is_dropped_not_fatal(tmp_path):
+def test_a_fault_in_a_process_of_its_own_exits_2_with_one_sentence(tmp_path):
+    # the exit status and stderr of the real process, for one fault of the table above
+    code, out, err = run("analyze", good(str(tmp_path)), "--level", "500", "--min-lat", "95")
+    assert code == 2 and "--min-lat must lie from 0 to 60" in err, (code, err)
+    one_sentence(err)
+
+
+def test_a_repeated_360_degree_column_is_dropped_not_fatal(tmp_path, here):
     ds, _ = latlon_dataset(np.arange(85.0, -85.1, -10.0), np.arange(0.0, 360.1, 10.0))
     path = str(tmp_path / "cyclic.nc")
     ds.to_netcdf(path)
-    code, out, err = run("analyze", path, "--level", "500", "--format", "json")
+    code, out, err = here("analyze", path, "--level", "500", "--format", "json")
     assert code == 0, err
     assert "repeated (cyclic) last longitude column" in out
 
@@ -155,14 +175,15 @@ def test_a_file_name_that_is_not_utf8(tmp_path):
     one_sentence(err)
 
 
-def test_a_newline_in_a_file_name_gives_one_line(tmp_path):
+def test_a_newline_in_a_file_name_gives_one_line(tmp_path, here):
     path = good(str(tmp_path), "two\nlines.nc")
-    code, _, err = run("analyze", path, "--level", "600")
+    code, _, err = here("analyze", path, "--level", "600")
     assert code == 2 and "two\\nlines.nc" in err and "has no 600 hPa level" in err
     one_sentence(err)
 
 
 def test_a_time_with_a_zone_offset_gives_no_warning(tmp_path):
+    # a process of its own: a warning filter of the test run must not hide a warning
     code, out, err = run(
         "analyze",
         good(str(tmp_path)),
@@ -219,10 +240,10 @@ def test_a_file_declaring_huge_dimensions_is_refused_from_its_metadata(tmp_path)
     assert peak_kb < 400 * 1024, peak_kb
 
 
-def test_cases_lists_a_bad_file_and_goes_on(tmp_path):
+def test_cases_lists_a_bad_file_and_goes_on(tmp_path, here):
     good(str(tmp_path), "fine.nc")
     (tmp_path / "broken.nc").write_bytes(b"not a file at all")
-    code, out, err = run("cases", "--dir", str(tmp_path))
+    code, out, err = here("cases", "--dir", str(tmp_path))
     assert code == 0, err
     assert "broken.nc: could not be read" in out and "fine" in out
 

@@ -184,8 +184,9 @@ def test_taking_over_stepping_out_and_back_in(server, store_path, browser):
     b.context.close()
 
 
-def test_a_note_reaches_the_other_and_survives_a_restart(store_path, browser, tmp_path):
-    # a server of its own, restarted in the middle
+def test_a_note_reaches_the_other_and_survives_a_restart(browser, tmp_path):
+    # a server and a store of its own (one server per store), restarted in the middle
+    store_path = str(tmp_path / "rooms.sqlite")
     proc, url, port = start_server(["--store", store_path])
     room = _room(store_path, "Notes")
     link = f"{url}room?room={room.token}"
@@ -292,9 +293,9 @@ def test_markup_in_notes_names_and_titles_stays_text(server, store_path, browser
     b.context.close()
 
 
-def test_a_wrong_passphrase_is_refused(store_path, browser):
+def test_a_wrong_passphrase_is_refused(browser):
     env = dict(os.environ, BALANCE_DESK_PASSPHRASE="a long enough passphrase")
-    proc, url, port = start_server(["--store", store_path], env=env)
+    proc, url, port = start_server([], env=env)  # a store of its own
     try:
         page = browser.new_page()
         page.goto(url)

@@ -130,6 +130,25 @@ def test_another_address_needs_a_passphrase(tmp_path):
     assert code == 2 and "unrecognized arguments" in err
 
 
+def test_a_second_server_on_a_store_is_refused_with_one_sentence(tmp_path):
+    """A room in use lives in its server's memory: a second server on the same store would
+    keep a copy of each room of its own (notes written on one never reached the other's
+    pages). It is refused; the first goes on, and once it stops the store can be served."""
+    store = str(tmp_path / "rooms.sqlite")
+    proc, url, _ = start_server(["--store", store])
+    try:
+        code, out, err = run("serve", "--store", store, "--port", "0", timeout=120)
+        assert code == 2, (code, out, err)
+        assert f"the room store {store} is in use by another balance-desk server" in err
+        assert f"(process {proc.pid})" in err and "serving" not in out
+        assert err.count("\n") == 1, err
+        urllib.request.urlopen(url, timeout=30)  # the first still serves
+    finally:
+        stop_server(proc)
+    proc, url, _ = start_server(["--store", store])  # free again once the first has stopped
+    stop_server(proc)
+
+
 def test_serving_another_address_without_a_passphrase_warns_at_every_start():
     env = {k: v for k, v in os.environ.items() if k != "BALANCE_DESK_PASSPHRASE"}
     proc, url, _ = start_server(["--host", "0.0.0.0", "--open-without-passphrase"], env=env)

@@ -293,3 +293,17 @@ def test_a_kill_in_the_middle_of_writes_loses_nothing_acknowledged(tmp_path):
     assert set(acked) <= stored, set(acked) - stored
     assert len(stored) - len(set(acked)) <= 1  # at most the write in flight
     s2.close()
+
+
+def test_a_store_has_one_server_at_a_time(tmp_path):
+    from app.rooms.store import ServerLock
+
+    path = str(tmp_path / "rooms.sqlite")
+    first = ServerLock(path)
+    with pytest.raises(
+        StoreError, match=rf"in use by another balance-desk server \(process {os.getpid()}\)"
+    ):
+        ServerLock(path)
+    ServerLock(str(tmp_path / "other.sqlite")).release()  # another store is free
+    first.release()
+    ServerLock(path).release()  # and this one once its server has let it go

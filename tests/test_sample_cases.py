@@ -5,6 +5,7 @@ of each case mean something?), not proof of the numerics, which the reference
 tests against published test cases and MetPy give.
 """
 
+import functools
 import json
 import os
 import sys
@@ -24,10 +25,21 @@ NAMES = ("ocean_cyclone", "tropical_cyclone", "sea_breeze")
 REQUIRED_LEVELS = {1000, 925, 850, 700, 500, 300, 250}
 
 
+@functools.cache
+def _build(name):
+    return make_cases.build(name)
+
+
 @pytest.fixture(scope="module")
 def built():
-    """Each case regenerated in memory: (dataset, exact tendencies)."""
-    return {n: make_cases.build(n) for n in NAMES}
+    """Each case regenerated in memory when a test first asks for it: (dataset, exact
+    tendencies). One case at a time, so parallel workers share the three builds out."""
+
+    class Built:
+        def __getitem__(self, name):
+            return _build(name)
+
+    return Built()
 
 
 @pytest.fixture(scope="module")

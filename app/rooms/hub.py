@@ -83,6 +83,7 @@ class Hub:
     def __init__(self, store: RoomStore, limits: RoomLimits | None = None):
         self.store = store
         self.limits = RoomLimits() if limits is None else limits
+        self.server_lock = None  # the store's ServerLock, while a server runs (app.serve)
         self._live: dict = {}
         self._lock = threading.Lock()
 

@@ -33,6 +33,7 @@ __all__ = [
     "Note",
     "RoomStore",
     "SQLiteStore",
+    "ServerLock",
     "StoreError",
     "default_store_path",
     "open_store",
@@ -372,6 +373,43 @@ def _point(point):
     if not (math.isfinite(lon) and math.isfinite(lat) and -540 <= lon <= 540 and -90 <= lat <= 90):
         raise StoreError("a note's point is not on the Earth")
     return lon, lat
+
+
+class ServerLock:
+    """The one server of a store: an exclusive lock on ``<store>.server``, held while the
+    server runs and let go by the system when its process ends, however it ends.
+
+    A room in use lives in its server's memory (who is in it, who steers, the pages to
+    tell of a note): a second server on the same store would keep a second, separate
+    copy of each room, so it is refused with one sentence instead.
+    """
+
+    def __init__(self, store_path: str):
+        import fcntl
+
+        self.path = os.path.abspath(store_path) + ".server"
+        try:
+            self._fh = open(self.path, "a+", encoding="utf-8")
+        except OSError as exc:
+            raise StoreError(f"the room store {store_path} cannot be used ({exc})") from None
+        try:
+            fcntl.flock(self._fh, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            self._fh.seek(0)
+            held = self._fh.read().strip()[:40] or "unknown"
+            self._fh.close()
+            raise StoreError(
+                f"the room store {store_path} is in use by another balance-desk server "
+                f"(process {held}); stop that one, or give this one its own --store"
+            ) from None
+        self._fh.seek(0)
+        self._fh.truncate()
+        self._fh.write(str(os.getpid()))
+        self._fh.flush()
+
+    def release(self) -> None:
+        if not self._fh.closed:
+            self._fh.close()  # closing the file lets the lock go
 
 
 def open_store(path: str | None = None) -> SQLiteStore:
