@@ -19,11 +19,11 @@ run: system install
 	$(BIN)/balance-desk serve --port $(PORT)
 
 # the checks first (lint, format, the core's types), then the suite: two workers per core
-# (a browser test spends much of its time waiting on a server and a browser), the modules
-# that share a server or a file on one worker each (tests/conftest.py, ONE_WORKER)
+# (a browser test spends much of its time waiting on a server and a browser), each worker
+# taking the next test as it frees up
 WORKERS ?= $(shell echo $$(( 2 * $$(nproc 2>/dev/null || echo 2) )))
 test: system install samples check
-	$(BIN)/python -m pytest -n $(WORKERS) --dist loadgroup $(PYTEST_ARGS)
+	$(BIN)/python -m pytest -n $(WORKERS) --dist worksteal $(PYTEST_ARGS)
 
 check: install
 	$(BIN)/ruff check .

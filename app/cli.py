@@ -32,6 +32,8 @@ from .outside import one_line
 __all__ = ["main", "UsageError"]
 
 DEFAULT_PRESET = "synoptic_cyclone"
+#: the address a room's link is printed with when none is given (serve's own default)
+DEFAULT_BASE_URL = "http://127.0.0.1:5006"
 
 
 class UsageError(Exception):
@@ -450,7 +452,13 @@ def _add_rooms(sub) -> None:
     r.add_argument(
         "--case",
         default=None,
-        help="the case under review (default: the first case the server has)",
+        help="the case under review, one the server has (default: its first case)",
+    )
+    r.add_argument(
+        "--cases",
+        default=None,
+        metavar="DIR",
+        help="the folder of cases the server is started with (default: the sample cases)",
     )
     r.add_argument(
         "--days",
@@ -460,13 +468,17 @@ def _add_rooms(sub) -> None:
     )
     r.add_argument(
         "--base-url",
-        default="http://127.0.0.1:5006",
-        help="the server's address, for the printed link",
+        default=DEFAULT_BASE_URL,
+        help=f"the server's address, for the printed link (default {DEFAULT_BASE_URL})",
     )
     r.add_argument("--store", default=None, metavar="PATH")
     r.set_defaults(func=cmd_rooms_create)
     r = rsub.add_parser("list", help="the rooms, with their links")
-    r.add_argument("--base-url", default="http://127.0.0.1:5006")
+    r.add_argument(
+        "--base-url",
+        default=None,
+        help="the server's address for every link (default: the one each room was made with)",
+    )
     r.add_argument("--store", default=None, metavar="PATH")
     r.set_defaults(func=cmd_rooms_list)
     r = rsub.add_parser("export", help="a room's notes with their views")
@@ -821,13 +833,25 @@ def cmd_rooms_create(args) -> int:
     from .rooms import StoreError
     from .rooms.share import room_link
 
-    store, path = _store(args)
+    names = case_names(case_paths(None, args.cases))
     case = args.case
     if case is None:
-        names = case_names(case_paths(None, None))
         case = names[0] if names else ""
+    elif case not in names:
+        shown = ", ".join(one_line(n) for n in names) or "none"
+        raise UsageError(
+            f"balance-desk rooms create: the server has no case {one_line(case)!r} "
+            f"(it has: {shown}; --cases DIR names the folder it serves)"
+        )
+    store, path = _store(args)
     try:
-        room = store.create_room(args.title, case, {"case": case} if case else {}, days=args.days)
+        room = store.create_room(
+            args.title,
+            case,
+            {"case": case} if case else {},
+            days=args.days,
+            base_url=args.base_url,
+        )
     except StoreError as exc:
         raise UsageError(f"balance-desk rooms create: {exc}") from None
     print(room_link(args.base_url, room.token))
@@ -850,9 +874,10 @@ def cmd_rooms_list(args) -> int:
     for r in rooms:
         n = len(store.notes(r.token))
         state = "link expired" if r.expired else f"until {stamp(r.expires)}"
+        base = args.base_url or r.base_url or DEFAULT_BASE_URL  # as it was made, by default
         print(
             f"{one_line(r.title)}  |  case {one_line(r.case)}  |  opened {stamp(r.created)}  |  "
-            f"{n} notes  |  {state}\n    {room_link(args.base_url, r.token)}"
+            f"{n} notes  |  {state}\n    {room_link(base, r.token)}"
         )
     return 0
 

@@ -346,12 +346,13 @@ def serve(
     store_path = store or default_store_path()
     try:
         per_minute = settings.whole_number("BALANCE_DESK_NOTES_PER_MINUTE", env)
+        people = settings.whole_number("BALANCE_DESK_ROOM_PEOPLE", env)
         log_level = settings.log_level(env=env)
     except settings.SettingError as exc:
         raise ServeError(f"balance-desk serve: {exc}") from None
     try:
         lock = ServerLock(store_path)  # one server per store: held until this process ends
-        hub = Hub(open_store(store_path), RoomLimits(notes_per_minute=per_minute))
+        hub = Hub(open_store(store_path), RoomLimits(notes_per_minute=per_minute, people=people))
         hub.server_lock = lock
     except StoreError as exc:
         raise ServeError(f"balance-desk serve: {exc}") from None

@@ -13,6 +13,7 @@ cannot be used is refused with one sentence that names the variable.
                                    when no ``--passphrase-file`` is given
 ``BALANCE_DESK_NOTES_PER_MINUTE``  notes one person may write per minute in a room
                                    (default 20)
+``BALANCE_DESK_ROOM_PEOPLE``       people one review room holds at once (default 60)
 ``BALANCE_DESK_LOG``               the server's log level (``INFO``; ``DEBUG`` adds page
                                    timings)
 ``BALANCE_DESK_BATCH_NO_WORKER_S`` seconds a batch run waits with no worker left before it
@@ -52,6 +53,7 @@ SETTINGS: dict[str, Setting] = {
         Setting("BALANCE_DESK_STORE", None, "the review rooms' SQLite file"),
         Setting("BALANCE_DESK_PASSPHRASE", None, "the server's access passphrase"),
         Setting("BALANCE_DESK_NOTES_PER_MINUTE", "20", "notes per person per minute"),
+        Setting("BALANCE_DESK_ROOM_PEOPLE", "60", "people one review room holds at once"),
         Setting("BALANCE_DESK_LOG", "INFO", "the server's log level"),
         Setting("BALANCE_DESK_BATCH_NO_WORKER_S", "120", "a batch run's wait for a worker"),
         Setting("BALANCE_DESK_SAMPLES", None, "the tests' third-party GRIB samples"),

@@ -33,28 +33,3 @@ def browser():
 
     with launched() as b:
         yield b
-
-
-#: Modules whose tests share something costly made once per worker process (a server, a
-#: browser, a real file read and indexed): each runs on one worker under ``--dist
-#: loadgroup`` (make test), so it is made once per run, not once per worker.
-ONE_WORKER = {
-    "test_browser",
-    "test_rooms_browser",
-    "test_security",
-    "test_fetch_load",
-    "test_page_details",
-    "test_words_and_units",
-    "test_app_state",
-    "test_verdicts_real",
-    "test_systems_real",
-    "test_real_grib",
-    "test_era5",
-}
-
-
-def pytest_collection_modifyitems(config, items):
-    for item in items:
-        name = item.module.__name__.rpartition(".")[2]
-        if name in ONE_WORKER:
-            item.add_marker(pytest.mark.xdist_group(name))

@@ -90,11 +90,95 @@ def mixed_grib(tmp):
     return path
 
 
+def time_on_another_grid(tmp):
+    """The same three fields at 00 UTC on a 2-degree grid and at 06 UTC on a 1-degree one:
+    before, the 06 UTC time was dropped without a word (exit 0, one time)."""
+    from testkit.gribwrite import write_grib2
+    from testkit.makedata import truth
+
+    path = os.path.join(tmp, "two_grids.grib2")
+    for k, (step, hour) in enumerate(((2.0, 0), (1.0, 6))):
+        la, lo = np.meshgrid(
+            np.arange(40.0, 60.1, step), np.arange(-20.0, 20.1, step), indexing="ij"
+        )
+        f = truth(la, lo, 500.0, 0.0)
+        grid = dict(
+            kind="regular_ll", lat0=40.0, lat1=60.0, lon0=340.0, lon1=20.0, dlat=step, dlon=step
+        )
+        write_grib2(
+            path,
+            grid,
+            {n: f[i][None, None] for i, n in enumerate(("gh", "u", "v"))},
+            [500.0],
+            [(20400203, hour)],
+            uv_relative=False,
+            mode="ab" if k else "wb",
+        )
+    return path
+
+
+def _zarr(tmp, name):
+    import warnings
+
+    ds, _ = latlon_dataset(LAT, LON)
+    path = os.path.join(tmp, name)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # the writer's remark on consolidated metadata
+        ds.to_zarr(path)
+    return path
+
+
+def _damaged(files, data):
+    hit = 0
+    for f in files:
+        if os.path.isfile(f):
+            with open(f, "wb") as fh:
+                fh.write(data)
+            hit += 1
+    assert hit, "nothing was damaged"
+
+
+def zarr_damaged_chunk(tmp):
+    """The height's chunks overwritten with bytes no codec decodes (before: exit 1)."""
+    import glob
+
+    path = _zarr(tmp, "chunk.zarr")
+    names = ("zarr.json", ".zarray", ".zattrs")
+    _damaged(
+        [
+            f
+            for f in glob.glob(os.path.join(path, "height", "**"), recursive=True)
+            if os.path.basename(f) not in names
+        ],
+        b"not a compressed chunk" * 4,
+    )
+    return path
+
+
+def zarr_damaged_store(tmp):
+    import glob
+
+    path = _zarr(tmp, "meta.zarr")
+    pattern = os.path.join(path, "**", "*")
+    _damaged(
+        [
+            f
+            for f in glob.glob(pattern, recursive=True)
+            if os.path.basename(f).startswith((".z", "zarr.json"))
+        ],
+        b"{not json",
+    )
+    return path
+
+
 @pytest.mark.parametrize(
     "fault, build, extra, fragment",
     [
         ("one_point_no_latitude", lambda t: _one_point(t), [], "has no horizontal grid"),
         ("grib_fields_of_mixed_sizes", mixed_grib, [], "is not on the height's grid"),
+        ("grib_time_on_another_grid", time_on_another_grid, [], "on two grids"),
+        ("zarr_damaged_chunk", zarr_damaged_chunk, [], "cannot be decoded: damaged or truncated"),
+        ("zarr_damaged_store", zarr_damaged_store, [], "cannot be read as Zarr: damaged"),
         ("time_superscript_two", good, ["--time", "\u00b2"], "neither an index nor an ISO 8601"),
         ("smoothing_1e308", good, ["--smooth", "1e308"], "exceeds the size of the domain"),
         ("smoothing_1e9", good, ["--smooth", "1e9"], "exceeds the size of the domain"),

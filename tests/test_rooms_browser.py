@@ -316,6 +316,29 @@ def test_a_wrong_passphrase_is_refused(browser):
         stop_server(proc)
 
 
+def test_the_one_who_finds_the_room_full_is_told_so(browser, tmp_path):
+    store_path = str(tmp_path / "rooms.sqlite")
+    env = dict(os.environ, BALANCE_DESK_ROOM_PEOPLE="1")
+    proc, url, port = start_server(["--store", store_path], env=env)
+    room = _room(store_path, "Small room")
+    link = f"{url}room?room={room.token}"
+    try:
+        a = _person(browser, link, "Ana")
+        _wait_status(a, "You steer")
+        ctx = browser.new_context()
+        b = ctx.new_page()
+        b.goto(link)
+        b.get_by_text("this room is full").first.wait_for(timeout=WAIT)
+        said = b.get_by_text("this room is full").first.inner_text()
+        assert said == "Could not join the room: this room is full (it holds 1 person at once)."
+        assert "error id" not in b.locator("body").inner_text()
+        ctx.close()
+        a.context.close()
+    finally:
+        out = stop_server(proc)
+    assert "Traceback" not in out and "could not join" not in out, out[-2000:]
+
+
 def test_a_change_reaches_a_follower_in_a_few_messages(server, store_path, browser):
     """The follower (a session on the wire, testkit/wire_page.py) gets a view as one message
     per step of its page (the view taken, the region's report, the chart, the systems...),

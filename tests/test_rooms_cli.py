@@ -37,6 +37,45 @@ def run(*args, env=None, timeout=120):
     return p.returncode, p.stdout, p.stderr
 
 
+def test_create_refuses_a_case_the_server_does_not_have(tmp_path):
+    store = str(tmp_path / "r.sqlite")
+    code, out, err = run("rooms", "create", "T", "--case", "no_such_case", "--store", store)
+    assert code == 2 and out == "", (code, out, err)
+    assert "the server has no case 'no_such_case'" in err and "ocean_cyclone" in err
+    assert err.count("\n") == 1
+    assert not os.path.exists(store)  # nothing made
+    # a case in a folder of one's own, named with --cases as serve is
+    folder = tmp_path / "cases"
+    folder.mkdir()
+    import shutil
+
+    from app.cases import sample_dir
+
+    shutil.copy(os.path.join(sample_dir(), "sea_breeze.nc"), folder / "coast.nc")
+    code, out, err = run(
+        "rooms", "create", "T", "--case", "coast", "--cases", str(folder), "--store", store
+    )
+    assert code == 0 and "/room?room=" in out, err
+
+
+def test_a_store_made_before_rooms_kept_their_address_still_opens(tmp_path):
+    import sqlite3
+
+    path = str(tmp_path / "old.sqlite")
+    db = sqlite3.connect(path)
+    db.executescript(
+        "CREATE TABLE rooms (token TEXT PRIMARY KEY, title TEXT NOT NULL, case_name TEXT NOT "
+        "NULL, created REAL NOT NULL, view TEXT NOT NULL, view_version INTEGER NOT NULL "
+        "DEFAULT 0, expires REAL NOT NULL);"
+        "INSERT INTO rooms VALUES ('k' || hex(randomblob(20)), 'Old', 'ocean_cyclone', 0, '{}',"
+        " 0, 1e12);"
+    )
+    db.commit()
+    db.close()
+    code, out, err = run("rooms", "list", "--store", path)
+    assert code == 0 and "Old" in out and "http://127.0.0.1:5006/room?room=k" in out, err
+
+
 def test_create_list_and_export(tmp_path):
     store = str(tmp_path / "r.sqlite")
     code, out, err = run(
@@ -67,6 +106,9 @@ def test_create_list_and_export(tmp_path):
     s.close()
     code, out, _ = run("rooms", "list", "--store", store)
     assert code == 0 and "Tuesday <b>12 UTC</b>" in out and "1 notes" in out and token in out
+    assert f"    {link}\n" in out  # the link as it was made (before: always port 5006)
+    code, out, _ = run("rooms", "list", "--store", store, "--base-url", "https://b.example")
+    assert code == 0 and f"https://b.example/room?room={token}" in out
     code, md, _ = run("rooms", "export", link, "--store", store)
     assert code == 0
     assert "# Review room: Tuesday \\<b\\>12 UTC\\</b\\>" in md  # Markdown escapes

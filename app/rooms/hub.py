@@ -135,7 +135,10 @@ class Hub:
         live = self._must(token)
         with live.lock:
             if key not in live.people and len(live.people) >= self.limits.people:
-                raise RoomError(f"this room is full ({self.limits.people} people)")
+                n = self.limits.people
+                raise RoomError(
+                    f"this room is full (it holds {n} {'person' if n == 1 else 'people'} at once)"
+                )
             live.people[key] = Person(key, clean_name(name) or "someone", time.time(), True, notify)
             if live.steering is None:
                 live.steering = key

@@ -78,6 +78,7 @@ class Room:
     view: dict  # the room's last view (the link's parameters, see app.state)
     view_version: int  # counts every change of the view
     expires: float = float("inf")  # after this (seconds since the epoch) its link is refused
+    base_url: str = ""  # the server's address its link was made with ("" for older rooms)
 
     @property
     def expired(self) -> bool:
@@ -108,7 +109,7 @@ class RoomStore:
     """What the rooms need from a store (see :class:`SQLiteStore`)."""
 
     def create_room(
-        self, title: str, case: str, view: dict | None = None, days: float = 30.0
+        self, title: str, case: str, view: dict | None = None, days: float = 30.0, base_url=""
     ) -> Room: ...
     def room(self, token: str) -> Room | None: ...
     def rooms(self) -> list: ...
@@ -181,13 +182,23 @@ class SQLiteStore(RoomStore):
             self._db.execute("PRAGMA synchronous=FULL")
             self._db.execute("PRAGMA foreign_keys=ON")
             self._db.executescript(_SCHEMA)
+            columns = {row[1] for row in self._db.execute("PRAGMA table_info(rooms)")}
+            if "base_url" not in columns:  # a store made before rooms kept their address
+                try:
+                    self._db.execute(
+                        "ALTER TABLE rooms ADD COLUMN base_url TEXT NOT NULL DEFAULT ''"
+                    )
+                except sqlite3.OperationalError as exc:  # another process added it first
+                    if "duplicate column" not in str(exc):
+                        raise
         except (sqlite3.Error, OSError) as exc:
             raise StoreError(f"the room store {path} cannot be used ({exc})") from None
         self._lock = threading.Lock()
 
     # -- rooms ----------------------------------------------------------------------
-    def create_room(self, title, case, view=None, days=30.0) -> Room:
-        """A new room; its link works for ``days`` days (its notes are kept after that)."""
+    def create_room(self, title, case, view=None, days=30.0, base_url="") -> Room:
+        """A new room; its link works for ``days`` days (its notes are kept after that).
+        ``base_url`` is the server's address the link is made with, kept to list it again."""
         title = _clean(title, MAX_TITLE, "room's title")
         if not (isinstance(days, (int, float)) and 0 < days <= 3650):
             raise StoreError("a room's life must be more than 0 and at most 3650 days")
@@ -196,11 +207,11 @@ class SQLiteStore(RoomStore):
         expires = now + 86400.0 * days
         with self._lock, self._db:
             self._db.execute(
-                "INSERT INTO rooms (token, title, case_name, created, view, expires) "
-                "VALUES (?, ?, ?, ?, ?, ?)",
-                (token, title, str(case), now, json.dumps(view), expires),
+                "INSERT INTO rooms (token, title, case_name, created, view, expires, base_url) "
+                "VALUES (?, ?, ?, ?, ?, ?, ?)",
+                (token, title, str(case), now, json.dumps(view), expires, str(base_url)),
             )
-        return Room(token, title, str(case), now, view, 0, expires)
+        return Room(token, title, str(case), now, view, 0, expires, str(base_url))
 
     def room(self, token) -> Room | None:
         if not isinstance(token, str) or not token or len(token) > 100:
@@ -208,22 +219,22 @@ class SQLiteStore(RoomStore):
         with self._lock:
             row = self._db.execute(
                 "SELECT token, title, case_name, created, view, view_version, "
-                "expires FROM rooms WHERE token = ?",
+                "expires, base_url FROM rooms WHERE token = ?",
                 (token,),
             ).fetchone()
         return (
             None
             if row is None
-            else Room(row[0], row[1], row[2], row[3], json.loads(row[4]), row[5], row[6])
+            else Room(row[0], row[1], row[2], row[3], json.loads(row[4]), row[5], row[6], row[7])
         )
 
     def rooms(self) -> list:
         with self._lock:
             rows = self._db.execute(
-                "SELECT token, title, case_name, created, view, view_version, expires "
-                "FROM rooms ORDER BY created"
+                "SELECT token, title, case_name, created, view, view_version, expires, "
+                "base_url FROM rooms ORDER BY created"
             ).fetchall()
-        return [Room(r[0], r[1], r[2], r[3], json.loads(r[4]), r[5], r[6]) for r in rows]
+        return [Room(r[0], r[1], r[2], r[3], json.loads(r[4]), *r[5:8]) for r in rows]
 
     def save_view(self, token, view) -> int:
         with self._lock, self._db:

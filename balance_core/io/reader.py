@@ -130,7 +130,10 @@ def open_datasets(path, chunks=None, *, budget=None):
                     if fh.read(4) == b"\x89HDF":
                         engine = _hdf_engine()
                 return [xr.open_dataset(path, engine=engine, chunks=chunks, decode_timedelta=True)]
-            return [xr.open_zarr(path, decode_timedelta=True)]
+            ds = xr.open_zarr(path, decode_timedelta=True)
+            for var in ds.variables.values():  # as open_dataset does: a damaged chunk's
+                var.encoding.setdefault("source", str(path))  # sentence names the store
+            return [ds]
     except CaseError:
         raise
     except Exception as exc:  # noqa: BLE001 - every library error becomes one sentence
@@ -695,6 +698,7 @@ def _choose(path, cands, ruled):
         )
     ref = by_role[ref_role][0]
     ref_grid = _horizontal(ref, path)
+    _refuse_a_field_on_two_grids(path, by_role[ref_role], ref_grid)
     chosen, notes, dropped = {ref_role: ref}, [], {}
     for role, cs in by_role.items():
         if role in ("height", "geopotential") and role != ref_role:
@@ -725,6 +729,24 @@ def _choose(path, cands, ruled):
     for sentences in ruled.values():  # said whether or not another variable took the role
         notes.extend(sentences)
     return chosen, ref_role, notes, dropped
+
+
+def _refuse_a_field_on_two_grids(path, cands, ref_grid) -> None:
+    """The height's own variable found again on another grid (a GRIB file whose times or
+    levels come on two grids) is refused, as the same data split across two files is:
+    taking one grid would drop the other's times or levels without a word."""
+    first = cands[0]
+    for c in cands[1:]:
+        if c.name != first.name or c.level.describe() != first.level.describe():
+            continue
+        d = _grid_difference(ref_grid, _horizontal(c, path))
+        if d is not None:
+            raise CaseError(
+                f"holds {first.describe()} on two grids ({d}); balance-desk reads one grid "
+                "per case: split the file by grid and open one part",
+                path,
+                first.name,
+            )
 
 
 def normalise(path, datasets, *, member=0) -> Piece:

@@ -136,13 +136,36 @@ def dimensionality_matches(unit, target: str) -> bool:
         return False
 
 
+#: what a decoder raises on stored bytes it cannot decode (a damaged Zarr chunk: zstd's
+#: RuntimeError, numcodecs' ValueError; a damaged NetCDF/HDF5 block: OSError; zlib.error)
+_DECODING_ERRORS = (RuntimeError, ValueError, OSError, EOFError)
+
+
 def to_numpy(values):
     """A plain array from numpy, dask or xarray data, computed in the calling thread.
 
     Dask's default scheduler would start a thread pool (and look for a
     distributed client) for every small slice; the io layer reads one field at
-    a time, and the core parallelises its own work.
+    a time, and the core parallelises its own work. Stored data that cannot be
+    decoded (a damaged chunk or block) is a :class:`CaseError`, not a crash.
     """
+    import zlib
+
+    try:
+        return _computed(values)
+    except CaseError:
+        raise
+    except (*_DECODING_ERRORS, zlib.error) as exc:
+        name = getattr(values, "name", None)
+        raise CaseError(
+            "holds data that cannot be decoded: damaged or truncated "
+            f"({type(exc).__name__}: {str(exc)[:200]})",
+            getattr(values, "encoding", {}).get("source"),
+            name if isinstance(name, str) else None,
+        ) from None
+
+
+def _computed(values):
     import sys
 
     if "dask" not in sys.modules:  # nothing lazy can be dask-backed
