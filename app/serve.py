@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import logging
 import os
+import re
 import socket
 
 import pyproj  # noqa: F401  (before anything that may load eccodes)
@@ -172,15 +173,19 @@ def quiet_closed_sockets(loop, context):
     loop.default_exception_handler(context)
 
 
+#: a room's key after "room" and an equals sign, a colon or a quote, in any URL encoding
+#: (``room=KEY``, ``room%3DKEY`` in a login page's ``next``, ``room%253DKEY``, ``"room": "KEY"``)
+ROOM_KEY = re.compile(r"(?i)(room(?:%(?:25)*3D|%(?:25)*22|[=:\"'\s])+)[A-Za-z0-9_-]{8,}")
+
+
 class HideRoomKeys(logging.Filter):
-    """Room links are keys: the logs show ``room=...`` instead of the token."""
+    """Room links are keys: the logs show ``room=...`` instead of the key."""
 
     def filter(self, record):
-        import re
-
         msg = record.getMessage()
-        if "room=" in msg:
-            record.msg, record.args = re.sub(r"(room=)[^&\s]+", r"\1...", msg), ()
+        hidden = ROOM_KEY.sub(r"\1...", msg)
+        if hidden != msg:
+            record.msg, record.args = hidden, ()
         return True
 
 
@@ -376,8 +381,12 @@ def serve(
     if passphrase is not None:
         import secrets
 
-        # Panel's own login page and cookie; the cookie's key is new at every start
+        from .login import LoginGate, install
+
+        # Panel's own login page and cookie; the cookie's key is new at every start; wrong
+        # passphrases held back and logged (app/login.py)
         auth = {"basic_auth": passphrase, "cookie_secret": secrets.token_hex(32)}
+        install(LoginGate())
     quiet = logging.getLogger("bokeh")
     level = quiet.level
     quiet.setLevel(logging.WARNING)  # a refusal to start is one sentence, nothing else

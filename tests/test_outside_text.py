@@ -192,10 +192,22 @@ def test_cases_and_rooms_list_print_hostile_text_as_text(hostile_files, tmp_path
     assert code == 0, err
     assert _hidden(out, keep="\n") == [] and "\\x1b" in out
     store = str(tmp_path / "rooms.sqlite")
+    from app.cases import case_names, case_paths
+
+    case = next(n for n in case_names(case_paths(None, folder)) if "\x1b" in n)
     code, out, err = _run(
-        "rooms", "create", "Brief \x1b]0;owned\x07 \u202e", "--case", "c", "--store", store
+        "rooms",
+        "create",
+        "Brief \x1b]0;owned\x07 \u202e",
+        "--case",
+        case,
+        "--cases",
+        folder,
+        "--store",
+        store,
     )
     assert code == 0, err
+    assert _hidden(err, keep="\n") == []  # the case's name in the sentence, as text
     code, out, err = _run("rooms", "list", "--store", store)
     assert code == 0, err
     assert _hidden(out, keep="\n") == [] and "\\x1b" in out and "\\u202e" in out

@@ -68,7 +68,7 @@ def test_a_store_made_before_rooms_kept_their_address_still_opens(tmp_path):
         "NULL, created REAL NOT NULL, view TEXT NOT NULL, view_version INTEGER NOT NULL "
         "DEFAULT 0, expires REAL NOT NULL);"
         "INSERT INTO rooms VALUES ('k' || hex(randomblob(20)), 'Old', 'ocean_cyclone', 0, '{}',"
-        " 0, 1e12);"
+        " 0, 2e9);"
     )
     db.commit()
     db.close()
