@@ -137,6 +137,7 @@ def _limit_page_requests():
     original = DocHandler.prepare
 
     async def prepare(self):
+        _writer(self)
         if len(self.request.uri or "") > MAX_URI:
             self.set_status(414)
             self.set_header("Content-Type", "text/plain; charset=utf-8")
@@ -157,6 +158,24 @@ def _limit_page_requests():
 
     DocHandler.prepare = prepare
     DocHandler._balance_desk_limited = True
+
+
+def _writer(handler) -> None:
+    """A page request's browser, known by the secret in its HttpOnly cookie (made at its first
+    page, kept ten years): the page is handed a digest of it in a request header that no
+    client can set (one sent is replaced), and only it may change the notes it writes."""
+    import hashlib
+    import secrets
+
+    from .desk.room import WRITER_COOKIE, WRITER_HEADER
+
+    secret = handler.get_cookie(WRITER_COOKIE) or ""
+    if not re.fullmatch(r"[A-Za-z0-9_-]{32,64}", secret):
+        secret = secrets.token_urlsafe(32)
+        handler.set_cookie(
+            WRITER_COOKIE, secret, expires_days=3650, httponly=True, samesite="Strict", path="/"
+        )
+    handler.request.headers[WRITER_HEADER] = hashlib.sha256(secret.encode()).hexdigest()[:32]
 
 
 def quiet_closed_sockets(loop, context):
@@ -333,11 +352,14 @@ def serve(
     refuses to start, unless ``open_without_passphrase``, which warns on every
     start. Returns the server (after it stops when ``start``).
     """
+    import secrets
+
     import panel as pn
     from bokeh.settings import settings as bokeh_settings
 
     from .desk import make_room_session, make_session
     from .desk.look import GLOBAL_CSS
+    from .desk.room import NAME_COOKIE
     from .library import CaseLibrary
     from .rooms import Hub, RoomLimits, StoreError, open_store
     from .rooms.store import ServerLock, default_store_path
@@ -379,8 +401,6 @@ def serve(
     headers = security_headers(host, port)
     auth = {}
     if passphrase is not None:
-        import secrets
-
         from .login import LoginGate, install
 
         # Panel's own login page and cookie; the cookie's key is new at every start; wrong
@@ -409,6 +429,13 @@ def serve(
             transforms=[_transform(headers)],
             check_unused_sessions=5000,
             unused_session_lifetime=60000,
+            # session ids signed with a key made at this start: a client cannot make its
+            # own (and walk around the page limits), nor forge what its token says
+            sign_sessions=True,
+            secret_key=secrets.token_urlsafe(48),
+            # the token, which the page's HTML holds, carries no cookie but the typed name
+            include_cookies=[NAME_COOKIE],
+            exclude_headers=["Cookie"],
             **auth,
         )
     except OSError as exc:

@@ -14,12 +14,14 @@ How fast a change reaches every follower is measured in bench/rooms.py, not here
 """
 
 import asyncio
+import json
 import os
 import threading
 import time
 import urllib.parse
 
 import pytest
+from playwright.sync_api import expect
 
 from app.rooms import SQLiteStore
 from testkit.chromium import require, room_views, settled
@@ -264,6 +266,88 @@ def test_a_wrong_link_gets_the_plain_page(server, store_path, browser):
         )
         assert "ocean_cyclone" not in text and "old room" not in text and dialogs == []
         page.close()
+
+
+def _token_payload(html):
+    """What the Bokeh session token in a page's HTML says (read by Bokeh's own decoder)."""
+    import re
+
+    from bokeh.util.token import get_token_payload
+
+    found = re.search(r'"token":\s*"([^"]+)"', html)
+    assert found, "no session token in the page"
+    return get_token_payload(found.group(1))
+
+
+def test_a_note_belongs_to_its_author_and_the_page_holds_no_cookie(server, store_path, browser):
+    room = _room(store_path, "Whose note")
+    a = _person(browser, _link(server, room), "Ana")
+    b = _person(browser, _link(server, room), "Ben")
+    a.get_by_label("New note").fill("Ana's reading of the low")
+    a.get_by_role("button", name="Add the note").click()
+    b.get_by_role("option", name="#1 Ana").first.wait_for(state="attached", timeout=WAIT)
+    # Ben reads Ana's note and cannot change it
+    b.get_by_label("Notes (choose one to read it)").select_option(index=0)
+    b.get_by_text("Only its author can edit or withdraw it.").first.wait_for(timeout=WAIT)
+    expect(b.get_by_role("button", name="Edit", exact=True)).to_be_disabled(timeout=WAIT)
+    expect(b.get_by_role("button", name="Withdraw", exact=True)).to_be_disabled(timeout=WAIT)
+    # Ana can, and the room sees "edited by Ana"
+    a.get_by_label("Notes (choose one to read it)").select_option(index=0)
+    a.locator(".bd-note-text", has_text="Ana's reading").first.wait_for(timeout=WAIT)
+    assert a.get_by_text("Only its author can edit or withdraw it.").count() == 0
+    edit = a.get_by_role("button", name="Edit", exact=True)
+    expect(edit).to_be_enabled(timeout=WAIT)
+    edit.click()
+    a.get_by_label("Edit note #1").fill("Ana's second reading")
+    a.get_by_role("button", name="Save the edit").click()
+    b.locator(".bd-note-text", has_text="second reading").first.wait_for(timeout=WAIT)
+    assert "edited by Ana" in b.locator(".bd-note").first.inner_text()
+    # a second tab of Ana's browser is Ana too
+    a2 = a.context.new_page()
+    a2.goto(_link(server, room))
+    a2.locator(".bd-room-status").first.wait_for(timeout=WAIT)
+    a2.get_by_label("Notes (choose one to read it)").select_option(index=0)
+    a2.locator(".bd-note-text", has_text="second reading").first.wait_for(timeout=WAIT)
+    assert a2.get_by_text("Only its author can edit or withdraw it.").count() == 0
+    # the store holds Ana's versions only
+    s = SQLiteStore(store_path)
+    versions = s.history(room.token, s.notes(room.token)[0].note_id)
+    s.close()
+    assert [v.author for v in versions] == ["Ana", "Ana"]
+    # no cookie value in the page's HTML, nor in the session token it holds
+    for p in (a, b):
+        html = p.content()
+        values = [c["value"] for c in p.context.cookies() if c["name"] != "bd_name"]
+        assert values and not [v for v in values if v in html], values
+        payload = _token_payload(html)
+        assert set(payload.get("cookies") or {}) <= {"bd_name"}, payload
+        assert "Cookie" not in (payload.get("headers") or {}), payload
+        assert not [v for v in values if v in json.dumps(payload, default=repr)], payload
+        writer = [c for c in p.context.cookies() if c["name"] == "bd_writer"]
+        assert writer and writer[0]["httpOnly"] and writer[0]["sameSite"] == "Strict"
+    for p in (a, b):
+        assert p.dialogs == [] and p.errors == [], (p.dialogs, p.errors)
+    a.context.close()
+    b.context.close()
+
+
+def test_an_expired_room_takes_no_more_notes(server, store_path, browser):
+    room = _room(store_path, "Short-lived")
+    ends = time.time() + 20.0
+    s = SQLiteStore(store_path)
+    s._db.execute("UPDATE rooms SET expires = ? WHERE token = ?", (ends, room.token))
+    s.close()
+    a = _person(browser, _link(server, room), "Ana")
+    wait_until(lambda: time.time() > ends + 1.0, 60, what="the room's link to expire")
+    a.get_by_label("New note").fill("written after the link expired")
+    a.get_by_role("button", name="Add the note").click()
+    a.get_by_text("This room's link has expired").first.wait_for(timeout=WAIT)
+    assert not a.get_by_role("button", name="Add the note").is_visible()
+    s = SQLiteStore(store_path)
+    assert s.notes(room.token) == []
+    s.close()
+    a.screenshot(path=os.path.join(SHOTS, "room_04_expired.png"), full_page=False)
+    a.context.close()
 
 
 def test_markup_in_notes_names_and_titles_stays_text(server, store_path, browser):

@@ -209,9 +209,12 @@ def test_notes_reach_everyone_and_are_limited_per_person(store):
     note = hub.add_note(room.token, "a", "<b>not bold</b>", VIEW)
     assert ("notes", {"note": note}) in b.got and ("notes", {"note": note}) in a.got
     assert note.author == "Ana" and note.text == "<b>not bold</b>"  # kept as typed
-    hub.edit_note(room.token, "b", note.note_id, "edited")
+    with pytest.raises(RoomError, match="only the person who wrote this note can change it"):
+        hub.edit_note(room.token, "b", note.note_id, "edited by another")
+    with pytest.raises(RoomError, match="only the person who wrote this note"):
+        hub.withdraw_note(room.token, "b", note.note_id)
+    hub.edit_note(room.token, "a", note.note_id, "edited")
     hub.add_note(room.token, "a", "two", VIEW)
-    hub.add_note(room.token, "a", "three", VIEW)
     with pytest.raises(RoomError):
         hub.add_note(room.token, "a", "four", VIEW)  # a fourth in a minute
     hub.add_note(room.token, "b", "Ben's second", VIEW)  # others are not held back
@@ -219,6 +222,23 @@ def test_notes_reach_everyone_and_are_limited_per_person(store):
         hub.add_note(room.token, "stranger", "not in the room", VIEW)
     with pytest.raises(RoomError):
         hub.join("no-such-token", "x", "X", Inbox())
+
+
+def test_one_browsers_tabs_are_one_writer(store):
+    """The tabs of one browser (one writer: app.serve's cookie) change each other's notes and
+    share one allowance of notes a minute; another browser does neither."""
+    hub = Hub(store, RoomLimits(notes_per_minute=2))
+    room = hub.create("review", "ocean_cyclone", VIEW)
+    hub.join(room.token, "tab1", "Ana", Inbox(), writer="w-ana")
+    hub.join(room.token, "tab2", "Ana", Inbox(), writer="w-ana")
+    hub.join(room.token, "other", "Ana", Inbox(), writer="w-someone-else")
+    note = hub.add_note(room.token, "tab1", "first", VIEW)
+    assert hub.edit_note(room.token, "tab2", note.note_id, "from the other tab").version == 2
+    with pytest.raises(RoomError, match="at most 2 notes a minute"):
+        hub.add_note(room.token, "tab2", "third write of this browser", VIEW)
+    with pytest.raises(RoomError, match="only the person who wrote"):
+        hub.withdraw_note(room.token, "other", note.note_id)  # the same name is not enough
+    assert hub.writer(room.token, "tab1") == "w-ana" and hub.writer(room.token, "x") == ""
 
 
 def test_a_full_room_says_so(store):

@@ -743,7 +743,7 @@ def make_room_session(
     """The page of a review room (``/room?room=TOKEN``): the desk page on the room's view,
     with the room's bar and notes; a person joins the room when their browser connects.
     A wrong or expired token gets a plain "no such room" page and nothing else."""
-    from .room import NAME_COOKIE, RoomSession, no_such_room
+    from .room import NAME_COOKIE, WRITER_HEADER, RoomSession, no_such_room
 
     try:
         args = pn.state.session_args or {}
@@ -763,8 +763,13 @@ def make_room_session(
     except Exception:  # noqa: BLE001 - no name: a guest
         name = ""
 
+    try:
+        writer = str((pn.state.headers or {}).get(WRITER_HEADER, ""))[:64]
+    except Exception:  # noqa: BLE001 - none: only this page may change its notes
+        writer = ""
+
     def extend(page, doc):
-        session = RoomSession(hub, room.token, page, name)
+        session = RoomSession(hub, room.token, page, name, writer)
         if doc is not None:
             doc.on_session_destroyed(lambda ctx: session.leave())
         return session.join

@@ -46,6 +46,11 @@ WRAP = {"flex-wrap": "wrap", "min-width": "0"}
 
 #: the browser remembers a person's name in this cookie (a year, this server only)
 NAME_COOKIE = "bd_name"
+#: a browser's own secret (HttpOnly, SameSite=Strict, set by app.serve on a page request)
+#: and the request header through which the server hands the page a digest of it: the
+#: notes a browser writes are changed by that browser only
+WRITER_COOKIE = "bd_writer"
+WRITER_HEADER = "X-Balance-Desk-Writer"
 #: run in the browser when a name is chosen: remember it
 REMEMBER_NAME_JS = (
     f"const v = (name.value_input || name.value || '').trim().slice(0, {MAX_NAME});"
@@ -279,12 +284,12 @@ class RoomNotes(pn.viewable.Viewer):
     def closed(self, why: str):
         """The room has closed: its notes stay readable and exportable, no more are written."""
         self.alert.object = alert(why)
-        for w in (self.w_show, self.w_edit, self.w_withdraw, self.w_text, self.w_pin):
+        for w in (self.w_show, self.w_edit, self.w_withdraw, self.w_text, self.w_pin, self.w_add):
             w.visible = False
-        for w in (self.w_add, self.w_cancel):
-            w.visible = False
+        self.w_cancel.visible = False
 
-    def show_detail(self, number, note, history):
+    def show_detail(self, number, note, history, mine: bool = False):
+        """The chosen note; ``mine``: this browser wrote it, so it may edit or withdraw it."""
         if note is None:
             self.detail.object = f"<div style='font-size:15px;color:{MUTED}'>No note chosen.</div>"
             for w in (self.w_show, self.w_edit, self.w_withdraw):
@@ -301,6 +306,16 @@ class RoomNotes(pn.viewable.Viewer):
             + "</li>"
             for v in history
         )
+        edited = (
+            f"; edited by {esc(note.author)}, {esc(stamp(note.created))}"
+            if note.version > 1 and not note.withdrawn
+            else ""
+        )
+        if not mine:
+            edited += (
+                f"<div style='font-size:15px;color:{MUTED}'>Only its author can edit or "
+                "withdraw it.</div>"
+            )
         state = (
             (
                 " <span style='background:#5c4400;color:#fff;padding:1px 6px;border-radius:3px'>"
@@ -312,7 +327,7 @@ class RoomNotes(pn.viewable.Viewer):
         self.detail.object = (
             f"<div class='bd-note' style='font-size:16px;color:{INK}'>"
             f"<div><b>#{number}</b> by {esc(note.first_author)}, "
-            f"{esc(stamp(note.first_created))}{state}</div>"
+            f"{esc(stamp(note.first_created))}{state}{edited}</div>"
             f"<div style='white-space:pre-wrap;margin:6px 0;padding:6px 8px;background:#f6f6f6;"
             f"border-left:4px solid {BLUE}' class='bd-note-text'>{esc(note.text)}</div>"
             f"<div style='font-size:15px;color:{MUTED}'>View: "
@@ -321,8 +336,7 @@ class RoomNotes(pn.viewable.Viewer):
             f"</summary><ul style='margin:4px 0'>{versions}</ul></details></div>"
         )
         self.w_show.disabled = False
-        self.w_edit.disabled = note.withdrawn
-        self.w_withdraw.disabled = note.withdrawn
+        self.w_edit.disabled = self.w_withdraw.disabled = note.withdrawn or not mine
 
     def __panel__(self):
         return self.layout
@@ -331,9 +345,10 @@ class RoomNotes(pn.viewable.Viewer):
 class RoomSession:
     """One browser's page in a room: what it sends to the hub and what it takes from it."""
 
-    def __init__(self, hub, token: str, page, name: str | None):
+    def __init__(self, hub, token: str, page, name: str | None, writer: str = ""):
         self.hub, self.token, self.page = hub, token, page
         self.key = uuid.uuid4().hex
+        self.writer = writer or self.key  # who may change this page's notes (its browser)
         room = hub.room(token)
         self.title = room.title if room is not None else ""
         cleaned = clean_name(name) if name else ""
@@ -377,7 +392,7 @@ class RoomSession:
     def join(self):
         """Come into the room (when the browser is there): take the room's view, or give
         the room this page's view when nobody steers it yet."""
-        snap = self.hub.join(self.token, self.key, self.name, self._notify)
+        snap = self.hub.join(self.token, self.key, self.name, self._notify, self.writer)
         self.joined = True
         if snap["steering"] == self.key:
             self.hub.change_view(self.token, self.key, self._view())
@@ -553,8 +568,8 @@ class RoomSession:
 
     def _start_edit(self):
         note = self._notes.get(self.notes.w_list.value)
-        if note is None or note.withdrawn:
-            return
+        if note is None or note.withdrawn or note.writer != self.writer:
+            return  # (the store refuses another's note too)
         self._editing = note.note_id
         self.notes.w_text.value = note.text
         self.notes.w_text.label = f"Edit note #{self._number(note.note_id)}"
@@ -600,7 +615,10 @@ class RoomSession:
             self.notes.show_detail(None, None, [])
             return
         self.notes.show_detail(
-            self._number(note.note_id), note, self.hub.history(self.token, note.note_id)
+            self._number(note.note_id),
+            note,
+            self.hub.history(self.token, note.note_id),
+            mine=note.writer == self.writer,
         )
 
     def _shown_here(self):

@@ -56,7 +56,7 @@ class Person:
     joined: float
     following: bool = True
     notify: object = None  # notify(kind, payload)
-    writes: collections.deque = dataclasses.field(default_factory=collections.deque)
+    writer: str = ""  # who may change the notes it writes: its browser (app.serve)
 
 
 class _Live:
@@ -70,6 +70,9 @@ class _Live:
         self.people: collections.OrderedDict[str, Person] = collections.OrderedDict()
         self.steering: str | None = None
         self.lock = threading.RLock()
+        # the times of each writer's notes in the last minute: counted per browser (or per
+        # page where none is known), so several tabs of one browser share one allowance
+        self.writes: collections.defaultdict = collections.defaultdict(collections.deque)
 
 
 def clean_name(name) -> str:
@@ -130,8 +133,9 @@ class Hub:
             live.steering = None
 
     # -- people -------------------------------------------------------------------------
-    def join(self, token, key, name, notify):
-        """Come into the room, following it. Returns the room's snapshot."""
+    def join(self, token, key, name, notify, writer=""):
+        """Come into the room, following it. Returns the room's snapshot. ``writer`` is who
+        may change the notes this page writes (its browser; "" for no one but itself)."""
         live = self._must(token)
         with live.lock:
             if key not in live.people and len(live.people) >= self.limits.people:
@@ -139,7 +143,9 @@ class Hub:
                 raise RoomError(
                     f"this room is full (it holds {n} {'person' if n == 1 else 'people'} at once)"
                 )
-            live.people[key] = Person(key, clean_name(name) or "someone", time.time(), True, notify)
+            live.people[key] = Person(
+                key, clean_name(name) or "someone", time.time(), True, notify, writer or key
+            )
             if live.steering is None:
                 live.steering = key
             snap = self._snapshot(live)
@@ -227,20 +233,21 @@ class Hub:
         if p is None:
             raise RoomError("you are not in this room")
         now = time.monotonic()
-        while p.writes and now - p.writes[0] > 60:
-            p.writes.popleft()
-        if len(p.writes) >= self.limits.notes_per_minute:
+        writes = live.writes[p.writer]
+        while writes and now - writes[0] > 60:
+            writes.popleft()
+        if len(writes) >= self.limits.notes_per_minute:
             raise RoomError(f"at most {self.limits.notes_per_minute} notes a minute: wait a moment")
-        p.writes.append(now)
+        writes.append(now)
         return p
 
     def add_note(self, token, key, text, view, point=None, request=None):
         live = self._must(token)
         with live.lock:
             p = self._allow_write(live, key)
-            name = p.name
+            name, writer = p.name, p.writer
         try:
-            note = self.store.add_note(token, name, text, view, point, request)
+            note = self.store.add_note(token, name, text, view, point, request, writer)
         except StoreError as exc:
             raise RoomError(str(exc)) from None
         self._tell(live, "notes", {"note": note})
@@ -249,9 +256,9 @@ class Hub:
     def edit_note(self, token, key, note_id, text):
         live = self._must(token)
         with live.lock:
-            name = self._allow_write(live, key).name
+            p = self._allow_write(live, key)
         try:
-            note = self.store.edit_note(token, note_id, name, text)
+            note = self.store.edit_note(token, note_id, p.name, text, p.writer)
         except StoreError as exc:
             raise RoomError(str(exc)) from None
         self._tell(live, "notes", {"note": note})
@@ -260,9 +267,9 @@ class Hub:
     def withdraw_note(self, token, key, note_id):
         live = self._must(token)
         with live.lock:
-            name = self._allow_write(live, key).name
+            p = self._allow_write(live, key)
         try:
-            note = self.store.withdraw_note(token, note_id, name)
+            note = self.store.withdraw_note(token, note_id, p.name, p.writer)
         except StoreError as exc:
             raise RoomError(str(exc)) from None
         self._tell(live, "notes", {"note": note})
@@ -270,6 +277,12 @@ class Hub:
 
     def notes(self, token):
         return self.store.notes(token)
+
+    def writer(self, token, key) -> str:
+        """Who may change the notes the page ``key`` writes ("" when it is not in the room)."""
+        live = self._get(token)
+        p = None if live is None else live.people.get(key)
+        return "" if p is None else p.writer
 
     def history(self, token, note_id):
         return self.store.history(token, note_id)

@@ -98,10 +98,14 @@ class Note:
     withdrawn: bool
     first_author: str = ""
     first_created: float = 0.0
+    #: who may change it: a digest of its author's browser's secret (app.serve), "" for a
+    #: note written outside a browser; never exported
+    writer: str = ""
 
     def as_dict(self) -> dict:
         d = dataclasses.asdict(self)
         d["point"] = list(self.point) if self.point is not None else None
+        del d["writer"]
         return d
 
 
@@ -115,10 +119,19 @@ class RoomStore:
     def rooms(self) -> list: ...
     def save_view(self, token: str, view: dict) -> int: ...
     def add_note(
-        self, token: str, author: str, text: str, view: dict, point=None, request: str | None = None
+        self,
+        token: str,
+        author: str,
+        text: str,
+        view: dict,
+        point=None,
+        request: str | None = None,
+        writer: str = "",
     ) -> Note: ...
-    def edit_note(self, token: str, note_id: str, author: str, text: str) -> Note: ...
-    def withdraw_note(self, token: str, note_id: str, author: str) -> Note: ...
+    def edit_note(
+        self, token: str, note_id: str, author: str, text: str, writer: str = ""
+    ) -> Note: ...
+    def withdraw_note(self, token: str, note_id: str, author: str, writer: str = "") -> Note: ...
     def notes(self, token: str) -> list: ...
     def history(self, token: str, note_id: str) -> list: ...
     def close(self) -> None: ...
@@ -182,18 +195,21 @@ class SQLiteStore(RoomStore):
             self._db.execute("PRAGMA synchronous=FULL")
             self._db.execute("PRAGMA foreign_keys=ON")
             self._db.executescript(_SCHEMA)
-            columns = {row[1] for row in self._db.execute("PRAGMA table_info(rooms)")}
-            if "base_url" not in columns:  # a store made before rooms kept their address
-                try:
-                    self._db.execute(
-                        "ALTER TABLE rooms ADD COLUMN base_url TEXT NOT NULL DEFAULT ''"
-                    )
-                except sqlite3.OperationalError as exc:  # another process added it first
-                    if "duplicate column" not in str(exc):
-                        raise
+            # columns a store made by an earlier version lacks
+            self._add_column("rooms", "base_url TEXT NOT NULL DEFAULT ''")
+            self._add_column("notes", "writer TEXT NOT NULL DEFAULT ''")
         except (sqlite3.Error, OSError) as exc:
             raise StoreError(f"the room store {path} cannot be used ({exc})") from None
         self._lock = threading.Lock()
+
+    def _add_column(self, table, column):
+        if column.split()[0] in {row[1] for row in self._db.execute(f"PRAGMA table_info({table})")}:
+            return
+        try:
+            self._db.execute(f"ALTER TABLE {table} ADD COLUMN {column}")
+        except sqlite3.OperationalError as exc:  # another process added it first
+            if "duplicate column" not in str(exc):
+                raise
 
     # -- rooms ----------------------------------------------------------------------
     def create_room(self, title, case, view=None, days=30.0, base_url="") -> Room:
@@ -249,7 +265,7 @@ class SQLiteStore(RoomStore):
             ).fetchone()[0]
 
     # -- notes ----------------------------------------------------------------------
-    def add_note(self, token, author, text, view, point=None, request=None) -> Note:
+    def add_note(self, token, author, text, view, point=None, request=None, writer="") -> Note:
         author = _clean(author, MAX_NAME, "name")
         text = _clean(text, MAX_NOTE, "note")
         lon, lat = _point(point)
@@ -265,7 +281,7 @@ class SQLiteStore(RoomStore):
             note_id = secrets.token_hex(8)
             self._db.execute(
                 "INSERT INTO notes (room, note_id, version, author, created, text, view, lon, "
-                "lat, withdrawn, request) VALUES (?, ?, 1, ?, ?, ?, ?, ?, ?, 0, ?)",
+                "lat, withdrawn, request, writer) VALUES (?, ?, 1, ?, ?, ?, ?, ?, ?, 0, ?, ?)",
                 (
                     token,
                     note_id,
@@ -276,32 +292,37 @@ class SQLiteStore(RoomStore):
                     lon,
                     lat,
                     None if request is None else str(request),
+                    str(writer),
                 ),
             )
             return self._version(note_id, 1)
 
-    def edit_note(self, token, note_id, author, text) -> Note:
+    def edit_note(self, token, note_id, author, text, writer="") -> Note:
+        """A new version of the note's text; only its writer (see :class:`Note`) may."""
         return self._next_version(
-            token, note_id, author, _clean(text, MAX_NOTE, "note"), withdrawn=False
+            token, note_id, author, _clean(text, MAX_NOTE, "note"), False, writer
         )
 
-    def withdraw_note(self, token, note_id, author) -> Note:
-        return self._next_version(token, note_id, author, None, withdrawn=True)
+    def withdraw_note(self, token, note_id, author, writer="") -> Note:
+        """The note marked withdrawn (a new version); only its writer may."""
+        return self._next_version(token, note_id, author, None, True, writer)
 
-    def _next_version(self, token, note_id, author, text, withdrawn) -> Note:
+    def _next_version(self, token, note_id, author, text, withdrawn, writer) -> Note:
         author = _clean(author, MAX_NAME, "name")
         with self._lock, self._db:
             last = self._db.execute(
-                "SELECT version, text, view, lon, lat FROM notes WHERE room = ? AND note_id = ? "
-                "ORDER BY version DESC LIMIT 1",
+                "SELECT version, text, view, lon, lat, writer FROM notes WHERE room = ? AND "
+                "note_id = ? ORDER BY version DESC LIMIT 1",
                 (token, note_id),
             ).fetchone()
             if last is None:
                 raise StoreError("no such note in this room")
+            if last[5] != str(writer):
+                raise StoreError("only the person who wrote this note can change it")
             version = last[0] + 1
             self._db.execute(
                 "INSERT INTO notes (room, note_id, version, author, created, text, view, lon, "
-                "lat, withdrawn) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                "lat, withdrawn, writer) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
                 (
                     token,
                     note_id,
@@ -313,6 +334,7 @@ class SQLiteStore(RoomStore):
                     last[3],
                     last[4],
                     int(withdrawn),
+                    last[5],
                 ),
             )
             return self._version(note_id, version)
@@ -340,8 +362,8 @@ class SQLiteStore(RoomStore):
 
     def _version(self, note_id, version) -> Note:
         row = self._db.execute(
-            "SELECT note_id, version, room, author, created, text, view, lon, lat, withdrawn "
-            "FROM notes WHERE note_id = ? AND version = ?",
+            "SELECT note_id, version, room, author, created, text, view, lon, lat, withdrawn, "
+            "writer FROM notes WHERE note_id = ? AND version = ?",
             (note_id, version),
         ).fetchone()
         first = self._db.execute(
@@ -360,6 +382,7 @@ class SQLiteStore(RoomStore):
             bool(row[9]),
             first[0],
             first[1],
+            row[10],
         )
 
     def integrity(self) -> str:
