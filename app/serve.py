@@ -41,6 +41,14 @@ __all__ = [
 #: on a request's head is 64 KiB); within it every value of a link is still refused on
 #: its own past 400 characters (app.state.MAX_QUERY_VALUE), so the page works and says so
 MAX_URI = 60000
+#: the largest request body taken (bytes), with "413" beyond it: the only bodies the desk
+#: takes are the login form's (a name and a passphrase); Tornado's own bound is 100 MB
+MAX_BODY = 16 * 1024
+#: the largest websocket message a page may send (bytes; Bokeh's own bound is 20 MB): the
+#: page sends widget changes and drawn regions, far smaller; a larger one closes the socket
+MAX_WS_MESSAGE = 1024 * 1024
+#: a log line is cut to this many characters (a malformed message was logged whole: 400 kB)
+MAX_LOG_LINE = 2000
 
 log = logging.getLogger(__name__)
 
@@ -178,6 +186,67 @@ def _writer(handler) -> None:
     handler.request.headers[WRITER_HEADER] = hashlib.sha256(secret.encode()).hexdigest()[:32]
 
 
+def bound_bodies(app, limit: int = MAX_BODY, headers: dict | None = None) -> None:
+    """Answer "413 Payload Too Large" to a request whose body would exceed ``limit`` bytes,
+    from its headers, before a byte of the body is read (the server's own ``max_body_size``,
+    set to the same limit, then closes the connection). ``app`` is the server's Tornado
+    application (an HTTPServerConnectionDelegate); ``headers`` go on the answer too."""
+    from tornado import httputil
+
+    class Refuse(httputil.HTTPMessageDelegate):
+        def __init__(self, inner, conn):
+            self.inner, self.conn, self.refused = inner, conn, False
+
+        def headers_received(self, start_line, request_headers):
+            try:
+                size = int(request_headers.get("Content-Length", "0"))
+            except ValueError:
+                size = 0
+            if size <= limit:
+                return self.inner.headers_received(start_line, request_headers)
+            self.refused = True
+            body = f"The request is larger than {limit} bytes.\n".encode()
+            answer = httputil.HTTPHeaders(
+                {
+                    "Content-Type": "text/plain; charset=utf-8",
+                    "Content-Length": str(len(body)),
+                    "Connection": "close",
+                    **(headers or {}),
+                }
+            )
+            start = httputil.ResponseStartLine("HTTP/1.1", 413, "Payload Too Large")
+            self.conn.write_headers(start, answer, body)
+            self.conn.finish()
+            return None
+
+        def data_received(self, chunk):
+            return None if self.refused else self.inner.data_received(chunk)
+
+        def finish(self):
+            if not self.refused:
+                self.inner.finish()
+
+        def on_connection_close(self):
+            if not self.refused:
+                self.inner.on_connection_close()
+
+    original = app.start_request
+    app.start_request = lambda server_conn, request_conn: Refuse(
+        original(server_conn, request_conn), request_conn
+    )
+
+
+class CutLongLines(logging.Filter):
+    """A log line longer than :data:`MAX_LOG_LINE` characters is cut, saying how much."""
+
+    def filter(self, record):
+        msg = record.getMessage()
+        if len(msg) > MAX_LOG_LINE:
+            cut = len(msg) - MAX_LOG_LINE
+            record.msg, record.args = f"{msg[:MAX_LOG_LINE]}... ({cut} characters cut)", ()
+        return True
+
+
 def quiet_closed_sockets(loop, context):
     """The event loop's handler of errors nobody collected. A page closed while the server
     was still writing to it leaves writes that fail with "closed" and that nobody awaits
@@ -310,10 +379,15 @@ def _set_up_logging(log_level) -> None:
     loggers (named by module under app and balance_core) at ``log_level``; kill -USR1 prints
     every thread's stack to stderr (a stuck server shows where)."""
     logging.basicConfig(level=logging.INFO, format="%(asctime)s %(levelname)s %(message)s")
-    for name in ("tornado.access", "bokeh.server.views.ws", "bokeh", "tornado", "panel"):
+    names = ("tornado.access", "bokeh.server.views.ws", "bokeh", "tornado", "panel")
+    for name in names:
         logging.getLogger(name).addFilter(HideRoomKeys())
-    for handler in logging.getLogger().handlers:
-        handler.addFilter(HideRoomKeys())
+    # every handler, the root's and those Bokeh and Panel add to their own loggers
+    for logger in [logging.getLogger()] + [logging.getLogger(n) for n in names]:
+        for handler in logger.handlers:
+            if not any(isinstance(f, CutLongLines) for f in handler.filters):
+                handler.addFilter(HideRoomKeys())
+                handler.addFilter(CutLongLines())
     for name in ("app", "balance_core"):
         logging.getLogger(name).setLevel(log_level)  # DEBUG: page timings
     logging.getLogger("panel.util").setLevel(logging.ERROR)  # it warns of every odd link value
@@ -436,6 +510,8 @@ def serve(
             # the token, which the page's HTML holds, carries no cookie but the typed name
             include_cookies=[NAME_COOKIE],
             exclude_headers=["Cookie"],
+            http_server_kwargs={"max_body_size": MAX_BODY},
+            websocket_max_message_size=MAX_WS_MESSAGE,
             **auth,
         )
     except OSError as exc:
@@ -444,6 +520,7 @@ def serve(
         ) from None
     finally:
         quiet.setLevel(level)
+    bound_bodies(server._tornado, MAX_BODY, headers)
     if port == 0:  # the system picked the port as the server bound it: known only now
         port = server.port
         headers.update(security_headers(host, port))

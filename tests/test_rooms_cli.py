@@ -20,7 +20,7 @@ import urllib.request
 import pytest
 
 from app.rooms import SQLiteStore
-from testkit.serving import start_server, stop_server
+from testkit.serving import start_server, stop_server, wait_until
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
@@ -189,6 +189,82 @@ def test_a_second_server_on_a_store_is_refused_with_one_sentence(tmp_path):
         stop_server(proc)
     proc, url, _ = start_server(["--store", store])  # free again once the first has stopped
     stop_server(proc)
+
+
+def test_bodies_and_websocket_messages_are_bounded():
+    """A body over 16 KiB gets 413 from its headers (was: up to 100 MB taken); a websocket
+    message over 1 MiB closes the socket (was: up to 20 MB)."""
+    import tornado.ioloop
+
+    from app.serve import MAX_BODY, MAX_LOG_LINE, MAX_WS_MESSAGE
+    from testkit.wire_page import WirePage
+
+    proc, url, port = start_server()
+    try:
+        for path in ("login", "", "room"):
+            req = urllib.request.Request(url + path, data=b"x" * (MAX_BODY + 1), method="POST")
+            with pytest.raises(urllib.error.HTTPError) as info:
+                urllib.request.urlopen(req, timeout=60)
+            assert info.value.code == 413, path
+            assert info.value.headers.get("X-Content-Type-Options") == "nosniff"
+        req = urllib.request.Request(url, data=b"x" * 100, method="POST")
+        with pytest.raises(urllib.error.HTTPError) as info:  # within the bound: no 413
+            urllib.request.urlopen(req, timeout=60)
+        assert info.value.code != 413
+
+        async def send(size):
+            """A message of ``size`` bytes that is no Bokeh message; returns once the server
+            has closed the socket."""
+            page = WirePage(url)
+            await page.open()
+            await page._ws.write_message("{not a header")
+            await page._ws.write_message("{}")
+            await page._ws.write_message("x" * size)
+            while await page._ws.read_message() is not None:
+                pass  # what the server had sent already, then None: closed
+
+        loop = tornado.ioloop.IOLoop.current()
+        said = "server failed to parse a message"
+        # over the bound: the socket is closed before the message reaches the page's server
+        loop.run_sync(lambda: send(MAX_WS_MESSAGE + 1), timeout=180)
+        assert said not in open(proc.log_path).read()
+        # within it: the message is read, found to be no message, and the socket closed
+        loop.run_sync(lambda: send(MAX_WS_MESSAGE - 100), timeout=180)
+        wait_until(lambda: said in open(proc.log_path).read(), 60, proc=proc)
+    finally:
+        out = stop_server(proc)
+    # Bokeh logs the message it could not read: cut (was: all of it, on one line)
+    longest = max(len(line) for line in out.splitlines())
+    assert longest < MAX_LOG_LINE + 200 and "characters cut" in out, longest
+
+
+def test_long_log_lines_are_cut():
+    import logging
+
+    from app.serve import MAX_LOG_LINE, CutLongLines, HideRoomKeys
+
+    record = logging.LogRecord(
+        "t", logging.ERROR, __file__, 1, "fragment: %r", ("x" * 400_000,), None
+    )
+    CutLongLines().filter(record)
+    shown = record.getMessage()
+    assert len(shown) < MAX_LOG_LINE + 60 and shown.endswith("characters cut)"), shown[-80:]
+    # the server's log handlers carry the filter (app.serve._set_up_logging)
+    from app.serve import _set_up_logging
+
+    root = logging.getLogger()
+    before = list(root.handlers)
+    try:
+        _set_up_logging(logging.INFO)
+        assert root.handlers and all(
+            any(isinstance(f, CutLongLines) for f in h.filters)
+            and any(isinstance(f, HideRoomKeys) for f in h.filters)
+            for h in root.handlers
+        )
+    finally:
+        for h in root.handlers:
+            h.filters = [f for f in h.filters if not isinstance(f, (CutLongLines, HideRoomKeys))]
+        root.handlers[:] = before or root.handlers
 
 
 def test_serving_another_address_without_a_passphrase_warns_at_every_start():
