@@ -186,6 +186,25 @@ def test_taking_over_stepping_out_and_back_in(server, store_path, browser):
     b.context.close()
 
 
+def test_when_the_one_steering_closes_the_page_the_next_takes_over_at_once(
+    server, store_path, browser
+):
+    """The steering page's socket closing hands the room over; before, the room waited for
+    the server to discard the session (up to a minute; 23 s measured)."""
+    room = _room(store_path, "Handover")
+    a = _person(browser, _link(server, room), "Ana")
+    _wait_status(a, "You steer")
+    b = _person(browser, _link(server, room), "Ben")
+    _wait_status(b, "You follow Ana")
+    a.context.close()  # the tab and its socket close
+    _wait_status(b, "You steer")
+    # it was the closed socket that handed over, not the end of the session
+    with open(server["proc"].log_path) as fh:
+        log = fh.read()
+    assert "a page left its review room (its page closed)" in log
+    b.context.close()
+
+
 def test_a_note_reaches_the_other_and_survives_a_restart(browser, tmp_path):
     # a server and a store of its own (one server per store), restarted in the middle
     store_path = str(tmp_path / "rooms.sqlite")

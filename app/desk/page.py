@@ -771,6 +771,12 @@ def make_room_session(
     def extend(page, doc):
         session = RoomSession(hub, room.token, page, name, writer)
         if doc is not None:
+            from bokeh.events import ConnectionLost
+
+            # the page's socket closed (its tab closed, its browser gone): it leaves at once
+            # and, if it steered, the next one takes over; the session itself is discarded
+            # only later (unused_session_lifetime), which made a handover take a minute
+            doc.on_event(ConnectionLost, lambda event: session.leave("its page closed"))
             doc.on_session_destroyed(lambda ctx: session.leave())
         return session.join
 

@@ -400,10 +400,12 @@ class RoomSession:
             self._apply(snap["view"])
         self._people(self.hub.snapshot(self.token))
 
-    def leave(self):
+    def leave(self, why: str = "its session ended"):
+        """Out of the room (if it steered, the longest follower takes over)."""
         if self.joined:
             self.joined = False
             self.hub.leave(self.token, self.key)
+            log.info("a page left its review room (%s)", why)
 
     # -- from the hub ---------------------------------------------------------------------
     def _notify(self, kind, payload):
