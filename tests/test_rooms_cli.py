@@ -238,6 +238,50 @@ def test_bodies_and_websocket_messages_are_bounded():
     assert longest < MAX_LOG_LINE + 200 and "characters cut" in out, longest
 
 
+def test_a_session_a_client_makes_itself_is_refused():
+    """Session ids are signed with a key made at each start: a token a client writes itself
+    (to open sessions past the page limit, or to claim cookies or headers) is refused; the
+    page's own token works."""
+    import tornado.httpclient
+    import tornado.ioloop
+    import tornado.websocket
+    from bokeh.util.token import generate_jwt_token
+
+    from testkit.wire_page import WirePage
+
+    proc, url, port = start_server()
+    try:
+        own = generate_jwt_token(
+            "a-session-of-my-own",
+            secret_key=None,
+            signed=False,
+            extra_payload={"headers": {"X-Balance-Desk-Writer": "someone"}, "cookies": {}},
+        )
+
+        async def connect(token):
+            req = tornado.httpclient.HTTPRequest(f"ws://127.0.0.1:{port}/ws")
+            conn = await tornado.websocket.websocket_connect(req, subprotocols=["bokeh", token])
+            got = []
+            while (m := await conn.read_message()) is not None:
+                got.append(m)
+            return got
+
+        loop = tornado.ioloop.IOLoop.current()
+        assert loop.run_sync(lambda: connect(own), timeout=120) == []  # closed, nothing sent
+
+        async def real():
+            page = WirePage(url)
+            await page.open()  # the page's own token: a document comes back
+            page.close()
+            return page.widgets
+
+        assert loop.run_sync(real, timeout=180)
+        with open(proc.log_path) as fh:
+            assert "invalid signature" in fh.read()
+    finally:
+        stop_server(proc)
+
+
 def test_long_log_lines_are_cut():
     import logging
 
