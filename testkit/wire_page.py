@@ -34,6 +34,9 @@ from tornado.websocket import websocket_connect
 
 __all__ = ["WirePage", "verdict_where"]
 
+#: what a cookie's value may hold as it is (a signed cookie's bars and quotes); the rest is
+#: percent-encoded (a typed name's spaces and letters beyond ASCII)
+COOKIE_SAFE = "".join(chr(c) for c in range(33, 127) if chr(c) not in ";,\\%")
 TOKEN = re.compile(r'"token":"([^"]+)"')
 WHERE = re.compile(r"class='bd-verdict-where'[^>]*>(.*?)</div>", re.S)
 #: the page's hidden mark of what it is doing (app.desk.page.Page.settle_mark)
@@ -113,7 +116,9 @@ class WirePage:
         self._n = 0
 
     async def open(self):
-        cookie = "; ".join(f"{k}={urllib.parse.quote(v)}" for k, v in self.cookies.items())
+        cookie = "; ".join(
+            f"{k}={urllib.parse.quote(v, safe=COOKIE_SAFE)}" for k, v in self.cookies.items()
+        )
         resp = await AsyncHTTPClient().fetch(
             HTTPRequest(
                 self.link, headers={"Cookie": cookie, "User-Agent": self.agent}, request_timeout=180
@@ -123,7 +128,7 @@ class WirePage:
         parts = urllib.parse.urlsplit(self.link)
         ws = urllib.parse.urlunsplit(("ws", parts.netloc, parts.path.rstrip("/") + "/ws", "", ""))
         self._ws = await websocket_connect(
-            HTTPRequest(ws, headers={"User-Agent": self.agent}),
+            HTTPRequest(ws, headers={"Cookie": cookie, "User-Agent": self.agent}),
             subprotocols=["bokeh", token],
             max_message_size=1 << 30,
         )

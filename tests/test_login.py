@@ -31,11 +31,13 @@ def test_the_first_failures_are_free_then_each_attempt_waits_twice_as_long():
     clock = Clock()
     gate = LoginGate(clock)
     waits = []
-    for _ in range(12):
+    for _ in range(40):
         w = _fail(gate)
         waits.append(w)
         clock.t += w  # the attempt waited its hold
-    assert waits == [0, 0, 0, 1, 2, 4, 8, 16, 30, 30, 30, 30]
+    assert waits == [0, 0, 0, 1, 2, 4, 8, 16] + [30] * 32
+    # forty wrong passphrases take 14 minutes instead of a second
+    assert sum(waits) == 991
 
 
 def test_the_right_passphrase_gets_in_after_its_wait_and_clears_the_failures():
@@ -103,10 +105,15 @@ def _login(url, password, jar):
         return exc.code, exc.url
 
 
-def test_a_server_holds_wrong_passphrases_logs_them_and_still_lets_the_right_one_in():
+def test_a_server_holds_wrong_passphrases_logs_them_and_still_lets_the_right_one_in(tmp_path):
+    from app.rooms import SQLiteStore
+
+    store = str(tmp_path / "rooms.sqlite")
+    s = SQLiteStore(store)
+    key = s.create_room("Behind the door", "ocean_cyclone").token
+    s.close()
     env = dict(os.environ, BALANCE_DESK_PASSPHRASE=PASSPHRASE)
-    proc, url, _ = start_server([], env=env, ready_path="/login")
-    key = "Kx9_" + "q" * 28  # shaped like a room's key
+    proc, url, _ = start_server(["--store", store], env=env, ready_path="/login")
     try:
         # a room link opened before signing in: sent to the login page with the link as
         # ``next``; the cookie that keeps it is out of scripts' reach and not sent by
@@ -118,7 +125,7 @@ def test_a_server_holds_wrong_passphrases_logs_them_and_still_lets_the_right_one
         assert cookies and all("HttpOnly" in c and "SameSite=Lax" in c for c in cookies), cookies
         jar = http.cookiejar.CookieJar()
         for i in range(5):
-            status, where = _login(url, f"wrong {i}", jar)
+            status, where = _login(url, f"guess {i} zebra", jar)
             assert "error=" in where, (status, where)  # back at the door
         with open(proc.log_path) as fh:
             text = fh.read()
@@ -132,13 +139,25 @@ def test_a_server_holds_wrong_passphrases_logs_them_and_still_lets_the_right_one
             "2 s)",
             "4 s)",
         ]
-        assert "wrong" not in text and PASSPHRASE not in text  # no passphrase in the log
+        assert "zebra" not in text and PASSPHRASE not in text  # no passphrase in the log
         status, where = _login(url, PASSPHRASE, jar)
         assert status == 200 and "error=" not in where and "login" not in where, where
         assert any(c.name == "user" for c in jar)
         wait_until(
             lambda: "login from 127.0.0.1 as ana" in open(proc.log_path).read(), 60, proc=proc
         )
+        # a whole session in the room behind the door: the page, its socket, a note
+        import tornado.ioloop
+
+        from testkit.wire_page import WirePage
+
+        async def visit():
+            page = WirePage(url + f"room?room={key}", cookies={c.name: c.value for c in jar})
+            await page.open()
+            page.close()
+            return page.widgets
+
+        assert "Add the note" in tornado.ioloop.IOLoop.current().run_sync(visit, timeout=180)
     finally:
         out = stop_server(proc)
     assert "Traceback" not in out, out[-3000:]
