@@ -175,7 +175,8 @@ def test_another_address_needs_a_passphrase(tmp_path):
 def test_a_second_server_on_a_store_is_refused_with_one_sentence(tmp_path):
     """A room in use lives in its server's memory: a second server on the same store would
     keep a copy of each room of its own (notes written on one never reached the other's
-    pages). It is refused; the first goes on, and once it stops the store can be served."""
+    pages). It is refused; the first goes on (that the store is free again once the first
+    has stopped: tests/test_rooms_store.py, test_a_store_has_one_server_at_a_time)."""
     store = str(tmp_path / "rooms.sqlite")
     proc, url, _ = start_server(["--store", store])
     try:
@@ -187,8 +188,6 @@ def test_a_second_server_on_a_store_is_refused_with_one_sentence(tmp_path):
         urllib.request.urlopen(url, timeout=30)  # the first still serves
     finally:
         stop_server(proc)
-    proc, url, _ = start_server(["--store", store])  # free again once the first has stopped
-    stop_server(proc)
 
 
 def test_bodies_and_websocket_messages_are_bounded():
