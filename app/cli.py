@@ -18,6 +18,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import os
 import sys
 
 # pyproj before anything that may load eccodes: the other order makes
@@ -945,6 +946,16 @@ def main(argv=None) -> int:
     sys.stdout, sys.stderr = TerminalStream(sys.stdout), TerminalStream(sys.stderr)
     try:
         return _main(argv)
+    except BrokenPipeError:
+        # the reader went away (``analyze ... | head``): no "unexpected error", exit 1; run
+        # as a program, stdout is pointed at /dev/null so the interpreter's last flush does
+        # not fail again (the Python documentation's note on SIGPIPE)
+        if argv is None:
+            try:
+                os.dup2(os.open(os.devnull, os.O_WRONLY), streams[0].fileno())
+            except (OSError, AttributeError, ValueError):
+                pass
+        return 1
     finally:
         sys.stdout, sys.stderr = streams
 
@@ -966,6 +977,8 @@ def _main(argv=None) -> int:
         return 2
     except KeyboardInterrupt:
         return 130
+    except BrokenPipeError:
+        raise  # the reader went away: main() ends quietly
     except Exception as exc:
         if debug:
             raise

@@ -381,6 +381,32 @@ def test_the_systems_of_the_level_are_listed_marked_and_chosen(library):
     assert "kt" in text and "m/s" not in text
 
 
+@pytest.mark.parametrize(
+    "case, asked, shown",
+    [
+        ("ocean_cyclone", "400", "500 hPa"),
+        ("ocean_cyclone", "1100", "1000 hPa"),
+        ("ocean_cyclone", "500", None),  # a level the case has: nothing to say
+        ("ocean_cyclone", "nonsense", None),  # not taken: its own sentence, not this one
+    ],
+)
+def test_a_link_level_the_case_lacks_says_which_level_is_shown(library, case, asked, shown):
+    import html
+
+    from app.desk.page import build_page
+
+    page = build_page(library, {"case": [case], "level": [asked]})
+    said = html.unescape(page.problems.object)
+    if shown is None:
+        assert "is not in this case" not in said, said
+    else:
+        assert (
+            f"the link's level {asked} hPa is not in this case; the nearest, {shown}, is shown"
+            in said
+        )
+        assert page.state.level == float(shown.split()[0])
+
+
 def test_a_level_with_no_system_says_so(library):
     from app.desk.page import build_page
 

@@ -213,6 +213,22 @@ def test_a_fault_in_a_process_of_its_own_exits_2_with_one_sentence(tmp_path):
     one_sentence(err)
 
 
+def test_a_reader_that_goes_away_ends_the_command_quietly(tmp_path, capsys, monkeypatch):
+    """``analyze ... | head``: the pipe closes under the command (was: "unexpected error
+    (BrokenPipeError)")."""
+    import io
+
+    class Gone(io.StringIO):
+        def write(self, text):
+            raise BrokenPipeError(32, "Broken pipe")
+
+    path = good(str(tmp_path))
+    monkeypatch.setattr(sys, "stdout", Gone())
+    code = main(["analyze", path, "--level", "500", "--format", "csv"])
+    err = capsys.readouterr().err
+    assert code == 1 and err == "", err
+
+
 def test_a_repeated_360_degree_column_is_dropped_not_fatal(tmp_path, here):
     ds, _ = latlon_dataset(np.arange(85.0, -85.1, -10.0), np.arange(0.0, 360.1, 10.0))
     path = str(tmp_path / "cyclic.nc")

@@ -655,11 +655,23 @@ def build_page(library, query: dict, thresholds: Thresholds = Thresholds(), doc=
         times = [iso(t) for t in case.times]
         if state.time not in times:  # the first valid time when the link gives none
             state.time = times[0]
-        state.level = compute.nearest_level(case, state.level)  # a level the case has
+        asked, state.level = state.level, compute.nearest_level(case, state.level)
+        if "level" in query and "level" in values_taken(query, problems) and state.level != asked:
+            # a level the case has, said like any other value of the link not taken
+            problems = [
+                *problems,
+                f"the link's level {level_text(asked)} is not in this case; the nearest, "
+                f"{level_text(state.level)}, is shown",
+            ]
     page = Page(library, state, thresholds=thresholds, problems=problems)
     if doc is not None:
         page.attach(doc)
     return page
+
+
+def values_taken(query: dict, problems) -> set:
+    """The link's parameters that were taken (those without a sentence of their own)."""
+    return {k for k in query if not any(p.startswith(f"the link's {k} ") for p in problems)}
 
 
 class EarlyBuilds:
