@@ -283,12 +283,24 @@ def run_task(task: Task) -> dict:
     import pyproj  # noqa: F401
 
     from balance_core.io import CaseError, analyze_case, analyze_systems, diagnostics_for
+    from balance_core.io.analysis import region_of
 
     try:
         # (None, a file without members, opens as its only member: the case the plan opened)
         case = _open(task.path, 0 if task.member is None else task.member, task.min_lat)
         k = case.level_index(task.level_hpa)
-        band = None if task.systems else _band(case, task.regions)
+        # a box this file's grid does not hold costs its own rows only, and is said with the
+        # whole grid's extent (checked before the grid is cut to the boxes' band)
+        regions, problems = [], []
+        for name, box in task.regions:
+            try:
+                region_of(case, box)
+                regions.append((name, box))
+            except CaseError as exc:
+                problems.append(f"region {name}: {exc}")
+        if not task.systems and not regions:
+            return {"rows": [], "error": "; ".join(problems)}
+        band = None if task.systems else _band(case, regions)
         if band is not None:
             case = case.rows(*band)
         diag = diagnostics_for(case, k, task.time_index)
@@ -298,10 +310,14 @@ def run_task(task: Task) -> dict:
             for i, s in enumerate(out["systems"], 1):
                 rows.append(flatten(s["report"], task, f"{s['kind']} {i}", system=s))
         else:
-            for name, box in task.regions:
-                rep = analyze_case(case, task.level_hpa, task.time_index, box, diagnostics=diag)
+            for name, box in regions:
+                try:
+                    rep = analyze_case(case, task.level_hpa, task.time_index, box, diagnostics=diag)
+                except CaseError as exc:
+                    problems.append(f"region {name}: {exc}")
+                    continue
                 rows.append(flatten(rep, task, name))
-        return {"rows": rows, "error": None}
+        return {"rows": rows, "error": "; ".join(problems) or None}
     except CaseError as exc:
         return {"rows": [], "error": str(exc)}
     except Exception as exc:  # noqa: BLE001 - the run goes on; the sentence says what broke

@@ -82,3 +82,25 @@ def test_a_box_over_most_of_the_grid_is_computed_on_the_whole_grid():
     assert _band(case, [("all", (-70.0, 0.0, 26.0, 64.0))]) is None
     assert _band(case, [("none", (100.0, 120.0, 26.0, 64.0))]) is None  # no point: analyze says
     assert _band(case, [("bad", (-70.0, 0.0, 64.0, 26.0))]) is None  # south > north: likewise
+
+
+def test_a_box_outside_one_files_grid_costs_only_its_own_rows(tmp_path):
+    """Two boxes, a file whose grid (25 to 65N) holds only the first: before, the piece lost
+    the first box's row too, and its error gave the band's extent (36 to 64N), not the
+    grid's."""
+    import numpy as np
+
+    from app.batch import Task, run_task
+    from testkit.makedata import latlon_dataset
+
+    ds, _ = latlon_dataset(np.arange(65.0, 24.9, -1.0), np.arange(-30.0, 20.1, 1.0))
+    path = str(tmp_path / "small.nc")
+    ds.to_netcdf(path)
+    boxes = (("inside", (-20.0, 10.0, 40.0, 60.0)), ("north", (-20.0, 10.0, 70.0, 80.0)))
+    out = run_task(Task(path, None, 0, 500.0, boxes, False, 10.0))
+    assert [r["region"] for r in out["rows"]] == ["inside"]
+    assert out["error"].startswith("region north: box -20,10,70,80 holds no grid points")
+    assert "lat 25.0 to 65.0" in out["error"], out["error"]
+    # a piece whose boxes all lie outside says so for each and computes nothing
+    out = run_task(Task(path, None, 0, 500.0, boxes[1:] + boxes[1:], False, 10.0))
+    assert out["rows"] == [] and out["error"].count("holds no grid points") == 2

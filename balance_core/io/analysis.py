@@ -93,6 +93,13 @@ def sea_level_diagnostics_for(case: Case, time_index: int, smooth_km=None):
     )
 
 
+def region_of(case: Case, box):
+    """(region, its box as a dict, the mask of its grid points) of a box, a drawn region or
+    None (the whole grid) on ``case``; CaseError, naming the grid's extent, if it holds no
+    grid point."""
+    return _region_and_box(case, box)
+
+
 def _region_and_box(case: Case, box):
     if isinstance(box, Region):
         region = box
