@@ -33,3 +33,19 @@ def browser():
 
     with launched() as b:
         yield b
+
+
+@pytest.hookimpl(hookwrapper=True)
+def pytest_runtest_makereport(item, call):
+    """A failed test that used a module's ``server`` (a dict with its process) gets the end of
+    that server's log in its report: a page that never settled says why on the server."""
+    outcome = yield
+    rep = outcome.get_result()
+    server = getattr(item, "funcargs", {}).get("server")
+    proc = server.get("proc") if isinstance(server, dict) else None
+    if rep.when == "call" and rep.failed and getattr(proc, "log_path", None):
+        try:
+            with open(proc.log_path, encoding="utf-8", errors="replace") as fh:
+                rep.sections.append(("the server's log (its end)", fh.read()[-20000:]))
+        except OSError:
+            pass

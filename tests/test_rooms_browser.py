@@ -45,7 +45,9 @@ def store_path(tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def server(store_path):
-    proc, url, port = start_server(["--store", store_path])
+    # the lanes' log lines (each view asked for and computed) for the report of a failure
+    env = dict(os.environ, BALANCE_DESK_LOG="DEBUG")
+    proc, url, port = start_server(["--store", store_path], env=env)
     yield {"proc": proc, "url": url, "port": port}
     out = stop_server(proc)
     assert "Traceback" not in out, out[-3000:]
