@@ -437,6 +437,8 @@ def test_the_one_who_finds_the_room_full_is_told_so(browser, tmp_path):
         said = b.get_by_text("this room is full").first.inner_text()
         assert said == "Could not join the room: this room is full (it holds 1 person at once)."
         assert "error id" not in b.locator("body").inner_text()
+        expect(b.get_by_role("button", name="Steer the room")).to_be_hidden()
+        expect(b.get_by_role("button", name="Add the note")).to_be_hidden()
         ctx.close()
         a.context.close()
     finally:

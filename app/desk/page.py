@@ -29,7 +29,6 @@ from balance_core.scales import PRESETS
 from balance_core.verdict import Thresholds
 
 from .. import compute
-from ..rooms import RoomError
 from ..state import URL_PARAMS, ViewState, encode_query, level_text
 from ..work import POOL
 from .below import Below
@@ -850,11 +849,6 @@ def _session(library, query, thresholds, early, extend):
                 if on_connect is not None:
                     try:
                         on_connect()
-                    except RoomError as exc:  # full, or its link has expired: one sentence
-                        said = str(exc)
-                        page.problems.object = alert(
-                            said if said.endswith(".") else f"Could not join the room: {said}."
-                        )
                     except Exception:
                         eid = _error_id()
                         log.exception("could not join the room (error id %s)", eid)

@@ -392,7 +392,14 @@ class RoomSession:
     def join(self):
         """Come into the room (when the browser is there): take the room's view, or give
         the room this page's view when nobody steers it yet."""
-        snap = self.hub.join(self.token, self.key, self.name, self._notify, self.writer)
+        try:
+            snap = self.hub.join(self.token, self.key, self.name, self._notify, self.writer)
+        except RoomError as exc:  # full, or its link has expired: nothing here to steer or write
+            said = str(exc)
+            said = said if said.endswith(".") else f"Could not join the room: {said}."
+            self.bar.closed(said)
+            self.notes.closed(said)
+            return
         self.joined = True
         if snap["steering"] == self.key:
             self.hub.change_view(self.token, self.key, self._view())
