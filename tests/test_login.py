@@ -27,6 +27,15 @@ def _fail(gate, address="10.0.0.1"):
     return wait
 
 
+def _after_failures(n):
+    """(clock, gate) after ``n`` failed attempts from 10.0.0.1, each having waited its hold."""
+    clock = Clock()
+    gate = LoginGate(clock)
+    for _ in range(n):
+        clock.t += _fail(gate)
+    return clock, gate
+
+
 def test_the_first_failures_are_free_then_each_attempt_waits_twice_as_long():
     clock = Clock()
     gate = LoginGate(clock)
@@ -41,10 +50,7 @@ def test_the_first_failures_are_free_then_each_attempt_waits_twice_as_long():
 
 
 def test_the_right_passphrase_gets_in_after_its_wait_and_clears_the_failures():
-    clock = Clock()
-    gate = LoginGate(clock)
-    for _ in range(5):
-        clock.t += _fail(gate)
+    clock, gate = _after_failures(5)
     wait = gate.admit("10.0.0.1")
     assert wait == 4.0  # held like any attempt: the wait says nothing of the passphrase
     clock.t += wait
@@ -53,10 +59,7 @@ def test_the_right_passphrase_gets_in_after_its_wait_and_clears_the_failures():
 
 
 def test_attempts_sent_side_by_side_get_slots_one_hold_apart():
-    clock = Clock()
-    gate = LoginGate(clock)
-    for _ in range(6):
-        clock.t += _fail(gate)
+    _, gate = _after_failures(6)
     # six failures: the hold is 8 s; three attempts at once wait 8, 16 and 24 s
     assert [gate.admit("10.0.0.1") for _ in range(3)] == [8.0, 16.0, 24.0]
 
@@ -84,10 +87,7 @@ def test_addresses_are_held_apart_until_many_fail_together():
 
 
 def test_failures_are_forgotten_after_the_window():
-    clock = Clock()
-    gate = LoginGate(clock)
-    for _ in range(6):
-        clock.t += _fail(gate)
+    clock, gate = _after_failures(6)
     clock.t += LoginGate.WINDOW_S + 1
     assert gate.failures("10.0.0.1") == 0 and gate.admit("10.0.0.1") == 0.0
 
