@@ -83,8 +83,9 @@ class LoginGate:
         with self._lock:
             now = self.clock()
             self._pending[address] -= 1
-            if self._pending[address] <= 0:
+            if self._pending[address] <= 0:  # none waiting: its last slot has passed
                 del self._pending[address]
+                self._next.pop(address, None)
             if ok:
                 self._failures.pop(address, None)
                 return 0
