@@ -396,7 +396,7 @@ def region_outline(geom, spec):
     lons, lats = spec.outline()
     lons = np.append(lons, lons[0])
     lats = np.append(lats, lats[0])
-    x, y = geom.to_view(lons, lats)
+    x, y = geom.path_to_view(lons, lats)
     return np.asarray(x), np.asarray(y)
 
 

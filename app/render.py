@@ -77,6 +77,31 @@ class ViewGeometry:
             return x0 + (lon - x0) % 360.0, lat
         return self._forward.transform(lon, lat)
 
+    def path_to_view(self, lon, lat):
+        """View coordinates of a connected path (an outline), kept in one piece.
+
+        On a lon/lat view each point taken on its own lands in the view's 360 degrees, so a
+        path along 0 E on a 0-360 chart would jump to the chart's west edge. Here the path's
+        longitudes are made continuous and moved as one by whole turns, its west end inside
+        the view; the part that runs past the view's east end is drawn again one turn west,
+        after a break (NaN), so a region across the chart's seam shows at both edges (not
+        when that part would reach less than one column into the chart: a box ending at
+        0 E on a chart from 0 E ends at the east edge).
+        """
+        lon = np.asarray(lon, dtype=np.float64)
+        lat = np.asarray(lat, dtype=np.float64)
+        if self.crs is not None:
+            return self._forward.transform(lon, lat)
+        x0, x1 = self.extent[:2]
+        step = abs(float(self.xs[1] - self.xs[0])) if self.xs.size > 1 else 0.0
+        lon = np.rad2deg(np.unwrap(np.deg2rad(lon)))
+        lon = lon - 360.0 * np.floor((np.nanmin(lon) - x0) / 360.0)
+        if np.nanmax(lon) - 360.0 <= x0 + step:
+            # the part past the east end would reach less than a column into the west
+            return lon, lat
+        gap = np.array([np.nan])
+        return np.concatenate([lon, gap, lon - 360.0]), np.concatenate([lat, gap, lat])
+
     @functools.cached_property
     def _forward(self):
         return pyproj.Transformer.from_crs(self.crs.geodetic_crs, self.crs, always_xy=True)
