@@ -175,7 +175,12 @@ def _draw_chart(fig, ax, chart, outline):
             alpha=0.6,
             aspect="auto",
         )
-    cb = fig.colorbar(im, ax=ax, fraction=0.035, pad=0.01)
+    below, above = chart.color_cut
+    extend = {(True, True): "both", (True, False): "min", (False, True): "max"}
+    # the colour bar's pointed ends mark values beyond the scale (drawn in its end colours)
+    cb = fig.colorbar(
+        im, ax=ax, fraction=0.035, pad=0.01, extend=extend.get((below > 0, above > 0), "neither")
+    )
     cb.set_label(chart.field_label + (f" ({chart.units})" if chart.units else ""), fontsize=13)
     cb.ax.tick_params(labelsize=12)
     lx, ly, lv, labels = chart.contours

@@ -147,6 +147,8 @@ class ChartData:
     units: str
     raster: np.ndarray
     color_range: tuple
+    #: shares of the values in view below and above the colour scale
+    color_cut: tuple
     color_kind: str  # "sequential", "diverging" or "log"
     contours: tuple  # (xs, ys, levels, labels) of height
     contour_units: str
@@ -174,8 +176,15 @@ def _field_values(key, diag, state):
     return field_values(key, diag, state)
 
 
-def _color_range(vals, kind):
+def _color_range(vals, kind, *, whole=False):
+    """(low, high) of the colour scale: the 1st to 99th percentile of the values in view
+    (2nd to 99.5th, widened to whole decades, on a log scale), so that a few extreme points
+    do not wash out the rest; with ``whole`` (a smooth field whose extremes are the systems
+    themselves, heights and sea-level pressure) every value in view."""
     finite = vals[np.isfinite(vals)]
+    if whole and kind == "sequential" and finite.size:
+        lo, hi = float(finite.min()), float(finite.max())
+        return (lo, hi if hi > lo else lo + 1.0)
     if finite.size == 0:
         return (0.0, 1.0)
     if kind == "log":
@@ -193,6 +202,41 @@ def _color_range(vals, kind):
     if hi <= lo:
         hi = lo + 1.0
     return (float(lo), float(hi))
+
+
+def _color_cut(vals, kind, color_range):
+    """(share below, share above) of the values in view that lie beyond the colour scale
+    and are drawn in its end colours (on a log scale, of the positive values)."""
+    finite = vals[np.isfinite(vals)]
+    if kind == "log":
+        finite = finite[finite > 0]
+    if finite.size == 0:
+        return (0.0, 0.0)
+    lo, hi = color_range
+    return (float(np.mean(finite < lo)), float(np.mean(finite > hi)))
+
+
+def color_cut_note(cut, color_range, units) -> str:
+    """The line under a chart that says which values the colour scale does not reach."""
+    below, above = cut
+    if below == 0 and above == 0:
+        return ""
+    # a unit with a scale in it ("1e-5 s-1") goes in brackets, to stay apart from the number
+    u = "" if not units else f" ({units})" if units[0].isdigit() else f" {units}"
+    parts = []
+    if below:
+        parts.append(f"{_share(below)} of the chart lies below {color_range[0]:.4g}{u}")
+    if above:
+        parts.append(f"{_share(above)} above {color_range[1]:.4g}{u}")
+    return "Colour scale cut: " + " and ".join(parts) + ", drawn in the end colours"
+
+
+def _share(x: float) -> str:
+    """A share in %, never rounded to 0 when it is not 0."""
+    pct = 100.0 * x
+    if 0 < pct < 0.5:
+        return "under 1 %"
+    return f"{pct:.0f} %"
 
 
 def chart_data(library, state: ViewState) -> ChartData:
@@ -289,11 +333,16 @@ def chart_data(library, state: ViewState) -> ChartData:
         below = case.below_ground_mask(sel.time_index, sel.level_index)
         nb = 0 if below is None else int(np.count_nonzero(below))
         notes.append(
-            f"Grey: {100 * share:.0f} % of the level has no data"
-            + (f" ({nb} points below the ground)" if nb else "")
+            f"Grey: {_share(share)} of the level has no data"
+            + (f" ({nb} point{'s' if nb > 1 else ''} below the ground)" if nb else "")
             + "; those points are left out of every number"
         )
     title = f"{case.name} \u00b7 {level_text(sel.level_hpa)} \u00b7 {sel.when}"
+    color_range = _color_range(raster, kind, whole=key == "height")
+    color_cut = _color_cut(raster, kind, color_range)
+    cut_note = color_cut_note(color_cut, color_range, units)
+    if cut_note:
+        notes.append(cut_note)
     return ChartData(
         geom=geom,
         title=title,
@@ -304,7 +353,8 @@ def chart_data(library, state: ViewState) -> ChartData:
         field_label="sea-level pressure" if key == "height" and diag.surface else field_label(key),
         units=units,
         raster=raster,
-        color_range=_color_range(raster, kind),
+        color_range=color_range,
+        color_cut=color_cut,
         color_kind=kind,
         contours=contours,
         contour_units=zunits,

@@ -465,8 +465,10 @@ class Chart(pn.viewable.Viewer):
             dw=[x1 - x0],
             dh=[y1 - y0],
         )
-        self.colorbar.title = self.colorbar_log.title = f"{cd.field_label}" + (
-            f" ({cd.units})" if cd.units else ""
+        self.colorbar.title = self.colorbar_log.title = (
+            f"{cd.field_label}"
+            + (f" ({cd.units})" if cd.units else "")
+            + (" \u00b7 scale cut, see below" if any(cd.color_cut) else "")
         )
         lx, ly, lv, labels = cd.contours
         self.cont_src.data = dict(xs=one_line(lx), ys=one_line(ly))
