@@ -38,13 +38,19 @@ def briefing_png(
     invented_text: str,
     notes=(),
     room_notes=(),
+    balanced: float | None = None,
 ) -> bytes:
     """A PNG of the chart beside the ranked term magnitudes (see the module docstring).
 
     ``outline`` is the region's (x, y) in the chart's view coordinates, or None
     for the whole case. ``room_notes`` are a review room's notes, (label, (x, y) or
-    None, text): marked on the chart where they have a point, and listed.
+    None, text): marked on the chart where they have a point, and listed in full below.
+    ``balanced`` is the imbalance a balance may leave (the verdict's limit, a share).
     """
+    if balanced is None:
+        from balance_core.verdict import Thresholds
+
+        balanced = Thresholds().balanced
     import matplotlib
 
     matplotlib.use("Agg")
@@ -61,19 +67,28 @@ def briefing_png(
             invented_text=invented_text,
             notes=notes,
             room_notes=room_notes,
+            balanced=balanced,
         )
 
 
 def _briefing_png(
-    chart, report, outline, *, region_text, caution, invented_text, notes, room_notes
+    chart, report, outline, *, region_text, caution, invented_text, notes, room_notes, balanced
 ) -> bytes:
     import matplotlib.pyplot as plt
 
-    fig = plt.figure(figsize=(16, 9), dpi=110)
-    fig.patch.set_facecolor("white")
+    listed = room_note_lines(room_notes)
+    # the room's notes, in full, in a band below the briefing that grows with them
+    band = 0.0 if not listed else 0.45 + NOTE_LINE_IN * len(listed)
+    sheet = plt.figure(figsize=(16, 9 + band), dpi=110)
+    sheet.patch.set_facecolor("white")
+    if listed:
+        fig, below = sheet.subfigures(2, 1, height_ratios=[9, band])
+        _list_room_notes(below, listed, band)
+    else:
+        fig = sheet
     ax = fig.add_axes([0.04, 0.12, 0.55, 0.72])
-    axr = fig.add_axes([0.77, 0.36, 0.21, 0.34])
-    axb = fig.add_axes([0.77, 0.12, 0.21, 0.15])
+    axr = fig.add_axes([0.77, 0.41, 0.21, 0.31])
+    axb = fig.add_axes([0.77, 0.12, 0.21, 0.14])
     title = "balance-desk"
     if chart is not None:
         _draw_chart(fig, ax, chart, outline)
@@ -94,25 +109,58 @@ def _briefing_png(
             bbox=dict(facecolor=INVENTED_RGB_HEX, edgecolor="none", pad=6),
         )
     if report and report.get("terms"):
-        _draw_ranking(fig, axr, axb, report)
+        _draw_ranking(fig, axr, axb, report, balanced)
     else:
         axr.set_axis_off()
         axb.set_axis_off()
-    for i, n in enumerate(notes[:2]):
-        fig.text(0.04, 0.065 - 0.022 * i, figure_text(n), fontsize=10.5, color="#333333")
-    if room_notes:
-        _draw_room_notes(fig, ax if chart is not None else None, room_notes)
-    fig.text(0.04, 0.018, "Caution: " + caution, fontsize=11, color="#5a4500")
+    for i, n in enumerate(notes[:3]):
+        fig.text(0.04, 0.072 - 0.02 * i, figure_text(n), fontsize=10.5, color="#333333")
+    if room_notes and chart is not None:
+        _mark_room_notes(ax, room_notes)
+    fig.text(0.04, 0.012, "Caution: " + caution, fontsize=11, color="#5a4500")
     buf = io.BytesIO()
-    fig.savefig(buf, format="png")
-    plt.close(fig)
+    sheet.savefig(buf, format="png")
+    plt.close(sheet)
     return buf.getvalue()
 
 
-def _draw_room_notes(fig, ax, room_notes, shown=4):
-    """Notes of a review room: numbered marks on the chart, their texts at the lower right."""
-    import textwrap
+#: the height of one line of the room's notes (inches, at 10 pt)
+NOTE_LINE_IN = 0.2
+#: characters in one line of the room's notes across the image
+NOTE_WIDTH = 180
+#: at most this many lines of notes; the rest are named, to be read in the notes export
+NOTE_LINES_MAX = 150
 
+
+def room_note_lines(room_notes) -> list[str]:
+    """The lines listing a review room's notes: each note in full, wrapped, its label first
+    and its following lines indented under its text."""
+    lines: list[str] = []
+    for i, (label, _xy, text) in enumerate(room_notes):
+        wrapped = textwrap.wrap(
+            f"{label} {figure_text(text)}",
+            NOTE_WIDTH,
+            subsequent_indent=" " * (len(label) + 1),
+            break_long_words=True,
+        )
+        if len(lines) + len(wrapped) > NOTE_LINES_MAX:
+            lines.append(f"... and {len(room_notes) - i} more note(s), in full in the notes export")
+            break
+        lines.extend(wrapped)
+    return lines
+
+
+def _list_room_notes(band, lines, height_in):
+    """The room's notes, listed in the band below the briefing."""
+    top = 1.0 - 0.22 / height_in
+    band.text(0.04, top, "Room notes", fontsize=11.5, fontweight="bold", va="top")
+    for i, line in enumerate(lines):
+        y = top - (0.3 + NOTE_LINE_IN * i) / height_in
+        band.text(0.04, y, line, fontsize=10, va="top", color="#1a1a1a")
+
+
+def _mark_room_notes(ax, room_notes):
+    """A review room's notes with a point: numbered marks on the chart."""
     for label, xy, _text in room_notes:
         if ax is not None and xy is not None:
             ax.plot(*xy, marker="s", ms=9, color="#1a1a1a", mec="white", mew=1.5)
@@ -126,15 +174,6 @@ def _draw_room_notes(fig, ax, room_notes, shown=4):
                 fontweight="bold",
                 bbox=dict(facecolor="#1a1a1a", lw=0, pad=1.5),
             )
-    lines = []
-    for label, _xy, text in room_notes[:shown]:
-        short = textwrap.shorten(figure_text(text), width=70, placeholder="\u2026")
-        lines.append(f"{label} {short}")
-    if len(room_notes) > shown:
-        lines.append(f"... and {len(room_notes) - shown} more (see the notes export)")
-    fig.text(0.62, 0.105, "Room notes", fontsize=11.5, fontweight="bold", color="#1a1a1a")
-    for i, line in enumerate(lines):
-        fig.text(0.62, 0.085 - 0.0165 * i, line, fontsize=9.5, color="#1a1a1a")
 
 
 def _draw_chart(fig, ax, chart, outline):
@@ -264,7 +303,35 @@ def _draw_chart(fig, ax, chart, outline):
     ax.set_title(f"{chart.field_label}; {chart.contour_label}{interval}; {g.label}", fontsize=13)
 
 
-def _draw_ranking(fig, axr, axb, report):
+def _draw_balances(axb, report, balanced):
+    """The candidate balances as on the page: what each leaves over, in % of the pressure
+    gradient, cut at 150 % (the value written beside the bar), the limit dashed; candidates
+    not tested are not drawn."""
+    not_tested = report["verdict"].get("not_tested") or {}
+    bal = [(k, r) for k, r in report["balances"].items() if r is not None and k not in not_tested]
+    chosen = report["verdict"]["balance"]
+    names = [wording.balance_name(k) for k, _ in bal]
+    axb.barh(
+        names,
+        [min(100 * r, 150) for _, r in bal],
+        color=["#E69F00" if k == chosen else "#8a8a8a" for k, _ in bal],
+    )
+    for name, (k, r) in zip(names, bal):
+        label = f"{100 * r:.0f} %" + (" (verdict)" if k == chosen else "")
+        axb.text(min(100 * r, 150) + 2, name, label, va="center", fontsize=11)
+    axb.axvline(100 * balanced, color="black", ls="--")
+    axb.set_xlim(0, 175)
+    axb.set_xticks([0, 50, 100, 150], ["0", "50 %", "100 %", "150 %"])
+    axb.tick_params(labelsize=12)
+    axb.set_title(
+        "Candidate balances: what is left over\n"
+        f"(% of the pressure gradient; dashed: the limit, {100 * balanced:.0f} %)",
+        fontsize=11.5,
+        loc="right",
+    )
+
+
+def _draw_ranking(fig, axr, axb, report, balanced):
     avail = [t for t in report["terms"] if t["magnitude"] is not None and t["magnitude"] > 0][::-1]
     names = [wording.term_name(t["name"]) for t in avail]
     vals = [t["magnitude"] for t in avail]
@@ -282,21 +349,17 @@ def _draw_ranking(fig, axr, axb, report):
             label="a priori (region's scales)",
         )
         axr.set_xscale("log")
+        # plain "1e-4" labels: the log scale's own labels are mathematics, which the
+        # image never parses (outside text must stay text), so they would show as code
+        from matplotlib.ticker import FuncFormatter, NullFormatter
+
+        axr.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"1e{math.log10(v):.0f}"))
+        axr.xaxis.set_minor_formatter(NullFormatter())
         axr.legend(fontsize=11, loc="lower right")
     axr.set_xlabel("m s-2 (area-weighted RMS)", fontsize=12)
     axr.tick_params(labelsize=12)
     axr.set_title("Terms in the region", fontsize=14)
-    bal = [(k, r) for k, r in report["balances"].items() if r is not None]
-    chosen = report["verdict"]["balance"]
-    axb.barh(
-        [wording.balance_name(k) for k, _ in bal],
-        [min(r, 1.5) for _, r in bal],
-        color=["#E69F00" if k == chosen else "#8a8a8a" for k, _ in bal],
-    )
-    axb.axvline(0.3, color="black", ls="--")
-    axb.set_xlim(0, 1.6)
-    axb.tick_params(labelsize=12)
-    axb.set_title("Imbalance ratios (orange: the verdict)", fontsize=13)
+    _draw_balances(axb, report, balanced)
     v = report["verdict"]
     name = wording.balance_name(v["balance"])
     # the verdict's sentence names its balance first ("Geostrophic: ..."); it is not repeated

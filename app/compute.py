@@ -176,11 +176,16 @@ def _field_values(key, diag, state):
     return field_values(key, diag, state)
 
 
+#: fields whose extremes are the weather systems themselves (the centre of a low, the core
+#: of a jet): coloured over every value in view, never cut at a percentile
+WHOLE_RANGE = ("height", "speed", "temperature")
+
+
 def _color_range(vals, kind, *, whole=False):
     """(low, high) of the colour scale: the 1st to 99th percentile of the values in view
     (2nd to 99.5th, widened to whole decades, on a log scale), so that a few extreme points
-    do not wash out the rest; with ``whole`` (a smooth field whose extremes are the systems
-    themselves, heights and sea-level pressure) every value in view."""
+    do not wash out the rest; with ``whole`` (a field whose extremes are the systems
+    themselves, :data:`WHOLE_RANGE`) every value in view."""
     finite = vals[np.isfinite(vals)]
     if whole and kind == "sequential" and finite.size:
         lo, hi = float(finite.min()), float(finite.max())
@@ -338,7 +343,7 @@ def chart_data(library, state: ViewState) -> ChartData:
             + "; those points are left out of every number"
         )
     title = f"{case.name} \u00b7 {level_text(sel.level_hpa)} \u00b7 {sel.when}"
-    color_range = _color_range(raster, kind, whole=key == "height")
+    color_range = _color_range(raster, kind, whole=key in WHOLE_RANGE)
     color_cut = _color_cut(raster, kind, color_range)
     cut_note = color_cut_note(color_cut, color_range, units)
     if cut_note:

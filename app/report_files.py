@@ -3,8 +3,10 @@
 * :func:`table` -- the text ``balance-desk analyze`` prints;
 * :func:`export_json` and :func:`export_csv` -- the briefing exports: the same object
   as ``analyze --format json``, with the view's context (case, level, valid and
-  reference time, lead time, region, units), winds in the chosen unit, and every
-  value rounded to four significant digits; the CSV says each term in plain words.
+  reference time, lead time, region, units and every setting that changes a number),
+  winds in the chosen unit, and every value rounded to four significant digits; the CSV
+  says each term in plain words;
+* :func:`export_stem` -- the exports' file name: case, level, valid time and region.
 """
 
 from __future__ import annotations
@@ -12,6 +14,7 @@ from __future__ import annotations
 import io
 import json
 import math
+import re
 
 from balance_core.vocabulary import BALANCE_CLASSES
 
@@ -23,6 +26,8 @@ __all__ = [
     "export_json",
     "export_csv",
     "context_of",
+    "settings_text",
+    "export_stem",
     "clean",
     "systems_table",
     "systems_csv",
@@ -78,8 +83,60 @@ def context_of(
         "lead_time_h": rep.get("lead_time_h"),
         "valid_time_text": wording.when(rep.get("valid_time"), rep.get("reference_time")),
         "region": region_text or _box_text(rep.get("box")),
+        "box": rep.get("box"),
         "units": {"terms": "m s-2", "wind": wind_units, "height": height_units},
+        "settings": {
+            "smoothing_km": rep.get("smooth_km") or 0,
+            "tropical_mask_deg": rep.get("min_lat"),
+            "member": rep.get("member"),
+        },
     }
+
+
+def settings_text(context: dict) -> str:
+    """The settings that change the numbers, in one line (the briefing image's stamp)."""
+    st = context.get("settings") or {}
+    km = st.get("smoothing_km") or 0
+    parts = [f"smoothing {km:g} km (Gaussian)" if km else "no smoothing"]
+    if st.get("tropical_mask_deg") is not None:
+        parts.append(
+            f"quantities divided by f left out within {st['tropical_mask_deg']:g} degrees "
+            "of the equator"
+        )
+    member = st.get("member")
+    if member is not None:
+        parts.append("ensemble mean" if member == "mean" else f"ensemble member {member}")
+    units = context.get("units") or {}
+    parts.append(f"winds in {units.get('wind', 'm/s')}, heights in {units.get('height', 'm')}")
+    return "Settings: " + "; ".join(parts)
+
+
+def export_stem(context: dict) -> str:
+    """A file name (without its extension) naming the case, level, valid time and region,
+    of letters, digits, ".", "-" and "_" only: e.g.
+    ``ocean_cyclone_500hPa_2041-01-19T1200Z_52W-28W_38N-56N``."""
+    level = context.get("level_hpa")
+    level_part = f"{level:g}hPa" if level is not None else (context.get("level") or "")
+    when = str(context.get("valid_time") or "")
+    when = re.sub(r"(\d\d):(\d\d)(:\d\d)?Z?$", r"\1\2Z", when)
+    parts = [str(context.get("case") or "case"), level_part, when, _region_stem(context)]
+    stem = "_".join(p for p in parts if p)
+    return re.sub(r"[^A-Za-z0-9.\-]+", "_", stem.replace(" ", "-")).strip("_.-")[:150]
+
+
+def _region_stem(context: dict) -> str:
+    box = context.get("box")
+    if not box or box.get("west") is None:
+        return "whole-case"
+
+    def deg(v, pos, neg):
+        v = ((v + 180.0) % 360.0) - 180.0 if pos == "E" else v
+        return f"{abs(v):g}{pos if v > 0 else neg if v < 0 else ''}"
+
+    return (
+        f"{deg(box['west'], 'E', 'W')}-{deg(box['east'], 'E', 'W')}_"
+        f"{deg(box['south'], 'N', 'S')}-{deg(box['north'], 'N', 'S')}"
+    )
 
 
 def level_text(rep: dict) -> str:
@@ -119,6 +176,7 @@ def export_csv(rep: dict, context: dict) -> str:
     buf = io.StringIO()
     w = csv_writer(buf)  # outside text (a case named "=...") never a formula
     level = context["level_hpa"]
+    settings = context.get("settings") or {}
     ctx = [
         context["case"],
         context.get("level") if level is None else f"{level:g}",
@@ -126,6 +184,9 @@ def export_csv(rep: dict, context: dict) -> str:
         context["reference_time"] or "",
         _num(context["lead_time_h"]),
         context["region"],
+        _num(settings.get("smoothing_km") or 0),
+        _num(settings.get("tropical_mask_deg")),
+        "" if settings.get("member") is None else str(settings["member"]),
     ]
     w.writerow(
         [
@@ -135,6 +196,9 @@ def export_csv(rep: dict, context: dict) -> str:
             "reference time",
             "lead time (h)",
             "region",
+            "smoothing (km)",
+            "tropical mask (degrees from the equator)",
+            "member",
             "kind",
             "name",
             "value",

@@ -113,6 +113,10 @@ def test_ensemble_member_and_mean(tmp_path):
     cm = open_case(path, member="mean")
     np.testing.assert_allclose(cm.data["u"].values, arr["u"] * 1.015, rtol=1e-10)
     assert any("ensemble mean of 4 members" in n for n in cm.notes)
+    # the member read goes into the report, and so into every export's settings
+    assert analyze_case(c2, 500.0)["member"] == 2
+    assert analyze_case(cm, 500.0)["member"] == "mean"
+    assert analyze_case(open_case(_write(ds, tmp_path / "one.nc")), 500.0)["member"] is None
 
 
 def test_below_ground_levels_are_masked_and_counted(tmp_path):

@@ -249,26 +249,66 @@ def test_the_real_grib_case_has_its_outline_in_the_briefing(monkeypatch):
 
 
 def test_the_briefing_image_marks_and_lists_room_notes():
-    # a review room's notes: a numbered mark where a note has a point, its text listed
+    # a review room's notes: a numbered mark where a note has a point, each text in full
     import matplotlib
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from app.briefing_image import _draw_room_notes
+    from app.briefing_image import NOTE_WIDTH, _mark_room_notes, room_note_lines
 
     fig = plt.figure()
     ax = fig.add_axes([0.1, 0.2, 0.5, 0.7])
+    long_text = "Ben: jet exit " + " ".join(f"word{i}" for i in range(60))
     notes = [
         ("#1", (-40.0, 52.0), "Ana: the low is in gradient balance"),
-        ("#2", None, "Ben: jet exit " + "x" * 200),
+        ("#2", None, long_text),
     ] + [(f"#{i}", None, f"note {i}") for i in range(3, 7)]
-    _draw_room_notes(fig, ax, notes)
-    texts = [t.get_text() for t in fig.texts]
-    assert "#1 Ana: the low is in gradient balance" in texts
-    assert any(t.startswith("#2 Ben: jet exit") and len(t) <= 75 for t in texts)
-    assert "... and 2 more (see the notes export)" in texts
+    _mark_room_notes(ax, notes)
+    lines = room_note_lines(notes)
+    assert lines[0] == "#1 Ana: the low is in gradient balance"
+    # the long note wrapped over several lines, every word of it kept
+    second = [ln for ln in lines if ln.startswith("#2 ") or ln.startswith("   ")]
+    assert len(second) > 1 and all(len(ln) <= NOTE_WIDTH for ln in second)
+    assert " ".join(" ".join(second).split()) == "#2 " + long_text
+    assert lines[-1] == "#6 note 6"
     marks = [tuple(line.get_xydata()[0]) for line in ax.lines]
     assert marks == [(-40.0, 52.0)]  # only the note with a point is marked
     assert [a.get_text() for a in ax.texts] == ["#1"]
     plt.close(fig)
+
+
+def test_a_room_with_more_notes_than_an_image_holds_names_the_rest():
+    from app.briefing_image import NOTE_LINES_MAX, room_note_lines
+
+    notes = [(f"#{i}", None, "x " * 400) for i in range(1, 60)]
+    lines = room_note_lines(notes)
+    assert len(lines) <= NOTE_LINES_MAX + 1
+    assert lines[-1].startswith("... and ") and "in full in the notes export" in lines[-1]
+
+
+def test_the_exports_record_their_settings_and_name_their_view(library, monkeypatch):
+    # smoothing, the tropical mask and the units change the numbers: each export says them,
+    # and each file is named for its case, level, valid time and region
+    page = _page(library, smooth_km=300.0, min_lat=15.0, wind_units="kt")
+    stem = "ocean_cyclone_500hPa_2041-01-19T1200Z_52W-28W_38N-56N"
+    texts = _png_texts(page, monkeypatch)
+    assert (
+        "Settings: smoothing 300 km (Gaussian); quantities divided by f left out within 15 "
+        "degrees of the equator; winds in kt, heights in m"
+    ) in texts, texts
+    assert page.downloads.png.filename == f"{stem}.png"
+    rows = _csv_rows(page)
+    assert {r["smoothing (km)"] for r in rows} == {"300"}
+    assert {r["tropical mask (degrees from the equator)"] for r in rows} == {"15"}
+    assert {r["member"] for r in rows} == {""}  # a file without members
+    assert page.downloads.csv.filename == f"{stem}.csv"
+    ctx = json.loads(page.downloads.json_text().getvalue())["context"]
+    assert ctx["settings"] == {"smoothing_km": 300, "tropical_mask_deg": 15, "member": None}
+    assert ctx["units"]["wind"] == "kt"
+    assert page.downloads.json.filename == f"{stem}.json"
+    # without smoothing the stamp says so; the ratios are in % as on the page
+    page.state.smooth_km = 0.0
+    texts = _png_texts(page, monkeypatch)
+    assert any(t.startswith("Settings: no smoothing;") for t in texts), texts
+    assert "150 %" in texts and not any(t in ("1.5", "1.50") for t in texts)

@@ -73,12 +73,22 @@ class Downloads(pn.viewable.Viewer):
             return None
         return compute.region_outline(chart.geom, spec)
 
+    def _name(self, widget, extension):
+        """Name the file for the view it is made of (case, level, valid time, region)."""
+        ctx = self._context()
+        if not ctx.get("case"):  # no report yet: the case on screen
+            ctx = dict(ctx, case=self.page.state.case)
+        widget.filename = f"{report_files.export_stem(ctx)}.{extension}"
+
     def png_bytes(self):
         chart = self.page.chart.data
         rep = self.page.report
+        self._name(self.png, "png")
         notes = []
         if rep and rep.get("reference_time"):
             notes.append(f"Valid {wording.when(rep['valid_time'], rep['reference_time'])}")
+        if rep:
+            notes.append(report_files.settings_text(self._context()))
         return io.BytesIO(
             briefing_png(
                 chart,
@@ -89,6 +99,7 @@ class Downloads(pn.viewable.Viewer):
                 invented_text=INVENTED,
                 notes=notes,
                 room_notes=self._room_notes(chart),
+                balanced=self.page.thresholds.balanced,
             )
         )
 
@@ -105,12 +116,14 @@ class Downloads(pn.viewable.Viewer):
 
     def csv_text(self):
         rep = self.page.report
+        self._name(self.csv, "csv")
         if not rep:
             return io.StringIO("no region report yet\n")
         return io.StringIO(report_files.export_csv(rep, self._context()))
 
     def json_text(self):
         rep = self.page.report or {}
+        self._name(self.json, "json")
         return io.StringIO(report_files.export_json(rep, self._context()))
 
     def __panel__(self):

@@ -189,6 +189,7 @@ def analyze_case(
         "box": box_d,
         "smooth_km": smooth_km,
         "min_lat": case.grid.min_lat,
+        "member": case.member,
     }
     out.update(rep)
     out["sources"] = {role: dict(src) for role, src in case.sources.items()}

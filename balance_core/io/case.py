@@ -82,6 +82,8 @@ class Case:
     below: Any = None
     #: how many ensemble members the files hold (1 without a member dimension)
     member_count: int = 1
+    #: the member read (an index or "mean"); None for files without members
+    member: Any = None
 
     # -- what the data can give ----------------------------------------------------
     @property
@@ -543,7 +545,10 @@ def open_case(
     opened = [(p, open_datasets(p, budget=budget)) for p in paths]
     with _quiet_dask():
         pieces = [normalise(p, dss, member=member) for p, dss in opened]
-        return _assemble(pieces, min_lat=min_lat, name=name)
+        case = _assemble(pieces, min_lat=min_lat, name=name)
+    if case.member_count > 1:
+        case = dataclasses.replace(case, member=member)
+    return case
 
 
 def _quiet_dask():
