@@ -36,10 +36,7 @@ def start_server(args=(), *, env=None, cwd=ROOT, port=0, ready_path="/", timeout
     log = tempfile.NamedTemporaryFile("w+", suffix=".log", delete=False)
     full_env = dict(os.environ if env is None else env, PYTHONUNBUFFERED="1")
     if "--store" not in args:
-        # a store of its own: servers of tests running side by side never share one file
-        full_env["BALANCE_DESK_STORE"] = os.path.join(
-            tempfile.mkdtemp(prefix="bd-store-"), "rooms.sqlite"
-        )
+        full_env = own_store(full_env)
     proc = subprocess.Popen(
         [sys.executable, "-m", "app.cli", "serve", *args, "--port", str(port)],
         stdout=log,
@@ -69,6 +66,15 @@ def start_server(args=(), *, env=None, cwd=ROOT, port=0, ready_path="/", timeout
 
     wait_until(answers, timeout, proc=proc, what="the server to answer")
     return proc, url, port
+
+
+def own_store(env=None) -> dict:
+    """``env`` (default: this process's) with a room store of its own: a server a test
+    starts never shares a store with another (one server per store: the second is refused)."""
+    return dict(
+        os.environ if env is None else env,
+        BALANCE_DESK_STORE=os.path.join(tempfile.mkdtemp(prefix="bd-store-"), "rooms.sqlite"),
+    )
 
 
 def wait_until(condition, timeout=120.0, *, proc=None, what="the condition", every=0.1):

@@ -17,7 +17,7 @@ import pytest
 
 from app.cli import main
 from testkit.makedata import latlon_dataset
-from testkit.serving import SERVING
+from testkit.serving import SERVING, own_store
 
 ROOT = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..")
 LAT = np.arange(60.0, 39.9, -2.0)
@@ -31,7 +31,7 @@ def run(*args, timeout=120, env=None):
         text=True,
         timeout=timeout,
         cwd=ROOT,
-        env=env,
+        env=own_store(env) if args[:1] == ("serve",) else env,
     )
     return r.returncode, r.stdout, r.stderr
 
@@ -399,6 +399,7 @@ def test_serve_says_which_cases_failed_and_serves_the_others(tmp_path):
         stderr=subprocess.STDOUT,
         text=True,
         cwd=ROOT,
+        env=own_store(),
     )
     lines = []
     try:

@@ -20,7 +20,7 @@ import urllib.request
 import pytest
 
 from app.rooms import SQLiteStore
-from testkit.serving import start_server, stop_server, wait_until
+from testkit.serving import own_store, start_server, stop_server, wait_until
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
@@ -31,7 +31,7 @@ def run(*args, env=None, timeout=120):
         capture_output=True,
         text=True,
         cwd=ROOT,
-        env=env,
+        env=own_store(env) if args[:1] == ("serve",) else env,
         timeout=timeout,
     )
     return p.returncode, p.stdout, p.stderr
