@@ -50,6 +50,8 @@ __all__ = [
     "scale_sheet",
     "region_outline",
     "nearest_level",
+    "nearest_level_with_data",
+    "level_has_data",
     "case_facts",
 ]
 
@@ -109,6 +111,44 @@ def nearest_level(case, hpa: float) -> float:
         hpa = 1000.0
     levels = np.asarray(case.levels_pa, dtype=np.float64) / 100
     return float(levels[np.argmin(np.abs(np.log(levels / max(float(hpa), 1e-3))))])
+
+
+#: below these spreads across the grid a level is taken to carry nothing to draw: a wind
+#: that varies by less than calm (Beaufort force 0, under 0.5 m/s; WMO's Beaufort scale,
+#: from memory), heights that vary by less than 1 m (our own choice)
+STILL_SPREAD = {"u": 0.5, "v": 0.5, "height": 1.0}
+
+
+def level_has_data(case, hpa: float) -> bool:
+    """Whether the case's level ``hpa`` carries a field worth drawing at its first time:
+    winds or heights that vary across the grid by more than :data:`STILL_SPREAD`. A level
+    all missing, or constant (above the top of a shallow invented case), has none. Each
+    level is read once per case (the answer is kept on the case)."""
+    seen = case.__dict__.setdefault("_level_has_data", {})
+    if hpa not in seen:
+        k = case.level_index(hpa)
+        seen[hpa] = any(_varies(case, role, k) for role in STILL_SPREAD if role in case.data)
+    return seen[hpa]
+
+
+def _varies(case, role, k) -> bool:
+    a = np.asarray(case.data[role].isel(time=0, level=k).values, dtype=np.float64)
+    finite = a[np.isfinite(a)]
+    return bool(finite.size) and float(np.ptp(finite)) >= STILL_SPREAD[role]
+
+
+def nearest_level_with_data(case, hpa: float) -> float:
+    """The level :func:`nearest_level` gives, or, where that level carries nothing to draw
+    (:func:`level_has_data`), the nearest level that does (in log pressure); the nearest
+    level when none does. Sea level is kept where the case has it."""
+    near = nearest_level(case, hpa)
+    if is_sea_level(near) or level_has_data(case, near):
+        return near
+    levels = np.asarray(case.levels_pa, dtype=np.float64) / 100
+    for q in sorted(levels, key=lambda q: abs(math.log(q / near))):
+        if level_has_data(case, float(q)):
+            return float(q)
+    return near
 
 
 def case_facts(case) -> dict:
@@ -294,6 +334,10 @@ def chart_data(library, state: ViewState) -> ChartData:
         ur = render.sample(geom, uu)
         vr = render.sample(geom, vv)
         vectors = render.vector_lattice(geom, ur, vr, n_across=18)
+        if vectors["ref_speed"] <= render.CALM_MS:
+            notes.append(
+                "Calm: the vectors in view are almost all under 0.5 m/s (1 kt, Beaufort force 0)"
+            )
         ref, wunit = wording.wind(vectors["ref_speed"], state.wind_units)
         speed = _round_speed(float(ref))
         vlabel = f"Vectors: {VECTORS[kind_of_vectors]}" + (" at 10 m" if diag.surface else "")

@@ -398,12 +398,18 @@ def contour_lines(xs, ys, z, levels, min_gap=0.07):
     return lx, ly, lv, kept
 
 
+#: the wind below which the air is calm: Beaufort force 0, under 1 kt, 0.5 m/s (WMO's
+#: Beaufort scale, from memory)
+CALM_MS = 0.5
+
+
 def vector_lattice(geom: ViewGeometry, u_raster, v_raster, n_across: int = 22):
     """Thinned arrows: start points, ends and angles in view coordinates.
 
     Returns dict with x0, y0, x1, y1, angle (radians, for the arrow heads) and
     speed, for points of a lattice about ``n_across`` arrows wide; the arrow
-    length is the lattice spacing at the 95th-percentile speed.
+    length is the lattice spacing at the 95th-percentile speed (at least :data:`CALM_MS`),
+    and ``ref_speed`` that speed.
     """
     ny, nx = u_raster.shape
     step = max(1, nx // n_across)
@@ -426,8 +432,9 @@ def vector_lattice(geom: ViewGeometry, u_raster, v_raster, n_across: int = 22):
     norm = np.hypot(du, dv)
     with np.errstate(invalid="ignore", divide="ignore"):
         du, dv = du / norm, dv / norm
-    ref = float(np.nanpercentile(speed, 95)) if speed.size else 1.0
-    ref = max(ref, 1e-6)
+    ref = float(np.nanpercentile(speed, 95)) if speed.size else CALM_MS
+    # in a calm, arrows are drawn to the calm's limit, not stretched to a cell's length
+    ref = max(ref, CALM_MS)
     cell = (geom.xs[-1] - geom.xs[0]) / max(nx - 1, 1) * step
     length = cell * 0.95 * np.minimum(speed / ref, 1.5)
     x1 = x0 + du * length

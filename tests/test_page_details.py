@@ -218,3 +218,55 @@ def test_a_case_switch_lands_on_the_nearest_level_the_case_has(library):
         assert f"{want:g} hPa" in page.chart.caption.object
         assert page.report and page.report["level_hpa"] == want
         page.detach()
+
+
+def _levels_with_wind(name):
+    """The levels of a sample file whose wind varies by 0.5 m/s or more across the grid at
+    its first time, read here with netCDF4 (not through the code under test)."""
+    with netCDF4.Dataset(os.path.join(HERE, "..", "sample_cases", f"{name}.nc")) as f:
+        plev = [float(p) for p in f["plev"][:]]
+        u, v = np.asarray(f["u"][0], float), np.asarray(f["v"][0], float)
+    spread = [max(np.ptp(u[k]), np.ptp(v[k])) for k in range(len(plev))]
+    return plev, [p for p, s in zip(plev, spread) if s >= 0.5]
+
+
+def test_a_case_opens_at_the_nearest_level_with_something_to_draw(library):
+    from app.desk.page import build_page
+
+    plev, windy = _levels_with_wind("sea_breeze")
+    assert 500.0 in plev and 500.0 not in windy  # the sample is calm and even aloft
+    want = min(windy, key=lambda q: abs(np.log(q / 500.0)))
+    page = build_page(library, {"case": ["sea_breeze"]})
+    assert page.state.level == want, (page.state.level, want, windy)
+    # the ocean cyclone has wind at 500 hPa: it opens there, as before
+    page = build_page(library, {"case": ["ocean_cyclone"]})
+    assert page.state.level == 500.0
+    # the rule says no to a level with wind, and yes to a calm, even one
+    case = library.get("sea_breeze")
+    assert not compute.level_has_data(case, 500.0)
+    assert compute.level_has_data(case, want)
+
+
+def test_a_case_switch_leaves_a_level_with_nothing_to_draw(library):
+    from app.desk import Page
+
+    _, windy = _levels_with_wind("sea_breeze")
+    page = Page(library, ViewState(case="ocean_cyclone", level=500.0))
+    page.start()
+    page.state.case = "sea_breeze"
+    assert page.state.level == min(windy, key=lambda q: abs(np.log(q / 500.0)))
+    page.detach()
+
+
+def test_a_link_to_a_calm_level_shows_it_with_a_calm_arrow(library):
+    # the link's level is honoured even where the air is calm; the arrow says a calm speed
+    # (it said 1e-06 m/s), and a line says the air is calm
+    from app.desk.page import build_page
+
+    page = build_page(library, {"case": ["sea_breeze"], "level": ["500"]})
+    assert page.state.level == 500.0
+    cd = compute.chart_data(library, page.state)
+    assert cd.reference_arrow["text"] == "0.5 m/s"
+    assert any(n.startswith("Calm:") for n in cd.notes), cd.notes
+    windy = compute.chart_data(library, ViewState(case="ocean_cyclone", level=500.0))
+    assert not any(n.startswith("Calm:") for n in windy.notes)

@@ -237,7 +237,7 @@ class Page(pn.viewable.Viewer):
         except CaseError:
             return
         updates = {}
-        near = compute.nearest_level(case, self.state.level)
+        near = compute.nearest_level_with_data(case, self.state.level)
         if near != self.state.level:
             updates["level"] = near
         times = [iso(t) for t in case.times]
@@ -654,14 +654,20 @@ def build_page(library, query: dict, thresholds: Thresholds = Thresholds(), doc=
         times = [iso(t) for t in case.times]
         if state.time not in times:  # the first valid time when the link gives none
             state.time = times[0]
-        asked, state.level = state.level, compute.nearest_level(case, state.level)
-        if "level" in query and "level" in values_taken(query, problems) and state.level != asked:
-            # a level the case has, said like any other value of the link not taken
-            problems = [
-                *problems,
-                f"the link's level {level_text(asked)} is not in this case; the nearest, "
-                f"{level_text(state.level)}, is shown",
-            ]
+        asked = state.level
+        linked = "level" in query and "level" in values_taken(query, problems)
+        if linked:
+            # the link's level, or the nearest the case has, said like any other value of
+            # the link not taken; a level without data is shown if the link asks for it
+            state.level = compute.nearest_level(case, state.level)
+            if state.level != asked:
+                problems = [
+                    *problems,
+                    f"the link's level {level_text(asked)} is not in this case; the nearest, "
+                    f"{level_text(state.level)}, is shown",
+                ]
+        else:  # the case opens at the level nearest the default that has something to draw
+            state.level = compute.nearest_level_with_data(case, state.level)
     page = Page(library, state, thresholds=thresholds, problems=problems)
     if doc is not None:
         page.attach(doc)
