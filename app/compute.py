@@ -616,12 +616,19 @@ def levels_data(library, state: ViewState, progress=None) -> dict:
                 )
             if progress is not None:
                 progress(k + 1, n)
+        spec = state.region_spec()
         return {
             "rows": rows,
+            "case": state.case,
             "region": state.region_text(),
+            "box": None
+            if spec is None
+            else dict(zip(("west", "east", "south", "north"), spec.bounds_box)),
             "time": sel.valid_time,
             "when": sel.when,
             "region_kind": region.kind,
+            "smooth_km": state.smooth_km,
+            "min_lat": state.min_lat,
         }
 
     return library.profile(key, make)

@@ -6,7 +6,8 @@
   reference time, lead time, region, units and every setting that changes a number),
   winds in the chosen unit, and every value rounded to four significant digits; the CSV
   says each term in plain words;
-* :func:`export_stem` -- the exports' file name: case, level, valid time and region.
+* :func:`export_stem` -- the exports' file name: case, level, valid time and region;
+* :func:`levels_csv` -- the region through the levels (the page's levels tab) as CSV.
 """
 
 from __future__ import annotations
@@ -28,6 +29,7 @@ __all__ = [
     "context_of",
     "settings_text",
     "export_stem",
+    "levels_csv",
     "clean",
     "systems_table",
     "systems_csv",
@@ -616,5 +618,52 @@ def systems_csv(out: dict) -> str:
                 wording.sig(ap.get("measured_rms")),
             ]
             + [wording.sig(((ap.get("parts") or {}).get(p) or {}).get("speed_rms")) for p in parts]
+        )
+    return buf.getvalue()
+
+
+def levels_csv(data: dict, context: dict) -> str:
+    """The region through the levels: one row per level, with every term's magnitude
+    (m s-2, area-weighted RMS), each candidate balance's imbalance ratio, the verdict and
+    the share of valid points; the case, valid time, region and settings on every row."""
+    terms = sorted({t for r in data["rows"] for t in (r.get("magnitudes") or {})})
+    balances = sorted({b for r in data["rows"] for b in (r.get("ratios") or {})})
+    settings = context.get("settings") or {}
+    buf = io.StringIO()
+    w = csv_writer(buf)  # outside text (a case named "=...") never a formula
+    w.writerow(
+        [
+            "case",
+            "valid time",
+            "region",
+            "smoothing (km)",
+            "tropical mask (degrees from the equator)",
+            "level (hPa)",
+            *(f"{wording.term_name(t)} (m s-2)" for t in terms),
+            *(f"{wording.balance_name(b)} imbalance ratio" for b in balances),
+            "verdict",
+            "valid share",
+            "error",
+        ]
+    )
+    ctx = [
+        context.get("case") or "",
+        data.get("time") or "",
+        data.get("region") or "",
+        _num(settings.get("smoothing_km") or 0),
+        _num(settings.get("tropical_mask_deg")),
+    ]
+    for r in sorted(data["rows"], key=lambda r: -r["level_hpa"]):
+        mags, ratios = r.get("magnitudes") or {}, r.get("ratios") or {}
+        w.writerow(
+            ctx
+            + [f"{r['level_hpa']:g}"]
+            + [_num(mags.get(t)) for t in terms]
+            + [_num(ratios.get(b)) for b in balances]
+            + [
+                wording.balance_name(r["balance"]) if r.get("balance") else "",
+                _num(r.get("valid_share")),
+                r.get("error", ""),
+            ]
         )
     return buf.getvalue()

@@ -185,9 +185,19 @@ class Below(pn.viewable.Viewer):
             f"<div style='font-size:16px;color:{MUTED}'>Computing the levels...</div>",
             sizing_mode="stretch_width",
         )
+        self.levels_data = None
+        self.levels_csv = pn.widgets.FileDownload(
+            callback=self._levels_csv,
+            filename="levels.csv",
+            label="Levels table (CSV)",
+            width=250,
+            disabled=True,
+            stylesheets=[WIDGET_CSS],
+        )
         self.levels_pane = pn.Column(
             self.levels_status,
             self.levels_table,
+            self.levels_csv,
             pn.pane.HTML(
                 "<div style='font-size:15px'>Each row is one pressure level of the region at this "
                 "valid time: the colour and the number are the term's magnitude in m s-2 "
@@ -210,6 +220,29 @@ class Below(pn.viewable.Viewer):
             return
         self._put(self.levels_status, "")
         self._put(self.levels_table, levels_table(data))
+        self.levels_data = data
+        self.levels_csv.disabled = False
+
+    def _levels_csv(self):
+        """The levels table as CSV, named for its case, valid time and region."""
+        import io
+
+        from .. import report_files
+
+        data = self.levels_data or {"rows": [], "case": self.state.case}
+        context = {
+            "case": data.get("case"),
+            "level": "levels",
+            "level_hpa": None,
+            "valid_time": data.get("time"),
+            "box": data.get("box"),
+            "settings": {
+                "smoothing_km": data.get("smooth_km"),
+                "tropical_mask_deg": data.get("min_lat"),
+            },
+        }
+        self.levels_csv.filename = f"{report_files.export_stem(context)}.csv"
+        return io.StringIO(report_files.levels_csv(data, context))
 
     # -- through the times ---------------------------------------------------------------
     def _build_times(self):
