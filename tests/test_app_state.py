@@ -346,6 +346,26 @@ def test_sessions_showing_one_view_share_its_chart_and_report():
     assert compute.shared_chart_data(library, b) is not ca
 
 
+def test_a_copied_link_of_a_chosen_system_chooses_it_again(library):
+    # the link carries the system's region; the page it opens chooses that system again,
+    # with its details and its life, and a link to another region chooses none
+    from app.desk.page import build_page
+
+    page = build_page(library, {"case": ["tropical_cyclone"], "level": ["850"], "region": [""]})
+    page.start()
+    page.systems.w_list.value = "L1"
+    query = {k: [v] for k, v in page.state.to_query().items()}
+    assert query["region"][0].startswith("circle:146,18,")
+    copied = build_page(library, query)
+    copied.start()
+    assert copied.systems.w_list.value == "L1"
+    assert "L1, " in copied.systems.detail.object
+    assert "L1 through the valid times" in copied.systems.life.object
+    boxed = build_page(library, dict(query, region=["box:140,150,14,22"]))
+    boxed.start()
+    assert boxed.systems.w_list.value == "" and boxed.systems.detail.object == ""
+
+
 def test_the_systems_of_the_level_are_listed_marked_and_chosen(library):
     # the tropical cyclone at 850 hPa: one closed low; choosing it makes its circle the
     # view's region (the ranking follows), a click near its mark does the same, the marks

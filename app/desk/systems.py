@@ -73,6 +73,8 @@ class SystemsPanel(pn.viewable.Viewer):
         self.detail = pn.pane.HTML("", sizing_mode="stretch_width")
         self.life = pn.pane.HTML("", sizing_mode="stretch_width")
         self.on_choose = None  # set by the page: called with the chosen system
+        #: until the first systems are shown: a system whose region is the link's is chosen
+        self._opening = True
         self._quiet = False
         self.w_list.param.watch(self._chosen, "value")
         self.layout = pn.Column(
@@ -122,14 +124,22 @@ class SystemsPanel(pn.viewable.Viewer):
                     f"{wording.balance_name(s['verdict'])}"
                 )
             ] = s["label"]
+        chosen = self.w_list.value
+        # a link to a system's region (a copied link of a page with a system chosen) chooses
+        # that system again: its region says which, as no other region is the same
+        linked = self._opening and next((s for s in rows if s["region"] == self.state.region), None)
         self._quiet = True
         try:
-            chosen = self.w_list.value
             self.w_list.options = options
-            self.w_list.value = chosen if chosen in options.values() else ""
+            self.w_list.value = (
+                linked["label"] if linked else (chosen if chosen in options.values() else "")
+            )
         finally:
             self._quiet = False
         self._detail()
+        self._opening = False
+        if linked and self.on_choose is not None:
+            self.on_choose(linked)
 
     def show_error(self, text):
         self.data = None
