@@ -26,9 +26,10 @@ def rng():
     return np.random.default_rng(20261201)
 
 
-@pytest.fixture(scope="module")
+@pytest.fixture(scope="session")
 def browser():
-    """A headless Chromium for the module's browser tests (testkit.chromium.launched)."""
+    """A headless Chromium for the browser tests of this worker (testkit.chromium.launched):
+    launched once, each test opening contexts and pages of its own in it."""
     from testkit.chromium import launched
 
     with launched() as b:
@@ -37,15 +38,18 @@ def browser():
 
 @pytest.hookimpl(hookwrapper=True)
 def pytest_runtest_makereport(item, call):
-    """A failed test that used a module's ``server`` (a dict with its process) gets the end of
-    that server's log in its report: a page that never settled says why on the server."""
+    """A failed test that used a module's ``server`` (a dict with its process, or a module
+    naming the log in ``SERVER_LOG``) gets the end of that server's log in its report: a page
+    that never settled says why on the server."""
     outcome = yield
     rep = outcome.get_result()
     server = getattr(item, "funcargs", {}).get("server")
     proc = server.get("proc") if isinstance(server, dict) else None
-    if rep.when == "call" and rep.failed and getattr(proc, "log_path", None):
+    # a module whose server fixture gives only its address names the log SERVER_LOG
+    log_path = getattr(proc, "log_path", None) or getattr(item.module, "SERVER_LOG", None)
+    if rep.when == "call" and rep.failed and log_path:
         try:
-            with open(proc.log_path, encoding="utf-8", errors="replace") as fh:
+            with open(log_path, encoding="utf-8", errors="replace") as fh:
                 rep.sections.append(("the server's log (its end)", fh.read()[-20000:]))
         except OSError:
             pass

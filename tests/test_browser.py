@@ -23,9 +23,16 @@ SHOTS = os.path.join(HERE, "..", "artifacts", "screenshots")
 require()
 
 
+#: the module's server's log, which a failed test's report ends with (tests/conftest.py)
+SERVER_LOG = None
+
+
 @pytest.fixture(scope="module")
 def server():
-    proc, url, _ = start_server()
+    global SERVER_LOG
+    # each view the lanes are asked for and compute, for the report of a failure
+    proc, url, _ = start_server(env=dict(os.environ, BALANCE_DESK_LOG="DEBUG"))
+    SERVER_LOG = proc.log_path
     yield url
     out = stop_server(proc)
     assert "Traceback" not in out, out[-3000:]
