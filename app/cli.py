@@ -572,7 +572,6 @@ _UNITS = {
     "nu": "m2 s-1",
     "n2": "s-2",
 }
-_NUMBER_UNITS = {"deformation_radius": "m"}
 
 
 def _sci(x):
@@ -580,7 +579,15 @@ def _sci(x):
 
 
 def format_scales_table(rep: dict) -> str:
-    lines = [f"Scale analysis: {rep['preset']}", f"  numbers from: {rep['source']}", ""]
+    # the names people read: a term, number, preset or balance by its display name (the
+    # JSON keeps the code names, as keys for programs)
+    from .wording import NUMBERS, balance_name, preset_name, term_name
+
+    lines = [
+        f"Scale analysis: {preset_name(rep['preset'])}",
+        f"  numbers from: {rep['source']}",
+        "",
+    ]
     sc = rep["scales"]
     lines.append("  scale  value       unit")
     for k, unit in _UNITS.items():
@@ -589,20 +596,25 @@ def format_scales_table(rep: dict) -> str:
         val = f"{sc[k]:.2f}" if k == "lat0" else _sci(sc[k])
         lines.append(f"  {k:<5}  {val:<10}  {unit}")
     pgf = next(t["magnitude"] for t in rep["terms"] if t["name"] == "pressure_gradient")
+    wide = max(len(term_name(t["name"])) for t in rep["terms"])
     lines += [
         "",
-        "  rank  term                 magnitude (m s-2)  power of ten  / pressure gradient",
+        f"  rank  {'term':<{wide}}  magnitude (m s-2)  power of ten  / pressure gradient",
     ]
     for i, t in enumerate(rep["terms"], 1):
         m = t["magnitude"]
         p10 = f"10^{math.floor(math.log10(m) + 1e-9):d}" if m > 0 else "0"
         ratio = f"{m / pgf:.2g}" if pgf > 0 else "n/a"
-        lines.append(f"  {i:>4}  {t['name']:<19}  {_sci(m):<17}  {p10:<12}  {ratio}")
+        lines.append(f"  {i:>4}  {term_name(t['name']):<{wide}}  {_sci(m):<17}  {p10:<12}  {ratio}")
     lines += ["", "  number              value"]
     for k, v in rep["numbers"].items():
-        unit = _NUMBER_UNITS.get(k, "")
-        lines.append(f"  {k:<18}  {_sci(v)} {unit}".rstrip())
-    lines += ["", f"  verdict: {rep['verdict']['balance']}", f"  {rep['verdict']['text']}"]
+        name, unit = NUMBERS[k][:2] if k in NUMBERS else (k.replace("_", " "), "")
+        lines.append(f"  {name:<18}  {_sci(v)} {unit}".rstrip())
+    lines += [
+        "",
+        f"  verdict: {balance_name(rep['verdict']['balance'])}",
+        f"  {rep['verdict']['text']}",
+    ]
     return "\n".join(lines)
 
 

@@ -93,6 +93,11 @@ NUMBERS = {
         "U / (N H), H the depth of the troposphere: flow speed over the speed of gravity waves",
     ),
     "burger": ("Burger number", "", "(N H / (f0 L))^2: stratification against rotation"),
+    "deformation_radius": (
+        "deformation radius",
+        "m",
+        "N H / f0: the length at which rotation and stratification matter equally",
+    ),
     "deformation_radius_km": (
         "deformation radius",
         "km",

@@ -1,6 +1,7 @@
 """A priori scale analysis, presets, scales from data, and the scales command."""
 
 import json
+import re
 import math
 import subprocess
 import sys
@@ -140,7 +141,11 @@ def test_scales_flags_change_the_answer(capsys):
 def test_scales_table_is_readable(capsys):
     code, out, _ = _run(capsys, "scales", "--preset", "tropical_cyclone")
     assert code == 0
-    assert "verdict: cyclostrophic" in out and "10^-2" in out and "m s-2" in out
+    assert "verdict: Cyclostrophic" in out and "10^-2" in out and "m s-2" in out
+    assert "Scale analysis: Tropical cyclone" in out
+    # display names only: no code name (lower-case words joined by "_") in the table
+    assert not re.findall(r"\b[a-z]+_[a-z_]+\b", out), re.findall(r"\b[a-z]+_[a-z_]+\b", out)
+    assert "deformation radius" in out and "pressure gradient" in out
 
 
 @pytest.mark.parametrize(

@@ -112,6 +112,11 @@ def test_presets_are_shown_by_name_and_the_sheet_calls_the_residual_so(library):
     viscous = [r for r in sheet["terms"] if r["name"] == "viscous"]
     label = viscous[0]["data_label"] if viscous else ""
     assert label.startswith(TERM_NAMES["residual"]) and "unresolved" in label, label
+    # the sheet as the page shows it: display names and units only, no code name
+    page.below.tabs.active = page.below.TAB["sheet"]
+    shown = page.below.sheet_out.object
+    assert "deformation radius 1e+06 m" in shown, shown
+    assert not CODE.search(shown.replace("bd-", "")), CODE.findall(shown)
 
 
 def test_the_names_check_can_fail():

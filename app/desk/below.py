@@ -432,7 +432,8 @@ class Below(pn.viewable.Viewer):
             for r in sh["terms"]
         )
         nums = ", ".join(
-            f"{esc(wording.NUMBERS.get(k, (k,))[0])} {f(v, '.2g')}"
+            f"{esc(wording.NUMBERS[k][0])} {f(v, '.2g')}"
+            + (f" {esc(wording.NUMBERS[k][1])}" if wording.NUMBERS[k][1] else "")
             for k, v in sh["numbers"].items()
         )
         err = alert(sh["error"], "error") if sh["error"] else ""
