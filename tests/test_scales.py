@@ -1,8 +1,8 @@
 """A priori scale analysis, presets, scales from data, and the scales command."""
 
 import json
-import re
 import math
+import re
 import subprocess
 import sys
 
