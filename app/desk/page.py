@@ -110,6 +110,8 @@ class Page(pn.viewable.Viewer):
         self._pending: set = set()
         self._step = 0
         self._started = False
+        #: changes held back until the browser has the document (see :meth:`_held`)
+        self._deferred: list = []
         self._room_views = 0  # views a review room sent (followed or not)
         self.settle_mark = pn.pane.HTML(self._mark_html(), visible=False, margin=0)
         self._stale: set = set()  # views of closed tabs that are out of date
@@ -202,12 +204,15 @@ class Page(pn.viewable.Viewer):
         self.live = True
         views = ("systems", "levels", "times") if getattr(self, "_primed", False) else None
         if self.doc is not None and self.doc.session_context is not None:
-            self._held(partial(self._start_views, views))
+            self._in_document(partial(self._start_views, views))
         else:
             self._start_views(views)
 
     def _start_views(self, views):
         self._started = True
+        deferred, self._deferred = self._deferred, []
+        for fn in deferred:  # what came in while the browser was fetching the document
+            fn()
         self.settle_mark.object = self._mark_html()
         self.refresh(set(URL_PARAMS), views)
 
@@ -398,6 +403,21 @@ class Page(pn.viewable.Viewer):
             fn()
 
     def _held(self, fn):
+        """Run ``fn`` now, or, while the browser is fetching the document, when it has it.
+
+        Between a browser's connection and its first paint (:meth:`start`) a change may be
+        lost: Bokeh sends the document once asked for it, and a change made just after the
+        document was taken can go out ahead of it, where the browser drops it (it counts on
+        the document holding every change before it). A primed chart that finished then
+        was never drawn: empty 0-1 axes beside a right header (seen under load, 2 in 22
+        loads of conformal charts). Such changes wait for :meth:`start`; before any browser
+        connects they go into the document as before."""
+        if not self._started and _has_browser(self.doc):
+            self._deferred.append(fn)
+            return
+        self._in_document(fn)
+
+    def _in_document(self, fn):
         # the browser lays the page out once per message: one message per step, not per
         # property. A callback another session scheduled (a review room's hub) runs in that
         # session's context, where Panel would take the other document for the current one,
@@ -629,6 +649,12 @@ def _frame(text: str):
         f"font-size:16px'><b>Caution.</b> {esc(CAUTION)}</div></div>",
         sizing_mode="stretch_width",
     )
+
+
+def _has_browser(doc) -> bool:
+    """Whether a browser has connected to the document's session (its websocket is open)."""
+    session = getattr(getattr(doc, "session_context", None), "_session", None)
+    return bool(session is not None and getattr(session, "connection_count", 0))
 
 
 def build_page(library, query: dict, thresholds: Thresholds = Thresholds(), doc=None) -> Page:
