@@ -26,10 +26,16 @@ def rng():
     return np.random.default_rng(20261201)
 
 
-@pytest.fixture(scope="session")
+@pytest.fixture(scope="module")
 def browser():
-    """A headless Chromium for the browser tests of this worker (testkit.chromium.launched):
-    launched once, each test opening contexts and pages of its own in it."""
+    """A headless Chromium for the browser tests of one module (testkit.chromium.launched),
+    each test opening contexts and pages of its own in it.
+
+    Not for the whole run: Playwright's sync API keeps an asyncio loop running in the
+    worker's thread while it is started, and a later module of the same worker that runs a
+    loop of its own (tornado's ``run_sync``, ``asyncio.run``, a Playwright of its own) fails
+    with "This event loop is already running". pytest closes a module's fixtures before the
+    next module's test, so the loop ends with the module."""
     from testkit.chromium import launched
 
     with launched() as b:
