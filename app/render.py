@@ -68,6 +68,21 @@ class ViewGeometry:
             self.ys[-1] + dy / 2,
         )
 
+    @property
+    def x_ground_scale(self) -> float:
+        """Ground distance of one x unit over that of one y unit, at the middle of the view:
+        1 on a conformal chart (metres both ways), cos(middle latitude) on a lon/lat chart
+        (a degree of longitude is that much shorter than one of latitude).
+
+        A chart at true shape spans, in a frame of w by h pixels, x and y with
+        ``(x1 - x0) * x_ground_scale / w == (y1 - y0) / h``: the same ground distance per
+        pixel both ways, so that a circle is drawn round (on a conformal chart exactly, up to
+        the map factor's change across the view; on a lon/lat chart at the middle latitude)."""
+        if self.kind != "plate_carree":
+            return 1.0
+        _, _, y0, y1 = self.extent
+        return float(max(np.cos(np.deg2rad(0.5 * (y0 + y1))), 0.05))
+
     def to_view(self, lon, lat):
         """View coordinates of lon/lat points."""
         lon = np.asarray(lon, dtype=np.float64)

@@ -1,6 +1,7 @@
 """The chart draws on every load: fifty page loads in real Chromium across the cases, levels
 and projections, each checked for a drawn chart (its ranges in the browser are the chart's,
-not the empty figure's 0 to 1, and its canvas holds a picture, not blank axes).
+not the empty figure's 0 to 1, and its canvas holds a picture, not blank axes) at true shape
+(the same ground distance per pixel across and up the frame the browser drew).
 
 A chart computed while the browser was fetching the document was once lost that way (a
 change made just after Bokeh took the document can reach the browser ahead of it, and is
@@ -8,6 +9,7 @@ dropped there): app.desk.page.Page._held now holds such changes until the page h
 """
 
 import io
+import math
 import os
 
 import numpy as np
@@ -40,6 +42,32 @@ RANGES_JS = """() => {
 }"""
 
 
+#: the chart's frame in the browser (pixels) and its ranges
+SHAPE_JS = """() => {
+  const d = Bokeh.documents[0];
+  const ms = d._all_models instanceof Map ? [...d._all_models.values()] : [...d._all_models];
+  const p = ms.filter(m => m.x_range !== undefined && m.renderers !== undefined
+                           && m.renderers.length > 5)[0];
+  return [p.inner_width, p.inner_height,
+          p.x_range.start, p.x_range.end, p.y_range.start, p.y_range.end];
+}"""
+
+
+def wait_shape(page, test_js):
+    """Wait until ``test_js``, an expression of the chart's shape ``s`` (SHAPE_JS), holds."""
+    page.wait_for_function(f"() => {{ const s = ({SHAPE_JS})(); return {test_js}; }}")
+
+
+def shape_error(shape, projection):
+    """How far the chart is from true shape: the ground distance per pixel across the frame
+    over that up it, less one. A conformal chart's coordinates are metres both ways; on a
+    lon/lat chart a degree of longitude is cos(latitude) times one of latitude, at the middle
+    latitude (the spherical earth's geometry, common practice, no source)."""
+    w, h, x0, x1, y0, y1 = shape
+    k = math.cos(math.radians(0.5 * (y0 + y1))) if projection == "plate_carree" else 1.0
+    return (x1 - x0) * k / w / ((y1 - y0) / h) - 1.0
+
+
 @pytest.fixture(scope="module")
 def server():
     global SERVER_LOG
@@ -67,7 +95,7 @@ def _views():
 def test_fifty_loads_each_draw_the_chart(server, browser):
     views = _views()
     ctx = browser.new_context(viewport={"width": 1200, "height": 900})
-    blank = []
+    blank, bent = [], []
     for i in range(50):
         case, level, projection = views[i % len(views)]
         page = ctx.new_page()
@@ -84,6 +112,57 @@ def test_fifty_loads_each_draw_the_chart(server, browser):
         # empty figure has ranges 0 to 1 and its axes' few greys (71 colours measured)
         if len(ranges) != 1 or ranges[0][:2] == [0, 1] or colours < 500:
             blank.append((i, case, level, projection, ranges, colours))
+        # one pixel of rounding in a frame of 300 or more is 0.3 %; the figure's own shape
+        # alone left 15 to 20 % before the ranges were fitted to the frame
+        shape = page.evaluate(SHAPE_JS)
+        if abs(shape_error(shape, projection)) > 0.01:
+            bent.append((i, case, level, projection, shape))
         page.close()
     ctx.close()
     assert blank == [], blank
+    assert bent == [], bent
+
+
+@pytest.mark.parametrize("projection", ["plate_carree", "conformal"])
+def test_the_chart_keeps_its_true_shape_in_a_smaller_window_and_after_a_zoom(
+    server, browser, projection
+):
+    ctx = browser.new_context(viewport={"width": 1920, "height": 1080})
+    page = ctx.new_page()
+    page.goto(f"{server}?case=ocean_cyclone&projection={projection}")
+    settled(page)
+    wide = page.evaluate(SHAPE_JS)
+    assert abs(shape_error(wide, projection)) < 0.01, wide
+    page.set_viewport_size({"width": 1366, "height": 768})
+    # the positive sign: the browser has laid the chart out again in a narrower frame
+    wait_shape(page, f"s[0] < {wide[0] - 50}")
+    narrow = page.evaluate(SHAPE_JS)
+    assert abs(shape_error(narrow, projection)) < 0.01, (wide, narrow)
+    # the whole view is still on the chart: its ranges hold the first ones' middle
+    assert narrow[2] < 0.5 * (wide[2] + wide[3]) < narrow[3]
+    page.set_viewport_size({"width": 1920, "height": 1080})
+    wait_shape(page, f"s[0] > {narrow[0] + 50}")
+    assert abs(shape_error(page.evaluate(SHAPE_JS), projection)) < 0.01
+    # a zoom with the wheel keeps the shape (both ways alike), and a narrower window keeps
+    # the zoom (the wheel zooms once its button in the chart's toolbar is on: a page that
+    # scrolls keeps the wheel otherwise)
+    page.locator(".bk-tool-icon-wheel-zoom").first.click()
+    box = max(
+        (c.bounding_box() or {"width": 0} for c in page.locator("canvas").all()),
+        key=lambda b: b["width"],
+    )
+    page.mouse.move(box["x"] + box["width"] / 3, box["y"] + box["height"] / 2)
+    before = page.evaluate(SHAPE_JS)
+    page.mouse.wheel(0, -300)
+    wait_shape(page, f"s[3] - s[2] < {0.95 * (before[3] - before[2])}")
+    zoomed = page.evaluate(SHAPE_JS)
+    assert abs(shape_error(zoomed, projection)) < 0.01, (before, zoomed)
+    page.set_viewport_size({"width": 1366, "height": 768})
+    wait_shape(page, f"s[0] < {zoomed[0] - 50}")
+    again = page.evaluate(SHAPE_JS)
+    assert abs(shape_error(again, projection)) < 0.01, (zoomed, again)
+    # the zoom is kept: the same ground distance per pixel as before the window shrank
+    # (the shape is [frame width, frame height, x0, x1, y0, y1])
+    per_px = (zoomed[3] - zoomed[2]) / zoomed[0], (again[3] - again[2]) / again[0]
+    assert per_px[1] == pytest.approx(per_px[0], rel=0.01)
+    ctx.close()

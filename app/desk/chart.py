@@ -19,6 +19,7 @@ from bokeh.models import (
     BoxSelectTool,
     ColorBar,
     ColumnDataSource,
+    CustomJS,
     CustomJSHover,
     CustomJSTickFormatter,
     HoverTool,
@@ -41,6 +42,41 @@ __all__ = ["Chart"]
 
 #: the chart's drawing size at its widest; narrower screens scale it down
 WIDTH, MIN_WIDTH = 860, 520
+#: the figure's pixels outside its frame, by kind of chart, as measured in Chromium (the
+#: colour bar and the axes beside it, the toolbar and the axis above and below; a conformal
+#: chart has no axes, its graticule is labelled inside): the figure's height is chosen so
+#: that its frame has about the view's shape, and FIT_JS makes it exact in the frame the
+#: browser drew
+FRAME_OFF = {"plate_carree": (176, 90), "conformal": (110, 36)}
+
+#: The chart at true shape (render.ViewGeometry.x_ground_scale): the ranges span the view's
+#: extent (``home``) with the same ground distance per pixel both ways, the frame's spare
+#: side padded. Run in the browser, which alone knows the frame's size, whenever the extent
+#: or the frame changes. A view panned or zoomed (ranges that are not the last fit's) is the
+#: forecaster's own until the extent changes: in a new frame it keeps its middle and its
+#: ground distance per pixel. The reset tool returns to the extent's fit.
+FIT_JS = """
+const d = home.data;
+const w = fig.inner_width, h = fig.inner_height;
+if (!d.x0 || !d.x0.length || !(w > 0) || !(h > 0)) return;
+const k = d.k[0];
+const around = (xm, ym, s) => [xm - 0.5 * s * w / k, xm + 0.5 * s * w / k,
+                               ym - 0.5 * s * h, ym + 0.5 * s * h];
+const [x0, x1, y0, y1] = [d.x0[0], d.x1[0], d.y0[0], d.y1[0]];
+const home_fit = around(0.5 * (x0 + x1), 0.5 * (y0 + y1),
+                        Math.max((x1 - x0) * k / w, (y1 - y0) / h));
+const last = xr._bd_fit;
+let own = cb_obj !== home && last !== undefined && last[5];
+if (cb_obj !== home && last !== undefined && !own)
+  own = xr.start !== last[0] || xr.end !== last[1] || yr.start !== last[2] || yr.end !== last[3];
+if (own && xr.start === xr.reset_start && xr.end === xr.reset_end &&
+    yr.start === yr.reset_start && yr.end === yr.reset_end) own = false;  // reset since
+const r = own ? around(0.5 * (xr.start + xr.end), 0.5 * (yr.start + yr.end),
+                       (xr.end - xr.start) * k / last[4]) : home_fit;
+xr.setv({start: r[0], end: r[1], reset_start: home_fit[0], reset_end: home_fit[1]});
+yr.setv({start: r[2], end: r[3], reset_start: home_fit[2], reset_end: home_fit[3]});
+xr._bd_fit = [xr.start, xr.end, yr.start, yr.end, w, own];
+"""
 
 
 def HOVER_TIPS(field_label, contoured="height", same=False):
@@ -148,6 +184,8 @@ class Chart(pn.viewable.Viewer):
         self.hover_src = ColumnDataSource(
             dict(x=[], y=[], lat=[], lon=[], field=[], height=[], speed=[], dir=[])
         )
+        #: the view's extent and x_ground_scale (k), fitted at true shape by FIT_JS
+        self.home_src = ColumnDataSource(dict(x0=[0.0], x1=[1.0], y0=[0.0], y1=[1.0], k=[1.0]))
         self.mapper = LinearColorMapper(palette=palette("sequential"), nan_color=(0, 0, 0, 0))
         fig = figure(
             width=WIDTH,
@@ -393,6 +431,12 @@ class Chart(pn.viewable.Viewer):
             code=digits_js + "return Math.abs(tick).toFixed(d) + "
             "(tick < 0 ? 'S' : (tick > 0 ? 'N' : ''));"
         )
+        fit = CustomJS(
+            args=dict(home=self.home_src, fig=fig, xr=fig.x_range, yr=fig.y_range), code=FIT_JS
+        )
+        fig.js_on_change("inner_width", fit)
+        fig.js_on_change("inner_height", fit)
+        self.home_src.js_on_change("data", fit)
         fig.on_event(events.SelectionGeometry, self._on_select)
         fig.on_event(events.Tap, self._on_tap)
         fig.grid.grid_line_color = "#555555"
@@ -485,7 +529,10 @@ class Chart(pn.viewable.Viewer):
                 y0=v["y0"],
                 x1=v["x1"],
                 y1=v["y1"],
-                angle=v["angle"] - np.pi / 2,
+                # the heads turn on the screen: at true shape a degree of longitude is
+                # x_ground_scale as long there as one of latitude
+                angle=np.arctan2(v["y1"] - v["y0"], (v["x1"] - v["x0"]) * g.x_ground_scale)
+                - np.pi / 2,
                 head=head_sizes(v, cd.reference_arrow),
             )
         else:
@@ -532,12 +579,10 @@ class Chart(pn.viewable.Viewer):
         )
         if tips != self.hover.tooltips:
             self.hover.tooltips = tips
-        _set(fig.x_range, start=x0, end=x1, reset_start=x0, reset_end=x1)
-        _set(fig.y_range, start=y0, end=y1, reset_start=y0, reset_end=y1)
-        if g.kind == "plate_carree":
-            aspect = (y1 - y0) / ((x1 - x0) * math.cos(math.radians(0.5 * (y0 + y1))))
-        else:
-            aspect = (y1 - y0) / (x1 - x0)
+        home = dict(x0=[x0], x1=[x1], y0=[y0], y1=[y1], k=[g.x_ground_scale])
+        if home != self.home_src.data:
+            self.home_src.data = home
+        aspect = (y1 - y0) / ((x1 - x0) * g.x_ground_scale)
         if getattr(self, "_axes_kind", None) != g.kind:
             # the axes' look changes with the kind of chart only: set it then, never again
             # (every property set on the figure makes Bokeh walk the whole document)
@@ -548,7 +593,9 @@ class Chart(pn.viewable.Viewer):
                 fig.xaxis.formatter, fig.yaxis.formatter = self._lon_fmt, self._lat_fmt
             fig.axis.visible = lonlat
             fig.grid.visible = lonlat  # on conformal charts the graticule draws them
-        _set(fig, width=WIDTH, height=int(min(max(WIDTH * aspect, 320), 720)) + 60)
+        off_x, off_y = FRAME_OFF["plate_carree" if g.kind == "plate_carree" else "conformal"]
+        frame_h = (WIDTH - off_x) * aspect
+        _set(fig, width=WIDTH, height=int(min(max(frame_h, 320), 720)) + off_y)
         interval = (
             ""
             if not math.isfinite(cd.contour_interval)
