@@ -166,3 +166,46 @@ def test_the_chart_keeps_its_true_shape_in_a_smaller_window_and_after_a_zoom(
     per_px = (zoomed[3] - zoomed[2]) / zoomed[0], (again[3] - again[2]) / again[0]
     assert per_px[1] == pytest.approx(per_px[0], rel=0.01)
     ctx.close()
+
+
+#: the region outline's colour (app.desk.look.ORANGE, #E69F00) within a few units: the colour
+#: scales of the filled fields hold no orange
+OUTLINE_RGB = np.array([230, 159, 0])
+
+
+@pytest.mark.parametrize("projection", ["plate_carree", "conformal"])
+def test_a_region_outline_on_the_screen_has_the_box_true_shape(server, browser, projection):
+    """The outline of the box 52W to 28W, 38N to 56N, measured in a screenshot: its width
+    across its middle row over its height down its middle column, against the box's width
+    along 47N over its height along 40W on the WGS84 ellipsoid (pyproj.Geod, an independent
+    library). A lon/lat chart is true at its middle latitude (45N here, 3.6 % off at 47N) and
+    a conformal one varies by its map factor across the box: within 5 %; the figure's shape
+    alone was 15 to 20 % off before the ranges were fitted."""
+    import pyproj
+
+    ctx = browser.new_context(viewport={"width": 1920, "height": 1080})
+    page = ctx.new_page()
+    page.goto(
+        f"{server}?case=ocean_cyclone&level=500&projection={projection}"
+        "&region=box%3A-52%2C-28%2C38%2C56"
+    )
+    settled(page)
+    canvas = max(
+        page.locator("canvas").all(),
+        key=lambda c: (c.bounding_box() or {"width": 0})["width"],
+    )
+    pixels = np.asarray(Image.open(io.BytesIO(canvas.screenshot())).convert("RGB")).astype(int)
+    ctx.close()
+    on = (np.abs(pixels - OUTLINE_RGB) <= 12).all(axis=2)
+    rows, cols = np.nonzero(on)
+    assert rows.size > 200, "no outline on the screen"
+    mid_row = (rows.min() + rows.max()) // 2
+    mid_col = (cols.min() + cols.max()) // 2
+    across = np.nonzero(on[mid_row])[0]
+    down = np.nonzero(on[:, mid_col])[0]
+    width_px, height_px = across.max() - across.min(), down.max() - down.min()
+    geod = pyproj.Geod(ellps="WGS84")
+    width_m = geod.inv(-52, 47, -28, 47)[2]
+    height_m = geod.inv(-40, 38, -40, 56)[2]
+    shown, true = width_px / height_px, width_m / height_m
+    assert shown == pytest.approx(true, rel=0.05), (width_px, height_px, width_m, height_m)
