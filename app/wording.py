@@ -61,7 +61,7 @@ FIELD_NAMES = {
     "ageostrophic_fraction": "ageostrophic fraction |V - Vg| / |V|",
     "rossby_local": "local Rossby number |zeta / f|",
     "vorticity": "relative vorticity",
-    "omega": "vertical motion (omega)",
+    "omega": "vertical motion omega (negative: rising air)",
     "temperature": "temperature",
 }
 

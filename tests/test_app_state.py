@@ -206,6 +206,8 @@ def test_errors_are_readable(library):
     st2 = _state(case="tropical_cyclone", level=850.0, time="", field="omega")
     cd = compute.chart_data(library, st2)
     assert cd.field_key == "omega"  # the TC has omega (zero everywhere)
+    # omega's sign runs against the motion: its name on the chart says which way rises
+    assert "negative: rising" in cd.field_label
     st3 = _state(field="term:tendency")
     assert compute.chart_data(library, st3).field_key == "term:tendency"
 

@@ -152,7 +152,8 @@ def test_taking_over_stepping_out_and_back_in(server, store_path, browser):
     _wait_status(b, "You follow Ana")
     b.get_by_role("button", name="Steer the room").click()
     _wait_status(b, "You steer")
-    _wait_status(a, "You follow Ben")
+    # the one who steered is told who took over
+    _wait_status(a, "Ben took over the steering from you. You follow Ben")
     b.get_by_label("Level", exact=True).select_option(label="850 hPa")
     a.locator(".bd-verdict-where", has_text="850 hPa").first.wait_for(timeout=WAIT)
     # Ana looks on her own: Ben's changes no longer reach her, and hers stay hers
@@ -177,6 +178,8 @@ def test_taking_over_stepping_out_and_back_in(server, store_path, browser):
     a.get_by_role("button", name="Back to the room's view").click()
     a.locator(".bd-verdict-where", has_text="700 hPa").first.wait_for(timeout=WAIT)
     _wait_status(a, "You follow Ben")
+    # she stepped out since: the takeover is old news, no longer said
+    assert "took over" not in a.locator(".bd-room-status").first.inner_text()
     # a follower who changes something looks on their own from then on
     a.get_by_label("Level", exact=True).select_option(label="925 hPa")
     _wait_status(a, "on your own")

@@ -75,6 +75,10 @@ class RoomBar(pn.viewable.Viewer):
 
     def __init__(self, title: str, name: str, named: bool, **params):
         super().__init__(**params)
+        #: the last hub snapshot shown and whose page it is
+        self._last: tuple[dict, str] | None = None
+        #: who took the steering from this page (said while they steer and it follows)
+        self._taken_by: str | None = None
         css = [WIDGET_CSS]
         self.title = pn.pane.HTML(
             f"<div style='font-size:20px;font-weight:700;color:{INK}'>Review room: "
@@ -129,6 +133,7 @@ class RoomBar(pn.viewable.Viewer):
     def show(self, snap, me: str, fresh: bool = True):
         """Draw the room's people and your part in it from a hub snapshot (``fresh``: just
         sent, so its view is where the room is now)."""
+        before = self._last[0] if self._last else None
         self._last = (snap, me)
         if fresh and snap.get("view"):
             self.where = dict(snap["view"])
@@ -151,12 +156,20 @@ class RoomBar(pn.viewable.Viewer):
             f"{len(people)} in the room &middot; " + " &middot; ".join(parts) + "</div>"
         )
         mine = next((p for p in people if p["key"] == me), None)
+        if mine is None or not mine["following"] or mine["steering"]:
+            self._taken_by = None  # said until this page steers or looks on its own
         if mine is None:
             text = "You are not in the room."
         elif mine["steering"]:
             text = "You steer the room: everyone following sees what you see."
         elif mine["following"]:
             text = f"You follow {esc(steering['name'])}." if steering else "You follow the room."
+            if steering and _steered(before, me):
+                # the one who steered is told that someone else took over, and by whom, for
+                # as long as that one steers and they follow
+                self._taken_by = steering["key"]
+            if steering and steering["key"] == self._taken_by:
+                text = f"{esc(steering['name'])} took over the steering from you. " + text
         else:
             text = "You are looking on your own: the room's changes do not reach you."
             if self.where:
@@ -178,7 +191,7 @@ class RoomBar(pn.viewable.Viewer):
     def show_where(self, view: dict):
         """The room has moved on while you look on your own: say where it is now."""
         self.where = dict(view)
-        if getattr(self, "_last", None) is not None:
+        if self._last is not None:
             self.show(*self._last, fresh=False)
 
     def __panel__(self):
@@ -715,3 +728,9 @@ class RoomOpener(pn.viewable.Viewer):
 
     def __panel__(self):
         return self.layout
+
+
+def _steered(snap, key: str) -> bool:
+    """Whether the person ``key`` steered the room in the hub snapshot ``snap``."""
+    people = (snap or {}).get("people", [])
+    return any(p["key"] == key and p["steering"] for p in people)
