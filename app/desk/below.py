@@ -12,7 +12,7 @@ import math
 import numpy as np
 import panel as pn
 import param
-from bokeh.models import ColumnDataSource, Legend, LegendItem, Span
+from bokeh.models import ColumnDataSource, DatetimeTickFormatter, Legend, LegendItem, Span
 from bokeh.plotting import figure
 
 from balance_core.scales import PRESETS
@@ -251,9 +251,12 @@ class Below(pn.viewable.Viewer):
         self.times_fig = None
         self.times_status = pn.pane.HTML("", sizing_mode="stretch_width")
         self.times_plot = pn.Column(sizing_mode="stretch_width")
+        #: the region's verdict at each valid time, under the curves
+        self.times_verdicts = pn.pane.HTML("", sizing_mode="stretch_width")
         self.times_pane = pn.Column(
             self.times_status,
             self.times_plot,
+            self.times_verdicts,
             pn.pane.HTML(
                 "<div style='font-size:15px'>The orange line marks the valid time shown on the "
                 "chart.</div>"
@@ -264,7 +267,7 @@ class Below(pn.viewable.Viewer):
     def _times_figure(self):
         if self.times_fig is not None:
             return self.times_fig
-        self.times_src = ColumnDataSource(dict(t=[], ro=[], agf=[], label=[]))
+        self.times_src = ColumnDataSource(dict(t=[], ro=[], agf=[], label=[], verdict=[]))
         f = figure(
             height=360,
             x_axis_type="datetime",
@@ -275,6 +278,7 @@ class Below(pn.viewable.Viewer):
             title="Through the valid times, for the region at this level",
             tooltips=[
                 ("time", "@label"),
+                ("verdict", "@verdict"),
                 ("local Rossby", "@ro{0.000}"),
                 ("ageostrophic fraction", "@agf{0.000}"),
             ],
@@ -299,6 +303,17 @@ class Below(pn.viewable.Viewer):
         )
         f.add_layout(legend, "below")  # beside the data, never over the first point
         f.yaxis.axis_label = "dimensionless"
+        # the trade's way of writing a valid time ("19 Jan 06 UTC"), as everywhere on the page
+        stamp = "%d %b %H UTC"
+        f.xaxis.formatter = DatetimeTickFormatter(
+            minutes="%d %b %H:%M UTC",
+            hourmin="%d %b %H:%M UTC",
+            hours=stamp,
+            days=stamp,
+            months="%b %Y",
+            years="%Y",
+            context=None,
+        )
         style_figure(f)
         self.times_fig = f
         self.times_plot.objects = [pn.pane.Bokeh(f, sizing_mode="stretch_width")]
@@ -316,6 +331,7 @@ class Below(pn.viewable.Viewer):
     def show_times(self, data, error=None):
         if error or not data:
             self._put(self.times_status, alert(f"Through the times: {error}", "error"))
+            self._put(self.times_verdicts, "")
             return
         ser = data["series"]
         if len(ser) < 2:
@@ -337,6 +353,7 @@ class Below(pn.viewable.Viewer):
                 ),
             )
             self.times_plot.visible = False
+            self._put(self.times_verdicts, "")
             return
         self._times_figure()
         self.times_plot.visible = True
@@ -353,7 +370,9 @@ class Below(pn.viewable.Viewer):
                 for s in ser
             ],
             label=[wording.when(s["time"]) for s in ser],
+            verdict=[_verdict_text(s.get("balance")) for s in ser],
         )
+        self._put(self.times_verdicts, verdicts_html(ser))
         self.time_span.location = float(
             np.datetime64(data["current"].replace("Z", "")).astype("datetime64[ms]").astype(float)
         )
@@ -375,13 +394,17 @@ class Below(pn.viewable.Viewer):
         )
         self.w_preset.param.watch(self._preset_to_state, "value")
         self.scale_inputs = {}
+        # a long name wraps inside its own column instead of running under the next one,
+        # never inside its unit (no-break spaces and hyphens)
+        wrap = css + [":host label { white-space: normal; }"]
         for k in SHEET_SCALES:
+            unit = UNITS[k].replace(" ", "\u00a0").replace("-", "\u2011")
             w = pn.widgets.FloatInput(
-                label=f"{wording.SCALE_NAMES.get(k, k)} ({UNITS[k]})",
+                label=f"{wording.SCALE_NAMES.get(k, k)} ({unit})",
                 value=None,
                 width=140,
                 placeholder="preset",
-                stylesheets=css,
+                stylesheets=wrap,
             )
             w.param.watch(self._scales_to_state, "value")
             self.scale_inputs[k] = w
@@ -515,3 +538,28 @@ class Below(pn.viewable.Viewer):
 
     def __panel__(self):
         return self.tabs
+
+
+def _verdict_text(balance) -> str:
+    return "no verdict" if balance is None else wording.balance_name(balance)
+
+
+def verdicts_html(series) -> str:
+    """The region's verdict at each valid time, in order: a chip per time with the verdict's
+    colour (the systems' colours)."""
+    from .systems import VERDICT_COLOURS
+
+    chips = []
+    for s in series:
+        colour = VERDICT_COLOURS.get(s.get("balance"), "#8c8c8c")
+        chips.append(
+            "<span style='white-space:nowrap;margin-right:14px'>"
+            f"{esc(wording.when_short(s['time']))} "
+            f"<span style='display:inline-block;width:12px;height:12px;background:{colour};"
+            "border:1px solid #333;vertical-align:middle'></span> "
+            f"<b>{esc(_verdict_text(s.get('balance')))}</b></span>"
+        )
+    return (
+        f"<div class='bd-times-verdicts' style='font-size:15px;color:{INK};line-height:1.9'>"
+        "Verdict at each time: " + " ".join(chips) + "</div>"
+    )
