@@ -619,13 +619,12 @@ def _thin_labels(labels, extent, chars_across=70.0, rows_up=32.0):
     kept, boxes = [], []
     for x, y, text, kind in labels:
         w = (len(text) + 1) * cw
-        # lon labels sit on the bottom edge, centred; lat labels on the left edge, upward
-        box = (
-            (x - w / 2, y, x + w / 2, y + 1.4 * ch)
-            if kind == "lon"
-            else (x, y - 0.7 * ch, x + w, y + 0.7 * ch)
-        )
-        if box[0] < x0 - cw or box[2] > x1 + cw or box[3] > y1 + ch:
+        # lon labels sit on the bottom edge, lat labels on the left edge, each drawn to the
+        # right of and above its point (the chart's text is anchored at its left and bottom)
+        box = (x, y, x + w, y + 1.4 * ch)
+        # a label cut by the frame's edge reads as another one ("60N" as "0N"): only whole
+        # labels are kept
+        if box[0] < x0 or box[2] > x1 or box[1] < y0 or box[3] > y1:
             continue
         if any(
             not (box[2] < b[0] or box[0] > b[2] or box[3] < b[1] or box[1] > b[3]) for b in boxes

@@ -74,6 +74,16 @@ def test_graticule_labels_never_collide(library):
             boxes = _label_boxes(cd, frame)
             assert len(boxes) >= 4, name
             assert not _collisions(boxes), (name, frame, _collisions(boxes))
+            # and every label whole inside the frame: one cut at the edge reads as another
+            # ("60N" as "0N"); the frame is at true shape (conformal: metres both ways)
+            x0, x1, y0, y1 = cd.geom.extent
+            height = frame * (y1 - y0) / (x1 - x0)
+            cut = [
+                b[4]
+                for b in boxes
+                if b[0] < -2 or b[1] < -2 or b[2] > frame + 2 or b[3] > height + 2
+            ]
+            assert not cut, (name, frame, cut)
 
 
 def test_the_collision_check_can_fail(library, monkeypatch):
