@@ -308,7 +308,9 @@ def run_task(task: Task) -> dict:
         if task.systems:
             out = analyze_systems(case, task.level_hpa, task.time_index, diagnostics=diag)
             for i, s in enumerate(out["systems"], 1):
-                rows.append(flatten(s["report"], task, f"{s['kind']} {i}", system=s))
+                rows.append(
+                    flatten(s["report"], task, f"{s['kind']} {i}", system=s, invented=case.invented)
+                )
         else:
             for name, box in regions:
                 try:
@@ -316,7 +318,7 @@ def run_task(task: Task) -> dict:
                 except CaseError as exc:
                     problems.append(f"region {name}: {exc}")
                     continue
-                rows.append(flatten(rep, task, name))
+                rows.append(flatten(rep, task, name, invented=case.invented))
         return {"rows": rows, "error": "; ".join(problems) or None}
     except CaseError as exc:
         return {"rows": [], "error": str(exc)}
@@ -338,13 +340,15 @@ def _f(x):
     return x if math.isfinite(x) else None
 
 
-def flatten(rep: dict, task: Task, region: str, system=None) -> dict:
-    """One row of a report, with stable column names (see the README's table)."""
+def flatten(rep: dict, task: Task, region: str, system=None, invented: bool = False) -> dict:
+    """One row of a report, with stable column names (see the README's table);
+    ``invented``: the file is invented demo data (balance_core.io.Case.invented)."""
     from balance_core import __version__ as core_version
 
     row = {
         "file": os.path.basename(task.path),
         "path": os.path.abspath(task.path),
+        "invented": bool(invented),
         "member": "" if task.member is None else str(task.member),
         "valid_time": rep.get("valid_time"),
         "reference_time": rep.get("reference_time"),

@@ -93,8 +93,7 @@ def describe_case(path, name=None) -> dict:
         "step_hours": step,
         "suggested_box": _suggested_box(c.attrs),
         "expected": expected,
-        "invented": "invented" in str(c.attrs.get("geography", "")).lower()
-        or "synthetic" in str(c.attrs.get("source", "")).lower(),
+        "invented": c.invented,
     }
 
 

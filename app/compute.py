@@ -153,10 +153,8 @@ def nearest_level_with_data(case, hpa: float) -> float:
 
 def case_facts(case) -> dict:
     """What the page says about a case beside its name: invented or not, its title."""
-    geo = str(case.attrs.get("geography", "")).lower()
-    src = str(case.attrs.get("source", "")).lower()
     return {
-        "invented": "invented" in geo or "synthetic" in src or "invented" in src,
+        "invented": case.invented,
         "title": str(case.title),
     }
 

@@ -359,6 +359,19 @@ def _passphrase(host, passphrase_file, env, open_without_passphrase, out) -> str
     return passphrase
 
 
+def desk_cases_of(library) -> dict:
+    """The desk's case of each file it holds, for the archive's links: absolute path -> case
+    name, and file name -> case name where no other file has that name."""
+    out, names = {}, {}
+    for name, lc in library.cases.items():
+        if lc.case is None:
+            continue
+        out[os.path.abspath(lc.path)] = name
+        names.setdefault(os.path.basename(lc.path), []).append(name)
+    out.update({f: n[0] for f, n in names.items() if len(n) == 1})
+    return out
+
+
 def _load_archives(archives, out) -> tuple[dict, list]:
     """The batch results to serve at /archive, and why any could not be read."""
     results, problems = {}, []
@@ -491,7 +504,9 @@ def serve(
             {
                 "/": lambda: make_session(library, hub=hub),
                 "/room": lambda: make_room_session(library, hub),
-                "/archive": lambda: make_archive_session(results, archive_problems),
+                "/archive": lambda: make_archive_session(
+                    results, archive_problems, desk_cases_of(library)
+                ),
             },
             address=host,
             port=port,

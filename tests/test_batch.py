@@ -299,6 +299,89 @@ def test_a_result_opens_through_the_archive(tmp_path):
         load_result(str(bad))
 
 
+def test_the_archive_keeps_runs_apart_names_them_marks_invented_data_and_links_the_desk(
+    tmp_path,
+):
+    # two runs of the invented sample 14 years apart (the second a copy of the first's rows,
+    # moved on), as a batch writes them
+    from app.batch import Task, _write_table, flatten
+    from app.desk.archive import ArchivePage, load_result
+    from balance_core.io import analyze_case, open_case
+
+    path = os.path.join(ROOT, "sample_cases", "ocean_cyclone.nc")
+    case = open_case(path)
+    assert case.invented  # the sample says so in its attributes
+    rows = []
+    for t in range(case.times.size):
+        rep = analyze_case(case, 500.0, t, (-52.0, -28.0, 38.0, 56.0))
+        rows.append(flatten(rep, Task(path, None, t, 500.0, ()), "box", invented=case.invented))
+    assert rows[0]["reference_time"] is None  # the sample names no run
+    later = []
+    for r in rows:
+        r2 = dict(r, file="later.nc", path="/elsewhere/later.nc", invented=False)
+        moved = pd.Timestamp(r["valid_time"]) + pd.DateOffset(years=14)
+        r2["valid_time"] = moved.strftime("%Y-%m-%dT%H:%M:%SZ")
+        r2["reference_time"] = "2055-01-18T12:00:00Z"
+        later.append(r2)
+    out = str(tmp_path / "r.parquet")
+    _write_table(out, rows + later)
+    page = ArchivePage(
+        {"r.parquet": load_result(out)}, desk_cases={"ocean_cyclone.nc": "ocean_cyclone"}
+    )
+    page.w_level.value = 500.0
+    d = page.src.data
+    n = case.times.size
+    assert len(d["t"]) == 2 * n + 1  # the runs' rows and one break between them
+    gap = n
+    assert all(np.isnan(d[k][gap]) for k in d if k.startswith("ratio_")) and np.isnan(d["y"][gap])
+    assert np.all(np.isfinite(d["ratio_geostrophic"][:gap]))
+    assert np.all(np.isfinite(d["ratio_geostrophic"][gap + 1 :]))
+    # the hover names each point's file and run
+    assert set(d["file"][:gap]) == {"ocean_cyclone.nc"} and set(d["file"][gap + 1 :]) == {
+        "later.nc"
+    }
+    assert d["run"][0] == "file ocean_cyclone.nc"  # a file that names no run is its own
+    assert set(d["run"][gap + 1 :]) == {"run 18 Jan 12 UTC"}
+    # the invented rows are marked, the others not
+    assert set(d["data"][:gap]) == {"invented demo data"} and set(d["data"][gap + 1 :]) == {""}
+    assert f"invented demo data: {n} of {2 * n} times" in page.counts.object
+    assert f"{2 * n} valid times from 2 files in 2 runs" in page.counts.object
+    # a mark of a file the desk holds links there at its time, level and region; the other
+    # file is not on this server: no link
+    link = d["link"][0]
+    assert link.startswith("/?case=ocean_cyclone&level=500&time=")
+    assert "region=box%3A-52%2C-28%2C38%2C56" in link
+    assert rows[0]["valid_time"].replace(":", "%3A")[:16] in link
+    assert set(d["link"][gap + 1 :]) == {""}
+
+
+def test_the_archive_reads_a_result_written_before_runs_and_invented_marks(tmp_path):
+    # no reference time, no invented column: each file is its own series, nothing is marked
+    from app.desk.archive import ArchivePage, load_result
+
+    rows = [
+        {
+            "file": f,
+            "valid_time": t,
+            "level_hpa": 500.0,
+            "region": "r",
+            "verdict": "geostrophic",
+            "ratio_geostrophic": 0.1,
+        }
+        for f, t in [
+            ("a.nc", "2020-01-01T00:00Z"),
+            ("b.nc", "2020-01-01T06:00Z"),
+            ("a.nc", "2020-01-01T12:00Z"),
+        ]
+    ]
+    out = tmp_path / "old.csv"
+    pd.DataFrame(rows).to_csv(out, index=False)
+    page = ArchivePage({"old.csv": load_result(str(out))})
+    d = page.src.data
+    assert d["run"] == ["file a.nc", "file a.nc", "", "file b.nc"]
+    assert "invented" not in page.counts.object and set(d["link"]) == {""}
+
+
 def test_workers_too_small_for_a_piece_end_the_run_with_a_sentence(archive, tmp_path):
     # 120 MB per worker is less than a worker needs to start: dask restarts them until it
     # gives up; the run must end (never wait for ever) with one sentence, or report the

@@ -13,13 +13,22 @@ import os
 
 import numpy as np
 import panel as pn
-from bokeh.models import ColumnDataSource, HoverTool, Span
+from bokeh.models import ColumnDataSource, CustomJS, HoverTool, Span, TapTool
 from bokeh.plotting import figure
 
 from balance_core.vocabulary import BALANCE_CLASSES
 
 from .. import wording
-from .look import CAUTION, INK, WIDGET_CSS, alert, esc, style_figure
+from .look import (
+    CAUTION,
+    INK,
+    INVENTED_BG,
+    WIDGET_CSS,
+    alert,
+    esc,
+    style_figure,
+    valid_time_ticks,
+)
 from .systems import VERDICT_COLOURS
 
 __all__ = ["load_result", "ArchivePage", "make_archive_session"]
@@ -53,9 +62,12 @@ def load_result(path):
 class ArchivePage(pn.viewable.Viewer):
     """One session's page of the archive view."""
 
-    def __init__(self, results: dict, **params):
+    def __init__(self, results: dict, desk_cases: dict | None = None, **params):
         super().__init__(**params)
         self.results = results
+        #: the desk's case for a file of a result: absolute path or file name -> case name
+        #: (serve's cases); a mark of a file the desk holds opens it there
+        self.desk_cases = dict(desk_cases or {})
         css = [WIDGET_CSS]
         names = list(results)
         self.w_result = pn.widgets.Select(
@@ -68,14 +80,24 @@ class ArchivePage(pn.viewable.Viewer):
         self.w_region = pn.widgets.Select(label="Region", width=320, stylesheets=css)
         self.w_level = pn.widgets.Select(label="Pressure level", width=160, stylesheets=css)
         self.src = ColumnDataSource(
-            dict(t=[], **{k: [] for k in RATIOS}, verdict=[], colour=[], y=[])
+            dict(
+                t=[],
+                **{k: [] for k in RATIOS},
+                verdict=[],
+                colour=[],
+                y=[],
+                file=[],
+                run=[],
+                data=[],
+                link=[],
+            )
         )
         fig = figure(
             height=380,
             sizing_mode="stretch_width",
             x_axis_type="datetime",
             y_axis_label="imbalance ratio (smaller holds better)",
-            tools="pan,wheel_zoom,reset,save",
+            tools="pan,wheel_zoom,reset,save,tap",
             toolbar_location="above",
             output_backend="canvas",
             y_range=(0, 1.5),
@@ -112,12 +134,23 @@ class ArchivePage(pn.viewable.Viewer):
             HoverTool(
                 tooltips=[
                     ("time", "@t{%a %d %b %Y %H UTC}"),
+                    ("run", "@run"),
+                    ("file", "@file"),
+                    ("data", "@data"),
                     ("verdict", "@verdict"),
                     *[(name, f"@{col}{{0.00}}") for col, (name, _) in RATIOS.items()],
                 ],
                 formatters={"@t": "datetime"},
             )
         )
+        # a mark opens the desk at its file, time, level and region, in a new tab (a mark of
+        # a file this server does not hold has no link and opens nothing)
+        fig.select_one(TapTool).callback = CustomJS(
+            args=dict(src=self.src),
+            code="const i = src.selected.indices[0]; if (i === undefined) return; "
+            "const u = src.data.link[i]; if (u) window.open(u, '_blank', 'noopener');",
+        )
+        fig.xaxis.formatter = valid_time_ticks()
         fig.legend.location = "top_left"
         style_figure(fig)
         self.fig = fig
@@ -138,9 +171,11 @@ class ArchivePage(pn.viewable.Viewer):
             pn.pane.Bokeh(fig, sizing_mode="stretch_width"),
             pn.pane.HTML(
                 "<div style='font-size:15px'>Lines: the imbalance ratio of each "
-                "candidate balance (the dashed line is the limit for a balance, "
+                "candidate balance, one line per run (or per file where a file names no "
+                "run): runs are never joined (the dashed line is the limit for a balance, "
                 "30 %); marks: the verdict at each time (at the smallest ratio), "
-                "filled by balance as on the chart.</div>",
+                "filled by balance as on the chart. Click a mark to open the desk at its "
+                "time, level and region, where this server holds its file.</div>",
                 sizing_mode="stretch_width",
             ),
             self.counts,
@@ -180,23 +215,32 @@ class ArchivePage(pn.viewable.Viewer):
         sel = df[
             (df["region"].astype(str) == self.w_region.value)
             & (np.isclose(df["level_hpa"], self.w_level.value))
-        ].sort_values("valid_time")
+        ]
+        sel = _in_series(sel)
+        n = len(sel)
         data = {"t": sel["valid_time"].to_numpy()}
         for k in RATIOS:
-            data[k] = sel[k].to_numpy(dtype=float) if k in sel else np.full(len(sel), np.nan)
+            data[k] = sel[k].to_numpy(dtype=float) if k in sel else np.full(n, np.nan)
         # each time's mark sits on the ratio of its verdict's balance (the smallest ratio
         # where the verdict is no candidate balance)
-        ratios = np.vstack([data[k] for k in RATIOS]) if len(sel) else np.zeros((len(RATIOS), 0))
+        ratios = np.vstack([data[k] for k in RATIOS]) if n else np.zeros((len(RATIOS), 0))
         smallest = np.nanmin(np.where(np.isfinite(ratios), ratios, np.inf), axis=0)
         column = {name: i for i, (name, _) in enumerate(RATIOS.values())}
         own = [
             ratios[column[v], i] if v in column else smallest[i]
             for i, v in enumerate(sel["verdict"])
         ]
-        data["y"] = np.where(np.isfinite(own), own, 0.0) if len(sel) else []
+        data["y"] = np.where(np.isfinite(own), own, 0.0) if n else []
         data["verdict"] = [wording.balance_name(v) for v in sel["verdict"]]
         data["colour"] = [VERDICT_COLOURS.get(v, "#8c8c8c") for v in sel["verdict"]]
-        self.src.data = data
+        data["file"] = [str(f) for f in sel["file"]] if "file" in sel else [""] * n
+        data["run"] = list(sel["_run"])
+        invented = _flags(sel, "invented")
+        data["data"] = ["invented demo data" if x else "" for x in invented]
+        data["link"] = [self._link(row) for row in sel.itertuples(index=False)]
+        # the runs apart: a break (no values) between one run's last time and the next's
+        # first, so that a line never joins two runs
+        self.src.data = _with_breaks(data, list(sel["_run"]))
         counts = sel["verdict"].value_counts()
         total = int(counts.sum())
         items = "".join(
@@ -206,21 +250,104 @@ class ArchivePage(pn.viewable.Viewer):
             for v, n in counts.items()
         )
         files = sel["file"].nunique() if "file" in sel else 0
+        runs = sel["_run"].nunique()
+        mark = (
+            f" <span class='bd-invented' style='background:{INVENTED_BG};color:#fff;"
+            "padding:2px 8px;border-radius:4px;white-space:nowrap'>invented demo data: "
+            f"{int(np.sum(invented))} of {total} times</span>"
+            if any(invented)
+            else ""
+        )
         self.counts.object = (
             f"<div style='font-size:16px;color:{INK}'><b>Verdicts</b> at "
             f"{self.w_level.value:g} hPa in {esc(self.w_region.value)}, "
-            f"{total} valid times from {files} files:<ul>{items}</ul></div>"
+            f"{_count(total, 'valid time')} from {_count(files, 'file')} in "
+            f"{_count(runs, 'run')}:{mark}<ul>{items}</ul></div>"
         )
         self.note.object = ""
+
+    def _link(self, row) -> str:
+        """The desk's address at a row's file, time, level and region ('' where this server
+        does not hold the file)."""
+        from urllib.parse import urlencode
+
+        path = getattr(row, "path", None)
+        name = self.desk_cases.get(str(path)) if path is not None else None
+        if name is None:
+            name = self.desk_cases.get(str(getattr(row, "file", "")))
+        if name is None:
+            return ""
+        query = {"case": name, "level": f"{row.level_hpa:g}", "time": _iso(row.valid_time)}
+        box = [getattr(row, f"region_{k}", None) for k in ("west", "east", "south", "north")]
+        if all(b is not None and np.isfinite(b) for b in box):
+            query["region"] = "box:" + ",".join(f"{b:g}" for b in box)
+        return "/?" + urlencode(query)
 
     def __panel__(self):
         return self.layout
 
 
-def make_archive_session(results: dict, problems=()):
+def _count(n: int, thing: str) -> str:
+    return f"{n} {thing}" + ("" if n == 1 else "s")
+
+
+def _iso(t) -> str:
+    return np.datetime64(t, "s").astype(str) + "Z"
+
+
+def _flags(sel, col) -> list:
+    """A true/false column as bools (absent in results written before it: all false)."""
+    if col not in sel:
+        return [False] * len(sel)
+    return [str(v).strip().lower() in ("true", "1", "1.0") for v in sel[col]]
+
+
+def _in_series(sel):
+    """The rows by run, then by valid time, with the run's name in ``_run``: the run's
+    reference time where the rows give one, else the file (a file of unknown run is its own
+    series)."""
+    import pandas as pd
+
+    sel = sel.copy()
+    ref = sel["reference_time"] if "reference_time" in sel else pd.Series([None] * len(sel))
+    ref = pd.to_datetime(ref.to_numpy(), utc=True, errors="coerce")
+    files = sel["file"].astype(str).to_numpy() if "file" in sel else [""] * len(sel)
+    sel["_run"] = [
+        f"run {wording.when_short(np.datetime64(r.tz_localize(None)))}"
+        if not pd.isna(r)
+        else f"file {f}"
+        for r, f in zip(ref, files)
+    ]
+    sel["_first"] = sel.groupby("_run")["valid_time"].transform("min")
+    return sel.sort_values(["_first", "_run", "valid_time"], kind="stable")
+
+
+def _with_breaks(data: dict, runs: list) -> dict:
+    """``data``'s columns with one empty row (NaN ratios, no mark) between two runs."""
+    cut = [i for i in range(1, len(runs)) if runs[i] != runs[i - 1]]
+    if not cut:
+        return data
+    out = {}
+    for k, v in data.items():
+        v = list(v)
+        for i in reversed(cut):
+            if k == "t":
+                gap = v[i - 1]
+            elif k in RATIOS or k == "y":
+                gap = np.nan
+            elif k == "colour":
+                gap = "#8c8c8c"
+            else:
+                gap = ""
+            v.insert(i, gap)
+        out[k] = np.asarray(v) if k in RATIOS or k in ("t", "y") else v
+    return out
+
+
+def make_archive_session(results: dict, problems=(), desk_cases=None):
     """The archive page of one browser session (never raises)."""
     try:
-        page = ArchivePage(results)
+        page = ArchivePage(results, desk_cases)
         if problems:
             page.note.object = alert("; ".join(problems))
         return page.layout

@@ -12,14 +12,26 @@ import math
 import numpy as np
 import panel as pn
 import param
-from bokeh.models import ColumnDataSource, DatetimeTickFormatter, Legend, LegendItem, Span
+from bokeh.models import ColumnDataSource, Legend, LegendItem, Span
 from bokeh.plotting import figure
 
 from balance_core.scales import PRESETS
 
 from .. import wording
 from ..state import SHEET_SCALES, ViewState, level_text
-from .look import BLUE, INK, MUTED, ORANGE, VERMILION, WIDGET_CSS, alert, esc, palette, style_figure
+from .look import (
+    BLUE,
+    INK,
+    MUTED,
+    ORANGE,
+    VERMILION,
+    WIDGET_CSS,
+    alert,
+    esc,
+    palette,
+    style_figure,
+    valid_time_ticks,
+)
 
 __all__ = ["Below"]
 
@@ -303,17 +315,7 @@ class Below(pn.viewable.Viewer):
         )
         f.add_layout(legend, "below")  # beside the data, never over the first point
         f.yaxis.axis_label = "dimensionless"
-        # the trade's way of writing a valid time ("19 Jan 06 UTC"), as everywhere on the page
-        stamp = "%d %b %H UTC"
-        f.xaxis.formatter = DatetimeTickFormatter(
-            minutes="%d %b %H:%M UTC",
-            hourmin="%d %b %H:%M UTC",
-            hours=stamp,
-            days=stamp,
-            months="%b %Y",
-            years="%Y",
-            context=None,
-        )
+        f.xaxis.formatter = valid_time_ticks()
         style_figure(f)
         self.times_fig = f
         self.times_plot.objects = [pn.pane.Bokeh(f, sizing_mode="stretch_width")]

@@ -138,3 +138,20 @@ def palette(kind):
     from bokeh.palettes import Cividis256
 
     return Cividis256
+
+
+def valid_time_ticks():
+    """A time axis's ticks as the page writes valid times ("19 Jan 06 UTC", as
+    app.wording.when_short), with no second line in another format under them."""
+    from bokeh.models import DatetimeTickFormatter
+
+    stamp = "%d %b %H UTC"
+    return DatetimeTickFormatter(
+        minutes="%d %b %H:%M UTC",
+        hourmin="%d %b %H:%M UTC",
+        hours=stamp,
+        days=stamp,
+        months="%b %Y",
+        years="%Y",
+        context=None,
+    )

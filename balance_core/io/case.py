@@ -87,6 +87,15 @@ class Case:
 
     # -- what the data can give ----------------------------------------------------
     @property
+    def invented(self) -> bool:
+        """Is the case invented demo data (an own scenario, not weather that happened)? The
+        sample cases say so in their ``geography`` ("invented ...") or ``source``
+        ("synthetic ..."/"invented ...") attribute."""
+        geo = str(self.attrs.get("geography", "")).lower()
+        src = str(self.attrs.get("source", "")).lower()
+        return "invented" in geo or "synthetic" in src or "invented" in src
+
+    @property
     def missing(self) -> list:
         """Optional pressure-level variables the case lacks."""
         return [r for r in OPTIONAL if r not in self.data]
