@@ -171,6 +171,15 @@ def test_surface_friction_evidence(tmp_path):
     np.testing.assert_allclose(sfc["speed_ratio"][ok], 0.7, rtol=1e-9)
     rep = analyze_case(c, 850, 0, (-20, 20, 40, 60))
     assert rep["surface"]["cross_isobar_angle_median_deg"] == pytest.approx(20.0)
+    # kept for the times asked last, read-only, and never handed to a copy of another grid
+    assert c.surface_analysis(0) is sfc
+    with pytest.raises(ValueError):
+        sfc["speed_ratio"][0, 0] = 1.0
+    band = c.rows(2, 6)
+    assert band.surface_analysis(0)["speed_ratio"].shape == (4, c.grid.shape[1])
+    for t in range(1, len(TIMES)):
+        c.surface_analysis(t)
+    assert len(TIMES) == 3 and c.surface_analysis(0) is not sfc  # an old time is computed again
 
 
 # -- projected grids -------------------------------------------------------------------

@@ -84,6 +84,13 @@ class Case:
     member_count: int = 1
     #: the member read (an index or "mean"); None for files without members
     member: Any = None
+    #: the surface analyses of the valid times asked for last (:meth:`surface_analysis`),
+    #: oldest first; a copy of the case (dataclasses.replace) starts with none
+    _surface_memo: dict = dataclasses.field(
+        default_factory=dict, init=False, repr=False, compare=False
+    )
+    #: how many valid times' surface analyses a case keeps
+    SURFACE_MEMO_TIMES = 2
 
     # -- what the data can give ----------------------------------------------------
     @property
@@ -285,9 +292,27 @@ class Case:
         from the 2 m temperature (or the standard-atmosphere density at sea level
         when there is none), the cross-isobar angle (degrees, positive when the
         wind turns toward low pressure, in both hemispheres) and |V| / |Vg|.
+
+        Kept for the last :attr:`SURFACE_MEMO_TIMES` valid times (every region's report of
+        a time asks for it: read afresh, it was 70 % of a region's report on a sample); its
+        arrays are read-only.
         """
         if "msl" not in self.surface or "u10" not in self.surface or "v10" not in self.surface:
             return None
+        memo = self._surface_memo
+        if time_index in memo:
+            return memo[time_index]
+        out = self._surface_analysis(time_index)
+        for a in out.values():
+            if isinstance(a, np.ndarray):
+                a.setflags(write=False)
+        memo[time_index] = out
+        while len(memo) > self.SURFACE_MEMO_TIMES:
+            memo.pop(next(iter(memo)), None)
+        return out
+
+    def _surface_analysis(self, time_index: int) -> dict:
+        """:meth:`surface_analysis`, computed."""
         from ..surface import density_from
         from ..winds import geostrophic_wind_from_pressure
 
