@@ -588,12 +588,11 @@ def _graticule(geom: ViewGeometry, step: float | None):
         x, y = geom.to_view(np.full_like(la, lon), la)
         xs.append(np.asarray(x))
         ys.append(np.asarray(y))
-        inside = (np.asarray(y) >= y0) & (np.asarray(x) >= x0) & (np.asarray(x) <= x1)
-        if inside.any():
-            k = np.nonzero(inside)[0][0]
-            labels.append(
-                (float(x[k]), float(y0), _deg(((lon + 180) % 360) - 180, "E", "W"), "lon")
-            )
+        # labelled where it crosses the bottom edge (one that enters by a side has no label
+        # there: put at the bottom, it would name a place it is not)
+        xc = _crossing(np.asarray(y), np.asarray(x), y0, x0, x1)
+        if xc is not None:
+            labels.append((xc, float(y0), _deg(((lon + 180) % 360) - 180, "E", "W"), "lon"))
     for lat in np.arange(np.floor(lat_lo / step) * step, lat_hi + step, step):
         if abs(lat) >= 90:
             continue
@@ -601,11 +600,24 @@ def _graticule(geom: ViewGeometry, step: float | None):
         x, y = geom.to_view(lo, np.full_like(lo, lat))
         xs.append(np.asarray(x))
         ys.append(np.asarray(y))
-        inside = (np.asarray(x) >= x0) & (np.asarray(y) >= y0) & (np.asarray(y) <= y1)
-        if inside.any():
-            k = np.nonzero(inside)[0][0]
-            labels.append((float(x0), float(y[k]), _deg(lat, "N", "S"), "lat"))
+        yc = _crossing(np.asarray(x), np.asarray(y), x0, y0, y1)
+        if yc is not None:
+            labels.append((float(x0), yc, _deg(lat, "N", "S"), "lat"))
     return xs, ys, _thin_labels(labels, geom.extent)
+
+
+def _crossing(a, b, level, lo, hi):
+    """Where the line through the points (a, b) first crosses ``a == level`` with ``b``
+    between ``lo`` and ``hi``: that ``b`` (linear between the two points about the
+    crossing), or None."""
+    d = a - level
+    ok = np.isfinite(d[:-1]) & np.isfinite(d[1:]) & np.isfinite(b[:-1]) & np.isfinite(b[1:])
+    for i in np.nonzero(ok & (np.sign(d[:-1]) != np.sign(d[1:])))[0]:
+        f = d[i] / (d[i] - d[i + 1])
+        bc = float(b[i] + f * (b[i + 1] - b[i]))
+        if lo <= bc <= hi:
+            return bc
+    return None
 
 
 def _thin_labels(labels, extent, chars_across=70.0, rows_up=32.0):

@@ -86,6 +86,28 @@ def test_graticule_labels_never_collide(library):
             assert not cut, (name, frame, cut)
 
 
+def _degrees(text):
+    value, hemi = float(text[:-1]), text[-1]
+    return -value if hemi in "WS" else value
+
+
+def test_each_graticule_label_stands_where_its_line_crosses_the_edge(library):
+    # a meridian's label on the bottom edge at that meridian, a parallel's on the left edge
+    # at that parallel (the place read back through the view's projection, pyproj): one that
+    # entered by a side was once labelled at the bottom corner, far from itself
+    for name in library.good:
+        case = library.get(name)
+        st = ViewState(case=name, level=compute.nearest_level(case, 500.0), projection="conformal")
+        cd = compute.chart_data(library, st)
+        for x, y, text, kind in cd.graticule[2]:
+            lon, lat = cd.geom.to_lonlat(np.array([x]), np.array([y]))
+            if kind == "lon":
+                off = (float(lon[0]) - _degrees(text) + 180) % 360 - 180
+            else:
+                off = float(lat[0]) - _degrees(text)
+            assert abs(off) < 0.05, (name, text, float(lon[0]), float(lat[0]))
+
+
 def test_the_collision_check_can_fail(library, monkeypatch):
     # every meridian and parallel labelled, none dropped: labels collide at a corner
     from app import render
