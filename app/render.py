@@ -588,11 +588,11 @@ def _graticule(geom: ViewGeometry, step: float | None):
         x, y = geom.to_view(np.full_like(la, lon), la)
         xs.append(np.asarray(x))
         ys.append(np.asarray(y))
-        # labelled where it crosses the bottom edge (one that enters by a side has no label
-        # there: put at the bottom, it would name a place it is not)
-        xc = _crossing(np.asarray(y), np.asarray(x), y0, x0, x1)
-        if xc is not None:
-            labels.append((xc, float(y0), _deg(((lon + 180) % 360) - 180, "E", "W"), "lon"))
+        # labelled where it enters the frame (the bottom edge, or a side: put at the bottom
+        # whatever its way in, a label would name a place it is not)
+        at = _entry(np.asarray(x), np.asarray(y), geom.extent)
+        if at is not None:
+            labels.append((*at, _deg(((lon + 180) % 360) - 180, "E", "W"), "lon"))
     for lat in np.arange(np.floor(lat_lo / step) * step, lat_hi + step, step):
         if abs(lat) >= 90:
             continue
@@ -600,24 +600,30 @@ def _graticule(geom: ViewGeometry, step: float | None):
         x, y = geom.to_view(lo, np.full_like(lo, lat))
         xs.append(np.asarray(x))
         ys.append(np.asarray(y))
-        yc = _crossing(np.asarray(x), np.asarray(y), x0, y0, y1)
-        if yc is not None:
-            labels.append((float(x0), yc, _deg(lat, "N", "S"), "lat"))
+        at = _entry(np.asarray(x), np.asarray(y), geom.extent)
+        if at is not None:
+            labels.append((*at, _deg(lat, "N", "S"), "lat"))
     return xs, ys, _thin_labels(labels, geom.extent)
 
 
-def _crossing(a, b, level, lo, hi):
-    """Where the line through the points (a, b) first crosses ``a == level`` with ``b``
-    between ``lo`` and ``hi``: that ``b`` (linear between the two points about the
-    crossing), or None."""
-    d = a - level
-    ok = np.isfinite(d[:-1]) & np.isfinite(d[1:]) & np.isfinite(b[:-1]) & np.isfinite(b[1:])
-    for i in np.nonzero(ok & (np.sign(d[:-1]) != np.sign(d[1:])))[0]:
-        f = d[i] / (d[i] - d[i + 1])
-        bc = float(b[i] + f * (b[i + 1] - b[i]))
-        if lo <= bc <= hi:
-            return bc
-    return None
+def _entry(x, y, extent):
+    """Where the line through the points (x, y) first enters the rectangle ``extent`` (x0,
+    x1, y0, y1) across its bottom or left edge, as (x, y) (linear between the two points
+    about the crossing), or None. A label is drawn above and to the right of its point, so
+    one on the top or right edge would fall outside the frame."""
+    x0, x1, y0, y1 = extent
+    best = None
+    for a, b, level, lo, hi, swap in ((y, x, y0, x0, x1, True), (x, y, x0, y0, y1, False)):
+        d = a - level
+        ok = np.isfinite(d[:-1]) & np.isfinite(d[1:]) & np.isfinite(b[:-1]) & np.isfinite(b[1:])
+        for i in np.nonzero(ok & (np.sign(d[:-1]) != np.sign(d[1:])))[0]:
+            f = d[i] / (d[i] - d[i + 1])
+            bc = float(b[i] + f * (b[i + 1] - b[i]))
+            if lo <= bc <= hi:
+                if best is None or i + f < best[0]:
+                    best = (i + f, (bc, float(level)) if swap else (float(level), bc))
+                break
+    return None if best is None else best[1]
 
 
 def _thin_labels(labels, extent, chars_across=70.0, rows_up=32.0):
@@ -628,8 +634,14 @@ def _thin_labels(labels, extent, chars_across=70.0, rows_up=32.0):
     """
     x0, x1, y0, y1 = extent
     cw, ch = (x1 - x0) / chars_across, (y1 - y0) / rows_up
-    kept, boxes = [], []
-    for x, y, text, kind in labels:
+    # the lower left corner is the reference arrow's (app.compute: its start 4 % and 5 % in
+    # from the corner, its label "arrow: 20 m/s" above it)
+    arrow = (x0, y0, x0 + 0.04 * (x1 - x0) + 18 * cw, y0 + 0.05 * (y1 - y0) + 2.2 * ch)
+    kept, boxes = [], [arrow]
+    # meridians named along the bottom and parallels along the left side first, as a reader
+    # looks for them; a line that enters by the other edge is named there if room is left
+    natural = [lab for lab in labels if (lab[3] == "lon") == (lab[1] == y0)]
+    for x, y, text, kind in natural + [lab for lab in labels if lab not in natural]:
         w = (len(text) + 1) * cw
         # lon labels sit on the bottom edge, lat labels on the left edge, each drawn to the
         # right of and above its point (the chart's text is anchored at its left and bottom)

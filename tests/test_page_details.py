@@ -16,6 +16,7 @@ import matplotlib
 import netCDF4
 import numpy as np
 import pytest
+from PIL import ImageFont
 
 from app import compute
 from app.library import CaseLibrary
@@ -72,8 +73,25 @@ def test_graticule_labels_never_collide(library):
         # at the chart's widest and at its narrowest (the text keeps its size)
         for frame in (WIDTH - 100, (WIDTH - 100) * MIN_WIDTH / WIDTH):
             boxes = _label_boxes(cd, frame)
-            assert len(boxes) >= 4, name
+            # at least a parallel and two meridians named (the reference arrow's corner
+            # takes the labels near it)
+            assert len(boxes) >= 3, name
+            assert {b[4][-1] for b in boxes} & set("NS") and {b[4][-1] for b in boxes} & set("EW")
             assert not _collisions(boxes), (name, frame, _collisions(boxes))
+            # nor with the reference arrow and its label ("arrow: 20 m/s", 15 px text 6 px
+            # above and right of the arrow's start, on a padded box)
+            if cd.reference_arrow is not None:
+                a = cd.reference_arrow
+                x0, x1, y0, _ = cd.geom.extent
+                k = frame / (x1 - x0)
+                ax, ay = (a["x0"] - x0) * k, (a["y0"] - y0) * k
+                width = max(
+                    ImageFont.truetype(FONT, 15).getlength(f"arrow: {a['text']}"),
+                    (a["x1"] - a["x0"]) * k,
+                )
+                arrow = (ax - 2, ay - 6, ax + 6 + width + 4, ay + 6 + 22, "arrow")
+                hit = _collisions([arrow] + boxes)
+                assert not hit, (name, frame, hit)
             # and every label whole inside the frame: one cut at the edge reads as another
             # ("60N" as "0N"); the frame is at true shape (conformal: metres both ways)
             x0, x1, y0, y1 = cd.geom.extent
