@@ -67,7 +67,9 @@ def test_a_piece_on_a_band_of_rows_equals_analyze_on_the_whole_grid(
     assert result["error"] is None, result["error"]
     assert len(result["rows"]) == len(boxes)
     for (name, box), got in zip(boxes, result["rows"]):
-        want = flatten(analyze_case(case, level, t, box), task, name)
+        want = flatten(analyze_case(case, level, t, box), task, name, invented=case.invented)
+        # the bundled sample is invented demo data, the registry packages' files are not
+        assert got["invented"] is (path == SAMPLE)
         assert got.keys() == want.keys()
         differ = [k for k in want if not _same(got[k], want[k])]
         assert not differ, {k: (got[k], want[k]) for k in differ}
