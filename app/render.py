@@ -582,7 +582,6 @@ def _graticule(geom: ViewGeometry, step: float | None):
     span = max(lon_hi - lon_lo, lat_hi - lat_lo)
     step = step or next(s for s in (1, 2, 5, 10, 20, 30) if span / s <= 12)
     xs, ys, labels = [], [], []
-    x0, x1, y0, y1 = geom.extent
     for lon in np.arange(np.floor(lon_lo / step) * step, lon_hi + step, step):
         la = np.linspace(max(lat_lo - step, -89.9), min(lat_hi + step, 89.9), 120)
         x, y = geom.to_view(np.full_like(la, lon), la)
