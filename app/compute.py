@@ -240,11 +240,23 @@ def _color_range(vals, kind, *, whole=False):
         return (lo, hi)
     lo, hi = np.percentile(finite, [1, 99])
     if kind == "diverging":
-        m = max(abs(lo), abs(hi), 1e-12)
-        return (-m, m)
+        # a field that is zero everywhere gets a scale of one unit each way, not one of
+        # rounding noise (its note says it is the same everywhere, :func:`constant_note`)
+        m = max(abs(lo), abs(hi))
+        return (-m, m) if m > 0 else (-1.0, 1.0)
     if hi <= lo:
         hi = lo + 1.0
     return (float(lo), float(hi))
+
+
+def constant_note(vals, units) -> str:
+    """'The field is the same everywhere on the chart: 0 Pa s-1', for a field with no spread
+    in view (a colour scale would show nothing), else ''."""
+    finite = vals[np.isfinite(vals)]
+    if finite.size == 0 or float(np.ptp(finite)) > 0:
+        return ""
+    u = f" {units}" if units else ""
+    return f"The field is the same everywhere on the chart: {float(finite[0]):.4g}{u}"
 
 
 def _color_cut(vals, kind, color_range):
@@ -390,6 +402,9 @@ def chart_data(library, state: ViewState) -> ChartData:
     cut_note = color_cut_note(color_cut, color_range, units)
     if cut_note:
         notes.append(cut_note)
+    same = constant_note(raster, units)
+    if same:
+        notes.append(same)
     return ChartData(
         geom=geom,
         title=title,

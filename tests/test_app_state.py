@@ -208,6 +208,11 @@ def test_errors_are_readable(library):
     assert cd.field_key == "omega"  # the TC has omega (zero everywhere)
     # omega's sign runs against the motion: its name on the chart says which way rises
     assert "negative: rising" in cd.field_label
+    # zero everywhere: the chart says so, and its scale is one unit each way, not noise
+    assert "The field is the same everywhere on the chart: 0 Pa s-1" in cd.notes
+    assert cd.color_range == (-1.0, 1.0)
+    # a field that varies says no such thing
+    assert not any("same everywhere" in n for n in compute.chart_data(library, _state()).notes)
     st3 = _state(field="term:tendency")
     assert compute.chart_data(library, st3).field_key == "term:tendency"
 
