@@ -254,7 +254,23 @@ def _draw_chart(fig, ax, chart, outline):
             color="#1a1a1a",
             bbox=dict(facecolor="white", alpha=0.85, lw=0, pad=1),
         )
-    if chart.vectors is not None:
+    if chart.barbs is not None:
+        # the same barbs as the page's (render.wind_barbs), in knots
+        from matplotlib.collections import LineCollection, PolyCollection
+
+        (lx, ly), (fx, fy), (cx, cy) = (
+            chart.barbs["lines"],
+            chart.barbs["pennants"],
+            chart.barbs["calm"],
+        )
+        ax.add_collection(
+            LineCollection([list(zip(a, b)) for a, b in zip(lx, ly)], colors="black", lw=1.2)
+        )
+        ax.add_collection(
+            PolyCollection([list(zip(a, b)) for a, b in zip(fx, fy)], facecolors="black")
+        )
+        ax.scatter(cx, cy, s=18, facecolors="none", edgecolors="black", linewidths=1.2)
+    elif chart.vectors is not None:
         v = chart.vectors
         ax.quiver(
             v["x0"],

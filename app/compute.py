@@ -207,6 +207,9 @@ class ChartData:
     masked_share: float = 0.0
     #: what the contours are: "height contours" or "isobars" (sea-level pressure)
     contour_label: str = "height contours"
+    #: the vectors as wind barbs in knots (render.wind_barbs), where asked for; then the
+    #: arrows and their reference arrow are not drawn
+    barbs: dict | None = None
 
 
 def _field_values(key, diag, state):
@@ -330,7 +333,7 @@ def chart_data(library, state: ViewState) -> ChartData:
     levels = render.interval_levels(np.nanmin(zr), np.nanmax(zr), interval)
     contours = render.contour_lines(geom.xs, geom.ys, zr, levels)
     # vectors, and a reference arrow of one lattice cell
-    vectors, vlabel, arrow = None, "", None
+    vectors, vlabel, arrow, barbs = None, "", None, None
     kind_of_vectors = state.vectors
     if diag.no_wind and kind_of_vectors in ("wind", "ageostrophic"):
         notes.append(f"{diag.no_wind}: the vectors are the geostrophic wind of the heights")
@@ -362,6 +365,13 @@ def chart_data(library, state: ViewState) -> ChartData:
         }
         if kind_of_vectors != "wind" and np.isnan(ur).mean() > 0.05:
             notes.append(f"geostrophic wind masked within {state.min_lat:g} degrees of the equator")
+        if state.vector_style == "barbs":
+            barbs = render.wind_barbs(vectors, geom.x_ground_scale)
+            arrow = None
+            vlabel += (
+                " as barbs in knots: half barb 5 kt, barb 10 kt, pennant 50 kt, drawn on the "
+                "low-pressure side; a circle is calm (under 2.5 kt)"
+            )
     hover = _hover(geom, diag, vals, state, units)
     coast = render.coastlines(geom)
     coast_note = ""
@@ -423,6 +433,7 @@ def chart_data(library, state: ViewState) -> ChartData:
         contour_interval=interval,
         contour_label=contour_label,
         vectors=vectors,
+        barbs=barbs,
         vector_label=vlabel,
         reference_arrow=arrow,
         hover=hover,

@@ -456,6 +456,7 @@ def vector_lattice(geom: ViewGeometry, u_raster, v_raster, n_across: int = 22):
     y1 = y0 + dv * length
     keep = np.isfinite(x1) & np.isfinite(y1)
     return {
+        "lat": geom.lat[jj, ii][keep],
         "x0": x0[keep],
         "y0": y0[keep],
         "x1": x1[keep],
@@ -465,6 +466,86 @@ def vector_lattice(geom: ViewGeometry, u_raster, v_raster, n_across: int = 22):
         "ref_speed": ref,
         "cell": cell,
     }
+
+
+def _one_barb(at, staff_dir, side, k, counts, cell):
+    """One barb's lines (the staff, then each barb) and pennant triangles, as point lists in
+    view coordinates: the staff from ``at`` along ``staff_dir`` (a unit vector where a unit
+    of x is ``k`` of y), the features on the ``side`` (+1 right, -1 left) of it."""
+    (x0, y0), (dx, dy) = at, staff_dir
+    px, py = side * dy, -side * dx
+    staff, step, reach = 0.9 * cell, 0.13 * 0.9 * cell, 0.4 * 0.9 * cell
+
+    def point(along, out=0.0):
+        return x0 + (along * dx + out * px) / k, y0 + along * dy + out * py
+
+    pennants, barbs, halves = counts
+    lines, flags = [[point(0.0), point(staff)]], []
+    pos = staff
+    for _ in range(pennants):
+        flags.append([point(pos), point(pos, reach), point(pos - step)])
+        pos -= step * 1.2
+    if pennants == 0 and barbs == 0:
+        pos -= step  # a lone half barb, set in from the end
+    for size in [1.0] * barbs + [0.5] * halves:
+        # a barb leans toward the staff's end
+        lines.append([point(pos), point(pos + 0.3 * reach * size, reach * size)])
+        pos -= step
+    return lines, flags
+
+
+#: knots in a pennant, a barb and a half barb (the trade's wind barbs, common practice, no
+#: source); speeds are rounded to the nearest half barb
+PENNANT_KT, BARB_KT, HALF_KT = 50, 10, 5
+KNOT = 1852.0 / 3600.0  # m s-1 (the international knot)
+
+
+def barb_counts(speed_ms):
+    """(pennants, barbs, half barbs) of a wind speed, rounded to the nearest 5 kt."""
+    kt = int(HALF_KT * round(float(speed_ms) / KNOT / HALF_KT))
+    pennants, rest = divmod(kt, PENNANT_KT)
+    barbs, rest = divmod(rest, BARB_KT)
+    return pennants, barbs, rest // HALF_KT
+
+
+def wind_barbs(vectors, k: float):
+    """Wind barbs at the points of :func:`vector_lattice`, in view coordinates.
+
+    The staff runs from the point toward where the wind comes from, a lattice cell long;
+    pennants, barbs and half barbs (:func:`barb_counts`) sit at its far end, on the side of
+    low pressure: to the right of the staff seen from the point in the northern hemisphere,
+    to the left in the southern (common practice, no source). A lone half barb is set in
+    from the end so that it is not read as a full barb. The shapes are made where a unit of
+    x is ``k`` (ViewGeometry.x_ground_scale) as long as a unit of y, so that they keep their
+    shape on a chart at true shape. Returns {"lines": (xs, ys), "pennants": (xs, ys),
+    "calm": (x, y)}: lists of point lists for the staffs and barbs and for the pennants'
+    triangles, and the points whose wind rounds to 0 kt (a circle on the chart)."""
+    lines_x, lines_y, flags_x, flags_y, calm_x, calm_y = [], [], [], [], [], []
+    n = len(vectors["x0"])
+    cell = vectors["cell"] * k  # in units of y
+    for i in range(n):
+        x0, y0 = float(vectors["x0"][i]), float(vectors["y0"][i])
+        p, b, h = barb_counts(vectors["speed"][i])
+        if p == b == h == 0:
+            calm_x.append(x0)
+            calm_y.append(y0)
+            continue
+        # the direction of motion on the screen, then the staff's: into the wind
+        sx = (float(vectors["x1"][i]) - x0) * k
+        sy = float(vectors["y1"][i]) - y0
+        norm = math.hypot(sx, sy)
+        if not norm > 0:
+            continue
+        dx, dy = -sx / norm, -sy / norm
+        side = 1.0 if vectors["lat"][i] >= 0 else -1.0
+        lines, flags = _one_barb((x0, y0), (dx, dy), side, k, (p, b, h), cell)
+        for line in lines:
+            lines_x.append([q[0] for q in line])
+            lines_y.append([q[1] for q in line])
+        for tri in flags:
+            flags_x.append([q[0] for q in tri])
+            flags_y.append([q[1] for q in tri])
+    return {"lines": (lines_x, lines_y), "pennants": (flags_x, flags_y), "calm": (calm_x, calm_y)}
 
 
 # -- coastlines ----------------------------------------------------------------------

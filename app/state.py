@@ -58,6 +58,9 @@ VECTORS = {
     "ageostrophic": "ageostrophic wind",
     "none": "no vectors",
 }
+#: How the vectors are drawn: arrows (in the page's wind units, with a reference arrow) or
+#: wind barbs (in knots, the trade's convention)
+VECTOR_STYLES = {"arrows": "arrows", "barbs": "barbs (kt)"}
 PROJECTIONS = {
     "plate_carree": "plate carree (lon/lat)",
     "conformal": "conformal (Lambert or polar stereographic)",
@@ -72,6 +75,7 @@ URL_PARAMS = (
     "time",
     "field",
     "vectors",
+    "vector_style",
     "smooth_km",
     "min_lat",
     "region",
@@ -352,6 +356,9 @@ class ViewState(param.Parameterized):
     time = param.String(default="", doc="valid time, ISO 8601 (empty: the first)")
     field = param.Selector(default="height", objects=list(FIELDS), doc="the filled field")
     vectors = param.Selector(default="wind", objects=list(VECTORS), doc="the vectors drawn")
+    vector_style = param.Selector(
+        default="arrows", objects=list(VECTOR_STYLES), doc="arrows, or wind barbs in knots"
+    )
     smooth_km = param.Number(
         default=0.0, bounds=(0.0, 2000.0), doc="Gaussian smoothing of the inputs, km (0 = none)"
     )

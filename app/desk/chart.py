@@ -170,6 +170,10 @@ class Chart(pn.viewable.Viewer):
         self.cont_src = ColumnDataSource(dict(xs=[], ys=[]))
         self.clab_src = ColumnDataSource(dict(x=[], y=[], text=[]))
         self.vec_src = ColumnDataSource(dict(x0=[], y0=[], x1=[], y1=[], angle=[], head=[]))
+        #: wind barbs (render.wind_barbs): staffs and barbs, pennants, calm circles
+        self.barb_src = ColumnDataSource(dict(xs=[], ys=[]))
+        self.pennant_src = ColumnDataSource(dict(xs=[], ys=[]))
+        self.calm_src = ColumnDataSource(dict(x=[], y=[]))
         self.coast_src = ColumnDataSource(dict(xs=[], ys=[]))
         self.land_src = ColumnDataSource(dict(xs=[], ys=[]))
         self.grat_src = ColumnDataSource(dict(xs=[], ys=[]))
@@ -259,6 +263,20 @@ class Chart(pn.viewable.Viewer):
             fill_color="black",
             line_color="white",
             line_width=0.5,
+        )
+        # wind barbs: black on a white casing, as the arrows
+        fig.multi_line("xs", "ys", source=self.barb_src, line_color="white", line_width=3.5)
+        fig.multi_line("xs", "ys", source=self.barb_src, line_color="black", line_width=1.6)
+        fig.patches("xs", "ys", source=self.pennant_src, fill_color="black", line_color="white")
+        fig.scatter(
+            "x",
+            "y",
+            source=self.calm_src,
+            marker="circle",
+            size=7,
+            fill_color=None,
+            line_color="black",
+            line_width=1.6,
         )
         # the region's outline on the overlay layer: moving it repaints that layer alone, not
         # the raster, contours and arrows below (Bokeh paints the two canvases apart)
@@ -522,7 +540,7 @@ class Chart(pn.viewable.Viewer):
             y=[b for _, b, _ in labels],
             text=[f"{c:.{digits}f}" for _, _, c in labels],
         )
-        if cd.vectors is not None:
+        if cd.vectors is not None and cd.barbs is None:
             v = cd.vectors
             self.vec_src.data = dict(
                 x0=v["x0"],
@@ -537,6 +555,7 @@ class Chart(pn.viewable.Viewer):
             )
         else:
             self.vec_src.data = dict(x0=[], y0=[], x1=[], y1=[], angle=[], head=[])
+        self._show_barbs(cd.barbs)
         a = cd.reference_arrow
         self.ref_arrow.visible = self.ref_label.visible = a is not None
         if a is not None:
@@ -677,6 +696,18 @@ class Chart(pn.viewable.Viewer):
             listener(lon, lat)
 
     # -- drawing a region --------------------------------------------------------------------
+    def _show_barbs(self, barbs):
+        """Draw :attr:`app.compute.ChartData.barbs` (or none)."""
+        lines, flags, calm = (
+            (barbs["lines"], barbs["pennants"], barbs["calm"])
+            if barbs is not None
+            else (([], []), ([], []), ([], []))
+        )
+        if barbs is not None or self.barb_src.data["xs"] or self.calm_src.data["x"]:
+            self.barb_src.data = dict(xs=lines[0], ys=lines[1])
+            self.pennant_src.data = dict(xs=flags[0], ys=flags[1])
+            self.calm_src.data = dict(x=calm[0], y=calm[1])
+
     def _on_select(self, event):
         geo = event.geometry
         if not getattr(event, "final", True) or geo.get("type") != "rect":

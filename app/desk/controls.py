@@ -16,7 +16,7 @@ from balance_core.io import CaseError, iso
 
 from .. import wording
 from ..compute import has_sea_level as compute_has_sea_level
-from ..state import FIELDS, PROJECTIONS, SEA_LEVEL, VECTORS, ViewState
+from ..state import FIELDS, PROJECTIONS, SEA_LEVEL, VECTOR_STYLES, VECTORS, ViewState
 from .look import WIDGET_CSS, alert
 
 __all__ = ["Controls"]
@@ -53,6 +53,13 @@ class Controls(pn.viewable.Viewer):
         self.w_next = pn.widgets.Button(label="later >", width=W // 2 - 5, stylesheets=css)
         self.w_field = _menu("Filled field", FIELDS, state.field)
         self.w_vectors = _menu("Vectors", VECTORS, state.vectors)
+        self.w_vstyle = pn.widgets.RadioButtonGroup(
+            name="Vectors drawn as",
+            options={label: key for key, label in VECTOR_STYLES.items()},
+            value=state.vector_style,
+            width=W,
+            stylesheets=css,
+        )
         self.w_proj = _menu("Projection", PROJECTIONS, state.projection)
         self.w_hunits = pn.widgets.RadioButtonGroup(
             label="Heights",
@@ -99,6 +106,7 @@ class Controls(pn.viewable.Viewer):
             (self.w_case, "case"),
             (self.w_field, "field"),
             (self.w_vectors, "vectors"),
+            (self.w_vstyle, "vector_style"),
             (self.w_proj, "projection"),
             (self.w_hunits, "height_units"),
             (self.w_wunits, "wind_units"),
@@ -120,6 +128,7 @@ class Controls(pn.viewable.Viewer):
             pn.Row(self.w_prev, self.w_next),
             self.w_field,
             self.w_vectors,
+            self.w_vstyle,
             self.w_proj,
             pn.pane.HTML("<b>Heights and winds in</b>", margin=(8, 5, 0, 5)),
             pn.Row(self.w_hunits, self.w_wunits),
@@ -213,6 +222,7 @@ class Controls(pn.viewable.Viewer):
             (self.w_case, "case"),
             (self.w_field, "field"),
             (self.w_vectors, "vectors"),
+            (self.w_vstyle, "vector_style"),
             (self.w_proj, "projection"),
             (self.w_hunits, "height_units"),
             (self.w_wunits, "wind_units"),
