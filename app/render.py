@@ -78,9 +78,13 @@ class ViewGeometry:
         ``(x1 - x0) * x_ground_scale / w == (y1 - y0) / h``: the same ground distance per
         pixel both ways, so that a circle is drawn round (on a conformal chart exactly, up to
         the map factor's change across the view; on a lon/lat chart at the middle latitude)."""
+        _, _, y0, y1 = self.extent
+        return self.x_ground_scale_between(y0, y1)
+
+    def x_ground_scale_between(self, y0: float, y1: float) -> float:
+        """:attr:`x_ground_scale` of a part of the view, from y0 to y1 (a region zoomed to)."""
         if self.kind != "plate_carree":
             return 1.0
-        _, _, y0, y1 = self.extent
         return float(max(np.cos(np.deg2rad(0.5 * (y0 + y1))), 0.05))
 
     def to_view(self, lon, lat):

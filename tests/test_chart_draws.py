@@ -215,3 +215,48 @@ def test_a_region_outline_on_the_screen_has_the_box_true_shape(server, browser, 
     height_m = geod.inv(-40, 38, -40, 56)[2]
     shown, true = width_px / height_px, width_m / height_m
     assert shown == pytest.approx(true, rel=0.05), (width_px, height_px, width_m, height_m)
+
+
+@pytest.mark.parametrize("projection", ["plate_carree", "conformal"])
+def test_zoom_to_the_region_and_back_to_the_whole_chart(server, browser, projection):
+    ctx = browser.new_context(viewport={"width": 1920, "height": 1080})
+    page = ctx.new_page()
+    page.goto(
+        f"{server}?case=ocean_cyclone&level=500&projection={projection}"
+        "&region=box%3A-52%2C-28%2C38%2C56"
+    )
+    settled(page)
+    whole = page.evaluate(SHAPE_JS)
+    page.get_by_role("button", name="Zoom to the region").click()
+    wait_shape(page, f"s[3] - s[2] < {0.7 * (whole[3] - whole[2])}")
+    zoomed = page.evaluate(SHAPE_JS)
+    assert abs(shape_error(zoomed, projection)) < 0.01, zoomed
+    # the region's outline is all inside the zoomed chart, with room around it
+    outline = page.evaluate(
+        """() => {
+      const d = Bokeh.documents[0];
+      const ms = d._all_models instanceof Map ? [...d._all_models.values()] : [...d._all_models];
+      // the outline's renderer: the one line in the outline's orange (look.ORANGE)
+      const r = ms.find(m => m.glyph !== undefined && m.glyph !== null
+                             && m.glyph.line_color !== undefined
+                             && JSON.stringify(m.glyph.line_color).toUpperCase()
+                                    .includes('E69F00'));
+      const src = r.data_source;
+      return [Math.min(...src.data.x), Math.max(...src.data.x),
+              Math.min(...src.data.y), Math.max(...src.data.y)];
+    }"""
+    )
+    w, h, x0, x1, y0, y1 = zoomed
+    assert x0 < outline[0] < outline[1] < x1 and y0 < outline[2] < outline[3] < y1, (
+        zoomed,
+        outline,
+    )
+    # a level change keeps the zoom
+    step = settled(page)
+    page.get_by_label("Level", exact=True).select_option(label="850 hPa")
+    settled(page, after=step)
+    assert page.evaluate(SHAPE_JS)[2:] == pytest.approx(zoomed[2:], rel=1e-6, abs=1e-6)
+    page.get_by_role("button", name="Whole chart").click()
+    wait_shape(page, f"s[3] - s[2] > {0.95 * (whole[3] - whole[2])}")
+    assert page.evaluate(SHAPE_JS)[2:] == pytest.approx(whole[2:], rel=1e-6, abs=1e-6)
+    ctx.close()

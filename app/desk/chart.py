@@ -480,10 +480,17 @@ class Chart(pn.viewable.Viewer):
         )
         self.alert = pn.pane.HTML("", sizing_mode="stretch_width")
         self.note = pn.pane.HTML("", sizing_mode="stretch_width")
+        #: the chart shows the region's box (and follows the region) rather than the case
+        self.zoomed = False
+        self.w_zoom = pn.widgets.Button(name="Zoom to the region", width=170)
+        self.w_unzoom = pn.widgets.Button(name="Whole chart", width=130)
+        self.w_zoom.on_click(lambda e: self.zoom_to_region(True))
+        self.w_unzoom.on_click(lambda e: self.zoom_to_region(False))
         self.layout = pn.Column(
             self.caption,
             self.alert,
             self.figure_box,
+            pn.Row(self.w_zoom, self.w_unzoom, margin=0),
             self.note,
             sizing_mode="stretch_width",
             min_width=MIN_WIDTH,
@@ -598,9 +605,7 @@ class Chart(pn.viewable.Viewer):
         )
         if tips != self.hover.tooltips:
             self.hover.tooltips = tips
-        home = dict(x0=[x0], x1=[x1], y0=[y0], y1=[y1], k=[g.x_ground_scale])
-        if home != self.home_src.data:
-            self.home_src.data = home
+        self._fit_home()
         aspect = (y1 - y0) / ((x1 - x0) * g.x_ground_scale)
         if getattr(self, "_axes_kind", None) != g.kind:
             # the axes' look changes with the kind of chart only: set it then, never again
@@ -648,6 +653,33 @@ class Chart(pn.viewable.Viewer):
             self.region_src.data = dict(x=[], y=[])
         else:
             self.region_src.data = dict(x=xy[0], y=xy[1])
+        if self.zoomed:
+            self._fit_home()
+
+    def zoom_to_region(self, on: bool = True):
+        """Show the region's box (``on``; it follows a new region) or the whole chart."""
+        self.zoomed = on
+        self._fit_home()
+
+    def _fit_home(self):
+        """Give the browser's fit (FIT_JS) what to show: the view's extent, or with
+        :attr:`zoomed` the region's outline with a margin of a fifth of its size (the extent
+        where there is no region)."""
+        if self.data is None:
+            return
+        g = self.data.geom
+        x0, x1, y0, y1 = g.extent
+        rx = np.asarray(self.region_src.data["x"], float)
+        ry = np.asarray(self.region_src.data["y"], float)
+        ok = np.isfinite(rx) & np.isfinite(ry)
+        if self.zoomed and ok.any():
+            bx0, bx1, by0, by1 = rx[ok].min(), rx[ok].max(), ry[ok].min(), ry[ok].max()
+            mx, my = 0.2 * (bx1 - bx0), 0.2 * (by1 - by0)
+            x0, x1, y0, y1 = bx0 - mx, bx1 + mx, by0 - my, by1 + my
+        k = g.x_ground_scale_between(y0, y1)
+        home = dict(x0=[float(x0)], x1=[float(x1)], y0=[float(y0)], y1=[float(y1)], k=[k])
+        if home != self.home_src.data:
+            self.home_src.data = home
 
     def show_notes(self, points):
         """Mark notes on the chart: ``points`` is a list of (lon, lat, label)."""
