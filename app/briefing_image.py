@@ -222,6 +222,22 @@ def _draw_chart(fig, ax, chart, outline):
     )
     cb.set_label(chart.field_label + (f" ({chart.units})" if chart.units else ""), fontsize=13)
     cb.ax.tick_params(labelsize=12)
+    if chart.overlay is not None:
+        # the second field, dashed in vermilion as on the page
+        ox, oy, _, olabels = chart.overlay
+        for xs, ys in zip(ox, oy):
+            ax.plot(xs, ys, color="#D55E00", lw=1.2, ls="--")
+        for x, y, v in olabels:
+            ax.text(
+                x,
+                y,
+                f"{v:g}",
+                fontsize=10,
+                color="#D55E00",
+                ha="center",
+                va="center",
+                bbox=dict(facecolor="white", alpha=0.85, lw=0, pad=1),
+            )
     lx, ly, lv, labels = chart.contours
     for xs, ys in zip(lx, ly):
         ax.plot(xs, ys, color="black", lw=1.0)
@@ -316,7 +332,10 @@ def _draw_chart(fig, ax, chart, outline):
         if not math.isfinite(chart.contour_interval)
         else f" every {chart.contour_interval:g} {chart.contour_units}"
     )
-    ax.set_title(f"{chart.field_label}; {chart.contour_label}{interval}; {g.label}", fontsize=13)
+    dashed = f"; dashed: {chart.overlay_label}" if chart.overlay_label else ""
+    ax.set_title(
+        f"{chart.field_label}; {chart.contour_label}{interval}{dashed}; {g.label}", fontsize=13
+    )
 
 
 def _draw_balances(axb, report, balanced):

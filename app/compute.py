@@ -24,6 +24,7 @@ from . import render, wording
 from .fields import field_values
 from .library import SEA_LEVEL_INDEX
 from .state import (
+    OVERLAYS,
     SEA_LEVEL,
     SHEET_SCALES,
     URL_PARAMS,
@@ -207,6 +208,10 @@ class ChartData:
     masked_share: float = 0.0
     #: what the contours are: "height contours" or "isobars" (sea-level pressure)
     contour_label: str = "height contours"
+    #: the second field's contours (as ``contours``) and what they are ("isotachs contours
+    #: every 10 kt"), where asked for
+    overlay: tuple | None = None
+    overlay_label: str = ""
     #: the vectors as wind barbs in knots (render.wind_barbs), where asked for; then the
     #: arrows and their reference arrow are not drawn
     barbs: dict | None = None
@@ -332,6 +337,17 @@ def chart_data(library, state: ViewState) -> ChartData:
     zr, zunits, interval, contour_label = _contour_field(geom, diag, sel, state)
     levels = render.interval_levels(np.nanmin(zr), np.nanmax(zr), interval)
     contours = render.contour_lines(geom.xs, geom.ys, zr, levels)
+    overlay, overlay_label = None, ""
+    if state.overlay != "none":
+        try:
+            orr, ounits, oint = _overlay_field(case, sel, diag, geom, state)
+        except CaseError as exc:
+            why = exc.reason if hasattr(exc, "reason") else exc
+            notes.append(f"No {OVERLAYS[state.overlay]} contours: {why}")
+        else:
+            olevels = render.interval_levels(np.nanmin(orr), np.nanmax(orr), oint)
+            overlay = render.contour_lines(geom.xs, geom.ys, orr, olevels)
+            overlay_label = f"{OVERLAYS[state.overlay]} contours every {oint:g} {ounits}"
     # vectors, and a reference arrow of one lattice cell
     vectors, vlabel, arrow, barbs = None, "", None, None
     kind_of_vectors = state.vectors
@@ -434,6 +450,8 @@ def chart_data(library, state: ViewState) -> ChartData:
         contour_label=contour_label,
         vectors=vectors,
         barbs=barbs,
+        overlay=overlay,
+        overlay_label=overlay_label,
         vector_label=vlabel,
         reference_arrow=arrow,
         hover=hover,
@@ -466,6 +484,44 @@ def _contour_field(geom, diag, sel, state):
     zr, zunits = wording.height(render.sample(geom, diag.height), state.height_units)
     k = wording.HEIGHT_UNITS[state.height_units][1]
     return zr, zunits, contour_interval(sel.level_hpa * 100.0) * k, "height contours"
+
+
+def _overlay_field(case, sel, diag, geom, state):
+    """(the second field on the display raster, its units, its contour interval) of
+    ``state.overlay``; CaseError with a sentence where the case cannot give it.
+
+    Intervals (common practice, no source): thickness 60 m (6 dam), sea-level pressure
+    4 hPa, isotachs 10 kt or 5 m/s, temperature 2 degC at and below 700 hPa, 5 degC above."""
+    from balance_core.io.units import to_numpy
+
+    t, what = sel.time_index, state.overlay
+    if what == "thickness":
+        slabs = []
+        for hpa in (1000.0, 500.0):
+            k = case.level_index(hpa)  # CaseError: "no 1000 hPa level"
+            z = np.asarray(to_numpy(case.data["height"].isel(time=t, level=k)), np.float64)
+            below = case.below_ground_mask(t, k)
+            if below is not None:
+                z = np.where(below, np.nan, z)
+            slabs.append(z)
+        dz, units = wording.height(render.sample(geom, slabs[1] - slabs[0]), state.height_units)
+        return dz, units, 60.0 * wording.HEIGHT_UNITS[state.height_units][1]
+    if what == "msl":
+        if not case.has_sea_level:
+            raise CaseError("this case has no sea-level pressure")
+        msl = np.asarray(to_numpy(case.surface["msl"].isel(time=t)), np.float64)
+        return render.sample(geom, msl) / 100.0, "hPa", 4.0
+    if what == "isotachs":
+        if diag.no_wind:
+            raise CaseError(f"{diag.no_wind}, so there are no isotachs")
+        speed, units = wording.wind(render.sample(geom, np.hypot(diag.u, diag.v)), state.wind_units)
+        return speed, units, 10.0 if units == "kt" else 5.0
+    if what == "temperature":
+        if diag.temperature is None:
+            raise CaseError("this case has no temperature")
+        low = diag.surface or sel.level_hpa >= 700.0
+        return render.sample(geom, diag.temperature) - 273.15, "degC", 2.0 if low else 5.0
+    raise CaseError(f"unknown second field {wording.quote(what)}")
 
 
 def _round_speed(x: float) -> float:

@@ -58,6 +58,14 @@ VECTORS = {
     "ageostrophic": "ageostrophic wind",
     "none": "no vectors",
 }
+#: A second field drawn as contours over the filled one (its interval is stated with it)
+OVERLAYS = {
+    "none": "none",
+    "thickness": "1000-500 hPa thickness",
+    "msl": "sea-level pressure",
+    "isotachs": "isotachs",
+    "temperature": "temperature",
+}
 #: How the vectors are drawn: arrows (in the page's wind units, with a reference arrow) or
 #: wind barbs (in knots, the trade's convention)
 VECTOR_STYLES = {"arrows": "arrows", "barbs": "barbs (kt)"}
@@ -76,6 +84,7 @@ URL_PARAMS = (
     "field",
     "vectors",
     "vector_style",
+    "overlay",
     "smooth_km",
     "min_lat",
     "region",
@@ -358,6 +367,9 @@ class ViewState(param.Parameterized):
     vectors = param.Selector(default="wind", objects=list(VECTORS), doc="the vectors drawn")
     vector_style = param.Selector(
         default="arrows", objects=list(VECTOR_STYLES), doc="arrows, or wind barbs in knots"
+    )
+    overlay = param.Selector(
+        default="none", objects=list(OVERLAYS), doc="a second field drawn as contours"
     )
     smooth_km = param.Number(
         default=0.0, bounds=(0.0, 2000.0), doc="Gaussian smoothing of the inputs, km (0 = none)"

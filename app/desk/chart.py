@@ -36,7 +36,19 @@ from bokeh.models import (
 from bokeh.plotting import figure
 
 from ..state import ViewState, area_from_crs
-from .look import BUSY, GREY, INK, INVENTED_BG, ORANGE, alert, esc, mark_busy, palette, style_figure
+from .look import (
+    BUSY,
+    GREY,
+    INK,
+    INVENTED_BG,
+    ORANGE,
+    VERMILION,
+    alert,
+    esc,
+    mark_busy,
+    palette,
+    style_figure,
+)
 
 __all__ = ["Chart"]
 
@@ -169,6 +181,9 @@ class Chart(pn.viewable.Viewer):
         self.mask_src = ColumnDataSource(dict(image=[e], x=[0], y=[0], dw=[1], dh=[1]))
         self.cont_src = ColumnDataSource(dict(xs=[], ys=[]))
         self.clab_src = ColumnDataSource(dict(x=[], y=[], text=[]))
+        #: the second field's contours and their labels (dashed, in vermilion)
+        self.ocont_src = ColumnDataSource(dict(xs=[], ys=[]))
+        self.oclab_src = ColumnDataSource(dict(x=[], y=[], text=[]))
         self.vec_src = ColumnDataSource(dict(x0=[], y0=[], x1=[], y1=[], angle=[], head=[]))
         #: wind barbs (render.wind_barbs): staffs and barbs, pennants, calm circles
         self.barb_src = ColumnDataSource(dict(xs=[], ys=[]))
@@ -242,6 +257,14 @@ class Chart(pn.viewable.Viewer):
             line_dash="dashed",
         )
         fig.multi_line("xs", "ys", source=self.cont_src, line_color="black", line_width=1.3)
+        fig.multi_line(
+            "xs",
+            "ys",
+            source=self.ocont_src,
+            line_color=VERMILION,
+            line_width=1.6,
+            line_dash="dashed",
+        )
         fig.segment(
             "x0",
             "y0",
@@ -339,6 +362,17 @@ class Chart(pn.viewable.Viewer):
             )
         )
         # the contours' labels stay above the region's outline: on its layer, after it
+        fig.add_layout(
+            _labels(
+                self.oclab_src,
+                text_align="center",
+                text_color=VERMILION,
+                text_baseline="middle",
+                background_fill_color="white",
+                background_fill_alpha=0.85,
+                level="overlay",
+            )
+        )
         fig.add_layout(
             _labels(
                 self.clab_src,
@@ -547,6 +581,14 @@ class Chart(pn.viewable.Viewer):
             y=[b for _, b, _ in labels],
             text=[f"{c:.{digits}f}" for _, _, c in labels],
         )
+        ox, oy, _, olabels = cd.overlay if cd.overlay is not None else ([], [], [], [])
+        if cd.overlay is not None or self.ocont_src.data["xs"]:
+            self.ocont_src.data = dict(xs=one_line(ox), ys=one_line(oy))
+            self.oclab_src.data = dict(
+                x=[a for a, _, _ in olabels],
+                y=[b for _, b, _ in olabels],
+                text=[f"{c:g}" for _, _, c in olabels],
+            )
         if cd.vectors is not None and cd.barbs is None:
             v = cd.vectors
             self.vec_src.data = dict(
@@ -641,7 +683,16 @@ class Chart(pn.viewable.Viewer):
             + (f" ({esc(cd.units)})" if cd.units else "")
             + f"; {esc(cd.contour_label)}{esc(interval)}</div>"
         )
-        notes = [n for n in (cd.coast_note, cd.vector_label, f"Projection: {g.label}") if n]
+        notes = [
+            n
+            for n in (
+                cd.coast_note,
+                f"Dashed: {cd.overlay_label}" if cd.overlay_label else "",
+                cd.vector_label,
+                f"Projection: {g.label}",
+            )
+            if n
+        ]
         notes += cd.notes
         self.note.object = (
             "<div style='font-size:15px'>" + "<br>".join(esc(n) for n in notes) + "</div>"

@@ -16,7 +16,15 @@ from balance_core.io import CaseError, iso
 
 from .. import wording
 from ..compute import has_sea_level as compute_has_sea_level
-from ..state import FIELDS, PROJECTIONS, SEA_LEVEL, VECTOR_STYLES, VECTORS, ViewState
+from ..state import (
+    FIELDS,
+    OVERLAYS,
+    PROJECTIONS,
+    SEA_LEVEL,
+    VECTOR_STYLES,
+    VECTORS,
+    ViewState,
+)
 from .look import WIDGET_CSS, alert
 
 __all__ = ["Controls"]
@@ -52,6 +60,7 @@ class Controls(pn.viewable.Viewer):
         self.w_prev = pn.widgets.Button(label="< earlier", width=W // 2 - 5, stylesheets=css)
         self.w_next = pn.widgets.Button(label="later >", width=W // 2 - 5, stylesheets=css)
         self.w_field = _menu("Filled field", FIELDS, state.field)
+        self.w_overlay = _menu("Contours of a second field", OVERLAYS, state.overlay)
         self.w_vectors = _menu("Vectors", VECTORS, state.vectors)
         self.w_vstyle = pn.widgets.RadioButtonGroup(
             name="Vectors drawn as",
@@ -105,6 +114,7 @@ class Controls(pn.viewable.Viewer):
         for w, p in (
             (self.w_case, "case"),
             (self.w_field, "field"),
+            (self.w_overlay, "overlay"),
             (self.w_vectors, "vectors"),
             (self.w_vstyle, "vector_style"),
             (self.w_proj, "projection"),
@@ -127,6 +137,7 @@ class Controls(pn.viewable.Viewer):
             self.w_time,
             pn.Row(self.w_prev, self.w_next),
             self.w_field,
+            self.w_overlay,
             self.w_vectors,
             self.w_vstyle,
             self.w_proj,
@@ -221,6 +232,7 @@ class Controls(pn.viewable.Viewer):
         for w, p in (
             (self.w_case, "case"),
             (self.w_field, "field"),
+            (self.w_overlay, "overlay"),
             (self.w_vectors, "vectors"),
             (self.w_vstyle, "vector_style"),
             (self.w_proj, "projection"),
