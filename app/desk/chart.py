@@ -516,8 +516,8 @@ class Chart(pn.viewable.Viewer):
         self.note = pn.pane.HTML("", sizing_mode="stretch_width")
         #: the chart shows the region's box (and follows the region) rather than the case
         self.zoomed = False
-        self.w_zoom = pn.widgets.Button(name="Zoom to the region", width=170)
-        self.w_unzoom = pn.widgets.Button(name="Whole chart", width=130)
+        self.w_zoom = pn.widgets.Button(label="Zoom to the region", width=170)
+        self.w_unzoom = pn.widgets.Button(label="Whole chart", width=130)
         self.w_zoom.on_click(lambda e: self.zoom_to_region(True))
         self.w_unzoom.on_click(lambda e: self.zoom_to_region(False))
         self.layout = pn.Column(

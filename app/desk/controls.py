@@ -63,7 +63,7 @@ class Controls(pn.viewable.Viewer):
         self.w_overlay = _menu("Contours of a second field", OVERLAYS, state.overlay)
         self.w_vectors = _menu("Vectors", VECTORS, state.vectors)
         self.w_vstyle = pn.widgets.RadioButtonGroup(
-            name="Vectors drawn as",
+            label="Vectors drawn as",
             options={label: key for key, label in VECTOR_STYLES.items()},
             value=state.vector_style,
             width=W,
