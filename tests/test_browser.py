@@ -124,6 +124,36 @@ def test_changing_the_level_updates_the_chart(server, browser):
     page.close()
 
 
+def test_the_arrow_keys_step_the_time_and_the_level_but_not_while_typing(server, browser):
+    page, errors = _page(
+        browser, server + "?case=ocean_cyclone&level=500&time=2041-01-19T06%3A00%3A00Z"
+    )
+    _wait_for(page, lambda: "500 hPa" in _chart_title(page) and "06 UTC" in _chart_title(page))
+    page.locator("body").click(position={"x": 5, "y": 5})  # the page, not a field, has focus
+    page.keyboard.press("ArrowRight")
+    _wait_for(page, lambda: "12 UTC" in _chart_title(page))
+    page.keyboard.press("ArrowLeft")
+    page.keyboard.press("ArrowLeft")
+    _wait_for(page, lambda: "Sat 19 Jan 2041 00 UTC" in _chart_title(page))
+    page.keyboard.press("ArrowUp")  # up: toward lower pressure, 500 -> 300 hPa
+    _wait_for(page, lambda: "300 hPa" in _chart_title(page))
+    page.keyboard.press("ArrowDown")
+    page.keyboard.press("ArrowDown")
+    _wait_for(page, lambda: "700 hPa" in _chart_title(page))
+    # keys typed into a field stay there: the positive sign is the field's own value
+    west = page.get_by_label("West", exact=True)
+    west.click()
+    step = settled(page)
+    west.press("ArrowUp")
+    west.press("ArrowRight")
+    _wait_for(page, lambda: west.input_value() != "")
+    settled(page, after=step - 1)
+    assert "700 hPa" in _chart_title(page) and "00 UTC" in _chart_title(page)
+    assert "Keys:" in page.locator(".bd-keys").first.inner_text()
+    assert errors == [], errors
+    page.close()
+
+
 def test_sea_level_in_the_level_menu_draws_isobars_and_the_surface_verdict(server, browser):
     page, errors = _page(
         browser,

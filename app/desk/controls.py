@@ -136,6 +136,12 @@ class Controls(pn.viewable.Viewer):
             self.w_level,
             self.w_time,
             pn.Row(self.w_prev, self.w_next),
+            pn.pane.HTML(
+                "<div class='bd-keys' style='font-size:14px'>Keys: &larr; &rarr; the valid "
+                "time, &uarr; &darr; the level (up: toward lower pressure)</div>",
+                width=W,
+                margin=(0, 5),
+            ),
             self.w_field,
             self.w_overlay,
             self.w_vectors,

@@ -50,6 +50,44 @@ SYSTEMS = {"case", "level", "time", "smooth_km", "min_lat"}
 #: the report is the same in other units: its numbers are only written again
 UNITS = {"height_units", "wind_units"}
 
+#: run in the browser once the page is there: the arrow keys step the valid time (left,
+#: right) and the level (up: toward lower pressure, down: toward the ground), by working the
+#: page's own controls, unless a field takes the keys (a box typed, a menu open) or a modifier
+#: is held
+KEYS_JS = """
+if (window.bdKeys) return;
+window.bdKeys = true;
+const find = (root, test) => {
+  for (const el of root.querySelectorAll('*')) {
+    if (test(el)) return el;
+    if (el.shadowRoot) { const hit = find(el.shadowRoot, test); if (hit) return hit; }
+  }
+  return null;
+};
+const typing = (ev) => ev.composedPath().some(
+  el => el.tagName && ['INPUT', 'SELECT', 'TEXTAREA'].includes(el.tagName));
+window.addEventListener('keydown', (ev) => {
+  if (ev.altKey || ev.ctrlKey || ev.metaKey || ev.shiftKey || typing(ev)) return;
+  if (ev.key === 'ArrowLeft' || ev.key === 'ArrowRight') {
+    const text = ev.key === 'ArrowLeft' ? '< earlier' : 'later >';
+    const b = find(document, el => el.tagName === 'BUTTON' && el.textContent.trim() === text);
+    if (b && !b.disabled) { b.click(); ev.preventDefault(); }
+  } else if (ev.key === 'ArrowUp' || ev.key === 'ArrowDown') {
+    const label = find(document, el => el.tagName === 'LABEL' && el.textContent.trim() === 'Level');
+    const sel = label && find(label.parentNode, el => el.tagName === 'SELECT');
+    if (!sel) return;
+    const hpa = (o) => /sea level/i.test(o.textContent) ? 1e4 : parseFloat(o.textContent);
+    const opts = [...sel.options].sort((a, b) => hpa(b) - hpa(a));  // the ground first
+    const i = opts.indexOf(sel.options[sel.selectedIndex]);
+    const j = i + (ev.key === 'ArrowUp' ? 1 : -1);
+    if (j < 0 || j >= opts.length) return;
+    sel.value = opts[j].value;
+    sel.dispatchEvent(new Event('change', {bubbles: true}));
+    ev.preventDefault();
+  }
+});
+"""
+
 #: run in the browser when the connection to the server is lost: say so, grey the figures
 LOST_JS = """
 if (!document.getElementById('bd-lost')) {
@@ -184,6 +222,7 @@ class Page(pn.viewable.Viewer):
         """Tie the page to its browser session (the server calls this)."""
         self.doc = doc
         doc.js_on_event("connection_lost", CustomJS(code=LOST_JS))
+        doc.js_on_event("document_ready", CustomJS(code=KEYS_JS))
         doc.on_session_destroyed(lambda ctx: self._lane.close())
 
     def prime(self):
