@@ -564,3 +564,23 @@ def test_a_file_with_heights_and_no_wind_is_shown_with_its_geostrophic_wind_and_
     cd = compute.chart_data(lib, page.state)
     assert cd.vector_label == "Vectors: geostrophic wind" and cd.masked_share == 0.0
     assert any("no wind" in n for n in cd.notes)
+
+
+def test_the_loop_steps_to_the_next_time_wraps_and_waits_for_a_frame_on_its_way(library):
+    st = _state(time="2041-01-19T18:00:00Z")
+    page = _page(library, st)
+    page.loop_step()
+    assert st.time == "2041-01-20T00:00:00Z"
+    page.loop_step()  # after the last time, the first
+    assert st.time == "2041-01-19T00:00:00Z"
+    page._pending.add("chart")  # the chart of the time shown is still on its way: wait
+    page.loop_step()
+    assert st.time == "2041-01-19T00:00:00Z"
+    page._pending.discard("chart")
+    page.loop_step()
+    assert st.time == "2041-01-19T06:00:00Z"
+    # without a server nothing plays (no periodic callback), and saying so is quiet
+    page.controls.w_play.value = True
+    assert page._loop is None and page.controls.w_play.label == "Pause"
+    page.controls.w_play.value = False
+    assert page.controls.w_play.label == "Play the times"

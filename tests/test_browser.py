@@ -154,6 +154,40 @@ def test_the_arrow_keys_step_the_time_and_the_level_but_not_while_typing(server,
     page.close()
 
 
+def test_play_loops_through_the_times_and_pause_stops_it(server, browser):
+    page, errors = _page(
+        browser, server + "?case=ocean_cyclone&level=500&time=2041-01-19T00%3A00%3A00Z"
+    )
+    _wait_for(page, lambda: "Sat 19 Jan 2041 00 UTC" in _chart_title(page))
+    page.locator("select", has=page.locator("option", has_text="2 frames/s")).select_option(
+        label="2 frames/s"
+    )
+    page.get_by_role("button", name="Play the times").click()
+    # the chart moves on by itself, frame by frame
+    _wait_for(page, lambda: "06 UTC" in _chart_title(page))
+    _wait_for(page, lambda: "12 UTC" in _chart_title(page))
+    page.locator("body").click(position={"x": 5, "y": 5})  # the page has the keys
+    page.keyboard.press("Space")  # pauses
+    _wait_for(page, lambda: page.get_by_role("button", name="Play the times").count() == 1)
+    settled(page)
+    before = _chart_title(page)
+    # a step by hand after the pause lands one time on, and the page settles there
+    step = settled(page)
+    page.get_by_role("button", name="later >").click()
+    settled(page, after=step)
+    times = [
+        "19 Jan 2041 00",
+        "19 Jan 2041 06",
+        "19 Jan 2041 12",
+        "19 Jan 2041 18",
+        "20 Jan 2041 00",
+    ]
+    was = next(i for i, t in enumerate(times) if t in before)
+    assert times[min(was + 1, len(times) - 1)] in _chart_title(page), (before, _chart_title(page))
+    assert errors == [], errors
+    page.close()
+
+
 def test_sea_level_in_the_level_menu_draws_isobars_and_the_surface_verdict(server, browser):
     page, errors = _page(
         browser,

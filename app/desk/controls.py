@@ -58,6 +58,15 @@ class Controls(pn.viewable.Viewer):
         self.w_level = pn.widgets.Select(label="Level", width=W, stylesheets=css)
         self.w_time = pn.widgets.Select(label="Valid time", width=W, stylesheets=css)
         self.w_prev = pn.widgets.Button(label="< earlier", width=W // 2 - 5, stylesheets=css)
+        #: looping through the valid times (app.desk.page.Page runs the loop)
+        self.w_play = pn.widgets.Toggle(label="Play the times", width=W // 2 - 5, stylesheets=css)
+        self.w_speed = pn.widgets.Select(
+            options={"0.5 frames/s": 0.5, "1 frame/s": 1.0, "2 frames/s": 2.0},
+            value=1.0,
+            width=W // 2 - 5,
+            stylesheets=css,
+        )
+        self.frames_note = pn.pane.HTML("", width=W, margin=(0, 5))
         self.w_next = pn.widgets.Button(label="later >", width=W // 2 - 5, stylesheets=css)
         self.w_field = _menu("Filled field", FIELDS, state.field)
         self.w_overlay = _menu("Contours of a second field", OVERLAYS, state.overlay)
@@ -136,9 +145,12 @@ class Controls(pn.viewable.Viewer):
             self.w_level,
             self.w_time,
             pn.Row(self.w_prev, self.w_next),
+            pn.Row(self.w_play, self.w_speed),
+            self.frames_note,
             pn.pane.HTML(
                 "<div class='bd-keys' style='font-size:14px'>Keys: &larr; &rarr; the valid "
-                "time, &uarr; &darr; the level (up: toward lower pressure)</div>",
+                "time, &uarr; &darr; the level (up: toward lower pressure), space plays and pauses"
+                "</div>",
                 width=W,
                 margin=(0, 5),
             ),
@@ -184,6 +196,14 @@ class Controls(pn.viewable.Viewer):
     def _time_widget(self, event):
         if event.new is not None and self.state.time != event.new:
             self.state.time = event.new
+
+    def frames_progress(self, done, total):
+        """Say how many frames of the loop are computed ahead."""
+        self.frames_note.object = (
+            ""
+            if total is None or done >= total
+            else f"<div style='font-size:14px'>Frames computed ahead: {done} of {total}</div>"
+        )
 
     def step_time(self, d):
         opts = (

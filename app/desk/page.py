@@ -51,7 +51,8 @@ SYSTEMS = {"case", "level", "time", "smooth_km", "min_lat"}
 UNITS = {"height_units", "wind_units"}
 
 #: run in the browser once the page is there: the arrow keys step the valid time (left,
-#: right) and the level (up: toward lower pressure, down: toward the ground), by working the
+#: right) and the level (up: toward lower pressure, down: toward the ground), the space bar
+#: plays and pauses the loop through the times, by working the
 #: page's own controls, unless a field takes the keys (a box typed, a menu open) or a modifier
 #: is held
 KEYS_JS = """
@@ -68,7 +69,13 @@ const typing = (ev) => ev.composedPath().some(
   el => el.tagName && ['INPUT', 'SELECT', 'TEXTAREA'].includes(el.tagName));
 window.addEventListener('keydown', (ev) => {
   if (ev.altKey || ev.ctrlKey || ev.metaKey || ev.shiftKey || typing(ev)) return;
-  if (ev.key === 'ArrowLeft' || ev.key === 'ArrowRight') {
+  if (ev.key === ' ') {
+    // (a button with the focus takes its own space: it is clicked by the browser)
+    if (ev.composedPath().some(el => el.tagName === 'BUTTON')) return;
+    const b = find(document, el => el.tagName === 'BUTTON' &&
+                   ['Play the times', 'Pause'].includes(el.textContent.trim()));
+    if (b) { b.click(); ev.preventDefault(); }
+  } else if (ev.key === 'ArrowLeft' || ev.key === 'ArrowRight') {
     const text = ev.key === 'ArrowLeft' ? '< earlier' : 'later >';
     const b = find(document, el => el.tagName === 'BUTTON' && el.textContent.trim() === text);
     if (b && !b.disabled) { b.click(); ev.preventDefault(); }
@@ -154,6 +161,10 @@ class Page(pn.viewable.Viewer):
         self.settle_mark = pn.pane.HTML(self._mark_html(), visible=False, margin=0)
         self._stale: set = set()  # views of closed tabs that are out of date
         self.controls = Controls(library, self.state)
+        #: the loop through the valid times: its periodic callback while it plays
+        self._loop = None
+        self.controls.w_play.param.watch(lambda e: self._play(e.new), "value")
+        self.controls.w_speed.param.watch(lambda e: self._play(self.controls.w_play.value), "value")
         self.chart = Chart(self.state)
         self.evidence = Evidence(self.state, thresholds)
         self.below = Below(self.state)
@@ -413,6 +424,53 @@ class Page(pn.viewable.Viewer):
                 self.below.show_times,
             )
 
+    # -- the loop through the valid times --------------------------------------------------
+    def _play(self, on: bool):
+        """Start (or restart at a new speed) or stop the loop. Starting it computes every
+        valid time's chart and ranking ahead, in the page's lane after its own views, with
+        progress; each tick then steps to the next time once the last frame is shown."""
+        if self._loop is not None and self.doc is not None:
+            try:
+                self.doc.remove_periodic_callback(self._loop)
+            except ValueError:
+                pass  # the session has gone
+        self._loop = None
+        self.controls.w_play.label = "Pause" if on else "Play the times"
+        if not on or self.doc is None or self.doc.session_context is None:
+            self.controls.frames_progress(0, 0)
+            return
+        self._frames_ahead()
+        period = int(1000 / float(self.controls.w_speed.value))
+        self._loop = self.doc.add_periodic_callback(self.loop_step, period)
+
+    def _frames_ahead(self):
+        snap = self.state.copy()
+        times = [iso(t) for t in self.library.get(snap.case).times]
+        report = self._progress(self.controls.frames_progress)
+        self.controls.frames_progress(0, len(times))
+
+        def make():
+            for i, t in enumerate(times):
+                frame = snap.copy()
+                frame.time = t
+                compute.shared_chart_data(self.library, frame)
+                compute.shared_box_data(self.library, frame, self.thresholds)
+                report(i + 1, len(times))
+            return len(times)
+
+        self._submit("frames", make, lambda n: self.controls.frames_progress(n, n))
+
+    def loop_step(self):
+        """One tick of the loop: the next valid time (the first after the last), unless the
+        chart or the ranking of the time shown is still on its way."""
+        if self._pending & {"chart", "box"}:
+            return
+        times = [iso(t) for t in self.library.get(self.state.case).times]
+        if len(times) < 2:
+            return
+        i = times.index(self.state.time) if self.state.time in times else 0
+        self.state.time = times[(i + 1) % len(times)]
+
     def _tab_opened(self, event):
         for kind in list(self._stale):
             if self.below.is_open(kind) and self.live:
@@ -569,6 +627,8 @@ class Page(pn.viewable.Viewer):
             self.below.show_notes(None, self.thresholds)
             self.below.show_sheet(compute.scale_sheet(self.state, None))
             self._update_header()
+        elif kind == "frames":
+            self.controls.frames_note.object = alert(f"The loop's frames: {text}")
 
     def _show_chart(self, cd):
         log.debug("page %s: chart shown", id(self))
