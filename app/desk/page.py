@@ -453,8 +453,11 @@ class Page(pn.viewable.Viewer):
             for i, t in enumerate(times):
                 frame = snap.copy()
                 frame.time = t
-                compute.shared_chart_data(self.library, frame)
-                compute.shared_box_data(self.library, frame, self.thresholds)
+                try:
+                    compute.shared_chart_data(self.library, frame)
+                    compute.shared_box_data(self.library, frame, self.thresholds)
+                except CaseError:
+                    pass  # that frame says why when it is shown
                 report(i + 1, len(times))
             return len(times)
 
