@@ -227,31 +227,12 @@ def _draw_chart(fig, ax, chart, outline):
         ox, oy, _, olabels = chart.overlay
         for xs, ys in zip(ox, oy):
             ax.plot(xs, ys, color="#D55E00", lw=1.2, ls="--")
-        for x, y, v in olabels:
-            ax.text(
-                x,
-                y,
-                f"{v:g}",
-                fontsize=10,
-                color="#D55E00",
-                ha="center",
-                va="center",
-                bbox=dict(facecolor="white", alpha=0.85, lw=0, pad=1),
-            )
+        _contour_labels(ax, olabels, "{:g}", 10, "#D55E00")
     lx, ly, lv, labels = chart.contours
     for xs, ys in zip(lx, ly):
         ax.plot(xs, ys, color="black", lw=1.0)
     digits = 1 if chart.contour_units == "dam" and chart.contour_interval < 1.5 else 0
-    for x, y, v in labels:
-        ax.text(
-            x,
-            y,
-            f"{v:.{digits}f}",
-            fontsize=11,
-            ha="center",
-            va="center",
-            bbox=dict(facecolor="white", alpha=0.85, lw=0, pad=1),
-        )
+    _contour_labels(ax, labels, f"{{:.{digits}f}}", 11, "black")
     if chart.coast is not None:
         for xs, ys in zip(*chart.coast):
             ax.plot(xs, ys, color="#222222", lw=1.2)
@@ -336,6 +317,21 @@ def _draw_chart(fig, ax, chart, outline):
     ax.set_title(
         f"{chart.field_label}; {chart.contour_label}{interval}{dashed}; {g.label}", fontsize=13
     )
+
+
+def _contour_labels(ax, labels, fmt, size, colour):
+    """Contour labels ((x, y, value) each, written with ``fmt``) on a white box."""
+    for x, y, v in labels:
+        ax.text(
+            x,
+            y,
+            fmt.format(v),
+            fontsize=size,
+            color=colour,
+            ha="center",
+            va="center",
+            bbox=dict(facecolor="white", alpha=0.85, lw=0, pad=1),
+        )
 
 
 def _draw_balances(axb, report, balanced):

@@ -501,12 +501,13 @@ def _one_barb(at, staff_dir, side, k, counts, cell):
 #: knots in a pennant, a barb and a half barb (the trade's wind barbs, common practice, no
 #: source); speeds are rounded to the nearest half barb
 PENNANT_KT, BARB_KT, HALF_KT = 50, 10, 5
-KNOT = 1852.0 / 3600.0  # m s-1 (the international knot)
 
 
 def barb_counts(speed_ms):
     """(pennants, barbs, half barbs) of a wind speed, rounded to the nearest 5 kt."""
-    kt = int(HALF_KT * round(float(speed_ms) / KNOT / HALF_KT))
+    from .wording import KT
+
+    kt = int(HALF_KT * round(float(speed_ms) / KT / HALF_KT))
     pennants, rest = divmod(kt, PENNANT_KT)
     barbs, rest = divmod(rest, BARB_KT)
     return pennants, barbs, rest // HALF_KT

@@ -445,7 +445,7 @@ class Page(pn.viewable.Viewer):
 
     def _frames_ahead(self):
         snap = self.state.copy()
-        times = [iso(t) for t in self.library.get(snap.case).times]
+        times = self._valid_times()
         report = self._progress(self.controls.frames_progress)
         self.controls.frames_progress(0, len(times))
 
@@ -463,12 +463,16 @@ class Page(pn.viewable.Viewer):
 
         self._submit("frames", make, lambda n: self.controls.frames_progress(n, n))
 
+    def _valid_times(self) -> list:
+        """The case's valid times as the state writes them (ISO 8601)."""
+        return [iso(t) for t in self.library.get(self.state.case).times]
+
     def loop_step(self):
         """One tick of the loop: the next valid time (the first after the last), unless the
         chart or the ranking of the time shown is still on its way."""
         if self._pending & {"chart", "box"}:
             return
-        times = [iso(t) for t in self.library.get(self.state.case).times]
+        times = self._valid_times()
         if len(times) < 2:
             return
         i = times.index(self.state.time) if self.state.time in times else 0
