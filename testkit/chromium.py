@@ -139,3 +139,20 @@ def address(page) -> str:
     follows a change the page makes to its own address (history.replaceState) only while
     Playwright is being called: a poll on ``page.url`` alone never sees the change."""
     return page.evaluate("() => window.location.href")
+
+
+def chart_canvas(page):
+    """The chart's canvas: the widest Bokeh canvas on the page (a locator)."""
+    return max(
+        page.locator("canvas").all(),
+        key=lambda c: (c.bounding_box() or {"width": 0})["width"],
+    )
+
+
+def open_view(browser, url: str, width: int = 1920, height: int = 1080):
+    """(context, page) of a fresh browser context at ``url``, once the page has settled."""
+    ctx = browser.new_context(viewport={"width": width, "height": height})
+    page = ctx.new_page()
+    page.goto(url)
+    settled(page)
+    return ctx, page

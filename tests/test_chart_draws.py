@@ -18,7 +18,7 @@ import pytest
 from PIL import Image
 
 from testkit import samples
-from testkit.chromium import require, settled
+from testkit.chromium import chart_canvas, open_view, require, settled
 from testkit.serving import start_server, stop_server
 
 pytestmark = pytest.mark.browser
@@ -108,10 +108,7 @@ def test_ten_loads_of_each_of_five_cases_each_draw_the_chart(server, browser, ca
         page.goto(f"{server}?case={case}&level={level}&projection={projection}")
         settled(page)
         ranges = page.evaluate(RANGES_JS)
-        canvas = max(
-            page.locator("canvas").all(),
-            key=lambda c: (c.bounding_box() or {"width": 0})["width"],
-        )
+        canvas = chart_canvas(page)
         pixels = np.asarray(Image.open(io.BytesIO(canvas.screenshot())).convert("RGB"))
         colours = len(np.unique(pixels.reshape(-1, 3), axis=0))
         # a drawn chart has its own ranges and a picture of thousands of colours; the
@@ -133,10 +130,7 @@ def test_ten_loads_of_each_of_five_cases_each_draw_the_chart(server, browser, ca
 def test_the_chart_keeps_its_true_shape_in_a_smaller_window_and_after_a_zoom(
     server, browser, projection
 ):
-    ctx = browser.new_context(viewport={"width": 1920, "height": 1080})
-    page = ctx.new_page()
-    page.goto(f"{server}?case=ocean_cyclone&projection={projection}")
-    settled(page)
+    ctx, page = open_view(browser, f"{server}?case=ocean_cyclone&projection={projection}")
     wide = page.evaluate(SHAPE_JS)
     assert abs(shape_error(wide, projection)) < 0.01, wide
     page.set_viewport_size({"width": 1366, "height": 768})
@@ -153,10 +147,7 @@ def test_the_chart_keeps_its_true_shape_in_a_smaller_window_and_after_a_zoom(
     # the zoom (the wheel zooms once its button in the chart's toolbar is on: a page that
     # scrolls keeps the wheel otherwise)
     page.locator(".bk-tool-icon-wheel-zoom").first.click()
-    box = max(
-        (c.bounding_box() or {"width": 0} for c in page.locator("canvas").all()),
-        key=lambda b: b["width"],
-    )
+    box = chart_canvas(page).bounding_box()
     page.mouse.move(box["x"] + box["width"] / 3, box["y"] + box["height"] / 2)
     before = page.evaluate(SHAPE_JS)
     page.mouse.wheel(0, -300)
@@ -189,18 +180,13 @@ def test_a_region_outline_on_the_screen_has_the_box_true_shape(server, browser, 
     alone was 15 to 20 % off before the ranges were fitted."""
     import pyproj
 
-    ctx = browser.new_context(viewport={"width": 1920, "height": 1080})
-    page = ctx.new_page()
-    page.goto(
+    ctx, page = open_view(
+        browser,
         f"{server}?case=ocean_cyclone&level=500&projection={projection}"
-        "&region=box%3A-52%2C-28%2C38%2C56"
+        "&region=box%3A-52%2C-28%2C38%2C56",
     )
-    settled(page)
-    canvas = max(
-        page.locator("canvas").all(),
-        key=lambda c: (c.bounding_box() or {"width": 0})["width"],
-    )
-    pixels = np.asarray(Image.open(io.BytesIO(canvas.screenshot())).convert("RGB")).astype(int)
+    pixels = np.asarray(Image.open(io.BytesIO(chart_canvas(page).screenshot())).convert("RGB"))
+    pixels = pixels.astype(int)
     ctx.close()
     on = (np.abs(pixels - OUTLINE_RGB) <= 12).all(axis=2)
     rows, cols = np.nonzero(on)
@@ -219,13 +205,11 @@ def test_a_region_outline_on_the_screen_has_the_box_true_shape(server, browser, 
 
 @pytest.mark.parametrize("projection", ["plate_carree", "conformal"])
 def test_zoom_to_the_region_and_back_to_the_whole_chart(server, browser, projection):
-    ctx = browser.new_context(viewport={"width": 1920, "height": 1080})
-    page = ctx.new_page()
-    page.goto(
+    ctx, page = open_view(
+        browser,
         f"{server}?case=ocean_cyclone&level=500&projection={projection}"
-        "&region=box%3A-52%2C-28%2C38%2C56"
+        "&region=box%3A-52%2C-28%2C38%2C56",
     )
-    settled(page)
     whole = page.evaluate(SHAPE_JS)
     page.get_by_role("button", name="Zoom to the region").click()
     wait_shape(page, f"s[3] - s[2] < {0.7 * (whole[3] - whole[2])}")

@@ -24,7 +24,7 @@ import pytest
 from playwright.sync_api import expect
 
 from app.rooms import SQLiteStore
-from testkit.chromium import require, room_views, settled
+from testkit.chromium import chart_canvas, require, room_views, settled
 from testkit.payloads import PAYLOADS, injected
 from testkit.serving import HANG_MS, HANG_S, start_server, stop_server, wait_until
 from testkit.wire_page import WirePage
@@ -101,9 +101,7 @@ def _wait_status(page, text):
 
 def _canvas(page):
     """The chart's canvas, scrolled into view: its box on the screen."""
-    big = max(
-        page.locator("canvas").all(), key=lambda c: (c.bounding_box() or {"width": 0})["width"]
-    )
+    big = chart_canvas(page)
     big.scroll_into_view_if_needed()
     return big.bounding_box()
 
