@@ -347,7 +347,7 @@ def chart_data(library, state: ViewState) -> ChartData:
         else:
             olevels = render.interval_levels(np.nanmin(orr), np.nanmax(orr), oint)
             overlay = render.contour_lines(geom.xs, geom.ys, orr, olevels)
-            overlay_label = f"{OVERLAYS[state.overlay]} contours every {oint:g} {ounits}"
+            overlay_label = f"{OVERLAYS[state.overlay]} every {oint:g} {ounits}"
     # vectors, and a reference arrow of one lattice cell
     vectors, vlabel, arrow, barbs = None, "", None, None
     kind_of_vectors = state.vectors
