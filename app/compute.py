@@ -208,7 +208,7 @@ class ChartData:
     masked_share: float = 0.0
     #: what the contours are: "height contours" or "isobars" (sea-level pressure)
     contour_label: str = "height contours"
-    #: the second field's contours (as ``contours``) and what they are ("isotachs contours
+    #: the second field's contours (as ``contours``) and what they are ("isotachs
     #: every 10 kt"), where asked for
     overlay: tuple | None = None
     overlay_label: str = ""
