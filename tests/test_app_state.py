@@ -584,3 +584,27 @@ def test_the_loop_steps_to_the_next_time_wraps_and_waits_for_a_frame_on_its_way(
     assert page._loop is None and page.controls.w_play.label == "Pause"
     page.controls.w_play.value = False
     assert page.controls.w_play.label == "Play the times"
+
+
+def test_a_change_made_while_the_browser_fetches_the_document_waits_for_the_start(library):
+    """The lost-chart race of tests/test_chart_draws.py made certain: a change that comes
+    while a browser is connected but the page has not started is held, and is made (in
+    order, once) when the page starts; without a browser it goes in at once."""
+    from types import SimpleNamespace
+
+    from app.desk import Page
+
+    page = Page(library, _state())
+    seen = []
+    page._held(lambda: seen.append("before any browser"))
+    assert seen == ["before any browser"]  # no browser: straight into the document
+    session = SimpleNamespace(connection_count=1)
+    page.doc = SimpleNamespace(session_context=SimpleNamespace(_session=session))
+    page._held(lambda: seen.append("first"))
+    page._held(lambda: seen.append("second"))
+    assert seen == ["before any browser"]  # held: the browser may not have the document yet
+    page.doc = None  # started without a server: the held changes are made here
+    page.start()
+    assert seen == ["before any browser", "first", "second"]
+    page._held(lambda: seen.append("after the start"))
+    assert seen[-1] == "after the start" and len(seen) == 4

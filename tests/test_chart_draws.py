@@ -1,5 +1,5 @@
-"""The chart draws on every load: fifty page loads in real Chromium across five cases, two
-levels each and two projections (ten loads a case, a test a case), each checked for a drawn
+"""The chart draws on every load: page loads in real Chromium across five cases, two levels
+each and two projections (each view once a case by default, a test a case), each checked for a drawn
 chart (its ranges in the browser are the chart's, not the empty figure's 0 to 1, and its
 canvas holds a picture, not blank axes) at true shape (the same ground distance per pixel
 across and up the frame the browser drew).
@@ -7,6 +7,10 @@ across and up the frame the browser drew).
 A chart computed while the browser was fetching the document was once lost that way (a
 change made just after Bokeh took the document can reach the browser ahead of it, and is
 dropped there): app.desk.page.Page._held now holds such changes until the page has started.
+That holding is tested without a browser in tests/test_app_state.py; here real loads look for
+the symptom. The loss was seen 2 times in 47 loads under load, so a soak run that hunts for it
+sets BALANCE_DESK_TEST_CHART_LOADS (loads a case; 10 gives the fifty loads the fix was measured
+with) above the default of four.
 """
 
 import io
@@ -17,6 +21,7 @@ import numpy as np
 import pytest
 from PIL import Image
 
+from balance_core import settings
 from testkit import samples
 from testkit.chromium import chart_canvas, open_view, require, settled
 from testkit.serving import start_server, stop_server
@@ -92,13 +97,13 @@ def _cases():
     ]
 
 
-#: page loads per case: fifty in all, each case's four views (two levels, two projections)
-#: first computed afresh (where the lost change was seen), then again from the caches
-LOADS_PER_CASE = 10
+#: page loads per case: each case's four views (two levels, two projections) first computed
+#: afresh (where the lost change was seen), then, for a soak run, again from the caches
+LOADS_PER_CASE = settings.whole_number("BALANCE_DESK_TEST_CHART_LOADS")
 
 
 @pytest.mark.parametrize("case, levels", _cases(), ids=[c for c, _ in _cases()])
-def test_ten_loads_of_each_of_five_cases_each_draw_the_chart(server, browser, case, levels):
+def test_every_view_of_five_cases_draws_the_chart(server, browser, case, levels):
     views = [(case, lv, p) for lv in levels for p in ("plate_carree", "conformal")]
     ctx = browser.new_context(viewport={"width": 1200, "height": 900})
     blank, bent = [], []
