@@ -192,6 +192,21 @@ def _draw_chart(fig, ax, chart, outline):
             norm=LogNorm(*chart.color_range),
             aspect="auto",
         )
+    elif chart.color_kind == "classes":
+        from matplotlib.colors import ListedColormap
+
+        from balance_core.vocabulary import BALANCE_CLASSES
+
+        im = ax.imshow(
+            data,
+            origin="lower",
+            extent=(x0, x1, y0, y1),
+            cmap=ListedColormap([b.colour for b in BALANCE_CLASSES]),
+            vmin=chart.color_range[0],
+            vmax=chart.color_range[1],
+            aspect="auto",
+            interpolation="nearest",
+        )
     else:
         cmap = "RdBu_r" if chart.color_kind == "diverging" else "cividis"
         im = ax.imshow(
@@ -222,6 +237,10 @@ def _draw_chart(fig, ax, chart, outline):
     )
     cb.set_label(chart.field_label + (f" ({chart.units})" if chart.units else ""), fontsize=13)
     cb.ax.tick_params(labelsize=12)
+    if chart.color_kind == "classes":  # one band per verdict class, named
+        from balance_core.vocabulary import BALANCE_CLASSES
+
+        cb.set_ticks(range(len(BALANCE_CLASSES)), labels=[b.display for b in BALANCE_CLASSES])
     if chart.overlay is not None:
         # the second field, dashed in vermilion as on the page
         ox, oy, _, olabels = chart.overlay

@@ -18,10 +18,10 @@ from balance_core.io import CaseError, iso
 from balance_core.io.analysis import SEA_LEVEL as SEA_LEVEL_NAME
 from balance_core.io.analysis import analyze_case
 from balance_core.scales import PRESETS, SCALE_TERMS
-from balance_core.verdict import Thresholds
+from balance_core.verdict import CLASSES, Thresholds
 
 from . import render, wording
-from .fields import field_values
+from .fields import balance_map_of, field_values
 from .library import SEA_LEVEL_INDEX
 from .state import (
     OVERLAYS,
@@ -188,7 +188,7 @@ class ChartData:
     color_range: tuple
     #: shares of the values in view below and above the colour scale
     color_cut: tuple
-    color_kind: str  # "sequential", "diverging" or "log"
+    color_kind: str  # "sequential", "diverging", "log" or "classes"
     contours: tuple  # (xs, ys, levels, labels) of height
     contour_units: str
     contour_interval: float
@@ -255,6 +255,17 @@ def _color_range(vals, kind, *, whole=False):
     if hi <= lo:
         hi = lo + 1.0
     return (float(lo), float(hi))
+
+
+def balance_map_note(m) -> str:
+    """What the map of which balance holds where shows, its tile size and its tiles
+    without a verdict."""
+    none = m.counts.get("none", 0)
+    return (
+        f"Which balance holds where: {m.size_text}, each judged by the rule of the region's "
+        f"verdict; {none} of {m.tiles} tiles have no verdict (too few points with every "
+        "term, the tropical mask, or a pressure gradient too weak to judge)"
+    )
 
 
 def constant_note(vals, units) -> str:
@@ -332,7 +343,9 @@ def chart_data(library, state: ViewState) -> ChartData:
         )
         key = "height"
         vals, units, kind = _field_values(key, diag, state)
-    raster = render.sample(geom, vals)
+    raster = render.sample(geom, vals, nearest=kind == "classes")
+    if kind == "classes":
+        notes.append(balance_map_note(balance_map_of(diag)))
     # contours at display resolution, at the interval the systems are found with
     zr, zunits, interval, contour_label = _contour_field(geom, diag, sel, state)
     levels = render.interval_levels(np.nanmin(zr), np.nanmax(zr), interval)
@@ -424,11 +437,13 @@ def chart_data(library, state: ViewState) -> ChartData:
         )
     title = f"{case.name} \u00b7 {level_text(sel.level_hpa)} \u00b7 {sel.when}"
     color_range = _color_range(raster, kind, whole=key in WHOLE_RANGE)
+    if kind == "classes":
+        color_range = (-0.5, len(CLASSES) - 0.5)
     color_cut = _color_cut(raster, kind, color_range)
     cut_note = color_cut_note(color_cut, color_range, units)
     if cut_note:
         notes.append(cut_note)
-    same = constant_note(raster, units)
+    same = constant_note(raster, units) if kind != "classes" else ""
     if same:
         notes.append(same)
     return ChartData(

@@ -10,11 +10,13 @@ here.
 from __future__ import annotations
 
 import dataclasses
+import weakref
 from collections.abc import Callable
 
 import numpy as np
 
 from balance_core import TERMS
+from balance_core.balance_map import balance_map
 from balance_core.io import CaseError
 
 from . import wording
@@ -27,8 +29,9 @@ class ChartField:
     """One field of the chart.
 
     ``make(diag, state)`` returns (values on the case grid, units); ``scale`` is
-    "sequential", "diverging" or "log"; ``wind`` says that the field needs the wind (a file
-    with heights alone has no such field).
+    "sequential", "diverging", "log" or "classes" (the index of a balance class,
+    :data:`balance_core.verdict.CLASSES`, coloured as the verdict's class); ``wind`` says
+    that the field needs the wind (a file with heights alone has no such field).
     """
 
     key: str
@@ -61,6 +64,27 @@ def _temperature(diag, state):
     if diag.temperature is None:
         raise CaseError("this case has no temperature" + (" at 2 m" if diag.surface else ""))
     return diag.temperature - 273.15, "degC"
+
+
+#: the balance maps of the levels in use, by the diagnostics they came from (a diagnostics
+#: object is cached by the library; the map goes with it)
+_MAPS: dict = {}
+
+
+def balance_map_of(diag):
+    """:func:`balance_core.balance_map.balance_map` of a level (default thresholds, as the
+    page's region verdict), computed once per diagnostics object."""
+    found = _MAPS.get(id(diag))
+    if found is not None and found[0]() is diag:
+        return found[1]
+    m = balance_map(diag)
+    _MAPS[id(diag)] = (weakref.ref(diag), m)
+    weakref.finalize(diag, _MAPS.pop, id(diag), None)
+    return m
+
+
+def _balance_here(diag, state):
+    return balance_map_of(diag).classes.astype(np.float64), ""
 
 
 def _term(name):
@@ -111,6 +135,7 @@ CHART_FIELDS = (
     ChartField(
         "temperature", wording.FIELD_NAMES["temperature"], "sequential", _temperature, wind=False
     ),
+    ChartField("balance_here", wording.FIELD_NAMES["balance_here"], "classes", _balance_here),
     *[
         ChartField(f"term:{t}", f"|{wording.term_name(t)}|", "log", _term(t))
         for t in (*TERMS, "acceleration", "centripetal")

@@ -359,15 +359,18 @@ def _index_map(grid, lon, lat):
     return rows, cols, False
 
 
-def sample(geom: ViewGeometry, field) -> np.ndarray:
-    """The field at the raster points (float32; NaN outside the data and where it is NaN)."""
+def sample(geom: ViewGeometry, field, nearest: bool = False) -> np.ndarray:
+    """The field at the raster points (float32; NaN outside the data and where it is NaN):
+    interpolated linearly, or with ``nearest`` the nearest grid point's value (for a field
+    of classes, where a value between two means nothing)."""
     f = np.asarray(field, dtype=np.float64)
     if geom.periodic:
         f = np.concatenate([f[:, -1:], f, f[:, :1]], axis=1)
     ok = np.isfinite(geom.rows) & np.isfinite(geom.cols)
     r = np.where(ok, geom.rows, 0.0)
     c = np.where(ok, geom.cols, 0.0)
-    out = ndimage.map_coordinates(f, [r, c], order=1, mode="nearest", prefilter=False)
+    order = 0 if nearest else 1
+    out = ndimage.map_coordinates(f, [r, c], order=order, mode="nearest", prefilter=False)
     out[~ok] = np.nan
     return out.astype(np.float32)
 

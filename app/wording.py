@@ -63,6 +63,7 @@ FIELD_NAMES = {
     "vorticity": "relative vorticity",
     "omega": "vertical motion omega (negative: rising air)",
     "temperature": "temperature",
+    "balance_here": "which balance holds where",
 }
 
 #: Numbers of the report: key -> (display name, unit, what it means).

@@ -15,7 +15,7 @@ io layer adds the case name, level and valid time).
 from __future__ import annotations
 
 import dataclasses
-from typing import Any, TypedDict
+from typing import Any, NamedTuple, TypedDict
 
 import numpy as np
 
@@ -63,6 +63,8 @@ __all__ = [
     "geostrophic_only_report",
     "heights_only_diagnostics",
     "window",
+    "window_verdict",
+    "WindowVerdict",
 ]
 
 
@@ -429,22 +431,9 @@ def box_report(
     win = window(inside)
     if win is None:
         return _empty_report(inside, th)
-    sub = _GridWindow(g, win)
     ins = inside[win]
-    cropped = _crop_budget(diag.budget, win)
-    w = lambda a: None if a is None else a[win]  # noqa: E731
-    ok = _valid(cropped, ins)
+    sub, cropped, ok, ratios, hag, ground, verdict = window_verdict(diag, win, ins, th)
     invalid = _invalid_points(diag, win, ins, ok)
-    ratios = imbalance_ratios(
-        cropped, sub, ins, u=w(diag.u), v=w(diag.v), vorticity=w(diag.vorticity)
-    )
-    hag = _median(w(diag.height_above_ground), sub, ok)
-    ground = (
-        (True, "the 10 m wind blows in the boundary layer, where friction acts")
-        if diag.surface
-        else near_ground(diag.pressure, hag, th)
-    )
-    verdict = classify_budget(ratios, th, ground=ground)
     if not ok.any():
         return _empty_report(inside, th, invalid=invalid, verdict=verdict)
     scales, flow = _scales(diag, inside, win, sub, ok, nu, flow_length)
@@ -515,6 +504,45 @@ def box_report(
         "residual_causes": causes,
         "notes": notes,
     }
+
+
+class WindowVerdict(NamedTuple):
+    """The verdict of the points ``ins`` of one window of a level, and what it came from."""
+
+    grid: Any  # the window's grid (:class:`_GridWindow`)
+    budget: Budget  # the budget cut to the window
+    ok: np.ndarray  # the window's points where every available term is finite
+    ratios: dict  # :func:`balance_core.verdict.imbalance_ratios`
+    height_above_ground_m: float | None  # the median over ``ok``
+    ground: tuple  # :func:`balance_core.verdict.near_ground`
+    verdict: Verdict
+
+
+def window_verdict(
+    diag: LevelDiagnostics, win, ins: np.ndarray, thresholds: Thresholds = Thresholds()
+) -> WindowVerdict:
+    """The verdict of the points ``ins`` (bool, the window's shape) of the window ``win``
+    (row and column slices, :func:`window`): the imbalance ratios over those points
+    (:func:`balance_core.verdict.imbalance_ratios`), whether the level is near the ground
+    there (:func:`balance_core.verdict.near_ground`; at sea level always) and the class
+    (:func:`balance_core.verdict.classify_budget`). One rule for a region's report
+    (:func:`box_report`) and for each tile of the map of which balance holds where
+    (:mod:`balance_core.balance_map`)."""
+    sub = _GridWindow(diag.grid, win)
+    cropped = _crop_budget(diag.budget, win)
+    w = lambda a: None if a is None else a[win]  # noqa: E731
+    ok = _valid(cropped, ins)
+    ratios = imbalance_ratios(
+        cropped, sub, ins, u=w(diag.u), v=w(diag.v), vorticity=w(diag.vorticity)
+    )
+    hag = _median(w(diag.height_above_ground), sub, ok)
+    ground = (
+        (True, "the 10 m wind blows in the boundary layer, where friction acts")
+        if diag.surface
+        else near_ground(diag.pressure, hag, thresholds)
+    )
+    verdict = classify_budget(ratios, thresholds, ground=ground)
+    return WindowVerdict(sub, cropped, ok, ratios, hag, ground, verdict)
 
 
 def _valid(cropped: Budget, ins) -> np.ndarray:

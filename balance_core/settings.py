@@ -21,7 +21,7 @@ cannot be used is refused with one sentence that names the variable.
 ``BALANCE_DESK_SAMPLES``           the folder of the third-party GRIB samples the tests
                                    read (default ``.cache/cfgrib-samples``)
 ``BALANCE_DESK_TEST_CHART_LOADS``  page loads a case of the tests' chart-draws check (default
-                                   4; more for a soak run)
+                                   2; more for a soak run)
 =================================  =======================================================
 """
 
@@ -59,7 +59,7 @@ SETTINGS: dict[str, Setting] = {
         Setting("BALANCE_DESK_LOG", "INFO", "the server's log level"),
         Setting("BALANCE_DESK_BATCH_NO_WORKER_S", "120", "a batch run's wait for a worker"),
         Setting("BALANCE_DESK_SAMPLES", None, "the tests' third-party GRIB samples"),
-        Setting("BALANCE_DESK_TEST_CHART_LOADS", "4", "page loads a case of a chart test"),
+        Setting("BALANCE_DESK_TEST_CHART_LOADS", "2", "page loads a case of a chart test"),
     )
 }
 

@@ -5,14 +5,16 @@ Screenshots go to artifacts/screenshots/. Skipped when Chromium is not
 installed (``make test`` installs it as root), failed under CI=true.
 """
 
+import io
 import os
 import re
 import time
 
 import numpy as np
 import pytest
+from PIL import Image
 
-from testkit.chromium import address, open_tab, require, settled
+from testkit.chromium import address, chart_canvas, open_tab, require, settled
 from testkit.serving import HANG_MS, HANG_S, start_server, stop_server, wait_until
 
 pytestmark = pytest.mark.browser
@@ -202,6 +204,37 @@ def test_sea_level_in_the_level_menu_draws_isobars_and_the_surface_verdict(serve
     _wait_for(page, lambda: page.locator("text=found at sea level").count() > 0)
     _wait_for(page, lambda: "level=msl" in address(page))
     _shot(page, "03b_sea_level")
+    assert errors == [], errors
+    page.close()
+
+
+#: the chart's visible colour bars: (number of ticks of a fixed ticker or -1, title)
+COLOUR_BARS_JS = """() => {
+  const d = Bokeh.documents[0];
+  const ms = d._all_models instanceof Map ? [...d._all_models.values()] : [...d._all_models];
+  return ms.filter(m => m.type === 'ColorBar' || (m.color_mapper !== undefined
+                                                 && m.ticker !== undefined))
+           .filter(m => m.visible)
+           .map(m => [m.ticker.ticks ? m.ticker.ticks.length : -1, m.title]);
+}"""
+
+
+def test_the_map_of_which_balance_holds_where_is_drawn_in_the_verdict_colours(server, browser):
+    page, errors = _page(browser, server + "?case=ocean_cyclone&level=500")
+    _wait_for(page, lambda: "500 hPa" in _chart_title(page))
+    menu = page.locator("select", has=page.locator("option", has_text="which balance holds where"))
+    menu.select_option(label="which balance holds where")
+    _wait_for(page, lambda: "field=balance_here" in address(page))
+    _wait_for(page, lambda: page.locator("text=Which balance holds where: tiles of 5").count() > 0)
+    settled(page)
+    # one colour bar, with a band per verdict class
+    assert page.evaluate(COLOUR_BARS_JS) == [[7, "which balance holds where"]]
+    shot = chart_canvas(page).screenshot()
+    pixels = np.asarray(Image.open(io.BytesIO(shot)).convert("RGB"))
+    blue = np.array([0x00, 0x72, 0xB2])  # the geostrophic class's colour
+    share = np.mean(np.all(np.abs(pixels.astype(int) - blue) <= 3, axis=-1))
+    assert share > 0.2, share  # most of the 500 hPa flow of the case is geostrophic
+    _shot(page, "03c_balance_map")
     assert errors == [], errors
     page.close()
 

@@ -1,5 +1,5 @@
 """The chart draws on every load: page loads in real Chromium across five cases, two levels
-each and two projections (each view once a case by default, a test a case), each checked for a drawn
+each and two projections (by default two loads a case, a test a case), each checked for a drawn
 chart (its ranges in the browser are the chart's, not the empty figure's 0 to 1, and its
 canvas holds a picture, not blank axes) at true shape (the same ground distance per pixel
 across and up the frame the browser drew).
@@ -10,7 +10,7 @@ dropped there): app.desk.page.Page._held now holds such changes until the page h
 That holding is tested without a browser in tests/test_app_state.py; here real loads look for
 the symptom. The loss was seen 2 times in 47 loads under load, so a soak run that hunts for it
 sets BALANCE_DESK_TEST_CHART_LOADS (loads a case; 10 gives the fifty loads the fix was measured
-with) above the default of four.
+with) above the default of two.
 """
 
 import io
@@ -97,8 +97,9 @@ def _cases():
     ]
 
 
-#: page loads per case: each case's four views (two levels, two projections) first computed
-#: afresh (where the lost change was seen), then, for a soak run, again from the caches
+#: page loads per case: the first level in both projections, then, for a soak run, the second
+#: level's two views, each computed afresh (where the lost change was seen), then again from
+#: the caches
 LOADS_PER_CASE = settings.whole_number("BALANCE_DESK_TEST_CHART_LOADS")
 
 

@@ -22,6 +22,7 @@ from bokeh.models import (
     CustomJS,
     CustomJSHover,
     CustomJSTickFormatter,
+    FixedTicker,
     HoverTool,
     Label,
     LabelSet,
@@ -34,6 +35,9 @@ from bokeh.models import (
     WheelZoomTool,
 )
 from bokeh.plotting import figure
+
+from balance_core.verdict import CLASSES
+from balance_core.vocabulary import BALANCE_NAMES
 
 from ..state import ViewState, area_from_crs
 from .look import (
@@ -120,12 +124,22 @@ _HOVER_JS = {
 }
 
 
-def _hover_formatters(src, units):
+#: a field of verdict classes (the map of which balance holds where) reads as the class
+_CLASS_JS = "if (!isFinite(value)) return 'no data'; return names[Math.round(value)] || '';"
+
+#: the verdict classes' names, in the order of their index (balance_core.verdict.CLASSES)
+CLASS_NAMES = [BALANCE_NAMES[c] for c in CLASSES]
+
+
+def _hover_formatters(src, units, classes=False):
     unit_of = {"@field": units["field"], "@height": units["height"], "@speed": units["wind"]}
-    return {
+    out = {
         k: CustomJSHover(code=code, args={"src": src, "unit": unit_of.get(k, "")})
         for k, code in _HOVER_JS.items()
     }
+    if classes:
+        out["@field"] = CustomJSHover(code=_CLASS_JS, args={"names": CLASS_NAMES})
+    return out
 
 
 def one_line(lines) -> list:
@@ -429,7 +443,7 @@ class Chart(pn.viewable.Viewer):
             hover_line_alpha=0.0,
         )
         hover_r = self.hover_rect
-        self.hover_units = {"field": "", "height": "m", "wind": "m/s"}
+        self.hover_units = {"field": "", "height": "m", "wind": "m/s", "classes": False}
         self.hover = HoverTool(
             renderers=[hover_r],
             tooltips=HOVER_TIPS("field"),
@@ -469,8 +483,25 @@ class Chart(pn.viewable.Viewer):
             ticker=SingleIntervalTicker(interval=1),
             formatter=CustomJSTickFormatter(code="return '1e' + Math.round(tick);"),
         )
+        # the map of which balance holds where: one band per verdict class, named
+        self.colorbar_classes = ColorBar(
+            color_mapper=self.mapper,
+            width=18,
+            title="",
+            title_text_font_size="16px",
+            visible=False,
+            title_text_color=INK,
+            major_label_text_color=INK,
+            major_label_text_font_size="15px",
+            location=(0, 0),
+            ticker=FixedTicker(ticks=list(range(len(CLASS_NAMES)))),
+            formatter=CustomJSTickFormatter(
+                code="return names[Math.round(tick)] || '';", args={"names": CLASS_NAMES}
+            ),
+        )
         fig.add_layout(self.colorbar, "right")
         fig.add_layout(self.colorbar_log, "right")
+        fig.add_layout(self.colorbar_classes, "right")
         digits_js = (
             "var d = (ticks.length > 1 && Math.abs(ticks[1] - ticks[0]) < 1) ? "
             "(Math.abs(ticks[1] - ticks[0]) < 0.1 ? 2 : 1) : 0; "
@@ -555,9 +586,12 @@ class Chart(pn.viewable.Viewer):
             lo, hi = math.log10(cd.color_range[0]), math.log10(cd.color_range[1])
         else:
             lo, hi = cd.color_range
-        self.colorbar.visible = cd.color_kind != "log"
+        self.colorbar.visible = cd.color_kind not in ("log", "classes")
         self.colorbar_log.visible = cd.color_kind == "log"
-        self.mapper.palette = palette("diverging" if cd.color_kind == "diverging" else "seq")
+        self.colorbar_classes.visible = cd.color_kind == "classes"
+        self.mapper.palette = palette(
+            cd.color_kind if cd.color_kind in ("diverging", "classes") else "seq"
+        )
         self.mapper.low, self.mapper.high = float(lo), float(hi)
         self.img_src.data = dict(image=[data], x=[x0], y=[y0], dw=[x1 - x0], dh=[y1 - y0])
         blank = np.full((2, 2), np.nan, np.float32)
@@ -568,7 +602,7 @@ class Chart(pn.viewable.Viewer):
             dw=[x1 - x0],
             dh=[y1 - y0],
         )
-        self.colorbar.title = self.colorbar_log.title = (
+        self.colorbar.title = self.colorbar_log.title = self.colorbar_classes.title = (
             f"{cd.field_label}"
             + (f" ({cd.units})" if cd.units else "")
             + (" \u00b7 scale cut, see below" if any(cd.color_cut) else "")
@@ -636,10 +670,13 @@ class Chart(pn.viewable.Viewer):
             "field": h["field_units"] or "",
             "height": h["height_units"],
             "wind": h["wind_units"],
+            "classes": cd.color_kind == "classes",
         }
         if units != self.hover_units:
             self.hover_units = units
-            self.hover.formatters = _hover_formatters(self.hover_src, units)
+            self.hover.formatters = _hover_formatters(
+                self.hover_src, units, classes=units["classes"]
+            )
         tips = HOVER_TIPS(
             cd.field_label,
             "sea-level pressure" if cd.contour_units == "hPa" else "height",

@@ -131,6 +131,13 @@ def style_figure(fig, title_size=FONT["title"]):
 
 
 def palette(kind):
+    """The colours of a field's scale: "diverging", "classes" (the verdict classes' own
+    colours, balance_core.vocabulary.BALANCE_CLASSES, in the order of their index) or
+    sequential."""
+    if kind == "classes":
+        from balance_core.vocabulary import BALANCE_CLASSES
+
+        return [b.colour for b in BALANCE_CLASSES]
     import colorcet as cc
 
     if kind == "diverging":
