@@ -234,6 +234,13 @@ def test_the_map_of_which_balance_holds_where_is_drawn_in_the_verdict_colours(se
     blue = np.array([0x00, 0x72, 0xB2])  # the geostrophic class's colour
     share = np.mean(np.all(np.abs(pixels.astype(int) - blue) <= 3, axis=-1))
     assert share > 0.2, share  # most of the 500 hPa flow of the case is geostrophic
+    # the readout names the class (30N 33W, in the geostrophic south of the chart)
+    box = chart_canvas(page).bounding_box()
+    page.mouse.move(box["x"] + box["width"] * 0.45, box["y"] + box["height"] * 0.75)
+    page.mouse.move(box["x"] + box["width"] * 0.46, box["y"] + box["height"] * 0.76)
+    label = page.get_by_text("which balance holds where:", exact=True).first
+    label.wait_for(timeout=HANG_MS)
+    assert label.evaluate("e => e.parentElement.innerText").split("\t")[-1] == "Geostrophic"
     _shot(page, "03c_balance_map")
     assert errors == [], errors
     page.close()

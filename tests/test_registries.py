@@ -49,7 +49,7 @@ def test_every_place_loops_over_the_balance_classes():
 
 @pytest.mark.parametrize("f", fields.CHART_FIELDS, ids=[f.key for f in fields.CHART_FIELDS])
 def test_every_chart_field_is_complete(f):
-    assert f.label and f.scale in ("sequential", "diverging", "log") and callable(f.make)
+    assert f.label and f.scale in ("sequential", "diverging", "log", "classes") and callable(f.make)
 
 
 def test_the_link_and_the_menu_take_the_fields_of_the_one_table():

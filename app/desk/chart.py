@@ -443,7 +443,8 @@ class Chart(pn.viewable.Viewer):
             hover_line_alpha=0.0,
         )
         hover_r = self.hover_rect
-        self.hover_units = {"field": "", "height": "m", "wind": "m/s", "classes": False}
+        self.hover_units = {"field": "", "height": "m", "wind": "m/s"}
+        self.hover_classes = False  # the field is of verdict classes (read as their names)
         self.hover = HoverTool(
             renderers=[hover_r],
             tooltips=HOVER_TIPS("field"),
@@ -670,13 +671,11 @@ class Chart(pn.viewable.Viewer):
             "field": h["field_units"] or "",
             "height": h["height_units"],
             "wind": h["wind_units"],
-            "classes": cd.color_kind == "classes",
         }
-        if units != self.hover_units:
-            self.hover_units = units
-            self.hover.formatters = _hover_formatters(
-                self.hover_src, units, classes=units["classes"]
-            )
+        classes = cd.color_kind == "classes"
+        if units != self.hover_units or classes != self.hover_classes:
+            self.hover_units, self.hover_classes = units, classes
+            self.hover.formatters = _hover_formatters(self.hover_src, units, classes=classes)
         tips = HOVER_TIPS(
             cd.field_label,
             "sea-level pressure" if cd.contour_units == "hPa" else "height",
