@@ -189,3 +189,25 @@ def test_a_file_without_wind_gets_no_verdict_but_the_geostrophic_wind():
     assert out["systems"] and all(
         s["report"]["verdict"]["balance"] == "none" for s in out["systems"]
     )
+
+
+def test_the_region_at_sea_level_says_its_surface_balance_and_other_levels_do_not():
+    """The desk's evidence at sea level: the pressure gradient against the Coriolis force of
+    the 10 m wind, the cross-isobar angle (its sign checked against the GFS North Atlantic,
+    where the test above finds the wind crossing toward low pressure independently) and the
+    friction the data imply; nothing of the kind at 500 hPa."""
+    from app import compute
+    from app.desk.evidence import Evidence
+    from app.library import CaseLibrary
+    from app.state import SEA_LEVEL, ViewState
+
+    lib = CaseLibrary([samples.need(GFS)])
+    st = ViewState(case=lib.good[0], level=SEA_LEVEL)
+    st.set_box(-50, -10, 45, 65)
+    rep = compute.box_data(lib, st)
+    html = Evidence(st)._surface_html(rep)
+    assert "crosses the isobars toward low pressure by" in html
+    assert "against the Coriolis force of the 10 m wind" in html
+    assert "Friction the data imply" in html
+    st.level = 500.0
+    assert Evidence(st)._surface_html(compute.box_data(lib, st)) == ""

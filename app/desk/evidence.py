@@ -78,6 +78,7 @@ class Evidence(pn.viewable.Viewer):
         self.alert.object = ""
         self.body.object = (
             self._verdict_html(rep)
+            + self._surface_html(rep)
             + self._terms_html(rep)
             + self._balances_html(rep)
             + self._numbers_html(rep)
@@ -113,6 +114,53 @@ class Evidence(pn.viewable.Viewer):
             f"{esc(report_files.level_text(rep))} &middot; "
             f"{esc(rep.get('when', rep['valid_time']))} "
             f"&middot; {esc(rep.get('region_text', ''))} &middot; {esc(valid)}</div>{mark}</div>"
+        )
+
+    def _surface_html(self, rep):
+        """At sea level, the region's surface balance in three lines: the pressure gradient
+        against the Coriolis force of the 10 m wind, how the wind crosses the isobars, and
+        the friction the data imply (the residual)."""
+        if rep.get("level") != "msl":
+            return ""
+        mags = {t["name"]: t["magnitude"] for t in rep.get("terms", [])}
+        lines = []
+        p, c = mags.get("pressure_gradient"), mags.get("coriolis")
+        if p and c is not None:
+            lines.append(
+                f"Pressure-gradient force {p:.1e} m s-2 against the Coriolis force of the 10 m "
+                f"wind {c:.1e} m s-2 ({100 * c / p:.0f} % of it)."
+            )
+        sf = rep.get("surface") or {}
+        ang, rat = sf.get("cross_isobar_angle_median_deg"), sf.get("speed_over_geostrophic_median")
+        if ang is not None and rat is not None:
+            toward = "toward low" if ang >= 0 else "toward high"
+            lines.append(
+                f"The 10 m wind crosses the isobars {toward} pressure by {abs(ang):.0f} degrees "
+                f"at {rat:.2f} of the geostrophic speed (medians of {sf.get('points', 0)} points)."
+            )
+        shares = rep.get("shares") or {}
+        r, share, align = (
+            mags.get("residual"),
+            shares.get("residual"),
+            shares.get("friction_alignment"),
+        )
+        if r is not None and share is not None:
+            opposes = (
+                ""
+                if align is None
+                else f"; it opposes the wind by {align:.2f} (1: straight against it)"
+            )
+            lines.append(
+                f"Friction the data imply (the residual, all the budget leaves): {r:.1e} m s-2, "
+                f"{100 * share:.0f} % of the pressure-gradient force{opposes}."
+            )
+        if not lines:
+            return ""
+        return (
+            _heading("Near the ground", "the 10 m wind over the sea-level pressure")
+            + f"<div class='bd-surface' style='font-size:15px;color:{INK}'>"
+            + "<br>".join(esc(line) for line in lines)
+            + "</div>"
         )
 
     def _terms_html(self, rep):
