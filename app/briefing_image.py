@@ -19,7 +19,7 @@ import numpy as np
 from . import wording
 from .outside import FIGURE_RC, figure_text
 
-__all__ = ["briefing_png", "OUTLINE_RGB", "INVENTED_RGB"]
+__all__ = ["briefing_png", "briefing_figure", "OUTLINE_RGB", "INVENTED_RGB"]
 
 #: the region's outline colour (Okabe-Ito orange), which tests look for in the image
 OUTLINE_RGB = (0xE6, 0x9F, 0x00)
@@ -71,15 +71,40 @@ def briefing_png(
         )
 
 
-def _briefing_png(
-    chart, report, outline, *, region_text, caution, invented_text, notes, room_notes, balanced
-) -> bytes:
+def _briefing_png(chart, report, outline, **kw) -> bytes:
     import matplotlib.pyplot as plt
 
-    listed = room_note_lines(room_notes)
+    sheet = briefing_figure(chart, report, outline, **kw)
+    buf = io.BytesIO()
+    sheet.savefig(buf, format="png")
+    plt.close(sheet)
+    return buf.getvalue()
+
+
+def briefing_figure(
+    chart,
+    report,
+    outline,
+    *,
+    region_text,
+    caution,
+    invented_text,
+    notes,
+    room_notes,
+    balanced,
+    size=(16.0, 9.0),
+    list_room_notes=True,
+):
+    """The briefing's matplotlib figure (the PNG's, and the first page of the briefing sheet,
+    :mod:`app.briefing_sheet`, at the paper's size): ``size`` in inches; the room's notes
+    listed in a band below unless ``list_room_notes`` is false (the sheet lists them on its
+    second page). Call inside ``matplotlib.rc_context(FIGURE_RC)``."""
+    import matplotlib.pyplot as plt
+
+    listed = room_note_lines(room_notes) if list_room_notes else []
     # the room's notes, in full, in a band below the briefing that grows with them
     band = 0.0 if not listed else 0.45 + NOTE_LINE_IN * len(listed)
-    sheet = plt.figure(figsize=(16, 9 + band), dpi=110)
+    sheet = plt.figure(figsize=(size[0], size[1] + band), dpi=110)
     sheet.patch.set_facecolor("white")
     if listed:
         fig, below = sheet.subfigures(2, 1, height_ratios=[9, band])
@@ -118,10 +143,7 @@ def _briefing_png(
     if room_notes and chart is not None:
         _mark_room_notes(ax, room_notes)
     fig.text(0.04, 0.012, "Caution: " + caution, fontsize=11, color="#5a4500")
-    buf = io.BytesIO()
-    sheet.savefig(buf, format="png")
-    plt.close(sheet)
-    return buf.getvalue()
+    return sheet
 
 
 #: the height of one line of the room's notes (inches, at 10 pt)

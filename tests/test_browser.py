@@ -259,6 +259,34 @@ def test_the_map_of_which_balance_holds_where_is_drawn_in_the_verdict_colours(se
     page.close()
 
 
+def test_printed_the_page_is_two_landscape_pages_and_the_sheet_downloads(server, desk):
+    """Chromium's own print of the desk (its PDF): at most two landscape pages that start
+    with the chart and hold the verdict with why and the chart's notes, without the
+    controls; the briefing sheet's PDF downloads in two pages of the paper chosen."""
+    from pypdf import PdfReader
+
+    page, errors = _page(desk, server + OCEAN)
+    _wait_for(page, lambda: "Geostrophic" in _verdict_text(page))
+    settled(page)
+    page.emulate_media(media="print")
+    printed = PdfReader(io.BytesIO(page.pdf(format="A4", landscape=True, print_background=True)))
+    assert 1 <= len(printed.pages) <= 2
+    assert float(printed.pages[0].mediabox.width) > float(printed.pages[0].mediabox.height)
+    text = " ".join(" ".join((p.extract_text() or "").split()) for p in printed.pages)
+    assert "Geostrophic: the pressure-gradient force" in text and "Why:" in text
+    assert "Vectors: actual wind" in text and "diagnostic aid" in text
+    assert "Filled field" not in text and "Briefing image" not in text  # no controls
+    page.emulate_media(media="screen")
+    page.get_by_role("button", name="Letter", exact=True).click()
+    with page.expect_download(timeout=HANG_MS) as dl:
+        page.get_by_role("button", name="Briefing sheet (PDF, 2 pages)").click()
+    sheet = PdfReader(dl.value.path())
+    assert dl.value.suggested_filename.endswith(".pdf") and len(sheet.pages) == 2
+    assert float(sheet.pages[0].mediabox.width) == 792.0  # US Letter, landscape
+    assert errors == [], errors
+    page.close()
+
+
 def test_a_link_reopens_the_view(server, desk):
     link = (
         server + "?case=tropical_cyclone&level=850&time=2038-09-04T06%3A00%3A00Z"

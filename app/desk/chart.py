@@ -46,6 +46,7 @@ from .look import (
     INK,
     INVENTED_BG,
     ORANGE,
+    PRINT_CSS,
     VERMILION,
     alert,
     esc,
@@ -556,12 +557,13 @@ class Chart(pn.viewable.Viewer):
             self.caption,
             self.alert,
             self.figure_box,
-            pn.Row(self.w_zoom, self.w_unzoom, margin=0),
+            pn.Row(self.w_zoom, self.w_unzoom, margin=0, css_classes=["bd-no-print"]),
             self.note,
             sizing_mode="stretch_width",
             min_width=MIN_WIDTH,
             max_width=WIDTH + 140,
             css_classes=["bd-live"],
+            stylesheets=[PRINT_CSS],
         )
 
     # -- showing ----------------------------------------------------------------------------

@@ -1,4 +1,5 @@
-"""For the briefing: the chart as a PNG, the region's report as CSV and JSON.
+"""For the briefing: the chart as a PNG, the briefing sheet as a PDF of two landscape pages,
+the region's report as CSV and JSON.
 
 Every export is made from what the page shows at the moment it is asked for --
 the chart and report on screen, the region's outline as it is now -- stamped
@@ -13,6 +14,7 @@ import panel as pn
 
 from .. import compute, report_files, wording
 from ..briefing_image import briefing_png
+from ..briefing_sheet import PAPERS, briefing_pdf
 from .look import CAUTION, INVENTED, WIDGET_CSS
 
 __all__ = ["Downloads"]
@@ -33,6 +35,16 @@ class Downloads(pn.viewable.Viewer):
             color="success",
             stylesheets=css,
         )
+        self.paper = pn.widgets.RadioButtonGroup(
+            options=list(PAPERS), value="A4", width=width, stylesheets=css
+        )
+        self.pdf = pn.widgets.FileDownload(
+            callback=self.pdf_bytes,
+            filename="briefing.pdf",
+            label="Briefing sheet (PDF, 2 pages)",
+            width=width,
+            stylesheets=css,
+        )
         self.csv = pn.widgets.FileDownload(
             callback=self.csv_text,
             filename="terms.csv",
@@ -47,7 +59,15 @@ class Downloads(pn.viewable.Viewer):
             width=width,
             stylesheets=css,
         )
-        self.layout = pn.Column(self.png, self.csv, self.json, margin=0)
+        self.layout = pn.Column(
+            self.png,
+            self.pdf,
+            pn.pane.HTML("Sheet paper (landscape):", margin=(4, 5, 0, 5)),
+            self.paper,
+            self.csv,
+            self.json,
+            margin=0,
+        )
 
     def _context(self):
         st = self.page.state
@@ -102,6 +122,60 @@ class Downloads(pn.viewable.Viewer):
                 balanced=self.page.thresholds.balanced,
             )
         )
+
+    def pdf_bytes(self):
+        """The briefing sheet of the view on screen (app.briefing_sheet): the chart, verdict
+        and terms on page one; the verdict with why, the levels, the systems and every note
+        on page two."""
+        page, chart, rep = self.page, self.page.chart.data, self.page.report
+        self._name(self.pdf, "pdf")
+        ctx = self._context()
+        notes = list(chart.notes) if chart is not None else []
+        notes += [n for n in (rep or {}).get("notes", []) if n not in notes]
+        return io.BytesIO(
+            briefing_pdf(
+                chart,
+                rep,
+                self._outline(),
+                region_text=page.state.region_text(),
+                caution=CAUTION,
+                invented_text=INVENTED,
+                notes=notes,
+                room_notes=self._room_notes(chart),
+                levels=self._levels(),
+                systems_text=self._systems_text(),
+                settings=report_files.settings_text(ctx) if rep else "",
+                balanced=page.thresholds.balanced,
+                paper=self.paper.value,
+            )
+        )
+
+    def _levels(self):
+        """The region through the levels (as the levels tab has it; None where it fails)."""
+        try:
+            return compute.levels_data(self.page.library, self.page.state)
+        except Exception:  # noqa: BLE001 - the sheet is made without the levels, and says so
+            return None
+
+    def _systems_text(self) -> str:
+        page = self.page
+        try:
+            out = compute.systems_data(page.library, page.state, page.thresholds)
+        except Exception as exc:  # noqa: BLE001 - the sheet says why instead
+            return f"No systems: {exc}"
+        rows = out.get("systems") or []
+        st = page.state
+        lines = [report_files.rules_text(out, st.wind_units, st.height_units)]
+        lines += list(out.get("notes") or [])
+        if not rows:
+            lines.append("No systems found on this level at this time.")
+        for r in rows:
+            lines.append(
+                f"{r['label']} {wording.system_name(r['kind'])} at {wording.lat(r['lat'])} "
+                f"{wording.lon(r['lon'])}: {r['intensity_text']}; {r['region_text']}; "
+                f"{wording.balance_name(r['verdict'])}. {r['verdict_text']}"
+            )
+        return "\n".join(lines)
 
     def _room_notes(self, chart):
         """A review room's notes for the image: (label, (x, y) on the chart or None, text)."""

@@ -27,6 +27,7 @@ __all__ = [
     "MUTED",
     "esc",
     "GLOBAL_CSS",
+    "PRINT_CSS",
     "style_figure",
     "palette",
     "alert",
@@ -64,9 +65,19 @@ FONT = {"axis": "16px", "tick": "15px", "title": "18px", "label": "15px"}
 #: Document-wide CSS. Panel and Bokeh size their text from --bokeh-font-size, which
 #: crosses into their shadow roots; the focus ring and the busy state are ours.
 GLOBAL_CSS = """
+@page { size: landscape; margin: 8mm; }
+@media print { html { zoom: 0.62; } }
 :root { --bokeh-font-size: 16px; --design-primary-color: #0b5cad; }
 html, body { font-size: 16px; color: #1a1a1a; }
 *:focus-visible { outline: 3px solid #0b5cad !important; outline-offset: 2px !important; }
+"""
+
+#: Printed, the page is a briefing sheet: the parts that steer it (the controls, the tabs
+#: below, the zoom buttons, the room's bar) are left out. A part marked ``bd-no-print`` is
+#: hidden by this sheet in the shadow root of the layout that holds it (a page's parts live
+#: in their parent's shadow root, where no document-wide rule reaches).
+PRINT_CSS = """
+@media print { .bd-no-print { display: none !important; } }
 """
 
 #: CSS given to widgets' shadow roots: a selected toggle is unmistakable, text dark enough.

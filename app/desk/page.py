@@ -36,7 +36,7 @@ from .chart import Chart
 from .controls import Controls
 from .downloads import Downloads
 from .evidence import Evidence
-from .look import CAUTION, GLOBAL_CSS, INK, INVENTED_BG, alert, esc
+from .look import CAUTION, GLOBAL_CSS, INK, INVENTED_BG, PRINT_CSS, alert, esc
 from .systems import SystemsPanel
 
 __all__ = ["Page", "make_session", "make_room_session", "error_page", "EarlyBuilds"]
@@ -193,6 +193,7 @@ class Page(pn.viewable.Viewer):
             self.evidence,
             sizing_mode="stretch_width",
             styles={"flex-wrap": "wrap", "gap": "8px", "align-items": "flex-start", **narrowest},
+            stylesheets=[PRINT_CSS],
         )
         self.chart.layout.styles = {"flex": "1 1 560px"}
         #: where a review room puts its bar (above the parts) and its notes (under the chart,
@@ -215,7 +216,11 @@ class Page(pn.viewable.Viewer):
             self.settle_mark,
             sizing_mode="stretch_width",
             styles=narrowest,
+            stylesheets=[PRINT_CSS],
         )
+        # printed, the page is the briefing: what steers it is left out (look.PRINT_CSS)
+        for part in (self.controls.layout, self.below.tabs, self.top):
+            part.css_classes = [*part.css_classes, "bd-no-print"]
         # the state the page last followed: the header names it, not a change still waiting
         # for its tick, so a view shown before that tick is never beside a newer header
         self._followed = self.state.copy()
