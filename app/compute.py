@@ -47,6 +47,9 @@ __all__ = [
     "ready_chart_data",
     "ready_box_data",
     "levels_data",
+    "section_data",
+    "section_cells",
+    "theta_lines",
     "times_data",
     "scale_sheet",
     "region_outline",
@@ -619,8 +622,9 @@ def box_data(library, state: ViewState, thresholds: Thresholds = Thresholds()) -
 
 
 #: what a chart and a region's report depend on (the rest of the state does not change them)
-#: (every parameter of a link but the preset and the sheet, which change only the words)
-CHART_KEYS = tuple(p for p in URL_PARAMS if p not in ("preset", "sheet"))
+#: (every parameter of a link but the preset and the sheet, which change only the words, and
+#: the section's line, which only the section view draws)
+CHART_KEYS = tuple(p for p in URL_PARAMS if p not in ("preset", "sheet", "line"))
 BOX_KEYS = ("case", "level", "time", "smooth_km", "min_lat", "region")
 
 
@@ -628,7 +632,7 @@ def _key(kind, state, names, *extra):
     from .state import encode_query
 
     q = encode_query(state.values())
-    return (kind,) + tuple(q[k] for k in names) + extra
+    return (kind,) + tuple(q.get(k, "") for k in names) + extra
 
 
 def _read_only(obj):
@@ -727,6 +731,168 @@ def levels_data(library, state: ViewState, progress=None) -> dict:
         }
 
     return library.profile(key, make)
+
+
+#: points along a section (every 1/120 of its length)
+SECTION_POINTS = 121
+
+
+def section_line(library, state: ViewState):
+    """The section's two ends, (lon0, lat0, lon1, lat1): the state's own line, else across
+    the middle of the region from west to east (of the whole case without a region)."""
+    if state.line:
+        from .inputs import parse_line
+
+        return parse_line(state.line)
+    region = region_of(state)
+    if region.kind != "whole":
+        west, east, south, north = region.bounds()
+    else:
+        case = library.get(state.case)
+        lon, lat = case.grid.lon, case.grid.lat
+        west, east = float(np.nanmin(lon)), float(np.nanmax(lon))
+        south, north = float(np.nanmin(lat)), float(np.nanmax(lat))
+    if east < west:  # across the date line
+        east += 360.0
+    mid = 0.5 * (south + north)
+    return (west, mid, east, mid)
+
+
+def section_data(library, state: ViewState, progress=None) -> dict:
+    """A vertical section along the state's line (:func:`section_line`) at its valid time:
+    at every level, the wind speed, the potential temperature and the imbalance the
+    region's best balance leaves at each point (:func:`balance_core.section.imbalance_field`;
+    the balance of the region's verdict at that level, or where the verdict names none the
+    candidate with the smallest ratio), with the region's verdict at each level (as the
+    levels view gives it). ``progress(done, total)`` after each level."""
+    from balance_core.section import great_circle, imbalance_field
+    from balance_core.thermo import potential_temperature
+
+    sel = resolve(library, state)
+    line = section_line(library, state)
+    case = sel.case
+    lon, lat, dist = great_circle(*line, n=SECTION_POINTS, radius=case.grid.radius)
+    through = levels_data(library, state)
+    by_level = {round(r["level_hpa"], 3): r for r in through["rows"]}
+    levels = sorted((float(p / 100) for p in case.levels_pa), reverse=True)
+    n = len(levels)
+    speed = np.full((n, lon.size), np.nan)
+    theta = np.full((n, lon.size), np.nan)
+    ratio = np.full((n, lon.size), np.nan)
+    verdicts, balances = [], []
+    for k, hpa in enumerate(levels):
+        row = by_level.get(round(hpa, 3), {})
+        verdict = row.get("balance") or "none"
+        balance = _best_balance(row)
+        verdicts.append(verdict)
+        balances.append(balance)
+        li = int(np.argmin(np.abs(case.levels_pa - hpa * 100)))
+        diag = library.diagnostics(state.case, li, sel.time_index, state.smooth_km, state.min_lat)
+        if not diag.no_wind:
+            speed[k] = render.sample_at(case.grid, diag.speed, lon, lat)
+            if balance is not None:
+                try:
+                    ratio[k] = render.sample_at(
+                        case.grid, imbalance_field(diag.budget, balance), lon, lat
+                    )
+                except ValueError:
+                    pass
+        if diag.temperature is not None:
+            theta[k] = render.sample_at(
+                case.grid, potential_temperature(diag.temperature, hpa * 100), lon, lat
+            )
+        if progress is not None:
+            progress(k + 1, n)
+    return {
+        "case": state.case,
+        "time": sel.valid_time,
+        "when": sel.when,
+        "line": line,
+        "lon": lon,
+        "lat": lat,
+        "distance_km": dist,
+        "levels_hpa": np.array(levels),
+        "speed": speed,
+        "theta": theta,
+        "ratio": ratio,
+        "verdicts": verdicts,
+        "balances": balances,
+        "region": state.region_text(),
+    }
+
+
+def _edges(centres):
+    """Cell edges around increasing or decreasing centres: midway between neighbours, half a
+    step beyond the ends."""
+    c = np.asarray(centres, dtype=np.float64)
+    if c.size == 1:
+        return np.array([c[0] - 0.5, c[0] + 0.5])
+    mid = 0.5 * (c[1:] + c[:-1])
+    return np.concatenate([[c[0] - (mid[0] - c[0])], mid, [c[-1] + (c[-1] - mid[-1])]])
+
+
+def section_cells(data: dict, key: str, wind_units: str = "m/s") -> dict:
+    """The section's filled cells for Bokeh quads: ``cells`` (left, right, top, bottom,
+    value, text), the colour ``range``, its ``title`` and the pressure range ``p_min`` to
+    ``p_max`` (hPa). ``key``: "speed" (in ``wind_units``) or "ratio" (% of the pressure
+    gradient, coloured up to 150 %)."""
+    dist, levels = data["distance_km"], data["levels_hpa"]
+    if key == "speed":
+        values, units = wording.wind(data["speed"], wind_units)
+        values = np.asarray(values, dtype=np.float64)
+        finite = values[np.isfinite(values)]
+        rng = (0.0, float(finite.max()) if finite.size and finite.max() > 0 else 1.0)
+        title = f"wind speed ({units})"
+    else:
+        values, units = 100.0 * np.asarray(data["ratio"], dtype=np.float64), "%"
+        rng = (0.0, 150.0)
+        title = "% of the pressure gradient left over"
+    xe, pe = _edges(dist), _edges(levels)
+    pe = np.clip(pe, 1.0, None)
+    n_lev, n_pt = values.shape
+    left = np.tile(xe[:-1], n_lev)
+    right = np.tile(xe[1:], n_lev)
+    top = np.repeat(pe[1:], n_pt)
+    bottom = np.repeat(pe[:-1], n_pt)
+    flat = values.ravel()
+    text = [
+        f"{p:g} hPa, {d:.0f} km: " + ("no data" if not np.isfinite(v) else f"{v:.0f} {units}")
+        for k, p in enumerate(levels)
+        for d, v in zip(dist, values[k])
+    ]
+    return {
+        "cells": dict(left=left, right=right, top=top, bottom=bottom, value=flat, text=text),
+        "range": rng,
+        "title": title,
+        "p_min": float(min(pe)),
+        "p_max": float(max(pe)),
+    }
+
+
+#: potential temperature contours on a section, K (common practice, no source)
+THETA_INTERVAL = 4.0
+
+
+def theta_lines(data: dict) -> tuple[list, list]:
+    """(xs, ys) of the section's potential temperature every :data:`THETA_INTERVAL` K, in
+    distance (km) and pressure (hPa)."""
+    theta = np.asarray(data["theta"], dtype=np.float64)
+    if not np.isfinite(theta).any() or len(data["levels_hpa"]) < 2:
+        return [], []
+    levels = render.interval_levels(np.nanmin(theta), np.nanmax(theta), THETA_INTERVAL)
+    xs, ys, _, _ = render.contour_lines(data["distance_km"], data["levels_hpa"], theta, levels)
+    return xs, ys
+
+
+def _best_balance(row: dict) -> str | None:
+    """The balance a level's section shows the imbalance of: its verdict's where that is a
+    candidate balance, else the candidate with the smallest ratio (None without ratios)."""
+    from balance_core.verdict import CANDIDATES
+
+    if row.get("balance") in CANDIDATES:
+        return row["balance"]
+    ratios = {k: v for k, v in (row.get("ratios") or {}).items() if v is not None}
+    return min(ratios, key=ratios.get) if ratios else None
 
 
 def times_data(library, state: ViewState, progress=None) -> dict:

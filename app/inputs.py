@@ -8,7 +8,9 @@ was typed: an option, a link, a field of the page). The rules are the same every
   -360 to 360 and different (west > east crosses the date line; -180 and 180 are the whole
   circle), -90 <= south < north <= 90;
 * a level is a pressure level from 1 to 1100 hPa, or sea level (``msl``, ``sea level``);
-* a member is an index (0 is the first), ``mean``, or where allowed ``all``.
+* a member is an index (0 is the first), ``mean``, or where allowed ``all``;
+* a section's line is four finite numbers lon0, lat0, lon1, lat1 in degrees: longitudes
+  within -360 to 360, latitudes within -90 to 90, and two different ends.
 """
 
 from __future__ import annotations
@@ -16,7 +18,15 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 
-__all__ = ["InputError", "parse_box", "parse_level", "parse_levels", "parse_member", "SEA_LEVEL"]
+__all__ = [
+    "InputError",
+    "parse_box",
+    "parse_level",
+    "parse_levels",
+    "parse_member",
+    "parse_line",
+    "SEA_LEVEL",
+]
 
 #: The name of sea level where a level is typed.
 SEA_LEVEL = "msl"
@@ -55,6 +65,24 @@ def parse_box(value: str | Sequence) -> list[float]:
             f"the box's south {s:g} and north {n:g} must satisfy -90 <= south < north <= 90"
         )
     return [w, e, s, n]
+
+
+def parse_line(value: str | Sequence) -> tuple[float, float, float, float]:
+    """(lon0, lat0, lon1, lat1) of a section's line typed as "LON0,LAT0,LON1,LAT1"."""
+    if isinstance(value, str):
+        parts = [p for p in value.replace(" ", "").split(",") if p != ""]
+    else:
+        parts = list(value)
+    if len(parts) != 4:
+        raise InputError(f"a line is four numbers lon0,lat0,lon1,lat1; got {value!r}")
+    lon0, lat0, lon1, lat1 = (_number(p, "each end of a line") for p in parts)
+    if not (-360 <= lon0 <= 360 and -360 <= lon1 <= 360):
+        raise InputError("a line's longitudes must lie within -360 to 360")
+    if not (-90 <= lat0 <= 90 and -90 <= lat1 <= 90):
+        raise InputError("a line's latitudes must lie within -90 to 90")
+    if lat0 == lat1 and (lon0 - lon1) % 360 == 0:
+        raise InputError("a line's two ends are the same point")
+    return (lon0, lat0, lon1, lat1)
 
 
 def parse_level(text) -> float | str:

@@ -26,6 +26,7 @@ __all__ = [
     "ViewGeometry",
     "geometry_for",
     "sample",
+    "sample_at",
     "contour_lines",
     "interval_levels",
     "vector_lattice",
@@ -363,16 +364,27 @@ def sample(geom: ViewGeometry, field, nearest: bool = False) -> np.ndarray:
     """The field at the raster points (float32; NaN outside the data and where it is NaN):
     interpolated linearly, or with ``nearest`` the nearest grid point's value (for a field
     of classes, where a value between two means nothing)."""
+    return _at_indices(field, geom.rows, geom.cols, geom.periodic, nearest).astype(np.float32)
+
+
+def sample_at(grid, field, lon, lat) -> np.ndarray:
+    """The field (on ``grid``) at the points (lon, lat), interpolated linearly (float64; NaN
+    outside the data): a section's points or a profile's."""
+    rows, cols, periodic = _index_map(grid, np.asarray(lon, float), np.asarray(lat, float))
+    return _at_indices(field, rows, cols, periodic, False)
+
+
+def _at_indices(field, rows, cols, periodic, nearest) -> np.ndarray:
     f = np.asarray(field, dtype=np.float64)
-    if geom.periodic:
+    if periodic:
         f = np.concatenate([f[:, -1:], f, f[:, :1]], axis=1)
-    ok = np.isfinite(geom.rows) & np.isfinite(geom.cols)
-    r = np.where(ok, geom.rows, 0.0)
-    c = np.where(ok, geom.cols, 0.0)
+    ok = np.isfinite(rows) & np.isfinite(cols)
+    r = np.where(ok, rows, 0.0)
+    c = np.where(ok, cols, 0.0)
     order = 0 if nearest else 1
     out = ndimage.map_coordinates(f, [r, c], order=order, mode="nearest", prefilter=False)
     out[~ok] = np.nan
-    return out.astype(np.float32)
+    return out
 
 
 def interval_levels(zmin, zmax, interval):

@@ -43,6 +43,7 @@ __all__ = [
     "RegionSpec",
     "parse_region",
     "parse_box",
+    "line_text",
     "parse_query",
     "encode_query",
     "SHEET_SCALES",
@@ -93,6 +94,7 @@ URL_PARAMS = (
     "wind_units",
     "preset",
     "sheet",
+    "line",
 )
 #: Longest value taken from a link (a drawn area is about 110 characters).
 MAX_QUERY_VALUE = 400
@@ -390,6 +392,10 @@ class ViewState(param.Parameterized):
         default="synoptic_cyclone", objects=list(PRESETS), doc="the a priori scale sheet's preset"
     )
     sheet = param.Dict(default={}, doc="the scale sheet's edits: scale name -> value")
+    line = param.String(
+        default="",
+        doc="the section's line, lon0,lat0,lon1,lat1 in degrees (empty: across the region)",
+    )
 
     # -- the region ----------------------------------------------------------------
     def set_box(self, west, east, south, north):
@@ -441,11 +447,18 @@ class ViewState(param.Parameterized):
         )
 
 
+def line_text(line) -> str:
+    """A section's line as a link writes it: "lon0,lat0,lon1,lat1" to 4 decimals."""
+    return ",".join(_short(float(v), 4) for v in line)
+
+
 def encode_query(values: dict) -> dict:
     """The link's query parameters (all text) of a state's values."""
     out = {}
     for k in URL_PARAMS:
         v = values.get(k)
+        if k == "line" and not v:
+            continue  # no line of its own: a link says nothing of sections
         if k == "sheet":
             out[k] = ",".join(f"{n}={_short(x, 6)}" for n, x in sorted((v or {}).items()))
         elif k == "level" and v is not None and is_sea_level(v):
@@ -510,6 +523,15 @@ def _parse_one(k, raw, cases, defaults):
         return "" if spec is None else spec.to_text()
     if k == "sheet":
         return _parse_sheet(raw)
+    if k == "line":
+        if raw.strip() == "":
+            return ""
+        from .inputs import InputError, parse_line
+
+        try:
+            return line_text(parse_line(raw))
+        except InputError as exc:
+            raise ValueError(f"{shown} cannot be read ({exc})") from None
     if k == "level":
         if raw.strip().lower() in ("msl", "sea level", "sea_level"):
             return SEA_LEVEL

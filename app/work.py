@@ -32,7 +32,18 @@ log = logging.getLogger(__name__)
 #: the order a lane's waiting jobs are taken in: the ranking before the chart, then a review
 #: room's view (given to the room once the first two are computed), the systems of the
 #: level, the views through the levels and the times, and a loop's frames computed ahead last
-KIND_ORDER = ("box", "chart", "outline", "room", "systems", "life", "levels", "times", "frames")
+KIND_ORDER = (
+    "box",
+    "chart",
+    "outline",
+    "room",
+    "systems",
+    "life",
+    "levels",
+    "times",
+    "section",
+    "frames",
+)
 #: a lane's views through the levels and the times wait while its first screen (the ranking,
 #: the chart) is computed, so they do not slow it down (both hold the interpreter in turn)
 FIRST = ("box", "chart", "outline")

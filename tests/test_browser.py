@@ -287,6 +287,29 @@ def test_printed_the_page_is_two_landscape_pages_and_the_sheet_downloads(server,
     page.close()
 
 
+def test_the_section_tab_draws_a_typed_line_with_the_verdict_at_each_level(server, desk):
+    page, errors = _page(desk, server + OCEAN)
+    _wait_for(page, lambda: "Geostrophic" in _verdict_text(page))
+    open_tab(page, "Section")
+    table = page.locator(".bd-section-verdicts").first
+    table.wait_for(timeout=HANG_MS)
+    assert "500 hPa" in table.inner_text() and "Geostrophic" in table.inner_text()
+    for label, value in (
+        ("From lon", "-50"),
+        ("From lat", "30"),
+        ("To lon", "-30"),
+        ("To lat", "55"),
+    ):
+        box = page.get_by_label(label, exact=True)
+        box.fill(value)
+        box.press("Enter")
+    page.get_by_role("button", name="Show this line").click()
+    _wait_for(page, lambda: "line=-50%2C30%2C-30%2C55" in address(page))
+    _wait_for(page, lambda: page.locator("text=30.0N 50.0W to 55.0N 30.0W").count() > 0)
+    assert errors == [], errors
+    page.close()
+
+
 def test_a_link_reopens_the_view(server, desk):
     link = (
         server + "?case=tropical_cyclone&level=850&time=2038-09-04T06%3A00%3A00Z"

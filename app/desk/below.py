@@ -134,6 +134,7 @@ def levels_table(data) -> str:
 TAB_TITLES = {
     "levels": "Through the levels",
     "times": "Through the times",
+    "section": "Section",
     "sheet": "A priori scale sheet",
     "notes": "Notes on the data",
 }
@@ -148,11 +149,17 @@ class Below(pn.viewable.Viewer):
         super().__init__(state=state, **params)
         self._build_levels()
         self._build_times()
+        self._build_section()
         self._build_sheet()
         self.notes = pn.pane.HTML("", sizing_mode="stretch_width")
         # only the open tab is in the page (the browser lays out less); what a closed tab
         # is given waits until it is opened (see _put)
-        parts = {"levels": self.levels_pane, "times": self.times_pane, "sheet": self.sheet}
+        parts = {
+            "levels": self.levels_pane,
+            "times": self.times_pane,
+            "section": self.section_pane,
+            "sheet": self.sheet,
+        }
         parts["notes"] = self.notes
         self.tabs = pn.Tabs(
             *((TAB_TITLES[k], parts[k]) for k in self.TAB),
@@ -160,8 +167,17 @@ class Below(pn.viewable.Viewer):
             sizing_mode="stretch_width",
             css_classes=["bd-live"],
         )
-        self._tab_of = {id(p): 0 for p in (self.levels_status, self.levels_table)}
-        self._tab_of.update({id(self.times_status): 1, id(self.sheet_out): 2, id(self.notes): 3})
+        tab = self.TAB
+        self._tab_of = {id(p): tab["levels"] for p in (self.levels_status, self.levels_table)}
+        self._tab_of.update(
+            {
+                id(self.times_status): tab["times"],
+                id(self.section_status): tab["section"],
+                id(self.section_verdicts): tab["section"],
+                id(self.sheet_out): tab["sheet"],
+                id(self.notes): tab["notes"],
+            }
+        )
         self._pending: dict = {}
         self.tabs.param.watch(self._opened, "active")
 
@@ -320,6 +336,165 @@ class Below(pn.viewable.Viewer):
         self.times_fig = f
         self.times_plot.objects = [pn.pane.Bokeh(f, sizing_mode="stretch_width")]
         return f
+
+    # -- the section -----------------------------------------------------------------------
+    #: what the section fills: key -> (label, units)
+    SECTION_FIELDS = {
+        "speed": ("wind speed", "wind"),
+        "ratio": ("imbalance the region's balance leaves (% of the pressure gradient)", "%"),
+    }
+
+    def _build_section(self):
+        self.section_fig = None
+        self.section_data = None
+        self.section_status = pn.pane.HTML("", sizing_mode="stretch_width")
+        self.section_plot = pn.Column(sizing_mode="stretch_width")
+        self.section_verdicts = pn.pane.HTML("", sizing_mode="stretch_width")
+        num = dict(width=110, stylesheets=[WIDGET_CSS])
+        self.w_line = [
+            pn.widgets.FloatInput(name=n, value=None, step=1.0, **num)
+            for n in ("From lon", "From lat", "To lon", "To lat")
+        ]
+        self.w_line_go = pn.widgets.Button(label="Show this line", width=150)
+        self.w_line_region = pn.widgets.Button(label="Across the region", width=160)
+        self.w_section_field = pn.widgets.RadioButtonGroup(
+            options={v[0].split(" (")[0]: k for k, v in self.SECTION_FIELDS.items()},
+            value="speed",
+            stylesheets=[WIDGET_CSS],
+        )
+        self.w_line_go.on_click(lambda e: self._line_typed())
+        self.w_line_region.on_click(lambda e: setattr(self.state, "line", ""))
+        self.w_section_field.param.watch(lambda e: self._draw_section(), "value")
+        self.section_pane = pn.Column(
+            pn.pane.HTML(
+                "<div style='font-size:15px'>A vertical section along the great circle between "
+                "two points (degrees; west and south negative), at this valid time: the field "
+                "filled, potential temperature in black contours every 4 K, and the region's "
+                "verdict at each level on the right. Without a line of its own it runs west to "
+                "east across the middle of the region.</div>"
+            ),
+            pn.Row(*self.w_line, self.w_line_go, self.w_line_region),
+            self.w_section_field,
+            self.section_status,
+            self.section_plot,
+            self.section_verdicts,
+            sizing_mode="stretch_width",
+        )
+
+    def _line_typed(self):
+        from ..inputs import InputError, parse_line
+        from ..state import line_text
+
+        values = [w.value for w in self.w_line]
+        try:
+            if any(v is None for v in values):
+                raise InputError("a line needs both ends, each a longitude and a latitude")
+            self.state.line = line_text(parse_line(values))
+        except InputError as exc:
+            self._put(self.section_status, alert(f"Section: {exc}", "error"))
+
+    def _section_figure(self):
+        if self.section_fig is not None:
+            return self.section_fig
+        from bokeh.models import ColorBar, LinearColorMapper
+
+        self.section_src = ColumnDataSource(
+            dict(left=[], right=[], top=[], bottom=[], value=[], text=[])
+        )
+        self.theta_src = ColumnDataSource(dict(xs=[], ys=[]))
+        self.section_mapper = LinearColorMapper(palette=palette("sequential"), nan_color="#d0d0d0")
+        f = figure(
+            height=380,
+            tools="hover",
+            toolbar_location=None,
+            sizing_mode="stretch_width",
+            min_width=700,
+            tooltips=[("", "@text")],
+        )
+        f.quad(
+            "left",
+            "right",
+            "top",
+            "bottom",
+            source=self.section_src,
+            fill_color={"field": "value", "transform": self.section_mapper},
+            # edged in their own colour: no pale seams between neighbouring cells
+            line_color={"field": "value", "transform": self.section_mapper},
+            line_width=0.6,
+        )
+        f.multi_line("xs", "ys", source=self.theta_src, line_color="black", line_width=1.3)
+        self.section_bar = ColorBar(
+            color_mapper=self.section_mapper,
+            width=16,
+            title_text_font_size="15px",
+            major_label_text_font_size="14px",
+        )
+        f.add_layout(self.section_bar, "right")
+        f.xaxis.axis_label = "distance along the line (km)"
+        f.yaxis.axis_label = "pressure (hPa)"
+        style_figure(f)
+        self.section_fig = f
+        self.section_plot.objects = [pn.pane.Bokeh(f, sizing_mode="stretch_width")]
+        return f
+
+    def section_progress(self, done, total):
+        of = "" if total is None else f": {done} of {total} levels done"
+        self._put(
+            self.section_status,
+            alert(f"Computing the section{of}...", "info") if total is None or done < total else "",
+        )
+
+    def show_section(self, data, error=None):
+        if error or not data:
+            self._put(self.section_status, alert(f"Section: {error}", "error"))
+            self._put(self.section_verdicts, "")
+            return
+        self.section_data = data
+        for w, v in zip(self.w_line, data["line"]):
+            w.value = round(float(v), 2)
+        self._put(self.section_status, "")
+        self._draw_section()
+
+    def _draw_section(self):
+        from ..compute import section_cells, theta_lines
+
+        data = self.section_data
+        if data is None:
+            return
+        f = self._section_figure()
+        key = self.w_section_field.value
+        cells = section_cells(data, key, self.state.wind_units)
+        self.section_src.data = cells["cells"]
+        self.section_mapper.low, self.section_mapper.high = cells["range"]
+        self.section_bar.title = cells["title"]
+        xs, ys = theta_lines(data)
+        self.theta_src.data = dict(xs=xs, ys=ys)
+        levels = data["levels_hpa"]
+        f.y_range.start, f.y_range.end = float(cells["p_max"]), float(cells["p_min"])
+        f.x_range.start, f.x_range.end = 0.0, float(data["distance_km"][-1])
+        lon0, lat0, lon1, lat1 = data["line"]
+        along = (
+            f"{wording.lat(lat0)} {wording.lon(lon0)} to {wording.lat(lat1)} {wording.lon(lon1)}"
+        )
+        f.title.text = f"{along} \u00b7 {data['when']}"
+        rows = "".join(
+            f"<tr><th scope='row' style='text-align:right;padding:2px 8px'>{p:g} hPa</th>"
+            f"<td style='padding:2px 8px'>{esc(wording.balance_name(v))}</td>"
+            f"<td style='padding:2px 8px;color:{MUTED}'>"
+            + (
+                f"section shows what {esc(wording.balance_name(b))} leaves"
+                if b and key == "ratio"
+                else ""
+            )
+            + "</td></tr>"
+            for p, v, b in zip(levels, data["verdicts"], data["balances"])
+        )
+        self._put(
+            self.section_verdicts,
+            f"<div style='font-size:15px;color:{INK}'><b>The region's verdict at each level</b>"
+            f" ({esc(data['region'])}); the section runs from {esc(along)}"
+            f"<table class='bd-section-verdicts'>{rows}</table></div>",
+        )
 
     def times_progress(self, done, total):
         of = "" if total is None else f": {done} of {total} done"

@@ -257,7 +257,9 @@ class Page(pn.viewable.Viewer):
         """The page is in the browser: compute everything it shows (what :meth:`prime`
         started is not asked for again)."""
         self.live = True
-        views = ("systems", "levels", "times") if getattr(self, "_primed", False) else None
+        views = (
+            ("systems", "levels", "times", "section") if getattr(self, "_primed", False) else None
+        )
         if self.doc is not None and self.doc.session_context is not None:
             self._in_document(partial(self._start_views, views))
         else:
@@ -344,7 +346,7 @@ class Page(pn.viewable.Viewer):
     def refresh(self, names=None, views=None):
         """Recompute what the changed parameters affect (of ``views``: all by default)."""
         names = set(names or URL_PARAMS)
-        views = set(views or ("box", "chart", "systems", "levels", "times"))
+        views = set(views or ("box", "chart", "systems", "levels", "times", "section"))
         snap = self.state.copy()
         self._step += 1  # one more change followed (the mark is written below, or by a view)
         self.settle_mark.object = self._mark_html()
@@ -390,11 +392,11 @@ class Page(pn.viewable.Viewer):
                 lambda: compute.systems_data(self.library, snap, self.thresholds),
                 self._show_systems,
             )
-        if names & BOX:
-            # the views through the levels and the times are computed for an open tab only;
-            # a closed one is brought up to date when it is opened
-            for kind in ("levels", "times"):
-                if kind not in views:
+        if names & BOX or "line" in names:
+            # the views through the levels and the times, and the section, are computed for
+            # an open tab only; a closed one is brought up to date when it is opened
+            for kind in ("levels", "times", "section"):
+                if kind not in views or (kind != "section" and not names & BOX):
                     continue
                 if self.below.is_open(kind):
                     self._submit_below(kind, snap)
@@ -402,6 +404,8 @@ class Page(pn.viewable.Viewer):
                     self._stale.add(kind)
         if names & UNITS and not (names & BOX and "box" in views) and self.report:
             self.evidence.show(self.report)
+        if names & UNITS and self.below.section_data is not None:
+            self.below._draw_section()  # the section's speeds in the new units
         if names & UNITS and not names & SYSTEMS and self.systems.data is not None:
             self.systems.show(self.systems.data)
         if names & {"preset", "sheet"} and not names & BOX:
@@ -418,6 +422,15 @@ class Page(pn.viewable.Viewer):
                     self.library, snap, progress=self._progress(self.below.levels_progress)
                 ),
                 self.below.show_levels,
+            )
+        elif kind == "section":
+            self.below.section_progress(0, None)
+            self._submit(
+                "section",
+                lambda: compute.section_data(
+                    self.library, snap, progress=self._progress(self.below.section_progress)
+                ),
+                self.below.show_section,
             )
         else:
             self.below.times_progress(0, None)

@@ -1,0 +1,115 @@
+"""Vertical sections: the great circle between two points, the imbalance a balance leaves at
+each point, and a section through the analytic jet of testkit/makedata.py, whose speed at
+every point and level is known in closed form (testkit.makedata.truth, evaluated here at the
+section's points: a truth the code under test does not compute)."""
+
+import math
+
+import numpy as np
+import pytest
+
+from app import compute
+from app.inputs import InputError, parse_line
+from app.library import CaseLibrary
+from app.state import ViewState, parse_query
+from balance_core import constants as C
+from balance_core.section import great_circle, imbalance_field
+from testkit.makedata import latlon_dataset, truth
+
+
+def _haversine_km(lon0, lat0, lon1, lat1, radius=C.EARTH_RADIUS):
+    """The great-circle distance by the haversine formula (Sinnott 1984, Virtues of the
+    haversine, Sky and Telescope 68, 159), written here independently of pyproj."""
+    p0, p1 = math.radians(lat0), math.radians(lat1)
+    dp, dl = p1 - p0, math.radians(lon1 - lon0)
+    h = math.sin(dp / 2) ** 2 + math.cos(p0) * math.cos(p1) * math.sin(dl / 2) ** 2
+    return 2 * radius * math.asin(math.sqrt(h)) / 1e3
+
+
+@pytest.mark.parametrize(
+    "line",
+    [(-60.0, 40.0, 0.0, 50.0), (170.0, 10.0, -170.0, -10.0), (0.0, 80.0, 180.0, 80.0)],
+    ids=["mid-latitudes", "across the equator and the date line", "over the pole"],
+)
+def test_the_great_circle_runs_end_to_end_at_even_steps(line):
+    lon, lat, dist = great_circle(*line, n=61)
+    assert (lon[0], lat[0]) == pytest.approx(((line[0] + 180) % 360 - 180, line[1]))
+    assert (lon[-1], lat[-1]) == pytest.approx(((line[2] + 180) % 360 - 180, line[3]))
+    assert dist[-1] == pytest.approx(_haversine_km(*line), rel=1e-9)
+    steps = [_haversine_km(lon[i], lat[i], lon[i + 1], lat[i + 1]) for i in range(60)]
+    assert np.allclose(steps, dist[-1] / 60, rtol=1e-6)
+    if line[1] == line[3] == 80.0:  # half way round at 80N: the path crosses the pole
+        assert lat.max() == pytest.approx(90.0, abs=0.5)
+
+
+def test_a_line_must_have_two_different_ends_typed_as_four_numbers():
+    assert parse_line("-60, 40, 0, 50") == (-60.0, 40.0, 0.0, 50.0)
+    for bad in ("1,2,3", "0,0,360,0", "0,95,1,1", "a,1,2,3"):
+        with pytest.raises(InputError):
+            parse_line(bad)
+    values, problems = parse_query({"line": "0,95,1,1"})
+    assert "line" not in values and "the link's line" in problems[0]
+    with pytest.raises(ValueError):
+        great_circle(10, 10, 10, 10)
+
+
+@pytest.fixture(scope="module")
+def jet(tmp_path_factory):
+    lat = np.arange(80.0, 9.9, -1.0)
+    lon = np.arange(-60.0, 20.1, 1.0)
+    ds, _ = latlon_dataset(lat, lon)
+    path = tmp_path_factory.mktemp("jet") / "jet.nc"
+    ds.to_netcdf(path)
+    return CaseLibrary([str(path)])
+
+
+def test_a_section_through_the_analytic_jet_has_its_core_at_the_right_level(jet):
+    st = ViewState(case="jet", level=500.0, line="-30,20,-30,75")
+    st.time = jet.get("jet").times.astype("datetime64[s]").astype(str)[1] + "Z"
+    data = compute.section_data(jet, st)
+    hours = 6.0  # the second valid time
+    levels = data["levels_hpa"]
+    speed = np.empty_like(data["speed"])
+    for k, p in enumerate(levels):
+        _, u, v, _, _ = truth(data["lat"], data["lon"], p, hours)
+        speed[k] = np.hypot(u, v)
+    k_true, i_true = np.unravel_index(np.nanargmax(speed), speed.shape)
+    k_got, i_got = np.unravel_index(np.nanargmax(data["speed"]), speed.shape)
+    assert levels[k_got] == levels[k_true] == 300.0
+    assert abs(data["distance_km"][i_got] - data["distance_km"][i_true]) < 150
+    assert np.nanmax(data["speed"]) == pytest.approx(np.nanmax(speed), rel=0.02)
+    # potential temperature rises upward (a stable column) and the region's balance leaves
+    # little over where the flow is geostrophic by construction
+    assert np.all(np.diff(np.nanmean(data["theta"], axis=1)) > 0)
+    assert data["verdicts"][levels.tolist().index(500.0)] == "geostrophic"
+    assert np.nanmedian(data["ratio"][levels.tolist().index(500.0)]) < 0.3
+
+
+def test_the_imbalance_field_says_no_where_a_wind_is_half_again_the_geostrophic(jet):
+    import dataclasses
+
+    from balance_core.budget import momentum_budget
+
+    diag = jet.diagnostics("jet", 3, 1)
+    ok = np.isfinite(imbalance_field(diag.budget, "geostrophic"))
+    assert np.median(imbalance_field(diag.budget, "geostrophic")[ok]) < 0.3
+    case = jet.get("jet")
+    f, it, ik = case.fields(1, 3)
+    faster = dataclasses.replace(f, u=1.5 * f.u, v=1.5 * f.v)
+    b = momentum_budget(case.grid, faster, it, ik)
+    ratio = imbalance_field(b, "geostrophic")
+    assert np.median(ratio[np.isfinite(ratio)]) > 0.3
+    with pytest.raises(KeyError):
+        imbalance_field(diag.budget, "none")
+
+
+def test_the_section_cells_cover_the_levels_and_the_line(jet):
+    st = ViewState(case="jet", level=500.0, line="-30,20,-30,75")
+    data = compute.section_data(jet, st)
+    cells = compute.section_cells(data, "speed", "kt")
+    n = len(data["levels_hpa"]) * len(data["distance_km"])
+    assert len(cells["cells"]["value"]) == n and cells["title"] == "wind speed (kt)"
+    assert cells["p_min"] < 300 and cells["p_max"] > 1000
+    assert max(cells["cells"]["right"]) == pytest.approx(data["distance_km"][-1], rel=0.01)
+    xs, ys = compute.theta_lines(data)
+    assert xs and all(np.nanmin(y) >= 250 for y in ys)
