@@ -49,8 +49,10 @@ def imbalance_field(budget: Budget, balance: str) -> np.ndarray:
     candidate balance, ValueError where the data lack a term it needs."""
     parts = CANDIDATES[balance]
     traj = budget.derived.get("centripetal_trajectory")
-    use_traj = traj is not None and traj.available
-    terms = [traj if (n == "centripetal" and use_traj) else budget[n] for n in parts]
+    terms = [
+        traj if (n == "centripetal" and traj is not None and traj.available) else budget[n]
+        for n in parts
+    ]
     missing = [t.name for t in terms if not t.available]
     if missing:
         raise ValueError(f"the data give no {', '.join(missing)} term")
