@@ -167,6 +167,32 @@ def server_side(library, case_name, boxes, level_cycle, repeat):
     return _median_ms(box_times), _median_ms(level_times)
 
 
+def section_figures(library, case_name, repeat):
+    """Median ms of a section along a new line: ``cold`` with nothing computed (every
+    level's diagnostics and the region's verdict through the levels made for it), ``warm``
+    once the levels have been computed for the region (as after the levels view)."""
+    from app import compute
+    from app.state import ViewState
+
+    st = ViewState(case=case_name, level=500.0, time="")
+    st.set_box(-20, 20, 35, 60)
+    lines = ["-30,30,10,65", "-25,40,15,50", "-10,30,-10,70", "-40,45,20,45"]
+    cold, warm = [], []
+    for i in range(repeat):
+        library._diag._data.clear()
+        library._profiles._data.clear()
+        gc.collect()
+        st.line = lines[i % len(lines)]
+        t0 = time.perf_counter()
+        compute.section_data(library, st)
+        cold.append(time.perf_counter() - t0)
+        st.line = lines[(i + 1) % len(lines)]
+        t0 = time.perf_counter()
+        compute.section_data(library, st)
+        warm.append(time.perf_counter() - t0)
+    return _median_ms(cold), _median_ms(warm)
+
+
 def browser_figures(repeat):
     """Figures from a real browser (headless Chromium), timed by the page's own clock.
 
@@ -349,6 +375,7 @@ def main(argv=None):
         [500, 850, 250, 1000, 700, 300, 925],
         args.repeat,
     )
+    sec_cold, sec_warm = section_figures(glib, "global_quarter_degree", max(3, args.repeat // 2))
     br = None if args.no_browser else browser_figures(args.repeat)
     print(
         f"sample case: ocean_cyclone ({lib.get('ocean_cyclone').grid.shape}); synthetic "
@@ -373,6 +400,10 @@ def main(argv=None):
             f"  second browser session of the same case: {br['second_session_mb']:+.1f} MB "
             "resident (goal < 20)"
         )
+    print(f"  section, global 0.25 deg, cold:   {sec_cold:8.1f} ms   (goal < 1000)")
+    print(f"  ... after the levels view:        {sec_warm:8.1f} ms")
+    print(f"figure section/global_quarter_degree {sec_cold:.1f}")
+    print(f"figure section_after_levels/global_quarter_degree {sec_warm:.1f}")
     print(f"figure box_change/sample {box_s:.1f}")
     print(f"figure box_change/global_quarter_degree {box_g:.1f}")
     print(f"figure level_change/sample {lev_s:.1f}")
