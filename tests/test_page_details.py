@@ -207,7 +207,7 @@ def test_all_text_of_the_page_has_a_contrast_of_at_least_4_5(library):
     st.set_box(-52, -28, 38, 56)
     page = Page(library, st)
     page.start()
-    for tab in range(4):  # a closed tab's text is written when it is opened
+    for tab in range(len(page.below.TAB)):  # a closed tab's text is written when opened
         page.below.tabs.active = tab
     parts = {
         "header": page.header,
@@ -217,6 +217,7 @@ def test_all_text_of_the_page_has_a_contrast_of_at_least_4_5(library):
         "levels": page.below.levels_table,
         "sheet": page.below.sheet_out,
         "data notes": page.below.notes,
+        "section verdicts": page.below.section_verdicts,
     }
     for name, pane in parts.items():
         markup = pane.object if isinstance(pane.object, str) else ""

@@ -352,7 +352,7 @@ class Below(pn.viewable.Viewer):
         self.section_verdicts = pn.pane.HTML("", sizing_mode="stretch_width")
         num = dict(width=110, stylesheets=[WIDGET_CSS])
         self.w_line = [
-            pn.widgets.FloatInput(name=n, value=None, step=1.0, **num)
+            pn.widgets.FloatInput(label=n, value=None, step=1.0, **num)
             for n in ("From lon", "From lat", "To lon", "To lat")
         ]
         self.w_line_go = pn.widgets.Button(label="Show this line", width=150)
