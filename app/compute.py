@@ -754,6 +754,9 @@ def section_line(library, state: ViewState):
         south, north = float(np.nanmin(lat)), float(np.nanmax(lat))
     if east < west:  # across the date line
         east += 360.0
+    # a great circle between two points is the shorter way round: a span of half the globe
+    # or more (a global case) would run the other way, so the line spans at most 179 degrees
+    east = min(east, west + 179.0)
     mid = 0.5 * (south + north)
     return (west, mid, east, mid)
 

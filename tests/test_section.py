@@ -113,3 +113,20 @@ def test_the_section_cells_cover_the_levels_and_the_line(jet):
     assert max(cells["cells"]["right"]) == pytest.approx(data["distance_km"][-1], rel=0.01)
     xs, ys = compute.theta_lines(data)
     assert xs and all(np.nanmin(y) >= 250 for y in ys)
+
+
+def test_a_global_case_without_a_region_gets_a_line_the_short_way_round(tmp_path):
+    """On a whole global case the default line runs west to east across the middle; a span
+    of 360 degrees would make the great circle from 0 to 359.75 E a quarter-degree step
+    westward: the line is kept under half the globe."""
+    lat = np.arange(90.0, -90.1, -10.0)
+    lon = np.arange(0.0, 360.0, 10.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ds, _ = latlon_dataset(lat, lon)
+    path = tmp_path / "globe.nc"
+    ds.to_netcdf(path)
+    lib = CaseLibrary([str(path)])
+    line = compute.section_line(lib, ViewState(case="globe", level=500.0))
+    assert 170.0 <= line[2] - line[0] < 180.0 and line[1] == line[3] == 0.0
+    _, _, dist = great_circle(*line)
+    assert dist[-1] > 18000.0  # most of the way round the equator, not a short step
