@@ -47,15 +47,23 @@ def _number(text, what: str) -> float:
     return value
 
 
-def parse_box(value: str | Sequence) -> list[float]:
-    """[west, east, south, north] of a box typed as "W,E,S,N" or given as four values."""
+def _four_numbers(value: str | Sequence, what: str, each: str) -> list[float]:
+    """Four numbers typed as "A,B,C,D" or given as four values (``what``: how they are
+    named in the sentence, ``each``: how one of them is)."""
     if isinstance(value, str):
         parts = [p for p in value.replace(" ", "").split(",") if p != ""]
     else:
         parts = list(value)
     if len(parts) != 4:
-        raise InputError(f"a box is four numbers west,east,south,north; got {value!r}")
-    w, e, s, n = (_number(p, "each edge of a box") for p in parts)
+        raise InputError(f"{what}; got {value!r}")
+    return [_number(p, each) for p in parts]
+
+
+def parse_box(value: str | Sequence) -> list[float]:
+    """[west, east, south, north] of a box typed as "W,E,S,N" or given as four values."""
+    w, e, s, n = _four_numbers(
+        value, "a box is four numbers west,east,south,north", "each edge of a box"
+    )
     if not (-360 <= w <= 360 and -360 <= e <= 360):
         raise InputError(f"the box's west {w:g} and east {e:g} must lie within -360 to 360")
     if w == e:
@@ -69,13 +77,9 @@ def parse_box(value: str | Sequence) -> list[float]:
 
 def parse_line(value: str | Sequence) -> tuple[float, float, float, float]:
     """(lon0, lat0, lon1, lat1) of a section's line typed as "LON0,LAT0,LON1,LAT1"."""
-    if isinstance(value, str):
-        parts = [p for p in value.replace(" ", "").split(",") if p != ""]
-    else:
-        parts = list(value)
-    if len(parts) != 4:
-        raise InputError(f"a line is four numbers lon0,lat0,lon1,lat1; got {value!r}")
-    lon0, lat0, lon1, lat1 = (_number(p, "each end of a line") for p in parts)
+    lon0, lat0, lon1, lat1 = _four_numbers(
+        value, "a line is four numbers lon0,lat0,lon1,lat1", "each end of a line"
+    )
     if not (-360 <= lon0 <= 360 and -360 <= lon1 <= 360):
         raise InputError("a line's longitudes must lie within -360 to 360")
     if not (-90 <= lat0 <= 90 and -90 <= lat1 <= 90):

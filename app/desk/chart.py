@@ -143,6 +143,22 @@ def _hover_formatters(src, units, classes=False):
     return out
 
 
+def _colour_bar(mapper, *, visible=False, **kw) -> ColorBar:
+    """A colour bar of the chart's mapper in the page's look; ``kw``: its ticker and labels."""
+    return ColorBar(
+        color_mapper=mapper,
+        width=18,
+        title="",
+        title_text_font_size="16px",
+        visible=visible,
+        title_text_color=INK,
+        major_label_text_color=INK,
+        major_label_text_font_size="15px",
+        location=(0, 0),
+        **kw,
+    )
+
+
 def one_line(lines) -> list:
     """Many lines as one, a NaN between each two (Bokeh draws a NaN as a gap): a column of
     one array. Bokeh sends every array of a column as a buffer of its own, and each costs
@@ -461,41 +477,15 @@ class Chart(pn.viewable.Viewer):
         fmt = CustomJSTickFormatter(
             code="return Math.abs(tick) >= 1000 ? tick.toFixed(0) : +tick.toPrecision(3);"
         )
-        self.colorbar = ColorBar(
-            color_mapper=self.mapper,
-            width=18,
-            title="",
-            title_text_font_size="16px",
-            title_text_color=INK,
-            major_label_text_font_size="15px",
-            location=(0, 0),
-            major_label_text_color=INK,
-            formatter=fmt,
-        )
-        self.colorbar_log = ColorBar(
-            color_mapper=self.mapper,
-            width=18,
-            title="",
-            title_text_font_size="16px",
-            visible=False,
-            title_text_color=INK,
-            major_label_text_color=INK,
-            major_label_text_font_size="15px",
-            location=(0, 0),
+        self.colorbar = _colour_bar(self.mapper, formatter=fmt, visible=True)
+        self.colorbar_log = _colour_bar(
+            self.mapper,
             ticker=SingleIntervalTicker(interval=1),
             formatter=CustomJSTickFormatter(code="return '1e' + Math.round(tick);"),
         )
         # the map of which balance holds where: one band per verdict class, named
-        self.colorbar_classes = ColorBar(
-            color_mapper=self.mapper,
-            width=18,
-            title="",
-            title_text_font_size="16px",
-            visible=False,
-            title_text_color=INK,
-            major_label_text_color=INK,
-            major_label_text_font_size="15px",
-            location=(0, 0),
+        self.colorbar_classes = _colour_bar(
+            self.mapper,
             ticker=FixedTicker(ticks=list(range(len(CLASS_NAMES)))),
             formatter=CustomJSTickFormatter(
                 code="return names[Math.round(tick)] || '';", args={"names": CLASS_NAMES}
