@@ -245,37 +245,18 @@ def plan_tasks(
     return tasks
 
 
-#: rows kept beyond a task's regions when it computes on a band of the grid; the deepest
-#: chain of differences in the core (the gradient wind's curvature, the derivatives of
-#: the geostrophic wind) reaches two rows, so eight leave room
-HALO_ROWS = 8
-
-
 def _band(case, regions):
-    """(j0, j1): the rows of the case the regions cover, and those the flow's length scale
-    reads (:func:`balance_core.scales.flow_rows`), with HALO_ROWS beyond; None to compute
-    the whole grid (the band would be most of it, or a box is not valid)."""
-    import numpy as np
-
+    """(j0, j1): the rows of the case the regions' boxes need
+    (:func:`balance_core.io.analysis.band_rows`); None to compute the whole grid (the band
+    would be most of it, or a box is not valid: analyze_case says what is wrong with it)."""
+    from balance_core.io.analysis import band_rows
     from balance_core.region import Region
-    from balance_core.scales import flow_rows
 
-    ny = case.grid.shape[0]
-    rows = np.zeros(ny, dtype=bool)
     try:
-        for _, box in regions:
-            inside = Region.box(*box).mask(case.grid)
-            rows |= inside.any(axis=1)
-            span = flow_rows(case.grid, inside)  # the rows the flow's length scale reads
-            if span is not None:
-                rows[span[0] : span[1]] = True
+        masks = [Region.box(*box).mask(case.grid) for _, box in regions]
     except ValueError:
-        return None  # analyze_case says what is wrong with the box
-    hit = np.nonzero(rows)[0]
-    if hit.size == 0:
         return None
-    j0, j1 = max(0, int(hit[0]) - HALO_ROWS), min(ny, int(hit[-1]) + 1 + HALO_ROWS)
-    return None if j1 - j0 > 0.75 * ny else (j0, j1)
+    return band_rows(case.grid, masks)
 
 
 def run_task(task: Task) -> dict:

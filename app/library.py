@@ -145,7 +145,7 @@ class CaseLibrary:
     ):
         """LevelDiagnostics, computed once per key for every session (``level_index``
         :data:`SEA_LEVEL_INDEX`: the surface budget at sea level)."""
-        key = (name, int(level_index), int(time_index), float(smooth_km or 0), float(min_lat))
+        key = self._diag_key(name, level_index, time_index, smooth_km, min_lat)
 
         def make():
             case = self.case_for(name, min_lat)
@@ -154,6 +154,22 @@ class CaseLibrary:
             return diagnostics_for(case, level_index, time_index, smooth_km or None)
 
         return self._diag.get_or_make(key, make)
+
+    def diagnostics_ready(
+        self,
+        name: str,
+        level_index: int,
+        time_index: int,
+        smooth_km: float = 0.0,
+        min_lat: float = 10.0,
+    ):
+        """The LevelDiagnostics of :meth:`diagnostics` if they were made already, else None
+        (never makes them)."""
+        return self._diag.peek(self._diag_key(name, level_index, time_index, smooth_km, min_lat))
+
+    @staticmethod
+    def _diag_key(name, level_index, time_index, smooth_km, min_lat):
+        return (name, int(level_index), int(time_index), float(smooth_km or 0), float(min_lat))
 
     def case_for(self, name: str, min_lat: float = 10.0):
         """The case with its grid's tropical mask at ``min_lat`` (made once per value)."""
@@ -168,6 +184,10 @@ class CaseLibrary:
     def profile(self, key, make):
         """A shared cache for per-box summaries (through the levels, through the times)."""
         return self._profiles.get_or_make(key, make)
+
+    def profile_ready(self, key):
+        """The shared summary of ``key`` if it was made already, else None."""
+        return self._profiles.peek(key)
 
     def view_ready(self, key):
         """The shared view of ``key`` if it was computed already, else None."""

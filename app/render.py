@@ -374,6 +374,11 @@ def sample_at(grid, field, lon, lat) -> np.ndarray:
     return _at_indices(field, rows, cols, periodic, False)
 
 
+def rows_at(grid, lon, lat) -> np.ndarray:
+    """The fractional row in ``grid`` of each point (lon, lat); NaN outside the data."""
+    return _index_map(grid, np.asarray(lon, float), np.asarray(lat, float))[0]
+
+
 def _at_indices(field, rows, cols, periodic, nearest) -> np.ndarray:
     f = np.asarray(field, dtype=np.float64)
     if periodic:

@@ -211,7 +211,8 @@ def _gradient_wind_of(grid: Grid, gx, gy) -> GradientWind:
     no_root = disc < 0
     with np.errstate(invalid="ignore", divide="ignore"):
         q = -(f + s * np.sqrt(np.where(no_root, np.nan, disc))) / 2.0
-        regular = np.where(flat, 0.0, dphidn / q)
+        # q = 0 only where f = 0 and the contours are straight: no finite root, no balance
+        regular = np.where(flat, 0.0, np.where(q != 0, dphidn / q, np.nan))
         anomalous = np.where(np.abs(curv) > 0, q / curv, np.nan)
         radius = 1.0 / curv
     tx, ty = -s * ny, s * nx

@@ -130,3 +130,67 @@ def test_a_global_case_without_a_region_gets_a_line_the_short_way_round(tmp_path
     assert 170.0 <= line[2] - line[0] < 180.0 and line[1] == line[3] == 0.0
     _, _, dist = great_circle(*line)
     assert dist[-1] > 18000.0  # most of the way round the equator, not a short step
+
+
+@pytest.fixture(scope="module")
+def globe(tmp_path_factory):
+    """The analytic flow on a whole 2.5-degree globe (poles included)."""
+    lat = np.arange(90.0, -90.1, -2.5)
+    lon = np.arange(0.0, 360.0, 2.5)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ds, _ = latlon_dataset(lat, lon)
+    path = tmp_path_factory.mktemp("globe") / "globe.nc"
+    ds.to_netcdf(path)
+    return str(path)
+
+
+@pytest.mark.parametrize(
+    "box, line",
+    [
+        ((-40.0, 0.0, 35.0, 55.0), "-35,40,-5,50"),
+        ((160.0, -160.0, 30.0, 50.0), "165,35,-165,45"),  # across the date line
+        ((-40.0, 0.0, 60.0, 80.0), "-20,65,160,70"),  # over the pole to the far side
+    ],
+    ids=["mid-latitudes", "across the date line", "over the pole"],
+)
+def test_a_section_on_a_band_of_rows_is_the_whole_grids(globe, box, line):
+    """A level the library has not computed is computed on the band of rows the section and
+    its region need (compute._SectionLevels); the same section with every level computed on
+    the whole grid first must give the same verdicts and levels table, bit for bit, and the
+    same values along the line to rounding (a point's row in the band is its row in the
+    whole grid less the band's first, so its interpolation weights differ in the last bit)."""
+    st = ViewState(case="globe", level=500.0, line=line)
+    st.set_box(*box)
+    cold = CaseLibrary([globe])
+    at = compute._SectionLevels(cold, st, 0, *great_circle(*parse_line(line))[:2])
+    ny = cold.get("globe").grid.shape[0]
+    assert at.band_case is not None and at.band_case.grid.shape[0] < ny  # a band, not all
+    banded = compute.section_data(cold, st)
+    assert all(cold.diagnostics_ready("globe", k, 0) is None for k in range(6))
+    warm = CaseLibrary([globe])
+    for k in range(warm.get("globe").levels_pa.size):
+        warm.diagnostics("globe", k, 0)
+    whole = compute.section_data(warm, st)
+    for key in ("speed", "theta", "ratio"):
+        assert np.array_equal(np.isnan(banded[key]), np.isnan(whole[key])), key
+        np.testing.assert_allclose(banded[key], whole[key], rtol=1e-12, atol=0, err_msg=key)
+        assert np.isfinite(banded[key]).mean() > 0.5, key
+    assert banded["verdicts"] == whole["verdicts"] and banded["balances"] == whole["balances"]
+    a = compute.levels_data(cold, st)["rows"]
+    b = compute.levels_data(warm, st)["rows"]
+    assert a == b
+
+
+def test_a_section_of_the_whole_case_or_a_smoothed_flow_is_computed_on_the_whole_grid(globe):
+    """No band where it cannot give the whole grid's numbers or would save nothing."""
+    lib = CaseLibrary([globe])
+    lon, lat, _ = great_circle(-35, 40, -5, 50)
+    whole = ViewState(case="globe", level=500.0, line="-35,40,-5,50")
+    assert compute._SectionLevels(lib, whole, 0, lon, lat).band_case is None
+    smoothed = ViewState(case="globe", level=500.0, line="-35,40,-5,50", smooth_km=300.0)
+    smoothed.set_box(-40.0, 0.0, 35.0, 55.0)
+    assert compute._SectionLevels(lib, smoothed, 0, lon, lat).band_case is None
+    pole_to_pole = ViewState(case="globe", level=500.0, line="0,-80,0,80")
+    pole_to_pole.set_box(-40.0, 0.0, 35.0, 55.0)
+    lon, lat, _ = great_circle(0, -80, 0, 80)
+    assert compute._SectionLevels(lib, pole_to_pole, 0, lon, lat).band_case is None

@@ -241,3 +241,20 @@ def test_gradient_wind_tends_to_geostrophic_for_straight_contours():
     inner = (slice(2, -2), slice(2, -2))
     # small curvature remains: parallels curve on the sphere (tan(phi)/a)
     assert np.allclose(gw.u[inner], ug[inner], rtol=2e-2)
+
+
+def test_straight_contours_on_the_equator_have_no_gradient_wind():
+    """Where f = 0 and the contours are straight (meridians crossing the equator) the
+    gradient-wind equation f V + K V^2 = -dPhi/dn has no root: the speed is NaN, quietly
+    (Holton and Hakim 2013, ch. 3: neither the geostrophic nor the cyclostrophic limit holds)."""
+    g = Grid.latlon(np.linspace(-10, 10, 41), np.linspace(0, 20, 81))
+    z = 5500 + 1e-4 * g.radius * np.deg2rad(g.lon)  # height rising eastward: meridians
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        gw = gradient_wind(g, z)
+    on = g.lat[:, 0] == 0.0
+    assert on.sum() == 1
+    inner = (on, slice(2, -2))  # the edge columns' one-sided differences leave a trace of curvature
+    assert np.isnan(gw.speed[inner]).all() and np.isnan(gw.u[inner]).all()
+    off = np.abs(g.lat[:, 0]) >= 2.0
+    assert np.isfinite(gw.speed[off][:, 2:-2]).all()

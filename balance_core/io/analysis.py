@@ -23,6 +23,8 @@ __all__ = [
     "sea_level_diagnostics_for",
     "analyze_systems",
     "track_systems",
+    "band_rows",
+    "HALO_ROWS",
     "SEA_LEVEL",
     "is_sea_level",
     "level_words",
@@ -34,6 +36,40 @@ _SEA_LEVEL_WORDS = {"msl", "sea level", "sea_level", "sealevel", "mean sea level
 #: A pressure level with more than this share of its points below the ground says so, and
 #: points to sea level for the systems near the ground (the project's own choice).
 BELOW_GROUND_SHARE = 0.1
+
+
+#: rows kept beyond what a computation on a band of the grid reduces: the deepest chain of
+#: differences in the core (the gradient wind's curvature, the derivatives of the
+#: geostrophic wind) reaches two rows, so eight leave room
+HALO_ROWS = 8
+
+
+def band_rows(grid, masks, rows=None, most: float = 0.75):
+    """(j0, j1): the band of rows a computation for regions needs, so that it can run on
+    ``case.rows(j0, j1)`` (:meth:`Case.rows`) and give the whole grid's numbers, bit for bit.
+
+    The band holds the rows the regions cover (``masks``, boolean on the grid), the rows
+    their flow's length scale reads (:func:`balance_core.scales.flow_rows`), any other
+    ``rows`` the caller samples (indices), and :data:`HALO_ROWS` beyond. None to compute the
+    whole grid: no row is needed, or the band would be over ``most`` of the grid.
+    """
+    from ..scales import flow_rows
+
+    ny = grid.shape[0]
+    need = np.zeros(ny, dtype=bool)
+    for inside in masks:
+        need |= np.asarray(inside, dtype=bool).any(axis=1)
+        span = flow_rows(grid, inside)
+        if span is not None:
+            need[span[0] : span[1]] = True
+    if rows is not None:
+        r = np.asarray(rows, dtype=np.int64)
+        need[r[(r >= 0) & (r < ny)]] = True
+    hit = np.nonzero(need)[0]
+    if hit.size == 0:
+        return None
+    j0, j1 = max(0, int(hit[0]) - HALO_ROWS), min(ny, int(hit[-1]) + 1 + HALO_ROWS)
+    return None if j1 - j0 > most * ny else (j0, j1)
 
 
 def is_sea_level(level) -> bool:
