@@ -270,10 +270,16 @@ def test_a_session_a_client_makes_itself_is_refused():
         assert loop.run_sync(lambda: connect(own), timeout=120) == []  # closed, nothing sent
 
         async def real():
+            import asyncio
+
             page = WirePage(url)
-            await page.open()  # the page's own token: a document comes back
-            page.close()
-            return page.widgets
+            await page.open()  # the page's own token: a document comes back, and its widgets
+            reading = asyncio.ensure_future(page.run())  # (with it, or just after: a page
+            try:  # built when its session connects sends its parts after the document)
+                return await page.until(lambda: page.widgets, what="the page's widgets")
+            finally:
+                page.close()
+                await reading
 
         assert loop.run_sync(real, timeout=180)
         with open(proc.log_path) as fh:
