@@ -744,12 +744,25 @@ SECTION_POINTS = 121
 
 
 def section_line(library, state: ViewState):
-    """The section's two ends, (lon0, lat0, lon1, lat1): the state's own line, else across
-    the middle of the region from west to east (of the whole case without a region)."""
+    """The section's two ends, (lon0, lat0, lon1, lat1): the state's own line, else the line
+    :func:`proposed_line` proposes for the region."""
+    return section_line_and_why(library, state)[0]
+
+
+def section_line_and_why(library, state: ViewState):
+    """((lon0, lat0, lon1, lat1), the words that say where it runs): the state's own line,
+    else through a chosen system (:func:`proposed_line`), else across the middle of the
+    region from west to east (of the whole case without a region)."""
     if state.line:
         from .inputs import parse_line
 
-        return parse_line(state.line)
+        return parse_line(state.line), "the line typed"
+    spec = state.region_spec()
+    if spec is not None:
+        case = library.get(state.case)
+        proposed = proposed_line(spec, case.grid.radius)
+        if proposed is not None:
+            return proposed
     region = region_of(state)
     if region.kind != "whole":
         west, east, south, north = region.bounds()
@@ -764,7 +777,52 @@ def section_line(library, state: ViewState):
     # or more (a global case) would run the other way, so the line spans at most 179 degrees
     east = min(east, west + 179.0)
     mid = 0.5 * (south + north)
-    return (west, mid, east, mid)
+    where = "the whole case" if region.kind == "whole" else "the region"
+    return (west, mid, east, mid), f"west to east across the middle of {where}"
+
+
+#: how far a line through a chosen low or high runs each side of its centre, in radii of its
+#: region, and one across a jet streak each side of its axis, in half-widths of its area: far
+#: enough to show the system and the flow around it (the project's own choice)
+LINE_RADII = 2.0
+LINE_HALF_WIDTHS = 2.0
+
+
+def proposed_line(spec, radius: float):
+    """The line a chosen system proposes, with its words, or None for a region of another
+    kind: through a low or high (a circle) from west to east, LINE_RADII of its radius each
+    side of its centre; across a jet streak (an area along the flow, straight in the
+    azimuthal equidistant projection centred on its peak) through its centre, from the
+    left of the flow to the right, LINE_HALF_WIDTHS of its half-width each side. The ends are
+    found on a sphere of the grid's ``radius`` (pyproj's Geod and the area's projection)."""
+    import pyproj
+
+    if spec.kind == "circle":
+        ((lon, lat),) = spec.corners
+        geod = pyproj.Geod(a=radius, b=radius)
+        reach = LINE_RADII * spec.radius_km * 1e3
+        lon1, lat1, _ = geod.fwd(lon, lat, 90.0, reach)
+        lon0, lat0, _ = geod.fwd(lon, lat, 270.0, reach)
+        return (lon0, lat0, lon1, lat1), "west to east through the chosen system's centre"
+    if spec.kind == "area" and spec.proj and spec.proj[0] == "aeqd":
+        crs = spec.crs()
+        fwd = pyproj.Transformer.from_crs(crs.geodetic_crs, crs, always_xy=True)
+        inv = pyproj.Transformer.from_crs(crs, crs.geodetic_crs, always_xy=True)
+        lo, la = np.array(spec.corners, dtype=np.float64).T
+        x, y = fwd.transform(lo, la)
+        # the sides from the first corner to the second and from the third to the fourth
+        # cross the flow, from its left to its right (balance_core.systems._rect)
+        cx, cy = float(np.mean(x)), float(np.mean(y))
+        dx, dy = 0.5 * (x[1] - x[0] + x[2] - x[3]), 0.5 * (y[1] - y[0] + y[2] - y[3])
+        k = LINE_HALF_WIDTHS / 2.0  # the side is two half-widths long
+        (lon0, lon1), (lat0, lat1) = inv.transform(
+            [cx - k * dx, cx + k * dx], [cy - k * dy, cy + k * dy]
+        )
+        return (
+            (float(lon0), float(lat0), float(lon1), float(lat1)),
+            "across the chosen jet streak, from the left of the flow to the right",
+        )
+    return None
 
 
 class _SectionLevels:
@@ -775,15 +833,16 @@ class _SectionLevels:
     a band (the whole case, a smoothed flow, or a band of most of the grid) every level is
     the library's."""
 
+    BAND_STEP = 16
+
     def __init__(self, library, state: ViewState, time_index: int, lon, lat):
         self.library, self.state, self.time_index = library, state, time_index
         self.case = library.case_for(state.case, state.min_lat)
         self.band_case = None
-        self._band_diag: dict = {}
         self._reports: dict = {}
-        band = self._band(lon, lat)
-        if band is not None:
-            self.band_case = self.case.rows(*band)
+        self.band = self._band(lon, lat)
+        if self.band is not None:
+            self.band_case = self.case.rows(*self.band)
 
     def _band(self, lon, lat):
         from balance_core.io.analysis import band_rows
@@ -796,9 +855,15 @@ class _SectionLevels:
         rows = rows[np.isfinite(rows)]
         need = np.concatenate([np.floor(rows), np.ceil(rows)]).astype(np.int64)
         try:
-            return band_rows(grid, [region.mask(grid)], rows=need)
+            band = band_rows(grid, [region.mask(grid)], rows=need)
         except ValueError:
             return None  # the region's own report says what is wrong with it
+        if band is None:
+            return None
+        # widened to whole steps of BAND_STEP rows, so that the next line across the same
+        # region finds its levels computed (the library keeps them by their band)
+        step, ny = self.BAND_STEP, grid.shape[0]
+        return (band[0] // step) * step, min(ny, -(-band[1] // step) * step)
 
     def diagnostics(self, level_index: int):
         """(LevelDiagnostics, the grid they are on) of one level."""
@@ -809,13 +874,10 @@ class _SectionLevels:
             if whole is None:
                 whole = self.library.diagnostics(*key)
             return whole, self.case.grid
-        if level_index not in self._band_diag:
-            from balance_core.io import diagnostics_for
-
-            self._band_diag[level_index] = diagnostics_for(
-                self.band_case, level_index, self.time_index, None
-            )
-        return self._band_diag[level_index], self.band_case.grid
+        band = self.library.band_diagnostics(
+            s.case, level_index, self.time_index, s.min_lat, self.band
+        )
+        return band, self.band_case.grid
 
     def prepare(self) -> None:
         """Compute every level's band diagnostics and report at once, a level a thread (numpy
@@ -874,7 +936,7 @@ def section_data(library, state: ViewState, progress=None) -> dict:
     from balance_core.thermo import potential_temperature
 
     sel = resolve(library, state)
-    line = section_line(library, state)
+    line, line_why = section_line_and_why(library, state)
     case = sel.case
     lon, lat, dist = great_circle(*line, n=SECTION_POINTS, radius=case.grid.radius)
     at = _SectionLevels(library, state, sel.time_index, lon, lat)
@@ -916,6 +978,7 @@ def section_data(library, state: ViewState, progress=None) -> dict:
         "time": sel.valid_time,
         "when": sel.when,
         "line": line,
+        "line_why": line_why,
         "lon": lon,
         "lat": lat,
         "distance_km": dist,

@@ -155,6 +155,25 @@ class CaseLibrary:
 
         return self._diag.get_or_make(key, make)
 
+    def band_diagnostics(
+        self,
+        name: str,
+        level_index: int,
+        time_index: int,
+        min_lat: float,
+        band: tuple,
+    ):
+        """LevelDiagnostics of the unsmoothed flow on rows ``band`` = (j0, j1) of the case
+        (:meth:`balance_core.io.case.Case.rows`), computed once per key for every session."""
+        j0, j1 = int(band[0]), int(band[1])
+        key = self._diag_key(name, level_index, time_index, 0.0, min_lat) + (("rows", j0, j1),)
+
+        def make():
+            case = self.case_for(name, min_lat).rows(j0, j1)
+            return diagnostics_for(case, level_index, time_index, None)
+
+        return self._diag.get_or_make(key, make)
+
     def diagnostics_ready(
         self,
         name: str,

@@ -194,3 +194,60 @@ def test_a_section_of_the_whole_case_or_a_smoothed_flow_is_computed_on_the_whole
     pole_to_pole.set_box(-40.0, 0.0, 35.0, 55.0)
     lon, lat, _ = great_circle(0, -80, 0, 80)
     assert compute._SectionLevels(lib, pole_to_pole, 0, lon, lat).band_case is None
+
+
+def test_a_chosen_low_or_high_proposes_a_line_west_to_east_through_its_centre(globe):
+    """Two radii each side of the centre, due east and due west at the centre: the ends are
+    checked with the haversine distance (above), not with the code's own pyproj."""
+    from app.state import parse_region
+
+    spec = parse_region("circle:-30,50,600")[0]
+    (lon0, lat0, lon1, lat1), why = compute.proposed_line(spec, C.EARTH_RADIUS)
+    reach = compute.LINE_RADII * 600.0
+    assert _haversine_km(-30, 50, lon0, lat0) == pytest.approx(reach, rel=1e-6)
+    assert _haversine_km(-30, 50, lon1, lat1) == pytest.approx(reach, rel=1e-6)
+    assert _haversine_km(lon0, lat0, lon1, lat1) == pytest.approx(2 * reach, rel=1e-3)
+    assert lon0 < -30 < lon1 and "through the chosen system" in why
+    # a box proposes nothing of its own: the section then runs across the region's middle
+    assert compute.proposed_line(parse_region("box:-40,-20,40,60")[0], C.EARTH_RADIUS) is None
+    st = ViewState(case="globe", level=500.0)
+    st.set_box(-40, -20, 40, 60)
+    assert compute.section_line(CaseLibrary([globe]), st) == (-40, 50, -20, 50)
+
+
+@pytest.mark.parametrize("level", [250.0, 300.0])
+def test_a_chosen_jet_streak_proposes_a_line_across_its_core_on_real_output(level):
+    """On the GFS file that `make` fetches: the section the proposed line gives has the
+    streak's core inside it, away from its ends, and slower flow at both ends, as a line
+    across a jet does; the line crosses the wind at the streak's peak at nearly a right
+    angle (the wind of the case at the grid point nearest the peak)."""
+    from testkit import samples
+
+    lib = CaseLibrary([samples.need(samples.GFS)])
+    name = lib.names[0]
+    st = ViewState(case=name, level=level)
+    jets = [s for s in compute.systems_data(lib, st)["systems"] if s["kind"] == "jet_streak"]
+    assert jets
+    st.region = jets[0]["region"]
+    assert st.region.startswith("area:aeqd,")
+    data = compute.section_data(lib, st)
+    assert "across the chosen jet streak" in data["line_why"]
+    k = data["levels_hpa"].tolist().index(level)
+    speed = data["speed"][k]
+    n = speed.size
+    assert n // 4 <= int(np.nanargmax(speed)) <= 3 * n // 4
+    assert speed[0] < 0.8 * np.nanmax(speed) and speed[-1] < 0.8 * np.nanmax(speed)
+    # across the flow: the line's bearing at its middle against the wind's at the peak
+    case = lib.get(name)
+    j, i = np.unravel_index(
+        np.argmin(np.hypot(case.grid.lon - jets[0]["lon"], case.grid.lat - jets[0]["lat"])),
+        case.grid.shape,
+    )
+    f, it, ik = case.fields(case.time_index(None), case.level_index(level))
+    u, v = float(np.asarray(f.u)[it, ik, j, i]), float(np.asarray(f.v)[it, ik, j, i])
+    m = n // 2
+    dlon = (data["lon"][m + 1] - data["lon"][m - 1] + 180.0) % 360.0 - 180.0
+    east = dlon * math.cos(math.radians(data["lat"][m]))
+    north = data["lat"][m + 1] - data["lat"][m - 1]
+    cos_angle = (east * u + north * v) / (math.hypot(east, north) * math.hypot(u, v))
+    assert abs(cos_angle) < math.cos(math.radians(70.0))

@@ -356,7 +356,7 @@ class Below(pn.viewable.Viewer):
             for n in ("From lon", "From lat", "To lon", "To lat")
         ]
         self.w_line_go = pn.widgets.Button(label="Show this line", width=150)
-        self.w_line_region = pn.widgets.Button(label="Across the region", width=160)
+        self.w_line_region = pn.widgets.Button(label="The region's own line", width=170)
         self.w_section_field = pn.widgets.RadioButtonGroup(
             options={v[0].split(" (")[0]: k for k, v in self.SECTION_FIELDS.items()},
             value="speed",
@@ -371,7 +371,9 @@ class Below(pn.viewable.Viewer):
                 "two points (degrees; west and south negative), at this valid time: the field "
                 "filled, potential temperature in black contours every 4 K, and the region's "
                 "verdict at each level on the right. Without a line of its own it runs west to "
-                "east across the middle of the region.</div>"
+                "east across the middle of the region; through a chosen low or high from west "
+                "to east, two radii of its region each side of its centre; across a chosen jet "
+                "streak through its peak, from the left of the flow to the right.</div>"
             ),
             pn.Row(*self.w_line, self.w_line_go, self.w_line_region),
             self.w_section_field,
@@ -492,7 +494,8 @@ class Below(pn.viewable.Viewer):
         self._put(
             self.section_verdicts,
             f"<div style='font-size:15px;color:{INK}'><b>The region's verdict at each level</b>"
-            f" ({esc(data['region'])}); the section runs from {esc(along)}"
+            f" ({esc(data['region'])}); the section runs from {esc(along)}, "
+            f"{esc(data.get('line_why', ''))}"
             f"<table class='bd-section-verdicts'>{rows}</table></div>",
         )
 
