@@ -191,7 +191,16 @@ def test_a_second_server_on_a_store_is_refused_with_one_sentence(tmp_path):
         stop_server(proc)
 
 
-def test_bodies_and_websocket_messages_are_bounded():
+@pytest.fixture(scope="module")
+def server():
+    """One server for this module's tests of what a client may send (process, url, port);
+    each looks for its own lines in the log."""
+    proc, url, port = start_server()
+    yield proc, url, port
+    stop_server(proc)
+
+
+def test_bodies_and_websocket_messages_are_bounded(server):
     """A body over 16 KiB gets 413 from its headers (was: up to 100 MB taken); a websocket
     message over 1 MiB closes the socket (was: up to 20 MB)."""
     import tornado.ioloop
@@ -199,46 +208,45 @@ def test_bodies_and_websocket_messages_are_bounded():
     from app.serve import MAX_BODY, MAX_LOG_LINE, MAX_WS_MESSAGE
     from testkit.wire_page import WirePage
 
-    proc, url, port = start_server()
-    try:
-        for path in ("login", "", "room"):
-            req = urllib.request.Request(url + path, data=b"x" * (MAX_BODY + 1), method="POST")
-            with pytest.raises(urllib.error.HTTPError) as info:
-                urllib.request.urlopen(req, timeout=60)
-            assert info.value.code == 413, path
-            assert info.value.headers.get("X-Content-Type-Options") == "nosniff"
-        req = urllib.request.Request(url, data=b"x" * 100, method="POST")
-        with pytest.raises(urllib.error.HTTPError) as info:  # within the bound: no 413
+    proc, url, port = server
+    for path in ("login", "", "room"):
+        req = urllib.request.Request(url + path, data=b"x" * (MAX_BODY + 1), method="POST")
+        with pytest.raises(urllib.error.HTTPError) as info:
             urllib.request.urlopen(req, timeout=60)
-        assert info.value.code != 413
+        assert info.value.code == 413, path
+        assert info.value.headers.get("X-Content-Type-Options") == "nosniff"
+    req = urllib.request.Request(url, data=b"x" * 100, method="POST")
+    with pytest.raises(urllib.error.HTTPError) as info:  # within the bound: no 413
+        urllib.request.urlopen(req, timeout=60)
+    assert info.value.code != 413
 
-        async def send(size):
-            """A message of ``size`` bytes that is no Bokeh message; returns once the server
-            has closed the socket."""
-            page = WirePage(url)
-            await page.open()
-            await page._ws.write_message("{not a header")
-            await page._ws.write_message("{}")
-            await page._ws.write_message("x" * size)
-            while await page._ws.read_message() is not None:
-                pass  # what the server had sent already, then None: closed
+    async def send(size):
+        """A message of ``size`` bytes that is no Bokeh message; returns once the server
+        has closed the socket."""
+        page = WirePage(url)
+        await page.open()
+        await page._ws.write_message("{not a header")
+        await page._ws.write_message("{}")
+        await page._ws.write_message("x" * size)
+        while await page._ws.read_message() is not None:
+            pass  # what the server had sent already, then None: closed
 
-        loop = tornado.ioloop.IOLoop.current()
-        said = "server failed to parse a message"
-        # over the bound: the socket is closed before the message reaches the page's server
-        loop.run_sync(lambda: send(MAX_WS_MESSAGE + 1), timeout=180)
-        assert said not in open(proc.log_path).read()
-        # within it: the message is read, found to be no message, and the socket closed
-        loop.run_sync(lambda: send(MAX_WS_MESSAGE - 100), timeout=180)
-        wait_until(lambda: said in open(proc.log_path).read(), 60, proc=proc)
-    finally:
-        out = stop_server(proc)
+    loop = tornado.ioloop.IOLoop.current()
+    said = "server failed to parse a message"
+    # over the bound: the socket is closed before the message reaches the page's server
+    loop.run_sync(lambda: send(MAX_WS_MESSAGE + 1), timeout=180)
+    assert said not in open(proc.log_path).read()
+    # within it: the message is read, found to be no message, and the socket closed
+    loop.run_sync(lambda: send(MAX_WS_MESSAGE - 100), timeout=180)
+    wait_until(lambda: said in open(proc.log_path).read(), 60, proc=proc)
+    with open(proc.log_path) as fh:
+        out = fh.read()
     # Bokeh logs the message it could not read: cut (was: all of it, on one line)
     longest = max(len(line) for line in out.splitlines())
     assert longest < MAX_LOG_LINE + 200 and "characters cut" in out, longest
 
 
-def test_a_session_a_client_makes_itself_is_refused():
+def test_a_session_a_client_makes_itself_is_refused(server):
     """Session ids are signed with a key made at each start: a token a client writes itself
     (to open sessions past the page limit, or to claim cookies or headers) is refused; the
     page's own token works."""
@@ -249,43 +257,40 @@ def test_a_session_a_client_makes_itself_is_refused():
 
     from testkit.wire_page import WirePage
 
-    proc, url, port = start_server()
-    try:
-        own = generate_jwt_token(
-            "a-session-of-my-own",
-            secret_key=None,
-            signed=False,
-            extra_payload={"headers": {"X-Balance-Desk-Writer": "someone"}, "cookies": {}},
-        )
+    proc, url, port = server
+    own = generate_jwt_token(
+        "a-session-of-my-own",
+        secret_key=None,
+        signed=False,
+        extra_payload={"headers": {"X-Balance-Desk-Writer": "someone"}, "cookies": {}},
+    )
 
-        async def connect(token):
-            req = tornado.httpclient.HTTPRequest(f"ws://127.0.0.1:{port}/ws")
-            conn = await tornado.websocket.websocket_connect(req, subprotocols=["bokeh", token])
-            got = []
-            while (m := await conn.read_message()) is not None:
-                got.append(m)
-            return got
+    async def connect(token):
+        req = tornado.httpclient.HTTPRequest(f"ws://127.0.0.1:{port}/ws")
+        conn = await tornado.websocket.websocket_connect(req, subprotocols=["bokeh", token])
+        got = []
+        while (m := await conn.read_message()) is not None:
+            got.append(m)
+        return got
 
-        loop = tornado.ioloop.IOLoop.current()
-        assert loop.run_sync(lambda: connect(own), timeout=120) == []  # closed, nothing sent
+    loop = tornado.ioloop.IOLoop.current()
+    assert loop.run_sync(lambda: connect(own), timeout=120) == []  # closed, nothing sent
 
-        async def real():
-            import asyncio
+    async def real():
+        import asyncio
 
-            page = WirePage(url)
-            await page.open()  # the page's own token: a document comes back, and its widgets
-            reading = asyncio.ensure_future(page.run())  # (with it, or just after: a page
-            try:  # built when its session connects sends its parts after the document)
-                return await page.until(lambda: page.widgets, what="the page's widgets")
-            finally:
-                page.close()
-                await reading
+        page = WirePage(url)
+        await page.open()  # the page's own token: a document comes back, and its widgets
+        reading = asyncio.ensure_future(page.run())  # (with it, or just after: a page
+        try:  # built when its session connects sends its parts after the document)
+            return await page.until(lambda: page.widgets, what="the page's widgets")
+        finally:
+            page.close()
+            await reading
 
-        assert loop.run_sync(real, timeout=180)
-        with open(proc.log_path) as fh:
-            assert "invalid signature" in fh.read()
-    finally:
-        stop_server(proc)
+    assert loop.run_sync(real, timeout=180)
+    with open(proc.log_path) as fh:
+        assert "invalid signature" in fh.read()
 
 
 def test_long_log_lines_are_cut():
@@ -325,29 +330,26 @@ def test_serving_another_address_without_a_passphrase_warns_at_every_start():
     assert out.index("WARNING") < out.index("serving 3 case(s)")
 
 
-def test_a_websocket_from_another_origin_is_refused_and_long_links_are_too():
+def test_a_websocket_from_another_origin_is_refused_and_long_links_are_too(server):
     import tornado.httpclient
     import tornado.ioloop
     import tornado.websocket
 
-    proc, url, port = start_server()
-    try:
+    proc, url, port = server
 
-        async def connect(origin):
-            req = tornado.httpclient.HTTPRequest(
-                f"ws://127.0.0.1:{port}/ws", headers={"Origin": origin}
-            )
-            try:
-                conn = await tornado.websocket.websocket_connect(req)
-                conn.close()
-                return 101
-            except tornado.httpclient.HTTPClientError as exc:
-                return exc.code
+    async def connect(origin):
+        req = tornado.httpclient.HTTPRequest(
+            f"ws://127.0.0.1:{port}/ws", headers={"Origin": origin}
+        )
+        try:
+            conn = await tornado.websocket.websocket_connect(req)
+            conn.close()
+            return 101
+        except tornado.httpclient.HTTPClientError as exc:
+            return exc.code
 
-        code = tornado.ioloop.IOLoop.current().run_sync(lambda: connect("http://evil.invalid"))
-        assert code == 403
-        with pytest.raises(urllib.error.HTTPError) as info:
-            urllib.request.urlopen(url + "?case=" + "x" * 61000, timeout=30)
-        assert info.value.code == 414
-    finally:
-        stop_server(proc)
+    code = tornado.ioloop.IOLoop.current().run_sync(lambda: connect("http://evil.invalid"))
+    assert code == 403
+    with pytest.raises(urllib.error.HTTPError) as info:
+        urllib.request.urlopen(url + "?case=" + "x" * 61000, timeout=30)
+    assert info.value.code == 414
