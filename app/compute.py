@@ -973,6 +973,11 @@ def section_data(library, state: ViewState, progress=None) -> dict:
             )
         if progress is not None:
             progress(k + 1, n)
+    if not (np.isfinite(speed).any() or np.isfinite(theta).any()):
+        raise CaseError(
+            "the section's line lies outside this case's data: type a line within it, or "
+            "take the region's own line"
+        )
     return {
         "case": state.case,
         "time": sel.valid_time,

@@ -5,11 +5,8 @@ The server's log goes to a file: a pipe nobody reads fills up and stops the serv
 
 from __future__ import annotations
 
-import json
 import os
 import re
-import shutil
-import signal
 import subprocess
 import sys
 import tempfile
@@ -154,74 +151,3 @@ def stop_server(proc, *, signal_kill=False) -> str:
         out = fh.read()
     os.unlink(proc.log_path)
     return out
-
-
-#: the environment variable naming the folder where the servers shared by one test run leave
-#: their address (tests/conftest.py makes the folder in the run's first process); a handover
-#: between the test processes, not a setting of balance-desk (so not named BALANCE_DESK_*)
-SHARED_ENV = "BD_TEST_SHARED_DIR"
-_KEEP: list = []  # the shared servers this process started: never collected while they run
-
-
-def shared_server(name: str, args=(), *, env=None) -> tuple[str, str]:
-    """(url, log path) of a server shared by every process of one test run (pytest-xdist's
-    workers): the first to ask starts it (:func:`start_server`), the others find its address
-    in the run's folder (named by :data:`SHARED_ENV`), and :func:`stop_shared_servers` stops
-    it at the end of the run. Its tests must not depend on what the others did on it."""
-    import fcntl
-
-    folder = os.environ.get(SHARED_ENV)
-    if not folder:
-        raise RuntimeError(f"{SHARED_ENV} is not set: tests/conftest.py sets it for a run")
-    info = os.path.join(folder, f"{name}.json")
-    with open(os.path.join(folder, f"{name}.lock"), "w") as lock:
-        fcntl.flock(lock, fcntl.LOCK_EX)  # one process starts it; the others wait, then read
-        if not os.path.exists(info):
-            proc, url, _ = start_server(args, env=env)
-            _KEEP.append(proc)
-            with open(info + ".part", "w") as fh:
-                json.dump({"url": url, "pid": proc.pid, "log": proc.log_path}, fh)
-            os.replace(info + ".part", info)
-        with open(info) as fh:
-            found = json.load(fh)
-    return found["url"], found["log"]
-
-
-def _running(pid: int) -> bool:
-    """Is ``pid`` a process that still runs (not gone, not a zombie waiting to be reaped)?"""
-    try:
-        with open(f"/proc/{pid}/stat") as fh:
-            return fh.read().rsplit(")", 1)[1].split()[0] != "Z"
-    except OSError:
-        return False
-
-
-def stop_shared_servers() -> dict:
-    """Stop the run's shared servers and remove their folder; {name: the end of its log} for
-    each whose log holds a Python traceback (the run's first process calls this once every
-    test has finished)."""
-    folder = os.environ.get(SHARED_ENV)
-    broken: dict = {}
-    if not folder or not os.path.isdir(folder):
-        return broken
-    for entry in sorted(os.listdir(folder)):
-        if not entry.endswith(".json"):
-            continue
-        with open(os.path.join(folder, entry)) as fh:
-            found = json.load(fh)
-        pid = found["pid"]
-        try:
-            os.kill(pid, signal.SIGTERM)
-        except ProcessLookupError:
-            pass
-        try:
-            wait_until(lambda pid=pid: not _running(pid), 20, what="a shared server to stop")
-        except TimeoutError:
-            os.kill(pid, signal.SIGKILL)
-        with open(found["log"], errors="replace") as fh:
-            out = fh.read()
-        os.unlink(found["log"])
-        if "Traceback" in out:
-            broken[entry[: -len(".json")]] = out[-3000:]
-    shutil.rmtree(folder, ignore_errors=True)
-    return broken

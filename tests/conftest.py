@@ -21,34 +21,6 @@ import pyproj  # noqa: F401  - before anything that may load eccodes
 import pytest
 
 
-def pytest_configure(config):
-    """The run's first process (pytest-xdist's controller, or the only one) makes the folder
-    where the servers its workers share leave their address (testkit.serving.shared_server);
-    the workers, started after this, inherit it."""
-    from testkit.serving import SHARED_ENV
-
-    if not hasattr(config, "workerinput"):
-        import tempfile
-
-        os.environ[SHARED_ENV] = tempfile.mkdtemp(prefix="bd-shared-")
-
-
-def pytest_sessionfinish(session, exitstatus):
-    """The run's first process stops the shared servers once every test has finished; a
-    traceback in one's log fails the run, with the log's end."""
-    if hasattr(session.config, "workerinput"):
-        return
-    from testkit.serving import stop_shared_servers
-
-    broken = stop_shared_servers()
-    if broken:
-        out = session.config.pluginmanager.get_plugin("terminalreporter")
-        for name, tail in broken.items():
-            if out is not None:
-                out.write_line(f"the shared server {name!r} logged a traceback:\n{tail}")
-        session.exitstatus = pytest.ExitCode.TESTS_FAILED
-
-
 @pytest.fixture
 def rng():
     return np.random.default_rng(20261201)

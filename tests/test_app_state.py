@@ -608,3 +608,37 @@ def test_a_change_made_while_the_browser_fetches_the_document_waits_for_the_star
     assert seen == ["before any browser", "first", "second"]
     page._held(lambda: seen.append("after the start"))
     assert seen[-1] == "after the start" and len(seen) == 4
+
+
+def test_the_section_line_is_on_the_chart_while_its_tab_is_open(library):
+    """Its ends A and B where the section's line begins and ends, in the chart's
+    coordinates; gone when another tab is opened, back when the section's is; a section that
+    cannot be made takes it away (and says why)."""
+    from app.desk.page import build_page
+
+    page = build_page(
+        library,
+        {
+            "case": ["ocean_cyclone"],
+            "level": ["500"],
+            "time": ["2041-01-19T12:00:00Z"],
+            "region": ["box:-52,-28,38,56"],
+            "line": ["-50,40,-30,50"],
+        },
+    )
+    page.start()
+    assert list(page.chart.section_src.data["x"]) == []  # the section's tab is not open
+    page.below.tabs.active = page.below.TAB["section"]
+    ends = page.chart.section_end_src.data
+    assert list(ends["text"]) == ["A", "B"]
+    x, y = page.chart.data.geom.path_to_view(np.array([-50.0, -30.0]), np.array([40.0, 50.0]))
+    np.testing.assert_allclose(ends["x"], x, rtol=1e-9, atol=1e-6)
+    np.testing.assert_allclose(ends["y"], y, rtol=1e-9, atol=1e-6)
+    assert len(page.chart.section_src.data["x"]) == compute.SECTION_POINTS
+    page.below.tabs.active = page.below.TAB["levels"]
+    assert list(page.chart.section_src.data["x"]) == []
+    page.below.tabs.active = page.below.TAB["section"]
+    assert len(page.chart.section_src.data["x"]) == compute.SECTION_POINTS
+    page.state.case = "sea_breeze"  # the line lies outside this case: no section, no line
+    assert "Section:" in page.below.section_status.object
+    assert list(page.chart.section_src.data["x"]) == []

@@ -450,6 +450,10 @@ class Below(pn.viewable.Viewer):
         if error or not data:
             self._put(self.section_status, alert(f"Section: {error}", "error"))
             self._put(self.section_verdicts, "")
+            self.section_data = None  # no old section under the sentence, nor its line
+            if self.section_fig is not None:
+                self.section_src.data = {k: [] for k in self.section_src.data}
+                self.theta_src.data = dict(xs=[], ys=[])
             return
         self.section_data = data
         for w, v in zip(self.w_line, data["line"]):

@@ -225,6 +225,10 @@ class Chart(pn.viewable.Viewer):
         self.grat_src = ColumnDataSource(dict(xs=[], ys=[]))
         self.glab_src = ColumnDataSource(dict(x=[], y=[], text=[]))
         self.region_src = ColumnDataSource(dict(x=[], y=[]))
+        #: the section's line while the section is open (its ends A and B, as on its plot)
+        self.section_src = ColumnDataSource(dict(x=[], y=[]))
+        self.section_end_src = ColumnDataSource(dict(x=[], y=[], text=[]))
+        self._section_line = None  # its (lon, lat) points, drawn again with each chart
         self.note_src = ColumnDataSource(dict(x=[], y=[], label=[]))
         self.sys_src = ColumnDataSource(dict(x=[], y=[], label=[], marker=[], colour=[]))
         #: called with (lon, lat) when the chart is clicked, while someone wants a point
@@ -339,6 +343,31 @@ class Chart(pn.viewable.Viewer):
         )
         fig.line(
             "x", "y", source=self.region_src, line_color=ORANGE, line_width=3.5, level="overlay"
+        )
+        # the section's line: dashed ink on a white rim, apart from the region's orange
+        fig.line(
+            "x", "y", source=self.section_src, line_color="white", line_width=5, level="overlay"
+        )
+        fig.line(
+            "x",
+            "y",
+            source=self.section_src,
+            line_color=INK,
+            line_width=2.5,
+            line_dash=[8, 5],
+            level="overlay",
+        )
+        fig.add_layout(
+            _labels(
+                self.section_end_src,
+                text_align="center",
+                text_baseline="middle",
+                text_color=INK,
+                text_font_style="bold",
+                background_fill_color="white",
+                background_fill_alpha=0.9,
+                level="overlay",
+            )
         )
         # weather systems: shape by kind, fill by verdict, a white rim, the label in a box;
         # on the overlay layer too (they come after the chart, and a room's notes at any time:
@@ -652,6 +681,7 @@ class Chart(pn.viewable.Viewer):
                 x=[p[0] for p in glab], y=[p[1] for p in glab], text=[p[2] for p in glab]
             )
         self.show_outline(cd.region_xy)
+        self._draw_section_line()
         h = cd.hover
         _update_source(
             self.hover_src,
@@ -726,6 +756,23 @@ class Chart(pn.viewable.Viewer):
             "<div style='font-size:15px'>" + "<br>".join(esc(n) for n in notes) + "</div>"
         )
         self.busy(False)
+
+    def show_section_line(self, lonlat):
+        """Draw the section's line, (lon, lat) of its points from A to B, on the chart (and
+        again on every chart after this one); None takes it away."""
+        self._section_line = lonlat
+        self._draw_section_line()
+
+    def _draw_section_line(self):
+        if self._section_line is None or self.data is None:
+            self.section_src.data = dict(x=[], y=[])
+            self.section_end_src.data = dict(x=[], y=[], text=[])
+            return
+        lon, lat = self._section_line
+        x, y = self.data.geom.path_to_view(np.asarray(lon), np.asarray(lat))
+        x, y = np.asarray(x, dtype=np.float64), np.asarray(y, dtype=np.float64)
+        self.section_src.data = dict(x=x, y=y)
+        self.section_end_src.data = dict(x=[x[0], x[-1]], y=[y[0], y[-1]], text=["A", "B"])
 
     def show_outline(self, xy):
         if xy is None:

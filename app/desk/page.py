@@ -430,7 +430,7 @@ class Page(pn.viewable.Viewer):
                 lambda: compute.section_data(
                     self.library, snap, progress=self._progress(self.below.section_progress)
                 ),
-                self.below.show_section,
+                self._show_section,
             )
         else:
             self.below.times_progress(0, None)
@@ -496,7 +496,18 @@ class Page(pn.viewable.Viewer):
         i = times.index(self.state.time) if self.state.time in times else 0
         self.state.time = times[(i + 1) % len(times)]
 
+    def _show_section(self, data, error=None):
+        """The section below, and its line on the chart while its tab is open."""
+        self.below.show_section(data, error)
+        self._section_line_on_chart()
+
+    def _section_line_on_chart(self):
+        data = self.below.section_data
+        shown = self.below.is_open("section") and data is not None
+        self.chart.show_section_line((data["lon"], data["lat"]) if shown else None)
+
     def _tab_opened(self, event):
+        self._section_line_on_chart()  # (an old line is redrawn now and replaced when ready)
         for kind in list(self._stale):
             if self.below.is_open(kind) and self.live:
                 self._submit_below(kind)
@@ -614,6 +625,7 @@ class Page(pn.viewable.Viewer):
                 show(None, self._sentence(kind, value)) if kind in (
                     "levels",
                     "times",
+                    "section",
                     "systems",
                     "life",
                 ) else self._show_error(kind, self._sentence(kind, value))
