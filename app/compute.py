@@ -881,9 +881,10 @@ class _SectionLevels:
 
     def prepare(self) -> None:
         """Compute every level's band diagnostics and report at once, a level a thread (numpy
-        works outside Python's lock for most of a level: on 2 cores a section of 7 levels of
-        a 0.25-degree global case took 1.65 s this way against 2.04 s one level after
-        another, measured with bench/app.py's case). Nothing to do without a band."""
+        works outside Python's lock for most of a level: on 2 cores a cold section of 7
+        levels of bench/app.py's 0.25-degree global case took 1.37 s this way against 2.30 s
+        one level after another, medians of 6 runs of each taken in turn). Nothing to do
+        without a band."""
         if self.band_case is None:
             return
         import concurrent.futures
