@@ -642,3 +642,15 @@ def test_the_section_line_is_on_the_chart_while_its_tab_is_open(library):
     page.state.case = "sea_breeze"  # the line lies outside this case: no section, no line
     assert "Section:" in page.below.section_status.object
     assert list(page.chart.section_src.data["x"]) == []
+
+
+def test_the_region_numbers_name_each_number_once(library):
+    """The region's numbers hold the report's numbers only: one deformation radius (in km, as
+    the report gives it), not a second one of the scale sheet's that the report never has."""
+    from app.desk.evidence import _numbers_table
+
+    rep = compute.box_data(library, _state(region="box:-52,-28,38,56"))
+    html = _numbers_table(rep, "m/s")
+    assert html.count("dotted #999'>deformation radius<") == 1
+    assert html.count("<b>deformation radius</b>") <= 1  # its meaning, once at most
+    assert "n/a</b> m<" not in html

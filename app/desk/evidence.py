@@ -291,7 +291,9 @@ def _numbers_table(rep, wind_units):
     rows = []
     explain = rep.get("explain", {})
     for k, (label, unit, _meaning) in wording.NUMBERS.items():
-        val = rep["numbers"].get(k)
+        if k not in rep["numbers"]:
+            continue  # a number of the scale sheet only (its deformation radius in m)
+        val = rep["numbers"][k]
         txt = "n/a" if val is None else (f"{val:.3g}")
         said = explain.get(k)
         line = (
@@ -329,7 +331,7 @@ def _numbers_table(rep, wind_units):
     more = "".join(
         f"<li><b>{esc(label)}</b>: {esc(meaning)}</li>"
         for key, (label, _, meaning) in wording.NUMBERS.items()
-        if key not in explain
+        if key not in explain and key in rep["numbers"]
     )
     return (
         f"<div style='font-size:16px;color:{INK}'><b>Numbers</b>"
