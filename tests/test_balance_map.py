@@ -154,3 +154,26 @@ def test_the_chart_field_draws_the_classes_in_their_colours_and_says_its_tiles()
     blue = [int(BALANCE_CLASSES[0].colour[i : i + 2], 16) for i in (1, 3, 5)]
     assert BALANCE_CLASSES[0].name == "geostrophic"
     assert np.mean(np.all(np.abs(rgb.astype(int) - blue) <= 3, axis=1)) > 0.05
+
+
+def test_the_tiles_at_the_poles_and_the_last_columns_take_the_region_rule_too(flow_2p5):
+    """Where the globe is awkward: the tile holding the north pole row (one point), the last
+    tile of rows (to the south pole, whatever its size) and the last tile of columns (up to
+    the wrap at 0 E) each have the class of the report of a region made of exactly its
+    points."""
+    m = balance_map(flow_2p5)
+    ny, nx = flow_2p5.grid.shape
+    n = m.tile_points
+    # 73 rows and 144 columns in tiles of 5: the last tile of rows is 70 to 72 (80S to the
+    # pole; 3 rows, at least half a tile, stay a tile of their own), of columns 140 to 143
+    assert (ny, nx, n) == (73, 144, 5)
+    last_r, last_c = 70, 140
+    for r0, c0 in [(0, 0), (0, last_c), (last_r, 20), (30, last_c)]:
+        r1 = ny if r0 == last_r else r0 + n
+        c1 = nx if c0 == last_c else c0 + n
+        # the tile is one class throughout, from its first point to its last
+        assert len(set(m.classes[r0:r1, c0:c1].ravel())) == 1, (r0, c0)
+        inside = np.zeros(flow_2p5.grid.shape, dtype=bool)
+        inside[r0:r1, c0:c1] = True
+        rep = box_report(flow_2p5, inside)
+        assert CLASSES[m.classes[r0, c0]] == rep["verdict"]["balance"], (r0, c0)
