@@ -866,18 +866,18 @@ class _SectionLevels:
         return (band[0] // step) * step, min(ny, -(-band[1] // step) * step)
 
     def diagnostics(self, level_index: int):
-        """(LevelDiagnostics, the grid they are on) of one level."""
+        """(LevelDiagnostics, the case they are on: the whole case or its band) of one level."""
         s = self.state
         key = (s.case, level_index, self.time_index, s.smooth_km, s.min_lat)
         whole = self.library.diagnostics_ready(*key)
         if whole is not None or self.band_case is None:
             if whole is None:
                 whole = self.library.diagnostics(*key)
-            return whole, self.case.grid
+            return whole, self.case
         band = self.library.band_diagnostics(
             s.case, level_index, self.time_index, s.min_lat, self.band
         )
-        return band, self.band_case.grid
+        return band, self.band_case
 
     def prepare(self) -> None:
         """Compute every level's band diagnostics and report at once, a level a thread (numpy
@@ -909,8 +909,7 @@ class _SectionLevels:
         """A level's report for the region (the numbers :func:`box_data` gives)."""
         if level_index in self._reports:
             return self._reports[level_index]
-        diag, grid = self.diagnostics(level_index)
-        case = self.case if grid is self.case.grid else self.band_case
+        diag, case = self.diagnostics(level_index)
         return analyze_case(
             case,
             core_level(state.level),
@@ -958,7 +957,8 @@ def section_data(library, state: ViewState, progress=None) -> dict:
         verdicts.append(verdict)
         balances.append(balance)
         li = int(np.argmin(np.abs(case.levels_pa - hpa * 100)))
-        diag, grid = at.diagnostics(li)
+        diag, on = at.diagnostics(li)
+        grid = on.grid
         if not diag.no_wind:
             speed[k] = render.sample_at(grid, diag.speed, lon, lat)
             if balance is not None:

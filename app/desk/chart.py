@@ -196,6 +196,13 @@ def _labels(source, text="text", **style):
     return LabelSet(x="x", y="y", text=text, source=source, text_font_size="14px", **style)
 
 
+def _rimmed_line(fig, source, colour, width, **style):
+    """A line of ``source`` (columns x, y) on the overlay layer, on a white rim 2.5 px wider
+    so that it reads over any fill."""
+    fig.line("x", "y", source=source, line_color="white", line_width=width + 2.5, level="overlay")
+    fig.line("x", "y", source=source, line_color=colour, line_width=width, level="overlay", **style)
+
+
 class Chart(pn.viewable.Viewer):
     """The middle of the page."""
 
@@ -338,25 +345,9 @@ class Chart(pn.viewable.Viewer):
         )
         # the region's outline on the overlay layer: moving it repaints that layer alone, not
         # the raster, contours and arrows below (Bokeh paints the two canvases apart)
-        fig.line(
-            "x", "y", source=self.region_src, line_color="white", line_width=6, level="overlay"
-        )
-        fig.line(
-            "x", "y", source=self.region_src, line_color=ORANGE, line_width=3.5, level="overlay"
-        )
+        _rimmed_line(fig, self.region_src, ORANGE, 3.5)
         # the section's line: dashed ink on a white rim, apart from the region's orange
-        fig.line(
-            "x", "y", source=self.section_src, line_color="white", line_width=5, level="overlay"
-        )
-        fig.line(
-            "x",
-            "y",
-            source=self.section_src,
-            line_color=INK,
-            line_width=2.5,
-            line_dash=[8, 5],
-            level="overlay",
-        )
+        _rimmed_line(fig, self.section_src, INK, 2.5, line_dash=[8, 5])
         fig.add_layout(
             _labels(
                 self.section_end_src,
